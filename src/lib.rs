@@ -1,0 +1,1 @@
+//! planisphere: scattering statistics of HEALPix maps on masked footprints.
