@@ -1,1 +1,8 @@
-//! planisphere: scattering statistics of HEALPix maps on masked footprints.
+//! planisphere: wavelet scattering statistics of HEALPix sky maps on masked survey footprints.
+//!
+//! The modules follow the data flow of the method: sky map → tiling → patch sampling →
+//! apodization → filters → transform → pooling → statistics → forecast. See DEVELOPERS.md.
+
+pub mod error;
+
+pub use error::{Error, Result};
