@@ -6,3 +6,10 @@
 pub mod error;
 
 pub use error::{Error, Result};
+pub mod footprint;
+pub mod pixelization;
+pub mod skymap;
+
+pub use footprint::Footprint;
+pub use pixelization::{Direction, Ordering, Pixelization};
+pub use skymap::SkyMap;

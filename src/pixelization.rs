@@ -1,0 +1,336 @@
+//! HEALPix pixel geometry: NSIDE, RING/NESTED ordering, pixel centres, direction → pixel,
+//! neighbours and bilinear interpolation weights.
+//!
+//! All geometry goes through the `cdshealpix` crate (0.10). Conventions follow Górski et al. 2005
+//! (ApJ 622, 759) and healpy: a direction is (θ, φ) with θ the colatitude in [0, π] and φ the
+//! longitude in [0, 2π); `cdshealpix` works in (lon, lat) = (φ, π/2 − θ).
+
+use crate::error::{Error, Result};
+use cdshealpix::compass_point::MainWind;
+use cdshealpix::nested::Layer;
+use std::f64::consts::{FRAC_PI_2, PI};
+use std::fmt;
+
+/// Largest NSIDE accepted (2^29, the largest depth `cdshealpix` supports).
+pub const NSIDE_MAX: u32 = cdshealpix::NSIDE_MAX;
+
+/// Pixel numbering scheme of a HEALPix map.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub enum Ordering {
+    /// Pixels numbered along iso-latitude rings from north to south.
+    Ring,
+    /// Pixels numbered hierarchically inside each of the 12 base pixels.
+    Nested,
+}
+
+impl Ordering {
+    /// The value of the FITS `ORDERING` keyword for this scheme.
+    pub fn fits_name(self) -> &'static str {
+        match self {
+            Ordering::Ring => "RING",
+            Ordering::Nested => "NESTED",
+        }
+    }
+
+    /// Parses `RING` / `NESTED` (also `NEST`), case-insensitively, as the FITS keyword allows.
+    pub fn parse(text: &str) -> Option<Ordering> {
+        match text.trim().to_ascii_uppercase().as_str() {
+            "RING" => Some(Ordering::Ring),
+            "NESTED" | "NEST" => Some(Ordering::Nested),
+            _ => None,
+        }
+    }
+}
+
+impl fmt::Display for Ordering {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.fits_name())
+    }
+}
+
+/// A direction on the unit sphere: colatitude `theta` ∈ [0, π] and longitude `phi`, in radians.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Direction {
+    /// Colatitude θ (0 at the north pole).
+    pub theta: f64,
+    /// Longitude φ.
+    pub phi: f64,
+}
+
+impl Direction {
+    /// A direction from colatitude and longitude in radians.
+    pub fn new(theta: f64, phi: f64) -> Self {
+        Direction { theta, phi }
+    }
+
+    /// A direction from longitude and latitude in degrees (e.g. galactic l, b).
+    pub fn from_lonlat_deg(lon: f64, lat: f64) -> Self {
+        Direction {
+            theta: FRAC_PI_2 - lat.to_radians(),
+            phi: lon.to_radians(),
+        }
+    }
+
+    /// Latitude π/2 − θ in radians.
+    pub fn lat(&self) -> f64 {
+        FRAC_PI_2 - self.theta
+    }
+
+    /// Longitude reduced to [0, 2π).
+    pub fn lon(&self) -> f64 {
+        self.phi.rem_euclid(2.0 * PI)
+    }
+
+    /// Unit vector (sin θ cos φ, sin θ sin φ, cos θ).
+    pub fn to_vector(&self) -> [f64; 3] {
+        let (st, ct) = self.theta.sin_cos();
+        let (sp, cp) = self.phi.sin_cos();
+        [st * cp, st * sp, ct]
+    }
+
+    /// The direction of a (not necessarily normalised) non-zero vector.
+    pub fn from_vector(v: [f64; 3]) -> Self {
+        let rho = (v[0] * v[0] + v[1] * v[1]).sqrt();
+        let theta = rho.atan2(v[2]);
+        let phi = if rho == 0.0 {
+            0.0
+        } else {
+            v[1].atan2(v[0]).rem_euclid(2.0 * PI)
+        };
+        Direction { theta, phi }
+    }
+
+    /// Great-circle distance to `other` in radians (haversine form, accurate at small angles).
+    pub fn distance(&self, other: &Direction) -> f64 {
+        cdshealpix::haversine_dist(self.lon(), self.lat(), other.lon(), other.lat())
+    }
+
+    /// The (lon, lat) pair in radians that `cdshealpix` expects, with lat clamped to [−π/2, π/2].
+    fn lonlat(&self) -> (f64, f64) {
+        (self.lon(), self.lat().clamp(-FRAC_PI_2, FRAC_PI_2))
+    }
+}
+
+/// The pixelization of a HEALPix map: its NSIDE and ordering.
+#[derive(Clone, Copy)]
+pub struct Pixelization {
+    nside: u32,
+    ordering: Ordering,
+    /// The NESTED layer of the same NSIDE, present when NSIDE is a power of two.
+    layer: Option<&'static Layer>,
+}
+
+impl fmt::Debug for Pixelization {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "Pixelization(NSIDE={}, {})", self.nside, self.ordering)
+    }
+}
+
+impl PartialEq for Pixelization {
+    fn eq(&self, other: &Self) -> bool {
+        self.nside == other.nside && self.ordering == other.ordering
+    }
+}
+
+impl Pixelization {
+    /// A pixelization; NSIDE must be in 1..=2^29, and a power of two for NESTED (Górski et al.
+    /// 2005, §4: the nested scheme subdivides each base pixel into NSIDE² = 4^k pixels).
+    pub fn new(nside: u32, ordering: Ordering) -> Result<Self> {
+        if nside == 0 || nside > NSIDE_MAX {
+            return Err(Error::Geometry(format!(
+                "NSIDE {nside} is out of range (1 to {NSIDE_MAX})"
+            )));
+        }
+        let power_of_two = nside.is_power_of_two();
+        if ordering == Ordering::Nested && !power_of_two {
+            return Err(Error::Geometry(format!(
+                "NSIDE {nside} is not a power of two, which NESTED ordering requires"
+            )));
+        }
+        let layer = power_of_two.then(|| cdshealpix::nested::get(cdshealpix::depth(nside)));
+        Ok(Pixelization {
+            nside,
+            ordering,
+            layer,
+        })
+    }
+
+    /// NSIDE.
+    pub fn nside(&self) -> u32 {
+        self.nside
+    }
+
+    /// Pixel ordering.
+    pub fn ordering(&self) -> Ordering {
+        self.ordering
+    }
+
+    /// The same NSIDE in another ordering.
+    pub fn with_ordering(&self, ordering: Ordering) -> Result<Self> {
+        Pixelization::new(self.nside, ordering)
+    }
+
+    /// Number of pixels, Npix = 12 NSIDE² (Górski et al. 2005, eq. 2).
+    pub fn npix(&self) -> u64 {
+        npix_of(self.nside)
+    }
+
+    /// Number of iso-latitude rings, 4 NSIDE − 1 (Górski et al. 2005, §4).
+    pub fn nrings(&self) -> u32 {
+        4 * self.nside - 1
+    }
+
+    /// Solid angle of one pixel, 4π / Npix = π / (3 NSIDE²) steradians (equal-area pixels).
+    pub fn pixel_area(&self) -> f64 {
+        4.0 * PI / self.npix() as f64
+    }
+
+    /// Mean pixel spacing √(pixel area) in radians (≈ 3517.94′ / NSIDE, common practice).
+    pub fn mean_spacing(&self) -> f64 {
+        self.pixel_area().sqrt()
+    }
+
+    /// Is `pixel` a valid index (0 ≤ pixel < Npix)?
+    pub fn contains(&self, pixel: u64) -> bool {
+        pixel < self.npix()
+    }
+
+    /// The NESTED layer; an error when NSIDE is not a power of two.
+    fn layer(&self) -> Result<&'static Layer> {
+        self.layer.ok_or_else(|| {
+            Error::Geometry(format!(
+                "NSIDE {} is not a power of two: neighbours, interpolation and re-ordering need one",
+                self.nside
+            ))
+        })
+    }
+
+    /// Centre of `pixel` (which must satisfy [`Pixelization::contains`]).
+    pub fn center(&self, pixel: u64) -> Direction {
+        let (lon, lat) = match self.ordering {
+            Ordering::Ring => cdshealpix::ring::center(self.nside, pixel),
+            Ordering::Nested => self.layer.map(|l| l.center(pixel)).unwrap_or((0.0, 0.0)),
+        };
+        Direction::new(FRAC_PI_2 - lat, lon)
+    }
+
+    /// The pixel containing direction `dir`.
+    pub fn pixel_of(&self, dir: Direction) -> u64 {
+        let (lon, lat) = dir.lonlat();
+        match (self.ordering, self.layer) {
+            (Ordering::Nested, Some(layer)) => layer.hash(lon, lat),
+            _ => cdshealpix::ring::hash(self.nside, lon, lat),
+        }
+    }
+
+    /// NESTED index of `pixel` given in this pixelization's ordering.
+    pub fn to_nested(&self, pixel: u64) -> Result<u64> {
+        match self.ordering {
+            Ordering::Nested => Ok(pixel),
+            Ordering::Ring => Ok(self.layer()?.from_ring(pixel)),
+        }
+    }
+
+    /// RING index of `pixel` given in this pixelization's ordering.
+    pub fn to_ring(&self, pixel: u64) -> Result<u64> {
+        match self.ordering {
+            Ordering::Ring => Ok(pixel),
+            Ordering::Nested => Ok(self.layer()?.to_ring(pixel)),
+        }
+    }
+
+    /// Index in this ordering of a NESTED index.
+    pub fn from_nested(&self, nested: u64) -> Result<u64> {
+        match self.ordering {
+            Ordering::Nested => Ok(nested),
+            Ordering::Ring => Ok(self.layer()?.to_ring(nested)),
+        }
+    }
+
+    /// The eight neighbours of `pixel` in healpy's order (SW, W, NW, N, NE, E, SE, S); `None`
+    /// where a pixel at a base-pixel corner has only seven neighbours.
+    pub fn neighbours(&self, pixel: u64) -> Result<[Option<u64>; 8]> {
+        let layer = self.layer()?;
+        let nested = self.to_nested(pixel)?;
+        let map = layer.neighbours(nested, false);
+        let order = [
+            MainWind::SW,
+            MainWind::W,
+            MainWind::NW,
+            MainWind::N,
+            MainWind::NE,
+            MainWind::E,
+            MainWind::SE,
+            MainWind::S,
+        ];
+        let mut out = [None; 8];
+        for (slot, wind) in out.iter_mut().zip(order) {
+            if let Some(&n) = map.get(wind) {
+                *slot = Some(self.from_nested(n)?);
+            }
+        }
+        Ok(out)
+    }
+
+    /// Bilinear interpolation weights at `dir`: four (pixel, weight) pairs summing to 1, from
+    /// `cdshealpix::nested::Layer::bilinear_interpolation` (bilinear in the HEALPix projection
+    /// plane of Calabretta & Roukema 2007, MNRAS 381, 865; weights of missing corner neighbours are
+    /// shared between the two adjacent pixels).
+    pub fn bilinear_weights(&self, dir: Direction) -> Result<[(u64, f64); 4]> {
+        let layer = self.layer()?;
+        let (lon, lat) = dir.lonlat();
+        let mut w = layer.bilinear_interpolation(lon, lat);
+        if self.ordering == Ordering::Ring {
+            for (p, _) in w.iter_mut() {
+                *p = layer.to_ring(*p);
+            }
+        }
+        Ok(w)
+    }
+}
+
+/// 12 NSIDE², the number of pixels of a map of that NSIDE.
+pub fn npix_of(nside: u32) -> u64 {
+    12 * (nside as u64) * (nside as u64)
+}
+
+/// The NSIDE whose map has `npix` pixels, if any.
+pub fn nside_of_npix(npix: u64) -> Option<u32> {
+    if npix % 12 != 0 {
+        return None;
+    }
+    let n2 = npix / 12;
+    let n = (n2 as f64).sqrt().round() as u64;
+    (n * n == n2 && n >= 1 && n <= NSIDE_MAX as u64).then_some(n as u32)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn nested_requires_power_of_two_nside() {
+        let err = Pixelization::new(12, Ordering::Nested).unwrap_err();
+        assert!(err.to_string().contains("not a power of two"), "{err}");
+        assert!(Pixelization::new(12, Ordering::Ring).is_ok());
+    }
+
+    #[test]
+    fn nside_zero_and_huge_are_rejected() {
+        assert!(Pixelization::new(0, Ordering::Ring)
+            .unwrap_err()
+            .to_string()
+            .contains("out of range"));
+        assert!(Pixelization::new(1 << 30, Ordering::Ring).is_err());
+    }
+
+    #[test]
+    fn npix_inverse_recovers_nside() {
+        // Npix = 12 NSIDE² (Górski et al. 2005, eq. 2).
+        for nside in [1u32, 2, 3, 16, 1000, 8192] {
+            assert_eq!(nside_of_npix(npix_of(nside)), Some(nside));
+        }
+        assert_eq!(nside_of_npix(13), None);
+        assert_eq!(nside_of_npix(12 * 5), None);
+    }
+}
