@@ -13,3 +13,4 @@ pub mod skymap;
 pub use footprint::Footprint;
 pub use pixelization::{Direction, Ordering, Pixelization};
 pub use skymap::SkyMap;
+pub mod cli;

@@ -1,1 +1,5 @@
-fn main() {}
+//! The `planisphere` command line: see `planisphere --help`.
+
+fn main() {
+    std::process::exit(planisphere::cli::main());
+}

@@ -1,0 +1,44 @@
+//! The command-line interface: one module per command, each with its clap `Args` and a `run`.
+//!
+//! Every error reaches the user as a single line `planisphere: error: …` on stderr, with exit
+//! code 2 for bad input (1 is left to clap's usage errors being 2 as well).
+
+use crate::error::Result;
+use clap::{Parser, Subcommand};
+
+pub mod output;
+
+/// Wavelet scattering statistics of HEALPix sky maps on masked survey footprints.
+#[derive(Debug, Parser)]
+#[command(name = "planisphere", version, about, long_about = None)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The commands.
+#[derive(Debug, Subcommand)]
+pub enum Command {}
+
+/// Runs the command line and returns the process exit code.
+pub fn main() -> i32 {
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(e) => {
+            let code = e.exit_code();
+            let _ = e.print();
+            return code;
+        }
+    };
+    match run(cli.command) {
+        Ok(()) => 0,
+        Err(e) => {
+            eprintln!("planisphere: error: {e}");
+            2
+        }
+    }
+}
+
+fn run(command: Command) -> Result<()> {
+    match command {}
+}
