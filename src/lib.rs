@@ -14,3 +14,4 @@ pub use footprint::Footprint;
 pub use pixelization::{Direction, Ordering, Pixelization};
 pub use skymap::SkyMap;
 pub mod cli;
+pub mod scenario;

@@ -6,6 +6,7 @@
 use crate::error::Result;
 use clap::{Parser, Subcommand};
 
+pub mod demo;
 pub mod output;
 
 /// Wavelet scattering statistics of HEALPix sky maps on masked survey footprints.
@@ -18,7 +19,10 @@ pub struct Cli {
 
 /// The commands.
 #[derive(Debug, Subcommand)]
-pub enum Command {}
+pub enum Command {
+    /// Run the whole job on a built-in mock survey (no input files needed).
+    Demo(demo::DemoArgs),
+}
 
 /// Runs the command line and returns the process exit code.
 pub fn main() -> i32 {
@@ -40,5 +44,7 @@ pub fn main() -> i32 {
 }
 
 fn run(command: Command) -> Result<()> {
-    match command {}
+    match command {
+        Command::Demo(args) => demo::run(&args),
+    }
 }
