@@ -296,7 +296,7 @@ pub fn npix_of(nside: u32) -> u64 {
 
 /// The NSIDE whose map has `npix` pixels, if any.
 pub fn nside_of_npix(npix: u64) -> Option<u32> {
-    if npix % 12 != 0 {
+    if !npix.is_multiple_of(12) {
         return None;
     }
     let n2 = npix / 12;
