@@ -13,5 +13,6 @@ pub mod skymap;
 pub use footprint::Footprint;
 pub use pixelization::{Direction, Ordering, Pixelization};
 pub use skymap::SkyMap;
+pub mod apodization;
 pub mod cli;
 pub mod scenario;
