@@ -52,14 +52,14 @@ fn apodized_weights_follow_the_taper_of_the_distance() {
     for kind in [TaperKind::C1, TaperKind::C2, TaperKind::Gaussian] {
         let ap = apodize(&fp, kind, width).unwrap();
         let mut interior = 0;
-        for p in 0..pix.npix() as usize {
+        for (p, &d) in dist.iter().enumerate() {
             let expected = if fp.weights()[p] > 0.0 {
-                taper(kind, dist[p], width)
+                taper(kind, d, width)
             } else {
                 0.0
             };
             assert_eq!(ap.weights()[p], expected);
-            if dist[p] >= width {
+            if d >= width {
                 assert_eq!(ap.weights()[p], 1.0);
                 interior += 1;
             }
