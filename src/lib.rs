@@ -17,3 +17,4 @@ pub mod apodization;
 pub mod cli;
 pub mod correlation;
 pub mod scenario;
+pub mod spectrum;
