@@ -4,5 +4,6 @@
 //! apodization → filters → transform → pooling → statistics → forecast. See DEVELOPERS.md.
 
 pub mod error;
+pub mod harmonics;
 
 pub use error::{Error, Result};
