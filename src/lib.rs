@@ -4,6 +4,7 @@
 //! apodization → filters → transform → pooling → statistics → forecast. See DEVELOPERS.md.
 
 pub mod error;
+pub mod harmonics;
 
 pub use error::{Error, Result};
 pub mod footprint;

@@ -1,0 +1,398 @@
+//! Spherical harmonic synthesis (a_ℓm → map) and analysis (map → a_ℓm) on the HEALPix RING
+//! grid.
+//!
+//! Synthesis: f(θ_r, φ_j) = Σ_m F_m(θ_r) e^{imφ_j}, F_m(θ) = Σ_ℓ a_ℓm λ_ℓm(θ), with
+//! F_−m = conj(F_m) for a real map; healpy's Y_ℓm = λ_ℓm(θ) e^{imφ} (Condon–Shortley phase in
+//! λ_ℓm). Analysis by plain quadrature with equal pixel weights 4π/Npix (healpy 1.20.1
+//! `map2alm(..., use_weights=False)`): a_ℓm = (4π/Npix) Σ_r λ_ℓm(θ_r) Σ_j f_rj e^{−imφ_j},
+//! refined by Jacobi iterations a_{k+1} = a_k + A(f − S a_k) (healpy's `iter`).
+//!
+//! Work is split in two stages, each parallel with rayon over independent outputs (so results
+//! are bitwise identical for any thread count): the Legendre stage over orders m, computing
+//! λ_ℓm on the fly for blocks of rings and using the north/south symmetry; the ring stage over
+//! rings, one real FFT per ring. On a ring with n pixels starting at φ0, e^{imφ_j} =
+//! e^{imφ0} e^{2πi(m mod n)j/n}, so orders m ≥ n fold onto frequency m mod n with the phase
+//! e^{imφ0}; as n φ0 is 0 or π, e^{imφ0} = e^{ikφ0}(±1)^⌊m/n⌋ with k = m mod n.
+
+use std::sync::Arc;
+
+use num_complex::Complex64;
+use rayon::prelude::*;
+use realfft::{ComplexToReal, RealFftPlanner, RealToComplex};
+
+use super::coefficients::HarmonicCoefficients;
+use super::geometry::RingGeometry;
+use super::legendre::{
+    analysis_order, log2_sectoral_norms, synthesis_order, FusedMulAdd, OrderRecurrence,
+    PlainMulAdd, RingPairs,
+};
+use crate::error::{Error, Result};
+
+/// Number of Jacobi iterations healpy's `map2alm` uses by default (`iter=3`).
+pub const DEFAULT_ANALYSIS_ITERATIONS: usize = 3;
+
+/// Rings per block in the Legendre stage.
+const LANES: usize = 8;
+
+/// Synthesis and analysis for one (Nside, lmax); owns the ring geometry and the FFT plans and is
+/// meant to be built once and shared (it is `Sync`).
+pub struct HarmonicTransform {
+    geometry: RingGeometry,
+    lmax: usize,
+    pairs: RingPairs,
+    log2_norms: Vec<f64>,
+    forward: Vec<Arc<dyn RealToComplex<f64>>>,
+    inverse: Vec<Arc<dyn ComplexToReal<f64>>>,
+    fused: bool,
+}
+
+impl std::fmt::Debug for HarmonicTransform {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("HarmonicTransform")
+            .field("nside", &self.geometry.nside())
+            .field("lmax", &self.lmax)
+            .field("fused_multiply_add", &self.fused)
+            .finish()
+    }
+}
+
+/// Whether this CPU has AVX2 and FMA (checked once per transform).
+fn cpu_has_fma() -> bool {
+    #[cfg(target_arch = "x86_64")]
+    {
+        std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma")
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    {
+        false
+    }
+}
+
+/// e^{ikφ0} for k = 0 … count − 1 by repeated multiplication, re-anchored with a direct
+/// sin/cos every 32 steps (error a few ulp).
+fn phase_table(phi0: f64, count: usize) -> Vec<Complex64> {
+    let step = Complex64::from_polar(1.0, phi0);
+    let mut out = Vec::with_capacity(count);
+    let mut w = Complex64::new(1.0, 0.0);
+    for k in 0..count {
+        if k % 32 == 0 {
+            w = Complex64::from_polar(1.0, k as f64 * phi0);
+        }
+        out.push(w);
+        w *= step;
+    }
+    out
+}
+
+impl HarmonicTransform {
+    /// Transform for maps of `nside` and coefficients up to `lmax` ≤ 3·nside − 1.
+    pub fn new(nside: usize, lmax: usize) -> Result<Self> {
+        Self::with_options(nside, lmax, cpu_has_fma())
+    }
+
+    /// As [`HarmonicTransform::new`], choosing whether fused multiply-add kernels are used (they
+    /// need AVX2+FMA; requesting them on a CPU without is silently ignored). Both give the same
+    /// results to rounding; each is bitwise reproducible for any thread count.
+    pub fn with_options(nside: usize, lmax: usize, fused_multiply_add: bool) -> Result<Self> {
+        let geometry = RingGeometry::new(nside)?;
+        if lmax > 3 * nside - 1 {
+            return Err(Error::Setting(format!(
+                "lmax {lmax} is above 3*NSIDE-1 = {} for NSIDE {nside}",
+                3 * nside - 1
+            )));
+        }
+        let rings = geometry.rings();
+        let npairs = 2 * nside;
+        let pairs = RingPairs {
+            z: rings[..npairs].iter().map(|r| r.z).collect(),
+            sin_theta: rings[..npairs].iter().map(|r| r.sin_theta).collect(),
+        };
+        let mut planner = RealFftPlanner::<f64>::new();
+        let forward = rings
+            .iter()
+            .map(|r| planner.plan_fft_forward(r.pixel_count))
+            .collect();
+        let inverse = rings
+            .iter()
+            .map(|r| planner.plan_fft_inverse(r.pixel_count))
+            .collect();
+        Ok(HarmonicTransform {
+            lmax,
+            pairs,
+            log2_norms: log2_sectoral_norms(lmax),
+            forward,
+            inverse,
+            fused: fused_multiply_add && cpu_has_fma(),
+            geometry,
+        })
+    }
+
+    /// The ring geometry of the maps.
+    pub fn geometry(&self) -> &RingGeometry {
+        &self.geometry
+    }
+
+    /// HEALPix resolution parameter.
+    pub fn nside(&self) -> usize {
+        self.geometry.nside()
+    }
+
+    /// Largest multipole.
+    pub fn lmax(&self) -> usize {
+        self.lmax
+    }
+
+    /// Whether the fused multiply-add kernels are in use.
+    pub fn uses_fused_multiply_add(&self) -> bool {
+        self.fused
+    }
+
+    /// Number of map pixels, 12 Nside².
+    pub fn pixel_count(&self) -> usize {
+        self.geometry.pixel_count()
+    }
+
+    fn ring_count(&self) -> usize {
+        self.geometry.rings().len()
+    }
+
+    /// Legendre-stage slot of ring q: (pair, side) with side 0 north, 1 south.
+    fn slot(&self, q: usize) -> usize {
+        let npairs = self.pairs.len();
+        if q < npairs {
+            2 * q
+        } else {
+            2 * (self.ring_count() - 1 - q) + 1
+        }
+    }
+
+    /// Map values (RING order, 12 Nside² pixels) of f = Σ_ℓm a_ℓm Y_ℓm for real-map
+    /// coefficients (healpy 1.20.1 `alm2map`). `alm.lmax()` must equal the transform's lmax.
+    pub fn synthesis(&self, alm: &HarmonicCoefficients) -> Result<Vec<f64>> {
+        if alm.lmax() != self.lmax {
+            return Err(Error::Mismatch(format!(
+                "coefficients have lmax {}, the transform was built for lmax {}",
+                alm.lmax(),
+                self.lmax
+            )));
+        }
+        let lmax = self.lmax;
+        let stride = 2 * self.pairs.len();
+        // Legendre stage: ring sums F_m for every ring, m-major.
+        let mut sums = vec![Complex64::new(0.0, 0.0); (lmax + 1) * stride];
+        sums.par_chunks_mut(stride)
+            .enumerate()
+            .for_each(|(m, out)| self.synthesis_order(m, alm.order(m), out));
+        // Ring stage: fold, phase-shift and inverse real FFT, one ring at a time.
+        let mut map = vec![0.0; self.pixel_count()];
+        let mut ring_slices = Vec::with_capacity(self.ring_count());
+        let mut rest: &mut [f64] = &mut map;
+        for ring in self.geometry.rings() {
+            let (head, tail) = rest.split_at_mut(ring.pixel_count);
+            ring_slices.push(head);
+            rest = tail;
+        }
+        ring_slices
+            .into_par_iter()
+            .enumerate()
+            .for_each(|(q, values)| {
+                let ring = &self.geometry.rings()[q];
+                let n = ring.pixel_count;
+                let half = n / 2;
+                let slot = self.slot(q);
+                let phases = if ring.half_pixel_shift {
+                    phase_table(ring.phi0, n.min(lmax + 1))
+                } else {
+                    Vec::new()
+                };
+                let mut spectrum = vec![Complex64::new(0.0, 0.0); half + 1];
+                for m in 0..=lmax {
+                    let f = sums[m * stride + slot];
+                    let k = m % n;
+                    let mut g = f;
+                    if ring.half_pixel_shift {
+                        g *= phases[k];
+                        if (m / n) % 2 == 1 {
+                            g = -g;
+                        }
+                    }
+                    if k <= half {
+                        spectrum[k] += g;
+                    }
+                    if m > 0 {
+                        let k2 = (n - k) % n;
+                        if k2 <= half {
+                            spectrum[k2] += g.conj();
+                        }
+                    }
+                }
+                // Hermitian: the DC and Nyquist bins are real (n is always even).
+                spectrum[0].im = 0.0;
+                spectrum[half].im = 0.0;
+                let plan = &self.inverse[q];
+                let mut scratch = plan.make_scratch_vec();
+                plan.process_with_scratch(&mut spectrum, values, &mut scratch)
+                    .expect("FFT buffers sized from the plan");
+            });
+        Ok(map)
+    }
+
+    /// Coefficients a_ℓm up to lmax of a RING-ordered map with `iterations` Jacobi refinements
+    /// (healpy 1.20.1 `map2alm(map, lmax, mmax=lmax, iter=iterations, use_weights=False)`;
+    /// [`DEFAULT_ANALYSIS_ITERATIONS`] = 3 is healpy's default).
+    pub fn analysis(&self, map: &[f64], iterations: usize) -> Result<HarmonicCoefficients> {
+        if map.len() != self.pixel_count() {
+            return Err(Error::Mismatch(format!(
+                "map has {} pixels, NSIDE {} needs {}",
+                map.len(),
+                self.nside(),
+                self.pixel_count()
+            )));
+        }
+        if let Some(p) = map.iter().position(|v| !v.is_finite()) {
+            return Err(Error::Data(format!(
+                "map value at pixel {p} is not finite ({})",
+                map[p]
+            )));
+        }
+        let mut alm = self.analysis_once(map);
+        for _ in 0..iterations {
+            let resynth = self.synthesis(&alm)?;
+            let residual: Vec<f64> = map.iter().zip(&resynth).map(|(a, b)| a - b).collect();
+            let correction = self.analysis_once(&residual);
+            for (a, c) in alm.as_mut_slice().iter_mut().zip(correction.as_slice()) {
+                *a += *c;
+            }
+        }
+        Ok(alm)
+    }
+
+    /// One quadrature pass A(map).
+    fn analysis_once(&self, map: &[f64]) -> HarmonicCoefficients {
+        let lmax = self.lmax;
+        let width = lmax + 1;
+        let weight = 4.0 * std::f64::consts::PI / self.pixel_count() as f64;
+        // Ring stage: weighted azimuthal sums G_m of every ring, ring-major.
+        let mut sums = vec![Complex64::new(0.0, 0.0); self.ring_count() * width];
+        sums.par_chunks_mut(width).enumerate().for_each(|(q, out)| {
+            let ring = &self.geometry.rings()[q];
+            let n = ring.pixel_count;
+            let half = n / 2;
+            let plan = &self.forward[q];
+            let mut values = map[ring.first_pixel..ring.first_pixel + n].to_vec();
+            let mut spectrum = plan.make_output_vec();
+            let mut scratch = plan.make_scratch_vec();
+            plan.process_with_scratch(&mut values, &mut spectrum, &mut scratch)
+                .expect("FFT buffers sized from the plan");
+            let phases = if ring.half_pixel_shift {
+                phase_table(ring.phi0, n.min(lmax + 1))
+            } else {
+                Vec::new()
+            };
+            for (m, o) in out.iter_mut().enumerate() {
+                let k = m % n;
+                let c = if k <= half {
+                    spectrum[k]
+                } else {
+                    spectrum[n - k].conj()
+                };
+                let mut g = c;
+                if ring.half_pixel_shift {
+                    g *= phases[k].conj();
+                    if (m / n) % 2 == 1 {
+                        g = -g;
+                    }
+                }
+                *o = g * weight;
+            }
+        });
+        // Legendre stage: one order m per task, writing its own slice of the coefficients.
+        let mut alm = HarmonicCoefficients::zeros(lmax);
+        let mut order_slices = Vec::with_capacity(lmax + 1);
+        let mut rest: &mut [Complex64] = alm.as_mut_slice();
+        for m in 0..=lmax {
+            let (head, tail) = rest.split_at_mut(lmax + 1 - m);
+            order_slices.push(head);
+            rest = tail;
+        }
+        let last_ring = self.ring_count() - 1;
+        let npairs = self.pairs.len();
+        order_slices
+            .into_par_iter()
+            .enumerate()
+            .for_each(|(m, out)| {
+                let ring_sums = |p: usize| {
+                    let north = sums[p * width + m];
+                    let south = if p == npairs - 1 && last_ring - p == p {
+                        Complex64::new(0.0, 0.0)
+                    } else {
+                        sums[(last_ring - p) * width + m]
+                    };
+                    (north, south)
+                };
+                self.analysis_order(m, &ring_sums, out);
+            });
+        alm
+    }
+
+    fn synthesis_order(&self, m: usize, alm: &[Complex64], out: &mut [Complex64]) {
+        let rec = OrderRecurrence::new(m, self.lmax);
+        let norm = self.log2_norms[m];
+        #[cfg(target_arch = "x86_64")]
+        if self.fused {
+            // SAFETY: `fused` is only true when the CPU reports AVX2 and FMA.
+            unsafe { fused::synthesis_order(&rec, norm, &self.pairs, alm, out) };
+            return;
+        }
+        synthesis_order::<PlainMulAdd, LANES>(&rec, norm, &self.pairs, alm, out);
+    }
+
+    fn analysis_order(
+        &self,
+        m: usize,
+        ring_sums: &dyn Fn(usize) -> (Complex64, Complex64),
+        out: &mut [Complex64],
+    ) {
+        let rec = OrderRecurrence::new(m, self.lmax);
+        let norm = self.log2_norms[m];
+        #[cfg(target_arch = "x86_64")]
+        if self.fused {
+            // SAFETY: `fused` is only true when the CPU reports AVX2 and FMA.
+            unsafe { fused::analysis_order(&rec, norm, &self.pairs, ring_sums, out) };
+            return;
+        }
+        analysis_order::<PlainMulAdd, LANES>(&rec, norm, &self.pairs, ring_sums, out);
+    }
+}
+
+/// The Legendre kernels compiled for AVX2 + FMA.
+#[cfg(target_arch = "x86_64")]
+mod fused {
+    use super::*;
+
+    /// # Safety
+    /// The CPU must support AVX2 and FMA.
+    #[target_feature(enable = "avx2,fma")]
+    pub(super) unsafe fn synthesis_order(
+        rec: &OrderRecurrence,
+        norm: f64,
+        pairs: &RingPairs,
+        alm: &[Complex64],
+        out: &mut [Complex64],
+    ) {
+        super::synthesis_order::<FusedMulAdd, LANES>(rec, norm, pairs, alm, out)
+    }
+
+    /// # Safety
+    /// The CPU must support AVX2 and FMA.
+    #[target_feature(enable = "avx2,fma")]
+    pub(super) unsafe fn analysis_order(
+        rec: &OrderRecurrence,
+        norm: f64,
+        pairs: &RingPairs,
+        ring_sums: &dyn Fn(usize) -> (Complex64, Complex64),
+        out: &mut [Complex64],
+    ) {
+        super::analysis_order::<FusedMulAdd, LANES>(rec, norm, pairs, ring_sums, out)
+    }
+}
