@@ -18,4 +18,5 @@ pub mod apodization;
 pub mod cli;
 pub mod correlation;
 pub mod scenario;
+pub mod skies;
 pub mod spectrum;
