@@ -19,4 +19,5 @@ pub mod cli;
 pub mod correlation;
 pub mod scenario;
 pub mod skies;
+pub mod spectra;
 pub mod spectrum;

@@ -1,0 +1,163 @@
+//! Measured angular power spectra of maps, for comparison with the scattering coefficients:
+//! full-sky C_ℓ and cross-spectra, and pseudo-C_ℓ on a masked sky with the w2 correction.
+//!
+//! Pseudo-C_ℓ (Hivon et al. 2002, ApJ 567, 2, eqs. 2–4 and §3): the map times the weights W,
+//! with its W-weighted mean removed first, is transformed; well above the mask's scale
+//! ⟨C̃_ℓ⟩ ≈ w2 · C_ℓ with w_i = mean over the sky of W^i, so Ĉ_ℓ = C̃_ℓ / w2. Binned with
+//! Δℓ-wide bins, the error of a bin is Ĉ_b · √(2/ν_b) with ν_b = Σ_{ℓ∈b} (2ℓ+1) · w2²/w4
+//! effective modes (Hivon et al. 2002 eq. 17).
+
+use crate::error::{Error, Result};
+use crate::footprint::Footprint;
+use crate::harmonics::HarmonicTransform;
+use crate::pixelization::Ordering;
+use crate::skymap::SkyMap;
+
+/// One bin of a binned spectrum.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct SpectrumBin {
+    /// First multipole of the bin.
+    pub ell_min: usize,
+    /// Last multipole of the bin (inclusive).
+    pub ell_max: usize,
+    /// Mode-weighted mean multipole Σ(2ℓ+1)ℓ / Σ(2ℓ+1).
+    pub ell_mean: f64,
+    /// Estimated C_ℓ averaged over the bin (uniform in ℓ).
+    pub cl: f64,
+    /// Gaussian error of `cl`: cl · √(2/ν) with ν the effective number of modes.
+    pub error: f64,
+    /// Effective number of modes ν.
+    pub modes: f64,
+}
+
+/// A measured spectrum: per-ℓ values and bins, with the sky fractions used.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct MeasuredSpectrum {
+    /// C_ℓ for ℓ = 0..=ℓmax (already divided by w2 for a masked sky).
+    pub cl: Vec<f64>,
+    /// Binned values.
+    pub bins: Vec<SpectrumBin>,
+    /// mean(W²) over the sky (1 for a full sky).
+    pub w2: f64,
+    /// mean(W⁴) over the sky.
+    pub w4: f64,
+}
+
+/// Values of `map` in RING order with invalid pixels set to 0, and the matching weights.
+fn ring_values(map: &SkyMap, weights: Option<&Footprint>) -> Result<(Vec<f64>, Vec<f64>)> {
+    let map = map.to_ordering(Ordering::Ring)?;
+    let w: Vec<f64> = match weights {
+        Some(fp) => fp.restricted_to(&map)?.weights().to_vec(),
+        None => {
+            if map.valid_count() != map.pixelization().npix() {
+                return Err(Error::Data(format!(
+                    "the map has {} bad pixels: give a mask to measure a pseudo-spectrum",
+                    map.pixelization().npix() - map.valid_count()
+                )));
+            }
+            vec![1.0; map.values().len()]
+        }
+    };
+    let v = map
+        .values()
+        .iter()
+        .zip(&w)
+        .map(|(&x, &wt)| if wt > 0.0 { x } else { 0.0 })
+        .collect();
+    Ok((v, w))
+}
+
+/// Bins `cl` in `width`-wide bins from `ell_min` to `cl.len() − 1`, with ν = Σ(2ℓ+1)·w2²/w4.
+pub fn bin_spectrum(
+    cl: &[f64],
+    ell_min: usize,
+    width: usize,
+    w2: f64,
+    w4: f64,
+) -> Vec<SpectrumBin> {
+    let width = width.max(1);
+    let mut bins = Vec::new();
+    let mut start = ell_min;
+    while start < cl.len() {
+        let end = (start + width - 1).min(cl.len() - 1);
+        let modes_full: f64 = (start..=end).map(|l| (2 * l + 1) as f64).sum();
+        let modes = modes_full * w2 * w2 / w4;
+        let mean_c = cl[start..=end].iter().sum::<f64>() / (end - start + 1) as f64;
+        let ell_mean = (start..=end)
+            .map(|l| (2 * l + 1) as f64 * l as f64)
+            .sum::<f64>()
+            / modes_full;
+        bins.push(SpectrumBin {
+            ell_min: start,
+            ell_max: end,
+            ell_mean,
+            cl: mean_c,
+            error: mean_c.abs() * (2.0 / modes).sqrt(),
+            modes,
+        });
+        start = end + 1;
+    }
+    bins
+}
+
+/// Full-sky C_ℓ (no mask) or the w2-corrected pseudo-C_ℓ (with `weights`), binned in
+/// `bin_width`-wide bins from ℓ = 2.
+pub fn angular_spectrum(
+    map: &SkyMap,
+    weights: Option<&Footprint>,
+    sht: &HarmonicTransform,
+    iterations: usize,
+    bin_width: usize,
+) -> Result<MeasuredSpectrum> {
+    cross_spectrum(map, map, weights, sht, iterations, bin_width)
+}
+
+/// Cross-spectrum of two maps on the same footprint (see [`angular_spectrum`]).
+pub fn cross_spectrum(
+    a: &SkyMap,
+    b: &SkyMap,
+    weights: Option<&Footprint>,
+    sht: &HarmonicTransform,
+    iterations: usize,
+    bin_width: usize,
+) -> Result<MeasuredSpectrum> {
+    if a.nside() != b.nside() {
+        return Err(Error::Mismatch(format!(
+            "maps of NSIDE {} and {} cannot be cross-correlated",
+            a.nside(),
+            b.nside()
+        )));
+    }
+    if sht.nside() != a.nside() as usize {
+        return Err(Error::Mismatch(format!(
+            "transform set up for NSIDE {} but the map has NSIDE {}",
+            sht.nside(),
+            a.nside()
+        )));
+    }
+    let (va, w) = ring_values(a, weights)?;
+    let (vb, wb) = ring_values(b, weights)?;
+    // both maps' bad pixels leave the footprint
+    let w: Vec<f64> = w.iter().zip(&wb).map(|(x, y)| x.min(*y)).collect();
+    let wsum: f64 = w.iter().sum();
+    if wsum <= 0.0 {
+        return Err(Error::Data("the footprint is empty".into()));
+    }
+    let npix = w.len() as f64;
+    let w2 = w.iter().map(|x| x * x).sum::<f64>() / npix;
+    let w4 = w.iter().map(|x| x.powi(4)).sum::<f64>() / npix;
+    let weighted = |v: &[f64]| -> Vec<f64> {
+        let mean = v.iter().zip(&w).map(|(x, wt)| x * wt).sum::<f64>() / wsum;
+        v.iter().zip(&w).map(|(x, wt)| (x - mean) * wt).collect()
+    };
+    let alm_a = sht.analysis(&weighted(&va), iterations)?;
+    let raw = if std::ptr::eq(a, b) {
+        alm_a.power_spectrum()
+    } else {
+        let alm_b = sht.analysis(&weighted(&vb), iterations)?;
+        alm_a.cross_spectrum(&alm_b)?
+    };
+    let cl: Vec<f64> = raw.iter().map(|c| c / w2).collect();
+    let bins = bin_spectrum(&cl, 2, bin_width, w2, w4);
+    Ok(MeasuredSpectrum { cl, bins, w2, w4 })
+}
