@@ -12,7 +12,7 @@ Run by hand (not by CI):  python3 reference-values/fits_reference.py
    compares with the healpy fixture it was made from; the verdict goes to
    fits/healpy_reads_planisphere.json.
 
-Bad pixels: healpy.mask_bad (|m - UNSEEN| <= 1e-8 + 1e-5 |UNSEEN|, or NaN/inf).
+Bad pixels: healpy.mask_bad (|m - UNSEEN| <= 1e-8 + 1e-5 |UNSEEN|) or non-finite (NaN, inf).
 """
 import json
 import os
@@ -29,10 +29,15 @@ BY_US = os.path.join(OUT, "written_by_planisphere")
 
 
 def values_for_json(m):
-    """healpy's map as a JSON list: float(x) for good pixels (float32 widened exactly), None for bad."""
+    """healpy's map as a JSON list: repr(float(x)) for good pixels (float32 widened exactly), None
+    for bad. Values are strings (Python's shortest round-trip repr) so that any JSON reader can
+    recover the exact float64 by a correctly rounded decimal parse.
+
+    healpy.mask_bad flags UNSEEN only; NaN is kept as NaN by healpy.read_map, and counts as bad
+    here too (it cannot be a pixel value)."""
     m = np.asarray(m)
-    bad = hp.mask_bad(m)
-    return [None if b else float(x) for x, b in zip(m, bad)]
+    bad = hp.mask_bad(m) | ~np.isfinite(m)
+    return [None if b else repr(float(x)) for x, b in zip(m, bad)]
 
 
 def read_all(path):
@@ -115,7 +120,7 @@ def make_fixtures():
 
     expected = {
         "source": f"healpy {hp.__version__} write_map/read_map, astropy {astropy.__version__} for header edits",
-        "bad_pixel_rule": "healpy.mask_bad: |m - UNSEEN| <= 1e-8 + 1e-5 |UNSEEN| or non-finite; bad pixels are null",
+        "bad_pixel_rule": "healpy.mask_bad (|m - UNSEEN| <= 1e-8 + 1e-5 |UNSEEN|) or non-finite; bad pixels are null",
         "files": {},
     }
     for name, desc in made:
@@ -166,7 +171,8 @@ def check_planisphere_files():
                 want = hp.read_map(source, field=entry["source_columns"][k], nest=(entry["ordering"] == "NESTED"), dtype=np.float64)
             if entry.get("float32", False):
                 want = want.astype(np.float32).astype(np.float64)
-            bad_got, bad_want = hp.mask_bad(got), hp.mask_bad(want)
+            bad_got = hp.mask_bad(got) | ~np.isfinite(got)
+            bad_want = hp.mask_bad(want) | ~np.isfinite(want)
             same_bad = bool(np.array_equal(bad_got, bad_want))
             good = ~bad_want
             same_values = bool(np.array_equal(got[good], want[good]))

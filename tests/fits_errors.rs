@@ -372,7 +372,10 @@ fn partial_pixel_out_of_range_is_rejected() {
     partial_table(&negative, &[-1, 4], &[1.0, 2.0], &partial_keys());
     assert_eq!(
         read_error(&negative),
-        expect(&negative, "PIXEL entry 0 is -1, outside 0..=767 for NSIDE 8")
+        expect(
+            &negative,
+            "PIXEL entry 0 is -1, outside 0..=767 for NSIDE 8"
+        )
     );
 }
 
