@@ -647,6 +647,7 @@ pub fn write_maps(path: &Path, columns: &[(&str, &SkyMap)], options: &WriteOptio
                                 .zip(&valid[start..end])
                                 .map(|(&v, &ok)| if ok { v } else { UNSEEN }),
                         );
+                        check_range(path, name, options.precision, &buf, |i| (start + i) as u64)?;
                         file.write_doubles(
                             first_value_col + k as c_int,
                             repeat,
@@ -667,6 +668,7 @@ pub fn write_maps(path: &Path, columns: &[(&str, &SkyMap)], options: &WriteOptio
                         .iter()
                         .map(|&p| map.get(p as u64).unwrap_or(UNSEEN))
                         .collect();
+                    check_range(path, name, options.precision, &buf, |i| listed[i] as u64)?;
                     file.write_doubles(first_value_col + k as c_int, 1, 0, &mut buf)
                         .map_err(|s| fail(&format!("column '{}'", name.trim()), s))?;
                 }
@@ -674,6 +676,31 @@ pub fn write_maps(path: &Path, columns: &[(&str, &SkyMap)], options: &WriteOptio
         }
         file.close().map_err(|s| fail("the file", s))
     })
+}
+
+/// Refuses values that float32 cannot hold (cfitsio would silently store ±∞ for them).
+fn check_range(
+    path: &Path,
+    column: &str,
+    precision: ValuePrecision,
+    values: &[f64],
+    pixel_of: impl Fn(usize) -> u64,
+) -> Result<()> {
+    if precision == ValuePrecision::Float64 {
+        return Ok(());
+    }
+    match values.iter().position(|v| v.abs() > f32::MAX as f64) {
+        None => Ok(()),
+        Some(i) => Err(Error::fits(
+            path,
+            format!(
+                "pixel {} of column '{}' holds {:e}, beyond the float32 range (±3.4e38); write float64 instead",
+                pixel_of(i),
+                column.trim(),
+                values[i]
+            ),
+        )),
+    }
 }
 
 /// Values written per cfitsio call (bounds the temporary buffer to 8 MB).
