@@ -7,6 +7,7 @@ pub mod error;
 pub mod harmonics;
 
 pub use error::{Error, Result};
+pub mod fits_io;
 pub mod footprint;
 pub mod pixelization;
 pub mod skymap;
