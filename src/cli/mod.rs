@@ -7,7 +7,10 @@ use crate::error::Result;
 use clap::{Parser, Subcommand};
 
 pub mod demo;
+pub mod inputs;
 pub mod output;
+pub mod sky;
+pub mod spectra;
 
 /// Wavelet scattering statistics of HEALPix sky maps on masked survey footprints.
 #[derive(Debug, Parser)]
@@ -22,6 +25,10 @@ pub struct Cli {
 pub enum Command {
     /// Run the whole job on a built-in mock survey (no input files needed).
     Demo(demo::DemoArgs),
+    /// Make simulated Gaussian or lognormal skies as HEALPix FITS maps.
+    Sky(sky::SkyArgs),
+    /// Measure the angular power spectrum (pseudo-C_ell on a masked sky) of a map.
+    Spectra(spectra::SpectraArgs),
 }
 
 /// Runs the command line and returns the process exit code.
@@ -46,5 +53,7 @@ pub fn main() -> i32 {
 fn run(command: Command) -> Result<()> {
     match command {
         Command::Demo(args) => demo::run(&args),
+        Command::Sky(args) => sky::run(&args),
+        Command::Spectra(args) => spectra::run(&args),
     }
 }

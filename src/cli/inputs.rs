@@ -1,0 +1,62 @@
+//! Options shared by the commands that read a map and a mask, and how they are loaded.
+
+use crate::apodization::{apodize, TaperKind};
+use crate::error::{Error, Result};
+use crate::fits_io::{read_footprint, read_map, ColumnChoice};
+use crate::footprint::Footprint;
+use crate::skymap::SkyMap;
+use std::path::PathBuf;
+
+/// A mask (or weight map) and how to taper its edges.
+#[derive(Debug, Clone, clap::Args)]
+pub struct MaskArgs {
+    /// Mask or weight map (HEALPix FITS, values in [0, 1]); without it the map's valid pixels
+    /// are the footprint.
+    #[arg(long, value_name = "MASK.fits")]
+    pub mask: Option<PathBuf>,
+    /// Column of the mask file: 0-based position or name.
+    #[arg(long, value_name = "COLUMN", default_value = "0")]
+    pub mask_column: ColumnChoice,
+    /// Taper applied to binary masks near their edges (weight maps are used as they are).
+    #[arg(long, value_enum, default_value_t = TaperKind::C2)]
+    pub taper: TaperKind,
+    /// Width of the edge taper in arcmin.
+    #[arg(long, value_name = "ARCMIN", default_value_t = 60.0)]
+    pub taper_arcmin: f64,
+}
+
+/// Reads a map column, reporting a file's warnings (e.g. an assumed ordering) on stderr.
+pub fn load_map(path: &PathBuf, column: &ColumnChoice) -> Result<SkyMap> {
+    let (map, header) = read_map(path, column)?;
+    for w in &header.warnings {
+        eprintln!("planisphere: warning: {}: {w}", path.display());
+    }
+    Ok(map)
+}
+
+impl MaskArgs {
+    /// The footprint to use with `map`: the mask (or the map's valid pixels), matched to the
+    /// map and tapered.
+    pub fn footprint_for(&self, map: &SkyMap) -> Result<Footprint> {
+        if !(self.taper_arcmin.is_finite() && self.taper_arcmin >= 0.0) {
+            return Err(Error::Setting(format!(
+                "--taper-arcmin must be a non-negative number, got {}",
+                self.taper_arcmin
+            )));
+        }
+        let raw = match &self.mask {
+            Some(path) => {
+                let (fp, header) = read_footprint(path, &self.mask_column)?;
+                for w in &header.warnings {
+                    eprintln!("planisphere: warning: {}: {w}", path.display());
+                }
+                fp.restricted_to(map)?
+            }
+            None => Footprint::of_valid_pixels(map).restricted_to(map)?,
+        };
+        if self.taper == TaperKind::None || self.taper_arcmin == 0.0 || raw.f_sky() == 1.0 {
+            return Ok(raw);
+        }
+        apodize(&raw, self.taper, (self.taper_arcmin / 60.0).to_radians())
+    }
+}
