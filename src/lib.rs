@@ -22,3 +22,4 @@ pub mod scenario;
 pub mod skies;
 pub mod spectra;
 pub mod spectrum;
+pub mod tile_spectra;
