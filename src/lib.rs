@@ -18,6 +18,7 @@ pub use skymap::SkyMap;
 pub mod apodization;
 pub mod cli;
 pub mod correlation;
+pub mod ensemble;
 pub mod scenario;
 pub mod skies;
 pub mod spectra;

@@ -1,0 +1,458 @@
+//! Ensembles: one statistics vector per map, for a list of maps or a set of simulations,
+//! measured in parallel, resumable, splittable into shards, and merged into one table.
+//!
+//! On disk an ensemble is a directory:
+//!
+//! - `ensemble.json`: the members (sources in order), the column labels and the settings;
+//!   written once, and checked on every later run so that a rerun can only continue the same job;
+//! - `rows/row_NNNNNN.json`: one finished member each (its source, checksum and values), written
+//!   to a temporary file and renamed, so a killed run leaves only whole rows behind. JSON keeps
+//!   every f64 exactly (shortest round-trip form), so resumed and uninterrupted runs agree bit for
+//!   bit;
+//! - after merging: `statistics.npy` (members × columns, float64), `statistics.json` (labels,
+//!   settings, program version, each member's source and checksum) and `statistics.csv`.
+//!
+//! Member i belongs to shard k of K when i mod K = k; on a SLURM cluster the shard is taken from
+//! `SLURM_ARRAY_TASK_ID` and `SLURM_ARRAY_TASK_COUNT` when none is given.
+
+use crate::cli::output::{write_atomically, write_bytes, write_json};
+use crate::error::{Error, Result};
+use ndarray::Array2;
+use rayon::prelude::*;
+use sha2::{Digest, Sha256};
+use std::io::Read;
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicUsize, Ordering as AtomicOrdering};
+
+/// Where a member's map comes from.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum MemberSource {
+    /// A HEALPix FITS file.
+    File(PathBuf),
+    /// Simulation number `index` of the ensemble's recipe.
+    Simulation(u64),
+}
+
+impl std::fmt::Display for MemberSource {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            MemberSource::File(p) => write!(f, "{}", p.display()),
+            MemberSource::Simulation(i) => write!(f, "simulation {i}"),
+        }
+    }
+}
+
+/// One shard of K: members i with i mod count = index.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+pub struct Shard {
+    pub index: usize,
+    pub count: usize,
+}
+
+impl Shard {
+    /// The whole ensemble.
+    pub const ALL: Shard = Shard { index: 0, count: 1 };
+
+    /// Parses `K/N` (0-based K), e.g. `3/10`.
+    pub fn parse(text: &str) -> Result<Shard> {
+        let bad = || {
+            Error::Setting(format!(
+                "--shard expects INDEX/COUNT with 0 ≤ INDEX < COUNT, e.g. 0/4; got '{text}'"
+            ))
+        };
+        let (a, b) = text.split_once('/').ok_or_else(bad)?;
+        let index: usize = a.trim().parse().map_err(|_| bad())?;
+        let count: usize = b.trim().parse().map_err(|_| bad())?;
+        if count == 0 || index >= count {
+            return Err(bad());
+        }
+        Ok(Shard { index, count })
+    }
+
+    /// The shard from SLURM_ARRAY_TASK_ID / SLURM_ARRAY_TASK_COUNT, if both are set.
+    /// (SLURM numbers array tasks from `--array` start; with `--array=0-(N-1)` they are 0-based.)
+    pub fn from_slurm_env() -> Result<Option<Shard>> {
+        let get = |k: &str| std::env::var(k).ok();
+        Self::from_slurm_values(
+            get("SLURM_ARRAY_TASK_ID").as_deref(),
+            get("SLURM_ARRAY_TASK_COUNT").as_deref(),
+            get("SLURM_ARRAY_TASK_MIN").as_deref(),
+        )
+    }
+
+    /// The shard from the values of SLURM_ARRAY_TASK_ID, _COUNT and _MIN (see
+    /// [`Shard::from_slurm_env`]); `None` unless both ID and COUNT are given.
+    pub fn from_slurm_values(
+        id: Option<&str>,
+        count: Option<&str>,
+        min: Option<&str>,
+    ) -> Result<Option<Shard>> {
+        let (Some(id), Some(count)) = (id, count) else {
+            return Ok(None);
+        };
+        let parse = |name: &str, v: &str| {
+            v.trim().parse::<usize>().map_err(|_| {
+                Error::Setting(format!(
+                    "environment variable {name}='{v}' is not a whole number"
+                ))
+            })
+        };
+        let id = parse("SLURM_ARRAY_TASK_ID", id)?;
+        let count = parse("SLURM_ARRAY_TASK_COUNT", count)?;
+        let min = match min {
+            Some(m) => parse("SLURM_ARRAY_TASK_MIN", m)?,
+            None => 0,
+        };
+        let index = id.checked_sub(min).ok_or_else(|| {
+            Error::Setting(format!(
+                "SLURM_ARRAY_TASK_ID {id} is below SLURM_ARRAY_TASK_MIN {min}"
+            ))
+        })?;
+        if count == 0 || index >= count {
+            return Err(Error::Setting(format!(
+                "SLURM array task {id} (min {min}) does not fit SLURM_ARRAY_TASK_COUNT {count}: use --array=0-{}",
+                count.saturating_sub(1)
+            )));
+        }
+        Ok(Some(Shard { index, count }))
+    }
+
+    /// Does member `i` belong to this shard?
+    pub fn contains(&self, i: usize) -> bool {
+        i % self.count == self.index
+    }
+}
+
+/// What an ensemble directory holds: written once, checked on every rerun.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct EnsembleDescription {
+    /// The program version that created it.
+    pub program_version: String,
+    /// Members, in table order.
+    pub members: Vec<MemberSource>,
+    /// Column labels of the statistics vector.
+    pub labels: Vec<String>,
+    /// The measurement (and simulation) settings, as given by the caller.
+    pub settings: serde_json::Value,
+}
+
+/// One finished member.
+#[derive(Debug, Clone, serde::Serialize, serde::Deserialize)]
+pub struct Row {
+    pub member: usize,
+    pub source: MemberSource,
+    /// SHA-256 of the input file (hex), `None` for simulations.
+    pub checksum: Option<String>,
+    pub values: Vec<f64>,
+}
+
+/// What one run did.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct RunReport {
+    pub shard: Shard,
+    pub members_in_shard: usize,
+    pub already_done: usize,
+    pub measured: usize,
+    pub failed: Vec<String>,
+}
+
+/// The merged table.
+#[derive(Debug, Clone)]
+pub struct MergedTable {
+    pub description: EnsembleDescription,
+    pub rows: Vec<Row>,
+}
+
+impl MergedTable {
+    /// The members × columns matrix.
+    pub fn matrix(&self) -> Array2<f64> {
+        let p = self.description.labels.len();
+        let mut a = Array2::zeros((self.rows.len(), p));
+        for (i, r) in self.rows.iter().enumerate() {
+            for (j, v) in r.values.iter().enumerate() {
+                a[[i, j]] = *v;
+            }
+        }
+        a
+    }
+}
+
+/// SHA-256 of a file, hex encoded.
+pub fn file_checksum(path: &Path) -> Result<String> {
+    let mut f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
+    let mut h = Sha256::new();
+    let mut buf = vec![0u8; 1 << 20];
+    loop {
+        let n = f.read(&mut buf).map_err(|e| Error::io(path, e))?;
+        if n == 0 {
+            break;
+        }
+        h.update(&buf[..n]);
+    }
+    Ok(h.finalize().iter().map(|b| format!("{b:02x}")).collect())
+}
+
+/// Members from a list file (one path per line, relative to the list's directory; `#` comments).
+pub fn members_from_list(list: &Path) -> Result<Vec<MemberSource>> {
+    let text = std::fs::read_to_string(list).map_err(|e| Error::io(list, e))?;
+    let base = list.parent().unwrap_or(Path::new(""));
+    let mut out = Vec::new();
+    for line in text.lines() {
+        let line = line.split('#').next().unwrap_or("").trim();
+        if line.is_empty() {
+            continue;
+        }
+        let p = Path::new(line);
+        out.push(MemberSource::File(if p.is_absolute() {
+            p.to_path_buf()
+        } else {
+            base.join(p)
+        }));
+    }
+    if out.is_empty() {
+        return Err(Error::io(list, "the map list names no files"));
+    }
+    Ok(out)
+}
+
+/// Members from a glob pattern, sorted by path.
+pub fn members_from_glob(pattern: &str) -> Result<Vec<MemberSource>> {
+    let paths = glob::glob(pattern)
+        .map_err(|e| Error::Setting(format!("bad file pattern '{pattern}': {e}")))?;
+    let mut files: Vec<PathBuf> = paths
+        .filter_map(|p| p.ok())
+        .filter(|p| p.is_file())
+        .collect();
+    files.sort();
+    if files.is_empty() {
+        return Err(Error::Setting(format!("no files match '{pattern}'")));
+    }
+    Ok(files.into_iter().map(MemberSource::File).collect())
+}
+
+/// An ensemble directory.
+#[derive(Debug, Clone)]
+pub struct EnsembleJob {
+    dir: PathBuf,
+    description: EnsembleDescription,
+}
+
+fn row_path(dir: &Path, i: usize) -> PathBuf {
+    dir.join("rows").join(format!("row_{i:06}.json"))
+}
+
+impl EnsembleJob {
+    /// Creates the directory for a new ensemble, or opens an existing one after checking that it
+    /// describes exactly the same job.
+    pub fn create_or_open(dir: &Path, description: EnsembleDescription) -> Result<EnsembleJob> {
+        if description.members.is_empty() {
+            return Err(Error::Setting("the ensemble has no members".into()));
+        }
+        std::fs::create_dir_all(dir.join("rows")).map_err(|e| Error::io(dir, e))?;
+        let path = dir.join("ensemble.json");
+        if path.exists() {
+            let old = Self::read_description(dir)?;
+            if old.members != description.members
+                || old.labels != description.labels
+                || old.settings != description.settings
+            {
+                return Err(Error::Mismatch(format!(
+                    "{} already holds an ensemble with other members or settings; choose another output directory",
+                    dir.display()
+                )));
+            }
+        } else {
+            write_json(&path, &description)?;
+        }
+        Ok(EnsembleJob {
+            dir: dir.to_path_buf(),
+            description,
+        })
+    }
+
+    fn read_description(dir: &Path) -> Result<EnsembleDescription> {
+        let path = dir.join("ensemble.json");
+        let text = std::fs::read_to_string(&path).map_err(|e| Error::io(&path, e))?;
+        serde_json::from_str(&text)
+            .map_err(|e| Error::io(&path, format!("not an ensemble description: {e}")))
+    }
+
+    /// The description.
+    pub fn description(&self) -> &EnsembleDescription {
+        &self.description
+    }
+
+    /// Is member `i` finished (its row present and readable, with the expected length)?
+    fn is_done(&self, i: usize) -> bool {
+        read_row(&self.dir, i)
+            .map(|r| {
+                r.values.len() == self.description.labels.len()
+                    && r.source == self.description.members[i]
+            })
+            .unwrap_or(false)
+    }
+
+    /// Measures the members of `shard` that are not finished yet, in parallel, with `measure`
+    /// giving each member's values. Failures of single members are collected, not fatal; the
+    /// call returns an error at the end when any failed.
+    pub fn run<F>(&self, shard: Shard, measure: F, progress: bool) -> Result<RunReport>
+    where
+        F: Fn(usize, &MemberSource) -> Result<Vec<f64>> + Sync,
+    {
+        let in_shard: Vec<usize> = (0..self.description.members.len())
+            .filter(|&i| shard.contains(i))
+            .collect();
+        let todo: Vec<usize> = in_shard
+            .iter()
+            .copied()
+            .filter(|&i| !self.is_done(i))
+            .collect();
+        let bar = if progress {
+            let b = indicatif::ProgressBar::new(todo.len() as u64);
+            if let Ok(style) = indicatif::ProgressStyle::with_template(
+                "{prefix} [{bar:30}] {pos}/{len} maps  {elapsed_precise} elapsed, about {eta} left",
+            ) {
+                b.set_style(style.progress_chars("=> "));
+            }
+            b.set_prefix("measuring");
+            b
+        } else {
+            indicatif::ProgressBar::hidden()
+        };
+        let done = AtomicUsize::new(0);
+        let p = self.description.labels.len();
+        let failures: Vec<Option<String>> = todo
+            .par_iter()
+            .map(|&i| {
+                let source = &self.description.members[i];
+                let result = (|| -> Result<()> {
+                    let checksum = match source {
+                        MemberSource::File(path) => Some(file_checksum(path)?),
+                        MemberSource::Simulation(_) => None,
+                    };
+                    let values = measure(i, source)?;
+                    if values.len() != p {
+                        return Err(Error::Mismatch(format!(
+                            "{source}: measured {} values where the ensemble has {p} columns",
+                            values.len()
+                        )));
+                    }
+                    if let Some(k) = values.iter().position(|v| !v.is_finite()) {
+                        return Err(Error::Data(format!(
+                            "{source}: statistic '{}' is not finite",
+                            self.description.labels[k]
+                        )));
+                    }
+                    let row = Row {
+                        member: i,
+                        source: source.clone(),
+                        checksum,
+                        values,
+                    };
+                    write_json(&row_path(&self.dir, i), &row)
+                })();
+                done.fetch_add(1, AtomicOrdering::Relaxed);
+                bar.inc(1);
+                result.err().map(|e| e.to_string())
+            })
+            .collect();
+        bar.finish_and_clear();
+        let failed: Vec<String> = failures.into_iter().flatten().collect();
+        let report = RunReport {
+            shard,
+            members_in_shard: in_shard.len(),
+            already_done: in_shard.len() - todo.len(),
+            measured: todo.len() - failed.len(),
+            failed,
+        };
+        if let Some(first) = report.failed.first() {
+            return Err(Error::Data(format!(
+                "{} of {} maps failed; the first: {first}",
+                report.failed.len(),
+                todo.len()
+            )));
+        }
+        Ok(report)
+    }
+
+    /// Reads all rows of an ensemble directory in member order; an error names the missing ones.
+    pub fn merge(dir: &Path) -> Result<MergedTable> {
+        let description = Self::read_description(dir)?;
+        let mut rows = Vec::with_capacity(description.members.len());
+        let mut missing = Vec::new();
+        for i in 0..description.members.len() {
+            match read_row(dir, i) {
+                Ok(r)
+                    if r.values.len() == description.labels.len()
+                        && r.source == description.members[i] =>
+                {
+                    rows.push(r)
+                }
+                _ => missing.push(i),
+            }
+        }
+        if let Some(&first) = missing.first() {
+            return Err(Error::Data(format!(
+                "{}: {} of {} maps are not measured yet (first: member {first}, {}); run the remaining shards first",
+                dir.display(),
+                missing.len(),
+                description.members.len(),
+                description.members[first]
+            )));
+        }
+        Ok(MergedTable { description, rows })
+    }
+
+    /// Merges and writes statistics.npy, statistics.json and statistics.csv into the directory.
+    pub fn write_merged(dir: &Path) -> Result<MergedTable> {
+        let table = Self::merge(dir)?;
+        write_table(dir, "statistics", &table)?;
+        Ok(table)
+    }
+}
+
+fn read_row(dir: &Path, i: usize) -> Result<Row> {
+    let path = row_path(dir, i);
+    let text = std::fs::read_to_string(&path).map_err(|e| Error::io(&path, e))?;
+    serde_json::from_str(&text).map_err(|e| Error::io(&path, e))
+}
+
+/// Writes `<stem>.npy`, `<stem>.json` and `<stem>.csv` of a table into `dir`.
+pub fn write_table(dir: &Path, stem: &str, table: &MergedTable) -> Result<()> {
+    let npy = dir.join(format!("{stem}.npy"));
+    let matrix = table.matrix();
+    write_atomically(&npy, |tmp| {
+        ndarray_npy::write_npy(tmp, &matrix).map_err(|e| Error::io(&npy, e))
+    })?;
+    let members: Vec<serde_json::Value> = table
+        .rows
+        .iter()
+        .map(|r| serde_json::json!({"source": r.source, "sha256": r.checksum}))
+        .collect();
+    let sidecar = serde_json::json!({
+        "array": format!("{stem}.npy"),
+        "shape": [table.rows.len(), table.description.labels.len()],
+        "rows": "one per map, in member order",
+        "columns": table.description.labels,
+        "settings": table.description.settings,
+        "program": "planisphere",
+        "program_version": env!("CARGO_PKG_VERSION"),
+        "members": members,
+    });
+    write_json(&dir.join(format!("{stem}.json")), &sidecar)?;
+    let mut csv = String::from("member,source");
+    for l in &table.description.labels {
+        csv.push(',');
+        csv.push_str(l);
+    }
+    csv.push('\n');
+    for r in &table.rows {
+        csv.push_str(&format!("{},\"{}\"", r.member, r.source));
+        for v in &r.values {
+            csv.push_str(&format!(",{v:e}"));
+        }
+        csv.push('\n');
+    }
+    write_bytes(&dir.join(format!("{stem}.csv")), csv.as_bytes())
+}
