@@ -15,4 +15,5 @@ pub use pixelization::{Direction, Ordering, Pixelization};
 pub use skymap::SkyMap;
 pub mod apodization;
 pub mod cli;
+pub mod forecast;
 pub mod scenario;
