@@ -13,7 +13,7 @@
 //! For a Gaussian posterior the region holding probability P is the 1σ ellipse scaled by
 //! k = √(Δχ²) with Δχ² the P-quantile of χ² with 2 degrees of freedom: k = √(−2 ln(1 − P)).
 //! Coe 2009 tabulates k = 1.52, 2.48, 3.44 for P = 68.3%, 95.4%, 99.73%
-//! (Δχ² ≈ 2.30, 6.17, 11.8); the exact values are 1.5152, 2.4817, 3.4393.
+//! (Δχ² ≈ 2.30, 6.17, 11.8); the exact values are 1.5158, 2.4816, 3.4393.
 
 use super::fisher::FisherForecast;
 use crate::error::{Error, Result};
