@@ -139,9 +139,9 @@ fn comparison_rows_agree_with_each_sets_analytic_forecast() {
         let f = m.transpose() * c.try_inverse().unwrap() * &m;
         let exact = FisherForecast::from_fisher_matrix(table.parameters.clone(), &f).unwrap();
         let bias = row.derivative_bias_fraction.as_ref().unwrap();
-        for a in 0..2 {
+        for (a, &bias_a) in bias.iter().enumerate() {
             let got = row.marginalised_errors.as_ref().unwrap()[a];
-            let scatter = (1.0 / (2.0 * (n - p) as f64) + bias[a] / p as f64).sqrt();
+            let scatter = (1.0 / (2.0 * (n - p) as f64) + bias_a / p as f64).sqrt();
             let ratio = got / exact.marginalised_errors[a];
             println!(
                 "{}: theta{a} σ_marg {got:.5} / exact {:.5} = {ratio:.4} (scatter ≈ {scatter:.4})",

@@ -249,7 +249,10 @@ pub(crate) fn spd_inverse(a: &DMatrix<f64>) -> std::result::Result<DMatrix<f64>,
             pivot: 0.0,
         })?;
     let l = chol.l();
-    if let Some(index) = (0..p).find(|&j| !(l[(j, j)] * l[(j, j)] >= MIN_RELATIVE_PIVOT)) {
+    if let Some(index) = (0..p).find(|&j| {
+        let pivot = l[(j, j)] * l[(j, j)];
+        pivot.is_nan() || pivot < MIN_RELATIVE_PIVOT
+    }) {
         return Err(SpdFailure::Dependent {
             index,
             pivot: l[(index, index)] * l[(index, index)],

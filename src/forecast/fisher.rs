@@ -210,7 +210,7 @@ impl FisherForecast {
                 combination.join(" ")
             ))
         };
-        if !(condition_number <= MAX_CONDITION_NUMBER) {
+        if condition_number.is_nan() || condition_number > MAX_CONDITION_NUMBER {
             return Err(singular(condition_number));
         }
         let covariance = spd_inverse(fisher).map_err(|_| singular(condition_number))?;
