@@ -1,7 +1,8 @@
 //! Fisher matrices and the parameter errors they forecast.
 //!
 //! For a Gaussian likelihood whose covariance does not depend on the parameters, the Fisher
-//! matrix is (Tegmark, Taylor & Heavens 1997, ApJ 480, 22, eq. 15 without the covariance term)
+//! matrix is (Tegmark, Taylor & Heavens 1997, ApJ 480, 22: the mean-derivative term of the Gaussian
+//! Fisher matrix)
 //!
 //!   F_ab = μ,aᵀ Ψ μ,b,
 //!
