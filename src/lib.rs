@@ -3,24 +3,24 @@
 //! The modules follow the data flow of the method: sky map → tiling → patch sampling →
 //! apodization → filters → transform → pooling → statistics → forecast. See DEVELOPERS.md.
 
-pub mod error;
-pub mod harmonics;
-
-pub use error::{Error, Result};
-pub mod fits_io;
-pub mod footprint;
-pub mod pixelization;
-pub mod skymap;
-
-pub use footprint::Footprint;
-pub use pixelization::{Direction, Ordering, Pixelization};
-pub use skymap::SkyMap;
 pub mod apodization;
 pub mod cli;
 pub mod correlation;
 pub mod ensemble;
+pub mod error;
+pub mod fits_io;
+pub mod footprint;
+pub mod forecast;
+pub mod harmonics;
+pub mod pixelization;
 pub mod scenario;
 pub mod skies;
+pub mod skymap;
 pub mod spectra;
 pub mod spectrum;
 pub mod tile_spectra;
+
+pub use error::{Error, Result};
+pub use footprint::Footprint;
+pub use pixelization::{Direction, Ordering, Pixelization};
+pub use skymap::SkyMap;
