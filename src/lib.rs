@@ -4,5 +4,10 @@
 //! apodization → filters → transform → pooling → statistics → forecast. See DEVELOPERS.md.
 
 pub mod error;
+pub mod filters;
+pub mod flat;
+pub mod pooling;
+pub mod statistics;
+pub mod transform;
 
 pub use error::{Error, Result};
