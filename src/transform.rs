@@ -96,6 +96,9 @@ pub struct TransformSettings {
     pub fourier_cropping: bool,
     /// Relative size of the filters allowed outside a cropped Fourier box. Default 1e-6.
     pub crop_tolerance: f64,
+    /// Number of extra factors of 2 by which the modulus |g| is sampled more finely than the
+    /// band of the filter requires (the modulus is not band-limited). Default 1.
+    pub modulus_oversampling: usize,
 }
 
 impl Default for TransformSettings {
@@ -105,6 +108,7 @@ impl Default for TransformSettings {
             trusted_fraction: 0.5,
             fourier_cropping: true,
             crop_tolerance: 1e-6,
+            modulus_oversampling: 1,
         }
     }
 }
@@ -297,7 +301,7 @@ impl ScatteringEngine {
             if settings.fourier_cropping {
                 for d in (1..=j.min(max_level)).rev() {
                     if Self::fits_in_box(&bank, j, n >> d, settings.crop_tolerance) {
-                        chosen = d;
+                        chosen = d.saturating_sub(settings.modulus_oversampling);
                         break;
                     }
                 }
