@@ -230,5 +230,9 @@ pub fn gaussian_random_field(
     }
     fft2(&mut data, size, true);
     let scale = 1.0 / nn as f64;
-    FlatMap::new(size, pixel_size, data.iter().map(|z| z.re * scale).collect())
+    FlatMap::new(
+        size,
+        pixel_size,
+        data.iter().map(|z| z.re * scale).collect(),
+    )
 }

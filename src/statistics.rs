@@ -148,8 +148,7 @@ impl CoefficientSet {
 
     /// P(j,l).
     pub fn band_power(&self, j: usize, l: usize) -> &Coefficient {
-        &self.coefficients
-            [self.index_first(j, l) + self.scale_count * self.orientation_count]
+        &self.coefficients[self.index_first(j, l) + self.scale_count * self.orientation_count]
     }
 
     /// S2(j1,l1,j2,l2) for j1 < j2.

@@ -589,14 +589,14 @@ impl ScatteringEngine {
         }
         let mut first_weights = Vec::with_capacity(big_j);
         let mut first_trusted = Vec::with_capacity(big_j);
-        for j in 0..big_j {
+        for (tj, &level) in trust.iter().zip(&self.levels) {
             let wj: Vec<f64> = w
                 .iter()
-                .zip(&trust[j])
+                .zip(tj)
                 .map(|(&w, &t)| if t { w } else { 0.0 })
                 .collect();
             first_trusted.push(wj.iter().sum::<f64>());
-            first_weights.push(self.low_pass(&wj, self.levels[j], clock));
+            first_weights.push(self.low_pass(&wj, level, clock));
         }
         let top = self.levels.iter().copied().max().unwrap_or(0);
         let tapers: Vec<Vec<f64>> = (0..=top).map(|d| subsample(a, n, n >> d)).collect();

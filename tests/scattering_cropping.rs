@@ -82,7 +82,8 @@ fn fourier_cropping_changes_every_coefficient_by_less_than_1e_3() {
     let taper = holey_taper(n, 4.0, &[(40.0, 50.0, 10.0), (90.0, 80.0, 14.0)], 8.0);
     // Spectra: white noise and a red spectrum P ∝ 1/(1 + (k/k0)²), pixel 1 arcmin.
     let pix = 1.0f64.to_radians() / 60.0;
-    let spectra: [(&str, Box<dyn Fn(f64) -> f64>); 2] = [
+    type Spectrum = Box<dyn Fn(f64) -> f64>;
+    let spectra: [(&str, Spectrum); 2] = [
         ("white", Box::new(|_k: f64| 1.0)),
         ("red", Box::new(|k: f64| 1.0 / (1.0 + (k / 2000.0).powi(2)))),
     ];

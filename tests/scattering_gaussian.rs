@@ -77,8 +77,8 @@ fn gaussian_field_first_order_ratio_is_pi_over_4() {
             })
             .collect();
         let mean = ratios.iter().sum::<f64>() / fields as f64;
-        let sd = (ratios.iter().map(|r| (r - mean).powi(2)).sum::<f64>() / (fields - 1) as f64)
-            .sqrt();
+        let sd =
+            (ratios.iter().map(|r| (r - mean).powi(2)).sum::<f64>() / (fields - 1) as f64).sqrt();
         let err = sd / (fields as f64).sqrt();
         println!(
             "j = {j}: S1²/P = {mean:.5} ± {err:.5}, expected {expected:.5} (π/4 = {:.5}, max |ρ| = {worst_rho:.4})",
@@ -111,7 +111,7 @@ fn band_power_equals_parseval_sum_of_field_spectrum_times_filter() {
     let bank = full.bank();
     let fields = 12;
     let mut ensemble = vec![vec![0.0; 20]; fields];
-    for s in 0..fields {
+    for (s, row) in ensemble.iter_mut().enumerate() {
         let map = gaussian_random_field(N, PIXEL, &spectrum, 900 + s as u64).unwrap();
         let set = periodic_coefficients(&full, &map).unwrap();
         let cset = periodic_coefficients(&cropped, &map).unwrap();
@@ -120,8 +120,8 @@ fn band_power_equals_parseval_sum_of_field_spectrum_times_filter() {
         for j in 0..5 {
             for l in 0..4 {
                 let psi = bank.wavelet(j, l);
-                let exact: f64 = spec.iter().zip(psi).map(|(p, h)| p * h * h).sum::<f64>()
-                    / (N as f64).powi(4);
+                let exact: f64 =
+                    spec.iter().zip(psi).map(|(p, h)| p * h * h).sum::<f64>() / (N as f64).powi(4);
                 let got = set.band_power(j, l).value;
                 assert!(
                     ((got - exact) / exact).abs() < 1e-10,
@@ -129,7 +129,7 @@ fn band_power_equals_parseval_sum_of_field_spectrum_times_filter() {
                 );
                 let gotc = cset.band_power(j, l).value;
                 assert!(((gotc - exact) / exact).abs() < 1e-3);
-                ensemble[s][j * 4 + l] = got;
+                row[j * 4 + l] = got;
             }
         }
     }
@@ -148,9 +148,8 @@ fn band_power_equals_parseval_sum_of_field_spectrum_times_filter() {
             expected /= (N as f64 * PIXEL).powi(2);
             let vals: Vec<f64> = ensemble.iter().map(|e| e[j * 4 + l]).collect();
             let mean = vals.iter().sum::<f64>() / fields as f64;
-            let sd = (vals.iter().map(|v| (v - mean).powi(2)).sum::<f64>()
-                / (fields - 1) as f64)
-                .sqrt();
+            let sd =
+                (vals.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (fields - 1) as f64).sqrt();
             let err = sd / (fields as f64).sqrt();
             if l == 0 {
                 println!("j = {j}: band power {mean:.4e} ± {err:.1e}, expected {expected:.4e}");

@@ -83,7 +83,10 @@ fn masked_trusted_coefficients_agree_with_full_map_within_half_sigma() {
         }
         let label = engine.labels()[i];
         let full: Vec<f64> = full_sets.iter().map(|s| s.coefficients[i].value).collect();
-        let masked: Vec<f64> = masked_sets.iter().map(|s| s.coefficients[i].value).collect();
+        let masked: Vec<f64> = masked_sets
+            .iter()
+            .map(|s| s.coefficients[i].value)
+            .collect();
         let fm = full.iter().sum::<f64>() / fields as f64;
         let mm = masked.iter().sum::<f64>() / fields as f64;
         let spread = |v: &[f64], m: f64| {
@@ -117,6 +120,9 @@ fn masked_trusted_coefficients_agree_with_full_map_within_half_sigma() {
         worst.0, worst.1
     );
     // Every first-order coefficient up to j = 2 and a good share of order 2 must be testable.
-    assert!(compared >= 2 + 2 * 3 * L + 40, "only {compared} trusted coefficients");
+    assert!(
+        compared >= 2 + 2 * 3 * L + 40,
+        "only {compared} trusted coefficients"
+    );
     assert!(failures.is_empty(), "{failures:?}");
 }

@@ -62,7 +62,12 @@ fn tile_results_are_bitwise_identical_for_one_and_two_threads() {
     let two = run(2);
     for (a, b) in one.iter().zip(&two) {
         assert_eq!(a.footprint_weight.to_bits(), b.footprint_weight.to_bits());
-        for (x, y) in a.sums.iter().zip(&b.sums).chain(a.weights.iter().zip(&b.weights)) {
+        for (x, y) in a
+            .sums
+            .iter()
+            .zip(&b.sums)
+            .chain(a.weights.iter().zip(&b.weights))
+        {
             assert_eq!(x.to_bits(), y.to_bits());
         }
     }

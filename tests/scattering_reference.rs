@@ -103,7 +103,9 @@ fn full_resolution_coefficients_match_numpy_reference_to_1e_10() {
 fn fourier_cropped_coefficients_match_numpy_reference_within_1e_3() {
     for name in FILES {
         let (worst, compared) = run(name, true);
-        println!("{name}: {compared} coefficients, cropped path max relative deviation {worst:.3e}");
+        println!(
+            "{name}: {compared} coefficients, cropped path max relative deviation {worst:.3e}"
+        );
         assert!(worst < 1e-3, "{name}: max relative deviation {worst:e}");
     }
 }

@@ -56,7 +56,9 @@ fn nan_in_field_is_a_data_error() {
         weight: &ones,
     });
     match r {
-        Err(Error::Data(m)) => assert_eq!(m, "tile field holds a non-finite value (NaN) at pixel 37"),
+        Err(Error::Data(m)) => {
+            assert_eq!(m, "tile field holds a non-finite value (NaN) at pixel 37")
+        }
         other => panic!("expected a data error, got {other:?}"),
     }
     match FlatMap::new(16, 1e-3, f) {
@@ -96,7 +98,10 @@ fn wrong_array_length_and_negative_weight_are_rejected() {
         weight: &ones,
     }) {
         Err(Error::Mismatch(m)) => {
-            assert_eq!(m, "tile field has 255 values, expected 256 for a 16 x 16 tile")
+            assert_eq!(
+                m,
+                "tile field has 255 values, expected 256 for a 16 x 16 tile"
+            )
         }
         other => panic!("expected a mismatch error, got {other:?}"),
     }
@@ -109,7 +114,10 @@ fn wrong_array_length_and_negative_weight_are_rejected() {
         weight: &w,
     }) {
         Err(Error::Data(m)) => {
-            assert_eq!(m, "tile pooling weight must be non-negative, got -1 at pixel 3")
+            assert_eq!(
+                m,
+                "tile pooling weight must be non-negative, got -1 at pixel 3"
+            )
         }
         other => panic!("expected a data error, got {other:?}"),
     }

@@ -61,8 +61,14 @@ fn filaments_raise_shape_anisotropy_above_round_blobs() {
     // Design property of shape_anisotropy (src/statistics.rs): parallel over perpendicular
     // second-order response is larger for elongated structures.
     let engine = ScatteringEngine::new(N, 5, 4).unwrap();
-    let f = periodic_coefficients(&engine, &objects(true, 1)).unwrap().compact().unwrap();
-    let b = periodic_coefficients(&engine, &objects(false, 1)).unwrap().compact().unwrap();
+    let f = periodic_coefficients(&engine, &objects(true, 1))
+        .unwrap()
+        .compact()
+        .unwrap();
+    let b = periodic_coefficients(&engine, &objects(false, 1))
+        .unwrap()
+        .compact()
+        .unwrap();
     let pick = |c: &[planisphere::statistics::CompactStatistic], name: &str| {
         c.iter().find(|s| s.name == name).unwrap().value
     };
@@ -84,8 +90,14 @@ fn sparse_point_field_is_sparser_than_gaussian_field() {
         v[rng.gen_range(0..N * N)] = 1.0;
     }
     let points = FlatMap::new(N, 1e-3, v).unwrap();
-    let sg = periodic_coefficients(&engine, &g).unwrap().compact().unwrap();
-    let sp = periodic_coefficients(&engine, &points).unwrap().compact().unwrap();
+    let sg = periodic_coefficients(&engine, &g)
+        .unwrap()
+        .compact()
+        .unwrap();
+    let sp = periodic_coefficients(&engine, &points)
+        .unwrap()
+        .compact()
+        .unwrap();
     let name = "sparsity_scales_1_3";
     let (a, b) = (
         sg.iter().find(|s| s.name == name).unwrap().value,

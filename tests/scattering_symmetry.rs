@@ -12,8 +12,8 @@ const J: usize = 5;
 
 fn map(seed: u64) -> FlatMap {
     // Non-Gaussian: squared Gaussian field plus a mean offset.
-    let g = gaussian_random_field(N, 1e-3, &|k: f64| 1.0 / (1.0 + (k / 800.0).powi(2)), seed)
-        .unwrap();
+    let g =
+        gaussian_random_field(N, 1e-3, &|k: f64| 1.0 / (1.0 + (k / 800.0).powi(2)), seed).unwrap();
     let v = g.values().iter().map(|x| x * x + 0.3 * x + 2.0).collect();
     FlatMap::new(N, 1e-3, v).unwrap()
 }
@@ -93,8 +93,14 @@ fn quarter_turn_rotation_shifts_orientation_by_half_of_l() {
                 for l1 in 0..l_count {
                     let r1 = (l1 + h) % l_count;
                     worst = worst
-                        .max(relative(b.first_order(j1, r1).value, a.first_order(j1, l1).value))
-                        .max(relative(b.band_power(j1, r1).value, a.band_power(j1, l1).value));
+                        .max(relative(
+                            b.first_order(j1, r1).value,
+                            a.first_order(j1, l1).value,
+                        ))
+                        .max(relative(
+                            b.band_power(j1, r1).value,
+                            a.band_power(j1, l1).value,
+                        ));
                     for j2 in (j1 + 1)..J {
                         for l2 in 0..l_count {
                             let r2 = (l2 + h) % l_count;
@@ -108,7 +114,10 @@ fn quarter_turn_rotation_shifts_orientation_by_half_of_l() {
             }
             // And the shift is not a no-op: orientations do differ on this map.
             let spread = relative(a.first_order(1, 0).value, a.first_order(1, h).value);
-            println!("L = {l_count} {:?}: worst {worst:.2e}, orientation spread {spread:.2e}", engine.crop_levels());
+            println!(
+                "L = {l_count} {:?}: worst {worst:.2e}, orientation spread {spread:.2e}",
+                engine.crop_levels()
+            );
             assert!(worst < 1e-12, "L = {l_count}: {worst}");
             assert!(spread > 1e-6);
         }
@@ -119,8 +128,12 @@ fn quarter_turn_rotation_shifts_orientation_by_half_of_l() {
 fn scaling_the_map_scales_coefficients_by_their_degree() {
     let m = map(5);
     let a = -2.5f64;
-    let scaled = FlatMap::new(N, m.pixel_size(), m.values().iter().map(|v| a * v).collect())
-        .unwrap();
+    let scaled = FlatMap::new(
+        N,
+        m.pixel_size(),
+        m.values().iter().map(|v| a * v).collect(),
+    )
+    .unwrap();
     for engine in engines(4).iter() {
         let base = periodic_coefficients(engine, &m).unwrap();
         let s = periodic_coefficients(engine, &scaled).unwrap();
