@@ -93,7 +93,7 @@ def main():
     here = os.path.dirname(os.path.abspath(__file__))
     out_dir = os.path.join(here, "scattering")
     os.makedirs(out_dir, exist_ok=True)
-    for (n, J, L, seed) in [(32, 3, 4, 11), (32, 3, 8, 12), (32, 4, 6, 13)]:
+    for (n, J, L, seed) in [(32, 3, 4, 11), (32, 3, 8, 12), (32, 4, 6, 13), (64, 5, 4, 14)]:
         data = reference(n, J, L, seed)
         data["generator"] = f"scattering_reference.py with numpy {np.__version__}"
         path = os.path.join(out_dir, f"periodic_n{n}_J{J}_L{L}.json")

@@ -585,7 +585,12 @@ impl ScatteringEngine {
             self.fft2(0, &mut c, true, clock);
             let cov: Vec<f64> = c.iter().map(|z| z.re / nn as f64).collect();
             trust.push(cov.iter().map(|&v| v >= tau).collect());
-            coverage_coarse.push(subsample(&cov, n, n >> self.levels[j]));
+            coverage_coarse.push(
+                subsample(&cov, n, n >> self.levels[j])
+                    .iter()
+                    .map(|c| 1.0 / c.max(COVERAGE_FLOOR).sqrt())
+                    .collect::<Vec<f64>>(),
+            );
         }
         let mut first_weights = Vec::with_capacity(big_j);
         let mut first_trusted = Vec::with_capacity(big_j);
@@ -611,6 +616,7 @@ impl ScatteringEngine {
         let s1_base = 2;
         let p_base = 2 + first_count;
         let mut s2_index = 2 + 2 * first_count;
+        let mut g2: Vec<Complex64> = Vec::with_capacity(nn);
 
         for j1 in 0..big_j {
             let d1 = self.levels[j1];
@@ -638,11 +644,11 @@ impl ScatteringEngine {
                 let mut g: Vec<Complex64> = spec1.iter().zip(psi).map(|(s, p)| s * p).collect();
                 self.fft2(d1, &mut g, true, clock);
                 let scale = 1.0 / nn as f64;
-                let cov = &coverage_coarse[j1];
+                let inv_sqrt_cov = &coverage_coarse[j1];
                 let u: Vec<f64> = g
                     .iter()
-                    .zip(cov)
-                    .map(|(z, &c)| (z * scale).norm() / c.max(COVERAGE_FLOOR).sqrt())
+                    .zip(inv_sqrt_cov)
+                    .map(|(z, &c)| z.norm_sqr().sqrt() * scale * c)
                     .collect();
                 let wl = &first_weights[j1];
                 let mut s1 = 0.0;
@@ -674,20 +680,24 @@ impl ScatteringEngine {
                     let d2 = self.levels[j2];
                     let m2 = n >> d2;
                     let factor2 = (1usize << (2 * d2)) as f64;
-                    let spec2c = crop_box(&spec2, m1, m2);
-                    let cov2 = &coverage_coarse[j2];
+                    let spec2c = if m2 == m1 {
+                        std::borrow::Cow::Borrowed(&spec2[..])
+                    } else {
+                        std::borrow::Cow::Owned(crop_box(&spec2, m1, m2))
+                    };
+                    let inv_sqrt_cov2 = &coverage_coarse[j2];
                     let (wp, wtotal) = &pair_weights[pair];
                     let scale2 = 1.0 / (m1 * m1) as f64;
                     for l2 in 0..big_l {
                         let psi2 = &self.cropped_wavelets[j2 * big_l + l2];
-                        let mut g2: Vec<Complex64> =
-                            spec2c.iter().zip(psi2).map(|(s, p)| s * p).collect();
+                        g2.clear();
+                        g2.extend(spec2c.iter().zip(psi2).map(|(s, p)| s * p));
                         self.fft2(d2, &mut g2, true, clock);
                         let mut s2 = 0.0;
-                        for ((z, &c), wv) in g2.iter().zip(cov2).zip(wp) {
-                            s2 += wv * (z * scale2).norm() / c.max(COVERAGE_FLOOR).sqrt();
+                        for ((z, &c), wv) in g2.iter().zip(inv_sqrt_cov2).zip(wp) {
+                            s2 += wv * z.norm_sqr().sqrt() * c;
                         }
-                        sums[s2_index] = s2 * factor2;
+                        sums[s2_index] = s2 * factor2 * scale2;
                         weights[s2_index] = *wtotal;
                         s2_index += 1;
                     }
