@@ -35,7 +35,7 @@
 //! The bank also holds the Fourier transform of the squared modulus |ψ|² (needed by the
 //! mask-aware normaliser). Since |ψ(u)|² = g(u)² (1 + β² − 2β cos(ξ e·u)) and g² is
 //! s/(4πσ²) times a unit-L1 Gaussian of width σ/√2,
-//! FT[|ψ|²](k) = s/(4πσ²) · [(1 + β²) E(k) − β (E(k − ξe) + E(k + ξe))] with
+//! FT(|ψ|²)(k) = s/(4πσ²) · ((1 + β²) E(k) − β (E(k − ξe) + E(k + ξe))) with
 //! E(k) = exp(−σ² (k∥² + k⊥²/s²) / 4), periodised likewise.
 
 use crate::{Error, Result};
