@@ -8,7 +8,11 @@ pub mod error;
 pub use error::{Error, Result};
 pub mod footprint;
 pub mod pixelization;
+pub mod plotting;
+pub mod projection;
+pub mod sampling;
 pub mod skymap;
+pub mod tiling;
 
 pub use footprint::Footprint;
 pub use pixelization::{Direction, Ordering, Pixelization};

@@ -1,0 +1,1 @@
+//! Map pictures (placeholder, filled in below).

@@ -1,0 +1,263 @@
+//! Sampling the sky onto tile grids, and projecting tile fields back onto the sphere.
+//!
+//! For each plane pixel of a tile (see [`crate::tiling`] for the grid layout) the direction is
+//! the inverse gnomonic projection of its centre; the map and the mask are read there by
+//! bilinear interpolation on the sphere (HEALPix-plane bilinear weights of
+//! [`crate::Pixelization::bilinear_weights`], as in [`SkyMap::interpolate`]) or by nearest pixel.
+//! Invalid (bad) map pixels count as masked: their mask weight is 0, and the field is averaged
+//! over the valid ones of the four neighbours only.
+
+use crate::error::{Error, Result};
+use crate::footprint::Footprint;
+use crate::pixelization::{Ordering, Pixelization};
+use crate::projection::{rectangle_solid_angle, Gnomonic};
+use crate::skymap::SkyMap;
+use crate::tiling::TilingPlan;
+use rayon::prelude::*;
+
+/// How map values are read at a plane pixel's direction.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+pub enum SamplingMethod {
+    /// Bilinear on the sphere over the four surrounding pixels.
+    Bilinear,
+    /// The value of the pixel containing the direction.
+    Nearest,
+}
+
+/// The grids of one tile, n × n, row-major with one row per y (row 0 southernmost).
+#[derive(Debug, Clone, PartialEq)]
+pub struct TileGrids {
+    /// Index of the tile in its plan.
+    pub tile: usize,
+    /// Pixels per side.
+    pub n: usize,
+    /// Plane pixel size Δ (radians of the tangent plane).
+    pub pixel_size: f64,
+    /// Map values at the plane pixels' directions (0 where all neighbouring map pixels are bad).
+    pub field: Vec<f64>,
+    /// Mask weights in [0, 1] at the same directions, 0 over bad map pixels.
+    pub mask: Vec<f64>,
+    /// Solid angle of each plane pixel in steradians (exact, see [`rectangle_solid_angle`];
+    /// equal to Δ²(1 + x² + y²)^(−3/2) at the pixel centre up to a relative O(Δ²)).
+    pub solid_angle: Vec<f64>,
+    /// Does the plane pixel's direction fall in the tile's core?
+    pub in_core: Vec<bool>,
+}
+
+impl TileGrids {
+    /// Bytes held by the grids of one n × n tile: three f64 grids and one bool grid.
+    pub fn bytes_for(n: usize) -> u64 {
+        (n * n * (3 * std::mem::size_of::<f64>() + std::mem::size_of::<bool>())) as u64
+    }
+
+    /// Pooling weights taper × solid angle × [in core], for a taper grid of the same layout.
+    pub fn pooling_weights(&self, taper: &[f64]) -> Result<Vec<f64>> {
+        if taper.len() != self.solid_angle.len() {
+            return Err(Error::Mismatch(format!(
+                "a taper of {} values does not fit a {} × {} tile",
+                taper.len(),
+                self.n,
+                self.n
+            )));
+        }
+        Ok(taper
+            .iter()
+            .zip(&self.solid_angle)
+            .zip(&self.in_core)
+            .map(|((&t, &w), &c)| if c { t * w } else { 0.0 })
+            .collect())
+    }
+}
+
+/// Reads a map and a mask onto the tiles of a plan, one tile at a time.
+pub struct TileSampler<'a> {
+    plan: &'a TilingPlan,
+    map: &'a SkyMap,
+    /// Mask weights in the map's ordering, 0 at the map's bad pixels.
+    mask: Vec<f64>,
+    method: SamplingMethod,
+    fine_nested: Pixelization,
+}
+
+impl<'a> TileSampler<'a> {
+    /// A sampler for `map` and `mask` (same NSIDE as the plan's map) on the tiles of `plan`.
+    pub fn new(
+        plan: &'a TilingPlan,
+        map: &'a SkyMap,
+        mask: &Footprint,
+        method: SamplingMethod,
+    ) -> Result<Self> {
+        if map.nside() != plan.map_pixelization().nside() {
+            return Err(Error::Mismatch(format!(
+                "map NSIDE {} does not match the tiling's NSIDE {}",
+                map.nside(),
+                plan.map_pixelization().nside()
+            )));
+        }
+        let mask = mask.restricted_to(map)?.weights().to_vec();
+        Ok(TileSampler {
+            plan,
+            map,
+            mask,
+            method,
+            fine_nested: Pixelization::new(map.nside(), Ordering::Nested)?,
+        })
+    }
+
+    /// The plan.
+    pub fn plan(&self) -> &TilingPlan {
+        self.plan
+    }
+
+    /// The grids of tile `index`.
+    pub fn sample(&self, index: usize) -> Result<TileGrids> {
+        let plan = self.plan;
+        let tile = plan.tile(index)?;
+        let proj = Gnomonic::new(tile.center);
+        let n = plan.tile_pixels();
+        let delta = plan.pixel_size();
+        let pix = self.map.pixelization();
+        let values = self.map.values();
+        let valid = self.map.valid();
+        let coords: Vec<f64> = (0..n).map(|k| plan.plane_coordinate(k)).collect();
+        let edges: Vec<f64> = (0..=n)
+            .map(|k| (k as f64 - n as f64 / 2.0) * delta)
+            .collect();
+        let mut field = Vec::with_capacity(n * n);
+        let mut mask = Vec::with_capacity(n * n);
+        let mut solid_angle = Vec::with_capacity(n * n);
+        let mut in_core = Vec::with_capacity(n * n);
+        for iy in 0..n {
+            let y = coords[iy];
+            for ix in 0..n {
+                let x = coords[ix];
+                let dir = proj.inverse(x, y);
+                let (f, m) = match self.method {
+                    SamplingMethod::Bilinear => {
+                        let w = pix.bilinear_weights(dir)?;
+                        let (mut sum, mut wsum, mut msum) = (0.0, 0.0, 0.0);
+                        for (p, wt) in w {
+                            let i = p as usize;
+                            if wt > 0.0 && valid[i] {
+                                sum += wt * values[i];
+                                wsum += wt;
+                                msum += wt * self.mask[i];
+                            }
+                        }
+                        let f = if wsum > 0.0 { sum / wsum } else { 0.0 };
+                        (f, msum)
+                    }
+                    SamplingMethod::Nearest => {
+                        let i = pix.pixel_of(dir) as usize;
+                        if valid[i] {
+                            (values[i], self.mask[i])
+                        } else {
+                            (0.0, 0.0)
+                        }
+                    }
+                };
+                field.push(f);
+                mask.push(m);
+                solid_angle.push(rectangle_solid_angle(
+                    edges[ix],
+                    edges[ix + 1],
+                    edges[iy],
+                    edges[iy + 1],
+                ));
+                in_core.push(plan.nested_in_core(self.fine_nested.pixel_of(dir), tile.coarse_pixel));
+            }
+        }
+        Ok(TileGrids {
+            tile: index,
+            n,
+            pixel_size: delta,
+            field,
+            mask,
+            solid_angle,
+            in_core,
+        })
+    }
+
+    /// Runs `work` on every tile's grids, in parallel over tiles (rayon), each worker holding one
+    /// tile's grids at a time; results come back in tile order.
+    pub fn map_tiles<R, F>(&self, work: F) -> Result<Vec<R>>
+    where
+        R: Send,
+        F: Fn(TileGrids) -> Result<R> + Sync + Send,
+    {
+        (0..self.plan.len())
+            .into_par_iter()
+            .map(|i| work(self.sample(i)?))
+            .collect()
+    }
+}
+
+/// Bilinear interpolation in an n × n plane grid at plane point (x, y) (radians); points beyond
+/// the outermost pixel centres are extrapolated from the edge cell. `None` outside the grid.
+pub fn plane_interpolate(field: &[f64], n: usize, pixel_size: f64, x: f64, y: f64) -> Option<f64> {
+    let half = n as f64 / 2.0;
+    let u = x / pixel_size + half - 0.5;
+    let v = y / pixel_size + half - 0.5;
+    if !(u >= -0.5 && v >= -0.5 && u <= n as f64 - 0.5 && v <= n as f64 - 0.5) || n < 2 {
+        return None;
+    }
+    let i0 = (u.floor().max(0.0) as usize).min(n - 2);
+    let j0 = (v.floor().max(0.0) as usize).min(n - 2);
+    let (tu, tv) = (u - i0 as f64, v - j0 as f64);
+    let at = |i: usize, j: usize| field[j * n + i];
+    Some(
+        (1.0 - tv) * ((1.0 - tu) * at(i0, j0) + tu * at(i0 + 1, j0))
+            + tv * ((1.0 - tu) * at(i0, j0 + 1) + tu * at(i0 + 1, j0 + 1)),
+    )
+}
+
+/// A field on tile `index` (n × n, the grid layout of [`TileGrids`]) taken back to the sphere:
+/// for every fine pixel of the tile's core, its centre is projected onto the plane and the field
+/// interpolated bilinearly there. Returns (pixel in the map's ordering, value) pairs.
+pub fn back_project(plan: &TilingPlan, index: usize, field: &[f64]) -> Result<Vec<(u64, f64)>> {
+    let n = plan.tile_pixels();
+    if field.len() != n * n {
+        return Err(Error::Mismatch(format!(
+            "a tile field of {} values does not fit a {n} × {n} tile",
+            field.len()
+        )));
+    }
+    let proj = plan.projection(index)?;
+    let map = plan.map_pixelization();
+    let nested = Pixelization::new(map.nside(), Ordering::Nested)?;
+    let mut out = Vec::new();
+    for q in plan.core_nested_range(index)? {
+        let dir = nested.center(q);
+        let value = proj
+            .forward(dir)
+            .and_then(|(x, y)| plane_interpolate(field, n, plan.pixel_size(), x, y))
+            .ok_or_else(|| {
+                Error::Setting(format!(
+                    "core pixel {q} (NESTED) of tile {index} falls outside its grid"
+                ))
+            })?;
+        out.push((map.from_nested(q)?, value));
+    }
+    Ok(out)
+}
+
+/// One map from the back-projections of every tile's field: `field_of(index)` gives tile
+/// `index`'s field (computed on demand, in parallel over tiles); pixels outside all kept cores
+/// are invalid.
+pub fn assemble<F>(plan: &TilingPlan, field_of: F) -> Result<SkyMap>
+where
+    F: Fn(usize) -> Result<Vec<f64>> + Sync + Send,
+{
+    let parts: Vec<Vec<(u64, f64)>> = (0..plan.len())
+        .into_par_iter()
+        .map(|i| back_project(plan, i, &field_of(i)?))
+        .collect::<Result<_>>()?;
+    let map = plan.map_pixelization();
+    let mut values = vec![f64::NAN; map.npix() as usize];
+    for part in parts {
+        for (p, v) in part {
+            values[p as usize] = v;
+        }
+    }
+    SkyMap::new(map, values)
+}
