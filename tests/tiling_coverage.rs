@@ -120,7 +120,6 @@ fn in_core_plane_pixels_cover_the_core_solid_angle() {
             (covered - omega_core).abs() <= tol,
             "tile {tile}: {covered} vs {omega_core} (tol {tol})"
         );
-        eprintln!("tile {tile}: covered {covered:.6e} core {omega_core:.6e} tol {tol:.3e}");
         // The halo ring of the grid is outside the core.
         let n = g.n;
         for k in 0..n {
