@@ -164,7 +164,8 @@ impl<'a> TileSampler<'a> {
                     edges[iy],
                     edges[iy + 1],
                 ));
-                in_core.push(plan.nested_in_core(self.fine_nested.pixel_of(dir), tile.coarse_pixel));
+                in_core
+                    .push(plan.nested_in_core(self.fine_nested.pixel_of(dir), tile.coarse_pixel));
             }
         }
         Ok(TileGrids {

@@ -152,7 +152,11 @@ impl TilingPlan {
     /// Plans the tiles of `footprint` (at the map's NSIDE, any ordering) for a map of
     /// pixelization `map`. Keeps the coarse pixels whose core holds a footprint pixel of
     /// positive weight.
-    pub fn new(map: Pixelization, footprint: &Footprint, settings: &TilingSettings) -> Result<Self> {
+    pub fn new(
+        map: Pixelization,
+        footprint: &Footprint,
+        settings: &TilingSettings,
+    ) -> Result<Self> {
         let nside = map.nside();
         if !nside.is_power_of_two() {
             return Err(Error::Geometry(format!(
@@ -227,11 +231,9 @@ impl TilingPlan {
                         half = half.max(x.abs()).max(y.abs());
                         r2max = r2max.max(x * x + y * y);
                     }
-                    None => {
-                        return Err(Error::Setting(format!(
-                            "coarse NSIDE {nc} gives tiles wider than a hemisphere; use a larger one"
-                        )))
-                    }
+                    None => return Err(Error::Setting(format!(
+                        "coarse NSIDE {nc} gives tiles wider than a hemisphere; use a larger one"
+                    ))),
                 }
             }
             tiles.push(Tile {

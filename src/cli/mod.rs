@@ -7,6 +7,7 @@ use crate::error::Result;
 use clap::{Parser, Subcommand};
 
 pub mod output;
+pub mod tiles;
 
 /// Wavelet scattering statistics of HEALPix sky maps on masked survey footprints.
 #[derive(Debug, Parser)]
@@ -18,7 +19,10 @@ pub struct Cli {
 
 /// The commands.
 #[derive(Debug, Subcommand)]
-pub enum Command {}
+pub enum Command {
+    /// Plan the tangent-plane tiles of a map's footprint and report their cost.
+    Tiles(tiles::TilesArgs),
+}
 
 /// Runs the command line and returns the process exit code.
 pub fn main() -> i32 {
@@ -40,5 +44,7 @@ pub fn main() -> i32 {
 }
 
 fn run(command: Command) -> Result<()> {
-    match command {}
+    match command {
+        Command::Tiles(args) => tiles::run(&args),
+    }
 }
