@@ -231,9 +231,11 @@ impl TilingPlan {
                         half = half.max(x.abs()).max(y.abs());
                         r2max = r2max.max(x * x + y * y);
                     }
-                    None => return Err(Error::Setting(format!(
+                    None => {
+                        return Err(Error::Setting(format!(
                         "coarse NSIDE {nc} gives tiles wider than a hemisphere; use a larger one"
-                    ))),
+                    )))
+                    }
                 }
             }
             tiles.push(Tile {

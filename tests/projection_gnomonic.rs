@@ -82,7 +82,9 @@ fn inverse_agrees_with_astropy_tan_wcs_to_1e10_deg() {
         let g = Gnomonic::new(Direction::from_lonlat_deg(lon0, lat0));
         let s = astropy_axis_sign(lat0);
         let d = g.inverse(s * x.to_radians(), s * y.to_radians());
-        let dist = d.distance(&Direction::from_lonlat_deg(lon, lat)).to_degrees();
+        let dist = d
+            .distance(&Direction::from_lonlat_deg(lon, lat))
+            .to_degrees();
         worst = worst.max(dist);
     }
     assert!(worst <= 1e-10, "worst sky difference {worst} deg");
@@ -113,7 +115,9 @@ fn forward_after_inverse_returns_plane_point_to_1e12() {
 fn far_hemisphere_has_no_image() {
     // cos c ≤ 0: no gnomonic image (Snyder 1987, §22: the projection shows less than a hemisphere).
     let g = Gnomonic::new(Direction::from_lonlat_deg(30.0, 40.0));
-    assert!(g.forward(Direction::from_lonlat_deg(210.0, -40.0)).is_none());
+    assert!(g
+        .forward(Direction::from_lonlat_deg(210.0, -40.0))
+        .is_none());
     assert!(g.forward(Direction::from_lonlat_deg(121.0, 0.0)).is_none());
     assert!(g.forward(Direction::from_lonlat_deg(119.0, 0.0)).is_some());
 }
@@ -121,7 +125,10 @@ fn far_hemisphere_has_no_image() {
 #[test]
 fn scale_factors_at_five_and_ten_degrees_match_reference() {
     // Shared reference facts [checked]: radial sec²ρ, tangential sec ρ, area sec³ρ.
-    let cases = [(5.0, 1.00765, 1.00382, 1.01150), (10.0, 1.0311, 1.0154, 1.0470)];
+    let cases = [
+        (5.0, 1.00765, 1.00382, 1.01150),
+        (10.0, 1.0311, 1.0154, 1.0470),
+    ];
     for (deg, radial, tangential, area) in cases {
         let rho = f64::to_radians(deg);
         assert!((radial_scale(rho) - radial).abs() < 6e-5, "{deg}");
@@ -159,7 +166,10 @@ fn cube_face_subtends_one_sixth_of_the_sphere() {
     // (elementary geometry); also Ω = 4·asin(sin α sin β) with tan α = tan β = 1 (spherical
     // rectangle, α = β = 45°: 4·asin(½) = 2π/3).
     let omega = rectangle_solid_angle(-1.0, 1.0, -1.0, 1.0);
-    assert!((omega - 4.0 * std::f64::consts::PI / 6.0).abs() < 1e-14, "{omega}");
+    assert!(
+        (omega - 4.0 * std::f64::consts::PI / 6.0).abs() < 1e-14,
+        "{omega}"
+    );
     for t in [0.01, 0.1, 0.3, 0.7] {
         let (a, b) = (f64::atan(t), f64::atan(t * 0.6));
         let spherical = 4.0 * (a.sin() * b.sin()).asin();

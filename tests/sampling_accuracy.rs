@@ -123,7 +123,10 @@ fn bilinear_sampling_of_smooth_field_is_within_interpolation_bound() {
         "equatorial zone: worst error {worst_eq:e} exceeds the h² bound {second_order:e}"
     );
     // The bound is not slack by orders of magnitude: the error is of order h².
-    assert!(worst_eq > second_order / 50.0, "{worst_eq:e} vs {second_order:e}");
+    assert!(
+        worst_eq > second_order / 50.0,
+        "{worst_eq:e} vs {second_order:e}"
+    );
     assert!(worst <= first_order, "{worst:e} vs {first_order:e}");
 }
 
@@ -181,7 +184,8 @@ fn back_projection_returns_core_pixel_values_within_bound() {
         }
     }
     assert_eq!(count as u64, map.pixelization().npix());
-    let first_order = 2f64.sqrt() * h * gradient_bound() + delta * delta / 4.0 * m * stretch * stretch;
+    let first_order =
+        2f64.sqrt() * h * gradient_bound() + delta * delta / 4.0 * m * stretch * stretch;
     assert!(worst_all <= first_order, "{worst_all:e} vs {first_order:e}");
     assert!(worst <= bound, "{worst:e} vs {bound:e}");
     assert!(worst > bound / 50.0, "{worst:e} vs {bound:e}");
@@ -238,7 +242,10 @@ fn solid_angle_weights_sum_to_the_tile_solid_angle() {
     assert!(worst <= d * d * (6.0 + 15.0 * t * t) / 24.0, "{worst:e}");
     assert!(worst > 0.0);
     // Cross-check one weight against the rectangle formula directly.
-    let (x0, y0) = (plan.plane_coordinate(3) - d / 2.0, plan.plane_coordinate(5) - d / 2.0);
+    let (x0, y0) = (
+        plan.plane_coordinate(3) - d / 2.0,
+        plan.plane_coordinate(5) - d / 2.0,
+    );
     assert_eq!(
         g.solid_angle[5 * g.n + 3],
         rectangle_solid_angle(x0, x0 + d, y0, y0 + d)

@@ -42,7 +42,16 @@ fn transfer(
     angle_deg: f64,
     method: SamplingMethod,
 ) -> planisphere::sampling::PlaneWaveTransfer {
-    plane_wave_transfer(pix, center, n, pixel, lambda, angle_deg.to_radians(), method).unwrap()
+    plane_wave_transfer(
+        pix,
+        center,
+        n,
+        pixel,
+        lambda,
+        angle_deg.to_radians(),
+        method,
+    )
+    .unwrap()
 }
 
 const ANGLES: [f64; 4] = [0.0, 45.0, 90.0, 135.0];
@@ -82,13 +91,17 @@ fn bilinear_sampling_loses_small_scale_power_anisotropically() {
             .iter()
             .map(|&a| transfer(pix, center, 48, h, 4.0 * h, a, SamplingMethod::Bilinear).power)
             .collect();
-        let spread = small.iter().cloned().fold(0.0, f64::max)
-            - small.iter().cloned().fold(1.0, f64::min);
+        let spread =
+            small.iter().cloned().fold(0.0, f64::max) - small.iter().cloned().fold(1.0, f64::min);
         assert!(spread > 0.04, "lat {lat}: {small:?}");
         assert!(small.iter().all(|&p| p < 0.8), "lat {lat}: {small:?}");
         for a in ANGLES {
             let t = transfer(pix, center, 48, h, 32.0 * h, a, SamplingMethod::Bilinear);
-            assert!(t.power >= 0.98 && t.power < 1.0, "lat {lat}, {a}°: {}", t.power);
+            assert!(
+                t.power >= 0.98 && t.power < 1.0,
+                "lat {lat}, {a}°: {}",
+                t.power
+            );
         }
     }
 }
@@ -105,7 +118,15 @@ fn transfer_does_not_depend_on_plane_pixel_size() {
         for lambda in [3.0, 6.0] {
             for a in ANGLES {
                 let coarse = transfer(pix, center, 48, h, lambda * h, a, SamplingMethod::Bilinear);
-                let fine = transfer(pix, center, 96, h / 2.0, lambda * h, a, SamplingMethod::Bilinear);
+                let fine = transfer(
+                    pix,
+                    center,
+                    96,
+                    h / 2.0,
+                    lambda * h,
+                    a,
+                    SamplingMethod::Bilinear,
+                );
                 assert!(
                     (coarse.power - fine.power).abs() < 2e-3,
                     "lat {lat} λ {lambda}h {a}°: {} vs {}",

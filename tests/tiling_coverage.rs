@@ -74,7 +74,10 @@ fn core_solid_angles_sum_to_footprint_area_to_the_pixel() {
             }
         }
     }
-    assert!((outside - counted as f64).abs() < 1e-6, "{outside} vs {counted}");
+    assert!(
+        (outside - counted as f64).abs() < 1e-6,
+        "{outside} vs {counted}"
+    );
 }
 
 #[test]
@@ -124,7 +127,10 @@ fn in_core_plane_pixels_cover_the_core_solid_angle() {
         let n = g.n;
         for k in 0..n {
             for idx in [k, (n - 1) * n + k, k * n, k * n + n - 1] {
-                assert!(!g.in_core[idx], "tile {tile}: grid edge pixel {idx} in the core");
+                assert!(
+                    !g.in_core[idx],
+                    "tile {tile}: grid edge pixel {idx} in the core"
+                );
             }
         }
     }
@@ -138,7 +144,9 @@ fn too_small_grid_is_rejected_with_the_size_needed() {
         tile_pixels: Some(32),
         ..TilingSettings::new(4)
     };
-    let err = TilingPlan::new(pix, &fp, &settings).unwrap_err().to_string();
+    let err = TilingPlan::new(pix, &fp, &settings)
+        .unwrap_err()
+        .to_string();
     assert!(err.contains("n must be at least"), "{err}");
     // The size it asks for is accepted.
     let need: usize = err.rsplit(' ').next().unwrap().parse().unwrap();
@@ -160,7 +168,10 @@ fn bad_settings_are_one_line_errors() {
     let fp = Footprint::full_sky(pix);
     let cases = [
         (TilingSettings::new(3), "power of two"),
-        (TilingSettings::new(128), "power of two between 1 and the map NSIDE 64"),
+        (
+            TilingSettings::new(128),
+            "power of two between 1 and the map NSIDE 64",
+        ),
         (
             TilingSettings {
                 tile_pixels: Some(101),
@@ -178,7 +189,9 @@ fn bad_settings_are_one_line_errors() {
         (TilingSettings::new(1), "corners"),
     ];
     for (settings, words) in cases {
-        let err = TilingPlan::new(pix, &fp, &settings).unwrap_err().to_string();
+        let err = TilingPlan::new(pix, &fp, &settings)
+            .unwrap_err()
+            .to_string();
         assert!(err.contains(words), "{err}");
         assert!(!err.contains('\n'));
     }

@@ -27,7 +27,7 @@ pub struct TilesArgs {
     #[arg(long)]
     pub tile_pixels: Option<usize>,
     /// Plane pixel size in arcmin (default: the map's mean pixel spacing).
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub pixel_arcmin: Option<f64>,
     /// Halo around each core, in plane pixels.
     #[arg(long, default_value_t = DEFAULT_HALO)]
