@@ -14,6 +14,7 @@ use crate::projection::{rectangle_solid_angle, Gnomonic};
 use crate::skymap::SkyMap;
 use crate::tiling::TilingPlan;
 use rayon::prelude::*;
+use std::borrow::Cow;
 
 /// How map values are read at a plane pixel's direction.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
@@ -73,8 +74,9 @@ impl TileGrids {
 pub struct TileSampler<'a> {
     plan: &'a TilingPlan,
     map: &'a SkyMap,
-    /// Mask weights in the map's ordering, 0 at the map's bad pixels.
-    mask: Vec<f64>,
+    /// Mask weights in the map's ordering (borrowed when the orderings agree); the map's bad
+    /// pixels are treated as weight 0 when read.
+    mask: Cow<'a, [f64]>,
     method: SamplingMethod,
     fine_nested: Pixelization,
 }
@@ -84,7 +86,7 @@ impl<'a> TileSampler<'a> {
     pub fn new(
         plan: &'a TilingPlan,
         map: &'a SkyMap,
-        mask: &Footprint,
+        mask: &'a Footprint,
         method: SamplingMethod,
     ) -> Result<Self> {
         if map.nside() != plan.map_pixelization().nside() {
@@ -94,7 +96,35 @@ impl<'a> TileSampler<'a> {
                 plan.map_pixelization().nside()
             )));
         }
-        let mask = mask.restricted_to(map)?.weights().to_vec();
+        let map_pix = map.pixelization();
+        let mask_pix = mask.pixelization();
+        if mask_pix.nside() != map_pix.nside() {
+            return Err(Error::Mismatch(format!(
+                "mask NSIDE {} does not match map NSIDE {}",
+                mask_pix.nside(),
+                map_pix.nside()
+            )));
+        }
+        let weights: Cow<'a, [f64]> = if mask_pix.ordering() == map_pix.ordering() {
+            Cow::Borrowed(mask.weights())
+        } else {
+            Cow::Owned(
+                (0..map_pix.npix())
+                    .into_par_iter()
+                    .map(|p| Ok(mask.weight(mask_pix.from_nested(map_pix.to_nested(p)?)?)))
+                    .collect::<Result<Vec<f64>>>()?,
+            )
+        };
+        let overlap = weights
+            .par_iter()
+            .zip(map.valid().par_iter())
+            .any(|(&w, &ok)| w > 0.0 && ok);
+        if !overlap {
+            return Err(Error::Data(
+                "the mask's footprint does not overlap the map's valid pixels".to_string(),
+            ));
+        }
+        let mask = weights;
         Ok(TileSampler {
             plan,
             map,
