@@ -2,9 +2,9 @@
 //!
 //! Tile centres are the centres of the pixels of a coarse HEALPix grid (NSIDE_coarse a power of
 //! two ≤ the map's NSIDE). The *core* of a tile is its coarse pixel: exactly the fine map pixels
-//! that descend from it in the NESTED hierarchy (Górski et al. 2005, §4: fine nested index
-//! >> 2·(depth_fine − depth_coarse) is the coarse nested index), so the cores partition the sphere.
-//! Each tile carries a square n × n grid of plane pixels of side Δ (radians of the tangent plane,
+//! that descend from it in the NESTED hierarchy (Górski et al. 2005, §4: the fine nested index
+//! shifted right by 2·(depth_fine − depth_coarse) bits is the coarse nested index), so the cores
+//! partition the sphere. Each tile carries a square n × n grid of plane pixels of side Δ (radians of the tangent plane,
 //! i.e. the angular size at the tangent point), wide enough for its core plus a halo.
 //!
 //! Plane pixel (ix, iy) has its centre at x = (ix − n/2 + ½)Δ, y = (iy − n/2 + ½)Δ: the tangent
