@@ -151,6 +151,13 @@ impl<'a> SkyPicture<'a> {
         self
     }
 
+    /// The raster layer from a map: valid pixels coloured by [`colour_ramp`] over [lo, hi],
+    /// invalid ones left as background.
+    pub fn fill_map(self, map: &'a crate::skymap::SkyMap, lo: f64, hi: f64) -> Self {
+        let span = if hi > lo { hi - lo } else { 1.0 };
+        self.fill(move |d| map.nearest(d).map(|v| colour_ramp((v - lo) / span)))
+    }
+
     /// A polyline through `points` (joined along straight picture segments; split where it
     /// crosses the picture's edge meridian).
     pub fn line(&mut self, points: Vec<Direction>, colour: Rgb, width: u32) {

@@ -209,6 +209,11 @@ impl<'a> TileSampler<'a> {
         })
     }
 
+    /// The tiles' grids one after the other, each made when the iterator reaches it.
+    pub fn iter(&self) -> impl Iterator<Item = Result<TileGrids>> + '_ {
+        (0..self.plan.len()).map(move |i| self.sample(i))
+    }
+
     /// Runs `work` on every tile's grids, in parallel over tiles (rayon), each worker holding one
     /// tile's grids at a time; results come back in tile order.
     pub fn map_tiles<R, F>(&self, work: F) -> Result<Vec<R>>
