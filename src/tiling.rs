@@ -36,6 +36,10 @@ pub const DEFAULT_HALO: usize = 16;
 /// radial stretch sec²ρ reaches 4); beyond, a gnomonic grid is too distorted to be useful.
 pub const MAX_CORNER_DISTANCE: f64 = std::f64::consts::FRAC_PI_3;
 
+/// Largest number of plane pixels per tile side accepted (8192: one tile's grids then take
+/// 1.6 GiB, see [`crate::sampling::TileGrids::bytes_for`]).
+pub const MAX_TILE_PIXELS: usize = 8192;
+
 /// What the user chooses about a tiling.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct TilingSettings {
@@ -248,13 +252,27 @@ impl TilingPlan {
             });
         }
         let widest = tiles.iter().map(|t| t.core_half_width).fold(0.0, f64::max);
-        let need_half = (widest / pixel_size).ceil() as usize + settings.halo;
+        let core_half = (widest / pixel_size).ceil();
+        let need_half = if core_half < (MAX_TILE_PIXELS / 2) as f64 {
+            (core_half as usize).saturating_add(settings.halo)
+        } else {
+            usize::MAX / 2
+        };
         let need = 2 * need_half;
+        if need > MAX_TILE_PIXELS {
+            return Err(Error::Setting(format!(
+                "the core plus a halo of {} pixels needs more than {MAX_TILE_PIXELS} pixels per \
+                 tile side at {:.4} arcmin per pixel; use larger pixels, a smaller halo or a \
+                 larger coarse NSIDE",
+                settings.halo,
+                pixel_size.to_degrees() * 60.0
+            )));
+        }
         let n = match settings.tile_pixels {
             Some(n) => {
-                if n == 0 || n % 2 != 0 {
+                if n == 0 || n % 2 != 0 || n > MAX_TILE_PIXELS {
                     return Err(Error::Setting(format!(
-                        "tile pixels must be a positive even number, got {n}"
+                        "tile pixels must be a positive even number up to {MAX_TILE_PIXELS}, got {n}"
                     )));
                 }
                 if n < need {

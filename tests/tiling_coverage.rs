@@ -187,6 +187,20 @@ fn bad_settings_are_one_line_errors() {
             "positive",
         ),
         (TilingSettings::new(1), "corners"),
+        (
+            TilingSettings {
+                halo: usize::MAX,
+                ..TilingSettings::new(4)
+            },
+            "more than 8192 pixels",
+        ),
+        (
+            TilingSettings {
+                pixel_size: Some(1e-9),
+                ..TilingSettings::new(4)
+            },
+            "use larger pixels",
+        ),
     ];
     for (settings, words) in cases {
         let err = TilingPlan::new(pix, &fp, &settings)
