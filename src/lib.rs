@@ -15,7 +15,10 @@ pub mod footprint;
 pub mod forecast;
 pub mod harmonics;
 pub mod pixelization;
+pub mod plotting;
 pub mod pooling;
+pub mod projection;
+pub mod sampling;
 pub mod scenario;
 pub mod skies;
 pub mod skymap;
@@ -23,6 +26,7 @@ pub mod spectra;
 pub mod spectrum;
 pub mod statistics;
 pub mod tile_spectra;
+pub mod tiling;
 pub mod transform;
 
 pub use error::{Error, Result};

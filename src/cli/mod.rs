@@ -11,6 +11,7 @@ pub mod inputs;
 pub mod output;
 pub mod sky;
 pub mod spectra;
+pub mod tiles;
 
 /// Wavelet scattering statistics of HEALPix sky maps on masked survey footprints.
 #[derive(Debug, Parser)]
@@ -29,6 +30,8 @@ pub enum Command {
     Sky(sky::SkyArgs),
     /// Measure the angular power spectrum (pseudo-C_ell on a masked sky) of a map.
     Spectra(spectra::SpectraArgs),
+    /// Plan the tangent-plane tiles of a map's footprint and report their cost.
+    Tiles(tiles::TilesArgs),
 }
 
 /// Runs the command line and returns the process exit code.
@@ -55,5 +58,6 @@ fn run(command: Command) -> Result<()> {
         Command::Demo(args) => demo::run(&args),
         Command::Sky(args) => sky::run(&args),
         Command::Spectra(args) => spectra::run(&args),
+        Command::Tiles(args) => tiles::run(&args),
     }
 }

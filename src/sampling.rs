@@ -1,0 +1,385 @@
+//! Sampling the sky onto tile grids, and projecting tile fields back onto the sphere.
+//!
+//! For each plane pixel of a tile (see [`crate::tiling`] for the grid layout) the direction is
+//! the inverse gnomonic projection of its centre; the map and the mask are read there by
+//! bilinear interpolation on the sphere (HEALPix-plane bilinear weights of
+//! [`crate::Pixelization::bilinear_weights`], as in [`SkyMap::interpolate`]) or by nearest pixel.
+//! Invalid (bad) map pixels count as masked: their mask weight is 0, and the field is averaged
+//! over the valid ones of the four neighbours only.
+
+use crate::error::{Error, Result};
+use crate::footprint::Footprint;
+use crate::pixelization::{Ordering, Pixelization};
+use crate::projection::{rectangle_solid_angle, Gnomonic};
+use crate::skymap::SkyMap;
+use crate::tiling::TilingPlan;
+use rayon::prelude::*;
+use std::borrow::Cow;
+
+/// How map values are read at a plane pixel's direction.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+pub enum SamplingMethod {
+    /// Bilinear on the sphere over the four surrounding pixels.
+    Bilinear,
+    /// The value of the pixel containing the direction.
+    Nearest,
+}
+
+/// The grids of one tile, n × n, row-major with one row per y (row 0 southernmost).
+#[derive(Debug, Clone, PartialEq)]
+pub struct TileGrids {
+    /// Index of the tile in its plan.
+    pub tile: usize,
+    /// Pixels per side.
+    pub n: usize,
+    /// Plane pixel size Δ (radians of the tangent plane).
+    pub pixel_size: f64,
+    /// Map values at the plane pixels' directions (0 where all neighbouring map pixels are bad).
+    pub field: Vec<f64>,
+    /// Mask weights in [0, 1] at the same directions, 0 over bad map pixels.
+    pub mask: Vec<f64>,
+    /// Solid angle of each plane pixel in steradians (exact, see [`rectangle_solid_angle`];
+    /// equal to Δ²(1 + x² + y²)^(−3/2) at the pixel centre up to a relative O(Δ²)).
+    pub solid_angle: Vec<f64>,
+    /// Does the plane pixel's direction fall in the tile's core?
+    pub in_core: Vec<bool>,
+}
+
+impl TileGrids {
+    /// Bytes held by the grids of one n × n tile: three f64 grids and one bool grid.
+    pub fn bytes_for(n: usize) -> u64 {
+        (n * n * (3 * std::mem::size_of::<f64>() + std::mem::size_of::<bool>())) as u64
+    }
+
+    /// Pooling weights taper × solid angle × [in core], for a taper grid of the same layout.
+    pub fn pooling_weights(&self, taper: &[f64]) -> Result<Vec<f64>> {
+        if taper.len() != self.solid_angle.len() {
+            return Err(Error::Mismatch(format!(
+                "a taper of {} values does not fit a {} × {} tile",
+                taper.len(),
+                self.n,
+                self.n
+            )));
+        }
+        Ok(taper
+            .iter()
+            .zip(&self.solid_angle)
+            .zip(&self.in_core)
+            .map(|((&t, &w), &c)| if c { t * w } else { 0.0 })
+            .collect())
+    }
+}
+
+/// Reads a map and a mask onto the tiles of a plan, one tile at a time.
+pub struct TileSampler<'a> {
+    plan: &'a TilingPlan,
+    map: &'a SkyMap,
+    /// Mask weights in the map's ordering (borrowed when the orderings agree); the map's bad
+    /// pixels are treated as weight 0 when read.
+    mask: Cow<'a, [f64]>,
+    method: SamplingMethod,
+    fine_nested: Pixelization,
+}
+
+impl<'a> TileSampler<'a> {
+    /// A sampler for `map` and `mask` (same NSIDE as the plan's map) on the tiles of `plan`.
+    pub fn new(
+        plan: &'a TilingPlan,
+        map: &'a SkyMap,
+        mask: &'a Footprint,
+        method: SamplingMethod,
+    ) -> Result<Self> {
+        if map.nside() != plan.map_pixelization().nside() {
+            return Err(Error::Mismatch(format!(
+                "map NSIDE {} does not match the tiling's NSIDE {}",
+                map.nside(),
+                plan.map_pixelization().nside()
+            )));
+        }
+        let map_pix = map.pixelization();
+        let mask_pix = mask.pixelization();
+        if mask_pix.nside() != map_pix.nside() {
+            return Err(Error::Mismatch(format!(
+                "mask NSIDE {} does not match map NSIDE {}",
+                mask_pix.nside(),
+                map_pix.nside()
+            )));
+        }
+        let weights: Cow<'a, [f64]> = if mask_pix.ordering() == map_pix.ordering() {
+            Cow::Borrowed(mask.weights())
+        } else {
+            Cow::Owned(
+                (0..map_pix.npix())
+                    .into_par_iter()
+                    .map(|p| Ok(mask.weight(mask_pix.from_nested(map_pix.to_nested(p)?)?)))
+                    .collect::<Result<Vec<f64>>>()?,
+            )
+        };
+        let overlap = weights
+            .par_iter()
+            .zip(map.valid().par_iter())
+            .any(|(&w, &ok)| w > 0.0 && ok);
+        if !overlap {
+            return Err(Error::Data(
+                "the mask's footprint does not overlap the map's valid pixels".to_string(),
+            ));
+        }
+        let mask = weights;
+        Ok(TileSampler {
+            plan,
+            map,
+            mask,
+            method,
+            fine_nested: Pixelization::new(map.nside(), Ordering::Nested)?,
+        })
+    }
+
+    /// The plan.
+    pub fn plan(&self) -> &TilingPlan {
+        self.plan
+    }
+
+    /// The grids of tile `index`.
+    pub fn sample(&self, index: usize) -> Result<TileGrids> {
+        let plan = self.plan;
+        let tile = plan.tile(index)?;
+        let proj = Gnomonic::new(tile.center);
+        let n = plan.tile_pixels();
+        let delta = plan.pixel_size();
+        let pix = self.map.pixelization();
+        let values = self.map.values();
+        let valid = self.map.valid();
+        let coords: Vec<f64> = (0..n).map(|k| plan.plane_coordinate(k)).collect();
+        let edges: Vec<f64> = (0..=n)
+            .map(|k| (k as f64 - n as f64 / 2.0) * delta)
+            .collect();
+        let mut field = Vec::with_capacity(n * n);
+        let mut mask = Vec::with_capacity(n * n);
+        let mut solid_angle = Vec::with_capacity(n * n);
+        let mut in_core = Vec::with_capacity(n * n);
+        for iy in 0..n {
+            let y = coords[iy];
+            for ix in 0..n {
+                let x = coords[ix];
+                let dir = proj.inverse(x, y);
+                let (f, m) = match self.method {
+                    SamplingMethod::Bilinear => {
+                        let w = pix.bilinear_weights(dir)?;
+                        let (mut sum, mut wsum, mut msum) = (0.0, 0.0, 0.0);
+                        for (p, wt) in w {
+                            let i = p as usize;
+                            if wt > 0.0 && valid[i] {
+                                sum += wt * values[i];
+                                wsum += wt;
+                                msum += wt * self.mask[i];
+                            }
+                        }
+                        let f = if wsum > 0.0 { sum / wsum } else { 0.0 };
+                        (f, msum)
+                    }
+                    SamplingMethod::Nearest => {
+                        let i = pix.pixel_of(dir) as usize;
+                        if valid[i] {
+                            (values[i], self.mask[i])
+                        } else {
+                            (0.0, 0.0)
+                        }
+                    }
+                };
+                field.push(f);
+                mask.push(m);
+                solid_angle.push(rectangle_solid_angle(
+                    edges[ix],
+                    edges[ix + 1],
+                    edges[iy],
+                    edges[iy + 1],
+                ));
+                in_core
+                    .push(plan.nested_in_core(self.fine_nested.pixel_of(dir), tile.coarse_pixel));
+            }
+        }
+        Ok(TileGrids {
+            tile: index,
+            n,
+            pixel_size: delta,
+            field,
+            mask,
+            solid_angle,
+            in_core,
+        })
+    }
+
+    /// The tiles' grids one after the other, each made when the iterator reaches it.
+    pub fn iter(&self) -> impl Iterator<Item = Result<TileGrids>> + '_ {
+        (0..self.plan.len()).map(move |i| self.sample(i))
+    }
+
+    /// Runs `work` on every tile's grids, in parallel over tiles (rayon), each worker holding one
+    /// tile's grids at a time; results come back in tile order.
+    pub fn map_tiles<R, F>(&self, work: F) -> Result<Vec<R>>
+    where
+        R: Send,
+        F: Fn(TileGrids) -> Result<R> + Sync + Send,
+    {
+        (0..self.plan.len())
+            .into_par_iter()
+            .map(|i| work(self.sample(i)?))
+            .collect()
+    }
+}
+
+/// Bilinear interpolation in an n × n plane grid at plane point (x, y) (radians); points beyond
+/// the outermost pixel centres are extrapolated from the edge cell. `None` outside the grid.
+pub fn plane_interpolate(field: &[f64], n: usize, pixel_size: f64, x: f64, y: f64) -> Option<f64> {
+    let half = n as f64 / 2.0;
+    let u = x / pixel_size + half - 0.5;
+    let v = y / pixel_size + half - 0.5;
+    if !(u >= -0.5 && v >= -0.5 && u <= n as f64 - 0.5 && v <= n as f64 - 0.5) || n < 2 {
+        return None;
+    }
+    let i0 = (u.floor().max(0.0) as usize).min(n - 2);
+    let j0 = (v.floor().max(0.0) as usize).min(n - 2);
+    let (tu, tv) = (u - i0 as f64, v - j0 as f64);
+    let at = |i: usize, j: usize| field[j * n + i];
+    Some(
+        (1.0 - tv) * ((1.0 - tu) * at(i0, j0) + tu * at(i0 + 1, j0))
+            + tv * ((1.0 - tu) * at(i0, j0 + 1) + tu * at(i0 + 1, j0 + 1)),
+    )
+}
+
+/// A field on tile `index` (n × n, the grid layout of [`TileGrids`]) taken back to the sphere:
+/// for every fine pixel of the tile's core, its centre is projected onto the plane and the field
+/// interpolated bilinearly there. Returns (pixel in the map's ordering, value) pairs.
+pub fn back_project(plan: &TilingPlan, index: usize, field: &[f64]) -> Result<Vec<(u64, f64)>> {
+    let n = plan.tile_pixels();
+    if field.len() != n * n {
+        return Err(Error::Mismatch(format!(
+            "a tile field of {} values does not fit a {n} × {n} tile",
+            field.len()
+        )));
+    }
+    let proj = plan.projection(index)?;
+    let map = plan.map_pixelization();
+    let nested = Pixelization::new(map.nside(), Ordering::Nested)?;
+    let mut out = Vec::new();
+    for q in plan.core_nested_range(index)? {
+        let dir = nested.center(q);
+        let value = proj
+            .forward(dir)
+            .and_then(|(x, y)| plane_interpolate(field, n, plan.pixel_size(), x, y))
+            .ok_or_else(|| {
+                Error::Setting(format!(
+                    "core pixel {q} (NESTED) of tile {index} falls outside its grid"
+                ))
+            })?;
+        out.push((map.from_nested(q)?, value));
+    }
+    Ok(out)
+}
+
+/// One map from the back-projections of every tile's field: `field_of(index)` gives tile
+/// `index`'s field (computed on demand, in parallel over tiles); pixels outside all kept cores
+/// are invalid.
+pub fn assemble<F>(plan: &TilingPlan, field_of: F) -> Result<SkyMap>
+where
+    F: Fn(usize) -> Result<Vec<f64>> + Sync + Send,
+{
+    let parts: Vec<Vec<(u64, f64)>> = (0..plan.len())
+        .into_par_iter()
+        .map(|i| back_project(plan, i, &field_of(i)?))
+        .collect::<Result<_>>()?;
+    let map = plan.map_pixelization();
+    let mut values = vec![f64::NAN; map.npix() as usize];
+    for part in parts {
+        for (p, v) in part {
+            values[p as usize] = v;
+        }
+    }
+    SkyMap::new(map, values)
+}
+
+/// Power transfer of sampling for one plane wave, see [`plane_wave_transfer`].
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct PlaneWaveTransfer {
+    /// |G|², with G = Σ s·t̄ / Σ |t|² the gain of the sampled wave s on the true wave t.
+    pub power: f64,
+    /// Σ |s − G t|² / Σ |t|²: power moved to other wavevectors (aliasing, position-dependent
+    /// smoothing), relative to the wave's power.
+    pub scattered: f64,
+}
+
+/// Measures how sampling a map of pixelization `map` onto an n × n tile grid of pixel size
+/// `pixel_size`, tangent at `center`, transfers a plane wave of `wavelength` (radians of the
+/// tangent plane) travelling at `angle` from the x axis (east) toward y (north).
+///
+/// The true field is t(x, y) = exp(i k·(x, y)) in the tile's plane coordinates, a smooth field on
+/// the sphere. The map holds t at its pixel centres (point samples, as a simulated map does);
+/// s is that map read at the plane pixels' directions with `method`, and t is evaluated there
+/// exactly. The gain G = Σ s·t̄ / Σ |t|² is the Fourier coefficient of s at the wave's own
+/// wavevector divided by that of t, so |G|² = |FFT(s)|²/|FFT(t)|² at k (without needing k on the
+/// FFT's lattice). For 1-D linear interpolation at spacing h the gain is
+/// ∫₀¹ [(1−u) e^{−ikhu} + u e^{ikh(1−u)}] du = sinc²(kh/2) (sinc x = sin x / x; derivation by
+/// direct integration).
+pub fn plane_wave_transfer(
+    map: Pixelization,
+    center: crate::pixelization::Direction,
+    n: usize,
+    pixel_size: f64,
+    wavelength: f64,
+    angle: f64,
+    method: SamplingMethod,
+) -> Result<PlaneWaveTransfer> {
+    let proj = Gnomonic::new(center);
+    let k = 2.0 * std::f64::consts::PI / wavelength;
+    let (kx, ky) = (k * angle.cos(), k * angle.sin());
+    let wave = |x: f64, y: f64| {
+        let ph = kx * x + ky * y;
+        num_complex::Complex64::new(ph.cos(), ph.sin())
+    };
+    let wave_at_pixel = |p: u64| -> Result<num_complex::Complex64> {
+        let (x, y) = proj.forward(map.center(p)).ok_or_else(|| {
+            Error::Setting("the tile reaches the far hemisphere of its centre".to_string())
+        })?;
+        Ok(wave(x, y))
+    };
+    let coord = |k: usize| (k as f64 - n as f64 / 2.0 + 0.5) * pixel_size;
+    let mut sampled = Vec::with_capacity(n * n);
+    let mut truth = Vec::with_capacity(n * n);
+    for iy in 0..n {
+        for ix in 0..n {
+            let (x, y) = (coord(ix), coord(iy));
+            let dir = proj.inverse(x, y);
+            let s = match method {
+                SamplingMethod::Bilinear => {
+                    let mut s = num_complex::Complex64::new(0.0, 0.0);
+                    for (p, w) in map.bilinear_weights(dir)? {
+                        if w > 0.0 {
+                            s += w * wave_at_pixel(p)?;
+                        }
+                    }
+                    s
+                }
+                SamplingMethod::Nearest => wave_at_pixel(map.pixel_of(dir))?,
+            };
+            sampled.push(s);
+            truth.push(wave(x, y));
+        }
+    }
+    let norm: f64 = truth.iter().map(|t| t.norm_sqr()).sum();
+    let gain = sampled
+        .iter()
+        .zip(&truth)
+        .map(|(s, t)| s * t.conj())
+        .sum::<num_complex::Complex64>()
+        / norm;
+    let scattered: f64 = sampled
+        .iter()
+        .zip(&truth)
+        .map(|(s, t)| (s - gain * t).norm_sqr())
+        .sum::<f64>()
+        / norm;
+    Ok(PlaneWaveTransfer {
+        power: gain.norm_sqr(),
+        scattered,
+    })
+}
