@@ -6,6 +6,7 @@
 use crate::error::Result;
 use clap::{Parser, Subcommand};
 
+pub mod inspect;
 pub mod output;
 
 /// Wavelet scattering statistics of HEALPix sky maps on masked survey footprints.
@@ -18,7 +19,9 @@ pub struct Cli {
 
 /// The commands.
 #[derive(Debug, Subcommand)]
-pub enum Command {}
+pub enum Command {
+    Inspect(inspect::InspectArgs),
+}
 
 /// Runs the command line and returns the process exit code.
 pub fn main() -> i32 {
@@ -40,5 +43,7 @@ pub fn main() -> i32 {
 }
 
 fn run(command: Command) -> Result<()> {
-    match command {}
+    match command {
+        Command::Inspect(args) => inspect::run(&args),
+    }
 }
