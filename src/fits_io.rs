@@ -357,7 +357,8 @@ impl HealpixFitsReader {
                 ));
             }
             let raw = self.file.read_longs(&path, colnum, repeat, count)?;
-            let mut first_entry = allocate(&path, npix as usize, u64::MAX)?;
+            // One bit per pixel (NSIDE 8192: 100 MB) records which pixels were seen.
+            let mut seen = allocate(&path, npix.div_ceil(64) as usize, 0u64)?;
             let mut pixels = Vec::with_capacity(raw.len());
             let (lo, hi) = self.header_pixel_range(npix);
             for (k, &p) in raw.iter().enumerate() {
@@ -378,14 +379,15 @@ impl HealpixFitsReader {
                         format!("PIXEL entry {k} is {p}, outside FIRSTPIX..=LASTPIX = {lo}..={hi}"),
                     ));
                 }
-                let seen = &mut first_entry[p as usize];
-                if *seen != u64::MAX {
+                let (word, bit) = ((p / 64) as usize, 1u64 << (p % 64));
+                if seen[word] & bit != 0 {
+                    let first = raw.iter().position(|&q| q as u64 == p).unwrap_or(k);
                     return Err(Error::fits(
                         &path,
-                        format!("pixel {p} is listed twice in the PIXEL column (entries {seen} and {k})"),
+                        format!("pixel {p} is listed twice in the PIXEL column (entries {first} and {k})"),
                     ));
                 }
-                *seen = k as u64;
+                seen[word] |= bit;
                 pixels.push(p);
             }
             self.pixels = Some(pixels);
@@ -604,7 +606,7 @@ pub fn write_maps(path: &Path, columns: &[(&str, &SkyMap)], options: &WriteOptio
                 KeyValue::Integer(pix.nside() as i64),
                 "Resolution parameter of HEALPIX",
             )),
-            (!partial).then(|| ("FIRSTPIX", KeyValue::Integer(0), "First pixel # (0 based)")),
+            (!partial).then_some(("FIRSTPIX", KeyValue::Integer(0), "First pixel # (0 based)")),
             (!partial).then(|| {
                 (
                     "LASTPIX",
@@ -767,7 +769,7 @@ fn check_file_start(path: &Path) -> Result<u64> {
 }
 
 fn truncated_or_damaged(path: &Path, file_len: u64, detail: String) -> Error {
-    if file_len % FITS_BLOCK != 0 {
+    if !file_len.is_multiple_of(FITS_BLOCK) {
         Error::fits(
             path,
             format!(
@@ -793,7 +795,7 @@ fn find_healpix_hdu(
         let kind = match file.move_to(hdu) {
             Ok(kind) => kind,
             Err(status) if status == sys::END_OF_FILE as c_int => {
-                if file_len % FITS_BLOCK != 0 {
+                if !file_len.is_multiple_of(FITS_BLOCK) {
                     return Err(truncated_or_damaged(
                         path,
                         file_len,
@@ -1125,7 +1127,7 @@ fn parse_header(
         if !is_numeric_type(c.code) {
             continue;
         }
-        let count = rows.checked_mul(c.info.values_per_row).unwrap_or(u64::MAX);
+        let count = rows.saturating_mul(c.info.values_per_row);
         let name = display_name(&c.info.name, i);
         match coverage {
             Coverage::FullSky if count != npix => {
@@ -1161,7 +1163,7 @@ fn parse_header(
     // The file must hold the table data its header declares.
     let row_bytes = int_key(file, "NAXIS1")?.unwrap_or(0).max(0) as u64;
     let data_start = file.data_start(path)?;
-    let declared = row_bytes.checked_mul(rows).unwrap_or(u64::MAX);
+    let declared = row_bytes.saturating_mul(rows);
     let present = file_len.saturating_sub(data_start);
     if declared > present {
         return Err(Error::fits(
@@ -1189,7 +1191,7 @@ fn parse_header(
     })
 }
 
-/// A zero-initialised vector, or a one-line error when memory runs out.
+/// A vector of `len` copies of `fill`, or a one-line error when memory runs out.
 fn allocate<T: Clone>(path: &Path, len: usize, fill: T) -> Result<Vec<T>> {
     let mut v = Vec::new();
     v.try_reserve_exact(len)
