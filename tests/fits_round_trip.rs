@@ -258,3 +258,43 @@ fn bad_column_sets_are_refused_before_writing() {
     );
     assert!(!path.exists());
 }
+
+/// A file whose HDU 1 is another binary table (`pixtype` given or absent) and HDU 2 a HEALPix
+/// NSIDE 1 map with values 0..12.
+fn map_after_a_catalogue(path: &std::path::Path, pixtype: Option<&str>) {
+    use fitsio::tables::{ColumnDataType, ColumnDescription};
+    let mut f = fitsio::FitsFile::create(path).open().unwrap();
+    let ra = [ColumnDescription::new("RA")
+        .with_type(ColumnDataType::Double)
+        .create()
+        .unwrap()];
+    let cat = f.create_table("CATALOGUE", &ra).unwrap();
+    cat.write_col(&mut f, "RA", &[1.0f64, 2.0]).unwrap();
+    if let Some(p) = pixtype {
+        cat.write_key(&mut f, "PIXTYPE", p).unwrap();
+    }
+    let t = [ColumnDescription::new("T")
+        .with_type(ColumnDataType::Double)
+        .create()
+        .unwrap()];
+    let hdu = f.create_table("SKY_MAP", &t).unwrap();
+    let values: Vec<f64> = (0..12).map(f64::from).collect();
+    hdu.write_col(&mut f, "T", &values).unwrap();
+    hdu.write_key(&mut f, "PIXTYPE", "HEALPIX").unwrap();
+    hdu.write_key(&mut f, "ORDERING", "NESTED").unwrap();
+    hdu.write_key(&mut f, "NSIDE", 1i64).unwrap();
+}
+
+#[test]
+fn healpix_table_after_another_binary_table_is_found() {
+    let dir = tempfile::tempdir().unwrap();
+    for (name, pixtype) in [("unlabelled.fits", None), ("other.fits", Some("CAR"))] {
+        let path = dir.path().join(name);
+        map_after_a_catalogue(&path, pixtype);
+        let (map, h) = read_map(&path, &ColumnChoice::default()).unwrap();
+        assert_eq!(h.hdu, 2, "{name}");
+        assert!(h.warnings.is_empty(), "{name}: {:?}", h.warnings);
+        assert_eq!(map.ordering(), Ordering::Nested);
+        assert_eq!(map.get(11), Some(11.0));
+    }
+}
