@@ -588,14 +588,14 @@ fn partial_pixel_column_of_floats_is_rejected() {
 
 #[test]
 fn corrupted_header_bytes_never_panic() {
-    // Deterministic corruption of every 7th byte of the table header of a good file, each to a
+    // Deterministic corruption of every 11th byte of the table header of a good file, each to a
     // few troublesome characters; every read must end in Ok or a one-line error.
     let dir = tempfile::tempdir().unwrap();
     let good = good_file(dir.path(), "good.fits", 8, Ordering::Ring);
     let original = std::fs::read(&good).unwrap();
     let path = dir.path().join("bad.fits");
     let mut failures = 0;
-    for offset in (2880..2 * 2880).step_by(7) {
+    for offset in (2880..2 * 2880).step_by(11) {
         for byte in [b'9', b'-', b'\'', b' ', 0u8] {
             let mut bytes = original.clone();
             bytes[offset] = byte;
@@ -612,5 +612,5 @@ fn corrupted_header_bytes_never_panic() {
         }
     }
     // Many corruptions hit keyword values or structure and must be reported.
-    assert!(failures > 50, "only {failures} corruptions were detected");
+    assert!(failures > 30, "only {failures} corruptions were detected");
 }

@@ -43,6 +43,7 @@ fn full_sky_float64_round_trip_is_exact_with_rows_of_1024() {
     write_map(&path, "TEMPERATURE", &map, &WriteOptions::default()).unwrap();
     let reader = HealpixFitsReader::open(&path).unwrap();
     let h = reader.header();
+    // Rows of 1024 values, as the HEALPix FITS convention and healpy 1.20.1 write them.
     assert_eq!(h.columns[0].format, "1024D");
     assert_eq!(h.rows, 3);
     assert_eq!(h.coordsys.as_deref(), Some("C"));
@@ -297,4 +298,29 @@ fn healpix_table_after_another_binary_table_is_found() {
         assert_eq!(map.ordering(), Ordering::Nested);
         assert_eq!(map.get(11), Some(11.0));
     }
+}
+
+#[test]
+fn any_repeat_count_that_fills_the_sky_is_read_in_pixel_order() {
+    // The HEALPix FITS convention stores the Npix values row after row; 1024 per row is usual
+    // but any repeat count with rows × repeat = 12·NSIDE² describes the same map.
+    use fitsio::tables::{ColumnDataType, ColumnDescription};
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("repeat48.fits");
+    let mut f = fitsio::FitsFile::create(&path).open().unwrap();
+    let col = [ColumnDescription::new("T")
+        .with_type(ColumnDataType::Double)
+        .that_repeats(48)
+        .create()
+        .unwrap()];
+    let hdu = f.create_table("SKY_MAP", &col).unwrap();
+    let values: Vec<f64> = (0..192).map(|p| p as f64 * 0.5).collect();
+    hdu.write_col(&mut f, "T", &values).unwrap();
+    hdu.write_key(&mut f, "PIXTYPE", "HEALPIX").unwrap();
+    hdu.write_key(&mut f, "ORDERING", "RING").unwrap();
+    hdu.write_key(&mut f, "NSIDE", 4i64).unwrap();
+    drop(f);
+    let (map, h) = read_map(&path, &ColumnChoice::default()).unwrap();
+    assert_eq!((h.rows, h.columns[0].values_per_row), (4, 48));
+    assert_eq!(map.values(), &values[..]);
 }
