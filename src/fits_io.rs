@@ -293,7 +293,7 @@ impl HealpixFitsReader {
         let info = self.header.columns[position].clone();
         let colnum = self.header.value_colnums[position];
         let npix = npix_of(self.header.nside);
-        let count = self.header.rows * info.values_per_row;
+        let count = self.header.rows.saturating_mul(info.values_per_row);
         let name = display_name(&info.name, position);
         if let Some(reason) = non_numeric_reason(info.type_code, &info.format) {
             return Err(Error::fits(
@@ -312,24 +312,21 @@ impl HealpixFitsReader {
                         ),
                     ));
                 }
-                self.file
-                    .read_doubles(&path, colnum, info.values_per_row, count)
+                self.file.read_doubles(&path, colnum, count)
             }
             Coverage::Partial => {
                 self.partial_pixels()?;
-                let listed = self
-                    .file
-                    .read_doubles(&path, colnum, info.values_per_row, count)?;
-                let pixels = self.pixels.as_deref().unwrap_or(&[]);
-                if count != pixels.len() as u64 {
+                let listed_count = self.pixels.as_ref().map_or(0, |p| p.len() as u64);
+                if count != listed_count {
                     return Err(Error::fits(
                         &path,
                         format!(
-                            "column '{name}' holds {count} values but the PIXEL column lists {} pixels",
-                            pixels.len()
+                            "column '{name}' holds {count} values but the PIXEL column lists {listed_count} pixels"
                         ),
                     ));
                 }
+                let listed = self.file.read_doubles(&path, colnum, count)?;
+                let pixels = self.pixels.as_deref().unwrap_or(&[]);
                 let mut values = allocate(&path, npix as usize, f64::NAN)?;
                 for (&p, &v) in pixels.iter().zip(&listed) {
                     values[p as usize] = v;
@@ -345,7 +342,7 @@ impl HealpixFitsReader {
             let path = self.header.path.clone();
             let colnum = self.header.pixel_colnum.unwrap_or(1);
             let (_, repeat) = self.file.column_type(&path, colnum)?;
-            let count = self.header.rows * repeat;
+            let count = self.header.rows.saturating_mul(repeat);
             let npix = npix_of(self.header.nside);
             if count > npix {
                 return Err(Error::fits(
@@ -356,7 +353,7 @@ impl HealpixFitsReader {
                     ),
                 ));
             }
-            let raw = self.file.read_longs(&path, colnum, repeat, count)?;
+            let raw = self.file.read_longs(&path, colnum, count)?;
             // One bit per pixel (NSIDE 8192: 100 MB) records which pixels were seen.
             let mut seen = allocate(&path, npix.div_ceil(64) as usize, 0u64)?;
             let mut pixels = Vec::with_capacity(raw.len());
@@ -1073,12 +1070,12 @@ fn parse_header(
                 ),
             ));
         }
-        if rows * c.info.values_per_row > npix {
+        if rows.saturating_mul(c.info.values_per_row) > npix {
             return Err(Error::fits(
                 path,
                 format!(
                     "the PIXEL column lists {} pixels but NSIDE {nside} has only {npix}",
-                    rows * c.info.values_per_row
+                    rows.saturating_mul(c.info.values_per_row)
                 ),
             ));
         }
@@ -1403,13 +1400,7 @@ impl FitsHandle {
 
     /// `count` values of column `colnum` from its start, as f64; null values (NaN in float
     /// columns, TNULL in integer ones) become NaN. TSCAL/TZERO are applied by cfitsio.
-    fn read_doubles(
-        &mut self,
-        path: &Path,
-        colnum: c_int,
-        _repeat: u64,
-        count: u64,
-    ) -> Result<Vec<f64>> {
+    fn read_doubles(&mut self, path: &Path, colnum: c_int, count: u64) -> Result<Vec<f64>> {
         let mut out = allocate(path, count as usize, 0.0f64)?;
         if count == 0 {
             return Ok(out);
@@ -1442,13 +1433,7 @@ impl FitsHandle {
     }
 
     /// `count` values of integer column `colnum` from its start, as i64.
-    fn read_longs(
-        &mut self,
-        path: &Path,
-        colnum: c_int,
-        _repeat: u64,
-        count: u64,
-    ) -> Result<Vec<i64>> {
+    fn read_longs(&mut self, path: &Path, colnum: c_int, count: u64) -> Result<Vec<i64>> {
         let mut out = allocate(path, count as usize, 0i64)?;
         if count == 0 {
             return Ok(out);
