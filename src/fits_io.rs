@@ -293,7 +293,7 @@ impl HealpixFitsReader {
         let info = self.header.columns[position].clone();
         let colnum = self.header.value_colnums[position];
         let npix = npix_of(self.header.nside);
-        let count = self.header.rows * info.values_per_row;
+        let count = self.header.rows.saturating_mul(info.values_per_row);
         let name = display_name(&info.name, position);
         if let Some(reason) = non_numeric_reason(info.type_code, &info.format) {
             return Err(Error::fits(
@@ -312,24 +312,21 @@ impl HealpixFitsReader {
                         ),
                     ));
                 }
-                self.file
-                    .read_doubles(&path, colnum, info.values_per_row, count)
+                self.file.read_doubles(&path, colnum, count)
             }
             Coverage::Partial => {
                 self.partial_pixels()?;
-                let listed = self
-                    .file
-                    .read_doubles(&path, colnum, info.values_per_row, count)?;
-                let pixels = self.pixels.as_deref().unwrap_or(&[]);
-                if count != pixels.len() as u64 {
+                let listed_count = self.pixels.as_ref().map_or(0, |p| p.len() as u64);
+                if count != listed_count {
                     return Err(Error::fits(
                         &path,
                         format!(
-                            "column '{name}' holds {count} values but the PIXEL column lists {} pixels",
-                            pixels.len()
+                            "column '{name}' holds {count} values but the PIXEL column lists {listed_count} pixels"
                         ),
                     ));
                 }
+                let listed = self.file.read_doubles(&path, colnum, count)?;
+                let pixels = self.pixels.as_deref().unwrap_or(&[]);
                 let mut values = allocate(&path, npix as usize, f64::NAN)?;
                 for (&p, &v) in pixels.iter().zip(&listed) {
                     values[p as usize] = v;
@@ -345,7 +342,7 @@ impl HealpixFitsReader {
             let path = self.header.path.clone();
             let colnum = self.header.pixel_colnum.unwrap_or(1);
             let (_, repeat) = self.file.column_type(&path, colnum)?;
-            let count = self.header.rows * repeat;
+            let count = self.header.rows.saturating_mul(repeat);
             let npix = npix_of(self.header.nside);
             if count > npix {
                 return Err(Error::fits(
@@ -356,8 +353,9 @@ impl HealpixFitsReader {
                     ),
                 ));
             }
-            let raw = self.file.read_longs(&path, colnum, repeat, count)?;
-            let mut first_entry = allocate(&path, npix as usize, u64::MAX)?;
+            let raw = self.file.read_longs(&path, colnum, count)?;
+            // One bit per pixel (NSIDE 8192: 100 MB) records which pixels were seen.
+            let mut seen = allocate(&path, npix.div_ceil(64) as usize, 0u64)?;
             let mut pixels = Vec::with_capacity(raw.len());
             let (lo, hi) = self.header_pixel_range(npix);
             for (k, &p) in raw.iter().enumerate() {
@@ -378,14 +376,15 @@ impl HealpixFitsReader {
                         format!("PIXEL entry {k} is {p}, outside FIRSTPIX..=LASTPIX = {lo}..={hi}"),
                     ));
                 }
-                let seen = &mut first_entry[p as usize];
-                if *seen != u64::MAX {
+                let (word, bit) = ((p / 64) as usize, 1u64 << (p % 64));
+                if seen[word] & bit != 0 {
+                    let first = raw.iter().position(|&q| q as u64 == p).unwrap_or(k);
                     return Err(Error::fits(
                         &path,
-                        format!("pixel {p} is listed twice in the PIXEL column (entries {seen} and {k})"),
+                        format!("pixel {p} is listed twice in the PIXEL column (entries {first} and {k})"),
                     ));
                 }
-                *seen = k as u64;
+                seen[word] |= bit;
                 pixels.push(p);
             }
             self.pixels = Some(pixels);
@@ -604,7 +603,7 @@ pub fn write_maps(path: &Path, columns: &[(&str, &SkyMap)], options: &WriteOptio
                 KeyValue::Integer(pix.nside() as i64),
                 "Resolution parameter of HEALPIX",
             )),
-            (!partial).then(|| ("FIRSTPIX", KeyValue::Integer(0), "First pixel # (0 based)")),
+            (!partial).then_some(("FIRSTPIX", KeyValue::Integer(0), "First pixel # (0 based)")),
             (!partial).then(|| {
                 (
                     "LASTPIX",
@@ -767,7 +766,7 @@ fn check_file_start(path: &Path) -> Result<u64> {
 }
 
 fn truncated_or_damaged(path: &Path, file_len: u64, detail: String) -> Error {
-    if file_len % FITS_BLOCK != 0 {
+    if !file_len.is_multiple_of(FITS_BLOCK) {
         Error::fits(
             path,
             format!(
@@ -793,7 +792,7 @@ fn find_healpix_hdu(
         let kind = match file.move_to(hdu) {
             Ok(kind) => kind,
             Err(status) if status == sys::END_OF_FILE as c_int => {
-                if file_len % FITS_BLOCK != 0 {
+                if !file_len.is_multiple_of(FITS_BLOCK) {
                     return Err(truncated_or_damaged(
                         path,
                         file_len,
@@ -1071,12 +1070,12 @@ fn parse_header(
                 ),
             ));
         }
-        if rows * c.info.values_per_row > npix {
+        if rows.saturating_mul(c.info.values_per_row) > npix {
             return Err(Error::fits(
                 path,
                 format!(
                     "the PIXEL column lists {} pixels but NSIDE {nside} has only {npix}",
-                    rows * c.info.values_per_row
+                    rows.saturating_mul(c.info.values_per_row)
                 ),
             ));
         }
@@ -1125,7 +1124,7 @@ fn parse_header(
         if !is_numeric_type(c.code) {
             continue;
         }
-        let count = rows.checked_mul(c.info.values_per_row).unwrap_or(u64::MAX);
+        let count = rows.saturating_mul(c.info.values_per_row);
         let name = display_name(&c.info.name, i);
         match coverage {
             Coverage::FullSky if count != npix => {
@@ -1161,7 +1160,7 @@ fn parse_header(
     // The file must hold the table data its header declares.
     let row_bytes = int_key(file, "NAXIS1")?.unwrap_or(0).max(0) as u64;
     let data_start = file.data_start(path)?;
-    let declared = row_bytes.checked_mul(rows).unwrap_or(u64::MAX);
+    let declared = row_bytes.saturating_mul(rows);
     let present = file_len.saturating_sub(data_start);
     if declared > present {
         return Err(Error::fits(
@@ -1189,7 +1188,7 @@ fn parse_header(
     })
 }
 
-/// A zero-initialised vector, or a one-line error when memory runs out.
+/// A vector of `len` copies of `fill`, or a one-line error when memory runs out.
 fn allocate<T: Clone>(path: &Path, len: usize, fill: T) -> Result<Vec<T>> {
     let mut v = Vec::new();
     v.try_reserve_exact(len)
@@ -1401,13 +1400,7 @@ impl FitsHandle {
 
     /// `count` values of column `colnum` from its start, as f64; null values (NaN in float
     /// columns, TNULL in integer ones) become NaN. TSCAL/TZERO are applied by cfitsio.
-    fn read_doubles(
-        &mut self,
-        path: &Path,
-        colnum: c_int,
-        _repeat: u64,
-        count: u64,
-    ) -> Result<Vec<f64>> {
+    fn read_doubles(&mut self, path: &Path, colnum: c_int, count: u64) -> Result<Vec<f64>> {
         let mut out = allocate(path, count as usize, 0.0f64)?;
         if count == 0 {
             return Ok(out);
@@ -1440,13 +1433,7 @@ impl FitsHandle {
     }
 
     /// `count` values of integer column `colnum` from its start, as i64.
-    fn read_longs(
-        &mut self,
-        path: &Path,
-        colnum: c_int,
-        _repeat: u64,
-        count: u64,
-    ) -> Result<Vec<i64>> {
+    fn read_longs(&mut self, path: &Path, colnum: c_int, count: u64) -> Result<Vec<i64>> {
         let mut out = allocate(path, count as usize, 0i64)?;
         if count == 0 {
             return Ok(out);

@@ -505,3 +505,112 @@ fn mask_outside_the_maps_valid_pixels_leaves_no_footprint() {
         "{err}"
     );
 }
+
+/// Keywords of a full-sky NSIDE 1 RING map (12 pixels), integer values given as text.
+fn nside1_keys() -> Vec<(&'static str, &'static str)> {
+    vec![("PIXTYPE", "HEALPIX"), ("ORDERING", "RING")]
+}
+
+fn with_nside(path: &Path, value: &str) {
+    edit_card(path, "NSIDE", Some(value));
+}
+
+#[test]
+fn ascii_table_is_not_a_binary_table() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("ascii.fits");
+    let mut keys = nside1_keys();
+    keys.push(("NSIDE", "1"));
+    raw_table(&path, false, 12, &[("T", "F8.3")], &keys);
+    assert_eq!(
+        read_error(&path),
+        expect(
+            &path,
+            "no binary-table extension, so no HEALPix map (2 HDUs in the file)"
+        )
+    );
+}
+
+#[test]
+fn complex_logical_and_variable_length_columns_are_not_numeric() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("odd.fits");
+    let mut keys = nside1_keys();
+    keys.push(("NSIDE", "1"));
+    raw_table(
+        &path,
+        true,
+        12,
+        &[("T", "1E"), ("Z", "1C"), ("FLAG", "1L"), ("V", "1PE(4)")],
+        &keys,
+    );
+    // NSIDE was written as a string keyword; make it a number as the convention has it.
+    with_nside(&path, "1");
+    assert!(read_map(&path, &ColumnChoice::parse("T")).is_ok());
+    for (column, reason) in [
+        (
+            "Z",
+            "column 'Z' holds complex numbers (TFORM '1C'), not real numbers",
+        ),
+        (
+            "FLAG",
+            "column 'FLAG' holds logical values (TFORM '1L'), not real numbers",
+        ),
+        (
+            "V",
+            "column 'V' holds variable-length arrays (TFORM '1PE(4)'), not real numbers",
+        ),
+    ] {
+        assert_eq!(
+            read_error_for(&path, &ColumnChoice::parse(column)),
+            expect(&path, reason)
+        );
+    }
+}
+
+#[test]
+fn partial_pixel_column_of_floats_is_rejected() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("floatpix.fits");
+    let mut keys = nside1_keys();
+    keys.push(("NSIDE", "1"));
+    keys.push(("INDXSCHM", "EXPLICIT"));
+    raw_table(&path, true, 3, &[("PIXEL", "1E"), ("SIGNAL", "1D")], &keys);
+    with_nside(&path, "1");
+    assert_eq!(
+        read_error(&path),
+        expect(
+            &path,
+            "the pixel-index column 'PIXEL' has TFORM '1E'; pixel indices must be integers"
+        )
+    );
+}
+
+#[test]
+fn corrupted_header_bytes_never_panic() {
+    // Deterministic corruption of every 11th byte of the table header of a good file, each to a
+    // few troublesome characters; every read must end in Ok or a one-line error.
+    let dir = tempfile::tempdir().unwrap();
+    let good = good_file(dir.path(), "good.fits", 8, Ordering::Ring);
+    let original = std::fs::read(&good).unwrap();
+    let path = dir.path().join("bad.fits");
+    let mut failures = 0;
+    for offset in (2880..2 * 2880).step_by(11) {
+        for byte in [b'9', b'-', b'\'', b' ', 0u8] {
+            let mut bytes = original.clone();
+            bytes[offset] = byte;
+            std::fs::write(&path, &bytes).unwrap();
+            match read_map(&path, &ColumnChoice::default()) {
+                Ok(_) => {}
+                Err(e) => {
+                    failures += 1;
+                    let text = e.to_string();
+                    assert!(!text.contains('\n'), "{text}");
+                    assert!(text.starts_with(&path.display().to_string()), "{text}");
+                }
+            }
+        }
+    }
+    // Many corruptions hit keyword values or structure and must be reported.
+    assert!(failures > 30, "only {failures} corruptions were detected");
+}

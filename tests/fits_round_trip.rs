@@ -43,6 +43,7 @@ fn full_sky_float64_round_trip_is_exact_with_rows_of_1024() {
     write_map(&path, "TEMPERATURE", &map, &WriteOptions::default()).unwrap();
     let reader = HealpixFitsReader::open(&path).unwrap();
     let h = reader.header();
+    // Rows of 1024 values, as the HEALPix FITS convention and healpy 1.20.1 write them.
     assert_eq!(h.columns[0].format, "1024D");
     assert_eq!(h.rows, 3);
     assert_eq!(h.coordsys.as_deref(), Some("C"));
@@ -257,4 +258,69 @@ fn bad_column_sets_are_refused_before_writing() {
         "a partial-sky file needs at least one valid pixel, and every pixel is invalid"
     );
     assert!(!path.exists());
+}
+
+/// A file whose HDU 1 is another binary table (`pixtype` given or absent) and HDU 2 a HEALPix
+/// NSIDE 1 map with values 0..12.
+fn map_after_a_catalogue(path: &std::path::Path, pixtype: Option<&str>) {
+    use fitsio::tables::{ColumnDataType, ColumnDescription};
+    let mut f = fitsio::FitsFile::create(path).open().unwrap();
+    let ra = [ColumnDescription::new("RA")
+        .with_type(ColumnDataType::Double)
+        .create()
+        .unwrap()];
+    let cat = f.create_table("CATALOGUE", &ra).unwrap();
+    cat.write_col(&mut f, "RA", &[1.0f64, 2.0]).unwrap();
+    if let Some(p) = pixtype {
+        cat.write_key(&mut f, "PIXTYPE", p).unwrap();
+    }
+    let t = [ColumnDescription::new("T")
+        .with_type(ColumnDataType::Double)
+        .create()
+        .unwrap()];
+    let hdu = f.create_table("SKY_MAP", &t).unwrap();
+    let values: Vec<f64> = (0..12).map(f64::from).collect();
+    hdu.write_col(&mut f, "T", &values).unwrap();
+    hdu.write_key(&mut f, "PIXTYPE", "HEALPIX").unwrap();
+    hdu.write_key(&mut f, "ORDERING", "NESTED").unwrap();
+    hdu.write_key(&mut f, "NSIDE", 1i64).unwrap();
+}
+
+#[test]
+fn healpix_table_after_another_binary_table_is_found() {
+    let dir = tempfile::tempdir().unwrap();
+    for (name, pixtype) in [("unlabelled.fits", None), ("other.fits", Some("CAR"))] {
+        let path = dir.path().join(name);
+        map_after_a_catalogue(&path, pixtype);
+        let (map, h) = read_map(&path, &ColumnChoice::default()).unwrap();
+        assert_eq!(h.hdu, 2, "{name}");
+        assert!(h.warnings.is_empty(), "{name}: {:?}", h.warnings);
+        assert_eq!(map.ordering(), Ordering::Nested);
+        assert_eq!(map.get(11), Some(11.0));
+    }
+}
+
+#[test]
+fn any_repeat_count_that_fills_the_sky_is_read_in_pixel_order() {
+    // The HEALPix FITS convention stores the Npix values row after row; 1024 per row is usual
+    // but any repeat count with rows × repeat = 12·NSIDE² describes the same map.
+    use fitsio::tables::{ColumnDataType, ColumnDescription};
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("repeat48.fits");
+    let mut f = fitsio::FitsFile::create(&path).open().unwrap();
+    let col = [ColumnDescription::new("T")
+        .with_type(ColumnDataType::Double)
+        .that_repeats(48)
+        .create()
+        .unwrap()];
+    let hdu = f.create_table("SKY_MAP", &col).unwrap();
+    let values: Vec<f64> = (0..192).map(|p| p as f64 * 0.5).collect();
+    hdu.write_col(&mut f, "T", &values).unwrap();
+    hdu.write_key(&mut f, "PIXTYPE", "HEALPIX").unwrap();
+    hdu.write_key(&mut f, "ORDERING", "RING").unwrap();
+    hdu.write_key(&mut f, "NSIDE", 4i64).unwrap();
+    drop(f);
+    let (map, h) = read_map(&path, &ColumnChoice::default()).unwrap();
+    assert_eq!((h.rows, h.columns[0].values_per_row), (4, 48));
+    assert_eq!(map.values(), &values[..]);
 }

@@ -8,6 +8,7 @@ use clap::{Parser, Subcommand};
 
 pub mod demo;
 pub mod inputs;
+pub mod inspect;
 pub mod output;
 pub mod sky;
 pub mod spectra;
@@ -32,6 +33,7 @@ pub enum Command {
     Spectra(spectra::SpectraArgs),
     /// Plan the tangent-plane tiles of a map's footprint and report their cost.
     Tiles(tiles::TilesArgs),
+    Inspect(inspect::InspectArgs),
 }
 
 /// Runs the command line and returns the process exit code.
@@ -59,5 +61,6 @@ fn run(command: Command) -> Result<()> {
         Command::Sky(args) => sky::run(&args),
         Command::Spectra(args) => spectra::run(&args),
         Command::Tiles(args) => tiles::run(&args),
+        Command::Inspect(args) => inspect::run(&args),
     }
 }

@@ -131,3 +131,55 @@ pub fn partial_keys() -> Vec<(&'static str, KeyText)> {
         ("OBJECT", KeyText::Text("PARTIAL")),
     ]
 }
+
+/// A table made with raw cfitsio calls: `binary` or ASCII, `rows` rows of zero bytes, columns
+/// given as (name, TFORM), and string keywords. Lets tests build tables the `fitsio` crate cannot
+/// (ASCII tables, complex or logical or variable-length columns).
+pub fn raw_table(
+    path: &Path,
+    binary: bool,
+    rows: i64,
+    columns: &[(&str, &str)],
+    keys: &[(&str, &str)],
+) {
+    use fitsio::sys;
+    use std::ffi::CString;
+    let c = |s: &str| CString::new(s).unwrap();
+    let cpath = c(path.to_str().unwrap());
+    let names: Vec<CString> = columns.iter().map(|(n, _)| c(n)).collect();
+    let forms: Vec<CString> = columns.iter().map(|(_, f)| c(f)).collect();
+    let mut name_ptrs: Vec<*mut std::os::raw::c_char> =
+        names.iter().map(|s| s.as_ptr() as *mut _).collect();
+    let mut form_ptrs: Vec<*mut std::os::raw::c_char> =
+        forms.iter().map(|s| s.as_ptr() as *mut _).collect();
+    let mut fptr = std::ptr::null_mut();
+    let mut status = 0;
+    let ext = c("RAW");
+    // SAFETY: plain cfitsio calls on a new file with valid NUL-terminated strings.
+    unsafe {
+        sys::ffdkinit(&mut fptr, cpath.as_ptr(), &mut status);
+        sys::ffcrim(fptr, 8, 0, std::ptr::null_mut(), &mut status);
+        sys::ffcrtb(
+            fptr,
+            if binary { 2 } else { 1 },
+            rows,
+            names.len() as i32,
+            name_ptrs.as_mut_ptr(),
+            form_ptrs.as_mut_ptr(),
+            std::ptr::null_mut(),
+            ext.as_ptr(),
+            &mut status,
+        );
+        for (k, v) in keys {
+            let (k, v) = (c(k), c(v));
+            sys::ffpkys(fptr, k.as_ptr(), v.as_ptr(), std::ptr::null(), &mut status);
+        }
+        sys::ffclos(fptr, &mut status);
+    }
+    assert_eq!(
+        status,
+        0,
+        "cfitsio status {status} making {}",
+        path.display()
+    );
+}
