@@ -153,7 +153,7 @@ fn command_reports_bad_input_in_one_line() {
             vec![m, "--mask", small_mask.to_str().unwrap()],
             "does not match",
         ),
-        (vec![m, "--column", "7"], "no column 7"),
+        (vec![m, "--column", "7"], "there is no value column 7"),
     ];
     for (args, words) in cases {
         let (code, stderr) = run(&args);
