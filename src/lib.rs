@@ -14,6 +14,7 @@ pub mod flat;
 pub mod footprint;
 pub mod forecast;
 pub mod harmonics;
+pub mod measurement;
 pub mod pixelization;
 pub mod plotting;
 pub mod pooling;

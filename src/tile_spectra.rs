@@ -80,6 +80,8 @@ pub struct FourierStatistics {
     cell_bin: Vec<usize>,
     /// |k| of every Fourier cell.
     cell_k: Vec<f64>,
+    /// Shell indicator fields J_b = IDFT[1_b] / N, computed once.
+    shells: Vec<Vec<f64>>,
 }
 
 impl std::fmt::Debug for FourierStatistics {
@@ -160,7 +162,7 @@ impl FourierStatistics {
                 }
             }
         }
-        Ok(FourierStatistics {
+        let mut stats = FourierStatistics {
             n,
             pixel_size,
             bins,
@@ -168,7 +170,10 @@ impl FourierStatistics {
             inverse,
             cell_bin,
             cell_k,
-        })
+            shells: Vec::new(),
+        };
+        stats.shells = stats.shell_fields(None);
+        Ok(stats)
     }
 
     /// The bins.
@@ -341,7 +346,7 @@ impl FourierStatistics {
     ) -> Result<TileBispectrum> {
         let (f, _, a3) = self.tapered_transform(field, taper)?;
         let i = self.shell_fields(Some(&f));
-        let j = self.shell_fields(None);
+        let j = &self.shells;
         let nn = (self.n * self.n) as f64;
         let d4 = self.pixel_size.powi(4);
         let mut values = Vec::with_capacity(triangles.len());

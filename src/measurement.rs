@@ -1,0 +1,464 @@
+//! Measuring one HEALPix map on its footprint: the tiles of a [`TilingPlan`] are sampled
+//! ([`crate::sampling`]), tapered, transformed by one shared [`ScatteringEngine`], pooled over
+//! their cores ([`crate::pooling`]) and summarised ([`crate::statistics`]); the tile power
+//! spectrum and bispectrum ([`crate::tile_spectra`]) are measured on the same tiles with the
+//! same weights.
+//!
+//! Per tile, with m the apodized footprint interpolated onto the plane grid, b the tile-border
+//! window, Ω the solid angle of each plane pixel and c the indicator of the tile's core:
+//!
+//! - taper a = m · b, applied to the field before filtering. The border window b is a C2 ramp
+//!   (Grain, Tristram & Stompor 2009 profile) over the outer `border_pixels` of the grid, so the
+//!   circular convolutions of the transform never wrap sky from one side of the tile to the other;
+//! - pooling weight w = a · Ω · c: every footprint position is pooled in exactly one tile (cores
+//!   partition the sphere), weighted by its solid angle and apodized footprint weight.
+//!
+//! The halo around each core is the border ramp plus the margin the largest wavelet needs to
+//! see unit taper, about one envelope width σ_{J−1} = 0.8·2^{J−1} pixels; positions too close to a
+//! mask or tile edge at a given scale drop out of the pooling there by the transform's coverage
+//! cut, and a coefficient whose kept weight is too small is flagged untrusted.
+
+use crate::apodization::c2;
+use crate::error::{Error, Result};
+use crate::footprint::Footprint;
+use crate::pixelization::Pixelization;
+use crate::pooling::{combine_tiles, pooled_coefficients, TileSums};
+use crate::sampling::{SamplingMethod, TileSampler};
+use crate::skymap::SkyMap;
+use crate::statistics::{CoefficientKind, CoefficientSet, CompactStatistic};
+use crate::tile_spectra::{
+    combine_bispectra, combine_power, FourierStatistics, TileBispectrum, TilePowerSpectrum,
+    Triangle, WavenumberBins,
+};
+use crate::tiling::{TilingPlan, TilingSettings, TilingSummary};
+use crate::transform::{ScatteringEngine, TransformSettings};
+
+/// Everything that defines a measurement.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct MeasurementSettings {
+    /// Number of dyadic scales J.
+    pub scales: usize,
+    /// Number of orientations L.
+    pub orientations: usize,
+    /// Plane pixels per tile side (a power of two ≥ 2^{J+1}).
+    pub tile_pixels: usize,
+    /// NSIDE of the coarse grid of tile centres; `None`: the coarsest that fits (at least 4).
+    pub coarse_nside: Option<u32>,
+    /// Plane pixel size in arcmin; `None`: the map's mean pixel spacing.
+    pub pixel_arcmin: Option<f64>,
+    /// Width of the tile-border ramp in plane pixels.
+    pub border_pixels: usize,
+    /// How the sky is interpolated onto tiles.
+    #[serde(skip)]
+    pub sampling: SamplingMethod,
+    /// Estimator choices of the transform (coverage threshold, trusted fraction, cropping).
+    #[serde(skip)]
+    pub transform: TransformSettings,
+    /// Number of logarithmic wavenumber bins of the tile power spectrum and bispectrum.
+    pub spectrum_bins: usize,
+    /// Measure the tile bispectrum too.
+    pub bispectrum: bool,
+}
+
+impl Default for MeasurementSettings {
+    fn default() -> Self {
+        MeasurementSettings {
+            scales: 4,
+            orientations: 4,
+            tile_pixels: 64,
+            coarse_nside: None,
+            pixel_arcmin: None,
+            border_pixels: 8,
+            sampling: SamplingMethod::Bilinear,
+            transform: TransformSettings::default(),
+            spectrum_bins: 6,
+            bispectrum: true,
+        }
+    }
+}
+
+impl MeasurementSettings {
+    /// The halo: border ramp plus one largest-scale envelope width, 0.8·2^{J−1} pixels.
+    pub fn halo(&self) -> usize {
+        let sigma = 0.8 * (1u64 << self.scales.saturating_sub(1).min(20)) as f64;
+        self.border_pixels + sigma.ceil() as usize
+    }
+
+    fn check(&self) -> Result<()> {
+        if self.scales == 0 || self.orientations == 0 {
+            return Err(Error::Setting(format!(
+                "J and L must be at least 1 (got J = {}, L = {})",
+                self.scales, self.orientations
+            )));
+        }
+        if !self.tile_pixels.is_power_of_two() || self.tile_pixels < 8 {
+            return Err(Error::Setting(format!(
+                "tile pixels must be a power of two of at least 8, got {}",
+                self.tile_pixels
+            )));
+        }
+        if self.scales > 16 || (1usize << (self.scales + 1)) > self.tile_pixels {
+            return Err(Error::Setting(format!(
+                "J = {} is too large for {}-pixel tiles: it needs 2^(J+1) ≤ tile pixels",
+                self.scales, self.tile_pixels
+            )));
+        }
+        if 2 * self.halo() >= self.tile_pixels {
+            return Err(Error::Setting(format!(
+                "{}-pixel tiles leave no core inside a halo of {} pixels (border {} + scale margin); use larger tiles or a smaller J",
+                self.tile_pixels,
+                self.halo(),
+                self.border_pixels
+            )));
+        }
+        if let Some(a) = self.pixel_arcmin {
+            if !(a.is_finite() && a > 0.0) {
+                return Err(Error::Setting(format!(
+                    "pixel size must be positive, got {a} arcmin"
+                )));
+            }
+        }
+        if self.spectrum_bins == 0 || self.spectrum_bins > 64 {
+            return Err(Error::Setting(format!(
+                "spectrum bins must be from 1 to 64, got {}",
+                self.spectrum_bins
+            )));
+        }
+        Ok(())
+    }
+}
+
+/// The C2 window of the tile border: 1 inside, rising over `border` pixels from the edge.
+pub fn border_window(n: usize, border: usize) -> Vec<f64> {
+    let ramp = |i: usize| {
+        let d = i.min(n - 1 - i) as f64 + 0.5;
+        if border == 0 {
+            1.0
+        } else {
+            c2(d / border as f64)
+        }
+    };
+    let r: Vec<f64> = (0..n).map(ramp).collect();
+    (0..n * n).map(|k| r[k % n] * r[k / n]).collect()
+}
+
+/// A column of a statistics vector: its name and the angular scale it probes (arcmin).
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct StatisticLabel {
+    pub name: String,
+    pub scale_arcmin: Option<f64>,
+}
+
+/// All statistics of one map.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct MapStatistics {
+    /// The full labelled scattering set (orders 0–2 and band powers) with trust flags.
+    pub coefficients: CoefficientSet,
+    /// The compact interpretable set.
+    pub compact: Vec<CompactStatistic>,
+    /// Tile power spectrum, combined over tiles by core weight.
+    pub tile_power: TilePowerSpectrum,
+    /// Tile bispectrum, combined over tiles by core weight.
+    pub tile_bispectrum: Option<TileBispectrum>,
+    /// Number of tiles measured.
+    pub tiles: usize,
+    /// Per-tile sums (for maps of a statistic and jackknife errors), in plan order.
+    #[serde(skip)]
+    pub per_tile: Vec<TileSums>,
+}
+
+/// Measures maps of one pixelization and footprint: owns the plan, the engine and the Fourier
+/// plans, shared by every map (and thread) measured with it.
+pub struct SphereMeasurer {
+    settings: MeasurementSettings,
+    plan: TilingPlan,
+    engine: ScatteringEngine,
+    fourier: FourierStatistics,
+    triangles: Vec<Triangle>,
+    window: Vec<f64>,
+}
+
+impl std::fmt::Debug for SphereMeasurer {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(
+            f,
+            "SphereMeasurer({} tiles, {:?})",
+            self.plan.len(),
+            self.settings
+        )
+    }
+}
+
+impl SphereMeasurer {
+    /// Plans the tiles of `footprint` for maps of pixelization `map` and builds the engine.
+    pub fn new(
+        map: Pixelization,
+        footprint: &Footprint,
+        settings: MeasurementSettings,
+    ) -> Result<Self> {
+        settings.check()?;
+        if footprint.observed_pixels() == 0 {
+            return Err(Error::Data(
+                "the footprint is empty: no pixel has positive weight".into(),
+            ));
+        }
+        let pixel_size = settings.pixel_arcmin.map(|a| (a / 60.0).to_radians());
+        let tiling = |coarse: u32| TilingSettings {
+            coarse_nside: coarse,
+            tile_pixels: Some(settings.tile_pixels),
+            pixel_size,
+            halo: settings.halo(),
+        };
+        let plan = match settings.coarse_nside {
+            Some(c) => TilingPlan::new(map, footprint, &tiling(c))?,
+            None => {
+                let mut found = None;
+                let mut last_err = None;
+                let mut c = 4u32;
+                while c <= map.nside() {
+                    match TilingPlan::new(map, footprint, &tiling(c)) {
+                        Ok(p) => {
+                            found = Some(p);
+                            break;
+                        }
+                        Err(e) => last_err = Some(e),
+                    }
+                    c *= 2;
+                }
+                match (found, last_err) {
+                    (Some(p), _) => p,
+                    (None, Some(e)) => return Err(e),
+                    (None, None) => {
+                        return Err(Error::Setting(format!(
+                            "map NSIDE {} is below 4, too coarse to tile",
+                            map.nside()
+                        )))
+                    }
+                }
+            }
+        };
+        if plan.is_empty() {
+            return Err(Error::Data("no tile meets the footprint".into()));
+        }
+        let engine = ScatteringEngine::with_settings(
+            settings.tile_pixels,
+            settings.scales,
+            settings.orientations,
+            settings.transform,
+        )?;
+        let bins = WavenumberBins::logarithmic(
+            settings.tile_pixels,
+            plan.pixel_size(),
+            settings.spectrum_bins,
+        )?;
+        let fourier = FourierStatistics::new(settings.tile_pixels, plan.pixel_size(), bins)?;
+        let triangles = if settings.bispectrum {
+            fourier.triangles()
+        } else {
+            Vec::new()
+        };
+        let window = border_window(settings.tile_pixels, settings.border_pixels);
+        Ok(SphereMeasurer {
+            settings,
+            plan,
+            engine,
+            fourier,
+            triangles,
+            window,
+        })
+    }
+
+    /// The settings.
+    pub fn settings(&self) -> &MeasurementSettings {
+        &self.settings
+    }
+
+    /// The tiling plan.
+    pub fn plan(&self) -> &TilingPlan {
+        &self.plan
+    }
+
+    /// The shared scattering engine.
+    pub fn engine(&self) -> &ScatteringEngine {
+        &self.engine
+    }
+
+    /// The tiling summary.
+    pub fn summary(&self) -> TilingSummary {
+        self.plan.summary(rayon::current_num_threads())
+    }
+
+    /// Measures `map` on `footprint` (the apodized footprint the plan was made for, or another
+    /// of the same NSIDE whose positive pixels lie in the planned tiles' cores).
+    pub fn measure(&self, map: &SkyMap, footprint: &Footprint) -> Result<MapStatistics> {
+        let sampler = TileSampler::new(&self.plan, map, footprint, self.settings.sampling)?;
+        let per_tile: Vec<Option<(TileSums, TilePowerSpectrum, Option<TileBispectrum>)>> = sampler
+            .map_tiles(|grids| {
+                // interpolation may overshoot 1 by rounding: clamp
+                let taper: Vec<f64> = grids
+                    .mask
+                    .iter()
+                    .zip(&self.window)
+                    .map(|(m, b)| m.clamp(0.0, 1.0) * b)
+                    .collect();
+                let weight = grids.pooling_weights(&taper)?;
+                let wsum: f64 = weight.iter().sum();
+                if wsum <= 0.0 {
+                    return Ok(None);
+                }
+                let view = crate::transform::TileView {
+                    field: &grids.field,
+                    taper: &taper,
+                    weight: &weight,
+                };
+                let sums = self.engine.transform_tile(&view)?;
+                let power = self.fourier.power_spectrum(&grids.field, &taper, wsum)?;
+                let bis = if self.settings.bispectrum {
+                    Some(
+                        self.fourier
+                            .bispectrum(&grids.field, &taper, wsum, &self.triangles)?,
+                    )
+                } else {
+                    None
+                };
+                Ok(Some((sums, power, bis)))
+            })?;
+        let kept: Vec<_> = per_tile.into_iter().flatten().collect();
+        if kept.is_empty() {
+            return Err(Error::Data(
+                "no tile has positive pooling weight: the apodized footprint is empty".into(),
+            ));
+        }
+        let sums: Vec<TileSums> = kept.iter().map(|t| t.0.clone()).collect();
+        let total = combine_tiles(&sums)?;
+        let coefficients = pooled_coefficients(&self.engine, &total)?;
+        let compact = coefficients.compact()?;
+        let powers: Vec<TilePowerSpectrum> = kept.iter().map(|t| t.1.clone()).collect();
+        let tile_power = combine_power(&powers)?;
+        let tile_bispectrum = if self.settings.bispectrum {
+            let b: Vec<TileBispectrum> = kept.iter().filter_map(|t| t.2.clone()).collect();
+            Some(combine_bispectra(&b)?)
+        } else {
+            None
+        };
+        Ok(MapStatistics {
+            coefficients,
+            compact,
+            tile_power,
+            tile_bispectrum,
+            tiles: kept.len(),
+            per_tile: sums,
+        })
+    }
+
+    /// The angular scale (arcmin) of wavelet scale j: its wavelength 2π/ξ_j = (8/3)·2^j pixels.
+    pub fn wavelet_scale_arcmin(&self, j: usize) -> f64 {
+        8.0 / 3.0 * (1u64 << j) as f64 * self.plan.pixel_size().to_degrees() * 60.0
+    }
+
+    /// The names of the compact set, in its order, taken from the compact set of a placeholder
+    /// coefficient set of this engine's layout.
+    fn compact_names(&self) -> Vec<String> {
+        let placeholder = CoefficientSet {
+            scale_count: self.engine.scale_count(),
+            orientation_count: self.engine.orientation_count(),
+            coefficients: self
+                .engine
+                .labels()
+                .iter()
+                .map(|&label| crate::statistics::Coefficient {
+                    label,
+                    value: 1.0,
+                    trusted: true,
+                    kept_weight_fraction: 1.0,
+                })
+                .collect(),
+        };
+        placeholder
+            .compact()
+            .map(|c| c.into_iter().map(|s| s.name).collect())
+            .unwrap_or_default()
+    }
+
+    /// Column labels of [`MapStatistics::vector`], in the same order.
+    pub fn vector_labels(&self) -> Vec<StatisticLabel> {
+        let mut out = Vec::new();
+        for l in self.engine.labels() {
+            let (name, scale) = match l.kind {
+                CoefficientKind::Mean => ("mean".to_string(), None),
+                CoefficientKind::Variance => ("variance".to_string(), None),
+                CoefficientKind::FirstOrder => (
+                    format!("S1_j{}_l{}", l.j1.unwrap_or(0), l.l1.unwrap_or(0)),
+                    l.j1.map(|j| self.wavelet_scale_arcmin(j)),
+                ),
+                CoefficientKind::BandPower => (
+                    format!("bandpower_j{}_l{}", l.j1.unwrap_or(0), l.l1.unwrap_or(0)),
+                    l.j1.map(|j| self.wavelet_scale_arcmin(j)),
+                ),
+                CoefficientKind::SecondOrder => (
+                    format!(
+                        "S2_j{}_l{}_j{}_l{}",
+                        l.j1.unwrap_or(0),
+                        l.l1.unwrap_or(0),
+                        l.j2.unwrap_or(0),
+                        l.l2.unwrap_or(0)
+                    ),
+                    l.j1.map(|j| self.wavelet_scale_arcmin(j)),
+                ),
+            };
+            out.push(StatisticLabel {
+                name: format!("full.{name}"),
+                scale_arcmin: scale,
+            });
+        }
+        // compact names carry their scales in the name; the smallest scale index is parsed back
+        for name in self.compact_names() {
+            let scale = smallest_scale_in_name(&name).map(|j| self.wavelet_scale_arcmin(j));
+            out.push(StatisticLabel {
+                name: format!("compact.{name}"),
+                scale_arcmin: scale,
+            });
+        }
+        let bins = self.fourier.bins();
+        for b in 0..bins.len() {
+            let k = bins.centre(b);
+            out.push(StatisticLabel {
+                name: format!("tile_power.k{b}"),
+                scale_arcmin: Some((2.0 * std::f64::consts::PI / k).to_degrees() * 60.0),
+            });
+        }
+        for t in &self.triangles {
+            let k = bins.centre(t.b3);
+            out.push(StatisticLabel {
+                name: format!("bispectrum.k{}_k{}_k{}", t.b1, t.b2, t.b3),
+                scale_arcmin: Some((2.0 * std::f64::consts::PI / k).to_degrees() * 60.0),
+            });
+        }
+        out
+    }
+}
+
+fn smallest_scale_in_name(name: &str) -> Option<usize> {
+    name.split('_')
+        .filter_map(|p| p.parse::<usize>().ok())
+        .min()
+}
+
+impl MapStatistics {
+    /// Every statistic as one vector, in the order of [`SphereMeasurer::vector_labels`]:
+    /// the full set, the compact set, the tile power spectrum and the tile bispectrum.
+    pub fn vector(&self) -> Vec<f64> {
+        let mut v: Vec<f64> = self
+            .coefficients
+            .coefficients
+            .iter()
+            .map(|c| c.value)
+            .collect();
+        v.extend(self.compact.iter().map(|c| c.value));
+        v.extend(self.tile_power.power.iter().copied());
+        if let Some(b) = &self.tile_bispectrum {
+            v.extend(b.bispectrum.iter().copied());
+        }
+        v
+    }
+}
