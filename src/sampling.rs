@@ -79,6 +79,8 @@ pub struct TileSampler<'a> {
     mask: Cow<'a, [f64]>,
     method: SamplingMethod,
     fine_nested: Pixelization,
+    /// Solid angles of the plane pixels, the same for every tile.
+    solid_angle: Vec<f64>,
 }
 
 impl<'a> TileSampler<'a> {
@@ -124,13 +126,29 @@ impl<'a> TileSampler<'a> {
                 "the mask's footprint does not overlap the map's valid pixels".to_string(),
             ));
         }
-        let mask = weights;
+        let n = plan.tile_pixels();
+        let delta = plan.pixel_size();
+        let edges: Vec<f64> = (0..=n)
+            .map(|k| (k as f64 - n as f64 / 2.0) * delta)
+            .collect();
+        let mut solid_angle = Vec::with_capacity(n * n);
+        for iy in 0..n {
+            for ix in 0..n {
+                solid_angle.push(rectangle_solid_angle(
+                    edges[ix],
+                    edges[ix + 1],
+                    edges[iy],
+                    edges[iy + 1],
+                ));
+            }
+        }
         Ok(TileSampler {
             plan,
             map,
-            mask,
+            mask: weights,
             method,
             fine_nested: Pixelization::new(map.nside(), Ordering::Nested)?,
+            solid_angle,
         })
     }
 
@@ -150,12 +168,8 @@ impl<'a> TileSampler<'a> {
         let values = self.map.values();
         let valid = self.map.valid();
         let coords: Vec<f64> = (0..n).map(|k| plan.plane_coordinate(k)).collect();
-        let edges: Vec<f64> = (0..=n)
-            .map(|k| (k as f64 - n as f64 / 2.0) * delta)
-            .collect();
         let mut field = Vec::with_capacity(n * n);
         let mut mask = Vec::with_capacity(n * n);
-        let mut solid_angle = Vec::with_capacity(n * n);
         let mut in_core = Vec::with_capacity(n * n);
         for iy in 0..n {
             let y = coords[iy];
@@ -188,12 +202,6 @@ impl<'a> TileSampler<'a> {
                 };
                 field.push(f);
                 mask.push(m);
-                solid_angle.push(rectangle_solid_angle(
-                    edges[ix],
-                    edges[ix + 1],
-                    edges[iy],
-                    edges[iy + 1],
-                ));
                 in_core
                     .push(plan.nested_in_core(self.fine_nested.pixel_of(dir), tile.coarse_pixel));
             }
@@ -204,7 +212,7 @@ impl<'a> TileSampler<'a> {
             pixel_size: delta,
             field,
             mask,
-            solid_angle,
+            solid_angle: self.solid_angle.clone(),
             in_core,
         })
     }
