@@ -23,7 +23,10 @@ fn ring_weights_match_healpy_get_interp_weights() {
     let text = std::fs::read_to_string(path).expect("reference file present");
     let mut rows = 0;
     let mut worst = 0.0f64;
-    for line in text.lines().filter(|l| !l.starts_with('#') && !l.starts_with("nside")) {
+    for line in text
+        .lines()
+        .filter(|l| !l.starts_with('#') && !l.starts_with("nside"))
+    {
         let v: Vec<&str> = line.split(',').collect();
         let nside: u32 = v[0].parse().unwrap();
         let theta: f64 = v[1].parse().unwrap();
@@ -31,7 +34,8 @@ fn ring_weights_match_healpy_get_interp_weights() {
         let pix: Vec<u64> = v[3..7].iter().map(|s| s.parse().unwrap()).collect();
         let wts: Vec<f64> = v[7..11].iter().map(|s| s.parse().unwrap()).collect();
         let expected = as_map(pix.into_iter().zip(wts));
-        let ours = as_map(ring_interpolation_weights(nside, Direction::new(theta, phi)).into_iter());
+        let ours =
+            as_map(ring_interpolation_weights(nside, Direction::new(theta, phi)).into_iter());
         // Same pixels with the same weights (a pixel absent on one side has weight 0).
         for p in expected.keys().chain(ours.keys()) {
             let a = expected.get(p).copied().unwrap_or(0.0);
