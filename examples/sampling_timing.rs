@@ -82,10 +82,10 @@ fn main() -> planisphere::Result<()> {
     let args: Vec<String> = std::env::args().skip(1).collect();
     if let Some(pos) = args.iter().position(|a| a == "--case") {
         let coarse: u32 = args[pos + 1].parse().unwrap_or(4);
-        let method = if args.get(pos + 2).map(String::as_str) == Some("nearest") {
-            SamplingMethod::Nearest
-        } else {
-            SamplingMethod::Bilinear
+        let method = match args.get(pos + 2).map(String::as_str) {
+            Some("nearest") => SamplingMethod::Nearest,
+            Some("ring") => SamplingMethod::RingLinear,
+            _ => SamplingMethod::Bilinear,
         };
         return run_case(coarse, method);
     }
@@ -99,7 +99,7 @@ fn main() -> planisphere::Result<()> {
     println!("|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|");
     let exe = std::env::current_exe().expect("own path");
     for c in coarse {
-        for method in ["bilinear", "nearest"] {
+        for method in ["bilinear", "ring", "nearest"] {
             let status = std::process::Command::new(&exe)
                 .args(["--case", &c, method])
                 .status()
