@@ -41,12 +41,12 @@ fn run_case(coarse: u32, method: SamplingMethod) -> planisphere::Result<()> {
     let sampler = TileSampler::new(&plan, &map, &mask, method)?;
     let t2 = Instant::now();
     let sums = sampler.map_tiles(|g| {
-        Ok(g.field
+        // Σ mask·Ω over the core's plane pixels: the tile's share of the footprint area.
+        Ok(g.mask
             .iter()
-            .zip(&g.mask)
             .zip(&g.solid_angle)
             .zip(&g.in_core)
-            .map(|(((f, m), w), &c)| if c { f * m * w } else { 0.0 })
+            .map(|((m, w), &c)| if c { m * w } else { 0.0 })
             .sum::<f64>())
     })?;
     let sampling = t2.elapsed().as_secs_f64();
@@ -71,7 +71,8 @@ fn run_case(coarse: u32, method: SamplingMethod) -> planisphere::Result<()> {
         s.bytes_per_tile as f64 / (1024.0 * 1024.0),
     );
     eprintln!(
-        "(map and mask set-up {setup:.1} s; Σ field·mask·Ω over cores = {total:.6}, {} threads)",
+        "(map and mask set-up {setup:.1} s; Σ mask·Ω over the cores' plane pixels = {total:.5} sr vs footprint {:.5} sr; {} threads)",
+        s.footprint_area_sr,
         rayon::current_num_threads()
     );
     Ok(())
@@ -81,10 +82,10 @@ fn main() -> planisphere::Result<()> {
     let args: Vec<String> = std::env::args().skip(1).collect();
     if let Some(pos) = args.iter().position(|a| a == "--case") {
         let coarse: u32 = args[pos + 1].parse().unwrap_or(4);
-        let method = if args.get(pos + 2).map(String::as_str) == Some("nearest") {
-            SamplingMethod::Nearest
-        } else {
-            SamplingMethod::Bilinear
+        let method = match args.get(pos + 2).map(String::as_str) {
+            Some("nearest") => SamplingMethod::Nearest,
+            Some("ring") => SamplingMethod::RingLinear,
+            _ => SamplingMethod::Bilinear,
         };
         return run_case(coarse, method);
     }
@@ -98,7 +99,7 @@ fn main() -> planisphere::Result<()> {
     println!("|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|");
     let exe = std::env::current_exe().expect("own path");
     for c in coarse {
-        for method in ["bilinear", "nearest"] {
+        for method in ["bilinear", "ring", "nearest"] {
             let status = std::process::Command::new(&exe)
                 .args(["--case", &c, method])
                 .status()

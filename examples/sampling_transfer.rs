@@ -20,7 +20,11 @@ fn main() -> planisphere::Result<()> {
         "NSIDE {nside}, mean spacing h = {:.3} arcmin; power transfer |G|^2 (scattered power in brackets)",
         h.to_degrees() * 60.0
     );
-    for method in [SamplingMethod::Bilinear, SamplingMethod::Nearest] {
+    for method in [
+        SamplingMethod::Bilinear,
+        SamplingMethod::RingLinear,
+        SamplingMethod::Nearest,
+    ] {
         for (place, lon, lat) in [("equator", 45.3, 0.4), ("latitude 60", 10.2, 60.3)] {
             for fraction in [1.0, 0.5, 0.25] {
                 let pixel = fraction * h;

@@ -272,7 +272,11 @@ fn bad_map_pixels_count_as_masked() {
         .iter()
         .position(|t| t.coarse_pixel == plan.coarse_pixelization().pixel_of(hole))
         .unwrap();
-    for method in [SamplingMethod::Bilinear, SamplingMethod::Nearest] {
+    for method in [
+        SamplingMethod::Bilinear,
+        SamplingMethod::RingLinear,
+        SamplingMethod::Nearest,
+    ] {
         let sampler = TileSampler::new(&plan, &map, &fp, method).unwrap();
         let g = sampler.sample(tile).unwrap();
         let proj = plan.projection(tile).unwrap();
@@ -326,4 +330,61 @@ fn sampling_is_identical_for_one_and_two_threads() {
     let one = run(1);
     assert_eq!(one.len(), plan.len());
     assert_eq!(one, run(2));
+}
+
+/// Largest side of the ring-wise interpolation cells: the spacing of pixel centres along a ring
+/// and the colatitude gap between neighbouring rings (RING order lists each ring's pixels
+/// consecutively, Górski et al. 2005, §4).
+fn largest_ring_cell_side(pix: Pixelization) -> f64 {
+    let mut h = 0.0f64;
+    let mut prev = pix.center(0);
+    for p in 1..pix.npix() {
+        let c = pix.center(p);
+        if (c.theta - prev.theta).abs() < 1e-12 {
+            h = h.max(c.distance(&prev));
+        } else {
+            h = h.max((c.theta - prev.theta).abs());
+        }
+        prev = c;
+    }
+    h
+}
+
+#[test]
+fn ring_linear_sampling_is_second_order_up_to_latitude_80() {
+    // Same Taylor bound as above, |e| ≤ (h²/4)·M, with the cell lines now iso-latitude rings
+    // (small circles of geodesic curvature cot θ ≤ cot 10° for |b| ≤ 80°) and meridians
+    // (κ = 0). Within 10° of the poles the pole value (mean of the first ring's four pixels)
+    // makes it first order, so there the convex-combination bound D·|∇f| is checked.
+    let nside = 128;
+    let (map, fp, plan) = sampled_plan(nside, 8, Ordering::Nested);
+    let h = largest_ring_cell_side(Pixelization::new(nside, Ordering::Ring).unwrap());
+    let kappa = 1.0 / 10f64.to_radians().tan();
+    let second_order = h * h / 4.0 * second_derivative_bound(kappa);
+    let first_order = 2f64.sqrt() * h * gradient_bound();
+    let sampler = TileSampler::new(&plan, &map, &fp, SamplingMethod::RingLinear).unwrap();
+    let (mut worst_low, mut worst) = (0.0f64, 0.0f64);
+    for i in 0..plan.len() {
+        let proj = plan.projection(i).unwrap();
+        let g = sampler.sample(i).unwrap();
+        for iy in 0..g.n {
+            for ix in 0..g.n {
+                let d = proj.inverse(plan.plane_coordinate(ix), plan.plane_coordinate(iy));
+                let e = (g.field[iy * g.n + ix] - field(d)).abs();
+                worst = worst.max(e);
+                if d.lat().abs() <= 80f64.to_radians() {
+                    worst_low = worst_low.max(e);
+                }
+            }
+        }
+    }
+    assert!(
+        worst_low <= second_order,
+        "{worst_low:e} vs {second_order:e}"
+    );
+    assert!(
+        worst_low > second_order / 100.0,
+        "{worst_low:e} vs {second_order:e}"
+    );
+    assert!(worst <= first_order, "{worst:e} vs {first_order:e}");
 }
