@@ -9,6 +9,7 @@ use clap::{Parser, Subcommand};
 pub mod demo;
 pub mod inputs;
 pub mod inspect;
+pub mod measure;
 pub mod output;
 pub mod sky;
 pub mod spectra;
@@ -34,6 +35,8 @@ pub enum Command {
     /// Plan the tangent-plane tiles of a map's footprint and report their cost.
     Tiles(tiles::TilesArgs),
     Inspect(inspect::InspectArgs),
+    /// Measure scattering coefficients, band powers and tile spectra of a map on its footprint.
+    Measure(measure::MeasureArgs),
 }
 
 /// Runs the command line and returns the process exit code.
@@ -62,5 +65,6 @@ fn run(command: Command) -> Result<()> {
         Command::Spectra(args) => spectra::run(&args),
         Command::Tiles(args) => tiles::run(&args),
         Command::Inspect(args) => inspect::run(&args),
+        Command::Measure(args) => measure::run(&args),
     }
 }
