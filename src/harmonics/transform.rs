@@ -33,6 +33,8 @@ pub const DEFAULT_ANALYSIS_ITERATIONS: usize = 3;
 
 /// Rings per block in the Legendre stage.
 const LANES: usize = 8;
+// The lane sums in the analysis stage are pairwise over a power-of-two width.
+const _: () = assert!(LANES.is_power_of_two());
 
 /// Synthesis and analysis for one (Nside, lmax); owns the ring geometry and the FFT plans and is
 /// meant to be built once and shared (it is `Sync`).
