@@ -12,7 +12,9 @@ fn transforms(c: &mut Criterion) {
     for nside in [256usize, 512, 1024] {
         let lmax = 2 * nside;
         let transform = HarmonicTransform::new(nside, lmax).expect("valid sizes");
-        let cl: Vec<f64> = (0..=lmax).map(|l| 1.0 / (l as f64 + 10.0).powi(2)).collect();
+        let cl: Vec<f64> = (0..=lmax)
+            .map(|l| 1.0 / (l as f64 + 10.0).powi(2))
+            .collect();
         let alm = alm_from_cl(&cl, lmax, &mut ChaCha20Rng::seed_from_u64(1)).expect("valid Cl");
         let map = transform.synthesis(&alm).expect("matching lmax");
         group.bench_with_input(BenchmarkId::new("synthesis", nside), &nside, |b, _| {

@@ -72,7 +72,7 @@ impl RingGeometry {
                 (1.0 - d, d, 4 * i_n, true)
             } else {
                 let z = (2 * nside - i_n) as f64 * 2.0 / (3.0 * n);
-                (z, 1.0 - z, 4 * nside, (i_n + nside) % 2 == 0)
+                (z, 1.0 - z, 4 * nside, (i_n + nside).is_multiple_of(2))
             };
             let z = sign * z_north;
             let sin_theta = (one_minus_z * (2.0 - one_minus_z)).sqrt();

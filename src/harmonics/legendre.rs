@@ -25,9 +25,9 @@ use num_complex::Complex64;
 /// Rescaling: values carry a factor 2^(−SCALE_LOG2 · s).
 const SCALE_LOG2: f64 = 500.0;
 /// Scaled values above this are brought down by 2^−500.
-const SCALE_LIMIT: f64 = 1.606_938_044_258_990_3e60; // 2^200
+const SCALE_LIMIT: f64 = 1.606_938_044_258_990_3e60; // 2^200 (exact: checked in a unit test)
 /// 2^−500.
-const SCALE_DOWN: f64 = 3.054_936_363_499_604_7e-151;
+const SCALE_DOWN: f64 = 3.054_936_363_499_605e-151;
 /// Number of two-step passes between rescaling checks (growth per check stays far below 2^800).
 const PASSES_PER_CHECK: usize = 4;
 
@@ -421,6 +421,13 @@ fn pairwise_sum<const L: usize>(v: &[f64]) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn scale_constants_are_exact_powers_of_two() {
+        assert_eq!(SCALE_LIMIT, 2f64.powi(200));
+        assert_eq!(SCALE_DOWN, 2f64.powi(-500));
+        assert_eq!(SCALE_LOG2, 500.0);
+    }
 
     // Closed forms (from memory, standard): Y_20(θ,0) = √(5/16π)(3cos²θ − 1),
     // Y_21(θ,0) = −√(15/8π) sinθ cosθ, Y_22(θ,0) = √(15/32π) sin²θ.
