@@ -27,6 +27,10 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         None => 1024,
     };
     println!(
+        "Legendre kernel: {}",
+        planisphere::harmonics::LegendreKernel::best_available().name()
+    );
+    println!(
         "{:>6} {:>6} {:>8} {:>14} {:>14}",
         "nside", "lmax", "threads", "synthesis [s]", "analysis [s]"
     );

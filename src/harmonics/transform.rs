@@ -497,3 +497,37 @@ mod fused {
         analysis_order::<FusedMulAdd, ANALYSIS_LANES>(rec, norm, pairs, ring_sums, out)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // Y_00 = 1/√(4π): a_00 = √(4π) is the constant map 1, and equal-weight quadrature of a
+    // constant recovers a_00 exactly up to rounding (Σ_p (4π/Npix)·1·Y_00 = √(4π)).
+    #[test]
+    fn monopole_is_the_constant_map_and_is_recovered_at_nside_one() {
+        let t = HarmonicTransform::new(1, 2).unwrap();
+        let mut alm = HarmonicCoefficients::zeros(2);
+        let a00 = (4.0 * std::f64::consts::PI).sqrt();
+        alm.set(0, 0, Complex64::new(a00, 0.0));
+        let map = t.synthesis(&alm).unwrap();
+        assert_eq!(map.len(), 12);
+        assert!(map.iter().all(|v| (v - 1.0).abs() < 1e-15));
+        let back = t.analysis(&map, 0).unwrap();
+        assert!((back.get(0, 0).re - a00).abs() < 1e-14);
+        assert!(back.get(0, 0).im.abs() < 1e-15);
+    }
+
+    #[test]
+    fn bad_inputs_give_errors_not_panics() {
+        assert!(HarmonicTransform::new(4, 12).is_err()); // lmax > 3 Nside − 1
+        assert!(HarmonicTransform::new(0, 0).is_err());
+        let t = HarmonicTransform::new(4, 11).unwrap();
+        assert!(t.analysis(&[0.0; 10], 0).is_err());
+        let mut map = vec![0.0; 192];
+        map[5] = f64::NAN;
+        assert!(t.analysis(&map, 0).is_err());
+        assert!(t.synthesis(&HarmonicCoefficients::zeros(10)).is_err());
+        assert!(HarmonicCoefficients::from_vec(3, vec![Complex64::new(0.0, 0.0); 9]).is_err());
+    }
+}
