@@ -1,13 +1,13 @@
 //! Timing table for spherical harmonic synthesis and analysis (iter = 0) at Nside 256, 512,
 //! 1024 with lmax = 2 Nside, on 1 and 2 threads (local rayon pools).
 //!
-//!     cargo run --release --example harmonics_timing [max_nside]
+//!     cargo run --release --example harmonics_timing [max_nside] [portable|avx2]
 //!
 //! Compare with reference-values/harmonics_timing.py (healpy 1.20.1 on the same sizes).
 
 use std::time::Instant;
 
-use planisphere::harmonics::{alm_from_cl, HarmonicTransform};
+use planisphere::harmonics::{alm_from_cl, HarmonicTransform, LegendreKernel};
 use rand::SeedableRng;
 use rand_chacha::ChaCha20Rng;
 
@@ -26,10 +26,13 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         Some(s) => s.parse()?,
         None => 1024,
     };
-    println!(
-        "Legendre kernel: {}",
-        planisphere::harmonics::LegendreKernel::best_available().name()
-    );
+    let kernel = match std::env::args().nth(2).as_deref() {
+        Some("portable") => LegendreKernel::Portable,
+        Some("avx2") => LegendreKernel::Avx2Fma,
+        Some(other) => return Err(format!("unknown kernel '{other}' (portable or avx2)").into()),
+        None => LegendreKernel::best_available(),
+    };
+    println!("Legendre kernel: {}", kernel.name());
     println!(
         "{:>6} {:>6} {:>8} {:>14} {:>14}",
         "nside", "lmax", "threads", "synthesis [s]", "analysis [s]"
@@ -39,7 +42,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             break;
         }
         let lmax = 2 * nside;
-        let transform = HarmonicTransform::new(nside, lmax)?;
+        let transform = HarmonicTransform::with_kernel(nside, lmax, kernel)?;
         let cl: Vec<f64> = (0..=lmax)
             .map(|l| 1.0 / (l as f64 + 10.0).powi(2))
             .collect();

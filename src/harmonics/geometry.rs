@@ -1,7 +1,8 @@
 //! HEALPix RING-scheme geometry: the 4·Nside − 1 iso-latitude rings, their colatitudes, pixel
 //! counts, first pixel indices and azimuth of the first pixel.
 //!
-//! Formulas (Górski et al. 2005, ApJ 622, 759, §4, pixel centres of the RING scheme), with the
+//! Formulas (Górski et al. 2005, ApJ 622, 759, pixel centres of the RING scheme, their §4,
+//! section number from memory), with the
 //! ring number i = 1 … 4 Nside − 1 counted from the north pole:
 //!
 //! * north polar cap, 1 ≤ i < Nside: z = cos θ = 1 − i²/(3 Nside²), 4i pixels, first pixel

@@ -1,8 +1,10 @@
 //! Normalised associated Legendre functions λ_ℓm(θ) = Y_ℓm(θ, 0), evaluated on the fly, order by
 //! order, for blocks of rings at once, inside the Legendre stages of synthesis and analysis.
 //!
-//! Recurrence (Górski et al. 2005, ApJ 622, 759, §5; Holmes & Featherstone 2002, J. Geodesy 76,
-//! 279, eqs. 11–13 for the fully normalised form), Condon–Shortley phase included:
+//! Recurrence for fully normalised functions (Holmes & Featherstone 2002, J. Geodesy 76, 279,
+//! §2, the standard "forward column" recursion; written here for the 1/√(4π) normalisation of
+//! Y_ℓm, Condon–Shortley phase included; checked against scipy 1.17.1 `sph_harm_y` and healpy
+//! 1.20.1 in the tests):
 //!
 //! * λ_mm = (−1)^m √((2m + 1)/(4π) · (2m − 1)!!/(2m)!!) sin^m θ,
 //! * λ_{m+1,m} = √(2m + 3) cos θ λ_mm,
@@ -10,10 +12,10 @@
 //!   α_ℓm = √((4ℓ² − 1)/(ℓ² − m²)) and γ_ℓm = α_ℓm √(((ℓ − 1)² − m²)/(4(ℓ − 1)² − 1)).
 //!
 //! sin^m θ underflows for large m near the poles. Following the scaled-recursion idea of Holmes
-//! & Featherstone (2002, §2.3), λ_mm is started from its logarithm as v·2^(−500 s) with an
-//! integer scale s ≥ 0; the recurrence runs on v (it is linear) and v is brought back by 2^−500
-//! whenever it exceeds 2^200, until s = 0. While s > 0 the true value is below 2^−300 and the
-//! term is left out of the sums. A ring whose λ_ℓm stays scaled up to ℓmax is "dead" for that m;
+//! & Featherstone (2002), λ_mm is started from its logarithm as v·2^(−500 s) with an integer
+//! scale s ≥ 0; the recurrence runs on v (it is linear) and, checked every 8 steps, v is brought
+//! back by 2^−500 whenever it exceeds 2^200, until s = 0. While s > 0 the true value is below
+//! about 2^−240 (growth over 8 steps stays below 2^60) and the term is left out of the sums. A ring whose λ_ℓm stays scaled up to ℓmax is "dead" for that m;
 //! since |λ_ℓm(θ)| grows monotonically with θ from the pole up to its first extremum, every ring
 //! nearer the pole is dead too, which lets the stages stop early.
 //!

@@ -31,8 +31,12 @@ use crate::error::{Error, Result};
 /// Number of Jacobi iterations healpy's `map2alm` uses by default (`iter=3`).
 pub const DEFAULT_ANALYSIS_ITERATIONS: usize = 3;
 
-/// Rings per block in the Legendre stage of synthesis (all lane state stays in registers).
+/// Rings per block in the Legendre stage of synthesis with AVX2 (all lane state stays in
+/// registers); twice as many with AVX-512.
 const SYNTHESIS_LANES: usize = 8;
+/// Rings per block in synthesis for portable code (SSE2 has half the register width; wider
+/// blocks spill).
+const PORTABLE_SYNTHESIS_LANES: usize = 4;
 /// Rings per block in the Legendre stage of analysis (partial sums live in a small buffer,
 /// so wider blocks amortise the per-ℓ loads).
 const ANALYSIS_LANES: usize = 16;
@@ -411,7 +415,7 @@ impl HarmonicTransform {
             }
             LegendreKernel::Portable => {}
         }
-        synthesis_order::<PlainMulAdd, SYNTHESIS_LANES>(&rec, norm, &self.pairs, alm, out);
+        synthesis_order::<PlainMulAdd, PORTABLE_SYNTHESIS_LANES>(&rec, norm, &self.pairs, alm, out);
     }
 
     fn analysis_order(
