@@ -69,6 +69,34 @@ for case_index, (nside, lmax) in enumerate([(4, 11), (12, 35), (16, 47), (32, 64
         }
     )
 
+# --- High lmax (polar rings, large m, aliasing on small rings): Nside 256, lmax 767 ----------
+# Coefficients from a closed formula (also evaluated by the Rust test) so that only a subset of
+# map values and coefficients needs to be stored.
+nside, lmax = 256, 767
+nalm = hp.Alm.getsize(lmax, lmax)
+l_of, m_of = hp.Alm.getlm(lmax, np.arange(nalm))
+lf, mf = l_of.astype(float), m_of.astype(float)
+alm = (np.cos(0.1 * lf + 0.37 * mf + 0.013 * lf * mf) + 1j * np.sin(0.23 * lf - 0.11 * mf)) / (lf + 1.0)
+alm[m_of == 0] = alm[m_of == 0].real
+m_map = hp.alm2map(alm, nside, lmax=lmax, mmax=lmax)
+a_iter0 = hp.map2alm(m_map, lmax=lmax, mmax=lmax, iter=0, use_weights=False)
+npix = 12 * nside * nside
+edge = 2 * 4 * 5  # pixels of the first (and last) four rings: 4 + 8 + 12 + 16
+pix = np.unique(np.concatenate([np.arange(edge), np.arange(npix - edge, npix), np.arange(0, npix, 97)]))
+sel_m = np.isin(m_of, [0, 1, 100, 383, 600, 700, 760, 767])
+idx = np.unique(np.concatenate([np.nonzero(sel_m)[0], np.arange(0, nalm, 53)]))
+manifest["formula_case"] = {
+    "nside": nside,
+    "lmax": lmax,
+    "formula": "(cos(0.1 l + 0.37 m + 0.013 l m) + i sin(0.23 l - 0.11 m)) / (l + 1), imaginary part 0 for m = 0",
+    "pixels": write("formula_pixels.f64", pix.astype(float)),
+    "map_values": write("formula_map_values.f64", m_map[pix]),
+    "alm_indices": write("formula_alm_indices.f64", idx.astype(float)),
+    "analysis_iter0_values": write("formula_analysis_iter0_values.f64", a_iter0[idx]),
+    "map_max_abs": float(np.max(np.abs(m_map))),
+    "analysis_max_abs": float(np.max(np.abs(a_iter0))),
+}
+
 # --- Ring geometry: healpy pix2ang at the first pixel of every ring -------------------------
 for nside in (1, 3, 4, 12, 16, 64):
     npix = 12 * nside * nside

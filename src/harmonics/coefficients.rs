@@ -206,12 +206,12 @@ pub fn alm_from_cl<R: Rng + ?Sized>(
     let mut alm = HarmonicCoefficients::zeros(lmax);
     let mut i = 0;
     for m in 0..=lmax {
-        for l in m..=lmax {
+        for c in &cl[m..=lmax] {
             let value = if m == 0 {
                 let g: f64 = rng.sample(StandardNormal);
-                Complex64::new(cl[l].sqrt() * g, 0.0)
+                Complex64::new(c.sqrt() * g, 0.0)
             } else {
-                let s = (0.5 * cl[l]).sqrt();
+                let s = (0.5 * c).sqrt();
                 let re: f64 = rng.sample(StandardNormal);
                 let im: f64 = rng.sample(StandardNormal);
                 Complex64::new(s * re, s * im)

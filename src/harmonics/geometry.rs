@@ -1,7 +1,8 @@
 //! HEALPix RING-scheme geometry: the 4·Nside − 1 iso-latitude rings, their colatitudes, pixel
 //! counts, first pixel indices and azimuth of the first pixel.
 //!
-//! Formulas (Górski et al. 2005, ApJ 622, 759, §4, pixel centres of the RING scheme), with the
+//! Formulas (Górski et al. 2005, ApJ 622, 759, pixel centres of the RING scheme, their §4,
+//! section number from memory), with the
 //! ring number i = 1 … 4 Nside − 1 counted from the north pole:
 //!
 //! * north polar cap, 1 ≤ i < Nside: z = cos θ = 1 − i²/(3 Nside²), 4i pixels, first pixel
@@ -72,7 +73,7 @@ impl RingGeometry {
                 (1.0 - d, d, 4 * i_n, true)
             } else {
                 let z = (2 * nside - i_n) as f64 * 2.0 / (3.0 * n);
-                (z, 1.0 - z, 4 * nside, (i_n + nside) % 2 == 0)
+                (z, 1.0 - z, 4 * nside, (i_n + nside).is_multiple_of(2))
             };
             let z = sign * z_north;
             let sin_theta = (one_minus_z * (2.0 - one_minus_z)).sqrt();

@@ -1,8 +1,10 @@
 //! Normalised associated Legendre functions λ_ℓm(θ) = Y_ℓm(θ, 0), evaluated on the fly, order by
 //! order, for blocks of rings at once, inside the Legendre stages of synthesis and analysis.
 //!
-//! Recurrence (Górski et al. 2005, ApJ 622, 759, §5; Holmes & Featherstone 2002, J. Geodesy 76,
-//! 279, eqs. 11–13 for the fully normalised form), Condon–Shortley phase included:
+//! Recurrence for fully normalised functions (Holmes & Featherstone 2002, J. Geodesy 76, 279,
+//! §2, the standard "forward column" recursion; written here for the 1/√(4π) normalisation of
+//! Y_ℓm, Condon–Shortley phase included; checked against scipy 1.17.1 `sph_harm_y` and healpy
+//! 1.20.1 in the tests):
 //!
 //! * λ_mm = (−1)^m √((2m + 1)/(4π) · (2m − 1)!!/(2m)!!) sin^m θ,
 //! * λ_{m+1,m} = √(2m + 3) cos θ λ_mm,
@@ -10,10 +12,10 @@
 //!   α_ℓm = √((4ℓ² − 1)/(ℓ² − m²)) and γ_ℓm = α_ℓm √(((ℓ − 1)² − m²)/(4(ℓ − 1)² − 1)).
 //!
 //! sin^m θ underflows for large m near the poles. Following the scaled-recursion idea of Holmes
-//! & Featherstone (2002, §2.3), λ_mm is started from its logarithm as v·2^(−500 s) with an
-//! integer scale s ≥ 0; the recurrence runs on v (it is linear) and v is brought back by 2^−500
-//! whenever it exceeds 2^200, until s = 0. While s > 0 the true value is below 2^−300 and the
-//! term is left out of the sums. A ring whose λ_ℓm stays scaled up to ℓmax is "dead" for that m;
+//! & Featherstone (2002), λ_mm is started from its logarithm as v·2^(−500 s) with an integer
+//! scale s ≥ 0; the recurrence runs on v (it is linear) and, checked every 8 steps, v is brought
+//! back by 2^−500 whenever it exceeds 2^200, until s = 0. While s > 0 the true value is below
+//! about 2^−240 (growth over 8 steps stays below 2^60) and the term is left out of the sums. A ring whose λ_ℓm stays scaled up to ℓmax is "dead" for that m;
 //! since |λ_ℓm(θ)| grows monotonically with θ from the pole up to its first extremum, every ring
 //! nearer the pole is dead too, which lets the stages stop early.
 //!
@@ -25,9 +27,9 @@ use num_complex::Complex64;
 /// Rescaling: values carry a factor 2^(−SCALE_LOG2 · s).
 const SCALE_LOG2: f64 = 500.0;
 /// Scaled values above this are brought down by 2^−500.
-const SCALE_LIMIT: f64 = 1.606_938_044_258_990_3e60; // 2^200
+const SCALE_LIMIT: f64 = 1.606_938_044_258_990_3e60; // 2^200 (exact: checked in a unit test)
 /// 2^−500.
-const SCALE_DOWN: f64 = 3.054_936_363_499_604_7e-151;
+const SCALE_DOWN: f64 = 3.054_936_363_499_605e-151;
 /// Number of two-step passes between rescaling checks (growth per check stays far below 2^800).
 const PASSES_PER_CHECK: usize = 4;
 
@@ -68,36 +70,40 @@ pub(crate) fn log2_sectoral_norms(mmax: usize) -> Vec<f64> {
     out
 }
 
-/// Recurrence coefficients α_ℓm, γ_ℓm for one order m, indexed by k = ℓ − m (k ≥ 1).
+/// Recurrence coefficients for one order m, indexed by k = ℓ − m.
+///
+/// The three-term recurrence is run on rescaled values μ_ℓ = λ_ℓm / c_ℓ with c_m = c_{m+1} = 1
+/// and c_ℓ = γ_ℓm c_{ℓ−2}, which turns it into μ_ℓ = A_ℓ cos θ μ_{ℓ−1} − μ_{ℓ−2} with
+/// A_ℓ = α_ℓm c_{ℓ−1}/c_ℓ (one multiplication fewer per step); c_ℓ is applied to the
+/// coefficients instead. c_ℓ stays within a few powers of ℓ^{±1/2}.
 pub(crate) struct OrderRecurrence {
     pub m: usize,
     pub lmax: usize,
-    alpha: Vec<f64>,
-    gamma: Vec<f64>,
+    /// A_ℓ, k ≥ 1.
+    a: Vec<f64>,
+    /// c_ℓ, k ≥ 0.
+    pub c: Vec<f64>,
 }
 
 impl OrderRecurrence {
     pub fn new(m: usize, lmax: usize) -> Self {
         let n = lmax - m;
-        let mut alpha = vec![0.0; n + 1];
-        let mut gamma = vec![0.0; n + 1];
+        let mut a = vec![0.0; n + 1];
+        let mut c = vec![1.0; n + 1];
         let mf = m as f64;
         if n >= 1 {
-            alpha[1] = (2.0 * mf + 3.0).sqrt();
+            // α_{m+1,m} = √(2m + 3), γ_{m+1,m} = 0.
+            a[1] = (2.0 * mf + 3.0).sqrt();
         }
         for k in 2..=n {
             let l = (m + k) as f64;
-            let a = ((4.0 * l * l - 1.0) / ((l - mf) * (l + mf))).sqrt();
+            let alpha = ((4.0 * l * l - 1.0) / ((l - mf) * (l + mf))).sqrt();
             let lm1 = l - 1.0;
-            alpha[k] = a;
-            gamma[k] = a * (((lm1 - mf) * (lm1 + mf)) / (4.0 * lm1 * lm1 - 1.0)).sqrt();
+            let gamma = alpha * (((lm1 - mf) * (lm1 + mf)) / (4.0 * lm1 * lm1 - 1.0)).sqrt();
+            c[k] = gamma * c[k - 2];
+            a[k] = alpha * c[k - 1] / c[k];
         }
-        OrderRecurrence {
-            m,
-            lmax,
-            alpha,
-            gamma,
-        }
+        OrderRecurrence { m, lmax, a, c }
     }
 }
 
@@ -190,17 +196,11 @@ fn rescale<const L: usize>(
     scaled
 }
 
-/// One recurrence step on all lanes: new = α z cur − γ prev, stored over `prev`.
+/// One recurrence step on all lanes: new = A z cur − prev, stored over `prev`.
 #[inline(always)]
-fn step<A: MulAdd, const L: usize>(
-    alpha: f64,
-    gamma: f64,
-    z: &[f64; L],
-    cur: &[f64; L],
-    prev: &mut [f64; L],
-) {
+fn step<A: MulAdd, const L: usize>(a: f64, z: &[f64; L], cur: &[f64; L], prev: &mut [f64; L]) {
     for r in 0..L {
-        prev[r] = A::mul_add(alpha * z[r], cur[r], -gamma * prev[r]);
+        prev[r] = A::mul_add(a * z[r], cur[r], -prev[r]);
     }
 }
 
@@ -217,8 +217,9 @@ pub(crate) fn synthesis_order<A: MulAdd, const L: usize>(
     out.fill(Complex64::new(0.0, 0.0));
     let m = rec.m;
     let n = rec.lmax - m;
-    let alpha = &rec.alpha;
-    let gamma = &rec.gamma;
+    let coef = &rec.a;
+    // Coefficients times c_ℓ (the recurrence runs on λ/c).
+    let alm: Vec<Complex64> = alm.iter().zip(&rec.c).map(|(a, c)| a * c).collect();
     let mut b = 0;
     while let Some(blk) = block::<L>(b, pairs, m, log2_norm) {
         b += 1;
@@ -241,14 +242,14 @@ pub(crate) fn synthesis_order<A: MulAdd, const L: usize>(
         while scaled && k < n {
             let mut pass = 0;
             while pass < PASSES_PER_CHECK && k < n {
-                step::<A, L>(alpha[k], gamma[k], &z, &p1, &mut p0);
+                step::<A, L>(coef[k], &z, &p1, &mut p0);
                 let c = alm[k];
                 for r in 0..L {
                     let p = p0[r] * live[r];
                     or[r] = A::mul_add(c.re, p, or[r]);
                     oi[r] = A::mul_add(c.im, p, oi[r]);
                 }
-                step::<A, L>(alpha[k + 1], gamma[k + 1], &z, &p0, &mut p1);
+                step::<A, L>(coef[k + 1], &z, &p0, &mut p1);
                 let c = alm[k + 1];
                 for r in 0..L {
                     let p = p1[r] * live[r];
@@ -261,13 +262,13 @@ pub(crate) fn synthesis_order<A: MulAdd, const L: usize>(
             scaled = rescale(&mut p0, &mut p1, &mut s, &mut live);
         }
         while k < n {
-            step::<A, L>(alpha[k], gamma[k], &z, &p1, &mut p0);
+            step::<A, L>(coef[k], &z, &p1, &mut p0);
             let c = alm[k];
             for r in 0..L {
                 or[r] = A::mul_add(c.re, p0[r], or[r]);
                 oi[r] = A::mul_add(c.im, p0[r], oi[r]);
             }
-            step::<A, L>(alpha[k + 1], gamma[k + 1], &z, &p0, &mut p1);
+            step::<A, L>(coef[k + 1], &z, &p0, &mut p1);
             let c = alm[k + 1];
             for r in 0..L {
                 er[r] = A::mul_add(c.re, p1[r], er[r]);
@@ -276,7 +277,7 @@ pub(crate) fn synthesis_order<A: MulAdd, const L: usize>(
             k += 2;
         }
         if k == n {
-            step::<A, L>(alpha[k], gamma[k], &z, &p1, &mut p0);
+            step::<A, L>(coef[k], &z, &p1, &mut p0);
             let c = alm[k];
             for r in 0..L {
                 let p = p0[r] * live[r];
@@ -296,27 +297,13 @@ pub(crate) fn synthesis_order<A: MulAdd, const L: usize>(
     }
 }
 
-/// Σ_r a[r]·b[r] in a fixed pairwise order (deterministic, vectorisable).
-#[inline(always)]
-fn lane_dot<const L: usize>(a: &[f64; L], b: &[f64; L]) -> f64 {
-    let mut t = [0.0f64; L];
-    for r in 0..L {
-        t[r] = a[r] * b[r];
-    }
-    let mut width = L;
-    while width > 1 {
-        let half = width / 2;
-        for r in 0..half {
-            t[r] += t[r + half];
-        }
-        width = half;
-    }
-    t[0]
-}
-
 /// Legendre stage of analysis for one order m: out[ℓ − m] = Σ_pairs λ_ℓm(z) X, with
 /// X = G_north + G_south for even ℓ − m and G_north − G_south for odd ℓ − m, where `ring_sums`
 /// gives (G_north, G_south) of every pair (the weighted azimuthal sums of the map).
+///
+/// Each block adds its lanes' products into per-lane partial sums `acc` (one row of 2L values
+/// per ℓ); the lanes are summed once at the end in a fixed pairwise order, so the result does
+/// not depend on scheduling.
 #[inline(always)]
 pub(crate) fn analysis_order<A: MulAdd, const L: usize>(
     rec: &OrderRecurrence,
@@ -325,11 +312,24 @@ pub(crate) fn analysis_order<A: MulAdd, const L: usize>(
     ring_sums: &dyn Fn(usize) -> (Complex64, Complex64),
     out: &mut [Complex64],
 ) {
-    out.fill(Complex64::new(0.0, 0.0));
     let m = rec.m;
     let n = rec.lmax - m;
-    let alpha = &rec.alpha;
-    let gamma = &rec.gamma;
+    let coef = &rec.a;
+    let mut acc = vec![0.0f64; (n + 1) * 2 * L];
+    // acc row k: [re lanes | im lanes].
+    #[inline(always)]
+    fn add_row<A: MulAdd, const L: usize>(
+        row: &mut [f64],
+        p: &[f64; L],
+        xr: &[f64; L],
+        xi: &[f64; L],
+    ) {
+        let (re, im) = row.split_at_mut(L);
+        for r in 0..L {
+            re[r] = A::mul_add(p[r], xr[r], re[r]);
+            im[r] = A::mul_add(p[r], xi[r], im[r]);
+        }
+    }
     let mut b = 0;
     while let Some(blk) = block::<L>(b, pairs, m, log2_norm) {
         b += 1;
@@ -363,16 +363,17 @@ pub(crate) fn analysis_order<A: MulAdd, const L: usize>(
             mask(&live, &xor),
             mask(&live, &xoi),
         );
-        out[0] += Complex64::new(lane_dot(&p1, &mer), lane_dot(&p1, &mei));
+        let w = 2 * L;
+        add_row::<A, L>(&mut acc[..w], &p1, &mer, &mei);
         let mut k = 1;
         let mut scaled = s.iter().any(|&x| x > 0);
         while scaled && k < n {
             let mut pass = 0;
             while pass < PASSES_PER_CHECK && k < n {
-                step::<A, L>(alpha[k], gamma[k], &z, &p1, &mut p0);
-                out[k] += Complex64::new(lane_dot(&p0, &mor), lane_dot(&p0, &moi));
-                step::<A, L>(alpha[k + 1], gamma[k + 1], &z, &p0, &mut p1);
-                out[k + 1] += Complex64::new(lane_dot(&p1, &mer), lane_dot(&p1, &mei));
+                step::<A, L>(coef[k], &z, &p1, &mut p0);
+                add_row::<A, L>(&mut acc[k * w..(k + 1) * w], &p0, &mor, &moi);
+                step::<A, L>(coef[k + 1], &z, &p0, &mut p1);
+                add_row::<A, L>(&mut acc[(k + 1) * w..(k + 2) * w], &p1, &mer, &mei);
                 k += 2;
                 pass += 1;
             }
@@ -383,25 +384,52 @@ pub(crate) fn analysis_order<A: MulAdd, const L: usize>(
             moi = mask(&live, &xoi);
         }
         while k < n {
-            step::<A, L>(alpha[k], gamma[k], &z, &p1, &mut p0);
-            out[k] += Complex64::new(lane_dot(&p0, &mor), lane_dot(&p0, &moi));
-            step::<A, L>(alpha[k + 1], gamma[k + 1], &z, &p0, &mut p1);
-            out[k + 1] += Complex64::new(lane_dot(&p1, &mer), lane_dot(&p1, &mei));
+            step::<A, L>(coef[k], &z, &p1, &mut p0);
+            add_row::<A, L>(&mut acc[k * w..(k + 1) * w], &p0, &mor, &moi);
+            step::<A, L>(coef[k + 1], &z, &p0, &mut p1);
+            add_row::<A, L>(&mut acc[(k + 1) * w..(k + 2) * w], &p1, &mer, &mei);
             k += 2;
         }
         if k == n {
-            step::<A, L>(alpha[k], gamma[k], &z, &p1, &mut p0);
-            out[k] += Complex64::new(lane_dot(&p0, &mor), lane_dot(&p0, &moi));
+            step::<A, L>(coef[k], &z, &p1, &mut p0);
+            add_row::<A, L>(&mut acc[k * w..(k + 1) * w], &p0, &mor, &moi);
         }
         if s[..blk.valid].iter().all(|&x| x > 0) {
             break;
         }
     }
+    for (k, o) in out.iter_mut().enumerate() {
+        let row = &acc[k * 2 * L..(k + 1) * 2 * L];
+        *o = Complex64::new(pairwise_sum::<L>(&row[..L]), pairwise_sum::<L>(&row[L..])) * rec.c[k];
+    }
+}
+
+/// Σ of L values in a fixed pairwise order.
+#[inline(always)]
+fn pairwise_sum<const L: usize>(v: &[f64]) -> f64 {
+    let mut t = [0.0f64; L];
+    t.copy_from_slice(v);
+    let mut width = L;
+    while width > 1 {
+        let half = width / 2;
+        for r in 0..half {
+            t[r] += t[r + half];
+        }
+        width = half;
+    }
+    t[0]
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn scale_constants_are_exact_powers_of_two() {
+        assert_eq!(SCALE_LIMIT, 2f64.powi(200));
+        assert_eq!(SCALE_DOWN, 2f64.powi(-500));
+        assert_eq!(SCALE_LOG2, 500.0);
+    }
 
     // Closed forms (from memory, standard): Y_20(θ,0) = √(5/16π)(3cos²θ − 1),
     // Y_21(θ,0) = −√(15/8π) sinθ cosθ, Y_22(θ,0) = √(15/32π) sin²θ.

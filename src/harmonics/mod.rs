@@ -10,4 +10,4 @@ mod transform;
 
 pub use coefficients::{alm_from_cl, coefficient_count, gaussian_beam, HarmonicCoefficients};
 pub use geometry::{Ring, RingGeometry};
-pub use transform::{HarmonicTransform, DEFAULT_ANALYSIS_ITERATIONS};
+pub use transform::{HarmonicTransform, LegendreKernel, DEFAULT_ANALYSIS_ITERATIONS};

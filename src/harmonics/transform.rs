@@ -31,8 +31,17 @@ use crate::error::{Error, Result};
 /// Number of Jacobi iterations healpy's `map2alm` uses by default (`iter=3`).
 pub const DEFAULT_ANALYSIS_ITERATIONS: usize = 3;
 
-/// Rings per block in the Legendre stage.
-const LANES: usize = 8;
+/// Rings per block in the Legendre stage of synthesis with AVX2 (all lane state stays in
+/// registers); twice as many with AVX-512.
+const SYNTHESIS_LANES: usize = 8;
+/// Rings per block in synthesis for portable code (SSE2 has half the register width; wider
+/// blocks spill).
+const PORTABLE_SYNTHESIS_LANES: usize = 4;
+/// Rings per block in the Legendre stage of analysis (partial sums live in a small buffer,
+/// so wider blocks amortise the per-ℓ loads).
+const ANALYSIS_LANES: usize = 16;
+// The lane sums in the analysis stage are pairwise over a power-of-two width.
+const _: () = assert!(ANALYSIS_LANES.is_power_of_two());
 
 /// Synthesis and analysis for one (Nside, lmax); owns the ring geometry and the FFT plans and is
 /// meant to be built once and shared (it is `Sync`).
@@ -43,7 +52,68 @@ pub struct HarmonicTransform {
     log2_norms: Vec<f64>,
     forward: Vec<Arc<dyn RealToComplex<f64>>>,
     inverse: Vec<Arc<dyn ComplexToReal<f64>>>,
-    fused: bool,
+    kernel: LegendreKernel,
+}
+
+/// Compiled variants of the Legendre kernels: the same arithmetic at different SIMD widths, with
+/// or without fused multiply-add (results agree to rounding). Chosen once per transform.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum LegendreKernel {
+    /// Portable code, separate multiply and add.
+    Portable,
+    /// AVX2 with fused multiply-add.
+    Avx2Fma,
+    /// AVX-512F with fused multiply-add.
+    Avx512Fma,
+}
+
+impl LegendreKernel {
+    /// Whether this CPU can run the variant (run-time feature detection).
+    pub fn is_available(self) -> bool {
+        match self {
+            LegendreKernel::Portable => true,
+            #[cfg(target_arch = "x86_64")]
+            LegendreKernel::Avx2Fma => {
+                std::arch::is_x86_feature_detected!("avx2")
+                    && std::arch::is_x86_feature_detected!("fma")
+            }
+            #[cfg(target_arch = "x86_64")]
+            LegendreKernel::Avx512Fma => {
+                std::arch::is_x86_feature_detected!("avx512f")
+                    && std::arch::is_x86_feature_detected!("fma")
+            }
+            #[cfg(not(target_arch = "x86_64"))]
+            _ => false,
+        }
+    }
+
+    /// All variants this CPU can run, portable first.
+    pub fn available() -> Vec<LegendreKernel> {
+        [
+            LegendreKernel::Portable,
+            LegendreKernel::Avx2Fma,
+            LegendreKernel::Avx512Fma,
+        ]
+        .into_iter()
+        .filter(|k| k.is_available())
+        .collect()
+    }
+
+    /// The widest variant this CPU can run.
+    pub fn best_available() -> LegendreKernel {
+        *Self::available()
+            .last()
+            .unwrap_or(&LegendreKernel::Portable)
+    }
+
+    /// Short name: "portable", "avx2+fma" or "avx512f+fma".
+    pub fn name(self) -> &'static str {
+        match self {
+            LegendreKernel::Portable => "portable",
+            LegendreKernel::Avx2Fma => "avx2+fma",
+            LegendreKernel::Avx512Fma => "avx512f+fma",
+        }
+    }
 }
 
 impl std::fmt::Debug for HarmonicTransform {
@@ -51,20 +121,8 @@ impl std::fmt::Debug for HarmonicTransform {
         f.debug_struct("HarmonicTransform")
             .field("nside", &self.geometry.nside())
             .field("lmax", &self.lmax)
-            .field("fused_multiply_add", &self.fused)
+            .field("kernel", &self.kernel)
             .finish()
-    }
-}
-
-/// Whether this CPU has AVX2 and FMA (checked once per transform).
-fn cpu_has_fma() -> bool {
-    #[cfg(target_arch = "x86_64")]
-    {
-        std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma")
-    }
-    #[cfg(not(target_arch = "x86_64"))]
-    {
-        false
     }
 }
 
@@ -87,13 +145,19 @@ fn phase_table(phi0: f64, count: usize) -> Vec<Complex64> {
 impl HarmonicTransform {
     /// Transform for maps of `nside` and coefficients up to `lmax` ≤ 3·nside − 1.
     pub fn new(nside: usize, lmax: usize) -> Result<Self> {
-        Self::with_options(nside, lmax, cpu_has_fma())
+        Self::with_kernel(nside, lmax, LegendreKernel::best_available())
     }
 
-    /// As [`HarmonicTransform::new`], choosing whether fused multiply-add kernels are used (they
-    /// need AVX2+FMA; requesting them on a CPU without is silently ignored). Both give the same
-    /// results to rounding; each is bitwise reproducible for any thread count.
-    pub fn with_options(nside: usize, lmax: usize, fused_multiply_add: bool) -> Result<Self> {
+    /// As [`HarmonicTransform::new`] with a chosen Legendre kernel variant (an error if this CPU
+    /// cannot run it). All variants agree to rounding; each is bitwise reproducible for any
+    /// thread count.
+    pub fn with_kernel(nside: usize, lmax: usize, kernel: LegendreKernel) -> Result<Self> {
+        if !kernel.is_available() {
+            return Err(Error::Setting(format!(
+                "the {} harmonic transform kernel needs CPU features this machine lacks",
+                kernel.name()
+            )));
+        }
         let geometry = RingGeometry::new(nside)?;
         if lmax > 3 * nside - 1 {
             return Err(Error::Setting(format!(
@@ -122,7 +186,7 @@ impl HarmonicTransform {
             log2_norms: log2_sectoral_norms(lmax),
             forward,
             inverse,
-            fused: fused_multiply_add && cpu_has_fma(),
+            kernel,
             geometry,
         })
     }
@@ -142,9 +206,9 @@ impl HarmonicTransform {
         self.lmax
     }
 
-    /// Whether the fused multiply-add kernels are in use.
-    pub fn uses_fused_multiply_add(&self) -> bool {
-        self.fused
+    /// The Legendre kernel variant in use.
+    pub fn kernel(&self) -> LegendreKernel {
+        self.kernel
     }
 
     /// Number of map pixels, 12 Nside².
@@ -338,13 +402,20 @@ impl HarmonicTransform {
     fn synthesis_order(&self, m: usize, alm: &[Complex64], out: &mut [Complex64]) {
         let rec = OrderRecurrence::new(m, self.lmax);
         let norm = self.log2_norms[m];
+        // SAFETY (both arms): the kernel variant was chosen from the CPU's reported features.
         #[cfg(target_arch = "x86_64")]
-        if self.fused {
-            // SAFETY: `fused` is only true when the CPU reports AVX2 and FMA.
-            unsafe { fused::synthesis_order(&rec, norm, &self.pairs, alm, out) };
-            return;
+        match self.kernel {
+            LegendreKernel::Avx512Fma => {
+                unsafe { fused::synthesis_order_avx512(&rec, norm, &self.pairs, alm, out) };
+                return;
+            }
+            LegendreKernel::Avx2Fma => {
+                unsafe { fused::synthesis_order_avx2(&rec, norm, &self.pairs, alm, out) };
+                return;
+            }
+            LegendreKernel::Portable => {}
         }
-        synthesis_order::<PlainMulAdd, LANES>(&rec, norm, &self.pairs, alm, out);
+        synthesis_order::<PlainMulAdd, PORTABLE_SYNTHESIS_LANES>(&rec, norm, &self.pairs, alm, out);
     }
 
     fn analysis_order(
@@ -355,17 +426,25 @@ impl HarmonicTransform {
     ) {
         let rec = OrderRecurrence::new(m, self.lmax);
         let norm = self.log2_norms[m];
+        // SAFETY (both arms): the kernel variant was chosen from the CPU's reported features.
         #[cfg(target_arch = "x86_64")]
-        if self.fused {
-            // SAFETY: `fused` is only true when the CPU reports AVX2 and FMA.
-            unsafe { fused::analysis_order(&rec, norm, &self.pairs, ring_sums, out) };
-            return;
+        match self.kernel {
+            LegendreKernel::Avx512Fma => {
+                unsafe { fused::analysis_order_avx512(&rec, norm, &self.pairs, ring_sums, out) };
+                return;
+            }
+            LegendreKernel::Avx2Fma => {
+                unsafe { fused::analysis_order_avx2(&rec, norm, &self.pairs, ring_sums, out) };
+                return;
+            }
+            LegendreKernel::Portable => {}
         }
-        analysis_order::<PlainMulAdd, LANES>(&rec, norm, &self.pairs, ring_sums, out);
+        analysis_order::<PlainMulAdd, ANALYSIS_LANES>(&rec, norm, &self.pairs, ring_sums, out);
     }
 }
 
-/// The Legendre kernels compiled for AVX2 + FMA.
+/// The Legendre kernels compiled for AVX2 + FMA and for AVX-512F + FMA (twice the block width
+/// in synthesis, where the wider registers hold the lane state).
 #[cfg(target_arch = "x86_64")]
 mod fused {
     use super::*;
@@ -373,26 +452,86 @@ mod fused {
     /// # Safety
     /// The CPU must support AVX2 and FMA.
     #[target_feature(enable = "avx2,fma")]
-    pub(super) unsafe fn synthesis_order(
+    pub(super) unsafe fn synthesis_order_avx2(
         rec: &OrderRecurrence,
         norm: f64,
         pairs: &RingPairs,
         alm: &[Complex64],
         out: &mut [Complex64],
     ) {
-        super::synthesis_order::<FusedMulAdd, LANES>(rec, norm, pairs, alm, out)
+        synthesis_order::<FusedMulAdd, SYNTHESIS_LANES>(rec, norm, pairs, alm, out)
     }
 
     /// # Safety
     /// The CPU must support AVX2 and FMA.
     #[target_feature(enable = "avx2,fma")]
-    pub(super) unsafe fn analysis_order(
+    pub(super) unsafe fn analysis_order_avx2(
         rec: &OrderRecurrence,
         norm: f64,
         pairs: &RingPairs,
         ring_sums: &dyn Fn(usize) -> (Complex64, Complex64),
         out: &mut [Complex64],
     ) {
-        super::analysis_order::<FusedMulAdd, LANES>(rec, norm, pairs, ring_sums, out)
+        analysis_order::<FusedMulAdd, ANALYSIS_LANES>(rec, norm, pairs, ring_sums, out)
+    }
+
+    /// # Safety
+    /// The CPU must support AVX-512F and FMA.
+    #[target_feature(enable = "avx512f,avx2,fma")]
+    pub(super) unsafe fn synthesis_order_avx512(
+        rec: &OrderRecurrence,
+        norm: f64,
+        pairs: &RingPairs,
+        alm: &[Complex64],
+        out: &mut [Complex64],
+    ) {
+        synthesis_order::<FusedMulAdd, { 2 * SYNTHESIS_LANES }>(rec, norm, pairs, alm, out)
+    }
+
+    /// # Safety
+    /// The CPU must support AVX-512F and FMA.
+    #[target_feature(enable = "avx512f,avx2,fma")]
+    pub(super) unsafe fn analysis_order_avx512(
+        rec: &OrderRecurrence,
+        norm: f64,
+        pairs: &RingPairs,
+        ring_sums: &dyn Fn(usize) -> (Complex64, Complex64),
+        out: &mut [Complex64],
+    ) {
+        analysis_order::<FusedMulAdd, ANALYSIS_LANES>(rec, norm, pairs, ring_sums, out)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // Y_00 = 1/√(4π): a_00 = √(4π) is the constant map 1, and equal-weight quadrature of a
+    // constant recovers a_00 exactly up to rounding (Σ_p (4π/Npix)·1·Y_00 = √(4π)).
+    #[test]
+    fn monopole_is_the_constant_map_and_is_recovered_at_nside_one() {
+        let t = HarmonicTransform::new(1, 2).unwrap();
+        let mut alm = HarmonicCoefficients::zeros(2);
+        let a00 = (4.0 * std::f64::consts::PI).sqrt();
+        alm.set(0, 0, Complex64::new(a00, 0.0));
+        let map = t.synthesis(&alm).unwrap();
+        assert_eq!(map.len(), 12);
+        assert!(map.iter().all(|v| (v - 1.0).abs() < 1e-15));
+        let back = t.analysis(&map, 0).unwrap();
+        assert!((back.get(0, 0).re - a00).abs() < 1e-14);
+        assert!(back.get(0, 0).im.abs() < 1e-15);
+    }
+
+    #[test]
+    fn bad_inputs_give_errors_not_panics() {
+        assert!(HarmonicTransform::new(4, 12).is_err()); // lmax > 3 Nside − 1
+        assert!(HarmonicTransform::new(0, 0).is_err());
+        let t = HarmonicTransform::new(4, 11).unwrap();
+        assert!(t.analysis(&[0.0; 10], 0).is_err());
+        let mut map = vec![0.0; 192];
+        map[5] = f64::NAN;
+        assert!(t.analysis(&map, 0).is_err());
+        assert!(t.synthesis(&HarmonicCoefficients::zeros(10)).is_err());
+        assert!(HarmonicCoefficients::from_vec(3, vec![Complex64::new(0.0, 0.0); 9]).is_err());
     }
 }
