@@ -298,16 +298,24 @@ impl FourierStatistics {
         })
     }
 
-    /// The bin triples b1 ≤ b2 ≤ b3 whose shells can close a triangle (k3 < k1 + k2 at the
-    /// outer edges), with every bin holding modes.
+    /// The bin triples b1 ≤ b2 ≤ b3 whose shells close at least one triangle on this grid
+    /// (Σ_x J1 J2 J3 · N² ≥ 1; configurations with k3 ≥ k1 + k2 at the outer edges are skipped
+    /// without counting).
     pub fn triangles(&self) -> Vec<Triangle> {
         let nb = self.bins.len();
         let e = &self.bins.edges;
+        let nn = (self.n * self.n) as f64;
         let mut out = Vec::new();
         for b1 in 0..nb {
             for b2 in b1..nb {
                 for b3 in b2..nb {
-                    if e[b3] < e[b1 + 1] + e[b2 + 1] {
+                    if e[b3] >= e[b1 + 1] + e[b2 + 1] {
+                        continue;
+                    }
+                    let (j1, j2, j3) = (&self.shells[b1], &self.shells[b2], &self.shells[b3]);
+                    let count: f64 =
+                        (0..j1.len()).map(|x| j1[x] * j2[x] * j3[x]).sum::<f64>() * nn * nn;
+                    if count > 0.5 {
                         out.push(Triangle { b1, b2, b3 });
                     }
                 }

@@ -11,7 +11,9 @@ use crate::statistics::CoefficientKind;
 use std::path::{Path, PathBuf};
 
 /// How the sky is read at tile pixels.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum, serde::Deserialize, serde::Serialize)]
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum, serde::Deserialize, serde::Serialize,
+)]
 #[serde(rename_all = "kebab-case")]
 pub enum SamplingChoice {
     /// Bilinear over the four surrounding HEALPix pixels.
@@ -100,7 +102,9 @@ impl MeasureOptions {
             None => SettingsFile::default(),
         };
         let mut s = MeasurementSettings::default();
-        let pick = |flag: Option<usize>, file: Option<usize>, default: usize| flag.or(file).unwrap_or(default);
+        let pick = |flag: Option<usize>, file: Option<usize>, default: usize| {
+            flag.or(file).unwrap_or(default)
+        };
         s.scales = pick(self.scales, file.scales, s.scales);
         s.orientations = pick(self.orientations, file.orientations, s.orientations);
         s.tile_pixels = pick(self.tile_pixels, file.tile_pixels, s.tile_pixels);
@@ -235,7 +239,12 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
     });
     let doc = measurement_document(&measurer, &stats, &args.map.display().to_string(), &taper);
     write_json(&args.output, &doc)?;
-    let trusted = stats.coefficients.coefficients.iter().filter(|c| c.trusted).count();
+    let trusted = stats
+        .coefficients
+        .coefficients
+        .iter()
+        .filter(|c| c.trusted)
+        .count();
     println!(
         "{} tiles (coarse NSIDE {}, {}² pixels of {:.2}′): {} coefficients ({} trusted), {} compact, written to {}",
         stats.tiles,
@@ -248,7 +257,12 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
         args.output.display()
     );
     for c in &stats.compact {
-        println!("  {:<32} {:>13.6e}{}", c.name, c.value, if c.trusted { "" } else { "  (untrusted)" });
+        println!(
+            "  {:<32} {:>13.6e}{}",
+            c.name,
+            c.value,
+            if c.trusted { "" } else { "  (untrusted)" }
+        );
     }
     Ok(())
 }

@@ -7,6 +7,7 @@ use crate::error::Result;
 use clap::{Parser, Subcommand};
 
 pub mod demo;
+pub mod ensemble;
 pub mod inputs;
 pub mod inspect;
 pub mod measure;
@@ -37,6 +38,10 @@ pub enum Command {
     Inspect(inspect::InspectArgs),
     /// Measure scattering coefficients, band powers and tile spectra of a map on its footprint.
     Measure(measure::MeasureArgs),
+    /// Measure many maps (files or simulations) into one table; resumable, shardable.
+    Ensemble(ensemble::EnsembleArgs),
+    /// Merge the shards of an ensemble into one table.
+    Merge(ensemble::MergeArgs),
 }
 
 /// Runs the command line and returns the process exit code.
@@ -66,5 +71,7 @@ fn run(command: Command) -> Result<()> {
         Command::Tiles(args) => tiles::run(&args),
         Command::Inspect(args) => inspect::run(&args),
         Command::Measure(args) => measure::run(&args),
+        Command::Ensemble(args) => ensemble::run(&args),
+        Command::Merge(args) => ensemble::run_merge(&args),
     }
 }

@@ -1,0 +1,375 @@
+//! `planisphere ensemble` and `planisphere merge`: statistics of many maps (files or
+//! simulations) in one table, resumable and splittable into shards.
+
+use super::inputs::MaskArgs;
+use super::measure::MeasureOptions;
+use crate::apodization::apodize;
+use crate::ensemble::{
+    file_checksum, members_from_glob, members_from_list, EnsembleDescription, EnsembleJob,
+    MemberSource, Shard,
+};
+use crate::error::{Error, Result};
+use crate::fits_io::{read_footprint, read_map, ColumnChoice};
+use crate::footprint::Footprint;
+use crate::harmonics::HarmonicTransform;
+use crate::measurement::{MeasurementSettings, SphereMeasurer, StatisticLabel};
+use crate::pixelization::{Ordering, Pixelization};
+use crate::skies::SkyRecipe;
+use crate::skymap::SkyMap;
+use crate::spectra::angular_spectrum;
+use crate::spectrum::AngularSpectrum;
+use std::path::{Path, PathBuf};
+
+/// Measure every map of an ensemble (files or simulations) into one table.
+#[derive(Debug, clap::Args)]
+pub struct EnsembleArgs {
+    /// Directory of the ensemble: rows of finished maps, and the merged table at the end.
+    #[arg(long, short, value_name = "DIR")]
+    pub output_dir: PathBuf,
+    /// Maps to measure, as a glob pattern (quote it), e.g. 'sims/kappa_*.fits'.
+    #[arg(long, value_name = "PATTERN", group = "members")]
+    pub maps: Option<String>,
+    /// Maps to measure, one path per line (relative to the list file).
+    #[arg(long, value_name = "FILE", group = "members")]
+    pub map_list: Option<PathBuf>,
+    /// Simulate the maps from a recipe (TOML: nside, count, seed, and optionally spectrum,
+    /// model_variance, lmax, lognormal_shift, beam_arcmin, noise_sigma).
+    #[arg(long, value_name = "RECIPE.toml", group = "members")]
+    pub simulate: Option<PathBuf>,
+    /// Column of the map files: 0-based position or name.
+    #[arg(long, default_value = "0")]
+    pub column: ColumnChoice,
+    #[command(flatten)]
+    pub mask: MaskArgs,
+    #[command(flatten)]
+    pub options: MeasureOptions,
+    /// Width of the ℓ bins of the pseudo-C_ℓ columns.
+    #[arg(long, default_value_t = 16)]
+    pub cl_bin_width: usize,
+    /// Measure only shard INDEX of COUNT (0-based, e.g. 2/8); default: from SLURM_ARRAY_TASK_ID
+    /// and SLURM_ARRAY_TASK_COUNT when set, else the whole ensemble.
+    #[arg(long, value_name = "INDEX/COUNT")]
+    pub shard: Option<String>,
+    /// Do not draw a progress bar.
+    #[arg(long)]
+    pub quiet: bool,
+}
+
+/// A simulation recipe file.
+#[derive(Debug, Clone, serde::Deserialize, serde::Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct RecipeFile {
+    pub nside: u32,
+    pub count: u64,
+    #[serde(default = "default_seed")]
+    pub seed: u64,
+    pub spectrum: Option<PathBuf>,
+    pub model_variance: Option<f64>,
+    pub lmax: Option<usize>,
+    pub lognormal_shift: Option<f64>,
+    pub beam_arcmin: Option<f64>,
+    pub noise_sigma: Option<f64>,
+}
+
+fn default_seed() -> u64 {
+    1
+}
+
+impl RecipeFile {
+    /// Reads a recipe file (paths inside it are relative to the file).
+    pub fn read(path: &Path) -> Result<RecipeFile> {
+        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        let mut r: RecipeFile = toml::from_str(&text).map_err(|e| {
+            Error::io(
+                path,
+                format!("bad recipe: {}", e.message().replace('\n', " ")),
+            )
+        })?;
+        if let Some(s) = &r.spectrum {
+            if s.is_relative() {
+                r.spectrum = Some(path.parent().unwrap_or(Path::new("")).join(s));
+            }
+        }
+        Ok(r)
+    }
+
+    /// The sky recipe.
+    pub fn recipe(&self) -> Result<SkyRecipe> {
+        if self.nside < 4 || !self.nside.is_power_of_two() || self.nside > 4096 {
+            return Err(Error::Setting(format!(
+                "recipe nside must be a power of two from 4 to 4096, got {}",
+                self.nside
+            )));
+        }
+        if self.count == 0 || self.count > 1_000_000 {
+            return Err(Error::Setting(format!(
+                "recipe count must be from 1 to 1000000, got {}",
+                self.count
+            )));
+        }
+        let lmax = self.lmax.unwrap_or(3 * self.nside as usize - 1);
+        let spectrum = match &self.spectrum {
+            Some(p) => AngularSpectrum::read_text(p)?,
+            None => AngularSpectrum::demo_model(lmax, self.model_variance.unwrap_or(1e-4)),
+        };
+        Ok(SkyRecipe {
+            nside: self.nside,
+            lmax,
+            spectrum,
+            lognormal_shift: self.lognormal_shift,
+            beam_fwhm_arcmin: self.beam_arcmin,
+            noise_sigma: self.noise_sigma,
+            seed: self.seed,
+        })
+    }
+}
+
+/// Everything needed to measure members: the measurer, its footprint and what is shared.
+pub struct EnsembleMeasurer {
+    pub measurer: SphereMeasurer,
+    pub footprint: Footprint,
+    pub sht: HarmonicTransform,
+    pub cl_bin_width: usize,
+}
+
+impl EnsembleMeasurer {
+    /// Builds the measurer for maps of `pix` on the (already tapered) `footprint`.
+    pub fn new(
+        pix: Pixelization,
+        footprint: Footprint,
+        settings: MeasurementSettings,
+        cl_bin_width: usize,
+    ) -> Result<Self> {
+        if cl_bin_width == 0 || cl_bin_width > 10_000 {
+            return Err(Error::Setting(format!(
+                "--cl-bin-width must be from 1 to 10000, got {cl_bin_width}"
+            )));
+        }
+        let measurer = SphereMeasurer::new(pix, &footprint, settings)?;
+        let sht = HarmonicTransform::new(pix.nside() as usize, 2 * pix.nside() as usize)?;
+        Ok(EnsembleMeasurer {
+            measurer,
+            footprint,
+            sht,
+            cl_bin_width,
+        })
+    }
+
+    /// Column labels: the measurer's statistics, then pseudo-C_ℓ bins `cl.ell{min}_{max}`.
+    pub fn labels(&self) -> Vec<StatisticLabel> {
+        let mut labels = self.measurer.vector_labels();
+        let lmax = self.sht.lmax();
+        let mut start = 2;
+        while start <= lmax {
+            let end = (start + self.cl_bin_width - 1).min(lmax);
+            let ell = 0.5 * (start + end) as f64;
+            labels.push(StatisticLabel {
+                name: format!("cl.ell{start}_{end}"),
+                scale_arcmin: Some(360.0 * 60.0 / ell),
+            });
+            start = end + 1;
+        }
+        labels
+    }
+
+    /// The statistics vector of one map: scattering and tile spectra, then pseudo-C_ℓ bins.
+    pub fn measure(&self, map: &SkyMap) -> Result<Vec<f64>> {
+        // the tapered footprint, less the map's own bad pixels
+        let fp = if map.valid_count() == map.pixelization().npix() {
+            self.footprint.clone()
+        } else {
+            let moved = self.footprint.to_ordering(map.ordering())?;
+            let w: Vec<f64> = moved
+                .weights()
+                .iter()
+                .zip(map.valid())
+                .map(|(&w, &ok)| if ok { w } else { 0.0 })
+                .collect();
+            Footprint::from_weights(moved.pixelization(), w)?
+        };
+        let stats = self.measurer.measure(map, &fp)?;
+        let mut v = stats.vector();
+        let weights = (fp.f_sky() < 1.0).then_some(&fp);
+        let cl = angular_spectrum(map, weights, &self.sht, 0, self.cl_bin_width)?;
+        v.extend(cl.bins.iter().map(|b| b.cl));
+        Ok(v)
+    }
+}
+
+/// The tapered footprint for maps of `pix`: the mask file, or the full sky.
+pub fn ensemble_footprint(
+    mask: &MaskArgs,
+    pix: Pixelization,
+    first_map: Option<&SkyMap>,
+) -> Result<Footprint> {
+    match (&mask.mask, first_map) {
+        (Some(path), _) => {
+            let (fp, _) = read_footprint(path, &mask.mask_column)?;
+            if fp.pixelization().nside() != pix.nside() {
+                return Err(Error::Mismatch(format!(
+                    "mask NSIDE {} does not match map NSIDE {}",
+                    fp.pixelization().nside(),
+                    pix.nside()
+                )));
+            }
+            let fp = fp.to_ordering(pix.ordering())?;
+            taper(mask, fp)
+        }
+        (None, Some(map)) => mask.footprint_for(map),
+        (None, None) => Ok(Footprint::full_sky(pix)),
+    }
+}
+
+fn taper(mask: &MaskArgs, fp: Footprint) -> Result<Footprint> {
+    if fp.observed_pixels() == 0 {
+        return Err(Error::Data(
+            "the mask is empty (no pixel has positive weight)".into(),
+        ));
+    }
+    if mask.taper == crate::apodization::TaperKind::None
+        || mask.taper_arcmin == 0.0
+        || fp.f_sky() == 1.0
+    {
+        return Ok(fp);
+    }
+    if !(mask.taper_arcmin.is_finite() && mask.taper_arcmin > 0.0) {
+        return Err(Error::Setting(format!(
+            "--taper-arcmin must be a non-negative number, got {}",
+            mask.taper_arcmin
+        )));
+    }
+    apodize(&fp, mask.taper, (mask.taper_arcmin / 60.0).to_radians())
+}
+
+/// Measures the ensemble.
+pub fn run(args: &EnsembleArgs) -> Result<()> {
+    let settings = args.options.settings()?;
+    let shard = match &args.shard {
+        Some(s) => Shard::parse(s)?,
+        None => Shard::from_slurm_env()?.unwrap_or(Shard::ALL),
+    };
+    let (members, recipe, recipe_file) = match (&args.maps, &args.map_list, &args.simulate) {
+        (Some(g), None, None) => (members_from_glob(g)?, None, None),
+        (None, Some(l), None) => (members_from_list(l)?, None, None),
+        (None, None, Some(r)) => {
+            let file = RecipeFile::read(r)?;
+            let recipe = file.recipe()?;
+            (
+                (0..file.count).map(MemberSource::Simulation).collect(),
+                Some(recipe),
+                Some(file),
+            )
+        }
+        _ => {
+            return Err(Error::Setting(
+                "give exactly one of --maps, --map-list or --simulate".into(),
+            ))
+        }
+    };
+    let sky_sht = match &recipe {
+        Some(r) => Some(r.transform()?),
+        None => None,
+    };
+    let load = |source: &MemberSource| -> Result<SkyMap> {
+        match (source, &recipe, &sky_sht) {
+            (MemberSource::File(p), _, _) => Ok(read_map(p, &args.column)?.0),
+            (MemberSource::Simulation(i), Some(r), Some(sht)) => r.realise(sht, *i),
+            _ => Err(Error::Setting("a simulated member without a recipe".into())),
+        }
+    };
+    // the pixelization and footprint, from the first member
+    let first = load(&members[0])?;
+    let pix = first.pixelization();
+    let footprint = ensemble_footprint(&args.mask, pix, recipe.is_none().then_some(&first))?;
+    let em = EnsembleMeasurer::new(pix, footprint, settings, args.cl_bin_width)?;
+    let labels = em.labels();
+    let mask_sum = match &args.mask.mask {
+        Some(p) => Some(file_checksum(p)?),
+        None => None,
+    };
+    let description = EnsembleDescription {
+        program_version: env!("CARGO_PKG_VERSION").to_string(),
+        members: members.clone(),
+        labels: labels.iter().map(|l| l.name.clone()).collect(),
+        settings: serde_json::json!({
+            "measurement": settings,
+            "sampling": format!("{:?}", settings.sampling),
+            "coarse_nside": em.measurer.plan().coarse_pixelization().nside(),
+            "nside": pix.nside(),
+            "ordering": pix.ordering(),
+            "column": args.column.to_string(),
+            "mask": args.mask.mask.as_ref().map(|p| p.display().to_string()),
+            "mask_sha256": mask_sum,
+            "taper": format!("{:?}", args.mask.taper),
+            "taper_arcmin": args.mask.taper_arcmin,
+            "cl_bin_width": args.cl_bin_width,
+            "recipe": recipe_file,
+            "label_scales_arcmin": labels.iter().map(|l| l.scale_arcmin).collect::<Vec<_>>(),
+        }),
+    };
+    let job = EnsembleJob::create_or_open(&args.output_dir, description)?;
+    let report = job.run(
+        shard,
+        |_, source| {
+            let map = load(source)?;
+            if map.nside() != pix.nside() {
+                return Err(Error::Mismatch(format!(
+                    "{source}: NSIDE {} differs from the ensemble's {}",
+                    map.nside(),
+                    pix.nside()
+                )));
+            }
+            em.measure(&map)
+        },
+        !args.quiet,
+    )?;
+    println!(
+        "shard {}/{}: {} maps, {} already done, {} measured; {} statistics per map",
+        report.shard.index,
+        report.shard.count,
+        report.members_in_shard,
+        report.already_done,
+        report.measured,
+        labels.len()
+    );
+    if shard.count == 1 {
+        let table = EnsembleJob::write_merged(&args.output_dir)?;
+        println!(
+            "table {} × {} written to {}",
+            table.rows.len(),
+            labels.len(),
+            args.output_dir.join("statistics.npy").display()
+        );
+    } else {
+        println!(
+            "when every shard is done: planisphere merge {}",
+            args.output_dir.display()
+        );
+    }
+    Ok(())
+}
+
+/// Merge the rows of a sharded ensemble into one table.
+#[derive(Debug, clap::Args)]
+pub struct MergeArgs {
+    /// The ensemble directory given to `planisphere ensemble --output-dir`.
+    #[arg(value_name = "DIR")]
+    pub dir: PathBuf,
+}
+
+/// Merges and writes the table.
+pub fn run_merge(args: &MergeArgs) -> Result<()> {
+    let table = EnsembleJob::write_merged(&args.dir)?;
+    println!(
+        "table {} × {} written to {} (labels in statistics.json, quick look in statistics.csv)",
+        table.rows.len(),
+        table.description.labels.len(),
+        args.dir.join("statistics.npy").display()
+    );
+    Ok(())
+}
+
+/// The pixelization of simulated maps (RING), for callers that need it before simulating.
+pub fn simulation_pixelization(recipe: &SkyRecipe) -> Result<Pixelization> {
+    Pixelization::new(recipe.nside, Ordering::Ring)
+}
