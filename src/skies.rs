@@ -34,6 +34,9 @@ pub struct SkyRecipe {
     pub spectrum: AngularSpectrum,
     /// Lognormal shift κ0; `None` for a Gaussian sky.
     pub lognormal_shift: Option<f64>,
+    /// With a lognormal shift: `spectrum` is that of the Gaussian field g itself (so κ's
+    /// spectrum follows from ξ_κ = κ0²(e^{ξ_g} − 1)), instead of the target spectrum of κ.
+    pub spectrum_is_gaussian: bool,
     /// Gaussian beam FWHM in arcmin applied to the signal; `None` for no beam.
     pub beam_fwhm_arcmin: Option<f64>,
     /// Per-pixel white-noise standard deviation added after the beam; `None` for no noise.
@@ -59,6 +62,7 @@ impl SkyRecipe {
             lmax: 3 * nside as usize - 1,
             spectrum,
             lognormal_shift: None,
+            spectrum_is_gaussian: false,
             beam_fwhm_arcmin: None,
             noise_sigma: None,
             seed,
@@ -106,6 +110,14 @@ impl SkyRecipe {
         let cl = self.cl();
         let (gauss_cl, shift) = match self.lognormal_shift {
             None => (cl, None),
+            Some(k0) if self.spectrum_is_gaussian => {
+                if !(k0.is_finite() && k0 > 0.0) {
+                    return Err(Error::Setting(format!(
+                        "the lognormal shift must be positive, got {k0}"
+                    )));
+                }
+                (cl, Some(k0))
+            }
             Some(k0) => {
                 let ln = lognormal_gaussian_spectrum(&cl, k0)?;
                 (ln.gaussian_cl, Some(k0))

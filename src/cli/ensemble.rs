@@ -67,6 +67,8 @@ pub struct RecipeFile {
     pub model_variance: Option<f64>,
     pub lmax: Option<usize>,
     pub lognormal_shift: Option<f64>,
+    /// With lognormal_shift: the spectrum is that of the underlying Gaussian field.
+    pub gaussian_spectrum: Option<bool>,
     pub beam_arcmin: Option<f64>,
     pub noise_sigma: Option<f64>,
 }
@@ -117,6 +119,7 @@ impl RecipeFile {
             lmax,
             spectrum,
             lognormal_shift: self.lognormal_shift,
+            spectrum_is_gaussian: self.gaussian_spectrum.unwrap_or(false),
             beam_fwhm_arcmin: self.beam_arcmin,
             noise_sigma: self.noise_sigma,
             seed: self.seed,

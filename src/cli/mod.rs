@@ -8,6 +8,7 @@ use clap::{Parser, Subcommand};
 
 pub mod demo;
 pub mod ensemble;
+pub mod forecast;
 pub mod inputs;
 pub mod inspect;
 pub mod measure;
@@ -42,6 +43,8 @@ pub enum Command {
     Ensemble(ensemble::EnsembleArgs),
     /// Merge the shards of an ensemble into one table.
     Merge(ensemble::MergeArgs),
+    /// Fisher forecasts from ensembles: compare statistic sets (power spectrum, scattering, bispectrum).
+    Forecast(forecast::ForecastArgs),
 }
 
 /// Runs the command line and returns the process exit code.
@@ -73,5 +76,6 @@ fn run(command: Command) -> Result<()> {
         Command::Measure(args) => measure::run(&args),
         Command::Ensemble(args) => ensemble::run(&args),
         Command::Merge(args) => ensemble::run_merge(&args),
+        Command::Forecast(args) => forecast::run(&args),
     }
 }

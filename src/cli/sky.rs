@@ -27,6 +27,10 @@ pub struct SkyArgs {
     /// Lognormal shift κ0: makes κ = κ0(exp(g − σ²/2) − 1) with the requested spectrum.
     #[arg(long, value_name = "KAPPA0")]
     pub lognormal_shift: Option<f64>,
+    /// With --lognormal-shift: the spectrum is that of the underlying Gaussian field g, not of
+    /// the lognormal map.
+    #[arg(long, requires = "lognormal_shift")]
+    pub gaussian_spectrum: bool,
     /// Gaussian beam FWHM in arcmin.
     #[arg(long, value_name = "ARCMIN")]
     pub beam_arcmin: Option<f64>,
@@ -125,6 +129,7 @@ pub fn recipe(args: &SkyArgs) -> Result<SkyRecipe> {
         lmax,
         spectrum,
         lognormal_shift: args.lognormal_shift,
+        spectrum_is_gaussian: args.gaussian_spectrum,
         beam_fwhm_arcmin: args.beam_arcmin,
         noise_sigma,
         seed: args.seed,
