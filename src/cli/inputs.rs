@@ -26,7 +26,7 @@ pub struct MaskArgs {
 }
 
 /// Reads a map column, reporting a file's warnings (e.g. an assumed ordering) on stderr.
-pub fn load_map(path: &PathBuf, column: &ColumnChoice) -> Result<SkyMap> {
+pub fn load_map(path: &std::path::Path, column: &ColumnChoice) -> Result<SkyMap> {
     let (map, header) = read_map(path, column)?;
     for w in &header.warnings {
         eprintln!("planisphere: warning: {}: {w}", path.display());
