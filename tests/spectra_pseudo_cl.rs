@@ -83,10 +83,7 @@ fn full_sky_spectrum_is_the_power_spectrum_of_the_coefficients() {
     let mean = map.values().iter().sum::<f64>() / map.values().len() as f64;
     let centred: Vec<f64> = map.values().iter().map(|v| v - mean).collect();
     let direct = sht.analysis(&centred, 3).unwrap().power_spectrum();
-    for l in 1..=47 {
-        assert!(
-            (s.cl[l] - direct[l]).abs() <= 1e-12 * direct[l].abs().max(1e-20),
-            "ℓ={l}"
-        );
+    for (l, d) in direct.iter().enumerate().skip(1) {
+        assert!((s.cl[l] - d).abs() <= 1e-12 * d.abs().max(1e-20), "ℓ={l}");
     }
 }
