@@ -11,6 +11,7 @@ pub mod error;
 pub mod filters;
 pub mod fits_io;
 pub mod flat;
+pub mod flat_comparison;
 pub mod footprint;
 pub mod forecast;
 pub mod harmonics;

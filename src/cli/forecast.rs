@@ -196,6 +196,10 @@ pub fn forecast_document(
 
 /// Runs the command.
 pub fn run(args: &ForecastArgs) -> Result<()> {
+    super::output::check_output_path(&args.output)?;
+    if let Some(p) = &args.csv {
+        super::output::check_output_path(p)?;
+    }
     let (fiducial, _) = load_ensemble(&args.fiducial)?;
     let mut derivatives = Vec::new();
     for d in &args.derivative {

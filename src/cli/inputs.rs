@@ -21,7 +21,12 @@ pub struct MaskArgs {
     #[arg(long, value_enum, default_value_t = TaperKind::C2)]
     pub taper: TaperKind,
     /// Width of the edge taper in arcmin.
-    #[arg(long, value_name = "ARCMIN", default_value_t = 60.0)]
+    #[arg(
+        long,
+        value_name = "ARCMIN",
+        default_value_t = 60.0,
+        allow_negative_numbers = true
+    )]
     pub taper_arcmin: f64,
 }
 

@@ -55,7 +55,7 @@ pub struct MeasureOptions {
     #[arg(long)]
     pub coarse_nside: Option<u32>,
     /// Tile pixel size in arcmin [default: the map's mean pixel spacing].
-    #[arg(long)]
+    #[arg(long, allow_negative_numbers = true)]
     pub pixel_arcmin: Option<f64>,
     /// Width of the tile-border taper in tile pixels [default: 8].
     #[arg(long)]
@@ -226,6 +226,7 @@ pub fn measurement_document(
 
 /// Measures one map and writes the JSON document.
 pub fn run(args: &MeasureArgs) -> Result<()> {
+    super::output::check_output_path(&args.output)?;
     let settings = args.options.settings()?;
     let map = load_map(&args.map, &args.column)?;
     let footprint = args.mask.footprint_for(&map)?;

@@ -6,6 +6,7 @@
 use crate::error::Result;
 use clap::{Parser, Subcommand};
 
+pub mod compare_flat;
 pub mod demo;
 pub mod ensemble;
 pub mod forecast;
@@ -45,6 +46,8 @@ pub enum Command {
     Merge(ensemble::MergeArgs),
     /// Fisher forecasts from ensembles: compare statistic sets (power spectrum, scattering, bispectrum).
     Forecast(forecast::ForecastArgs),
+    /// Bias of the flat-sky approximation per coefficient and tile size.
+    CompareFlat(compare_flat::CompareFlatArgs),
 }
 
 /// Runs the command line and returns the process exit code.
@@ -52,8 +55,27 @@ pub fn main() -> i32 {
     let cli = match Cli::try_parse() {
         Ok(cli) => cli,
         Err(e) => {
+            use clap::error::ErrorKind;
             let code = e.exit_code();
-            let _ = e.print();
+            match e.kind() {
+                ErrorKind::DisplayHelp
+                | ErrorKind::DisplayVersion
+                | ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand => {
+                    let _ = e.print();
+                }
+                _ => {
+                    // one line: clap's first line, without its own "error: " prefix
+                    let text = e.render().to_string();
+                    let first: Vec<&str> = text
+                        .lines()
+                        .take_while(|l| !l.trim().is_empty())
+                        .map(str::trim)
+                        .collect();
+                    let first = first.join(" ");
+                    let first = first.strip_prefix("error: ").unwrap_or(&first);
+                    eprintln!("planisphere: error: {first} (see planisphere --help)");
+                }
+            }
             return code;
         }
     };
@@ -77,5 +99,6 @@ fn run(command: Command) -> Result<()> {
         Command::Ensemble(args) => ensemble::run(&args),
         Command::Merge(args) => ensemble::run_merge(&args),
         Command::Forecast(args) => forecast::run(&args),
+        Command::CompareFlat(args) => compare_flat::run(&args),
     }
 }

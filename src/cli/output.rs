@@ -17,14 +17,7 @@ pub fn temporary_path(path: &Path) -> PathBuf {
 /// Writes a file through `write` into a temporary file, then renames it to `path`.
 /// On any error the temporary file is removed and `path` is left untouched.
 pub fn write_atomically(path: &Path, write: impl FnOnce(&Path) -> Result<()>) -> Result<()> {
-    if path.as_os_str().is_empty() {
-        return Err(Error::Setting("an output path is empty".to_string()));
-    }
-    if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
-        if !dir.is_dir() {
-            return Err(Error::io(path, "its directory does not exist"));
-        }
-    }
+    check_output_path(path)?;
     let tmp = temporary_path(path);
     let _ = std::fs::remove_file(&tmp);
     let result =
@@ -33,6 +26,23 @@ pub fn write_atomically(path: &Path, write: impl FnOnce(&Path) -> Result<()>) ->
         let _ = std::fs::remove_file(&tmp);
     }
     result
+}
+
+/// Checks, before any work is done, that `path` could be written: not empty, not a directory,
+/// and in an existing directory.
+pub fn check_output_path(path: &Path) -> Result<()> {
+    if path.as_os_str().is_empty() {
+        return Err(Error::Setting("an output path is empty".to_string()));
+    }
+    if path.is_dir() {
+        return Err(Error::io(path, "is a directory, not a file path"));
+    }
+    if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
+        if !dir.is_dir() {
+            return Err(Error::io(path, "its directory does not exist"));
+        }
+    }
+    Ok(())
 }
 
 /// Writes bytes atomically (see [`write_atomically`]).

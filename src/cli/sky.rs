@@ -19,23 +19,28 @@ pub struct SkyArgs {
     #[arg(long, value_name = "FILE")]
     pub spectrum: Option<PathBuf>,
     /// Variance of the built-in model spectrum (ignored with --spectrum).
-    #[arg(long, default_value_t = 1e-4)]
+    #[arg(long, default_value_t = 1e-4, allow_negative_numbers = true)]
     pub model_variance: f64,
     /// Largest multipole synthesised (default 3·NSIDE − 1).
     #[arg(long)]
     pub lmax: Option<usize>,
     /// Lognormal shift κ0: makes κ = κ0(exp(g − σ²/2) − 1) with the requested spectrum.
-    #[arg(long, value_name = "KAPPA0")]
+    #[arg(long, value_name = "KAPPA0", allow_negative_numbers = true)]
     pub lognormal_shift: Option<f64>,
     /// With --lognormal-shift: the spectrum is that of the underlying Gaussian field g, not of
     /// the lognormal map.
     #[arg(long, requires = "lognormal_shift")]
     pub gaussian_spectrum: bool,
     /// Gaussian beam FWHM in arcmin.
-    #[arg(long, value_name = "ARCMIN")]
+    #[arg(long, value_name = "ARCMIN", allow_negative_numbers = true)]
     pub beam_arcmin: Option<f64>,
     /// White noise per pixel, standard deviation.
-    #[arg(long, value_name = "SIGMA", conflicts_with = "shape_noise")]
+    #[arg(
+        long,
+        value_name = "SIGMA",
+        conflicts_with = "shape_noise",
+        allow_negative_numbers = true
+    )]
     pub noise_sigma: Option<f64>,
     /// Shape noise from `SIGMA_E,GALAXIES_PER_ARCMIN2`: σ_pix = σ_e/√(n_gal·A_pix).
     #[arg(long, value_name = "SIGMA_E,N_GAL")]
@@ -143,6 +148,9 @@ pub fn run(args: &SkyArgs) -> Result<()> {
     let paths: Vec<PathBuf> = (0..args.count)
         .map(|i| indexed_path(&args.output, args.first_index + i, args.count))
         .collect::<Result<_>>()?;
+    for p in &paths {
+        super::output::check_output_path(p)?;
+    }
     let sht = recipe.transform()?;
     let options = WriteOptions {
         precision: if args.float32 {

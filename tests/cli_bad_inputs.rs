@@ -1,0 +1,399 @@
+//! Every command meets bad input with one clear line on stderr, a non-zero exit code, no panic
+//! and no output file (complete or partial) left behind.
+
+use planisphere::fits_io::{write_footprint, write_map, WriteOptions};
+use planisphere::{Footprint, Ordering, Pixelization, SkyMap};
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+struct Fixtures {
+    dir: tempfile::TempDir,
+}
+
+impl Fixtures {
+    fn new() -> Self {
+        let dir = tempfile::tempdir().unwrap();
+        let p = |n: &str| dir.path().join(n);
+        let pix16 = Pixelization::new(16, Ordering::Ring).unwrap();
+        let map = SkyMap::from_fn(pix16, |d| d.theta.cos() + 0.1 * (3.0 * d.phi).sin());
+        write_map(&p("map16.fits"), "SIGNAL", &map, &WriteOptions::default()).unwrap();
+        let nan = SkyMap::new(pix16, vec![f64::NAN; pix16.npix() as usize]).unwrap();
+        write_map(
+            &p("allbad16.fits"),
+            "SIGNAL",
+            &nan,
+            &WriteOptions::default(),
+        )
+        .unwrap();
+        let pix8 = Pixelization::new(8, Ordering::Ring).unwrap();
+        write_footprint(
+            &p("mask8.fits"),
+            "MASK",
+            &Footprint::full_sky(pix8),
+            &WriteOptions::default(),
+        )
+        .unwrap();
+        let empty = Footprint::from_weights(pix16, vec![0.0; pix16.npix() as usize]).unwrap();
+        write_footprint(&p("empty16.fits"), "MASK", &empty, &WriteOptions::default()).unwrap();
+        std::fs::write(p("notfits.fits"), "this is plain text, not FITS\n").unwrap();
+        let bytes = std::fs::read(p("map16.fits")).unwrap();
+        std::fs::write(p("truncated.fits"), &bytes[..bytes.len() / 2]).unwrap();
+        std::fs::write(p("bad_settings.toml"), "scales = 3\nwavelets = 2\n").unwrap();
+        std::fs::write(
+            p("bad_recipe.toml"),
+            "nside = 16\ncount = 2\ncolour = \"red\"\n",
+        )
+        .unwrap();
+        std::fs::write(p("small_recipe.toml"), "nside = 3\ncount = 2\n").unwrap();
+        std::fs::write(p("negative_cl.txt"), "2 1e-5\n3 -1e-6\n").unwrap();
+        std::fs::write(p("empty_list.txt"), "# nothing here\n").unwrap();
+        std::fs::create_dir(p("not_an_ensemble")).unwrap();
+        Fixtures { dir }
+    }
+
+    fn path(&self, name: &str) -> String {
+        self.dir.path().join(name).display().to_string()
+    }
+}
+
+/// Runs the binary; returns (exit code, stderr).
+fn run(args: &[String], cwd: &Path) -> (Option<i32>, String) {
+    let out = Command::new(env!("CARGO_BIN_EXE_planisphere"))
+        .args(args)
+        .current_dir(cwd)
+        .env_remove("SLURM_ARRAY_TASK_ID")
+        .env_remove("SLURM_ARRAY_TASK_COUNT")
+        .output()
+        .unwrap();
+    (
+        out.status.code(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+fn files_in(dir: &Path) -> Vec<PathBuf> {
+    let mut v: Vec<PathBuf> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .collect();
+    v.sort();
+    v
+}
+
+#[test]
+fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
+    let f = Fixtures::new();
+    let out = f.path("out.json");
+    let s = |v: &[&str]| v.iter().map(|x| x.to_string()).collect::<Vec<String>>();
+    let map = f.path("map16.fits");
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        // files and headers
+        (s(&["inspect", &f.path("missing.fits")]), "no such file"),
+        (s(&["inspect", &f.path("notfits.fits")]), "not a FITS file"),
+        (
+            s(&["inspect", &f.path("truncated.fits")]),
+            "truncated FITS file",
+        ),
+        (
+            s(&["inspect", &map, "--column", "5"]),
+            "there is no value column 5",
+        ),
+        (
+            s(&["measure", &map, "-o", &out, "--column", "KAPPA"]),
+            "no column named 'KAPPA'",
+        ),
+        // masks and footprints
+        (
+            s(&["measure", &map, "-o", &out, "--mask", &f.path("mask8.fits")]),
+            "mask NSIDE 8 does not match map NSIDE 16",
+        ),
+        (
+            s(&[
+                "measure",
+                &map,
+                "-o",
+                &out,
+                "--mask",
+                &f.path("empty16.fits"),
+            ]),
+            "the mask is empty",
+        ),
+        (
+            s(&["measure", &f.path("allbad16.fits"), "-o", &out]),
+            "empty",
+        ),
+        (
+            s(&["spectra", &map, "--mask", &f.path("mask8.fits")]),
+            "does not match",
+        ),
+        // options
+        (
+            s(&[
+                "measure",
+                &map,
+                "-o",
+                &out,
+                "-J",
+                "7",
+                "--tile-pixels",
+                "64",
+            ]),
+            "J = 7 is too large for 64-pixel tiles",
+        ),
+        (
+            s(&["measure", &map, "-o", &out, "--tile-pixels", "48"]),
+            "power of two",
+        ),
+        (
+            s(&["measure", &map, "-o", &out, "-L", "0"]),
+            "J and L must be at least 1",
+        ),
+        (
+            s(&["measure", &map, "-o", &out, "--taper-arcmin", "-5"]),
+            "--taper-arcmin must be a non-negative number",
+        ),
+        (
+            s(&[
+                "measure",
+                &map,
+                "-o",
+                &out,
+                "--settings",
+                &f.path("bad_settings.toml"),
+            ]),
+            "unknown field `wavelets`",
+        ),
+        (
+            s(&["measure", &map, "-o", &out, "-J", "many"]),
+            "invalid value 'many'",
+        ),
+        (
+            s(&["sky", "-o", &out, "--nside", "3"]),
+            "--nside must be a power of two",
+        ),
+        (
+            s(&["sky", "-o", &f.path("s.fits"), "--count", "2"]),
+            "must contain {index}",
+        ),
+        (
+            s(&["sky", "-o", &f.path("s.fits"), "--lognormal-shift", "-1"]),
+            "the lognormal shift must be positive",
+        ),
+        (
+            s(&[
+                "sky",
+                "-o",
+                &f.path("s.fits"),
+                "--spectrum",
+                &f.path("negative_cl.txt"),
+            ]),
+            "line 2: C_ell = -1e-6 is negative",
+        ),
+        (
+            s(&["sky", "-o", &f.path("s.fits"), "--shape-noise", "0.26"]),
+            "--shape-noise expects",
+        ),
+        (s(&["spectra", &map, "--lmax", "1000"]), "beyond 4·NSIDE"),
+        (
+            s(&["spectra", &map, "--bin-width", "0"]),
+            "--bin-width must be from 1",
+        ),
+        (s(&["tiles", &map, "--coarse-nside", "3"]), "power of two"),
+        (
+            s(&["demo", "--nside", "3", "-o", &f.path("demo")]),
+            "--nside must be a power of two",
+        ),
+        // manifests and ensembles
+        (
+            s(&[
+                "ensemble",
+                "-o",
+                &f.path("e1"),
+                "--maps",
+                &f.path("nomatch_*.fits"),
+            ]),
+            "no files match",
+        ),
+        (
+            s(&[
+                "ensemble",
+                "-o",
+                &f.path("e2"),
+                "--map-list",
+                &f.path("empty_list.txt"),
+            ]),
+            "the map list names no files",
+        ),
+        (
+            s(&[
+                "ensemble",
+                "-o",
+                &f.path("e3"),
+                "--maps",
+                &map,
+                "--simulate",
+                &f.path("small_recipe.toml"),
+            ]),
+            "cannot be used with",
+        ),
+        (
+            s(&[
+                "ensemble",
+                "-o",
+                &f.path("e4"),
+                "--simulate",
+                &f.path("bad_recipe.toml"),
+            ]),
+            "unknown field `colour`",
+        ),
+        (
+            s(&[
+                "ensemble",
+                "-o",
+                &f.path("e5"),
+                "--simulate",
+                &f.path("small_recipe.toml"),
+            ]),
+            "recipe nside must be a power of two",
+        ),
+        (
+            s(&[
+                "ensemble",
+                "-o",
+                &f.path("e6"),
+                "--maps",
+                &map,
+                "--shard",
+                "5/5",
+            ]),
+            "--shard expects INDEX/COUNT",
+        ),
+        (s(&["merge", &f.path("not_an_ensemble")]), "ensemble.json"),
+        (
+            s(&[
+                "forecast",
+                "--fiducial",
+                &f.path("nowhere"),
+                "--derivative",
+                "a,0.1,x,y",
+                "-o",
+                &out,
+            ]),
+            "ensemble.json",
+        ),
+        (
+            s(&[
+                "forecast",
+                "--fiducial",
+                &f.path("not_an_ensemble"),
+                "--derivative",
+                "a,zero,x,y",
+                "-o",
+                &out,
+            ]),
+            "ensemble.json",
+        ),
+        // unwritable outputs
+        (
+            s(&["measure", &map, "-o", &f.path("no/such/dir/out.json")]),
+            "its directory does not exist",
+        ),
+        (
+            s(&["measure", &map, "-o", &f.path("not_an_ensemble")]),
+            "is a directory, not a file path",
+        ),
+        (
+            s(&[
+                "measure",
+                &map,
+                "-o",
+                &out,
+                "-J",
+                "4",
+                "--tile-pixels",
+                "64",
+            ]),
+            "reach 70.9° from their centre",
+        ),
+        (
+            s(&["sky", "-o", &f.path("no/such/dir/s.fits"), "--nside", "8"]),
+            "does not exist",
+        ),
+    ];
+    assert!(cases.len() >= 25);
+    let before = files_in(f.dir.path());
+    for (args, words) in &cases {
+        let (code, stderr) = run(args, f.dir.path());
+        assert!(matches!(code, Some(c) if c != 0), "{args:?}: exit {code:?}");
+        assert!(!stderr.contains("panicked"), "{args:?}: {stderr}");
+        assert_eq!(
+            stderr.trim_end().lines().count(),
+            1,
+            "{args:?}: not one line: {stderr}"
+        );
+        assert!(
+            stderr.starts_with("planisphere: error: "),
+            "{args:?}: {stderr}"
+        );
+        assert!(
+            stderr.contains(words),
+            "{args:?}: expected '{words}' in: {stderr}"
+        );
+        // no output (and no temporary file) left behind, except the directories an ensemble
+        // creates before it reads its members
+        let after: Vec<PathBuf> = files_in(f.dir.path())
+            .into_iter()
+            .filter(|p| !before.contains(p))
+            .filter(|p| !p.is_dir())
+            .collect();
+        assert!(after.is_empty(), "{args:?} left {after:?}");
+    }
+}
+
+#[test]
+fn bad_derivative_specification_is_reported() {
+    let f = Fixtures::new();
+    // a real (tiny) ensemble so that the fiducial loads and the derivative text is parsed
+    let recipe = f.path("r.toml");
+    std::fs::write(&recipe, "nside = 16\ncount = 3\n").unwrap();
+    let e = f.path("fid");
+    let args: Vec<String> = [
+        "ensemble",
+        "-o",
+        &e,
+        "--simulate",
+        &recipe,
+        "-J",
+        "2",
+        "--tile-pixels",
+        "16",
+        "--border-pixels",
+        "2",
+        "--quiet",
+        "--no-bispectrum",
+    ]
+    .iter()
+    .map(|s| s.to_string())
+    .collect();
+    let (code, stderr) = run(&args, f.dir.path());
+    assert_eq!(code, Some(0), "{stderr}");
+    let args: Vec<String> = [
+        "forecast",
+        "--fiducial",
+        &e,
+        "--derivative",
+        "a,zero,x,y",
+        "-o",
+        &f.path("fc.json"),
+    ]
+    .iter()
+    .map(|s| s.to_string())
+    .collect();
+    let (code, stderr) = run(&args, f.dir.path());
+    assert_eq!(code, Some(2));
+    assert_eq!(
+        stderr.trim_end(),
+        "planisphere: error: --derivative expects NAME,STEP,PLUS_DIR,MINUS_DIR; got 'a,zero,x,y'"
+    );
+    assert!(!Path::new(&f.path("fc.json")).exists());
+}
