@@ -161,8 +161,18 @@ pub fn run(args: &DemoArgs) -> Result<()> {
         "  parameters: A = {} ± {}, κ0 = {} ± {}; {} fiducial skies, {} per shifted value (paired seeds)",
         FIDUCIAL.amplitude, STEPS.amplitude, FIDUCIAL.shift, STEPS.shift, args.fiducial_count, args.derivative_count
     );
+    // tiles of at most ~30° across: 64 pixels at NSIDE ≥ 128, 32 below (with J ≤ 3)
+    let tile_pixels = if args.nside >= 128 { 64 } else { 32 };
+    let scales = if tile_pixels == 32 {
+        args.scales.min(3)
+    } else {
+        args.scales
+    };
+    let border_pixels = if tile_pixels == 32 { 4 } else { 8 };
     let settings = MeasurementSettings {
-        scales: args.scales,
+        scales,
+        tile_pixels,
+        border_pixels,
         ..MeasurementSettings::default()
     };
     let em = EnsembleMeasurer::new(pix, footprint.clone(), settings, 16)?;
