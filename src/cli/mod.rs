@@ -11,6 +11,7 @@ pub mod inputs;
 pub mod inspect;
 pub mod measure;
 pub mod output;
+pub mod plot;
 pub mod sky;
 pub mod spectra;
 pub mod tiles;
@@ -37,6 +38,8 @@ pub enum Command {
     Inspect(inspect::InspectArgs),
     /// Measure scattering coefficients, band powers and tile spectra of a map on its footprint.
     Measure(measure::MeasureArgs),
+    /// Draw pictures of measurements, forecasts and per-tile statistics.
+    Plot(plot::PlotArgs),
 }
 
 /// Runs the command line and returns the process exit code.
@@ -66,5 +69,6 @@ fn run(command: Command) -> Result<()> {
         Command::Tiles(args) => tiles::run(&args),
         Command::Inspect(args) => inspect::run(&args),
         Command::Measure(args) => measure::run(&args),
+        Command::Plot(args) => plot::run(&args),
     }
 }
