@@ -223,6 +223,48 @@ impl Panel {
         ok(p.x, self.x.scale) && ok(p.y, self.y.scale)
     }
 
+    /// The corner of the plotting area where the legend hides the fewest points (upper right
+    /// first on ties), for a box sized by the number of legend entries.
+    pub fn legend_corner(&self) -> SeriesLabelPosition {
+        let (xc, yc) = self.coordinates();
+        let entries = self.series.iter().filter(|s| s.label.is_some()).count();
+        let (bw, bh) = (0.42, (0.06 + 0.075 * entries as f64).min(0.9));
+        let frac = |a: &ChartAxis, v: f64| {
+            (a.transform(v) - a.transform(a.lo)) / (a.transform(a.hi) - a.transform(a.lo))
+        };
+        let points: Vec<(f64, f64)> = self
+            .series
+            .iter()
+            .flat_map(|s| s.points.iter())
+            .filter(|p| self.drawable(p))
+            .map(|p| (frac(&xc, p.x), frac(&yc, p.y)))
+            .collect();
+        let corners = [
+            (SeriesLabelPosition::UpperRight, true, true),
+            (SeriesLabelPosition::UpperLeft, false, true),
+            (SeriesLabelPosition::LowerRight, true, false),
+            (SeriesLabelPosition::LowerLeft, false, false),
+        ];
+        let hidden = |right: bool, upper: bool| {
+            points
+                .iter()
+                .filter(|(x, y)| {
+                    let in_x = if right { *x > 1.0 - bw } else { *x < bw };
+                    let in_y = if upper { *y > 1.0 - bh } else { *y < bh };
+                    in_x && in_y
+                })
+                .count()
+        };
+        let mut best = (usize::MAX, SeriesLabelPosition::UpperRight);
+        for (pos, right, upper) in corners {
+            let n = hidden(right, upper);
+            if n < best.0 {
+                best = (n, pos);
+            }
+        }
+        best.1
+    }
+
     fn has_data(&self) -> bool {
         self.series
             .iter()
@@ -492,7 +534,7 @@ fn draw_panel<DB: DrawingBackend>(
     if any_label {
         chart
             .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
+            .position(panel.legend_corner())
             .background_style(WHITE.mix(0.85))
             .border_style(RGBColor(170, 170, 170))
             .label_font((FONT_FAMILY, label_px))

@@ -393,8 +393,9 @@ fn averages_panel(
                 })
             })
             .collect();
-        let mut dots = Series::markers(None, faint, colour, 2);
-        dots.opacity = 0.35;
+        let dots_label = (!many).then(|| "single orientations l".to_string());
+        let mut dots = Series::markers(dots_label, faint, colour, 3);
+        dots.opacity = 0.4;
         panel.series.push(dots);
         let points = avg
             .iter()
@@ -710,11 +711,25 @@ pub fn ellipses_figure(
     width: u32,
 ) -> Figure {
     let (pa, pb) = (&file.parameters[a], &file.parameters[b]);
-    let mut panel = Panel::new(
-        format!("{pb} against {pa}: solid 68%, faint 95% (Δχ² axis scales 1.52, 2.48; Coe 2009)"),
-        Axis::linear(pa.clone()),
-        Axis::linear(pb.clone()),
+    // Room above the ellipses for the legend.
+    let all: Vec<(f64, f64)> = ellipses
+        .iter()
+        .flat_map(|e| e.outlines.iter().flat_map(|o| o.1.iter().copied()))
+        .collect();
+    let range = |v: Vec<f64>, top: f64| {
+        let lo = v.iter().copied().fold(f64::INFINITY, f64::min);
+        let hi = v.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        let span = hi - lo;
+        (span > 0.0 && span.is_finite()).then(|| (lo - 0.06 * span, hi + top * span))
+    };
+    let mut x_axis = Axis::linear(pa.clone());
+    x_axis.range = range(all.iter().map(|p| p.0).collect(), 0.06);
+    let mut y_axis = Axis::linear(pb.clone());
+    y_axis.range = range(
+        all.iter().map(|p| p.1).collect(),
+        0.1 + 0.09 * (ellipses.len() + 1) as f64,
     );
+    let mut panel = Panel::new(format!("{pb} against {pa}"), x_axis, y_axis);
     for (i, set) in ellipses.iter().enumerate() {
         for (k, (_, outline)) in set.outlines.iter().enumerate() {
             let points = outline
@@ -740,7 +755,9 @@ pub fn ellipses_figure(
     panel.series.push(fid);
     let width = width.clamp(300, 8000);
     Figure {
-        title: "Fisher forecast".to_string(),
+        title:
+            "Fisher forecast — solid: 68%, faint: 95% regions (1σ ellipse × 1.52, × 2.48; Coe 2009)"
+                .to_string(),
         panels: vec![panel],
         columns: 1,
         panel_size: (width, width * 4 / 5),
