@@ -113,6 +113,18 @@ pub fn run(args: &PlotArgs) -> Result<()> {
     }
 }
 
+/// Refuses an output path whose directory does not exist, before any work is done (the write
+/// itself checks again, see [`super::output::write_atomically`]).
+fn check_output(path: &Path) -> Result<ImageFormat> {
+    let format = ImageFormat::from_path(path)?;
+    if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
+        if !dir.is_dir() {
+            return Err(Error::io(path, "its directory does not exist"));
+        }
+    }
+    Ok(format)
+}
+
 // ---------------------------------------------------------------------------------------------
 // Measurement files
 
@@ -533,7 +545,7 @@ pub fn coefficients_figure(
 }
 
 fn run_coefficients(args: &CoefficientsArgs) -> Result<()> {
-    ImageFormat::from_path(&args.output)?;
+    check_output(&args.output)?;
     let files = args
         .inputs
         .iter()
@@ -765,7 +777,7 @@ pub fn ellipses_figure(
 }
 
 fn run_ellipses(args: &EllipsesArgs) -> Result<()> {
-    ImageFormat::from_path(&args.output)?;
+    check_output(&args.output)?;
     let file = ForecastFile::read(&args.input)?;
     let (a, b) = parameter_pair(&file, args.parameters.as_deref())?;
     let (ellipses, skipped) = set_ellipses(&file, a, b)?;
@@ -1001,7 +1013,7 @@ pub fn paint_tiles(measurer: &SphereMeasurer, values: &[(usize, Option<f64>)]) -
 }
 
 fn run_tile_map(args: &TileMapArgs) -> Result<()> {
-    if ImageFormat::from_path(&args.output)? != ImageFormat::Png {
+    if check_output(&args.output)? != ImageFormat::Png {
         return Err(Error::Setting(format!(
             "{}: tile maps are written as PNG only",
             args.output.display()
