@@ -338,13 +338,7 @@ impl Figure {
             self.draw_on(&root)?;
             root.present().map_err(drawing_error)
         })?;
-        let image = image::RgbImage::from_raw(w, h, buffer)
-            .ok_or_else(|| Error::Data("the picture buffer has the wrong size".into()))?;
-        let mut bytes = std::io::Cursor::new(Vec::new());
-        image
-            .write_to(&mut bytes, image::ImageFormat::Png)
-            .map_err(|e| Error::Data(format!("cannot encode the PNG picture: {e}")))?;
-        Ok(bytes.into_inner())
+        encode_png(w, h, buffer)
     }
 
     /// The figure as an SVG document.
@@ -397,6 +391,87 @@ impl Figure {
         }
         Ok(())
     }
+}
+
+/// A horizontal colour bar: the ramp [`crate::plotting::colour_ramp`] from `lo` (left) to `hi`
+/// (right), with a title and five value ticks.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ColourBar {
+    pub title: String,
+    pub lo: f64,
+    pub hi: f64,
+}
+
+impl ColourBar {
+    /// The five tick values and texts, lo … hi in equal steps.
+    pub fn ticks(&self) -> Vec<(f64, String)> {
+        (0..5)
+            .map(|k| {
+                let v = self.lo + (self.hi - self.lo) * k as f64 / 4.0;
+                (v, format!("{v:.4e}"))
+            })
+            .collect()
+    }
+}
+
+/// A PNG picture with `bar` drawn in a band added under it.
+pub fn append_colour_bar(png: &[u8], bar: &ColourBar) -> Result<Vec<u8>> {
+    register_font()?;
+    let image = image::load_from_memory_with_format(png, image::ImageFormat::Png)
+        .map_err(|e| Error::Data(format!("cannot read back the sky picture: {e}")))?
+        .to_rgb8();
+    let (w, h) = image.dimensions();
+    let band = (w / 14).max(60);
+    let mut buffer = vec![255u8; w as usize * (h + band) as usize * 3];
+    buffer[..image.as_raw().len()].copy_from_slice(image.as_raw());
+    let font = (w as f64 / 70.0).max(10.0);
+    guarded(|| {
+        let root = BitMapBackend::with_buffer(&mut buffer, (w, h + band)).into_drawing_area();
+        let (x0, x1) = ((w / 5) as i32, (w * 4 / 5) as i32);
+        let (y0, y1) = (h as i32 + 4, h as i32 + (band as i32) / 3);
+        for x in x0..x1 {
+            let t = (x - x0) as f64 / (x1 - x0 - 1).max(1) as f64;
+            let [r, g, b] = crate::plotting::colour_ramp(t);
+            root.draw(&PathElement::new(
+                vec![(x, y0), (x, y1)],
+                RGBColor(r, g, b).stroke_width(1),
+            ))
+            .map_err(drawing_error)?;
+        }
+        root.draw(&Rectangle::new([(x0, y0), (x1, y1)], BLACK.stroke_width(1)))
+            .map_err(drawing_error)?;
+        let style = (FONT_FAMILY, font).into_font().color(&BLACK);
+        for (k, (_, text)) in bar.ticks().iter().enumerate() {
+            let x = x0 + (x1 - x0) * k as i32 / 4;
+            root.draw(&PathElement::new(
+                vec![(x, y1), (x, y1 + 5)],
+                BLACK.stroke_width(1),
+            ))
+            .map_err(drawing_error)?;
+            let (tw, _) = root
+                .estimate_text_size(text, &style)
+                .map_err(drawing_error)?;
+            root.draw_text(text, &style, (x - tw as i32 / 2, y1 + 8))
+                .map_err(drawing_error)?;
+        }
+        let (tw, _) = root
+            .estimate_text_size(&bar.title, &style)
+            .map_err(drawing_error)?;
+        root.draw_text(&bar.title, &style, (x0 - tw as i32 - 12, y0))
+            .map_err(drawing_error)?;
+        root.present().map_err(drawing_error)
+    })?;
+    encode_png(w, h + band, buffer)
+}
+
+fn encode_png(w: u32, h: u32, buffer: Vec<u8>) -> Result<Vec<u8>> {
+    let image = image::RgbImage::from_raw(w, h, buffer)
+        .ok_or_else(|| Error::Data("the picture buffer has the wrong size".into()))?;
+    let mut bytes = std::io::Cursor::new(Vec::new());
+    image
+        .write_to(&mut bytes, image::ImageFormat::Png)
+        .map_err(|e| Error::Data(format!("cannot encode the PNG picture: {e}")))?;
+    Ok(bytes.into_inner())
 }
 
 /// Runs plotters drawing code, turning a panic inside it into an error.
@@ -891,6 +966,43 @@ mod tests {
         assert_eq!(axis.map(&1.0, (0, 200)), 0);
         assert_eq!(axis.map(&10.0, (0, 200)), 100);
         assert_eq!(axis.map(&100.0, (0, 200)), 200);
+    }
+
+    #[test]
+    fn a_panic_while_drawing_becomes_an_error() {
+        let err = guarded(|| panic!("backend failure"))
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("failed while drawing"), "{err}");
+    }
+
+    #[test]
+    fn colour_bar_adds_a_band_under_the_picture() {
+        let fig = Figure {
+            title: String::new(),
+            panels: vec![Panel::new("p", Axis::linear("x"), Axis::linear("y"))],
+            columns: 1,
+            panel_size: (400, 300),
+        };
+        let png = fig.render_png().unwrap();
+        let bar = ColourBar {
+            title: "S1".into(),
+            lo: 1.0,
+            hi: 3.0,
+        };
+        assert_eq!(bar.ticks()[2], (2.0, "2.0000e0".to_string()));
+        let out = append_colour_bar(&png, &bar).unwrap();
+        let img = image::load_from_memory(&out).unwrap().to_rgb8();
+        assert_eq!(img.dimensions(), (400, 300 + 60));
+        // Column x of the bar (x0 = 80 … x1 = 320, framed in black at both ends) has the
+        // ramp's colour at t = (x − x0)/(x1 − x0 − 1): its first colour on the left, its last
+        // on the right.
+        let y = 300 + 4 + 10;
+        let ramp = crate::plotting::colour_ramp;
+        assert_eq!(img.get_pixel(80, y).0, [0, 0, 0]);
+        assert_eq!(img.get_pixel(81, y).0, ramp(1.0 / 239.0));
+        assert_eq!(img.get_pixel(200, y).0, ramp(120.0 / 239.0));
+        assert_eq!(img.get_pixel(319, y).0, ramp(1.0));
     }
 
     #[test]

@@ -12,9 +12,10 @@
 
 use super::inputs::{load_map, MaskArgs};
 use super::measure::MeasureOptions;
+use super::output::write_bytes;
 use crate::charts::{
-    palette, Annotation, Axis, AxisScale, ChartPoint, Figure, ImageFormat, MarkerShape, Panel,
-    Series,
+    append_colour_bar, palette, Annotation, Axis, AxisScale, ChartPoint, ColourBar, Figure,
+    ImageFormat, MarkerShape, Panel, Series,
 };
 use crate::error::{Error, Result};
 use crate::fits_io::ColumnChoice;
@@ -732,7 +733,7 @@ pub fn ellipses_figure(
         let lo = v.iter().copied().fold(f64::INFINITY, f64::min);
         let hi = v.iter().copied().fold(f64::NEG_INFINITY, f64::max);
         let span = hi - lo;
-        (span > 0.0 && span.is_finite()).then(|| (lo - 0.06 * span, hi + top * span))
+        (span > 0.0 && span.is_finite()).then_some((lo - 0.06 * span, hi + top * span))
     };
     let mut x_axis = Axis::linear(pa.clone());
     x_axis.range = range(all.iter().map(|p| p.0).collect(), 0.06);
@@ -1049,7 +1050,8 @@ fn run_tile_map(args: &TileMapArgs) -> Result<()> {
     )
     .fill_map(&painted, lo, hi);
     picture.note(format!(
-        "colour: dark blue = {lo:.4e} … teal … green … yellow = {hi:.4e} (linear); grey: no tile or no pooling weight"
+        "colour: {} per tile, linear from {lo:.4e} (dark blue) to {hi:.4e} (yellow); light grey: no tile or no pooling weight",
+        statistic.name
     ));
     picture.note(format!(
         "{} of {} tiles with a value; coarse NSIDE {}, {}² pixels of {:.2}′ per tile",
@@ -1059,7 +1061,25 @@ fn run_tile_map(args: &TileMapArgs) -> Result<()> {
         summary.tile_pixels,
         summary.pixel_size_arcmin
     ));
-    picture.write_png(&args.output)?;
+    // The sky picture goes to a temporary file beside the output, then gains a colour bar.
+    let sky_png = args.output.with_file_name(format!(
+        ".{}.{}.sky.png",
+        args.output
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_default(),
+        std::process::id()
+    ));
+    let drawn = picture
+        .write_png(&sky_png)
+        .and_then(|()| std::fs::read(&sky_png).map_err(|e| Error::io(&sky_png, e)));
+    let _ = std::fs::remove_file(&sky_png);
+    let bar = ColourBar {
+        title: statistic.name.clone(),
+        lo,
+        hi,
+    };
+    write_bytes(&args.output, &append_colour_bar(&drawn?, &bar)?)?;
     println!(
         "{} per tile ({} tiles, {lo:.4e} … {hi:.4e}) drawn in {}",
         statistic.name,
