@@ -291,6 +291,21 @@ fn bad_inputs_get_one_line_and_leave_no_file() {
             assert_refused(&args, needle, target);
         }
     }
+    for width in ["10", "100000"] {
+        assert_refused(
+            &[
+                "plot",
+                "ellipses",
+                s(&forecast),
+                "--width",
+                width,
+                "-o",
+                s(&out),
+            ],
+            "--width must be from 400 to 8000",
+            &out,
+        );
+    }
     let svg = d.join("map.svg");
     assert_refused(
         &[

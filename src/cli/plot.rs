@@ -114,9 +114,19 @@ pub fn run(args: &PlotArgs) -> Result<()> {
     }
 }
 
-/// Refuses an output path whose directory does not exist, before any work is done (the write
+/// Narrowest picture width accepted, in pixels.
+pub const MIN_WIDTH: u32 = 400;
+/// Widest picture width accepted, in pixels.
+pub const MAX_WIDTH: u32 = 8000;
+
+/// Refuses a width outside [`MIN_WIDTH`] … [`MAX_WIDTH`] and an output path whose directory does not exist, before any work is done (the write
 /// itself checks again, see [`super::output::write_atomically`]).
-fn check_output(path: &Path) -> Result<ImageFormat> {
+fn check_output(path: &Path, width: u32) -> Result<ImageFormat> {
+    if !(MIN_WIDTH..=MAX_WIDTH).contains(&width) {
+        return Err(Error::Setting(format!(
+            "--width must be from {MIN_WIDTH} to {MAX_WIDTH} pixels, got {width}"
+        )));
+    }
     let format = ImageFormat::from_path(path)?;
     if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
         if !dir.is_dir() {
@@ -546,7 +556,7 @@ pub fn coefficients_figure(
 }
 
 fn run_coefficients(args: &CoefficientsArgs) -> Result<()> {
-    check_output(&args.output)?;
+    check_output(&args.output, args.width)?;
     let files = args
         .inputs
         .iter()
@@ -778,7 +788,7 @@ pub fn ellipses_figure(
 }
 
 fn run_ellipses(args: &EllipsesArgs) -> Result<()> {
-    check_output(&args.output)?;
+    check_output(&args.output, args.width)?;
     let file = ForecastFile::read(&args.input)?;
     let (a, b) = parameter_pair(&file, args.parameters.as_deref())?;
     let (ellipses, skipped) = set_ellipses(&file, a, b)?;
@@ -1014,7 +1024,7 @@ pub fn paint_tiles(measurer: &SphereMeasurer, values: &[(usize, Option<f64>)]) -
 }
 
 fn run_tile_map(args: &TileMapArgs) -> Result<()> {
-    if check_output(&args.output)? != ImageFormat::Png {
+    if check_output(&args.output, args.width)? != ImageFormat::Png {
         return Err(Error::Setting(format!(
             "{}: tile maps are written as PNG only",
             args.output.display()
