@@ -4,6 +4,7 @@
 //! apodization → filters → transform → pooling → statistics → forecast. See DEVELOPERS.md.
 
 pub mod apodization;
+pub mod charts;
 pub mod cli;
 pub mod correlation;
 pub mod ensemble;

@@ -14,6 +14,7 @@ pub mod inputs;
 pub mod inspect;
 pub mod measure;
 pub mod output;
+pub mod plot;
 pub mod sky;
 pub mod spectra;
 pub mod tiles;
@@ -48,6 +49,8 @@ pub enum Command {
     Forecast(forecast::ForecastArgs),
     /// Bias of the flat-sky approximation per coefficient and tile size.
     CompareFlat(compare_flat::CompareFlatArgs),
+    /// Draw pictures of measurements, forecasts and per-tile statistics.
+    Plot(plot::PlotArgs),
 }
 
 /// Runs the command line and returns the process exit code.
@@ -100,5 +103,6 @@ fn run(command: Command) -> Result<()> {
         Command::Merge(args) => ensemble::run_merge(&args),
         Command::Forecast(args) => forecast::run(&args),
         Command::CompareFlat(args) => compare_flat::run(&args),
+        Command::Plot(args) => plot::run(&args),
     }
 }

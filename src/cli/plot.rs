@@ -1,0 +1,1100 @@
+//! `planisphere plot`: pictures of measurements, forecasts and per-tile statistics.
+//!
+//! - `plot coefficients M.json [MORE.json …]`: one panel per order of the measurement files
+//!   written by `measure` — ⟨S1(j,l)⟩_l against the wavelet scale j, the sparsity
+//!   ⟨S2(j1,l1,j2,l2)/S1(j1,l1)⟩_{l1,l2} against j2 (one line per j1), the band powers
+//!   ⟨P(j,l)⟩_l against j, and the tile power spectrum P(k); several files overlaid.
+//! - `plot ellipses FORECAST.json`: 68% and 95% Fisher ellipses of each statistic set.
+//! - `plot tile-map MAP.fits`: a Mollweide map of one statistic measured tile by tile.
+//!
+//! The angular scale of wavelet scale j is its wavelength (8/3)·2^j plane pixels
+//! (see [`SphereMeasurer::wavelet_scale_arcmin`]).
+
+use super::inputs::{load_map, MaskArgs};
+use super::measure::MeasureOptions;
+use super::output::write_bytes;
+use crate::charts::{
+    append_colour_bar, palette, Annotation, Axis, AxisScale, ChartPoint, ColourBar, Figure,
+    ImageFormat, MarkerShape, Panel, Series,
+};
+use crate::error::{Error, Result};
+use crate::fits_io::ColumnChoice;
+use crate::forecast::{ConfidenceEllipse, ConfidenceLevel};
+use crate::measurement::{border_window, MapStatistics, SphereMeasurer};
+use crate::pixelization::{Ordering, Pixelization};
+use crate::plotting::SkyPicture;
+use crate::sampling::TileSampler;
+use crate::skymap::SkyMap;
+use crate::statistics::{CoefficientKind, CoefficientLabel};
+use clap::Subcommand;
+use std::path::{Path, PathBuf};
+
+/// Draw pictures of measurements, forecasts and per-tile statistics.
+#[derive(Debug, clap::Args)]
+pub struct PlotArgs {
+    #[command(subcommand)]
+    pub picture: Picture,
+}
+
+/// The pictures `plot` can draw.
+#[derive(Debug, Subcommand)]
+#[allow(clippy::large_enum_variant)] // parsed once per run
+pub enum Picture {
+    /// Scattering coefficients, sparsity, band powers and tile power spectrum of measurement
+    /// files (written by `measure`), overlaid.
+    Coefficients(CoefficientsArgs),
+    /// 68% and 95% Fisher ellipses of the statistic sets of a forecast file.
+    Ellipses(EllipsesArgs),
+    /// A Mollweide map of one statistic measured tile by tile.
+    TileMap(TileMapArgs),
+}
+
+/// Options of `plot coefficients`.
+#[derive(Debug, clap::Args)]
+pub struct CoefficientsArgs {
+    /// Measurement files (JSON written by `measure`); several are overlaid.
+    #[arg(value_name = "MEASURE.json", required = true)]
+    pub inputs: Vec<PathBuf>,
+    /// Output picture (.png or .svg).
+    #[arg(long, short, value_name = "FILE.png|svg")]
+    pub output: PathBuf,
+    /// Width of the picture in pixels.
+    #[arg(long, default_value_t = 1400)]
+    pub width: u32,
+}
+
+/// Options of `plot ellipses`.
+#[derive(Debug, clap::Args)]
+pub struct EllipsesArgs {
+    /// Forecast file (JSON with parameters, fiducial and sets).
+    #[arg(value_name = "FORECAST.json")]
+    pub input: PathBuf,
+    /// Output picture (.png or .svg).
+    #[arg(long, short, value_name = "FILE.png|svg")]
+    pub output: PathBuf,
+    /// The two parameters on the x and y axes [default: the first two].
+    #[arg(long, value_name = "A,B")]
+    pub parameters: Option<String>,
+    /// Width of the picture in pixels.
+    #[arg(long, default_value_t = 900)]
+    pub width: u32,
+}
+
+/// Options of `plot tile-map`.
+#[derive(Debug, clap::Args)]
+pub struct TileMapArgs {
+    /// The map (HEALPix FITS).
+    #[arg(value_name = "MAP.fits")]
+    pub map: PathBuf,
+    /// Column of the map file: 0-based position or name.
+    #[arg(long, default_value = "0")]
+    pub column: ColumnChoice,
+    #[command(flatten)]
+    pub mask: MaskArgs,
+    #[command(flatten)]
+    pub options: MeasureOptions,
+    /// The statistic: mean, variance, S1_j<j> (averaged over orientations), S1_j<j>_l<l>,
+    /// bandpower_j<j>[_l<l>], S2_j<j1>_j<j2> (averaged over l1, l2) or S2_j<j1>_l<l1>_j<j2>_l<l2>.
+    #[arg(long, value_name = "NAME")]
+    pub statistic: String,
+    /// Output picture (.png).
+    #[arg(long, short, value_name = "FILE.png")]
+    pub output: PathBuf,
+    /// Width of the picture in pixels.
+    #[arg(long, default_value_t = 1200)]
+    pub width: u32,
+}
+
+/// Runs `plot`.
+pub fn run(args: &PlotArgs) -> Result<()> {
+    match &args.picture {
+        Picture::Coefficients(a) => run_coefficients(a),
+        Picture::Ellipses(a) => run_ellipses(a),
+        Picture::TileMap(a) => run_tile_map(a),
+    }
+}
+
+/// Narrowest picture width accepted, in pixels.
+pub const MIN_WIDTH: u32 = 400;
+/// Widest picture width accepted, in pixels.
+pub const MAX_WIDTH: u32 = 8000;
+
+/// Refuses a width outside [`MIN_WIDTH`] … [`MAX_WIDTH`] and an output path whose directory does not exist, before any work is done (the write
+/// itself checks again, see [`super::output::write_atomically`]).
+fn check_output(path: &Path, width: u32) -> Result<ImageFormat> {
+    if !(MIN_WIDTH..=MAX_WIDTH).contains(&width) {
+        return Err(Error::Setting(format!(
+            "--width must be from {MIN_WIDTH} to {MAX_WIDTH} pixels, got {width}"
+        )));
+    }
+    let format = ImageFormat::from_path(path)?;
+    if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
+        if !dir.is_dir() {
+            return Err(Error::io(path, "its directory does not exist"));
+        }
+    }
+    Ok(format)
+}
+
+// ---------------------------------------------------------------------------------------------
+// Measurement files
+
+/// One coefficient record of a measurement file.
+#[derive(Debug, Clone, serde::Deserialize)]
+pub struct CoefficientRecord {
+    pub order: u8,
+    pub j1: Option<usize>,
+    pub l1: Option<usize>,
+    pub j2: Option<usize>,
+    pub l2: Option<usize>,
+    pub value: Option<f64>,
+    pub trusted: bool,
+    #[serde(default)]
+    pub kind: Option<String>,
+}
+
+/// The settings block of a measurement file (the parts the pictures use).
+#[derive(Debug, Clone, serde::Deserialize)]
+pub struct RecordedSettings {
+    pub scales: usize,
+    pub orientations: usize,
+    pub pixel_arcmin: f64,
+}
+
+/// The tile power spectrum block of a measurement file.
+#[derive(Debug, Clone, serde::Deserialize)]
+pub struct RecordedPower {
+    pub k: Vec<f64>,
+    pub power: Vec<f64>,
+}
+
+/// The parts of a `measure` JSON file the pictures use.
+#[derive(Debug, Clone, serde::Deserialize)]
+pub struct MeasurementFile {
+    pub settings: RecordedSettings,
+    pub coefficients: Vec<CoefficientRecord>,
+    #[serde(default)]
+    pub band_powers: Vec<CoefficientRecord>,
+    #[serde(default)]
+    pub tile_power_spectrum: Option<RecordedPower>,
+}
+
+impl MeasurementFile {
+    /// Reads and checks a measurement file.
+    pub fn read(path: &Path) -> Result<Self> {
+        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        Self::parse(&text).map_err(|reason| Error::io(path, reason))
+    }
+
+    /// Parses the text of a measurement file; the error is one line.
+    pub fn parse(text: &str) -> std::result::Result<Self, String> {
+        let file: MeasurementFile = serde_json::from_str(text)
+            .map_err(|e| format!("not a measurement file written by `measure`: {e}"))?;
+        let (jn, ln) = (file.settings.scales, file.settings.orientations);
+        if jn == 0 || ln == 0 || jn > 30 || ln > 1000 {
+            return Err(format!(
+                "settings give J = {jn}, L = {ln}: not a measurement"
+            ));
+        }
+        if !(file.settings.pixel_arcmin.is_finite() && file.settings.pixel_arcmin > 0.0) {
+            return Err("settings.pixel_arcmin must be a positive number".into());
+        }
+        for c in file.coefficients.iter().chain(&file.band_powers) {
+            let j_ok = c.j1.is_none_or(|j| j < jn) && c.j2.is_none_or(|j| j < jn);
+            let l_ok = c.l1.is_none_or(|l| l < ln) && c.l2.is_none_or(|l| l < ln);
+            if !(j_ok && l_ok) {
+                return Err(format!(
+                    "a coefficient has scale or orientation indices beyond J = {jn}, L = {ln}"
+                ));
+            }
+        }
+        Ok(file)
+    }
+
+    /// Angular scale (arcmin) of wavelet scale j: (8/3)·2^j·pixel size.
+    pub fn scale_arcmin(&self, j: usize) -> f64 {
+        8.0 / 3.0 * 2f64.powi(j as i32) * self.settings.pixel_arcmin
+    }
+}
+
+/// An orientation-averaged value at one scale, with the per-orientation values it came from.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ScaleAverage {
+    pub j: usize,
+    /// Mean over the orientations with a value; `None` when none has one.
+    pub mean: Option<f64>,
+    /// True when every orientation has a trusted value.
+    pub trusted: bool,
+    /// (l, value, trusted) of each orientation with a value.
+    pub per_orientation: Vec<(usize, f64, bool)>,
+}
+
+fn scale_averages(
+    records: &[CoefficientRecord],
+    order: u8,
+    scales: usize,
+    orientations: usize,
+) -> Vec<ScaleAverage> {
+    (0..scales)
+        .map(|j| {
+            let mine: Vec<&CoefficientRecord> = records
+                .iter()
+                .filter(|c| c.order == order && c.j1 == Some(j) && c.j2.is_none())
+                .filter(|c| c.kind.as_deref().is_none_or(|k| k == "scattering"))
+                .collect();
+            let per: Vec<(usize, f64, bool)> = mine
+                .iter()
+                .filter_map(|c| Some((c.l1?, c.value.filter(|v| v.is_finite())?, c.trusted)))
+                .collect();
+            let mean =
+                (!per.is_empty()).then(|| per.iter().map(|p| p.1).sum::<f64>() / per.len() as f64);
+            ScaleAverage {
+                j,
+                mean,
+                trusted: per.len() == orientations && per.iter().all(|p| p.2),
+                per_orientation: per,
+            }
+        })
+        .collect()
+}
+
+/// ⟨S1(j,l)⟩_l for j = 0 … J−1.
+pub fn first_order_by_scale(file: &MeasurementFile) -> Vec<ScaleAverage> {
+    let s = &file.settings;
+    scale_averages(&file.coefficients, 1, s.scales, s.orientations)
+}
+
+/// ⟨P(j,l)⟩_l for j = 0 … J−1.
+pub fn band_power_by_scale(file: &MeasurementFile) -> Vec<ScaleAverage> {
+    let s = &file.settings;
+    scale_averages(&file.band_powers, 1, s.scales, s.orientations)
+}
+
+/// One sparsity value ⟨S2(j1,l1,j2,l2) / S1(j1,l1)⟩_{l1,l2}.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Sparsity {
+    pub j1: usize,
+    pub j2: usize,
+    pub value: f64,
+    /// True when every S2 and S1 it is built from is trusted.
+    pub trusted: bool,
+}
+
+/// The sparsity ratios of every j1 < j2 that have values, averaged over the (l1, l2) pairs with
+/// a finite S2 and a finite non-zero S1 (the compact set's definition, see
+/// [`crate::statistics`]).
+pub fn sparsity_ratios(file: &MeasurementFile) -> Vec<Sparsity> {
+    let (jn, ln) = (file.settings.scales, file.settings.orientations);
+    let mut s1 = vec![None; jn * ln];
+    for c in &file.coefficients {
+        if let (1, Some(j), Some(l), None) = (c.order, c.j1, c.l1, c.j2) {
+            if c.kind.as_deref().is_none_or(|k| k == "scattering") {
+                s1[j * ln + l] = c
+                    .value
+                    .filter(|v| v.is_finite() && *v != 0.0)
+                    .map(|v| (v, c.trusted));
+            }
+        }
+    }
+    let mut acc: Vec<(f64, usize, bool)> = vec![(0.0, 0, true); jn * jn];
+    for c in &file.coefficients {
+        if let (2, Some(j1), Some(l1), Some(j2), Some(_)) = (c.order, c.j1, c.l1, c.j2, c.l2) {
+            let slot = &mut acc[j1 * jn + j2];
+            match (c.value.filter(|v| v.is_finite()), s1[j1 * ln + l1]) {
+                (Some(v), Some((d, t))) => {
+                    slot.0 += v / d;
+                    slot.1 += 1;
+                    slot.2 &= c.trusted && t;
+                }
+                _ => slot.2 = false,
+            }
+        }
+    }
+    let mut out = Vec::new();
+    for j1 in 0..jn {
+        for j2 in j1 + 1..jn {
+            let (sum, n, trusted) = acc[j1 * jn + j2];
+            if n > 0 {
+                out.push(Sparsity {
+                    j1,
+                    j2,
+                    value: sum / n as f64,
+                    trusted: trusted && n == ln * ln,
+                });
+            }
+        }
+    }
+    out
+}
+
+/// Legend names of input files: their stems, numbered where two coincide.
+pub fn legend_names(paths: &[PathBuf]) -> Vec<String> {
+    let stems: Vec<String> = paths
+        .iter()
+        .map(|p| {
+            p.file_stem()
+                .map(|s| s.to_string_lossy().into_owned())
+                .unwrap_or_else(|| p.display().to_string())
+        })
+        .collect();
+    stems
+        .iter()
+        .enumerate()
+        .map(|(i, s)| {
+            if stems.iter().filter(|t| *t == s).count() > 1 {
+                format!("{s} ({})", i + 1)
+            } else {
+                s.clone()
+            }
+        })
+        .collect()
+}
+
+/// An axis of wavelet scales 0 … J−1, its ticks reading "j (scale′)" when every file has the
+/// same pixel size.
+fn scale_axis(files: &[MeasurementFile], label: &str) -> Axis {
+    let jn = files.iter().map(|f| f.settings.scales).max().unwrap_or(1);
+    let same_pixels = files.windows(2).all(|w| {
+        (w[0].settings.pixel_arcmin - w[1].settings.pixel_arcmin).abs()
+            <= 1e-9 * w[0].settings.pixel_arcmin
+    });
+    let ticks = (0..jn)
+        .map(|j| {
+            let text = match (same_pixels, files.first()) {
+                (true, Some(f)) => format!("{j} ({})", format_arcmin(f.scale_arcmin(j))),
+                _ => j.to_string(),
+            };
+            (j as f64, text)
+        })
+        .collect();
+    let desc = if same_pixels {
+        format!("{label} (angular scale (8/3)·2^j·Δ in arcmin)")
+    } else {
+        format!("{label} (files differ in pixel size Δ)")
+    };
+    Axis {
+        label: desc,
+        scale: AxisScale::Linear,
+        range: Some((-0.4, jn as f64 - 0.6)),
+        ticks: Some(ticks),
+    }
+}
+
+fn format_arcmin(a: f64) -> String {
+    if a >= 10.0 {
+        format!("{:.0}′", a)
+    } else {
+        format!("{:.1}′", a)
+    }
+}
+
+fn averages_panel(
+    title: &str,
+    y_label: &str,
+    files: &[MeasurementFile],
+    names: &[String],
+    values: impl Fn(&MeasurementFile) -> Vec<ScaleAverage>,
+) -> Panel {
+    let mut panel = Panel::new(
+        title,
+        scale_axis(files, "wavelet scale j"),
+        Axis::log(y_label),
+    );
+    let many = files.len() > 1;
+    for (i, (f, name)) in files.iter().zip(names).enumerate() {
+        let colour = palette(i);
+        let avg = values(f);
+        let ln = f.settings.orientations.max(1) as f64;
+        // Per-orientation values as faint points, spread a little in x by orientation.
+        let faint: Vec<ChartPoint> = avg
+            .iter()
+            .flat_map(|a| {
+                a.per_orientation.iter().map(move |&(l, v, t)| ChartPoint {
+                    x: a.j as f64 + 0.12 * ((l as f64 + 0.5) / ln - 0.5),
+                    y: v,
+                    solid: t,
+                })
+            })
+            .collect();
+        let dots_label = (!many).then(|| "single orientations l".to_string());
+        let mut dots = Series::markers(dots_label, faint, colour, 3);
+        dots.opacity = 0.4;
+        panel.series.push(dots);
+        let points = avg
+            .iter()
+            .map(|a| ChartPoint {
+                x: a.j as f64,
+                y: a.mean.unwrap_or(f64::NAN),
+                solid: a.trusted,
+            })
+            .collect();
+        let label = if many {
+            Some(name.clone())
+        } else {
+            Some("mean over orientations".to_string())
+        };
+        let mut line = Series::line(label, points, colour, 2);
+        line.marker_radius = 5;
+        line.marker = MarkerShape::nth(i);
+        panel.series.push(line);
+    }
+    panel
+}
+
+/// The figure of `plot coefficients` for measurement files with legend names `names`.
+pub fn coefficients_figure(
+    files: &[MeasurementFile],
+    names: &[String],
+    width: u32,
+) -> Result<Figure> {
+    if files.is_empty() || files.len() != names.len() {
+        return Err(Error::Setting(
+            "plot coefficients needs at least one measurement file".into(),
+        ));
+    }
+    let mut panels = vec![averages_panel(
+        "order 1: ⟨S1(j,l)⟩ over orientations l",
+        "S1 (field units)",
+        files,
+        names,
+        first_order_by_scale,
+    )];
+    // Order 2: sparsity against j2, one line per j1.
+    let mut order2 = Panel::new(
+        "order 2: sparsity ⟨S2(j1,l1,j2,l2)/S1(j1,l1)⟩",
+        scale_axis(files, "second wavelet scale j2"),
+        Axis::log("S2 / S1"),
+    );
+    let many = files.len() > 1;
+    let jmax = files.iter().map(|f| f.settings.scales).max().unwrap_or(1);
+    for (i, (f, name)) in files.iter().zip(names).enumerate() {
+        let ratios = sparsity_ratios(f);
+        for j1 in 0..f.settings.scales {
+            let points: Vec<ChartPoint> = ratios
+                .iter()
+                .filter(|r| r.j1 == j1)
+                .map(|r| ChartPoint {
+                    x: r.j2 as f64,
+                    y: r.value,
+                    solid: r.trusted,
+                })
+                .collect();
+            if points.is_empty() {
+                continue;
+            }
+            let (colour, marker, label) = if many {
+                (
+                    palette(i),
+                    MarkerShape::nth(j1),
+                    (j1 == 0).then(|| name.clone()),
+                )
+            } else {
+                (
+                    palette(j1),
+                    MarkerShape::nth(j1),
+                    Some(format!("j1 = {j1} ({})", format_arcmin(f.scale_arcmin(j1)))),
+                )
+            };
+            if many && i == 0 {
+                order2.annotations.push(Annotation {
+                    x: points[0].x - 0.55,
+                    y: points[0].y,
+                    text: format!("j1={j1}"),
+                    colour: [90, 90, 90],
+                });
+            }
+            let mut s = Series::line(label, points, colour, 2);
+            s.marker_radius = 5;
+            s.marker = marker;
+            order2.series.push(s);
+        }
+    }
+    if jmax < 2 {
+        order2.title.push_str(" — needs J ≥ 2");
+    }
+    panels.push(order2);
+    panels.push(averages_panel(
+        "band powers: ⟨P(j,l)⟩ = ⟨|I∗ψ(j,l)|²⟩ over l",
+        "P (field units²)",
+        files,
+        names,
+        band_power_by_scale,
+    ));
+    let mut power = Panel::new(
+        "tile power spectrum",
+        Axis::log("wavenumber k (rad⁻¹)"),
+        Axis::log("P(k) (sr · field units²)"),
+    );
+    for (i, (f, name)) in files.iter().zip(names).enumerate() {
+        if let Some(p) = &f.tile_power_spectrum {
+            let points =
+                p.k.iter()
+                    .zip(&p.power)
+                    .map(|(&k, &v)| ChartPoint::new(k, v))
+                    .collect();
+            let mut s = Series::line(many.then(|| name.clone()), points, palette(i), 2);
+            s.marker_radius = 4;
+            s.marker = MarkerShape::nth(i);
+            power.series.push(s);
+        }
+    }
+    panels.push(power);
+    let width = width.clamp(400, 8000);
+    Ok(Figure {
+        title: format!(
+            "Scattering statistics of {} — hollow markers: untrusted values (too little kept pooling weight)",
+            if many {
+                format!("{} measurements", files.len())
+            } else {
+                names[0].clone()
+            }
+        ),
+        panels,
+        columns: 2,
+        panel_size: (width / 2, width * 3 / 8),
+    })
+}
+
+fn run_coefficients(args: &CoefficientsArgs) -> Result<()> {
+    check_output(&args.output, args.width)?;
+    let files = args
+        .inputs
+        .iter()
+        .map(|p| MeasurementFile::read(p))
+        .collect::<Result<Vec<_>>>()?;
+    let names = legend_names(&args.inputs);
+    let figure = coefficients_figure(&files, &names, args.width)?;
+    figure.write(&args.output)?;
+    println!(
+        "{} measurement file(s) drawn in {}",
+        files.len(),
+        args.output.display()
+    );
+    Ok(())
+}
+
+// ---------------------------------------------------------------------------------------------
+// Forecast files
+
+/// One statistic set of a forecast file.
+#[derive(Debug, Clone, serde::Deserialize)]
+pub struct ForecastSet {
+    pub name: String,
+    #[serde(default)]
+    pub parameter_covariance: Option<Vec<Vec<f64>>>,
+}
+
+/// The parts of a forecast file the ellipse picture uses.
+#[derive(Debug, Clone, serde::Deserialize)]
+pub struct ForecastFile {
+    pub parameters: Vec<String>,
+    pub fiducial: Vec<f64>,
+    pub sets: Vec<ForecastSet>,
+}
+
+impl ForecastFile {
+    /// Reads a forecast file.
+    pub fn read(path: &Path) -> Result<Self> {
+        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        let file: ForecastFile = serde_json::from_str(&text)
+            .map_err(|e| Error::io(path, format!("not a forecast file: {e}")))?;
+        if file.fiducial.len() != file.parameters.len() {
+            return Err(Error::io(
+                path,
+                format!(
+                    "{} parameters but {} fiducial values",
+                    file.parameters.len(),
+                    file.fiducial.len()
+                ),
+            ));
+        }
+        Ok(file)
+    }
+}
+
+/// The two confidence levels drawn, with the Coe 2009 (arXiv:0906.4123) axis scales.
+pub const ELLIPSE_LEVELS: [(ConfidenceLevel, &str); 2] = [
+    (ConfidenceLevel::OneSigma, "68%"),
+    (ConfidenceLevel::TwoSigma, "95%"),
+];
+
+/// Points per ellipse outline.
+pub const ELLIPSE_POINTS: usize = 180;
+
+/// The ellipses of one set: the set name, its 1σ ellipse and the outline per level.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SetEllipses {
+    pub name: String,
+    pub ellipse: ConfidenceEllipse,
+    /// (level, outline points) for each of [`ELLIPSE_LEVELS`].
+    pub outlines: Vec<(ConfidenceLevel, Vec<(f64, f64)>)>,
+}
+
+/// Indices of the parameters named in `choice` ("A,B"), or the first two.
+pub fn parameter_pair(file: &ForecastFile, choice: Option<&str>) -> Result<(usize, usize)> {
+    let find = |name: &str| {
+        file.parameters
+            .iter()
+            .position(|p| p == name.trim())
+            .ok_or_else(|| {
+                Error::Setting(format!(
+                    "parameter '{}' is not in the forecast (it has: {})",
+                    name.trim(),
+                    file.parameters.join(", ")
+                ))
+            })
+    };
+    let (a, b) = match choice {
+        Some(text) => {
+            let parts: Vec<&str> = text.split(',').collect();
+            if parts.len() != 2 {
+                return Err(Error::Setting(format!(
+                    "--parameters takes two names separated by a comma, got '{text}'"
+                )));
+            }
+            (find(parts[0])?, find(parts[1])?)
+        }
+        None if file.parameters.len() >= 2 => (0, 1),
+        None => {
+            return Err(Error::Data(format!(
+                "an ellipse needs two parameters; the forecast has {}",
+                file.parameters.len()
+            )))
+        }
+    };
+    if a == b {
+        return Err(Error::Setting(
+            "--parameters needs two different parameters".to_string(),
+        ));
+    }
+    Ok((a, b))
+}
+
+/// The ellipses of every set with a parameter covariance, for parameters (a, b), with the
+/// reasons sets were skipped.
+pub fn set_ellipses(
+    file: &ForecastFile,
+    a: usize,
+    b: usize,
+) -> Result<(Vec<SetEllipses>, Vec<String>)> {
+    let np = file.parameters.len();
+    let (pa, pb) = (&file.parameters[a], &file.parameters[b]);
+    let centre = (file.fiducial[a], file.fiducial[b]);
+    let mut out = Vec::new();
+    let mut skipped = Vec::new();
+    for set in &file.sets {
+        let Some(c) = &set.parameter_covariance else {
+            skipped.push(format!("set '{}' has no parameter covariance", set.name));
+            continue;
+        };
+        if c.len() != np || c.iter().any(|row| row.len() != np) {
+            skipped.push(format!(
+                "set '{}': its parameter covariance is not {np} × {np}",
+                set.name
+            ));
+            continue;
+        }
+        match ConfidenceEllipse::from_covariance(pa, pb, centre, c[a][a], c[b][b], c[a][b]) {
+            Ok(ellipse) => {
+                let outlines = ELLIPSE_LEVELS
+                    .iter()
+                    .map(|(level, _)| {
+                        Ok((
+                            *level,
+                            ellipse.polyline(level.tabulated_scale(), ELLIPSE_POINTS)?,
+                        ))
+                    })
+                    .collect::<Result<Vec<_>>>()?;
+                out.push(SetEllipses {
+                    name: set.name.clone(),
+                    ellipse,
+                    outlines,
+                });
+            }
+            Err(e) => skipped.push(format!("set '{}': {e}", set.name)),
+        }
+    }
+    if out.is_empty() {
+        let why = if skipped.is_empty() {
+            "the forecast has no sets".to_string()
+        } else {
+            skipped.join("; ")
+        };
+        return Err(Error::Data(format!("no ellipse to draw: {why}")));
+    }
+    Ok((out, skipped))
+}
+
+/// The figure of `plot ellipses`.
+pub fn ellipses_figure(
+    file: &ForecastFile,
+    a: usize,
+    b: usize,
+    ellipses: &[SetEllipses],
+    width: u32,
+) -> Figure {
+    let (pa, pb) = (&file.parameters[a], &file.parameters[b]);
+    // Room above the ellipses for the legend.
+    let all: Vec<(f64, f64)> = ellipses
+        .iter()
+        .flat_map(|e| e.outlines.iter().flat_map(|o| o.1.iter().copied()))
+        .collect();
+    let range = |v: Vec<f64>, top: f64| {
+        let lo = v.iter().copied().fold(f64::INFINITY, f64::min);
+        let hi = v.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        let span = hi - lo;
+        (span > 0.0 && span.is_finite()).then_some((lo - 0.06 * span, hi + top * span))
+    };
+    let mut x_axis = Axis::linear(pa.clone());
+    x_axis.range = range(all.iter().map(|p| p.0).collect(), 0.06);
+    let mut y_axis = Axis::linear(pb.clone());
+    y_axis.range = range(
+        all.iter().map(|p| p.1).collect(),
+        0.1 + 0.09 * (ellipses.len() + 1) as f64,
+    );
+    let mut panel = Panel::new(format!("{pb} against {pa}"), x_axis, y_axis);
+    for (i, set) in ellipses.iter().enumerate() {
+        for (k, (_, outline)) in set.outlines.iter().enumerate() {
+            let points = outline
+                .iter()
+                .map(|&(x, y)| ChartPoint::new(x, y))
+                .collect();
+            let label = (k == 0).then(|| set.name.clone());
+            let mut s = Series::line(label, points, palette(i), if k == 0 { 3 } else { 2 });
+            s.closed = true;
+            if k > 0 {
+                s.opacity = 0.45;
+            }
+            panel.series.push(s);
+        }
+    }
+    let mut fid = Series::markers(
+        Some("fiducial".to_string()),
+        vec![ChartPoint::new(file.fiducial[a], file.fiducial[b])],
+        [0, 0, 0],
+        4,
+    );
+    fid.marker = MarkerShape::Diamond;
+    panel.series.push(fid);
+    let width = width.clamp(300, 8000);
+    Figure {
+        title:
+            "Fisher forecast — solid: 68%, faint: 95% regions (1σ ellipse × 1.52, × 2.48; Coe 2009)"
+                .to_string(),
+        panels: vec![panel],
+        columns: 1,
+        panel_size: (width, width * 4 / 5),
+    }
+}
+
+fn run_ellipses(args: &EllipsesArgs) -> Result<()> {
+    check_output(&args.output, args.width)?;
+    let file = ForecastFile::read(&args.input)?;
+    let (a, b) = parameter_pair(&file, args.parameters.as_deref())?;
+    let (ellipses, skipped) = set_ellipses(&file, a, b)?;
+    for s in &skipped {
+        eprintln!("planisphere: note: {s}: not drawn");
+    }
+    ellipses_figure(&file, a, b, &ellipses, args.width).write(&args.output)?;
+    println!(
+        "{} set(s) drawn in {} ({} against {})",
+        ellipses.len(),
+        args.output.display(),
+        file.parameters[b],
+        file.parameters[a]
+    );
+    Ok(())
+}
+
+// ---------------------------------------------------------------------------------------------
+// Per-tile statistics
+
+/// A statistic measured tile by tile: the labels averaged (each pooled as sums / weights).
+#[derive(Debug, Clone, PartialEq)]
+pub struct TileStatistic {
+    pub name: String,
+    pub kind: CoefficientKind,
+    /// Scales/orientations: `None` means averaged over all.
+    pub j1: Option<usize>,
+    pub l1: Option<usize>,
+    pub j2: Option<usize>,
+    pub l2: Option<usize>,
+}
+
+impl TileStatistic {
+    /// Parses a statistic name (an optional `full.` prefix is accepted).
+    pub fn parse(name: &str) -> Result<Self> {
+        let text = name.trim();
+        let text = text.strip_prefix("full.").unwrap_or(text);
+        let bad = || {
+            Error::Setting(format!(
+                "unknown statistic '{name}': use mean, variance, S1_j<j>[_l<l>], bandpower_j<j>[_l<l>], S2_j<j1>_j<j2> or S2_j<j1>_l<l1>_j<j2>_l<l2>"
+            ))
+        };
+        let mut st = TileStatistic {
+            name: text.to_string(),
+            kind: CoefficientKind::Mean,
+            j1: None,
+            l1: None,
+            j2: None,
+            l2: None,
+        };
+        match text {
+            "mean" => return Ok(st),
+            "variance" => {
+                st.kind = CoefficientKind::Variance;
+                return Ok(st);
+            }
+            _ => {}
+        }
+        let parts: Vec<&str> = text.split('_').collect();
+        let (head, rest) = parts.split_first().ok_or_else(bad)?;
+        let index = |p: &str, prefix: char| -> Option<usize> {
+            p.strip_prefix(prefix).and_then(|d| {
+                (!d.is_empty() && d.chars().all(|c| c.is_ascii_digit())).then(|| d.parse().ok())?
+            })
+        };
+        match (*head, rest) {
+            ("S1" | "bandpower", [j]) => st.j1 = Some(index(j, 'j').ok_or_else(bad)?),
+            ("S1" | "bandpower", [j, l]) => {
+                st.j1 = Some(index(j, 'j').ok_or_else(bad)?);
+                st.l1 = Some(index(l, 'l').ok_or_else(bad)?);
+            }
+            ("S2", [a, b]) => {
+                st.j1 = Some(index(a, 'j').ok_or_else(bad)?);
+                st.j2 = Some(index(b, 'j').ok_or_else(bad)?);
+            }
+            ("S2", [a, la, b, lb]) => {
+                st.j1 = Some(index(a, 'j').ok_or_else(bad)?);
+                st.l1 = Some(index(la, 'l').ok_or_else(bad)?);
+                st.j2 = Some(index(b, 'j').ok_or_else(bad)?);
+                st.l2 = Some(index(lb, 'l').ok_or_else(bad)?);
+            }
+            _ => return Err(bad()),
+        }
+        st.kind = match *head {
+            "S1" => CoefficientKind::FirstOrder,
+            "bandpower" => CoefficientKind::BandPower,
+            _ => CoefficientKind::SecondOrder,
+        };
+        Ok(st)
+    }
+
+    /// Checks the indices against J scales and L orientations.
+    pub fn check(&self, scales: usize, orientations: usize) -> Result<()> {
+        let j_bad = [self.j1, self.j2].iter().flatten().any(|&j| j >= scales);
+        let l_bad = [self.l1, self.l2]
+            .iter()
+            .flatten()
+            .any(|&l| l >= orientations);
+        if j_bad || l_bad {
+            return Err(Error::Setting(format!(
+                "statistic '{}' is outside J = {scales} scales (j = 0…{}) and L = {orientations} orientations (l = 0…{})",
+                self.name,
+                scales.saturating_sub(1),
+                orientations.saturating_sub(1)
+            )));
+        }
+        if let (Some(a), Some(b)) = (self.j1, self.j2) {
+            if a >= b {
+                return Err(Error::Setting(format!(
+                    "statistic '{}': second order needs j1 < j2",
+                    self.name
+                )));
+            }
+        }
+        Ok(())
+    }
+
+    fn matches(&self, label: &CoefficientLabel) -> bool {
+        let same = |want: Option<usize>, got: Option<usize>| want.is_none() || want == got;
+        label.kind == self.kind
+            && same(self.j1, label.j1)
+            && same(self.l1, label.l1)
+            && same(self.j2, label.j2)
+            && same(self.l2, label.l2)
+    }
+
+    /// Positions in the engine's label order of the coefficients averaged.
+    pub fn label_indices(&self, labels: &[CoefficientLabel]) -> Vec<usize> {
+        labels
+            .iter()
+            .enumerate()
+            .filter(|(_, l)| self.matches(l))
+            .map(|(i, _)| i)
+            .collect()
+    }
+}
+
+/// The value of `statistic` in one tile: the mean over its coefficients of sums / weights
+/// (those with positive weight); the variance is Σwf²/Σw − (Σwf/Σw)² as in
+/// [`crate::pooling`]. `None` when no coefficient has weight.
+pub fn tile_value(
+    statistic: &TileStatistic,
+    indices: &[usize],
+    sums: &crate::pooling::TileSums,
+) -> Option<f64> {
+    if statistic.kind == CoefficientKind::Variance {
+        let (w0, w1) = (*sums.weights.first()?, *sums.weights.get(1)?);
+        if w0 <= 0.0 || w1 <= 0.0 {
+            return None;
+        }
+        let mean = sums.sums[0] / w0;
+        return Some(sums.sums[1] / w1 - mean * mean);
+    }
+    let values: Vec<f64> = indices
+        .iter()
+        .filter_map(|&i| {
+            let w = *sums.weights.get(i)?;
+            (w > 0.0).then(|| sums.sums[i] / w)
+        })
+        .filter(|v| v.is_finite())
+        .collect();
+    (!values.is_empty()).then(|| values.iter().sum::<f64>() / values.len() as f64)
+}
+
+/// Which tiles of the plan the measurement kept (positive pooling weight), in plan order:
+/// the same test as [`SphereMeasurer::measure`] (taper = clamp(mask) · border window, pooling
+/// weight = taper · solid angle over the core).
+fn kept_tiles(
+    measurer: &SphereMeasurer,
+    map: &SkyMap,
+    footprint: &crate::footprint::Footprint,
+) -> Result<Vec<usize>> {
+    let s = measurer.settings();
+    let sampler = TileSampler::new(measurer.plan(), map, footprint, s.sampling)?;
+    let window = border_window(s.tile_pixels, s.border_pixels);
+    let kept = sampler.map_tiles(|grids| {
+        let taper: Vec<f64> = grids
+            .mask
+            .iter()
+            .zip(&window)
+            .map(|(m, b)| m.clamp(0.0, 1.0) * b)
+            .collect();
+        let w: f64 = grids.pooling_weights(&taper)?.iter().sum();
+        Ok((w > 0.0).then_some(grids.tile))
+    })?;
+    Ok(kept.into_iter().flatten().collect())
+}
+
+/// Per-tile values of a statistic, with the plan index of each measured tile.
+pub fn tile_values(
+    measurer: &SphereMeasurer,
+    stats: &MapStatistics,
+    tile_indices: &[usize],
+    statistic: &TileStatistic,
+) -> Result<Vec<(usize, Option<f64>)>> {
+    if tile_indices.len() != stats.per_tile.len() {
+        return Err(Error::Mismatch(format!(
+            "{} tiles measured but {} tile positions given",
+            stats.per_tile.len(),
+            tile_indices.len()
+        )));
+    }
+    let indices = statistic.label_indices(measurer.engine().labels());
+    if indices.is_empty() && statistic.kind != CoefficientKind::Variance {
+        return Err(Error::Setting(format!(
+            "statistic '{}' matches no coefficient of this measurement",
+            statistic.name
+        )));
+    }
+    Ok(tile_indices
+        .iter()
+        .zip(&stats.per_tile)
+        .map(|(&t, sums)| (t, tile_value(statistic, &indices, sums)))
+        .collect())
+}
+
+/// A map (NESTED, at the plan's map NSIDE) whose pixels in the core of each tile hold the
+/// tile's value; pixels of tiles without a value are invalid.
+pub fn paint_tiles(measurer: &SphereMeasurer, values: &[(usize, Option<f64>)]) -> Result<SkyMap> {
+    let plan = measurer.plan();
+    let pix = Pixelization::new(plan.map_pixelization().nside(), Ordering::Nested)?;
+    let mut pixels = vec![f64::NAN; pix.npix() as usize];
+    for &(t, v) in values {
+        if let Some(v) = v {
+            for p in plan.core_nested_range(t)? {
+                if let Some(slot) = pixels.get_mut(p as usize) {
+                    *slot = v;
+                }
+            }
+        }
+    }
+    SkyMap::new(pix, pixels)
+}
+
+fn run_tile_map(args: &TileMapArgs) -> Result<()> {
+    if check_output(&args.output, args.width)? != ImageFormat::Png {
+        return Err(Error::Setting(format!(
+            "{}: tile maps are written as PNG only",
+            args.output.display()
+        )));
+    }
+    let statistic = TileStatistic::parse(&args.statistic)?;
+    let settings = args.options.settings()?;
+    statistic.check(settings.scales, settings.orientations)?;
+    let map = load_map(&args.map, &args.column)?;
+    let footprint = args.mask.footprint_for(&map)?;
+    let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
+    let stats = measurer.measure(&map, &footprint)?;
+    let tiles: Vec<usize> = if stats.per_tile.len() == measurer.plan().len() {
+        (0..measurer.plan().len()).collect()
+    } else {
+        kept_tiles(&measurer, &map, &footprint)?
+    };
+    let values = tile_values(&measurer, &stats, &tiles, &statistic)?;
+    let painted = paint_tiles(&measurer, &values)?;
+    let finite: Vec<f64> = values.iter().filter_map(|v| v.1).collect();
+    if finite.is_empty() {
+        return Err(Error::Data(format!(
+            "no tile has a value of '{}': every tile lost its pooling weight",
+            statistic.name
+        )));
+    }
+    let lo = finite.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = finite.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let summary = measurer.summary();
+    let mut picture = SkyPicture::new(
+        args.width,
+        format!("{} per tile — {}", statistic.name, args.map.display()),
+    )
+    .fill_map(&painted, lo, hi);
+    picture.note(format!(
+        "colour: {} per tile, linear from {lo:.4e} (dark blue) to {hi:.4e} (yellow); light grey: no tile or no pooling weight",
+        statistic.name
+    ));
+    picture.note(format!(
+        "{} of {} tiles with a value; coarse NSIDE {}, {}² pixels of {:.2}′ per tile",
+        finite.len(),
+        measurer.plan().len(),
+        summary.coarse_nside,
+        summary.tile_pixels,
+        summary.pixel_size_arcmin
+    ));
+    // The sky picture goes to a temporary file beside the output, then gains a colour bar.
+    let sky_png = args.output.with_file_name(format!(
+        ".{}.{}.sky.png",
+        args.output
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_default(),
+        std::process::id()
+    ));
+    let drawn = picture
+        .write_png(&sky_png)
+        .and_then(|()| std::fs::read(&sky_png).map_err(|e| Error::io(&sky_png, e)));
+    let _ = std::fs::remove_file(&sky_png);
+    let bar = ColourBar {
+        title: statistic.name.clone(),
+        lo,
+        hi,
+    };
+    write_bytes(&args.output, &append_colour_bar(&drawn?, &bar)?)?;
+    println!(
+        "{} per tile ({} tiles, {lo:.4e} … {hi:.4e}) drawn in {}",
+        statistic.name,
+        finite.len(),
+        args.output.display()
+    );
+    Ok(())
+}
