@@ -10,7 +10,9 @@
 //! with σ_i = |t_i| by default (relative distance; [`Normalisation::Relative`]) or σ_i given by
 //! the user ([`Normalisation::Given`], e.g. ensemble standard deviations). The statistics are
 //! the full coefficient set or the compact set of [`crate::statistics`] (user's choice), both
-//! *without the mean*, optionally followed by the binned power spectrum P̂(k_b). All of them are
+//! *without the mean*, optionally followed by the field–envelope correlations
+//! C_j = (1/L) Σ_l ⟨(f − μ) |f∗ψ_{j,l}|⟩ (J numbers, see below) and by the binned power spectrum
+//! P̂(k_b). All of them are
 //! invariant under adding a constant, so the gradient has zero mean and the mean of the field is
 //! that of the start field, which is set to the target's mean.
 //!
@@ -29,10 +31,17 @@
 //!
 //! # Sign of the fluctuations
 //!
-//! Every statistic here is also invariant under the reflection f → 2μ − f (|−z| = |z|), so the
-//! sign of the field's skewness is not constrained. When the target is a map, the synthesised
-//! field is reflected at the end if its third central moment has the opposite sign to the
-//! target's (one bit of information; [`SynthesisSettings::match_sign`]).
+//! The coefficients and the power spectrum are invariant under the reflection f → 2μ − f
+//! (|−z| = |z|), so they cannot tell positive peaks from negative ones, and the sign of the
+//! field's skewness is not constrained; matching them alone leaves a field whose peaks and
+//! troughs are mixed. Two remedies, both optional:
+//!
+//! * the field–envelope correlations C_j change sign with f → −f: positive where the field is
+//!   high where its scale-j envelope is strong (positive peaks), negative for troughs. Because
+//!   they can vanish, their relative normalisation is their Cauchy–Schwarz bound
+//!   σ = √(Var_t · (1/L) Σ_l P_t(j,l)) instead of |t|;
+//! * without them, the synthesised field is reflected at the end if its third central moment has
+//!   the opposite sign to the target's (one bit of information; [`SynthesisSettings::match_sign`]).
 //!
 //! # Power spectrum term
 //!
@@ -93,6 +102,8 @@ pub struct SynthesisSettings {
     pub statistics: StatisticChoice,
     /// σ_i of the distance.
     pub normalisation: Normalisation,
+    /// Include the field–envelope correlations C_j (target maps only).
+    pub field_envelope_correlation: bool,
     /// Include the power spectrum in this many logarithmic bins (empty bins are dropped).
     pub power_spectrum_bins: Option<usize>,
     /// Maximum number of L-BFGS iterations.
@@ -114,6 +125,7 @@ impl Default for SynthesisSettings {
         Self {
             statistics: StatisticChoice::Full,
             normalisation: Normalisation::Relative,
+            field_envelope_correlation: false,
             power_spectrum_bins: None,
             iterations: 200,
             memory: 10,
@@ -128,8 +140,10 @@ impl Default for SynthesisSettings {
 /// What the field must reproduce.
 #[derive(Debug, Clone, PartialEq)]
 pub struct SynthesisTarget {
-    /// Target values of the statistics (chosen set, then power-spectrum bins).
+    /// Target values of the statistics (chosen set, correlations, power-spectrum bins).
     pub values: Vec<f64>,
+    /// σ_i of the distance, one per statistic.
+    pub sigma: Vec<f64>,
     /// Target mean (the start field gets it).
     pub mean: f64,
     /// Target standard deviation (unit of the optimised pixels).
@@ -159,7 +173,8 @@ pub struct SynthesisOutcome {
     pub iterations: u64,
     /// Why the optimiser stopped.
     pub termination: String,
-    /// max_i |s_i − t_i| / |t_i| over the matched statistics.
+    /// max_i |s_i − t_i| / σ_i over the matched statistics (with the relative normalisation:
+    /// the maximum relative deviation, correlations measured against their bound).
     pub max_relative_deviation: f64,
     /// True when the field was reflected to match the target's skewness sign.
     pub reflected: bool,
@@ -179,9 +194,19 @@ impl PowerTerm {
         let bins = WavenumberBins::logarithmic(n, pixel_size, count)?;
         let mut raw = vec![usize::MAX; n * n];
         let mut modes = vec![0usize; bins.len()];
+        // |k| computed exactly as in tile_spectra, so that cells on bin edges (the fundamental
+        // sits on the first edge) fall in the same bin.
+        let dk = 2.0 * std::f64::consts::PI / (n as f64 * pixel_size);
+        let freq = |i: usize| {
+            if i <= n / 2 {
+                i as f64
+            } else {
+                i as f64 - n as f64
+            }
+        };
         for iy in 0..n {
             for ix in 0..n {
-                let k = crate::flat::wavenumber(ix, iy, n, pixel_size);
+                let k = dk * (freq(ix).powi(2) + freq(iy).powi(2)).sqrt();
                 if let Some(b) = bins.bin_of(k) {
                     raw[iy * n + ix] = b;
                     modes[b] += 1;
@@ -542,6 +567,11 @@ impl FlatSynthesis {
                 v
             }
         };
+        if self.settings.field_envelope_correlation {
+            names.extend(
+                (0..self.scale_count()).map(|j| format!("field_envelope_correlation_scale_{j}")),
+            );
+        }
         if let Some(p) = &self.power {
             names.extend((0..p.len()).map(|b| format!("power_bin_{b}")));
         }
@@ -566,19 +596,43 @@ impl FlatSynthesis {
         }
     }
 
-    /// The matched statistics of a field (chosen set, then power bins).
-    pub fn statistics(&self, field: &[f64]) -> Result<Vec<f64>> {
-        let pass = self.transform.forward(field)?;
+    fn scale_count(&self) -> usize {
+        self.transform.bank().scale_count()
+    }
+
+    fn orientation_count(&self) -> usize {
+        self.transform.bank().orientation_count()
+    }
+
+    /// C_j = (1/L) Σ_l C(j,l).
+    fn correlations(&self, pass: &ForwardPass) -> Vec<f64> {
+        let ln = self.orientation_count();
+        pass.field_envelope
+            .chunks(ln)
+            .map(|c| c.iter().sum::<f64>() / ln as f64)
+            .collect()
+    }
+
+    fn statistics_of_pass(&self, pass: &ForwardPass) -> Vec<f64> {
         let mut s = self.select(&pass.coefficients);
-        if let Some(p) = &self.power {
-            s.extend(p.power(self.transform.centred_spectrum(&pass)));
+        if self.settings.field_envelope_correlation {
+            s.extend(self.correlations(pass));
         }
-        Ok(s)
+        if let Some(p) = &self.power {
+            s.extend(p.power(self.transform.centred_spectrum(pass)));
+        }
+        s
+    }
+
+    /// The matched statistics of a field (chosen set, correlations, power bins).
+    pub fn statistics(&self, field: &[f64]) -> Result<Vec<f64>> {
+        Ok(self.statistics_of_pass(&self.transform.forward(field)?))
     }
 
     /// Target from a flat map (row-major n × n).
     pub fn target_from_map(&self, values: &[f64]) -> Result<SynthesisTarget> {
-        let statistics = self.statistics(values)?;
+        let pass = self.transform.forward(values)?;
+        let statistics = self.statistics_of_pass(&pass);
         let (mean, sd, m3) = moments(values);
         if !(sd > 0.0) {
             return Err(Error::Data(
@@ -593,9 +647,10 @@ impl FlatSynthesis {
             .iter()
             .map(|z| z.norm())
             .collect();
-        self.check_target(&statistics)?;
+        let sigma = self.sigma_for(&statistics, &pass.coefficients)?;
         Ok(SynthesisTarget {
             values: statistics,
+            sigma,
             mean,
             standard_deviation: sd,
             spectrum_amplitude: Some(amplitude),
@@ -613,9 +668,9 @@ impl FlatSynthesis {
                 self.transform.labels().len()
             )));
         }
-        if self.power.is_some() {
+        if self.power.is_some() || self.settings.field_envelope_correlation {
             return Err(Error::Setting(
-                "the power-spectrum term needs a target map, not a coefficient file".into(),
+                "the power-spectrum and field-envelope terms need a target map, not a coefficient file".into(),
             ));
         }
         if let Some(i) = coefficients.iter().position(|v| !v.is_finite()) {
@@ -631,9 +686,10 @@ impl FlatSynthesis {
             )));
         }
         let values = self.select(coefficients);
-        self.check_target(&values)?;
+        let sigma = self.sigma_for(&values, coefficients)?;
         Ok(SynthesisTarget {
             values,
+            sigma,
             mean: coefficients[0],
             standard_deviation: variance.sqrt(),
             spectrum_amplitude: None,
@@ -641,24 +697,31 @@ impl FlatSynthesis {
         })
     }
 
-    fn check_target(&self, values: &[f64]) -> Result<()> {
-        if let Normalisation::Relative = self.settings.normalisation {
-            if let Some(i) = values.iter().position(|v| !(v.abs() > 0.0)) {
-                return Err(Error::Data(format!(
-                    "target statistic {} is {}: the relative distance is undefined",
-                    self.statistic_names()[i],
-                    values[i]
-                )));
+    /// σ_i: |t_i|, or the Cauchy–Schwarz bound for the correlations; or the given values.
+    fn sigma_for(&self, values: &[f64], coefficients: &[f64]) -> Result<Vec<f64>> {
+        if let Normalisation::Given(s) = &self.settings.normalisation {
+            return Ok(s.clone());
+        }
+        let mut sigma: Vec<f64> = values.iter().map(|t| t.abs()).collect();
+        if self.settings.field_envelope_correlation {
+            let (jn, ln) = (self.scale_count(), self.orientation_count());
+            let start = self.select(coefficients).len();
+            for j in 0..jn {
+                let p = (0..ln)
+                    .map(|l| coefficients[2 + jn * ln + j * ln + l])
+                    .sum::<f64>()
+                    / ln as f64;
+                sigma[start + j] = (coefficients[1] * p).sqrt();
             }
         }
-        Ok(())
-    }
-
-    fn sigma(&self, target: &SynthesisTarget) -> Vec<f64> {
-        match &self.settings.normalisation {
-            Normalisation::Relative => target.values.iter().map(|t| t.abs()).collect(),
-            Normalisation::Given(s) => s.clone(),
+        if let Some(i) = sigma.iter().position(|v| !(*v > 0.0)) {
+            return Err(Error::Data(format!(
+                "target statistic {} is {}: the relative distance is undefined",
+                self.statistic_names()[i],
+                values[i]
+            )));
         }
+        Ok(sigma)
     }
 
     /// Loss L(f) = Σ ((s_i − t_i)/σ_i)² and its gradient ∂L/∂f.
@@ -674,25 +737,38 @@ impl FlatSynthesis {
                 self.statistic_count()
             )));
         }
-        let sigma = self.sigma(target);
+        let sigma = &target.sigma;
         let pass = self.transform.forward(field)?;
-        let mut s = self.select(&pass.coefficients);
-        let set_len = s.len();
+        let set_len = self.select(&pass.coefficients).len();
+        let corr_len = if self.settings.field_envelope_correlation {
+            self.scale_count()
+        } else {
+            0
+        };
+        let s = self.statistics_of_pass(&pass);
         let spectrum = self.transform.centred_spectrum(&pass);
-        if let Some(p) = &self.power {
-            s.extend(p.power(spectrum));
-        }
         let mut loss = 0.0;
         let mut ds = Vec::with_capacity(s.len());
-        for ((si, ti), sg) in s.iter().zip(&target.values).zip(&sigma) {
+        for ((si, ti), sg) in s.iter().zip(&target.values).zip(sigma) {
             let r = (si - ti) / sg;
             loss += r * r;
             ds.push(2.0 * r / sg);
         }
         let dc = self.select_adjoint(&pass.coefficients, &ds[..set_len]);
-        let mut grad = self.transform.backward(&pass, &dc)?;
+        let correlation_weights: Option<Vec<f64>> = (corr_len > 0).then(|| {
+            let ln = self.orientation_count();
+            ds[set_len..set_len + corr_len]
+                .iter()
+                .flat_map(|d| std::iter::repeat_n(d / ln as f64, ln))
+                .collect()
+        });
+        let mut grad = self.transform.backward_with_correlations(
+            &pass,
+            &dc,
+            correlation_weights.as_deref(),
+        )?;
         if let Some(p) = &self.power {
-            let c = p.adjoint_multiplier(&ds[set_len..]);
+            let c = p.adjoint_multiplier(&ds[set_len + corr_len..]);
             let mut z: Vec<Complex64> = spectrum.iter().zip(&c).map(|(f, c)| f * c).collect();
             self.transform.square_fft().inverse(&mut z);
             for (g, v) in grad.iter_mut().zip(&z) {
@@ -798,7 +874,7 @@ impl FlatSynthesis {
             .map_err(|_| Error::Data("synthesis state was poisoned".into()))?;
         let mut field: Vec<f64> = best_x.iter().map(|x| mu + sd * x).collect();
         let mut reflected = false;
-        if self.settings.match_sign {
+        if self.settings.match_sign && !self.settings.field_envelope_correlation {
             if let Some(sign) = target.third_moment_sign {
                 let (m, _, m3) = moments(&field);
                 if sign != 0.0 && m3.signum() == -sign {
@@ -812,7 +888,8 @@ impl FlatSynthesis {
         let max_relative_deviation = statistics
             .iter()
             .zip(&target.values)
-            .map(|(s, t)| ((s - t) / t).abs())
+            .zip(&target.sigma)
+            .map(|((s, t), sg)| ((s - t) / sg).abs())
             .fold(0.0, f64::max);
         Ok(SynthesisOutcome {
             field,

@@ -122,6 +122,29 @@ fn coefficient_gradients_match_central_differences() {
         let err = (analytic - numeric).abs() / numeric.abs();
         println!("n={n} random combination: rel {err:.1e}");
         worst = worst.max(err);
+        // Field–envelope correlations C(j,l), with and without the coefficients.
+        let cp = t.forward(&shifted(&f, &v, h)).unwrap().field_envelope;
+        let cm = t.forward(&shifted(&f, &v, -h)).unwrap().field_envelope;
+        let cw: Vec<f64> = (0..cp.len())
+            .map(|_| StandardNormal.sample(&mut rng))
+            .collect();
+        let zero = vec![0.0; count];
+        for (coef_w, label) in [
+            (&zero, "correlations"),
+            (&w, "correlations and coefficients"),
+        ] {
+            let g = t
+                .backward_with_correlations(&pass, coef_w, Some(&cw))
+                .unwrap();
+            let analytic = dot(&g, &v);
+            let numeric = (dot(&cw, &cp) - dot(&cw, &cm) + dot(coef_w, &plus)
+                - dot(coef_w, &minus))
+                / (2.0 * h);
+            let err = (analytic - numeric).abs() / numeric.abs();
+            println!("n={n} {label}: rel {err:.1e}");
+            worst = worst.max(err);
+        }
+        worst = worst.max(err);
         assert!(worst <= 1e-6, "worst relative error {worst}");
     }
 }
@@ -136,15 +159,17 @@ fn loss_gradients_match_central_differences() {
         .map(|v| 1.0 + 0.8 * v)
         .collect::<Vec<_>>();
     let v = random_direction(n, 23);
-    for (choice, bins) in [
-        (StatisticChoice::Full, None),
-        (StatisticChoice::Compact, None),
-        (StatisticChoice::Full, Some(6)),
-        (StatisticChoice::Compact, Some(6)),
+    for (choice, bins, corr) in [
+        (StatisticChoice::Full, None, false),
+        (StatisticChoice::Compact, None, false),
+        (StatisticChoice::Full, Some(6), false),
+        (StatisticChoice::Compact, Some(6), true),
+        (StatisticChoice::Full, Some(6), true),
     ] {
         let settings = SynthesisSettings {
             statistics: choice,
             power_spectrum_bins: bins,
+            field_envelope_correlation: corr,
             ..SynthesisSettings::default()
         };
         let s = FlatSynthesis::new(n, 3, 4, 0.01, settings).unwrap();
@@ -156,7 +181,7 @@ fn loss_gradients_match_central_differences() {
         let numeric = (lp - lm) / (2.0 * h);
         let analytic = dot(&g, &v);
         let err = (analytic - numeric).abs() / numeric.abs();
-        println!("{choice:?}, power bins {bins:?}: analytic {analytic:.10e} numeric {numeric:.10e} rel {err:.1e}");
+        println!("{choice:?}, power bins {bins:?}, correlations {corr}: analytic {analytic:.10e} numeric {numeric:.10e} rel {err:.1e}");
         assert!(err <= 1e-6, "{choice:?} {bins:?}: relative error {err}");
     }
 }

@@ -13,7 +13,9 @@
 //!   u = |g₁|, S1(j1,l1) = ⟨u⟩, P(j1,l1) = ⟨u²⟩;
 //! * v = u − ⟨u⟩, g₂ = IDFT(ψ̂_{j2,l2} · DFT(v)), S2(j1,l1,j2,l2) = ⟨|g₂|⟩ for j2 > j1;
 //!
-//! ⟨·⟩ is the plain mean over the N pixels.
+//! ⟨·⟩ is the plain mean over the N pixels. Besides the coefficients, the pass returns the
+//! field–envelope correlations C(j,l) = ⟨(f − μ) u_{j,l}⟩, which change sign with f → −f
+//! while every coefficient above is blind to it (|−z| = |z|).
 //!
 //! # Backward pass (adjoints)
 //!
@@ -29,7 +31,8 @@
 //!   DFT^H = N · IDFT), ∂L/∂h = Re IDFT(conj(ψ̂) · DFT(Z)); the Morlet ψ̂ here is real, so
 //!   conj(ψ̂) = ψ̂ (convolution with the conjugate, reversed filter);
 //! * mean removal h − ⟨h⟩ is an orthogonal projection, its own adjoint;
-//! * variance: ∂/∂f (Σf²/N − μ²) = 2(f − μ)/N; mean: 1/N.
+//! * variance: ∂/∂f (Σf²/N − μ²) = 2(f − μ)/N; mean: 1/N;
+//! * correlation C = ⟨(f − μ) u⟩: ∂C/∂u = (f − μ)/N and, explicitly, ∂C/∂f = (u − ⟨u⟩)/N.
 //!
 //! The contributions of every (j1, l1) are gathered in Fourier space and sent back to pixels by
 //! one inverse DFT. The g₂ are recomputed in the backward pass rather than stored (memory
@@ -108,6 +111,8 @@ impl SquareFft {
 pub struct ForwardPass {
     /// Coefficients in the layout of [`DifferentiableScattering::labels`].
     pub coefficients: Vec<f64>,
+    /// Field–envelope correlations C(j,l) = ⟨(f − μ) u_{j,l}⟩, index j·L + l.
+    pub field_envelope: Vec<f64>,
     centred: Vec<f64>,
     spectrum: Vec<Complex64>,
     /// Per (j1, l1): g₁ and DFT(u − ⟨u⟩).
@@ -236,7 +241,7 @@ impl DifferentiableScattering {
         let spectrum = self.fft.spectrum_of(&centred);
         let items: Vec<(usize, usize)> =
             (0..jn).flat_map(|j| (0..ln).map(move |l| (j, l))).collect();
-        type Item = (f64, f64, Vec<f64>, Vec<Complex64>, Vec<Complex64>);
+        type Item = (f64, f64, f64, Vec<f64>, Vec<Complex64>, Vec<Complex64>);
         let results: Vec<Item> = items
             .par_iter()
             .map(|&(j1, l1)| {
@@ -246,6 +251,7 @@ impl DifferentiableScattering {
                 let u: Vec<f64> = g1.iter().map(|z| z.norm()).collect();
                 let s1 = u.iter().sum::<f64>() / nn;
                 let p = u.iter().map(|v| v * v).sum::<f64>() / nn;
+                let corr = u.iter().zip(&centred).map(|(a, b)| a * b).sum::<f64>() / nn;
                 let v: Vec<f64> = u.iter().map(|x| x - s1).collect();
                 let vhat = self.fft.spectrum_of(&v);
                 let mut s2 = Vec::with_capacity((jn - j1 - 1) * ln);
@@ -258,14 +264,16 @@ impl DifferentiableScattering {
                         s2.push(g2.iter().map(|z| z.norm()).sum::<f64>() / nn);
                     }
                 }
-                (s1, p, s2, g1, vhat)
+                (s1, p, corr, s2, g1, vhat)
             })
             .collect();
         let mut coefficients = vec![0.0; self.labels.len()];
         coefficients[0] = mean;
         coefficients[1] = variance;
         let mut first = Vec::with_capacity(items.len());
-        for ((j1, l1), (s1, p, s2, g1, vhat)) in items.iter().zip(results) {
+        let mut field_envelope = Vec::with_capacity(items.len());
+        for ((j1, l1), (s1, p, corr, s2, g1, vhat)) in items.iter().zip(results) {
+            field_envelope.push(corr);
             coefficients[2 + j1 * ln + l1] = s1;
             coefficients[2 + jn * ln + j1 * ln + l1] = p;
             let mut k = 0;
@@ -279,6 +287,7 @@ impl DifferentiableScattering {
         }
         Ok(ForwardPass {
             coefficients,
+            field_envelope,
             centred,
             spectrum,
             first,
@@ -288,6 +297,26 @@ impl DifferentiableScattering {
     /// Gradient ∂L/∂f of L with ∂L/∂c_i = `weights[i]` (a vector–Jacobian product), from a
     /// forward pass of the same transform.
     pub fn backward(&self, pass: &ForwardPass, weights: &[f64]) -> Result<Vec<f64>> {
+        self.backward_with_correlations(pass, weights, None)
+    }
+
+    /// As [`Self::backward`], with weights ∂L/∂C(j,l) of the field–envelope correlations too
+    /// (index j·L + l).
+    pub fn backward_with_correlations(
+        &self,
+        pass: &ForwardPass,
+        weights: &[f64],
+        correlation_weights: Option<&[f64]>,
+    ) -> Result<Vec<f64>> {
+        if let Some(cw) = correlation_weights {
+            if cw.len() != pass.field_envelope.len() {
+                return Err(Error::Mismatch(format!(
+                    "{} correlation weights given, the transform has {}",
+                    cw.len(),
+                    pass.field_envelope.len()
+                )));
+            }
+        }
         if weights.len() != self.labels.len() {
             return Err(Error::Mismatch(format!(
                 "{} coefficient weights given, the transform has {} coefficients",
@@ -301,10 +330,11 @@ impl DifferentiableScattering {
         let items: Vec<(usize, usize)> =
             (0..jn).flat_map(|j| (0..ln).map(move |l| (j, l))).collect();
         // Per (j1, l1): contribution conj(ψ̂₁)·DFT(Z₁) to the Fourier adjoint of I.
-        let parts: Vec<Vec<Complex64>> = items
+        let parts: Vec<(Vec<Complex64>, Option<Vec<f64>>)> = items
             .par_iter()
             .zip(&pass.first)
             .map(|(&(j1, l1), (g1, vhat))| {
+                let ac = correlation_weights.map_or(0.0, |cw| cw[j1 * ln + l1]);
                 // Adjoint of u from the second order, gathered in Fourier space.
                 let mut v_adj_hat = vec![Complex64::default(); n * n];
                 let mut any_second = false;
@@ -343,6 +373,15 @@ impl DifferentiableScattering {
                         *u = r - m;
                     }
                 }
+                let mut explicit = None;
+                if ac != 0.0 {
+                    for (u, c) in u_adj.iter_mut().zip(&pass.centred) {
+                        *u += ac * c / nn;
+                    }
+                    let u: Vec<f64> = g1.iter().map(|z| z.norm()).collect();
+                    let ubar = u.iter().sum::<f64>() / nn;
+                    explicit = Some(u.iter().map(|v| ac * (v - ubar) / nn).collect());
+                }
                 let a1 = weights[2 + j1 * ln + l1];
                 let ap = weights[2 + jn * ln + j1 * ln + l1];
                 let mut z1: Vec<Complex64> = g1
@@ -361,18 +400,25 @@ impl DifferentiableScattering {
                 self.fft.forward(&mut z1);
                 let psi = self.bank.wavelet(j1, l1);
                 z1.iter_mut().zip(psi).for_each(|(z, p)| *z *= p);
-                z1
+                (z1, explicit)
             })
             .collect();
         // Fixed-order sum: bitwise identical for any thread count.
         let mut total = vec![Complex64::default(); n * n];
-        for part in &parts {
+        for (part, _) in &parts {
             for (t, p) in total.iter_mut().zip(part) {
                 *t += p;
             }
         }
         self.fft.inverse(&mut total);
-        let re: Vec<f64> = total.iter().map(|z| z.re).collect();
+        let mut re: Vec<f64> = total.iter().map(|z| z.re).collect();
+        for (_, explicit) in &parts {
+            if let Some(e) = explicit {
+                for (r, v) in re.iter_mut().zip(e) {
+                    *r += v;
+                }
+            }
+        }
         let m = re.iter().sum::<f64>() / nn;
         let (a_mean, a_var) = (weights[0], weights[1]);
         Ok(re
