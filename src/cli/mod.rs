@@ -12,6 +12,7 @@ pub mod inspect;
 pub mod output;
 pub mod sky;
 pub mod spectra;
+pub mod synthesize;
 pub mod tiles;
 
 /// Wavelet scattering statistics of HEALPix sky maps on masked survey footprints.
@@ -34,6 +35,8 @@ pub enum Command {
     /// Plan the tangent-plane tiles of a map's footprint and report their cost.
     Tiles(tiles::TilesArgs),
     Inspect(inspect::InspectArgs),
+    /// Synthesise a new flat field whose scattering statistics match a target map or file.
+    Synthesize(synthesize::SynthesizeArgs),
 }
 
 /// Runs the command line and returns the process exit code.
@@ -62,5 +65,6 @@ fn run(command: Command) -> Result<()> {
         Command::Spectra(args) => spectra::run(&args),
         Command::Tiles(args) => tiles::run(&args),
         Command::Inspect(args) => inspect::run(&args),
+        Command::Synthesize(args) => synthesize::run(&args),
     }
 }
