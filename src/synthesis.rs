@@ -171,6 +171,8 @@ pub struct SynthesisOutcome {
     pub loss_history: Vec<f64>,
     /// Iterations done.
     pub iterations: u64,
+    /// Loss-and-gradient evaluations made by the optimiser (line-search trials included).
+    pub evaluations: u64,
     /// Why the optimiser stopped.
     pub termination: String,
     /// max_i |s_i − t_i| / σ_i over the matched statistics (with the relative normalisation:
@@ -830,6 +832,7 @@ impl FlatSynthesis {
             target,
             cache: Mutex::new(None),
             best: Mutex::new((initial_loss, x0.clone())),
+            evaluations: std::sync::atomic::AtomicU64::new(0),
         };
         let history = Arc::new(Mutex::new(Vec::new()));
         let bar = if self.settings.progress {
@@ -899,6 +902,9 @@ impl FlatSynthesis {
             final_loss,
             iterations: if done > 0 { done } else { history.len() as u64 },
             loss_history: history,
+            evaluations: problem
+                .evaluations
+                .load(std::sync::atomic::Ordering::Relaxed),
             termination,
             max_relative_deviation,
             reflected,
@@ -1045,6 +1051,7 @@ struct SynthesisProblem<'a> {
     target: &'a SynthesisTarget,
     cache: Mutex<Option<(Vec<f64>, f64, Vec<f64>)>>,
     best: Mutex<(f64, Vec<f64>)>,
+    evaluations: std::sync::atomic::AtomicU64,
 }
 
 impl SynthesisProblem<'_> {
@@ -1059,6 +1066,8 @@ impl SynthesisProblem<'_> {
         let (mu, sd) = (self.target.mean, self.target.standard_deviation);
         let field: Vec<f64> = x.iter().map(|v| mu + sd * v).collect();
         let (loss, grad_f) = self.synthesis.loss_and_gradient(self.target, &field)?;
+        self.evaluations
+            .fetch_add(1, std::sync::atomic::Ordering::Relaxed);
         let grad: Vec<f64> = grad_f.iter().map(|g| g * sd).collect();
         if let Ok(mut cache) = self.cache.lock() {
             *cache = Some((x.to_vec(), loss, grad.clone()));
