@@ -474,7 +474,7 @@ impl FlatSynthesis {
         let compact = match settings.statistics {
             StatisticChoice::Full => None,
             StatisticChoice::Compact => {
-                if orientation_count % 2 != 0 {
+                if !orientation_count.is_multiple_of(2) {
                     return Err(Error::Setting(format!(
                         "the compact set needs an even number of orientations L, got L = {orientation_count}"
                     )));
@@ -636,7 +636,7 @@ impl FlatSynthesis {
         let pass = self.transform.forward(values)?;
         let statistics = self.statistics_of_pass(&pass);
         let (mean, sd, m3) = moments(values);
-        if !(sd > 0.0) {
+        if sd.is_nan() || sd <= 0.0 {
             return Err(Error::Data(
                 "the target map is constant: there is nothing to synthesise".into(),
             ));
@@ -682,7 +682,7 @@ impl FlatSynthesis {
             )));
         }
         let variance = coefficients[1];
-        if !(variance > 0.0) {
+        if variance.is_nan() || variance <= 0.0 {
             return Err(Error::Data(format!(
                 "target variance must be positive, got {variance}"
             )));
@@ -716,7 +716,7 @@ impl FlatSynthesis {
                 sigma[start + j] = (coefficients[1] * p).sqrt();
             }
         }
-        if let Some(i) = sigma.iter().position(|v| !(*v > 0.0)) {
+        if let Some(i) = sigma.iter().position(|v| v.is_nan() || *v <= 0.0) {
             return Err(Error::Data(format!(
                 "target statistic {} is {}: the relative distance is undefined",
                 self.statistic_names()[i],
@@ -1044,12 +1044,15 @@ fn labels_for(scale_count: usize, orientation_count: usize) -> Vec<CoefficientLa
     labels
 }
 
+/// A point x with its loss and gradient.
+type CachedEvaluation = (Vec<f64>, f64, Vec<f64>);
+
 /// The loss as an argmin problem; caches the last (x, L, ∇L) because argmin asks for the cost
 /// and the gradient of the same point separately, and keeps the best point seen.
 struct SynthesisProblem<'a> {
     synthesis: &'a FlatSynthesis,
     target: &'a SynthesisTarget,
-    cache: Mutex<Option<(Vec<f64>, f64, Vec<f64>)>>,
+    cache: Mutex<Option<CachedEvaluation>>,
     best: Mutex<(f64, Vec<f64>)>,
     evaluations: std::sync::atomic::AtomicU64,
 }

@@ -269,3 +269,46 @@ fn coefficient_json_target_equals_map_target() {
     assert!(err.contains("lacks"), "{err}");
     assert!(coefficients_from_json("{\"coefficients\": 3}", 3, 4).is_err());
 }
+
+/// Peaks are strict local maxima over the 8 periodic neighbours: a spike next to a higher one
+/// across the wrap-around edge is not a peak; plateaus are not peaks.
+#[test]
+fn peak_counts_use_periodic_strict_maxima() {
+    let n = 32;
+    let mut f = vec![0.0; n * n];
+    f[10 * n + 10] = 100.0;
+    f[0] = 50.0; // (0, 0)
+    f[31] = 20.0; // (0, 31): neighbour of (0, 0) across the edge
+    let (mean, sd, _, _) = one_point_moments(&f);
+    let heights: Vec<f64> = [100.0, 50.0].iter().map(|v| (v - mean) / sd).collect();
+    assert!(heights[0] > 20.0 && heights[1] > 10.0 && heights[1] < 20.0);
+    assert_eq!(
+        peak_counts(&f, n, &[0.0, 10.0, 20.0, 40.0]),
+        vec![2, 2, 1, 0]
+    );
+}
+
+/// Without the sign-sensitive correlations the set is blind to f → 2μ − f; the result is then
+/// reflected to carry the sign of the target's skewness, which leaves the loss unchanged.
+#[test]
+fn reflection_gives_the_target_skewness_sign_at_equal_loss() {
+    let target = lognormal_target(12)[..32 * 32].to_vec();
+    for seed in [1u64, 2, 3] {
+        let settings = SynthesisSettings {
+            iterations: 40,
+            seed,
+            start: StartField::White,
+            ..SynthesisSettings::default()
+        };
+        let s = FlatSynthesis::new(32, 3, 4, PIXEL, settings).unwrap();
+        let t = s.target_from_map(&target).unwrap();
+        let out = s.synthesise(&t).unwrap();
+        let (_, _, skew, _) = one_point_moments(&out.field);
+        assert!(skew > 0.0, "seed {seed}: skewness {skew}");
+        let (mean, _, _, _) = one_point_moments(&out.field);
+        let mirrored: Vec<f64> = out.field.iter().map(|v| 2.0 * mean - v).collect();
+        let (l1, _) = s.loss_and_gradient(&t, &out.field).unwrap();
+        let (l2, _) = s.loss_and_gradient(&t, &mirrored).unwrap();
+        assert!((l1 - l2).abs() <= 1e-9 * l1.max(1e-300), "{l1} vs {l2}");
+    }
+}
