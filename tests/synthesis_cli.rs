@@ -187,3 +187,42 @@ fn synthesize_rejects_bad_input_with_one_line_error() {
         assert!(!d.join("f.npy").exists(), "{args:?}");
     }
 }
+
+/// A coefficient file (as serialised from a measured coefficient set) as the target: white
+/// start, two-image panel.
+#[test]
+fn synthesize_accepts_a_coefficient_file_target() {
+    use planisphere::flat::{periodic_coefficients, FlatMap};
+    use planisphere::transform::ScatteringEngine;
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    write_target(&d.join("target.npy"));
+    let map: Array2<f64> = ndarray_npy::read_npy(d.join("target.npy")).unwrap();
+    let engine = ScatteringEngine::new(32, 3, 4).unwrap();
+    let flat = FlatMap::new(32, 1e-3, map.iter().copied().collect()).unwrap();
+    let set = periodic_coefficients(&engine, &flat).unwrap();
+    std::fs::write(d.join("coeffs.json"), serde_json::to_string(&set).unwrap()).unwrap();
+    let run = synthesize(
+        d,
+        &[
+            "--target",
+            "coeffs.json",
+            "-o",
+            "field.npy",
+            "--size",
+            "32",
+            "--scales",
+            "3",
+            "--iterations",
+            "40",
+        ],
+    );
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let field: Array2<f64> = ndarray_npy::read_npy(d.join("field.npy")).unwrap();
+    assert_eq!(field.dim(), (32, 32));
+    assert!(d.join("field.png").is_file());
+    let line = run.stdout.lines().find(|l| l.starts_with("loss ")).unwrap();
+    let parts: Vec<&str> = line.split_whitespace().collect();
+    let (a, b): (f64, f64) = (parts[1].parse().unwrap(), parts[3].parse().unwrap());
+    assert!(b < 0.1 * a, "{line}");
+}
