@@ -28,6 +28,7 @@ pub mod skymap;
 pub mod spectra;
 pub mod spectrum;
 pub mod statistics;
+pub mod synthesis;
 pub mod tile_spectra;
 pub mod tiling;
 pub mod transform;

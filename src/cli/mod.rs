@@ -17,6 +17,7 @@ pub mod output;
 pub mod plot;
 pub mod sky;
 pub mod spectra;
+pub mod synthesize;
 pub mod tiles;
 
 /// Wavelet scattering statistics of HEALPix sky maps on masked survey footprints.
@@ -51,6 +52,8 @@ pub enum Command {
     CompareFlat(compare_flat::CompareFlatArgs),
     /// Draw pictures of measurements, forecasts and per-tile statistics.
     Plot(plot::PlotArgs),
+    /// Synthesise a new flat field whose scattering statistics match a target map or file.
+    Synthesize(synthesize::SynthesizeArgs),
 }
 
 /// Runs the command line and returns the process exit code.
@@ -104,5 +107,6 @@ fn run(command: Command) -> Result<()> {
         Command::Forecast(args) => forecast::run(&args),
         Command::CompareFlat(args) => compare_flat::run(&args),
         Command::Plot(args) => plot::run(&args),
+        Command::Synthesize(args) => synthesize::run(&args),
     }
 }
