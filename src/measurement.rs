@@ -17,6 +17,11 @@
 //! see unit taper, about one envelope width σ_{J−1} = 0.8·2^{J−1} pixels; positions too close to a
 //! mask or tile edge at a given scale drop out of the pooling there by the transform's coverage
 //! cut, and a coefficient whose kept weight is too small is flagged untrusted.
+//!
+//! Interpolating the map onto tile pixels smooths it at the scale of the map's pixels; a
+//! coefficient involving a scale whose wavelength is below
+//! [`MeasurementSettings::min_trusted_wavelength`] map spacings is also flagged untrusted
+//! (measured biases against flat sky: `examples/sphere_flat_bias.rs`).
 
 use crate::apodization::c2;
 use crate::error::{Error, Result};

@@ -7,7 +7,9 @@
 //! interpolation ([`ring_interpolation_weights`]) or by nearest pixel. The projection-plane
 //! bilinear weights are only first-order accurate next to the polar base-pixel seams
 //! (meridians 0°, 90°, 180°, 270° at |z| > 2/3); the ring-wise ones are second order up to
-//! |b| = 80° but more anisotropic (see `examples/sampling_transfer.rs`).
+//! |b| = 80° but more anisotropic (see `examples/sampling_transfer.rs`). Ring-wise cubic
+//! interpolation ([`ring_cubic_interpolation_weights`], the default of a measurement) keeps
+//! much more small-scale power (`tests/sphere_ring_cubic.rs`).
 //! Invalid (bad) map pixels count as masked: their mask weight is 0, and the field is averaged
 //! over the valid ones of the four neighbours only.
 
@@ -41,7 +43,7 @@ impl SamplingMethod {
     /// Shortest wavelength, in mean map pixel spacings h, that this sampling carries with a
     /// first-order coefficient S1 within 2% of its flat-sky value in every orientation, as
     /// measured by `examples/sphere_flat_bias.rs` (demo spectrum, NSIDE 256, tiles 7°–29°, plane
-    /// pixels h, h/2 and h/4; the measured biases are tabulated in docs-draft/sphere-validation.md).
+    /// pixels h, h/2 and h/4; the measured biases are tabulated in the contributor guide).
     /// The wavelength of scale j is λ_j = (8/3)·2^j plane pixels. Nearest-pixel sampling has
     /// no such scale: its pixel-sized jumps bias every scale.
     pub fn trusted_wavelength_map_spacings(self) -> f64 {
