@@ -1,5 +1,5 @@
 //! Flat-sky versus sphere bias of the first-order coefficients S1(j,l), by tile size and tile
-//! pixel size. Gaussian skies of the demo spectrum are measured on a 30° cap; flat Gaussian
+//! pixel size. Gaussian skies of the demo spectrum are measured on a cap (default 30°); flat Gaussian
 //! fields with P(k) = C_{k−½} (LoVerde & Afshordi 2008, PRD 78, 123506) at the same plane pixel
 //! size give the flat-sky values (periodic transform, 256-pixel maps). Prints, for every
 //! (tile pixels, Δ/h, j): λ_j/h, the orientation-mean and worst-orientation relative bias
@@ -8,6 +8,7 @@
 //! the measurement flags the scale trusted.
 //!
 //! cargo run --release --example sphere_flat_bias [NSIDE] [SKIES] [bilinear|ring|cubic|nearest] [CAP RADIUS°]
+//! (NSIDE 256, 4 skies, a 45° cap: about 5 minutes on two cores.)
 
 #[path = "../tests/sphere_support/mod.rs"]
 mod support;
