@@ -108,7 +108,7 @@ fn partial_sky_trusted_coefficients_agree_with_full_sky_within_half_sigma() {
 }
 
 #[test]
-#[ignore = "heavier variant (several minutes): NSIDE 128, 32 skies"]
+#[ignore = "heavier variant (about 4.5 minutes): NSIDE 128, 32 skies"]
 fn partial_sky_trusted_coefficients_agree_with_full_sky_within_half_sigma_nside_128() {
     compare(128, 4, 32, 2.5, 2.0);
 }
