@@ -17,6 +17,11 @@
 //! see unit taper, about one envelope width σ_{J−1} = 0.8·2^{J−1} pixels; positions too close to a
 //! mask or tile edge at a given scale drop out of the pooling there by the transform's coverage
 //! cut, and a coefficient whose kept weight is too small is flagged untrusted.
+//!
+//! Interpolating the map onto tile pixels smooths it at the scale of the map's pixels; a
+//! coefficient involving a scale whose wavelength is below
+//! [`MeasurementSettings::min_trusted_wavelength`] map spacings is also flagged untrusted
+//! (measured biases against flat sky: `examples/sphere_flat_bias.rs`).
 
 use crate::apodization::c2;
 use crate::error::{Error, Result};
@@ -58,6 +63,14 @@ pub struct MeasurementSettings {
     pub spectrum_bins: usize,
     /// Measure the tile bispectrum too.
     pub bispectrum: bool,
+    /// Shortest wavelength, in mean map pixel spacings h, at which a coefficient may be
+    /// trusted. Interpolating the map onto tile pixels smooths it (a transfer |G|² < 1 that
+    /// grows toward small scales), so a coefficient involving a scale j whose wavelength
+    /// λ_j = (8/3)·2^j·Δ is below this many h is flagged untrusted (its value is still
+    /// reported); so is the variance (a pixel-scale statistic) whenever scale 0 is. `None`:
+    /// [`SamplingMethod::trusted_wavelength_map_spacings`] of `sampling`, the measured limit
+    /// for S1 within 2% of flat sky.
+    pub min_trusted_wavelength: Option<f64>,
 }
 
 impl Default for MeasurementSettings {
@@ -69,10 +82,11 @@ impl Default for MeasurementSettings {
             coarse_nside: None,
             pixel_arcmin: None,
             border_pixels: 8,
-            sampling: SamplingMethod::Bilinear,
+            sampling: SamplingMethod::RingCubic,
             transform: TransformSettings::default(),
             spectrum_bins: 6,
             bispectrum: true,
+            min_trusted_wavelength: None,
         }
     }
 }
@@ -115,6 +129,13 @@ impl MeasurementSettings {
             if !(a.is_finite() && a > 0.0) {
                 return Err(Error::Setting(format!(
                     "pixel size must be positive, got {a} arcmin"
+                )));
+            }
+        }
+        if let Some(w) = self.min_trusted_wavelength {
+            if w.is_nan() || w < 0.0 {
+                return Err(Error::Setting(format!(
+                    "the shortest trusted wavelength must be at least 0 map spacings, got {w}"
                 )));
             }
         }
@@ -331,7 +352,8 @@ impl SphereMeasurer {
         }
         let sums: Vec<TileSums> = kept.iter().map(|t| t.0.clone()).collect();
         let total = combine_tiles(&sums)?;
-        let coefficients = pooled_coefficients(&self.engine, &total)?;
+        let mut coefficients = pooled_coefficients(&self.engine, &total)?;
+        self.flag_unresolved_scales(&mut coefficients);
         let compact = coefficients.compact()?;
         let powers: Vec<TilePowerSpectrum> = kept.iter().map(|t| t.1.clone()).collect();
         let tile_power = combine_power(&powers)?;
@@ -349,6 +371,36 @@ impl SphereMeasurer {
             tiles: kept.len(),
             per_tile: sums,
         })
+    }
+
+    /// The shortest trusted wavelength in map spacings (the setting, or the sampling's own).
+    pub fn min_trusted_wavelength(&self) -> f64 {
+        self.settings
+            .min_trusted_wavelength
+            .unwrap_or_else(|| self.settings.sampling.trusted_wavelength_map_spacings())
+    }
+
+    /// Does the sampling carry scale j well enough to trust its coefficients:
+    /// λ_j = (8/3)·2^j·Δ ≥ [`Self::min_trusted_wavelength`] × the map's mean spacing?
+    pub fn scale_is_resolved(&self, j: usize) -> bool {
+        let lambda = 8.0 / 3.0 * (1u64 << j.min(40)) as f64 * self.plan.pixel_size();
+        lambda >= self.min_trusted_wavelength() * self.plan.map_pixelization().mean_spacing()
+    }
+
+    /// Flags untrusted every coefficient involving a scale the sampling does not carry (and the
+    /// variance when scale 0 is one of them).
+    fn flag_unresolved_scales(&self, set: &mut CoefficientSet) {
+        for c in set.coefficients.iter_mut() {
+            let resolved = match c.label.kind {
+                CoefficientKind::Mean => true,
+                CoefficientKind::Variance => self.scale_is_resolved(0),
+                _ => [c.label.j1, c.label.j2]
+                    .iter()
+                    .flatten()
+                    .all(|&j| self.scale_is_resolved(j)),
+            };
+            c.trusted &= resolved;
+        }
     }
 
     /// The angular scale (arcmin) of wavelet scale j: its wavelength 2π/ξ_j = (8/3)·2^j pixels.
