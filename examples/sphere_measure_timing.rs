@@ -148,7 +148,9 @@ fn main() -> planisphere::Result<()> {
     };
     let t_profiled = t.elapsed();
     let tiles = profiled.len() as f64;
-    let sum = |f: &dyn Fn(&(Duration, Duration, Duration, usize)) -> Duration| {
+    /// Per tile: sampling time, transform time, time inside FFTs, FFT count.
+    type TileTiming = (Duration, Duration, Duration, usize);
+    let sum = |f: &dyn Fn(&TileTiming) -> Duration| {
         profiled.iter().map(f).sum::<Duration>().as_secs_f64()
     };
     let (sample_s, transform_s, fft_s) = (sum(&|p| p.0), sum(&|p| p.1), sum(&|p| p.2));
