@@ -38,6 +38,9 @@ fn demo_runs_the_whole_job_and_writes_its_forecast() {
     let d = tmp.path().join("d");
     for f in [
         "forecast.json",
+        "ellipses.png",
+        "coefficients.png",
+        "tile_map.png",
         "comparison.csv",
         "example_sky.fits",
         "mock_mask.fits",

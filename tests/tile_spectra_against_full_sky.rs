@@ -47,7 +47,7 @@ fn tile_power_spectrum_matches_full_sky_cl_at_k_minus_half_for_ten_degree_tiles(
         scales: 3,
         tile_pixels: n,
         pixel_arcmin: Some(delta_arcmin),
-        coarse_nside: Some(16),
+        coarse_nside: Some(32),
         border_pixels: 8,
         spectrum_bins: 8,
         bispectrum: false,

@@ -290,7 +290,45 @@ pub fn run(args: &DemoArgs) -> Result<()> {
             ps / sc
         );
     }
-    println!("outputs in {}: forecast.json, comparison.csv, example_sky.fits, mock_mask.fits, example_measurement.json, ensemble tables", dir.display());
+    // pictures: Fisher ellipses of the sets, the example sky's coefficients, a per-tile map
+    use super::plot::{
+        run_coefficients, run_ellipses, run_tile_map, CoefficientsArgs, EllipsesArgs, TileMapArgs,
+    };
+    run_ellipses(&EllipsesArgs {
+        input: dir.join("forecast.json"),
+        output: dir.join("ellipses.png"),
+        parameters: None,
+        width: 900,
+    })?;
+    run_coefficients(&CoefficientsArgs {
+        inputs: vec![dir.join("example_measurement.json")],
+        output: dir.join("coefficients.png"),
+        width: 1400,
+    })?;
+    run_tile_map(&TileMapArgs {
+        map: dir.join("example_sky.fits"),
+        column: crate::fits_io::ColumnChoice::default(),
+        mask: super::inputs::MaskArgs {
+            mask: Some(dir.join("mock_mask.fits")),
+            mask_column: crate::fits_io::ColumnChoice::default(),
+            taper: TaperKind::C2,
+            taper_arcmin,
+        },
+        options: super::measure::MeasureOptions {
+            scales: Some(settings.scales),
+            tile_pixels: Some(settings.tile_pixels),
+            border_pixels: Some(settings.border_pixels),
+            no_bispectrum: true,
+            ..Default::default()
+        },
+        statistic: format!("S1_j{}", settings.scales - 1),
+        output: dir.join("tile_map.png"),
+        width: 1200,
+    })?;
+    println!(
+        "outputs in {}: forecast.json, comparison.csv, ellipses.png, coefficients.png, tile_map.png, example_sky.fits, mock_mask.fits, example_measurement.json, ensemble tables",
+        dir.display()
+    );
     println!("run time {:.1} s", start.elapsed().as_secs_f64());
     Ok(())
 }

@@ -555,7 +555,7 @@ pub fn coefficients_figure(
     })
 }
 
-fn run_coefficients(args: &CoefficientsArgs) -> Result<()> {
+pub fn run_coefficients(args: &CoefficientsArgs) -> Result<()> {
     check_output(&args.output, args.width)?;
     let files = args
         .inputs
@@ -787,7 +787,7 @@ pub fn ellipses_figure(
     }
 }
 
-fn run_ellipses(args: &EllipsesArgs) -> Result<()> {
+pub fn run_ellipses(args: &EllipsesArgs) -> Result<()> {
     check_output(&args.output, args.width)?;
     let file = ForecastFile::read(&args.input)?;
     let (a, b) = parameter_pair(&file, args.parameters.as_deref())?;
@@ -1023,7 +1023,7 @@ pub fn paint_tiles(measurer: &SphereMeasurer, values: &[(usize, Option<f64>)]) -
     SkyMap::new(pix, pixels)
 }
 
-fn run_tile_map(args: &TileMapArgs) -> Result<()> {
+pub fn run_tile_map(args: &TileMapArgs) -> Result<()> {
     if check_output(&args.output, args.width)? != ImageFormat::Png {
         return Err(Error::Setting(format!(
             "{}: tile maps are written as PNG only",
