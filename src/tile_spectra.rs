@@ -382,50 +382,47 @@ impl FourierStatistics {
     }
 }
 
-/// Weighted mean of per-tile power spectra (weights: core weights), in the given order.
-pub fn combine_power(tiles: &[TilePowerSpectrum]) -> Result<TilePowerSpectrum> {
-    let first = tiles
-        .first()
+/// Σ_t w_t v_t / Σ_t w_t over tiles, element by element, in the given order; also Σ w.
+fn weighted_mean<'a>(
+    tiles: impl Iterator<Item = (f64, &'a [f64])> + Clone,
+) -> Result<(Vec<f64>, f64)> {
+    let w: f64 = tiles.clone().map(|(wt, _)| wt).sum();
+    let len = tiles
+        .clone()
+        .next()
+        .map(|(_, v)| v.len())
         .ok_or_else(|| Error::Data("no tiles to combine".into()))?;
-    let w: f64 = tiles.iter().map(|t| t.weight).sum();
     if w <= 0.0 {
         return Err(Error::Data(
             "tiles to combine have zero total weight".into(),
         ));
     }
-    let mut power = vec![0.0; first.power.len()];
-    for t in tiles {
-        for (p, v) in power.iter_mut().zip(&t.power) {
-            *p += t.weight * v / w;
+    let mut mean = vec![0.0; len];
+    for (wt, values) in tiles {
+        for (m, v) in mean.iter_mut().zip(values) {
+            *m += wt * v / w;
         }
     }
+    Ok((mean, w))
+}
+
+/// Weighted mean of per-tile power spectra (weights: core weights), in the given order.
+pub fn combine_power(tiles: &[TilePowerSpectrum]) -> Result<TilePowerSpectrum> {
+    let (power, weight) = weighted_mean(tiles.iter().map(|t| (t.weight, t.power.as_slice())))?;
     Ok(TilePowerSpectrum {
         power,
-        weight: w,
-        ..first.clone()
+        weight,
+        ..tiles[0].clone()
     })
 }
 
 /// Weighted mean of per-tile bispectra (weights: core weights), in the given order.
 pub fn combine_bispectra(tiles: &[TileBispectrum]) -> Result<TileBispectrum> {
-    let first = tiles
-        .first()
-        .ok_or_else(|| Error::Data("no tiles to combine".into()))?;
-    let w: f64 = tiles.iter().map(|t| t.weight).sum();
-    if w <= 0.0 {
-        return Err(Error::Data(
-            "tiles to combine have zero total weight".into(),
-        ));
-    }
-    let mut b = vec![0.0; first.bispectrum.len()];
-    for t in tiles {
-        for (p, v) in b.iter_mut().zip(&t.bispectrum) {
-            *p += t.weight * v / w;
-        }
-    }
+    let (bispectrum, weight) =
+        weighted_mean(tiles.iter().map(|t| (t.weight, t.bispectrum.as_slice())))?;
     Ok(TileBispectrum {
-        bispectrum: b,
-        weight: w,
-        ..first.clone()
+        bispectrum,
+        weight,
+        ..tiles[0].clone()
     })
 }
