@@ -95,6 +95,32 @@ impl CoefficientLabel {
     }
 }
 
+/// The labels of the full set for J scales and L orientations, in the transform's order: mean,
+/// variance, S1(j,l), band powers P(j,l), then S2(j1,l1,j2,l2) nested as j1, l1, j2 > j1, l2.
+pub fn coefficient_labels(scale_count: usize, orientation_count: usize) -> Vec<CoefficientLabel> {
+    let mut labels = vec![
+        CoefficientLabel::order_zero(CoefficientKind::Mean),
+        CoefficientLabel::order_zero(CoefficientKind::Variance),
+    ];
+    for kind in [CoefficientKind::FirstOrder, CoefficientKind::BandPower] {
+        for j in 0..scale_count {
+            for l in 0..orientation_count {
+                labels.push(CoefficientLabel::order_one(kind, j, l));
+            }
+        }
+    }
+    for j1 in 0..scale_count {
+        for l1 in 0..orientation_count {
+            for j2 in (j1 + 1)..scale_count {
+                for l2 in 0..orientation_count {
+                    labels.push(CoefficientLabel::order_two(j1, l1, j2, l2));
+                }
+            }
+        }
+    }
+    labels
+}
+
 /// One pooled coefficient with its label.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct Coefficient {

@@ -963,7 +963,7 @@ pub fn coefficients_from_json(
         .get("coefficients")
         .and_then(|v| v.as_array())
         .ok_or_else(|| Error::Data("coefficient file has no `coefficients` array".into()))?;
-    let transform_labels = labels_for(scale_count, orientation_count);
+    let transform_labels = crate::statistics::coefficient_labels(scale_count, orientation_count);
     let mut values = vec![f64::NAN; transform_labels.len()];
     let index: std::collections::HashMap<String, usize> = transform_labels
         .iter()
@@ -1018,30 +1018,6 @@ pub fn coefficients_from_json(
         )));
     }
     Ok(values)
-}
-
-fn labels_for(scale_count: usize, orientation_count: usize) -> Vec<CoefficientLabel> {
-    let mut labels = vec![
-        CoefficientLabel::order_zero(CoefficientKind::Mean),
-        CoefficientLabel::order_zero(CoefficientKind::Variance),
-    ];
-    for kind in [CoefficientKind::FirstOrder, CoefficientKind::BandPower] {
-        for j in 0..scale_count {
-            for l in 0..orientation_count {
-                labels.push(CoefficientLabel::order_one(kind, j, l));
-            }
-        }
-    }
-    for j1 in 0..scale_count {
-        for l1 in 0..orientation_count {
-            for j2 in (j1 + 1)..scale_count {
-                for l2 in 0..orientation_count {
-                    labels.push(CoefficientLabel::order_two(j1, l1, j2, l2));
-                }
-            }
-        }
-    }
-    labels
 }
 
 /// A point x with its loss and gradient.

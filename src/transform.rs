@@ -71,7 +71,7 @@
 
 use crate::filters::MorletBank;
 use crate::pooling::TileSums;
-use crate::statistics::{CoefficientKind, CoefficientLabel};
+use crate::statistics::CoefficientLabel;
 use crate::{Error, Result};
 use num_complex::Complex64;
 use rayon::prelude::*;
@@ -337,7 +337,7 @@ impl ScatteringEngine {
             kernel.iter_mut().for_each(|k| *k /= dc);
             coverage_kernels.push(kernel);
         }
-        let labels = Self::build_labels(scale_count, orientation_count);
+        let labels = crate::statistics::coefficient_labels(scale_count, orientation_count);
         Ok(Self {
             bank,
             settings,
@@ -373,30 +373,6 @@ impl ScatteringEngine {
                     })
                 })
         })
-    }
-
-    fn build_labels(scale_count: usize, orientation_count: usize) -> Vec<CoefficientLabel> {
-        let mut labels = vec![
-            CoefficientLabel::order_zero(CoefficientKind::Mean),
-            CoefficientLabel::order_zero(CoefficientKind::Variance),
-        ];
-        for kind in [CoefficientKind::FirstOrder, CoefficientKind::BandPower] {
-            for j in 0..scale_count {
-                for l in 0..orientation_count {
-                    labels.push(CoefficientLabel::order_one(kind, j, l));
-                }
-            }
-        }
-        for j1 in 0..scale_count {
-            for l1 in 0..orientation_count {
-                for j2 in (j1 + 1)..scale_count {
-                    for l2 in 0..orientation_count {
-                        labels.push(CoefficientLabel::order_two(j1, l1, j2, l2));
-                    }
-                }
-            }
-        }
-        labels
     }
 
     /// The filter bank.

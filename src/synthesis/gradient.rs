@@ -41,7 +41,7 @@
 //! Derivatives*, SIAM, ch. 3.
 
 use crate::filters::MorletBank;
-use crate::statistics::{CoefficientKind, CoefficientLabel};
+use crate::statistics::CoefficientLabel;
 use crate::{Error, Result};
 use num_complex::Complex64;
 use rayon::prelude::*;
@@ -163,26 +163,7 @@ impl DifferentiableScattering {
     /// Build around an existing bank (e.g. a clone of a [`crate::transform::ScatteringEngine`]'s).
     pub fn from_bank(bank: MorletBank) -> Self {
         let (jn, ln) = (bank.scale_count(), bank.orientation_count());
-        let mut labels = vec![
-            CoefficientLabel::order_zero(CoefficientKind::Mean),
-            CoefficientLabel::order_zero(CoefficientKind::Variance),
-        ];
-        for kind in [CoefficientKind::FirstOrder, CoefficientKind::BandPower] {
-            for j in 0..jn {
-                for l in 0..ln {
-                    labels.push(CoefficientLabel::order_one(kind, j, l));
-                }
-            }
-        }
-        for j1 in 0..jn {
-            for l1 in 0..ln {
-                for j2 in (j1 + 1)..jn {
-                    for l2 in 0..ln {
-                        labels.push(CoefficientLabel::order_two(j1, l1, j2, l2));
-                    }
-                }
-            }
-        }
+        let labels = crate::statistics::coefficient_labels(jn, ln);
         let fft = SquareFft::new(bank.size());
         Self { bank, fft, labels }
     }
