@@ -6,6 +6,15 @@ use planisphere::transform::{ScatteringEngine, TileView};
 use std::time::Instant;
 
 fn main() -> planisphere::Result<()> {
+    for (size, scales) in [(128, 6), (256, 7), (512, 8)] {
+        let t = Instant::now();
+        let e = ScatteringEngine::new(size, scales, 4)?;
+        println!(
+            "engine for n = {size}, J = {scales}, L = 4 built in {:.0} ms (crop levels {:?})",
+            t.elapsed().as_secs_f64() * 1e3,
+            e.crop_levels()
+        );
+    }
     let n = 128;
     let engine = ScatteringEngine::new(n, 6, 4)?;
     let lp = engine.bank().littlewood_paley_range();

@@ -75,7 +75,19 @@ def reference(n, J, L, seed):
                 for l2 in range(L):
                     u2 = np.abs(circular_convolve(u1, psis[j2][l2]))
                     s2[j1][l1][j2][l2] = float(u2.mean())
+    # Littlewood-Paley sum A(k) = sum_{j,l} (|psi_hat(k)|^2 + |psi_hat(-k)|^2)/2, min/max over
+    # the band xi_{J-1} <= |k| <= xi_0 (rad/pixel), from the pixel-space filters' DFT.
+    lp = np.zeros((n, n))
+    for j in range(J):
+        for l in range(L):
+            h = np.fft.fft2(psis[j][l])
+            hm = np.roll(np.flip(h, axis=(0, 1)), 1, axis=(0, 1))  # h(-k)
+            lp += 0.5 * (np.abs(h) ** 2 + np.abs(hm) ** 2)
+    kk = np.sqrt(KX**2 + KY**2)
+    band = (kk >= 3 * np.pi / (4 * 2 ** (J - 1))) & (kk <= 3 * np.pi / 4)
     return {
+        "littlewood_paley_min": float(lp[band].min()),
+        "littlewood_paley_max": float(lp[band].max()),
         "size": n,
         "scales": J,
         "orientations": L,

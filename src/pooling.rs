@@ -13,7 +13,7 @@ use crate::transform::ScatteringEngine;
 use crate::{Error, Result};
 
 /// Weighted sums of one tile (or of several combined tiles), in the engine's label order.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct TileSums {
     /// Σ w over the tile: the footprint weight.
     pub footprint_weight: f64,

@@ -167,17 +167,17 @@ impl CoefficientSet {
         2 + j * self.orientation_count + l
     }
 
-    /// S1(j,l).
+    /// S1(j,l). Panics if j ≥ J or l ≥ L (use [`Self::get`] for a checked look-up).
     pub fn first_order(&self, j: usize, l: usize) -> &Coefficient {
         &self.coefficients[self.index_first(j, l)]
     }
 
-    /// P(j,l).
+    /// P(j,l). Panics if j ≥ J or l ≥ L.
     pub fn band_power(&self, j: usize, l: usize) -> &Coefficient {
         &self.coefficients[self.index_first(j, l) + self.scale_count * self.orientation_count]
     }
 
-    /// S2(j1,l1,j2,l2) for j1 < j2.
+    /// S2(j1,l1,j2,l2) for j1 < j2 < J. Panics outside that range.
     pub fn second_order(&self, j1: usize, l1: usize, j2: usize, l2: usize) -> &Coefficient {
         let (jn, ln) = (self.scale_count, self.orientation_count);
         let mut idx = 2 + 2 * jn * ln;

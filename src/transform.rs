@@ -48,6 +48,11 @@
 //!    computed with N_{j1} floored at 0.01 (and is there multiplied by a small taper anyway).
 //! 5. On a periodic map with a ≡ 1 and w ≡ 1, N ≡ 1, every pixel is trusted and the estimator
 //!    reduces to the plain circular-convolution scattering transform.
+//! 6. **Tile borders.** Convolutions are circular on the n × n tile. The coverage N cannot
+//!    tell a wrapped-around neighbour from a true one, so for a non-periodic tile the taper a
+//!    must reach zero before the tile border (an apodized border margin); the coverage then
+//!    treats the border like any other edge. The low-pass φ_J of the bank is not used by the
+//!    coefficients.
 //!
 //! # Fourier cropping (speed)
 //!
@@ -57,10 +62,15 @@
 //! 2^{d_j}-th pixel are exact as long as ψ̂ vanishes outside the box. d_j is the largest level
 //! for which every ψ̂_{j,l} and every FT[|ψ_{j,l}|²] (the band of |g|²) stay below
 //! `crop_tolerance` (default 1e-6) of their peak outside the box; for σ_j = 0.8·2^j this gives
-//! d_j = j − 2 (j ≥ 2). Pooling on the coarse grid uses the weight low-passed (Fourier-cropped)
-//! to the same box, which makes Σ_x W h = 4^{d} Σ_X W_lp h exact for band-limited h, so the
-//! only error left is the part of the spectrum of |g| outside the box. The measured relative
-//! error against the full-resolution path is in the tests (`scattering_cropping.rs`).
+//! d = j − 2. The modulus |g| is not band-limited, so it is sampled `modulus_oversampling`
+//! (default 1) levels finer than that: d_j = max(0, j − 3), i.e. for n = 128, J = 6 the grids
+//! are 128, 128, 128, 128, 64, 32. Pooling on the coarse grid uses the weight low-passed
+//! (Fourier-cropped) to the same box, which makes Σ_x W h = 4^{d} Σ_X W_lp h exact for
+//! band-limited h, so the only error left is the part of the spectrum of |g| outside the box.
+//! Measured against the full-resolution path (tests/scattering_cropping.rs, 128², J = 6,
+//! L = 4, white and red Gaussian fields, periodic and with holes): largest relative change of
+//! any coefficient 2.3e-4 (order 2; order 0–1 far smaller); without the oversampling level
+//! (d_j = j − 2) it reached 1.2e-3. Against the numpy reference at 64², J = 5: 6.1e-5.
 //!
 //! # Work and memory
 //!

@@ -93,3 +93,11 @@ fn tile_results_are_bitwise_identical_for_one_and_two_threads() {
         )
     );
 }
+
+#[test]
+fn engine_is_shareable_across_threads() {
+    // Compile-time property: one engine is shared by reference across rayon workers.
+    fn shareable<T: Send + Sync>() {}
+    shareable::<ScatteringEngine>();
+    shareable::<planisphere::filters::MorletBank>();
+}

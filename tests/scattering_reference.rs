@@ -119,3 +119,24 @@ fn fourier_cropped_coefficients_match_numpy_reference_within_1e_3() {
         "no reference case exercises Fourier cropping"
     );
 }
+
+#[test]
+fn littlewood_paley_range_matches_numpy_reference() {
+    for name in FILES {
+        let reference = load(name);
+        let n = reference["size"].as_u64().unwrap() as usize;
+        let j_count = reference["scales"].as_u64().unwrap() as usize;
+        let l_count = reference["orientations"].as_u64().unwrap() as usize;
+        let bank = planisphere::filters::MorletBank::new(n, j_count, l_count).unwrap();
+        let range = bank.littlewood_paley_range();
+        let (lo, hi) = (
+            num(&reference["littlewood_paley_min"]),
+            num(&reference["littlewood_paley_max"]),
+        );
+        println!(
+            "{name}: LP min {:.6} (numpy {lo:.6}), max {:.6} (numpy {hi:.6})",
+            range.min, range.max
+        );
+        assert!((range.min - lo).abs() < 1e-10 && (range.max - hi).abs() < 1e-10);
+    }
+}
