@@ -527,6 +527,23 @@ fn ring_info(nside: u64, i: u64) -> (u64, u64, bool) {
     }
 }
 
+/// Index (1-based, HEALPix ring numbering) of the iso-latitude ring just north of colatitude
+/// `theta` (0 when above the first ring), clamped to 4·NSIDE − 1 (Górski et al. 2005, ring
+/// latitudes: z = 4/3 − 2i/(3 NSIDE) in the equatorial belt, 1 − z = 2 sin²(θ/2) = i²/(3 NSIDE²)
+/// in the caps).
+fn ring_above(n: u64, theta: f64) -> u64 {
+    let z = theta.cos();
+    let above = if z.abs() <= 2.0 / 3.0 {
+        (n as f64 * (2.0 - 1.5 * z)) as u64
+    } else if z > 0.0 {
+        (n as f64 * (6.0f64).sqrt() * (theta / 2.0).sin()) as u64
+    } else {
+        let k = (n as f64 * (6.0f64).sqrt() * (theta / 2.0).cos()) as u64;
+        4 * n - k - 1
+    };
+    above.min(4 * n - 1)
+}
+
 /// Ring-wise linear interpolation weights at `dir`, as four (RING pixel, weight) pairs summing
 /// to 1: linear in φ between the two nearest pixel centres on the ring just north of `dir` and
 /// on the ring just south, then linear in θ between the two rings; above the first (below the
@@ -542,18 +559,7 @@ pub fn ring_interpolation_weights(
     let n = nside as u64;
     let theta = dir.theta.clamp(0.0, std::f64::consts::PI);
     let phi = dir.lon();
-    let z = theta.cos();
-    // Ring just north of dir (0 when above the first ring).
-    let above = if z.abs() <= 2.0 / 3.0 {
-        (n as f64 * (2.0 - 1.5 * z)) as u64
-    } else if z > 0.0 {
-        // 1 − z = 2 sin²(θ/2)
-        (n as f64 * (6.0f64).sqrt() * (theta / 2.0).sin()) as u64
-    } else {
-        let k = (n as f64 * (6.0f64).sqrt() * (theta / 2.0).cos()) as u64;
-        4 * n - k - 1
-    };
-    let above = above.min(4 * n - 1);
+    let above = ring_above(n, theta);
     let on_ring = |i: u64| -> ([(u64, f64); 2], f64) {
         let (first, count, shifted) = ring_info(n, i);
         let dphi = 2.0 * std::f64::consts::PI / count as f64;
@@ -630,16 +636,7 @@ pub fn ring_cubic_interpolation_weights(
     let n = nside as u64;
     let theta = dir.theta.clamp(0.0, std::f64::consts::PI);
     let phi = dir.lon();
-    let z = theta.cos();
-    let above = if z.abs() <= 2.0 / 3.0 {
-        (n as f64 * (2.0 - 1.5 * z)) as u64
-    } else if z > 0.0 {
-        (n as f64 * (6.0f64).sqrt() * (theta / 2.0).sin()) as u64
-    } else {
-        let k = (n as f64 * (6.0f64).sqrt() * (theta / 2.0).cos()) as u64;
-        4 * n - k - 1
-    };
-    let above = above.min(4 * n - 1);
+    let above = ring_above(n, theta);
     let mut out = [(0u64, 0.0f64); 16];
     if above < 2 || above + 2 > 4 * n - 1 {
         for (slot, pair) in out.iter_mut().zip(ring_interpolation_weights(nside, dir)) {

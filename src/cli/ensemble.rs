@@ -3,7 +3,6 @@
 
 use super::inputs::MaskArgs;
 use super::measure::MeasureOptions;
-use crate::apodization::apodize;
 use crate::ensemble::{
     file_checksum, members_from_glob, members_from_list, EnsembleDescription, EnsembleJob,
     MemberSource, Shard,
@@ -215,33 +214,11 @@ pub fn ensemble_footprint(
                     pix.nside()
                 )));
             }
-            let fp = fp.to_ordering(pix.ordering())?;
-            taper(mask, fp)
+            mask.taper_footprint(fp.to_ordering(pix.ordering())?)
         }
         (None, Some(map)) => mask.footprint_for(map),
         (None, None) => Ok(Footprint::full_sky(pix)),
     }
-}
-
-fn taper(mask: &MaskArgs, fp: Footprint) -> Result<Footprint> {
-    if fp.observed_pixels() == 0 {
-        return Err(Error::Data(
-            "the mask is empty (no pixel has positive weight)".into(),
-        ));
-    }
-    if mask.taper == crate::apodization::TaperKind::None
-        || mask.taper_arcmin == 0.0
-        || fp.f_sky() == 1.0
-    {
-        return Ok(fp);
-    }
-    if !(mask.taper_arcmin.is_finite() && mask.taper_arcmin > 0.0) {
-        return Err(Error::Setting(format!(
-            "--taper-arcmin must be a non-negative number, got {}",
-            mask.taper_arcmin
-        )));
-    }
-    apodize(&fp, mask.taper, (mask.taper_arcmin / 60.0).to_radians())
 }
 
 /// Measures the ensemble.

@@ -43,12 +43,6 @@ impl MaskArgs {
     /// The footprint to use with `map`: the mask (or the map's valid pixels), matched to the
     /// map and tapered.
     pub fn footprint_for(&self, map: &SkyMap) -> Result<Footprint> {
-        if !(self.taper_arcmin.is_finite() && self.taper_arcmin >= 0.0) {
-            return Err(Error::Setting(format!(
-                "--taper-arcmin must be a non-negative number, got {}",
-                self.taper_arcmin
-            )));
-        }
         let raw = match &self.mask {
             Some(path) => {
                 let (fp, header) = read_footprint(path, &self.mask_column)?;
@@ -59,6 +53,22 @@ impl MaskArgs {
             }
             None => Footprint::of_valid_pixels(map).restricted_to(map)?,
         };
+        self.taper_footprint(raw)
+    }
+
+    /// `raw` with this taper applied (binary masks only; a full sky or `--taper none` as is).
+    pub fn taper_footprint(&self, raw: Footprint) -> Result<Footprint> {
+        if !(self.taper_arcmin.is_finite() && self.taper_arcmin >= 0.0) {
+            return Err(Error::Setting(format!(
+                "--taper-arcmin must be a non-negative number, got {}",
+                self.taper_arcmin
+            )));
+        }
+        if raw.observed_pixels() == 0 {
+            return Err(Error::Data(
+                "the mask is empty (no pixel has positive weight)".into(),
+            ));
+        }
         if self.taper == TaperKind::None || self.taper_arcmin == 0.0 || raw.f_sky() == 1.0 {
             return Ok(raw);
         }
