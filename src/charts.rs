@@ -636,6 +636,16 @@ fn draw_marker<DB: DrawingBackend>(
     };
     let r = radius as i32;
     let elem = EmptyElement::at(at);
+    if !solid && shape != MarkerShape::Circle {
+        // plotters fills triangles, rectangles and polygons whatever the style: draw the
+        // outline as a closed path instead
+        let mut outline = marker_outline(shape, radius);
+        outline.push(outline[0]);
+        return chart
+            .draw_series(std::iter::once(elem + PathElement::new(outline, fill)))
+            .map(|_| ())
+            .map_err(drawing_error);
+    }
     let result = match shape {
         MarkerShape::Circle => chart
             .draw_series(std::iter::once(elem + Circle::new((0, 0), radius, fill)))

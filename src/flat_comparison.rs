@@ -38,7 +38,7 @@ pub struct FlatComparisonSettings {
 }
 
 /// One coefficient at one tile size.
-#[derive(Debug, Clone, serde::Serialize)]
+#[derive(Debug, Clone, serde::Serialize, serde::Deserialize)]
 pub struct FlatComparisonRow {
     pub tile_pixels: usize,
     pub tile_width_deg: f64,

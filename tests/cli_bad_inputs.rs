@@ -200,6 +200,26 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
         ),
         (s(&["tiles", &map, "--coarse-nside", "3"]), "power of two"),
         (
+            s(&[
+                "plot",
+                "flat-bias",
+                &f.path("notfits.fits"),
+                "-o",
+                &f.path("bias.png"),
+            ]),
+            "not a compare-flat table",
+        ),
+        (
+            s(&[
+                "compare-flat",
+                "-o",
+                &f.path("cf.csv"),
+                "--picture",
+                &f.path("cf.gif"),
+            ]),
+            "must end in .png or .svg",
+        ),
+        (
             s(&["demo", "--nside", "3", "-o", &f.path("demo")]),
             "--nside must be a power of two",
         ),

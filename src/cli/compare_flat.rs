@@ -2,6 +2,8 @@
 //! size, for skies of a given spectrum.
 
 use super::output::{check_output_path, write_bytes, write_json};
+use super::plot::flat_bias::flat_bias_figure;
+use crate::charts::ImageFormat;
 use crate::error::{Error, Result};
 use crate::flat_comparison::{compare_flat, rows_csv, FlatComparisonSettings};
 use crate::measurement::MeasurementSettings;
@@ -50,6 +52,9 @@ pub struct CompareFlatArgs {
     /// Also write the table as JSON.
     #[arg(long, value_name = "FILE.json")]
     pub json: Option<PathBuf>,
+    /// Also draw the table (as `plot flat-bias` does) into this picture.
+    #[arg(long, value_name = "FILE.png|svg")]
+    pub picture: Option<PathBuf>,
 }
 
 /// Runs the comparison.
@@ -57,6 +62,10 @@ pub fn run(args: &CompareFlatArgs) -> Result<()> {
     check_output_path(&args.output)?;
     if let Some(p) = &args.json {
         check_output_path(p)?;
+    }
+    if let Some(p) = &args.picture {
+        check_output_path(p)?;
+        ImageFormat::from_path(p)?;
     }
     if args.nside < 8 || !args.nside.is_power_of_two() || args.nside > 2048 {
         return Err(Error::Setting(format!(
@@ -89,6 +98,9 @@ pub fn run(args: &CompareFlatArgs) -> Result<()> {
     if let Some(p) = &args.json {
         write_json(p, &rows)?;
     }
+    if let Some(p) = &args.picture {
+        flat_bias_figure(&rows, 1500)?.write(p)?;
+    }
     println!("flat-sky bias of S1 (sphere − flat), per tile size: relative, and in errors of the difference");
     println!(
         "{:>6} {:>8} {:>12} {:>10} {:>9} {:>8}",
@@ -110,5 +122,8 @@ pub fn run(args: &CompareFlatArgs) -> Result<()> {
         rows.len(),
         args.output.display()
     );
+    if let Some(p) = &args.picture {
+        println!("picture in {}", p.display());
+    }
     Ok(())
 }

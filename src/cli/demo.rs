@@ -161,7 +161,14 @@ pub fn run(args: &DemoArgs) -> Result<()> {
         "  parameters: A = {} ± {}, κ0 = {} ± {}; {} fiducial skies, {} per shifted value (paired seeds)",
         FIDUCIAL.amplitude, STEPS.amplitude, FIDUCIAL.shift, STEPS.shift, args.fiducial_count, args.derivative_count
     );
-    // tiles of at most ~30° across: 64 pixels at NSIDE ≥ 128, 32 below (with J ≤ 3)
+    // Tile pixels of two map spacings: with ring-cubic sampling a scale is trusted from a
+    // wavelength of 8 map spacings (measurement::MeasurementSettings::min_trusted_wavelength),
+    // so at one spacing per pixel the two finest scales would be computed and then flagged;
+    // at two spacings they are not computed, the largest scale doubles and the footprint
+    // needs 4x fewer tiles (coarse NSIDE 4 instead of 8 at NSIDE 128). Below NSIDE 128 the
+    // tiles would grow wider than ~60°, so one spacing per pixel is kept there.
+    let spacings_per_pixel = if args.nside >= 128 { 2.0 } else { 1.0 };
+    let pixel_arcmin = spacings_per_pixel * pix.mean_spacing().to_degrees() * 60.0;
     let tile_pixels = if args.nside >= 128 { 64 } else { 32 };
     let scales = if tile_pixels == 32 {
         args.scales.min(3)
@@ -173,16 +180,18 @@ pub fn run(args: &DemoArgs) -> Result<()> {
         scales,
         tile_pixels,
         border_pixels,
+        pixel_arcmin: Some(pixel_arcmin),
         ..MeasurementSettings::default()
     };
     let em = EnsembleMeasurer::new(pix, footprint.clone(), settings, 16)?;
     let summary = em.measurer.summary();
     println!(
-        "  measurement: J = {}, L = {}, {} tiles of {}² pixels ({:.1}° across, coarse NSIDE {})",
+        "  measurement: J = {}, L = {}, {} tiles of {}² pixels of {:.1}′ ({:.1}° across, coarse NSIDE {})",
         settings.scales,
         settings.orientations,
         summary.tiles,
         summary.tile_pixels,
+        pixel_arcmin,
         summary.tile_width_deg,
         summary.coarse_nside
     );
@@ -294,12 +303,21 @@ pub fn run(args: &DemoArgs) -> Result<()> {
     use super::plot::{
         run_coefficients, run_ellipses, run_tile_map, CoefficientsArgs, EllipsesArgs, TileMapArgs,
     };
-    run_ellipses(&EllipsesArgs {
-        input: dir.join("forecast.json"),
-        output: dir.join("ellipses.png"),
-        parameters: None,
-        width: 900,
-    })?;
+    let any_forecast = result
+        .comparison
+        .rows
+        .iter()
+        .any(|r| r.marginalised_errors.is_some());
+    if any_forecast {
+        run_ellipses(&EllipsesArgs {
+            input: dir.join("forecast.json"),
+            output: dir.join("ellipses.png"),
+            parameters: None,
+            width: 900,
+        })?;
+    } else {
+        println!("ellipses.png not drawn: no statistic set has enough simulations for a forecast");
+    }
     run_coefficients(&CoefficientsArgs {
         inputs: vec![dir.join("example_measurement.json")],
         output: dir.join("coefficients.png"),
@@ -318,6 +336,7 @@ pub fn run(args: &DemoArgs) -> Result<()> {
             scales: Some(settings.scales),
             tile_pixels: Some(settings.tile_pixels),
             border_pixels: Some(settings.border_pixels),
+            pixel_arcmin: Some(pixel_arcmin),
             no_bispectrum: true,
             ..Default::default()
         },

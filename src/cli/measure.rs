@@ -16,6 +16,8 @@ use std::path::{Path, PathBuf};
 )]
 #[serde(rename_all = "kebab-case")]
 pub enum SamplingChoice {
+    /// Four-point cubic (Lagrange) along four iso-latitude rings, then across them (the default).
+    RingCubic,
     /// Bilinear over the four surrounding HEALPix pixels.
     Bilinear,
     /// Linear along and between iso-latitude rings.
@@ -27,6 +29,7 @@ pub enum SamplingChoice {
 impl From<SamplingChoice> for SamplingMethod {
     fn from(c: SamplingChoice) -> Self {
         match c {
+            SamplingChoice::RingCubic => SamplingMethod::RingCubic,
             SamplingChoice::Bilinear => SamplingMethod::Bilinear,
             SamplingChoice::RingLinear => SamplingMethod::RingLinear,
             SamplingChoice::Nearest => SamplingMethod::Nearest,
@@ -60,7 +63,7 @@ pub struct MeasureOptions {
     /// Width of the tile-border taper in tile pixels [default: 8].
     #[arg(long)]
     pub border_pixels: Option<usize>,
-    /// How the sky is read at tile pixels [default: bilinear].
+    /// How the sky is read at tile pixels [default: ring-cubic].
     #[arg(long, value_enum)]
     pub sampling: Option<SamplingChoice>,
     /// Number of wavenumber bins of the tile power spectrum and bispectrum [default: 6].

@@ -6,6 +6,8 @@
 //!   ⟨P(j,l)⟩_l against j, and the tile power spectrum P(k); several files overlaid.
 //! - `plot ellipses FORECAST.json`: 68% and 95% Fisher ellipses of each statistic set.
 //! - `plot tile-map MAP.fits`: a Mollweide map of one statistic measured tile by tile.
+//! - `plot flat-bias TABLE.csv`: the flat-sky bias measured by `compare-flat`, per
+//!   coefficient and tile size ([`flat_bias`]).
 //!
 //! The angular scale of wavelet scale j is its wavelength (8/3)·2^j plane pixels
 //! (see [`SphereMeasurer::wavelet_scale_arcmin`]).
@@ -29,6 +31,9 @@ use crate::statistics::{CoefficientKind, CoefficientLabel};
 use clap::Subcommand;
 use std::path::{Path, PathBuf};
 
+pub mod flat_bias;
+pub use flat_bias::{run_flat_bias, FlatBiasArgs};
+
 /// Draw pictures of measurements, forecasts and per-tile statistics.
 #[derive(Debug, clap::Args)]
 pub struct PlotArgs {
@@ -47,6 +52,8 @@ pub enum Picture {
     Ellipses(EllipsesArgs),
     /// A Mollweide map of one statistic measured tile by tile.
     TileMap(TileMapArgs),
+    /// The flat-sky bias per coefficient and tile size, from a `compare-flat` table.
+    FlatBias(FlatBiasArgs),
 }
 
 /// Options of `plot coefficients`.
@@ -111,6 +118,7 @@ pub fn run(args: &PlotArgs) -> Result<()> {
         Picture::Coefficients(a) => run_coefficients(a),
         Picture::Ellipses(a) => run_ellipses(a),
         Picture::TileMap(a) => run_tile_map(a),
+        Picture::FlatBias(a) => run_flat_bias(a),
     }
 }
 
