@@ -201,6 +201,16 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
         (s(&["tiles", &map, "--coarse-nside", "3"]), "power of two"),
         (
             s(&[
+                "forecast",
+                "--plan",
+                &f.path("bad_settings.toml"),
+                "-o",
+                &f.path("fc.json"),
+            ]),
+            "not a forecast plan",
+        ),
+        (
+            s(&[
                 "plot",
                 "flat-bias",
                 &f.path("notfits.fits"),

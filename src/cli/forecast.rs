@@ -15,12 +15,25 @@ use std::path::{Path, PathBuf};
 #[derive(Debug, clap::Args)]
 pub struct ForecastArgs {
     /// Ensemble directory at the fiducial parameters (for the covariance).
-    #[arg(long, value_name = "DIR")]
-    pub fiducial: PathBuf,
+    #[arg(long, value_name = "DIR", required_unless_present = "plan")]
+    pub fiducial: Option<PathBuf>,
     /// A parameter's derivative ensembles: NAME,STEP,PLUS_DIR,MINUS_DIR (ensembles at
     /// θ + STEP and θ − STEP). Repeat for each parameter.
-    #[arg(long, value_name = "NAME,STEP,PLUS,MINUS", required = true)]
+    #[arg(
+        long,
+        value_name = "NAME,STEP,PLUS,MINUS",
+        required_unless_present = "plan"
+    )]
     pub derivative: Vec<String>,
+    /// A TOML plan of several cases (e.g. one per noise level, each with its own ensembles)
+    /// and scale cuts, forecast into one table; replaces --fiducial, --derivative, --paired
+    /// and the scale cuts. See the README for its keys.
+    #[arg(
+        long,
+        value_name = "PLAN.toml",
+        conflicts_with_all = ["fiducial", "derivative", "paired", "scale_min_arcmin", "scale_max_arcmin"]
+    )]
+    pub plan: Option<PathBuf>,
     /// The ± ensembles share seeds member by member (paired differences, less noise).
     #[arg(long)]
     pub paired: bool,
@@ -194,54 +207,55 @@ pub fn forecast_document(
     })
 }
 
+fn load_derivatives(
+    list: &[(String, f64, PathBuf, PathBuf)],
+    paired: bool,
+) -> Result<Vec<DerivativeEnsembles>> {
+    let mut derivatives = Vec::new();
+    for (name, step, plus, minus) in list {
+        let (p, _) = load_ensemble(plus)?;
+        let (m, _) = load_ensemble(minus)?;
+        derivatives.push(DerivativeEnsembles {
+            parameter: name.clone(),
+            step: *step,
+            plus: p,
+            minus: m,
+            paired,
+        });
+    }
+    Ok(derivatives)
+}
+
 /// Runs the command.
 pub fn run(args: &ForecastArgs) -> Result<()> {
     super::output::check_output_path(&args.output)?;
     if let Some(p) = &args.csv {
         super::output::check_output_path(p)?;
     }
-    let (fiducial, _) = load_ensemble(&args.fiducial)?;
-    let mut derivatives = Vec::new();
-    for d in &args.derivative {
-        let (name, step, plus, minus) = parse_derivative(d)?;
-        let (p, _) = load_ensemble(&plus)?;
-        let (m, _) = load_ensemble(&minus)?;
-        derivatives.push(DerivativeEnsembles {
-            parameter: name,
-            step,
-            plus: p,
-            minus: m,
-            paired: args.paired,
-        });
+    if let Some(plan) = &args.plan {
+        return run_plan(args, plan);
     }
-    let mut fiducial_values = vec![0.0; derivatives.len()];
-    for fv in &args.fiducial_value {
-        let (name, value) = fv.split_once('=').ok_or_else(|| {
-            Error::Setting(format!("--fiducial-value expects NAME=VALUE, got '{fv}'"))
-        })?;
-        let i = derivatives
-            .iter()
-            .position(|d| d.parameter == name.trim())
-            .ok_or_else(|| {
-                Error::Setting(format!(
-                    "--fiducial-value names '{}', which has no --derivative",
-                    name.trim()
-                ))
-            })?;
-        fiducial_values[i] = value.trim().parse().map_err(|_| {
-            Error::Setting(format!(
-                "--fiducial-value '{fv}': '{}' is not a number",
-                value.trim()
-            ))
-        })?;
-    }
+    let Some(fiducial_dir) = &args.fiducial else {
+        return Err(Error::Setting(
+            "forecast needs --fiducial and --derivative, or --plan".into(),
+        ));
+    };
+    let (fiducial, _) = load_ensemble(fiducial_dir)?;
+    let list = args
+        .derivative
+        .iter()
+        .map(|d| parse_derivative(d))
+        .collect::<Result<Vec<_>>>()?;
+    let derivatives = load_derivatives(&list, args.paired)?;
+    let names: Vec<String> = derivatives.iter().map(|d| d.parameter.clone()).collect();
+    let fiducial_values = parse_fiducial_values(&args.fiducial_value, &names)?;
     let cut = match (args.scale_min_arcmin, args.scale_max_arcmin) {
         (None, None) => None,
         (a, b) => Some(ScaleCut::new(a.unwrap_or(0.0), b.unwrap_or(f64::INFINITY))?),
     };
     let result = forecast_sets(&fiducial, &derivatives, cut.as_ref())?;
     let settings = serde_json::json!({
-        "fiducial": args.fiducial.display().to_string(),
+        "fiducial": fiducial_dir.display().to_string(),
         "derivatives": args.derivative,
         "paired": args.paired,
         "scale_min_arcmin": args.scale_min_arcmin,
@@ -256,4 +270,238 @@ pub fn run(args: &ForecastArgs) -> Result<()> {
     }
     print!("{}", result.comparison.to_text());
     Ok(())
+}
+
+/// `--fiducial-value NAME=VALUE` entries as values in the order of `names` (default 0).
+fn parse_fiducial_values(entries: &[String], names: &[String]) -> Result<Vec<f64>> {
+    let mut fiducial_values = vec![0.0; names.len()];
+    for fv in entries {
+        let (name, value) = fv.split_once('=').ok_or_else(|| {
+            Error::Setting(format!("--fiducial-value expects NAME=VALUE, got '{fv}'"))
+        })?;
+        let i = names.iter().position(|d| d == name.trim()).ok_or_else(|| {
+            Error::Setting(format!(
+                "--fiducial-value names '{}', which has no --derivative",
+                name.trim()
+            ))
+        })?;
+        fiducial_values[i] = value.trim().parse().map_err(|_| {
+            Error::Setting(format!(
+                "--fiducial-value '{fv}': '{}' is not a number",
+                value.trim()
+            ))
+        })?;
+    }
+    Ok(fiducial_values)
+}
+
+/// A forecast plan (`--plan`): cases × scale cuts, each forecast for every statistic set.
+#[derive(Debug, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
+struct PlanFile {
+    /// Default for the cases: the ± ensembles share seeds member by member.
+    #[serde(default)]
+    paired: bool,
+    /// Scale cuts; empty: all scales.
+    #[serde(default)]
+    scale_cuts: Vec<PlanCut>,
+    /// The cases, e.g. one per noise level.
+    #[serde(rename = "case")]
+    cases: Vec<PlanCase>,
+}
+
+#[derive(Debug, Clone, Copy, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
+struct PlanCut {
+    min_arcmin: Option<f64>,
+    max_arcmin: Option<f64>,
+}
+
+impl PlanCut {
+    fn cut(&self) -> Result<Option<ScaleCut>> {
+        match (self.min_arcmin, self.max_arcmin) {
+            (None, None) => Ok(None),
+            (a, b) => Ok(Some(ScaleCut::new(
+                a.unwrap_or(0.0),
+                b.unwrap_or(f64::INFINITY),
+            )?)),
+        }
+    }
+
+    fn text(&self) -> String {
+        match (self.min_arcmin, self.max_arcmin) {
+            (None, None) => "all scales".into(),
+            (Some(a), None) => format!("scales ≥ {a}′"),
+            (None, Some(b)) => format!("scales ≤ {b}′"),
+            (Some(a), Some(b)) => format!("scales {a}′–{b}′"),
+        }
+    }
+}
+
+#[derive(Debug, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
+struct PlanCase {
+    label: String,
+    fiducial: PathBuf,
+    derivative: Vec<PlanDerivative>,
+    paired: Option<bool>,
+}
+
+#[derive(Debug, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
+struct PlanDerivative {
+    parameter: String,
+    step: f64,
+    plus: PathBuf,
+    minus: PathBuf,
+}
+
+fn read_plan(path: &Path) -> Result<PlanFile> {
+    let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+    let mut plan: PlanFile = toml::from_str(&text).map_err(|e| {
+        Error::io(
+            path,
+            format!("not a forecast plan: {}", e.message().trim_end()),
+        )
+    })?;
+    if plan.cases.is_empty() {
+        return Err(Error::io(path, "the plan has no [[case]]"));
+    }
+    // relative ensemble paths are relative to the plan's directory
+    let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
+    let names: Vec<&str> = plan.cases[0]
+        .derivative
+        .iter()
+        .map(|d| d.parameter.as_str())
+        .collect::<Vec<_>>();
+    let names: Vec<String> = names.iter().map(|s| s.to_string()).collect();
+    for case in &mut plan.cases {
+        let got: Vec<&str> = case
+            .derivative
+            .iter()
+            .map(|d| d.parameter.as_str())
+            .collect();
+        if got.is_empty() || got != names.iter().map(String::as_str).collect::<Vec<_>>() {
+            return Err(Error::io(
+                path,
+                format!(
+                    "case '{}' has parameters [{}], the first case [{}]: every case needs the same parameters in the same order",
+                    case.label,
+                    got.join(", "),
+                    names.join(", ")
+                ),
+            ));
+        }
+        case.fiducial = base.join(&case.fiducial);
+        for d in &mut case.derivative {
+            if !(d.step.is_finite() && d.step > 0.0) {
+                return Err(Error::io(
+                    path,
+                    format!(
+                        "case '{}': the step of '{}' must be positive, got {}",
+                        case.label, d.parameter, d.step
+                    ),
+                ));
+            }
+            d.plus = base.join(&d.plus);
+            d.minus = base.join(&d.minus);
+        }
+    }
+    for c in &plan.scale_cuts {
+        c.cut().map_err(|e| Error::io(path, e.to_string()))?;
+    }
+    if plan.scale_cuts.is_empty() {
+        plan.scale_cuts.push(PlanCut {
+            min_arcmin: None,
+            max_arcmin: None,
+        });
+    }
+    Ok(plan)
+}
+
+/// Runs a `--plan`: one comparison per case and scale cut, in one table whose set names carry
+/// the case and the cut ("compact scattering set [noise 0.3; scales ≥ 30′]").
+fn run_plan(args: &ForecastArgs, path: &Path) -> Result<()> {
+    let plan = read_plan(path)?;
+    let names: Vec<String> = plan.cases[0]
+        .derivative
+        .iter()
+        .map(|d| d.parameter.clone())
+        .collect();
+    let fiducial_values = parse_fiducial_values(&args.fiducial_value, &names)?;
+    let mut combined: Option<ForecastResult> = None;
+    let mut cases_json = Vec::new();
+    let mut csv = String::new();
+    let mut text = String::new();
+    for case in &plan.cases {
+        let (fiducial, _) = load_ensemble(&case.fiducial)?;
+        let list: Vec<(String, f64, PathBuf, PathBuf)> = case
+            .derivative
+            .iter()
+            .map(|d| (d.parameter.clone(), d.step, d.plus.clone(), d.minus.clone()))
+            .collect();
+        let derivatives = load_derivatives(&list, case.paired.unwrap_or(plan.paired))?;
+        for cut in &plan.scale_cuts {
+            let tag = format!("{}; {}", case.label, cut.text());
+            let mut result = forecast_sets(&fiducial, &derivatives, cut.cut()?.as_ref())
+                .map_err(|e| Error::Data(format!("case '{}', {}: {e}", case.label, cut.text())))?;
+            text.push_str(&format!("\n[{tag}]\n{}", result.comparison.to_text()));
+            let part = result.comparison.to_csv();
+            let mut lines = part.lines();
+            let header = lines.next().unwrap_or_default();
+            if csv.is_empty() {
+                csv.push_str(&format!("case,scale_cut,{header}\n"));
+            }
+            for line in lines {
+                csv.push_str(&format!(
+                    "{},{},{line}\n",
+                    csv_quote(&case.label),
+                    csv_quote(&cut.text())
+                ));
+            }
+            cases_json.push(serde_json::json!({
+                "case": case.label,
+                "scale_cut": {"min_arcmin": cut.min_arcmin, "max_arcmin": cut.max_arcmin},
+                "fiducial": case.fiducial.display().to_string(),
+            }));
+            for row in &mut result.comparison.rows {
+                row.set = format!("{} [{tag}]", row.set);
+            }
+            for (name, _) in &mut result.per_set {
+                *name = format!("{name} [{tag}]");
+            }
+            match &mut combined {
+                None => combined = Some(result),
+                Some(c) => {
+                    c.comparison.rows.extend(result.comparison.rows);
+                    c.per_set.extend(result.per_set);
+                }
+            }
+        }
+    }
+    let Some(combined) = combined else {
+        return Err(Error::Setting("the plan forecast nothing".into()));
+    };
+    let settings = serde_json::json!({
+        "plan": path.display().to_string(),
+        "cases": cases_json,
+    });
+    write_json(
+        &args.output,
+        &forecast_document(&combined, &fiducial_values, settings),
+    )?;
+    if let Some(p) = &args.csv {
+        write_bytes(p, csv.as_bytes())?;
+    }
+    print!("{}", text.trim_start());
+    Ok(())
+}
+
+/// A CSV field, quoted when it holds a comma or a quote (RFC 4180).
+fn csv_quote(s: &str) -> String {
+    if s.contains(',') || s.contains('"') {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
 }
