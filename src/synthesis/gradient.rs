@@ -38,7 +38,8 @@
 //! one inverse DFT. The g₂ are recomputed in the backward pass rather than stored (memory
 //! stays a few arrays per (j1, l1)), so one gradient costs about three forward transforms.
 //! Reference for reverse-mode differentiation: Griewank & Walther 2008, *Evaluating
-//! Derivatives*, SIAM, ch. 3.
+//! Derivatives*, SIAM, ch. 3. The masked, Fourier-cropped tile estimator and its adjoint are in
+//! [`super::tile_gradient`].
 
 use crate::filters::MorletBank;
 use crate::statistics::CoefficientLabel;
@@ -77,6 +78,11 @@ impl SquareFft {
     /// Unnormalised forward DFT in place (row-major n × n).
     pub(crate) fn forward(&self, data: &mut [Complex64]) {
         self.run(data, false);
+    }
+
+    /// Unnormalised inverse DFT in place (kernel e^{+2πi k·x/n}).
+    pub(crate) fn inverse_unnormalised(&self, data: &mut [Complex64]) {
+        self.run(data, true);
     }
 
     /// Inverse DFT in place, normalised by 1/N.
@@ -125,6 +131,8 @@ pub struct DifferentiableScattering {
     bank: MorletBank,
     fft: SquareFft,
     labels: Vec<CoefficientLabel>,
+    /// FFT plans of the coarse grids and cropped wavelets, for the tile path.
+    pub(crate) grids: super::tile_gradient::CoarseGrids,
 }
 
 impl std::fmt::Debug for DifferentiableScattering {
@@ -165,7 +173,13 @@ impl DifferentiableScattering {
         let (jn, ln) = (bank.scale_count(), bank.orientation_count());
         let labels = crate::statistics::coefficient_labels(jn, ln);
         let fft = SquareFft::new(bank.size());
-        Self { bank, fft, labels }
+        let grids = super::tile_gradient::CoarseGrids::new(&bank);
+        Self {
+            bank,
+            fft,
+            labels,
+            grids,
+        }
     }
 
     /// The filter bank.
