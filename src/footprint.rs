@@ -233,8 +233,11 @@ mod tests {
     fn intersection_keeps_the_smaller_weight_and_rejects_disjoint_footprints() {
         let pix = Pixelization::new(1, Ordering::Ring).unwrap();
         let a = Footprint::from_weights(pix, (0..12).map(|p| f64::from(p < 6)).collect()).unwrap();
-        let b = Footprint::from_weights(pix, (0..12).map(|p| if p >= 4 { 0.5 } else { 0.0 }).collect())
-            .unwrap();
+        let b = Footprint::from_weights(
+            pix,
+            (0..12).map(|p| if p >= 4 { 0.5 } else { 0.0 }).collect(),
+        )
+        .unwrap();
         let both = a.intersection(&b).unwrap();
         let expected: Vec<f64> = (0..12)
             .map(|p| if (4..6).contains(&p) { 0.5 } else { 0.0 })
@@ -242,7 +245,10 @@ mod tests {
         assert_eq!(both.weights(), &expected[..]);
         let c = Footprint::from_weights(pix, (0..12).map(|p| f64::from(p >= 6)).collect()).unwrap();
         let err = a.intersection(&c).unwrap_err().to_string();
-        assert_eq!(err, "the two footprints do not overlap: no pixel is observed in both");
+        assert_eq!(
+            err,
+            "the two footprints do not overlap: no pixel is observed in both"
+        );
     }
 
     #[test]

@@ -331,29 +331,28 @@ impl SphereMeasurer {
     /// of the same NSIDE whose positive pixels lie in the planned tiles' cores).
     pub fn measure(&self, map: &SkyMap, footprint: &Footprint) -> Result<MapStatistics> {
         let sampler = TileSampler::new(&self.plan, map, footprint, self.settings.sampling)?;
-        let per_tile: Vec<Option<TileResult>> = sampler
-            .map_tiles(|grids| {
-                // interpolation may overshoot 1 by rounding: clamp
-                let taper: Vec<f64> = grids
-                    .mask
-                    .iter()
-                    .zip(&self.window)
-                    .map(|(m, b)| m.clamp(0.0, 1.0) * b)
-                    .collect();
-                let weight = grids.pooling_weights(&taper)?;
-                let wsum: f64 = weight.iter().sum();
-                if wsum <= 0.0 {
-                    return Ok(None);
-                }
-                let view = crate::transform::TileView {
-                    field: &grids.field,
-                    taper: &taper,
-                    weight: &weight,
-                };
-                let sums = self.engine.transform_tile(&view)?;
-                let (power, bis) = self.tile_fourier(&grids.field, &taper, wsum)?;
-                Ok(Some((sums, power, bis)))
-            })?;
+        let per_tile: Vec<Option<TileResult>> = sampler.map_tiles(|grids| {
+            // interpolation may overshoot 1 by rounding: clamp
+            let taper: Vec<f64> = grids
+                .mask
+                .iter()
+                .zip(&self.window)
+                .map(|(m, b)| m.clamp(0.0, 1.0) * b)
+                .collect();
+            let weight = grids.pooling_weights(&taper)?;
+            let wsum: f64 = weight.iter().sum();
+            if wsum <= 0.0 {
+                return Ok(None);
+            }
+            let view = crate::transform::TileView {
+                field: &grids.field,
+                taper: &taper,
+                weight: &weight,
+            };
+            let sums = self.engine.transform_tile(&view)?;
+            let (power, bis) = self.tile_fourier(&grids.field, &taper, wsum)?;
+            Ok(Some((sums, power, bis)))
+        })?;
         let kept: Vec<_> = per_tile.into_iter().flatten().collect();
         if kept.is_empty() {
             return Err(Error::Data(
@@ -462,7 +461,11 @@ impl SphereMeasurer {
             })?;
             let (pa, ba) = self.tile_fourier(&grids.field, &taper, wsum)?;
             let (pb, bb) = self.tile_fourier(&other.field, &taper, wsum)?;
-            Ok(Some(((sums.first, pa, ba), (sums.second, pb, bb), sums.cross)))
+            Ok(Some((
+                (sums.first, pa, ba),
+                (sums.second, pb, bb),
+                sums.cross,
+            )))
         })?;
         let kept: Vec<_> = per_tile.into_iter().flatten().collect();
         if kept.is_empty() {

@@ -587,8 +587,12 @@ impl ScatteringEngine {
             on: false,
             timing: FftTiming::default(),
         };
-        let (mut autos, cross) =
-            self.run_fields(&[tile.first, tile.second], tile.taper, tile.weight, &mut clock)?;
+        let (mut autos, cross) = self.run_fields(
+            &[tile.first, tile.second],
+            tile.taper,
+            tile.weight,
+            &mut clock,
+        )?;
         let second = autos.pop();
         let first = autos.pop();
         match (first, second, cross) {
@@ -751,8 +755,7 @@ impl ScatteringEngine {
                 let spec1 = crop_box(&spectra[k], n, m1);
                 for l1 in 0..big_l {
                     let psi = &self.cropped_wavelets[j1 * big_l + l1];
-                    let mut g: Vec<Complex64> =
-                        spec1.iter().zip(psi).map(|(s, p)| s * p).collect();
+                    let mut g: Vec<Complex64> = spec1.iter().zip(psi).map(|(s, p)| s * p).collect();
                     self.fft2(d1, &mut g, true, clock);
                     let inv_sqrt_cov = &coverage_coarse[j1];
                     let u: Vec<f64> = g

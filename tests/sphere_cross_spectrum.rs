@@ -65,7 +65,10 @@ fn cross_band_power_of_correlated_skies_follows_the_cross_spectrum_and_cross_mom
             if !pairs.iter().all(|p| p.cross.band_power(j, l).trusted) {
                 continue;
             }
-            let pab: Vec<f64> = pairs.iter().map(|p| p.cross.band_power(j, l).value).collect();
+            let pab: Vec<f64> = pairs
+                .iter()
+                .map(|p| p.cross.band_power(j, l).value)
+                .collect();
             let ratio: Vec<f64> = pairs
                 .iter()
                 .map(|p| {
@@ -113,7 +116,10 @@ fn cross_band_power_of_correlated_skies_follows_the_cross_spectrum_and_cross_mom
         {
             continue;
         }
-        let v: Vec<f64> = pairs.iter().map(|p| p.cross.coefficients[i].value).collect();
+        let v: Vec<f64> = pairs
+            .iter()
+            .map(|p| p.cross.coefficients[i].value)
+            .collect();
         let (m, se) = mean_se(&v);
         let t = m / se;
         assert!(t.abs() < 4.5, "{}: {m} ± {se} ({t:.1} σ)", label.name());

@@ -147,7 +147,12 @@ pub struct MeasureArgs {
     #[arg(long, value_name = "MASK.fits", requires = "cross")]
     pub cross_mask: Option<PathBuf>,
     /// Column of the second mask file: 0-based position or name.
-    #[arg(long, value_name = "COLUMN", default_value = "0", requires = "cross_mask")]
+    #[arg(
+        long,
+        value_name = "COLUMN",
+        default_value = "0",
+        requires = "cross_mask"
+    )]
     pub cross_mask_column: ColumnChoice,
     /// Output JSON file.
     #[arg(long, short, value_name = "FILE.json")]
@@ -338,12 +343,14 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
     let footprint = match &other {
         None => args.mask.footprint_for(&map)?,
         Some(other) => {
-            let first = untapered_footprint(&map, args.mask.mask.as_deref(), &args.mask.mask_column)?;
-            let second = untapered_footprint(other, args.cross_mask.as_deref(), &args.cross_mask_column)
-                .map_err(|e| match e {
-                    Error::Data(m) => Error::Data(format!("second map: {m}")),
-                    e => e,
-                })?;
+            let first =
+                untapered_footprint(&map, args.mask.mask.as_deref(), &args.mask.mask_column)?;
+            let second =
+                untapered_footprint(other, args.cross_mask.as_deref(), &args.cross_mask_column)
+                    .map_err(|e| match e {
+                        Error::Data(m) => Error::Data(format!("second map: {m}")),
+                        e => e,
+                    })?;
             args.mask.taper_footprint(first.intersection(&second)?)?
         }
     };
@@ -367,7 +374,10 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
                 &taper,
             );
             let trusted = pair.cross.coefficients.iter().filter(|c| c.trusted).count();
-            (pair.first, Some((section, pair.cross.coefficients.len(), trusted)))
+            (
+                pair.first,
+                Some((section, pair.cross.coefficients.len(), trusted)),
+            )
         }
     };
     let mut doc = measurement_document(&measurer, &stats, &args.map.display().to_string(), &taper);
