@@ -24,7 +24,7 @@ fn cross_band_power_of_correlated_skies_follows_the_cross_spectrum_and_cross_mom
     // guide), so the absolute check allows 6%; the ratio P_AB / √(P_AA P_BB) = r is free of it.
     let r = 0.7;
     let s = (1.0f64 - r * r).sqrt();
-    let skies = 6;
+    let skies = 24;
     let footprint = sphere_support::cap(NSIDE, 30.0, 40.0, 40.0);
     let settings = MeasurementSettings {
         scales: J,
