@@ -228,8 +228,8 @@ fn cross_section(
             "tile_bispectrum": own["tile_bispectrum"],
         },
         "cross_band_powers": pick(CrossKind::CrossBandPower),
-        "modulus_first_order": pick(CrossKind::EnvelopeFirstOrder),
-        "modulus_second_order": pick(CrossKind::EnvelopeSecondOrder),
+        "envelope_first_order": pick(CrossKind::EnvelopeFirstOrder),
+        "envelope_second_order": pick(CrossKind::EnvelopeSecondOrder),
     })
 }
 
@@ -327,6 +327,12 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
     let other = match &args.cross {
         Some(path) => {
             let other = load_map(path, &args.cross_column)?;
+            if other.valid_count() == 0 {
+                return Err(Error::Data(format!(
+                    "{}: every pixel is bad (UNSEEN or NaN): nothing to cross-correlate",
+                    path.display()
+                )));
+            }
             if other.nside() != map.nside() {
                 return Err(Error::Mismatch(format!(
                     "{} has NSIDE {} but {} has NSIDE {}: cross statistics need one pixelization",
