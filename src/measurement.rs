@@ -18,6 +18,11 @@
 //! mask or tile edge at a given scale drop out of the pooling there by the transform's coverage
 //! cut, and a coefficient whose kept weight is too small is flagged untrusted.
 //!
+//! Two maps ([`SphereMeasurer::measure_pair`]) are measured on the same tiles with the taper and
+//! weights of their common footprint (the footprint restricted to pixels valid in both maps), in
+//! one pass: each map's own statistics plus the cross coefficients of
+//! [`crate::transform`] ("Cross statistics of two maps"), with the same trust rules.
+//!
 //! Interpolating the map onto tile pixels smooths it at the scale of the map's pixels; a
 //! coefficient involving a scale whose wavelength is below
 //! [`MeasurementSettings::min_trusted_wavelength`] map spacings is also flagged untrusted

@@ -851,7 +851,7 @@ impl ScatteringEngine {
             // X2 with this field's envelope: block 0 (A ← B) when k is B, block 1 when k is A.
             let x2_block = if k == 1 { 0 } else { 1 };
             let mut x2_index = 3 * first_count + x2_block * second_count;
-            for j1 in 0..big_j {
+            for (j1, pair_weights_j1) in pair_weights.iter().enumerate() {
                 if j1 + 1 >= big_j {
                     continue;
                 }
@@ -875,7 +875,7 @@ impl ScatteringEngine {
                             std::borrow::Cow::Owned(crop_box(&spec2, m1, m2))
                         };
                         let inv_sqrt_cov2 = &coverage_coarse[j2];
-                        let (wp, wtotal) = &pair_weights[j1][pair_index];
+                        let (wp, wtotal) = &pair_weights_j1[pair_index];
                         let scale2 = 1.0 / (m1 * m1) as f64;
                         for l2 in 0..big_l {
                             let psi2 = &self.cropped_wavelets[j2 * big_l + l2];
@@ -915,7 +915,7 @@ impl ScatteringEngine {
                 weights: weights.clone(),
             })
             .collect();
-        let cross = pair.then(|| TileSums {
+        let cross = pair.then_some(TileSums {
             footprint_weight: sw,
             sums: cross_sums,
             weights: cross_weights,

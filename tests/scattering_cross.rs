@@ -198,7 +198,7 @@ fn correlated_gaussian_fields_have_cross_band_power_r_times_the_geometric_mean_o
     for (name, taper) in [("periodic", &ones), ("holed", &holed)] {
         let mut rows = Vec::new();
         let mut ratio_rows = Vec::new();
-        let mut trusted = vec![true; J * L];
+        let mut trusted = [true; J * L];
         for k in 0..fields {
             let x = field(1000 + 2 * k);
             let y = field(1001 + 2 * k);

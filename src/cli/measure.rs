@@ -121,7 +121,8 @@ impl MeasureOptions {
     }
 }
 
-/// Measure the scattering statistics of a map on its (masked) footprint.
+/// Measure the scattering statistics of a map on its (masked) footprint; with `--cross`, of two
+/// maps on their common footprint plus their cross statistics.
 #[derive(Debug, clap::Args)]
 pub struct MeasureArgs {
     /// The map (HEALPix FITS).
