@@ -146,6 +146,36 @@ impl Footprint {
         })
     }
 
+    /// The common footprint of two masks: the smaller of the two weights per pixel (for binary
+    /// masks, pixels observed in both), in this footprint's ordering. Errors when the NSIDEs
+    /// differ or the two footprints share no pixel.
+    pub fn intersection(&self, other: &Footprint) -> Result<Footprint> {
+        if self.pixelization.nside() != other.pixelization.nside() {
+            return Err(Error::Mismatch(format!(
+                "footprints of NSIDE {} and {} cannot be intersected",
+                self.pixelization.nside(),
+                other.pixelization.nside()
+            )));
+        }
+        let other = other.to_ordering(self.pixelization.ordering())?;
+        let weights: Vec<f64> = self
+            .weights
+            .iter()
+            .zip(&other.weights)
+            .map(|(a, b)| a.min(*b))
+            .collect();
+        let fp = Footprint {
+            pixelization: self.pixelization,
+            weights,
+        };
+        if fp.observed_pixels() == 0 {
+            return Err(Error::Data(
+                "the two footprints do not overlap: no pixel is observed in both".into(),
+            ));
+        }
+        Ok(fp)
+    }
+
     /// The footprint to use with `map`: this mask brought to the map's ordering, with the map's
     /// invalid pixels removed. Errors when the NSIDEs differ or nothing of the footprint is left.
     pub fn restricted_to(&self, map: &SkyMap) -> Result<Footprint> {
@@ -197,6 +227,28 @@ mod tests {
         let fp = Footprint::full_sky(Pixelization::new(4, Ordering::Ring).unwrap());
         assert!((fp.f_sky() - 1.0).abs() < 1e-15);
         assert!((fp.area_sr() - 4.0 * std::f64::consts::PI).abs() < 1e-12);
+    }
+
+    #[test]
+    fn intersection_keeps_the_smaller_weight_and_rejects_disjoint_footprints() {
+        let pix = Pixelization::new(1, Ordering::Ring).unwrap();
+        let a = Footprint::from_weights(pix, (0..12).map(|p| f64::from(p < 6)).collect()).unwrap();
+        let b = Footprint::from_weights(
+            pix,
+            (0..12).map(|p| if p >= 4 { 0.5 } else { 0.0 }).collect(),
+        )
+        .unwrap();
+        let both = a.intersection(&b).unwrap();
+        let expected: Vec<f64> = (0..12)
+            .map(|p| if (4..6).contains(&p) { 0.5 } else { 0.0 })
+            .collect();
+        assert_eq!(both.weights(), &expected[..]);
+        let c = Footprint::from_weights(pix, (0..12).map(|p| f64::from(p >= 6)).collect()).unwrap();
+        let err = a.intersection(&c).unwrap_err().to_string();
+        assert_eq!(
+            err,
+            "the two footprints do not overlap: no pixel is observed in both"
+        );
     }
 
     #[test]

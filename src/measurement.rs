@@ -18,6 +18,11 @@
 //! mask or tile edge at a given scale drop out of the pooling there by the transform's coverage
 //! cut, and a coefficient whose kept weight is too small is flagged untrusted.
 //!
+//! Two maps ([`SphereMeasurer::measure_pair`]) are measured on the same tiles with the taper and
+//! weights of their common footprint (the footprint restricted to pixels valid in both maps), in
+//! one pass: each map's own statistics plus the cross coefficients of
+//! [`crate::transform`] ("Cross statistics of two maps"), with the same trust rules.
+//!
 //! Interpolating the map onto tile pixels smooths it at the scale of the map's pixels; a
 //! coefficient involving a scale whose wavelength is below
 //! [`MeasurementSettings::min_trusted_wavelength`] map spacings is also flagged untrusted
@@ -27,16 +32,16 @@ use crate::apodization::c2;
 use crate::error::{Error, Result};
 use crate::footprint::Footprint;
 use crate::pixelization::Pixelization;
-use crate::pooling::{combine_tiles, pooled_coefficients, TileSums};
+use crate::pooling::{combine_tiles, pooled_coefficients, pooled_cross_coefficients, TileSums};
 use crate::sampling::{SamplingMethod, TileSampler};
 use crate::skymap::SkyMap;
-use crate::statistics::{CoefficientKind, CoefficientSet, CompactStatistic};
+use crate::statistics::{CoefficientKind, CoefficientSet, CompactStatistic, CrossCoefficientSet};
 use crate::tile_spectra::{
     combine_bispectra, combine_power, FourierStatistics, TileBispectrum, TilePowerSpectrum,
     Triangle, WavenumberBins,
 };
 use crate::tiling::{TilingPlan, TilingSettings, TilingSummary};
-use crate::transform::{ScatteringEngine, TransformSettings};
+use crate::transform::{ScatteringEngine, TilePairView, TransformSettings};
 
 /// Everything that defines a measurement.
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
@@ -188,6 +193,24 @@ pub struct MapStatistics {
     pub per_tile: Vec<TileSums>,
 }
 
+/// The statistics of two maps measured together on their common footprint
+/// ([`SphereMeasurer::measure_pair`]).
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct PairStatistics {
+    /// The first map's own statistics on the common footprint.
+    pub first: MapStatistics,
+    /// The second map's own statistics on the common footprint.
+    pub second: MapStatistics,
+    /// The cross coefficients (cross band powers, X1 and X2 in both directions).
+    pub cross: CrossCoefficientSet,
+    /// Per-tile cross sums, in plan order.
+    #[serde(skip)]
+    pub per_tile_cross: Vec<TileSums>,
+}
+
+/// One tile's scattering sums, power spectrum and bispectrum.
+type TileResult = (TileSums, TilePowerSpectrum, Option<TileBispectrum>);
+
 /// Measures maps of one pixelization and footprint: owns the plan, the engine and the Fourier
 /// plans, shared by every map (and thread) measured with it.
 pub struct SphereMeasurer {
@@ -313,43 +336,39 @@ impl SphereMeasurer {
     /// of the same NSIDE whose positive pixels lie in the planned tiles' cores).
     pub fn measure(&self, map: &SkyMap, footprint: &Footprint) -> Result<MapStatistics> {
         let sampler = TileSampler::new(&self.plan, map, footprint, self.settings.sampling)?;
-        let per_tile: Vec<Option<(TileSums, TilePowerSpectrum, Option<TileBispectrum>)>> = sampler
-            .map_tiles(|grids| {
-                // interpolation may overshoot 1 by rounding: clamp
-                let taper: Vec<f64> = grids
-                    .mask
-                    .iter()
-                    .zip(&self.window)
-                    .map(|(m, b)| m.clamp(0.0, 1.0) * b)
-                    .collect();
-                let weight = grids.pooling_weights(&taper)?;
-                let wsum: f64 = weight.iter().sum();
-                if wsum <= 0.0 {
-                    return Ok(None);
-                }
-                let view = crate::transform::TileView {
-                    field: &grids.field,
-                    taper: &taper,
-                    weight: &weight,
-                };
-                let sums = self.engine.transform_tile(&view)?;
-                let power = self.fourier.power_spectrum(&grids.field, &taper, wsum)?;
-                let bis = if self.settings.bispectrum {
-                    Some(
-                        self.fourier
-                            .bispectrum(&grids.field, &taper, wsum, &self.triangles)?,
-                    )
-                } else {
-                    None
-                };
-                Ok(Some((sums, power, bis)))
-            })?;
+        let per_tile: Vec<Option<TileResult>> = sampler.map_tiles(|grids| {
+            // interpolation may overshoot 1 by rounding: clamp
+            let taper: Vec<f64> = grids
+                .mask
+                .iter()
+                .zip(&self.window)
+                .map(|(m, b)| m.clamp(0.0, 1.0) * b)
+                .collect();
+            let weight = grids.pooling_weights(&taper)?;
+            let wsum: f64 = weight.iter().sum();
+            if wsum <= 0.0 {
+                return Ok(None);
+            }
+            let view = crate::transform::TileView {
+                field: &grids.field,
+                taper: &taper,
+                weight: &weight,
+            };
+            let sums = self.engine.transform_tile(&view)?;
+            let (power, bis) = self.tile_fourier(&grids.field, &taper, wsum)?;
+            Ok(Some((sums, power, bis)))
+        })?;
         let kept: Vec<_> = per_tile.into_iter().flatten().collect();
         if kept.is_empty() {
             return Err(Error::Data(
                 "no tile has positive pooling weight: the apodized footprint is empty".into(),
             ));
         }
+        self.assemble(kept)
+    }
+
+    /// Pools the per-tile results of one map (in plan order) into its statistics.
+    fn assemble(&self, kept: Vec<TileResult>) -> Result<MapStatistics> {
         let sums: Vec<TileSums> = kept.iter().map(|t| t.0.clone()).collect();
         let total = combine_tiles(&sums)?;
         let mut coefficients = pooled_coefficients(&self.engine, &total)?;
@@ -370,6 +389,117 @@ impl SphereMeasurer {
             tile_bispectrum,
             tiles: kept.len(),
             per_tile: sums,
+        })
+    }
+
+    /// The tile power spectrum and (if enabled) bispectrum of one tile's field.
+    fn tile_fourier(
+        &self,
+        field: &[f64],
+        taper: &[f64],
+        wsum: f64,
+    ) -> Result<(TilePowerSpectrum, Option<TileBispectrum>)> {
+        let power = self.fourier.power_spectrum(field, taper, wsum)?;
+        let bis = if self.settings.bispectrum {
+            Some(
+                self.fourier
+                    .bispectrum(field, taper, wsum, &self.triangles)?,
+            )
+        } else {
+            None
+        };
+        Ok((power, bis))
+    }
+
+    /// Measures two maps on their common footprint: each map's own statistics (as
+    /// [`Self::measure`] would give on that footprint) and their cross coefficients
+    /// ([`crate::transform`], "Cross statistics of two maps"), computed in one pass that shares
+    /// tiles, taper, weights and FFTs. `footprint` is restricted to the pixels valid in both
+    /// maps; the second map is brought to the first's ordering. Errors on different NSIDEs and
+    /// when no footprint pixel is valid in both maps.
+    pub fn measure_pair(
+        &self,
+        first: &SkyMap,
+        second: &SkyMap,
+        footprint: &Footprint,
+    ) -> Result<PairStatistics> {
+        if first.nside() != second.nside() {
+            return Err(Error::Mismatch(format!(
+                "the two maps have NSIDE {} and {}: cross statistics need one pixelization",
+                first.nside(),
+                second.nside()
+            )));
+        }
+        let second = second.to_ordering(first.ordering())?;
+        let common = footprint
+            .restricted_to(first)?
+            .restricted_to(&second)
+            .map_err(|e| match e {
+                Error::Data(_) => Error::Data(
+                    "the two maps have no valid pixel in common on the footprint".into(),
+                ),
+                other => other,
+            })?;
+        let method = self.settings.sampling;
+        let sampler_a = TileSampler::new(&self.plan, first, &common, method)?;
+        let sampler_b = TileSampler::new(&self.plan, &second, &common, method)?;
+        let per_tile = sampler_a.map_tiles(|grids| {
+            let other = sampler_b.sample(grids.tile)?;
+            // the common footprint is zero on both maps' bad pixels, so both read the same
+            // mask; interpolation may overshoot 1 by rounding: clamp
+            let taper: Vec<f64> = grids
+                .mask
+                .iter()
+                .zip(&self.window)
+                .map(|(m, b)| m.clamp(0.0, 1.0) * b)
+                .collect();
+            let weight = grids.pooling_weights(&taper)?;
+            let wsum: f64 = weight.iter().sum();
+            if wsum <= 0.0 {
+                return Ok(None);
+            }
+            let sums = self.engine.transform_tile_pair(&TilePairView {
+                first: &grids.field,
+                second: &other.field,
+                taper: &taper,
+                weight: &weight,
+            })?;
+            let (pa, ba) = self.tile_fourier(&grids.field, &taper, wsum)?;
+            let (pb, bb) = self.tile_fourier(&other.field, &taper, wsum)?;
+            Ok(Some((
+                (sums.first, pa, ba),
+                (sums.second, pb, bb),
+                sums.cross,
+            )))
+        })?;
+        let kept: Vec<_> = per_tile.into_iter().flatten().collect();
+        if kept.is_empty() {
+            return Err(Error::Data(
+                "no tile has positive pooling weight: the common footprint is empty".into(),
+            ));
+        }
+        let mut firsts = Vec::with_capacity(kept.len());
+        let mut seconds = Vec::with_capacity(kept.len());
+        let mut crosses = Vec::with_capacity(kept.len());
+        for (a, b, c) in kept {
+            firsts.push(a);
+            seconds.push(b);
+            crosses.push(c);
+        }
+        let total = combine_tiles(&crosses)?;
+        let mut cross = pooled_cross_coefficients(&self.engine, &total)?;
+        for c in cross.coefficients.iter_mut() {
+            let resolved = [Some(c.label.j1), c.label.j2]
+                .iter()
+                .flatten()
+                .all(|&j| self.scale_is_resolved(j));
+            c.trusted &= resolved;
+        }
+        Ok(PairStatistics {
+            first: self.assemble(firsts)?,
+            second: self.assemble(seconds)?,
+            cross,
+            per_tile_cross: crosses,
         })
     }
 

@@ -8,7 +8,9 @@
 //! identical however the tiles were computed (any thread count). Order 0: the mean is
 //! Σwf/Σw and the variance Σwf²/Σw − mean² (population variance of the pooled pixels).
 
-use crate::statistics::{Coefficient, CoefficientKind, CoefficientSet};
+use crate::statistics::{
+    Coefficient, CoefficientKind, CoefficientSet, CrossCoefficient, CrossCoefficientSet,
+};
 use crate::transform::ScatteringEngine;
 use crate::{Error, Result};
 
@@ -42,6 +44,18 @@ impl TileSums {
         }
         Ok(())
     }
+}
+
+/// Sums of one tile (or of combined tiles) of a pair of maps: each map's own sums and the
+/// cross sums, in the order of [`ScatteringEngine::cross_labels`].
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct PairTileSums {
+    /// The first map's sums (engine label order).
+    pub first: TileSums,
+    /// The second map's sums (engine label order).
+    pub second: TileSums,
+    /// The cross sums (cross label order).
+    pub cross: TileSums,
 }
 
 /// Combine tiles by adding their sums sequentially in the given order (deterministic).
@@ -96,6 +110,51 @@ pub fn pooled_coefficients(engine: &ScatteringEngine, sums: &TileSums) -> Result
         })
         .collect();
     Ok(CoefficientSet {
+        scale_count: engine.scale_count(),
+        orientation_count: engine.orientation_count(),
+        coefficients,
+    })
+}
+
+/// Turn combined cross sums into pooled cross coefficients: each value is Σ W h / Σ W over the
+/// kept weight of its scales, trusted as in [`pooled_coefficients`].
+pub fn pooled_cross_coefficients(
+    engine: &ScatteringEngine,
+    sums: &TileSums,
+) -> Result<CrossCoefficientSet> {
+    let labels = engine.cross_labels();
+    if sums.sums.len() != labels.len() || sums.weights.len() != labels.len() {
+        return Err(Error::Mismatch(format!(
+            "cross tile sums hold {} coefficients but the engine defines {}",
+            sums.sums.len(),
+            labels.len()
+        )));
+    }
+    if sums.footprint_weight <= 0.0 {
+        return Err(Error::Data(
+            "pooling weights sum to zero: no pixel to pool".into(),
+        ));
+    }
+    let min_fraction = engine.settings().trusted_fraction;
+    let coefficients = labels
+        .iter()
+        .enumerate()
+        .map(|(i, label)| {
+            let weight = sums.weights[i];
+            let fraction = weight / sums.footprint_weight;
+            CrossCoefficient {
+                label: *label,
+                value: if weight > 0.0 {
+                    sums.sums[i] / weight
+                } else {
+                    f64::NAN
+                },
+                trusted: weight > 0.0 && fraction >= min_fraction,
+                kept_weight_fraction: fraction,
+            }
+        })
+        .collect();
+    Ok(CrossCoefficientSet {
         scale_count: engine.scale_count(),
         orientation_count: engine.orientation_count(),
         coefficients,

@@ -276,3 +276,217 @@ impl CoefficientSet {
         Ok(out)
     }
 }
+
+/// What a cross coefficient of two maps A and B measures (definitions and formulas in
+/// [`crate::transform`], section "Cross statistics of two maps").
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum CrossKind {
+    /// P_AB(j,l) = ⟨Re[g_A g_B*] / N_j⟩, g = I∗ψ_{j,l}: the cross band power.
+    CrossBandPower,
+    /// X1(j,l) = ⟨I_field · (U^envelope_{j,l} − μ)⟩: one map against the other's modulus.
+    EnvelopeFirstOrder,
+    /// X2(j1,l1,j2,l2) = ⟨Re[(I_field∗ψ_{j2,l2}) · conj(Ĩ^envelope_{j1,l1}∗ψ_{j2,l2})] / N_{j2}⟩.
+    EnvelopeSecondOrder,
+}
+
+/// Which map of the pair plays which role in a cross coefficient.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum CrossDirection {
+    /// Symmetric in the two maps (the cross band power).
+    Both,
+    /// The first map's field against the second map's wavelet modulus (A ← B).
+    FirstAgainstSecondModulus,
+    /// The second map's field against the first map's wavelet modulus (B ← A).
+    SecondAgainstFirstModulus,
+}
+
+impl CrossDirection {
+    /// Short tag used in names: `ab` (both), `a_on_b`, `b_on_a`.
+    pub fn tag(self) -> &'static str {
+        match self {
+            CrossDirection::Both => "ab",
+            CrossDirection::FirstAgainstSecondModulus => "a_on_b",
+            CrossDirection::SecondAgainstFirstModulus => "b_on_a",
+        }
+    }
+}
+
+/// Label of one cross coefficient.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+pub struct CrossLabel {
+    /// What is measured.
+    pub kind: CrossKind,
+    /// Which map is the field and which the modulus.
+    pub direction: CrossDirection,
+    /// Number of wavelets applied to the modulus side (1 or 2).
+    pub order: u8,
+    /// Scale of the first wavelet.
+    pub j1: usize,
+    /// Orientation of the first wavelet.
+    pub l1: usize,
+    /// Scale of the second wavelet (order 2 only).
+    pub j2: Option<usize>,
+    /// Orientation of the second wavelet (order 2 only).
+    pub l2: Option<usize>,
+}
+
+impl CrossLabel {
+    /// The column name of this coefficient, e.g. `cross_bandpower_ab_j2_l0`,
+    /// `cross_envelope1_a_on_b_j2_l0`, `cross_envelope2_b_on_a_j1_l0_j2_l3`.
+    pub fn name(&self) -> String {
+        let tag = self.direction.tag();
+        match self.kind {
+            CrossKind::CrossBandPower => format!("cross_bandpower_{tag}_j{}_l{}", self.j1, self.l1),
+            CrossKind::EnvelopeFirstOrder => {
+                format!("cross_envelope1_{tag}_j{}_l{}", self.j1, self.l1)
+            }
+            CrossKind::EnvelopeSecondOrder => format!(
+                "cross_envelope2_{tag}_j{}_l{}_j{}_l{}",
+                self.j1,
+                self.l1,
+                self.j2.unwrap_or(0),
+                self.l2.unwrap_or(0)
+            ),
+        }
+    }
+}
+
+/// The labels of the cross set for J scales and L orientations, in the transform's order:
+/// P_AB(j,l); X1 A←B (j,l); X1 B←A (j,l); X2 A←B (j1,l1,j2,l2); X2 B←A (j1,l1,j2,l2), with
+/// (j,l) nested as j, l and order 2 nested as j1, l1, j2 > j1, l2 (as in [`coefficient_labels`]).
+pub fn cross_labels(scale_count: usize, orientation_count: usize) -> Vec<CrossLabel> {
+    let mut labels = Vec::new();
+    let first = [
+        (CrossKind::CrossBandPower, CrossDirection::Both),
+        (
+            CrossKind::EnvelopeFirstOrder,
+            CrossDirection::FirstAgainstSecondModulus,
+        ),
+        (
+            CrossKind::EnvelopeFirstOrder,
+            CrossDirection::SecondAgainstFirstModulus,
+        ),
+    ];
+    for (kind, direction) in first {
+        for j in 0..scale_count {
+            for l in 0..orientation_count {
+                labels.push(CrossLabel {
+                    kind,
+                    direction,
+                    order: 1,
+                    j1: j,
+                    l1: l,
+                    j2: None,
+                    l2: None,
+                });
+            }
+        }
+    }
+    for direction in [
+        CrossDirection::FirstAgainstSecondModulus,
+        CrossDirection::SecondAgainstFirstModulus,
+    ] {
+        for j1 in 0..scale_count {
+            for l1 in 0..orientation_count {
+                for j2 in (j1 + 1)..scale_count {
+                    for l2 in 0..orientation_count {
+                        labels.push(CrossLabel {
+                            kind: CrossKind::EnvelopeSecondOrder,
+                            direction,
+                            order: 2,
+                            j1,
+                            l1,
+                            j2: Some(j2),
+                            l2: Some(l2),
+                        });
+                    }
+                }
+            }
+        }
+    }
+    labels
+}
+
+/// One pooled cross coefficient with its label.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct CrossCoefficient {
+    /// Which coefficient this is.
+    #[serde(flatten)]
+    pub label: CrossLabel,
+    /// Pooled value (NaN, serialised as null, when no pooling weight remained).
+    pub value: f64,
+    /// True when the kept pooling weight is at least the trusted fraction of the footprint.
+    pub trusted: bool,
+    /// Kept pooling weight over footprint weight.
+    pub kept_weight_fraction: f64,
+}
+
+/// The cross coefficients of two maps on their common footprint.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct CrossCoefficientSet {
+    /// Number of scales J.
+    pub scale_count: usize,
+    /// Number of orientations L.
+    pub orientation_count: usize,
+    /// Coefficients in the order of [`cross_labels`].
+    pub coefficients: Vec<CrossCoefficient>,
+}
+
+impl CrossCoefficientSet {
+    /// The coefficient with this label, if present.
+    pub fn get(&self, label: &CrossLabel) -> Option<&CrossCoefficient> {
+        self.coefficients.iter().find(|c| &c.label == label)
+    }
+
+    fn first_block(&self, block: usize, j: usize, l: usize) -> &CrossCoefficient {
+        let jl = self.scale_count * self.orientation_count;
+        &self.coefficients[block * jl + j * self.orientation_count + l]
+    }
+
+    /// P_AB(j,l). Panics if j ≥ J or l ≥ L.
+    pub fn band_power(&self, j: usize, l: usize) -> &CrossCoefficient {
+        self.first_block(0, j, l)
+    }
+
+    /// X1(j,l) in the given direction (`Both` is not an X1 direction and panics).
+    /// Panics if j ≥ J or l ≥ L.
+    pub fn envelope_first_order(
+        &self,
+        direction: CrossDirection,
+        j: usize,
+        l: usize,
+    ) -> &CrossCoefficient {
+        match direction {
+            CrossDirection::FirstAgainstSecondModulus => self.first_block(1, j, l),
+            CrossDirection::SecondAgainstFirstModulus => self.first_block(2, j, l),
+            CrossDirection::Both => panic!("X1 has a direction: A against B or B against A"),
+        }
+    }
+
+    /// X2(j1,l1,j2,l2) in the given direction, for j1 < j2 < J. Panics outside that range or
+    /// for `Both`.
+    pub fn envelope_second_order(
+        &self,
+        direction: CrossDirection,
+        j1: usize,
+        l1: usize,
+        j2: usize,
+        l2: usize,
+    ) -> &CrossCoefficient {
+        let (jn, ln) = (self.scale_count, self.orientation_count);
+        let second_count = ln * ln * jn * jn.saturating_sub(1) / 2;
+        let block = match direction {
+            CrossDirection::FirstAgainstSecondModulus => 0,
+            CrossDirection::SecondAgainstFirstModulus => 1,
+            CrossDirection::Both => panic!("X2 has a direction: A against B or B against A"),
+        };
+        let mut idx = 3 * jn * ln + block * second_count;
+        for a in 0..j1 {
+            idx += ln * (jn - a - 1) * ln;
+        }
+        idx += l1 * (jn - j1 - 1) * ln + (j2 - j1 - 1) * ln + l2;
+        &self.coefficients[idx]
+    }
+}

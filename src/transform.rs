@@ -54,6 +54,46 @@
 //!    treats the border like any other edge. The low-pass φ_J of the bank is not used by the
 //!    coefficients.
 //!
+//! # Cross statistics of two maps
+//!
+//! Two maps A and B (e.g. lensing convergence and galaxy density) are measured on one tile with
+//! a common taper a and pooling weight w ([`TilePairView`]): their footprint is the intersection
+//! of the two, so both fields see the same coverage N_j, the same trust cuts W_j, W_{j1,j2} and
+//! the same Fourier cropping as the auto path above. With I_X = a(f_X − μ_{a,X}),
+//! g^X_{j,l} = I_X∗ψ_{j,l} and the normalised modulus U^X_{j,l} = |g^X_{j,l}|/√N_j (X = A, B):
+//!
+//! * **cross band power** P_AB(j,l) = ⟨Re[g^A_{j,l} · conj(g^B_{j,l})] / N_j⟩_{W_j}. It is the
+//!   band power of the auto path with one factor replaced by the other map, so P_AA = P(j,l)
+//!   (equal to rounding), it is bilinear (P_{A,cB} = c·P_AB) and E[P_AB] is the Parseval sum
+//!   Σ_q P_AB(q) |ψ̂_{j,l}(q)|² of the cross spectrum in the band (Wiener–Khinchin for the
+//!   cross-correlation, common practice). The same coverage normalisation as the auto band
+//!   power makes it unbiased away from edges for jointly stationary fields.
+//! * **one map against the other's modulus**, order 1:
+//!   X1_{A←B}(j,l) = ⟨I_A^{(j)} · (U^B_{j,l} − μ_{U^B})⟩_{W_j}, with μ_{U^B} the tile's
+//!   taper-weighted mean of U^B_{j,l} (the mean the second order of B subtracts) and I_A^{(j)}
+//!   the filter input of A low-passed to the Fourier box of scale j (on the uncropped grid
+//!   I_A itself; the pooled product only sees the band of the envelope U^B, so the low-pass
+//!   changes it only by the part of U^B outside the box, as for the auto path). It is the
+//!   covariance of map A with the local amplitude of map B's fluctuations at scale j: large-scale
+//!   A modulating small-scale B (a squeezed-bispectrum-like cross moment; units of A times B).
+//!   X1_{B←A} swaps the maps.
+//! * **one map against the other's modulus**, order 2, j2 > j1:
+//!   X2_{A←B}(j1,l1,j2,l2) = ⟨Re[(I_A∗ψ_{j2,l2}) · conj(Ĩ^B_{j1,l1}∗ψ_{j2,l2})] / N_{j2}⟩_{W_{j1,j2}},
+//!   Ĩ^B_{j1,l1} = a·(U^B_{j1,l1} − μ_{U^B}): the cross band power, at scale j2, of map A with the
+//!   envelope of B at scale j1 — the auto S2 input of B against A's own first-layer field at
+//!   (j2, l2). X2_{B←A} swaps the maps.
+//!
+//! No further normalisation is applied (values carry the units of A·B); a dimensionless
+//! correlation coefficient is P_AB / √(P_AA P_BB). Expectations (checked in
+//! `tests/scattering_cross.rs`): for independent fields every cross statistic vanishes (one
+//! factor has zero mean and is independent of the other); for Gaussian fields X1 and X2 vanish
+//! also when A = B (they are odd in I under I → −I, which leaves U unchanged); for
+//! B = r·A + √(1−r²)·Y with Y independent of A and of A's spectrum, E[P_AB] = r·√(E P_AA · E P_BB).
+//!
+//! Cost: the first-layer fields g^A, g^B and the second-layer fields of both auto transforms are
+//! reused; beyond two auto transforms with a shared coverage, the cross set needs one inverse
+//! FFT per map and crop level (the low-passed inputs) and products only.
+//!
 //! # Fourier cropping (speed)
 //!
 //! Scale j is computed on a grid subsampled by 2^{d_j}: the spectrum is cropped to the central
@@ -80,8 +120,8 @@
 //! few n² arrays plus the pooling weights, independent of the number of tiles.
 
 use crate::filters::MorletBank;
-use crate::pooling::TileSums;
-use crate::statistics::CoefficientLabel;
+use crate::pooling::{PairTileSums, TileSums};
+use crate::statistics::{CoefficientLabel, CrossLabel};
 use crate::{Error, Result};
 use num_complex::Complex64;
 use rayon::prelude::*;
@@ -134,6 +174,20 @@ pub struct TileView<'a> {
     pub weight: &'a [f64],
 }
 
+/// Two maps on one tile: both fields share the taper (the apodized intersection of the two
+/// footprints) and the pooling weight; arrays as in [`TileView`].
+#[derive(Debug, Clone, Copy)]
+pub struct TilePairView<'a> {
+    /// Field values of the first map, f_A(x).
+    pub first: &'a [f64],
+    /// Field values of the second map, f_B(x).
+    pub second: &'a [f64],
+    /// Common apodized taper a(x) ∈ [0, 1].
+    pub taper: &'a [f64],
+    /// Common pooling weight w(x) ≥ 0.
+    pub weight: &'a [f64],
+}
+
 /// Time spent inside FFT calls during one tile, measured by [`ScatteringEngine::transform_tile_timed`].
 #[derive(Debug, Clone, Copy, Default, PartialEq)]
 pub struct FftTiming {
@@ -182,6 +236,7 @@ pub struct ScatteringEngine {
     cropped_wavelets: Vec<Vec<f64>>,
     coverage_kernels: Vec<Vec<f64>>,
     labels: Vec<CoefficientLabel>,
+    cross_labels: Vec<CrossLabel>,
 }
 
 impl std::fmt::Debug for ScatteringEngine {
@@ -365,6 +420,7 @@ impl ScatteringEngine {
             coverage_kernels.push(kernel);
         }
         let labels = crate::statistics::coefficient_labels(scale_count, orientation_count);
+        let cross_labels = crate::statistics::cross_labels(scale_count, orientation_count);
         Ok(Self {
             bank,
             settings,
@@ -373,6 +429,7 @@ impl ScatteringEngine {
             cropped_wavelets,
             coverage_kernels,
             labels,
+            cross_labels,
         })
     }
 
@@ -530,34 +587,82 @@ impl ScatteringEngine {
     }
 
     fn run(&self, tile: &TileView<'_>, clock: &mut FftClock) -> Result<TileSums> {
+        let (mut autos, _) = self.run_fields(&[tile.field], tile.taper, tile.weight, clock)?;
+        autos
+            .pop()
+            .ok_or_else(|| Error::Data("no field was transformed".into()))
+    }
+
+    /// Transform two maps on one tile sharing its taper and pooling weight (the footprint is
+    /// the intersection of the two maps' footprints): the auto sums of each field, bitwise
+    /// identical to [`Self::transform_tile`] of that field alone, and the cross sums in the
+    /// order of [`Self::cross_labels`] (definitions in the module documentation). The FFTs of
+    /// the auto path are shared: the cross set costs no FFT beyond one low-pass of each
+    /// field's input per crop level.
+    pub fn transform_tile_pair(&self, tile: &TilePairView<'_>) -> Result<PairTileSums> {
+        let mut clock = FftClock {
+            on: false,
+            timing: FftTiming::default(),
+        };
+        let (mut autos, cross) = self.run_fields(
+            &[tile.first, tile.second],
+            tile.taper,
+            tile.weight,
+            &mut clock,
+        )?;
+        let second = autos.pop();
+        let first = autos.pop();
+        match (first, second, cross) {
+            (Some(first), Some(second), Some(cross)) => Ok(PairTileSums {
+                first,
+                second,
+                cross,
+            }),
+            _ => Err(Error::Data("the pair transform lost a field".into())),
+        }
+    }
+
+    /// Labels of the cross coefficients, in the order of [`PairTileSums::cross`].
+    pub fn cross_labels(&self) -> &[CrossLabel] {
+        &self.cross_labels
+    }
+
+    /// The estimator for one field, or for two fields plus their cross sums.
+    fn run_fields(
+        &self,
+        fields: &[&[f64]],
+        a: &[f64],
+        w: &[f64],
+        clock: &mut FftClock,
+    ) -> Result<(Vec<TileSums>, Option<TileSums>)> {
         let n = self.size();
         let nn = n * n;
         let big_j = self.scale_count();
         let big_l = self.orientation_count();
-        check_values("field", tile.field, nn, n)?;
-        check_values("taper", tile.taper, nn, n)?;
-        check_values("weight", tile.weight, nn, n)?;
-        if let Some(i) = tile.taper.iter().position(|&a| !(0.0..=1.0).contains(&a)) {
+        let pair = fields.len() == 2;
+        let names: &[&str] = if pair {
+            &["first field", "second field"]
+        } else {
+            &["field"]
+        };
+        for (f, name) in fields.iter().zip(names) {
+            check_values(name, f, nn, n)?;
+        }
+        check_values("taper", a, nn, n)?;
+        check_values("weight", w, nn, n)?;
+        if let Some(i) = a.iter().position(|&a| !(0.0..=1.0).contains(&a)) {
             return Err(Error::Data(format!(
                 "tile taper must lie in [0, 1], got {} at pixel {i}",
-                tile.taper[i]
+                a[i]
             )));
         }
-        if let Some(i) = tile.weight.iter().position(|&w| w < 0.0) {
+        if let Some(i) = w.iter().position(|&w| w < 0.0) {
             return Err(Error::Data(format!(
                 "tile pooling weight must be non-negative, got {} at pixel {i}",
-                tile.weight[i]
+                w[i]
             )));
         }
-        let (f, a, w) = (tile.field, tile.taper, tile.weight);
-        let mut sw = 0.0;
-        let mut swf = 0.0;
-        let mut swf2 = 0.0;
-        for i in 0..nn {
-            sw += w[i];
-            swf += w[i] * f[i];
-            swf2 += w[i] * f[i] * f[i];
-        }
+        let sw: f64 = w.iter().sum();
         if sw <= 0.0 {
             return Err(Error::Data(
                 "tile pooling weights sum to zero: no pixel to pool".into(),
@@ -569,9 +674,23 @@ impl ScatteringEngine {
                 "tile taper is zero everywhere: nothing to filter".into(),
             ));
         }
-        let mu = a.iter().zip(f).map(|(a, f)| a * f).sum::<f64>() / sa;
-        let input: Vec<f64> = a.iter().zip(f).map(|(a, f)| a * (f - mu)).collect();
-        let spectrum = self.real_spectrum(0, &input, clock);
+        // Order 0 and the filter inputs I = a(f − μ_a) of every field.
+        let mut order_zero = Vec::with_capacity(fields.len());
+        let mut inputs = Vec::with_capacity(fields.len());
+        let mut spectra = Vec::with_capacity(fields.len());
+        for f in fields {
+            let mut swf = 0.0;
+            let mut swf2 = 0.0;
+            for i in 0..nn {
+                swf += w[i] * f[i];
+                swf2 += w[i] * f[i] * f[i];
+            }
+            order_zero.push((swf, swf2));
+            let mu = a.iter().zip(f.iter()).map(|(a, f)| a * f).sum::<f64>() / sa;
+            let input: Vec<f64> = a.iter().zip(f.iter()).map(|(a, f)| a * (f - mu)).collect();
+            spectra.push(self.real_spectrum(0, &input, clock));
+            inputs.push(input);
+        }
 
         // Coverage N_j = a² ∗ K_j at full resolution, and the trust masks.
         let a2: Vec<f64> = a.iter().map(|a| a * a).collect();
@@ -606,111 +725,218 @@ impl ScatteringEngine {
             first_trusted.push(wj.iter().sum::<f64>());
             first_weights.push(self.low_pass(&wj, level, clock));
         }
+        // Pooling weights of the pairs (j1, j2), low-passed to the level of j2.
+        let pair_weights: Vec<Vec<(Vec<f64>, f64)>> = (0..big_j)
+            .map(|j1| {
+                ((j1 + 1)..big_j)
+                    .map(|j2| {
+                        let wp: Vec<f64> = (0..nn)
+                            .map(|i| {
+                                if trust[j1][i] && trust[j2][i] {
+                                    w[i]
+                                } else {
+                                    0.0
+                                }
+                            })
+                            .collect();
+                        let total = wp.iter().sum::<f64>();
+                        (self.low_pass(&wp, self.levels[j2], clock), total)
+                    })
+                    .collect()
+            })
+            .collect();
         let top = self.levels.iter().copied().max().unwrap_or(0);
         let tapers: Vec<Vec<f64>> = (0..=top).map(|d| subsample(a, n, n >> d)).collect();
 
         let first_count = big_j * big_l;
-        let mut sums = vec![0.0; self.labels.len()];
-        let mut weights = vec![0.0; self.labels.len()];
-        sums[0] = swf;
-        weights[0] = sw;
-        sums[1] = swf2;
-        weights[1] = sw;
         let s1_base = 2;
         let p_base = 2 + first_count;
-        let mut s2_index = 2 + 2 * first_count;
-        let mut g2: Vec<Complex64> = Vec::with_capacity(nn);
-
-        for j1 in 0..big_j {
-            let d1 = self.levels[j1];
-            let m1 = n >> d1;
-            let factor1 = (1usize << (2 * d1)) as f64;
-            let spec1 = crop_box(&spectrum, n, m1);
-            // Pooling weights of the pairs (j1, j2), low-passed to the level of j2.
-            let pair_weights: Vec<(Vec<f64>, f64)> = ((j1 + 1)..big_j)
-                .map(|j2| {
-                    let wp: Vec<f64> = (0..nn)
-                        .map(|i| {
-                            if trust[j1][i] && trust[j2][i] {
-                                w[i]
-                            } else {
-                                0.0
-                            }
-                        })
+        let mut sums = vec![vec![0.0; self.labels.len()]; fields.len()];
+        let mut weights = vec![0.0; self.labels.len()];
+        weights[0] = sw;
+        weights[1] = sw;
+        for (s, &(swf, swf2)) in sums.iter_mut().zip(&order_zero) {
+            s[0] = swf;
+            s[1] = swf2;
+        }
+        let scale = 1.0 / nn as f64;
+        // First layer of every field: g_{j,l} (kept for the cross sums), U_{j,l} and μ_U.
+        let mut layer_g: Vec<Vec<Vec<Complex64>>> = vec![Vec::new(); fields.len()];
+        let mut layer_u: Vec<Vec<Vec<f64>>> = vec![Vec::new(); fields.len()];
+        let mut layer_mu: Vec<Vec<f64>> = vec![Vec::new(); fields.len()];
+        for k in 0..fields.len() {
+            for j1 in 0..big_j {
+                let d1 = self.levels[j1];
+                let m1 = n >> d1;
+                let factor1 = (1usize << (2 * d1)) as f64;
+                let spec1 = crop_box(&spectra[k], n, m1);
+                for l1 in 0..big_l {
+                    let psi = &self.cropped_wavelets[j1 * big_l + l1];
+                    let mut g: Vec<Complex64> = spec1.iter().zip(psi).map(|(s, p)| s * p).collect();
+                    self.fft2(d1, &mut g, true, clock);
+                    let inv_sqrt_cov = &coverage_coarse[j1];
+                    let u: Vec<f64> = g
+                        .iter()
+                        .zip(inv_sqrt_cov)
+                        .map(|(z, &c)| z.norm_sqr().sqrt() * scale * c)
                         .collect();
-                    let total = wp.iter().sum::<f64>();
-                    (self.low_pass(&wp, self.levels[j2], clock), total)
-                })
-                .collect();
-            for l1 in 0..big_l {
-                let psi = &self.cropped_wavelets[j1 * big_l + l1];
-                let mut g: Vec<Complex64> = spec1.iter().zip(psi).map(|(s, p)| s * p).collect();
-                self.fft2(d1, &mut g, true, clock);
-                let scale = 1.0 / nn as f64;
-                let inv_sqrt_cov = &coverage_coarse[j1];
-                let u: Vec<f64> = g
-                    .iter()
-                    .zip(inv_sqrt_cov)
-                    .map(|(z, &c)| z.norm_sqr().sqrt() * scale * c)
-                    .collect();
-                let wl = &first_weights[j1];
-                let mut s1 = 0.0;
-                let mut p = 0.0;
-                for (wv, uv) in wl.iter().zip(&u) {
-                    s1 += wv * uv;
-                    p += wv * uv * uv;
-                }
-                let idx = j1 * big_l + l1;
-                sums[s1_base + idx] = s1 * factor1;
-                weights[s1_base + idx] = first_trusted[j1];
-                sums[p_base + idx] = p * factor1;
-                weights[p_base + idx] = first_trusted[j1];
-
-                if j1 + 1 >= big_j {
-                    continue;
-                }
-                let ad = &tapers[d1];
-                let sad: f64 = ad.iter().sum();
-                let mu_u = if sad > 0.0 {
-                    ad.iter().zip(&u).map(|(a, u)| a * u).sum::<f64>() / sad
-                } else {
-                    0.0
-                };
-                let second_input: Vec<f64> =
-                    ad.iter().zip(&u).map(|(a, u)| a * (u - mu_u)).collect();
-                let spec2 = self.real_spectrum(d1, &second_input, clock);
-                for (pair, j2) in ((j1 + 1)..big_j).enumerate() {
-                    let d2 = self.levels[j2];
-                    let m2 = n >> d2;
-                    let factor2 = (1usize << (2 * d2)) as f64;
-                    let spec2c = if m2 == m1 {
-                        std::borrow::Cow::Borrowed(&spec2[..])
+                    let wl = &first_weights[j1];
+                    let mut s1 = 0.0;
+                    let mut p = 0.0;
+                    for (wv, uv) in wl.iter().zip(&u) {
+                        s1 += wv * uv;
+                        p += wv * uv * uv;
+                    }
+                    let idx = j1 * big_l + l1;
+                    sums[k][s1_base + idx] = s1 * factor1;
+                    weights[s1_base + idx] = first_trusted[j1];
+                    sums[k][p_base + idx] = p * factor1;
+                    weights[p_base + idx] = first_trusted[j1];
+                    let ad = &tapers[d1];
+                    let sad: f64 = ad.iter().sum();
+                    let mu_u = if sad > 0.0 {
+                        ad.iter().zip(&u).map(|(a, u)| a * u).sum::<f64>() / sad
                     } else {
-                        std::borrow::Cow::Owned(crop_box(&spec2, m1, m2))
+                        0.0
                     };
-                    let inv_sqrt_cov2 = &coverage_coarse[j2];
-                    let (wp, wtotal) = &pair_weights[pair];
-                    let scale2 = 1.0 / (m1 * m1) as f64;
-                    for l2 in 0..big_l {
-                        let psi2 = &self.cropped_wavelets[j2 * big_l + l2];
-                        g2.clear();
-                        g2.extend(spec2c.iter().zip(psi2).map(|(s, p)| s * p));
-                        self.fft2(d2, &mut g2, true, clock);
-                        let mut s2 = 0.0;
-                        for ((z, &c), wv) in g2.iter().zip(inv_sqrt_cov2).zip(wp) {
-                            s2 += wv * z.norm_sqr().sqrt() * c;
-                        }
-                        sums[s2_index] = s2 * factor2 * scale2;
-                        weights[s2_index] = *wtotal;
-                        s2_index += 1;
+                    layer_mu[k].push(mu_u);
+                    layer_u[k].push(u);
+                    if pair {
+                        layer_g[k].push(g);
                     }
                 }
             }
         }
-        Ok(TileSums {
+
+        // Cross sums: P_AB and X1 in both directions.
+        let cross_len = self.cross_labels.len();
+        let mut cross_sums = vec![0.0; cross_len];
+        let mut cross_weights = vec![0.0; cross_len];
+        let second_count = big_l * big_l * big_j * big_j.saturating_sub(1) / 2;
+        if pair {
+            // I_A and I_B low-passed to each crop level (the band of the envelope U).
+            let lowpassed: Vec<Vec<Vec<f64>>> = (0..2)
+                .map(|k| {
+                    (0..=top)
+                        .map(|d| {
+                            if d == 0 {
+                                return inputs[k].clone();
+                            }
+                            let mut c = crop_box(&spectra[k], n, n >> d);
+                            self.fft2(d, &mut c, true, clock);
+                            c.iter().map(|z| z.re * scale).collect()
+                        })
+                        .collect()
+                })
+                .collect();
+            for j in 0..big_j {
+                let d = self.levels[j];
+                let factor = (1usize << (2 * d)) as f64;
+                let wl = &first_weights[j];
+                let c = &coverage_coarse[j];
+                for l in 0..big_l {
+                    let idx = j * big_l + l;
+                    let (ga, gb) = (&layer_g[0][idx], &layer_g[1][idx]);
+                    let mut p = 0.0;
+                    for (((wv, za), zb), cv) in wl.iter().zip(ga).zip(gb).zip(c) {
+                        p += wv * (za.re * zb.re + za.im * zb.im) * scale * scale * cv * cv;
+                    }
+                    cross_sums[idx] = p * factor;
+                    cross_weights[idx] = first_trusted[j];
+                    // X1: block 1 is A against B's modulus, block 2 B against A's modulus.
+                    for (block, (field, envelope)) in [(0usize, 1usize), (1, 0)].iter().enumerate()
+                    {
+                        let i_field = &lowpassed[*field][d];
+                        let u = &layer_u[*envelope][idx];
+                        let mu = layer_mu[*envelope][idx];
+                        let mut x = 0.0;
+                        for ((wv, iv), uv) in wl.iter().zip(i_field).zip(u) {
+                            x += wv * iv * (uv - mu);
+                        }
+                        let at = (block + 1) * first_count + idx;
+                        cross_sums[at] = x * factor;
+                        cross_weights[at] = first_trusted[j];
+                    }
+                }
+            }
+        }
+
+        // Second order of every field; with two fields also X2 in both directions.
+        let mut g2: Vec<Complex64> = Vec::with_capacity(nn);
+        for k in 0..fields.len() {
+            let mut s2_index = 2 + 2 * first_count;
+            // X2 with this field's envelope: block 0 (A ← B) when k is B, block 1 when k is A.
+            let x2_block = if k == 1 { 0 } else { 1 };
+            let mut x2_index = 3 * first_count + x2_block * second_count;
+            for (j1, pair_weights_j1) in pair_weights.iter().enumerate() {
+                if j1 + 1 >= big_j {
+                    continue;
+                }
+                let d1 = self.levels[j1];
+                let m1 = n >> d1;
+                for l1 in 0..big_l {
+                    let idx1 = j1 * big_l + l1;
+                    let u = &layer_u[k][idx1];
+                    let mu_u = layer_mu[k][idx1];
+                    let ad = &tapers[d1];
+                    let second_input: Vec<f64> =
+                        ad.iter().zip(u).map(|(a, u)| a * (u - mu_u)).collect();
+                    let spec2 = self.real_spectrum(d1, &second_input, clock);
+                    for (pair_index, j2) in ((j1 + 1)..big_j).enumerate() {
+                        let d2 = self.levels[j2];
+                        let m2 = n >> d2;
+                        let factor2 = (1usize << (2 * d2)) as f64;
+                        let spec2c = if m2 == m1 {
+                            std::borrow::Cow::Borrowed(&spec2[..])
+                        } else {
+                            std::borrow::Cow::Owned(crop_box(&spec2, m1, m2))
+                        };
+                        let inv_sqrt_cov2 = &coverage_coarse[j2];
+                        let (wp, wtotal) = &pair_weights_j1[pair_index];
+                        let scale2 = 1.0 / (m1 * m1) as f64;
+                        for l2 in 0..big_l {
+                            let psi2 = &self.cropped_wavelets[j2 * big_l + l2];
+                            g2.clear();
+                            g2.extend(spec2c.iter().zip(psi2).map(|(s, p)| s * p));
+                            self.fft2(d2, &mut g2, true, clock);
+                            let mut s2 = 0.0;
+                            for ((z, &c), wv) in g2.iter().zip(inv_sqrt_cov2).zip(wp) {
+                                s2 += wv * z.norm_sqr().sqrt() * c;
+                            }
+                            sums[k][s2_index] = s2 * factor2 * scale2;
+                            weights[s2_index] = *wtotal;
+                            s2_index += 1;
+                            if pair {
+                                // the other field filtered at (j2, l2), on the same grid
+                                let other = &layer_g[1 - k][j2 * big_l + l2];
+                                let mut x = 0.0;
+                                for (((z, o), &c), wv) in
+                                    g2.iter().zip(other).zip(inv_sqrt_cov2).zip(wp)
+                                {
+                                    x += wv * (o.re * z.re + o.im * z.im) * c * c;
+                                }
+                                cross_sums[x2_index] = x * factor2 * scale2 * scale;
+                                cross_weights[x2_index] = *wtotal;
+                                x2_index += 1;
+                            }
+                        }
+                    }
+                }
+            }
+        }
+        let autos = sums
+            .into_iter()
+            .map(|s| TileSums {
+                footprint_weight: sw,
+                sums: s,
+                weights: weights.clone(),
+            })
+            .collect();
+        let cross = pair.then_some(TileSums {
             footprint_weight: sw,
-            sums,
-            weights,
-        })
+            sums: cross_sums,
+            weights: cross_weights,
+        });
+        Ok((autos, cross))
     }
 }

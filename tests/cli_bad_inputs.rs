@@ -25,7 +25,23 @@ impl Fixtures {
             &WriteOptions::default(),
         )
         .unwrap();
+        let nan_north = SkyMap::from_fn(pix16, |d| if d.theta < 1.5 { f64::NAN } else { 1.0 });
+        write_map(
+            &p("nan_north16.fits"),
+            "SIGNAL",
+            &nan_north,
+            &WriteOptions::default(),
+        )
+        .unwrap();
         let pix8 = Pixelization::new(8, Ordering::Ring).unwrap();
+        let map8 = SkyMap::from_fn(pix8, |d| d.theta.cos());
+        write_map(&p("map8.fits"), "SIGNAL", &map8, &WriteOptions::default()).unwrap();
+        for (name, north) in [("north16.fits", true), ("south16.fits", false)] {
+            let half = Footprint::from_fn(pix16, |d| {
+                (d.theta < 1.5) == north && d.theta.cos().abs() > 0.1
+            });
+            write_footprint(&p(name), "MASK", &half, &WriteOptions::default()).unwrap();
+        }
         write_footprint(
             &p("mask8.fits"),
             "MASK",
@@ -125,6 +141,74 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
         (
             s(&["spectra", &map, "--mask", &f.path("mask8.fits")]),
             "does not match",
+        ),
+        // measure --cross: a second map that cannot be paired with the first
+        (
+            s(&["measure", &map, "-o", &out, "--cross", &f.path("map8.fits")]),
+            "has NSIDE 16 but",
+        ),
+        (
+            s(&[
+                "measure",
+                &map,
+                "-o",
+                &out,
+                "--cross",
+                &map,
+                "--cross-mask",
+                &f.path("mask8.fits"),
+            ]),
+            "mask NSIDE 8 does not match map NSIDE 16",
+        ),
+        (
+            s(&[
+                "measure",
+                &map,
+                "-o",
+                &out,
+                "--mask",
+                &f.path("north16.fits"),
+                "--cross",
+                &map,
+                "--cross-mask",
+                &f.path("south16.fits"),
+            ]),
+            "the two footprints do not overlap",
+        ),
+        (
+            s(&[
+                "measure",
+                &map,
+                "-o",
+                &out,
+                "--mask",
+                &f.path("north16.fits"),
+                "--cross",
+                &f.path("nan_north16.fits"),
+            ]),
+            "the two footprints do not overlap",
+        ),
+        (
+            s(&[
+                "measure",
+                &map,
+                "-o",
+                &out,
+                "--cross",
+                &f.path("allbad16.fits"),
+            ]),
+            "every pixel is bad (UNSEEN or NaN)",
+        ),
+        (
+            s(&[
+                "measure",
+                &map,
+                "-o",
+                &out,
+                "--cross-mask",
+                &f.path("north16.fits"),
+            ]),
+            "--cross",
         ),
         // options
         (

@@ -43,16 +43,7 @@ impl MaskArgs {
     /// The footprint to use with `map`: the mask (or the map's valid pixels), matched to the
     /// map and tapered.
     pub fn footprint_for(&self, map: &SkyMap) -> Result<Footprint> {
-        let raw = match &self.mask {
-            Some(path) => {
-                let (fp, header) = read_footprint(path, &self.mask_column)?;
-                for w in &header.warnings {
-                    eprintln!("planisphere: warning: {}: {w}", path.display());
-                }
-                fp.restricted_to(map)?
-            }
-            None => Footprint::of_valid_pixels(map).restricted_to(map)?,
-        };
+        let raw = untapered_footprint(map, self.mask.as_deref(), &self.mask_column)?;
         self.taper_footprint(raw)
     }
 
@@ -73,5 +64,24 @@ impl MaskArgs {
             return Ok(raw);
         }
         apodize(&raw, self.taper, (self.taper_arcmin / 60.0).to_radians())
+    }
+}
+
+/// The untapered footprint of `map`: the mask file (or the map's valid pixels), brought to the
+/// map's ordering, without the map's bad pixels.
+pub fn untapered_footprint(
+    map: &SkyMap,
+    mask: Option<&std::path::Path>,
+    column: &ColumnChoice,
+) -> Result<Footprint> {
+    match mask {
+        Some(path) => {
+            let (fp, header) = read_footprint(path, column)?;
+            for w in &header.warnings {
+                eprintln!("planisphere: warning: {}: {w}", path.display());
+            }
+            fp.restricted_to(map)
+        }
+        None => Footprint::of_valid_pixels(map).restricted_to(map),
     }
 }

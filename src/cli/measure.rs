@@ -1,13 +1,14 @@
 //! `planisphere measure`: scattering coefficients, compact set, band powers, tile power spectrum
-//! and bispectrum of one map on its footprint, written as JSON.
+//! and bispectrum of one map on its footprint, written as JSON; with `--cross OTHER.fits`, the
+//! same for both maps on their common footprint plus their cross statistics.
 
-use super::inputs::{load_map, MaskArgs};
+use super::inputs::{load_map, untapered_footprint, MaskArgs};
 use super::output::write_json;
 use crate::error::{Error, Result};
 use crate::fits_io::ColumnChoice;
-use crate::measurement::{MapStatistics, MeasurementSettings, SphereMeasurer};
+use crate::measurement::{MapStatistics, MeasurementSettings, PairStatistics, SphereMeasurer};
 use crate::sampling::SamplingMethod;
-use crate::statistics::CoefficientKind;
+use crate::statistics::{CoefficientKind, CrossCoefficient, CrossDirection, CrossKind};
 use std::path::{Path, PathBuf};
 
 /// How the sky is read at tile pixels.
@@ -123,7 +124,8 @@ impl MeasureOptions {
     }
 }
 
-/// Measure the scattering statistics of a map on its (masked) footprint.
+/// Measure the scattering statistics of a map on its (masked) footprint; with `--cross`, of two
+/// maps on their common footprint plus their cross statistics.
 #[derive(Debug, clap::Args)]
 pub struct MeasureArgs {
     /// The map (HEALPix FITS).
@@ -136,9 +138,103 @@ pub struct MeasureArgs {
     pub mask: MaskArgs,
     #[command(flatten)]
     pub options: MeasureOptions,
+    /// A second map (same NSIDE; another ordering is converted): measure both maps on their
+    /// common footprint and add their cross statistics (cross band powers, each map against
+    /// the other's wavelet modulus at orders 1 and 2) under "cross" in the JSON.
+    #[arg(long, value_name = "OTHER.fits")]
+    pub cross: Option<PathBuf>,
+    /// Column of the second map's file: 0-based position or name.
+    #[arg(long, value_name = "COLUMN", default_value = "0", requires = "cross")]
+    pub cross_column: ColumnChoice,
+    /// Mask or weight map of the second map [default: its valid pixels]; the common footprint
+    /// is the smaller of the two weights per pixel, then tapered by --taper.
+    #[arg(long, value_name = "MASK.fits", requires = "cross")]
+    pub cross_mask: Option<PathBuf>,
+    /// Column of the second mask file: 0-based position or name.
+    #[arg(
+        long,
+        value_name = "COLUMN",
+        default_value = "0",
+        requires = "cross_mask"
+    )]
+    pub cross_mask_column: ColumnChoice,
     /// Output JSON file.
     #[arg(long, short, value_name = "FILE.json")]
     pub output: PathBuf,
+}
+
+/// One cross coefficient as written to the JSON file.
+#[derive(Debug, serde::Serialize)]
+struct CrossRecord {
+    name: String,
+    /// The map whose field enters linearly ("first", "second"; "both" for band powers).
+    field: &'static str,
+    /// The map whose wavelet modulus is used (absent for band powers).
+    modulus_of: Option<&'static str>,
+    order: u8,
+    j1: usize,
+    l1: usize,
+    j2: Option<usize>,
+    l2: Option<usize>,
+    value: Option<f64>,
+    trusted: bool,
+    kept_weight_fraction: f64,
+}
+
+fn cross_record(c: &CrossCoefficient) -> CrossRecord {
+    let (field, modulus_of) = match c.label.direction {
+        CrossDirection::Both => ("both", None),
+        CrossDirection::FirstAgainstSecondModulus => ("first", Some("second")),
+        CrossDirection::SecondAgainstFirstModulus => ("second", Some("first")),
+    };
+    CrossRecord {
+        name: c.label.name(),
+        field,
+        modulus_of,
+        order: c.label.order,
+        j1: c.label.j1,
+        l1: c.label.l1,
+        j2: c.label.j2,
+        l2: c.label.l2,
+        value: c.value.is_finite().then_some(c.value),
+        trusted: c.trusted,
+        kept_weight_fraction: c.kept_weight_fraction,
+    }
+}
+
+/// The "cross" section of a pair measurement: the second map's own statistics and the cross
+/// coefficients grouped by kind.
+fn cross_section(
+    measurer: &SphereMeasurer,
+    pair: &PairStatistics,
+    other: &str,
+    other_mask: Option<&Path>,
+    taper: &serde_json::Value,
+) -> serde_json::Value {
+    let own = measurement_document(measurer, &pair.second, other, taper);
+    let pick = |kind: CrossKind| -> Vec<CrossRecord> {
+        pair.cross
+            .coefficients
+            .iter()
+            .filter(|c| c.label.kind == kind)
+            .map(cross_record)
+            .collect()
+    };
+    serde_json::json!({
+        "map": other,
+        "mask": other_mask.map(|p| p.display().to_string()),
+        "footprint": "common footprint of both maps (smaller weight per pixel), tapered",
+        "map_statistics": {
+            "coefficients": own["coefficients"],
+            "compact": own["compact"],
+            "band_powers": own["band_powers"],
+            "tile_power_spectrum": own["tile_power_spectrum"],
+            "tile_bispectrum": own["tile_bispectrum"],
+        },
+        "cross_band_powers": pick(CrossKind::CrossBandPower),
+        "envelope_first_order": pick(CrossKind::EnvelopeFirstOrder),
+        "envelope_second_order": pick(CrossKind::EnvelopeSecondOrder),
+    })
 }
 
 /// One coefficient as written to the JSON file.
@@ -227,21 +323,77 @@ pub fn measurement_document(
     })
 }
 
-/// Measures one map and writes the JSON document.
+/// Measures one map (or a pair with `--cross`) and writes the JSON document.
 pub fn run(args: &MeasureArgs) -> Result<()> {
     super::output::check_output_path(&args.output)?;
     let settings = args.options.settings()?;
     let map = load_map(&args.map, &args.column)?;
-    let footprint = args.mask.footprint_for(&map)?;
+    let other = match &args.cross {
+        Some(path) => {
+            let other = load_map(path, &args.cross_column)?;
+            if other.valid_count() == 0 {
+                return Err(Error::Data(format!(
+                    "{}: every pixel is bad (UNSEEN or NaN): nothing to cross-correlate",
+                    path.display()
+                )));
+            }
+            if other.nside() != map.nside() {
+                return Err(Error::Mismatch(format!(
+                    "{} has NSIDE {} but {} has NSIDE {}: cross statistics need one pixelization",
+                    args.map.display(),
+                    map.nside(),
+                    path.display(),
+                    other.nside()
+                )));
+            }
+            Some(other.to_ordering(map.ordering())?)
+        }
+        None => None,
+    };
+    let footprint = match &other {
+        None => args.mask.footprint_for(&map)?,
+        Some(other) => {
+            let first =
+                untapered_footprint(&map, args.mask.mask.as_deref(), &args.mask.mask_column)?;
+            let second =
+                untapered_footprint(other, args.cross_mask.as_deref(), &args.cross_mask_column)
+                    .map_err(|e| match e {
+                        Error::Data(m) => Error::Data(format!("second map: {m}")),
+                        e => e,
+                    })?;
+            args.mask.taper_footprint(first.intersection(&second)?)?
+        }
+    };
     let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
     let summary = measurer.summary();
-    let stats = measurer.measure(&map, &footprint)?;
     let taper = serde_json::json!({
         "kind": format!("{:?}", args.mask.taper),
         "width_arcmin": args.mask.taper_arcmin,
         "mask": args.mask.mask.as_ref().map(|p| p.display().to_string()),
     });
-    let doc = measurement_document(&measurer, &stats, &args.map.display().to_string(), &taper);
+    let (stats, cross) = match &other {
+        None => (measurer.measure(&map, &footprint)?, None),
+        Some(other) => {
+            let pair = measurer.measure_pair(&map, other, &footprint)?;
+            let path = args.cross.as_deref().unwrap_or(Path::new(""));
+            let section = cross_section(
+                &measurer,
+                &pair,
+                &path.display().to_string(),
+                args.cross_mask.as_deref(),
+                &taper,
+            );
+            let trusted = pair.cross.coefficients.iter().filter(|c| c.trusted).count();
+            (
+                pair.first,
+                Some((section, pair.cross.coefficients.len(), trusted)),
+            )
+        }
+    };
+    let mut doc = measurement_document(&measurer, &stats, &args.map.display().to_string(), &taper);
+    if let (Some((section, _, _)), Some(o)) = (&cross, doc.as_object_mut()) {
+        o.insert("cross".into(), section.clone());
+    }
     write_json(&args.output, &doc)?;
     let trusted = stats
         .coefficients
@@ -260,6 +412,9 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
         stats.compact.len(),
         args.output.display()
     );
+    if let Some((_, count, trusted)) = &cross {
+        println!("  cross statistics with the second map: {count} ({trusted} trusted)");
+    }
     for c in &stats.compact {
         println!(
             "  {:<32} {:>13.6e}{}",

@@ -40,7 +40,8 @@ pub enum Command {
     /// Plan the tangent-plane tiles of a map's footprint and report their cost.
     Tiles(tiles::TilesArgs),
     Inspect(inspect::InspectArgs),
-    /// Measure scattering coefficients, band powers and tile spectra of a map on its footprint.
+    /// Measure scattering coefficients, band powers and tile spectra of a map on its footprint
+    /// (with --cross, of two maps on their common footprint, plus their cross statistics).
     Measure(measure::MeasureArgs),
     /// Measure many maps (files or simulations) into one table; resumable, shardable.
     Ensemble(ensemble::EnsembleArgs),
