@@ -304,6 +304,39 @@ pub(crate) fn subsample(data: &[f64], m_from: usize, m_to: usize) -> Vec<f64> {
     out
 }
 
+/// Checks a tile's taper a ∈ [0, 1] and pooling weight w ≥ 0 (n × n, finite) and returns
+/// (Σw, Σa), refusing tiles with nothing to pool or nothing to filter.
+pub(crate) fn check_taper_and_weight(a: &[f64], w: &[f64], n: usize) -> Result<(f64, f64)> {
+    let nn = n * n;
+    check_values("taper", a, nn, n)?;
+    check_values("weight", w, nn, n)?;
+    if let Some(i) = a.iter().position(|&a| !(0.0..=1.0).contains(&a)) {
+        return Err(Error::Data(format!(
+            "tile taper must lie in [0, 1], got {} at pixel {i}",
+            a[i]
+        )));
+    }
+    if let Some(i) = w.iter().position(|&w| w < 0.0) {
+        return Err(Error::Data(format!(
+            "tile pooling weight must be non-negative, got {} at pixel {i}",
+            w[i]
+        )));
+    }
+    let sw: f64 = w.iter().sum();
+    if sw <= 0.0 {
+        return Err(Error::Data(
+            "tile pooling weights sum to zero: no pixel to pool".into(),
+        ));
+    }
+    let sa: f64 = a.iter().sum();
+    if sa <= 0.0 {
+        return Err(Error::Data(
+            "tile taper is zero everywhere: nothing to filter".into(),
+        ));
+    }
+    Ok((sw, sa))
+}
+
 pub(crate) fn check_values(name: &str, values: &[f64], len: usize, n: usize) -> Result<()> {
     if values.len() != len {
         return Err(Error::Mismatch(format!(
@@ -648,32 +681,7 @@ impl ScatteringEngine {
         for (f, name) in fields.iter().zip(names) {
             check_values(name, f, nn, n)?;
         }
-        check_values("taper", a, nn, n)?;
-        check_values("weight", w, nn, n)?;
-        if let Some(i) = a.iter().position(|&a| !(0.0..=1.0).contains(&a)) {
-            return Err(Error::Data(format!(
-                "tile taper must lie in [0, 1], got {} at pixel {i}",
-                a[i]
-            )));
-        }
-        if let Some(i) = w.iter().position(|&w| w < 0.0) {
-            return Err(Error::Data(format!(
-                "tile pooling weight must be non-negative, got {} at pixel {i}",
-                w[i]
-            )));
-        }
-        let sw: f64 = w.iter().sum();
-        if sw <= 0.0 {
-            return Err(Error::Data(
-                "tile pooling weights sum to zero: no pixel to pool".into(),
-            ));
-        }
-        let sa: f64 = a.iter().sum();
-        if sa <= 0.0 {
-            return Err(Error::Data(
-                "tile taper is zero everywhere: nothing to filter".into(),
-            ));
-        }
+        let (sw, sa) = check_taper_and_weight(a, w, n)?;
         // Order 0 and the filter inputs I = a(f − μ_a) of every field.
         let mut order_zero = Vec::with_capacity(fields.len());
         let mut inputs = Vec::with_capacity(fields.len());

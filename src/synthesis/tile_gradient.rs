@@ -54,8 +54,8 @@ use super::gradient::{second_order_index, DifferentiableScattering, SquareFft};
 use crate::filters::MorletBank;
 use crate::pooling::TileSums;
 use crate::transform::{
-    check_values, crop_box, crop_levels_for, fine_index, subsample, validate_settings, TileView,
-    TransformSettings, COVERAGE_FLOOR,
+    check_taper_and_weight, check_values, crop_box, crop_levels_for, fine_index, subsample,
+    validate_settings, TileView, TransformSettings, COVERAGE_FLOOR,
 };
 use crate::{Error, Result};
 use num_complex::Complex64;
@@ -292,32 +292,7 @@ impl DifferentiableScattering {
         let n = bank.size();
         let nn = n * n;
         let (big_j, big_l) = (bank.scale_count(), bank.orientation_count());
-        check_values("taper", taper, nn, n)?;
-        check_values("weight", weight, nn, n)?;
-        if let Some(i) = taper.iter().position(|&a| !(0.0..=1.0).contains(&a)) {
-            return Err(Error::Data(format!(
-                "tile taper must lie in [0, 1], got {} at pixel {i}",
-                taper[i]
-            )));
-        }
-        if let Some(i) = weight.iter().position(|&w| w < 0.0) {
-            return Err(Error::Data(format!(
-                "tile pooling weight must be non-negative, got {} at pixel {i}",
-                weight[i]
-            )));
-        }
-        let weight_sum: f64 = weight.iter().sum();
-        if weight_sum <= 0.0 {
-            return Err(Error::Data(
-                "tile pooling weights sum to zero: no pixel to pool".into(),
-            ));
-        }
-        let taper_sum: f64 = taper.iter().sum();
-        if taper_sum <= 0.0 {
-            return Err(Error::Data(
-                "tile taper is zero everywhere: nothing to filter".into(),
-            ));
-        }
+        let (weight_sum, taper_sum) = check_taper_and_weight(taper, weight, n)?;
         let levels = crop_levels_for(bank, settings);
         let a2: Vec<f64> = taper.iter().map(|a| a * a).collect();
         let a2_spec = self.square_fft().spectrum_of(&a2);
