@@ -50,8 +50,10 @@
 //! and ∂P̂_b/∂f_x = (2Δ²/n_b) Re IDFT(1_b F)(x).
 
 pub mod gradient;
+pub mod tile_gradient;
 
 pub use gradient::{DifferentiableScattering, ForwardPass};
+pub use tile_gradient::{TileForward, TileGeometry};
 
 use crate::statistics::{CoefficientKind, CoefficientLabel};
 use crate::tile_spectra::WavenumberBins;

@@ -92,7 +92,7 @@ use std::time::{Duration, Instant};
 
 /// Floor applied to the coverage N before dividing by √N (only matters far outside the trusted
 /// region, where the pooling weight is zero).
-const COVERAGE_FLOOR: f64 = 0.01;
+pub(crate) const COVERAGE_FLOOR: f64 = 0.01;
 
 /// Choices of the estimator; see the module documentation for their meaning.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -205,7 +205,7 @@ fn transpose_square(data: &mut [Complex64], m: usize) {
 }
 
 /// Map a coarse index c on an m_to grid to the fine index on an m_from grid (same frequency).
-fn fine_index(c: usize, m_to: usize, m_from: usize) -> usize {
+pub(crate) fn fine_index(c: usize, m_to: usize, m_from: usize) -> usize {
     if c < m_to / 2 {
         c
     } else {
@@ -215,7 +215,7 @@ fn fine_index(c: usize, m_to: usize, m_from: usize) -> usize {
 
 /// Crop a row-major m_from² array (Fourier layout) to the central m_to² box; the Nyquist row
 /// and column of the box are zeroed when m_to < m_from.
-fn crop_box<T: Copy + Default>(spec: &[T], m_from: usize, m_to: usize) -> Vec<T> {
+pub(crate) fn crop_box<T: Copy + Default>(spec: &[T], m_from: usize, m_to: usize) -> Vec<T> {
     if m_to == m_from {
         return spec.to_vec();
     }
@@ -235,7 +235,7 @@ fn crop_box<T: Copy + Default>(spec: &[T], m_from: usize, m_to: usize) -> Vec<T>
     out
 }
 
-fn subsample(data: &[f64], m_from: usize, m_to: usize) -> Vec<f64> {
+pub(crate) fn subsample(data: &[f64], m_from: usize, m_to: usize) -> Vec<f64> {
     if m_to == m_from {
         return data.to_vec();
     }
@@ -249,7 +249,7 @@ fn subsample(data: &[f64], m_from: usize, m_to: usize) -> Vec<f64> {
     out
 }
 
-fn check_values(name: &str, values: &[f64], len: usize, n: usize) -> Result<()> {
+pub(crate) fn check_values(name: &str, values: &[f64], len: usize, n: usize) -> Result<()> {
     if values.len() != len {
         return Err(Error::Mismatch(format!(
             "tile {name} has {} values, expected {len} for a {n} x {n} tile",
@@ -263,6 +263,54 @@ fn check_values(name: &str, values: &[f64], len: usize, n: usize) -> Result<()> 
         )));
     }
     Ok(())
+}
+
+/// Check the ranges of the estimator settings ([`Error::Setting`] on a value out of range).
+pub(crate) fn validate_settings(settings: &TransformSettings) -> Result<()> {
+    if !(settings.coverage_threshold > 0.0 && settings.coverage_threshold <= 1.0) {
+        return Err(Error::Setting(format!(
+            "coverage threshold must be in (0, 1], got {}",
+            settings.coverage_threshold
+        )));
+    }
+    if !(0.0..=1.0).contains(&settings.trusted_fraction) {
+        return Err(Error::Setting(format!(
+            "trusted fraction must be in [0, 1], got {}",
+            settings.trusted_fraction
+        )));
+    }
+    if !(settings.crop_tolerance > 0.0 && settings.crop_tolerance < 1.0) {
+        return Err(Error::Setting(format!(
+            "crop tolerance must be in (0, 1), got {}",
+            settings.crop_tolerance
+        )));
+    }
+    Ok(())
+}
+
+/// Crop level d_j of every scale for a bank and settings (module documentation, "Fourier
+/// cropping"): the largest d ≤ j (coarse grids of at least 8 pixels) whose box holds ψ̂_{j,l}
+/// and FT|ψ_{j,l}|² to the crop tolerance, minus the modulus oversampling, made non-decreasing
+/// in j; all zero without cropping.
+pub(crate) fn crop_levels_for(bank: &MorletBank, settings: &TransformSettings) -> Vec<usize> {
+    let n = bank.size();
+    let scale_count = bank.scale_count();
+    let max_level = n.trailing_zeros() as usize - 3; // coarse grids of at least 8 pixels
+    let mut levels = Vec::with_capacity(scale_count);
+    for j in 0..scale_count {
+        let mut chosen = 0;
+        if settings.fourier_cropping {
+            for d in (1..=j.min(max_level)).rev() {
+                if ScatteringEngine::fits_in_box(bank, j, n >> d, settings.crop_tolerance) {
+                    chosen = d.saturating_sub(settings.modulus_oversampling);
+                    break;
+                }
+            }
+        }
+        let previous = levels.last().copied().unwrap_or(0);
+        levels.push(chosen.max(previous));
+    }
+    levels
 }
 
 impl ScatteringEngine {
@@ -284,41 +332,10 @@ impl ScatteringEngine {
         orientation_count: usize,
         settings: TransformSettings,
     ) -> Result<Self> {
-        if !(settings.coverage_threshold > 0.0 && settings.coverage_threshold <= 1.0) {
-            return Err(Error::Setting(format!(
-                "coverage threshold must be in (0, 1], got {}",
-                settings.coverage_threshold
-            )));
-        }
-        if !(0.0..=1.0).contains(&settings.trusted_fraction) {
-            return Err(Error::Setting(format!(
-                "trusted fraction must be in [0, 1], got {}",
-                settings.trusted_fraction
-            )));
-        }
-        if !(settings.crop_tolerance > 0.0 && settings.crop_tolerance < 1.0) {
-            return Err(Error::Setting(format!(
-                "crop tolerance must be in (0, 1), got {}",
-                settings.crop_tolerance
-            )));
-        }
+        validate_settings(&settings)?;
         let bank = MorletBank::new(size, scale_count, orientation_count)?;
         let n = size;
-        let max_level = n.trailing_zeros() as usize - 3; // coarse grids of at least 8 pixels
-        let mut levels = Vec::with_capacity(scale_count);
-        for j in 0..scale_count {
-            let mut chosen = 0;
-            if settings.fourier_cropping {
-                for d in (1..=j.min(max_level)).rev() {
-                    if Self::fits_in_box(&bank, j, n >> d, settings.crop_tolerance) {
-                        chosen = d.saturating_sub(settings.modulus_oversampling);
-                        break;
-                    }
-                }
-            }
-            let previous = levels.last().copied().unwrap_or(0);
-            levels.push(chosen.max(previous));
-        }
+        let levels = crop_levels_for(&bank, &settings);
         let mut planner = FftPlanner::<f64>::new();
         let mut real_planner = RealFftPlanner::<f64>::new();
         let top = levels.iter().copied().max().unwrap_or(0);

@@ -79,6 +79,11 @@ impl SquareFft {
         self.run(data, false);
     }
 
+    /// Unnormalised inverse DFT in place (kernel e^{+2πi k·x/n}).
+    pub(crate) fn inverse_unnormalised(&self, data: &mut [Complex64]) {
+        self.run(data, true);
+    }
+
     /// Inverse DFT in place, normalised by 1/N.
     pub(crate) fn inverse(&self, data: &mut [Complex64]) {
         self.run(data, true);
@@ -125,6 +130,8 @@ pub struct DifferentiableScattering {
     bank: MorletBank,
     fft: SquareFft,
     labels: Vec<CoefficientLabel>,
+    /// FFT plans of the coarse grids and cropped wavelets, for the tile path.
+    pub(crate) grids: super::tile_gradient::CoarseGrids,
 }
 
 impl std::fmt::Debug for DifferentiableScattering {
@@ -165,7 +172,13 @@ impl DifferentiableScattering {
         let (jn, ln) = (bank.scale_count(), bank.orientation_count());
         let labels = crate::statistics::coefficient_labels(jn, ln);
         let fft = SquareFft::new(bank.size());
-        Self { bank, fft, labels }
+        let grids = super::tile_gradient::CoarseGrids::new(&bank);
+        Self {
+            bank,
+            fft,
+            labels,
+            grids,
+        }
     }
 
     /// The filter bank.

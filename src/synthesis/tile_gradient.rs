@@ -1,0 +1,692 @@
+//! The masked-tile scattering estimator of [`crate::transform`] made differentiable: its
+//! weighted sums on one tile (taper a, pooling weight w, optional Fourier cropping) and the
+//! gradient of any linear combination of them with respect to the field (reverse mode, by
+//! hand).
+//!
+//! # Forward pass
+//!
+//! Exactly the estimator of [`crate::transform::ScatteringEngine::transform_tile`], with the
+//! same settings and layout ([`crate::pooling::TileSums`]). With n the tile side, N = n²,
+//! crop level d_j of scale j, m_j = n/2^{d_j}, M_j = m_j², lower-case x the fine pixels and
+//! upper-case X the pixels of a coarse grid (every 2^d-th fine pixel):
+//!
+//! * order 0: Σ w f and Σ w f² (weight Σ w);
+//! * I = a (f − μ_a), μ_a = Σ a f / Σ a; F = DFT_n(I) (unnormalised DFT);
+//! * g₁ = IDFT_{m1}(ψ̂_{j1,l1} · B_{n→m1} F) / N, with B the crop of a spectrum to its central
+//!   m × m box (Nyquist row and column zeroed when m < n) and IDFT unnormalised;
+//! * u = |g₁| · c_{j1}, c_j(X) = 1/√max(N_j(X), 0.01) the coverage normalisation;
+//! * S1 sum = 4^{d1} Σ_X W̃_{j1}(X) u(X), P sum = 4^{d1} Σ_X W̃_{j1} u², where W̃_j is the
+//!   trusted weight W_j = w·[N_j ≥ τ] low-passed to the grid of level d_j;
+//! * I₂ = ã (u − μ_u), ã the taper sampled on the grid of j1, μ_u = Σ ã u / Σ ã;
+//!   F₂ = DFT_{m1}(I₂); g₂ = IDFT_{m2}(ψ̂_{j2,l2} · B_{m1→m2} F₂) / M_1;
+//! * S2 sum = 4^{d2} Σ_X W̃_{j1,j2}(X) |g₂(X)| c_{j2}(X).
+//!
+//! The coverage N_j, the trust masks, c_j and the low-passed weights depend on a and w only;
+//! they are computed once per tile in a [`TileGeometry`] and reused for every field (the
+//! trust cut is piecewise constant in a, and a, w are not optimised, so these are constants of
+//! the derivative).
+//!
+//! # Backward pass (adjoints)
+//!
+//! For L = Σ_i b_i · sums_i, with the real inner product Re⟨·,·⟩ on complex arrays, the adjoint
+//! Z̄ of a complex intermediate z is ∂L/∂Re z + i ∂L/∂Im z and each linear step A is undone by
+//! A^H (Griewank & Walther 2008, *Evaluating Derivatives*, SIAM, ch. 3):
+//!
+//! * weighted pooling s = κ Σ_X W̃ h: h̄ = κ W̃ b (κ = 4^{d}, or 4^{d2}/M_1 for S2 folded into g₂);
+//!   P: h̄ = 2 κ W̃ u b;
+//! * modulus with normalisation h = c|z|: z̄ = h̄ c z/|z| (0 where z = 0, a subgradient);
+//! * z = IDFT_m(ψ̂ · Y) / K: Ȳ = ψ̂ · DFT_m(z̄) / K, because (IDFT_m)^H = DFT_m for the
+//!   unnormalised pair and ψ̂ is real;
+//! * crop Y = B_{m→m'} F: F̄ += B^H Ȳ, the zero-padding of the box back into the m × m
+//!   spectrum (the zeroed Nyquist lines receive nothing);
+//! * F = DFT_m(I) of a real I: Ī = Re IDFT_m(F̄);
+//! * tapered mean removal I = a (h − Σ a h / Σ a): h̄ = a Ī − a (Σ a Ī) / Σ a;
+//! * order 0: ∂(Σ w f)/∂f = w, ∂(Σ w f²)/∂f = 2 w f.
+//!
+//! The adjoints of the pixels of a coarse grid are gathered in Fourier space per (j1, l1),
+//! zero-padded back to n × n and summed in a fixed order, then one inverse DFT gives Ī; so
+//! the gradient is bitwise identical for any thread count. The g₂ are recomputed in the
+//! backward pass from the stored F₂ (memory: two arrays per (j1, l1)). With a ≡ 1, w ≡ 1 and
+//! no cropping this is the periodic transform of [`super::gradient`] up to the pooling by sums
+//! instead of means.
+
+use super::gradient::{second_order_index, DifferentiableScattering, SquareFft};
+use crate::filters::MorletBank;
+use crate::pooling::TileSums;
+use crate::transform::{
+    check_values, crop_box, crop_levels_for, fine_index, subsample, validate_settings, TileView,
+    TransformSettings, COVERAGE_FLOOR,
+};
+use crate::{Error, Result};
+use num_complex::Complex64;
+use rayon::prelude::*;
+use std::sync::Arc;
+
+/// FFT plans of every coarse grid and the wavelets cropped to them (built once per transform).
+pub(crate) struct CoarseGrids {
+    /// Plans of the grids n / 2^d, d = 0 ..= log2(n) − 3.
+    ffts: Vec<SquareFft>,
+    /// `wavelets[d][j·L + l]`: ψ̂_{j,l} cropped to the (n/2^d)² box; empty for d = 0 or d > j.
+    wavelets: Vec<Vec<Vec<f64>>>,
+}
+
+impl CoarseGrids {
+    pub(crate) fn new(bank: &MorletBank) -> Self {
+        let n = bank.size();
+        let (jn, ln) = (bank.scale_count(), bank.orientation_count());
+        let max_level = (n.trailing_zeros() as usize).saturating_sub(3);
+        let ffts = (0..=max_level).map(|d| SquareFft::new(n >> d)).collect();
+        let wavelets = (0..=max_level)
+            .map(|d| {
+                (0..jn * ln)
+                    .map(|i| {
+                        let j = i / ln;
+                        if d == 0 || d > j {
+                            Vec::new()
+                        } else {
+                            crop_box(bank.wavelet(j, i % ln), n, n >> d)
+                        }
+                    })
+                    .collect()
+            })
+            .collect();
+        Self { ffts, wavelets }
+    }
+}
+
+/// Add the zero-padding of an m_small² box spectrum into an m_big² spectrum: the adjoint of
+/// [`crop_box`] (Nyquist row and column of the box are not sent back when m_small < m_big).
+fn add_padded(target: &mut [Complex64], m_big: usize, boxed: &[Complex64], m_small: usize) {
+    if m_small == m_big {
+        for (t, b) in target.iter_mut().zip(boxed) {
+            *t += b;
+        }
+        return;
+    }
+    for cy in 0..m_small {
+        if cy == m_small / 2 {
+            continue;
+        }
+        let fy = fine_index(cy, m_small, m_big);
+        for cx in 0..m_small {
+            if cx == m_small / 2 {
+                continue;
+            }
+            target[fy * m_big + fine_index(cx, m_small, m_big)] += boxed[cy * m_small + cx];
+        }
+    }
+}
+
+struct GeometryData {
+    size: usize,
+    scale_count: usize,
+    orientation_count: usize,
+    settings: TransformSettings,
+    levels: Vec<usize>,
+    taper: Vec<f64>,
+    taper_sum: f64,
+    weight: Vec<f64>,
+    weight_sum: f64,
+    /// Per level d: the taper sampled on the grid and its sum.
+    level_tapers: Vec<(Vec<f64>, f64)>,
+    /// Per scale: c_j = 1/√max(N_j, floor) on the grid of d_j.
+    inv_sqrt_coverage: Vec<Vec<f64>>,
+    /// Per scale: low-passed W_j on the grid of d_j, and Σ W_j.
+    first_weights: Vec<(Vec<f64>, f64)>,
+    /// Per j1, per j2 > j1: low-passed W_{j1,j2} on the grid of d_{j2}, and Σ W_{j1,j2}.
+    pair_weights: Vec<Vec<(Vec<f64>, f64)>>,
+}
+
+/// What the masked estimator needs from a tile's taper and weight (coverage, trust cut,
+/// low-passed pooling weights), computed once and reused for every field on that tile.
+/// Cheap to clone (shared).
+#[derive(Clone)]
+pub struct TileGeometry {
+    inner: Arc<GeometryData>,
+}
+
+impl std::fmt::Debug for TileGeometry {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("TileGeometry")
+            .field("size", &self.inner.size)
+            .field("levels", &self.inner.levels)
+            .field("footprint_weight", &self.inner.weight_sum)
+            .finish()
+    }
+}
+
+impl TileGeometry {
+    /// Tile side n.
+    pub fn size(&self) -> usize {
+        self.inner.size
+    }
+
+    /// Crop level d_j of each scale (all zero without Fourier cropping).
+    pub fn crop_levels(&self) -> &[usize] {
+        &self.inner.levels
+    }
+
+    /// The estimator settings the geometry was built with.
+    pub fn settings(&self) -> &TransformSettings {
+        &self.inner.settings
+    }
+
+    /// Σ w over the tile.
+    pub fn footprint_weight(&self) -> f64 {
+        self.inner.weight_sum
+    }
+}
+
+/// A forward pass of the masked estimator on one tile, with what its backward pass needs.
+pub struct TileForward {
+    /// Weighted sums and weights, as [`crate::transform::ScatteringEngine::transform_tile`].
+    pub sums: TileSums,
+    geometry: TileGeometry,
+    field: Vec<f64>,
+    /// F = DFT_n(a (f − μ_a)).
+    spectrum: Vec<Complex64>,
+    /// Per (j1, l1): g₁ on its grid and F₂ = DFT(I₂) (empty for the last scale).
+    first: Vec<(Vec<Complex64>, Vec<Complex64>)>,
+}
+
+impl std::fmt::Debug for TileForward {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("TileForward")
+            .field("geometry", &self.geometry)
+            .field("sums", &self.sums)
+            .finish()
+    }
+}
+
+impl TileForward {
+    /// The geometry the pass was computed with.
+    pub fn geometry(&self) -> &TileGeometry {
+        &self.geometry
+    }
+
+    /// F = DFT_n(a (f − μ_a)), unnormalised (for a ≡ 1 the DFT of the mean-removed field).
+    pub fn spectrum(&self) -> &[Complex64] {
+        &self.spectrum
+    }
+}
+
+/// Pooled values of (combined) tile sums, as [`crate::pooling::pooled_coefficients`]:
+/// c_i = Σ W h / Σ W, and for the variance Σ w f² / Σ w − c_0². NaN where the weight is zero.
+pub fn pooled_values(sums: &TileSums) -> Vec<f64> {
+    let mean = sums.sums[0] / sums.weights[0];
+    sums.sums
+        .iter()
+        .zip(&sums.weights)
+        .enumerate()
+        .map(|(i, (s, w))| {
+            if *w > 0.0 {
+                if i == 1 {
+                    s / w - mean * mean
+                } else {
+                    s / w
+                }
+            } else {
+                f64::NAN
+            }
+        })
+        .collect()
+}
+
+/// Adjoint of [`pooled_values`] (weights are constants): given ∂L/∂c_i, returns ∂L/∂sums_i,
+/// i.e. ∂L/∂c_i / Σ W_i, plus −2 c_0 ∂L/∂c_1 / Σ w on the mean's sum. Zero where the weight is
+/// zero.
+pub fn pooled_values_adjoint(sums: &TileSums, coefficient_weights: &[f64]) -> Result<Vec<f64>> {
+    if coefficient_weights.len() != sums.sums.len() {
+        return Err(Error::Mismatch(format!(
+            "{} coefficient weights given, the sums hold {}",
+            coefficient_weights.len(),
+            sums.sums.len()
+        )));
+    }
+    let mut out: Vec<f64> = coefficient_weights
+        .iter()
+        .zip(&sums.weights)
+        .map(|(b, w)| if *w > 0.0 { b / w } else { 0.0 })
+        .collect();
+    if sums.weights.len() > 1 && sums.weights[0] > 0.0 && sums.weights[1] > 0.0 {
+        let mean = sums.sums[0] / sums.weights[0];
+        out[0] -= 2.0 * mean * coefficient_weights[1] / sums.weights[0];
+    }
+    Ok(out)
+}
+
+impl DifferentiableScattering {
+    fn wavelet_at(&self, j: usize, l: usize, d: usize) -> &[f64] {
+        if d == 0 {
+            self.bank().wavelet(j, l)
+        } else {
+            &self.grids.wavelets[d][j * self.bank().orientation_count() + l]
+        }
+    }
+
+    /// Low-pass a full-resolution real array to level d by cropping its spectrum:
+    /// Re IDFT_m(B_{n→m} DFT_n(h)) / N on the m × m grid.
+    fn low_pass(&self, data: &[f64], d: usize) -> Vec<f64> {
+        if d == 0 {
+            return data.to_vec();
+        }
+        let n = self.size();
+        let spec = self.square_fft().spectrum_of(data);
+        let mut c = crop_box(&spec, n, n >> d);
+        self.grids.ffts[d].inverse_unnormalised(&mut c);
+        let scale = 1.0 / (n * n) as f64;
+        c.iter().map(|z| z.re * scale).collect()
+    }
+
+    /// Precompute the coverage N_j = a² ∗ K_j, the trust cut, the normalisation c_j and the
+    /// low-passed pooling weights of a tile (module documentation of [`crate::transform`]).
+    /// Errors as the engine does on a bad taper or weight or settings out of range.
+    pub fn tile_geometry(
+        &self,
+        taper: &[f64],
+        weight: &[f64],
+        settings: &TransformSettings,
+    ) -> Result<TileGeometry> {
+        validate_settings(settings)?;
+        let bank = self.bank();
+        let n = bank.size();
+        let nn = n * n;
+        let (big_j, big_l) = (bank.scale_count(), bank.orientation_count());
+        check_values("taper", taper, nn, n)?;
+        check_values("weight", weight, nn, n)?;
+        if let Some(i) = taper.iter().position(|&a| !(0.0..=1.0).contains(&a)) {
+            return Err(Error::Data(format!(
+                "tile taper must lie in [0, 1], got {} at pixel {i}",
+                taper[i]
+            )));
+        }
+        if let Some(i) = weight.iter().position(|&w| w < 0.0) {
+            return Err(Error::Data(format!(
+                "tile pooling weight must be non-negative, got {} at pixel {i}",
+                weight[i]
+            )));
+        }
+        let weight_sum: f64 = weight.iter().sum();
+        if weight_sum <= 0.0 {
+            return Err(Error::Data(
+                "tile pooling weights sum to zero: no pixel to pool".into(),
+            ));
+        }
+        let taper_sum: f64 = taper.iter().sum();
+        if taper_sum <= 0.0 {
+            return Err(Error::Data(
+                "tile taper is zero everywhere: nothing to filter".into(),
+            ));
+        }
+        let levels = crop_levels_for(bank, settings);
+        let a2: Vec<f64> = taper.iter().map(|a| a * a).collect();
+        let a2_spec = self.square_fft().spectrum_of(&a2);
+        let tau = settings.coverage_threshold;
+        let mut trust: Vec<Vec<bool>> = Vec::with_capacity(big_j);
+        let mut inv_sqrt_coverage = Vec::with_capacity(big_j);
+        for (j, &level) in levels.iter().enumerate() {
+            // K_j = (1/L) Σ_l |ψ_{j,l}|², normalised to unit sum (its DFT at 0).
+            let mut kernel = vec![0.0; nn];
+            for l in 0..big_l {
+                for (k, v) in kernel.iter_mut().zip(bank.squared_modulus(j, l)) {
+                    *k += v;
+                }
+            }
+            let dc = kernel[0];
+            kernel.iter_mut().for_each(|k| *k /= dc);
+            let mut c: Vec<Complex64> = a2_spec.iter().zip(&kernel).map(|(s, k)| s * k).collect();
+            self.square_fft().inverse_unnormalised(&mut c);
+            let cov: Vec<f64> = c.iter().map(|z| z.re / nn as f64).collect();
+            trust.push(cov.iter().map(|&v| v >= tau).collect());
+            inv_sqrt_coverage.push(
+                subsample(&cov, n, n >> level)
+                    .iter()
+                    .map(|c| 1.0 / c.max(COVERAGE_FLOOR).sqrt())
+                    .collect::<Vec<f64>>(),
+            );
+        }
+        let first_weights = trust
+            .iter()
+            .zip(&levels)
+            .map(|(tj, &level)| {
+                let wj: Vec<f64> = weight
+                    .iter()
+                    .zip(tj)
+                    .map(|(&w, &t)| if t { w } else { 0.0 })
+                    .collect();
+                let total = wj.iter().sum::<f64>();
+                (self.low_pass(&wj, level), total)
+            })
+            .collect();
+        let pair_weights = (0..big_j)
+            .map(|j1| {
+                ((j1 + 1)..big_j)
+                    .map(|j2| {
+                        let wp: Vec<f64> = (0..nn)
+                            .map(|i| {
+                                if trust[j1][i] && trust[j2][i] {
+                                    weight[i]
+                                } else {
+                                    0.0
+                                }
+                            })
+                            .collect();
+                        let total = wp.iter().sum::<f64>();
+                        (self.low_pass(&wp, levels[j2]), total)
+                    })
+                    .collect()
+            })
+            .collect();
+        let top = levels.iter().copied().max().unwrap_or(0);
+        let level_tapers = (0..=top)
+            .map(|d| {
+                let t = subsample(taper, n, n >> d);
+                let s = t.iter().sum::<f64>();
+                (t, s)
+            })
+            .collect();
+        Ok(TileGeometry {
+            inner: Arc::new(GeometryData {
+                size: n,
+                scale_count: big_j,
+                orientation_count: big_l,
+                settings: *settings,
+                levels,
+                taper: taper.to_vec(),
+                taper_sum,
+                weight: weight.to_vec(),
+                weight_sum,
+                level_tapers,
+                inv_sqrt_coverage,
+                first_weights,
+                pair_weights,
+            }),
+        })
+    }
+
+    /// Forward pass of the masked estimator on one tile: the sums equal
+    /// [`crate::transform::ScatteringEngine::transform_tile`] with the same settings (Fourier
+    /// cropping included when the settings ask for it).
+    pub fn forward_tile(
+        &self,
+        tile: &TileView<'_>,
+        settings: &TransformSettings,
+    ) -> Result<TileForward> {
+        let geometry = self.tile_geometry(tile.taper, tile.weight, settings)?;
+        self.forward_tile_with(&geometry, tile.field)
+    }
+
+    fn check_geometry(&self, geometry: &TileGeometry) -> Result<()> {
+        let g = &geometry.inner;
+        let bank = self.bank();
+        if g.size != bank.size()
+            || g.scale_count != bank.scale_count()
+            || g.orientation_count != bank.orientation_count()
+        {
+            return Err(Error::Mismatch(format!(
+                "tile geometry was built for n = {}, J = {}, L = {}, the transform has n = {}, J = {}, L = {}",
+                g.size,
+                g.scale_count,
+                g.orientation_count,
+                bank.size(),
+                bank.scale_count(),
+                bank.orientation_count()
+            )));
+        }
+        Ok(())
+    }
+
+    /// Forward pass on a field with a precomputed [`TileGeometry`] (same result as
+    /// [`Self::forward_tile`] with that taper, weight and settings).
+    pub fn forward_tile_with(&self, geometry: &TileGeometry, field: &[f64]) -> Result<TileForward> {
+        self.check_geometry(geometry)?;
+        let g = &geometry.inner;
+        let n = g.size;
+        let nn = n * n;
+        let (big_j, big_l) = (g.scale_count, g.orientation_count);
+        check_values("field", field, nn, n)?;
+        let (a, w) = (&g.taper, &g.weight);
+        let mut swf = 0.0;
+        let mut swf2 = 0.0;
+        for i in 0..nn {
+            swf += w[i] * field[i];
+            swf2 += w[i] * field[i] * field[i];
+        }
+        let mu = a.iter().zip(field).map(|(a, f)| a * f).sum::<f64>() / g.taper_sum;
+        let input: Vec<f64> = a.iter().zip(field).map(|(a, f)| a * (f - mu)).collect();
+        let spectrum = self.square_fft().spectrum_of(&input);
+        let items: Vec<(usize, usize)> = (0..big_j)
+            .flat_map(|j| (0..big_l).map(move |l| (j, l)))
+            .collect();
+        type Item = (f64, f64, Vec<f64>, Vec<Complex64>, Vec<Complex64>);
+        let scale = 1.0 / nn as f64;
+        let results: Vec<Item> = items
+            .par_iter()
+            .map(|&(j1, l1)| {
+                let d1 = g.levels[j1];
+                let m1 = n >> d1;
+                let factor1 = (1usize << (2 * d1)) as f64;
+                let psi = self.wavelet_at(j1, l1, d1);
+                let mut g1: Vec<Complex64> = crop_box(&spectrum, n, m1)
+                    .iter()
+                    .zip(psi)
+                    .map(|(s, p)| s * p)
+                    .collect();
+                self.grids.ffts[d1].inverse_unnormalised(&mut g1);
+                g1.iter_mut().for_each(|z| *z *= scale);
+                let c1 = &g.inv_sqrt_coverage[j1];
+                let u: Vec<f64> = g1.iter().zip(c1).map(|(z, &c)| z.norm() * c).collect();
+                let (wl, _) = &g.first_weights[j1];
+                let mut s1 = 0.0;
+                let mut p = 0.0;
+                for (wv, uv) in wl.iter().zip(&u) {
+                    s1 += wv * uv;
+                    p += wv * uv * uv;
+                }
+                let mut s2 = Vec::new();
+                let mut spec2 = Vec::new();
+                if j1 + 1 < big_j {
+                    let (ad, sad) = &g.level_tapers[d1];
+                    let mu_u = if *sad > 0.0 {
+                        ad.iter().zip(&u).map(|(a, u)| a * u).sum::<f64>() / sad
+                    } else {
+                        0.0
+                    };
+                    let second_input: Vec<f64> =
+                        ad.iter().zip(&u).map(|(a, u)| a * (u - mu_u)).collect();
+                    spec2 = self.grids.ffts[d1].spectrum_of(&second_input);
+                    let scale2 = 1.0 / (m1 * m1) as f64;
+                    for (pair, j2) in ((j1 + 1)..big_j).enumerate() {
+                        let d2 = g.levels[j2];
+                        let m2 = n >> d2;
+                        let factor2 = (1usize << (2 * d2)) as f64;
+                        let spec2c = crop_box(&spec2, m1, m2);
+                        let c2 = &g.inv_sqrt_coverage[j2];
+                        let (wp, _) = &g.pair_weights[j1][pair];
+                        for l2 in 0..big_l {
+                            let psi2 = self.wavelet_at(j2, l2, d2);
+                            let mut g2: Vec<Complex64> =
+                                spec2c.iter().zip(psi2).map(|(s, p)| s * p).collect();
+                            self.grids.ffts[d2].inverse_unnormalised(&mut g2);
+                            let mut acc = 0.0;
+                            for ((z, &c), wv) in g2.iter().zip(c2).zip(wp) {
+                                acc += wv * z.norm() * c;
+                            }
+                            s2.push(acc * factor2 * scale2);
+                        }
+                    }
+                }
+                (s1 * factor1, p * factor1, s2, g1, spec2)
+            })
+            .collect();
+        let count = self.labels().len();
+        let mut sums = vec![0.0; count];
+        let mut weights = vec![0.0; count];
+        sums[0] = swf;
+        weights[0] = g.weight_sum;
+        sums[1] = swf2;
+        weights[1] = g.weight_sum;
+        let first_count = big_j * big_l;
+        let mut first = Vec::with_capacity(items.len());
+        for (&(j1, l1), (s1, p, s2, g1, spec2)) in items.iter().zip(results) {
+            let idx = j1 * big_l + l1;
+            let trusted = g.first_weights[j1].1;
+            sums[2 + idx] = s1;
+            weights[2 + idx] = trusted;
+            sums[2 + first_count + idx] = p;
+            weights[2 + first_count + idx] = trusted;
+            let mut k = 0;
+            for (pair, j2) in ((j1 + 1)..big_j).enumerate() {
+                for l2 in 0..big_l {
+                    let i = second_order_index(big_j, big_l, j1, l1, j2, l2);
+                    sums[i] = s2[k];
+                    weights[i] = g.pair_weights[j1][pair].1;
+                    k += 1;
+                }
+            }
+            first.push((g1, spec2));
+        }
+        Ok(TileForward {
+            sums: TileSums {
+                footprint_weight: g.weight_sum,
+                sums,
+                weights,
+            },
+            geometry: geometry.clone(),
+            field: field.to_vec(),
+            spectrum,
+            first,
+        })
+    }
+
+    /// Gradient ∂(Σ_i b_i · sums_i)/∂f of a linear combination of a tile's sums
+    /// (b = `sum_weights`, layout of [`Self::labels`]), from a forward pass of this transform;
+    /// taper, weight and trust cut are constants (module documentation).
+    pub fn backward_tile(&self, pass: &TileForward, sum_weights: &[f64]) -> Result<Vec<f64>> {
+        self.check_geometry(&pass.geometry)?;
+        if sum_weights.len() != self.labels().len() {
+            return Err(Error::Mismatch(format!(
+                "{} sum weights given, the transform has {} coefficients",
+                sum_weights.len(),
+                self.labels().len()
+            )));
+        }
+        let g = &pass.geometry.inner;
+        let n = g.size;
+        let nn = n * n;
+        let (big_j, big_l) = (g.scale_count, g.orientation_count);
+        let first_count = big_j * big_l;
+        let items: Vec<(usize, usize)> = (0..big_j)
+            .flat_map(|j| (0..big_l).map(move |l| (j, l)))
+            .collect();
+        let scale = 1.0 / nn as f64;
+        // Per (j1, l1): the adjoint of the cropped spectrum B_{n→m1} F, on the m1² box.
+        let parts: Vec<Vec<Complex64>> = items
+            .par_iter()
+            .zip(&pass.first)
+            .map(|(&(j1, l1), (g1, spec2))| {
+                let d1 = g.levels[j1];
+                let m1 = n >> d1;
+                let factor1 = (1usize << (2 * d1)) as f64;
+                let c1 = &g.inv_sqrt_coverage[j1];
+                let (wl, _) = &g.first_weights[j1];
+                let b1 = sum_weights[2 + j1 * big_l + l1];
+                let bp = sum_weights[2 + first_count + j1 * big_l + l1];
+                // ū from S1 and P.
+                let mut u_adj: Vec<f64> = g1
+                    .iter()
+                    .zip(c1)
+                    .zip(wl)
+                    .map(|((z, &c), &wv)| factor1 * wv * (b1 + 2.0 * bp * z.norm() * c))
+                    .collect();
+                if j1 + 1 < big_j {
+                    let scale2 = 1.0 / (m1 * m1) as f64;
+                    let mut spec2_adj = vec![Complex64::default(); m1 * m1];
+                    let mut any_second = false;
+                    for (pair, j2) in ((j1 + 1)..big_j).enumerate() {
+                        let d2 = g.levels[j2];
+                        let m2 = n >> d2;
+                        let factor2 = (1usize << (2 * d2)) as f64;
+                        let c2 = &g.inv_sqrt_coverage[j2];
+                        let (wp, _) = &g.pair_weights[j1][pair];
+                        let mut spec2c: Option<Vec<Complex64>> = None;
+                        for l2 in 0..big_l {
+                            let b = sum_weights[second_order_index(big_j, big_l, j1, l1, j2, l2)];
+                            if b == 0.0 {
+                                continue;
+                            }
+                            any_second = true;
+                            let sc = spec2c.get_or_insert_with(|| crop_box(spec2, m1, m2));
+                            let psi2 = self.wavelet_at(j2, l2, d2);
+                            let mut g2: Vec<Complex64> =
+                                sc.iter().zip(psi2).map(|(s, p)| s * p).collect();
+                            self.grids.ffts[d2].inverse_unnormalised(&mut g2);
+                            // g₂ = raw · scale2; s2 = κ Σ W̃ c |g₂|, κ = 4^{d2}.
+                            let k = b * factor2 * scale2;
+                            for ((z, &c), &wv) in g2.iter_mut().zip(c2).zip(wp) {
+                                let r = z.norm();
+                                *z = if r > 0.0 {
+                                    *z * (k * wv * c / r)
+                                } else {
+                                    Complex64::default()
+                                };
+                            }
+                            self.grids.ffts[d2].forward(&mut g2);
+                            g2.iter_mut().zip(psi2).for_each(|(z, p)| *z *= p);
+                            add_padded(&mut spec2_adj, m1, &g2, m2);
+                        }
+                    }
+                    if any_second {
+                        self.grids.ffts[d1].inverse_unnormalised(&mut spec2_adj);
+                        let (ad, sad) = &g.level_tapers[d1];
+                        let i2_adj: Vec<f64> =
+                            spec2_adj.iter().zip(ad).map(|(z, a)| z.re * a).collect();
+                        let m = if *sad > 0.0 {
+                            i2_adj.iter().sum::<f64>() / sad
+                        } else {
+                            0.0
+                        };
+                        for ((ua, ia), a) in u_adj.iter_mut().zip(&i2_adj).zip(ad) {
+                            *ua += ia - a * m;
+                        }
+                    }
+                }
+                let mut z1: Vec<Complex64> = g1
+                    .iter()
+                    .zip(c1)
+                    .zip(&u_adj)
+                    .map(|((z, &c), &ua)| {
+                        let r = z.norm();
+                        if r > 0.0 {
+                            *z * (ua * c / r)
+                        } else {
+                            Complex64::default()
+                        }
+                    })
+                    .collect();
+                // g₁ = IDFT(ψ̂ · B F) / N.
+                self.grids.ffts[d1].forward(&mut z1);
+                let psi = self.wavelet_at(j1, l1, d1);
+                z1.iter_mut().zip(psi).for_each(|(z, p)| *z *= p * scale);
+                z1
+            })
+            .collect();
+        // Fixed-order sum: bitwise identical for any thread count.
+        let mut total = vec![Complex64::default(); nn];
+        for (&(j1, _), part) in items.iter().zip(&parts) {
+            add_padded(&mut total, n, part, n >> g.levels[j1]);
+        }
+        self.square_fft().inverse_unnormalised(&mut total);
+        let a = &g.taper;
+        let i_adj: Vec<f64> = total.iter().zip(a).map(|(z, a)| z.re * a).collect();
+        let m = i_adj.iter().sum::<f64>() / g.taper_sum;
+        let (b0, bv) = (sum_weights[0], sum_weights[1]);
+        Ok(i_adj
+            .iter()
+            .zip(a)
+            .zip(&g.weight)
+            .zip(&pass.field)
+            .map(|(((ia, a), w), f)| ia - a * m + b0 * w + 2.0 * bv * w * f)
+            .collect())
+    }
+}
