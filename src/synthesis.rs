@@ -50,6 +50,7 @@
 //! and ∂P̂_b/∂f_x = (2Δ²/n_b) Re IDFT(1_b F)(x).
 
 pub mod gradient;
+pub mod sphere;
 pub mod tile_gradient;
 
 pub use gradient::{DifferentiableScattering, ForwardPass};
