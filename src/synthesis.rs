@@ -918,8 +918,10 @@ pub fn gaussian_counterpart(values: &[f64], size: usize, seed: u64) -> Result<Ve
 /// Full coefficients (layout of [`DifferentiableScattering::labels`]) from a coefficient JSON
 /// document: an object with a `coefficients` array of objects holding `order`, `j1`, `l1`,
 /// `j2`, `l2` (null or absent when unused), `value` and, for order 0 and band powers, `kind`
-/// (`mean`, `variance`, `first_order`, `band_power`, `second_order`). Order-1 entries without a
-/// kind are first-order coefficients, order-2 entries second-order ones.
+/// (`mean`, `variance`, `first_order`, `band_power`, `second_order`; `scattering` for order 1
+/// or 2 as `planisphere measure` writes). Order-1 entries without a kind are first-order
+/// coefficients, order-2 entries second-order ones. Entries of an optional `band_powers` array
+/// (as `measure` writes them) are band powers.
 pub fn coefficients_from_json(
     text: &str,
     scale_count: usize,
@@ -938,7 +940,17 @@ pub fn coefficients_from_json(
         .enumerate()
         .map(|(i, l)| (label_name(l), i))
         .collect();
-    for (k, entry) in list.iter().enumerate() {
+    let band_powers = match doc.get("band_powers") {
+        None => Vec::new(),
+        Some(v) => v
+            .as_array()
+            .ok_or_else(|| Error::Data("coefficient file's `band_powers` is not an array".into()))?
+            .iter()
+            .map(|e| (e, true))
+            .collect(),
+    };
+    let entries = list.iter().map(|e| (e, false)).chain(band_powers);
+    for (k, (entry, in_band_powers)) in entries.enumerate() {
         let bad = |what: &str| Error::Data(format!("coefficient entry {k}: {what}"));
         let int = |key: &str| -> Result<Option<usize>> {
             match entry.get(key) {
@@ -952,12 +964,13 @@ pub fn coefficients_from_json(
         let order = int("order")?.ok_or_else(|| bad("no `order`"))?;
         let kind = entry.get("kind").and_then(|v| v.as_str());
         let kind = match (order, kind) {
+            (1, None) if in_band_powers => CoefficientKind::BandPower,
             (0, Some("mean")) => CoefficientKind::Mean,
             (0, Some("variance")) => CoefficientKind::Variance,
             (0, _) => return Err(bad("order 0 needs `kind` mean or variance")),
-            (1, None | Some("first_order")) => CoefficientKind::FirstOrder,
+            (1, None | Some("first_order" | "scattering")) => CoefficientKind::FirstOrder,
             (1, Some("band_power")) => CoefficientKind::BandPower,
-            (2, None | Some("second_order")) => CoefficientKind::SecondOrder,
+            (2, None | Some("second_order" | "scattering")) => CoefficientKind::SecondOrder,
             (o, k) => return Err(bad(&format!("unknown order {o} / kind {k:?}"))),
         };
         let label = CoefficientLabel {

@@ -22,6 +22,8 @@ pub enum SamplingChoice {
     RingLinear,
     /// The value of the pixel containing the direction.
     Nearest,
+    /// Cubic along and between iso-latitude rings (keeps the most small-scale power).
+    RingCubic,
 }
 
 impl From<SamplingChoice> for SamplingMethod {
@@ -30,6 +32,7 @@ impl From<SamplingChoice> for SamplingMethod {
             SamplingChoice::Bilinear => SamplingMethod::Bilinear,
             SamplingChoice::RingLinear => SamplingMethod::RingLinear,
             SamplingChoice::Nearest => SamplingMethod::Nearest,
+            SamplingChoice::RingCubic => SamplingMethod::RingCubic,
         }
     }
 }
@@ -60,7 +63,7 @@ pub struct MeasureOptions {
     /// Width of the tile-border taper in tile pixels [default: 8].
     #[arg(long)]
     pub border_pixels: Option<usize>,
-    /// How the sky is read at tile pixels [default: bilinear].
+    /// How the sky is read at tile pixels [default: ring-cubic].
     #[arg(long, value_enum)]
     pub sampling: Option<SamplingChoice>,
     /// Number of wavenumber bins of the tile power spectrum and bispectrum [default: 6].
