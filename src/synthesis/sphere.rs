@@ -201,7 +201,7 @@ impl SphereSynthesis {
         let window = border_window(measurement.tile_pixels, measurement.border_pixels);
         let sampler =
             TileSampler::new(measurer.plan(), &geometry, &footprint, measurement.sampling)?;
-        let fixed: Vec<Option<(usize, Vec<f64>, Vec<f64>)>> = sampler.map_tiles(|grids| {
+        let fixed: Vec<Option<SphereTile>> = sampler.map_tiles(|grids| {
             // as in SphereMeasurer::measure: interpolation may overshoot 1 by rounding
             let taper: Vec<f64> = grids
                 .mask
@@ -211,18 +211,14 @@ impl SphereSynthesis {
                 .collect();
             let weight = grids.pooling_weights(&taper)?;
             let wsum: f64 = weight.iter().sum();
-            Ok((wsum > 0.0).then_some((grids.tile, taper, weight)))
-        })?;
-        let mut tiles: Vec<SphereTile> = fixed
-            .into_iter()
-            .flatten()
-            .map(|(index, taper, weight)| SphereTile {
-                index,
+            Ok((wsum > 0.0).then_some(SphereTile {
+                index: grids.tile,
                 taper,
                 weight,
                 cached: None,
-            })
-            .collect();
+            }))
+        })?;
+        let mut tiles: Vec<SphereTile> = fixed.into_iter().flatten().collect();
         if tiles.is_empty() {
             return Err(Error::Data(
                 "no tile has positive pooling weight: the apodized footprint is empty".into(),
