@@ -16,8 +16,15 @@
 //! invariant under adding a constant, so the gradient has zero mean and the mean of the field is
 //! that of the start field, which is set to the target's mean.
 //!
-//! s(f) and ∂L/∂f come from [`gradient::DifferentiableScattering`] (periodic, full resolution);
-//! L is minimised by L-BFGS (Nocedal & Wright 2006, *Numerical Optimization*, Alg. 7.4/7.5) with
+//! s(f) and ∂L/∂f come from [`gradient::DifferentiableScattering`]. With
+//! [`SynthesisSettings::fourier_cropping`] (the default) the coefficients are those of the
+//! measuring engine with its default settings: the tile estimator of [`tile_gradient`] with
+//! taper a ≡ 1 and weight w ≡ 1 on the periodic field, each scale on its Fourier-cropped grid,
+//! pooled as c_i = Σ W h / Σ W (so a target measured by the engine is matched with the same
+//! estimator); its gradient is the adjoint of that path, cropping included. Without cropping, or
+//! when the crop levels are all zero (small n or J), or with the field–envelope correlations
+//! (defined at full resolution only), the periodic full-resolution transform of [`gradient`] is
+//! used. L is minimised by L-BFGS (Nocedal & Wright 2006, *Numerical Optimization*, Alg. 7.4/7.5) with
 //! the Moré–Thuente line search (Moré & Thuente 1994, ACM TOMS 20, 286), both from the `argmin`
 //! crate. The pixels are optimised in the units x = (f − μ_t)/σ_t of the target's mean and
 //! standard deviation, which makes the first step scale-free.
@@ -55,6 +62,8 @@ pub mod tile_gradient;
 
 pub use gradient::{DifferentiableScattering, ForwardPass};
 pub use tile_gradient::{TileForward, TileGeometry};
+
+use crate::transform::TransformSettings;
 
 use crate::statistics::{CoefficientKind, CoefficientLabel};
 use crate::tile_spectra::WavenumberBins;
@@ -121,6 +130,9 @@ pub struct SynthesisSettings {
     pub match_sign: bool,
     /// Show a progress bar with the loss (stderr).
     pub progress: bool,
+    /// Compute the coefficients with Fourier cropping, as the measuring engine does with its
+    /// default settings (module documentation). Default true.
+    pub fourier_cropping: bool,
 }
 
 impl Default for SynthesisSettings {
@@ -136,6 +148,7 @@ impl Default for SynthesisSettings {
             start: StartField::Gaussian,
             match_sign: true,
             progress: false,
+            fourier_cropping: true,
         }
     }
 }
@@ -436,6 +449,9 @@ fn label_name(label: &CoefficientLabel) -> String {
 #[derive(Debug)]
 pub struct FlatSynthesis {
     transform: DifferentiableScattering,
+    /// Geometry of the periodic tile (a ≡ 1, w ≡ 1, default engine settings) when the
+    /// Fourier-cropped path is used.
+    cropped: Option<TileGeometry>,
     settings: SynthesisSettings,
     power: Option<PowerTerm>,
     compact: Option<CompactMap>,
@@ -497,8 +513,20 @@ impl FlatSynthesis {
             Some(count) => Some(PowerTerm::new(size, pixel_size, count)?),
             None => None,
         };
+        let cropped = if settings.fourier_cropping && !settings.field_envelope_correlation {
+            let ones = vec![1.0; size * size];
+            let geometry = transform.tile_geometry(&ones, &ones, &TransformSettings::default())?;
+            geometry
+                .crop_levels()
+                .iter()
+                .any(|&d| d > 0)
+                .then_some(geometry)
+        } else {
+            None
+        };
         let out = Self {
             transform,
+            cropped,
             settings,
             power,
             compact,
@@ -525,6 +553,29 @@ impl FlatSynthesis {
     /// The differentiable transform.
     pub fn transform(&self) -> &DifferentiableScattering {
         &self.transform
+    }
+
+    /// True when the coefficients are computed on Fourier-cropped grids (module documentation).
+    pub fn uses_fourier_cropping(&self) -> bool {
+        self.cropped.is_some()
+    }
+
+    /// Forward pass of the path in use.
+    fn run_forward(&self, field: &[f64]) -> Result<Pass> {
+        match &self.cropped {
+            None => Ok(Pass::Periodic(self.transform.forward(field)?)),
+            Some(geometry) => {
+                let pass = self.transform.forward_tile_with(geometry, field)?;
+                let coefficients = tile_gradient::pooled_values(&pass.sums);
+                Ok(Pass::Tile(pass, coefficients))
+            }
+        }
+    }
+
+    /// The full coefficients of a field (layout of [`DifferentiableScattering::labels`]), with
+    /// the path in use.
+    pub fn coefficients(&self, field: &[f64]) -> Result<Vec<f64>> {
+        Ok(self.run_forward(field)?.coefficients().to_vec())
     }
 
     /// The settings.
@@ -609,34 +660,38 @@ impl FlatSynthesis {
         self.transform.bank().orientation_count()
     }
 
-    /// C_j = (1/L) Σ_l C(j,l).
-    fn correlations(&self, pass: &ForwardPass) -> Vec<f64> {
+    /// C_j = (1/L) Σ_l C(j,l) (periodic path only; empty otherwise).
+    fn correlations(&self, pass: &Pass) -> Vec<f64> {
         let ln = self.orientation_count();
-        pass.field_envelope
-            .chunks(ln)
-            .map(|c| c.iter().sum::<f64>() / ln as f64)
-            .collect()
+        match pass {
+            Pass::Periodic(p) => p
+                .field_envelope
+                .chunks(ln)
+                .map(|c| c.iter().sum::<f64>() / ln as f64)
+                .collect(),
+            Pass::Tile(..) => Vec::new(),
+        }
     }
 
-    fn statistics_of_pass(&self, pass: &ForwardPass) -> Vec<f64> {
-        let mut s = self.select(&pass.coefficients);
+    fn statistics_of_pass(&self, pass: &Pass) -> Vec<f64> {
+        let mut s = self.select(pass.coefficients());
         if self.settings.field_envelope_correlation {
             s.extend(self.correlations(pass));
         }
         if let Some(p) = &self.power {
-            s.extend(p.power(self.transform.centred_spectrum(pass)));
+            s.extend(p.power(pass.spectrum(&self.transform)));
         }
         s
     }
 
     /// The matched statistics of a field (chosen set, correlations, power bins).
     pub fn statistics(&self, field: &[f64]) -> Result<Vec<f64>> {
-        Ok(self.statistics_of_pass(&self.transform.forward(field)?))
+        Ok(self.statistics_of_pass(&self.run_forward(field)?))
     }
 
     /// Target from a flat map (row-major n × n).
     pub fn target_from_map(&self, values: &[f64]) -> Result<SynthesisTarget> {
-        let pass = self.transform.forward(values)?;
+        let pass = self.run_forward(values)?;
         let statistics = self.statistics_of_pass(&pass);
         let (mean, sd, m3) = moments(values);
         if sd.is_nan() || sd <= 0.0 {
@@ -652,7 +707,7 @@ impl FlatSynthesis {
             .iter()
             .map(|z| z.norm())
             .collect();
-        let sigma = self.sigma_for(&statistics, &pass.coefficients)?;
+        let sigma = self.sigma_for(&statistics, pass.coefficients())?;
         Ok(SynthesisTarget {
             values: statistics,
             sigma,
@@ -743,15 +798,15 @@ impl FlatSynthesis {
             )));
         }
         let sigma = &target.sigma;
-        let pass = self.transform.forward(field)?;
-        let set_len = self.select(&pass.coefficients).len();
+        let pass = self.run_forward(field)?;
+        let set_len = self.select(pass.coefficients()).len();
         let corr_len = if self.settings.field_envelope_correlation {
             self.scale_count()
         } else {
             0
         };
         let s = self.statistics_of_pass(&pass);
-        let spectrum = self.transform.centred_spectrum(&pass);
+        let spectrum = pass.spectrum(&self.transform);
         let mut loss = 0.0;
         let mut ds = Vec::with_capacity(s.len());
         for ((si, ti), sg) in s.iter().zip(&target.values).zip(sigma) {
@@ -759,7 +814,7 @@ impl FlatSynthesis {
             loss += r * r;
             ds.push(2.0 * r / sg);
         }
-        let dc = self.select_adjoint(&pass.coefficients, &ds[..set_len]);
+        let dc = self.select_adjoint(pass.coefficients(), &ds[..set_len]);
         let correlation_weights: Option<Vec<f64>> = (corr_len > 0).then(|| {
             let ln = self.orientation_count();
             ds[set_len..set_len + corr_len]
@@ -767,11 +822,16 @@ impl FlatSynthesis {
                 .flat_map(|d| std::iter::repeat_n(d / ln as f64, ln))
                 .collect()
         });
-        let mut grad = self.transform.backward_with_correlations(
-            &pass,
-            &dc,
-            correlation_weights.as_deref(),
-        )?;
+        let mut grad = match &pass {
+            Pass::Periodic(p) => {
+                self.transform
+                    .backward_with_correlations(p, &dc, correlation_weights.as_deref())?
+            }
+            Pass::Tile(p, _) => {
+                let sum_weights = tile_gradient::pooled_values_adjoint(&p.sums, &dc)?;
+                self.transform.backward_tile(p, &sum_weights)?
+            }
+        };
         if let Some(p) = &self.power {
             let c = p.adjoint_multiplier(&ds[set_len + corr_len..]);
             let mut z: Vec<Complex64> = spectrum.iter().zip(&c).map(|(f, c)| f * c).collect();
@@ -877,6 +937,30 @@ impl FlatSynthesis {
             max_relative_deviation,
             reflected,
         })
+    }
+}
+
+/// A forward pass of the path in use: periodic full resolution, or the cropped tile estimator
+/// with its pooled values.
+enum Pass {
+    Periodic(ForwardPass),
+    Tile(TileForward, Vec<f64>),
+}
+
+impl Pass {
+    fn coefficients(&self) -> &[f64] {
+        match self {
+            Pass::Periodic(p) => &p.coefficients,
+            Pass::Tile(_, c) => c,
+        }
+    }
+
+    /// DFT of the mean-removed field (a ≡ 1 on the tile path).
+    fn spectrum<'a>(&'a self, transform: &DifferentiableScattering) -> &'a [Complex64] {
+        match self {
+            Pass::Periodic(p) => transform.centred_spectrum(p),
+            Pass::Tile(p, _) => p.spectrum(),
+        }
     }
 }
 

@@ -7,10 +7,12 @@
 //! direction v the analytic directional derivative ⟨∇L, v⟩ must equal
 //! (L(f + hv) − L(f − hv)) / 2h, whose truncation error is O(h²).
 
-use planisphere::flat::gaussian_random_field;
+use planisphere::flat::{gaussian_random_field, periodic_coefficients, FlatMap};
 use planisphere::statistics::CoefficientKind;
 use planisphere::synthesis::tile_gradient::{pooled_values, pooled_values_adjoint};
-use planisphere::synthesis::DifferentiableScattering;
+use planisphere::synthesis::{
+    DifferentiableScattering, FlatSynthesis, StartField, StatisticChoice, SynthesisSettings,
+};
 use planisphere::transform::{ScatteringEngine, TileView, TransformSettings};
 use rand::SeedableRng;
 use rand_chacha::ChaCha20Rng;
@@ -289,4 +291,98 @@ fn tile_gradient_rejects_mismatched_inputs() {
     assert!(other
         .backward_tile(&pass, &vec![0.0; other.labels().len()])
         .is_err());
+}
+
+/// With the default settings the flat synthesis of a 64², J = 5 field (crop levels
+/// [0, 0, 0, 0, 1]) computes what the measuring engine with its default settings reports for
+/// the periodic map (reference: ScatteringEngine through flat::periodic_coefficients).
+#[test]
+fn cropped_synthesis_coefficients_equal_default_engine_measurement() {
+    let (n, big_j) = (64usize, 5usize);
+    let s = FlatSynthesis::new(n, big_j, 4, 0.01, SynthesisSettings::default()).unwrap();
+    assert!(s.uses_fourier_cropping());
+    let field = lognormal(n, 41);
+    let engine = ScatteringEngine::new(n, big_j, 4).unwrap();
+    assert_eq!(engine.crop_levels(), &[0, 0, 0, 0, 1]);
+    let reference =
+        periodic_coefficients(&engine, &FlatMap::new(n, 0.01, field.clone()).unwrap()).unwrap();
+    let ours = s.coefficients(&field).unwrap();
+    let values: Vec<f64> = reference.coefficients.iter().map(|c| c.value).collect();
+    let diff = worst_relative(&ours, &values);
+    println!("cropped synthesis coefficients vs engine: {diff:.1e}");
+    assert!(diff <= 1e-12, "coefficients differ by {diff}");
+    let uncropped = FlatSynthesis::new(
+        n,
+        big_j,
+        4,
+        0.01,
+        SynthesisSettings {
+            fourier_cropping: false,
+            ..SynthesisSettings::default()
+        },
+    )
+    .unwrap();
+    assert!(!uncropped.uses_fourier_cropping());
+    // The two paths differ (by the cropping error of the coarse scale), so the test above
+    // does exercise the cropped path.
+    let full = uncropped.coefficients(&field).unwrap();
+    assert!(worst_relative(&ours, &full) > 1e-9);
+}
+
+/// Gradient of the synthesis loss on the cropped path (full set, compact set, power bins)
+/// against central differences.
+#[test]
+fn cropped_synthesis_loss_gradient_matches_central_differences() {
+    let n = 64;
+    let target_map = lognormal(n, 51);
+    let f: Vec<f64> = random_vector(n * n, 52)
+        .iter()
+        .zip(lognormal(n, 53))
+        .map(|(r, l)| l + 0.1 * r)
+        .collect();
+    let v = random_vector(n * n, 54);
+    for (choice, bins) in [
+        (StatisticChoice::Full, None),
+        (StatisticChoice::Compact, Some(6)),
+    ] {
+        let settings = SynthesisSettings {
+            statistics: choice,
+            power_spectrum_bins: bins,
+            ..SynthesisSettings::default()
+        };
+        let s = FlatSynthesis::new(n, 5, 4, 0.01, settings).unwrap();
+        assert!(s.uses_fourier_cropping());
+        let target = s.target_from_map(&target_map).unwrap();
+        let (_, g) = s.loss_and_gradient(&target, &f).unwrap();
+        let h = H_STEP;
+        let (lp, _) = s.loss_and_gradient(&target, &shifted(&f, &v, h)).unwrap();
+        let (lm, _) = s.loss_and_gradient(&target, &shifted(&f, &v, -h)).unwrap();
+        let numeric = (lp - lm) / (2.0 * h);
+        let analytic = dot(&g, &v);
+        let err = (analytic - numeric).abs() / numeric.abs();
+        println!("{choice:?}, power bins {bins:?}: analytic {analytic:.10e} numeric {numeric:.10e} rel {err:.1e}");
+        assert!(err <= 1e-6, "{choice:?}: relative error {err}");
+    }
+}
+
+/// Norm: max_i |s_i − t_i| / |t_i| over the full set on the cropped path (64², J = 5, L = 4).
+#[test]
+fn cropped_synthesis_reproduces_full_set_within_one_percent() {
+    let n = 64;
+    let target = lognormal(n, 61);
+    let settings = SynthesisSettings {
+        iterations: 150,
+        seed: 7,
+        start: StartField::Gaussian,
+        ..SynthesisSettings::default()
+    };
+    let s = FlatSynthesis::new(n, 5, 4, 0.01, settings).unwrap();
+    assert!(s.uses_fourier_cropping());
+    let t = s.target_from_map(&target).unwrap();
+    let out = s.synthesise(&t).unwrap();
+    println!(
+        "cropped full set: loss {:.3e} -> {:.3e} in {} iterations ({}), max relative deviation {:.2e}",
+        out.initial_loss, out.final_loss, out.iterations, out.termination, out.max_relative_deviation
+    );
+    assert!(out.max_relative_deviation <= 0.01);
 }

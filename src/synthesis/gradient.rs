@@ -38,7 +38,8 @@
 //! one inverse DFT. The g₂ are recomputed in the backward pass rather than stored (memory
 //! stays a few arrays per (j1, l1)), so one gradient costs about three forward transforms.
 //! Reference for reverse-mode differentiation: Griewank & Walther 2008, *Evaluating
-//! Derivatives*, SIAM, ch. 3.
+//! Derivatives*, SIAM, ch. 3. The masked, Fourier-cropped tile estimator and its adjoint are in
+//! [`super::tile_gradient`].
 
 use crate::filters::MorletBank;
 use crate::statistics::CoefficientLabel;
