@@ -12,6 +12,12 @@
 //! much more small-scale power (`tests/sphere_ring_cubic.rs`).
 //! Invalid (bad) map pixels count as masked: their mask weight is 0, and the field is averaged
 //! over the valid ones of the four neighbours only.
+//!
+//! With the valid pixels fixed, every scheme is linear in the map values: f_t = S_t m.
+//! [`TileSampler::operator`] returns S_t as a sparse [`TileSamplingOperator`] (for each tile
+//! pixel the map pixels and weights it reads), with its adjoint, the scatter-add
+//! m̄[p] += w·f̄[k], used to send tile-field gradients back to the sphere
+//! (`tests/sampling_adjoint.rs`: equal to the sampler bit for bit, ⟨S m, y⟩ = ⟨m, Sᵀ y⟩).
 
 use crate::error::{Error, Result};
 use crate::footprint::Footprint;
