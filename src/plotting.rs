@@ -216,10 +216,22 @@ impl<'a> SkyPicture<'a> {
     }
 
     fn render(&self, png: &Path) -> Result<()> {
+        let (_, _, height, _) = self.geometry();
+        let root = BitMapBackend::new(png, (self.width, height)).into_drawing_area();
+        self.render_on(&root, png)?;
+        root.present()
+            .map_err(|e| Error::io(png, format!("cannot draw: {e}")))
+    }
+
+    /// Draws the picture on `root` (an area of at least `width` × height pixels).
+    fn render_on(
+        &self,
+        root: &DrawingArea<BitMapBackend<'_>, plotters::coord::Shift>,
+        png: &Path,
+    ) -> Result<()> {
         let fail = |e: &dyn std::fmt::Display| Error::io(png, format!("cannot draw: {e}"));
-        let (title_h, map_h, height, scale) = self.geometry();
+        let (title_h, map_h, _, scale) = self.geometry();
         let w = self.width;
-        let root = BitMapBackend::new(png, (w, height)).into_drawing_area();
         root.fill(&WHITE).map_err(|e| fail(&e))?;
         // Raster layer, computed row by row in parallel, drawn sequentially.
         use rayon::prelude::*;
@@ -320,9 +332,43 @@ impl<'a> SkyPicture<'a> {
             ))
             .map_err(|e| fail(&e))?;
         }
-        root.present().map_err(|e| fail(&e))?;
         Ok(())
     }
+}
+
+/// Writes several pictures side by side, left to right, into one PNG file (atomically), e.g.
+/// a target, a comparison and a result on the same colour scale.
+pub fn write_pictures_in_a_row(path: &Path, pictures: &[SkyPicture<'_>]) -> Result<()> {
+    if pictures.is_empty() {
+        return Err(Error::Setting("no picture to draw".into()));
+    }
+    register_font()?;
+    let width: u32 = pictures.iter().map(|p| p.width).sum();
+    let height = pictures.iter().map(|p| p.geometry().2).max().unwrap_or(1);
+    write_atomically(path, |tmp| {
+        let mut png = tmp.as_os_str().to_owned();
+        png.push(".png");
+        let png = std::path::PathBuf::from(png);
+        let draw = || -> Result<()> {
+            let fail = |e: &dyn std::fmt::Display| Error::io(path, format!("cannot draw: {e}"));
+            let root = BitMapBackend::new(&png, (width, height)).into_drawing_area();
+            root.fill(&WHITE).map_err(|e| fail(&e))?;
+            let mut x0 = 0i32;
+            for p in pictures {
+                let (_, _, h, _) = p.geometry();
+                let area = root.clone().shrink((x0, 0), (p.width, h));
+                p.render_on(&area, &png)?;
+                x0 += p.width as i32;
+            }
+            root.present().map_err(|e| fail(&e))
+        };
+        let result =
+            draw().and_then(|()| std::fs::rename(&png, tmp).map_err(|e| Error::io(path, e)));
+        if result.is_err() {
+            let _ = std::fs::remove_file(&png);
+        }
+        result
+    })
 }
 
 #[cfg(test)]

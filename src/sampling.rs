@@ -12,6 +12,12 @@
 //! much more small-scale power (`tests/sphere_ring_cubic.rs`).
 //! Invalid (bad) map pixels count as masked: their mask weight is 0, and the field is averaged
 //! over the valid ones of the four neighbours only.
+//!
+//! With the valid pixels fixed, every scheme is linear in the map values: f_t = S_t m.
+//! [`TileSampler::operator`] returns S_t as a sparse [`TileSamplingOperator`] (for each tile
+//! pixel the map pixels and weights it reads), with its adjoint, the scatter-add
+//! m̄[p] += w·f̄[k], used to send tile-field gradients back to the sphere
+//! (`tests/sampling_adjoint.rs`: equal to the sampler bit for bit, ⟨S m, y⟩ = ⟨m, Sᵀ y⟩).
 
 use crate::error::{Error, Result};
 use crate::footprint::Footprint;
@@ -307,6 +313,208 @@ impl<'a> TileSampler<'a> {
             .into_par_iter()
             .map(|i| work(self.sample(i)?))
             .collect()
+    }
+}
+
+/// The sampling of one tile as a sparse linear operator on the map values: with the map's
+/// valid-pixel pattern fixed, tile pixel k reads f_k = (Σ_e w_e m[p_e]) / d_k over its entries
+/// e (HEALPix pixels p_e in the map's ordering and weights w_e, in the order
+/// [`TileSampler::sample`] reads them) and a divisor d_k (the sum of the weights of the valid
+/// neighbours for the renormalised linear schemes, 1 otherwise). So f = S m exactly as the
+/// sampler computes it, and the adjoint m̄[p_e] += (w_e / d_k)·f̄_k (scatter-add) gives the
+/// gradient of any function of the tile field with respect to the map (definition of the
+/// adjoint, ⟨S m, y⟩ = ⟨m, Sᵀ y⟩; common practice).
+#[derive(Debug, Clone, PartialEq)]
+pub struct TileSamplingOperator {
+    tile: usize,
+    npix: usize,
+    /// Entries of tile pixel k: `pixels[starts[k]..starts[k + 1]]`, same for `weights`.
+    starts: Vec<usize>,
+    pixels: Vec<u64>,
+    weights: Vec<f64>,
+    divisors: Vec<f64>,
+}
+
+impl TileSamplingOperator {
+    /// Index of the tile in its plan.
+    pub fn tile(&self) -> usize {
+        self.tile
+    }
+
+    /// Number of tile pixels (rows of S).
+    pub fn rows(&self) -> usize {
+        self.divisors.len()
+    }
+
+    /// Number of map pixels (columns of S).
+    pub fn columns(&self) -> usize {
+        self.npix
+    }
+
+    /// Tile pixel `k`'s entries as (map pixel, effective weight w/d) pairs.
+    pub fn row(&self, k: usize) -> impl Iterator<Item = (u64, f64)> + '_ {
+        let (a, b) = (self.starts[k], self.starts[k + 1]);
+        let d = self.divisors[k];
+        self.pixels[a..b]
+            .iter()
+            .zip(&self.weights[a..b])
+            .map(move |(&p, &w)| (p, w / d))
+    }
+
+    /// Every map pixel the tile reads (sorted, without repeats).
+    pub fn touched_pixels(&self) -> Vec<u64> {
+        let mut v = self.pixels.clone();
+        v.sort_unstable();
+        v.dedup();
+        v
+    }
+
+    fn check_columns(&self, len: usize) -> Result<()> {
+        if len != self.npix {
+            return Err(Error::Mismatch(format!(
+                "{len} map values given, the tile sampling reads a map of {} pixels",
+                self.npix
+            )));
+        }
+        Ok(())
+    }
+
+    /// f = S m: the tile field of map values `values` (map ordering, bad pixels as the sampler
+    /// saw them are never read).
+    pub fn apply(&self, values: &[f64]) -> Result<Vec<f64>> {
+        self.check_columns(values.len())?;
+        Ok((0..self.rows())
+            .map(|k| {
+                let mut sum = 0.0;
+                for e in self.starts[k]..self.starts[k + 1] {
+                    sum += self.weights[e] * values[self.pixels[e] as usize];
+                }
+                sum / self.divisors[k]
+            })
+            .collect())
+    }
+
+    /// m̄ += Sᵀ f̄: adds (w_e/d_k)·f̄_k to `map_values[p_e]` for every entry, tile pixels in
+    /// order (a fixed-order scatter-add, so the result does not depend on threads).
+    pub fn adjoint_add(&self, tile_values: &[f64], map_values: &mut [f64]) -> Result<()> {
+        self.check_columns(map_values.len())?;
+        if tile_values.len() != self.rows() {
+            return Err(Error::Mismatch(format!(
+                "{} tile values given, the tile has {} pixels",
+                tile_values.len(),
+                self.rows()
+            )));
+        }
+        for (k, &y) in tile_values.iter().enumerate() {
+            if y == 0.0 {
+                continue;
+            }
+            let yd = y / self.divisors[k];
+            for e in self.starts[k]..self.starts[k + 1] {
+                map_values[self.pixels[e] as usize] += self.weights[e] * yd;
+            }
+        }
+        Ok(())
+    }
+
+    /// Sᵀ f̄ as a new map-sized vector.
+    pub fn adjoint(&self, tile_values: &[f64]) -> Result<Vec<f64>> {
+        let mut out = vec![0.0; self.npix];
+        self.adjoint_add(tile_values, &mut out)?;
+        Ok(out)
+    }
+}
+
+impl TileSampler<'_> {
+    /// The sampling of tile `index` as a sparse operator (see [`TileSamplingOperator`]): for
+    /// the map this sampler was made with, `operator(i)?.apply(map.values())` equals
+    /// `sample(i)?.field` bit for bit, and it stays the exact sampling of any map with the
+    /// same valid pixels.
+    pub fn operator(&self, index: usize) -> Result<TileSamplingOperator> {
+        let plan = self.plan;
+        let tile = plan.tile(index)?;
+        let proj = Gnomonic::new(tile.center);
+        let n = plan.tile_pixels();
+        let pix = self.map.pixelization();
+        let valid = self.map.valid();
+        let coords: Vec<f64> = (0..n).map(|k| plan.plane_coordinate(k)).collect();
+        let mut starts = Vec::with_capacity(n * n + 1);
+        let mut pixels = Vec::with_capacity(n * n * 4);
+        let mut weights = Vec::with_capacity(n * n * 4);
+        let mut divisors = Vec::with_capacity(n * n);
+        starts.push(0);
+        // Renormalised linear weights over the valid neighbours: entries and their sum.
+        let linear = |pairs: &[(u64, f64)], pixels: &mut Vec<u64>, weights: &mut Vec<f64>| -> f64 {
+            let mut wsum = 0.0;
+            for &(i, wt) in pairs {
+                if wt > 0.0 && valid[i as usize] {
+                    pixels.push(i);
+                    weights.push(wt);
+                    wsum += wt;
+                }
+            }
+            if wsum > 0.0 {
+                wsum
+            } else {
+                1.0
+            }
+        };
+        for &y in &coords {
+            for &x in &coords {
+                let dir = proj.inverse(x, y);
+                let divisor = match self.method {
+                    SamplingMethod::Bilinear => {
+                        linear(&pix.bilinear_weights(dir)?, &mut pixels, &mut weights)
+                    }
+                    SamplingMethod::Nearest => {
+                        let i = pix.pixel_of(dir);
+                        if valid[i as usize] {
+                            pixels.push(i);
+                            weights.push(1.0);
+                        }
+                        1.0
+                    }
+                    SamplingMethod::RingLinear => {
+                        let w = ring_interpolation_weights(pix.nside(), dir)
+                            .iter()
+                            .map(|&(p, wt)| Ok((ring_to_map(pix, p)?, wt)))
+                            .collect::<Result<Vec<_>>>()?;
+                        linear(&w, &mut pixels, &mut weights)
+                    }
+                    SamplingMethod::RingCubic => {
+                        let cubic = ring_cubic_interpolation_weights(pix.nside(), dir)
+                            .iter()
+                            .filter(|&&(_, wt)| wt != 0.0)
+                            .map(|&(p, wt)| Ok((ring_to_map(pix, p)?, wt)))
+                            .collect::<Result<Vec<_>>>()?;
+                        if cubic.iter().all(|&(i, _)| valid[i as usize]) {
+                            for (i, wt) in cubic {
+                                pixels.push(i);
+                                weights.push(wt);
+                            }
+                            1.0
+                        } else {
+                            // next to bad pixels: the linear value over the valid ones
+                            let w = ring_interpolation_weights(pix.nside(), dir)
+                                .iter()
+                                .map(|&(p, wt)| Ok((ring_to_map(pix, p)?, wt)))
+                                .collect::<Result<Vec<_>>>()?;
+                            linear(&w, &mut pixels, &mut weights)
+                        }
+                    }
+                };
+                divisors.push(divisor);
+                starts.push(pixels.len());
+            }
+        }
+        Ok(TileSamplingOperator {
+            tile: index,
+            npix: pix.npix() as usize,
+            starts,
+            pixels,
+            weights,
+            divisors,
+        })
     }
 }
 

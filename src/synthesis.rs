@@ -57,6 +57,7 @@
 //! and ∂P̂_b/∂f_x = (2Δ²/n_b) Re IDFT(1_b F)(x).
 
 pub mod gradient;
+pub mod sphere;
 pub mod tile_gradient;
 
 pub use gradient::{DifferentiableScattering, ForwardPass};
@@ -889,54 +890,21 @@ impl FlatSynthesis {
         let (mu, sd) = (target.mean, target.standard_deviation);
         let x0: Vec<f64> = start.iter().map(|f| (f - mu) / sd).collect();
         let (initial_loss, _) = self.loss_and_gradient(target, &start)?;
-        let problem = SynthesisProblem {
-            synthesis: self,
-            target,
-            cache: Mutex::new(None),
-            best: Mutex::new((initial_loss, x0.clone())),
-            evaluations: std::sync::atomic::AtomicU64::new(0),
+        let evaluate = |x: &[f64]| -> Result<(f64, Vec<f64>)> {
+            let field: Vec<f64> = x.iter().map(|v| mu + sd * v).collect();
+            let (loss, grad_f) = self.loss_and_gradient(target, &field)?;
+            Ok((loss, grad_f.iter().map(|g| g * sd).collect()))
         };
-        let history = Arc::new(Mutex::new(Vec::new()));
-        let bar = if self.settings.progress {
-            let b = indicatif::ProgressBar::new(self.settings.iterations);
-            b.set_style(
-                indicatif::ProgressStyle::with_template(
-                    "synthesis {bar:30} {pos}/{len} iterations, loss {msg}",
-                )
-                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
-            );
-            b
-        } else {
-            indicatif::ProgressBar::hidden()
-        };
-        let observer = LossObserver {
-            bar: bar.clone(),
-            history: Arc::clone(&history),
-        };
-        let line_search = MoreThuenteLineSearch::new();
-        let solver = LBFGS::new(line_search, self.settings.memory)
-            .with_tolerance_grad(1e-12)
-            .and_then(|s| s.with_tolerance_cost(1e-14))
-            .map_err(|e| Error::Setting(format!("L-BFGS settings: {e}")))?;
-        let iterations = self.settings.iterations;
-        let run = Executor::new(&problem, solver)
-            .configure(|state| state.param(x0).max_iters(iterations))
-            .add_observer(observer, ObserverMode::Always)
-            .run();
-        bar.finish_and_clear();
-        let (termination, done) = match &run {
-            Ok(r) => (
-                r.state().get_termination_status().to_string(),
-                r.state().get_iter(),
-            ),
-            Err(e) => (format!("stopped by the line search: {e}"), 0),
-        };
-        let history = history.lock().map(|h| h.clone()).unwrap_or_default();
-        let best_x = problem
-            .best
-            .lock()
-            .map(|b| b.1.clone())
-            .map_err(|_| Error::Data("synthesis state was poisoned".into()))?;
+        let run = minimise(
+            &evaluate,
+            x0,
+            initial_loss,
+            self.settings.iterations,
+            self.settings.memory,
+            self.settings.progress,
+        )?;
+        let (best_x, history, done, termination) =
+            (run.best, run.history, run.iterations, run.termination);
         let mut field: Vec<f64> = best_x.iter().map(|x| mu + sd * x).collect();
         let mut reflected = false;
         if self.settings.match_sign && !self.settings.field_envelope_correlation {
@@ -962,11 +930,9 @@ impl FlatSynthesis {
             statistics,
             initial_loss,
             final_loss,
-            iterations: if done > 0 { done } else { history.len() as u64 },
+            iterations: done,
             loss_history: history,
-            evaluations: problem
-                .evaluations
-                .load(std::sync::atomic::Ordering::Relaxed),
+            evaluations: run.evaluations,
             termination,
             max_relative_deviation,
             reflected,
@@ -1036,8 +1002,10 @@ pub fn gaussian_counterpart(values: &[f64], size: usize, seed: u64) -> Result<Ve
 /// Full coefficients (layout of [`DifferentiableScattering::labels`]) from a coefficient JSON
 /// document: an object with a `coefficients` array of objects holding `order`, `j1`, `l1`,
 /// `j2`, `l2` (null or absent when unused), `value` and, for order 0 and band powers, `kind`
-/// (`mean`, `variance`, `first_order`, `band_power`, `second_order`). Order-1 entries without a
-/// kind are first-order coefficients, order-2 entries second-order ones.
+/// (`mean`, `variance`, `first_order`, `band_power`, `second_order`; `scattering` for order 1
+/// or 2 as `planisphere measure` writes). Order-1 entries without a kind are first-order
+/// coefficients, order-2 entries second-order ones. Entries of an optional `band_powers` array
+/// (as `measure` writes them) are band powers.
 pub fn coefficients_from_json(
     text: &str,
     scale_count: usize,
@@ -1056,7 +1024,17 @@ pub fn coefficients_from_json(
         .enumerate()
         .map(|(i, l)| (label_name(l), i))
         .collect();
-    for (k, entry) in list.iter().enumerate() {
+    let band_powers = match doc.get("band_powers") {
+        None => Vec::new(),
+        Some(v) => v
+            .as_array()
+            .ok_or_else(|| Error::Data("coefficient file's `band_powers` is not an array".into()))?
+            .iter()
+            .map(|e| (e, true))
+            .collect(),
+    };
+    let entries = list.iter().map(|e| (e, false)).chain(band_powers);
+    for (k, (entry, in_band_powers)) in entries.enumerate() {
         let bad = |what: &str| Error::Data(format!("coefficient entry {k}: {what}"));
         let int = |key: &str| -> Result<Option<usize>> {
             match entry.get(key) {
@@ -1070,12 +1048,13 @@ pub fn coefficients_from_json(
         let order = int("order")?.ok_or_else(|| bad("no `order`"))?;
         let kind = entry.get("kind").and_then(|v| v.as_str());
         let kind = match (order, kind) {
+            (1, None) if in_band_powers => CoefficientKind::BandPower,
             (0, Some("mean")) => CoefficientKind::Mean,
             (0, Some("variance")) => CoefficientKind::Variance,
             (0, _) => return Err(bad("order 0 needs `kind` mean or variance")),
-            (1, None | Some("first_order")) => CoefficientKind::FirstOrder,
+            (1, None | Some("first_order" | "scattering")) => CoefficientKind::FirstOrder,
             (1, Some("band_power")) => CoefficientKind::BandPower,
-            (2, None | Some("second_order")) => CoefficientKind::SecondOrder,
+            (2, None | Some("second_order" | "scattering")) => CoefficientKind::SecondOrder,
             (o, k) => return Err(bad(&format!("unknown order {o} / kind {k:?}"))),
         };
         let label = CoefficientLabel {
@@ -1109,11 +1088,13 @@ pub fn coefficients_from_json(
 /// A point x with its loss and gradient.
 type CachedEvaluation = (Vec<f64>, f64, Vec<f64>);
 
+/// A loss-and-gradient function of the optimised variables.
+pub(crate) type Objective<'a> = dyn Fn(&[f64]) -> Result<(f64, Vec<f64>)> + Sync + 'a;
+
 /// The loss as an argmin problem; caches the last (x, L, ∇L) because argmin asks for the cost
 /// and the gradient of the same point separately, and keeps the best point seen.
 struct SynthesisProblem<'a> {
-    synthesis: &'a FlatSynthesis,
-    target: &'a SynthesisTarget,
+    objective: &'a Objective<'a>,
     cache: Mutex<Option<CachedEvaluation>>,
     best: Mutex<(f64, Vec<f64>)>,
     evaluations: std::sync::atomic::AtomicU64,
@@ -1128,12 +1109,9 @@ impl SynthesisProblem<'_> {
                 }
             }
         }
-        let (mu, sd) = (self.target.mean, self.target.standard_deviation);
-        let field: Vec<f64> = x.iter().map(|v| mu + sd * v).collect();
-        let (loss, grad_f) = self.synthesis.loss_and_gradient(self.target, &field)?;
+        let (loss, grad) = (self.objective)(x)?;
         self.evaluations
             .fetch_add(1, std::sync::atomic::Ordering::Relaxed);
-        let grad: Vec<f64> = grad_f.iter().map(|g| g * sd).collect();
         if let Ok(mut cache) = self.cache.lock() {
             *cache = Some((x.to_vec(), loss, grad.clone()));
         }
@@ -1160,6 +1138,89 @@ impl Gradient for &SynthesisProblem<'_> {
     fn gradient(&self, x: &Vec<f64>) -> std::result::Result<Vec<f64>, argmin::core::Error> {
         Ok(self.evaluate(x)?.1)
     }
+}
+
+/// What [`minimise`] found.
+pub(crate) struct Minimisation {
+    /// The best point seen (lowest finite loss, the start when nothing improved).
+    pub best: Vec<f64>,
+    /// Best loss after every iteration.
+    pub history: Vec<f64>,
+    /// Iterations done.
+    pub iterations: u64,
+    /// Loss-and-gradient evaluations (line-search trials included).
+    pub evaluations: u64,
+    /// Why the optimiser stopped.
+    pub termination: String,
+}
+
+/// Minimises `objective` from `x0` (whose loss is `initial_loss`) by L-BFGS with `memory`
+/// correction pairs (Nocedal & Wright 2006, Alg. 7.4/7.5) and the Moré–Thuente line search
+/// (Moré & Thuente 1994), from the `argmin` crate, for at most `iterations` iterations, with
+/// an optional progress bar showing the loss (stderr).
+pub(crate) fn minimise(
+    objective: &Objective<'_>,
+    x0: Vec<f64>,
+    initial_loss: f64,
+    iterations: u64,
+    memory: usize,
+    progress: bool,
+) -> Result<Minimisation> {
+    let problem = SynthesisProblem {
+        objective,
+        cache: Mutex::new(None),
+        best: Mutex::new((initial_loss, x0.clone())),
+        evaluations: std::sync::atomic::AtomicU64::new(0),
+    };
+    let history = Arc::new(Mutex::new(Vec::new()));
+    let bar = if progress {
+        let b = indicatif::ProgressBar::new(iterations);
+        b.set_style(
+            indicatif::ProgressStyle::with_template(
+                "synthesis {bar:30} {pos}/{len} iterations, loss {msg}",
+            )
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+        );
+        b
+    } else {
+        indicatif::ProgressBar::hidden()
+    };
+    let observer = LossObserver {
+        bar: bar.clone(),
+        history: Arc::clone(&history),
+    };
+    let line_search = MoreThuenteLineSearch::new();
+    let solver = LBFGS::new(line_search, memory)
+        .with_tolerance_grad(1e-12)
+        .and_then(|s| s.with_tolerance_cost(1e-14))
+        .map_err(|e| Error::Setting(format!("L-BFGS settings: {e}")))?;
+    let run = Executor::new(&problem, solver)
+        .configure(|state| state.param(x0).max_iters(iterations))
+        .add_observer(observer, ObserverMode::Always)
+        .run();
+    bar.finish_and_clear();
+    let (termination, done) = match &run {
+        Ok(r) => (
+            r.state().get_termination_status().to_string(),
+            r.state().get_iter(),
+        ),
+        Err(e) => (format!("stopped by the line search: {e}"), 0),
+    };
+    let history = history.lock().map(|h| h.clone()).unwrap_or_default();
+    let best = problem
+        .best
+        .lock()
+        .map(|b| b.1.clone())
+        .map_err(|_| Error::Data("synthesis state was poisoned".into()))?;
+    Ok(Minimisation {
+        best,
+        iterations: if done > 0 { done } else { history.len() as u64 },
+        history,
+        evaluations: problem
+            .evaluations
+            .load(std::sync::atomic::Ordering::Relaxed),
+        termination,
+    })
 }
 
 /// Progress bar and loss history, updated after every iteration.

@@ -49,6 +49,18 @@ impl Fixtures {
             &WriteOptions::default(),
         )
         .unwrap();
+        write_footprint(
+            &p("full16.fits"),
+            "MASK",
+            &Footprint::full_sky(pix16),
+            &WriteOptions::default(),
+        )
+        .unwrap();
+        let mut holed = map.values().to_vec();
+        holed[100] = f64::NAN;
+        let holed = SkyMap::new(pix16, holed).unwrap();
+        write_map(&p("nan16.fits"), "SIGNAL", &holed, &WriteOptions::default()).unwrap();
+        std::fs::write(p("coefficients.json"), "{\"coefficients\": []}\n").unwrap();
         let empty = Footprint::from_weights(pix16, vec![0.0; pix16.npix() as usize]).unwrap();
         write_footprint(&p("empty16.fits"), "MASK", &empty, &WriteOptions::default()).unwrap();
         std::fs::write(p("notfits.fits"), "this is plain text, not FITS\n").unwrap();
@@ -432,6 +444,99 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
         (
             s(&["sky", "-o", &f.path("no/such/dir/s.fits"), "--nside", "8"]),
             "does not exist",
+        ),
+        // sphere synthesis
+        (
+            s(&[
+                "synthesize",
+                "--target",
+                &map,
+                "--mask",
+                &f.path("mask8.fits"),
+                "-o",
+                &f.path("synth.fits"),
+            ]),
+            "mask NSIDE 8 does not match target map NSIDE 16",
+        ),
+        (
+            s(&[
+                "synthesize",
+                "--target",
+                &map,
+                "--mask",
+                &f.path("empty16.fits"),
+                "-o",
+                &f.path("synth.fits"),
+            ]),
+            "the mask is empty",
+        ),
+        (
+            s(&[
+                "synthesize",
+                "--target",
+                &f.path("nan16.fits"),
+                "--mask",
+                &f.path("full16.fits"),
+                "-o",
+                &f.path("synth.fits"),
+            ]),
+            "no value (NaN or UNSEEN) at 1 pixels inside the mask",
+        ),
+        (
+            s(&[
+                "synthesize",
+                "--target",
+                &f.path("allbad16.fits"),
+                "-o",
+                &f.path("synth.fits"),
+            ]),
+            "the target map has no valid pixel",
+        ),
+        (
+            s(&[
+                "synthesize",
+                "--target",
+                &f.path("coefficients.json"),
+                "-o",
+                &f.path("synth.fits"),
+            ]),
+            "needs --mask",
+        ),
+        (
+            s(&[
+                "synthesize",
+                "--target",
+                &map,
+                "-o",
+                &f.path("synth.fits"),
+                "--scales",
+                "4",
+                "--tile-pixels",
+                "64",
+            ]),
+            "reach 70.9° from their centre",
+        ),
+        (
+            s(&["synthesize", "--target", &map, "-o", &f.path("tile.npy")]),
+            "needs --tile INDEX",
+        ),
+        (
+            s(&[
+                "synthesize",
+                "--target",
+                &map,
+                "-o",
+                &f.path("tile.npy"),
+                "--tile",
+                "9999",
+                "--scales",
+                "2",
+                "--tile-pixels",
+                "16",
+                "--border-pixels",
+                "2",
+            ]),
+            "--tile 9999 does not exist",
         ),
     ];
     assert!(cases.len() >= 25);

@@ -226,3 +226,163 @@ fn synthesize_accepts_a_coefficient_file_target() {
     let (a, b): (f64, f64) = (parts[1].parse().unwrap(), parts[3].parse().unwrap());
     assert!(b < 0.1 * a, "{line}");
 }
+
+/// HEALPix fixtures of the sphere mode: a Gaussian sky (demo spectrum, NSIDE 32) and a binary
+/// 20° cap mask (invented data).
+fn write_sphere_fixtures(dir: &Path) {
+    use planisphere::fits_io::{write_footprint, write_map, WriteOptions};
+    use planisphere::skies::SkyRecipe;
+    use planisphere::spectrum::AngularSpectrum;
+    use planisphere::{Direction, Footprint, Ordering, Pixelization};
+    let recipe = SkyRecipe::gaussian(32, AngularSpectrum::demo_model(95, 1.0), 4);
+    let sky = recipe.realise(&recipe.transform().unwrap(), 0).unwrap();
+    write_map(
+        &dir.join("sky32.fits"),
+        "SIGNAL",
+        &sky,
+        &WriteOptions::default(),
+    )
+    .unwrap();
+    let pix = Pixelization::new(32, Ordering::Ring).unwrap();
+    let c = Direction::from_lonlat_deg(40.0, 30.0);
+    let cap = Footprint::from_fn(pix, |d| d.distance(&c) < 20f64.to_radians());
+    write_footprint(
+        &dir.join("cap32.fits"),
+        "MASK",
+        &cap,
+        &WriteOptions::default(),
+    )
+    .unwrap();
+}
+
+const SPHERE_SETTINGS: [&str; 8] = [
+    "--scales",
+    "3",
+    "--tile-pixels",
+    "32",
+    "--border-pixels",
+    "4",
+    "--taper-arcmin",
+    "240",
+];
+
+fn loss_drop(stdout: &str) -> (f64, f64) {
+    let line = stdout.lines().find(|l| l.starts_with("loss ")).unwrap();
+    let parts: Vec<&str> = line.split_whitespace().collect();
+    (parts[1].parse().unwrap(), parts[3].parse().unwrap())
+}
+
+#[test]
+fn sphere_mode_writes_a_healpix_map_on_the_footprint_and_a_mollweide_panel() {
+    use planisphere::fits_io::{read_footprint, read_map, ColumnChoice};
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    write_sphere_fixtures(d);
+    let mut args = vec![
+        "--target",
+        "sky32.fits",
+        "--mask",
+        "cap32.fits",
+        "-o",
+        "synth.fits",
+        "--iterations",
+        "30",
+    ];
+    args.extend(SPHERE_SETTINGS);
+    let run = synthesize(d, &args);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let (a, b) = loss_drop(&run.stdout);
+    assert!(b < 0.1 * a, "{}", run.stdout);
+    let (map, _) = read_map(&d.join("synth.fits"), &ColumnChoice::parse("0")).unwrap();
+    let (mask, _) = read_footprint(&d.join("cap32.fits"), &ColumnChoice::parse("0")).unwrap();
+    assert_eq!(map.nside(), 32);
+    let mask = mask.to_ordering(map.ordering()).unwrap();
+    // valid exactly on the mask's footprint (UNSEEN elsewhere)
+    for (p, (&ok, &w)) in map.valid().iter().zip(mask.weights()).enumerate() {
+        assert_eq!(ok, w > 0.0, "pixel {p}");
+    }
+    let png = std::fs::read(d.join("synth.png")).unwrap();
+    assert_eq!(&png[..8], b"\x89PNG\r\n\x1a\n");
+    let names: Vec<String> = std::fs::read_dir(d)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    assert!(names.iter().all(|n| !n.contains("partial")), "{names:?}");
+}
+
+/// The coefficient file of `planisphere measure` as a sphere target (white start).
+#[test]
+fn sphere_mode_accepts_a_measured_coefficient_file() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    write_sphere_fixtures(d);
+    let out = Command::new(env!("CARGO_BIN_EXE_planisphere"))
+        .current_dir(d)
+        .args([
+            "measure",
+            "sky32.fits",
+            "--mask",
+            "cap32.fits",
+            "--taper-arcmin",
+            "240",
+            "-J",
+            "3",
+            "--tile-pixels",
+            "32",
+            "--border-pixels",
+            "4",
+            "--no-bispectrum",
+            "-o",
+            "stats.json",
+        ])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let mut args = vec![
+        "--target",
+        "stats.json",
+        "--mask",
+        "cap32.fits",
+        "-o",
+        "synth.fits",
+        "--iterations",
+        "30",
+    ];
+    args.extend(SPHERE_SETTINGS);
+    let run = synthesize(d, &args);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let (a, b) = loss_drop(&run.stdout);
+    assert!(b < 0.1 * a, "{}", run.stdout);
+    assert!(d.join("synth.fits").is_file() && d.join("synth.png").is_file());
+}
+
+/// One tile of a HEALPix map as a flat target.
+#[test]
+fn flat_mode_takes_a_tile_of_a_sphere_map() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    write_sphere_fixtures(d);
+    let mut args = vec![
+        "--target",
+        "sky32.fits",
+        "--mask",
+        "cap32.fits",
+        "--tile",
+        "1",
+        "-o",
+        "tile.npy",
+        "--iterations",
+        "30",
+    ];
+    args.extend(SPHERE_SETTINGS);
+    let run = synthesize(d, &args);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let field: Array2<f64> = ndarray_npy::read_npy(d.join("tile.npy")).unwrap();
+    assert_eq!(field.dim(), (32, 32));
+    let (a, b) = loss_drop(&run.stdout);
+    assert!(b < 0.1 * a, "{}", run.stdout);
+}

@@ -53,7 +53,8 @@ pub enum Command {
     CompareFlat(compare_flat::CompareFlatArgs),
     /// Draw pictures of measurements, forecasts and per-tile statistics.
     Plot(plot::PlotArgs),
-    /// Synthesise a new flat field whose scattering statistics match a target map or file.
+    /// Synthesise a flat field or a HEALPix map on a footprint whose scattering statistics match
+    /// a target map, tile or coefficient file.
     Synthesize(synthesize::SynthesizeArgs),
 }
 

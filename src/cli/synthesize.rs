@@ -1,11 +1,28 @@
-//! `planisphere synthesize`: a new flat field whose scattering statistics match a target flat
-//! map (.npy, 2D float64, square, periodic) or a coefficient file (JSON with a `coefficients`
-//! array, see [`crate::synthesis::coefficients_from_json`]). Writes the field as .npy and a PNG
-//! panel: target, a Gaussian field with the target's power spectrum, and the synthesised field.
-//! Method and loss: [`crate::synthesis`].
+//! `planisphere synthesize`: a new field whose scattering statistics match a target.
+//!
+//! * Flat mode (output `.npy`): the target is a flat map (.npy, 2D float64, square, periodic),
+//!   one tile of a HEALPix map (`--target map.fits --tile INDEX`, the tile's sampled field) or a
+//!   coefficient file (JSON with a `coefficients` array, see
+//!   [`crate::synthesis::coefficients_from_json`]). Writes the field as .npy and a PNG panel:
+//!   target, a Gaussian field with the target's power spectrum, and the synthesised field.
+//!   Method and loss: [`crate::synthesis`].
+//! * Sphere mode (output `.fits`): the target is a HEALPix map with its mask, or a coefficient
+//!   file with `--mask`; the pixels inside the footprint are synthesised so that the pooled
+//!   coefficients of the masked footprint match ([`crate::synthesis::sphere`]). Writes a HEALPix
+//!   FITS map (UNSEEN outside the footprint) and a Mollweide PNG panel: target, a Gaussian sky
+//!   with the target's pseudo-C_ℓ, and the synthesised map.
 
-use crate::cli::output::write_atomically;
+use crate::cli::inputs::{load_map, MaskArgs};
+use crate::cli::measure::SamplingChoice;
+use crate::cli::output::{check_output_path, write_atomically};
 use crate::error::{Error, Result};
+use crate::fits_io::{read_footprint, write_map, ColumnChoice, WriteOptions};
+use crate::footprint::Footprint;
+use crate::measurement::{MeasurementSettings, SphereMeasurer};
+use crate::plotting::{write_pictures_in_a_row, SkyPicture};
+use crate::sampling::{SamplingMethod, TileSampler};
+use crate::skymap::SkyMap;
+use crate::synthesis::sphere::{gaussian_sky, SphereSynthesis};
 use crate::synthesis::{
     coefficients_from_json, gaussian_counterpart, one_point_moments, FlatSynthesis, StartField,
     StatisticChoice, SynthesisSettings,
@@ -31,24 +48,29 @@ pub enum StartOption {
     Gaussian,
 }
 
-/// Synthesise a new flat field whose scattering statistics match a target.
+/// Synthesise a flat field or a HEALPix map on a footprint whose scattering statistics match a
+/// target map, tile or coefficient file.
 #[derive(Debug, clap::Args)]
 pub struct SynthesizeArgs {
-    /// Target: a flat map as .npy (2D float64, n × n, n a power of two) or a coefficient .json.
+    /// Target: a flat map as .npy (2D float64, n × n, n a power of two), a HEALPix map as .fits
+    /// (sphere mode, or one tile of it with --tile), or a coefficient .json (as written by
+    /// `measure`).
     #[arg(long, value_name = "PATH")]
     pub target: PathBuf,
-    /// Output field (.npy, float64, n × n).
+    /// Output: .npy for a flat field (n × n float64), .fits for a HEALPix map synthesised on
+    /// the footprint (UNSEEN outside it).
     #[arg(long, short, value_name = "PATH")]
     pub output: PathBuf,
     /// PNG panel (default: the output path with extension .png).
     #[arg(long, value_name = "PATH")]
     pub picture: Option<PathBuf>,
-    /// Field side in pixels, needed with a coefficient-file target.
+    /// Flat mode: field side in pixels, needed with a coefficient-file target.
     #[arg(long, value_name = "PIXELS")]
     pub size: Option<usize>,
-    /// Pixel side in arcmin (scales the power spectrum only).
-    #[arg(long, default_value_t = 1.0, value_name = "ARCMIN")]
-    pub pixel_arcmin: f64,
+    /// Pixel side in arcmin [flat: 1 (scales the power spectrum only); sphere and --tile: the
+    /// map's mean pixel spacing].
+    #[arg(long, value_name = "ARCMIN", allow_negative_numbers = true)]
+    pub pixel_arcmin: Option<f64>,
     /// Number of scales J.
     #[arg(long, default_value_t = 4)]
     pub scales: usize,
@@ -58,10 +80,11 @@ pub struct SynthesizeArgs {
     /// Statistics to match.
     #[arg(long, value_enum, default_value_t = StatisticsOption::Full)]
     pub statistics: StatisticsOption,
-    /// Also match the field–envelope correlations (sign-sensitive; target maps only).
+    /// Flat mode: also match the field–envelope correlations (sign-sensitive; target maps only).
     #[arg(long)]
     pub field_envelope_correlation: bool,
-    /// Also match the power spectrum in this many logarithmic bins (target maps only).
+    /// Flat mode: also match the power spectrum in this many logarithmic bins (target maps
+    /// only).
     #[arg(long, value_name = "BINS")]
     pub power_bins: Option<usize>,
     /// Maximum number of L-BFGS iterations.
@@ -73,6 +96,29 @@ pub struct SynthesizeArgs {
     /// Start field (default: gaussian for a target map, white for a coefficient file).
     #[arg(long, value_enum)]
     pub start: Option<StartOption>,
+    /// Column of a HEALPix target map: 0-based position or name.
+    #[arg(long, default_value = "0")]
+    pub column: ColumnChoice,
+    #[command(flatten)]
+    pub mask: MaskArgs,
+    /// Flat mode with a HEALPix target: synthesise a flat field like tile INDEX of the map's
+    /// tiling (as `planisphere tiles` numbers them).
+    #[arg(long, value_name = "INDEX")]
+    pub tile: Option<usize>,
+    /// Sphere mode and --tile: plane pixels per tile side, a power of two [default: 64, or the
+    /// smallest power of two that holds J scales and the halo].
+    #[arg(long)]
+    pub tile_pixels: Option<usize>,
+    /// Sphere mode and --tile: NSIDE of the coarse grid of tile centres [default: the coarsest
+    /// that fits].
+    #[arg(long)]
+    pub coarse_nside: Option<u32>,
+    /// Sphere mode and --tile: width of the tile-border taper in tile pixels.
+    #[arg(long, default_value_t = 8)]
+    pub border_pixels: usize,
+    /// Sphere mode and --tile: how the sky is read at tile pixels [default: ring-cubic].
+    #[arg(long, value_enum)]
+    pub sampling: Option<SamplingChoice>,
 }
 
 enum Target {
@@ -187,29 +233,127 @@ fn write_panel(path: &Path, size: usize, panels: &[(&str, &[f64])]) -> Result<()
     })
 }
 
+/// Measurement settings of sphere mode and of --tile: J, L, tiles, border, sampling; the
+/// transform without Fourier cropping (the path the masked-tile gradient differentiates).
+fn measurement_settings(args: &SynthesizeArgs) -> Result<MeasurementSettings> {
+    let mut s = MeasurementSettings {
+        scales: args.scales,
+        orientations: args.orientations,
+        coarse_nside: args.coarse_nside,
+        pixel_arcmin: args.pixel_arcmin,
+        border_pixels: args.border_pixels,
+        bispectrum: false,
+        ..MeasurementSettings::default()
+    };
+    s.transform.fourier_cropping = false;
+    if let Some(c) = args.sampling {
+        s.sampling = SamplingMethod::from(c);
+    }
+    s.tile_pixels = match args.tile_pixels {
+        Some(n) => n,
+        None => {
+            // the smallest power of two from 64 that holds 2^(J+1) and leaves a core
+            let mut n = 64usize;
+            while n < (1 << 14) && ((1usize << (args.scales.min(13) + 1)) > n || 2 * s.halo() >= n)
+            {
+                n *= 2;
+            }
+            n
+        }
+    };
+    Ok(s)
+}
+
+fn synthesis_settings(args: &SynthesizeArgs, start: StartField) -> SynthesisSettings {
+    SynthesisSettings {
+        statistics: match args.statistics {
+            StatisticsOption::Full => StatisticChoice::Full,
+            StatisticsOption::Compact => StatisticChoice::Compact,
+        },
+        field_envelope_correlation: args.field_envelope_correlation,
+        power_spectrum_bins: args.power_bins,
+        iterations: args.iterations,
+        seed: args.seed,
+        start,
+        progress: true,
+        ..SynthesisSettings::default()
+    }
+}
+
+fn extension_of(path: &Path) -> String {
+    path.extension()
+        .map(|e| e.to_string_lossy().to_lowercase())
+        .unwrap_or_default()
+}
+
 /// Runs the command.
 pub fn run(args: &SynthesizeArgs) -> Result<()> {
-    if !(args.pixel_arcmin.is_finite() && args.pixel_arcmin > 0.0) {
-        return Err(Error::Setting(format!(
-            "--pixel-arcmin must be a positive number, got {}",
-            args.pixel_arcmin
-        )));
-    }
-    let output_ext = args
-        .output
-        .extension()
-        .map(|e| e.to_string_lossy().to_lowercase());
-    if output_ext.as_deref() != Some("npy") {
-        return Err(Error::Setting(format!(
-            "--output '{}' must end in .npy",
-            args.output.display()
-        )));
+    if let Some(a) = args.pixel_arcmin {
+        if !(a.is_finite() && a > 0.0) {
+            return Err(Error::Setting(format!(
+                "--pixel-arcmin must be a positive number, got {a}"
+            )));
+        }
     }
     let picture = args
         .picture
         .clone()
         .unwrap_or_else(|| args.output.with_extension("png"));
-    let target_input = read_target(&args.target)?;
+    match extension_of(&args.output).as_str() {
+        "npy" => {
+            check_output_path(&args.output)?;
+            check_output_path(&picture)?;
+            run_flat(args, &picture)
+        }
+        "fits" | "fit" => {
+            check_output_path(&args.output)?;
+            check_output_path(&picture)?;
+            run_sphere(args, &picture)
+        }
+        _ => Err(Error::Setting(format!(
+            "--output '{}' must end in .npy (flat field) or .fits (HEALPix map)",
+            args.output.display()
+        ))),
+    }
+}
+
+/// The sampled field of tile `index` of `map` (with the mask options) and its pixel size.
+fn tile_of_sphere_map(args: &SynthesizeArgs, index: usize) -> Result<(usize, Vec<f64>, f64)> {
+    let map = load_map(&args.target, &args.column)?;
+    let footprint = args.mask.footprint_for(&map)?;
+    let settings = measurement_settings(args)?;
+    let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
+    let plan = measurer.plan();
+    if index >= plan.len() {
+        return Err(Error::Setting(format!(
+            "--tile {index} does not exist: the footprint has tiles 0 to {}",
+            plan.len() - 1
+        )));
+    }
+    let sampler = TileSampler::new(plan, &map, &footprint, settings.sampling)?;
+    let grids = sampler.sample(index)?;
+    Ok((grids.n, grids.field, plan.pixel_size()))
+}
+
+fn run_flat(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
+    let fits_target = matches!(extension_of(&args.target).as_str(), "fits" | "fit");
+    let (target_input, tile_pixel) = match (fits_target, args.tile) {
+        (true, Some(index)) => {
+            let (size, values, pixel) = tile_of_sphere_map(args, index)?;
+            (Target::Map { size, values }, Some(pixel))
+        }
+        (true, None) => {
+            return Err(Error::Setting(
+                "a HEALPix target with a .npy output needs --tile INDEX (or write a .fits output for the sphere mode)".into(),
+            ))
+        }
+        (false, Some(_)) => {
+            return Err(Error::Setting(
+                "--tile needs a HEALPix .fits target".into(),
+            ))
+        }
+        (false, None) => (read_target(&args.target)?, None),
+    };
     let size = match (&target_input, args.size) {
         (Target::Map { size, .. }, None) => *size,
         (Target::Map { size, .. }, Some(s)) if s == *size => s,
@@ -229,20 +373,8 @@ pub fn run(args: &SynthesizeArgs) -> Result<()> {
         (Some(StartOption::White), _) | (None, Target::Coefficients(_)) => StartField::White,
         (Some(StartOption::Gaussian), _) | (None, Target::Map { .. }) => StartField::Gaussian,
     };
-    let settings = SynthesisSettings {
-        statistics: match args.statistics {
-            StatisticsOption::Full => StatisticChoice::Full,
-            StatisticsOption::Compact => StatisticChoice::Compact,
-        },
-        field_envelope_correlation: args.field_envelope_correlation,
-        power_spectrum_bins: args.power_bins,
-        iterations: args.iterations,
-        seed: args.seed,
-        start,
-        progress: true,
-        ..SynthesisSettings::default()
-    };
-    let pixel = args.pixel_arcmin.to_radians() / 60.0;
+    let settings = synthesis_settings(args, start);
+    let pixel = tile_pixel.unwrap_or_else(|| args.pixel_arcmin.unwrap_or(1.0).to_radians() / 60.0);
     let synthesis = FlatSynthesis::new(size, args.scales, args.orientations, pixel, settings)?;
     let (target, target_map) = match &target_input {
         Target::Map { values, .. } => (synthesis.target_from_map(values)?, Some(values)),
@@ -259,7 +391,7 @@ pub fn run(args: &SynthesizeArgs) -> Result<()> {
         Some(values) => {
             let gaussian = gaussian_counterpart(values, size, args.seed.wrapping_add(1))?;
             write_panel(
-                &picture,
+                picture,
                 size,
                 &[
                     ("target", values),
@@ -271,7 +403,7 @@ pub fn run(args: &SynthesizeArgs) -> Result<()> {
             println!("target: skewness {ts:.4}, excess kurtosis {tk:.4}");
         }
         None => write_panel(
-            &picture,
+            picture,
             size,
             &[
                 ("synthesised", &outcome.field),
@@ -290,6 +422,217 @@ pub fn run(args: &SynthesizeArgs) -> Result<()> {
     );
     println!("synthesised: skewness {skew:.4}, excess kurtosis {kurt:.4}");
     println!("field: {}", args.output.display());
+    println!("picture: {}", picture.display());
+    Ok(())
+}
+
+/// The raw mask of sphere mode, checked against the target map: same NSIDE, and the map valid
+/// wherever the mask has positive weight.
+fn checked_mask(args: &SynthesizeArgs, map: &SkyMap) -> Result<Option<Footprint>> {
+    let Some(path) = &args.mask.mask else {
+        return Ok(None);
+    };
+    let (raw, header) = read_footprint(path, &args.mask.mask_column)?;
+    for w in &header.warnings {
+        eprintln!("planisphere: warning: {}: {w}", path.display());
+    }
+    if raw.pixelization().nside() != map.nside() {
+        return Err(Error::Mismatch(format!(
+            "mask NSIDE {} does not match target map NSIDE {}",
+            raw.pixelization().nside(),
+            map.nside()
+        )));
+    }
+    let inside = raw.to_ordering(map.ordering())?;
+    let bad = inside
+        .weights()
+        .iter()
+        .zip(map.valid())
+        .filter(|(&w, &ok)| w > 0.0 && !ok)
+        .count();
+    if bad > 0 {
+        return Err(Error::io(
+            &args.target,
+            format!("the target map has no value (NaN or UNSEEN) at {bad} pixels inside the mask"),
+        ));
+    }
+    Ok(Some(raw))
+}
+
+/// `values` inside the footprint, bad elsewhere.
+fn on_footprint(map: &SkyMap, footprint: &Footprint) -> Result<SkyMap> {
+    let values = map
+        .values()
+        .iter()
+        .zip(footprint.weights())
+        .map(|(&v, &w)| if w > 0.0 { v } else { f64::NAN })
+        .collect();
+    SkyMap::new(map.pixelization(), values)
+}
+
+/// 0.5 and 99.5 percentiles of the valid values.
+fn colour_range(map: &SkyMap) -> (f64, f64) {
+    let mut v: Vec<f64> = map
+        .values()
+        .iter()
+        .zip(map.valid())
+        .filter(|(_, &ok)| ok)
+        .map(|(&v, _)| v)
+        .collect();
+    if v.is_empty() {
+        return (0.0, 1.0);
+    }
+    v.sort_by(f64::total_cmp);
+    let pick = |q: f64| v[((v.len() - 1) as f64 * q).round() as usize];
+    (pick(0.005), pick(0.995))
+}
+
+/// Longitude (radians) of the footprint's weighted mean direction, to centre the pictures.
+fn footprint_longitude(footprint: &Footprint) -> f64 {
+    let pix = footprint.pixelization();
+    let (mut x, mut y) = (0.0, 0.0);
+    for (p, &w) in footprint.weights().iter().enumerate() {
+        if w > 0.0 {
+            let d = pix.center(p as u64);
+            x += w * d.theta.sin() * d.phi.cos();
+            y += w * d.theta.sin() * d.phi.sin();
+        }
+    }
+    if x == 0.0 && y == 0.0 {
+        0.0
+    } else {
+        y.atan2(x)
+    }
+}
+
+fn run_sphere(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
+    if args.tile.is_some() {
+        return Err(Error::Setting(
+            "--tile selects a flat target: use a .npy output with it".into(),
+        ));
+    }
+    if args.size.is_some() {
+        return Err(Error::Setting(
+            "--size is for flat fields; a sphere synthesis takes its size from the map".into(),
+        ));
+    }
+    let target_ext = extension_of(&args.target);
+    let measurement = measurement_settings(args)?;
+    let (target_map, footprint) = match target_ext.as_str() {
+        "fits" | "fit" => {
+            let map = load_map(&args.target, &args.column)?;
+            if map.valid_count() == 0 {
+                return Err(Error::io(
+                    &args.target,
+                    "the target map has no valid pixel (all NaN or UNSEEN)",
+                ));
+            }
+            let raw = match checked_mask(args, &map)? {
+                Some(raw) => raw.restricted_to(&map)?,
+                None => Footprint::of_valid_pixels(&map).restricted_to(&map)?,
+            };
+            let footprint = args.mask.taper_footprint(raw)?;
+            (Some(map), footprint)
+        }
+        "json" => {
+            let path = args.mask.mask.as_ref().ok_or_else(|| {
+                Error::Setting(
+                    "a coefficient-file target on the sphere needs --mask (it gives NSIDE and the footprint)".into(),
+                )
+            })?;
+            let (raw, header) = read_footprint(path, &args.mask.mask_column)?;
+            for w in &header.warnings {
+                eprintln!("planisphere: warning: {}: {w}", path.display());
+            }
+            (None, args.mask.taper_footprint(raw)?)
+        }
+        _ => return Err(Error::io(
+            &args.target,
+            "a sphere synthesis needs a HEALPix .fits map or a .json coefficient file as target",
+        )),
+    };
+    let start = match (args.start, &target_map) {
+        (Some(StartOption::White), _) | (None, None) => StartField::White,
+        (Some(StartOption::Gaussian), _) | (None, Some(_)) => StartField::Gaussian,
+    };
+    let settings = synthesis_settings(args, start);
+    let pixelization = match &target_map {
+        Some(m) => m.pixelization(),
+        None => footprint.pixelization(),
+    };
+    let synthesis = SphereSynthesis::new(pixelization, &footprint, measurement, settings)?;
+    let target = match &target_map {
+        Some(map) => synthesis.target_from_map(map)?,
+        None => {
+            let text =
+                std::fs::read_to_string(&args.target).map_err(|e| Error::io(&args.target, e))?;
+            let c = coefficients_from_json(&text, args.scales, args.orientations)
+                .map_err(|e| Error::io(&args.target, e))?;
+            synthesis.target_from_coefficients(&c)?
+        }
+    };
+    eprintln!(
+        "planisphere: synthesising {} footprint pixels on {} tiles of {}² pixels",
+        synthesis.variables().len(),
+        synthesis.tile_count(),
+        measurement.tile_pixels
+    );
+    let outcome = synthesis.synthesise(&target)?;
+    let fp = synthesis.footprint();
+    let result = on_footprint(&outcome.map, fp)?;
+    write_map(&args.output, "SIGNAL", &result, &WriteOptions::default())?;
+    let lon = footprint_longitude(fp);
+    let width = 640;
+    match &target_map {
+        Some(map) => {
+            let map = map.to_ordering(result.ordering())?;
+            let shown_target = on_footprint(&map, fp)?;
+            let (lo, hi) = colour_range(&shown_target);
+            let spectrum = target
+                .spectrum
+                .clone()
+                .ok_or_else(|| Error::Data("the target map's spectrum is missing".into()))?;
+            let gaussian = gaussian_sky(map.nside(), spectrum, args.seed.wrapping_add(1))?
+                .to_ordering(result.ordering())?;
+            let gaussian: Vec<f64> = gaussian.values().iter().map(|v| v + target.mean).collect();
+            let shown_gaussian = on_footprint(&SkyMap::new(result.pixelization(), gaussian)?, fp)?;
+            let pictures = [
+                SkyPicture::new(width, "target")
+                    .central_longitude(lon)
+                    .fill_map(&shown_target, lo, hi),
+                SkyPicture::new(width, "Gaussian, same spectrum")
+                    .central_longitude(lon)
+                    .fill_map(&shown_gaussian, lo, hi),
+                SkyPicture::new(width, "synthesised")
+                    .central_longitude(lon)
+                    .fill_map(&result, lo, hi),
+            ];
+            write_pictures_in_a_row(picture, &pictures)?;
+        }
+        None => {
+            let (lo, hi) = colour_range(&result);
+            let shown_start = on_footprint(&outcome.start, fp)?;
+            let pictures = [
+                SkyPicture::new(width, "synthesised")
+                    .central_longitude(lon)
+                    .fill_map(&result, lo, hi),
+                SkyPicture::new(width, "start (white noise)")
+                    .central_longitude(lon)
+                    .fill_map(&shown_start, lo, hi),
+            ];
+            write_pictures_in_a_row(picture, &pictures)?;
+        }
+    }
+    println!(
+        "loss {:.4e} -> {:.4e} after {} iterations ({})",
+        outcome.initial_loss, outcome.final_loss, outcome.iterations, outcome.termination
+    );
+    println!(
+        "max normalised deviation |s - t|/sigma over {} statistics: {:.4e}",
+        target.values.len(),
+        outcome.max_relative_deviation
+    );
+    println!("map: {}", args.output.display());
     println!("picture: {}", picture.display());
     Ok(())
 }

@@ -1,0 +1,678 @@
+//! Synthesis of a HEALPix map on a masked footprint whose pooled scattering statistics match a
+//! target.
+//!
+//! # Problem
+//!
+//! The variables are the values m_p of the map pixels p inside the footprint (weight > 0);
+//! every other pixel keeps its start value and is never changed. The statistics are the pooled
+//! coefficients of [`crate::measurement::SphereMeasurer::measure`]: per tile t, the field is
+//! f_t = S_t m (the tile sampling as a sparse linear operator,
+//! [`crate::sampling::TileSamplingOperator`]), the taper a_t = footprint × border window and the
+//! pooling weight w_t = a_t·Ω·[core] are fixed by the footprint, and the masked-tile transform
+//! returns per coefficient i a weighted sum Σ_t,i and a kept weight W_t,i (which depends on the
+//! taper only). Pooled over tiles (in plan order, [`crate::pooling`]):
+//!
+//! c_i = Σ_t Σ_t,i / Σ_t W_t,i (and the variance c_1 = Σ_t Σ_t,1 / W_1 − c_0²).
+//!
+//! The loss is L(m) = Σ_k ((s_k − t_k)/σ_k)² on the full set without the mean (s = c_1..) or
+//! the compact set ([`super::StatisticChoice`]), with σ_k = |t_k| or given, as in the flat
+//! synthesis ([`super`]).
+//!
+//! # Gradient (chain rule, reverse mode)
+//!
+//! ∂L/∂s_k = 2 (s_k − t_k)/σ_k²; the compact set's adjoint gives ∂L/∂c_i; since the W_i do not
+//! depend on m, ∂L/∂Σ_i = (∂L/∂c_i)/W_i for every tile alike, plus −2 c_0 (∂L/∂c_1)/W_0 on the
+//! mean's sum (from the variance's −c_0²). These per-sum weights go into the masked-tile
+//! backward pass ([`super::DifferentiableScattering::backward_tile`]), which returns ∂L/∂f_t on
+//! the tile grid, and the adjoint of the sampling scatters it back to the sphere:
+//! ∂L/∂m = Σ_t S_tᵀ ∂L/∂f_t (Griewank & Walther 2008, *Evaluating Derivatives*, ch. 3). Tiles are
+//! processed in parallel in chunks, and their sums and scatter-adds are applied in plan order,
+//! so loss and gradient are bitwise identical for any thread count. One evaluation costs two
+//! forward passes and one backward pass per tile (the forward intermediates are recomputed
+//! rather than kept for every tile at once).
+//!
+//! # Optimisation and start
+//!
+//! L-BFGS with the Moré–Thuente line search ([`super::minimise`], the flat synthesis's
+//! optimiser), in the units x = (m − μ_t)/σ_t of the target's pooled mean and standard
+//! deviation. Start maps (seeded): a Gaussian sky with the target map's pseudo-C_ℓ on the
+//! footprint (w2-corrected, Hivon et al. 2002 first-order correction as in
+//! [`crate::spectra::angular_spectrum`]) synthesised by [`crate::skies::SkyRecipe`], plus the
+//! target mean; or white noise of the target's mean and variance. The reflection remedy of the
+//! flat synthesis is not applied: reflecting the footprint alone would change the tiles that
+//! straddle its edge.
+
+use super::{minimise, CompactMap, Normalisation, StartField, StatisticChoice, SynthesisSettings};
+use crate::footprint::Footprint;
+use crate::harmonics::HarmonicTransform;
+use crate::measurement::{border_window, MeasurementSettings, SphereMeasurer};
+use crate::pixelization::Pixelization;
+use crate::pooling::{combine_tiles, TileSums};
+use crate::sampling::{TileSampler, TileSamplingOperator};
+use crate::skies::SkyRecipe;
+use crate::skymap::SkyMap;
+use crate::spectrum::AngularSpectrum;
+use crate::{Error, Result};
+use rand::SeedableRng;
+use rand_chacha::ChaCha20Rng;
+use rand_distr::{Distribution, StandardNormal};
+use rayon::prelude::*;
+
+use super::tile_gradient::{pooled_values, pooled_values_adjoint};
+use super::{DifferentiableScattering, TileGeometry};
+
+/// Sampling operators and tile geometries are kept for every tile when together they need at
+/// most about this many bytes; otherwise they are rebuilt, tile by tile, at each evaluation.
+const CACHE_BYTES: usize = 3 << 30;
+
+/// What the synthesised map must reproduce on the footprint.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SphereTarget {
+    /// Target values of the matched statistics.
+    pub values: Vec<f64>,
+    /// σ_k of the distance.
+    pub sigma: Vec<f64>,
+    /// Pooled mean of the target.
+    pub mean: f64,
+    /// Pooled standard deviation of the target (√variance).
+    pub standard_deviation: f64,
+    /// Pseudo-C_ℓ of the target map on the footprint, when the target is a map.
+    pub spectrum: Option<AngularSpectrum>,
+}
+
+/// Result of a sphere synthesis.
+#[derive(Debug, Clone)]
+pub struct SphereSynthesisOutcome {
+    /// The synthesised map: optimised inside the footprint, the start map elsewhere.
+    pub map: SkyMap,
+    /// The start map.
+    pub start: SkyMap,
+    /// Matched statistics of the synthesised map (order of the target's).
+    pub statistics: Vec<f64>,
+    /// Loss at the start map.
+    pub initial_loss: f64,
+    /// Loss of the returned map.
+    pub final_loss: f64,
+    /// Best loss after every L-BFGS iteration.
+    pub loss_history: Vec<f64>,
+    /// Iterations done.
+    pub iterations: u64,
+    /// Loss-and-gradient evaluations.
+    pub evaluations: u64,
+    /// Why the optimiser stopped.
+    pub termination: String,
+    /// max_k |s_k − t_k| / σ_k (the largest relative deviation with σ = |t|).
+    pub max_relative_deviation: f64,
+}
+
+/// One tile's fixed pieces: taper, pooling weight and (when cached) its sampling operator and
+/// estimator geometry.
+struct SphereTile {
+    index: usize,
+    taper: Vec<f64>,
+    weight: Vec<f64>,
+    cached: Option<(TileSamplingOperator, TileGeometry)>,
+}
+
+/// A tile's operator and geometry, cached or built for one use.
+type TileParts<'a> = std::borrow::Cow<'a, (TileSamplingOperator, TileGeometry)>;
+
+/// Synthesis of HEALPix maps on one footprint with one set of measurement settings; owns the
+/// measurer (plan, engine), the differentiable tile transform and the tiles' fixed pieces.
+pub struct SphereSynthesis {
+    measurer: SphereMeasurer,
+    transform: DifferentiableScattering,
+    settings: SynthesisSettings,
+    footprint: Footprint,
+    /// A map of the same pixelization with every pixel valid: the sampling geometry.
+    geometry: SkyMap,
+    tiles: Vec<SphereTile>,
+    variables: Vec<usize>,
+    compact: Option<CompactMap>,
+}
+
+impl std::fmt::Debug for SphereSynthesis {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(
+            f,
+            "SphereSynthesis({} tiles, {} pixels optimised)",
+            self.tiles.len(),
+            self.variables.len()
+        )
+    }
+}
+
+impl SphereSynthesis {
+    /// Plans the tiles of `footprint` for maps of pixelization `map` with `measurement`
+    /// settings and prepares the synthesis. The power-spectrum and field–envelope terms of the
+    /// flat synthesis are not available on the sphere.
+    pub fn new(
+        map: Pixelization,
+        footprint: &Footprint,
+        measurement: MeasurementSettings,
+        settings: SynthesisSettings,
+    ) -> Result<Self> {
+        if settings.iterations == 0 {
+            return Err(Error::Setting(
+                "the number of iterations must be at least 1".into(),
+            ));
+        }
+        if settings.memory == 0 {
+            return Err(Error::Setting(
+                "the L-BFGS memory must be at least 1 pair".into(),
+            ));
+        }
+        if settings.power_spectrum_bins.is_some() || settings.field_envelope_correlation {
+            return Err(Error::Setting(
+                "the power-spectrum and field-envelope terms are only available for flat fields"
+                    .into(),
+            ));
+        }
+        if footprint.pixelization().nside() != map.nside() {
+            return Err(Error::Mismatch(format!(
+                "mask NSIDE {} does not match map NSIDE {}",
+                footprint.pixelization().nside(),
+                map.nside()
+            )));
+        }
+        let footprint = footprint.to_ordering(map.ordering())?;
+        let compact = match settings.statistics {
+            StatisticChoice::Full => None,
+            StatisticChoice::Compact => {
+                if !measurement.orientations.is_multiple_of(2) {
+                    return Err(Error::Setting(format!(
+                        "the compact set needs an even number of orientations L, got L = {}",
+                        measurement.orientations
+                    )));
+                }
+                Some(CompactMap {
+                    jn: measurement.scales,
+                    ln: measurement.orientations,
+                })
+            }
+        };
+        let measurer = SphereMeasurer::new(map, &footprint, measurement)?;
+        let transform = DifferentiableScattering::new(
+            measurement.tile_pixels,
+            measurement.scales,
+            measurement.orientations,
+        )?;
+        let geometry = SkyMap::new(map, vec![0.0; map.npix() as usize])?;
+        let window = border_window(measurement.tile_pixels, measurement.border_pixels);
+        let sampler =
+            TileSampler::new(measurer.plan(), &geometry, &footprint, measurement.sampling)?;
+        let fixed: Vec<Option<SphereTile>> = sampler.map_tiles(|grids| {
+            // as in SphereMeasurer::measure: interpolation may overshoot 1 by rounding
+            let taper: Vec<f64> = grids
+                .mask
+                .iter()
+                .zip(&window)
+                .map(|(m, b)| m.clamp(0.0, 1.0) * b)
+                .collect();
+            let weight = grids.pooling_weights(&taper)?;
+            let wsum: f64 = weight.iter().sum();
+            Ok((wsum > 0.0).then_some(SphereTile {
+                index: grids.tile,
+                taper,
+                weight,
+                cached: None,
+            }))
+        })?;
+        let mut tiles: Vec<SphereTile> = fixed.into_iter().flatten().collect();
+        if tiles.is_empty() {
+            return Err(Error::Data(
+                "no tile has positive pooling weight: the apodized footprint is empty".into(),
+            ));
+        }
+        // ring-cubic rows read up to 16 pixels (16 bytes per entry); the geometry holds about
+        // 2J + J(J−1)/2 + 4 grids
+        let (n, jn) = (measurement.tile_pixels, measurement.scales);
+        let per_tile = n * n * (16 * 16 + 8 * (2 * jn + jn * jn.saturating_sub(1) / 2 + 4));
+        if tiles.len() * per_tile <= CACHE_BYTES {
+            let parts: Vec<(TileSamplingOperator, TileGeometry)> = tiles
+                .par_iter()
+                .map(|t| {
+                    Ok((
+                        sampler.operator(t.index)?,
+                        transform.tile_geometry(&t.taper, &t.weight, &measurement.transform)?,
+                    ))
+                })
+                .collect::<Result<_>>()?;
+            for (t, part) in tiles.iter_mut().zip(parts) {
+                t.cached = Some(part);
+            }
+        }
+        drop(sampler);
+        let variables: Vec<usize> = footprint
+            .weights()
+            .iter()
+            .enumerate()
+            .filter(|(_, &w)| w > 0.0)
+            .map(|(p, _)| p)
+            .collect();
+        Ok(Self {
+            measurer,
+            transform,
+            settings,
+            footprint,
+            geometry,
+            tiles,
+            variables,
+            compact,
+        })
+    }
+
+    /// The measurer whose pooled coefficients are matched.
+    pub fn measurer(&self) -> &SphereMeasurer {
+        &self.measurer
+    }
+
+    /// The footprint, in the map's ordering.
+    pub fn footprint(&self) -> &Footprint {
+        &self.footprint
+    }
+
+    /// The settings.
+    pub fn settings(&self) -> &SynthesisSettings {
+        &self.settings
+    }
+
+    /// Number of tiles with positive pooling weight.
+    pub fn tile_count(&self) -> usize {
+        self.tiles.len()
+    }
+
+    /// The optimised pixels (footprint weight > 0), in the map's ordering, increasing.
+    pub fn variables(&self) -> &[usize] {
+        &self.variables
+    }
+
+    /// Number of matched statistics.
+    pub fn statistic_count(&self) -> usize {
+        let jn = self.measurer.settings().scales;
+        match &self.compact {
+            None => self.measurer.engine().labels().len() - 1,
+            // variance, J amplitudes, J(J−1)/2 sparsities and as many anisotropies
+            Some(_) => 1 + jn + jn * jn.saturating_sub(1),
+        }
+    }
+
+    fn select(&self, c: &[f64]) -> Vec<f64> {
+        match &self.compact {
+            None => c[1..].to_vec(),
+            Some(m) => m.values(c),
+        }
+    }
+
+    fn select_adjoint(&self, c: &[f64], ds: &[f64]) -> Vec<f64> {
+        match &self.compact {
+            None => {
+                let mut dc = vec![0.0; c.len()];
+                dc[1..].copy_from_slice(ds);
+                dc
+            }
+            Some(m) => m.adjoint(c, ds),
+        }
+    }
+
+    fn check_map(&self, values: &[f64]) -> Result<()> {
+        if values.len() != self.geometry.values().len() {
+            return Err(Error::Mismatch(format!(
+                "{} map values given, the synthesis works on {} pixels",
+                values.len(),
+                self.geometry.values().len()
+            )));
+        }
+        if let Some(p) = values.iter().position(|v| !v.is_finite()) {
+            return Err(Error::Data(format!(
+                "map value at pixel {p} is not a finite number"
+            )));
+        }
+        Ok(())
+    }
+
+    /// The operator and geometry of a tile: cached, or built now from `sampler`.
+    fn parts<'s>(
+        &'s self,
+        tile: &'s SphereTile,
+        sampler: Option<&TileSampler<'_>>,
+    ) -> Result<TileParts<'s>> {
+        match (&tile.cached, sampler) {
+            (Some(parts), _) => Ok(std::borrow::Cow::Borrowed(parts)),
+            (None, Some(s)) => Ok(std::borrow::Cow::Owned((
+                s.operator(tile.index)?,
+                self.transform.tile_geometry(
+                    &tile.taper,
+                    &tile.weight,
+                    &self.measurer.settings().transform,
+                )?,
+            ))),
+            (None, None) => Err(Error::Data("tile sampling operator missing".into())),
+        }
+    }
+
+    /// Runs `work` on every tile's operator and geometry in parallel, in chunks, and hands the
+    /// results with the tile's operator to `consume` one by one in plan order.
+    fn for_each_tile<R, W, C>(&self, work: W, mut consume: C) -> Result<()>
+    where
+        R: Send,
+        W: Fn(&TileSamplingOperator, &TileGeometry) -> Result<R> + Sync,
+        C: FnMut(&TileSamplingOperator, R) -> Result<()>,
+    {
+        let uncached = self.tiles.iter().any(|t| t.cached.is_none());
+        let sampler = if uncached {
+            Some(TileSampler::new(
+                self.measurer.plan(),
+                &self.geometry,
+                &self.footprint,
+                self.measurer.settings().sampling,
+            )?)
+        } else {
+            None
+        };
+        let chunk = (4 * rayon::current_num_threads()).max(8);
+        for group in self.tiles.chunks(chunk) {
+            let results: Vec<(TileParts<'_>, R)> = group
+                .par_iter()
+                .map(|t| {
+                    let parts = self.parts(t, sampler.as_ref())?;
+                    let r = work(&parts.0, &parts.1)?;
+                    Ok((parts, r))
+                })
+                .collect::<Result<_>>()?;
+            for (parts, r) in results {
+                consume(&parts.0, r)?;
+            }
+        }
+        Ok(())
+    }
+
+    /// Per-tile sums of a full map (map ordering), in plan order.
+    fn tile_sums(&self, values: &[f64]) -> Result<Vec<TileSums>> {
+        let mut sums = Vec::with_capacity(self.tiles.len());
+        self.for_each_tile(
+            |op, geometry| {
+                let field = op.apply(values)?;
+                Ok(self.transform.forward_tile_with(geometry, &field)?.sums)
+            },
+            |_, s| {
+                sums.push(s);
+                Ok(())
+            },
+        )?;
+        Ok(sums)
+    }
+
+    /// The pooled coefficients (engine label order) of a full map.
+    pub fn pooled_coefficients(&self, values: &[f64]) -> Result<Vec<f64>> {
+        self.check_map(values)?;
+        let total = combine_tiles(&self.tile_sums(values)?)?;
+        let c = pooled_values(&total);
+        if let Some(i) = c.iter().position(|v| !v.is_finite()) {
+            return Err(Error::Data(format!(
+                "pooled coefficient {i} has no pooling weight on this footprint (use fewer scales or larger tiles)"
+            )));
+        }
+        Ok(c)
+    }
+
+    /// The matched statistics of a full map.
+    pub fn statistics(&self, values: &[f64]) -> Result<Vec<f64>> {
+        Ok(self.select(&self.pooled_coefficients(values)?))
+    }
+
+    /// Loss L(m) = Σ ((s_k − t_k)/σ_k)² of a full map and its gradient ∂L/∂m_p for every pixel
+    /// (module documentation); pixels no tile reads get 0.
+    pub fn loss_and_gradient(
+        &self,
+        target: &SphereTarget,
+        values: &[f64],
+    ) -> Result<(f64, Vec<f64>)> {
+        self.check_map(values)?;
+        if target.values.len() != self.statistic_count()
+            || target.sigma.len() != target.values.len()
+        {
+            return Err(Error::Mismatch(format!(
+                "target has {} statistics, the synthesis matches {}",
+                target.values.len(),
+                self.statistic_count()
+            )));
+        }
+        let total = combine_tiles(&self.tile_sums(values)?)?;
+        let c = pooled_values(&total);
+        let s = self.select(&c);
+        let mut loss = 0.0;
+        let mut ds = Vec::with_capacity(s.len());
+        for ((si, ti), sg) in s.iter().zip(&target.values).zip(&target.sigma) {
+            let r = (si - ti) / sg;
+            loss += r * r;
+            ds.push(2.0 * r / sg);
+        }
+        let dc = self.select_adjoint(&c, &ds);
+        // ∂L/∂Σ_i, the same for every tile
+        let sum_weights = pooled_values_adjoint(&total, &dc)?;
+        let mut grad = vec![0.0; values.len()];
+        self.for_each_tile(
+            |op, geometry| {
+                let field = op.apply(values)?;
+                let pass = self.transform.forward_tile_with(geometry, &field)?;
+                self.transform.backward_tile(&pass, &sum_weights)
+            },
+            |op, tile_grad| op.adjoint_add(&tile_grad, &mut grad),
+        )?;
+        Ok((loss, grad))
+    }
+
+    /// σ_k for target values `values` (full coefficients `c` give the layout).
+    fn sigma_for(&self, values: &[f64]) -> Result<Vec<f64>> {
+        let sigma = match &self.settings.normalisation {
+            Normalisation::Given(s) => {
+                if s.len() != values.len() {
+                    return Err(Error::Mismatch(format!(
+                        "{} normalisation scales given, the chosen statistics have {}",
+                        s.len(),
+                        values.len()
+                    )));
+                }
+                s.clone()
+            }
+            Normalisation::Relative => values.iter().map(|t| t.abs()).collect(),
+        };
+        if let Some(i) = sigma.iter().position(|v| !(v.is_finite() && *v > 0.0)) {
+            return Err(Error::Data(format!(
+                "target statistic {i} is {}: its normalisation scale must be positive",
+                values[i]
+            )));
+        }
+        Ok(sigma)
+    }
+
+    /// Target from full pooled coefficients (engine label order), e.g. from a coefficient file.
+    pub fn target_from_coefficients(&self, coefficients: &[f64]) -> Result<SphereTarget> {
+        let want = self.measurer.engine().labels().len();
+        if coefficients.len() != want {
+            return Err(Error::Mismatch(format!(
+                "{} coefficients given, J and L call for {want}",
+                coefficients.len()
+            )));
+        }
+        if let Some(i) = coefficients.iter().position(|v| !v.is_finite()) {
+            return Err(Error::Data(format!(
+                "target coefficient {i} is not a finite number"
+            )));
+        }
+        let variance = coefficients[1];
+        if variance.is_nan() || variance <= 0.0 {
+            return Err(Error::Data(format!(
+                "target variance must be positive, got {variance}"
+            )));
+        }
+        let values = self.select(coefficients);
+        let sigma = self.sigma_for(&values)?;
+        Ok(SphereTarget {
+            values,
+            sigma,
+            mean: coefficients[0],
+            standard_deviation: variance.sqrt(),
+            spectrum: None,
+        })
+    }
+
+    /// Target from a map of the same NSIDE, measured on the synthesis footprint with the same
+    /// settings (through [`SphereMeasurer::measure`]), with its pseudo-C_ℓ for a Gaussian start.
+    pub fn target_from_map(&self, map: &SkyMap) -> Result<SphereTarget> {
+        let pix = self.geometry.pixelization();
+        if map.nside() != pix.nside() {
+            return Err(Error::Mismatch(format!(
+                "target map NSIDE {} does not match the synthesis NSIDE {}",
+                map.nside(),
+                pix.nside()
+            )));
+        }
+        let map = map.to_ordering(pix.ordering())?;
+        if let Some(p) = self.variables.iter().find(|&&p| !map.valid()[p]) {
+            return Err(Error::Data(format!(
+                "the target map has no valid value at footprint pixel {p}"
+            )));
+        }
+        let stats = self.measurer.measure(&map, &self.footprint)?;
+        let c: Vec<f64> = stats
+            .coefficients
+            .coefficients
+            .iter()
+            .map(|c| c.value)
+            .collect();
+        let mut target = self.target_from_coefficients(&c)?;
+        target.spectrum = Some(footprint_spectrum(&map, &self.footprint)?);
+        Ok(target)
+    }
+
+    /// The start map (seeded): Gaussian sky with the target's pseudo-C_ℓ plus its mean, or
+    /// white noise of its mean and variance (module documentation). RING-ordered skies are
+    /// re-ordered to the synthesis ordering.
+    pub fn start_map(&self, target: &SphereTarget, start: StartField, seed: u64) -> Result<SkyMap> {
+        let pix = self.geometry.pixelization();
+        match start {
+            StartField::White => {
+                let mut rng = ChaCha20Rng::seed_from_u64(seed);
+                let values: Vec<f64> = (0..pix.npix())
+                    .map(|_| {
+                        let z: f64 = StandardNormal.sample(&mut rng);
+                        target.mean + target.standard_deviation * z
+                    })
+                    .collect();
+                SkyMap::new(pix, values)
+            }
+            StartField::Gaussian => {
+                let spectrum = target.spectrum.clone().ok_or_else(|| {
+                    Error::Setting(
+                        "a Gaussian start needs a target map (its power spectrum); use a white start with a coefficient file".into(),
+                    )
+                })?;
+                let sky = gaussian_sky(pix.nside(), spectrum, seed)?;
+                let values: Vec<f64> = sky.values().iter().map(|v| v + target.mean).collect();
+                SkyMap::new(sky.pixelization(), values)?.to_ordering(pix.ordering())
+            }
+        }
+    }
+
+    /// Runs the synthesis from the settings' start map.
+    pub fn synthesise(&self, target: &SphereTarget) -> Result<SphereSynthesisOutcome> {
+        let start = self.start_map(target, self.settings.start, self.settings.seed)?;
+        self.synthesise_from(target, start)
+    }
+
+    /// Runs the synthesis from a given start map (same pixelization, finite everywhere).
+    pub fn synthesise_from(
+        &self,
+        target: &SphereTarget,
+        start: SkyMap,
+    ) -> Result<SphereSynthesisOutcome> {
+        let start = start.to_ordering(self.geometry.ordering())?;
+        if start.nside() != self.geometry.nside() {
+            return Err(Error::Mismatch(format!(
+                "start map NSIDE {} does not match the synthesis NSIDE {}",
+                start.nside(),
+                self.geometry.nside()
+            )));
+        }
+        let base: Vec<f64> = start.values().to_vec();
+        self.check_map(&base)?;
+        let (mu, sd) = (target.mean, target.standard_deviation);
+        let x0: Vec<f64> = self
+            .variables
+            .iter()
+            .map(|&p| (base[p] - mu) / sd)
+            .collect();
+        let with = |x: &[f64]| -> Vec<f64> {
+            let mut m = base.clone();
+            for (&p, v) in self.variables.iter().zip(x) {
+                m[p] = mu + sd * v;
+            }
+            m
+        };
+        let (initial_loss, _) = self.loss_and_gradient(target, &base)?;
+        let evaluate = |x: &[f64]| -> Result<(f64, Vec<f64>)> {
+            let (loss, g) = self.loss_and_gradient(target, &with(x))?;
+            Ok((loss, self.variables.iter().map(|&p| g[p] * sd).collect()))
+        };
+        let run = minimise(
+            &evaluate,
+            x0,
+            initial_loss,
+            self.settings.iterations,
+            self.settings.memory,
+            self.settings.progress,
+        )?;
+        let values = with(&run.best);
+        let (final_loss, _) = self.loss_and_gradient(target, &values)?;
+        let statistics = self.statistics(&values)?;
+        let max_relative_deviation = statistics
+            .iter()
+            .zip(&target.values)
+            .zip(&target.sigma)
+            .map(|((s, t), sg)| ((s - t) / sg).abs())
+            .fold(0.0, f64::max);
+        Ok(SphereSynthesisOutcome {
+            map: SkyMap::new(self.geometry.pixelization(), values)?,
+            start,
+            statistics,
+            initial_loss,
+            final_loss,
+            loss_history: run.history,
+            iterations: run.iterations,
+            evaluations: run.evaluations,
+            termination: run.termination,
+            max_relative_deviation,
+        })
+    }
+}
+
+/// Pseudo-C_ℓ of `map` on `footprint` (w2-corrected, [`crate::spectra::angular_spectrum`], ℓmax
+/// = 3·NSIDE − 1, 3 Jacobi iterations, per ℓ), monopole and dipole set to 0 and negative
+/// estimates clipped to 0 so that it can colour a Gaussian sky.
+pub fn footprint_spectrum(map: &SkyMap, footprint: &Footprint) -> Result<AngularSpectrum> {
+    let nside = map.nside() as usize;
+    let sht = HarmonicTransform::new(nside, 3 * nside - 1)?;
+    let measured = crate::spectra::angular_spectrum(map, Some(footprint), &sht, 3, 1)?;
+    let cl = measured
+        .cl
+        .iter()
+        .enumerate()
+        .map(|(l, c)| {
+            if l < 2 || !c.is_finite() {
+                0.0
+            } else {
+                c.max(0.0)
+            }
+        })
+        .collect();
+    Ok(AngularSpectrum { cl })
+}
+
+/// A Gaussian sky of `spectrum` at `nside` (RING, zero mean), seeded ([`SkyRecipe::gaussian`]).
+pub fn gaussian_sky(nside: u32, spectrum: AngularSpectrum, seed: u64) -> Result<SkyMap> {
+    let recipe = SkyRecipe::gaussian(nside, spectrum, seed);
+    let sht = recipe.transform()?;
+    recipe.realise(&sht, 0)
+}
