@@ -116,7 +116,13 @@ impl MeasurementSettings {
                 self.tile_pixels
             )));
         }
-        if self.scales > 16 || (1usize << (self.scales + 1)) > self.tile_pixels {
+        if self.scales > 12 {
+            return Err(Error::Setting(format!(
+                "J = {} scales is too many: at most 12 (wavelengths up to 2^12 tile pixels)",
+                self.scales
+            )));
+        }
+        if (1usize << (self.scales + 1)) > self.tile_pixels {
             return Err(Error::Setting(format!(
                 "J = {} is too large for {}-pixel tiles: it needs 2^(J+1) ≤ tile pixels",
                 self.scales, self.tile_pixels

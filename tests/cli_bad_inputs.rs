@@ -237,6 +237,10 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
             "J = 7 is too large for 64-pixel tiles",
         ),
         (
+            s(&["measure", &map, "-o", &out, "-J", "40"]),
+            "J = 40 scales is too many: at most 12",
+        ),
+        (
             s(&["measure", &map, "-o", &out, "--tile-pixels", "48"]),
             "power of two",
         ),
