@@ -70,14 +70,26 @@ pub fn combine_tiles(tiles: &[TileSums]) -> Result<TileSums> {
     Ok(total)
 }
 
-/// Turn (combined) sums into pooled coefficients, with the trust flag of the engine settings.
-pub fn pooled_coefficients(engine: &ScatteringEngine, sums: &TileSums) -> Result<CoefficientSet> {
-    let labels = engine.labels();
-    if sums.sums.len() != labels.len() || sums.weights.len() != labels.len() {
+/// One pooled entry: Σ W h / Σ W (NaN when nothing was kept), and the kept weight fraction
+/// Σ W / Σ w with its trust flag (fraction ≥ `min_fraction`).
+struct PooledEntry {
+    value: f64,
+    trusted: bool,
+    fraction: f64,
+}
+
+/// The pooled entries of combined sums holding `count` coefficients (`what` names them in
+/// the error when the counts disagree).
+fn pooled_entries(
+    sums: &TileSums,
+    count: usize,
+    what: &str,
+    min_fraction: f64,
+) -> Result<Vec<PooledEntry>> {
+    if sums.sums.len() != count || sums.weights.len() != count {
         return Err(Error::Mismatch(format!(
-            "tile sums hold {} coefficients but the engine defines {}",
-            sums.sums.len(),
-            labels.len()
+            "{what} tile sums hold {} coefficients but the engine defines {count}",
+            sums.sums.len()
         )));
     }
     if sums.footprint_weight <= 0.0 {
@@ -85,28 +97,43 @@ pub fn pooled_coefficients(engine: &ScatteringEngine, sums: &TileSums) -> Result
             "pooling weights sum to zero: no pixel to pool".into(),
         ));
     }
-    let min_fraction = engine.settings().trusted_fraction;
-    let mean = sums.sums[0] / sums.weights[0];
+    Ok(sums
+        .sums
+        .iter()
+        .zip(&sums.weights)
+        .map(|(&s, &weight)| {
+            let fraction = weight / sums.footprint_weight;
+            PooledEntry {
+                value: if weight > 0.0 { s / weight } else { f64::NAN },
+                trusted: weight > 0.0 && fraction >= min_fraction,
+                fraction,
+            }
+        })
+        .collect())
+}
+
+/// Turn (combined) sums into pooled coefficients, with the trust flag of the engine settings.
+/// The variance is the pooled ⟨f²⟩ less the square of the pooled mean.
+pub fn pooled_coefficients(engine: &ScatteringEngine, sums: &TileSums) -> Result<CoefficientSet> {
+    let labels = engine.labels();
+    let entries = pooled_entries(
+        sums,
+        labels.len(),
+        "scattering",
+        engine.settings().trusted_fraction,
+    )?;
+    let mean = entries[0].value;
     let coefficients = labels
         .iter()
-        .enumerate()
-        .map(|(i, label)| {
-            let weight = sums.weights[i];
-            let fraction = weight / sums.footprint_weight;
-            let value = if weight > 0.0 {
-                match label.kind {
-                    CoefficientKind::Variance => sums.sums[i] / weight - mean * mean,
-                    _ => sums.sums[i] / weight,
-                }
-            } else {
-                f64::NAN
-            };
-            Coefficient {
-                label: *label,
-                value,
-                trusted: weight > 0.0 && fraction >= min_fraction,
-                kept_weight_fraction: fraction,
-            }
+        .zip(entries)
+        .map(|(label, e)| Coefficient {
+            label: *label,
+            value: match label.kind {
+                CoefficientKind::Variance => e.value - mean * mean,
+                _ => e.value,
+            },
+            trusted: e.trusted,
+            kept_weight_fraction: e.fraction,
         })
         .collect();
     Ok(CoefficientSet {
@@ -123,35 +150,20 @@ pub fn pooled_cross_coefficients(
     sums: &TileSums,
 ) -> Result<CrossCoefficientSet> {
     let labels = engine.cross_labels();
-    if sums.sums.len() != labels.len() || sums.weights.len() != labels.len() {
-        return Err(Error::Mismatch(format!(
-            "cross tile sums hold {} coefficients but the engine defines {}",
-            sums.sums.len(),
-            labels.len()
-        )));
-    }
-    if sums.footprint_weight <= 0.0 {
-        return Err(Error::Data(
-            "pooling weights sum to zero: no pixel to pool".into(),
-        ));
-    }
-    let min_fraction = engine.settings().trusted_fraction;
+    let entries = pooled_entries(
+        sums,
+        labels.len(),
+        "cross",
+        engine.settings().trusted_fraction,
+    )?;
     let coefficients = labels
         .iter()
-        .enumerate()
-        .map(|(i, label)| {
-            let weight = sums.weights[i];
-            let fraction = weight / sums.footprint_weight;
-            CrossCoefficient {
-                label: *label,
-                value: if weight > 0.0 {
-                    sums.sums[i] / weight
-                } else {
-                    f64::NAN
-                },
-                trusted: weight > 0.0 && fraction >= min_fraction,
-                kept_weight_fraction: fraction,
-            }
+        .zip(entries)
+        .map(|(label, e)| CrossCoefficient {
+            label: *label,
+            value: e.value,
+            trusted: e.trusted,
+            kept_weight_fraction: e.fraction,
         })
         .collect();
     Ok(CrossCoefficientSet {

@@ -2,41 +2,13 @@
 //! full-resolution computation, on every coefficient. Target ≤ 1e-3 relative (design choice of
 //! this crate; the reference is the same estimator evaluated without cropping).
 
+mod common;
+
+use common::holey_taper;
 use planisphere::flat::{gaussian_random_field, FlatMap};
 use planisphere::pooling::pooled_coefficients;
 use planisphere::statistics::CoefficientSet;
 use planisphere::transform::{ScatteringEngine, TileView, TransformSettings};
-
-/// C2 apodization of Grain, Tristram & Stompor 2009 (PRD 79, 123515): f = (1 − cos πx)/2 for
-/// x = distance / width < 1, in pixel units (flat geometry).
-fn c2(distance: f64, width: f64) -> f64 {
-    let x = distance / width;
-    if x <= 0.0 {
-        0.0
-    } else if x >= 1.0 {
-        1.0
-    } else {
-        (1.0 - (std::f64::consts::PI * x).cos()) / 2.0
-    }
-}
-
-/// Footprint with a masked border and circular holes, apodized over `width` pixels.
-fn holey_taper(n: usize, border: f64, holes: &[(f64, f64, f64)], width: f64) -> Vec<f64> {
-    (0..n * n)
-        .map(|i| {
-            let (x, y) = ((i % n) as f64, (i / n) as f64);
-            let to_edge = (x - border)
-                .min(y - border)
-                .min(n as f64 - 1.0 - border - x)
-                .min(n as f64 - 1.0 - border - y);
-            let to_hole = holes
-                .iter()
-                .map(|&(cx, cy, r)| (x - cx).hypot(y - cy) - r)
-                .fold(f64::INFINITY, f64::min);
-            c2(to_edge.min(to_hole), width)
-        })
-        .collect()
-}
 
 fn coefficients(engine: &ScatteringEngine, map: &FlatMap, taper: &[f64]) -> CoefficientSet {
     let sums = engine

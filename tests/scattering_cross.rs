@@ -2,6 +2,9 @@
 //! identities of the cross band power, the Gaussian correlation identity, and vanishing of the
 //! cross moments where Gaussian statistics say they vanish (definitions in src/transform.rs).
 
+mod common;
+
+use common::holey_taper;
 use planisphere::flat::{gaussian_random_field, wavenumber};
 use planisphere::pooling::{pooled_coefficients, pooled_cross_coefficients};
 use planisphere::statistics::{CoefficientSet, CrossCoefficientSet, CrossDirection, CrossKind};
@@ -16,34 +19,9 @@ fn spectrum(k: f64) -> f64 {
     1.0e-8 / (1.0 + (k / 4000.0).powi(2))
 }
 
-/// C2 apodization (Grain, Tristram & Stompor 2009, PRD 79, 123515), flat geometry, pixels.
-fn c2(distance: f64, width: f64) -> f64 {
-    let x = distance / width;
-    if x <= 0.0 {
-        0.0
-    } else if x >= 1.0 {
-        1.0
-    } else {
-        (1.0 - (std::f64::consts::PI * x).cos()) / 2.0
-    }
-}
-
 /// A 64² footprint: 4-pixel masked border and two holes, C2-apodized over 4 pixels.
 fn holed_taper() -> Vec<f64> {
-    let holes = [(20.0, 22.0, 6.0), (44.0, 40.0, 5.0)];
-    let border = 4.0;
-    (0..N * N)
-        .map(|i| {
-            let (x, y) = ((i % N) as f64, (i / N) as f64);
-            let far = N as f64 - 1.0 - border;
-            let to_edge = (x - border).min(y - border).min(far - x).min(far - y);
-            let to_hole = holes
-                .iter()
-                .map(|&(cx, cy, r)| (x - cx).hypot(y - cy) - r)
-                .fold(f64::INFINITY, f64::min);
-            c2(to_edge.min(to_hole), 4.0)
-        })
-        .collect()
+    holey_taper(N, 4.0, &[(20.0, 22.0, 6.0), (44.0, 40.0, 5.0)], 4.0)
 }
 
 fn field(seed: u64) -> Vec<f64> {

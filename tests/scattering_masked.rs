@@ -3,6 +3,9 @@
 //! fields (design property of the estimator in src/transform.rs; the tolerance, 0.5 σ of the
 //! per-field ensemble scatter, is this crate's acceptance criterion).
 
+mod common;
+
+use common::holey_taper;
 use planisphere::flat::{gaussian_random_field, masked_coefficients, periodic_coefficients};
 use planisphere::statistics::{CoefficientKind, CoefficientSet};
 use planisphere::transform::ScatteringEngine;
@@ -16,19 +19,6 @@ fn spectrum(k: f64) -> f64 {
     1.0e-8 / (1.0 + (k / 4000.0).powi(2))
 }
 
-/// C2 apodization (Grain, Tristram & Stompor 2009, PRD 79, 123515): (1 − cos πx)/2 for
-/// x = distance/width < 1 (flat geometry, pixel units).
-fn c2(distance: f64, width: f64) -> f64 {
-    let x = distance / width;
-    if x <= 0.0 {
-        0.0
-    } else if x >= 1.0 {
-        1.0
-    } else {
-        (1.0 - (std::f64::consts::PI * x).cos()) / 2.0
-    }
-}
-
 /// Footprint: 6-pixel masked border and circular holes, C2-apodized over 6 pixels.
 fn taper() -> Vec<f64> {
     let holes = [
@@ -38,19 +28,7 @@ fn taper() -> Vec<f64> {
         (100.0, 100.0, 11.0),
         (25.0, 100.0, 8.0),
     ];
-    let border = 6.0;
-    (0..N * N)
-        .map(|i| {
-            let (x, y) = ((i % N) as f64, (i / N) as f64);
-            let far = N as f64 - 1.0 - border;
-            let to_edge = (x - border).min(y - border).min(far - x).min(far - y);
-            let to_hole = holes
-                .iter()
-                .map(|&(cx, cy, r)| (x - cx).hypot(y - cy) - r)
-                .fold(f64::INFINITY, f64::min);
-            c2(to_edge.min(to_hole), 6.0)
-        })
-        .collect()
+    holey_taper(N, 6.0, &holes, 6.0)
 }
 
 #[test]

@@ -582,7 +582,12 @@ fn run_sphere(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
     let result = on_footprint(&outcome.map, fp)?;
     write_map(&args.output, "SIGNAL", &result, &WriteOptions::default())?;
     let lon = footprint_longitude(fp);
-    let width = 640;
+    // one panel of the row: the same width and centre for every map
+    fn panel<'m>(title: &str, lon: f64, map: &'m SkyMap, lo: f64, hi: f64) -> SkyPicture<'m> {
+        SkyPicture::new(640, title)
+            .central_longitude(lon)
+            .fill_map(map, lo, hi)
+    }
     match &target_map {
         Some(map) => {
             let map = map.to_ordering(result.ordering())?;
@@ -597,15 +602,9 @@ fn run_sphere(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
             let gaussian: Vec<f64> = gaussian.values().iter().map(|v| v + target.mean).collect();
             let shown_gaussian = on_footprint(&SkyMap::new(result.pixelization(), gaussian)?, fp)?;
             let pictures = [
-                SkyPicture::new(width, "target")
-                    .central_longitude(lon)
-                    .fill_map(&shown_target, lo, hi),
-                SkyPicture::new(width, "Gaussian, same spectrum")
-                    .central_longitude(lon)
-                    .fill_map(&shown_gaussian, lo, hi),
-                SkyPicture::new(width, "synthesised")
-                    .central_longitude(lon)
-                    .fill_map(&result, lo, hi),
+                panel("target", lon, &shown_target, lo, hi),
+                panel("Gaussian, same spectrum", lon, &shown_gaussian, lo, hi),
+                panel("synthesised", lon, &result, lo, hi),
             ];
             write_pictures_in_a_row(picture, &pictures)?;
         }
@@ -613,12 +612,8 @@ fn run_sphere(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
             let (lo, hi) = colour_range(&result);
             let shown_start = on_footprint(&outcome.start, fp)?;
             let pictures = [
-                SkyPicture::new(width, "synthesised")
-                    .central_longitude(lon)
-                    .fill_map(&result, lo, hi),
-                SkyPicture::new(width, "start (white noise)")
-                    .central_longitude(lon)
-                    .fill_map(&shown_start, lo, hi),
+                panel("synthesised", lon, &result, lo, hi),
+                panel("start (white noise)", lon, &shown_start, lo, hi),
             ];
             write_pictures_in_a_row(picture, &pictures)?;
         }

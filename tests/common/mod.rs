@@ -1,5 +1,6 @@
 //! Helpers shared by the integration tests: reading reference files written by the scripts in
-//! reference-values/, and the SplitMix64 stream those scripts use for pseudo-random inputs.
+//! reference-values/, the SplitMix64 stream those scripts use for pseudo-random inputs, and flat
+//! test footprints (a masked border and circular holes with a C2 taper).
 #![allow(dead_code)]
 
 use std::path::PathBuf;
@@ -64,4 +65,34 @@ impl SplitMix64 {
     pub fn next_f64(&mut self) -> f64 {
         (self.next_u64() >> 11) as f64 * (-53f64).exp2()
     }
+}
+
+/// C2 apodization of Grain, Tristram & Stompor 2009 (PRD 79, 123515): f = (1 − cos πx)/2 for
+/// x = distance / width < 1, in pixel units (flat geometry).
+pub fn c2(distance: f64, width: f64) -> f64 {
+    let x = distance / width;
+    if x <= 0.0 {
+        0.0
+    } else if x >= 1.0 {
+        1.0
+    } else {
+        (1.0 - (std::f64::consts::PI * x).cos()) / 2.0
+    }
+}
+
+/// An n × n footprint with a masked border of `border` pixels and circular holes (cx, cy, r),
+/// C2-apodized over `width` pixels.
+pub fn holey_taper(n: usize, border: f64, holes: &[(f64, f64, f64)], width: f64) -> Vec<f64> {
+    (0..n * n)
+        .map(|i| {
+            let (x, y) = ((i % n) as f64, (i / n) as f64);
+            let far = n as f64 - 1.0 - border;
+            let to_edge = (x - border).min(y - border).min(far - x).min(far - y);
+            let to_hole = holes
+                .iter()
+                .map(|&(cx, cy, r)| (x - cx).hypot(y - cy) - r)
+                .fold(f64::INFINITY, f64::min);
+            c2(to_edge.min(to_hole), width)
+        })
+        .collect()
 }
