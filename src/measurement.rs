@@ -33,7 +33,7 @@ use crate::error::{Error, Result};
 use crate::footprint::Footprint;
 use crate::pixelization::Pixelization;
 use crate::pooling::{combine_tiles, pooled_coefficients, pooled_cross_coefficients, TileSums};
-use crate::sampling::{SamplingMethod, TileSampler};
+use crate::sampling::{SamplingMethod, TileGrids, TileSampler};
 use crate::skymap::SkyMap;
 use crate::statistics::{CoefficientKind, CoefficientSet, CompactStatistic, CrossCoefficientSet};
 use crate::tile_spectra::{
@@ -158,6 +158,17 @@ impl MeasurementSettings {
         }
         Ok(())
     }
+}
+
+/// The taper and pooling weight of one tile ([`SphereMeasurer::taper_and_weight`]).
+#[derive(Debug, Clone)]
+pub struct TileTaper {
+    /// Taper a(x) ∈ [0, 1] applied before filtering.
+    pub taper: Vec<f64>,
+    /// Pooling weight w(x) ≥ 0.
+    pub weight: Vec<f64>,
+    /// Σ w (positive).
+    pub weight_sum: f64,
 }
 
 /// The C2 window of the tile border: 1 inside, rising over `border` pixels from the edge.
@@ -338,23 +349,38 @@ impl SphereMeasurer {
         self.plan.summary(rayon::current_num_threads())
     }
 
+    /// A sampled tile's taper a = clamp(m, 0, 1) · b (interpolation may overshoot 1 by rounding)
+    /// and pooling weight w = a · Ω · [core] (module documentation); `None` when the tile has
+    /// nothing to pool.
+    pub fn taper_and_weight(&self, grids: &TileGrids) -> Result<Option<TileTaper>> {
+        let taper: Vec<f64> = grids
+            .mask
+            .iter()
+            .zip(&self.window)
+            .map(|(m, b)| m.clamp(0.0, 1.0) * b)
+            .collect();
+        let weight = grids.pooling_weights(&taper)?;
+        let weight_sum: f64 = weight.iter().sum();
+        Ok((weight_sum > 0.0).then_some(TileTaper {
+            taper,
+            weight,
+            weight_sum,
+        }))
+    }
+
     /// Measures `map` on `footprint` (the apodized footprint the plan was made for, or another
     /// of the same NSIDE whose positive pixels lie in the planned tiles' cores).
     pub fn measure(&self, map: &SkyMap, footprint: &Footprint) -> Result<MapStatistics> {
         let sampler = TileSampler::new(&self.plan, map, footprint, self.settings.sampling)?;
         let per_tile: Vec<Option<TileResult>> = sampler.map_tiles(|grids| {
-            // interpolation may overshoot 1 by rounding: clamp
-            let taper: Vec<f64> = grids
-                .mask
-                .iter()
-                .zip(&self.window)
-                .map(|(m, b)| m.clamp(0.0, 1.0) * b)
-                .collect();
-            let weight = grids.pooling_weights(&taper)?;
-            let wsum: f64 = weight.iter().sum();
-            if wsum <= 0.0 {
+            let Some(TileTaper {
+                taper,
+                weight,
+                weight_sum: wsum,
+            }) = self.taper_and_weight(&grids)?
+            else {
                 return Ok(None);
-            }
+            };
             let view = crate::transform::TileView {
                 field: &grids.field,
                 taper: &taper,
@@ -451,19 +477,15 @@ impl SphereMeasurer {
         let sampler_b = TileSampler::new(&self.plan, &second, &common, method)?;
         let per_tile = sampler_a.map_tiles(|grids| {
             let other = sampler_b.sample(grids.tile)?;
-            // the common footprint is zero on both maps' bad pixels, so both read the same
-            // mask; interpolation may overshoot 1 by rounding: clamp
-            let taper: Vec<f64> = grids
-                .mask
-                .iter()
-                .zip(&self.window)
-                .map(|(m, b)| m.clamp(0.0, 1.0) * b)
-                .collect();
-            let weight = grids.pooling_weights(&taper)?;
-            let wsum: f64 = weight.iter().sum();
-            if wsum <= 0.0 {
+            // the common footprint is zero on both maps' bad pixels, so both read the same mask
+            let Some(TileTaper {
+                taper,
+                weight,
+                weight_sum: wsum,
+            }) = self.taper_and_weight(&grids)?
+            else {
                 return Ok(None);
-            }
+            };
             let sums = self.engine.transform_tile_pair(&TilePairView {
                 first: &grids.field,
                 second: &other.field,

@@ -22,7 +22,7 @@ use crate::charts::{
 use crate::error::{Error, Result};
 use crate::fits_io::ColumnChoice;
 use crate::forecast::{ConfidenceEllipse, ConfidenceLevel};
-use crate::measurement::{border_window, MapStatistics, SphereMeasurer};
+use crate::measurement::{MapStatistics, SphereMeasurer};
 use crate::pixelization::{Ordering, Pixelization};
 use crate::plotting::SkyPicture;
 use crate::sampling::TileSampler;
@@ -971,17 +971,8 @@ fn kept_tiles(
 ) -> Result<Vec<usize>> {
     let s = measurer.settings();
     let sampler = TileSampler::new(measurer.plan(), map, footprint, s.sampling)?;
-    let window = border_window(s.tile_pixels, s.border_pixels);
-    let kept = sampler.map_tiles(|grids| {
-        let taper: Vec<f64> = grids
-            .mask
-            .iter()
-            .zip(&window)
-            .map(|(m, b)| m.clamp(0.0, 1.0) * b)
-            .collect();
-        let w: f64 = grids.pooling_weights(&taper)?.iter().sum();
-        Ok((w > 0.0).then_some(grids.tile))
-    })?;
+    let kept =
+        sampler.map_tiles(|grids| Ok(measurer.taper_and_weight(&grids)?.map(|_| grids.tile)))?;
     Ok(kept.into_iter().flatten().collect())
 }
 

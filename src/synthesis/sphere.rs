@@ -45,7 +45,7 @@
 use super::{minimise, CompactMap, Normalisation, StartField, StatisticChoice, SynthesisSettings};
 use crate::footprint::Footprint;
 use crate::harmonics::HarmonicTransform;
-use crate::measurement::{border_window, MeasurementSettings, SphereMeasurer};
+use crate::measurement::{MeasurementSettings, SphereMeasurer};
 use crate::pixelization::Pixelization;
 use crate::pooling::{combine_tiles, TileSums};
 use crate::sampling::{TileSampler, TileSamplingOperator};
@@ -198,23 +198,14 @@ impl SphereSynthesis {
             measurement.orientations,
         )?;
         let geometry = SkyMap::new(map, vec![0.0; map.npix() as usize])?;
-        let window = border_window(measurement.tile_pixels, measurement.border_pixels);
         let sampler =
             TileSampler::new(measurer.plan(), &geometry, &footprint, measurement.sampling)?;
         let fixed: Vec<Option<SphereTile>> = sampler.map_tiles(|grids| {
-            // as in SphereMeasurer::measure: interpolation may overshoot 1 by rounding
-            let taper: Vec<f64> = grids
-                .mask
-                .iter()
-                .zip(&window)
-                .map(|(m, b)| m.clamp(0.0, 1.0) * b)
-                .collect();
-            let weight = grids.pooling_weights(&taper)?;
-            let wsum: f64 = weight.iter().sum();
-            Ok((wsum > 0.0).then_some(SphereTile {
+            // exactly as SphereMeasurer::measure tapers and weights the tile
+            Ok(measurer.taper_and_weight(&grids)?.map(|t| SphereTile {
                 index: grids.tile,
-                taper,
-                weight,
+                taper: t.taper,
+                weight: t.weight,
                 cached: None,
             }))
         })?;
