@@ -42,7 +42,8 @@ pub struct FlatComparisonSettings {
 pub struct FlatComparisonRow {
     pub tile_pixels: usize,
     pub tile_width_deg: f64,
-    pub coarse_nside: u32,
+    /// How the footprint was cut into cores (e.g. "latitude bands").
+    pub cells: String,
     pub coefficient: String,
     pub order: u8,
     pub j1: Option<usize>,
@@ -107,7 +108,7 @@ pub fn compare_flat(settings: &FlatComparisonSettings) -> Result<Vec<FlatCompari
     let mut rows = Vec::new();
     for &n in &settings.tile_pixels {
         let ms = MeasurementSettings {
-            tile_pixels: n,
+            tile_pixels: Some(n),
             bispectrum: false,
             ..settings.measurement
         };
@@ -199,7 +200,7 @@ pub fn compare_flat(settings: &FlatComparisonSettings) -> Result<Vec<FlatCompari
             rows.push(FlatComparisonRow {
                 tile_pixels: n,
                 tile_width_deg: summary.tile_width_deg,
-                coarse_nside: summary.coarse_nside,
+                cells: summary.cells.clone(),
                 coefficient: name,
                 order: l.order,
                 j1: l.j1,
@@ -220,14 +221,14 @@ pub fn compare_flat(settings: &FlatComparisonSettings) -> Result<Vec<FlatCompari
 /// The rows as CSV.
 pub fn rows_csv(rows: &[FlatComparisonRow]) -> String {
     let mut s = String::from(
-        "tile_pixels,tile_width_deg,coarse_nside,coefficient,order,j1,sphere_mean,sphere_error,flat_mean,flat_error,relative_bias,bias_in_errors,bias_per_sky_scatter,trusted\n",
+        "tile_pixels,tile_width_deg,cells,coefficient,order,j1,sphere_mean,sphere_error,flat_mean,flat_error,relative_bias,bias_in_errors,bias_per_sky_scatter,trusted\n",
     );
     for r in rows {
         s.push_str(&format!(
             "{},{:.3},{},{},{},{},{:.8e},{:.3e},{:.8e},{:.3e},{:.5},{:.3},{:.3},{}\n",
             r.tile_pixels,
             r.tile_width_deg,
-            r.coarse_nside,
+            r.cells,
             r.coefficient,
             r.order,
             r.j1.map(|j| j.to_string()).unwrap_or_default(),

@@ -40,7 +40,7 @@ use crate::tile_spectra::{
     combine_bispectra, combine_power, FourierStatistics, TileBispectrum, TilePowerSpectrum,
     Triangle, WavenumberBins,
 };
-use crate::tiling::{TilingPlan, TilingSettings, TilingSummary};
+use crate::tiling::{CellLayout, TilingPlan, TilingSettings, TilingSummary};
 use crate::transform::{ScatteringEngine, TilePairView, TransformSettings};
 
 /// Everything that defines a measurement.
@@ -50,9 +50,11 @@ pub struct MeasurementSettings {
     pub scales: usize,
     /// Number of orientations L.
     pub orientations: usize,
-    /// Plane pixels per tile side (a power of two ≥ 2^{J+1}).
-    pub tile_pixels: usize,
-    /// NSIDE of the coarse grid of tile centres; `None`: the coarsest that fits (at least 4).
+    /// Plane pixels per tile side (a power of two ≥ 2^{J+1}); `None`: the tool's choice,
+    /// [`crate::tiling::automatic_tile_pixels`] for the halo of J scales.
+    pub tile_pixels: Option<usize>,
+    /// Cut the footprint into the pixels of a coarse HEALPix grid of this NSIDE instead of
+    /// latitude bands (`None`, the default; see [`crate::tiling::CellLayout`]).
     pub coarse_nside: Option<u32>,
     /// Plane pixel size in arcmin; `None`: the map's mean pixel spacing.
     pub pixel_arcmin: Option<f64>,
@@ -83,7 +85,7 @@ impl Default for MeasurementSettings {
         MeasurementSettings {
             scales: 4,
             orientations: 4,
-            tile_pixels: 64,
+            tile_pixels: None,
             coarse_nside: None,
             pixel_arcmin: None,
             border_pixels: 8,
@@ -103,17 +105,84 @@ impl MeasurementSettings {
         self.border_pixels + sigma.ceil() as usize
     }
 
+    /// Checks a tile size against J and the halo.
+    fn check_tile_pixels(&self, n: usize) -> Result<()> {
+        if !n.is_power_of_two() || n < 8 {
+            return Err(Error::Setting(format!(
+                "tile pixels must be a power of two of at least 8, got {n}"
+            )));
+        }
+        if (1usize << (self.scales + 1)) > n {
+            return Err(Error::Setting(format!(
+                "J = {} is too large for {n}-pixel tiles: it needs 2^(J+1) ≤ tile pixels",
+                self.scales
+            )));
+        }
+        if 2 * self.halo() >= n {
+            return Err(Error::Setting(format!(
+                "{n}-pixel tiles leave no core inside a halo of {} pixels (border {} + scale margin); use larger tiles or a smaller J",
+                self.halo(),
+                self.border_pixels
+            )));
+        }
+        Ok(())
+    }
+
+    /// The tiling plan these settings give for maps of pixelization `map` on `footprint`: the
+    /// one plan `measure`, `ensemble`, `synthesize` and `tiles` use.
+    pub fn plan(&self, map: Pixelization, footprint: &Footprint) -> Result<TilingPlan> {
+        self.check()?;
+        let pixel_size = self.pixel_arcmin.map(|a| (a / 60.0).to_radians());
+        let halo = self.halo();
+        let plan = match self.coarse_nside {
+            None => {
+                let delta = pixel_size
+                    .unwrap_or(crate::tiling::DEFAULT_PIXEL_FRACTION * map.mean_spacing());
+                let n = match self.tile_pixels {
+                    Some(n) => n,
+                    None => crate::tiling::automatic_tile_pixels(
+                        halo,
+                        delta,
+                        1usize << (self.scales + 1),
+                    ),
+                };
+                TilingPlan::new(
+                    map,
+                    footprint,
+                    &TilingSettings {
+                        cells: CellLayout::LatitudeBands,
+                        tile_pixels: Some(n),
+                        pixel_size,
+                        halo,
+                    },
+                )?
+            }
+            Some(c) => {
+                let settings = |n: Option<usize>| TilingSettings {
+                    cells: CellLayout::HealpixPixels { coarse_nside: c },
+                    tile_pixels: n,
+                    pixel_size,
+                    halo,
+                };
+                match self.tile_pixels {
+                    Some(n) => TilingPlan::new(map, footprint, &settings(Some(n)))?,
+                    None => {
+                        let need = TilingPlan::new(map, footprint, &settings(None))?.tile_pixels();
+                        let n = need.next_power_of_two().max(1usize << (self.scales + 1));
+                        TilingPlan::new(map, footprint, &settings(Some(n)))?
+                    }
+                }
+            }
+        };
+        self.check_tile_pixels(plan.tile_pixels())?;
+        Ok(plan)
+    }
+
     fn check(&self) -> Result<()> {
         if self.scales == 0 || self.orientations == 0 {
             return Err(Error::Setting(format!(
                 "J and L must be at least 1 (got J = {}, L = {})",
                 self.scales, self.orientations
-            )));
-        }
-        if !self.tile_pixels.is_power_of_two() || self.tile_pixels < 8 {
-            return Err(Error::Setting(format!(
-                "tile pixels must be a power of two of at least 8, got {}",
-                self.tile_pixels
             )));
         }
         if self.scales > 12 {
@@ -122,19 +191,8 @@ impl MeasurementSettings {
                 self.scales
             )));
         }
-        if (1usize << (self.scales + 1)) > self.tile_pixels {
-            return Err(Error::Setting(format!(
-                "J = {} is too large for {}-pixel tiles: it needs 2^(J+1) ≤ tile pixels",
-                self.scales, self.tile_pixels
-            )));
-        }
-        if 2 * self.halo() >= self.tile_pixels {
-            return Err(Error::Setting(format!(
-                "{}-pixel tiles leave no core inside a halo of {} pixels (border {} + scale margin); use larger tiles or a smaller J",
-                self.tile_pixels,
-                self.halo(),
-                self.border_pixels
-            )));
+        if let Some(n) = self.tile_pixels {
+            self.check_tile_pixels(n)?;
         }
         if let Some(a) = self.pixel_arcmin {
             if !(a.is_finite() && a > 0.0) {
@@ -263,62 +321,29 @@ impl SphereMeasurer {
                 "the footprint is empty: no pixel has positive weight".into(),
             ));
         }
-        let pixel_size = settings.pixel_arcmin.map(|a| (a / 60.0).to_radians());
-        let tiling = |coarse: u32| TilingSettings {
-            coarse_nside: coarse,
-            tile_pixels: Some(settings.tile_pixels),
-            pixel_size,
-            halo: settings.halo(),
-        };
-        let plan = match settings.coarse_nside {
-            Some(c) => TilingPlan::new(map, footprint, &tiling(c))?,
-            None => {
-                let mut found = None;
-                let mut last_err = None;
-                let mut c = 4u32;
-                while c <= map.nside() {
-                    match TilingPlan::new(map, footprint, &tiling(c)) {
-                        Ok(p) => {
-                            found = Some(p);
-                            break;
-                        }
-                        Err(e) => last_err = Some(e),
-                    }
-                    c *= 2;
-                }
-                match (found, last_err) {
-                    (Some(p), _) => p,
-                    (None, Some(e)) => return Err(e),
-                    (None, None) => {
-                        return Err(Error::Setting(format!(
-                            "map NSIDE {} is below 4, too coarse to tile",
-                            map.nside()
-                        )))
-                    }
-                }
-            }
-        };
+        let plan = settings.plan(map, footprint)?;
+        let n = plan.tile_pixels();
         if plan.is_empty() {
             return Err(Error::Data("no tile meets the footprint".into()));
         }
         let engine = ScatteringEngine::with_settings(
-            settings.tile_pixels,
+            n,
             settings.scales,
             settings.orientations,
             settings.transform,
         )?;
         let bins = WavenumberBins::logarithmic(
-            settings.tile_pixels,
+            n,
             plan.pixel_size(),
             settings.spectrum_bins,
         )?;
-        let fourier = FourierStatistics::new(settings.tile_pixels, plan.pixel_size(), bins)?;
+        let fourier = FourierStatistics::new(n, plan.pixel_size(), bins)?;
         let triangles = if settings.bispectrum {
             fourier.triangles()
         } else {
             Vec::new()
         };
-        let window = border_window(settings.tile_pixels, settings.border_pixels);
+        let window = border_window(n, settings.border_pixels);
         Ok(SphereMeasurer {
             settings,
             plan,

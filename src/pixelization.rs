@@ -106,7 +106,7 @@ impl Direction {
     }
 
     /// The (lon, lat) pair in radians that `cdshealpix` expects, with lat clamped to [−π/2, π/2].
-    fn lonlat(&self) -> (f64, f64) {
+    pub fn lonlat(&self) -> (f64, f64) {
         (self.lon(), self.lat().clamp(-FRAC_PI_2, FRAC_PI_2))
     }
 }
@@ -302,6 +302,84 @@ pub fn nside_of_npix(npix: u64) -> Option<u32> {
     let n2 = npix / 12;
     let n = (n2 as f64).sqrt().round() as u64;
     (n * n == n2 && n >= 1 && n <= NSIDE_MAX as u64).then_some(n as u32)
+}
+
+/// Colatitude of the centres of RING ring `i` (1 ≤ i ≤ 4 NSIDE − 1), from Górski et al. 2005
+/// (§4, eqs. 4–5): z = 1 − i²/(3N²) in the north cap (i < N), z = 4/3 − 2i/(3N) in the
+/// equatorial zone, mirrored in the south cap; the caps use θ = 2·asin(i/(√6 N)) (the same
+/// relation, stable near the poles).
+pub(crate) fn ring_theta(nside: u64, i: u64) -> f64 {
+    let n = nside as f64;
+    if i < nside {
+        2.0 * (i as f64 / (6f64.sqrt() * n)).asin()
+    } else if i <= 3 * nside {
+        (4.0 / 3.0 - 2.0 * i as f64 / (3.0 * n)).acos()
+    } else {
+        let j = 4 * nside - i;
+        std::f64::consts::PI - 2.0 * (j as f64 / (6f64.sqrt() * n)).asin()
+    }
+}
+
+/// First RING index, number of pixels and whether the ring's pixel centres are shifted by half
+/// a pixel in longitude (φ_j = (j + ½)·2π/n) or not (φ_j = j·2π/n), for ring `i`
+/// (Górski et al. 2005, §4: 4i pixels in cap ring i, 4N in equatorial rings, where every other
+/// ring starts at φ = 0).
+pub(crate) fn ring_info(nside: u64, i: u64) -> (u64, u64, bool) {
+    if i < nside {
+        (2 * i * (i - 1), 4 * i, true)
+    } else if i <= 3 * nside {
+        (
+            2 * nside * (nside - 1) + 4 * nside * (i - nside),
+            4 * nside,
+            (i - nside).is_multiple_of(2),
+        )
+    } else {
+        let j = 4 * nside - i;
+        (12 * nside * nside - 2 * j * (j + 1), 4 * j, true)
+    }
+}
+
+
+/// Ring number i (1 ≤ i ≤ 4 NSIDE − 1) and position j (0-based, in increasing longitude) of
+/// RING pixel `p`: the inverse of [`ring_info`] (Górski et al. 2005, §4: the north cap holds
+/// 2i(i − 1) pixels before ring i, the equatorial rings 4 NSIDE each, the south cap mirrors the
+/// north).
+pub(crate) fn ring_and_position(nside: u64, p: u64) -> (u64, u64) {
+    let cap = 2 * nside * (nside - 1);
+    let npix = 12 * nside * nside;
+    let north_ring = |q: u64| -> u64 {
+        // largest i with 2i(i − 1) ≤ q
+        let mut i = ((1.0 + (1.0 + 2.0 * q as f64).sqrt()) / 2.0) as u64;
+        i = i.max(1);
+        while 2 * (i + 1) * i <= q {
+            i += 1;
+        }
+        while 2 * i * (i - 1) > q {
+            i -= 1;
+        }
+        i
+    };
+    if p < cap {
+        let i = north_ring(p);
+        (i, p - 2 * i * (i - 1))
+    } else if p < npix - cap {
+        let i = nside + (p - cap) / (4 * nside);
+        (i, (p - cap) % (4 * nside))
+    } else {
+        let q = npix - 1 - p;
+        let k = north_ring(q);
+        let i = 4 * nside - k;
+        let (first, _, _) = ring_info(nside, i);
+        (i, p - first)
+    }
+}
+
+/// Longitude of the centre of pixel j on ring i: (j + ½)·2π/n_i on shifted rings, j·2π/n_i
+/// otherwise (Górski et al. 2005, §4).
+pub(crate) fn ring_pixel_phi(nside: u64, i: u64, j: u64) -> f64 {
+    let (_, count, shifted) = ring_info(nside, i);
+    let offset = if shifted { 0.5 } else { 0.0 };
+    (j as f64 + offset) * std::f64::consts::TAU / count as f64
 }
 
 #[cfg(test)]

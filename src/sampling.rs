@@ -21,7 +21,7 @@
 
 use crate::error::{Error, Result};
 use crate::footprint::Footprint;
-use crate::pixelization::{Ordering, Pixelization};
+use crate::pixelization::{ring_info, ring_theta, Ordering, Pixelization};
 use crate::projection::{rectangle_solid_angle, Gnomonic};
 use crate::skymap::SkyMap;
 use crate::tiling::TilingPlan;
@@ -114,7 +114,6 @@ pub struct TileSampler<'a> {
     /// pixels are treated as weight 0 when read.
     mask: Cow<'a, [f64]>,
     method: SamplingMethod,
-    fine_nested: Pixelization,
     /// Solid angles of the plane pixels, the same for every tile.
     solid_angle: Vec<f64>,
 }
@@ -183,7 +182,6 @@ impl<'a> TileSampler<'a> {
             map,
             mask: weights,
             method,
-            fine_nested: Pixelization::new(map.nside(), Ordering::Nested)?,
             solid_angle,
         })
     }
@@ -282,8 +280,7 @@ impl<'a> TileSampler<'a> {
                 };
                 field.push(f);
                 mask.push(m);
-                in_core
-                    .push(plan.nested_in_core(self.fine_nested.pixel_of(dir), tile.coarse_pixel));
+                in_core.push(plan.owner(dir) == Some(index));
             }
         }
         Ok(TileGrids {
@@ -558,19 +555,18 @@ pub fn back_project(plan: &TilingPlan, index: usize, field: &[f64]) -> Result<Ve
     }
     let proj = plan.projection(index)?;
     let map = plan.map_pixelization();
-    let nested = Pixelization::new(map.nside(), Ordering::Nested)?;
     let mut out = Vec::new();
-    for q in plan.core_nested_range(index)? {
-        let dir = nested.center(q);
+    for p in plan.core_pixels(index)? {
+        let dir = map.center(p);
         let value = proj
             .forward(dir)
             .and_then(|(x, y)| plane_interpolate(field, n, plan.pixel_size(), x, y))
             .ok_or_else(|| {
                 Error::Setting(format!(
-                    "core pixel {q} (NESTED) of tile {index} falls outside its grid"
+                    "core pixel {p} of tile {index} falls outside its grid"
                 ))
             })?;
-        out.push((map.from_nested(q)?, value));
+        out.push((p, value));
     }
     Ok(out)
 }
@@ -698,41 +694,6 @@ pub fn plane_wave_transfer(
         power: gain.norm_sqr(),
         scattered,
     })
-}
-
-/// Colatitude of the centres of RING ring `i` (1 ≤ i ≤ 4 NSIDE − 1), from Górski et al. 2005
-/// (§4, eqs. 4–5): z = 1 − i²/(3N²) in the north cap (i < N), z = 4/3 − 2i/(3N) in the
-/// equatorial zone, mirrored in the south cap; the caps use θ = 2·asin(i/(√6 N)) (the same
-/// relation, stable near the poles).
-fn ring_theta(nside: u64, i: u64) -> f64 {
-    let n = nside as f64;
-    if i < nside {
-        2.0 * (i as f64 / (6f64.sqrt() * n)).asin()
-    } else if i <= 3 * nside {
-        (4.0 / 3.0 - 2.0 * i as f64 / (3.0 * n)).acos()
-    } else {
-        let j = 4 * nside - i;
-        std::f64::consts::PI - 2.0 * (j as f64 / (6f64.sqrt() * n)).asin()
-    }
-}
-
-/// First RING index, number of pixels and whether the ring's pixel centres are shifted by half
-/// a pixel in longitude (φ_j = (j + ½)·2π/n) or not (φ_j = j·2π/n), for ring `i`
-/// (Górski et al. 2005, §4: 4i pixels in cap ring i, 4N in equatorial rings, where every other
-/// ring starts at φ = 0).
-fn ring_info(nside: u64, i: u64) -> (u64, u64, bool) {
-    if i < nside {
-        (2 * i * (i - 1), 4 * i, true)
-    } else if i <= 3 * nside {
-        (
-            2 * nside * (nside - 1) + 4 * nside * (i - nside),
-            4 * nside,
-            (i - nside).is_multiple_of(2),
-        )
-    } else {
-        let j = 4 * nside - i;
-        (12 * nside * nside - 2 * j * (j + 1), 4 * j, true)
-    }
 }
 
 /// Index (1-based, HEALPix ring numbering) of the iso-latitude ring just north of colatitude

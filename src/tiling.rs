@@ -1,26 +1,37 @@
 //! The tiling of a footprint by gnomonic tangent-plane tiles.
 //!
-//! Tile centres are the centres of the pixels of a coarse HEALPix grid (NSIDE_coarse a power of
-//! two ≤ the map's NSIDE). The *core* of a tile is its coarse pixel: exactly the fine map pixels
-//! that descend from it in the NESTED hierarchy (Górski et al. 2005, §4: the fine nested index
-//! shifted right by 2·(depth_fine − depth_coarse) bits is the coarse nested index), so the cores
-//! partition the sphere. Each tile carries a square n × n grid of plane pixels of side Δ (radians of the tangent plane,
-//! i.e. the angular size at the tangent point), wide enough for its core plus a halo.
+//! The footprint is cut into *cores* that partition it exactly: every footprint map pixel lies in
+//! exactly one core. Each core gets a tile: a square n × n grid of plane pixels of side Δ
+//! (radians of the tangent plane, i.e. the angular size at the tangent point), tangent at the
+//! core's centre and wide enough for the core plus a halo. A plane pixel belongs to the core of
+//! its tile when the map pixel containing its direction does ([`TilingPlan::owner`]), so every
+//! sky position is pooled in exactly one tile.
+//!
+//! Two layouts of cores ([`CellLayout`]):
+//! - **latitude bands** (default, [`latitude_bands`]): polar caps and equal-height bands of
+//!   HEALPix rings, cut in longitude over the footprint's runs into cells sized to fill the
+//!   tile up to the halo, so little of each tile is spent outside its core;
+//! - **HEALPix pixels** of a coarse NSIDE (a power of two ≤ the map's): the core is exactly the
+//!   fine pixels that descend from the coarse pixel in the NESTED hierarchy (Górski et al. 2005,
+//!   §4: the fine nested index shifted right by 2·(depth_fine − depth_coarse) bits is the coarse
+//!   nested index). Diamond-shaped cores in square tiles transform about twice the area.
 //!
 //! Plane pixel (ix, iy) has its centre at x = (ix − n/2 + ½)Δ, y = (iy − n/2 + ½)Δ: the tangent
 //! point is the corner shared by the four central pixels; x grows toward increasing longitude and
 //! y toward the north (see [`crate::projection`]). Grids are row-major with one row per y value,
 //! row 0 the southernmost.
 //!
-//! Only the plan (centres, indices, figures) is held; the grids are made on demand, one tile at a
+//! Only the plan (centres, cells, figures) is held; the grids are made on demand, one tile at a
 //! time, by [`crate::sampling::TileSampler`].
+
+pub mod latitude_bands;
 
 use crate::error::{Error, Result};
 use crate::footprint::Footprint;
 use crate::pixelization::{Direction, Ordering, Pixelization};
 use crate::projection::Gnomonic;
+use latitude_bands::LatitudeBands;
 use std::f64::consts::FRAC_PI_2;
-use std::ops::Range;
 
 /// Default plane pixel size as a fraction of the map's mean pixel spacing: 1. The transfer of
 /// power by sampling (`examples/sampling_transfer.rs`) is set by the interpolation between map
@@ -40,14 +51,42 @@ pub const MAX_CORNER_DISTANCE: f64 = std::f64::consts::FRAC_PI_3;
 /// 1.6 GiB, see [`crate::sampling::TileGrids::bytes_for`]).
 pub const MAX_TILE_PIXELS: usize = 8192;
 
+/// Widest tile, in degrees across, that [`automatic_tile_pixels`] picks while a smaller power
+/// of two would still leave a core: beyond, the gnomonic distortion sec²ρ at the grid corners
+/// passes 1.15.
+pub const MAX_AUTOMATIC_TILE_WIDTH_DEG: f64 = 32.0;
+
+/// How the footprint is cut into tile cores.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum CellLayout {
+    /// Latitude bands cut in longitude over the footprint's runs, sized so that each core nearly
+    /// fills its tile ([`latitude_bands`]); the default.
+    LatitudeBands,
+    /// The pixels of a coarse HEALPix grid of this NSIDE (a power of two ≤ the map's): the core
+    /// of a tile is its coarse pixel, exactly the fine pixels that descend from it in the NESTED
+    /// hierarchy (Górski et al. 2005, §4).
+    HealpixPixels { coarse_nside: u32 },
+}
+
+impl CellLayout {
+    /// A short description, e.g. "latitude bands" or "HEALPix NSIDE 8 pixels".
+    pub fn describe(&self) -> String {
+        match self {
+            CellLayout::LatitudeBands => "latitude bands".to_string(),
+            CellLayout::HealpixPixels { coarse_nside } => {
+                format!("HEALPix NSIDE {coarse_nside} pixels")
+            }
+        }
+    }
+}
+
 /// What the user chooses about a tiling.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct TilingSettings {
-    /// NSIDE of the coarse grid whose pixel centres are the tile centres (a power of two ≤ the
-    /// map's NSIDE).
-    pub coarse_nside: u32,
-    /// Plane pixels per side n (even); `None`: the smallest even 2^a·3^b that holds the largest
-    /// core plus the halo.
+    /// How the footprint is cut into cores.
+    pub cells: CellLayout,
+    /// Plane pixels per side n (even); `None`: for latitude bands [`automatic_tile_pixels`], for
+    /// HEALPix cells the smallest even 2^a·3^b that holds the largest core plus the halo.
     pub tile_pixels: Option<usize>,
     /// Plane pixel size Δ in radians; `None`: [`DEFAULT_PIXEL_FRACTION`] × the map's mean
     /// pixel spacing.
@@ -57,53 +96,108 @@ pub struct TilingSettings {
 }
 
 impl TilingSettings {
-    /// Settings with the given coarse NSIDE and the defaults for everything else.
-    pub fn new(coarse_nside: u32) -> Self {
+    /// Latitude-band cells with the default halo, pixel size and tile size.
+    pub fn latitude_bands() -> Self {
         TilingSettings {
-            coarse_nside,
+            cells: CellLayout::LatitudeBands,
             tile_pixels: None,
             pixel_size: None,
             halo: DEFAULT_HALO,
         }
     }
+
+    /// Coarse HEALPix pixels of NSIDE `coarse_nside` as cells, with the defaults for everything
+    /// else.
+    pub fn healpix_pixels(coarse_nside: u32) -> Self {
+        TilingSettings {
+            cells: CellLayout::HealpixPixels { coarse_nside },
+            ..Self::latitude_bands()
+        }
+    }
+}
+
+/// The tile size chosen when the user leaves it open: the smallest power of two n ≥ 8·halo
+/// (so the core, n − 2·halo pixels across, holds at least 56% of the tile's pixels) and ≥
+/// `min_pixels`, halved while the tile is wider than [`MAX_AUTOMATIC_TILE_WIDTH_DEG`] and the
+/// half still leaves a core of at least 2·halo pixels and `min_pixels`.
+///
+/// ```
+/// use planisphere::tiling::automatic_tile_pixels;
+/// let arcmin = (1.0f64 / 60.0).to_radians();
+/// // J = 5 halo (8 + 13 pixels) at 3.44′: 8 · 21 = 168 → 256 pixels, 14.7° across
+/// assert_eq!(automatic_tile_pixels(21, 3.435 * arcmin, 64), 256);
+/// // at 13.7′ a 256-pixel tile would be 58° wide: halved to 128 (29°)
+/// assert_eq!(automatic_tile_pixels(21, 13.74 * arcmin, 64), 128);
+/// ```
+pub fn automatic_tile_pixels(halo: usize, pixel_size: f64, min_pixels: usize) -> usize {
+    let mut n = (8 * halo).max(min_pixels).max(8).next_power_of_two();
+    let width = |n: usize| 2.0 * (n as f64 / 2.0 * pixel_size).atan().to_degrees();
+    while width(n) > MAX_AUTOMATIC_TILE_WIDTH_DEG
+        && n / 2 >= 4 * halo
+        && n / 2 >= min_pixels
+        && n / 2 >= 8
+    {
+        n /= 2;
+    }
+    n
 }
 
 /// One tile of a plan.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Tile {
-    /// NESTED index of the tile's coarse pixel.
-    pub coarse_pixel: u64,
-    /// Tangent point: the centre of the coarse pixel.
+    /// Identifier of the tile's cell: the NESTED index of the coarse pixel for HEALPix cells,
+    /// the cell's number in the layout (bands north to south, longitude increasing) for
+    /// latitude bands.
+    pub cell: u64,
+    /// Tangent point: the centre of the cell.
     pub center: Direction,
-    /// Σ footprint weights over the core's fine pixels / number of core pixels.
+    /// Σ footprint weights over the core's map pixels / number of core pixels.
     pub footprint_fraction: f64,
     /// Number of core pixels with positive footprint weight.
     pub footprint_pixels: u64,
+    /// Number of map pixels in the core.
+    pub core_pixels: u64,
     /// Largest |x| or |y| of the core's boundary on the plane, radians of the tangent plane.
     pub core_half_width: f64,
     /// Largest radial scale distortion sec²ρ over the core (at its farthest boundary point).
     pub core_distortion: f64,
 }
 
+/// The cells of a plan.
+#[derive(Debug, Clone)]
+enum Cells {
+    Healpix {
+        coarse: Pixelization,
+        /// 2·(depth_fine − depth_coarse).
+        shift: u32,
+        /// Tile index of each coarse pixel (u32::MAX: none).
+        tile_of_coarse: Vec<u32>,
+    },
+    Bands(LatitudeBands),
+}
+
 /// A tiling plan: which tiles, their grids' geometry and the overall figures.
 #[derive(Debug, Clone)]
 pub struct TilingPlan {
     map: Pixelization,
-    coarse: Pixelization,
-    /// 2·(depth_fine − depth_coarse).
-    shift: u32,
+    layout: CellLayout,
+    cells: Cells,
     n: usize,
     pixel_size: f64,
     halo: usize,
     tiles: Vec<Tile>,
     footprint_weight: f64,
+    footprint_pixels: u64,
 }
 
 /// The figures a user checks before running a tiling.
 #[derive(Debug, Clone, serde::Serialize)]
 pub struct TilingSummary {
     pub map_nside: u32,
-    pub coarse_nside: u32,
+    /// How the footprint is cut into cores ("latitude bands", "HEALPix NSIDE 8 pixels").
+    pub cells: String,
+    /// NSIDE of the coarse grid for HEALPix cells, `None` for latitude bands.
+    pub coarse_nside: Option<u32>,
     pub tiles: usize,
     pub tile_pixels: usize,
     pub pixel_size_arcmin: f64,
@@ -115,13 +209,21 @@ pub struct TilingSummary {
     /// Footprint area Σ w Ω_pix (steradians).
     pub footprint_area_sr: f64,
     pub footprint_area_deg2: f64,
-    /// Footprint area inside the kept tiles' cores (equals the footprint area: cores partition
-    /// the sphere and every core meeting the footprint is kept).
+    /// Map pixels with positive footprint weight.
+    pub footprint_pixels: u64,
+    /// Footprint area inside the kept tiles' cores (equals the footprint area: every footprint
+    /// pixel lies in exactly one kept core).
     pub covered_footprint_area_sr: f64,
     /// Total area of the kept cores (steradians).
     pub core_area_sr: f64,
     /// Mean footprint fraction of the kept cores.
     pub mean_footprint_fraction: f64,
+    /// Tile pixels sampled and transformed per footprint map pixel: tiles · n² / footprint
+    /// pixels (how often each sky position is worked on, times (h/Δ)²).
+    pub tile_pixels_per_footprint_pixel: f64,
+    /// Tile area per footprint area: tiles · Ω_tile / footprint pixels · Ω_pix, with Ω_tile the
+    /// solid angle of an n × n grid (independent of the plane pixel size).
+    pub tile_area_per_footprint_area: f64,
     /// Radial scale distortion sec²ρ at a grid corner (the same for every tile).
     pub grid_corner_distortion: f64,
     /// Largest sec²ρ over all kept cores.
@@ -152,10 +254,19 @@ pub fn fft_friendly_even(m: usize) -> usize {
     best
 }
 
+/// Checks n (positive, even, at most [`MAX_TILE_PIXELS`]).
+fn check_tile_pixels(n: usize) -> Result<()> {
+    if n == 0 || n % 2 != 0 || n > MAX_TILE_PIXELS {
+        return Err(Error::Setting(format!(
+            "tile pixels must be a positive even number up to {MAX_TILE_PIXELS}, got {n}"
+        )));
+    }
+    Ok(())
+}
+
 impl TilingPlan {
     /// Plans the tiles of `footprint` (at the map's NSIDE, any ordering) for a map of
-    /// pixelization `map`. Keeps the coarse pixels whose core holds a footprint pixel of
-    /// positive weight.
+    /// pixelization `map`. Keeps the cells that hold a footprint pixel of positive weight.
     pub fn new(
         map: Pixelization,
         footprint: &Footprint,
@@ -164,13 +275,7 @@ impl TilingPlan {
         let nside = map.nside();
         if !nside.is_power_of_two() {
             return Err(Error::Geometry(format!(
-                "map NSIDE {nside} is not a power of two, which tiling by the NESTED hierarchy needs"
-            )));
-        }
-        let nc = settings.coarse_nside;
-        if nc == 0 || !nc.is_power_of_two() || nc > nside {
-            return Err(Error::Setting(format!(
-                "coarse NSIDE {nc} must be a power of two between 1 and the map NSIDE {nside}"
+                "map NSIDE {nside} is not a power of two, which tiling needs"
             )));
         }
         if footprint.pixelization().nside() != nside {
@@ -188,9 +293,91 @@ impl TilingPlan {
                 pixel_size.to_degrees() * 60.0
             )));
         }
+        let (footprint_weight, footprint_pixels) = footprint
+            .weights()
+            .iter()
+            .filter(|&&w| w > 0.0)
+            .fold((0.0, 0u64), |(s, c), &w| (s + w, c + 1));
+        if footprint_weight <= 0.0 {
+            return Err(Error::Data(
+                "the mask is empty (no pixel has positive weight)".to_string(),
+            ));
+        }
+        let (cells, tiles, n) = match settings.cells {
+            CellLayout::HealpixPixels { coarse_nside } => {
+                Self::healpix_cells(map, footprint, coarse_nside, pixel_size, settings)?
+            }
+            CellLayout::LatitudeBands => {
+                let n = match settings.tile_pixels {
+                    Some(n) => n,
+                    None => automatic_tile_pixels(settings.halo, pixel_size, 16),
+                };
+                check_tile_pixels(n)?;
+                if n <= 2 * settings.halo {
+                    return Err(Error::Setting(format!(
+                        "tiles of {n} × {n} pixels leave no core inside a halo of {} pixels; use \
+                         larger tiles or a smaller halo",
+                        settings.halo
+                    )));
+                }
+                let core_half = (n / 2 - settings.halo) as f64 * pixel_size;
+                let (layout, cells) =
+                    LatitudeBands::new(footprint, core_half, map.mean_spacing())?;
+                let tiles = cells
+                    .iter()
+                    .enumerate()
+                    .map(|(i, c)| Tile {
+                        cell: i as u64,
+                        center: c.center,
+                        footprint_fraction: c.footprint_weight / c.pixels.max(1) as f64,
+                        footprint_pixels: c.footprint_pixels,
+                        core_pixels: c.pixels,
+                        core_half_width: c.half_width,
+                        core_distortion: c.distortion,
+                    })
+                    .collect();
+                (Cells::Bands(layout), tiles, n)
+            }
+        };
+        let half_width = n as f64 / 2.0 * pixel_size;
+        if (half_width * std::f64::consts::SQRT_2).atan() > MAX_CORNER_DISTANCE {
+            return Err(Error::Setting(format!(
+                "tiles of {n} pixels of {:.4} arcmin reach {:.1}° from their centre at the corners \
+                 (at most {:.0}° allowed); use fewer or smaller pixels",
+                pixel_size.to_degrees() * 60.0,
+                (half_width * std::f64::consts::SQRT_2).atan().to_degrees(),
+                MAX_CORNER_DISTANCE.to_degrees()
+            )));
+        }
+        Ok(TilingPlan {
+            map,
+            layout: settings.cells,
+            cells,
+            n,
+            pixel_size,
+            halo: settings.halo,
+            tiles,
+            footprint_weight,
+            footprint_pixels,
+        })
+    }
+
+    /// Cells from the coarse HEALPix pixels holding footprint, and the tile size.
+    fn healpix_cells(
+        map: Pixelization,
+        footprint: &Footprint,
+        nc: u32,
+        pixel_size: f64,
+        settings: &TilingSettings,
+    ) -> Result<(Cells, Vec<Tile>, usize)> {
+        let nside = map.nside();
+        if nc == 0 || !nc.is_power_of_two() || nc > nside {
+            return Err(Error::Setting(format!(
+                "coarse NSIDE {nc} must be a power of two between 1 and the map NSIDE {nside}"
+            )));
+        }
         let coarse = Pixelization::new(nc, Ordering::Nested)?;
         let shift = 2 * (cdshealpix::depth(nside) - cdshealpix::depth(nc)) as u32;
-
         // Footprint weight and observed count per coarse pixel.
         let ncoarse = coarse.npix() as usize;
         let mut weight = vec![0.0f64; ncoarse];
@@ -203,16 +390,11 @@ impl TilingPlan {
                 count[c] += 1;
             }
         }
-        let footprint_weight: f64 = weight.iter().sum();
-        if footprint_weight <= 0.0 {
-            return Err(Error::Data(
-                "the mask is empty (no pixel has positive weight)".to_string(),
-            ));
-        }
         let core_len = 1u64 << shift;
         let segments = (1u32 << (shift / 2)).clamp(8, 256);
         let depth_coarse = cdshealpix::depth(nc);
         let mut tiles = Vec::new();
+        let mut tile_of_coarse = vec![u32::MAX; ncoarse];
         for c in 0..ncoarse {
             if count[c] == 0 {
                 continue;
@@ -242,11 +424,13 @@ impl TilingPlan {
                     }
                 }
             }
+            tile_of_coarse[c] = tiles.len() as u32;
             tiles.push(Tile {
-                coarse_pixel: c as u64,
+                cell: c as u64,
                 center,
                 footprint_fraction: weight[c] / core_len as f64,
                 footprint_pixels: count[c],
+                core_pixels: core_len,
                 core_half_width: half,
                 core_distortion: 1.0 + r2max,
             });
@@ -270,11 +454,7 @@ impl TilingPlan {
         }
         let n = match settings.tile_pixels {
             Some(n) => {
-                if n == 0 || n % 2 != 0 || n > MAX_TILE_PIXELS {
-                    return Err(Error::Setting(format!(
-                        "tile pixels must be a positive even number up to {MAX_TILE_PIXELS}, got {n}"
-                    )));
-                }
+                check_tile_pixels(n)?;
                 if n < need {
                     return Err(Error::Setting(format!(
                         "tiles of {n} × {n} pixels cannot hold the core plus a halo of {} pixels: \
@@ -288,26 +468,15 @@ impl TilingPlan {
             }
             None => fft_friendly_even(need),
         };
-        let half_width = n as f64 / 2.0 * pixel_size;
-        if (half_width * std::f64::consts::SQRT_2).atan() > MAX_CORNER_DISTANCE {
-            return Err(Error::Setting(format!(
-                "tiles of {n} pixels of {:.4} arcmin reach {:.1}° from their centre at the corners \
-                 (at most {:.0}° allowed); use a larger coarse NSIDE or fewer pixels",
-                pixel_size.to_degrees() * 60.0,
-                (half_width * std::f64::consts::SQRT_2).atan().to_degrees(),
-                MAX_CORNER_DISTANCE.to_degrees()
-            )));
-        }
-        Ok(TilingPlan {
-            map,
-            coarse,
-            shift,
-            n,
-            pixel_size,
-            halo: settings.halo,
+        Ok((
+            Cells::Healpix {
+                coarse,
+                shift,
+                tile_of_coarse,
+            },
             tiles,
-            footprint_weight,
-        })
+            n,
+        ))
     }
 
     /// Pixelization of the map the plan is for.
@@ -315,9 +484,9 @@ impl TilingPlan {
         self.map
     }
 
-    /// The coarse (NESTED) pixelization of the tile centres.
-    pub fn coarse_pixelization(&self) -> Pixelization {
-        self.coarse
+    /// How the footprint was cut into cores.
+    pub fn cell_layout(&self) -> CellLayout {
+        self.layout
     }
 
     /// Plane pixels per side n.
@@ -335,7 +504,7 @@ impl TilingPlan {
         self.halo
     }
 
-    /// The kept tiles, in increasing coarse NESTED index.
+    /// The kept tiles, in plan order.
     pub fn tiles(&self) -> &[Tile] {
         &self.tiles
     }
@@ -365,15 +534,76 @@ impl TilingPlan {
         Ok(Gnomonic::new(self.tile(index)?.center))
     }
 
-    /// Fine NESTED indices of the core of tile `index`: c·4^d … (c+1)·4^d − 1.
-    pub fn core_nested_range(&self, index: usize) -> Result<Range<u64>> {
-        let c = self.tile(index)?.coarse_pixel;
-        Ok((c << self.shift)..((c + 1) << self.shift))
+    /// The tile whose core holds the map pixel containing `dir`, if any: every direction lies in
+    /// at most one core, and every direction of a footprint pixel in exactly one.
+    pub fn owner(&self, dir: Direction) -> Option<usize> {
+        let (lon, lat) = dir.lonlat();
+        let nside = self.map.nside();
+        match &self.cells {
+            Cells::Healpix {
+                shift,
+                tile_of_coarse,
+                ..
+            } => {
+                let nested = cdshealpix::nested::get(cdshealpix::depth(nside)).hash(lon, lat);
+                let t = *tile_of_coarse.get((nested >> shift) as usize)?;
+                (t != u32::MAX).then_some(t as usize)
+            }
+            Cells::Bands(bands) => {
+                bands.owner_of_ring_pixel(cdshealpix::ring::hash(nside, lon, lat))
+            }
+        }
     }
 
-    /// Does the fine NESTED pixel `nested` belong to the core of a tile of coarse pixel `coarse`?
-    pub fn nested_in_core(&self, nested: u64, coarse: u64) -> bool {
-        nested >> self.shift == coarse
+    /// The map pixels (in the map's ordering) of the core of tile `index`, in increasing NESTED
+    /// index (HEALPix cells) or ring by ring (latitude bands).
+    pub fn core_pixels(&self, index: usize) -> Result<Vec<u64>> {
+        let tile = self.tile(index)?;
+        match &self.cells {
+            Cells::Healpix { shift, .. } => {
+                let c = tile.cell;
+                ((c << shift)..((c + 1) << shift))
+                    .map(|q| self.map.from_nested(q))
+                    .collect()
+            }
+            Cells::Bands(bands) => {
+                let ring = Pixelization::new(self.map.nside(), Ordering::Ring)?;
+                bands
+                    .core_ring_pixels(index)
+                    .into_iter()
+                    .map(|p| match self.map.ordering() {
+                        Ordering::Ring => Ok(p),
+                        Ordering::Nested => ring.to_nested(p),
+                    })
+                    .collect()
+            }
+        }
+    }
+
+    /// The outline of tile `index`'s core on the sphere (a closed path, for pictures).
+    pub fn core_outline(&self, index: usize) -> Result<Vec<Direction>> {
+        let tile = self.tile(index)?;
+        match &self.cells {
+            Cells::Healpix { coarse, .. } => {
+                let depth = cdshealpix::depth(coarse.nside());
+                let edge = cdshealpix::nested::path_along_cell_edge(
+                    depth,
+                    tile.cell,
+                    &cdshealpix::compass_point::Cardinal::S,
+                    false,
+                    16,
+                );
+                let mut core: Vec<Direction> = edge
+                    .iter()
+                    .map(|&(lon, lat)| Direction::new(FRAC_PI_2 - lat, lon))
+                    .collect();
+                if let Some(&first) = core.first() {
+                    core.push(first);
+                }
+                Ok(core)
+            }
+            Cells::Bands(bands) => Ok(bands.outline(index)),
+        }
     }
 
     /// Plane coordinate of the centre of grid column (or row) `k`: (k − n/2 + ½)Δ.
@@ -390,19 +620,27 @@ impl TilingPlan {
     /// The overall figures; `threads` is the number of workers that will sample at once.
     pub fn summary(&self, threads: usize) -> TilingSummary {
         let pixel_area = self.map.pixel_area();
-        let core_area = self.coarse.pixel_area();
         let covered: f64 = self
             .tiles
             .iter()
-            .map(|t| t.footprint_fraction * (1u64 << self.shift) as f64)
+            .map(|t| t.footprint_fraction * t.core_pixels as f64)
             .sum::<f64>()
             * pixel_area;
+        let core_area = self.tiles.iter().map(|t| t.core_pixels).sum::<u64>() as f64 * pixel_area;
         let bytes = crate::sampling::TileGrids::bytes_for(self.n);
         let deg2 = (180.0 / std::f64::consts::PI).powi(2);
         let footprint_area = self.footprint_weight * pixel_area;
+        let half = self.n as f64 / 2.0 * self.pixel_size;
+        let tile_solid_angle = crate::projection::rectangle_solid_angle(-half, half, -half, half);
+        let tile_pixels = (self.tiles.len() * self.n * self.n) as f64;
+        let fp_pixels = self.footprint_pixels.max(1) as f64;
         TilingSummary {
             map_nside: self.map.nside(),
-            coarse_nside: self.coarse.nside(),
+            cells: self.layout.describe(),
+            coarse_nside: match self.layout {
+                CellLayout::HealpixPixels { coarse_nside } => Some(coarse_nside),
+                CellLayout::LatitudeBands => None,
+            },
             tiles: self.tiles.len(),
             tile_pixels: self.n,
             pixel_size_arcmin: self.pixel_size.to_degrees() * 60.0,
@@ -411,10 +649,14 @@ impl TilingPlan {
             tile_width_deg: 2.0 * (self.n as f64 / 2.0 * self.pixel_size).atan().to_degrees(),
             footprint_area_sr: footprint_area,
             footprint_area_deg2: footprint_area * deg2,
+            footprint_pixels: self.footprint_pixels,
             covered_footprint_area_sr: covered,
-            core_area_sr: core_area * self.tiles.len() as f64,
+            core_area_sr: core_area,
             mean_footprint_fraction: self.tiles.iter().map(|t| t.footprint_fraction).sum::<f64>()
                 / self.tiles.len().max(1) as f64,
+            tile_pixels_per_footprint_pixel: tile_pixels / fp_pixels,
+            tile_area_per_footprint_area: self.tiles.len() as f64 * tile_solid_angle
+                / (fp_pixels * pixel_area),
             grid_corner_distortion: self.grid_corner_distortion(),
             worst_core_distortion: self
                 .tiles

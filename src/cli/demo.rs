@@ -178,7 +178,7 @@ pub fn run(args: &DemoArgs) -> Result<()> {
     let border_pixels = if tile_pixels == 32 { 4 } else { 8 };
     let settings = MeasurementSettings {
         scales,
-        tile_pixels,
+        tile_pixels: Some(tile_pixels),
         border_pixels,
         pixel_arcmin: Some(pixel_arcmin),
         ..MeasurementSettings::default()
@@ -186,14 +186,14 @@ pub fn run(args: &DemoArgs) -> Result<()> {
     let em = EnsembleMeasurer::new(pix, footprint.clone(), settings, 16)?;
     let summary = em.measurer.summary();
     println!(
-        "  measurement: J = {}, L = {}, {} tiles of {}² pixels of {:.1}′ ({:.1}° across, coarse NSIDE {})",
+        "  measurement: J = {}, L = {}, {} tiles of {}² pixels of {:.1}′ ({:.1}° across, cells: {})",
         settings.scales,
         settings.orientations,
         summary.tiles,
         summary.tile_pixels,
         pixel_arcmin,
         summary.tile_width_deg,
-        summary.coarse_nside
+        summary.cells
     );
     let labels: Vec<String> = em.labels().into_iter().map(|l| l.name).collect();
 
@@ -334,7 +334,7 @@ pub fn run(args: &DemoArgs) -> Result<()> {
         },
         options: super::measure::MeasureOptions {
             scales: Some(settings.scales),
-            tile_pixels: Some(settings.tile_pixels),
+            tile_pixels: Some(em.measurer.plan().tile_pixels()),
             border_pixels: Some(settings.border_pixels),
             pixel_arcmin: Some(pixel_arcmin),
             no_bispectrum: true,

@@ -274,7 +274,8 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
         settings: serde_json::json!({
             "measurement": settings,
             "sampling": format!("{:?}", settings.sampling),
-            "coarse_nside": em.measurer.plan().coarse_pixelization().nside(),
+            "cells": em.measurer.plan().cell_layout().describe(),
+            "tile_pixels": em.measurer.plan().tile_pixels(),
             "nside": pix.nside(),
             "ordering": pix.ordering(),
             "column": args.column.to_string(),

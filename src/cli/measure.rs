@@ -111,7 +111,7 @@ impl MeasureOptions {
         };
         s.scales = pick(self.scales, file.scales, s.scales);
         s.orientations = pick(self.orientations, file.orientations, s.orientations);
-        s.tile_pixels = pick(self.tile_pixels, file.tile_pixels, s.tile_pixels);
+        s.tile_pixels = self.tile_pixels.or(file.tile_pixels).or(s.tile_pixels);
         s.border_pixels = pick(self.border_pixels, file.border_pixels, s.border_pixels);
         s.spectrum_bins = pick(self.spectrum_bins, file.spectrum_bins, s.spectrum_bins);
         s.coarse_nside = self.coarse_nside.or(file.coarse_nside);
@@ -300,8 +300,9 @@ pub fn measurement_document(
         "settings": {
             "scales": s.scales,
             "orientations": s.orientations,
-            "tile_pixels": s.tile_pixels,
-            "coarse_nside": measurer.plan().coarse_pixelization().nside(),
+            "tile_pixels": measurer.plan().tile_pixels(),
+            "cells": measurer.plan().cell_layout().describe(),
+            "coarse_nside": s.coarse_nside,
             "pixel_arcmin": measurer.plan().pixel_size().to_degrees() * 60.0,
             "border_pixels": s.border_pixels,
             "halo_pixels": s.halo(),
@@ -402,9 +403,9 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
         .filter(|c| c.trusted)
         .count();
     println!(
-        "{} tiles (coarse NSIDE {}, {}² pixels of {:.2}′): {} coefficients ({} trusted), {} compact, written to {}",
+        "{} tiles ({}, {}² pixels of {:.2}′): {} coefficients ({} trusted), {} compact, written to {}",
         stats.tiles,
-        summary.coarse_nside,
+        summary.cells,
         summary.tile_pixels,
         summary.pixel_size_arcmin,
         stats.coefficients.coefficients.len(),

@@ -1012,7 +1012,8 @@ pub fn paint_tiles(measurer: &SphereMeasurer, values: &[(usize, Option<f64>)]) -
     let mut pixels = vec![f64::NAN; pix.npix() as usize];
     for &(t, v) in values {
         if let Some(v) = v {
-            for p in plan.core_nested_range(t)? {
+            for p in plan.core_pixels(t)? {
+                let p = plan.map_pixelization().to_nested(p)?;
                 if let Some(slot) = pixels.get_mut(p as usize) {
                     *slot = v;
                 }
@@ -1063,10 +1064,10 @@ pub fn run_tile_map(args: &TileMapArgs) -> Result<()> {
         statistic.name
     ));
     picture.note(format!(
-        "{} of {} tiles with a value; coarse NSIDE {}, {}² pixels of {:.2}′ per tile",
+        "{} of {} tiles with a value; cells: {}, {}² pixels of {:.2}′ per tile",
         finite.len(),
         measurer.plan().len(),
-        summary.coarse_nside,
+        summary.cells,
         summary.tile_pixels,
         summary.pixel_size_arcmin
     ));

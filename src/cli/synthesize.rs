@@ -249,18 +249,8 @@ fn measurement_settings(args: &SynthesizeArgs) -> Result<MeasurementSettings> {
     if let Some(c) = args.sampling {
         s.sampling = SamplingMethod::from(c);
     }
-    s.tile_pixels = match args.tile_pixels {
-        Some(n) => n,
-        None => {
-            // the smallest power of two from 64 that holds 2^(J+1) and leaves a core
-            let mut n = 64usize;
-            while n < (1 << 14) && ((1usize << (args.scales.min(13) + 1)) > n || 2 * s.halo() >= n)
-            {
-                n *= 2;
-            }
-            n
-        }
-    };
+    // the tile size of `measure` for the same options
+    s.tile_pixels = args.tile_pixels;
     Ok(s)
 }
 
@@ -575,7 +565,7 @@ fn run_sphere(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
         "planisphere: synthesising {} footprint pixels on {} tiles of {}² pixels",
         synthesis.variables().len(),
         synthesis.tile_count(),
-        measurement.tile_pixels
+        synthesis.tile_pixels()
     );
     let outcome = synthesis.synthesise(&target)?;
     let fp = synthesis.footprint();

@@ -2,13 +2,14 @@
 //! will cost, optionally as JSON and as a Mollweide picture.
 
 use super::inputs::load_map;
-use crate::error::{Error, Result};
+use crate::error::Result;
 use crate::fits_io::{read_footprint, ColumnChoice};
 use crate::footprint::Footprint;
-use crate::pixelization::Direction;
 use crate::plotting::SkyPicture;
 use crate::skymap::SkyMap;
-use crate::tiling::{TilingPlan, TilingSettings, TilingSummary, DEFAULT_HALO};
+use super::measure::MeasureOptions;
+use crate::measurement::MeasurementSettings;
+use crate::tiling::{TilingPlan, TilingSummary};
 use std::path::{Path, PathBuf};
 
 /// Options of `planisphere tiles`.
@@ -25,18 +26,10 @@ pub struct TilesArgs {
     /// Column of the mask file: 0-based position or name.
     #[arg(long, default_value = "0")]
     pub mask_column: ColumnChoice,
-    /// NSIDE of the coarse grid whose pixel centres are the tile centres (power of two).
-    #[arg(long, default_value_t = 8)]
-    pub coarse_nside: u32,
-    /// Plane pixels per tile side (even; default: the smallest 2^a·3^b holding core + halo).
-    #[arg(long)]
-    pub tile_pixels: Option<usize>,
-    /// Plane pixel size in arcmin (default: the map's mean pixel spacing).
-    #[arg(long, allow_negative_numbers = true)]
-    pub pixel_arcmin: Option<f64>,
-    /// Halo around each core, in plane pixels.
-    #[arg(long, default_value_t = DEFAULT_HALO)]
-    pub halo: usize,
+    /// The measurement options of `measure`: the plan shown is the one `measure`, `ensemble`
+    /// and `synthesize` use with the same options.
+    #[command(flatten)]
+    pub options: MeasureOptions,
     /// Write the plan and its summary as JSON to this file.
     #[arg(long)]
     pub json: Option<PathBuf>,
@@ -49,8 +42,8 @@ pub struct TilesArgs {
 #[derive(Debug, Clone, serde::Serialize)]
 pub struct TileRecord {
     pub index: usize,
-    /// NESTED index of the coarse pixel (the core).
-    pub coarse_pixel: u64,
+    /// The tile's cell (for HEALPix cells the NESTED index of the coarse pixel).
+    pub cell: u64,
     pub center_lon_deg: f64,
     pub center_lat_deg: f64,
     pub footprint_fraction: f64,
@@ -68,7 +61,11 @@ pub struct Report {
 
 /// The plan for `map` over the footprint `mask` (restricted to the map's valid pixels), its
 /// summary for the current rayon thread count, and its tiles.
-pub fn tiles_report(map: &SkyMap, mask: &Footprint, settings: &TilingSettings) -> Result<Report> {
+pub fn tiles_report(
+    map: &SkyMap,
+    mask: &Footprint,
+    settings: &MeasurementSettings,
+) -> Result<Report> {
     let (plan, report) = plan_and_report(map, mask, settings)?;
     drop(plan);
     Ok(report)
@@ -77,17 +74,17 @@ pub fn tiles_report(map: &SkyMap, mask: &Footprint, settings: &TilingSettings) -
 fn plan_and_report(
     map: &SkyMap,
     mask: &Footprint,
-    settings: &TilingSettings,
+    settings: &MeasurementSettings,
 ) -> Result<(TilingPlan, Report)> {
     let footprint = mask.restricted_to(map)?;
-    let plan = TilingPlan::new(map.pixelization(), &footprint, settings)?;
+    let plan = settings.plan(map.pixelization(), &footprint)?;
     let tiles = plan
         .tiles()
         .iter()
         .enumerate()
         .map(|(index, t)| TileRecord {
             index,
-            coarse_pixel: t.coarse_pixel,
+            cell: t.cell,
             center_lon_deg: t.center.lon().to_degrees(),
             center_lat_deg: t.center.lat().to_degrees(),
             footprint_fraction: t.footprint_fraction,
@@ -104,8 +101,8 @@ pub fn summary_lines(s: &TilingSummary) -> Vec<String> {
     let mib = |b: u64| b as f64 / (1024.0 * 1024.0);
     vec![
         format!(
-            "tiles: {} (coarse NSIDE {} on map NSIDE {})",
-            s.tiles, s.coarse_nside, s.map_nside
+            "tiles: {} ({} on map NSIDE {})",
+            s.tiles, s.cells, s.map_nside
         ),
         format!(
             "tile grid: {} × {} pixels of {:.3} arcmin ({:.3} map spacings), {:.2}° across, halo {} pixels",
@@ -123,6 +120,10 @@ pub fn summary_lines(s: &TilingSummary) -> Vec<String> {
             s.covered_footprint_area_sr,
             s.core_area_sr,
             s.mean_footprint_fraction
+        ),
+        format!(
+            "work: {:.2} tile pixels per footprint pixel ({} footprint pixels), tile area {:.2}× the footprint area",
+            s.tile_pixels_per_footprint_pixel, s.footprint_pixels, s.tile_area_per_footprint_area
         ),
         format!(
             "distortion sec²ρ: {:.4} at the grid corners, {:.4} at worst over the cores",
@@ -153,24 +154,10 @@ pub fn draw_tiling(plan: &TilingPlan, footprint: &Footprint, path: &Path) -> Res
             ]
         })
     });
-    let depth = cdshealpix::depth(plan.coarse_pixelization().nside());
     let n = plan.tile_pixels();
     let half = n as f64 / 2.0 * plan.pixel_size();
     for (i, t) in plan.tiles().iter().enumerate() {
-        let edge = cdshealpix::nested::path_along_cell_edge(
-            depth,
-            t.coarse_pixel,
-            &cdshealpix::compass_point::Cardinal::S,
-            false,
-            16,
-        );
-        let mut core: Vec<Direction> = edge
-            .iter()
-            .map(|&(lon, lat)| Direction::new(std::f64::consts::FRAC_PI_2 - lat, lon))
-            .collect();
-        if let Some(&first) = core.first() {
-            core.push(first);
-        }
+        let core = plan.core_outline(i)?;
         picture.line(core, [200, 40, 30], 2);
         let proj = plan.projection(i)?;
         let mut square = Vec::new();
@@ -190,9 +177,9 @@ pub fn draw_tiling(plan: &TilingPlan, footprint: &Footprint, path: &Path) -> Res
         picture.point(t.center, [20, 20, 20], 3);
     }
     picture.note(format!(
-        "{} tiles (coarse NSIDE {}), grids {} × {} of {:.2}′ ({:.1}° across), halo {}; map NSIDE {}",
+        "{} tiles ({}), grids {} × {} of {:.2}′ ({:.1}° across), halo {}; map NSIDE {}",
         s.tiles,
-        s.coarse_nside,
+        s.cells,
         n,
         n,
         s.pixel_size_arcmin,
@@ -201,7 +188,7 @@ pub fn draw_tiling(plan: &TilingPlan, footprint: &Footprint, path: &Path) -> Res
         s.map_nside
     ));
     picture.note(format!(
-        "footprint {:.0} deg² (shaded); red: cores (coarse pixels); blue: tile grids; worst sec²ρ {:.3}",
+        "footprint {:.0} deg² (shaded); red: cores; blue: tile grids; worst sec²ρ {:.3}",
         s.footprint_area_deg2, s.grid_corner_distortion
     ));
     picture.write_png(path)
@@ -214,21 +201,7 @@ pub fn run(args: &TilesArgs) -> Result<()> {
         Some(path) => read_footprint(path, &args.mask_column)?.0,
         None => Footprint::of_valid_pixels(&map),
     };
-    let pixel_size = match args.pixel_arcmin {
-        Some(a) if !(a.is_finite() && a > 0.0) => {
-            return Err(Error::Setting(format!(
-                "--pixel-arcmin must be positive, got {a}"
-            )))
-        }
-        Some(a) => Some((a / 60.0).to_radians()),
-        None => None,
-    };
-    let settings = TilingSettings {
-        coarse_nside: args.coarse_nside,
-        tile_pixels: args.tile_pixels,
-        pixel_size,
-        halo: args.halo,
-    };
+    let settings = args.options.settings()?;
     let (plan, report) = plan_and_report(&map, &mask, &settings)?;
     for line in summary_lines(&report.summary) {
         println!("{line}");

@@ -193,7 +193,7 @@ impl SphereSynthesis {
         };
         let measurer = SphereMeasurer::new(map, &footprint, measurement)?;
         let transform = DifferentiableScattering::new(
-            measurement.tile_pixels,
+            measurer.plan().tile_pixels(),
             measurement.scales,
             measurement.orientations,
         )?;
@@ -217,7 +217,7 @@ impl SphereSynthesis {
         }
         // ring-cubic rows read up to 16 pixels (16 bytes per entry); the geometry holds about
         // 2J + J(J−1)/2 + 4 grids
-        let (n, jn) = (measurement.tile_pixels, measurement.scales);
+        let (n, jn) = (measurer.plan().tile_pixels(), measurement.scales);
         let per_tile = n * n * (16 * 16 + 8 * (2 * jn + jn * jn.saturating_sub(1) / 2 + 4));
         if tiles.len() * per_tile <= CACHE_BYTES {
             let parts: Vec<(TileSamplingOperator, TileGeometry)> = tiles
@@ -271,6 +271,11 @@ impl SphereSynthesis {
     /// Number of tiles with positive pooling weight.
     pub fn tile_count(&self) -> usize {
         self.tiles.len()
+    }
+
+    /// Plane pixels per tile side of the plan.
+    pub fn tile_pixels(&self) -> usize {
+        self.measurer.plan().tile_pixels()
     }
 
     /// The optimised pixels (footprint weight > 0), in the map's ordering, increasing.

@@ -71,7 +71,7 @@ fn parse_csv(text: &str) -> std::result::Result<Vec<FlatComparisonRow>, String> 
     let names = [
         "tile_pixels",
         "tile_width_deg",
-        "coarse_nside",
+        "cells",
         "coefficient",
         "order",
         "j1",
@@ -106,7 +106,7 @@ fn parse_csv(text: &str) -> std::result::Result<Vec<FlatComparisonRow>, String> 
         rows.push(FlatComparisonRow {
             tile_pixels: int(0)?,
             tile_width_deg: num(1)?,
-            coarse_nside: cell(2).parse::<u32>().map_err(|_| bad(2))?,
+            cells: cell(2).to_string(),
             coefficient: cell(3).to_string(),
             order: cell(4).parse::<u8>().map_err(|_| bad(4))?,
             j1: if cell(5).is_empty() {
