@@ -41,13 +41,13 @@ fn sphere(c: &mut Criterion) {
     let settings = MeasurementSettings {
         scales: 6,
         orientations: 4,
-        tile_pixels: 128,
+        tile_pixels: Some(128),
         ..Default::default()
     };
     let measurer = SphereMeasurer::new(pix, &footprint, settings).expect("measurer");
     let sampler =
         TileSampler::new(measurer.plan(), &map, &footprint, settings.sampling).expect("sampler");
-    let window = border_window(settings.tile_pixels, settings.border_pixels);
+    let window = border_window(128, settings.border_pixels);
     let tile = measurer.plan().len() / 2;
     let mut group = c.benchmark_group("sphere_nside1024_J6_L4_128px");
     group.sample_size(10);

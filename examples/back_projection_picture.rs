@@ -16,7 +16,7 @@ fn main() -> planisphere::Result<()> {
         (3.0 * d.theta).cos() + 0.5 * (4.0 * d.phi).sin() * d.theta.sin()
     });
     let mask = Footprint::from_fn(pix, |d| d.lat().abs() > 20f64.to_radians());
-    let plan = TilingPlan::new(pix, &mask, &TilingSettings::new(4))?;
+    let plan = TilingPlan::new(pix, &mask, &TilingSettings::healpix_pixels(4))?;
     let sampler = TileSampler::new(&plan, &map, &mask, SamplingMethod::Bilinear)?;
     let back = assemble(&plan, |i| Ok(sampler.sample(i)?.field))?;
     let diff: Vec<f64> = back

@@ -35,7 +35,7 @@ fn run_case(coarse: u32, method: SamplingMethod) -> planisphere::Result<()> {
     let setup = t0.elapsed().as_secs_f64();
     let base = peak_mib();
     let t1 = Instant::now();
-    let plan = TilingPlan::new(pix, &mask, &TilingSettings::new(coarse))?;
+    let plan = TilingPlan::new(pix, &mask, &TilingSettings::healpix_pixels(coarse))?;
     let planning = t1.elapsed().as_secs_f64();
     let s = plan.summary(rayon::current_num_threads());
     let sampler = TileSampler::new(&plan, &map, &mask, method)?;

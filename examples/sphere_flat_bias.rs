@@ -49,7 +49,7 @@ fn main() -> planisphere::Result<()> {
         let settings = MeasurementSettings {
             scales,
             orientations: 4,
-            tile_pixels: n,
+            tile_pixels: Some(n),
             pixel_arcmin: Some(fraction * h.to_degrees() * 60.0),
             border_pixels: border,
             sampling: method,

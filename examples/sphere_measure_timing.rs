@@ -52,7 +52,7 @@ fn main() -> planisphere::Result<()> {
             &mock,
             MeasurementSettings {
                 scales: 6,
-                tile_pixels: 128,
+                tile_pixels: Some(128),
                 ..Default::default()
             },
         )?;
@@ -90,7 +90,7 @@ fn main() -> planisphere::Result<()> {
     let settings = MeasurementSettings {
         scales: 6,
         orientations: 4,
-        tile_pixels: 128,
+        tile_pixels: Some(128),
         ..Default::default()
     };
     let t = Instant::now();
@@ -98,9 +98,9 @@ fn main() -> planisphere::Result<()> {
     let t_plan = t.elapsed();
     let s = measurer.summary();
     println!(
-        "plan {:.2} s: coarse NSIDE {} (chosen), {} tiles of {} px ({:.2} arcmin, {:.2}° across), halo {} px (border {} + scale margin {}), sampling {:?}",
+        "plan {:.2} s: {}, {} tiles of {} px ({:.2} arcmin, {:.2}° across), halo {} px (border {} + scale margin {}), sampling {:?}",
         t_plan.as_secs_f64(),
-        s.coarse_nside,
+        s.cells,
         s.tiles,
         s.tile_pixels,
         s.pixel_size_arcmin,
@@ -113,7 +113,7 @@ fn main() -> planisphere::Result<()> {
 
     // Profiled pass: the per-tile pipeline of `measure` (sampling, taper, scattering transform),
     // with the transform's FFT calls timed; tile spectra are left out of this pass.
-    let window = border_window(settings.tile_pixels, settings.border_pixels);
+    let window = border_window(128, settings.border_pixels);
     let sampler = TileSampler::new(measurer.plan(), &map, &footprint, settings.sampling)?;
     let t = Instant::now();
     let sampled: usize = sampler.map_tiles(|g| Ok(g.field.len()))?.iter().sum();

@@ -144,7 +144,7 @@ fn sphere() {
     let measurement = MeasurementSettings {
         scales: 6,
         orientations: 4,
-        tile_pixels: 128,
+        tile_pixels: Some(128),
         bispectrum: false,
         ..MeasurementSettings::default()
     };
@@ -177,7 +177,7 @@ fn sphere() {
     println!(
         "sphere: NSIDE {nside}, f_sky {:.4}, J = 6, L = 4, {}² tiles, {} tiles, {} pixels optimised, {} statistics",
         footprint.f_sky(),
-        measurement.tile_pixels,
+        128,
         s.tile_count(),
         s.variables().len(),
         t.values.len()

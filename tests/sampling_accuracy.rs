@@ -81,7 +81,7 @@ fn sampled_plan(nside: u32, coarse: u32, ordering: Ordering) -> (SkyMap, Footpri
     let pix = Pixelization::new(nside, ordering).unwrap();
     let map = SkyMap::from_fn(pix, field);
     let fp = Footprint::full_sky(pix);
-    let plan = TilingPlan::new(pix, &fp, &TilingSettings::new(coarse)).unwrap();
+    let plan = TilingPlan::new(pix, &fp, &TilingSettings::healpix_pixels(coarse)).unwrap();
     (map, fp, plan)
 }
 
@@ -196,7 +196,7 @@ fn assembled_back_projection_matches_per_tile_values_and_leaves_rest_invalid() {
     let pix = Pixelization::new(64, Ordering::Nested).unwrap();
     let map = SkyMap::from_fn(pix, field);
     let fp = Footprint::from_fn(pix, |d| d.lat() > 30f64.to_radians());
-    let plan = TilingPlan::new(pix, &fp, &TilingSettings::new(4)).unwrap();
+    let plan = TilingPlan::new(pix, &fp, &TilingSettings::healpix_pixels(4)).unwrap();
     let sampler = TileSampler::new(&plan, &map, &fp, SamplingMethod::Bilinear).unwrap();
     let whole = assemble(&plan, |i| Ok(sampler.sample(i)?.field)).unwrap();
     let mut in_cores = vec![false; pix.npix() as usize];
@@ -266,12 +266,8 @@ fn bad_map_pixels_count_as_masked() {
         }
     });
     let fp = Footprint::full_sky(pix);
-    let plan = TilingPlan::new(pix, &fp, &TilingSettings::new(4)).unwrap();
-    let tile = plan
-        .tiles()
-        .iter()
-        .position(|t| t.coarse_pixel == plan.coarse_pixelization().pixel_of(hole))
-        .unwrap();
+    let plan = TilingPlan::new(pix, &fp, &TilingSettings::healpix_pixels(4)).unwrap();
+    let tile = plan.owner(hole).unwrap();
     for method in [
         SamplingMethod::Bilinear,
         SamplingMethod::RingLinear,
@@ -307,7 +303,7 @@ fn sampling_is_identical_for_one_and_two_threads() {
     let pix = Pixelization::new(64, Ordering::Ring).unwrap();
     let map = SkyMap::from_fn(pix, field);
     let fp = Footprint::from_fn(pix, |d| d.lat().abs() > 20f64.to_radians());
-    let plan = TilingPlan::new(pix, &fp, &TilingSettings::new(4)).unwrap();
+    let plan = TilingPlan::new(pix, &fp, &TilingSettings::healpix_pixels(4)).unwrap();
     let run = |threads: usize| {
         let pool = rayon::ThreadPoolBuilder::new()
             .num_threads(threads)

@@ -35,7 +35,7 @@ fn cap(pix: Pixelization) -> Footprint {
 
 fn plan_for(map: &SkyMap, fp: &Footprint) -> TilingPlan {
     let settings = TilingSettings {
-        coarse_nside: 4,
+        cells: planisphere::tiling::CellLayout::LatitudeBands,
         tile_pixels: Some(32),
         pixel_size: None,
         halo: 8,

@@ -56,7 +56,7 @@ fn cross_band_power_of_correlated_skies_follows_the_cross_spectrum_and_cross_mom
         (m, sd / k.sqrt())
     };
     let cl = sphere_support::spectrum(NSIDE).cl;
-    let n = settings.tile_pixels;
+    let n = measurer.plan().tile_pixels();
     let pixel = measurer.plan().pixel_size();
     let bank = measurer.engine().bank();
     let mut checked = 0;

@@ -59,7 +59,7 @@ fn check_ratios(name: &str, footprint: &Footprint, skies: u64, seed: u64) {
         ..Default::default()
     };
     let (measurer, sets) = sphere_support::sphere_sets(NSIDE, footprint, settings, skies, seed);
-    let n = measurer.settings().tile_pixels;
+    let n = measurer.plan().tile_pixels();
     let pixel = measurer.plan().pixel_size();
     let cl = sphere_support::spectrum(NSIDE).cl;
     for j in 1..J {

@@ -22,7 +22,7 @@ fn settings() -> MeasurementSettings {
     MeasurementSettings {
         scales: 3,
         orientations: 4,
-        tile_pixels: 32,
+        tile_pixels: Some(32),
         border_pixels: 4,
         bispectrum: false,
         ..MeasurementSettings::default()

@@ -45,7 +45,7 @@ fn tile_power_spectrum_matches_full_sky_cl_at_k_minus_half_for_ten_degree_tiles(
     let delta_arcmin = 600.0 / n as f64; // 64 pixels of 9.375′: 10° tiles
     let settings = MeasurementSettings {
         scales: 3,
-        tile_pixels: n,
+        tile_pixels: Some(n),
         pixel_arcmin: Some(delta_arcmin),
         coarse_nside: Some(32),
         border_pixels: 8,

@@ -3,6 +3,7 @@
 //! Hivon et al., HEALPix documentation).
 
 use planisphere::cli::tiles::{draw_tiling, summary_lines, tiles_report};
+use planisphere::measurement::MeasurementSettings;
 use planisphere::tiling::{TilingPlan, TilingSettings};
 use planisphere::{Direction, Footprint, Ordering, Pixelization, SkyMap};
 use std::path::Path;
@@ -35,7 +36,13 @@ fn report_counts_tiles_and_areas_of_the_footprint() {
     let pix = Pixelization::new(64, Ordering::Ring).unwrap();
     let map = SkyMap::from_fn(pix, |d| d.theta.cos());
     let mask = galactic_cut(pix);
-    let report = tiles_report(&map, &mask, &TilingSettings::new(4)).unwrap();
+    let healpix4 = MeasurementSettings {
+        coarse_nside: Some(4),
+        scales: 2,
+        border_pixels: 2,
+        ..MeasurementSettings::default()
+    };
+    let report = tiles_report(&map, &mask, &healpix4).unwrap();
     let s = &report.summary;
     let exact = 4.0 * std::f64::consts::PI * (1.0 - 20f64.to_radians().sin());
     assert!(
@@ -49,7 +56,7 @@ fn report_counts_tiles_and_areas_of_the_footprint() {
     assert!(s.tiles > 96 && s.tiles < 192, "{}", s.tiles);
     let fraction_sum: f64 = report.tiles.iter().map(|t| t.footprint_pixels as f64).sum();
     assert_eq!(fraction_sum as u64, mask.observed_pixels());
-    assert_eq!(summary_lines(s).len(), 5);
+    assert_eq!(summary_lines(s).len(), 6);
     // Bad map pixels shrink the footprint.
     let holed = SkyMap::from_fn(pix, |d| {
         if d.lat() > 60f64.to_radians() {
@@ -58,7 +65,7 @@ fn report_counts_tiles_and_areas_of_the_footprint() {
             1.0
         }
     });
-    let less = tiles_report(&holed, &mask, &TilingSettings::new(4)).unwrap();
+    let less = tiles_report(&holed, &mask, &healpix4).unwrap();
     assert!(less.summary.footprint_area_sr < s.footprint_area_sr);
     assert!(less.summary.tiles < s.tiles);
 }
@@ -68,7 +75,7 @@ fn tiling_picture_is_a_png_and_leaves_no_partial_file() {
     let dir = tempfile::tempdir().unwrap();
     let pix = Pixelization::new(32, Ordering::Nested).unwrap();
     let mask = galactic_cut(pix);
-    let plan = TilingPlan::new(pix, &mask, &TilingSettings::new(2)).unwrap();
+    let plan = TilingPlan::new(pix, &mask, &TilingSettings::healpix_pixels(2)).unwrap();
     let path = dir.path().join("tiles.png");
     draw_tiling(&plan, &mask, &path).unwrap();
     let bytes = std::fs::read(&path).unwrap();
@@ -102,7 +109,7 @@ fn command_prints_summary_and_writes_json_and_png() {
         .arg(&map_path)
         .arg("--mask")
         .arg(&mask_path)
-        .args(["--coarse-nside", "4", "--halo", "4", "--json"])
+        .args(["-J", "2", "--border-pixels", "2", "--json"])
         .arg(&json)
         .arg("--png")
         .arg(&png)
@@ -121,6 +128,34 @@ fn command_prints_summary_and_writes_json_and_png() {
     assert_eq!(plan["tiles"].as_array().unwrap().len() as u64, tiles);
     assert_eq!(plan["summary"]["map_nside"].as_u64(), Some(32));
     assert!(std::fs::metadata(&png).unwrap().len() > 1000);
+    // `measure` with the same options works on exactly the plan `tiles` previewed.
+    let measured = dir.path().join("measured.json");
+    let out = Command::new(env!("CARGO_BIN_EXE_planisphere"))
+        .arg("measure")
+        .arg(&map_path)
+        .arg("--mask")
+        .arg(&mask_path)
+        .args(["-J", "2", "--border-pixels", "2", "--no-bispectrum", "-o"])
+        .arg(&measured)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let m: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&measured).unwrap()).unwrap();
+    for key in [
+        "tiles",
+        "tile_pixels",
+        "cells",
+        "halo_pixels",
+        "pixel_size_arcmin",
+        "tile_pixels_per_footprint_pixel",
+    ] {
+        assert_eq!(m["tiling"][key], plan["summary"][key], "{key}");
+    }
 }
 
 #[test]
@@ -147,7 +182,7 @@ fn command_reports_bad_input_in_one_line() {
     let cases: Vec<(Vec<&str>, &str)> = vec![
         (vec!["/nonexistent/map.fits"], "no such file"),
         (vec![m, "--coarse-nside", "3"], "power of two"),
-        (vec![m, "--tile-pixels", "8"], "n must be at least"),
+        (vec![m, "--tile-pixels", "8"], "too large for 8-pixel tiles"),
         (vec![m, "--pixel-arcmin", "-2"], "must be positive"),
         (
             vec![m, "--mask", small_mask.to_str().unwrap()],
