@@ -639,9 +639,9 @@ pub(crate) fn crop_levels_for(
     let n = bank.size();
     let scale_count = bank.scale_count();
     let max_level = n.trailing_zeros() as usize - 3; // coarse grids of at least 8 pixels
-    // Computed grids of at least 32 pixels: pooling on fewer samples exceeds the error budget
-    // (module documentation, "Error budget").
-    let finest_cap = (n.trailing_zeros() as usize).saturating_sub(5);
+    // Computed grids of at least 64 pixels (32 on 64-pixel tiles): pooling next to sharp
+    // trust-mask edges on fewer samples exceeds the error budget (module documentation).
+    let finest_cap = (n.trailing_zeros() as usize).saturating_sub(6).max(1);
     let centres = band_centres(bank);
     let big_l = bank.orientation_count();
     let tol = settings.crop_tolerance;
@@ -671,8 +671,8 @@ pub(crate) fn crop_levels_for(
                 {
                     chosen -= 1;
                 }
+                chosen = chosen.min(finest_cap);
             }
-            chosen = chosen.min(finest_cap);
         }
         let previous = levels.last().copied().unwrap_or(0);
         levels.push(chosen.max(previous));
