@@ -1,6 +1,7 @@
 //! Per-tile time of the scattering transform with origin-centred crop boxes (the previous
-//! levels: `shifted_boxes: false`, crop tolerance 1e-6) against the default settings (boxes
-//! centred on each wavelet's band), side by side in one run, with the FFT census of each.
+//! levels: `shifted_boxes: false`, crop tolerance 1e-6, one level for both layers) against the
+//! default settings (boxes centred on each wavelet's band, per-layer levels), side by side in
+//! one run, with the FFT census of each.
 //! Single thread is what the per-tile numbers mean: run with RAYON_NUM_THREADS=1.
 //!
 //! Run: RAYON_NUM_THREADS=1 cargo run --release --example per_scale_timing [reps]
@@ -47,6 +48,7 @@ fn main() -> planisphere::Result<()> {
     let previous = TransformSettings {
         shifted_boxes: false,
         crop_tolerance: 1e-6,
+        first_layer_oversampling: 0,
         ..Default::default()
     };
     let current = TransformSettings::default();
