@@ -31,8 +31,8 @@
 //!    distribution of U (and thus ⟨U⟩, ⟨U²⟩) match the unmasked one. K_j is averaged over
 //!    orientations: exact for L = 4 (isotropic envelope up to the small β term), an
 //!    approximation at edges for elongated envelopes (L > 4), where pooling is restricted
-//!    anyway (step 3). N_j is obtained by one FFT of a² and, per scale, one inverse FFT at full
-//!    resolution.
+//!    anyway (step 3). N_j is obtained by one real FFT of a² and, per scale, one
+//!    complex-to-real inverse FFT at full resolution.
 //! 3. **Trust cut.** Pixel x enters the pooling of scale j only where N_j(x) ≥ τ (setting
 //!    `coverage_threshold`, default 0.9), i.e. where at least 90% of the wavelet's squared
 //!    response falls on unit taper; there the first-order approximation of step 2 is accurate.
@@ -96,28 +96,66 @@
 //!
 //! # Fourier cropping (speed)
 //!
-//! Scale j is computed on a grid subsampled by 2^{d_j}: the spectrum is cropped to the central
-//! (n/2^{d_j})² box (its Nyquist row and column set to zero, keeping the box symmetric), the
-//! product with ψ̂ is inverse transformed at the small size, and the samples of g at every
-//! 2^{d_j}-th pixel are exact as long as ψ̂ vanishes outside the box. d_j is the largest level
-//! for which every ψ̂_{j,l} and every FT[|ψ_{j,l}|²] (the band of |g|²) stay below
-//! `crop_tolerance` (default 1e-6) of their peak outside the box; for σ_j = 0.8·2^j this gives
-//! d = j − 2. The modulus |g| is not band-limited, so it is sampled `modulus_oversampling`
-//! (default 1) levels finer than that: d_j = max(0, j − 3), i.e. for n = 128, J = 6 the grids
-//! are 128, 128, 128, 128, 64, 32. Pooling on the coarse grid uses the weight low-passed
-//! (Fourier-cropped) to the same box, which makes Σ_x W h = 4^{d} Σ_X W_lp h exact for
-//! band-limited h, so the only error left is the part of the spectrum of |g| outside the box.
-//! Measured against the full-resolution path (tests/scattering_cropping.rs, 128², J = 6,
-//! L = 4, white and red Gaussian fields, periodic and with holes): largest relative change of
-//! any coefficient 2.3e-4 (order 2; order 0–1 far smaller); without the oversampling level
-//! (d_j = j − 2) it reached 1.2e-3. Against the numpy reference at 64², J = 5: 6.1e-5.
+//! Each layer is computed on the grid its band needs. A grid of level d is the tile subsampled
+//! by 2^d (side m = n/2^d); the samples of a band-pass field g = I∗ψ_{j,l} at every 2^d-th pixel
+//! are obtained by one inverse DFT of size m of the m × m bins of the spectrum that hold ψ̂_{j,l},
+//! and are exact as long as ψ̂ vanishes outside those bins.
+//!
+//! * **Boxes centred on the band** (`shifted_boxes`, default). A Morlet ψ̂_{j,l} is a Gaussian
+//!   bump at ξ_{j,l} ≠ 0 (plus the small zero-mean term −β ĝ at the origin), and
+//!   |g(x)| = |g(x) e^{−iq₀·x}|: the box is the m × m block of bins q₀ + p, p ∈ [−m/2, m/2)²,
+//!   around the bin q₀ where |ψ̂_{j,l}| peaks, and the inverse DFT of size m gives the field
+//!   demodulated by q₀, whose modulus is |g| at the coarse pixels. The box then needs only the
+//!   envelope's bandwidth, not |ξ| plus the bandwidth. Two fields filtered by the same wavelet
+//!   carry the same phase factor, so the cross products Re[g_A conj(g_B)] are unchanged too.
+//!   (`shifted_boxes: false`: boxes centred on the origin with zeroed Nyquist lines.)
+//! * **Levels.** The band level b_j is the largest level whose (centred) box holds every ψ̂_{j,l}
+//!   to `crop_tolerance` (default 2e-3) of its peak; b_j = j − 1 for σ_j = 0.8·2^j (what is left
+//!   outside is the tail of the β term near the box edge closest to the origin, between 5e-4
+//!   and 2e-3 of the peak for L = 3 to 8, hence the tolerance; at 1e-6 b_j = j − 2). The
+//!   modulus |g| is not band-limited (its spectrum has power-law tails from the zeros of g), so
+//!   it is sampled finer: the **second layer** of (j1 → j2) at d′_{j2} = b_{j2} −
+//!   `modulus_oversampling` (default 1) = j2 − 2, lowered if needed until FT|ψ|² (the band of
+//!   |g|²) fits the central box; the **first layer** at d_j = d′_j − `first_layer_oversampling`
+//!   (default 1) = j − 3, because U_{j1} is filtered again at order 2 and its sampling error
+//!   reaches the second layer's band (with d_j = d′_j order 2 at j1 = 3, 4 exceeded the budget).
+//!   Grids are kept at 64 pixels or more (32 on 64-pixel tiles): below that, pooling next to
+//!   sharp trust-mask edges exceeded the budget (1.6e-3 at 128² with holes on 32² grids).
+//!   Levels are non-decreasing in j. For n = 256, J = 6, L = 4: first layer 0,0,0,0,1,2, second
+//!   layer 0,0,0,1,2,2 (origin-centred boxes at tolerance 1e-6: 0,0,0,0,1,2 for both); n = 128,
+//!   J = 6: 0,0,0,0,1,1 and 0,0,0,1,1,1.
+//! * **Grids of the other quantities.** The second-layer input a·(U − μ_U) lives on the
+//!   first-layer grid of j1; its spectrum (real-to-complex) feeds the boxes of every j2 > j1.
+//!   The coverage normalisation c_j is sampled on both grids of j; the pooling weight of order 1
+//!   is W_j low-passed to the first-layer level, that of order 2 is W_{j1,j2} low-passed to the
+//!   second-layer level of j2 (Σ_x W h = 4^d Σ_X W_lp h, exact for h band-limited to the box).
+//!   The coverage inverses and the weight low-passes are complex-to-real transforms of
+//!   Hermitian spectra.
+//!
+//! # Error budget
+//!
+//! Measured against the full-resolution path of the same estimator (`fourier_cropping: false`)
+//! in `tests/scattering_cropping.rs`: n = 128 and 256, J = 5 and 6, L = 4 and 3, white and red
+//! Gaussian fields (4 per case), periodic and with two holes and an 8-pixel C2 border. Budget:
+//! every coefficient within 1e-3 relative AND within 0.1 of its single-sky scatter (standard
+//! deviation over the 4 fields). Measured worst: relative 3.6e-4 (order 2, 128², L = 3, red,
+//! holes; on coefficients flagged untrusted 2.3e-4), 3.7e-2 of the scatter (order 2, 128²,
+//! L = 4, white, holes); orders 0 and 1 are far smaller. For comparison, the earlier levels
+//! (origin-centred boxes, tolerance 1e-6, d_j = j − 3 for both layers) gave 2.3e-4; the shifted
+//! levels without the first-layer oversampling 1.2e-3, and with 32² grids 1.6e-3 on untrusted
+//! coefficients.
 //!
 //! # Work and memory
 //!
-//! Per tile: 2 real FFTs plus J inverse FFTs at full size for the coverage, one low-pass per
-//! pooling weight (J + J(J−1)/2), J·L inverse FFTs for order 1, and for order 2 one real FFT
-//! per (j1, l1) and one inverse FFT per (j1, l1, j2, l2) at the cropped size of j2. Memory is a
-//! few n² arrays plus the pooling weights, independent of the number of tiles.
+//! Per tile and field: one real FFT of the input at full size; J·L inverse FFTs for order 1
+//! (at the first-layer sizes); for order 2 one real FFT per (j1, l1) at the first-layer size of
+//! j1 and one inverse FFT per (j1, l1, j2, l2) at the second-layer size of j2. Shared: one real
+//! FFT of a² and J complex-to-real inverses at full size (coverage), and per pooling weight on a
+//! coarse level one real FFT at full size and one complex-to-real inverse at the coarse size.
+//! The exact list is [`ScatteringEngine::fft_census`]. For n = 256, J = 5, L = 4 the census
+//! drops from 141 to 94 full-size complex FFT equivalents (m² log m, half for real-data
+//! transforms); measured per-tile times are in `examples/per_scale_timing.rs` and DEVELOPERS.md.
+//! Memory is a few n² arrays plus the pooling weights, independent of the number of tiles.
 
 use crate::filters::MorletBank;
 use crate::pooling::{PairTileSums, TileSums};
