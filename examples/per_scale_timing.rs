@@ -69,8 +69,14 @@ fn main() -> planisphere::Result<()> {
             weight: &taper,
         };
         let engines = [
-            ("previous", ScatteringEngine::with_settings(n, big_j, big_l, previous)?),
-            ("default", ScatteringEngine::with_settings(n, big_j, big_l, current)?),
+            (
+                "previous",
+                ScatteringEngine::with_settings(n, big_j, big_l, previous)?,
+            ),
+            (
+                "default",
+                ScatteringEngine::with_settings(n, big_j, big_l, current)?,
+            ),
         ];
         let mut times = [0.0; 2];
         // Interleave the two engines so that load changes hit both alike.

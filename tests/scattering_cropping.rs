@@ -14,9 +14,7 @@ mod common;
 use common::holey_taper;
 use planisphere::flat::gaussian_random_field;
 use planisphere::pooling::pooled_coefficients;
-use planisphere::transform::{
-    ScatteringEngine, TileView, TilePairView, TransformSettings,
-};
+use planisphere::transform::{ScatteringEngine, TilePairView, TileView, TransformSettings};
 
 const SEEDS: u64 = 4;
 
@@ -72,7 +70,10 @@ fn error_budget(
         holey_taper(
             n,
             4.0,
-            &[(40.0 * s, 50.0 * s, 10.0 * s), (90.0 * s, 80.0 * s, 14.0 * s)],
+            &[
+                (40.0 * s, 50.0 * s, 10.0 * s),
+                (90.0 * s, 80.0 * s, 14.0 * s),
+            ],
             8.0,
         )
     } else {
@@ -109,8 +110,8 @@ fn error_budget(
             continue;
         }
         let mean = column.iter().sum::<f64>() / SEEDS as f64;
-        let sd = (column.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (SEEDS - 1) as f64)
-            .sqrt();
+        let sd =
+            (column.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (SEEDS - 1) as f64).sqrt();
         for (f, c) in full_values.iter().zip(&cropped_values) {
             assert_eq!(c[i].1, f[i].1, "trust flag changed at {:?}", labels[i]);
             let diff = (c[i].0 - f[i].0).abs();
@@ -159,7 +160,12 @@ fn check_budget(n: usize, big_j: usize, big_l: usize) {
                 b.in_scatter,
                 b.in_scatter_at
             );
-            assert!(b.relative < 1e-3, "relative {:e} at {}", b.relative, b.relative_at);
+            assert!(
+                b.relative < 1e-3,
+                "relative {:e} at {}",
+                b.relative,
+                b.relative_at
+            );
             assert!(
                 b.relative_untrusted < 1e-3,
                 "untrusted: relative {:e} at {}",

@@ -7,19 +7,22 @@
 //!
 //! Exactly the estimator of [`crate::transform::ScatteringEngine::transform_tile`], with the
 //! same settings and layout ([`crate::pooling::TileSums`]). With n the tile side, N = n²,
-//! crop level d_j of scale j, m_j = n/2^{d_j}, M_j = m_j², lower-case x the fine pixels and
-//! upper-case X the pixels of a coarse grid (every 2^d-th fine pixel):
+//! first-layer level d_j and second-layer level d′_j of scale j, m_j = n/2^{d_j},
+//! m′_j = n/2^{d′_j}, M_j = m_j², lower-case x the fine pixels and upper-case X the pixels of a
+//! coarse grid (every 2^d-th fine pixel):
 //!
 //! * order 0: Σ w f and Σ w f² (weight Σ w);
 //! * I = a (f − μ_a), μ_a = Σ a f / Σ a; F = DFT_n(I) (unnormalised DFT);
-//! * g₁ = IDFT_{m1}(ψ̂_{j1,l1} · B_{n→m1} F) / N, with B the crop of a spectrum to its central
-//!   m × m box (Nyquist row and column zeroed when m < n) and IDFT unnormalised;
+//! * g₁ = IDFT_{m1}(B_{n→m1}(ψ̂_{j1,l1} · F)) / N, with B the m × m box of spectrum bins of
+//!   the engine (centred on the band of ψ_{j1,l1}, or the central box with its Nyquist row and
+//!   column zeroed; the identity when m = n) and IDFT unnormalised;
 //! * u = |g₁| · c_{j1}, c_j(X) = 1/√max(N_j(X), 0.01) the coverage normalisation;
 //! * S1 sum = 4^{d1} Σ_X W̃_{j1}(X) u(X), P sum = 4^{d1} Σ_X W̃_{j1} u², where W̃_j is the
 //!   trusted weight W_j = w·[N_j ≥ τ] low-passed to the grid of level d_j;
 //! * I₂ = ã (u − μ_u), ã the taper sampled on the grid of j1, μ_u = Σ ã u / Σ ã;
-//!   F₂ = DFT_{m1}(I₂); g₂ = IDFT_{m2}(ψ̂_{j2,l2} · B_{m1→m2} F₂) / M_1;
-//! * S2 sum = 4^{d2} Σ_X W̃_{j1,j2}(X) |g₂(X)| c_{j2}(X).
+//!   F₂ = DFT_{m1}(I₂); g₂ = IDFT_{m′2}(B_{m1→m′2}(ψ̂_{j2,l2} · F₂)) / M_1 (ψ̂ on the m1 grid);
+//! * S2 sum = 4^{d′2} Σ_X W̃_{j1,j2}(X) |g₂(X)| c_{j2}(X), W̃_{j1,j2} and c_{j2} on the grid of
+//!   level d′_{j2}.
 //!
 //! The coverage N_j, the trust masks, c_j and the low-passed weights depend on a and w only;
 //! they are computed once per tile in a [`TileGeometry`] and reused for every field (the
@@ -35,10 +38,10 @@
 //! * weighted pooling s = κ Σ_X W̃ h: h̄ = κ W̃ b (κ = 4^{d}, or 4^{d2}/M_1 for S2 folded into g₂);
 //!   P: h̄ = 2 κ W̃ u b;
 //! * modulus with normalisation h = c|z|: z̄ = h̄ c z/|z| (0 where z = 0, a subgradient);
-//! * z = IDFT_m(ψ̂ · Y) / K: Ȳ = ψ̂ · DFT_m(z̄) / K, because (IDFT_m)^H = DFT_m for the
-//!   unnormalised pair and ψ̂ is real;
-//! * crop Y = B_{m→m'} F: F̄ += B^H Ȳ, the zero-padding of the box back into the m × m
-//!   spectrum (the zeroed Nyquist lines receive nothing);
+//! * z = IDFT_m(Y) / K: Ȳ = DFT_m(z̄) / K, because (IDFT_m)^H = DFT_m for the unnormalised
+//!   pair (ψ̂ is real, so it passes through the box step above unchanged);
+//! * box Y = B(ψ̂ · F), a gather of bins: F̄[s(p)] += ψ̂[s(p)] Ȳ[p] (a scatter-add back into
+//!   the m × m spectrum; zeroed Nyquist lines receive nothing);
 //! * F = DFT_m(I) of a real I: Ī = Re IDFT_m(F̄);
 //! * tapered mean removal I = a (h − Σ a h / Σ a): h̄ = a Ī − a (Σ a Ī) / Σ a;
 //! * order 0: ∂(Σ w f)/∂f = w, ∂(Σ w f²)/∂f = 2 w f.
