@@ -49,6 +49,7 @@ fn main() -> planisphere::Result<()> {
         shifted_boxes: false,
         crop_tolerance: 1e-6,
         first_layer_oversampling: 0,
+        modulus_oversampling: 1,
         ..Default::default()
     };
     let current = TransformSettings::default();

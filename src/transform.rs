@@ -187,10 +187,13 @@ pub struct TransformSettings {
     pub trusted_fraction: f64,
     /// Compute coarse scales on Fourier-cropped grids. Default true.
     pub fourier_cropping: bool,
-    /// Relative size of the filters allowed outside a cropped Fourier box. Default 1e-6.
+    /// Relative size of the filters allowed outside a cropped Fourier box. Default 2e-3
+    /// ([`DEFAULT_CROP_TOLERANCE`]).
     pub crop_tolerance: f64,
-    /// Number of extra factors of 2 by which the modulus |g| is sampled more finely than the
-    /// band of the filter requires (the modulus is not band-limited). Default 1.
+    /// Number of extra factors of 2 by which the pooled modulus |g| of every layer is sampled
+    /// more finely than the band of the filter requires (the modulus is not band-limited).
+    /// Default 0 (measured within the error budget with band-centred boxes; the
+    /// origin-centred rule used 1).
     pub modulus_oversampling: usize,
     /// Centre each cropped Fourier box on the wavelet's own central frequency (the box then
     /// needs to hold only the envelope's bandwidth; |g| is unchanged by the shift) instead of
@@ -198,7 +201,7 @@ pub struct TransformSettings {
     pub shifted_boxes: bool,
     /// Extra factors of 2 by which the first layer |I∗ψ_{j1,l1}| is sampled more finely than the
     /// second layer at the same scale: the first-layer modulus is filtered again at order 2, so
-    /// its sampling error reaches the second layer's band. Default 1.
+    /// its sampling error reaches the second layer's band. Default 2.
     pub first_layer_oversampling: usize,
 }
 
@@ -209,9 +212,9 @@ impl Default for TransformSettings {
             trusted_fraction: 0.5,
             fourier_cropping: true,
             crop_tolerance: DEFAULT_CROP_TOLERANCE,
-            modulus_oversampling: 1,
+            modulus_oversampling: 0,
             shifted_boxes: true,
-            first_layer_oversampling: 1,
+            first_layer_oversampling: 2,
         }
     }
 }
@@ -668,9 +671,9 @@ pub(crate) fn validate_settings(settings: &TransformSettings) -> Result<()> {
 /// cropping"), made non-decreasing in j; all zero without cropping. Origin-centred boxes: the
 /// largest d ≤ j (coarse grids of at least 8 pixels) whose central box holds ψ̂_{j,l} and
 /// FT|ψ_{j,l}|² to the crop tolerance, minus the modulus oversampling. Shifted boxes: the
-/// largest d whose box centred on the band holds ψ̂_{j,l}, minus the modulus oversampling, and
-/// lowered further until the central box holds FT|ψ_{j,l}|² (the band of |g|²). `extra`
-/// further levels finer: 0 for the second layer, `first_layer_oversampling` for the first.
+/// largest d whose box centred on the band holds ψ̂_{j,l}, minus the modulus oversampling,
+/// with grids of at least 64 pixels (32 on 64-pixel tiles). `extra` further levels finer: 0
+/// for the second layer, `first_layer_oversampling` for the first.
 pub(crate) fn crop_levels_for(
     bank: &MorletBank,
     settings: &TransformSettings,
@@ -710,13 +713,6 @@ pub(crate) fn crop_levels_for(
                 }
             }
             if settings.shifted_boxes {
-                while chosen > 0
-                    && !(0..big_l).all(|l| {
-                        within_box(n, bank.squared_modulus(j, l), n >> chosen, (0, 0), tol)
-                    })
-                {
-                    chosen -= 1;
-                }
                 chosen = chosen.min(finest_cap);
             }
         }

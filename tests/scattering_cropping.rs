@@ -203,7 +203,8 @@ fn cropping_stays_within_budget_with_three_orientations() {
 
 #[test]
 fn shifted_boxes_crop_more_scales_than_origin_centred_boxes() {
-    // J = 6 at 256²: boxes centred on the band put scales 3 and 4 one level coarser.
+    // J = 6 at 256²: boxes centred on the band put the second layer of scales 2..4 on coarser
+    // grids than the origin-centred rule (one level for both layers).
     let shifted = ScatteringEngine::new(256, 6, 4).unwrap();
     let centred = ScatteringEngine::with_settings(
         256,
@@ -211,6 +212,9 @@ fn shifted_boxes_crop_more_scales_than_origin_centred_boxes() {
         4,
         TransformSettings {
             shifted_boxes: false,
+            modulus_oversampling: 1,
+            first_layer_oversampling: 0,
+            crop_tolerance: 1e-6,
             ..Default::default()
         },
     )
