@@ -113,17 +113,17 @@
 //!   to `crop_tolerance` (default 2e-3) of its peak; b_j = j − 1 for σ_j = 0.8·2^j (what is left
 //!   outside is the tail of the β term near the box edge closest to the origin, between 5e-4
 //!   and 2e-3 of the peak for L = 3 to 8, hence the tolerance; at 1e-6 b_j = j − 2). The
-//!   modulus |g| is not band-limited (its spectrum has power-law tails from the zeros of g), so
-//!   it is sampled finer: the **second layer** of (j1 → j2) at d′_{j2} = b_{j2} −
-//!   `modulus_oversampling` (default 1) = j2 − 2, lowered if needed until FT|ψ|² (the band of
-//!   |g|²) fits the central box; the **first layer** at d_j = d′_j − `first_layer_oversampling`
-//!   (default 1) = j − 3, because U_{j1} is filtered again at order 2 and its sampling error
-//!   reaches the second layer's band (with d_j = d′_j order 2 at j1 = 3, 4 exceeded the budget).
-//!   Grids are kept at 64 pixels or more (32 on 64-pixel tiles): below that, pooling next to
-//!   sharp trust-mask edges exceeded the budget (1.6e-3 at 128² with holes on 32² grids).
-//!   Levels are non-decreasing in j. For n = 256, J = 6, L = 4: first layer 0,0,0,0,1,2, second
-//!   layer 0,0,0,1,2,2 (origin-centred boxes at tolerance 1e-6: 0,0,0,0,1,2 for both); n = 128,
-//!   J = 6: 0,0,0,0,1,1 and 0,0,0,1,1,1.
+//!   modulus |g| is not band-limited (its spectrum has power-law tails from the zeros of g).
+//!   The **second layer** of (j1 → j2), whose modulus is only pooled, is computed at
+//!   d′_{j2} = b_{j2} − `modulus_oversampling` (default 0) = j2 − 1: the sampling error of a
+//!   weighted mean is within the budget (below). The **first layer** at d_j = d′_j −
+//!   `first_layer_oversampling` (default 2) = j − 3, because U_{j1} is filtered again at order
+//!   2 and its sampling error reaches the second layer's band (with d_j = j − 2, order 2 at
+//!   j1 = 3, 4 exceeded the budget). Grids are kept at 64 pixels or more (32 on tiles under 128 pixels):
+//!   below that, pooling next to sharp trust-mask edges exceeded the budget (1.6e-3 at 128²
+//!   with holes on 32² grids). Levels are non-decreasing in j. For n = 256, J = 6, L = 4: first
+//!   layer 0,0,0,0,1,2, second layer 0,0,1,2,2,2 (origin-centred boxes at tolerance 1e-6:
+//!   0,0,0,0,1,2 for both); n = 128, J = 6: 0,0,0,0,1,1 and 0,0,1,1,1,1.
 //! * **Grids of the other quantities.** The second-layer input a·(U − μ_U) lives on the
 //!   first-layer grid of j1; its spectrum (real-to-complex) feeds the boxes of every j2 > j1.
 //!   The coverage normalisation c_j is sampled on both grids of j; the pooling weight of order 1
@@ -138,12 +138,12 @@
 //! in `tests/scattering_cropping.rs`: n = 128 and 256, J = 5 and 6, L = 4 and 3, white and red
 //! Gaussian fields (4 per case), periodic and with two holes and an 8-pixel C2 border. Budget:
 //! every coefficient within 1e-3 relative AND within 0.1 of its single-sky scatter (standard
-//! deviation over the 4 fields). Measured worst: relative 3.6e-4 (order 2, 128², L = 3, red,
-//! holes; on coefficients flagged untrusted 2.3e-4), 3.7e-2 of the scatter (order 2, 128²,
-//! L = 4, white, holes); orders 0 and 1 are far smaller. For comparison, the earlier levels
-//! (origin-centred boxes, tolerance 1e-6, d_j = j − 3 for both layers) gave 2.3e-4; the shifted
-//! levels without the first-layer oversampling 1.2e-3, and with 32² grids 1.6e-3 on untrusted
-//! coefficients. Against the numpy reference of `tests/scattering_reference.rs` (periodic,
+//! deviation over the 4 fields). Measured worst: relative 7.2e-4 (order 2, 256², L = 3, red,
+//! holes; on coefficients flagged untrusted 2.3e-4), 4.1e-2 of the scatter (order 2, 128²,
+//! L = 4, red, holes); orders 0 and 1 are far smaller. For comparison: the earlier levels
+//! (origin-centred boxes, tolerance 1e-6, d_j = j − 3 for both layers) 2.3e-4; the second layer
+//! one level finer (`modulus_oversampling` 1) 3.6e-4 and 3.7e-2 of the scatter; the first layer
+//! at j − 2 1.2e-3; 32² grids 1.6e-3 on untrusted coefficients. Against the numpy reference of `tests/scattering_reference.rs` (periodic,
 //! smaller tiles than the budget covers): 3.2e-4 at 64², J = 5, L = 4 and 7.4e-4 at 32², J = 4,
 //! L = 6 (limit 1e-3 there).
 //!
@@ -155,7 +155,7 @@
 //! FFT of a² and J complex-to-real inverses at full size (coverage), and per pooling weight on a
 //! coarse level one real FFT at full size and one complex-to-real inverse at the coarse size.
 //! The exact list is [`ScatteringEngine::fft_census`]. For n = 256, J = 5, L = 4 the census
-//! drops from 141 to 94 full-size complex FFT equivalents (m² log m, half for real-data
+//! drops from 141 to CENSUS_EQ full-size complex FFT equivalents (m² log m, half for real-data
 //! transforms); measured per-tile times are in `examples/per_scale_timing.rs` and DEVELOPERS.md.
 //! Memory is a few n² arrays plus the pooling weights, independent of the number of tiles.
 
@@ -672,7 +672,7 @@ pub(crate) fn validate_settings(settings: &TransformSettings) -> Result<()> {
 /// largest d ≤ j (coarse grids of at least 8 pixels) whose central box holds ψ̂_{j,l} and
 /// FT|ψ_{j,l}|² to the crop tolerance, minus the modulus oversampling. Shifted boxes: the
 /// largest d whose box centred on the band holds ψ̂_{j,l}, minus the modulus oversampling,
-/// with grids of at least 64 pixels (32 on 64-pixel tiles). `extra` further levels finer: 0
+/// with grids of at least 64 pixels (32 on tiles under 128 pixels). `extra` further levels finer: 0
 /// for the second layer, `first_layer_oversampling` for the first.
 pub(crate) fn crop_levels_for(
     bank: &MorletBank,
@@ -681,10 +681,16 @@ pub(crate) fn crop_levels_for(
 ) -> Vec<usize> {
     let n = bank.size();
     let scale_count = bank.scale_count();
-    let max_level = n.trailing_zeros() as usize - 3; // coarse grids of at least 8 pixels
-                                                     // Computed grids of at least 64 pixels (32 on 64-pixel tiles): pooling next to sharp
-                                                     // trust-mask edges on fewer samples exceeds the error budget (module documentation).
-    let finest_cap = (n.trailing_zeros() as usize).saturating_sub(6).max(1);
+    // Coarse grids of at least 8 pixels.
+    let max_level = n.trailing_zeros() as usize - 3;
+    // With shifted boxes, computed grids of at least 64 pixels (32 on tiles under 128 pixels):
+    // pooling next to sharp trust-mask edges on fewer samples exceeds the error budget (module
+    // documentation).
+    let finest_cap = if n >= 128 {
+        n.trailing_zeros() as usize - 6
+    } else {
+        (n.trailing_zeros() as usize).saturating_sub(5)
+    };
     let centres = band_centres(bank);
     let big_l = bank.orientation_count();
     let tol = settings.crop_tolerance;
