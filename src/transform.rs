@@ -119,11 +119,11 @@
 //!   weighted mean is within the budget (below). The **first layer** at d_j = d′_j −
 //!   `first_layer_oversampling` (default 2) = j − 3, because U_{j1} is filtered again at order
 //!   2 and its sampling error reaches the second layer's band (with d_j = j − 2, order 2 at
-//!   j1 = 3, 4 exceeded the budget). Grids are kept at 64 pixels or more (32 on tiles under 128 pixels):
-//!   below that, pooling next to sharp trust-mask edges exceeded the budget (1.6e-3 at 128²
-//!   with holes on 32² grids). Levels are non-decreasing in j. For n = 256, J = 6, L = 4: first
-//!   layer 0,0,0,0,1,2, second layer 0,0,1,2,2,2 (origin-centred boxes at tolerance 1e-6:
-//!   0,0,0,0,1,2 for both); n = 128, J = 6: 0,0,0,0,1,1 and 0,0,1,1,1,1.
+//!   j1 = 3, 4 exceeded the budget). Grids are kept at 64 pixels or more (32 on tiles under
+//!   128 pixels): below that, pooling next to sharp trust-mask edges exceeded the budget
+//!   (1.6e-3 at 128² with holes on 32² grids). Levels are non-decreasing in j. For n = 256,
+//!   J = 6, L = 4: first layer 0,0,0,0,1,2, second layer 0,0,1,2,2,2 (origin-centred boxes at
+//!   tolerance 1e-6: 0,0,0,0,1,2 for both); n = 128, J = 6: 0,0,0,0,1,1 and 0,0,1,1,1,1.
 //! * **Grids of the other quantities.** The second-layer input a·(U − μ_U) lives on the
 //!   first-layer grid of j1; its spectrum (real-to-complex) feeds the boxes of every j2 > j1.
 //!   The coverage normalisation c_j is sampled on both grids of j; the pooling weight of order 1
@@ -143,9 +143,9 @@
 //! L = 4, red, holes); orders 0 and 1 are far smaller. For comparison: the earlier levels
 //! (origin-centred boxes, tolerance 1e-6, d_j = j − 3 for both layers) 2.3e-4; the second layer
 //! one level finer (`modulus_oversampling` 1) 3.6e-4 and 3.7e-2 of the scatter; the first layer
-//! at j − 2 1.2e-3; 32² grids 1.6e-3 on untrusted coefficients. Against the numpy reference of `tests/scattering_reference.rs` (periodic,
-//! smaller tiles than the budget covers): 3.2e-4 at 64², J = 5, L = 4 and 7.4e-4 at 32², J = 4,
-//! L = 6 (limit 1e-3 there).
+//! at j − 2 1.2e-3; 32² grids 1.6e-3 on untrusted coefficients. Against the numpy reference
+//! of `tests/scattering_reference.rs` (periodic, smaller tiles than the budget covers, limit
+//! 1e-3 there): 5.8e-4 at 64², J = 5, L = 4 (three scales cropped); 32² tiles are not cropped.
 //!
 //! # Work and memory
 //!
@@ -672,8 +672,8 @@ pub(crate) fn validate_settings(settings: &TransformSettings) -> Result<()> {
 /// largest d ≤ j (coarse grids of at least 8 pixels) whose central box holds ψ̂_{j,l} and
 /// FT|ψ_{j,l}|² to the crop tolerance, minus the modulus oversampling. Shifted boxes: the
 /// largest d whose box centred on the band holds ψ̂_{j,l}, minus the modulus oversampling,
-/// with grids of at least 64 pixels (32 on tiles under 128 pixels). `extra` further levels finer: 0
-/// for the second layer, `first_layer_oversampling` for the first.
+/// with grids of at least 64 pixels (32 on tiles under 128 pixels). `extra` further levels
+/// finer: 0 for the second layer, `first_layer_oversampling` for the first.
 pub(crate) fn crop_levels_for(
     bank: &MorletBank,
     settings: &TransformSettings,
@@ -683,9 +683,9 @@ pub(crate) fn crop_levels_for(
     let scale_count = bank.scale_count();
     // Coarse grids of at least 8 pixels.
     let max_level = n.trailing_zeros() as usize - 3;
-    // With shifted boxes, computed grids of at least 64 pixels (32 on tiles under 128 pixels):
-    // pooling next to sharp trust-mask edges on fewer samples exceeds the error budget (module
-    // documentation).
+    // With shifted boxes, computed grids of at least 64 pixels (32 on tiles under 128
+    // pixels): pooling next to sharp trust-mask edges on fewer samples exceeds the error
+    // budget (module documentation).
     let finest_cap = if n >= 128 {
         n.trailing_zeros() as usize - 6
     } else {
