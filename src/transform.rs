@@ -103,7 +103,7 @@
 //!
 //! * **Boxes centred on the band** (`shifted_boxes`, default). A Morlet ψ̂_{j,l} is a Gaussian
 //!   bump at ξ_{j,l} ≠ 0 (plus the small zero-mean term −β ĝ at the origin), and
-//!   |g(x)| = |g(x) e^{−iq₀·x}|: the box is the m × m block of bins q₀ + p, p ∈ [−m/2, m/2)²,
+//!   |g(x)| = |g(x) e^{−iq₀·x}|: the box is the block of bins q₀ + p, p ∈ (−m/2, m/2)²,
 //!   around the bin q₀ where |ψ̂_{j,l}| peaks, and the inverse DFT of size m gives the field
 //!   demodulated by q₀, whose modulus is |g| at the coarse pixels. The box then needs only the
 //!   envelope's bandwidth, not |ξ| plus the bandwidth. Two fields filtered by the same wavelet
@@ -466,7 +466,8 @@ pub(crate) fn band_centres(bank: &MorletBank) -> Vec<(i64, i64)> {
 ///
 /// * No centre: the central box (the crop [`crop_box`]; its Nyquist row and column are zero
 ///   when m < m_src), or the whole spectrum when m = m_src.
-/// * Centre q₀ (in bins of the n-grid): the bins q₀ + p, p ∈ [−m/2, m/2)², taken modulo m_src.
+/// * Centre q₀ (in bins of the n-grid): the bins q₀ + p, p ∈ (−m/2, m/2)², taken modulo m_src
+///   (the output line p = −m/2 is zero).
 ///   Output bin p holds the input at frequency q₀ + p, so the inverse DFT of size m gives
 ///   g(2^d X)·exp(−2πi q₀·2^d X / n): the band-pass field demodulated by its central
 ///   frequency, whose modulus is |g| at the coarse pixels (exact when ψ̂ vanishes outside the
@@ -485,11 +486,13 @@ pub(crate) struct BandBox {
 
 impl BandBox {
     pub(crate) fn new(m_src: usize, m: usize, centre: Option<(i64, i64)>) -> Self {
+        // The line p = −m/2 is left out (zero), so that the box is symmetric about q₀ and
+        // rotations of the grid by quarter turns map boxes onto boxes.
         let axis = |c: i64| -> Vec<Option<usize>> {
             (0..m)
                 .map(|i| {
                     let p = signed_frequency(i, m);
-                    Some((c + p).rem_euclid(m_src as i64) as usize)
+                    (i != m / 2).then(|| (c + p).rem_euclid(m_src as i64) as usize)
                 })
                 .collect()
         };
@@ -728,8 +731,8 @@ pub(crate) fn crop_levels_for(
     levels
 }
 
-/// True when the n × n Fourier array is below `tol` of its peak outside the m × m box of bins
-/// q₀ + p, p ∈ [−m/2, m/2)² (distances taken modulo n).
+/// True when the n × n Fourier array is below `tol` of its peak outside the box of bins
+/// q₀ + p, p ∈ (−m/2, m/2)² (distances taken modulo n).
 fn within_box(n: usize, arr: &[f64], m: usize, centre: (i64, i64), tol: f64) -> bool {
     let peak = arr.iter().fold(0.0f64, |p, v| p.max(v.abs()));
     let half = (m / 2) as i64;
@@ -738,7 +741,7 @@ fn within_box(n: usize, arr: &[f64], m: usize, centre: (i64, i64), tol: f64) -> 
     (0..n * n).all(|i| {
         let dx = offset(signed_frequency(i % n, n), centre.0);
         let dy = offset(signed_frequency(i / n, n), centre.1);
-        let inside = (-half..half).contains(&dx) && (-half..half).contains(&dy);
+        let inside = dx.abs() < half && dy.abs() < half;
         inside || arr[i].abs() <= tol * peak
     })
 }
