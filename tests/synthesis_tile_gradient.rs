@@ -319,8 +319,9 @@ fn tile_gradient_rejects_mismatched_inputs() {
 }
 
 /// With the default settings the flat synthesis of a 64², J = 5 field (crop levels
-/// [0, 0, 1, 1, 1], first layer [0, 0, 0, 0, 1]) computes what the measuring engine with its default settings reports for
-/// the periodic map (reference: ScatteringEngine through flat::periodic_coefficients).
+/// [0, 0, 1, 1, 1], first layer at full resolution) computes what the measuring engine with
+/// its default settings reports for the periodic map (reference: ScatteringEngine through
+/// flat::periodic_coefficients).
 #[test]
 fn cropped_synthesis_coefficients_equal_default_engine_measurement() {
     let (n, big_j) = (64usize, 5usize);
@@ -329,7 +330,7 @@ fn cropped_synthesis_coefficients_equal_default_engine_measurement() {
     let field = lognormal(n, 41);
     let engine = ScatteringEngine::new(n, big_j, 4).unwrap();
     assert_eq!(engine.crop_levels(), &[0, 0, 1, 1, 1]);
-    assert_eq!(engine.first_layer_levels(), &[0, 0, 0, 0, 1]);
+    assert_eq!(engine.first_layer_levels(), &[0, 0, 0, 0, 0]);
     let reference =
         periodic_coefficients(&engine, &FlatMap::new(n, 0.01, field.clone()).unwrap()).unwrap();
     let ours = s.coefficients(&field).unwrap();
