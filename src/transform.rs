@@ -139,7 +139,7 @@
 //! Gaussian fields (4 per case), periodic and with two holes and an 8-pixel C2 border. Budget:
 //! every coefficient within 1e-3 relative AND within 0.1 of its single-sky scatter (standard
 //! deviation over the 4 fields). Measured worst: relative 7.2e-4 (order 2, 256², L = 3, red,
-//! holes; on coefficients flagged untrusted 2.3e-4), 4.1e-2 of the scatter (order 2, 128²,
+//! holes; on coefficients flagged untrusted 2.3e-4), 4.0e-2 of the scatter (order 2, 128²,
 //! L = 4, red, holes); orders 0 and 1 are far smaller. For comparison: the earlier levels
 //! (origin-centred boxes, tolerance 1e-6, d_j = j − 3 for both layers) 2.3e-4; the second layer
 //! one level finer (`modulus_oversampling` 1) 3.6e-4 and 3.7e-2 of the scatter; the first layer
@@ -155,7 +155,7 @@
 //! FFT of a² and J complex-to-real inverses at full size (coverage), and per pooling weight on a
 //! coarse level one real FFT at full size and one complex-to-real inverse at the coarse size.
 //! The exact list is [`ScatteringEngine::fft_census`]. For n = 256, J = 5, L = 4 the census
-//! drops from 141 to CENSUS_EQ full-size complex FFT equivalents (m² log m, half for real-data
+//! drops from 141 to 62 full-size complex FFT equivalents (m² log m, half for real-data
 //! transforms); measured per-tile times are in `examples/per_scale_timing.rs` and DEVELOPERS.md.
 //! Memory is a few n² arrays plus the pooling weights, independent of the number of tiles.
 
