@@ -568,6 +568,7 @@ impl BandBox {
 /// it).
 pub(crate) type Boxes = (Vec<BandBox>, Vec<Vec<Option<BandBox>>>);
 
+/// Build the [`Boxes`] of a bank for its first-layer and second-layer levels.
 pub(crate) fn band_boxes(
     bank: &MorletBank,
     first_levels: &[usize],
