@@ -31,8 +31,8 @@
 //!    distribution of U (and thus ⟨U⟩, ⟨U²⟩) match the unmasked one. K_j is averaged over
 //!    orientations: exact for L = 4 (isotropic envelope up to the small β term), an
 //!    approximation at edges for elongated envelopes (L > 4), where pooling is restricted
-//!    anyway (step 3). N_j is obtained by one FFT of a² and, per scale, one inverse FFT at full
-//!    resolution.
+//!    anyway (step 3). N_j is obtained by one real FFT of a² and, per scale, one
+//!    complex-to-real inverse FFT at full resolution.
 //! 3. **Trust cut.** Pixel x enters the pooling of scale j only where N_j(x) ≥ τ (setting
 //!    `coverage_threshold`, default 0.9), i.e. where at least 90% of the wavelet's squared
 //!    response falls on unit taper; there the first-order approximation of step 2 is accurate.
@@ -96,28 +96,68 @@
 //!
 //! # Fourier cropping (speed)
 //!
-//! Scale j is computed on a grid subsampled by 2^{d_j}: the spectrum is cropped to the central
-//! (n/2^{d_j})² box (its Nyquist row and column set to zero, keeping the box symmetric), the
-//! product with ψ̂ is inverse transformed at the small size, and the samples of g at every
-//! 2^{d_j}-th pixel are exact as long as ψ̂ vanishes outside the box. d_j is the largest level
-//! for which every ψ̂_{j,l} and every FT[|ψ_{j,l}|²] (the band of |g|²) stay below
-//! `crop_tolerance` (default 1e-6) of their peak outside the box; for σ_j = 0.8·2^j this gives
-//! d = j − 2. The modulus |g| is not band-limited, so it is sampled `modulus_oversampling`
-//! (default 1) levels finer than that: d_j = max(0, j − 3), i.e. for n = 128, J = 6 the grids
-//! are 128, 128, 128, 128, 64, 32. Pooling on the coarse grid uses the weight low-passed
-//! (Fourier-cropped) to the same box, which makes Σ_x W h = 4^{d} Σ_X W_lp h exact for
-//! band-limited h, so the only error left is the part of the spectrum of |g| outside the box.
-//! Measured against the full-resolution path (tests/scattering_cropping.rs, 128², J = 6,
-//! L = 4, white and red Gaussian fields, periodic and with holes): largest relative change of
-//! any coefficient 2.3e-4 (order 2; order 0–1 far smaller); without the oversampling level
-//! (d_j = j − 2) it reached 1.2e-3. Against the numpy reference at 64², J = 5: 6.1e-5.
+//! Each layer is computed on the grid its band needs. A grid of level d is the tile subsampled
+//! by 2^d (side m = n/2^d); the samples of a band-pass field g = I∗ψ_{j,l} at every 2^d-th pixel
+//! are obtained by one inverse DFT of size m of the m × m bins of the spectrum that hold ψ̂_{j,l},
+//! and are exact as long as ψ̂ vanishes outside those bins.
+//!
+//! * **Boxes centred on the band** (`shifted_boxes`, default). A Morlet ψ̂_{j,l} is a Gaussian
+//!   bump at ξ_{j,l} ≠ 0 (plus the small zero-mean term −β ĝ at the origin), and
+//!   |g(x)| = |g(x) e^{−iq₀·x}|: the box is the block of bins q₀ + p, p ∈ (−m/2, m/2)²,
+//!   around the bin q₀ where |ψ̂_{j,l}| peaks, and the inverse DFT of size m gives the field
+//!   demodulated by q₀, whose modulus is |g| at the coarse pixels. The box then needs only the
+//!   envelope's bandwidth, not |ξ| plus the bandwidth. Two fields filtered by the same wavelet
+//!   carry the same phase factor, so the cross products Re[g_A conj(g_B)] are unchanged too.
+//!   (`shifted_boxes: false`: boxes centred on the origin with zeroed Nyquist lines.)
+//! * **Levels.** The band level b_j is the largest level whose (centred) box holds every ψ̂_{j,l}
+//!   to `crop_tolerance` (default 2e-3) of its peak; b_j = j − 1 for σ_j = 0.8·2^j (what is left
+//!   outside is the tail of the β term near the box edge closest to the origin, between 5e-4
+//!   and 2e-3 of the peak for L = 3 to 8, hence the tolerance; at 1e-6 b_j = j − 2). The
+//!   modulus |g| is not band-limited (its spectrum has power-law tails from the zeros of g).
+//!   The **second layer** of (j1 → j2), whose modulus is only pooled, is computed at
+//!   d′_{j2} = b_{j2} − `modulus_oversampling` (default 0) = j2 − 1: the sampling error of a
+//!   weighted mean is within the budget (below). The **first layer** at d_j = d′_j −
+//!   `first_layer_oversampling` (default 2) = j − 3, because U_{j1} is filtered again at order
+//!   2 and its sampling error reaches the second layer's band (with d_j = j − 2, order 2 at
+//!   j1 = 3, 4 exceeded the budget). Grids are kept at 64 pixels or more (32 on tiles under
+//!   128 pixels): below that, pooling next to sharp trust-mask edges exceeded the budget
+//!   (1.6e-3 at 128² with holes on 32² grids). Levels are non-decreasing in j. For n = 256,
+//!   J = 6, L = 4: first layer 0,0,0,0,1,2, second layer 0,0,1,2,2,2 (origin-centred boxes at
+//!   tolerance 1e-6: 0,0,0,0,1,2 for both); n = 128, J = 6: 0,0,0,0,1,1 and 0,0,1,1,1,1.
+//! * **Grids of the other quantities.** The second-layer input a·(U − μ_U) lives on the
+//!   first-layer grid of j1; its spectrum (real-to-complex) feeds the boxes of every j2 > j1.
+//!   The coverage normalisation c_j is sampled on both grids of j; the pooling weight of order 1
+//!   is W_j low-passed to the first-layer level, that of order 2 is W_{j1,j2} low-passed to the
+//!   second-layer level of j2 (Σ_x W h = 4^d Σ_X W_lp h, exact for h band-limited to the box).
+//!   The coverage inverses and the weight low-passes are complex-to-real transforms of
+//!   Hermitian spectra.
+//!
+//! # Error budget
+//!
+//! Measured against the full-resolution path of the same estimator (`fourier_cropping: false`)
+//! in `tests/scattering_cropping.rs`: n = 128 and 256, J = 5 and 6, L = 4 and 3, white and red
+//! Gaussian fields (4 per case), periodic and with two holes and an 8-pixel C2 border. Budget:
+//! every coefficient within 1e-3 relative AND within 0.1 of its single-sky scatter (standard
+//! deviation over the 4 fields). Measured worst: relative 7.2e-4 (order 2, 256², L = 3, red,
+//! holes; on coefficients flagged untrusted 2.3e-4), 4.0e-2 of the scatter (order 2, 128²,
+//! L = 4, red, holes); orders 0 and 1 are far smaller. For comparison: the earlier levels
+//! (origin-centred boxes, tolerance 1e-6, d_j = j − 3 for both layers) 2.3e-4; the second layer
+//! one level finer (`modulus_oversampling` 1) 3.6e-4 and 3.7e-2 of the scatter; the first layer
+//! at j − 2 1.2e-3; 32² grids 1.6e-3 on untrusted coefficients. Against the numpy reference
+//! of `tests/scattering_reference.rs` (periodic, smaller tiles than the budget covers, limit
+//! 1e-3 there): 5.8e-4 at 64², J = 5, L = 4 (three scales cropped); 32² tiles are not cropped.
 //!
 //! # Work and memory
 //!
-//! Per tile: 2 real FFTs plus J inverse FFTs at full size for the coverage, one low-pass per
-//! pooling weight (J + J(J−1)/2), J·L inverse FFTs for order 1, and for order 2 one real FFT
-//! per (j1, l1) and one inverse FFT per (j1, l1, j2, l2) at the cropped size of j2. Memory is a
-//! few n² arrays plus the pooling weights, independent of the number of tiles.
+//! Per tile and field: one real FFT of the input at full size; J·L inverse FFTs for order 1
+//! (at the first-layer sizes); for order 2 one real FFT per (j1, l1) at the first-layer size of
+//! j1 and one inverse FFT per (j1, l1, j2, l2) at the second-layer size of j2. Shared: one real
+//! FFT of a² and J complex-to-real inverses at full size (coverage), and per pooling weight on a
+//! coarse level one real FFT at full size and one complex-to-real inverse at the coarse size.
+//! The exact list is [`ScatteringEngine::fft_census`]. For n = 256, J = 5, L = 4 the census
+//! drops from 141 to 62 full-size complex FFT equivalents (m² log m, half for real-data
+//! transforms); measured per-tile times are in `examples/per_scale_timing.rs` and DEVELOPERS.md.
+//! Memory is a few n² arrays plus the pooling weights, independent of the number of tiles.
 
 use crate::filters::MorletBank;
 use crate::pooling::{PairTileSums, TileSums};
@@ -125,7 +165,7 @@ use crate::statistics::{CoefficientLabel, CrossLabel};
 use crate::{Error, Result};
 use num_complex::Complex64;
 use rayon::prelude::*;
-use realfft::{RealFftPlanner, RealToComplex};
+use realfft::{ComplexToReal, RealFftPlanner, RealToComplex};
 use rustfft::{Fft, FftPlanner};
 use std::sync::Arc;
 use std::time::{Duration, Instant};
@@ -133,6 +173,9 @@ use std::time::{Duration, Instant};
 /// Floor applied to the coverage N before dividing by √N (only matters far outside the trusted
 /// region, where the pooling weight is zero).
 pub(crate) const COVERAGE_FLOOR: f64 = 0.01;
+
+/// Default `crop_tolerance` (module documentation, "Fourier cropping").
+pub const DEFAULT_CROP_TOLERANCE: f64 = 2e-3;
 
 /// Choices of the estimator; see the module documentation for their meaning.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -144,11 +187,22 @@ pub struct TransformSettings {
     pub trusted_fraction: f64,
     /// Compute coarse scales on Fourier-cropped grids. Default true.
     pub fourier_cropping: bool,
-    /// Relative size of the filters allowed outside a cropped Fourier box. Default 1e-6.
+    /// Relative size of the filters allowed outside a cropped Fourier box. Default 2e-3
+    /// ([`DEFAULT_CROP_TOLERANCE`]).
     pub crop_tolerance: f64,
-    /// Number of extra factors of 2 by which the modulus |g| is sampled more finely than the
-    /// band of the filter requires (the modulus is not band-limited). Default 1.
+    /// Number of extra factors of 2 by which the pooled modulus |g| of every layer is sampled
+    /// more finely than the band of the filter requires (the modulus is not band-limited).
+    /// Default 0 (measured within the error budget with band-centred boxes; the
+    /// origin-centred rule used 1).
     pub modulus_oversampling: usize,
+    /// Centre each cropped Fourier box on the wavelet's own central frequency (the box then
+    /// needs to hold only the envelope's bandwidth; |g| is unchanged by the shift) instead of
+    /// on the origin. Default true; false gives the origin-centred boxes.
+    pub shifted_boxes: bool,
+    /// Extra factors of 2 by which the first layer |I∗ψ_{j1,l1}| is sampled more finely than the
+    /// second layer at the same scale: the first-layer modulus is filtered again at order 2, so
+    /// its sampling error reaches the second layer's band. Default 2.
+    pub first_layer_oversampling: usize,
 }
 
 impl Default for TransformSettings {
@@ -157,8 +211,10 @@ impl Default for TransformSettings {
             coverage_threshold: 0.9,
             trusted_fraction: 0.5,
             fourier_cropping: true,
-            crop_tolerance: 1e-6,
-            modulus_oversampling: 1,
+            crop_tolerance: DEFAULT_CROP_TOLERANCE,
+            modulus_oversampling: 0,
+            shifted_boxes: true,
+            first_layer_oversampling: 2,
         }
     }
 }
@@ -197,12 +253,74 @@ pub struct FftTiming {
     pub fft_count: usize,
 }
 
+/// One kind of 2-D transform and how many of it a tile call performs
+/// ([`ScatteringEngine::fft_census`]).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct FftCount {
+    /// Side m of the m × m transform.
+    pub size: usize,
+    /// A real-data transform (real-to-complex half spectrum forward, or complex-to-real
+    /// inverse); false for a complex-to-complex transform.
+    pub real_input: bool,
+    /// Inverse (frequency → pixels) rather than forward.
+    pub inverse: bool,
+    /// Number of such transforms.
+    pub count: usize,
+}
+
+/// Add one transform of a kind to a census kept in first-seen order.
+fn add_to_census(census: &mut Vec<FftCount>, size: usize, real_input: bool, inverse: bool) {
+    add_many_to_census(census, size, real_input, inverse, 1);
+}
+
+fn add_many_to_census(
+    census: &mut Vec<FftCount>,
+    size: usize,
+    real_input: bool,
+    inverse: bool,
+    count: usize,
+) {
+    if count == 0 {
+        return;
+    }
+    match census
+        .iter_mut()
+        .find(|c| c.size == size && c.real_input == real_input && c.inverse == inverse)
+    {
+        Some(c) => c.count += count,
+        None => census.push(FftCount {
+            size,
+            real_input,
+            inverse,
+            count,
+        }),
+    }
+}
+
+/// Census order: larger transforms first, then complex before real, forward before inverse.
+fn sort_census(census: &mut [FftCount]) {
+    census.sort_by(|a, b| {
+        b.size
+            .cmp(&a.size)
+            .then(a.real_input.cmp(&b.real_input))
+            .then(a.inverse.cmp(&b.inverse))
+    });
+}
+
 struct FftClock {
     on: bool,
     timing: FftTiming,
+    census: Vec<FftCount>,
 }
 
 impl FftClock {
+    fn new(on: bool) -> Self {
+        Self {
+            on,
+            timing: FftTiming::default(),
+            census: Vec::new(),
+        }
+    }
     fn start(&self) -> Option<Instant> {
         if self.on {
             Some(Instant::now())
@@ -210,9 +328,10 @@ impl FftClock {
             None
         }
     }
-    fn stop(&mut self, t: Option<Instant>) {
+    fn stop(&mut self, t: Option<Instant>, size: usize, real_input: bool, inverse: bool) {
         if let Some(t) = t {
             self.timing.fft_time += t.elapsed();
+            add_to_census(&mut self.census, size, real_input, inverse);
         }
         self.timing.fft_count += 1;
     }
@@ -223,6 +342,7 @@ struct LevelPlans {
     forward: Arc<dyn Fft<f64>>,
     inverse: Arc<dyn Fft<f64>>,
     real_forward: Arc<dyn RealToComplex<f64>>,
+    real_inverse: Arc<dyn ComplexToReal<f64>>,
 }
 
 /// Owns the filter bank, the FFT plans of every grid level and the crop levels; built once for
@@ -231,9 +351,16 @@ struct LevelPlans {
 pub struct ScatteringEngine {
     bank: MorletBank,
     settings: TransformSettings,
+    /// First-layer level of each scale.
     levels: Vec<usize>,
+    /// Second-layer (output) level of each scale, ≥ the first-layer level.
+    second_levels: Vec<usize>,
     plans: Vec<LevelPlans>,
-    cropped_wavelets: Vec<Vec<f64>>,
+    /// `level_wavelets[d][j·L + l]`: ψ̂_{j,l} cropped to the (n/2^d)² box (empty for d = 0,
+    /// which reads the bank, and for d > d_j).
+    level_wavelets: Vec<Vec<Vec<f64>>>,
+    /// First-layer boxes per (j, l) and second-layer boxes per (d_src, j, l) ([`band_boxes`]).
+    boxes: Boxes,
     coverage_kernels: Vec<Vec<f64>>,
     labels: Vec<CoefficientLabel>,
     cross_labels: Vec<CrossLabel>,
@@ -245,7 +372,8 @@ impl std::fmt::Debug for ScatteringEngine {
             .field("size", &self.bank.size())
             .field("scales", &self.bank.scale_count())
             .field("orientations", &self.bank.orientation_count())
-            .field("levels", &self.levels)
+            .field("first_layer_levels", &self.levels)
+            .field("levels", &self.second_levels)
             .field("settings", &self.settings)
             .finish()
     }
@@ -302,6 +430,173 @@ pub(crate) fn subsample(data: &[f64], m_from: usize, m_to: usize) -> Vec<f64> {
         }
     }
     out
+}
+
+/// Signed frequency index of array index i on an m-point grid (i for i < m/2, else i − m).
+fn signed_frequency(i: usize, m: usize) -> i64 {
+    if i < m / 2 {
+        i as i64
+    } else {
+        i as i64 - m as i64
+    }
+}
+
+/// Centre of each wavelet's band on the n × n DFT grid: the bin (q_x, q_y) where |ψ̂_{j,l}| peaks
+/// (first in row-major order on a tie), index j·L + l.
+pub(crate) fn band_centres(bank: &MorletBank) -> Vec<(i64, i64)> {
+    let n = bank.size();
+    let mut centres = Vec::new();
+    for j in 0..bank.scale_count() {
+        for l in 0..bank.orientation_count() {
+            let psi = bank.wavelet(j, l);
+            let mut best = 0;
+            for (i, v) in psi.iter().enumerate() {
+                if v.abs() > psi[best].abs() {
+                    best = i;
+                }
+            }
+            centres.push((signed_frequency(best % n, n), signed_frequency(best / n, n)));
+        }
+    }
+    centres
+}
+
+/// Which bins of an m_src × m_src spectrum make up the m × m spectrum of a coarser (or equal)
+/// grid, for one wavelet.
+///
+/// * No centre: the central box (the crop [`crop_box`]; its Nyquist row and column are zero
+///   when m < m_src), or the whole spectrum when m = m_src.
+/// * Centre q₀ (in bins of the n-grid): the bins q₀ + p, p ∈ (−m/2, m/2)², taken modulo m_src
+///   (the output line p = −m/2 is zero).
+///   Output bin p holds the input at frequency q₀ + p, so the inverse DFT of size m gives
+///   g(2^d X)·exp(−2πi q₀·2^d X / n): the band-pass field demodulated by its central
+///   frequency, whose modulus is |g| at the coarse pixels (exact when ψ̂ vanishes outside the
+///   box). Two fields filtered by the same wavelet carry the same phase factor, so products
+///   g_A·conj(g_B) are unchanged too.
+#[derive(Debug, Clone)]
+pub(crate) struct BandBox {
+    m_src: usize,
+    m: usize,
+    identity: bool,
+    /// Source row of each output row (None: zero row).
+    rows: Vec<Option<usize>>,
+    /// Source column of each output column (None: zero column).
+    cols: Vec<Option<usize>>,
+}
+
+impl BandBox {
+    pub(crate) fn new(m_src: usize, m: usize, centre: Option<(i64, i64)>) -> Self {
+        // The line p = −m/2 is left out (zero), so that the box is symmetric about q₀ and
+        // rotations of the grid by quarter turns map boxes onto boxes.
+        let axis = |c: i64| -> Vec<Option<usize>> {
+            (0..m)
+                .map(|i| {
+                    let p = signed_frequency(i, m);
+                    (i != m / 2).then(|| (c + p).rem_euclid(m_src as i64) as usize)
+                })
+                .collect()
+        };
+        match centre {
+            Some((cx, cy)) => Self {
+                m_src,
+                m,
+                identity: false,
+                rows: axis(cy),
+                cols: axis(cx),
+            },
+            None => {
+                let central: Vec<Option<usize>> = (0..m)
+                    .map(|i| (m == m_src || i != m / 2).then(|| fine_index(i, m, m_src)))
+                    .collect();
+                Self {
+                    m_src,
+                    m,
+                    identity: m == m_src,
+                    rows: central.clone(),
+                    cols: central,
+                }
+            }
+        }
+    }
+
+    /// out[p] = spec[s(p)] · ψ̂[s(p)] with s the source bin of output bin p (ψ̂ on the source grid).
+    pub(crate) fn gather(&self, spec: &[Complex64], psi: &[f64], out: &mut Vec<Complex64>) {
+        out.clear();
+        if self.identity {
+            out.extend(spec.iter().zip(psi).map(|(s, p)| s * p));
+            return;
+        }
+        let zero = Complex64::default();
+        for row in &self.rows {
+            match row {
+                None => out.extend(std::iter::repeat_n(zero, self.m)),
+                Some(sy) => {
+                    let base = sy * self.m_src;
+                    out.extend(self.cols.iter().map(|col| match col {
+                        None => zero,
+                        Some(sx) => spec[base + sx] * psi[base + sx],
+                    }));
+                }
+            }
+        }
+    }
+
+    /// Adjoint of [`Self::gather`] in its spectrum: target[s(p)] += ψ̂[s(p)] · ȳ[p].
+    pub(crate) fn scatter_add(&self, target: &mut [Complex64], psi: &[f64], adjoint: &[Complex64]) {
+        if self.identity {
+            for ((t, a), p) in target.iter_mut().zip(adjoint).zip(psi) {
+                *t += a * p;
+            }
+            return;
+        }
+        for (row, chunk) in self.rows.iter().zip(adjoint.chunks(self.m)) {
+            let Some(sy) = row else { continue };
+            let base = sy * self.m_src;
+            for (col, a) in self.cols.iter().zip(chunk) {
+                if let Some(sx) = col {
+                    target[base + sx] += a * psi[base + sx];
+                }
+            }
+        }
+    }
+}
+
+/// The boxes used by the transform, centred on the band (module documentation) when the
+/// settings ask for shifted boxes and the target level is above 0: per (j, l) (index j·L + l)
+/// the first layer's, from the n-grid to the first-layer level of j; and `[d_src][j·L + l]`
+/// the second layer's, from level d_src to the second-layer level of j (None for d_src above
+/// it).
+pub(crate) type Boxes = (Vec<BandBox>, Vec<Vec<Option<BandBox>>>);
+
+/// Build the [`Boxes`] of a bank for its first-layer and second-layer levels.
+pub(crate) fn band_boxes(
+    bank: &MorletBank,
+    first_levels: &[usize],
+    second_levels: &[usize],
+    settings: &TransformSettings,
+) -> Boxes {
+    let n = bank.size();
+    let big_l = bank.orientation_count();
+    let centres = band_centres(bank);
+    let shift = |d: usize, i: usize| (settings.shifted_boxes && d > 0).then_some(centres[i]);
+    let first = (0..first_levels.len() * big_l)
+        .map(|i| {
+            let d = first_levels[i / big_l];
+            BandBox::new(n, n >> d, shift(d, i))
+        })
+        .collect();
+    let top = second_levels.iter().copied().max().unwrap_or(0);
+    let second = (0..=top)
+        .map(|d_src| {
+            (0..second_levels.len() * big_l)
+                .map(|i| {
+                    let d = second_levels[i / big_l];
+                    (d_src <= d).then(|| BandBox::new(n >> d_src, n >> d, shift(d, i)))
+                })
+                .collect()
+        })
+        .collect();
+    (first, second)
 }
 
 /// Checks a tile's taper a ∈ [0, 1] and pooling weight w ≥ 0 (n × n, finite) and returns
@@ -377,28 +672,79 @@ pub(crate) fn validate_settings(settings: &TransformSettings) -> Result<()> {
 }
 
 /// Crop level d_j of every scale for a bank and settings (module documentation, "Fourier
-/// cropping"): the largest d ≤ j (coarse grids of at least 8 pixels) whose box holds ψ̂_{j,l}
-/// and FT|ψ_{j,l}|² to the crop tolerance, minus the modulus oversampling, made non-decreasing
-/// in j; all zero without cropping.
-pub(crate) fn crop_levels_for(bank: &MorletBank, settings: &TransformSettings) -> Vec<usize> {
+/// cropping"), made non-decreasing in j; all zero without cropping. Origin-centred boxes: the
+/// largest d ≤ j (coarse grids of at least 8 pixels) whose central box holds ψ̂_{j,l} and
+/// FT|ψ_{j,l}|² to the crop tolerance, minus the modulus oversampling. Shifted boxes: the
+/// largest d whose box centred on the band holds ψ̂_{j,l}, minus the modulus oversampling,
+/// with grids of at least 64 pixels (32 on tiles under 128 pixels). `extra` further levels
+/// finer: 0 for the second layer, `first_layer_oversampling` for the first.
+pub(crate) fn crop_levels_for(
+    bank: &MorletBank,
+    settings: &TransformSettings,
+    extra: usize,
+) -> Vec<usize> {
     let n = bank.size();
     let scale_count = bank.scale_count();
-    let max_level = n.trailing_zeros() as usize - 3; // coarse grids of at least 8 pixels
+    // Coarse grids of at least 8 pixels.
+    let max_level = n.trailing_zeros() as usize - 3;
+    // With shifted boxes, computed grids of at least 64 pixels (32 on tiles under 128
+    // pixels): pooling next to sharp trust-mask edges on fewer samples exceeds the error
+    // budget (module documentation).
+    let finest_cap = if n >= 128 {
+        n.trailing_zeros() as usize - 6
+    } else {
+        (n.trailing_zeros() as usize).saturating_sub(5)
+    };
+    let centres = band_centres(bank);
+    let big_l = bank.orientation_count();
+    let tol = settings.crop_tolerance;
     let mut levels = Vec::with_capacity(scale_count);
     for j in 0..scale_count {
         let mut chosen = 0;
         if settings.fourier_cropping {
             for d in (1..=j.min(max_level)).rev() {
-                if ScatteringEngine::fits_in_box(bank, j, n >> d, settings.crop_tolerance) {
-                    chosen = d.saturating_sub(settings.modulus_oversampling);
+                let m = n >> d;
+                let fits = if settings.shifted_boxes {
+                    (0..big_l).all(|l| {
+                        within_box(
+                            bank.size(),
+                            bank.wavelet(j, l),
+                            m,
+                            centres[j * big_l + l],
+                            tol,
+                        )
+                    })
+                } else {
+                    ScatteringEngine::fits_in_box(bank, j, m, tol)
+                };
+                if fits {
+                    chosen = d.saturating_sub(settings.modulus_oversampling + extra);
                     break;
                 }
+            }
+            if settings.shifted_boxes {
+                chosen = chosen.min(finest_cap);
             }
         }
         let previous = levels.last().copied().unwrap_or(0);
         levels.push(chosen.max(previous));
     }
     levels
+}
+
+/// True when the n × n Fourier array is below `tol` of its peak outside the box of bins
+/// q₀ + p, p ∈ (−m/2, m/2)² (distances taken modulo n).
+fn within_box(n: usize, arr: &[f64], m: usize, centre: (i64, i64), tol: f64) -> bool {
+    let peak = arr.iter().fold(0.0f64, |p, v| p.max(v.abs()));
+    let half = (m / 2) as i64;
+    let offset =
+        |q: i64, c: i64| -> i64 { (q - c + n as i64 / 2).rem_euclid(n as i64) - n as i64 / 2 };
+    (0..n * n).all(|i| {
+        let dx = offset(signed_frequency(i % n, n), centre.0);
+        let dy = offset(signed_frequency(i / n, n), centre.1);
+        let inside = dx.abs() < half && dy.abs() < half;
+        inside || arr[i].abs() <= tol * peak
+    })
 }
 
 impl ScatteringEngine {
@@ -423,10 +769,11 @@ impl ScatteringEngine {
         validate_settings(&settings)?;
         let bank = MorletBank::new(size, scale_count, orientation_count)?;
         let n = size;
-        let levels = crop_levels_for(&bank, &settings);
+        let levels = crop_levels_for(&bank, &settings, settings.first_layer_oversampling);
+        let second_levels = crop_levels_for(&bank, &settings, 0);
         let mut planner = FftPlanner::<f64>::new();
         let mut real_planner = RealFftPlanner::<f64>::new();
-        let top = levels.iter().copied().max().unwrap_or(0);
+        let top = second_levels.iter().copied().max().unwrap_or(0);
         let plans = (0..=top)
             .map(|d| {
                 let m = n >> d;
@@ -435,15 +782,32 @@ impl ScatteringEngine {
                     forward: planner.plan_fft_forward(m),
                     inverse: planner.plan_fft_inverse(m),
                     real_forward: real_planner.plan_fft_forward(m),
+                    real_inverse: real_planner.plan_fft_inverse(m),
                 }
             })
             .collect();
-        let mut cropped_wavelets = Vec::with_capacity(scale_count * orientation_count);
+        let level_wavelets = (0..=top)
+            .map(|d| {
+                (0..scale_count * orientation_count)
+                    .map(|i| {
+                        if d == 0 || d > second_levels[i / orientation_count] {
+                            Vec::new()
+                        } else {
+                            crop_box(
+                                bank.wavelet(i / orientation_count, i % orientation_count),
+                                n,
+                                n >> d,
+                            )
+                        }
+                    })
+                    .collect()
+            })
+            .collect();
+        let boxes = band_boxes(&bank, &levels, &second_levels, &settings);
         let mut coverage_kernels = Vec::with_capacity(scale_count);
-        for (j, &d) in levels.iter().enumerate() {
+        for j in 0..scale_count {
             let mut kernel = vec![0.0; n * n];
             for l in 0..orientation_count {
-                cropped_wavelets.push(crop_box(bank.wavelet(j, l), n, n >> d));
                 for (k, v) in kernel.iter_mut().zip(bank.squared_modulus(j, l)) {
                     *k += v;
                 }
@@ -458,8 +822,10 @@ impl ScatteringEngine {
             bank,
             settings,
             levels,
+            second_levels,
             plans,
-            cropped_wavelets,
+            level_wavelets,
+            boxes,
             coverage_kernels,
             labels,
             cross_labels,
@@ -517,8 +883,16 @@ impl ScatteringEngine {
         self.bank.orientation_count()
     }
 
-    /// Crop level d_j of each scale: scale j is computed on an (n / 2^{d_j})² grid.
+    /// Crop level d_j of each scale: the band-pass output of scale j (order 2 at j2 = j) is
+    /// computed on an (n / 2^{d_j})² grid.
     pub fn crop_levels(&self) -> &[usize] {
+        &self.second_levels
+    }
+
+    /// First-layer level of each scale: |I∗ψ_{j,l}| (order 1 and the input of order 2) is
+    /// computed on an (n / 2^{d})² grid, `first_layer_oversampling` levels finer than
+    /// [`Self::crop_levels`] where that exists.
+    pub fn first_layer_levels(&self) -> &[usize] {
         &self.levels
     }
 
@@ -537,7 +911,7 @@ impl ScatteringEngine {
         transpose_square(data, p.size);
         fft.process_with_scratch(data, &mut scratch);
         transpose_square(data, p.size);
-        clock.stop(t);
+        clock.stop(t, p.size, false, inverse);
     }
 
     /// Full m × m DFT of a real m × m array at level d, by real-to-complex row transforms,
@@ -576,7 +950,45 @@ impl ScatteringEngine {
                 };
             }
         }
-        clock.stop(t);
+        clock.stop(t, m, true, false);
+        out
+    }
+
+    /// Real m × m array whose DFT is the Hermitian m × m spectrum `spec` (unnormalised inverse,
+    /// i.e. Σ_q spec[q] e^{+2πi q·x/m}): complex inverse transforms of the m/2 + 1 non-negative
+    /// x-frequency columns, then complex-to-real row transforms (the imaginary parts of the
+    /// self-conjugate bins, zero for an exactly Hermitian input, are dropped).
+    fn real_inverse(&self, d: usize, spec: &[Complex64], clock: &mut FftClock) -> Vec<f64> {
+        let t = clock.start();
+        let p = &self.plans[d];
+        let m = p.size;
+        let h = m / 2 + 1;
+        let mut half = vec![Complex64::default(); h * m]; // column-major: [kx·m + ky]
+        for ky in 0..m {
+            for kx in 0..h {
+                half[kx * m + ky] = spec[ky * m + kx];
+            }
+        }
+        let mut cscratch = vec![Complex64::default(); p.inverse.get_inplace_scratch_len()];
+        p.inverse.process_with_scratch(&mut half, &mut cscratch);
+        let mut row_in = p.real_inverse.make_input_vec();
+        let mut scratch = p.real_inverse.make_scratch_vec();
+        let mut out = vec![0.0; m * m];
+        for (iy, row) in out.chunks_mut(m).enumerate() {
+            for (kx, v) in row_in.iter_mut().enumerate() {
+                *v = half[kx * m + iy];
+            }
+            row_in[0].im = 0.0;
+            row_in[h - 1].im = 0.0;
+            // Lengths are fixed by the plan and the self-conjugate bins are real.
+            if p.real_inverse
+                .process_with_scratch(&mut row_in, row, &mut scratch)
+                .is_err()
+            {
+                unreachable!("real inverse FFT buffers have the planned lengths");
+            }
+        }
+        clock.stop(t, m, true, true);
         out
     }
 
@@ -588,29 +1000,140 @@ impl ScatteringEngine {
         }
         let n = self.size();
         let spec = self.real_spectrum(0, data, clock);
-        let mut c = crop_box(&spec, n, n >> d);
-        self.fft2(d, &mut c, true, clock);
+        let c = crop_box(&spec, n, n >> d);
         let scale = 1.0 / (n * n) as f64;
-        c.iter().map(|z| z.re * scale).collect()
+        let mut out = self.real_inverse(d, &c, clock);
+        out.iter_mut().for_each(|v| *v *= scale);
+        out
+    }
+
+    /// ψ̂_{j,l} on the grid of level d (the bank's for d = 0).
+    fn wavelet_at(&self, d: usize, j: usize, l: usize) -> &[f64] {
+        if d == 0 {
+            self.bank.wavelet(j, l)
+        } else {
+            &self.level_wavelets[d][j * self.orientation_count() + l]
+        }
+    }
+
+    /// The second-layer box of (j, l) taken from a spectrum of level d_src.
+    fn band(&self, d_src: usize, j: usize, l: usize) -> &BandBox {
+        match &self.boxes.1[d_src][j * self.orientation_count() + l] {
+            Some(b) => b,
+            None => unreachable!("a box is built for every source level up to d_j"),
+        }
+    }
+
+    /// The 2-D transforms one call of [`Self::transform_tile`] (`pair = false`) or
+    /// [`Self::transform_tile_pair`] (`pair = true`) performs, grouped by size and kind, larger
+    /// sizes first. They depend on (n, J, L) and the settings only, not on the tile's values.
+    /// Per field: one real forward transform of the input at n; per scale j with crop level
+    /// d_j: L complex inverse transforms at n/2^{d_j} (order 1); per j1 < J − 1: L real forward
+    /// transforms at n/2^{d_{j1}} and, per j2 > j1, L² complex inverse transforms at
+    /// n/2^{d'_{j2}} (order 2), with d the first-layer and d' the second-layer levels. Shared: one real forward transform of a², J complex-to-real
+    /// inverses at n (coverage), and per pooling weight W_j, W_{j1,j2} on a coarse level d one
+    /// real forward at n and one complex-to-real inverse at n/2^d (d_j for W_j, d'_{j2} for
+    /// W_{j1,j2}). A pair adds per field and level 0 < d ≤ max d_j one complex-to-real inverse
+    /// at n/2^d (the low-passed inputs), and per field and scale j ≥ 1 with d'_j ≠ d_j, L
+    /// complex inverses at n/2^{d'_j} (the first layer on the second layer's grid, for X2).
+    pub fn fft_census(&self, pair: bool) -> Vec<FftCount> {
+        let n = self.size();
+        let big_j = self.scale_count();
+        let big_l = self.orientation_count();
+        let fields = if pair { 2 } else { 1 };
+        let size = |d: usize| n >> d;
+        let mut census = Vec::new();
+        add_many_to_census(&mut census, n, true, false, fields + 1);
+        add_many_to_census(&mut census, n, true, true, big_j);
+        let mut weight_levels: Vec<usize> = self.levels.clone();
+        for j1 in 0..big_j {
+            for j2 in (j1 + 1)..big_j {
+                weight_levels.push(self.second_levels[j2]);
+            }
+        }
+        for &d in weight_levels.iter().filter(|&&d| d > 0) {
+            add_to_census(&mut census, n, true, false);
+            add_to_census(&mut census, size(d), true, true);
+        }
+        for _ in 0..fields {
+            for j1 in 0..big_j {
+                add_many_to_census(&mut census, size(self.levels[j1]), false, true, big_l);
+            }
+        }
+        if pair {
+            let top = self.levels.iter().copied().max().unwrap_or(0);
+            for _ in 0..2 {
+                for d in 1..=top {
+                    add_to_census(&mut census, size(d), true, true);
+                }
+            }
+            for _ in 0..2 {
+                for j in 1..big_j {
+                    if self.second_levels[j] != self.levels[j] {
+                        add_many_to_census(
+                            &mut census,
+                            size(self.second_levels[j]),
+                            false,
+                            true,
+                            big_l,
+                        );
+                    }
+                }
+            }
+        }
+        for _ in 0..fields {
+            for j1 in 0..big_j.saturating_sub(1) {
+                add_many_to_census(&mut census, size(self.levels[j1]), true, false, big_l);
+                for j2 in (j1 + 1)..big_j {
+                    add_many_to_census(
+                        &mut census,
+                        size(self.second_levels[j2]),
+                        false,
+                        true,
+                        big_l * big_l,
+                    );
+                }
+            }
+        }
+        sort_census(&mut census);
+        census
     }
 
     /// Transform one tile; returns weighted sums and weights for every label (see module doc).
     pub fn transform_tile(&self, tile: &TileView<'_>) -> Result<TileSums> {
-        let mut clock = FftClock {
-            on: false,
-            timing: FftTiming::default(),
-        };
+        let mut clock = FftClock::new(false);
         self.run(tile, &mut clock)
     }
 
     /// As [`Self::transform_tile`], also timing the FFT calls (for profiling).
     pub fn transform_tile_timed(&self, tile: &TileView<'_>) -> Result<(TileSums, FftTiming)> {
-        let mut clock = FftClock {
-            on: true,
-            timing: FftTiming::default(),
-        };
+        let mut clock = FftClock::new(true);
         let sums = self.run(tile, &mut clock)?;
         Ok((sums, clock.timing))
+    }
+
+    /// As [`Self::transform_tile_timed`], also returning the transforms performed grouped as in
+    /// [`Self::fft_census`] (for profiling and for checking the census).
+    pub fn transform_tile_census(
+        &self,
+        tile: &TileView<'_>,
+    ) -> Result<(TileSums, FftTiming, Vec<FftCount>)> {
+        let mut clock = FftClock::new(true);
+        let sums = self.run(tile, &mut clock)?;
+        sort_census(&mut clock.census);
+        Ok((sums, clock.timing, clock.census))
+    }
+
+    /// As [`Self::transform_tile_pair`], also timing the FFT calls and returning the transforms
+    /// performed grouped as in [`Self::fft_census`].
+    pub fn transform_tile_pair_census(
+        &self,
+        tile: &TilePairView<'_>,
+    ) -> Result<(PairTileSums, FftTiming, Vec<FftCount>)> {
+        let mut clock = FftClock::new(true);
+        let sums = self.run_pair(tile, &mut clock)?;
+        sort_census(&mut clock.census);
+        Ok((sums, clock.timing, clock.census))
     }
 
     /// Transform many tiles in parallel (rayon); the output keeps the input order and each
@@ -633,16 +1156,13 @@ impl ScatteringEngine {
     /// the auto path are shared: the cross set costs no FFT beyond one low-pass of each
     /// field's input per crop level.
     pub fn transform_tile_pair(&self, tile: &TilePairView<'_>) -> Result<PairTileSums> {
-        let mut clock = FftClock {
-            on: false,
-            timing: FftTiming::default(),
-        };
-        let (mut autos, cross) = self.run_fields(
-            &[tile.first, tile.second],
-            tile.taper,
-            tile.weight,
-            &mut clock,
-        )?;
+        let mut clock = FftClock::new(false);
+        self.run_pair(tile, &mut clock)
+    }
+
+    fn run_pair(&self, tile: &TilePairView<'_>, clock: &mut FftClock) -> Result<PairTileSums> {
+        let (mut autos, cross) =
+            self.run_fields(&[tile.first, tile.second], tile.taper, tile.weight, clock)?;
         let second = autos.pop();
         let first = autos.pop();
         match (first, second, cross) {
@@ -706,21 +1226,30 @@ impl ScatteringEngine {
         let tau = self.settings.coverage_threshold;
         let mut trust: Vec<Vec<bool>> = Vec::with_capacity(big_j);
         let mut coverage_coarse: Vec<Vec<f64>> = Vec::with_capacity(big_j);
+        let mut coverage_second: Vec<Vec<f64>> = Vec::with_capacity(big_j);
         for j in 0..big_j {
-            let mut c: Vec<Complex64> = a2_spec
+            let c: Vec<Complex64> = a2_spec
                 .iter()
                 .zip(&self.coverage_kernels[j])
                 .map(|(s, k)| s * k)
                 .collect();
-            self.fft2(0, &mut c, true, clock);
-            let cov: Vec<f64> = c.iter().map(|z| z.re / nn as f64).collect();
+            let cov: Vec<f64> = self
+                .real_inverse(0, &c, clock)
+                .iter()
+                .map(|v| v / nn as f64)
+                .collect();
             trust.push(cov.iter().map(|&v| v >= tau).collect());
-            coverage_coarse.push(
-                subsample(&cov, n, n >> self.levels[j])
-                    .iter()
-                    .map(|c| 1.0 / c.max(COVERAGE_FLOOR).sqrt())
-                    .collect::<Vec<f64>>(),
-            );
+            for (target, level) in [
+                (&mut coverage_coarse, self.levels[j]),
+                (&mut coverage_second, self.second_levels[j]),
+            ] {
+                target.push(
+                    subsample(&cov, n, n >> level)
+                        .iter()
+                        .map(|c| 1.0 / c.max(COVERAGE_FLOOR).sqrt())
+                        .collect::<Vec<f64>>(),
+                );
+            }
         }
         let mut first_weights = Vec::with_capacity(big_j);
         let mut first_trusted = Vec::with_capacity(big_j);
@@ -748,7 +1277,7 @@ impl ScatteringEngine {
                             })
                             .collect();
                         let total = wp.iter().sum::<f64>();
-                        (self.low_pass(&wp, self.levels[j2], clock), total)
+                        (self.low_pass(&wp, self.second_levels[j2], clock), total)
                     })
                     .collect()
             })
@@ -777,10 +1306,13 @@ impl ScatteringEngine {
                 let d1 = self.levels[j1];
                 let m1 = n >> d1;
                 let factor1 = (1usize << (2 * d1)) as f64;
-                let spec1 = crop_box(&spectra[k], n, m1);
                 for l1 in 0..big_l {
-                    let psi = &self.cropped_wavelets[j1 * big_l + l1];
-                    let mut g: Vec<Complex64> = spec1.iter().zip(psi).map(|(s, p)| s * p).collect();
+                    let mut g: Vec<Complex64> = Vec::with_capacity(m1 * m1);
+                    self.boxes.0[j1 * big_l + l1].gather(
+                        &spectra[k],
+                        self.wavelet_at(0, j1, l1),
+                        &mut g,
+                    );
                     self.fft2(d1, &mut g, true, clock);
                     let inv_sqrt_cov = &coverage_coarse[j1];
                     let u: Vec<f64> = g
@@ -830,9 +1362,10 @@ impl ScatteringEngine {
                             if d == 0 {
                                 return inputs[k].clone();
                             }
-                            let mut c = crop_box(&spectra[k], n, n >> d);
-                            self.fft2(d, &mut c, true, clock);
-                            c.iter().map(|z| z.re * scale).collect()
+                            let c = crop_box(&spectra[k], n, n >> d);
+                            let mut out = self.real_inverse(d, &c, clock);
+                            out.iter_mut().for_each(|v| *v *= scale);
+                            out
                         })
                         .collect()
                 })
@@ -869,6 +1402,29 @@ impl ScatteringEngine {
             }
         }
 
+        // With two fields, X2 needs each field's g_{j,l} on the second-layer grid of j: the
+        // first-layer g where the two grids coincide, else one more inverse transform.
+        let mut second_grid_g: Vec<Vec<Option<Vec<Complex64>>>> = vec![Vec::new(); fields.len()];
+        if pair {
+            for (k, out) in second_grid_g.iter_mut().enumerate() {
+                for j in 0..big_j {
+                    for l in 0..big_l {
+                        let d = self.second_levels[j];
+                        out.push((j > 0 && d != self.levels[j]).then(|| {
+                            let mut g = Vec::with_capacity((n >> d) * (n >> d));
+                            self.band(0, j, l).gather(
+                                &spectra[k],
+                                self.wavelet_at(0, j, l),
+                                &mut g,
+                            );
+                            self.fft2(d, &mut g, true, clock);
+                            g
+                        }));
+                    }
+                }
+            }
+        }
+
         // Second order of every field; with two fields also X2 in both directions.
         let mut g2: Vec<Complex64> = Vec::with_capacity(nn);
         for k in 0..fields.len() {
@@ -891,21 +1447,19 @@ impl ScatteringEngine {
                         ad.iter().zip(u).map(|(a, u)| a * (u - mu_u)).collect();
                     let spec2 = self.real_spectrum(d1, &second_input, clock);
                     for (pair_index, j2) in ((j1 + 1)..big_j).enumerate() {
-                        let d2 = self.levels[j2];
+                        let d2 = self.second_levels[j2];
                         let m2 = n >> d2;
                         let factor2 = (1usize << (2 * d2)) as f64;
-                        let spec2c = if m2 == m1 {
-                            std::borrow::Cow::Borrowed(&spec2[..])
-                        } else {
-                            std::borrow::Cow::Owned(crop_box(&spec2, m1, m2))
-                        };
-                        let inv_sqrt_cov2 = &coverage_coarse[j2];
+                        debug_assert!(m2 <= m1);
+                        let inv_sqrt_cov2 = &coverage_second[j2];
                         let (wp, wtotal) = &pair_weights_j1[pair_index];
                         let scale2 = 1.0 / (m1 * m1) as f64;
                         for l2 in 0..big_l {
-                            let psi2 = &self.cropped_wavelets[j2 * big_l + l2];
-                            g2.clear();
-                            g2.extend(spec2c.iter().zip(psi2).map(|(s, p)| s * p));
+                            self.band(d1, j2, l2).gather(
+                                &spec2,
+                                self.wavelet_at(d1, j2, l2),
+                                &mut g2,
+                            );
                             self.fft2(d2, &mut g2, true, clock);
                             let mut s2 = 0.0;
                             for ((z, &c), wv) in g2.iter().zip(inv_sqrt_cov2).zip(wp) {
@@ -916,7 +1470,11 @@ impl ScatteringEngine {
                             s2_index += 1;
                             if pair {
                                 // the other field filtered at (j2, l2), on the same grid
-                                let other = &layer_g[1 - k][j2 * big_l + l2];
+                                let at = j2 * big_l + l2;
+                                let other = match &second_grid_g[1 - k][at] {
+                                    Some(g) => g,
+                                    None => &layer_g[1 - k][at],
+                                };
                                 let mut x = 0.0;
                                 for (((z, o), &c), wv) in
                                     g2.iter().zip(other).zip(inv_sqrt_cov2).zip(wp)

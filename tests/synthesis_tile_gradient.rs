@@ -109,12 +109,19 @@ fn compare_with_engine(n: usize, big_j: usize, settings: TransformSettings, peri
         engine.crop_levels(),
         "crop levels"
     );
+    assert_eq!(
+        ours.geometry().first_layer_levels(),
+        engine.first_layer_levels(),
+        "first-layer levels"
+    );
     let sums = worst_relative(&ours.sums.sums, &reference.sums);
     let weights = worst_relative(&ours.sums.weights, &reference.weights);
     println!(
-        "n = {n}, J = {big_j}, cropping {}, levels {:?}, periodic {periodic}: sums {sums:.1e}, weights {weights:.1e}",
+        "n = {n}, J = {big_j}, cropping {}, shifted boxes {}, levels {:?} / {:?}, periodic {periodic}: sums {sums:.1e}, weights {weights:.1e}",
         settings.fourier_cropping,
-        engine.crop_levels()
+        settings.shifted_boxes,
+        engine.crop_levels(),
+        engine.first_layer_levels()
     );
     assert!(sums <= 1e-12, "sums differ by {sums}");
     assert!(weights <= 1e-12, "weights differ by {weights}");
@@ -145,6 +152,16 @@ fn masked_tile_sums_match_cropping_engine_to_1e_12() {
     compare_with_engine(64, 5, TransformSettings::default(), false);
     compare_with_engine(128, 6, TransformSettings::default(), false);
     compare_with_engine(128, 6, TransformSettings::default(), true);
+    compare_with_engine(256, 6, TransformSettings::default(), false);
+    // Origin-centred boxes, one level for both layers (the earlier crop rule).
+    let centred = TransformSettings {
+        shifted_boxes: false,
+        first_layer_oversampling: 0,
+        modulus_oversampling: 1,
+        crop_tolerance: 1e-6,
+        ..TransformSettings::default()
+    };
+    compare_with_engine(128, 6, centred, false);
 }
 
 /// ∂(Σ b_i sums_i)/∂f along a random direction against central differences, for weights b
@@ -232,6 +249,14 @@ fn masked_tile_gradient_matches_central_differences_without_cropping() {
 fn masked_tile_gradient_matches_central_differences_with_cropping() {
     check_gradient(64, 5, TransformSettings::default(), 23);
     check_gradient(128, 6, TransformSettings::default(), 24);
+    let centred = TransformSettings {
+        shifted_boxes: false,
+        first_layer_oversampling: 0,
+        modulus_oversampling: 1,
+        crop_tolerance: 1e-6,
+        ..TransformSettings::default()
+    };
+    check_gradient(64, 5, centred, 25);
 }
 
 /// With a ≡ 1, w ≡ 1 and no cropping the pooled tile values are the periodic coefficients and
@@ -294,8 +319,9 @@ fn tile_gradient_rejects_mismatched_inputs() {
 }
 
 /// With the default settings the flat synthesis of a 64², J = 5 field (crop levels
-/// [0, 0, 0, 0, 1]) computes what the measuring engine with its default settings reports for
-/// the periodic map (reference: ScatteringEngine through flat::periodic_coefficients).
+/// [0, 0, 1, 1, 1], first layer at full resolution) computes what the measuring engine with
+/// its default settings reports for the periodic map (reference: ScatteringEngine through
+/// flat::periodic_coefficients).
 #[test]
 fn cropped_synthesis_coefficients_equal_default_engine_measurement() {
     let (n, big_j) = (64usize, 5usize);
@@ -303,7 +329,8 @@ fn cropped_synthesis_coefficients_equal_default_engine_measurement() {
     assert!(s.uses_fourier_cropping());
     let field = lognormal(n, 41);
     let engine = ScatteringEngine::new(n, big_j, 4).unwrap();
-    assert_eq!(engine.crop_levels(), &[0, 0, 0, 0, 1]);
+    assert_eq!(engine.crop_levels(), &[0, 0, 1, 1, 1]);
+    assert_eq!(engine.first_layer_levels(), &[0, 0, 0, 0, 0]);
     let reference =
         periodic_coefficients(&engine, &FlatMap::new(n, 0.01, field.clone()).unwrap()).unwrap();
     let ours = s.coefficients(&field).unwrap();

@@ -7,19 +7,22 @@
 //!
 //! Exactly the estimator of [`crate::transform::ScatteringEngine::transform_tile`], with the
 //! same settings and layout ([`crate::pooling::TileSums`]). With n the tile side, N = n²,
-//! crop level d_j of scale j, m_j = n/2^{d_j}, M_j = m_j², lower-case x the fine pixels and
-//! upper-case X the pixels of a coarse grid (every 2^d-th fine pixel):
+//! first-layer level d_j and second-layer level d′_j of scale j, m_j = n/2^{d_j},
+//! m′_j = n/2^{d′_j}, M_j = m_j², lower-case x the fine pixels and upper-case X the pixels of a
+//! coarse grid (every 2^d-th fine pixel):
 //!
 //! * order 0: Σ w f and Σ w f² (weight Σ w);
 //! * I = a (f − μ_a), μ_a = Σ a f / Σ a; F = DFT_n(I) (unnormalised DFT);
-//! * g₁ = IDFT_{m1}(ψ̂_{j1,l1} · B_{n→m1} F) / N, with B the crop of a spectrum to its central
-//!   m × m box (Nyquist row and column zeroed when m < n) and IDFT unnormalised;
+//! * g₁ = IDFT_{m1}(B_{n→m1}(ψ̂_{j1,l1} · F)) / N, with B the m × m box of spectrum bins of
+//!   the engine (centred on the band of ψ_{j1,l1}, or the central box with its Nyquist row and
+//!   column zeroed; the identity when m = n) and IDFT unnormalised;
 //! * u = |g₁| · c_{j1}, c_j(X) = 1/√max(N_j(X), 0.01) the coverage normalisation;
 //! * S1 sum = 4^{d1} Σ_X W̃_{j1}(X) u(X), P sum = 4^{d1} Σ_X W̃_{j1} u², where W̃_j is the
 //!   trusted weight W_j = w·[N_j ≥ τ] low-passed to the grid of level d_j;
 //! * I₂ = ã (u − μ_u), ã the taper sampled on the grid of j1, μ_u = Σ ã u / Σ ã;
-//!   F₂ = DFT_{m1}(I₂); g₂ = IDFT_{m2}(ψ̂_{j2,l2} · B_{m1→m2} F₂) / M_1;
-//! * S2 sum = 4^{d2} Σ_X W̃_{j1,j2}(X) |g₂(X)| c_{j2}(X).
+//!   F₂ = DFT_{m1}(I₂); g₂ = IDFT_{m′2}(B_{m1→m′2}(ψ̂_{j2,l2} · F₂)) / M_1 (ψ̂ on the m1 grid);
+//! * S2 sum = 4^{d′2} Σ_X W̃_{j1,j2}(X) |g₂(X)| c_{j2}(X), W̃_{j1,j2} and c_{j2} on the grid of
+//!   level d′_{j2}.
 //!
 //! The coverage N_j, the trust masks, c_j and the low-passed weights depend on a and w only;
 //! they are computed once per tile in a [`TileGeometry`] and reused for every field (the
@@ -35,10 +38,10 @@
 //! * weighted pooling s = κ Σ_X W̃ h: h̄ = κ W̃ b (κ = 4^{d}, or 4^{d2}/M_1 for S2 folded into g₂);
 //!   P: h̄ = 2 κ W̃ u b;
 //! * modulus with normalisation h = c|z|: z̄ = h̄ c z/|z| (0 where z = 0, a subgradient);
-//! * z = IDFT_m(ψ̂ · Y) / K: Ȳ = ψ̂ · DFT_m(z̄) / K, because (IDFT_m)^H = DFT_m for the
-//!   unnormalised pair and ψ̂ is real;
-//! * crop Y = B_{m→m'} F: F̄ += B^H Ȳ, the zero-padding of the box back into the m × m
-//!   spectrum (the zeroed Nyquist lines receive nothing);
+//! * z = IDFT_m(Y) / K: Ȳ = DFT_m(z̄) / K, because (IDFT_m)^H = DFT_m for the unnormalised
+//!   pair (ψ̂ is real, so it passes through the box step above unchanged);
+//! * box Y = B(ψ̂ · F), a gather of bins: F̄[s(p)] += ψ̂[s(p)] Ȳ[p] (a scatter-add back into
+//!   the m × m spectrum; zeroed Nyquist lines receive nothing);
 //! * F = DFT_m(I) of a real I: Ī = Re IDFT_m(F̄);
 //! * tapered mean removal I = a (h − Σ a h / Σ a): h̄ = a Ī − a (Σ a Ī) / Σ a;
 //! * order 0: ∂(Σ w f)/∂f = w, ∂(Σ w f²)/∂f = 2 w f.
@@ -54,8 +57,8 @@ use super::gradient::{second_order_index, DifferentiableScattering, SquareFft};
 use crate::filters::MorletBank;
 use crate::pooling::TileSums;
 use crate::transform::{
-    check_taper_and_weight, check_values, crop_box, crop_levels_for, fine_index, subsample,
-    validate_settings, TileView, TransformSettings, COVERAGE_FLOOR,
+    band_boxes, check_taper_and_weight, check_values, crop_box, crop_levels_for, subsample,
+    validate_settings, BandBox, Boxes, TileView, TransformSettings, COVERAGE_FLOOR,
 };
 use crate::{Error, Result};
 use num_complex::Complex64;
@@ -94,47 +97,40 @@ impl CoarseGrids {
     }
 }
 
-/// Add the zero-padding of an m_small² box spectrum into an m_big² spectrum: the adjoint of
-/// [`crop_box`] (Nyquist row and column of the box are not sent back when m_small < m_big).
-fn add_padded(target: &mut [Complex64], m_big: usize, boxed: &[Complex64], m_small: usize) {
-    if m_small == m_big {
-        for (t, b) in target.iter_mut().zip(boxed) {
-            *t += b;
-        }
-        return;
-    }
-    for cy in 0..m_small {
-        if cy == m_small / 2 {
-            continue;
-        }
-        let fy = fine_index(cy, m_small, m_big);
-        for cx in 0..m_small {
-            if cx == m_small / 2 {
-                continue;
-            }
-            target[fy * m_big + fine_index(cx, m_small, m_big)] += boxed[cy * m_small + cx];
-        }
-    }
-}
-
 struct GeometryData {
     size: usize,
     scale_count: usize,
     orientation_count: usize,
     settings: TransformSettings,
+    /// First-layer level of each scale.
     levels: Vec<usize>,
+    /// Second-layer level of each scale (the engine's `crop_levels`).
+    second_levels: Vec<usize>,
     taper: Vec<f64>,
     taper_sum: f64,
     weight: Vec<f64>,
     weight_sum: f64,
     /// Per level d: the taper sampled on the grid and its sum.
     level_tapers: Vec<(Vec<f64>, f64)>,
-    /// Per scale: c_j = 1/√max(N_j, floor) on the grid of d_j.
+    /// Per scale: c_j = 1/√max(N_j, floor) on the first-layer grid of j.
     inv_sqrt_coverage: Vec<Vec<f64>>,
+    /// Per scale: c_j on the second-layer grid of j.
+    inv_sqrt_coverage_second: Vec<Vec<f64>>,
     /// Per scale: low-passed W_j on the grid of d_j, and Σ W_j.
     first_weights: Vec<(Vec<f64>, f64)>,
-    /// Per j1, per j2 > j1: low-passed W_{j1,j2} on the grid of d_{j2}, and Σ W_{j1,j2}.
+    /// Per j1, per j2 > j1: low-passed W_{j1,j2} on the second-layer grid of j2, and Σ W_{j1,j2}.
     pair_weights: Vec<Vec<(Vec<f64>, f64)>>,
+    /// The spectrum bins of each first-layer and second-layer band, as the engine's.
+    boxes: Boxes,
+}
+
+impl GeometryData {
+    fn band(&self, d_src: usize, j: usize, l: usize) -> &BandBox {
+        match &self.boxes.1[d_src][j * self.orientation_count + l] {
+            Some(b) => b,
+            None => unreachable!("a box is built for every source level up to d_j"),
+        }
+    }
 }
 
 /// What the masked estimator needs from a tile's taper and weight (coverage, trust cut,
@@ -161,8 +157,15 @@ impl TileGeometry {
         self.inner.size
     }
 
-    /// Crop level d_j of each scale (all zero without Fourier cropping).
+    /// Crop level d_j of each scale, as [`crate::transform::ScatteringEngine::crop_levels`]
+    /// (all zero without Fourier cropping).
     pub fn crop_levels(&self) -> &[usize] {
+        &self.inner.second_levels
+    }
+
+    /// First-layer level of each scale, as
+    /// [`crate::transform::ScatteringEngine::first_layer_levels`].
+    pub fn first_layer_levels(&self) -> &[usize] {
         &self.inner.levels
     }
 
@@ -293,12 +296,14 @@ impl DifferentiableScattering {
         let nn = n * n;
         let (big_j, big_l) = (bank.scale_count(), bank.orientation_count());
         let (weight_sum, taper_sum) = check_taper_and_weight(taper, weight, n)?;
-        let levels = crop_levels_for(bank, settings);
+        let levels = crop_levels_for(bank, settings, settings.first_layer_oversampling);
+        let second_levels = crop_levels_for(bank, settings, 0);
         let a2: Vec<f64> = taper.iter().map(|a| a * a).collect();
         let a2_spec = self.square_fft().spectrum_of(&a2);
         let tau = settings.coverage_threshold;
         let mut trust: Vec<Vec<bool>> = Vec::with_capacity(big_j);
         let mut inv_sqrt_coverage = Vec::with_capacity(big_j);
+        let mut inv_sqrt_coverage_second = Vec::with_capacity(big_j);
         for (j, &level) in levels.iter().enumerate() {
             // K_j = (1/L) Σ_l |ψ_{j,l}|², normalised to unit sum (its DFT at 0).
             let mut kernel = vec![0.0; nn];
@@ -313,12 +318,17 @@ impl DifferentiableScattering {
             self.square_fft().inverse_unnormalised(&mut c);
             let cov: Vec<f64> = c.iter().map(|z| z.re / nn as f64).collect();
             trust.push(cov.iter().map(|&v| v >= tau).collect());
-            inv_sqrt_coverage.push(
-                subsample(&cov, n, n >> level)
-                    .iter()
-                    .map(|c| 1.0 / c.max(COVERAGE_FLOOR).sqrt())
-                    .collect::<Vec<f64>>(),
-            );
+            for (target, d) in [
+                (&mut inv_sqrt_coverage, level),
+                (&mut inv_sqrt_coverage_second, second_levels[j]),
+            ] {
+                target.push(
+                    subsample(&cov, n, n >> d)
+                        .iter()
+                        .map(|c| 1.0 / c.max(COVERAGE_FLOOR).sqrt())
+                        .collect::<Vec<f64>>(),
+                );
+            }
         }
         let first_weights = trust
             .iter()
@@ -347,12 +357,13 @@ impl DifferentiableScattering {
                             })
                             .collect();
                         let total = wp.iter().sum::<f64>();
-                        (self.low_pass(&wp, levels[j2]), total)
+                        (self.low_pass(&wp, second_levels[j2]), total)
                     })
                     .collect()
             })
             .collect();
         let top = levels.iter().copied().max().unwrap_or(0);
+        let boxes = band_boxes(bank, &levels, &second_levels, settings);
         let level_tapers = (0..=top)
             .map(|d| {
                 let t = subsample(taper, n, n >> d);
@@ -367,14 +378,17 @@ impl DifferentiableScattering {
                 orientation_count: big_l,
                 settings: *settings,
                 levels,
+                second_levels,
                 taper: taper.to_vec(),
                 taper_sum,
                 weight: weight.to_vec(),
                 weight_sum,
                 level_tapers,
                 inv_sqrt_coverage,
+                inv_sqrt_coverage_second,
                 first_weights,
                 pair_weights,
+                boxes,
             }),
         })
     }
@@ -441,12 +455,8 @@ impl DifferentiableScattering {
                 let d1 = g.levels[j1];
                 let m1 = n >> d1;
                 let factor1 = (1usize << (2 * d1)) as f64;
-                let psi = self.wavelet_at(j1, l1, d1);
-                let mut g1: Vec<Complex64> = crop_box(&spectrum, n, m1)
-                    .iter()
-                    .zip(psi)
-                    .map(|(s, p)| s * p)
-                    .collect();
+                let mut g1: Vec<Complex64> = Vec::with_capacity(m1 * m1);
+                g.boxes.0[j1 * big_l + l1].gather(&spectrum, self.wavelet_at(j1, l1, 0), &mut g1);
                 self.grids.ffts[d1].inverse_unnormalised(&mut g1);
                 g1.iter_mut().for_each(|z| *z *= scale);
                 let c1 = &g.inv_sqrt_coverage[j1];
@@ -472,16 +482,15 @@ impl DifferentiableScattering {
                     spec2 = self.grids.ffts[d1].spectrum_of(&second_input);
                     let scale2 = 1.0 / (m1 * m1) as f64;
                     for (pair, j2) in ((j1 + 1)..big_j).enumerate() {
-                        let d2 = g.levels[j2];
+                        let d2 = g.second_levels[j2];
                         let m2 = n >> d2;
                         let factor2 = (1usize << (2 * d2)) as f64;
-                        let spec2c = crop_box(&spec2, m1, m2);
-                        let c2 = &g.inv_sqrt_coverage[j2];
+                        let c2 = &g.inv_sqrt_coverage_second[j2];
                         let (wp, _) = &g.pair_weights[j1][pair];
                         for l2 in 0..big_l {
-                            let psi2 = self.wavelet_at(j2, l2, d2);
-                            let mut g2: Vec<Complex64> =
-                                spec2c.iter().zip(psi2).map(|(s, p)| s * p).collect();
+                            let mut g2: Vec<Complex64> = Vec::with_capacity(m2 * m2);
+                            g.band(d1, j2, l2)
+                                .gather(&spec2, self.wavelet_at(j2, l2, d1), &mut g2);
                             self.grids.ffts[d2].inverse_unnormalised(&mut g2);
                             let mut acc = 0.0;
                             for ((z, &c), wv) in g2.iter().zip(c2).zip(wp) {
@@ -579,22 +588,21 @@ impl DifferentiableScattering {
                     let mut spec2_adj = vec![Complex64::default(); m1 * m1];
                     let mut any_second = false;
                     for (pair, j2) in ((j1 + 1)..big_j).enumerate() {
-                        let d2 = g.levels[j2];
+                        let d2 = g.second_levels[j2];
                         let m2 = n >> d2;
                         let factor2 = (1usize << (2 * d2)) as f64;
-                        let c2 = &g.inv_sqrt_coverage[j2];
+                        let c2 = &g.inv_sqrt_coverage_second[j2];
                         let (wp, _) = &g.pair_weights[j1][pair];
-                        let mut spec2c: Option<Vec<Complex64>> = None;
                         for l2 in 0..big_l {
                             let b = sum_weights[second_order_index(big_j, big_l, j1, l1, j2, l2)];
                             if b == 0.0 {
                                 continue;
                             }
                             any_second = true;
-                            let sc = spec2c.get_or_insert_with(|| crop_box(spec2, m1, m2));
-                            let psi2 = self.wavelet_at(j2, l2, d2);
-                            let mut g2: Vec<Complex64> =
-                                sc.iter().zip(psi2).map(|(s, p)| s * p).collect();
+                            let band = g.band(d1, j2, l2);
+                            let psi2 = self.wavelet_at(j2, l2, d1);
+                            let mut g2: Vec<Complex64> = Vec::with_capacity(m2 * m2);
+                            band.gather(spec2, psi2, &mut g2);
                             self.grids.ffts[d2].inverse_unnormalised(&mut g2);
                             // g₂ = raw · scale2; s2 = κ Σ W̃ c |g₂|, κ = 4^{d2}.
                             let k = b * factor2 * scale2;
@@ -607,8 +615,7 @@ impl DifferentiableScattering {
                                 };
                             }
                             self.grids.ffts[d2].forward(&mut g2);
-                            g2.iter_mut().zip(psi2).for_each(|(z, p)| *z *= p);
-                            add_padded(&mut spec2_adj, m1, &g2, m2);
+                            band.scatter_add(&mut spec2_adj, psi2, &g2);
                         }
                     }
                     if any_second {
@@ -641,15 +648,14 @@ impl DifferentiableScattering {
                     .collect();
                 // g₁ = IDFT(ψ̂ · B F) / N.
                 self.grids.ffts[d1].forward(&mut z1);
-                let psi = self.wavelet_at(j1, l1, d1);
-                z1.iter_mut().zip(psi).for_each(|(z, p)| *z *= p * scale);
+                z1.iter_mut().for_each(|z| *z *= scale);
                 z1
             })
             .collect();
         // Fixed-order sum: bitwise identical for any thread count.
         let mut total = vec![Complex64::default(); nn];
-        for (&(j1, _), part) in items.iter().zip(&parts) {
-            add_padded(&mut total, n, part, n >> g.levels[j1]);
+        for (&(j1, l1), part) in items.iter().zip(&parts) {
+            g.boxes.0[j1 * big_l + l1].scatter_add(&mut total, self.wavelet_at(j1, l1, 0), part);
         }
         self.square_fft().inverse_unnormalised(&mut total);
         let a = &g.taper;
