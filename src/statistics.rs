@@ -1,25 +1,61 @@
-//! Coefficient labels, the full labelled set of scattering coefficients and the compact,
-//! interpretable summary derived from it.
+//! Coefficient labels, the full labelled set of scattering coefficients and the
+//! orientation-harmonic summary derived from it.
 //!
-//! # Compact set
+//! # Orientation-harmonic summary
 //!
-//! Computed from the full set of J scales and L orientations (L even):
+//! A short description of the full set that does not depend on how the map is turned. The
+//! orientations l = 0 … L−1 sample θ_l = πl/L, and the modulus of a real field filtered by a
+//! Morlet wavelet turned by π equals that of the unturned one (ψ_{θ+π} = ψ̄_θ), so S1(j,l) and
+//! S2(j1,l1,j2,l2) are periodic in l with period L and a rotation of the map by π/L shifts
+//! every orientation index by one. Harmonics in l are therefore the natural coordinates: the
+//! m = 0 harmonic of S1 and every harmonic in the *relative* orientation Δ = l2 − l1 of S2 are
+//! unchanged by the shift, and the modulus of any harmonic is. With
 //!
-//! * `mean`, `variance` — order 0, the weighted mean and variance of the field.
-//! * `amplitude_scale_{j}` — ⟨S1(j,l)⟩_l, the orientation-averaged first-order coefficient; it
-//!   grows like the square root of the power in the band of scale j (J values).
-//! * `sparsity_scales_{j1}_{j2}` — ⟨S2(j1,l1,j2,l2) / S1(j1,l1)⟩_{l1,l2}: how strongly the
-//!   envelope of the scale-j1 response fluctuates at scale j2, relative to its mean. Small for
-//!   Gaussian fields, larger for intermittent fields with isolated peaks or voids
-//!   (J(J−1)/2 values).
-//! * `shape_anisotropy_scales_{j1}_{j2}` — Σ_{l1} S2(j1,l1,j2,l1) / Σ_{l1} S2(j1,l1,j2,l1+L/2):
-//!   second-order response with the second wavelet parallel to the first, over the response with
-//!   it perpendicular. Structures elongated along their wave fronts (filaments) have envelopes
-//!   that vary along the first wavelet's direction and raise the ratio; round structures
-//!   (bubbles, blobs) bring it towards 1 (J(J−1)/2 values).
+//! * h_m(j) = Σ_l S1(j,l) e^{−2πi m l/L} (orientation harmonics of order 1),
+//! * T(j1,j2,Δ) = Σ_{l1} S2(j1, l1, j2, (l1 + Δ) mod L) (order 2 at relative orientation Δ),
 //!
-//! For J = 6 this gives 2 + 6 + 15 + 15 = 38 numbers. A compact item is trusted when every
-//! coefficient it is built from is trusted.
+//! the items are, for J scales and any L ≥ 2:
+//!
+//! | name | formula | meaning | units |
+//! |---|---|---|---|
+//! | `mean` | c_0 | weighted mean of the field | field |
+//! | `rms` | √(weighted variance) | overall fluctuation | field |
+//! | `modulus_j{j}` | h_0(j)/L | mean wavelet modulus at scale j: grows like the square root of the power in the band of j | field |
+//! | `modulus_anisotropy_j{j}` | \|h_1(j)\| / h_0(j) | fractional orientation dependence of order 1 at scale j; a check of statistical isotropy (0 for an isotropic field apart from the estimator's noise) | 1 |
+//! | `intermittency_j{j1}_j{j2}` | Σ_Δ T(j1,j2,Δ) / (L h_0(j1)) | mean second-order modulus over mean first-order modulus: how strongly the envelope of the scale-j1 response varies on scale j2 relative to its mean; grows when the power at j1 is concentrated in few places | 1 |
+//! | `alignment_j{j1}_j{j2}` | Σ_Δ T(j1,j2,Δ) cos(2πΔ/L) / Σ_Δ T(j1,j2,Δ) | first harmonic in the relative orientation: > 0 when the envelope at j1 varies mostly *along* the first wavelet's wave vector (structures elongated along the wave fronts: lines and edges), < 0 when it varies mostly *across* it | 1 |
+//!
+//! pairs j1 < j2, in the order mean, rms, moduli, anisotropies, intermittencies (nested j1, j2),
+//! alignments: 2 + 2J + J(J−1) numbers (22 for J = 4, 44 for J = 6).
+//!
+//! Choices and why:
+//!
+//! * **Ratios of sums, not sums of ratios.** The intermittency divides the orientation sum of
+//!   S2 by the orientation sum of S1: each pooled sum is a low-noise estimate, and no single
+//!   weakly-responding orientation can dominate, as it can in a mean of per-orientation ratios.
+//!   For a statistically isotropic field every S1(j1,l) has the same expectation, so both
+//!   forms estimate the same number.
+//! * **No logarithms.** The dimensionless items are O(0.01–1) with small fractional scatter, so
+//!   a logarithm would change neither their information (a Fisher matrix is invariant under an
+//!   invertible smooth re-parametrisation of the data to first order) nor their readability;
+//!   linear items keep the formulas and their adjoint short.
+//! * **Dimensions.** Only `mean`, `rms` and `modulus_j*` scale with the field (×a for a field
+//!   times a > 0; the modulus is homogeneous of degree 1); every other item is a ratio of two
+//!   quantities of the same degree and does not change. Adding a constant changes only `mean`.
+//! * **Only m = 1.** Orientation is π-periodic, so m = 1 (period π in θ) is the lowest harmonic
+//!   that separates parallel from perpendicular; higher m resolve angular detail finer than the
+//!   wavelets' own angular width and, at L = 4, m = 2 is just the alternation of neighbours.
+//!   The anisotropy is a modulus because a signed order-1 harmonic would depend on where l = 0
+//!   points.
+//! * **Trust.** An item is trusted when every coefficient it is built from is trusted: an
+//!   untrusted coefficient enters each item with a weight of order 1, so a partly trusted
+//!   combination would carry an unknown bias.
+//!
+//! The Gaussian expectations of `intermittency` and `alignment` are not 0: they are set by the
+//! wavelets' shapes (e.g. Rayleigh statistics of the envelope for m = 0); for white noise they
+//! are checked against an independent numpy implementation (`tests/summary_laws.rs`,
+//! `reference-values/summary_reference.py`). The adjoint used by synthesis is
+//! [`OrientationSummary::adjoint`].
 
 use crate::{Error, Result};
 use serde::Serialize;
