@@ -246,6 +246,18 @@ impl SummaryKind {
         }
     }
 
+    /// The scale of a distance between two values of this kind near `value`: |value| for the
+    /// amplitudes and the intermittency (positive, so a relative distance is meaningful), and
+    /// max(|value|, 0.1) for the alignment and the modulus anisotropy, which sit at or cross
+    /// 0 (0.1 is the size that separates textures from Gaussian fields: ±0.05–0.2 for lines
+    /// and disks against ≤ 0.02 for Gaussian fields, tests/summary_*.rs).
+    pub fn distance_scale(self, value: f64) -> f64 {
+        match self {
+            SummaryKind::Alignment | SummaryKind::ModulusAnisotropy => value.abs().max(0.1),
+            _ => value.abs(),
+        }
+    }
+
     /// True for the amplitudes (items that scale like the field); the others are dimensionless.
     pub fn is_amplitude(self) -> bool {
         matches!(

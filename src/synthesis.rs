@@ -7,7 +7,8 @@
 //!
 //! L(f) = Σ_i ((s_i(f) − t_i) / σ_i)²,
 //!
-//! with σ_i = |t_i| by default (relative distance; [`Normalisation::Relative`]) or σ_i given by
+//! with σ_i = |t_i| by default (relative distance; [`Normalisation::Relative`]; for the
+//! summary's items that sit near 0 an absolute floor, see there) or σ_i given by
 //! the user ([`Normalisation::Given`], e.g. ensemble standard deviations). The statistics are
 //! the full coefficient set or the orientation-harmonic summary of [`crate::statistics`]
 //! (user's choice), both *without the mean*, optionally followed by the field–envelope correlations
@@ -92,7 +93,8 @@ pub enum StatisticChoice {
 /// The σ_i of the distance Σ ((s_i − t_i)/σ_i)².
 #[derive(Debug, Clone, PartialEq)]
 pub enum Normalisation {
-    /// σ_i = |t_i| (relative distance).
+    /// σ_i = |t_i| (relative distance); for the summary's alignment and modulus anisotropy
+    /// max(|t_i|, 0.1) ([`crate::statistics::SummaryKind::distance_scale`]).
     Relative,
     /// σ_i given, one per statistic (same order as [`FlatSynthesis::statistic_names`]).
     Given(Vec<f64>),
@@ -364,6 +366,16 @@ impl SummaryMap {
 
     pub(crate) fn values(&self, c: &[f64]) -> Vec<f64> {
         self.layout.values(c).split_off(1)
+    }
+
+    /// The relative-distance scale σ_i of each matched item at the target values
+    /// ([`crate::statistics::SummaryKind::distance_scale`]).
+    pub(crate) fn distance_scales(&self, values: &[f64]) -> Vec<f64> {
+        self.layout.labels()[1..]
+            .iter()
+            .zip(values)
+            .map(|(label, &t)| label.kind.distance_scale(t))
+            .collect()
     }
 
     pub(crate) fn adjoint(&self, c: &[f64], ds: &[f64]) -> Vec<f64> {
@@ -677,6 +689,10 @@ impl FlatSynthesis {
             return Ok(s.clone());
         }
         let mut sigma: Vec<f64> = values.iter().map(|t| t.abs()).collect();
+        if let Some(m) = &self.summary {
+            let k = m.len();
+            sigma[..k].copy_from_slice(&m.distance_scales(&values[..k]));
+        }
         if self.settings.field_envelope_correlation {
             let (jn, ln) = (self.scale_count(), self.orientation_count());
             let start = self.select(coefficients).len();

@@ -457,7 +457,10 @@ impl SphereSynthesis {
                 }
                 s.clone()
             }
-            Normalisation::Relative => values.iter().map(|t| t.abs()).collect(),
+            Normalisation::Relative => match &self.summary {
+                Some(m) => m.distance_scales(values),
+                None => values.iter().map(|t| t.abs()).collect(),
+            },
         };
         if let Some(i) = sigma.iter().position(|v| !(v.is_finite() && *v > 0.0)) {
             return Err(Error::Data(format!(
