@@ -569,7 +569,8 @@ fn draw_panel<DB: DrawingBackend>(
         }
         if let Some(text) = &c.text {
             // dark text on light fills, white on dark ones (Rec. 601 luma)
-            let luma = 0.299 * c.fill[0] as f64 + 0.587 * c.fill[1] as f64 + 0.114 * c.fill[2] as f64;
+            let luma =
+                0.299 * c.fill[0] as f64 + 0.587 * c.fill[1] as f64 + 0.114 * c.fill[2] as f64;
             let ink = if luma > 140.0 { BLACK } else { WHITE };
             let font = (FONT_FAMILY, label_px)
                 .into_font()

@@ -52,7 +52,7 @@
 //!   combination would carry an unknown bias.
 //!
 //! The Gaussian expectations of `intermittency` and `alignment` are not 0: they are set by the
-//! wavelets' shapes (e.g. Rayleigh statistics of the envelope for m = 0); for white noise they
+//! wavelets' geometry (e.g. Rayleigh statistics of the envelope for m = 0); for white noise they
 //! are checked against an independent numpy implementation (`tests/summary_laws.rs`,
 //! `reference-values/summary_reference.py`). The adjoint used by synthesis is
 //! [`OrientationSummary::adjoint`].
@@ -493,7 +493,11 @@ impl OrientationSummary {
                     let r = a / h0;
                     for l in 0..ln {
                         let (cs, sn) = self.cos_sin(l);
-                        let da = if a > 0.0 { (re * cs - im * sn) / a } else { 0.0 };
+                        let da = if a > 0.0 {
+                            (re * cs - im * sn) / a
+                        } else {
+                            0.0
+                        };
                         dc[self.s1(j, l)] += g * (da / h0 - r / h0);
                     }
                 }

@@ -74,9 +74,12 @@ fn demo_runs_the_whole_job_and_its_scattering_set_beats_the_power_spectrum_on_no
             .as_f64()
             .unwrap()
     };
-    let ratio =
-        sigma_amplitude("power spectrum (pseudo-C_l)") / sigma_amplitude("orientation-harmonic summary");
-    assert!(ratio > 2.0, "σ(A) power spectrum / orientation-harmonic summary = {ratio}");
+    let ratio = sigma_amplitude("power spectrum (pseudo-C_l)")
+        / sigma_amplitude("orientation-harmonic summary");
+    assert!(
+        ratio > 2.0,
+        "σ(A) power spectrum / orientation-harmonic summary = {ratio}"
+    );
     // a rerun resumes: nothing is measured again and the table is unchanged
     let before = std::fs::read(d.join("fiducial/statistics.npy")).unwrap();
     let (ok, _, stderr) = planisphere(

@@ -4,16 +4,16 @@
 
 use planisphere::cli::measure::measurement_document;
 use planisphere::cli::plot::{
-    band_power_by_scale, coefficients_figure, ellipses_figure, paint_tiles,
-    file_summary, pair_items, parameter_pair, scale_items, set_ellipses, tile_values, ForecastFile, MeasurementFile,
-    TileStatistic, ELLIPSE_POINTS,
+    band_power_by_scale, coefficients_figure, ellipses_figure, file_summary, paint_tiles,
+    pair_items, parameter_pair, scale_items, set_ellipses, tile_values, ForecastFile,
+    MeasurementFile, TileStatistic, ELLIPSE_POINTS,
 };
 use planisphere::forecast::{ConfidenceEllipse, ConfidenceLevel};
 use planisphere::measurement::{MapStatistics, MeasurementSettings, SphereMeasurer};
-use planisphere::statistics::SummaryKind;
 use planisphere::pooling::pooled_coefficients;
 use planisphere::skies::SkyRecipe;
 use planisphere::spectrum::AngularSpectrum;
+use planisphere::statistics::SummaryKind;
 use planisphere::{Footprint, SkyMap};
 
 const FORECAST: &str = r#"{
@@ -352,7 +352,8 @@ fn summary_recomputed_from_the_file_matches_the_measured_summary() {
 }
 
 #[test]
-fn coefficient_panels_show_the_summary_against_arcmin_and_scale_pair_cells_crossed_out_when_untrusted() {
+fn coefficient_panels_show_the_summary_against_arcmin_and_scale_pair_cells_crossed_out_when_untrusted(
+) {
     let (measurer, _, mut file) = measurement_file();
     // All trusted but S1(j = 2, l = 1), which makes modulus_j2 hollow (no pair item uses
     // S1 at j = 2 when J = 3), and S2(0,0,2,3), which crosses out the (0, 2) cells.

@@ -65,7 +65,10 @@ fn summary_matches_numpy_implementation_on_fixed_maps() {
             let d = (it.value - w).abs() / if is_amplitude(&it.name) { w.abs() } else { 1.0 };
             worst = worst.max(d);
         }
-        println!("n {n}, J {jn}, L {ln}: {} items, worst deviation {worst:.2e}", items.len());
+        println!(
+            "n {n}, J {jn}, L {ln}: {} items, worst deviation {worst:.2e}",
+            items.len()
+        );
         assert!(worst < 1e-9, "L = {ln}: {worst}");
     }
 }
@@ -74,10 +77,16 @@ fn summary_matches_numpy_implementation_on_fixed_maps() {
 fn mean_se(runs: &[Vec<SummaryStatistic>]) -> (Vec<f64>, Vec<f64>) {
     let n = runs.len() as f64;
     let k = runs[0].len();
-    let mean: Vec<f64> = (0..k).map(|i| runs.iter().map(|r| r[i].value).sum::<f64>() / n).collect();
+    let mean: Vec<f64> = (0..k)
+        .map(|i| runs.iter().map(|r| r[i].value).sum::<f64>() / n)
+        .collect();
     let se = (0..k)
         .map(|i| {
-            let v = runs.iter().map(|r| (r[i].value - mean[i]).powi(2)).sum::<f64>() / (n - 1.0);
+            let v = runs
+                .iter()
+                .map(|r| (r[i].value - mean[i]).powi(2))
+                .sum::<f64>()
+                / (n - 1.0);
             (v / n).sqrt()
         })
         .collect();
@@ -97,7 +106,12 @@ fn white_noise_items_equal_their_numpy_white_noise_expectation() {
         .map(|v| v.as_str().unwrap().to_string())
         .collect();
     let num = |key: &str| -> Vec<f64> {
-        w[key].as_array().unwrap().iter().map(|v| v.as_f64().unwrap()).collect()
+        w[key]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|v| v.as_f64().unwrap())
+            .collect()
     };
     let (np_mean, np_se) = (num("mean"), num("standard_error"));
     let n = 64;
@@ -105,9 +119,14 @@ fn white_noise_items_equal_their_numpy_white_noise_expectation() {
     let mut rng = rand_chacha::ChaCha20Rng::seed_from_u64(77);
     let runs: Vec<Vec<SummaryStatistic>> = (0..200)
         .map(|_| {
-            let v: Vec<f64> = (0..n * n).map(|_| StandardNormal.sample(&mut rng)).collect();
+            let v: Vec<f64> = (0..n * n)
+                .map(|_| StandardNormal.sample(&mut rng))
+                .collect();
             let map = FlatMap::new(n, 1e-3, v).unwrap();
-            periodic_coefficients(&engine, &map).unwrap().summary().unwrap()
+            periodic_coefficients(&engine, &map)
+                .unwrap()
+                .summary()
+                .unwrap()
         })
         .collect();
     let (mean, se) = mean_se(&runs);
@@ -156,11 +175,18 @@ fn isotropy_t(sets: &[CoefficientSet]) -> f64 {
             continue;
         }
         for part in [0, 1] {
-            let x: Vec<f64> = per.iter().map(|p| if part == 0 { p[j].0 } else { p[j].1 }).collect();
+            let x: Vec<f64> = per
+                .iter()
+                .map(|p| if part == 0 { p[j].0 } else { p[j].1 })
+                .collect();
             let m = x.iter().sum::<f64>() / n;
             let sd = (x.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
             let t = m / (sd / n.sqrt());
-            println!("  j = {j} {}: mean {m:+.2e} ± {:.2e} ({t:+.2} σ)", ["Re", "Im"][part], sd / n.sqrt());
+            println!(
+                "  j = {j} {}: mean {m:+.2e} ± {:.2e} ({t:+.2} σ)",
+                ["Re", "Im"][part],
+                sd / n.sqrt()
+            );
             worst = worst.max(t.abs());
         }
     }
@@ -186,7 +212,7 @@ fn gaussian_flat_fields_are_isotropic_at_order_one_and_align_only_through_the_fi
     //     preferred orientation); the item |h_1|/h_0 itself is then the estimator's noise.
     // (2) Alignment: within 4 standard errors of 0 for scale pairs two or more octaves apart
     //     (j2 − j1 ≥ 3); closer pairs share part of the wavelets' Fourier support and carry a
-    //     small Gaussian value set by the filters' shapes, bounded here by 0.02 in magnitude
+    //     small Gaussian value set by the filters' geometry, bounded here by 0.02 in magnitude
     //     (measured, see the printout), against 0.05–0.2 for the textures of
     //     tests/summary_textures.rs.
     // (3) A control: a field of the same spectrum smoothed along x by a 6-pixel running mean
@@ -202,7 +228,10 @@ fn gaussian_flat_fields_are_isotropic_at_order_one_and_align_only_through_the_fi
         if let Some(rest) = it.name.strip_prefix("alignment_j") {
             let js: Vec<usize> = rest.split("_j").map(|p| p.parse().unwrap()).collect();
             let sig = mean[i] / se[i];
-            println!("{:<18} {:+.5} ± {:.5} ({sig:+.2} σ)", it.name, mean[i], se[i]);
+            println!(
+                "{:<18} {:+.5} ± {:.5} ({sig:+.2} σ)",
+                it.name, mean[i], se[i]
+            );
             assert!(mean[i].abs() < 0.02, "{}: {}", it.name, mean[i]);
             if js[1] - js[0] >= 3 {
                 assert!(sig.abs() < 4.0, "{}: {sig} σ", it.name);
@@ -213,7 +242,12 @@ fn gaussian_flat_fields_are_isotropic_at_order_one_and_align_only_through_the_fi
     let engine = ScatteringEngine::new(n, 5, 4).unwrap();
     let g = gaussian_random_field(n, 1e-3, &|k: f64| (1.0 + k / 300.0).powf(-2.5), 9).unwrap();
     let v: Vec<f64> = (0..n * n)
-        .map(|i| (0..6).map(|d| g.values()[(i / n) * n + (i % n + d) % n]).sum::<f64>() / 6.0)
+        .map(|i| {
+            (0..6)
+                .map(|d| g.values()[(i / n) * n + (i % n + d) % n])
+                .sum::<f64>()
+                / 6.0
+        })
         .collect();
     let stretched = periodic_coefficients(&engine, &FlatMap::new(n, 1e-3, v).unwrap())
         .unwrap()
@@ -223,7 +257,10 @@ fn gaussian_flat_fields_are_isotropic_at_order_one_and_align_only_through_the_fi
         let name = format!("modulus_anisotropy_j{j}");
         let i = runs[0].iter().position(|s| s.name == name).unwrap();
         let got = stretched[i].value;
-        println!("{name}: stretched {got:.4}, isotropic ensemble {:.4} ± {:.4}", mean[i], se[i]);
+        println!(
+            "{name}: stretched {got:.4}, isotropic ensemble {:.4} ± {:.4}",
+            mean[i], se[i]
+        );
         assert!(got > 2.0 * mean[i], "{name}: {got} vs {}", mean[i]);
     }
 }
@@ -257,7 +294,8 @@ fn gaussian_skies_on_the_sphere_match_flat_gaussian_fields() {
     let (fm, fse) = mean_se(&fr);
     let mut tested = 0;
     for (i, it) in sr[0].iter().enumerate() {
-        let dimensionless = it.name.starts_with("intermittency") || it.name.starts_with("alignment");
+        let dimensionless =
+            it.name.starts_with("intermittency") || it.name.starts_with("alignment");
         if !(dimensionless && sr.iter().all(|r| r[i].trusted)) {
             continue;
         }

@@ -20,8 +20,8 @@ const J: usize = 5;
 /// A non-Gaussian, anisotropic periodic field: a squared Gaussian field stretched along x, plus
 /// a weaker isotropic part and a mean.
 fn map(seed: u64) -> FlatMap {
-    let g = gaussian_random_field(N, 1e-3, &|k: f64| 1.0 / (1.0 + (k / 800.0).powi(2)), seed)
-        .unwrap();
+    let g =
+        gaussian_random_field(N, 1e-3, &|k: f64| 1.0 / (1.0 + (k / 800.0).powi(2)), seed).unwrap();
     let v = g.values();
     let out = (0..N * N)
         .map(|i| {
@@ -93,7 +93,11 @@ fn quarter_turn_leaves_every_item_unchanged_for_two_and_four_orientations() {
             let b = summary(&engine, &rotated);
             let d = worst(&b, &a);
             // not a no-op: the field is anisotropic
-            let aniso = a.iter().find(|s| s.name == "modulus_anisotropy_j1").unwrap().value;
+            let aniso = a
+                .iter()
+                .find(|s| s.name == "modulus_anisotropy_j1")
+                .unwrap()
+                .value;
             println!(
                 "L = {l_count} {:?}: worst {d:.2e}, modulus_anisotropy_j1 {aniso:.3}",
                 engine.crop_levels()
@@ -108,7 +112,11 @@ fn quarter_turn_leaves_every_item_unchanged_for_two_and_four_orientations() {
 fn shifted_by_one(set: &CoefficientSet) -> CoefficientSet {
     let ln = set.orientation_count;
     let mut out = set.clone();
-    for (c, label) in out.coefficients.iter_mut().zip(coefficient_labels(set.scale_count, ln)) {
+    for (c, label) in out
+        .coefficients
+        .iter_mut()
+        .zip(coefficient_labels(set.scale_count, ln))
+    {
         let from = |l: Option<usize>| l.map(|l| (l + ln - 1) % ln);
         let src = planisphere::statistics::CoefficientLabel {
             l1: from(label.l1),
@@ -138,8 +146,12 @@ fn turn_by_pi_over_l_leaves_every_item_unchanged_for_any_orientation_count() {
 fn scaling_the_field_scales_amplitudes_and_leaves_dimensionless_items_unchanged() {
     let m = map(5);
     for a in [3.7f64, -0.4] {
-        let scaled = FlatMap::new(N, m.pixel_size(), m.values().iter().map(|v| a * v).collect())
-            .unwrap();
+        let scaled = FlatMap::new(
+            N,
+            m.pixel_size(),
+            m.values().iter().map(|v| a * v).collect(),
+        )
+        .unwrap();
         for engine in engines(4) {
             let base = summary(&engine, &m);
             let s = summary(&engine, &scaled);
@@ -195,7 +207,9 @@ fn adjoint_matches_central_differences() {
             let numeric = (f(&p) - f(&m)) / (2.0 * h);
             worst = worst.max((numeric - grad[i]).abs() / scale);
         }
-        println!("L = {l_count}: worst |adjoint − central difference| / max |gradient| = {worst:.2e}");
+        println!(
+            "L = {l_count}: worst |adjoint − central difference| / max |gradient| = {worst:.2e}"
+        );
         assert!(worst < 1e-7, "L = {l_count}: {worst}");
         assert!(scale > 0.0);
     }

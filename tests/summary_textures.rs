@@ -31,16 +31,23 @@ fn scatter(count: usize, seed: u64, profile: &dyn Fn(f64, f64) -> f64) -> FlatMa
 
 /// A thin segment of length 2·half: Gaussian cross-section of width 1 pixel, soft ends.
 fn segment(half: f64) -> impl Fn(f64, f64) -> f64 {
-    move |along: f64, across: f64| (-(across * across) / 2.0).exp() * (-(along / half).powi(8)).exp()
+    move |along: f64, across: f64| {
+        (-(across * across) / 2.0).exp() * (-(along / half).powi(8)).exp()
+    }
 }
 
 /// A round blob of the same extent 2·half: a disk with the same soft edge profile.
 fn disk(half: f64) -> impl Fn(f64, f64) -> f64 {
-    move |along: f64, across: f64| (-((along * along + across * across).sqrt() / half).powi(8)).exp()
+    move |along: f64, across: f64| {
+        (-((along * along + across * across).sqrt() / half).powi(8)).exp()
+    }
 }
 
 fn summary(engine: &ScatteringEngine, map: &FlatMap) -> Vec<SummaryStatistic> {
-    periodic_coefficients(engine, map).unwrap().summary().unwrap()
+    periodic_coefficients(engine, map)
+        .unwrap()
+        .summary()
+        .unwrap()
 }
 
 fn pick(s: &[SummaryStatistic], name: &str) -> f64 {
@@ -72,7 +79,7 @@ fn line_segments_align_positively_and_round_disks_negatively_at_the_objects_scal
 fn sparse_poisson_blobs_are_more_intermittent_than_dense_ones() {
     // Design property of `intermittency` (src/statistics.rs). Both fields are Poisson
     // (uniform, independent) placements of the same Gaussian blob (σ = 2 pixels), 15 against
-    // 1500 on 128²: their power spectra have the same shape, count·|b̂(k)|² plus the mean,
+    // 1500 on 128²: their power spectra have the same form, count·|b̂(k)|² plus the mean,
     // so only where the power sits differs. Every scale pair must order them.
     let engine = ScatteringEngine::new(N, 5, 4).unwrap();
     let blob = |along: f64, across: f64| (-(along * along + across * across) / 8.0).exp();
@@ -82,7 +89,13 @@ fn sparse_poisson_blobs_are_more_intermittent_than_dense_ones() {
     for (a, b) in sparse.iter().zip(&dense) {
         if a.name.starts_with("intermittency") {
             println!("{:<22} sparse {:.4}, dense {:.4}", a.name, a.value, b.value);
-            assert!(a.value > 1.5 * b.value, "{}: {} vs {}", a.name, a.value, b.value);
+            assert!(
+                a.value > 1.5 * b.value,
+                "{}: {} vs {}",
+                a.name,
+                a.value,
+                b.value
+            );
             pairs += 1;
         }
     }

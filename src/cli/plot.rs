@@ -27,9 +27,9 @@ use crate::forecast::{ConfidenceEllipse, ConfidenceLevel};
 use crate::measurement::{MapStatistics, SphereMeasurer};
 use crate::pixelization::{Ordering, Pixelization};
 use crate::plotting::SkyPicture;
+use crate::plotting::{colour_ramp, Rgb};
 use crate::sampling::TileSampler;
 use crate::skymap::SkyMap;
-use crate::plotting::{colour_ramp, Rgb};
 use crate::statistics::{
     first_order_position, second_order_position, CoefficientKind, CoefficientLabel,
     OrientationSummary, SummaryKind, SummaryStatistic,
@@ -300,7 +300,9 @@ pub fn file_summary(file: &MeasurementFile) -> Vec<SummaryStatistic> {
         let slot = match (c.order, c.j1, c.l1, c.j2, c.l2, c.kind.as_deref()) {
             (0, _, _, _, _, Some("mean")) => Some(0),
             (0, _, _, _, _, Some("variance")) => Some(1),
-            (1, Some(j), Some(l), None, _, _) if c.kind.as_deref().is_none_or(|k| k == "scattering") => {
+            (1, Some(j), Some(l), None, _, _)
+                if c.kind.as_deref().is_none_or(|k| k == "scattering") =>
+            {
                 Some(first_order_position(ln, j, l))
             }
             (2, Some(j1), Some(l1), Some(j2), Some(l2), _) if j1 < j2 => {
@@ -371,8 +373,11 @@ pub fn scale_items(file: &MeasurementFile, kind: SummaryKind) -> Vec<(usize, f64
         .iter()
         .zip(&summary)
         .filter_map(|(label, item)| {
-            (label.kind == kind && label.j2.is_none())
-                .then_some((label.j1?, item.value, item.trusted))
+            (label.kind == kind && label.j2.is_none()).then_some((
+                label.j1?,
+                item.value,
+                item.trusted,
+            ))
         })
         .collect()
 }
@@ -410,9 +415,11 @@ impl CellColours {
             CellColours::Ramp { lo, hi } => {
                 colour_ramp(if hi > lo { (v - lo) / (hi - lo) } else { 0.5 })
             }
-            CellColours::Diverging { half_range } => {
-                diverging_colour(if half_range > 0.0 { v / half_range } else { 0.0 })
-            }
+            CellColours::Diverging { half_range } => diverging_colour(if half_range > 0.0 {
+                v / half_range
+            } else {
+                0.0
+            }),
         }
     }
 }
@@ -431,7 +438,9 @@ pub fn pair_panel(
         let ticks = (lo..hi)
             .map(|j| {
                 let text = match files.first() {
-                    Some(f) if files.len() == 1 => format!("{j} ({})", format_arcmin(f.scale_arcmin(j))),
+                    Some(f) if files.len() == 1 => {
+                        format!("{j} ({})", format_arcmin(f.scale_arcmin(j)))
+                    }
                     _ => j.to_string(),
                 };
                 (j as f64, text)
@@ -668,7 +677,9 @@ pub fn coefficients_figure(
     let inter = all(SummaryKind::Intermittency);
     let (lo, hi) = inter
         .iter()
-        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
+            (a.min(v), b.max(v))
+        });
     let strips = if many {
         format!("; strips left to right: {}", names.join(", "))
     } else {

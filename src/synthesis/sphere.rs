@@ -42,7 +42,7 @@
 //! flat synthesis is not applied: reflecting the footprint alone would change the tiles that
 //! straddle its edge.
 
-use super::{minimise, SummaryMap, Normalisation, StartField, StatisticChoice, SynthesisSettings};
+use super::{minimise, Normalisation, StartField, StatisticChoice, SummaryMap, SynthesisSettings};
 use crate::footprint::Footprint;
 use crate::harmonics::HarmonicTransform;
 use crate::measurement::{MeasurementSettings, SphereMeasurer};
