@@ -199,7 +199,7 @@ pub struct StatisticLabel {
 pub struct MapStatistics {
     /// The full labelled scattering set (orders 0–2 and band powers) with trust flags.
     pub coefficients: CoefficientSet,
-    /// The orientation-harmonic summary ([`crate::statistics`]).
+    /// The orientation-harmonic summary ([`crate::statistics`]); empty when L = 1.
     pub summary: Vec<SummaryStatistic>,
     /// Tile power spectrum, combined over tiles by core weight.
     pub tile_power: TilePowerSpectrum,
@@ -407,7 +407,9 @@ impl SphereMeasurer {
         let total = combine_tiles(&sums)?;
         let mut coefficients = pooled_coefficients(&self.engine, &total)?;
         self.flag_unresolved_scales(&mut coefficients);
-        let summary = coefficients.summary()?;
+        // defined for L ≥ 2; with a single orientation there is nothing to summarise over
+        // orientations and the summary (and its columns in `vector_labels`) is empty
+        let summary = coefficients.summary().unwrap_or_default();
         let powers: Vec<TilePowerSpectrum> = kept.iter().map(|t| t.1.clone()).collect();
         let tile_power = combine_power(&powers)?;
         let tile_bispectrum = if self.settings.bispectrum {
