@@ -15,6 +15,7 @@ use crate::error::{Error, Result};
 use crate::plotting::{register_font, Rgb, FONT_FAMILY};
 use plotters::coord::ranged1d::{KeyPointHint, NoDefaultFormatting, Ranged, ValueFormatter};
 use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
 use std::ops::Range;
 use std::path::Path;
 
@@ -195,12 +196,28 @@ pub struct Annotation {
     pub colour: Rgb,
 }
 
-/// One chart: axes, series, annotations.
+/// A filled rectangle in data coordinates (e.g. one cell of a table of values), with an
+/// optional centred text; `marked` crosses it out with two grey diagonals (e.g. an untrusted
+/// value).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Cell {
+    /// Lower and upper x edges.
+    pub x: (f64, f64),
+    /// Lower and upper y edges.
+    pub y: (f64, f64),
+    pub fill: Rgb,
+    pub text: Option<String>,
+    pub marked: bool,
+}
+
+/// One chart: axes, filled cells, series, annotations.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Panel {
     pub title: String,
     pub x: Axis,
     pub y: Axis,
+    /// Filled cells, drawn first (under the series).
+    pub cells: Vec<Cell>,
     pub series: Vec<Series>,
     pub annotations: Vec<Annotation>,
 }
@@ -212,6 +229,7 @@ impl Panel {
             title: title.into(),
             x,
             y,
+            cells: Vec::new(),
             series: Vec::new(),
             annotations: Vec::new(),
         }
@@ -266,9 +284,11 @@ impl Panel {
     }
 
     fn has_data(&self) -> bool {
-        self.series
-            .iter()
-            .any(|s| s.points.iter().any(|p| self.drawable(p)))
+        !self.cells.is_empty()
+            || self
+                .series
+                .iter()
+                .any(|s| s.points.iter().any(|p| self.drawable(p)))
     }
 
     /// The axis coordinates the panel is drawn in (ranges fitted to the data where not fixed).
@@ -520,6 +540,51 @@ fn draw_panel<DB: DrawingBackend>(
         .light_line_style(RGBColor(240, 240, 240))
         .draw()
         .map_err(drawing_error)?;
+    for c in &panel.cells {
+        let corners = [(c.x.0, c.y.0), (c.x.1, c.y.1)];
+        chart
+            .draw_series(std::iter::once(Rectangle::new(
+                corners,
+                style(c.fill, 1.0).filled(),
+            )))
+            .map_err(drawing_error)?;
+        chart
+            .draw_series(std::iter::once(Rectangle::new(
+                corners,
+                WHITE.stroke_width(2),
+            )))
+            .map_err(drawing_error)?;
+        if c.marked {
+            for (a, b) in [
+                ((c.x.0, c.y.0), (c.x.1, c.y.1)),
+                ((c.x.0, c.y.1), (c.x.1, c.y.0)),
+            ] {
+                chart
+                    .draw_series(std::iter::once(PathElement::new(
+                        vec![a, b],
+                        RGBColor(160, 160, 160).stroke_width(1),
+                    )))
+                    .map_err(drawing_error)?;
+            }
+        }
+        if let Some(text) = &c.text {
+            // dark text on light fills, white on dark ones (Rec. 601 luma)
+            let luma =
+                0.299 * c.fill[0] as f64 + 0.587 * c.fill[1] as f64 + 0.114 * c.fill[2] as f64;
+            let ink = if luma > 140.0 { BLACK } else { WHITE };
+            let font = (FONT_FAMILY, label_px)
+                .into_font()
+                .color(&ink)
+                .pos(Pos::new(HPos::Center, VPos::Center));
+            chart
+                .draw_series(std::iter::once(Text::new(
+                    text.clone(),
+                    ((c.x.0 + c.x.1) / 2.0, (c.y.0 + c.y.1) / 2.0),
+                    font,
+                )))
+                .map_err(drawing_error)?;
+        }
+    }
     let mut any_label = false;
     for s in &panel.series {
         let colour = style(s.colour, s.opacity);

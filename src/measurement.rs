@@ -35,7 +35,9 @@ use crate::pixelization::Pixelization;
 use crate::pooling::{combine_tiles, pooled_coefficients, pooled_cross_coefficients, TileSums};
 use crate::sampling::{SamplingMethod, TileGrids, TileSampler};
 use crate::skymap::SkyMap;
-use crate::statistics::{CoefficientKind, CoefficientSet, CompactStatistic, CrossCoefficientSet};
+use crate::statistics::{
+    CoefficientKind, CoefficientSet, CrossCoefficientSet, OrientationSummary, SummaryStatistic,
+};
 use crate::tile_spectra::{
     combine_bispectra, combine_power, FourierStatistics, TileBispectrum, TilePowerSpectrum,
     Triangle, WavenumberBins,
@@ -255,8 +257,8 @@ pub struct StatisticLabel {
 pub struct MapStatistics {
     /// The full labelled scattering set (orders 0–2 and band powers) with trust flags.
     pub coefficients: CoefficientSet,
-    /// The compact interpretable set.
-    pub compact: Vec<CompactStatistic>,
+    /// The orientation-harmonic summary ([`crate::statistics`]); empty when L = 1.
+    pub summary: Vec<SummaryStatistic>,
     /// Tile power spectrum, combined over tiles by core weight.
     pub tile_power: TilePowerSpectrum,
     /// Tile bispectrum, combined over tiles by core weight.
@@ -430,7 +432,9 @@ impl SphereMeasurer {
         let total = combine_tiles(&sums)?;
         let mut coefficients = pooled_coefficients(&self.engine, &total)?;
         self.flag_unresolved_scales(&mut coefficients);
-        let compact = coefficients.compact()?;
+        // defined for L ≥ 2; with a single orientation there is nothing to summarise over
+        // orientations and the summary (and its columns in `vector_labels`) is empty
+        let summary = coefficients.summary().unwrap_or_default();
         let powers: Vec<TilePowerSpectrum> = kept.iter().map(|t| t.1.clone()).collect();
         let tile_power = combine_power(&powers)?;
         let tile_bispectrum = if self.settings.bispectrum {
@@ -441,7 +445,7 @@ impl SphereMeasurer {
         };
         Ok(MapStatistics {
             coefficients,
-            compact,
+            summary,
             tile_power,
             tile_bispectrum,
             tiles: kept.len(),
@@ -591,30 +595,6 @@ impl SphereMeasurer {
         8.0 / 3.0 * (1u64 << j) as f64 * self.plan.pixel_size().to_degrees() * 60.0
     }
 
-    /// The names of the compact set, in its order, taken from the compact set of a placeholder
-    /// coefficient set of this engine's layout.
-    fn compact_names(&self) -> Vec<String> {
-        let placeholder = CoefficientSet {
-            scale_count: self.engine.scale_count(),
-            orientation_count: self.engine.orientation_count(),
-            coefficients: self
-                .engine
-                .labels()
-                .iter()
-                .map(|&label| crate::statistics::Coefficient {
-                    label,
-                    value: 1.0,
-                    trusted: true,
-                    kept_weight_fraction: 1.0,
-                })
-                .collect(),
-        };
-        placeholder
-            .compact()
-            .map(|c| c.into_iter().map(|s| s.name).collect())
-            .unwrap_or_default()
-    }
-
     /// Column labels of [`MapStatistics::vector`], in the same order.
     pub fn vector_labels(&self) -> Vec<StatisticLabel> {
         let mut out = Vec::new();
@@ -646,13 +626,15 @@ impl SphereMeasurer {
                 scale_arcmin: scale,
             });
         }
-        // compact names carry their scales in the name; the smallest scale index is parsed back
-        for name in self.compact_names() {
-            let scale = smallest_scale_in_name(&name).map(|j| self.wavelet_scale_arcmin(j));
-            out.push(StatisticLabel {
-                name: format!("compact.{name}"),
-                scale_arcmin: scale,
-            });
+        if let Ok(layout) =
+            OrientationSummary::new(self.engine.scale_count(), self.engine.orientation_count())
+        {
+            for label in layout.labels() {
+                out.push(StatisticLabel {
+                    name: format!("summary.{}", label.name()),
+                    scale_arcmin: label.j1.map(|j| self.wavelet_scale_arcmin(j)),
+                });
+            }
         }
         let bins = self.fourier.bins();
         for b in 0..bins.len() {
@@ -673,15 +655,9 @@ impl SphereMeasurer {
     }
 }
 
-fn smallest_scale_in_name(name: &str) -> Option<usize> {
-    name.split('_')
-        .filter_map(|p| p.parse::<usize>().ok())
-        .min()
-}
-
 impl MapStatistics {
     /// Every statistic as one vector, in the order of [`SphereMeasurer::vector_labels`]:
-    /// the full set, the compact set, the tile power spectrum and the tile bispectrum.
+    /// the full set, the orientation-harmonic summary, the tile power spectrum and the tile bispectrum.
     pub fn vector(&self) -> Vec<f64> {
         let mut v: Vec<f64> = self
             .coefficients
@@ -689,7 +665,7 @@ impl MapStatistics {
             .iter()
             .map(|c| c.value)
             .collect();
-        v.extend(self.compact.iter().map(|c| c.value));
+        v.extend(self.summary.iter().map(|c| c.value));
         v.extend(self.tile_power.power.iter().copied());
         if let Some(b) = &self.tile_bispectrum {
             v.extend(b.bispectrum.iter().copied());

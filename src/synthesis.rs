@@ -7,10 +7,11 @@
 //!
 //! L(f) = Σ_i ((s_i(f) − t_i) / σ_i)²,
 //!
-//! with σ_i = |t_i| by default (relative distance; [`Normalisation::Relative`]) or σ_i given by
+//! with σ_i = |t_i| by default (relative distance; [`Normalisation::Relative`]; for the
+//! summary's items that sit near 0 an absolute floor, see there) or σ_i given by
 //! the user ([`Normalisation::Given`], e.g. ensemble standard deviations). The statistics are
-//! the full coefficient set or the compact set of [`crate::statistics`] (user's choice), both
-//! *without the mean*, optionally followed by the field–envelope correlations
+//! the full coefficient set or the orientation-harmonic summary of [`crate::statistics`]
+//! (user's choice), both *without the mean*, optionally followed by the field–envelope correlations
 //! C_j = (1/L) Σ_l ⟨(f − μ) |f∗ψ_{j,l}|⟩ (J numbers, see below) and by the binned power spectrum
 //! P̂(k_b). All of them are
 //! invariant under adding a constant, so the gradient has zero mean and the mean of the field is
@@ -65,14 +66,13 @@ pub use tile_gradient::{TileForward, TileGeometry};
 
 use crate::transform::TransformSettings;
 
-use crate::statistics::{CoefficientKind, CoefficientLabel};
+use crate::statistics::{CoefficientKind, CoefficientLabel, OrientationSummary};
 use crate::tile_spectra::WavenumberBins;
 use crate::{Error, Result};
 use argmin::core::observers::{Observe, ObserverMode};
 use argmin::core::{CostFunction, Executor, Gradient, State, KV};
 use argmin::solver::linesearch::MoreThuenteLineSearch;
 use argmin::solver::quasinewton::LBFGS;
-use gradient::second_order_index;
 use num_complex::Complex64;
 use rand::SeedableRng;
 use rand_chacha::ChaCha20Rng;
@@ -84,15 +84,17 @@ use std::sync::{Arc, Mutex};
 pub enum StatisticChoice {
     /// Variance, S1(j,l), P(j,l) and S2(j1,l1,j2,l2): every coefficient but the mean.
     Full,
-    /// Variance, amplitude per scale, sparsity and shape anisotropy per scale pair
-    /// ([`crate::statistics`] compact set without the mean). Needs an even L.
-    Compact,
+    /// The orientation-harmonic summary without the mean ([`crate::statistics`]: rms, modulus
+    /// and modulus anisotropy per scale, intermittency and alignment per scale pair). Needs
+    /// L ≥ 2.
+    Summary,
 }
 
 /// The σ_i of the distance Σ ((s_i − t_i)/σ_i)².
 #[derive(Debug, Clone, PartialEq)]
 pub enum Normalisation {
-    /// σ_i = |t_i| (relative distance).
+    /// σ_i = |t_i| (relative distance); for the summary's alignment and modulus anisotropy
+    /// max(|t_i|, 0.1) ([`crate::statistics::SummaryKind::distance_scale`]).
     Relative,
     /// σ_i given, one per statistic (same order as [`FlatSynthesis::statistic_names`]).
     Given(Vec<f64>),
@@ -339,92 +341,48 @@ pub fn peak_counts(values: &[f64], size: usize, thresholds: &[f64]) -> Vec<usize
         .collect()
 }
 
-/// Compact statistics (without the mean) from the full coefficients c, and the adjoint map
-/// ∂L/∂s ↦ ∂L/∂c. Formulas in [`crate::statistics`].
-struct CompactMap {
-    jn: usize,
-    ln: usize,
+/// The orientation-harmonic summary without the mean from the full coefficients c, and its
+/// adjoint ∂L/∂s ↦ ∂L/∂c. Formulas in [`crate::statistics`].
+#[derive(Debug)]
+pub(crate) struct SummaryMap {
+    layout: OrientationSummary,
 }
 
-impl CompactMap {
-    fn s1(&self, j: usize, l: usize) -> usize {
-        2 + j * self.ln + l
+impl SummaryMap {
+    pub(crate) fn new(scale_count: usize, orientation_count: usize) -> Result<Self> {
+        Ok(Self {
+            layout: OrientationSummary::new(scale_count, orientation_count)?,
+        })
     }
 
-    fn values(&self, c: &[f64]) -> Vec<f64> {
-        let (jn, ln) = (self.jn, self.ln);
-        let mut out = vec![c[1]];
-        for j in 0..jn {
-            out.push((0..ln).map(|l| c[self.s1(j, l)]).sum::<f64>() / ln as f64);
-        }
-        for j1 in 0..jn {
-            for j2 in (j1 + 1)..jn {
-                let mut sum = 0.0;
-                for l1 in 0..ln {
-                    for l2 in 0..ln {
-                        sum += c[second_order_index(jn, ln, j1, l1, j2, l2)] / c[self.s1(j1, l1)];
-                    }
-                }
-                out.push(sum / (ln * ln) as f64);
-            }
-        }
-        for j1 in 0..jn {
-            for j2 in (j1 + 1)..jn {
-                let (a, b) = self.parallel_perpendicular(c, j1, j2);
-                out.push(a / b);
-            }
-        }
-        out
+    /// Names of the matched items (the summary without the mean).
+    pub(crate) fn names(&self) -> Vec<String> {
+        self.layout.names().split_off(1)
     }
 
-    fn parallel_perpendicular(&self, c: &[f64], j1: usize, j2: usize) -> (f64, f64) {
-        let (jn, ln) = (self.jn, self.ln);
-        let mut a = 0.0;
-        let mut b = 0.0;
-        for l1 in 0..ln {
-            a += c[second_order_index(jn, ln, j1, l1, j2, l1)];
-            b += c[second_order_index(jn, ln, j1, l1, j2, (l1 + ln / 2) % ln)];
-        }
-        (a, b)
+    pub(crate) fn len(&self) -> usize {
+        self.layout.len() - 1
     }
 
-    fn adjoint(&self, c: &[f64], ds: &[f64]) -> Vec<f64> {
-        let (jn, ln) = (self.jn, self.ln);
-        let mut dc = vec![0.0; c.len()];
-        dc[1] = ds[0];
-        let mut k = 1;
-        for j in 0..jn {
-            for l in 0..ln {
-                dc[self.s1(j, l)] += ds[k] / ln as f64;
-            }
-            k += 1;
-        }
-        let norm = (ln * ln) as f64;
-        for j1 in 0..jn {
-            for j2 in (j1 + 1)..jn {
-                for l1 in 0..ln {
-                    let i1 = self.s1(j1, l1);
-                    for l2 in 0..ln {
-                        let i2 = second_order_index(jn, ln, j1, l1, j2, l2);
-                        dc[i2] += ds[k] / (norm * c[i1]);
-                        dc[i1] -= ds[k] * c[i2] / (norm * c[i1] * c[i1]);
-                    }
-                }
-                k += 1;
-            }
-        }
-        for j1 in 0..jn {
-            for j2 in (j1 + 1)..jn {
-                let (a, b) = self.parallel_perpendicular(c, j1, j2);
-                for l1 in 0..ln {
-                    dc[second_order_index(jn, ln, j1, l1, j2, l1)] += ds[k] / b;
-                    dc[second_order_index(jn, ln, j1, l1, j2, (l1 + ln / 2) % ln)] -=
-                        ds[k] * a / (b * b);
-                }
-                k += 1;
-            }
-        }
-        dc
+    pub(crate) fn values(&self, c: &[f64]) -> Vec<f64> {
+        self.layout.values(c).split_off(1)
+    }
+
+    /// The relative-distance scale σ_i of each matched item at the target values
+    /// ([`crate::statistics::SummaryKind::distance_scale`]).
+    pub(crate) fn distance_scales(&self, values: &[f64]) -> Vec<f64> {
+        self.layout.labels()[1..]
+            .iter()
+            .zip(values)
+            .map(|(label, &t)| label.kind.distance_scale(t))
+            .collect()
+    }
+
+    pub(crate) fn adjoint(&self, c: &[f64], ds: &[f64]) -> Vec<f64> {
+        let mut dv = Vec::with_capacity(ds.len() + 1);
+        dv.push(0.0);
+        dv.extend_from_slice(ds);
+        self.layout.adjoint(c, &dv)
     }
 }
 
@@ -454,14 +412,8 @@ pub struct FlatSynthesis {
     cropped: Option<TileGeometry>,
     settings: SynthesisSettings,
     power: Option<PowerTerm>,
-    compact: Option<CompactMap>,
+    summary: Option<SummaryMap>,
     pixel_size: f64,
-}
-
-impl std::fmt::Debug for CompactMap {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        write!(f, "CompactMap(J={}, L={})", self.jn, self.ln)
-    }
 }
 
 impl FlatSynthesis {
@@ -490,19 +442,9 @@ impl FlatSynthesis {
             ));
         }
         let transform = DifferentiableScattering::new(size, scale_count, orientation_count)?;
-        let compact = match settings.statistics {
+        let summary = match settings.statistics {
             StatisticChoice::Full => None,
-            StatisticChoice::Compact => {
-                if !orientation_count.is_multiple_of(2) {
-                    return Err(Error::Setting(format!(
-                        "the compact set needs an even number of orientations L, got L = {orientation_count}"
-                    )));
-                }
-                Some(CompactMap {
-                    jn: scale_count,
-                    ln: orientation_count,
-                })
-            }
+            StatisticChoice::Summary => Some(SummaryMap::new(scale_count, orientation_count)?),
         };
         let power = match settings.power_spectrum_bins {
             Some(0) => {
@@ -529,7 +471,7 @@ impl FlatSynthesis {
             cropped,
             settings,
             power,
-            compact,
+            summary,
             pixel_size,
         };
         if let Normalisation::Given(sigma) = &out.settings.normalisation {
@@ -600,28 +542,12 @@ impl FlatSynthesis {
 
     /// Names of the matched statistics, in order.
     pub fn statistic_names(&self) -> Vec<String> {
-        let mut names: Vec<String> = match &self.compact {
+        let mut names: Vec<String> = match &self.summary {
             None => self.transform.labels()[1..]
                 .iter()
                 .map(label_name)
                 .collect(),
-            Some(m) => {
-                let mut v = vec!["variance".to_string()];
-                for j in 0..m.jn {
-                    v.push(format!("amplitude_scale_{j}"));
-                }
-                for j1 in 0..m.jn {
-                    for j2 in (j1 + 1)..m.jn {
-                        v.push(format!("sparsity_scales_{j1}_{j2}"));
-                    }
-                }
-                for j1 in 0..m.jn {
-                    for j2 in (j1 + 1)..m.jn {
-                        v.push(format!("shape_anisotropy_scales_{j1}_{j2}"));
-                    }
-                }
-                v
-            }
+            Some(m) => m.names(),
         };
         if self.settings.field_envelope_correlation {
             names.extend(
@@ -635,14 +561,14 @@ impl FlatSynthesis {
     }
 
     fn select(&self, coefficients: &[f64]) -> Vec<f64> {
-        match &self.compact {
+        match &self.summary {
             None => coefficients[1..].to_vec(),
             Some(m) => m.values(coefficients),
         }
     }
 
     fn select_adjoint(&self, coefficients: &[f64], ds: &[f64]) -> Vec<f64> {
-        match &self.compact {
+        match &self.summary {
             None => {
                 let mut dc = vec![0.0; coefficients.len()];
                 dc[1..].copy_from_slice(ds);
@@ -763,6 +689,10 @@ impl FlatSynthesis {
             return Ok(s.clone());
         }
         let mut sigma: Vec<f64> = values.iter().map(|t| t.abs()).collect();
+        if let Some(m) = &self.summary {
+            let k = m.len();
+            sigma[..k].copy_from_slice(&m.distance_scales(&values[..k]));
+        }
         if self.settings.field_envelope_correlation {
             let (jn, ln) = (self.scale_count(), self.orientation_count());
             let start = self.select(coefficients).len();

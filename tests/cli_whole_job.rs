@@ -34,7 +34,7 @@ fn demo_runs_the_whole_job_and_its_scattering_set_beats_the_power_spectrum_on_no
         tmp.path(),
     );
     assert!(ok, "{stderr}");
-    assert!(stdout.contains("compact scattering set"), "{stdout}");
+    assert!(stdout.contains("orientation-harmonic summary"), "{stdout}");
     let d = tmp.path().join("d");
     for f in [
         "forecast.json",
@@ -52,13 +52,13 @@ fn demo_runs_the_whole_job_and_its_scattering_set_beats_the_power_spectrum_on_no
     let fc: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(d.join("forecast.json")).unwrap()).unwrap();
     assert_eq!(fc["parameters"], serde_json::json!(["amplitude", "shift"]));
-    let compact = fc["sets"]
+    let summary = fc["sets"]
         .as_array()
         .unwrap()
         .iter()
-        .find(|s| s["name"] == "compact scattering set")
+        .find(|s| s["name"] == "orientation-harmonic summary")
         .unwrap();
-    let errs = compact["marginalised_errors"].as_array().unwrap();
+    let errs = summary["marginalised_errors"].as_array().unwrap();
     assert!(errs.iter().all(|e| e.as_f64().unwrap() > 0.0));
     // The demo's claim: the power spectrum alone nearly only sees κ0²·A, so its marginalised
     // error on the non-Gaussianity parameter A is much larger than the scattering set's
@@ -74,9 +74,12 @@ fn demo_runs_the_whole_job_and_its_scattering_set_beats_the_power_spectrum_on_no
             .as_f64()
             .unwrap()
     };
-    let ratio =
-        sigma_amplitude("power spectrum (pseudo-C_l)") / sigma_amplitude("compact scattering set");
-    assert!(ratio > 2.0, "σ(A) power spectrum / compact set = {ratio}");
+    let ratio = sigma_amplitude("power spectrum (pseudo-C_l)")
+        / sigma_amplitude("orientation-harmonic summary");
+    assert!(
+        ratio > 2.0,
+        "σ(A) power spectrum / orientation-harmonic summary = {ratio}"
+    );
     // a rerun resumes: nothing is measured again and the table is unchanged
     let before = std::fs::read(d.join("fiducial/statistics.npy")).unwrap();
     let (ok, _, stderr) = planisphere(

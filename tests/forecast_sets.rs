@@ -228,7 +228,7 @@ fn text_table_is_aligned_and_csv_round_trips() {
     let labels = named_labels();
     let sets = vec![
         StatisticSet::all("orders 1+2 and band powers", &labels).unwrap(),
-        StatisticSet::with_names("compact", &labels, &["bp_ell100", "s1_j0", "s1_j4"]).unwrap(),
+        StatisticSet::with_names("subset", &labels, &["bp_ell100", "s1_j0", "s1_j4"]).unwrap(),
     ];
     let table = compare_statistic_sets(&inp.fiducial, &inp.derivatives, &sets).unwrap();
     let text = table.to_text();
@@ -264,7 +264,7 @@ fn text_table_is_aligned_and_csv_round_trips() {
         }
     }
     let json = serde_json::to_string(&table).unwrap();
-    assert!(json.contains("\"marginalised_errors\"") && json.contains("\"compact\""));
+    assert!(json.contains("\"marginalised_errors\"") && json.contains("\"subset\""));
 }
 
 // Source: common practice — every ensemble must describe the same statistics.

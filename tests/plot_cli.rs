@@ -101,7 +101,7 @@ const FORECAST: &str = r#"{"parameters": ["amplitude", "shift"], "fiducial": [1.
    "marginalised_errors": [0.1, 0.01]},
   {"name": "scattering", "parameter_covariance": [[0.0025, -0.0001], [-0.0001, 0.00004]],
    "marginalised_errors": [0.05, 0.0063]},
-  {"name": "compact", "parameter_covariance": null, "marginalised_errors": null}]}"#;
+  {"name": "summary", "parameter_covariance": null, "marginalised_errors": null}]}"#;
 
 #[test]
 fn each_picture_is_written_as_png_or_svg() {
@@ -132,7 +132,7 @@ fn each_picture_is_written_as_png_or_svg() {
         let run = planisphere(&["plot", "ellipses", s(&forecast), "-o", s(&out)]);
         assert_eq!(run.code, 0, "{}", run.stderr);
         // The set without a covariance is named on stderr and skipped.
-        assert!(run.stderr.contains("compact"), "{}", run.stderr);
+        assert!(run.stderr.contains("summary"), "{}", run.stderr);
         if name.ends_with(".png") {
             assert_png(&out);
         } else {

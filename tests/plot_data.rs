@@ -1,18 +1,19 @@
 //! What the `plot` pictures are made of, checked as data before it reaches plotters: ellipse
-//! outlines, orientation averages and sparsity ratios of a measurement file, and per-tile values
+//! outlines, orientation averages and the orientation-harmonic summary of a measurement file, and per-tile values
 //! of a tile map.
 
 use planisphere::cli::measure::measurement_document;
 use planisphere::cli::plot::{
-    band_power_by_scale, coefficients_figure, ellipses_figure, first_order_by_scale, paint_tiles,
-    parameter_pair, set_ellipses, sparsity_ratios, tile_values, ForecastFile, MeasurementFile,
-    TileStatistic, ELLIPSE_POINTS,
+    band_power_by_scale, coefficients_figure, ellipses_figure, file_summary, paint_tiles,
+    pair_items, parameter_pair, scale_items, set_ellipses, tile_values, ForecastFile,
+    MeasurementFile, TileStatistic, ELLIPSE_POINTS,
 };
 use planisphere::forecast::{ConfidenceEllipse, ConfidenceLevel};
 use planisphere::measurement::{MapStatistics, MeasurementSettings, SphereMeasurer};
 use planisphere::pooling::pooled_coefficients;
 use planisphere::skies::SkyRecipe;
 use planisphere::spectrum::AngularSpectrum;
+use planisphere::statistics::SummaryKind;
 use planisphere::{Footprint, SkyMap};
 
 const FORECAST: &str = r#"{
@@ -22,7 +23,7 @@ const FORECAST: &str = r#"{
     {"name": "power spectrum", "parameter_covariance":
         [[0.01, 0.0008, 0.001], [0.0008, 0.0001, -0.0002], [0.001, -0.0002, 0.04]],
      "marginalised_errors": [0.1, 0.01, 0.2]},
-    {"name": "compact", "parameter_covariance": null, "marginalised_errors": null},
+    {"name": "summary", "parameter_covariance": null, "marginalised_errors": null},
     {"name": "scattering", "parameter_covariance":
         [[0.0025, -0.0001, 0.0], [-0.0001, 0.00004, 0.0], [0.0, 0.0, 0.01]]}
   ]
@@ -47,7 +48,7 @@ fn ellipse_outlines_are_the_confidence_ellipse_polylines() {
     let (sets, skipped) = set_ellipses(&file, a, b).unwrap();
     assert_eq!(sets.len(), 2);
     assert_eq!(skipped.len(), 1);
-    assert!(skipped[0].contains("compact"), "{skipped:?}");
+    assert!(skipped[0].contains("summary"), "{skipped:?}");
     let figure = ellipses_figure(&file, a, b, &sets, 800);
     let series = &figure.panels[0].series;
     // Two outlines per set (68%, 95%) and the fiducial marker.
@@ -310,30 +311,35 @@ fn measurement_file() -> (SphereMeasurer, MapStatistics, MeasurementFile) {
 }
 
 #[test]
-fn scale_averages_and_sparsity_match_the_compact_set() {
-    // The compact set (crate::statistics) is computed from the full set in memory; the plot
-    // recomputes the same definitions from the JSON file.
+fn summary_recomputed_from_the_file_matches_the_measured_summary() {
+    // The summary (crate::statistics) is computed from the full set in memory; the plot
+    // recomputes it from the coefficient records of the JSON file.
     let (_, stats, file) = measurement_file();
-    let compact = |name: &str| {
-        stats
-            .compact
-            .iter()
-            .find(|c| c.name == name)
-            .unwrap_or_else(|| panic!("{name}"))
-            .value
-    };
-    let s1 = first_order_by_scale(&file);
-    assert_eq!(s1.len(), 3);
-    for a in &s1 {
-        let want = compact(&format!("amplitude_scale_{}", a.j));
-        assert!((a.mean.unwrap() - want).abs() < 1e-14 * want, "j = {}", a.j);
-        assert_eq!(a.per_orientation.len(), 4);
+    let from_file = file_summary(&file);
+    assert_eq!(from_file.len(), stats.summary.len());
+    for (a, b) in from_file.iter().zip(&stats.summary) {
+        assert_eq!(a.name, b.name);
+        assert_eq!(a.trusted, b.trusted, "{}", a.name);
+        assert!(
+            (a.value - b.value).abs() <= 1e-14 * b.value.abs().max(1e-300),
+            "{}: {} vs {}",
+            a.name,
+            a.value,
+            b.value
+        );
     }
-    let ratios = sparsity_ratios(&file);
-    assert_eq!(ratios.len(), 3); // (0,1), (0,2), (1,2)
-    for r in &ratios {
-        let want = compact(&format!("sparsity_scales_{}_{}", r.j1, r.j2));
-        assert!((r.value - want).abs() < 1e-13 * want, "{r:?} {want}");
+    let inter = pair_items(&file, SummaryKind::Intermittency);
+    assert_eq!(inter.len(), 3); // (0,1), (0,2), (1,2)
+    let moduli = scale_items(&file, SummaryKind::Modulus);
+    assert_eq!(moduli.len(), 3);
+    for (j, v, _) in moduli {
+        let want = stats
+            .summary
+            .iter()
+            .find(|s| s.name == format!("modulus_j{j}"))
+            .unwrap()
+            .value;
+        assert_eq!(v, want);
     }
     for a in band_power_by_scale(&file) {
         let want: f64 = (0..4)
@@ -345,43 +351,62 @@ fn scale_averages_and_sparsity_match_the_compact_set() {
 }
 
 #[test]
-fn coefficient_panels_show_the_averages_with_angular_scales_and_hollow_untrusted_points() {
+fn coefficient_panels_show_the_summary_against_arcmin_and_scale_pair_cells_crossed_out_when_untrusted(
+) {
     let (measurer, _, mut file) = measurement_file();
-    // All trusted but S1(j = 2, l = 1): the j = 2 mean is then drawn hollow (the trust rule of
-    // the sampling would otherwise flag the smallest scales of this coarse test map too).
+    // All trusted but S1(j = 2, l = 1), which makes modulus_j2 hollow (no pair item uses
+    // S1 at j = 2 when J = 3), and S2(0,0,2,3), which crosses out the (0, 2) cells.
     for c in file.coefficients.iter_mut() {
         c.trusted = true;
-        if (c.order, c.j1, c.l1, c.j2) == (1, Some(2), Some(1), None) {
+        if (c.order, c.j1, c.l1, c.j2) == (1, Some(2), Some(1), None)
+            || (c.order, c.j1, c.l1, c.j2, c.l2) == (2, Some(0), Some(0), Some(2), Some(3))
+        {
             c.trusted = false;
         }
     }
     let fig = coefficients_figure(&[file.clone()], &["sky".to_string()], 1200).unwrap();
-    assert_eq!(fig.panels.len(), 4);
+    assert_eq!(fig.panels.len(), 6);
     let order1 = &fig.panels[0];
-    let mean_line = order1
-        .series
-        .iter()
-        .find(|s| s.line_width > 0)
-        .expect("a line of means");
-    let avg = first_order_by_scale(&file);
-    let ys: Vec<f64> = mean_line.points.iter().map(|p| p.y).collect();
-    let want: Vec<f64> = avg.iter().map(|a| a.mean.unwrap()).collect();
-    assert_eq!(ys, want);
-    let solid: Vec<bool> = mean_line.points.iter().map(|p| p.solid).collect();
-    assert_eq!(solid, vec![true, true, false]);
-    // Tick text: j and its angular scale (8/3)·2^j·Δ, as the measurer defines it.
-    let ticks = order1.x.ticks.as_ref().unwrap();
-    for (j, (x, text)) in ticks.iter().enumerate() {
-        assert_eq!(*x, j as f64);
-        let arcmin = measurer.wavelet_scale_arcmin(j);
-        assert_eq!(text, &format!("{j} ({:.0}′)", arcmin), "{arcmin}");
+    let line = &order1.series[0];
+    // x: the wavelet's angular scale in arcmin, as the measurer defines it
+    let xs: Vec<f64> = line.points.iter().map(|p| p.x).collect();
+    let want_x: Vec<f64> = (0..3).map(|j| measurer.wavelet_scale_arcmin(j)).collect();
+    for (x, w) in xs.iter().zip(&want_x) {
+        assert!((x - w).abs() < 1e-9 * w, "{x} vs {w}");
     }
-    // Order 2: one line per j1 < J − 1, points at j2 > j1.
-    let order2 = &fig.panels[1];
-    assert_eq!(order2.series.len(), 2);
-    assert_eq!(order2.series[0].points.len(), 2);
-    assert!(order2.series[0].points.iter().all(|p| p.x > 0.0));
-    // Overlaying two files: two legend entries per averaged panel.
+    let ys: Vec<f64> = line.points.iter().map(|p| p.y).collect();
+    let want_y: Vec<f64> = scale_items(&file, SummaryKind::Modulus)
+        .iter()
+        .map(|t| t.1)
+        .collect();
+    assert_eq!(ys, want_y);
+    let solid: Vec<bool> = line.points.iter().map(|p| p.solid).collect();
+    assert_eq!(solid, vec![true, true, false]);
+    // Scale-pair triangles: one cell per j1 < j2, at column j2 and row j1, crossed out when
+    // untrusted; not a curve against j2.
+    for (panel, kind) in [
+        (&fig.panels[2], SummaryKind::Intermittency),
+        (&fig.panels[3], SummaryKind::Alignment),
+    ] {
+        assert!(panel.series.is_empty());
+        let items = pair_items(&file, kind);
+        assert_eq!(panel.cells.len(), items.len());
+        for (cell, item) in panel.cells.iter().zip(&items) {
+            assert_eq!((cell.x.0 + cell.x.1) / 2.0, item.j2 as f64);
+            assert_eq!((cell.y.0 + cell.y.1) / 2.0, item.j1 as f64);
+            assert_eq!(cell.marked, (item.j1, item.j2) == (0, 2), "{item:?}");
+            let text = cell.text.as_deref().unwrap();
+            assert!(text.contains(&format!("{:.3}", item.value)), "{text}");
+        }
+        // tick text: j and its angular scale (8/3)·2^j·Δ
+        let ticks = panel.x.ticks.as_ref().unwrap();
+        for (x, text) in ticks {
+            let j = *x as usize;
+            let arcmin = measurer.wavelet_scale_arcmin(j);
+            assert_eq!(text, &format!("{j} ({:.0}′)", arcmin), "{arcmin}");
+        }
+    }
+    // Overlaying two files: two legend entries per line panel, two strips per cell.
     let two = coefficients_figure(
         &[file.clone(), file],
         &["a".to_string(), "b".to_string()],
@@ -394,4 +419,7 @@ fn coefficient_panels_show_the_averages_with_angular_scales_and_hollow_untrusted
         .filter_map(|s| s.label.as_deref())
         .collect();
     assert_eq!(labels, vec!["a", "b"]);
+    assert_eq!(two.panels[2].cells.len(), 6);
+    let strip = &two.panels[2].cells[3];
+    assert!((strip.x.1 - strip.x.0 - 0.5).abs() < 1e-12);
 }

@@ -79,7 +79,7 @@ fn loss(s: &SphereSynthesis, target: &SphereTarget, values: &[f64]) -> f64 {
 
 #[test]
 fn pooled_loss_gradient_matches_central_differences() {
-    for statistics in [StatisticChoice::Full, StatisticChoice::Compact] {
+    for statistics in [StatisticChoice::Full, StatisticChoice::Summary] {
         let s = synthesis(statistics, 10, StartField::White);
         let target = s.target_from_map(&sky(1)).unwrap();
         let point = sky(2);
@@ -161,7 +161,7 @@ fn synthesis_from_white_noise_reproduces_the_pooled_coefficients() {
 
 #[test]
 fn pixels_outside_the_footprint_are_never_changed() {
-    let s = synthesis(StatisticChoice::Compact, 15, StartField::Gaussian);
+    let s = synthesis(StatisticChoice::Summary, 15, StartField::Gaussian);
     let target = s.target_from_map(&sky(1)).unwrap();
     let outcome = s.synthesise(&target).unwrap();
     let fp = s.footprint();

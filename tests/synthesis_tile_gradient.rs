@@ -356,7 +356,7 @@ fn cropped_synthesis_coefficients_equal_default_engine_measurement() {
     assert!(worst_relative(&ours, &full) > 1e-9);
 }
 
-/// Gradient of the synthesis loss on the cropped path (full set, compact set, power bins)
+/// Gradient of the synthesis loss on the cropped path (full set, orientation-harmonic summary, power bins)
 /// against central differences.
 #[test]
 fn cropped_synthesis_loss_gradient_matches_central_differences() {
@@ -370,7 +370,7 @@ fn cropped_synthesis_loss_gradient_matches_central_differences() {
     let v = random_vector(n * n, 54);
     for (choice, bins) in [
         (StatisticChoice::Full, None),
-        (StatisticChoice::Compact, Some(6)),
+        (StatisticChoice::Summary, Some(6)),
     ] {
         let settings = SynthesisSettings {
             statistics: choice,

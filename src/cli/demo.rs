@@ -292,10 +292,10 @@ pub fn run(args: &DemoArgs) -> Result<()> {
     };
     if let (Some(ps), Some(sc)) = (
         err("power spectrum (pseudo-C_l)", 0),
-        err("compact scattering set", 0),
+        err("orientation-harmonic summary", 0),
     ) {
         println!(
-            "\nnon-Gaussianity (amplitude A of the Gaussian field): σ(power spectrum) / σ(compact scattering set) = {:.2}",
+            "\nnon-Gaussianity (amplitude A of the Gaussian field): σ(power spectrum) / σ(orientation-harmonic summary) = {:.2}",
             ps / sc
         );
     }

@@ -1,6 +1,6 @@
 //! `planisphere forecast`: Fisher forecasts from ensembles — covariance from a fiducial
 //! ensemble (with the Hartlap factor), derivatives from ensembles at θ ± Δθ, and a comparison of
-//! statistic sets (power spectrum, band powers, order 1, orders 1+2, compact set, bispectrum).
+//! statistic sets (power spectrum, band powers, order 1, orders 1+2, orientation-harmonic summary, bispectrum).
 
 use super::output::{write_bytes, write_json};
 use crate::ensemble::{EnsembleJob, MergedTable};
@@ -62,8 +62,12 @@ pub const STATISTIC_SETS: &[(&str, &[&str])] = &[
     ("scattering order 1", &["full.S1_"]),
     ("scattering orders 1+2", &["full.S1_", "full.S2_"]),
     (
-        "compact scattering set",
-        &["compact.amplitude", "compact.sparsity", "compact.shape"],
+        "orientation-harmonic summary",
+        &[
+            "summary.modulus_j",
+            "summary.intermittency_",
+            "summary.alignment_",
+        ],
     ),
     ("bispectrum", &["bispectrum."]),
 ];
@@ -420,7 +424,7 @@ fn read_plan(path: &Path) -> Result<PlanFile> {
 }
 
 /// Runs a `--plan`: one comparison per case and scale cut, in one table whose set names carry
-/// the case and the cut ("compact scattering set [noise 0.3; scales ≥ 30′]").
+/// the case and the cut ("orientation-harmonic summary [noise 0.3; scales ≥ 30′]").
 fn run_plan(args: &ForecastArgs, path: &Path) -> Result<()> {
     let plan = read_plan(path)?;
     let names: Vec<String> = plan.cases[0]

@@ -1,4 +1,4 @@
-//! `planisphere measure`: scattering coefficients, compact set, band powers, tile power spectrum
+//! `planisphere measure`: scattering coefficients, orientation-harmonic summary, band powers, tile power spectrum
 //! and bispectrum of one map on its footprint, written as JSON; with `--cross OTHER.fits`, the
 //! same for both maps on their common footprint plus their cross statistics.
 
@@ -226,7 +226,7 @@ fn cross_section(
         "footprint": "common footprint of both maps (smaller weight per pixel), tapered",
         "map_statistics": {
             "coefficients": own["coefficients"],
-            "compact": own["compact"],
+            "summary": own["summary"],
             "band_powers": own["band_powers"],
             "tile_power_spectrum": own["tile_power_spectrum"],
             "tile_bispectrum": own["tile_bispectrum"],
@@ -317,7 +317,7 @@ pub fn measurement_document(
         "tiling": measurer.summary(),
         "tiles_measured": stats.tiles,
         "coefficients": coefficients,
-        "compact": stats.compact,
+        "summary": stats.summary,
         "band_powers": band_powers,
         "tile_power_spectrum": stats.tile_power,
         "tile_bispectrum": stats.tile_bispectrum,
@@ -403,20 +403,20 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
         .filter(|c| c.trusted)
         .count();
     println!(
-        "{} tiles ({}, {}² pixels of {:.2}′): {} coefficients ({} trusted), {} compact, written to {}",
+        "{} tiles ({}, {}² pixels of {:.2}′): {} coefficients ({} trusted), {} summary items, written to {}",
         stats.tiles,
         summary.cells,
         summary.tile_pixels,
         summary.pixel_size_arcmin,
         stats.coefficients.coefficients.len(),
         trusted,
-        stats.compact.len(),
+        stats.summary.len(),
         args.output.display()
     );
     if let Some((_, count, trusted)) = &cross {
         println!("  cross statistics with the second map: {count} ({trusted} trusted)");
     }
-    for c in &stats.compact {
+    for c in &stats.summary {
         println!(
             "  {:<32} {:>13.6e}{}",
             c.name,

@@ -1,9 +1,11 @@
 //! `planisphere plot`: pictures of measurements, forecasts and per-tile statistics.
 //!
 //! - `plot coefficients M.json [MORE.json …]`: one panel per order of the measurement files
-//!   written by `measure` — ⟨S1(j,l)⟩_l against the wavelet scale j, the sparsity
-//!   ⟨S2(j1,l1,j2,l2)/S1(j1,l1)⟩_{l1,l2} against j2 (one line per j1), the band powers
-//!   ⟨P(j,l)⟩_l against j, and the tile power spectrum P(k); several files overlaid.
+//!   written by `measure` — the orientation-harmonic summary ([`crate::statistics`]): the mean
+//!   modulus and its anisotropy against the wavelet's angular scale in arcmin, and two
+//!   triangles of (j1, j2) cells coloured by the intermittency and the alignment (crossed out
+//!   where untrusted, one strip per file); the band powers ⟨P(j,l)⟩_l against j, and the tile
+//!   power spectrum P(k); several files overlaid.
 //! - `plot ellipses FORECAST.json`: 68% and 95% Fisher ellipses of each statistic set.
 //! - `plot tile-map MAP.fits`: a Mollweide map of one statistic measured tile by tile.
 //! - `plot flat-bias TABLE.csv`: the flat-sky bias measured by `compare-flat`, per
@@ -16,8 +18,8 @@ use super::inputs::{load_map, MaskArgs};
 use super::measure::MeasureOptions;
 use super::output::write_bytes;
 use crate::charts::{
-    append_colour_bar, palette, Annotation, Axis, AxisScale, ChartPoint, ColourBar, Figure,
-    ImageFormat, MarkerShape, Panel, Series,
+    append_colour_bar, palette, Axis, AxisScale, Cell, ChartPoint, ColourBar, Figure, ImageFormat,
+    MarkerShape, Panel, Series,
 };
 use crate::error::{Error, Result};
 use crate::fits_io::ColumnChoice;
@@ -25,9 +27,13 @@ use crate::forecast::{ConfidenceEllipse, ConfidenceLevel};
 use crate::measurement::{MapStatistics, SphereMeasurer};
 use crate::pixelization::{Ordering, Pixelization};
 use crate::plotting::SkyPicture;
+use crate::plotting::{colour_ramp, Rgb};
 use crate::sampling::TileSampler;
 use crate::skymap::SkyMap;
-use crate::statistics::{CoefficientKind, CoefficientLabel};
+use crate::statistics::{
+    first_order_position, second_order_position, CoefficientKind, CoefficientLabel,
+    OrientationSummary, SummaryKind, SummaryStatistic,
+};
 use clap::Subcommand;
 use std::path::{Path, PathBuf};
 
@@ -45,8 +51,9 @@ pub struct PlotArgs {
 #[derive(Debug, Subcommand)]
 #[allow(clippy::large_enum_variant)] // parsed once per run
 pub enum Picture {
-    /// Scattering coefficients, sparsity, band powers and tile power spectrum of measurement
-    /// files (written by `measure`), overlaid.
+    /// The orientation-harmonic summary (modulus, anisotropy, intermittency and alignment
+    /// triangles), band powers and tile power spectrum of measurement files (written by
+    /// `measure`), overlaid.
     Coefficients(CoefficientsArgs),
     /// 68% and 95% Fisher ellipses of the statistic sets of a forecast file.
     Ellipses(EllipsesArgs),
@@ -278,61 +285,235 @@ pub fn band_power_by_scale(file: &MeasurementFile) -> Vec<ScaleAverage> {
     scale_averages(&file.band_powers, 1, s.scales, s.orientations)
 }
 
-/// One sparsity value ⟨S2(j1,l1,j2,l2) / S1(j1,l1)⟩_{l1,l2}.
+/// The orientation-harmonic summary ([`crate::statistics`]) of a measurement file, computed
+/// from its coefficient records; a coefficient missing from the file makes the items built on
+/// it NaN and untrusted.
+pub fn file_summary(file: &MeasurementFile) -> Vec<SummaryStatistic> {
+    let (jn, ln) = (file.settings.scales, file.settings.orientations);
+    let Ok(layout) = OrientationSummary::new(jn, ln) else {
+        return Vec::new();
+    };
+    let count = 2 + 2 * jn * ln + ln * ln * jn * jn.saturating_sub(1) / 2;
+    let mut values = vec![f64::NAN; count];
+    let mut trusted = vec![false; count];
+    for c in &file.coefficients {
+        let slot = match (c.order, c.j1, c.l1, c.j2, c.l2, c.kind.as_deref()) {
+            (0, _, _, _, _, Some("mean")) => Some(0),
+            (0, _, _, _, _, Some("variance")) => Some(1),
+            (1, Some(j), Some(l), None, _, _)
+                if c.kind.as_deref().is_none_or(|k| k == "scattering") =>
+            {
+                Some(first_order_position(ln, j, l))
+            }
+            (2, Some(j1), Some(l1), Some(j2), Some(l2), _) if j1 < j2 => {
+                Some(second_order_position(jn, ln, j1, l1, j2, l2))
+            }
+            _ => None,
+        };
+        if let Some(i) = slot {
+            values[i] = c.value.unwrap_or(f64::NAN);
+            trusted[i] = c.trusted && values[i].is_finite();
+        }
+    }
+    layout
+        .names()
+        .into_iter()
+        .zip(layout.values(&values))
+        .zip(layout.trusted(&trusted))
+        .map(|((name, value), trusted)| SummaryStatistic {
+            name,
+            value,
+            trusted: trusted && value.is_finite(),
+        })
+        .collect()
+}
+
+/// One scale-pair item of the summary (intermittency or alignment) of a measurement file.
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub struct Sparsity {
+pub struct PairItem {
     pub j1: usize,
     pub j2: usize,
     pub value: f64,
-    /// True when every S2 and S1 it is built from is trusted.
     pub trusted: bool,
 }
 
-/// The sparsity ratios of every j1 < j2 that have values, averaged over the (l1, l2) pairs with
-/// a finite S2 and a finite non-zero S1 (the compact set's definition, see
-/// [`crate::statistics`]).
-pub fn sparsity_ratios(file: &MeasurementFile) -> Vec<Sparsity> {
-    let (jn, ln) = (file.settings.scales, file.settings.orientations);
-    let mut s1 = vec![None; jn * ln];
-    for c in &file.coefficients {
-        if let (1, Some(j), Some(l), None) = (c.order, c.j1, c.l1, c.j2) {
-            if c.kind.as_deref().is_none_or(|k| k == "scattering") {
-                s1[j * ln + l] = c
-                    .value
-                    .filter(|v| v.is_finite() && *v != 0.0)
-                    .map(|v| (v, c.trusted));
-            }
-        }
+/// The scale-pair items of one kind (`SummaryKind::Intermittency` or `Alignment`) of a file.
+pub fn pair_items(file: &MeasurementFile, kind: SummaryKind) -> Vec<PairItem> {
+    let summary = file_summary(file);
+    let Ok(layout) = OrientationSummary::new(file.settings.scales, file.settings.orientations)
+    else {
+        return Vec::new();
+    };
+    layout
+        .labels()
+        .iter()
+        .zip(&summary)
+        .filter_map(|(label, item)| match (label.j1, label.j2) {
+            (Some(j1), Some(j2)) if label.kind == kind => Some(PairItem {
+                j1,
+                j2,
+                value: item.value,
+                trusted: item.trusted,
+            }),
+            _ => None,
+        })
+        .collect()
+}
+
+/// Per-scale items of one kind (`SummaryKind::Modulus` or `ModulusAnisotropy`) of a file, as
+/// (j, value, trusted).
+pub fn scale_items(file: &MeasurementFile, kind: SummaryKind) -> Vec<(usize, f64, bool)> {
+    let summary = file_summary(file);
+    let Ok(layout) = OrientationSummary::new(file.settings.scales, file.settings.orientations)
+    else {
+        return Vec::new();
+    };
+    layout
+        .labels()
+        .iter()
+        .zip(&summary)
+        .filter_map(|(label, item)| {
+            (label.kind == kind && label.j2.is_none()).then_some((
+                label.j1?,
+                item.value,
+                item.trusted,
+            ))
+        })
+        .collect()
+}
+
+/// A diverging colour for `t` in [−1, 1] (clamped): blue through white to red; NaN gives grey.
+pub fn diverging_colour(t: f64) -> Rgb {
+    if t.is_nan() {
+        return [150, 150, 150];
     }
-    let mut acc: Vec<(f64, usize, bool)> = vec![(0.0, 0, true); jn * jn];
-    for c in &file.coefficients {
-        if let (2, Some(j1), Some(l1), Some(j2), Some(_)) = (c.order, c.j1, c.l1, c.j2, c.l2) {
-            let slot = &mut acc[j1 * jn + j2];
-            match (c.value.filter(|v| v.is_finite()), s1[j1 * ln + l1]) {
-                (Some(v), Some((d, t))) => {
-                    slot.0 += v / d;
-                    slot.1 += 1;
-                    slot.2 &= c.trusted && t;
-                }
-                _ => slot.2 = false,
-            }
-        }
-    }
-    let mut out = Vec::new();
-    for j1 in 0..jn {
-        for j2 in j1 + 1..jn {
-            let (sum, n, trusted) = acc[j1 * jn + j2];
-            if n > 0 {
-                out.push(Sparsity {
-                    j1,
-                    j2,
-                    value: sum / n as f64,
-                    trusted: trusted && n == ln * ln,
-                });
-            }
-        }
+    let t = t.clamp(-1.0, 1.0);
+    let (far, f) = if t < 0.0 {
+        ([33.0, 102.0, 172.0], -t)
+    } else {
+        ([178.0, 24.0, 43.0], t)
+    };
+    let mut out = [0u8; 3];
+    for k in 0..3 {
+        out[k] = (247.0 * (1.0 - f) + far[k] * f).round() as u8;
     }
     out
+}
+
+/// How the cells of a scale-pair panel are coloured.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum CellColours {
+    /// Sequential ramp from `lo` (dark) to `hi` (yellow).
+    Ramp { lo: f64, hi: f64 },
+    /// Diverging around 0: blue for −`half_range`, white for 0, red for +`half_range`.
+    Diverging { half_range: f64 },
+}
+
+impl CellColours {
+    fn colour(&self, v: f64) -> Rgb {
+        match *self {
+            CellColours::Ramp { lo, hi } => {
+                colour_ramp(if hi > lo { (v - lo) / (hi - lo) } else { 0.5 })
+            }
+            CellColours::Diverging { half_range } => diverging_colour(if half_range > 0.0 {
+                v / half_range
+            } else {
+                0.0
+            }),
+        }
+    }
+}
+
+/// A triangle of (j1, j2) cells, j1 < j2: row j1 (first wavelet), column j2 (second wavelet),
+/// each cell split into one vertical strip per file, coloured by the item and labelled with
+/// its value; untrusted cells are crossed out.
+pub fn pair_panel(
+    title: &str,
+    files: &[MeasurementFile],
+    kind: SummaryKind,
+    colours: CellColours,
+) -> Panel {
+    let jn = files.iter().map(|f| f.settings.scales).max().unwrap_or(1);
+    let axis = |label: &str, lo: usize, hi: usize| {
+        let ticks = (lo..hi)
+            .map(|j| {
+                let text = match files.first() {
+                    Some(f) if files.len() == 1 => {
+                        format!("{j} ({})", format_arcmin(f.scale_arcmin(j)))
+                    }
+                    _ => j.to_string(),
+                };
+                (j as f64, text)
+            })
+            .collect();
+        Axis {
+            label: label.to_string(),
+            scale: AxisScale::Linear,
+            range: Some((lo as f64 - 0.5, hi.max(lo + 1) as f64 - 0.5)),
+            ticks: Some(ticks),
+        }
+    };
+    let mut panel = Panel::new(
+        title,
+        axis("second wavelet scale j2", 1, jn),
+        axis("first wavelet scale j1", 0, jn.saturating_sub(1)),
+    );
+    let strips = files.len().max(1) as f64;
+    for (i, f) in files.iter().enumerate() {
+        for item in pair_items(f, kind) {
+            let x0 = item.j2 as f64 - 0.5 + i as f64 / strips;
+            let text = item.value.is_finite().then(|| {
+                if files.len() > 2 {
+                    String::new()
+                } else {
+                    let v = format!("{:.3}", item.value);
+                    if item.trusted {
+                        v
+                    } else {
+                        format!("({v})")
+                    }
+                }
+            });
+            panel.cells.push(Cell {
+                x: (x0, x0 + 1.0 / strips),
+                y: (item.j1 as f64 - 0.5, item.j1 as f64 + 0.5),
+                fill: colours.colour(item.value),
+                text: text.filter(|t| !t.is_empty()),
+                marked: !item.trusted,
+            });
+        }
+    }
+    if jn < 2 {
+        panel.title.push_str(" — needs J ≥ 2");
+    }
+    panel
+}
+
+/// A panel of one per-scale summary item against the wavelet's angular scale in arcmin, one
+/// line per file; hollow markers for untrusted values.
+fn scale_item_panel(
+    title: &str,
+    y: Axis,
+    files: &[MeasurementFile],
+    names: &[String],
+    kind: SummaryKind,
+) -> Panel {
+    let mut panel = Panel::new(title, Axis::log("wavelet scale (8/3)·2^j·Δ (arcmin)"), y);
+    for (i, (f, name)) in files.iter().zip(names).enumerate() {
+        let points = scale_items(f, kind)
+            .into_iter()
+            .map(|(j, v, t)| ChartPoint {
+                x: f.scale_arcmin(j),
+                y: v,
+                solid: t,
+            })
+            .collect();
+        let mut line = Series::line(Some(name.clone()), points, palette(i), 2);
+        line.marker_radius = 5;
+        line.marker = MarkerShape::nth(i);
+        panel.series.push(line);
+    }
+    panel
 }
 
 /// Legend names of input files: their stems, numbered where two coincide.
@@ -385,6 +566,16 @@ fn scale_axis(files: &[MeasurementFile], label: &str) -> Axis {
         scale: AxisScale::Linear,
         range: Some((-0.4, jn as f64 - 0.6)),
         ticks: Some(ticks),
+    }
+}
+
+fn format_value(v: f64) -> String {
+    if !v.is_finite() {
+        "–".into()
+    } else if v != 0.0 && (v.abs() < 1e-2 || v.abs() >= 1e4) {
+        format!("{v:.2e}")
+    } else {
+        format!("{v:.3}")
     }
 }
 
@@ -460,67 +651,62 @@ pub fn coefficients_figure(
             "plot coefficients needs at least one measurement file".into(),
         ));
     }
-    let mut panels = vec![averages_panel(
-        "order 1: ⟨S1(j,l)⟩ over orientations l",
-        "S1 (field units)",
+    let many = files.len() > 1;
+    let mut panels = vec![scale_item_panel(
+        "mean modulus ⟨S1(j,·)⟩ over orientations",
+        Axis::log("modulus (field units)"),
         files,
         names,
-        first_order_by_scale,
+        SummaryKind::Modulus,
     )];
-    // Order 2: sparsity against j2, one line per j1.
-    let mut order2 = Panel::new(
-        "order 2: sparsity ⟨S2(j1,l1,j2,l2)/S1(j1,l1)⟩",
-        scale_axis(files, "second wavelet scale j2"),
-        Axis::log("S2 / S1"),
-    );
-    let many = files.len() > 1;
-    let jmax = files.iter().map(|f| f.settings.scales).max().unwrap_or(1);
-    for (i, (f, name)) in files.iter().zip(names).enumerate() {
-        let ratios = sparsity_ratios(f);
-        for j1 in 0..f.settings.scales {
-            let points: Vec<ChartPoint> = ratios
-                .iter()
-                .filter(|r| r.j1 == j1)
-                .map(|r| ChartPoint {
-                    x: r.j2 as f64,
-                    y: r.value,
-                    solid: r.trusted,
-                })
-                .collect();
-            if points.is_empty() {
-                continue;
-            }
-            let (colour, marker, label) = if many {
-                (
-                    palette(i),
-                    MarkerShape::nth(j1),
-                    (j1 == 0).then(|| name.clone()),
-                )
-            } else {
-                (
-                    palette(j1),
-                    MarkerShape::nth(j1),
-                    Some(format!("j1 = {j1} ({})", format_arcmin(f.scale_arcmin(j1)))),
-                )
-            };
-            if many && i == 0 {
-                order2.annotations.push(Annotation {
-                    x: points[0].x - 0.55,
-                    y: points[0].y,
-                    text: format!("j1={j1}"),
-                    colour: [90, 90, 90],
-                });
-            }
-            let mut s = Series::line(label, points, colour, 2);
-            s.marker_radius = 5;
-            s.marker = marker;
-            order2.series.push(s);
-        }
-    }
-    if jmax < 2 {
-        order2.title.push_str(" — needs J ≥ 2");
-    }
-    panels.push(order2);
+    panels.push(scale_item_panel(
+        "modulus anisotropy |first orientation harmonic of S1| / mean",
+        Axis::linear("anisotropy (0: isotropic)"),
+        files,
+        names,
+        SummaryKind::ModulusAnisotropy,
+    ));
+    let all = |kind| -> Vec<f64> {
+        files
+            .iter()
+            .flat_map(|f| pair_items(f, kind))
+            .map(|p| p.value)
+            .filter(|v| v.is_finite())
+            .collect()
+    };
+    let inter = all(SummaryKind::Intermittency);
+    let (lo, hi) = inter
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
+            (a.min(v), b.max(v))
+        });
+    let strips = if many {
+        format!("; strips left to right: {}", names.join(", "))
+    } else {
+        String::new()
+    };
+    panels.push(pair_panel(
+        &format!(
+            "intermittency ⟨S2⟩/⟨S1⟩ (dark {} … yellow {}){strips}",
+            format_value(lo),
+            format_value(hi)
+        ),
+        files,
+        SummaryKind::Intermittency,
+        CellColours::Ramp { lo, hi },
+    ));
+    let half = all(SummaryKind::Alignment)
+        .iter()
+        .fold(0.0_f64, |a, v| a.max(v.abs()));
+    panels.push(pair_panel(
+        &format!(
+            "alignment (blue −{h}: across … red +{h}: along){strips}",
+            h = format_value(half)
+        ),
+        files,
+        SummaryKind::Alignment,
+        CellColours::Diverging { half_range: half },
+    ));
     panels.push(averages_panel(
         "band powers: ⟨P(j,l)⟩ = ⟨|I∗ψ(j,l)|²⟩ over l",
         "P (field units²)",
@@ -550,7 +736,7 @@ pub fn coefficients_figure(
     let width = width.clamp(400, 8000);
     Ok(Figure {
         title: format!(
-            "Scattering statistics of {} — hollow markers: untrusted values (too little kept pooling weight)",
+            "Scattering statistics of {} — hollow markers and crossed cells: untrusted (too little kept pooling weight)",
             if many {
                 format!("{} measurements", files.len())
             } else {
@@ -558,8 +744,8 @@ pub fn coefficients_figure(
             }
         ),
         panels,
-        columns: 2,
-        panel_size: (width / 2, width * 3 / 8),
+        columns: 3,
+        panel_size: (width / 3, width / 4),
     })
 }
 

@@ -35,8 +35,9 @@ use std::path::{Path, PathBuf};
 pub enum StatisticsOption {
     /// Every coefficient but the mean: variance, S1, P, S2.
     Full,
-    /// Variance, amplitude per scale, sparsity and anisotropy per scale pair.
-    Compact,
+    /// The orientation-harmonic summary without the mean: rms; per scale the mean modulus and
+    /// its anisotropy; per scale pair the intermittency and the alignment.
+    Summary,
 }
 
 /// Start field of the optimisation.
@@ -258,7 +259,7 @@ fn synthesis_settings(args: &SynthesizeArgs, start: StartField) -> SynthesisSett
     SynthesisSettings {
         statistics: match args.statistics {
             StatisticsOption::Full => StatisticChoice::Full,
-            StatisticsOption::Compact => StatisticChoice::Compact,
+            StatisticsOption::Summary => StatisticChoice::Summary,
         },
         field_envelope_correlation: args.field_envelope_correlation,
         power_spectrum_bins: args.power_bins,

@@ -15,12 +15,12 @@
 //! c_i = Σ_t Σ_t,i / Σ_t W_t,i (and the variance c_1 = Σ_t Σ_t,1 / W_1 − c_0²).
 //!
 //! The loss is L(m) = Σ_k ((s_k − t_k)/σ_k)² on the full set without the mean (s = c_1..) or
-//! the compact set ([`super::StatisticChoice`]), with σ_k = |t_k| or given, as in the flat
+//! the orientation-harmonic summary without the mean ([`super::StatisticChoice`]), with σ_k = |t_k| or given, as in the flat
 //! synthesis ([`super`]).
 //!
 //! # Gradient (chain rule, reverse mode)
 //!
-//! ∂L/∂s_k = 2 (s_k − t_k)/σ_k²; the compact set's adjoint gives ∂L/∂c_i; since the W_i do not
+//! ∂L/∂s_k = 2 (s_k − t_k)/σ_k²; the summary's adjoint (or the identity for the full set) gives ∂L/∂c_i; since the W_i do not
 //! depend on m, ∂L/∂Σ_i = (∂L/∂c_i)/W_i for every tile alike, plus −2 c_0 (∂L/∂c_1)/W_0 on the
 //! mean's sum (from the variance's −c_0²). These per-sum weights go into the masked-tile
 //! backward pass ([`super::DifferentiableScattering::backward_tile`]), which returns ∂L/∂f_t on
@@ -42,7 +42,7 @@
 //! flat synthesis is not applied: reflecting the footprint alone would change the tiles that
 //! straddle its edge.
 
-use super::{minimise, CompactMap, Normalisation, StartField, StatisticChoice, SynthesisSettings};
+use super::{minimise, Normalisation, StartField, StatisticChoice, SummaryMap, SynthesisSettings};
 use crate::footprint::Footprint;
 use crate::harmonics::HarmonicTransform;
 use crate::measurement::{MeasurementSettings, SphereMeasurer};
@@ -128,7 +128,7 @@ pub struct SphereSynthesis {
     geometry: SkyMap,
     tiles: Vec<SphereTile>,
     variables: Vec<usize>,
-    compact: Option<CompactMap>,
+    summary: Option<SummaryMap>,
 }
 
 impl std::fmt::Debug for SphereSynthesis {
@@ -176,20 +176,12 @@ impl SphereSynthesis {
             )));
         }
         let footprint = footprint.to_ordering(map.ordering())?;
-        let compact = match settings.statistics {
+        let summary = match settings.statistics {
             StatisticChoice::Full => None,
-            StatisticChoice::Compact => {
-                if !measurement.orientations.is_multiple_of(2) {
-                    return Err(Error::Setting(format!(
-                        "the compact set needs an even number of orientations L, got L = {}",
-                        measurement.orientations
-                    )));
-                }
-                Some(CompactMap {
-                    jn: measurement.scales,
-                    ln: measurement.orientations,
-                })
-            }
+            StatisticChoice::Summary => Some(SummaryMap::new(
+                measurement.scales,
+                measurement.orientations,
+            )?),
         };
         let measurer = SphereMeasurer::new(map, &footprint, measurement)?;
         let transform = DifferentiableScattering::new(
@@ -249,7 +241,7 @@ impl SphereSynthesis {
             geometry,
             tiles,
             variables,
-            compact,
+            summary,
         })
     }
 
@@ -285,23 +277,21 @@ impl SphereSynthesis {
 
     /// Number of matched statistics.
     pub fn statistic_count(&self) -> usize {
-        let jn = self.measurer.settings().scales;
-        match &self.compact {
+        match &self.summary {
             None => self.measurer.engine().labels().len() - 1,
-            // variance, J amplitudes, J(J−1)/2 sparsities and as many anisotropies
-            Some(_) => 1 + jn + jn * jn.saturating_sub(1),
+            Some(m) => m.len(),
         }
     }
 
     fn select(&self, c: &[f64]) -> Vec<f64> {
-        match &self.compact {
+        match &self.summary {
             None => c[1..].to_vec(),
             Some(m) => m.values(c),
         }
     }
 
     fn select_adjoint(&self, c: &[f64], ds: &[f64]) -> Vec<f64> {
-        match &self.compact {
+        match &self.summary {
             None => {
                 let mut dc = vec![0.0; c.len()];
                 dc[1..].copy_from_slice(ds);
@@ -472,7 +462,10 @@ impl SphereSynthesis {
                 }
                 s.clone()
             }
-            Normalisation::Relative => values.iter().map(|t| t.abs()).collect(),
+            Normalisation::Relative => match &self.summary {
+                Some(m) => m.distance_scales(values),
+                None => values.iter().map(|t| t.abs()).collect(),
+            },
         };
         if let Some(i) = sigma.iter().position(|v| !(v.is_finite() && *v > 0.0)) {
             return Err(Error::Data(format!(

@@ -15,10 +15,14 @@
 //! Sizes follow from the tile: a cell must fit, in the gnomonic projection about its centre, in
 //! the square |x|, |y| ≤ c = (n/2 − halo)·Δ left by the halo, with a margin m of one map spacing
 //! all round (plane pixels read the map pixel containing them, whose centre may be up to about
-//! one spacing outside the cell). Hence R = atan(c) − m, H = (π − 2R)/nb with
-//! nb = ⌈(π − 2R)/(0.92 · 2(atan c − m))⌉ (the 8% left absorb the curvature of the parallels), and
-//! w_max per band, the widest longitude range whose cell (grown by m) still fits, found by
-//! bisection on the projected outline. Meridians and the cap edge are straight lines or a circle
+//! one spacing outside the cell). A shift by m on the sphere moves a point by at most
+//! m·sec²ρ ≤ m(1 + 2c²) on the plane inside the square (radial scale of the gnomonic projection,
+//! Snyder 1987, §22), so the ungrown cell must fit in c' = c − m(1 + 2c²). Hence the caps have
+//! R = 0.995·atan c', the bands cover the footprint's colatitudes (from its northernmost to its
+//! southernmost ring, or from a cap's edge) in nb bands of equal height H, nb the smallest count
+//! with H ≤ 0.96 · 2 atan c' (the 4% left absorb the curvature of the parallels), and w_max per
+//! band is the widest longitude range whose cell still fits, found by bisection on the projected
+//! outline. Meridians and the cap edge are straight lines or a circle
 //! in the gnomonic plane, parallels are conics; the outline is sampled at 24 points per side.
 //!
 //! Because cells follow the footprint and are nearly square in the tile frame, the plane pixels
@@ -115,12 +119,6 @@ fn outline_extent(proj: &Gnomonic, t0: f64, t1: f64, p0: f64, p1: f64) -> Option
     Some((half, r2))
 }
 
-/// Half-width in longitude a margin of `m` radians of arc takes at colatitudes [t0, t1].
-fn longitude_margin(t0: f64, t1: f64, m: f64) -> f64 {
-    let s = t0.sin().min(t1.sin()).max(1e-9);
-    (m / s).min(PI)
-}
-
 impl LatitudeBands {
     /// Lays out the cells of `footprint` (a map of NSIDE `nside`) for tiles whose cores must fit
     /// in |x|, |y| ≤ `core_half` (radians of the tangent plane), with a margin of `margin`
@@ -133,8 +131,10 @@ impl LatitudeBands {
     ) -> Result<(Self, Vec<BandCell>)> {
         let fp_pix = footprint.pixelization();
         let nside = fp_pix.nside() as u64;
-        let reach = core_half.atan() - margin;
-        if !(reach > 0.0) {
+        // Room for the ungrown cell: moving a point by m on the sphere moves it by at most
+        // m·sec²ρ ≤ m(1 + 2c²) on the plane within the square (radial scale, Snyder 1987, §22).
+        let room = core_half - margin * (1.0 + 2.0 * core_half * core_half);
+        if !(room > 0.0) {
             return Err(Error::Setting(format!(
                 "the tile leaves no room for a core: its core half-width of {:.4}° is below the \
                  margin of one map spacing ({:.4}°); use larger tiles or a smaller halo",
@@ -142,6 +142,7 @@ impl LatitudeBands {
                 margin.to_degrees()
             )));
         }
+        let reach = room.atan();
         // The footprint's extent in colatitude, by rings.
         let to_ring = |p: u64| -> Result<u64> {
             match fp_pix.ordering() {
@@ -251,7 +252,7 @@ impl LatitudeBands {
         let mut widths = vec![0.0; bands.len()];
         for (b, band) in bands.iter().enumerate() {
             if occupied[b].iter().any(|&o| o) {
-                widths[b] = Self::widest_cell(band, core_half, margin)?;
+                widths[b] = Self::widest_cell(band, room)?;
             }
         }
         // Cells of every band.
@@ -341,18 +342,15 @@ impl LatitudeBands {
         ))
     }
 
-    /// The widest longitude range (radians) of a cell of `band` that fits, grown by `margin`,
-    /// in |x|, |y| ≤ `core_half` about its centre (2π for a cap that fits).
-    fn widest_cell(band: &Band, core_half: f64, margin: f64) -> Result<f64> {
+    /// The widest longitude range (radians) of a cell of `band` that fits in |x|, |y| ≤ `room`
+    /// about its centre (2π for a cap that fits).
+    fn widest_cell(band: &Band, room: f64) -> Result<f64> {
         let (t0, t1) = band.theta;
         let center = Direction::new(band.theta_center, 0.0);
         let proj = Gnomonic::new(center);
-        let grown = ((t0 - margin).max(0.0), (t1 + margin).min(PI));
         let fits = |w: f64| -> bool {
-            let mp = longitude_margin(grown.0, grown.1, margin);
-            let half = (0.5 * w + mp).min(PI - 1e-9);
-            outline_extent(&proj, grown.0, grown.1, -half, half)
-                .is_some_and(|(h, _)| h <= core_half)
+            let half = (0.5 * w).min(PI - 1e-9);
+            outline_extent(&proj, t0, t1, -half, half).is_some_and(|(h, _)| h <= room)
         };
         if band.cap {
             return if fits(TAU) {
