@@ -948,3 +948,89 @@ impl ScatteringEngine {
         Ok((autos, cross))
     }
 }
+
+/// How many 2-D FFTs of one size and kind a tile transform performs
+/// ([`ScatteringEngine::fft_census`]). Each is an n × n transform at that grid size.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, serde::Serialize)]
+pub struct FftCount {
+    /// Grid side of the 2-D transform.
+    pub size: usize,
+    /// A transform of real input (row-wise real-to-complex FFTs, then column FFTs).
+    pub real_input: bool,
+    /// An inverse transform.
+    pub inverse: bool,
+    /// Number of such transforms per tile.
+    pub count: usize,
+}
+
+// PROVISIONAL: the FFT census of today's algorithm, derived from the public getters by reading
+// `run_fields`. It is kept apart from the engine's body on purpose and is meant to be replaced
+// by a census maintained next to the transform itself; `tests/transform_fft_census.rs` checks
+// it against the FFT counter of `transform_tile_timed`.
+impl ScatteringEngine {
+    /// The 2-D FFTs one tile transform performs, grouped by (size, kind) and sorted; `pair`
+    /// counts the two-map transform ([`Self::transform_tile_pair`]) instead of one map.
+    ///
+    /// With grid levels d_j (scale j on an (n/2^{d_j})² grid), J scales, L orientations and
+    /// F = 1 or 2 fields, per tile (read off the transform, module documentation "Work and
+    /// memory"): F + 1 real FFTs at n (the inputs and the squared taper); J inverse FFTs at n
+    /// (the coverage); for every pooling weight at a level d > 0 (one per j, one per pair
+    /// j1 < j2 at the level of j2) a real FFT at n and an inverse FFT at n/2^d; F·L inverse
+    /// FFTs per scale j at n/2^{d_j} (first layer); with two fields, one inverse FFT per field
+    /// and level d = 1…max d (the low-passed inputs); and per field, for every (j1, l1) with
+    /// j1 < J − 1, a real FFT at n/2^{d_{j1}} and L inverse FFTs per j2 > j1 at n/2^{d_{j2}}.
+    pub fn fft_census(&self, pair: bool) -> Vec<FftCount> {
+        let n = self.size();
+        let big_j = self.scale_count();
+        let big_l = self.orientation_count();
+        let levels = self.crop_levels();
+        let fields = if pair { 2 } else { 1 };
+        let mut tally: std::collections::BTreeMap<(usize, bool, bool), usize> =
+            std::collections::BTreeMap::new();
+        let mut add = |size: usize, real_input: bool, inverse: bool, count: usize| {
+            if count > 0 {
+                *tally.entry((size, real_input, inverse)).or_insert(0) += count;
+            }
+        };
+        add(n, true, false, fields + 1);
+        add(n, false, true, big_j);
+        for &d in levels {
+            if d > 0 {
+                add(n, true, false, 1);
+                add(n >> d, false, true, 1);
+            }
+        }
+        for j1 in 0..big_j {
+            for &d2 in &levels[j1 + 1..] {
+                if d2 > 0 {
+                    add(n, true, false, 1);
+                    add(n >> d2, false, true, 1);
+                }
+            }
+        }
+        for &d in levels {
+            add(n >> d, false, true, fields * big_l);
+        }
+        if pair {
+            let top = levels.iter().copied().max().unwrap_or(0);
+            for d in 1..=top {
+                add(n >> d, false, true, 2);
+            }
+        }
+        for j1 in 0..big_j.saturating_sub(1) {
+            add(n >> levels[j1], true, false, fields * big_l);
+            for &d2 in &levels[j1 + 1..] {
+                add(n >> d2, false, true, fields * big_l * big_l);
+            }
+        }
+        tally
+            .into_iter()
+            .map(|((size, real_input, inverse), count)| FftCount {
+                size,
+                real_input,
+                inverse,
+                count,
+            })
+            .collect()
+    }
+}
