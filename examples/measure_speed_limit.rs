@@ -288,7 +288,12 @@ mod speed_limit {
                 .arg(&inputs.map)
                 .arg("--mask")
                 .arg(&inputs.mask)
-                .args(["-J", &o.scales.to_string(), "-L", &o.orientations.to_string()])
+                .args([
+                    "-J",
+                    &o.scales.to_string(),
+                    "-L",
+                    &o.orientations.to_string(),
+                ])
                 .args(["--pixel-arcmin", &format!("{spacing_arcmin:.4}")])
                 .arg("--no-bispectrum")
                 .arg("-o")
@@ -340,7 +345,12 @@ mod speed_limit {
                 .arg(&script)
                 .arg(&inputs.map)
                 .arg(&inputs.mask)
-                .args(["-J", &o.scales.to_string(), "-L", &o.orientations.to_string()])
+                .args([
+                    "-J",
+                    &o.scales.to_string(),
+                    "-L",
+                    &o.orientations.to_string(),
+                ])
                 .arg("-o")
                 .arg(&out),
             "numpy pipeline",
@@ -399,7 +409,9 @@ mod speed_limit {
             planner.plan_fft_forward(m)
         };
         let mut scratch = vec![Complex64::default(); fft.get_inplace_scratch_len()];
-        let src: Vec<f64> = (0..m * m).map(|i| ((i * 7919) % 1013) as f64 / 1013.0).collect();
+        let src: Vec<f64> = (0..m * m)
+            .map(|i| ((i * 7919) % 1013) as f64 / 1013.0)
+            .collect();
         if real_input {
             let r2c = RealFftPlanner::<f64>::new().plan_fft_forward(m);
             let h = m / 2 + 1;
@@ -458,9 +470,11 @@ mod speed_limit {
             fft_count += c.count;
         }
         // Sampling: the library's sampler on 24 tiles spread over the footprint's plan.
-        let (map, _) = read_map(&inputs.map, &ColumnChoice::default()).map_err(|e| e.to_string())?;
-        let (mask, _) = planisphere::fits_io::read_footprint(&inputs.mask, &ColumnChoice::default())
-            .map_err(|e| e.to_string())?;
+        let (map, _) =
+            read_map(&inputs.map, &ColumnChoice::default()).map_err(|e| e.to_string())?;
+        let (mask, _) =
+            planisphere::fits_io::read_footprint(&inputs.mask, &ColumnChoice::default())
+                .map_err(|e| e.to_string())?;
         let settings = MeasurementSettings {
             scales: o.scales,
             orientations: o.orientations,
@@ -608,7 +622,14 @@ mod speed_limit {
             let numpy_ratio = b
                 .numpy
                 .as_ref()
-                .map(|np| format!("{:.1}×", np.cost.cpu / b.ours.cost.cpu))
+                .map(|np| {
+                    let r = np.cost.cpu / b.ours.cost.cpu;
+                    if r >= 1.0 {
+                        format!("{r:.1}×")
+                    } else {
+                        format!("{r:.3}× (numpy {:.1}× faster)", 1.0 / r)
+                    }
+                })
                 .unwrap_or_else(|| "not run".into());
             let input_bytes = 2.0 * b.inputs.npix as f64 * 8.0;
             let limit = input_bytes + 100.0 * MIB * b.ours.workers as f64;

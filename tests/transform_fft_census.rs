@@ -76,7 +76,11 @@ fn census_without_cropping_matches_the_documented_closed_form_at_full_size() {
         // without cropping (module documentation, "Cross statistics", cost).
         let pair = 3 + j + 2 * j * l + 2 * (j - 1) * l + 2 * second;
         assert_eq!(census_total(&e, false), single, "n = {n}, J = {j}, L = {l}");
-        assert_eq!(census_total(&e, true), pair, "pair, n = {n}, J = {j}, L = {l}");
+        assert_eq!(
+            census_total(&e, true),
+            pair,
+            "pair, n = {n}, J = {j}, L = {l}"
+        );
         assert!(e.fft_census(true).iter().all(|c| c.size == n));
     }
 }
@@ -89,7 +93,10 @@ fn census_sizes_follow_the_crop_levels() {
     for c in &census {
         assert!(sizes.contains(&c.size), "size {} not a level grid", c.size);
         assert!(c.count > 0);
-        assert!(!(c.real_input && c.inverse), "no real-input inverse is performed");
+        assert!(
+            !(c.real_input && c.inverse),
+            "no real-input inverse is performed"
+        );
     }
     // Every first-layer grid gets at least L inverse FFTs.
     for &s in &sizes {
