@@ -17,7 +17,10 @@ fn survey_footprint(nside: u32) -> Footprint {
             let z: f64 = rng.gen_range(-1.0..1.0);
             let phi: f64 = rng.gen_range(0.0..std::f64::consts::TAU);
             let r: f64 = rng.gen_range(0.5..2.5);
-            (Direction::new(z.acos(), phi).to_vector(), r.to_radians().cos())
+            (
+                Direction::new(z.acos(), phi).to_vector(),
+                r.to_radians().cos(),
+            )
         })
         .collect();
     // a plane tilted by 62.9° about the x axis stands in for the galactic plane
@@ -41,7 +44,11 @@ fn main() {
         .skip(1)
         .filter_map(|a| a.parse().ok())
         .collect();
-    let nsides = if nsides.is_empty() { vec![1024] } else { nsides };
+    let nsides = if nsides.is_empty() {
+        vec![1024]
+    } else {
+        nsides
+    };
     println!(
         "| NSIDE | f_sky | J | cells | tiles | n | tile ° | tile px per footprint px | tile area / footprint area |"
     );

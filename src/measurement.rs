@@ -58,7 +58,9 @@ pub struct MeasurementSettings {
     /// Cut the footprint into the pixels of a coarse HEALPix grid of this NSIDE instead of
     /// latitude bands (`None`, the default; see [`crate::tiling::CellLayout`]).
     pub coarse_nside: Option<u32>,
-    /// Plane pixel size in arcmin; `None`: the map's mean pixel spacing.
+    /// Plane pixel size in arcmin; `None`: the size at which the finest scale is the shortest
+    /// trusted one ([`MeasurementSettings::pixel_size`]: three map spacings for ring-cubic
+    /// sampling).
     pub pixel_arcmin: Option<f64>,
     /// Width of the tile-border ramp in plane pixels.
     pub border_pixels: usize,
@@ -130,16 +132,51 @@ impl MeasurementSettings {
         Ok(())
     }
 
+    /// The shortest trusted wavelength in map spacings: [`Self::min_trusted_wavelength`], or
+    /// the sampling method's own limit.
+    pub fn trusted_wavelength(&self) -> f64 {
+        self.min_trusted_wavelength
+            .unwrap_or_else(|| self.sampling.trusted_wavelength_map_spacings())
+    }
+
+    /// The plane pixel size Δ (radians) for maps of pixelization `map`: `pixel_arcmin`, or by
+    /// default the size at which the finest scale's wavelength λ_0 = (8/3)·Δ equals the
+    /// shortest trusted wavelength λ_t·h (h the map's mean spacing), never below h:
+    /// Δ = max(1, 3λ_t/8)·h. Every default coefficient is then trusted by the sampling rule:
+    /// Δ = 3h for ring-cubic sampling (λ_t = 8h), 6h for the linear schemes (16h), h for
+    /// nearest (no scale trusted).
+    ///
+    /// ```
+    /// use planisphere::measurement::MeasurementSettings;
+    /// use planisphere::{Ordering, Pixelization};
+    /// let map = Pixelization::new(1024, Ordering::Ring).unwrap();
+    /// let delta = MeasurementSettings::default().pixel_size(map);
+    /// assert!((delta / map.mean_spacing() - 3.0).abs() < 1e-12); // 10.3′ at NSIDE 1024
+    /// ```
+    pub fn pixel_size(&self, map: Pixelization) -> f64 {
+        match self.pixel_arcmin {
+            Some(a) => (a / 60.0).to_radians(),
+            None => {
+                let spacings = 3.0 * self.trusted_wavelength() / 8.0;
+                let spacings = if spacings.is_finite() {
+                    spacings.max(1.0)
+                } else {
+                    1.0
+                };
+                spacings * map.mean_spacing()
+            }
+        }
+    }
+
     /// The tiling plan these settings give for maps of pixelization `map` on `footprint`: the
     /// one plan `measure`, `ensemble`, `synthesize` and `tiles` use.
     pub fn plan(&self, map: Pixelization, footprint: &Footprint) -> Result<TilingPlan> {
         self.check()?;
-        let pixel_size = self.pixel_arcmin.map(|a| (a / 60.0).to_radians());
+        let delta = self.pixel_size(map);
+        let pixel_size = Some(delta);
         let halo = self.halo();
         let plan = match self.coarse_nside {
             None => {
-                let delta = pixel_size
-                    .unwrap_or(crate::tiling::DEFAULT_PIXEL_FRACTION * map.mean_spacing());
                 let n = match self.tile_pixels {
                     Some(n) => n,
                     None => crate::tiling::automatic_tile_pixels(
@@ -334,11 +371,7 @@ impl SphereMeasurer {
             settings.orientations,
             settings.transform,
         )?;
-        let bins = WavenumberBins::logarithmic(
-            n,
-            plan.pixel_size(),
-            settings.spectrum_bins,
-        )?;
+        let bins = WavenumberBins::logarithmic(n, plan.pixel_size(), settings.spectrum_bins)?;
         let fourier = FourierStatistics::new(n, plan.pixel_size(), bins)?;
         let triangles = if settings.bispectrum {
             fourier.triangles()
@@ -562,9 +595,7 @@ impl SphereMeasurer {
 
     /// The shortest trusted wavelength in map spacings (the setting, or the sampling's own).
     pub fn min_trusted_wavelength(&self) -> f64 {
-        self.settings
-            .min_trusted_wavelength
-            .unwrap_or_else(|| self.settings.sampling.trusted_wavelength_map_spacings())
+        self.settings.trusted_wavelength()
     }
 
     /// Does the sampling carry scale j well enough to trust its coefficients:

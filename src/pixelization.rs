@@ -339,7 +339,6 @@ pub(crate) fn ring_info(nside: u64, i: u64) -> (u64, u64, bool) {
     }
 }
 
-
 /// Ring number i (1 ≤ i ≤ 4 NSIDE − 1) and position j (0-based, in increasing longitude) of
 /// RING pixel `p`: the inverse of [`ring_info`] (Górski et al. 2005, §4: the north cap holds
 /// 2i(i − 1) pixels before ring i, the equatorial rings 4 NSIDE each, the south cap mirrors the

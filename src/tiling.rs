@@ -321,8 +321,7 @@ impl TilingPlan {
                     )));
                 }
                 let core_half = (n / 2 - settings.halo) as f64 * pixel_size;
-                let (layout, cells) =
-                    LatitudeBands::new(footprint, core_half, map.mean_spacing())?;
+                let (layout, cells) = LatitudeBands::new(footprint, core_half, map.mean_spacing())?;
                 let tiles = cells
                     .iter()
                     .enumerate()

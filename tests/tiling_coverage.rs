@@ -44,8 +44,7 @@ fn every_footprint_pixel_lies_in_exactly_one_core() {
             for (p, &h) in hits.iter().enumerate() {
                 if fp.weight(p as u64) > 0.0 {
                     assert_eq!(
-                        h,
-                        1,
+                        h, 1,
                         "footprint pixel {p} ({ordering}, {:?}) lies in {h} cores",
                         settings.cells
                     );
@@ -83,7 +82,10 @@ fn core_solid_angles_sum_to_footprint_area_to_the_pixel() {
     // total area is the footprint area plus the non-footprint pixels they contain, counted
     // pixel by pixel.
     let fp = galactic_cut(nside, Ordering::Ring);
-    for settings in [TilingSettings::latitude_bands(), TilingSettings::healpix_pixels(8)] {
+    for settings in [
+        TilingSettings::latitude_bands(),
+        TilingSettings::healpix_pixels(8),
+    ] {
         let plan = TilingPlan::new(fine, &fp, &settings).unwrap();
         let in_cores: u64 = plan.tiles().iter().map(|t| t.footprint_pixels).sum();
         assert_eq!(in_cores, fp.observed_pixels());
@@ -140,7 +142,10 @@ fn full_sky_latitude_bands_cover_every_pixel_once_with_two_caps() {
     assert_eq!(cores, pix.npix());
     assert!((s.core_area_sr - 4.0 * std::f64::consts::PI).abs() < 1e-9);
     assert_eq!(plan.tiles()[0].center.theta, 0.0);
-    assert_eq!(plan.tiles()[plan.len() - 1].center.theta, std::f64::consts::PI);
+    assert_eq!(
+        plan.tiles()[plan.len() - 1].center.theta,
+        std::f64::consts::PI
+    );
 }
 
 #[test]
@@ -220,7 +225,10 @@ fn in_core_plane_pixels_cover_the_core_solid_angle() {
     let pix = Pixelization::new(nside, Ordering::Ring).unwrap();
     let fp = Footprint::full_sky(pix);
     let map = SkyMap::from_fn(pix, |_| 1.0);
-    for cells in [TilingSettings::latitude_bands(), TilingSettings::healpix_pixels(4)] {
+    for cells in [
+        TilingSettings::latitude_bands(),
+        TilingSettings::healpix_pixels(4),
+    ] {
         let settings = TilingSettings {
             pixel_size: Some(0.5 * pix.mean_spacing()),
             tile_pixels: match cells.cells {

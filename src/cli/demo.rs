@@ -10,7 +10,7 @@
 //! which the scattering coefficients see.
 
 use super::ensemble::EnsembleMeasurer;
-use super::forecast::{forecast_document, forecast_sets};
+use super::forecast::{forecast_document, forecast_named_sets};
 use super::measure::measurement_document;
 use super::output::{write_bytes, write_json};
 use crate::apodization::{apodize, TaperKind};
@@ -33,13 +33,13 @@ pub struct DemoArgs {
     #[arg(long, short, default_value = "planisphere-demo")]
     pub output_dir: PathBuf,
     /// NSIDE of the simulated skies.
-    #[arg(long, default_value_t = 128)]
+    #[arg(long, default_value_t = 256)]
     pub nside: u32,
     /// Simulations at the fiducial parameters (for the covariance).
-    #[arg(long, default_value_t = 60)]
+    #[arg(long, default_value_t = 86)]
     pub fiducial_count: u64,
     /// Simulations at each shifted parameter value (paired seeds, for the derivatives).
-    #[arg(long, default_value_t = 20)]
+    #[arg(long, default_value_t = 12)]
     pub derivative_count: u64,
     /// Number of wavelet scales J.
     #[arg(long, default_value_t = 4)]
@@ -48,6 +48,27 @@ pub struct DemoArgs {
     #[arg(long)]
     pub quiet: bool,
 }
+
+/// The statistic sets the demo compares (name, column-name prefixes): the power spectrum on
+/// the sphere and in tiles, the orientation-averaged first order, our orientation-harmonic
+/// summary and the tile bispectrum; each has few enough numbers for the demo's ensembles.
+pub const DEMO_SETS: &[(&str, &[&str])] = &[
+    ("power spectrum (pseudo-C_l)", &["cl."]),
+    ("tile power spectrum", &["tile_power."]),
+    (
+        "scattering order 1, orientation-averaged",
+        &["summary.modulus_j"],
+    ),
+    (
+        "orientation-harmonic summary",
+        &[
+            "summary.modulus_j",
+            "summary.intermittency_",
+            "summary.alignment_",
+        ],
+    ),
+    ("bispectrum", &["bispectrum."]),
+];
 
 /// The demo's parameters: amplitude of the Gaussian field and lognormal shift.
 #[derive(Debug, Clone, Copy, serde::Serialize)]
@@ -161,29 +182,34 @@ pub fn run(args: &DemoArgs) -> Result<()> {
         "  parameters: A = {} ± {}, κ0 = {} ± {}; {} fiducial skies, {} per shifted value (paired seeds)",
         FIDUCIAL.amplitude, STEPS.amplitude, FIDUCIAL.shift, STEPS.shift, args.fiducial_count, args.derivative_count
     );
-    // Tile pixels of two map spacings: with ring-cubic sampling a scale is trusted from a
-    // wavelength of 8 map spacings (measurement::MeasurementSettings::min_trusted_wavelength),
-    // so at one spacing per pixel the two finest scales would be computed and then flagged;
-    // at two spacings they are not computed, the largest scale doubles and the footprint
-    // needs 4x fewer tiles (coarse NSIDE 4 instead of 8 at NSIDE 128). Below NSIDE 128 the
-    // tiles would grow wider than ~60°, so one spacing per pixel is kept there.
-    let spacings_per_pixel = if args.nside >= 128 { 2.0 } else { 1.0 };
-    let pixel_arcmin = spacings_per_pixel * pix.mean_spacing().to_degrees() * 60.0;
-    let tile_pixels = if args.nside >= 128 { 64 } else { 32 };
-    let scales = if tile_pixels == 32 {
+    // Tiles at most 15° across (the flat-sky picture of a tile stays good: sec²ρ ≤ 1.035 at
+    // the corners) at one map spacing per plane pixel: the largest power-of-two grid that fits.
+    // At NSIDE 256 that is 64 pixels of 13.7′ and J = 4 covers wavelengths of 37′–290′; the
+    // two finest scales fall below the ring-cubic trust limit of 8 map spacings and are flagged,
+    // but every ensemble is sampled the same way, so the Fisher comparison stays consistent.
+    let pixel_arcmin = pix.mean_spacing().to_degrees() * 60.0;
+    let mut tile_pixels = 32usize;
+    while (2 * tile_pixels) as f64 * pixel_arcmin <= 15.0 * 60.0 {
+        tile_pixels *= 2;
+    }
+    let scales = if tile_pixels <= 32 {
         args.scales.min(3)
     } else {
         args.scales
     };
-    let border_pixels = if tile_pixels == 32 { 4 } else { 8 };
+    // A border ramp of 4 pixels (halo 4 + 7 at J = 4) leaves cores of 42 of the 64 pixels.
+    let border_pixels = 4;
     let settings = MeasurementSettings {
         scales,
         tile_pixels: Some(tile_pixels),
         border_pixels,
         pixel_arcmin: Some(pixel_arcmin),
+        spectrum_bins: 4,
         ..MeasurementSettings::default()
     };
-    let em = EnsembleMeasurer::new(pix, footprint.clone(), settings, 16)?;
+    // pseudo-C_ℓ in 16 bins up to ℓ = 2 NSIDE
+    let cl_bin_width = (2 * args.nside as usize).div_ceil(16);
+    let em = EnsembleMeasurer::new(pix, footprint.clone(), settings, cl_bin_width)?;
     let summary = em.measurer.summary();
     println!(
         "  measurement: J = {}, L = {}, {} tiles of {}² pixels of {:.1}′ ({:.1}° across, cells: {})",
@@ -266,7 +292,29 @@ pub fn run(args: &DemoArgs) -> Result<()> {
             paired: true,
         });
     }
-    let result = forecast_sets(&fiducial, &derivatives, None)?;
+    // Every set compared has a Hartlap factor ≥ 0.8 (n ≥ 5p + 6 simulations for p statistics):
+    // sets too large for the fiducial ensemble are left out with a note.
+    let columns = fiducial.labels();
+    let mut chosen: Vec<(&str, &[&str])> = Vec::new();
+    for &(name, prefixes) in DEMO_SETS {
+        let p = columns
+            .iter()
+            .filter(|c| prefixes.iter().any(|pre| c.name.starts_with(pre)))
+            .count();
+        if p == 0 {
+            continue;
+        }
+        let n = args.fiducial_count as usize;
+        if n >= 5 * p + 6 {
+            chosen.push((name, prefixes));
+        } else {
+            println!(
+                "  left out: {name} ({p} statistics need at least {} fiducial skies for a Hartlap factor ≥ 0.8)",
+                5 * p + 6
+            );
+        }
+    }
+    let result = forecast_named_sets(&fiducial, &derivatives, None, &chosen)?;
     let doc = forecast_document(
         &result,
         &[FIDUCIAL.amplitude, FIDUCIAL.shift],

@@ -133,9 +133,19 @@ pub fn forecast_sets(
     derivatives: &[DerivativeEnsembles],
     cut: Option<&ScaleCut>,
 ) -> Result<ForecastResult> {
+    forecast_named_sets(fiducial, derivatives, cut, STATISTIC_SETS)
+}
+
+/// As [`forecast_sets`], for the given statistic sets (name, column-name prefixes).
+pub fn forecast_named_sets(
+    fiducial: &Ensemble,
+    derivatives: &[DerivativeEnsembles],
+    cut: Option<&ScaleCut>,
+    named: &[(&str, &[&str])],
+) -> Result<ForecastResult> {
     let labels = fiducial.labels().to_vec();
     let mut sets = Vec::new();
-    for (name, prefixes) in STATISTIC_SETS {
+    for (name, prefixes) in named {
         let Ok(set) = StatisticSet::with_prefixes(name, &labels, prefixes) else {
             continue; // the ensemble does not have this statistic
         };

@@ -52,13 +52,18 @@ pub struct MeasureOptions {
     /// Number of wavelet orientations L [default: 4].
     #[arg(long, short = 'L')]
     pub orientations: Option<usize>,
-    /// Plane pixels per tile side, a power of two [default: 64].
+    /// Plane pixels per tile side, a power of two [default: the tool's choice: the smallest power
+    /// of two ≥ 8 × halo, halved while wider than 32°].
     #[arg(long)]
     pub tile_pixels: Option<usize>,
-    /// NSIDE of the coarse grid of tile centres [default: the coarsest that fits, at least 4].
+    /// Cut the footprint into the pixels of a coarse HEALPix grid of this NSIDE instead of
+    /// latitude bands [default: latitude bands, cores that nearly fill their tiles].
     #[arg(long)]
     pub coarse_nside: Option<u32>,
-    /// Tile pixel size in arcmin [default: the map's mean pixel spacing].
+    /// Tile pixel size in arcmin [default: 3 map spacings, where the finest scale j = 0 (wavelength
+    /// 8/3 pixels = 8 map spacings) is the shortest the ring-cubic sampling carries within 2%;
+    /// at NSIDE 1024 J = 4 then covers wavelengths 27′–220′. Smaller scales need a higher-NSIDE
+    /// map; a finer --pixel-arcmin computes them but flags them untrusted].
     #[arg(long, allow_negative_numbers = true)]
     pub pixel_arcmin: Option<f64>,
     /// Width of the tile-border taper in tile pixels [default: 8].

@@ -68,8 +68,8 @@ pub struct SynthesizeArgs {
     /// Flat mode: field side in pixels, needed with a coefficient-file target.
     #[arg(long, value_name = "PIXELS")]
     pub size: Option<usize>,
-    /// Pixel side in arcmin [flat: 1 (scales the power spectrum only); sphere and --tile: the
-    /// map's mean pixel spacing].
+    /// Pixel side in arcmin [flat: 1 (scales the power spectrum only); sphere and --tile: as
+    /// `measure`, 3 map spacings].
     #[arg(long, value_name = "ARCMIN", allow_negative_numbers = true)]
     pub pixel_arcmin: Option<f64>,
     /// Number of scales J.

@@ -2,13 +2,13 @@
 //! will cost, optionally as JSON and as a Mollweide picture.
 
 use super::inputs::load_map;
+use super::measure::MeasureOptions;
 use crate::error::Result;
 use crate::fits_io::{read_footprint, ColumnChoice};
 use crate::footprint::Footprint;
+use crate::measurement::MeasurementSettings;
 use crate::plotting::SkyPicture;
 use crate::skymap::SkyMap;
-use super::measure::MeasureOptions;
-use crate::measurement::MeasurementSettings;
 use crate::tiling::{TilingPlan, TilingSummary};
 use std::path::{Path, PathBuf};
 
@@ -178,14 +178,7 @@ pub fn draw_tiling(plan: &TilingPlan, footprint: &Footprint, path: &Path) -> Res
     }
     picture.note(format!(
         "{} tiles ({}), grids {} × {} of {:.2}′ ({:.1}° across), halo {}; map NSIDE {}",
-        s.tiles,
-        s.cells,
-        n,
-        n,
-        s.pixel_size_arcmin,
-        s.tile_width_deg,
-        s.halo_pixels,
-        s.map_nside
+        s.tiles, s.cells, n, n, s.pixel_size_arcmin, s.tile_width_deg, s.halo_pixels, s.map_nside
     ));
     picture.note(format!(
         "footprint {:.0} deg² (shaded); red: cores; blue: tile grids; worst sec²ρ {:.3}",

@@ -167,7 +167,11 @@ impl LatitudeBands {
         let cap_radius = (0.995 * reach).min(PI / 2.0);
         let north = ring_theta(nside, ring_range.0) - 0.5 * margin;
         let south = ring_theta(nside, ring_range.1) + 0.5 * margin;
-        let top = if north < cap_radius { cap_radius } else { north };
+        let top = if north < cap_radius {
+            cap_radius
+        } else {
+            north
+        };
         let bottom = if south > PI - cap_radius {
             PI - cap_radius
         } else {
@@ -194,9 +198,7 @@ impl LatitudeBands {
         let mut slot_band: Vec<Option<usize>> = vec![None; slots];
         for i in 1..=ring_count {
             let theta = ring_theta(nside, i);
-            let slot = edges[1..]
-                .partition_point(|&e| e <= theta)
-                .min(slots - 1);
+            let slot = edges[1..].partition_point(|&e| e <= theta).min(slots - 1);
             let b = match slot_band[slot] {
                 Some(b) => b,
                 None => {
