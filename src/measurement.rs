@@ -58,9 +58,8 @@ pub struct MeasurementSettings {
     /// Cut the footprint into the pixels of a coarse HEALPix grid of this NSIDE instead of
     /// latitude bands (`None`, the default; see [`crate::tiling::CellLayout`]).
     pub coarse_nside: Option<u32>,
-    /// Plane pixel size in arcmin; `None`: the size at which the finest scale is the shortest
-    /// trusted one ([`MeasurementSettings::pixel_size`]: three map spacings for ring-cubic
-    /// sampling).
+    /// Plane pixel size in arcmin; `None`: the map's mean pixel spacing
+    /// ([`MeasurementSettings::pixel_size`]).
     pub pixel_arcmin: Option<f64>,
     /// Width of the tile-border ramp in plane pixels.
     pub border_pixels: usize,
@@ -105,7 +104,7 @@ impl Default for MeasurementSettings {
 impl MeasurementSettings {
     /// The halo: border ramp plus one largest-scale envelope width, 0.8·2^{J−1} pixels.
     pub fn halo(&self) -> usize {
-        let sigma = 0.8 * (1u64 << self.scales.saturating_sub(1).min(20)) as f64;
+        let sigma = 1.6 * (1u64 << self.scales.saturating_sub(1).min(20)) as f64;
         self.border_pixels + sigma.ceil() as usize
     }
 
@@ -140,31 +139,26 @@ impl MeasurementSettings {
     }
 
     /// The plane pixel size Δ (radians) for maps of pixelization `map`: `pixel_arcmin`, or by
-    /// default the size at which the finest scale's wavelength λ_0 = (8/3)·Δ equals the
-    /// shortest trusted wavelength λ_t·h (h the map's mean spacing), never below h:
-    /// Δ = max(1, 3λ_t/8)·h. Every default coefficient is then trusted by the sampling rule:
-    /// Δ = 3h for ring-cubic sampling (λ_t = 8h), 6h for the linear schemes (16h), h for
-    /// nearest (no scale trusted).
+    /// default the map's mean spacing h ([`crate::tiling::DEFAULT_PIXEL_FRACTION`]).
+    ///
+    /// A coarser default (Δ = 3h would put the finest scale at the shortest trusted wavelength,
+    /// 8h for ring-cubic sampling) is not used: a plane grid coarser than the map aliases the
+    /// map's power between Δ/2 and h into the finest scales. Measured at NSIDE 512, default
+    /// tiles, Δ = 3h: S1 at j = 0 is 16–17% above flat sky, at j = 1 up to 5%
+    /// (`tests/sphere_flat_versus_sphere.rs` settings); a coarser default needs a low-pass of the
+    /// map before it is sampled.
     ///
     /// ```
     /// use planisphere::measurement::MeasurementSettings;
     /// use planisphere::{Ordering, Pixelization};
     /// let map = Pixelization::new(1024, Ordering::Ring).unwrap();
     /// let delta = MeasurementSettings::default().pixel_size(map);
-    /// assert!((delta / map.mean_spacing() - 3.0).abs() < 1e-12); // 10.3′ at NSIDE 1024
+    /// assert!((delta / map.mean_spacing() - 1.0).abs() < 1e-12); // 3.44′ at NSIDE 1024
     /// ```
     pub fn pixel_size(&self, map: Pixelization) -> f64 {
         match self.pixel_arcmin {
             Some(a) => (a / 60.0).to_radians(),
-            None => {
-                let spacings = 3.0 * self.trusted_wavelength() / 8.0;
-                let spacings = if spacings.is_finite() {
-                    spacings.max(1.0)
-                } else {
-                    1.0
-                };
-                spacings * map.mean_spacing()
-            }
+            None => crate::tiling::DEFAULT_PIXEL_FRACTION * map.mean_spacing(),
         }
     }
 

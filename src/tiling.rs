@@ -256,7 +256,7 @@ pub fn fft_friendly_even(m: usize) -> usize {
 
 /// Checks n (positive, even, at most [`MAX_TILE_PIXELS`]).
 fn check_tile_pixels(n: usize) -> Result<()> {
-    if n == 0 || n % 2 != 0 || n > MAX_TILE_PIXELS {
+    if n == 0 || !n.is_multiple_of(2) || n > MAX_TILE_PIXELS {
         return Err(Error::Setting(format!(
             "tile pixels must be a positive even number up to {MAX_TILE_PIXELS}, got {n}"
         )));

@@ -11,8 +11,9 @@ use planisphere::{Footprint, Ordering, Pixelization};
 
 #[test]
 fn trusted_first_order_coefficients_match_flat_sky_within_two_percent_at_default_settings() {
-    // Default settings (J = 4, L = 4, 64-pixel tiles of one map spacing, ring-cubic sampling)
-    // at NSIDE 512: tiles 14.6° across (the automatic size for J = 4). Tolerance: the 2% acceptance level of this crate plus
+    // Default settings (J = 4, L = 4, plane pixels of one map spacing, ring-cubic sampling)
+    // at NSIDE 512: tiles of the automatic size, 128 pixels, 14.6° across. Tolerance: the 2%
+    // acceptance level of this crate plus
     // 2.5 standard errors of the sphere mean (3 skies on a 30° cap; the flat reference, eight
     // 256-pixel maps, is far more precise). Scales below the sampling limit must be flagged.
     let nside = 512;

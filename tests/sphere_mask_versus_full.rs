@@ -10,7 +10,14 @@ use planisphere::skies::SkyRecipe;
 use planisphere::statistics::CoefficientSet;
 use planisphere::{Footprint, Ordering, Pixelization};
 
-fn compare(nside: u32, scales: usize, skies: u64, hole_deg: f64, apo_deg: f64) {
+/// How the tiles are laid out: coarse HEALPix cells of one NSIDE for both footprints at one map
+/// spacing per plane pixel, so that only the mask differs.
+#[derive(Clone, Copy)]
+enum Layout {
+    SameHealpixCells,
+}
+
+fn compare(nside: u32, scales: usize, skies: u64, hole_deg: f64, apo_deg: f64, layout: Layout) {
     let pix = Pixelization::new(nside, Ordering::Ring).unwrap();
     let full = Footprint::full_sky(pix);
     let partial = sphere_support::holed_cap(nside, hole_deg, apo_deg);
@@ -19,16 +26,23 @@ fn compare(nside: u32, scales: usize, skies: u64, hole_deg: f64, apo_deg: f64) {
         partial.f_sky()
     );
     assert!((0.25..0.35).contains(&partial.f_sky()));
-    let settings = MeasurementSettings {
-        scales,
-        bispectrum: false,
-        // The default trust rule applies: below λ_j ≈ 8 map spacings the interpolated field's
-        // power depends on where the tile sits on the HEALPix grid (measured: with the rule
-        // lifted, S1(j = 0, l = 0) differs by 3.5 σ between the two footprints), which is not a
-        // property of the mask estimator.
+    // The default trust rule applies: below λ_j ≈ 8 map spacings the interpolated field's
+    // power depends on where the tile sits on the HEALPix grid (measured: with the rule
+    // lifted, S1(j = 0, l = 0) differs by 3.5 σ between the two footprints), which is not a
+    // property of the mask estimator.
+    let settings = match layout {
         // The same tile geometry for both footprints.
-        coarse_nside: Some(if nside <= 64 { 4 } else { 8 }),
-        ..Default::default()
+        Layout::SameHealpixCells => MeasurementSettings {
+            scales,
+            bispectrum: false,
+            coarse_nside: Some(match nside {
+                0..=64 => 4,
+                65..=128 => 8,
+                _ => 16,
+            }),
+            pixel_arcmin: Some(pix.mean_spacing().to_degrees() * 60.0),
+            ..Default::default()
+        },
     };
     let on_full = SphereMeasurer::new(pix, &full, settings).unwrap();
     let on_partial = SphereMeasurer::new(pix, &partial, settings).unwrap();
@@ -104,11 +118,20 @@ fn partial_sky_trusted_coefficients_agree_with_full_sky_within_half_sigma() {
     // 32 skies: the paired difference of ensemble means has a standard error of about
     // 0.15 σ (printed for the worst coefficient), so a 0.5 σ bias stands out at > 3 standard
     // errors while chance excursions past 0.5 σ stay rare over the ~30 coefficients compared.
-    compare(64, 4, 32, 4.0, 3.0);
+    compare(64, 4, 32, 4.0, 3.0, Layout::SameHealpixCells);
+}
+
+#[test]
+#[ignore = "fails (0.71 σ at band power j = 2, standard error 0.38 σ) and takes about 7 minutes: NSIDE 256, 12 skies"]
+fn partial_sky_agrees_with_full_sky_within_half_sigma_at_nside_256() {
+    // The same tile geometry for both footprints (coarse NSIDE 16 cells), 12 skies: the mask
+    // estimator alone. (With each footprint's own latitude bands the tile positions differ too;
+    // that change of plan is checked in tests/sphere_plan_layouts.rs.)
+    compare(256, 4, 12, 2.5, 2.0, Layout::SameHealpixCells);
 }
 
 #[test]
 #[ignore = "heavier variant (about 4.5 minutes): NSIDE 128, 32 skies"]
 fn partial_sky_trusted_coefficients_agree_with_full_sky_within_half_sigma_nside_128() {
-    compare(128, 4, 32, 2.5, 2.0);
+    compare(128, 4, 32, 2.5, 2.0, Layout::SameHealpixCells);
 }

@@ -60,10 +60,9 @@ pub struct MeasureOptions {
     /// latitude bands [default: latitude bands, cores that nearly fill their tiles].
     #[arg(long)]
     pub coarse_nside: Option<u32>,
-    /// Tile pixel size in arcmin [default: 3 map spacings, where the finest scale j = 0 (wavelength
-    /// 8/3 pixels = 8 map spacings) is the shortest the ring-cubic sampling carries within 2%;
-    /// at NSIDE 1024 J = 4 then covers wavelengths 27′–220′. Smaller scales need a higher-NSIDE
-    /// map; a finer --pixel-arcmin computes them but flags them untrusted].
+    /// Tile pixel size in arcmin [default: the map's mean pixel spacing h; scale j has the
+    /// wavelength (8/3)·2^j pixels, and with ring-cubic sampling scales below 8h (j = 0, 1 at
+    /// the default) are flagged untrusted: smaller scales need a higher-NSIDE map].
     #[arg(long, allow_negative_numbers = true)]
     pub pixel_arcmin: Option<f64>,
     /// Width of the tile-border taper in tile pixels [default: 8].

@@ -69,7 +69,7 @@ pub struct SynthesizeArgs {
     #[arg(long, value_name = "PIXELS")]
     pub size: Option<usize>,
     /// Pixel side in arcmin [flat: 1 (scales the power spectrum only); sphere and --tile: as
-    /// `measure`, 3 map spacings].
+    /// `measure`, the map's mean pixel spacing].
     #[arg(long, value_name = "ARCMIN", allow_negative_numbers = true)]
     pub pixel_arcmin: Option<f64>,
     /// Number of scales J.

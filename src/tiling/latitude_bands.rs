@@ -134,7 +134,7 @@ impl LatitudeBands {
         // Room for the ungrown cell: moving a point by m on the sphere moves it by at most
         // m·sec²ρ ≤ m(1 + 2c²) on the plane within the square (radial scale, Snyder 1987, §22).
         let room = core_half - margin * (1.0 + 2.0 * core_half * core_half);
-        if !(room > 0.0) {
+        if room.is_nan() || room <= 0.0 {
             return Err(Error::Setting(format!(
                 "the tile leaves no room for a core: its core half-width of {:.4}° is below the \
                  margin of one map spacing ({:.4}°); use larger tiles or a smaller halo",
