@@ -207,8 +207,8 @@ pub fn run(args: &DemoArgs) -> Result<()> {
         spectrum_bins: 4,
         ..MeasurementSettings::default()
     };
-    // pseudo-C_ℓ in 16 bins up to ℓ = 2 NSIDE
-    let cl_bin_width = (2 * args.nside as usize).div_ceil(16);
+    // pseudo-C_ℓ up to ℓ = 2 NSIDE in as many bins as the summary has numbers (J²)
+    let cl_bin_width = (2 * args.nside as usize).div_ceil(scales * scales);
     let em = EnsembleMeasurer::new(pix, footprint.clone(), settings, cl_bin_width)?;
     let summary = em.measurer.summary();
     println!(
