@@ -384,6 +384,30 @@ pub(crate) fn ring_pixel_phi(nside: u64, i: u64, j: u64) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use std::f64::consts::FRAC_PI_4;
+
+    #[test]
+    fn ring_and_position_agree_with_healpy_pix2ang_and_invert_ring_info() {
+        // healpy 1.20.1 pix2ang(16, [0, 427, 1440, 1520, 3068]) in RING (shared reference facts).
+        let theta = [0.05103658, 0.78550497, 1.52911759, FRAC_PI_2, 3.09055608];
+        let phi = [FRAC_PI_4, FRAC_PI_4, 0.0, 1.61988371, FRAC_PI_4];
+        for (k, p) in [0u64, 427, 1440, 1520, 3068].into_iter().enumerate() {
+            let (i, j) = ring_and_position(16, p);
+            assert!((ring_theta(16, i) - theta[k]).abs() < 1e-8, "pixel {p}");
+            assert!(
+                (ring_pixel_phi(16, i, j) - phi[k]).abs() < 1e-8,
+                "pixel {p}"
+            );
+        }
+        // every RING index is ring_info's first pixel of its ring plus its position
+        for nside in [1u64, 2, 8, 64] {
+            for p in 0..12 * nside * nside {
+                let (i, j) = ring_and_position(nside, p);
+                let (first, len, _) = ring_info(nside, i);
+                assert!(j < len && first + j == p, "NSIDE {nside}, pixel {p}");
+            }
+        }
+    }
 
     #[test]
     fn nested_requires_power_of_two_nside() {
