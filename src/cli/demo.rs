@@ -39,7 +39,7 @@ pub struct DemoArgs {
     #[arg(long, default_value_t = 86)]
     pub fiducial_count: u64,
     /// Simulations at each shifted parameter value (paired seeds, for the derivatives).
-    #[arg(long, default_value_t = 12)]
+    #[arg(long, default_value_t = 10)]
     pub derivative_count: u64,
     /// Number of wavelet scales J.
     #[arg(long, default_value_t = 4)]
