@@ -343,6 +343,21 @@ impl OrientationSummary {
         out
     }
 
+    /// The named items from the full coefficient values and trust flags (in label order):
+    /// [`Self::values`] with [`Self::trusted`].
+    pub fn statistics(&self, values: &[f64], trusted: &[bool]) -> Vec<SummaryStatistic> {
+        self.names()
+            .into_iter()
+            .zip(self.values(values))
+            .zip(self.trusted(trusted))
+            .map(|((name, value), trusted)| SummaryStatistic {
+                name,
+                value,
+                trusted,
+            })
+            .collect()
+    }
+
     /// Item names in order (see [`Self::labels`]).
     pub fn names(&self) -> Vec<String> {
         self.labels().iter().map(SummaryLabel::name).collect()
@@ -578,17 +593,7 @@ impl CoefficientSet {
         let layout = OrientationSummary::new(self.scale_count, self.orientation_count)?;
         let values: Vec<f64> = self.coefficients.iter().map(|c| c.value).collect();
         let trusted: Vec<bool> = self.coefficients.iter().map(|c| c.trusted).collect();
-        Ok(layout
-            .names()
-            .into_iter()
-            .zip(layout.values(&values))
-            .zip(layout.trusted(&trusted))
-            .map(|((name, value), trusted)| SummaryStatistic {
-                name,
-                value,
-                trusted,
-            })
-            .collect())
+        Ok(layout.statistics(&values, &trusted))
     }
 }
 

@@ -315,16 +315,25 @@ pub fn file_summary(file: &MeasurementFile) -> Vec<SummaryStatistic> {
             trusted[i] = c.trusted && values[i].is_finite();
         }
     }
+    let mut items = layout.statistics(&values, &trusted);
+    for item in items.iter_mut() {
+        item.trusted &= item.value.is_finite();
+    }
+    items
+}
+
+/// The summary of a file with each item's label, in label order.
+fn labelled_summary(
+    file: &MeasurementFile,
+) -> Vec<(crate::statistics::SummaryLabel, SummaryStatistic)> {
+    let Ok(layout) = OrientationSummary::new(file.settings.scales, file.settings.orientations)
+    else {
+        return Vec::new();
+    };
     layout
-        .names()
+        .labels()
         .into_iter()
-        .zip(layout.values(&values))
-        .zip(layout.trusted(&trusted))
-        .map(|((name, value), trusted)| SummaryStatistic {
-            name,
-            value,
-            trusted: trusted && value.is_finite(),
-        })
+        .zip(file_summary(file))
         .collect()
 }
 
@@ -339,15 +348,8 @@ pub struct PairItem {
 
 /// The scale-pair items of one kind (`SummaryKind::Intermittency` or `Alignment`) of a file.
 pub fn pair_items(file: &MeasurementFile, kind: SummaryKind) -> Vec<PairItem> {
-    let summary = file_summary(file);
-    let Ok(layout) = OrientationSummary::new(file.settings.scales, file.settings.orientations)
-    else {
-        return Vec::new();
-    };
-    layout
-        .labels()
-        .iter()
-        .zip(&summary)
+    labelled_summary(file)
+        .into_iter()
         .filter_map(|(label, item)| match (label.j1, label.j2) {
             (Some(j1), Some(j2)) if label.kind == kind => Some(PairItem {
                 j1,
@@ -363,15 +365,8 @@ pub fn pair_items(file: &MeasurementFile, kind: SummaryKind) -> Vec<PairItem> {
 /// Per-scale items of one kind (`SummaryKind::Modulus` or `ModulusAnisotropy`) of a file, as
 /// (j, value, trusted).
 pub fn scale_items(file: &MeasurementFile, kind: SummaryKind) -> Vec<(usize, f64, bool)> {
-    let summary = file_summary(file);
-    let Ok(layout) = OrientationSummary::new(file.settings.scales, file.settings.orientations)
-    else {
-        return Vec::new();
-    };
-    layout
-        .labels()
-        .iter()
-        .zip(&summary)
+    labelled_summary(file)
+        .into_iter()
         .filter_map(|(label, item)| {
             (label.kind == kind && label.j2.is_none()).then_some((
                 label.j1?,
