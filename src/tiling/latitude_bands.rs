@@ -59,6 +59,11 @@ struct Band {
     ends: Vec<f64>,
     /// Tile index of each cell (None: the cell holds no footprint pixel and is dropped).
     tiles: Vec<Option<usize>>,
+    /// Tangent point of each cell (for a cap, the pole).
+    centers: Vec<Direction>,
+    /// Largest |x| or |y| and largest x² + y² of each cell's footprint in its tile's plane
+    /// (radians).
+    reach: Vec<(f64, f64)>,
     /// Is the band a polar cap (one cell, tangent at the pole)?
     cap: bool,
 }
@@ -150,48 +155,84 @@ impl LatitudeBands {
                 Ordering::Nested => fp_pix.to_ring(p),
             }
         };
-        let mut ring_range = (u64::MAX, 0u64);
+        let ring_count = 4 * nside - 1;
+        let mut ring_occupied = vec![false; ring_count as usize];
         for (p, &w) in footprint.weights().iter().enumerate() {
             if w > 0.0 {
                 let (i, _) = ring_and_position(nside, to_ring(p as u64)?);
-                ring_range = (ring_range.0.min(i), ring_range.1.max(i));
+                ring_occupied[(i - 1) as usize] = true;
             }
         }
-        if ring_range.0 > ring_range.1 {
+        // The footprint's colatitude spans: runs of rings holding footprint, each grown by half
+        // a spacing, cut to the caps of radius R at the poles (a cap is one cell).
+        let cap_radius = (0.995 * reach).min(PI / 2.0);
+        let mut spans: Vec<(f64, f64)> = Vec::new();
+        let mut i = 0usize;
+        while i < ring_occupied.len() {
+            if !ring_occupied[i] {
+                i += 1;
+                continue;
+            }
+            let first = i;
+            while i < ring_occupied.len() && ring_occupied[i] {
+                i += 1;
+            }
+            spans.push((
+                ring_theta(nside, first as u64 + 1) - 0.5 * margin,
+                ring_theta(nside, i as u64) + 0.5 * margin,
+            ));
+        }
+        let (Some(&(north, _)), Some(&(_, south))) = (spans.first(), spans.last()) else {
             return Err(Error::Data(
                 "the mask is empty (no pixel has positive weight)".into(),
             ));
-        }
-        // Band edges: equal bands over the footprint's colatitudes, replaced near a pole by a
-        // cap of radius R when the footprint reaches it.
-        let cap_radius = (0.995 * reach).min(PI / 2.0);
-        let north = ring_theta(nside, ring_range.0) - 0.5 * margin;
-        let south = ring_theta(nside, ring_range.1) + 0.5 * margin;
-        let top = if north < cap_radius {
-            cap_radius
-        } else {
-            north
         };
-        let bottom = if south > PI - cap_radius {
-            PI - cap_radius
-        } else {
-            south
-        };
-        let middle = (bottom - top).max(0.0);
-        let band_count = if middle > 0.0 {
-            (middle / (BAND_HEIGHT_FILL * 2.0 * reach)).ceil().max(1.0) as usize
-        } else {
-            0
-        };
-        let mut edges = vec![0.0, top];
-        for b in 1..=band_count {
-            edges.push(top + middle * b as f64 / band_count as f64);
-        }
-        edges.push(PI);
         let north_cap = north < cap_radius;
         let south_cap = south > PI - cap_radius;
+        let spans: Vec<(f64, f64)> = spans
+            .into_iter()
+            .map(|(a, b)| (a.max(cap_radius), b.min(PI - cap_radius)))
+            .filter(|(a, b)| b > a)
+            .collect();
+        // Bands of equal height over each span; two spans share their bands when that takes no
+        // more bands than laying them out apart (so a wide gap, such as a galactic-plane cut,
+        // gets no band, and a narrow one costs nothing).
+        let height = BAND_HEIGHT_FILL * 2.0 * reach;
+        let bands_for = |a: f64, b: f64| ((b - a) / height).ceil().max(1.0);
+        let mut merged: Vec<(f64, f64)> = Vec::new();
+        for (a, b) in spans {
+            if let Some(last) = merged.last_mut() {
+                if a <= last.1
+                    || bands_for(last.0, b) <= bands_for(last.0, last.1) + bands_for(a, b)
+                {
+                    last.1 = last.1.max(b);
+                    continue;
+                }
+            }
+            merged.push((a, b));
+        }
+        // Slot edges: the north cap (or nothing) down to the first span, the bands of each span,
+        // the gaps between spans (no footprint: empty slots), down to the south cap (or nothing).
+        let mut edges = vec![0.0];
+        if north_cap {
+            edges.push(cap_radius);
+        }
+        for &(a, b) in &merged {
+            if a > edges[edges.len() - 1] {
+                edges.push(a);
+            }
+            let count = bands_for(a, b) as usize;
+            for k in 1..=count {
+                edges.push(a + (b - a) * k as f64 / count as f64);
+            }
+        }
+        if south_cap && edges[edges.len() - 1] < PI - cap_radius {
+            edges.push(PI - cap_radius);
+        }
+        if edges[edges.len() - 1] < PI {
+            edges.push(PI);
+        }
         // Rings to bands (a band without rings is skipped).
-        let ring_count = 4 * nside - 1;
         let mut bands: Vec<Band> = Vec::new();
         let mut band_of_ring = Vec::with_capacity(ring_count as usize);
         let slots = edges.len() - 1;
@@ -217,6 +258,8 @@ impl LatitudeBands {
                         starts: Vec::new(),
                         ends: Vec::new(),
                         tiles: Vec::new(),
+                        centers: Vec::new(),
+                        reach: Vec::new(),
                         cap,
                     });
                     slot_band[slot] = Some(bands.len() - 1);
@@ -226,9 +269,11 @@ impl LatitudeBands {
             bands[b].rings.1 = i;
             band_of_ring.push(b);
         }
-        // Footprint longitudes per band, binned (bins of one equatorial pixel width).
+        // Footprint pixel centres per band, binned in longitude (bins of one equatorial pixel
+        // width): the colatitude range of the footprint pixels whose centre lies in each bin.
         let bin_count = (4 * nside as usize).max(64);
-        let mut occupied: Vec<Vec<bool>> = vec![vec![false; bin_count]; bands.len()];
+        let mut extents: Vec<Vec<Option<(f64, f64)>>> = vec![Vec::new(); bands.len()];
+        let mut cap_occupied = vec![false; bands.len()];
         let ring_pix = Pixelization::new(nside as u32, Ordering::Ring)?;
         let nb = bin_count as f64;
         for (p, &w) in footprint.weights().iter().enumerate() {
@@ -238,40 +283,43 @@ impl LatitudeBands {
             let (i, j) = ring_and_position(nside, to_ring(p as u64)?);
             let b = band_of_ring[(i - 1) as usize];
             if bands[b].cap {
-                occupied[b][0] = true;
+                cap_occupied[b] = true;
                 continue;
+            }
+            if extents[b].is_empty() {
+                extents[b] = vec![None; bin_count];
             }
             let phi = ring_pixel_phi(nside, i, j);
             let theta = ring_theta(nside, i);
-            let spread = (2.0 * margin / theta.sin().max(1e-9)).min(PI);
-            let lo = ((phi - spread) / TAU * nb).floor() as i64;
-            let hi = ((phi + spread) / TAU * nb).floor() as i64;
-            for k in lo..=hi {
-                occupied[b][k.rem_euclid(bin_count as i64) as usize] = true;
-            }
+            let k = ((phi / TAU * nb).floor() as usize).min(bin_count - 1);
+            let e = &mut extents[b][k];
+            *e = Some(match *e {
+                Some((lo, hi)) => (lo.min(theta), hi.max(theta)),
+                None => (theta, theta),
+            });
         }
-        // The widest cell of every band holding footprint.
-        let mut widths = vec![0.0; bands.len()];
-        for (b, band) in bands.iter().enumerate() {
-            if occupied[b].iter().any(|&o| o) {
-                widths[b] = Self::widest_cell(band, room)?;
-            }
-        }
-        // Cells of every band.
+        // Cells of every band: caps whole, other bands cut greedily along the footprint.
         for (b, band) in bands.iter_mut().enumerate() {
-            if !occupied[b].iter().any(|&o| o) {
-                continue;
-            }
             if band.cap {
-                if occupied[b][0] {
+                if cap_occupied[b] {
+                    Self::widest_cell(band, room)?;
                     band.starts = vec![0.0];
                     band.ends = vec![TAU];
+                    let center = Direction::new(band.theta_center, 0.0);
+                    let (t0, t1) = band.theta;
+                    band.reach = vec![outline_extent(&Gnomonic::new(center), t0, t1, -PI, PI)
+                        .ok_or_else(|| {
+                            Error::Geometry("a polar cap reaches a hemisphere".into())
+                        })?];
+                    band.centers = vec![center];
                 }
                 continue;
             }
-            let (starts, ends) = Self::cells_over_runs(&occupied[b], widths[b]);
-            band.starts = starts;
-            band.ends = ends;
+            if extents[b].is_empty() {
+                continue;
+            }
+            Self::widest_cell(band, room)?;
+            Self::greedy_cells(band, &extents[b], room)?;
         }
         // Count pixels and footprint weight per cell.
         let mut weight: Vec<Vec<f64>> = bands.iter().map(|b| vec![0.0; b.starts.len()]).collect();
@@ -309,18 +357,8 @@ impl LatitudeBands {
                 if count[b][k] == 0 {
                     continue;
                 }
-                let (phi_c, p0, p1) = if band.cap {
-                    (0.0, -PI, PI)
-                } else {
-                    let half = 0.5 * (band.ends[k] - band.starts[k]);
-                    (band.starts[k] + half, -half, half)
-                };
-                let center = Direction::new(band.theta_center, phi_c.rem_euclid(TAU));
-                let proj = Gnomonic::new(center);
-                let (t0, t1) = band.theta;
-                let (half_width, r2) = outline_extent(&proj, t0, t1, p0, p1).ok_or_else(|| {
-                    Error::Geometry("a cell reaches a hemisphere from its centre".into())
-                })?;
+                let center = band.centers[k];
+                let (half_width, r2) = band.reach[k];
                 band.tiles[k] = Some(cells.len());
                 tile_cells.push((b, k));
                 cells.push(BandCell {
@@ -387,82 +425,150 @@ impl LatitudeBands {
         Ok(lo)
     }
 
-    /// Cells over the runs of occupied longitude bins (circular), each run split into equal cells
-    /// no wider than `widest`; runs closer than half a cell are merged. Returns (starts, ends)
-    /// sorted by start, starts in [starts[0], starts[0] + 2π).
-    fn cells_over_runs(occupied: &[bool], widest: f64) -> (Vec<f64>, Vec<f64>) {
-        let nb = occupied.len();
+    /// Cuts a band into cells along its footprint: starting after a free longitude bin, each
+    /// cell takes the longest stretch of bins whose footprint pixel centres fit, in the gnomonic
+    /// projection about the centre of their colatitude and longitude range, in |x|, |y| ≤ `room`
+    /// (bins without footprint are free: a cell may span a gap, or end before it). Greedy covering
+    /// of an interval by feasible pieces gives the fewest cells when feasibility is inherited by
+    /// sub-intervals, as it is here up to the choice of tangent point. Fills the band's `starts`,
+    /// `ends` (radians, sorted by start, in [starts[0], starts[0] + 2π)) and `centers`.
+    fn greedy_cells(band: &mut Band, bins: &[Option<(f64, f64)>], room: f64) -> Result<()> {
+        let nb = bins.len();
         let bw = TAU / nb as f64;
-        if occupied.iter().all(|&o| !o) {
-            return (Vec::new(), Vec::new());
+        let Some(first_free) = bins.iter().position(|e| e.is_none()) else {
+            // every bin holds footprint: start anywhere
+            return Self::cover(band, bins, 0, nb, bw, room);
+        };
+        // start at the first occupied bin after a free one (no cell then wraps past its start)
+        let mut start = None;
+        for k in 1..=nb {
+            let i = (first_free + k) % nb;
+            if bins[i].is_some() {
+                start = Some(first_free + k);
+                break;
+            }
         }
-        // Runs as (first bin, bin count), found from a free bin so none wraps.
-        let mut runs: Vec<(usize, usize)> = Vec::new();
-        match occupied.iter().position(|&o| !o) {
-            None => runs.push((0, nb)),
-            Some(free) => {
-                let mut k = 0;
-                while k < nb {
-                    let b = (free + k) % nb;
-                    if occupied[b] {
-                        let start = b;
-                        let mut len = 0;
-                        while k < nb && occupied[(free + k) % nb] {
-                            len += 1;
-                            k += 1;
-                        }
-                        runs.push((start, len));
-                    } else {
-                        k += 1;
-                    }
+        match start {
+            Some(s) => Self::cover(band, bins, s, s + nb - (s - first_free), bw, room),
+            None => Ok(()),
+        }
+    }
+
+    /// The extent check of bins [s, e) (indices modulo the bin count): the tangent point and the
+    /// largest |x| or |y| and x² + y² of the footprint pixel centres' bin outlines, or `None`
+    /// when some point is a hemisphere away.
+    fn bin_extent(
+        bins: &[Option<(f64, f64)>],
+        s: usize,
+        e: usize,
+        bw: f64,
+    ) -> Option<(Direction, f64, f64)> {
+        let nb = bins.len();
+        let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+        let (mut first, mut last) = (None, 0usize);
+        for k in s..e {
+            if let Some((a, b)) = bins[k % nb] {
+                lo = lo.min(a);
+                hi = hi.max(b);
+                first.get_or_insert(k);
+                last = k;
+            }
+        }
+        let first = first?;
+        let (p0, p1) = (first as f64 * bw, (last + 1) as f64 * bw);
+        let center = Direction::new(0.5 * (lo + hi), (0.5 * (p0 + p1)).rem_euclid(TAU));
+        let proj = Gnomonic::new(center);
+        let (mut half, mut r2) = (0.0f64, 0.0f64);
+        for k in first..=last {
+            let Some((a, b)) = bins[k % nb] else { continue };
+            let (q0, q1) = (k as f64 * bw, (k + 1) as f64 * bw);
+            for t in [a, b] {
+                for q in [q0, 0.5 * (q0 + q1), q1] {
+                    let (x, y) = proj.forward(Direction::new(t, q.rem_euclid(TAU)))?;
+                    half = half.max(x.abs()).max(y.abs());
+                    r2 = r2.max(x * x + y * y);
                 }
             }
         }
-        // Merge runs separated by gaps narrower than half a cell (circularly).
-        let merge_gap = ((0.5 * widest) / bw).floor() as usize;
-        let mut merged: Vec<(usize, usize)> = Vec::new();
-        for &(s, l) in &runs {
-            if let Some(last) = merged.last_mut() {
-                let end = last.0 + last.1;
-                let gap = (s + nb - end % nb) % nb;
-                if gap <= merge_gap {
-                    last.1 += gap + l;
-                    continue;
+        Some((center, half, r2))
+    }
+
+    /// Greedy cells over bins [from, to) (indices modulo the bin count); see
+    /// [`LatitudeBands::greedy_cells`].
+    fn cover(
+        band: &mut Band,
+        bins: &[Option<(f64, f64)>],
+        from: usize,
+        to: usize,
+        bw: f64,
+        room: f64,
+    ) -> Result<()> {
+        let nb = bins.len();
+        let fits = |s: usize, e: usize| {
+            Self::bin_extent(bins, s, e, bw).is_some_and(|(_, h, _)| h <= room)
+        };
+        let mut cells: Vec<(usize, usize)> = Vec::new();
+        let mut s = from;
+        while s < to {
+            if bins[s % nb].is_none() {
+                s += 1;
+                continue;
+            }
+            if !fits(s, s + 1) {
+                return Err(Error::Geometry(format!(
+                    "a band of {:.3}° at colatitude {:.2}° does not fit its tile",
+                    (band.theta.1 - band.theta.0).to_degrees(),
+                    band.theta_center.to_degrees()
+                )));
+            }
+            // largest e ≤ to with [s, e) fitting: doubling, then bisection
+            let (mut good, mut step) = (s + 1, 1usize);
+            let mut bad = loop {
+                let e = (s + 1 + step).min(to);
+                if !fits(s, e) {
+                    break e;
+                }
+                good = e;
+                if e == to {
+                    break to + 1;
+                }
+                step *= 2;
+            };
+            while bad > good + 1 {
+                let mid = (good + bad) / 2;
+                if fits(s, mid) {
+                    good = mid;
+                } else {
+                    bad = mid;
                 }
             }
-            merged.push((s, l));
-        }
-        if merged.len() > 1 {
-            let (s0, _) = merged[0];
-            let last = merged[merged.len() - 1];
-            let gap = (s0 + nb - (last.0 + last.1) % nb) % nb;
-            if gap <= merge_gap {
-                let first = merged.remove(0);
-                if let Some(l) = merged.last_mut() {
-                    l.1 += gap + first.1;
-                }
+            // end the cell after its last footprint bin
+            let mut e = good;
+            while e > s + 1 && bins[(e - 1) % nb].is_none() {
+                e -= 1;
             }
+            cells.push((s, e));
+            s = e;
         }
-        let mut cells: Vec<(f64, f64)> = Vec::new();
-        for (s, l) in merged {
-            let len = (l.min(nb)) as f64 * bw;
-            let start = s as f64 * bw;
-            let k = (len / widest).ceil().max(1.0) as usize;
-            let w = len / k as f64;
-            for t in 0..k {
-                cells.push((start + t as f64 * w, start + (t + 1) as f64 * w));
-            }
+        let mut spans: Vec<(f64, f64, Direction, (f64, f64))> = Vec::with_capacity(cells.len());
+        for (s, e) in cells {
+            let (center, half, r2) = Self::bin_extent(bins, s, e, bw).ok_or_else(|| {
+                Error::Geometry("a cell reaches a hemisphere from its centre".into())
+            })?;
+            let shift = ((s as f64 * bw) / TAU).floor() * TAU;
+            spans.push((
+                s as f64 * bw - shift,
+                e as f64 * bw - shift,
+                center,
+                (half, r2),
+            ));
         }
-        // Sort by start, taken into [first, first + 2π).
-        for c in cells.iter_mut() {
-            let shift = (c.0 / TAU).floor() * TAU;
-            c.0 -= shift;
-            c.1 -= shift;
-        }
-        cells.sort_by(|a, b| a.0.total_cmp(&b.0));
-        let starts = cells.iter().map(|c| c.0).collect();
-        let ends = cells.iter().map(|c| c.1).collect();
-        (starts, ends)
+        spans.sort_by(|a, b| a.0.total_cmp(&b.0));
+        band.starts = spans.iter().map(|c| c.0).collect();
+        band.ends = spans.iter().map(|c| c.1).collect();
+        band.centers = spans.iter().map(|c| c.2).collect();
+        band.reach = spans.iter().map(|c| c.3).collect();
+        Ok(())
     }
 
     /// Tile index owning RING pixel `p`, if any.
