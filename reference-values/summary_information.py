@@ -36,9 +36,14 @@ shift_plus/, shift_minus/, each with statistics.json + statistics.npy, and compa
     single sigma values of the draws are biased low; the ratio of two sets on the same draw is
     what is summarised.)
 
-Besides the two sets, a few re-normalisations of the summary's own items are measured the same
-way (variants): logarithms of the intermittencies, and intermittencies as means of
-per-orientation ratios (sums of ratios).
+Besides the two sets, measured the same way on the same draws: the summary row with the modulus
+anisotropies as well (J^2 + J numbers), and two re-normalisations of the summary's own items
+(variants): logarithms of the intermittencies, and intermittencies as means of per-orientation
+ratios (sums of ratios) instead of ratios of orientation sums.
+
+With --fixture-run NAME, that run's summary items (every sky of the five ensembles), the steps
+and numpy's marginalised errors of the summary row are written to
+summary/demo_summary_row.json for tests/forecast_demo_summary_numpy.rs.
 """
 
 import argparse
@@ -80,7 +85,7 @@ class Coefficients:
 
     def __init__(self, columns, values, J, L):
         index = {c: i for i, c in enumerate(columns)}
-        n = values.shape[0]
+        n = len(values)
         self.J, self.L = J, L
         self.mean = values[:, index["full.mean"]]
         self.variance = values[:, index["full.variance"]]
@@ -153,6 +158,13 @@ def previous_reduced_set(c):
     return names, np.stack(cols, axis=1)
 
 
+def summary_row_with_anisotropies(c):
+    """The forecast row plus the modulus anisotropies (J^2 + J numbers)."""
+    items = summary_items(c)
+    names = [k for k in items if k.startswith(SUMMARY_ROW_PREFIXES + ("summary.modulus_anisotropy_",))]
+    return names, np.stack([items[k] for k in names], axis=1)
+
+
 def variant_log_intermittency(c):
     names, x = summary_row(c)
     x = x.copy()
@@ -180,7 +192,7 @@ def variant_sum_of_ratios(c):
 def sample_covariance(x):
     mean = x.mean(axis=0)
     d = x - mean
-    cov = d.T @ d / (x.shape[0] - 1)
+    cov = d.T @ d / (len(x) - 1)
     return 0.5 * (cov + cov.T)
 
 
@@ -195,7 +207,7 @@ def spd_inverse(a):
 
 def marginalised_errors(fid, plus_minus, steps):
     """Marginalised errors sqrt(diag(F^-1)) of (amplitude, shift) and the Hartlap factor."""
-    n, p = fid.shape
+    n, p = len(fid), len(fid[0])
     hartlap = (n - p - 2) / (n - 1)
     psi = hartlap * spd_inverse(sample_covariance(fid))
     m = np.stack([(xp - xm).mean(axis=0) / (2.0 * step) for (xp, xm), step in zip(plus_minus, steps)], axis=1)
@@ -215,12 +227,15 @@ def percentiles(v):
     return {"p2.5": q[0], "p16": q[1], "median": q[2], "p84": q[3], "p97.5": q[4]}
 
 
-def crate_sigma(run_dir, row):
+def crate_rows(run_dir):
+    """sigma(A) and Hartlap factor of every row of the demo's comparison table."""
     with open(os.path.join(run_dir, "comparison.csv"), newline="") as fh:
-        for r in csv.DictReader(fh):
-            if r["set"] == row:
-                return float(r["sigma_marg(amplitude)"])
-    return None
+        return {
+            r["set"]: {"sigma_amplitude": float(r["sigma_marg(amplitude)"]), "hartlap_factor": float(r["hartlap"]),
+                       "n_statistics": int(r["p"])}
+            for r in csv.DictReader(fh)
+            if r["sigma_marg(amplitude)"]
+        }
 
 
 def analyse(name, run_dir, draws, seed):
@@ -256,6 +271,7 @@ def analyse(name, run_dir, draws, seed):
         "previous_reduced_set": previous_reduced_set,
         "variant_log_intermittency": variant_log_intermittency,
         "variant_intermittency_sum_of_ratios": variant_sum_of_ratios,
+        "summary_with_anisotropies": summary_row_with_anisotropies,
     }
     x = {s: {e: f(coeffs[e])[1] for e in ENSEMBLES} for s, f in sets.items()}
 
@@ -270,11 +286,12 @@ def analyse(name, run_dir, draws, seed):
         return sigma_amplitude(fid, pm, steps)
 
     point = {s: sigma(s) for s in sets}
-    crate = crate_sigma(run_dir, SUMMARY_ROW)
+    table = crate_rows(run_dir)
+    crate = table.get(SUMMARY_ROW, {}).get("sigma_amplitude")
     ours = point["orientation_harmonic_summary"][0]
 
-    nf = x["orientation_harmonic_summary"]["fiducial"].shape[0]
-    nd = x["orientation_harmonic_summary"]["amplitude_plus"].shape[0]
+    nf = len(x["orientation_harmonic_summary"]["fiducial"])
+    nd = len(x["orientation_harmonic_summary"]["amplitude_plus"])
     rng = np.random.default_rng(seed)
     modes = {"both": (True, True), "fiducial_only": (True, False), "derivatives_only": (False, True)}
     boot = {}
@@ -321,6 +338,9 @@ def analyse(name, run_dir, draws, seed):
         "steps": steps,
         "directory": os.path.abspath(run_dir),
         "demo_settings": forecast.get("settings"),
+        "demo_command": "planisphere demo -o {} --nside {} --fiducial-count {} --derivative-count {} --scales {}".format(
+            run_dir, forecast["settings"]["nside"], forecast["settings"]["fiducial_count"],
+            forecast["settings"]["derivative_count"], J),
         "fiducial_skies": nf,
         "skies_per_shifted_value": nd,
         "scales": J,
@@ -329,10 +349,11 @@ def analyse(name, run_dir, draws, seed):
         "summary_items_from_full_set_worst_relative_difference": worst,
         "summary_items_worst_item": worst_item,
         "sigma_amplitude": {s: v[0] for s, v in point.items()},
-        "hartlap_factor": point["orientation_harmonic_summary"][1],
-        "n_statistics": int(x["orientation_harmonic_summary"]["fiducial"].shape[1]),
+        "hartlap_factor": {s: v[1] for s, v in point.items()},
+        "n_statistics": {s: len(x[s]["fiducial"][0]) for s in sets},
         "ratio_summary_to_previous": ours / point["previous_reduced_set"][0],
         "crate_sigma_amplitude_summary_row": crate,
+        "crate_comparison_rows": table,
         "script_vs_crate_relative_difference": None if crate is None else abs(ours - crate) / crate,
         "bootstrap": {"draws": draws, "seed": seed, **boot},
     }
