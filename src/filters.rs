@@ -97,13 +97,46 @@ fn copies_needed(centre_radius: f64, width: f64) -> i32 {
     (reach / (2.0 * PI)).ceil() as i32
 }
 
+/// Is n a tile size the engine accepts: n = 2^k·m with m ∈ {1, 3, 5, 7, 9}, at least 8, and
+/// k ≥ 4 when m > 1 (so that the Fourier-cropped grids n/2^d stay even)? FFTs of these sizes
+/// factor into radices 2, 3, 5 and 7 (mixed-radix Cooley–Tukey, common practice).
+///
+/// ```
+/// use planisphere::filters::is_tile_size;
+/// assert!(is_tile_size(256) && is_tile_size(288) && is_tile_size(448));
+/// assert!(!is_tile_size(100) && !is_tile_size(264) && !is_tile_size(24));
+/// ```
+pub fn is_tile_size(n: usize) -> bool {
+    if n < 8 {
+        return false;
+    }
+    let k = n.trailing_zeros();
+    let m = n >> k;
+    m == 1 || (matches!(m, 3 | 5 | 7 | 9) && k >= 4)
+}
+
+/// The largest level d such that the grid n/2^d is whole, even (or a power of two) and at
+/// least `min_grid` pixels wide (0 when none is).
+pub(crate) fn coarsest_level(n: usize, min_grid: usize) -> usize {
+    let mut d = 0;
+    while n % (1usize << (d + 1)) == 0 {
+        let m = n >> (d + 1);
+        if m < min_grid || !(m % 2 == 0 || m.is_power_of_two()) {
+            break;
+        }
+        d += 1;
+    }
+    d
+}
+
 impl MorletBank {
     /// Build the bank for an n × n grid, `scale_count` = J scales and `orientation_count` = L
-    /// orientations. Requires n a power of two with n ≥ 8, 1 ≤ J with 2^(J+1) ≤ n, and L ≥ 1.
+    /// orientations. Requires n a tile size ([`is_tile_size`]), 1 ≤ J with 2^(J+1) ≤ n, and
+    /// L ≥ 1.
     pub fn new(size: usize, scale_count: usize, orientation_count: usize) -> Result<Self> {
-        if size < 8 || !size.is_power_of_two() {
+        if !is_tile_size(size) {
             return Err(Error::Setting(format!(
-                "tile size must be a power of two of at least 8 pixels, got {size}"
+                "tile size must be 2^k·m pixels (m = 1, 3, 5, 7 or 9; at least 8, and 16·m when m > 1), got {size}"
             )));
         }
         if scale_count == 0 {
@@ -112,7 +145,7 @@ impl MorletBank {
             ));
         }
         if scale_count > 30 || (1usize << (scale_count + 1)) > size {
-            let max_j = size.trailing_zeros() as usize - 1;
+            let max_j = size.ilog2() as usize - 1;
             return Err(Error::Setting(format!(
                 "J = {scale_count} scales is too large for a {size}-pixel tile: need 2^(J+1) <= {size}, i.e. J <= {max_j}"
             )));

@@ -115,9 +115,9 @@ impl MeasurementSettings {
 
     /// Checks a tile size against J and the halo.
     fn check_tile_pixels(&self, n: usize) -> Result<()> {
-        if !n.is_power_of_two() || n < 8 {
+        if !crate::filters::is_tile_size(n) {
             return Err(Error::Setting(format!(
-                "tile pixels must be a power of two of at least 8, got {n}"
+                "tile pixels must be 2^k·m (m = 1, 3, 5, 7 or 9; at least 8, and 16·m when m > 1), got {n}"
             )));
         }
         if (1usize << (self.scales + 1)) > n {
@@ -176,24 +176,38 @@ impl MeasurementSettings {
         let halo = self.halo();
         let plan = match self.coarse_nside {
             None => {
-                let n = match self.tile_pixels {
-                    Some(n) => n,
-                    None => crate::tiling::automatic_tile_pixels(
-                        halo,
-                        delta,
-                        1usize << (self.scales + 1),
-                    ),
+                let settings = |n: usize| TilingSettings {
+                    cells: CellLayout::LatitudeBands,
+                    tile_pixels: Some(n),
+                    pixel_size,
+                    halo,
                 };
-                TilingPlan::new(
-                    map,
-                    footprint,
-                    &TilingSettings {
-                        cells: CellLayout::LatitudeBands,
-                        tile_pixels: Some(n),
-                        pixel_size,
-                        halo,
-                    },
-                )?
+                match self.tile_pixels {
+                    Some(n) => TilingPlan::new(map, footprint, &settings(n))?,
+                    None => {
+                        // of the candidate sizes, the plan that transforms the fewest tile
+                        // pixels (the first, i.e. the smallest size, on a tie)
+                        let min = 1usize << (self.scales + 1);
+                        let mut best: Option<TilingPlan> = None;
+                        for n in crate::tiling::automatic_tile_candidates(halo, delta, min) {
+                            let Ok(plan) = TilingPlan::new(map, footprint, &settings(n)) else {
+                                continue;
+                            };
+                            let cost = |p: &TilingPlan| p.len() * p.tile_pixels().pow(2);
+                            if best.as_ref().is_none_or(|b| cost(&plan) < cost(b)) {
+                                best = Some(plan);
+                            }
+                        }
+                        match best {
+                            Some(plan) => plan,
+                            None => TilingPlan::new(
+                                map,
+                                footprint,
+                                &settings(crate::tiling::automatic_tile_pixels(halo, delta, min)),
+                            )?,
+                        }
+                    }
+                }
             }
             Some(c) => {
                 let settings = |n: Option<usize>| TilingSettings {

@@ -142,6 +142,28 @@ pub fn automatic_tile_pixels(halo: usize, pixel_size: f64, min_pixels: usize) ->
     n
 }
 
+/// The tile sizes tried when the user leaves the size open: every size the engine accepts
+/// ([`crate::filters::is_tile_size`]: 2^k·m, m = 1, 3, 5, 7, 9) from ¾ to 5⁄4 of
+/// [`automatic_tile_pixels`], at least `min_pixels`, and no wider than
+/// [`MAX_AUTOMATIC_TILE_WIDTH_DEG`] (the power of two itself is always tried). Which one wastes
+/// least depends on how the footprint's edges fall across the tiles, so the plan of each is
+/// measured (`MeasurementSettings::plan` keeps the one transforming the fewest tile pixels).
+///
+/// ```
+/// use planisphere::tiling::automatic_tile_candidates;
+/// let arcmin = (1.0f64 / 60.0).to_radians();
+/// // J = 5 halo at 3.44′: around 256 pixels
+/// assert_eq!(automatic_tile_candidates(21, 3.435 * arcmin, 64), vec![192, 224, 256, 288, 320]);
+/// ```
+pub fn automatic_tile_candidates(halo: usize, pixel_size: f64, min_pixels: usize) -> Vec<usize> {
+    let base = automatic_tile_pixels(halo, pixel_size, min_pixels);
+    let width = |n: usize| 2.0 * (n as f64 / 2.0 * pixel_size).atan().to_degrees();
+    ((3 * base / 4)..=(5 * base / 4))
+        .filter(|&n| crate::filters::is_tile_size(n) && n >= min_pixels)
+        .filter(|&n| n == base || width(n) <= MAX_AUTOMATIC_TILE_WIDTH_DEG)
+        .collect()
+}
+
 /// One tile of a plan.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Tile {
@@ -579,8 +601,9 @@ impl TilingPlan {
         }
     }
 
-    /// The outline of tile `index`'s core on the sphere (a closed path, for pictures).
-    pub fn core_outline(&self, index: usize) -> Result<Vec<Direction>> {
+    /// The outlines of tile `index`'s core on the sphere (closed paths, one per cell of the
+    /// core, for pictures).
+    pub fn core_outlines(&self, index: usize) -> Result<Vec<Vec<Direction>>> {
         let tile = self.tile(index)?;
         match &self.cells {
             Cells::Healpix { coarse, .. } => {
@@ -599,9 +622,9 @@ impl TilingPlan {
                 if let Some(&first) = core.first() {
                     core.push(first);
                 }
-                Ok(core)
+                Ok(vec![core])
             }
-            Cells::Bands(bands) => Ok(bands.outline(index)),
+            Cells::Bands(bands) => Ok(bands.outlines(index)),
         }
     }
 

@@ -686,14 +686,14 @@ pub(crate) fn crop_levels_for(
     let n = bank.size();
     let scale_count = bank.scale_count();
     // Coarse grids of at least 8 pixels.
-    let max_level = n.trailing_zeros() as usize - 3;
+    let max_level = crate::filters::coarsest_level(n, 8);
     // With shifted boxes, computed grids of at least 64 pixels (32 on tiles under 128
     // pixels): pooling next to sharp trust-mask edges on fewer samples exceeds the error
     // budget (module documentation).
     let finest_cap = if n >= 128 {
-        n.trailing_zeros() as usize - 6
+        crate::filters::coarsest_level(n, 64)
     } else {
-        (n.trailing_zeros() as usize).saturating_sub(5)
+        crate::filters::coarsest_level(n, 32)
     };
     let centres = band_centres(bank);
     let big_l = bank.orientation_count();
@@ -759,7 +759,8 @@ impl ScatteringEngine {
     }
 
     /// Build the engine with explicit settings. Errors with [`Error::Setting`] on a size that is
-    /// not a power of two ≥ 8, J = 0 or 2^(J+1) > n, L = 0, or settings out of range.
+    /// not a tile size ([`crate::filters::is_tile_size`]), J = 0 or 2^(J+1) > n, L = 0, or
+    /// settings out of range.
     pub fn with_settings(
         size: usize,
         scale_count: usize,

@@ -157,8 +157,9 @@ pub fn draw_tiling(plan: &TilingPlan, footprint: &Footprint, path: &Path) -> Res
     let n = plan.tile_pixels();
     let half = n as f64 / 2.0 * plan.pixel_size();
     for (i, t) in plan.tiles().iter().enumerate() {
-        let core = plan.core_outline(i)?;
-        picture.line(core, [200, 40, 30], 2);
+        for core in plan.core_outlines(i)? {
+            picture.line(core, [200, 40, 30], 2);
+        }
         let proj = plan.projection(i)?;
         let mut square = Vec::new();
         let steps = 32;

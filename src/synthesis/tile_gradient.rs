@@ -77,7 +77,7 @@ impl CoarseGrids {
     pub(crate) fn new(bank: &MorletBank) -> Self {
         let n = bank.size();
         let (jn, ln) = (bank.scale_count(), bank.orientation_count());
-        let max_level = (n.trailing_zeros() as usize).saturating_sub(3);
+        let max_level = crate::filters::coarsest_level(n, 8);
         let ffts = (0..=max_level).map(|d| SquareFft::new(n >> d)).collect();
         let wavelets = (0..=max_level)
             .map(|d| {

@@ -44,9 +44,15 @@ const OUTLINE_SAMPLES: usize = 24;
 /// its parallels at the cell corners).
 const BAND_HEIGHT_FILL: f64 = 0.96;
 
+/// A tile of merged cells: its (band, cell) members, tangent point, largest |x| or |y| and
+/// largest x² + y² of its footprint.
+type MergedTile = (Vec<(usize, usize)>, Direction, f64, f64);
+
 /// One band of rings and its cells.
 #[derive(Debug, Clone)]
 struct Band {
+    /// Colatitude span of the footprint the band belongs to (None: a cap or a gap).
+    span: Option<usize>,
     /// First and last ring (inclusive, HEALPix ring numbers).
     rings: (u64, u64),
     /// Colatitudes of the band's northern and southern edges.
@@ -64,6 +70,9 @@ struct Band {
     /// Largest |x| or |y| and largest x² + y² of each cell's footprint in its tile's plane
     /// (radians).
     reach: Vec<(f64, f64)>,
+    /// Footprint columns of each cell: [θ_min, θ_max, φ_0, φ_1] of the footprint pixel centres
+    /// in each longitude bin (φ unwrapped within the cell; empty for a cap).
+    columns: Vec<Vec<[f64; 4]>>,
     /// Is the band a polar cap (one cell, tangent at the pole)?
     cap: bool,
 }
@@ -99,8 +108,8 @@ pub(crate) struct LatitudeBands {
     bands: Vec<Band>,
     /// Band of each ring (index ring − 1).
     band_of_ring: Vec<usize>,
-    /// (band, cell) of each tile.
-    tile_cells: Vec<(usize, usize)>,
+    /// (band, cell) of the cells of each tile.
+    tile_cells: Vec<Vec<(usize, usize)>>,
 }
 
 /// Largest |x| or |y| and largest x² + y² of the outline of the region θ ∈ [t0, t1],
@@ -134,6 +143,32 @@ impl LatitudeBands {
         core_half: f64,
         margin: f64,
     ) -> Result<(Self, Vec<BandCell>)> {
+        // The fewest bands that fit each span, then one more band per span; each span keeps
+        // the count that gives it fewer tiles (a lower band lets its cells grow wider; spans
+        // are laid out independently).
+        let (_, _, fewest) = Self::build(footprint, core_half, margin, &[])?;
+        let extra = vec![1; fewest.len()];
+        let (_, _, more) = Self::build(footprint, core_half, margin, &extra)?;
+        let choice: Vec<usize> = fewest
+            .iter()
+            .zip(&more)
+            .map(|(a, b)| usize::from(b < a))
+            .collect();
+        let (layout, cells, fin) = Self::build(footprint, core_half, margin, &choice)?;
+        if std::env::var("ZZ_DEBUG").is_ok() {
+            eprintln!("fewest {fewest:?} more {more:?} final {fin:?}");
+        }
+        Ok((layout, cells))
+    }
+
+    /// The layout with `extra[s]` bands beyond the fewest that fit on colatitude span s (0 for
+    /// spans beyond `extra`), and the number of tiles of each span.
+    fn build(
+        footprint: &Footprint,
+        core_half: f64,
+        margin: f64,
+        extra: &[usize],
+    ) -> Result<(Self, Vec<BandCell>, Vec<usize>)> {
         let fp_pix = footprint.pixelization();
         let nside = fp_pix.nside() as u64;
         // Room for the ungrown cell: moving a point by m on the sphere moves it by at most
@@ -214,23 +249,30 @@ impl LatitudeBands {
         // Slot edges: the north cap (or nothing) down to the first span, the bands of each span,
         // the gaps between spans (no footprint: empty slots), down to the south cap (or nothing).
         let mut edges = vec![0.0];
+        // span of the slot that ends at each edge (None: a cap or a gap)
+        let mut edge_span: Vec<Option<usize>> = vec![None];
         if north_cap {
             edges.push(cap_radius);
+            edge_span.push(None);
         }
-        for &(a, b) in &merged {
+        for (span, &(a, b)) in merged.iter().enumerate() {
             if a > edges[edges.len() - 1] {
                 edges.push(a);
+                edge_span.push(None);
             }
-            let count = bands_for(a, b) as usize;
+            let count = bands_for(a, b) as usize + extra.get(span).copied().unwrap_or(0);
             for k in 1..=count {
                 edges.push(a + (b - a) * k as f64 / count as f64);
+                edge_span.push(Some(span));
             }
         }
         if south_cap && edges[edges.len() - 1] < PI - cap_radius {
             edges.push(PI - cap_radius);
+            edge_span.push(None);
         }
         if edges[edges.len() - 1] < PI {
             edges.push(PI);
+            edge_span.push(None);
         }
         // Rings to bands (a band without rings is skipped).
         let mut bands: Vec<Band> = Vec::new();
@@ -246,6 +288,7 @@ impl LatitudeBands {
                     let cap = (slot == 0 && north_cap) || (slot == slots - 1 && south_cap);
                     let (t0, t1) = (edges[slot], edges[slot + 1]);
                     bands.push(Band {
+                        span: edge_span[slot + 1],
                         rings: (i, i),
                         theta: (t0, t1),
                         theta_center: if cap && slot == 0 {
@@ -260,6 +303,7 @@ impl LatitudeBands {
                         tiles: Vec::new(),
                         centers: Vec::new(),
                         reach: Vec::new(),
+                        columns: Vec::new(),
                         cap,
                     });
                     slot_band[slot] = Some(bands.len() - 1);
@@ -312,6 +356,7 @@ impl LatitudeBands {
                             Error::Geometry("a polar cap reaches a hemisphere".into())
                         })?];
                     band.centers = vec![center];
+                    band.columns = vec![Vec::new()];
                 }
                 continue;
             }
@@ -348,27 +393,34 @@ impl LatitudeBands {
                 }
             }
         }
-        // Tiles: cells with footprint, in band order then longitude.
+        // Tiles: cells with footprint, small ones merged into their neighbours' tiles.
         let mut cells = Vec::new();
         let mut tile_cells = Vec::new();
-        for (b, band) in bands.iter_mut().enumerate() {
+        for band in bands.iter_mut() {
             band.tiles = vec![None; band.starts.len()];
-            for k in 0..band.starts.len() {
-                if count[b][k] == 0 {
-                    continue;
-                }
-                let center = band.centers[k];
-                let (half_width, r2) = band.reach[k];
-                band.tiles[k] = Some(cells.len());
-                tile_cells.push((b, k));
-                cells.push(BandCell {
-                    center,
-                    footprint_weight: weight[b][k],
-                    footprint_pixels: count[b][k],
-                    pixels: pixels[b][k],
-                    half_width,
-                    distortion: 1.0 + r2,
-                });
+        }
+        for (members, center, half_width, r2) in Self::merge_cells(&bands, &count, room) {
+            let mut cell = BandCell {
+                center,
+                footprint_weight: 0.0,
+                footprint_pixels: 0,
+                pixels: 0,
+                half_width,
+                distortion: 1.0 + r2,
+            };
+            for &(b, k) in &members {
+                bands[b].tiles[k] = Some(cells.len());
+                cell.footprint_weight += weight[b][k];
+                cell.footprint_pixels += count[b][k];
+                cell.pixels += pixels[b][k];
+            }
+            tile_cells.push(members);
+            cells.push(cell);
+        }
+        let mut per_span = vec![0usize; merged.len()];
+        for members in &tile_cells {
+            if let Some(span) = bands[members[0].0].span {
+                per_span[span] += 1;
             }
         }
         Ok((
@@ -379,6 +431,7 @@ impl LatitudeBands {
                 tile_cells,
             },
             cells,
+            per_span,
         ))
     }
 
@@ -454,36 +507,37 @@ impl LatitudeBands {
         }
     }
 
-    /// The extent check of bins [s, e) (indices modulo the bin count): the tangent point and the
-    /// largest |x| or |y| and x² + y² of the footprint pixel centres' bin outlines, or `None`
-    /// when some point is a hemisphere away.
-    fn bin_extent(
-        bins: &[Option<(f64, f64)>],
-        s: usize,
-        e: usize,
-        bw: f64,
-    ) -> Option<(Direction, f64, f64)> {
+    /// The footprint columns of bins [s, e) (indices modulo the bin count, longitudes
+    /// unwrapped from bin s on).
+    fn bin_columns(bins: &[Option<(f64, f64)>], s: usize, e: usize, bw: f64) -> Vec<[f64; 4]> {
         let nb = bins.len();
+        (s..e)
+            .filter_map(|k| bins[k % nb].map(|(a, b)| [a, b, k as f64 * bw, (k + 1) as f64 * bw]))
+            .collect()
+    }
+
+    /// The tangent point of a set of footprint columns (the centre of their colatitude and
+    /// longitude range) and the largest |x| or |y| and x² + y² of the columns' outlines in the
+    /// gnomonic projection about it; `None` when there is no column or some point is a
+    /// hemisphere away.
+    fn columns_extent(columns: &[[f64; 4]]) -> Option<(Direction, f64, f64)> {
         let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
-        let (mut first, mut last) = (None, 0usize);
-        for k in s..e {
-            if let Some((a, b)) = bins[k % nb] {
-                lo = lo.min(a);
-                hi = hi.max(b);
-                first.get_or_insert(k);
-                last = k;
-            }
+        let (mut p0, mut p1) = (f64::INFINITY, f64::NEG_INFINITY);
+        for c in columns {
+            lo = lo.min(c[0]);
+            hi = hi.max(c[1]);
+            p0 = p0.min(c[2]);
+            p1 = p1.max(c[3]);
         }
-        let first = first?;
-        let (p0, p1) = (first as f64 * bw, (last + 1) as f64 * bw);
+        if columns.is_empty() || p1 - p0 >= PI {
+            return None;
+        }
         let center = Direction::new(0.5 * (lo + hi), (0.5 * (p0 + p1)).rem_euclid(TAU));
         let proj = Gnomonic::new(center);
         let (mut half, mut r2) = (0.0f64, 0.0f64);
-        for k in first..=last {
-            let Some((a, b)) = bins[k % nb] else { continue };
-            let (q0, q1) = (k as f64 * bw, (k + 1) as f64 * bw);
-            for t in [a, b] {
-                for q in [q0, 0.5 * (q0 + q1), q1] {
+        for c in columns {
+            for t in [c[0], c[1]] {
+                for q in [c[2], 0.5 * (c[2] + c[3]), c[3]] {
                     let (x, y) = proj.forward(Direction::new(t, q.rem_euclid(TAU)))?;
                     half = half.max(x.abs()).max(y.abs());
                     r2 = r2.max(x * x + y * y);
@@ -505,7 +559,8 @@ impl LatitudeBands {
     ) -> Result<()> {
         let nb = bins.len();
         let fits = |s: usize, e: usize| {
-            Self::bin_extent(bins, s, e, bw).is_some_and(|(_, h, _)| h <= room)
+            Self::columns_extent(&Self::bin_columns(bins, s, e, bw))
+                .is_some_and(|(_, h, _)| h <= room)
         };
         let mut cells: Vec<(usize, usize)> = Vec::new();
         let mut s = from;
@@ -550,9 +605,11 @@ impl LatitudeBands {
             cells.push((s, e));
             s = e;
         }
-        let mut spans: Vec<(f64, f64, Direction, (f64, f64))> = Vec::with_capacity(cells.len());
+        type Span = (f64, f64, Direction, (f64, f64), Vec<[f64; 4]>);
+        let mut spans: Vec<Span> = Vec::with_capacity(cells.len());
         for (s, e) in cells {
-            let (center, half, r2) = Self::bin_extent(bins, s, e, bw).ok_or_else(|| {
+            let columns = Self::bin_columns(bins, s, e, bw);
+            let (center, half, r2) = Self::columns_extent(&columns).ok_or_else(|| {
                 Error::Geometry("a cell reaches a hemisphere from its centre".into())
             })?;
             let shift = ((s as f64 * bw) / TAU).floor() * TAU;
@@ -561,6 +618,7 @@ impl LatitudeBands {
                 e as f64 * bw - shift,
                 center,
                 (half, r2),
+                columns,
             ));
         }
         spans.sort_by(|a, b| a.0.total_cmp(&b.0));
@@ -568,7 +626,100 @@ impl LatitudeBands {
         band.ends = spans.iter().map(|c| c.1).collect();
         band.centers = spans.iter().map(|c| c.2).collect();
         band.reach = spans.iter().map(|c| c.3).collect();
+        band.columns = spans.into_iter().map(|c| c.4).collect();
         Ok(())
+    }
+
+    /// Merges small cells into neighbouring tiles: cells are taken from the fewest footprint
+    /// pixels up (ties by band and cell), and each joins the nearest tile (by tangent point)
+    /// whose footprint columns and its own still fit together in |x|, |y| ≤ `room` about the
+    /// centre of their joint range. Caps take no part. Returns the tiles as lists of
+    /// (band, cell) with their tangent point and extent, in the order of their first cell.
+    fn merge_cells(bands: &[Band], count: &[Vec<u64>], room: f64) -> Vec<MergedTile> {
+        struct Group {
+            cells: Vec<(usize, usize)>,
+            columns: Vec<[f64; 4]>,
+            center: Direction,
+            half: f64,
+            r2: f64,
+            pixels: u64,
+            cap: bool,
+            alive: bool,
+        }
+        let mut groups: Vec<Group> = Vec::new();
+        for (b, band) in bands.iter().enumerate() {
+            for k in 0..band.starts.len() {
+                if count[b][k] == 0 {
+                    continue;
+                }
+                groups.push(Group {
+                    cells: vec![(b, k)],
+                    columns: band.columns[k].clone(),
+                    center: band.centers[k],
+                    half: band.reach[k].0,
+                    r2: band.reach[k].1,
+                    pixels: count[b][k],
+                    cap: band.cap,
+                    alive: true,
+                });
+            }
+        }
+        // a tile's core reaches at most √2·atan(room) from its tangent point: two cores can
+        // only share a square when their tangent points are closer than twice that
+        let near = 2.0 * std::f64::consts::SQRT_2 * room.atan();
+        let mut order: Vec<usize> = (0..groups.len()).filter(|&g| !groups[g].cap).collect();
+        order.sort_by_key(|&g| (groups[g].pixels, groups[g].cells[0]));
+        for g in order {
+            if !groups[g].alive {
+                continue;
+            }
+            let mut partners: Vec<(f64, usize)> = groups
+                .iter()
+                .enumerate()
+                .filter(|(h, o)| *h != g && o.alive && !o.cap)
+                .map(|(h, o)| (o.center.distance(&groups[g].center), h))
+                .filter(|&(d, _)| d < near)
+                .collect();
+            partners.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+            for (_, h) in partners {
+                // all longitudes unwrapped next to the partner's first column
+                let base = groups[h].columns.first().map_or(0.0, |c| c[2]);
+                let joint: Vec<[f64; 4]> = groups[h]
+                    .columns
+                    .iter()
+                    .chain(&groups[g].columns)
+                    .map(|c| {
+                        let t = ((c[2] - base) / TAU).round() * TAU;
+                        [c[0], c[1], c[2] - t, c[3] - t]
+                    })
+                    .collect();
+                let Some((center, half, r2)) = Self::columns_extent(&joint) else {
+                    continue;
+                };
+                if half > room {
+                    continue;
+                }
+                let moved = std::mem::take(&mut groups[g].cells);
+                let moved_pixels = groups[g].pixels;
+                groups[g].alive = false;
+                let target = &mut groups[h];
+                target.cells.extend(moved);
+                target.cells.sort_unstable();
+                target.columns = joint;
+                target.center = center;
+                target.half = half;
+                target.r2 = r2;
+                target.pixels += moved_pixels;
+                break;
+            }
+        }
+        let mut tiles: Vec<MergedTile> = groups
+            .into_iter()
+            .filter(|g| g.alive)
+            .map(|g| (g.cells, g.center, g.half, g.r2))
+            .collect();
+        tiles.sort_by_key(|t| t.0[0]);
+        tiles
     }
 
     /// Tile index owning RING pixel `p`, if any.
@@ -581,27 +732,40 @@ impl LatitudeBands {
 
     /// RING indices of the pixels of tile `tile`'s core.
     pub(crate) fn core_ring_pixels(&self, tile: usize) -> Vec<u64> {
-        let Some(&(b, k)) = self.tile_cells.get(tile) else {
+        let Some(members) = self.tile_cells.get(tile) else {
             return Vec::new();
         };
-        let band = &self.bands[b];
         let mut out = Vec::new();
-        for i in band.rings.0..=band.rings.1 {
-            let (first, len, _) = ring_info(self.nside, i);
-            for j in 0..len {
-                if band.cell_of(ring_pixel_phi(self.nside, i, j)) == Some(k) {
-                    out.push(first + j);
+        for &(b, k) in members {
+            let band = &self.bands[b];
+            for i in band.rings.0..=band.rings.1 {
+                let (first, len, _) = ring_info(self.nside, i);
+                for j in 0..len {
+                    if band.cell_of(ring_pixel_phi(self.nside, i, j)) == Some(k) {
+                        out.push(first + j);
+                    }
                 }
             }
         }
+        out.sort_unstable();
         out
     }
 
-    /// The outline of tile `tile`'s cell on the sphere, closed.
-    pub(crate) fn outline(&self, tile: usize) -> Vec<Direction> {
-        let Some(&(b, k)) = self.tile_cells.get(tile) else {
-            return Vec::new();
-        };
+    /// The outlines of tile `tile`'s cells on the sphere, each closed.
+    pub(crate) fn outlines(&self, tile: usize) -> Vec<Vec<Direction>> {
+        self.tile_cells
+            .get(tile)
+            .map(|members| {
+                members
+                    .iter()
+                    .map(|&(b, k)| self.cell_outline(b, k))
+                    .collect()
+            })
+            .unwrap_or_default()
+    }
+
+    /// The outline of cell k of band b on the sphere, closed.
+    fn cell_outline(&self, b: usize, k: usize) -> Vec<Direction> {
         let band = &self.bands[b];
         let (t0, t1) = band.theta;
         let steps = 32;
