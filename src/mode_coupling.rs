@@ -233,9 +233,11 @@ impl MasterDeconvolution {
                 transfer.len()
             )));
         }
-        if let Some((l, t)) = transfer[..=lmax]
+        let first = binning.ranges()[0].0;
+        if let Some((l, t)) = transfer[first..=lmax]
             .iter()
             .enumerate()
+            .map(|(k, t)| (k + first, t))
             .find(|(_, t)| !(t.is_finite() && **t > 0.0))
         {
             return Err(Error::Setting(format!(

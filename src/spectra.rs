@@ -128,10 +128,19 @@ pub fn cross_spectrum(
     iterations: usize,
     bin_width: usize,
 ) -> Result<MeasuredSpectrum> {
-    let PseudoSpectrum { raw, w2, w4, .. } = pseudo_spectrum(a, b, weights, sht, iterations)?;
-    let cl: Vec<f64> = raw.iter().map(|c| c / w2).collect();
-    let bins = bin_spectrum(&cl, 2, bin_width, w2, w4);
-    Ok(MeasuredSpectrum { cl, bins, w2, w4 })
+    let pseudo = pseudo_spectrum(a, b, weights, sht, iterations)?;
+    Ok(MeasuredSpectrum::from_pseudo(&pseudo, bin_width))
+}
+
+impl MeasuredSpectrum {
+    /// The w2-corrected spectrum C̃_ℓ/w2 of a pseudo-spectrum, binned in `bin_width`-wide bins
+    /// from ℓ = 2.
+    pub fn from_pseudo(pseudo: &PseudoSpectrum, bin_width: usize) -> Self {
+        let (w2, w4) = (pseudo.w2, pseudo.w4);
+        let cl: Vec<f64> = pseudo.raw.iter().map(|c| c / w2).collect();
+        let bins = bin_spectrum(&cl, 2, bin_width, w2, w4);
+        MeasuredSpectrum { cl, bins, w2, w4 }
+    }
 }
 
 /// The raw pseudo-spectrum C̃_ℓ of two maps on a footprint (the spectrum of the weighted,
