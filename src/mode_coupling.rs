@@ -252,8 +252,8 @@ impl MasterDeconvolution {
                 let mut k = 0.0;
                 for l in lo..=hi {
                     let mut inner = 0.0;
-                    for l2 in lo2..=hi2 {
-                        inner += coupling.get(l, l2) * transfer[l2] * transfer[l2] * binning.q(l2);
+                    for (l2, t) in transfer.iter().enumerate().take(hi2 + 1).skip(lo2) {
+                        inner += coupling.get(l, l2) * t * t * binning.q(l2);
                     }
                     k += binning.p(b, l) * inner;
                 }

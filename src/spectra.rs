@@ -262,7 +262,8 @@ pub struct MasterSpectrum {
 }
 
 /// MASTER deconvolution (Hivon et al. 2002; [`crate::mode_coupling`]) of a pseudo-spectrum: W_ℓ
-/// of `pseudo.weights` up to min(2ℓmax, 3·NSIDE − 1) with `iterations` Jacobi refinements, the
+/// of `pseudo.weights` up to min(2ℓmax, 3·NSIDE − 1) with `iterations` Jacobi refinements
+/// (for a full sky, W ≡ 1, the exact W_ℓ = 4π δ_ℓ0, so that M = I), the
 /// coupling matrix up to ℓmax = `pseudo.raw.len() − 1`, bins from ℓ = 2, transfer T_ℓ = B_ℓ p_ℓ.
 pub fn master_spectrum(
     pseudo: &PseudoSpectrum,
@@ -294,7 +295,14 @@ pub fn master_spectrum(
     }
     let lmax_w = (2 * lmax).min(3 * nside - 1);
     let sht_w = HarmonicTransform::new(nside, lmax_w)?;
-    let weight_cl = weight_spectrum(&pseudo.weights, &sht_w, iterations)?;
+    let weight_cl = if pseudo.weights.iter().all(|&w| w == 1.0) {
+        // W ≡ 1: W_ℓ = 4π δ_ℓ0 exactly (the quadrature would add ~1e-7 relative noise at even ℓ)
+        let mut exact = vec![0.0; lmax_w + 1];
+        exact[0] = 4.0 * std::f64::consts::PI;
+        exact
+    } else {
+        weight_spectrum(&pseudo.weights, &sht_w, iterations)?
+    };
     let coupling = CouplingMatrix::new(&weight_cl, lmax)?;
     let master = MasterDeconvolution::new(&coupling, binning.clone(), &transfer)?;
     let deconvolved = master.apply(&pseudo.raw)?;

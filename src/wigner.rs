@@ -38,7 +38,11 @@
 pub fn wigner_3j_zero_m(l1: usize, l2: usize) -> (usize, Vec<f64>) {
     let mut squares = Vec::new();
     let first = wigner_3j_squared_zero_m(l1, l2, &mut squares);
-    let mut sign = if l1.max(l2) % 2 == 0 { 1.0 } else { -1.0 };
+    let mut sign = if l1.max(l2).is_multiple_of(2) {
+        1.0
+    } else {
+        -1.0
+    };
     let values = squares
         .iter()
         .enumerate()

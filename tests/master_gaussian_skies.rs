@@ -53,9 +53,12 @@ fn stepped_spectrum(binning: &Binning, lmax: usize) -> Vec<f64> {
     cl
 }
 
+/// Per bin: (relative bias of the ensemble mean, t value).
+type BinBias = Vec<(f64, f64)>;
+
 /// Per bin (relative bias, t) of the MASTER and of the w2 band powers over `skies` skies, with
 /// t = (ensemble mean − binned input) / (ensemble standard deviation / √N).
-fn ensemble_bias(weighting: BinWeighting, skies: u64) -> (Vec<(f64, f64)>, Vec<(f64, f64)>) {
+fn ensemble_bias(weighting: BinWeighting, skies: u64) -> (BinBias, BinBias) {
     let nside = 64u32;
     let lmax = 2 * nside as usize;
     let beam = 60.0;
@@ -83,7 +86,7 @@ fn ensemble_bias(weighting: BinWeighting, skies: u64) -> (Vec<(f64, f64)>, Vec<(
         w2.push(s.bins.iter().map(|b| b.w2_estimate).collect::<Vec<f64>>());
     }
     let truth = binning.bin(&cl).unwrap();
-    let t_values = |rows: &[Vec<f64>]| -> Vec<(f64, f64)> {
+    let t_values = |rows: &[Vec<f64>]| -> BinBias {
         (0..truth.len())
             .map(|b| {
                 let n = rows.len() as f64;
