@@ -1,6 +1,7 @@
-//! Time of the MASTER steps at NSIDE 256, ℓmax = 3·NSIDE − 1 (one run; prints a table):
-//! weight spectrum, coupling matrix on 1 and 2 threads (and whether the bits agree), binned
-//! kernel and solve, pixel window.
+//! Time of the MASTER steps at NSIDE 256, ℓmax = 3·NSIDE − 1 (one run; prints a table): the
+//! pseudo-spectrum of one sky (the w2 estimate's cost), weight spectrum, coupling matrix on 1
+//! and 2 threads (and whether the bits agree), binned kernel and solve, pixel window, and the
+//! whole `master_spectrum`.
 //!
 //! `cargo run --release --example master_timing [NSIDE]`
 
@@ -9,6 +10,9 @@ use planisphere::mode_coupling::{
     healpix_pixel_window, weight_spectrum, BinWeighting, Binning, CouplingMatrix,
     MasterDeconvolution,
 };
+use planisphere::skies::SkyRecipe;
+use planisphere::spectra::{master_spectrum, pseudo_spectrum, MasterSettings};
+use planisphere::spectrum::AngularSpectrum;
 use planisphere::{Direction, Footprint, Ordering, Pixelization};
 use std::time::Instant;
 
@@ -27,6 +31,14 @@ fn main() {
     });
     println!("NSIDE {nside}, lmax {lmax}, f_sky {:.3}", mask.f_sky());
     println!("| step | seconds |\n|---|---|");
+    let recipe = SkyRecipe::gaussian(nside as u32, AngularSpectrum::demo_model(lmax, 1e-4), 1);
+    let sky_sht = recipe.transform().expect("transform");
+    let map = recipe.realise(&sky_sht, 0).expect("sky");
+    let t = Instant::now();
+    let sht = HarmonicTransform::new(nside, lmax).expect("transform");
+    let pseudo = pseudo_spectrum(&map, &map, Some(&mask), &sht, 0).expect("pseudo");
+    let pseudo_seconds = t.elapsed().as_secs_f64();
+    println!("| pseudo-spectrum of one map (transform set-up + analysis) | {pseudo_seconds:.2} |");
     let t = Instant::now();
     let sht = HarmonicTransform::new(nside, lmax).expect("transform");
     let wl = weight_spectrum(mask.weights(), &sht, 0).expect("spectrum");
@@ -65,8 +77,24 @@ fn main() {
     let t = Instant::now();
     let p = healpix_pixel_window(nside as u32, lmax).expect("window");
     println!(
-        "| pixel window (p at lmax = {:.4}) | {:.2} |",
+        "| pixel window (p at lmax = {:.12}) | {:.2} |",
         p[lmax],
         t.elapsed().as_secs_f64()
     );
+    for pixel_window in [false, true] {
+        let settings = MasterSettings {
+            bin_width: 16,
+            weighting: BinWeighting::Cl,
+            beam_fwhm_arcmin: 10.0,
+            pixel_window,
+        };
+        let t = Instant::now();
+        let s = master_spectrum(&pseudo, nside, 0, &settings).expect("master");
+        let seconds = t.elapsed().as_secs_f64();
+        println!(
+            "| whole master_spectrum, pixel window {pixel_window} ({} bins) | {seconds:.2} ({:.1}× the pseudo-spectrum) |",
+            s.bins.len(),
+            seconds / pseudo_seconds
+        );
+    }
 }

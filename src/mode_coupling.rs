@@ -333,8 +333,9 @@ pub fn healpix_pixel_window(nside: u32, lmax: usize) -> Result<Vec<f64>> {
 
 /// p_ℓ² with each pixel integral replaced by the mean over the pairs of its 4^k NESTED
 /// sub-pixel centres, (1/N_pix) Σ_p (1/4^2k) Σ_{q,q′∈p} P_ℓ(n_q·n_q′). The pair separations of
-/// one pixel in every ring of the northern quarter (the grid is symmetric under turns by π/2
-/// and the north–south reflection; pixels are weighted by how many they stand for) are gathered
+/// the pixels of the northern quarter (the grid is symmetric under turns by π/2 and the
+/// north–south reflection; in the equatorial zone one pixel per ring stands for its ring;
+/// pixels are weighted by how many they stand for) are gathered
 /// as squared chords u = |n − n′|² = 2(1 − cos θ) on a grid of 16 384 nodes in
 /// u ∈ [0, (4 × mean spacing)²] with linear sharing between neighbouring nodes (P_ℓ(1 − u/2) is
 /// analytic in u; the sharing error (ℓ²Δu)²/512 is below 1e-6 at ℓ = 3·NSIDE); P_ℓ is evaluated
@@ -359,12 +360,19 @@ pub fn sampled_pixel_window_squared(nside: u32, lmax: usize, k: u32) -> Result<V
         }
     };
     let ring_len = |i: u64| if i < n { 4 * i } else { 4 * n };
-    // (pixel, weight): the first quarter of every northern ring, mirrored to the south
+    // (pixel, weight): the first quarter of every northern polar ring and of ring NSIDE, and one
+    // pixel of each ring below it (rings NSIDE+1 … 2·NSIDE lie wholly in the equatorial zone,
+    // whose pixel boundaries are straight in (φ, z) and repeat every π/(2·NSIDE) in φ, so the
+    // pixels of such a ring are turned copies of each other), mirrored to the south
     let mut pixels: Vec<(u64, f64)> = Vec::new();
     for i in 1..=2 * n {
-        let mirror = if i == 2 * n { 4.0 } else { 8.0 };
-        for j in 0..ring_len(i) / 4 {
-            pixels.push((ring_start(i) + j, mirror));
+        let mirror = if i == 2 * n { 1.0 } else { 2.0 };
+        if i <= n {
+            for j in 0..ring_len(i) / 4 {
+                pixels.push((ring_start(i) + j, 4.0 * mirror));
+            }
+        } else {
+            pixels.push((ring_start(i), ring_len(i) as f64 * mirror));
         }
     }
     let chord2_max = (4.0 * coarse.mean_spacing()).powi(2);
