@@ -9,15 +9,23 @@ the pseudo-spectra of the weighted map and of the weight map from healpy 1.20.1 
 (iter=0), the squared 3j symbols (l1 l2 l3; 0 0 0)^2 from their exact closed form in rational
 arithmetic (Python integers; checked here against sympy's `wigner_3j`), the coupling matrix of
 eq. A31, the binned kernel of eq. 20 and a numpy solve. Also: 3j values from sympy's
-`wigner_3j` at small and large l, and the HEALPix pixel window at NSIDE 4 and 8 from its
-definition (pixel means of scipy's Y_lm over sub-pixel centres, Richardson-extrapolated), since
-healpy's `pixwin` tables are downloaded at run time and are not reachable here.
+`wigner_3j` at small and large l, and the HEALPix pixel window: at NSIDE 4 and 8 from its
+definition (pixel means of scipy's Y_lm over sub-pixel centres, Richardson-extrapolated), and
+healpy's own `pixwin` tables at NSIDE 4, 8, 64 and 256. healpy 1.20.1 downloads those tables at
+run time; when that fails the script reads them from the healpy 1.14.0 wheel, which still ships
+them (healpy/data/pixel_window_nXXXX.fits), given as the first argument:
+
+    pip download healpy==1.14.0 --no-deps --only-binary :all: --python-version 3.8 \
+        --platform manylinux1_x86_64 -d /tmp/healpy-tables
+    python3 reference-values/master_reference.py /tmp/healpy-tables/healpy-1.14.0-cp38-cp38-manylinux1_x86_64.whl
 
 Writes reference-values/master/: manifest.json and .npy arrays (float64).
 """
 import json
-import math
 import os
+import sys
+import tempfile
+import zipfile
 from fractions import Fraction
 
 import healpy as hp
@@ -224,6 +232,34 @@ for nside in [4, 8]:
         }
     )
     print("pixel window", nside, window[-1])
+
+
+
+def healpy_pixwin(nside):
+    """healpy's pixel window table (temperature), from hp.pixwin or from the 1.14.0 wheel."""
+    try:
+        return hp.pixwin(nside), "healpy %s pixwin" % hp.__version__
+    except Exception:
+        wheel = sys.argv[1]
+        name = "healpy/data/pixel_window_n%04d.fits" % nside
+        with zipfile.ZipFile(wheel) as z, tempfile.TemporaryDirectory() as tmp:
+            path = z.extract(name, tmp)
+            # the same reading as healpy's pixwin: read_cl, temperature column
+            return hp.read_cl(path)[0], "%s from %s, read with healpy %s read_cl" % (
+                name, os.path.basename(wheel), hp.__version__)
+
+
+manifest["pixel_window_tables"] = []
+for nside in [4, 8, 64, 256]:
+    table, origin = healpy_pixwin(nside)
+    table = table[: 3 * nside]
+    entry = {"nside": nside, "origin": origin,
+             "values": save(f"pixel_window_healpy_nside{nside}.npy", table)}
+    if nside in (4, 8):
+        mine = np.load(os.path.join(OUT, f"pixel_window_nside{nside}.npy"))
+        entry["definition_minus_table"] = float(np.max(np.abs(mine - table)))
+    manifest["pixel_window_tables"].append(entry)
+    print("healpy pixel window", nside, table[-1], entry.get("definition_minus_table"))
 
 with open(os.path.join(OUT, "manifest.json"), "w") as f:
     json.dump(manifest, f, indent=1)
