@@ -17,6 +17,7 @@ pub mod footprint;
 pub mod forecast;
 pub mod harmonics;
 pub mod measurement;
+pub mod mode_coupling;
 pub mod pixelization;
 pub mod plotting;
 pub mod pooling;
@@ -32,6 +33,7 @@ pub mod synthesis;
 pub mod tile_spectra;
 pub mod tiling;
 pub mod transform;
+pub mod wigner;
 
 pub use error::{Error, Result};
 pub use footprint::Footprint;

@@ -6,10 +6,17 @@
 //! ⟨C̃_ℓ⟩ ≈ w2 · C_ℓ with w_i = mean over the sky of W^i, so Ĉ_ℓ = C̃_ℓ / w2. Binned with
 //! Δℓ-wide bins, the error of a bin is Ĉ_b · √(2/ν_b) with ν_b = Σ_{ℓ∈b} (2ℓ+1) · w2²/w4
 //! effective modes (Hivon et al. 2002 eq. 17).
+//!
+//! MASTER band powers ([`master_spectrum`]): the same pseudo-spectrum deconvolved by the binned
+//! mode-coupling matrix of the weights, with beam and pixel window ([`crate::mode_coupling`]).
 
 use crate::error::{Error, Result};
 use crate::footprint::Footprint;
-use crate::harmonics::HarmonicTransform;
+use crate::harmonics::{gaussian_beam, HarmonicTransform};
+use crate::mode_coupling::{
+    healpix_pixel_window, weight_spectrum, BinWeighting, Binning, CouplingMatrix,
+    MasterDeconvolution,
+};
 use crate::pixelization::Ordering;
 use crate::skymap::SkyMap;
 
@@ -121,6 +128,43 @@ pub fn cross_spectrum(
     iterations: usize,
     bin_width: usize,
 ) -> Result<MeasuredSpectrum> {
+    let pseudo = pseudo_spectrum(a, b, weights, sht, iterations)?;
+    Ok(MeasuredSpectrum::from_pseudo(&pseudo, bin_width))
+}
+
+impl MeasuredSpectrum {
+    /// The w2-corrected spectrum C̃_ℓ/w2 of a pseudo-spectrum, binned in `bin_width`-wide bins
+    /// from ℓ = 2.
+    pub fn from_pseudo(pseudo: &PseudoSpectrum, bin_width: usize) -> Self {
+        let (w2, w4) = (pseudo.w2, pseudo.w4);
+        let cl: Vec<f64> = pseudo.raw.iter().map(|c| c / w2).collect();
+        let bins = bin_spectrum(&cl, 2, bin_width, w2, w4);
+        MeasuredSpectrum { cl, bins, w2, w4 }
+    }
+}
+
+/// The raw pseudo-spectrum C̃_ℓ of two maps on a footprint (the spectrum of the weighted,
+/// mean-removed maps, not divided by w2) with the weights W used (RING order).
+#[derive(Debug, Clone)]
+pub struct PseudoSpectrum {
+    /// C̃_ℓ, ℓ = 0 … ℓmax of the transform.
+    pub raw: Vec<f64>,
+    /// The weights W in RING order (both maps' bad pixels have weight 0).
+    pub weights: Vec<f64>,
+    /// mean(W²) over the sky.
+    pub w2: f64,
+    /// mean(W⁴) over the sky.
+    pub w4: f64,
+}
+
+/// C̃_ℓ of the maps a·W and b·W after removing their W-weighted means (Hivon et al. 2002 eq. 2).
+pub fn pseudo_spectrum(
+    a: &SkyMap,
+    b: &SkyMap,
+    weights: Option<&Footprint>,
+    sht: &HarmonicTransform,
+    iterations: usize,
+) -> Result<PseudoSpectrum> {
     if a.nside() != b.nside() {
         return Err(Error::Mismatch(format!(
             "maps of NSIDE {} and {} cannot be cross-correlated",
@@ -157,7 +201,148 @@ pub fn cross_spectrum(
         let alm_b = sht.analysis(&weighted(&vb), iterations)?;
         alm_a.cross_spectrum(&alm_b)?
     };
-    let cl: Vec<f64> = raw.iter().map(|c| c / w2).collect();
-    let bins = bin_spectrum(&cl, 2, bin_width, w2, w4);
-    Ok(MeasuredSpectrum { cl, bins, w2, w4 })
+    Ok(PseudoSpectrum {
+        raw,
+        weights: w,
+        w2,
+        w4,
+    })
+}
+
+/// Choices of the MASTER band powers ([`master_spectrum`]).
+#[derive(Debug, Clone, PartialEq)]
+pub struct MasterSettings {
+    /// Width of the ℓ bins (bins start at ℓ = 2, as [`bin_spectrum`]'s).
+    pub bin_width: usize,
+    /// Band powers of C_ℓ or of D_ℓ = ℓ(ℓ+1)C_ℓ/2π.
+    pub weighting: BinWeighting,
+    /// Gaussian beam FWHM in arcmin (0: no beam).
+    pub beam_fwhm_arcmin: f64,
+    /// Divide out the HEALPix pixel window.
+    pub pixel_window: bool,
+}
+
+/// One band power, w2-corrected and MASTER-deconvolved.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct BandPower {
+    /// First multipole of the bin.
+    pub ell_min: usize,
+    /// Last multipole of the bin (inclusive).
+    pub ell_max: usize,
+    /// Mode-weighted mean multipole Σ(2ℓ+1)ℓ / Σ(2ℓ+1).
+    pub ell_mean: f64,
+    /// Σ_ℓ P_bℓ C̃_ℓ / (w2 T_ℓ²): the w2 estimate with beam and pixel window divided out per ℓ.
+    pub w2_estimate: f64,
+    /// Gaussian error of the w2 estimate, |value| · √(2/ν).
+    pub w2_error: f64,
+    /// Σ_b' (K⁻¹)_bb' Σ_ℓ P_b'ℓ C̃_ℓ (Hivon et al. 2002 eq. 20).
+    pub master: f64,
+    /// Gaussian error of the MASTER value, |value| · √(2/ν) (Hivon et al. 2002 eq. 17's ν, an
+    /// approximation: the deconvolution correlates neighbouring bins).
+    pub master_error: f64,
+    /// Effective number of modes ν = Σ_{ℓ∈b}(2ℓ+1) · w2²/w4.
+    pub modes: f64,
+}
+
+/// MASTER band powers next to the w2 estimate in the same bins.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct MasterSpectrum {
+    /// Band powers of C_ℓ or of D_ℓ.
+    pub weighting: BinWeighting,
+    /// The bins.
+    pub bins: Vec<BandPower>,
+    /// Pseudo-spectrum W_ℓ of the weight map used for the coupling matrix.
+    pub weight_cl: Vec<f64>,
+    /// T_ℓ = B_ℓ p_ℓ divided out.
+    pub transfer: Vec<f64>,
+    /// mean(W²) over the sky.
+    pub w2: f64,
+    /// mean(W⁴) over the sky.
+    pub w4: f64,
+}
+
+/// MASTER deconvolution (Hivon et al. 2002; [`crate::mode_coupling`]) of a pseudo-spectrum: W_ℓ
+/// of `pseudo.weights` up to min(2ℓmax, 3·NSIDE − 1) with `iterations` Jacobi refinements
+/// (for a full sky, W ≡ 1, the exact W_ℓ = 4π δ_ℓ0, so that M = I), the
+/// coupling matrix up to ℓmax = `pseudo.raw.len() − 1`, bins from ℓ = 2, transfer T_ℓ = B_ℓ p_ℓ.
+pub fn master_spectrum(
+    pseudo: &PseudoSpectrum,
+    nside: usize,
+    iterations: usize,
+    settings: &MasterSettings,
+) -> Result<MasterSpectrum> {
+    let lmax = pseudo.raw.len().saturating_sub(1);
+    if lmax < 2 {
+        return Err(Error::Setting(format!(
+            "MASTER band powers need lmax >= 2, got {lmax}"
+        )));
+    }
+    let fwhm = settings.beam_fwhm_arcmin;
+    if !(fwhm.is_finite() && fwhm >= 0.0) {
+        return Err(Error::Setting(format!(
+            "beam FWHM must be a finite number of arcmin >= 0, got {fwhm}"
+        )));
+    }
+    let binning = Binning::uniform(2, lmax, settings.bin_width, settings.weighting)?;
+    let mut transfer = gaussian_beam((fwhm / 60.0).to_radians(), lmax)?;
+    if settings.pixel_window {
+        let nside32 = u32::try_from(nside)
+            .map_err(|_| Error::Geometry(format!("NSIDE {nside} is out of range")))?;
+        let p = healpix_pixel_window(nside32, lmax)?;
+        for (t, p) in transfer.iter_mut().zip(p) {
+            *t *= p;
+        }
+    }
+    let lmax_w = (2 * lmax).min(3 * nside - 1);
+    let sht_w = HarmonicTransform::new(nside, lmax_w)?;
+    let weight_cl = if pseudo.weights.iter().all(|&w| w == 1.0) {
+        // W ≡ 1: W_ℓ = 4π δ_ℓ0 exactly (the quadrature would add ~1e-7 relative noise at even ℓ)
+        let mut exact = vec![0.0; lmax_w + 1];
+        exact[0] = 4.0 * std::f64::consts::PI;
+        exact
+    } else {
+        weight_spectrum(&pseudo.weights, &sht_w, iterations)?
+    };
+    let coupling = CouplingMatrix::new(&weight_cl, lmax)?;
+    let master = MasterDeconvolution::new(&coupling, binning.clone(), &transfer)?;
+    let deconvolved = master.apply(&pseudo.raw)?;
+    let w2_per_ell: Vec<f64> = pseudo
+        .raw
+        .iter()
+        .zip(&transfer)
+        .map(|(c, t)| c / (pseudo.w2 * t * t))
+        .collect();
+    let w2_binned = binning.bin(&w2_per_ell)?;
+    let bins = binning
+        .ranges()
+        .iter()
+        .enumerate()
+        .map(|(b, &(lo, hi))| {
+            let modes_full: f64 = (lo..=hi).map(|l| (2 * l + 1) as f64).sum();
+            let modes = modes_full * pseudo.w2 * pseudo.w2 / pseudo.w4;
+            let ell_mean = (lo..=hi)
+                .map(|l| (2 * l + 1) as f64 * l as f64)
+                .sum::<f64>()
+                / modes_full;
+            let factor = (2.0 / modes).sqrt();
+            BandPower {
+                ell_min: lo,
+                ell_max: hi,
+                ell_mean,
+                w2_estimate: w2_binned[b],
+                w2_error: w2_binned[b].abs() * factor,
+                master: deconvolved[b],
+                master_error: deconvolved[b].abs() * factor,
+                modes,
+            }
+        })
+        .collect();
+    Ok(MasterSpectrum {
+        weighting: settings.weighting,
+        bins,
+        weight_cl,
+        transfer,
+        w2: pseudo.w2,
+        w4: pseudo.w4,
+    })
 }

@@ -298,6 +298,22 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
             s(&["spectra", &map, "--bin-width", "0"]),
             "--bin-width must be from 1",
         ),
+        (
+            s(&["spectra", &map, "--beam-arcmin", "-5"]),
+            "--beam-arcmin must be a finite number >= 0",
+        ),
+        (
+            s(&["spectra", &map, "--beam-arcmin", "inf"]),
+            "--beam-arcmin must be a finite number >= 0",
+        ),
+        (
+            s(&["spectra", &map, "--beam-arcmin", "1e7"]),
+            "beam times pixel window at ell",
+        ),
+        (
+            s(&["spectra", &map, "--bin-weighting", "flat"]),
+            "invalid value 'flat' for '--bin-weighting",
+        ),
         (s(&["tiles", &map, "--coarse-nside", "3"]), "power of two"),
         (
             s(&[

@@ -1,17 +1,19 @@
 //! `planisphere spectra`: angular power spectrum of a map (pseudo-C_ℓ on a masked sky), or the
-//! cross-spectrum of two maps, as CSV and JSON tables.
+//! cross-spectrum of two maps, as CSV and JSON tables: per bin the w2 estimate and the MASTER
+//! band power (mode-coupling deconvolution with optional beam and pixel window).
 
 use super::inputs::{load_map, MaskArgs};
 use super::output::{write_bytes, write_json};
 use crate::error::{Error, Result};
 use crate::fits_io::ColumnChoice;
 use crate::harmonics::HarmonicTransform;
-use crate::spectra::{cross_spectrum, MeasuredSpectrum};
+use crate::mode_coupling::BinWeighting;
+use crate::spectra::{master_spectrum, pseudo_spectrum, MasterSettings, MasterSpectrum};
 use std::fmt::Write as _;
 use std::path::PathBuf;
 
-/// Measure the angular power spectrum of a map on its footprint (pseudo-C_ℓ with the w2
-/// correction of Hivon et al. 2002 when masked).
+/// Measure the angular power spectrum of a map on its footprint: pseudo-C_ℓ with the w2
+/// correction and MASTER band powers (Hivon et al. 2002) side by side.
 #[derive(Debug, clap::Args)]
 pub struct SpectraArgs {
     /// The map (HEALPix FITS).
@@ -31,6 +33,20 @@ pub struct SpectraArgs {
     /// Width of the ℓ bins.
     #[arg(long, default_value_t = 16)]
     pub bin_width: usize,
+    /// What a bin averages: C_ell (flat C_ell inside a bin) or D_ell = l(l+1)C_ell/2pi.
+    #[arg(long, value_enum, default_value_t = BinWeighting::Cl)]
+    pub bin_weighting: BinWeighting,
+    /// Gaussian beam FWHM of the map in arcmin, divided out (0: no beam).
+    #[arg(
+        long,
+        value_name = "ARCMIN",
+        default_value_t = 0.0,
+        allow_negative_numbers = true
+    )]
+    pub beam_arcmin: f64,
+    /// Divide out the HEALPix pixel window of the map's NSIDE.
+    #[arg(long)]
+    pub pixel_window: bool,
     /// Jacobi iterations of the harmonic analysis (0 for a masked sky is common practice).
     #[arg(long, default_value_t = 0)]
     pub iterations: usize,
@@ -42,17 +58,38 @@ pub struct SpectraArgs {
     pub json: Option<PathBuf>,
 }
 
-/// The binned spectrum as CSV text.
-pub fn spectrum_csv(s: &MeasuredSpectrum) -> String {
-    let mut out = String::from("ell_min,ell_max,ell_mean,cl,error,modes\n");
+/// The band powers as CSV text: per bin the w2 estimate and the MASTER value with their errors.
+pub fn spectrum_csv(s: &MasterSpectrum) -> String {
+    let q = match s.weighting {
+        BinWeighting::Cl => "cl",
+        BinWeighting::Dl => "dl",
+    };
+    let mut out =
+        format!("ell_min,ell_max,ell_mean,{q}_w2,error_w2,{q}_master,error_master,modes\n");
     for b in &s.bins {
         let _ = writeln!(
             out,
-            "{},{},{:.3},{:.10e},{:.10e},{:.3}",
-            b.ell_min, b.ell_max, b.ell_mean, b.cl, b.error, b.modes
+            "{},{},{:.3},{:.10e},{:.10e},{:.10e},{:.10e},{:.3}",
+            b.ell_min,
+            b.ell_max,
+            b.ell_mean,
+            b.w2_estimate,
+            b.w2_error,
+            b.master,
+            b.master_error,
+            b.modes
         );
     }
     out
+}
+
+/// What `--json` writes: the w2-corrected C_ℓ per ℓ and the band powers.
+#[derive(Debug, serde::Serialize)]
+struct SpectraReport<'a> {
+    /// C̃_ℓ / w2 for ℓ = 0 … ℓmax (no beam or pixel window divided out).
+    cl: Vec<f64>,
+    /// Band powers, weight spectrum and transfer function.
+    band_powers: &'a MasterSpectrum,
 }
 
 /// Measures and writes the spectrum.
@@ -61,6 +98,12 @@ pub fn run(args: &SpectraArgs) -> Result<()> {
         return Err(Error::Setting(format!(
             "--bin-width must be from 1 to 10000, got {}",
             args.bin_width
+        )));
+    }
+    if !(args.beam_arcmin.is_finite() && args.beam_arcmin >= 0.0) {
+        return Err(Error::Setting(format!(
+            "--beam-arcmin must be a finite number >= 0, got {}",
+            args.beam_arcmin
         )));
     }
     for p in args.csv.iter().chain(args.json.iter()) {
@@ -81,27 +124,44 @@ pub fn run(args: &SpectraArgs) -> Result<()> {
     }
     let footprint = args.mask.footprint_for(&map)?;
     let weights = (footprint.f_sky() < 1.0).then_some(&footprint);
+    if args.pixel_window && !nside.is_power_of_two() {
+        return Err(Error::Setting(format!(
+            "--pixel-window needs a power-of-two NSIDE, the map has {nside}"
+        )));
+    }
     let sht = HarmonicTransform::new(nside, lmax)?;
-    let s = cross_spectrum(
+    let pseudo = pseudo_spectrum(
         &map,
         other.as_ref().unwrap_or(&map),
         weights,
         &sht,
         args.iterations,
-        args.bin_width,
     )?;
+    let settings = MasterSettings {
+        bin_width: args.bin_width,
+        weighting: args.bin_weighting,
+        beam_fwhm_arcmin: args.beam_arcmin,
+        pixel_window: args.pixel_window,
+    };
+    let s = master_spectrum(&pseudo, nside, args.iterations, &settings)?;
     let csv = spectrum_csv(&s);
     if let Some(p) = &args.csv {
         write_bytes(p, csv.as_bytes())?;
     }
     if let Some(p) = &args.json {
-        write_json(p, &s)?;
+        let report = SpectraReport {
+            cl: pseudo.raw.iter().map(|c| c / pseudo.w2).collect(),
+            band_powers: &s,
+        };
+        write_json(p, &report)?;
     }
     println!(
-        "f_sky {:.4}  w2 {:.4}  w4 {:.4}  lmax {lmax}",
+        "f_sky {:.4}  w2 {:.4}  w4 {:.4}  lmax {lmax}  beam {} arcmin  pixel window {}",
         footprint.f_sky(),
         s.w2,
-        s.w4
+        s.w4,
+        args.beam_arcmin,
+        if args.pixel_window { "on" } else { "off" }
     );
     print!("{csv}");
     Ok(())
