@@ -1,42 +1,34 @@
-//! How much each tiling transforms per footprint pixel: for a survey-like footprint (a tilted
-//! galactic-plane cut of ±20°, declinations from −65° to +15° and 40 circular holes of 0.5–2.5°,
-//! f_sky ≈ 0.37; our own scenario) it prints, per NSIDE, J and cell layout, the tiles, the tile
-//! size chosen and the tile pixels sampled and transformed per footprint pixel.
+//! How much each tiling transforms per footprint pixel: for the survey mask of the speed
+//! benchmark (`examples/measure_speed_limit.rs`: galactic latitude |b| > 20° less 40 circular
+//! holes of 0.5–2.5°, within −70° < δ < +10°, f_sky ≈ 0.37; our own scenario) it prints, per
+//! NSIDE, J and cell layout, the tiles, the tile size chosen and the tile pixels sampled and
+//! transformed per footprint pixel.
 //!
 //!     cargo run --release --example tiling_waste [NSIDE ...]
 
 use planisphere::measurement::MeasurementSettings;
-use planisphere::{Direction, Footprint, Ordering, Pixelization};
-use rand::{Rng, SeedableRng};
+use planisphere::scenario::MockFootprint;
+use planisphere::{Footprint, Pixelization};
 
-/// The footprint of the example (and of the speed benchmarks).
+/// The footprint of the example and of the speed benchmark (the map in galactic coordinates).
 fn survey_footprint(nside: u32) -> Footprint {
-    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11);
-    let holes: Vec<([f64; 3], f64)> = (0..40)
-        .map(|_| {
-            let z: f64 = rng.gen_range(-1.0..1.0);
-            let phi: f64 = rng.gen_range(0.0..std::f64::consts::TAU);
-            let r: f64 = rng.gen_range(0.5..2.5);
-            (
-                Direction::new(z.acos(), phi).to_vector(),
-                r.to_radians().cos(),
-            )
-        })
-        .collect();
-    // a plane tilted by 62.9° about the x axis stands in for the galactic plane
-    let tilt = 62.9f64.to_radians();
-    let pole = [0.0, -tilt.sin(), tilt.cos()];
-    let pix = Pixelization::new(nside, Ordering::Ring).expect("valid NSIDE");
-    Footprint::from_fn(pix, |d| {
+    let pix = Pixelization::new(nside, planisphere::Ordering::Ring).expect("valid NSIDE");
+    let galactic = MockFootprint {
+        latitude_cut_deg: 20.0,
+        star_holes: 40,
+        hole_radius_deg: (0.5, 2.5),
+        seed: 11,
+    }
+    .build(pix);
+    // sin δ = third row of the galactic → equatorial rotation (transpose of the Hipparcos
+    // equatorial → galactic matrix, ESA 1997, vol. 1 §1.5.3) applied to the galactic vector.
+    let (lo, hi) = ((-70f64).to_radians().sin(), 10f64.to_radians().sin());
+    let band = Footprint::from_fn(pix, |d| {
         let v = d.to_vector();
-        let b = (v[0] * pole[0] + v[1] * pole[1] + v[2] * pole[2]).asin();
-        let dec = d.lat().to_degrees();
-        b.abs() > 20f64.to_radians()
-            && (-65.0..15.0).contains(&dec)
-            && !holes
-                .iter()
-                .any(|(h, c)| v[0] * h[0] + v[1] * h[1] + v[2] * h[2] > *c)
-    })
+        let sin_dec = -0.483_835_015_5 * v[0] + 0.746_982_244_5 * v[1] + 0.455_983_776_2 * v[2];
+        sin_dec > lo && sin_dec < hi
+    });
+    galactic.intersection(&band).expect("same pixelization")
 }
 
 fn main() {
@@ -82,7 +74,7 @@ fn main() {
                 };
                 let sm = plan.summary(1);
                 println!(
-                    "| {nside} | {:.3} | {scales} | {name}{} | {} | {} | {:.1} | {:.2} | {:.2} |",
+                    "| {nside} | {:.3} | {scales} | {name}{} | {} | {} | {:.1} | {:.3} | {:.3} |",
                     fp.f_sky(),
                     sm.coarse_nside.map(|c| format!(" {c}")).unwrap_or_default(),
                     sm.tiles,

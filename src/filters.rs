@@ -119,9 +119,9 @@ pub fn is_tile_size(n: usize) -> bool {
 /// least `min_grid` pixels wide (0 when none is).
 pub(crate) fn coarsest_level(n: usize, min_grid: usize) -> usize {
     let mut d = 0;
-    while n % (1usize << (d + 1)) == 0 {
+    while n.is_multiple_of(1usize << (d + 1)) {
         let m = n >> (d + 1);
-        if m < min_grid || !(m % 2 == 0 || m.is_power_of_two()) {
+        if m < min_grid || !(m.is_multiple_of(2) || m.is_power_of_two()) {
             break;
         }
         d += 1;

@@ -57,8 +57,9 @@ pub struct MeasurementSettings {
     pub scales: usize,
     /// Number of orientations L.
     pub orientations: usize,
-    /// Plane pixels per tile side (a power of two ≥ 2^{J+1}); `None`: the tool's choice,
-    /// [`crate::tiling::automatic_tile_pixels`] for the halo of J scales.
+    /// Plane pixels per tile side (a size of [`crate::filters::is_tile_size`], ≥ 2^{J+1});
+    /// `None`: the tool's choice, the candidate of [`crate::tiling::automatic_tile_candidates`]
+    /// for the halo of J scales whose plan transforms the fewest tile pixels.
     pub tile_pixels: Option<usize>,
     /// Cut the footprint into the pixels of a coarse HEALPix grid of this NSIDE instead of
     /// latitude bands (`None`, the default; see [`crate::tiling::CellLayout`]).

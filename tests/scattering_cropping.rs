@@ -266,3 +266,11 @@ fn fft_census_counts_the_transforms_a_tile_performs() {
         assert!(total_pair > total);
     }
 }
+
+#[test]
+fn cropping_stays_within_budget_on_tiles_of_mixed_radix_sizes() {
+    // 288 = 2^5·9 and 160 = 2^5·5: the tool's choice of tile size may pick these (the cropped
+    // grids n/2^d stay even); the same budget against the full-resolution path.
+    check_budget(288, 5, 4);
+    check_budget(160, 4, 4);
+}

@@ -371,3 +371,56 @@ fn distortion_figures_follow_sec_squared_at_the_corner() {
         assert!(t.footprint_fraction > 0.0 && t.footprint_fraction <= 1.0);
     }
 }
+
+#[test]
+fn tool_chosen_tiles_transform_at_most_two_tile_pixels_per_footprint_pixel_at_j5() {
+    // Design targets of the plan (our own, stated in the contributor guide): on the speed
+    // benchmark's survey mask at NSIDE 1024 with one map spacing per plane pixel — |b| > 20°
+    // less 40 holes of 0.5–2.5°, within −70° < δ < +10°, f_sky 0.37 (examples/
+    // measure_speed_limit.rs) — the tile size the tool chooses transforms at most 2.0 tile pixels per footprint
+    // pixel at J = 5 and at most 2.5 at J = 6, every footprint pixel still in exactly one core.
+    use planisphere::measurement::MeasurementSettings;
+    use planisphere::scenario::MockFootprint;
+    let pix = Pixelization::new(1024, Ordering::Ring).unwrap();
+    let galactic = MockFootprint {
+        latitude_cut_deg: 20.0,
+        star_holes: 40,
+        hole_radius_deg: (0.5, 2.5),
+        seed: 11,
+    }
+    .build(pix);
+    // −70° < δ < +10°: sin δ from the third row of the galactic → equatorial rotation
+    // (transpose of the Hipparcos equatorial → galactic matrix, ESA 1997, vol. 1 §1.5.3)
+    let (lo, hi) = ((-70f64).to_radians().sin(), 10f64.to_radians().sin());
+    let band = Footprint::from_fn(pix, |d| {
+        let v = d.to_vector();
+        let sin_dec = -0.483_835_015_5 * v[0] + 0.746_982_244_5 * v[1] + 0.455_983_776_2 * v[2];
+        sin_dec > lo && sin_dec < hi
+    });
+    let fp = galactic.intersection(&band).unwrap();
+    assert!((0.36..0.38).contains(&fp.f_sky()));
+    for (scales, limit) in [(5usize, 2.0), (6, 2.5)] {
+        let settings = MeasurementSettings {
+            scales,
+            ..MeasurementSettings::default()
+        };
+        let plan = settings.plan(pix, &fp).unwrap();
+        let s = plan.summary(1);
+        println!(
+            "J = {scales}: {} tiles of {} pixels, {:.3} tile pixels per footprint pixel",
+            s.tiles, s.tile_pixels, s.tile_pixels_per_footprint_pixel
+        );
+        assert!(s.tile_pixels_per_footprint_pixel <= limit);
+        assert_eq!(s.footprint_pixels, fp.observed_pixels());
+        let in_cores: u64 = (0..plan.len())
+            .map(|i| {
+                plan.core_pixels(i)
+                    .unwrap()
+                    .iter()
+                    .filter(|&&p| fp.weight(p) > 0.0)
+                    .count() as u64
+            })
+            .sum();
+        assert_eq!(in_cores, fp.observed_pixels());
+    }
+}

@@ -52,8 +52,9 @@ pub struct MeasureOptions {
     /// Number of wavelet orientations L [default: 4].
     #[arg(long, short = 'L')]
     pub orientations: Option<usize>,
-    /// Plane pixels per tile side, a power of two [default: the tool's choice: the smallest power
-    /// of two ≥ 8 × halo, halved while wider than 32°].
+    /// Plane pixels per tile side, 2^k·m with m = 1, 3, 5, 7 or 9 [default: the tool's choice: of
+    /// the sizes from ¾ to 5/4 of the smallest power of two ≥ 8 × halo (halved while wider than
+    /// 32°), the one whose plan transforms the fewest tile pixels].
     #[arg(long)]
     pub tile_pixels: Option<usize>,
     /// Cut the footprint into the pixels of a coarse HEALPix grid of this NSIDE instead of

@@ -1,31 +1,40 @@
 //! Latitude-band cells: an exact partition of the footprint into cores that nearly fill their
 //! tiles.
 //!
-//! The sphere is cut into two polar caps of colatitude radius R and nb bands of equal height H
-//! between them; a HEALPix ring belongs to the band that holds its colatitude, so every map pixel
-//! lies in exactly one band (Górski et al. 2005, §4: all pixel centres of a ring share one
-//! colatitude). A cap is one cell (a disc of radius R around the pole). A band is cut in
-//! longitude into cells of equal width, but only over the longitude runs where the footprint
-//! lies: the footprint pixels of the band are binned in longitude, runs of occupied bins closer
-//! than half a cell are merged, and each run is split into ⌈length / w_max⌉ equal cells. A map
-//! pixel belongs to the cell whose longitude range holds its centre; pixels of a band outside
-//! every run (never footprint pixels) belong to no cell. Cells holding no footprint pixel are
-//! dropped.
+//! The sphere is cut into two polar caps of colatitude radius R and bands of HEALPix rings
+//! between them; a ring belongs to the band that holds its colatitude, so every map pixel lies
+//! in exactly one band (Górski et al. 2005, §4: all pixel centres of a ring share one
+//! colatitude). A cap is one cell (a disc of radius R around the pole). Bands cover only the
+//! footprint's colatitude spans (runs of rings holding footprint): each span gets the fewest
+//! bands of equal height H that fit, and two spans share their bands when that takes no more
+//! bands than laying them out apart, so a wide gap such as a galactic-plane cut gets no band.
 //!
-//! Sizes follow from the tile: a cell must fit, in the gnomonic projection about its centre, in
-//! the square |x|, |y| ≤ c = (n/2 − halo)·Δ left by the halo, with a margin m of one map spacing
-//! all round (plane pixels read the map pixel containing them, whose centre may be up to about
-//! one spacing outside the cell). A shift by m on the sphere moves a point by at most
-//! m·sec²ρ ≤ m(1 + 2c²) on the plane inside the square (radial scale of the gnomonic projection,
-//! Snyder 1987, §22), so the ungrown cell must fit in c' = c − m(1 + 2c²). Hence the caps have
-//! R = 0.995·atan c', the bands cover the footprint's colatitudes (from its northernmost to its
-//! southernmost ring, or from a cap's edge) in nb bands of equal height H, nb the smallest count
-//! with H ≤ 0.96 · 2 atan c' (the 4% left absorb the curvature of the parallels), and w_max per
-//! band is the widest longitude range whose cell still fits, found by bisection on the projected
-//! outline. Meridians and the cap edge are straight lines or a circle
-//! in the gnomonic plane, parallels are conics; the outline is sampled at 24 points per side.
+//! A band is cut in longitude along its footprint. Its footprint pixel centres are binned in
+//! longitude (4·NSIDE bins of one equatorial pixel), each bin keeping the colatitude range of
+//! its centres (a "column"). Starting after a bin without footprint, each cell takes the
+//! longest stretch of bins whose columns fit, in the gnomonic projection about the centre of
+//! their colatitude and longitude range, in the square left by the halo (below); bins without
+//! footprint are free, so a cell may span a gap. Greedy covering gives the fewest cells of a
+//! band when a stretch that fits also fits when shortened, as it does here up to the choice of
+//! tangent point. A map pixel belongs to the cell of its longitude bin (found by the same
+//! arithmetic that binned the footprint, so a centre on a bin edge lands in the cell fitted
+//! around it); pixels of bins outside every cell are never footprint pixels and belong to no
+//! cell. Finally, cells are taken from the fewest footprint pixels up and each joins the
+//! nearest tile whose columns and its own still fit one square together (caps excepted): a
+//! tile may then own a few cells.
 //!
-//! Because cells follow the footprint and are nearly square in the tile frame, the plane pixels
+//! Sizes follow from the tile: the footprint pixel centres of a core must fit, in the gnomonic
+//! projection about its tangent point, in the square |x|, |y| ≤ c = (n/2 − halo)·Δ left by the
+//! halo, with a margin m of one map spacing all round (plane pixels read the map pixel
+//! containing them, whose centre may be up to about one spacing away). A shift by m on the
+//! sphere moves a point by at most m·sec²ρ ≤ m(1 + 2c²) on the plane inside the square (radial
+//! scale of the gnomonic projection, Snyder 1987, §22), so the centres must fit in
+//! c' = c − m(1 + 2c²). Hence the caps have R = 0.995·atan c' and the bands H ≤ 0.96 ·
+//! 2 atan c' (the 4% left let a full-height cell still grow in longitude). Meridians are
+//! straight lines in the gnomonic plane and parallels conics; a column's outline is checked at
+//! its corners and the middle of its top and bottom (a bin is one equatorial pixel wide).
+//!
+//! Because cells follow the footprint and nearly fill their squares, the plane pixels
 //! transformed per footprint pixel approach (n / (n − 2·halo))² instead of the factor of about
 //! two of a diamond-shaped core plus its surrounding square.
 
@@ -51,8 +60,6 @@ type MergedTile = (Vec<(usize, usize)>, Direction, f64, f64);
 /// One band of rings and its cells.
 #[derive(Debug, Clone)]
 struct Band {
-    /// Colatitude span of the footprint the band belongs to (None: a cap or a gap).
-    span: Option<usize>,
     /// First and last ring (inclusive, HEALPix ring numbers).
     rings: (u64, u64),
     /// Colatitudes of the band's northern and southern edges.
@@ -73,20 +80,26 @@ struct Band {
     /// Footprint columns of each cell: [θ_min, θ_max, φ_0, φ_1] of the footprint pixel centres
     /// in each longitude bin (φ unwrapped within the cell; empty for a cap).
     columns: Vec<Vec<[f64; 4]>>,
+    /// Cell of each longitude bin (empty for a cap or a band without cells).
+    bin_cell: Vec<Option<u32>>,
     /// Is the band a polar cap (one cell, tangent at the pole)?
     cap: bool,
 }
 
 impl Band {
     /// The cell holding longitude φ ∈ [0, 2π), if any.
+    /// The longitude bin is found by the same arithmetic that binned the footprint, so a pixel
+    /// centre on a bin edge lands in the cell that was fitted around it.
     fn cell_of(&self, phi: f64) -> Option<usize> {
         if self.cap {
             return Some(0);
         }
-        let first = *self.starts.first()?;
-        let p = if phi < first { phi + TAU } else { phi };
-        let k = self.starts.partition_point(|&s| s <= p).checked_sub(1)?;
-        (p < self.ends[k]).then_some(k)
+        let nb = self.bin_cell.len();
+        if nb == 0 {
+            return None;
+        }
+        let k = ((phi / TAU * nb as f64).floor() as usize).min(nb - 1);
+        self.bin_cell[k].map(|c| c as usize)
     }
 }
 
@@ -143,32 +156,6 @@ impl LatitudeBands {
         core_half: f64,
         margin: f64,
     ) -> Result<(Self, Vec<BandCell>)> {
-        // The fewest bands that fit each span, then one more band per span; each span keeps
-        // the count that gives it fewer tiles (a lower band lets its cells grow wider; spans
-        // are laid out independently).
-        let (_, _, fewest) = Self::build(footprint, core_half, margin, &[])?;
-        let extra = vec![1; fewest.len()];
-        let (_, _, more) = Self::build(footprint, core_half, margin, &extra)?;
-        let choice: Vec<usize> = fewest
-            .iter()
-            .zip(&more)
-            .map(|(a, b)| usize::from(b < a))
-            .collect();
-        let (layout, cells, fin) = Self::build(footprint, core_half, margin, &choice)?;
-        if std::env::var("ZZ_DEBUG").is_ok() {
-            eprintln!("fewest {fewest:?} more {more:?} final {fin:?}");
-        }
-        Ok((layout, cells))
-    }
-
-    /// The layout with `extra[s]` bands beyond the fewest that fit on colatitude span s (0 for
-    /// spans beyond `extra`), and the number of tiles of each span.
-    fn build(
-        footprint: &Footprint,
-        core_half: f64,
-        margin: f64,
-        extra: &[usize],
-    ) -> Result<(Self, Vec<BandCell>, Vec<usize>)> {
         let fp_pix = footprint.pixelization();
         let nside = fp_pix.nside() as u64;
         // Room for the ungrown cell: moving a point by m on the sphere moves it by at most
@@ -184,18 +171,24 @@ impl LatitudeBands {
         }
         let reach = room.atan();
         // The footprint's extent in colatitude, by rings.
-        let to_ring = |p: u64| -> Result<u64> {
-            match fp_pix.ordering() {
-                Ordering::Ring => Ok(p),
-                Ordering::Nested => fp_pix.to_ring(p),
-            }
-        };
         let ring_count = 4 * nside - 1;
+        let ring_pix = Pixelization::new(nside as u32, Ordering::Ring)?;
+        let weights = footprint.weights();
+        // weight of the footprint at RING pixel p
+        let weight_at = |p: u64| -> Result<f64> {
+            Ok(match fp_pix.ordering() {
+                Ordering::Ring => weights[p as usize],
+                Ordering::Nested => weights[fp_pix.from_nested(ring_pix.to_nested(p)?)? as usize],
+            })
+        };
         let mut ring_occupied = vec![false; ring_count as usize];
-        for (p, &w) in footprint.weights().iter().enumerate() {
-            if w > 0.0 {
-                let (i, _) = ring_and_position(nside, to_ring(p as u64)?);
-                ring_occupied[(i - 1) as usize] = true;
+        for i in 1..=ring_count {
+            let (first, len, _) = ring_info(nside, i);
+            for j in 0..len {
+                if weight_at(first + j)? > 0.0 {
+                    ring_occupied[(i - 1) as usize] = true;
+                    break;
+                }
             }
         }
         // The footprint's colatitude spans: runs of rings holding footprint, each grown by half
@@ -249,38 +242,32 @@ impl LatitudeBands {
         // Slot edges: the north cap (or nothing) down to the first span, the bands of each span,
         // the gaps between spans (no footprint: empty slots), down to the south cap (or nothing).
         let mut edges = vec![0.0];
-        // span of the slot that ends at each edge (None: a cap or a gap)
-        let mut edge_span: Vec<Option<usize>> = vec![None];
         if north_cap {
             edges.push(cap_radius);
-            edge_span.push(None);
         }
-        for (span, &(a, b)) in merged.iter().enumerate() {
+        for &(a, b) in &merged {
             if a > edges[edges.len() - 1] {
                 edges.push(a);
-                edge_span.push(None);
             }
-            let count = bands_for(a, b) as usize + extra.get(span).copied().unwrap_or(0);
+            let count = bands_for(a, b) as usize;
             for k in 1..=count {
                 edges.push(a + (b - a) * k as f64 / count as f64);
-                edge_span.push(Some(span));
             }
         }
         if south_cap && edges[edges.len() - 1] < PI - cap_radius {
             edges.push(PI - cap_radius);
-            edge_span.push(None);
         }
         if edges[edges.len() - 1] < PI {
             edges.push(PI);
-            edge_span.push(None);
         }
         // Rings to bands (a band without rings is skipped).
         let mut bands: Vec<Band> = Vec::new();
         let mut band_of_ring = Vec::with_capacity(ring_count as usize);
         let slots = edges.len() - 1;
         let mut slot_band: Vec<Option<usize>> = vec![None; slots];
+        let ring_thetas: Vec<f64> = (1..=ring_count).map(|i| ring_theta(nside, i)).collect();
         for i in 1..=ring_count {
-            let theta = ring_theta(nside, i);
+            let theta = ring_thetas[(i - 1) as usize];
             let slot = edges[1..].partition_point(|&e| e <= theta).min(slots - 1);
             let b = match slot_band[slot] {
                 Some(b) => b,
@@ -288,7 +275,6 @@ impl LatitudeBands {
                     let cap = (slot == 0 && north_cap) || (slot == slots - 1 && south_cap);
                     let (t0, t1) = (edges[slot], edges[slot + 1]);
                     bands.push(Band {
-                        span: edge_span[slot + 1],
                         rings: (i, i),
                         theta: (t0, t1),
                         theta_center: if cap && slot == 0 {
@@ -304,6 +290,7 @@ impl LatitudeBands {
                         centers: Vec::new(),
                         reach: Vec::new(),
                         columns: Vec::new(),
+                        bin_cell: Vec::new(),
                         cap,
                     });
                     slot_band[slot] = Some(bands.len() - 1);
@@ -318,14 +305,12 @@ impl LatitudeBands {
         let bin_count = (4 * nside as usize).max(64);
         let mut extents: Vec<Vec<Option<(f64, f64)>>> = vec![Vec::new(); bands.len()];
         let mut cap_occupied = vec![false; bands.len()];
-        let ring_pix = Pixelization::new(nside as u32, Ordering::Ring)?;
         let nb = bin_count as f64;
-        for (p, &w) in footprint.weights().iter().enumerate() {
-            if w <= 0.0 {
+        for i in 1..=ring_count {
+            let b = band_of_ring[(i - 1) as usize];
+            if !ring_occupied[(i - 1) as usize] {
                 continue;
             }
-            let (i, j) = ring_and_position(nside, to_ring(p as u64)?);
-            let b = band_of_ring[(i - 1) as usize];
             if bands[b].cap {
                 cap_occupied[b] = true;
                 continue;
@@ -333,14 +318,20 @@ impl LatitudeBands {
             if extents[b].is_empty() {
                 extents[b] = vec![None; bin_count];
             }
-            let phi = ring_pixel_phi(nside, i, j);
-            let theta = ring_theta(nside, i);
-            let k = ((phi / TAU * nb).floor() as usize).min(bin_count - 1);
-            let e = &mut extents[b][k];
-            *e = Some(match *e {
-                Some((lo, hi)) => (lo.min(theta), hi.max(theta)),
-                None => (theta, theta),
-            });
+            let theta = ring_thetas[(i - 1) as usize];
+            let (first, len, _) = ring_info(nside, i);
+            for j in 0..len {
+                if weight_at(first + j)? <= 0.0 {
+                    continue;
+                }
+                let phi = ring_pixel_phi(nside, i, j);
+                let k = ((phi / TAU * nb).floor() as usize).min(bin_count - 1);
+                let e = &mut extents[b][k];
+                *e = Some(match *e {
+                    Some((lo, hi)) => (lo.min(theta), hi.max(theta)),
+                    None => (theta, theta),
+                });
+            }
         }
         // Cells of every band: caps whole, other bands cut greedily along the footprint.
         for (b, band) in bands.iter_mut().enumerate() {
@@ -379,12 +370,7 @@ impl LatitudeBands {
                 for j in 0..len {
                     if let Some(k) = band.cell_of(ring_pixel_phi(nside, i, j)) {
                         pixels[b][k] += 1;
-                        let p = first + j;
-                        let q = match fp_pix.ordering() {
-                            Ordering::Ring => p,
-                            Ordering::Nested => fp_pix.from_nested(ring_pix.to_nested(p)?)?,
-                        };
-                        let w = footprint.weight(q);
+                        let w = weight_at(first + j)?;
                         if w > 0.0 {
                             weight[b][k] += w;
                             count[b][k] += 1;
@@ -417,12 +403,6 @@ impl LatitudeBands {
             tile_cells.push(members);
             cells.push(cell);
         }
-        let mut per_span = vec![0usize; merged.len()];
-        for members in &tile_cells {
-            if let Some(span) = bands[members[0].0].span {
-                per_span[span] += 1;
-            }
-        }
         Ok((
             LatitudeBands {
                 nside,
@@ -431,7 +411,6 @@ impl LatitudeBands {
                 tile_cells,
             },
             cells,
-            per_span,
         ))
     }
 
@@ -605,7 +584,14 @@ impl LatitudeBands {
             cells.push((s, e));
             s = e;
         }
-        type Span = (f64, f64, Direction, (f64, f64), Vec<[f64; 4]>);
+        type Span = (
+            f64,
+            f64,
+            Direction,
+            (f64, f64),
+            Vec<[f64; 4]>,
+            (usize, usize),
+        );
         let mut spans: Vec<Span> = Vec::with_capacity(cells.len());
         for (s, e) in cells {
             let columns = Self::bin_columns(bins, s, e, bw);
@@ -619,9 +605,16 @@ impl LatitudeBands {
                 center,
                 (half, r2),
                 columns,
+                (s, e),
             ));
         }
-        spans.sort_by(|a, b| a.0.total_cmp(&b.0));
+        spans.sort_by_key(|c| c.5 .0 % nb);
+        band.bin_cell = vec![None; nb];
+        for (c, span) in spans.iter().enumerate() {
+            for k in span.5 .0..span.5 .1 {
+                band.bin_cell[k % nb] = Some(c as u32);
+            }
+        }
         band.starts = spans.iter().map(|c| c.0).collect();
         band.ends = spans.iter().map(|c| c.1).collect();
         band.centers = spans.iter().map(|c| c.2).collect();
@@ -647,9 +640,9 @@ impl LatitudeBands {
             alive: bool,
         }
         let mut groups: Vec<Group> = Vec::new();
-        for (b, band) in bands.iter().enumerate() {
-            for k in 0..band.starts.len() {
-                if count[b][k] == 0 {
+        for (b, (band, band_count)) in bands.iter().zip(count).enumerate() {
+            for (k, &pixels) in band_count.iter().enumerate() {
+                if pixels == 0 {
                     continue;
                 }
                 groups.push(Group {
@@ -658,7 +651,7 @@ impl LatitudeBands {
                     center: band.centers[k],
                     half: band.reach[k].0,
                     r2: band.reach[k].1,
-                    pixels: count[b][k],
+                    pixels,
                     cap: band.cap,
                     alive: true,
                 });
