@@ -19,7 +19,17 @@ enum Layout {
     FullSkyBands,
 }
 
-fn compare(nside: u32, scales: usize, skies: u64, hole_deg: f64, apo_deg: f64, layout: Layout) {
+/// `check_order_means`: also require the mean relative bias of each order (averaged over its
+/// trusted coefficients, then over skies) within 2 standard errors of zero.
+fn compare(
+    nside: u32,
+    scales: usize,
+    skies: u64,
+    hole_deg: f64,
+    apo_deg: f64,
+    layout: Layout,
+    check_order_means: bool,
+) {
     let pix = Pixelization::new(nside, Ordering::Ring).unwrap();
     let full = Footprint::full_sky(pix);
     let partial = sphere_support::holed_cap(nside, hole_deg, apo_deg);
@@ -70,7 +80,9 @@ fn compare(nside: u32, scales: usize, skies: u64, hole_deg: f64, apo_deg: f64, l
     let mut compared = 0;
     let mut worst = (0.0f64, String::new());
     let mut failures = Vec::new();
-    let mut groups: std::collections::BTreeMap<String, (f64, f64, f64, usize)> = Default::default();
+    // per order (kind): for every sky, the mean over the kind's trusted coefficients of the
+    // relative difference (partial − full) / ⟨full⟩
+    let mut per_order: std::collections::BTreeMap<String, (Vec<f64>, usize)> = Default::default();
     for i in 0..count {
         if !partial_sets.iter().all(|s| s.coefficients[i].trusted) {
             continue;
@@ -92,14 +104,15 @@ fn compare(nside: u32, scales: usize, skies: u64, hole_deg: f64, apo_deg: f64, l
         let z = (mean(&p) - mean(&f)).abs() / sigma;
         let se = sd(&diff) / k.sqrt() / sigma;
         compared += 1;
-        {
-            let key = format!("{:?} {:?} {:?}", label.kind, label.j1, label.j2);
-            let rel: Vec<f64> = diff.iter().map(|d| d / mean(&f)).collect();
-            let e = groups.entry(key).or_insert((0.0, 0.0, 0.0, 0usize));
-            e.0 += mean(&rel);
-            e.1 += sd(&rel) / k.sqrt();
-            e.2 += (mean(&p) - mean(&f)) / sigma;
-            e.3 += 1;
+        if label.order > 0 {
+            let entry = per_order
+                .entry(format!("{:?}", label.kind))
+                .or_insert((vec![0.0; skies as usize], 0));
+            let full_mean = mean(&f);
+            for (acc, d) in entry.0.iter_mut().zip(&diff) {
+                *acc += d / full_mean;
+            }
+            entry.1 += 1;
         }
         if z > worst.0 {
             worst = (
@@ -114,14 +127,23 @@ fn compare(nside: u32, scales: usize, skies: u64, hole_deg: f64, apo_deg: f64, l
             failures.push(format!("{label:?}: {z:.2} σ"));
         }
     }
-    for (key, (r, se, z, c)) in &groups {
-        let c = *c as f64;
+    // The mean bias of each order, over skies, within 2 standard errors of zero.
+    for (kind, (sums, c)) in &per_order {
+        let rel: Vec<f64> = sums.iter().map(|x| x / *c as f64).collect();
+        let m = rel.iter().sum::<f64>() / k;
+        let se = (rel.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (k - 1.0)).sqrt() / k.sqrt();
         println!(
-            "  {key:40} relative {:+.3}% ± {:.3}%, mean z {:+.2}",
-            100.0 * r / c,
-            100.0 * se / c,
-            z / c
+            "  {kind}: mean relative bias {:+.3}% ± {:.3}% over {c} coefficients",
+            100.0 * m,
+            100.0 * se
         );
+        if check_order_means && m.abs() > 2.0 * se {
+            failures.push(format!(
+                "{kind}: mean relative bias {:+.3}% beyond 2 standard errors ({:.3}%)",
+                100.0 * m,
+                100.0 * se
+            ));
+        }
     }
     println!(
         "{compared} of {count} coefficients trusted; worst |partial − full| = {:.3} σ at {}",
@@ -147,26 +169,22 @@ fn partial_sky_trusted_coefficients_agree_with_full_sky_within_half_sigma() {
     // 32 skies: the paired difference of ensemble means has a standard error of about
     // 0.15 σ (printed for the worst coefficient), so a 0.5 σ bias stands out at > 3 standard
     // errors while chance excursions past 0.5 σ stay rare over the ~30 coefficients compared.
-    compare(64, 4, 32, 4.0, 3.0, Layout::SameHealpixCells);
+    compare(64, 4, 32, 4.0, 3.0, Layout::SameHealpixCells, false);
 }
 
 #[test]
-#[ignore = "fails (0.71 σ at band power j = 2, standard error 0.38 σ) and takes about 7 minutes: NSIDE 256, 12 skies"]
 fn partial_sky_agrees_with_full_sky_within_half_sigma_at_nside_256() {
-    // The same tile geometry for both footprints (coarse NSIDE 16 cells), 12 skies: the mask
-    // estimator alone. (With each footprint's own latitude bands the tile positions differ too;
-    // that change of plan is checked in tests/sphere_plan_layouts.rs.)
-    compare(256, 4, 12, 2.5, 2.0, Layout::SameHealpixCells);
+    // NSIDE 256, J = 4, 48 skies, both footprints measured on the default latitude-band plan of
+    // the full sky (the same tiles, so only the mask differs; a change of plan is checked in
+    // tests/sphere_plan_layouts.rs). 48 skies: the paired difference has a standard error of
+    // about 0.12 σ, so a 0.5 σ bias stands out at 4 standard errors. Measured: worst 0.37 σ;
+    // mean relative biases +0.05% ± 0.11% (S1), +0.11% ± 0.23% (band power), +0.15% ± 0.13%
+    // (S2). About 2.5 minutes in release mode.
+    compare(256, 4, 48, 2.5, 2.0, Layout::FullSkyBands, true);
 }
 
 #[test]
 #[ignore = "heavier variant (about 4.5 minutes): NSIDE 128, 32 skies"]
 fn partial_sky_trusted_coefficients_agree_with_full_sky_within_half_sigma_nside_128() {
-    compare(128, 4, 32, 2.5, 2.0, Layout::SameHealpixCells);
-}
-
-#[test]
-#[ignore = "probe"]
-fn partial_sky_probe_full_sky_bands_nside_256() {
-    compare(256, 4, 48, 2.5, 2.0, Layout::FullSkyBands);
+    compare(128, 4, 32, 2.5, 2.0, Layout::SameHealpixCells, false);
 }
