@@ -15,8 +15,8 @@
 //! Member i belongs to shard k of K when i mod K = k; on a SLURM cluster the shard is taken from
 //! `SLURM_ARRAY_TASK_ID` and `SLURM_ARRAY_TASK_COUNT` when none is given.
 
-use crate::cli::output::{write_atomically, write_bytes, write_json};
 use crate::error::{Error, Result};
+use crate::files::{write_atomically, write_bytes, write_json};
 use ndarray::Array2;
 use rayon::prelude::*;
 use sha2::{Digest, Sha256};
@@ -180,6 +180,7 @@ impl MergedTable {
 
 /// SHA-256 of a file, hex encoded.
 pub fn file_checksum(path: &Path) -> Result<String> {
+    crate::files::require_regular_input(path)?;
     let mut f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
     let mut h = Sha256::new();
     let mut buf = vec![0u8; 1 << 20];
@@ -195,7 +196,7 @@ pub fn file_checksum(path: &Path) -> Result<String> {
 
 /// Members from a list file (one path per line, relative to the list's directory; `#` comments).
 pub fn members_from_list(list: &Path) -> Result<Vec<MemberSource>> {
-    let text = std::fs::read_to_string(list).map_err(|e| Error::io(list, e))?;
+    let text = crate::files::read_text(list)?;
     let base = list.parent().unwrap_or(Path::new(""));
     let mut out = Vec::new();
     for line in text.lines() {
@@ -220,10 +221,12 @@ pub fn members_from_list(list: &Path) -> Result<Vec<MemberSource>> {
 pub fn members_from_glob(pattern: &str) -> Result<Vec<MemberSource>> {
     let paths = glob::glob(pattern)
         .map_err(|e| Error::Setting(format!("bad file pattern '{pattern}': {e}")))?;
+    // directories are skipped; a FIFO, device or socket is refused (reading it would block)
     let mut files: Vec<PathBuf> = paths
         .filter_map(|p| p.ok())
-        .filter(|p| p.is_file())
-        .collect();
+        .filter(|p| !p.is_dir())
+        .map(|p| crate::files::require_regular_input(&p).map(|()| p))
+        .collect::<Result<_>>()?;
     files.sort();
     if files.is_empty() {
         return Err(Error::Setting(format!("no files match '{pattern}'")));
@@ -273,7 +276,7 @@ impl EnsembleJob {
 
     fn read_description(dir: &Path) -> Result<EnsembleDescription> {
         let path = dir.join("ensemble.json");
-        let text = std::fs::read_to_string(&path).map_err(|e| Error::io(&path, e))?;
+        let text = crate::files::read_text(&path)?;
         serde_json::from_str(&text)
             .map_err(|e| Error::io(&path, format!("not an ensemble description: {e}")))
     }
@@ -414,7 +417,7 @@ impl EnsembleJob {
 
 fn read_row(dir: &Path, i: usize) -> Result<Row> {
     let path = row_path(dir, i);
-    let text = std::fs::read_to_string(&path).map_err(|e| Error::io(&path, e))?;
+    let text = crate::files::read_text(&path)?;
     serde_json::from_str(&text).map_err(|e| Error::io(&path, e))
 }
 

@@ -21,8 +21,8 @@
 //! length must equal 12·NSIDE² (full sky) or be at most that (partial sky), the file must really
 //! hold the bytes its header declares, and maps read into memory have NSIDE ≤ [`MAX_READ_NSIDE`].
 
-use crate::cli::output::write_atomically;
 use crate::error::{Error, Result};
+use crate::files::write_atomically;
 use crate::footprint::Footprint;
 use crate::pixelization::{npix_of, Ordering, Pixelization};
 use crate::skymap::{SkyMap, UNSEEN};
@@ -737,6 +737,7 @@ fn check_file_start(path: &Path) -> Result<u64> {
     if meta.is_dir() {
         return Err(Error::io(path, "is a directory, not a FITS file"));
     }
+    crate::files::require_regular_input(path)?;
     let mut start = [0u8; 9];
     let mut f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
     let mut got = 0;

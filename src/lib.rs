@@ -9,6 +9,7 @@ pub mod cli;
 pub mod correlation;
 pub mod ensemble;
 pub mod error;
+pub mod files;
 pub mod filters;
 pub mod fits_io;
 pub mod flat;

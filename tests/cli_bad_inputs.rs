@@ -1,10 +1,18 @@
-//! Every command meets bad input with one clear line on stderr, a non-zero exit code, no panic
-//! and no output file (complete or partial) left behind.
+//! Every command meets bad input with one clear line on stderr, exit code 2, no panic, no hang
+//! (each run gets a generous time limit in the harness, not a speed check), no output file
+//! (complete or partial) left behind and every file already there unchanged (contents, links,
+//! FIFOs and devices compared before and after each run).
 
 use planisphere::fits_io::{write_footprint, write_map, WriteOptions};
 use planisphere::{Footprint, Ordering, Pixelization, SkyMap};
+use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
-use std::process::Command;
+use std::process::{Command, Stdio};
+use std::time::{Duration, Instant};
+
+/// How long a refused command may run before the harness calls it a hang (generous: the
+/// machine is shared; a refusal takes well under a second).
+const HANG_LIMIT: Duration = Duration::from_secs(120);
 
 struct Fixtures {
     dir: tempfile::TempDir,
@@ -76,6 +84,20 @@ impl Fixtures {
         std::fs::write(p("negative_cl.txt"), "2 1e-5\n3 -1e-6\n").unwrap();
         std::fs::write(p("empty_list.txt"), "# nothing here\n").unwrap();
         std::fs::create_dir(p("not_an_ensemble")).unwrap();
+        // special files and other names of the same file
+        let status = Command::new("mkfifo").arg(p("pipe")).status().unwrap();
+        assert!(status.success(), "mkfifo failed");
+        std::os::unix::fs::symlink(p("map16.fits"), p("map_link.fits")).unwrap();
+        std::fs::hard_link(p("map16.fits"), p("map_hard.fits")).unwrap();
+        std::fs::copy(p("full16.fits"), p("mask_copy.fits")).unwrap();
+        std::fs::write(p("cl.txt"), "2 1e-5\n3 1e-5\n4 1e-5\n").unwrap();
+        std::fs::write(
+            p("huge_lmax.toml"),
+            "nside = 16\ncount = 2\nlmax = 1000000000\n",
+        )
+        .unwrap();
+        std::fs::write(p("big_nside.toml"), "nside = 4096\ncount = 2\n").unwrap();
+        std::fs::create_dir(p("demo_existing")).unwrap();
         Fixtures { dir }
     }
 
@@ -84,19 +106,107 @@ impl Fixtures {
     }
 }
 
-/// Runs the binary; returns (exit code, stderr).
-fn run(args: &[String], cwd: &Path) -> (Option<i32>, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_planisphere"))
+/// Runs `program args` in `cwd`, killing it after [`HANG_LIMIT`]; returns (exit code, stderr).
+fn run_program(program: &str, args: &[String], cwd: &Path) -> (Option<i32>, String) {
+    let mut child = Command::new(program)
         .args(args)
         .current_dir(cwd)
         .env_remove("SLURM_ARRAY_TASK_ID")
         .env_remove("SLURM_ARRAY_TASK_COUNT")
-        .output()
+        .stdin(Stdio::null())
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
         .unwrap();
+    let start = Instant::now();
+    loop {
+        if child.try_wait().unwrap().is_some() {
+            break;
+        }
+        if start.elapsed() > HANG_LIMIT {
+            let _ = child.kill();
+            let _ = child.wait();
+            panic!("{args:?}: still running after {HANG_LIMIT:?} (a hang)");
+        }
+        std::thread::sleep(Duration::from_millis(20));
+    }
+    let out = child.wait_with_output().unwrap();
     (
         out.status.code(),
         String::from_utf8_lossy(&out.stderr).into_owned(),
     )
+}
+
+/// Runs the binary; returns (exit code, stderr).
+fn run(args: &[String], cwd: &Path) -> (Option<i32>, String) {
+    run_program(env!("CARGO_BIN_EXE_planisphere"), args, cwd)
+}
+
+/// What a directory entry is, compared before and after a run: a file's bytes, a link's
+/// target, or the kind of a directory or special file (a FIFO is never opened).
+#[derive(Debug, PartialEq, Eq)]
+enum Entry {
+    File(Vec<u8>),
+    Link(PathBuf),
+    Other(String),
+}
+
+fn snapshot(dir: &Path) -> BTreeMap<PathBuf, Entry> {
+    use std::os::unix::fs::FileTypeExt;
+    files_in(dir)
+        .into_iter()
+        .map(|p| {
+            let t = std::fs::symlink_metadata(&p).unwrap().file_type();
+            let e = if t.is_symlink() {
+                Entry::Link(std::fs::read_link(&p).unwrap())
+            } else if t.is_file() {
+                Entry::File(std::fs::read(&p).unwrap())
+            } else if t.is_fifo() {
+                Entry::Other("fifo".into())
+            } else {
+                Entry::Other("directory".into())
+            };
+            (p, e)
+        })
+        .collect()
+}
+
+/// Checks one refused run: exit code 2, one line naming `words`, no panic, nothing created
+/// (but the directories an ensemble creates before it reads its members), nothing changed.
+fn assert_refused(
+    args: &[String],
+    code: Option<i32>,
+    stderr: &str,
+    words: &str,
+    before: &BTreeMap<PathBuf, Entry>,
+    dir: &Path,
+) {
+    assert_eq!(code, Some(2), "{args:?}: exit {code:?}: {stderr}");
+    assert!(!stderr.contains("panicked"), "{args:?}: {stderr}");
+    assert_eq!(
+        stderr.trim_end().lines().count(),
+        1,
+        "{args:?}: not one line: {stderr}"
+    );
+    assert!(
+        stderr.starts_with("planisphere: error: "),
+        "{args:?}: {stderr}"
+    );
+    assert!(
+        stderr.contains(words),
+        "{args:?}: expected '{words}' in: {stderr}"
+    );
+    let after = snapshot(dir);
+    for (p, e) in before {
+        assert_eq!(after.get(p), Some(e), "{args:?} changed {}", p.display());
+    }
+    let ensemble = args.first().map(String::as_str) == Some("ensemble");
+    let new: Vec<&PathBuf> = after
+        .keys()
+        .filter(|p| !before.contains_key(*p))
+        .filter(|p| !(ensemble && p.is_dir()))
+        .collect();
+    assert!(new.is_empty(), "{args:?} left {new:?}");
 }
 
 fn files_in(dir: &Path) -> Vec<PathBuf> {
@@ -544,32 +654,15 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
         ),
     ];
     assert!(cases.len() >= 25);
-    let before = files_in(f.dir.path());
-    for (args, words) in &cases {
+    refuse_all(&f, &cases);
+}
+
+/// Runs every case of a table in the fixtures' directory and checks each refusal.
+fn refuse_all(f: &Fixtures, cases: &[(Vec<String>, &str)]) {
+    for (args, words) in cases {
+        let before = snapshot(f.dir.path());
         let (code, stderr) = run(args, f.dir.path());
-        assert!(matches!(code, Some(c) if c != 0), "{args:?}: exit {code:?}");
-        assert!(!stderr.contains("panicked"), "{args:?}: {stderr}");
-        assert_eq!(
-            stderr.trim_end().lines().count(),
-            1,
-            "{args:?}: not one line: {stderr}"
-        );
-        assert!(
-            stderr.starts_with("planisphere: error: "),
-            "{args:?}: {stderr}"
-        );
-        assert!(
-            stderr.contains(words),
-            "{args:?}: expected '{words}' in: {stderr}"
-        );
-        // no output (and no temporary file) left behind, except the directories an ensemble
-        // creates before it reads its members
-        let after: Vec<PathBuf> = files_in(f.dir.path())
-            .into_iter()
-            .filter(|p| !before.contains(p))
-            .filter(|p| !p.is_dir())
-            .collect();
-        assert!(after.is_empty(), "{args:?} left {after:?}");
+        assert_refused(args, code, &stderr, words, &before, f.dir.path());
     }
 }
 
@@ -619,4 +712,204 @@ fn bad_derivative_specification_is_reported() {
         "planisphere: error: --derivative expects NAME,STEP,PLUS_DIR,MINUS_DIR; got 'a,zero,x,y'"
     );
     assert!(!Path::new(&f.path("fc.json")).exists());
+}
+
+fn strings(v: &[&str]) -> Vec<String> {
+    v.iter().map(|x| x.to_string()).collect()
+}
+
+#[test]
+fn outputs_that_would_replace_an_input_or_a_special_file_are_refused() {
+    let f = Fixtures::new();
+    let map = f.path("map16.fits");
+    let mask = f.path("mask_copy.fits");
+    let cl = f.path("cl.txt");
+    let same = "is the same file as the input";
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        // the same path, another spelling, a symbolic link and a hard link
+        (strings(&["measure", &map, "-o", &map]), same),
+        (
+            strings(&["measure", "map16.fits", "-o", "./map16.fits"]),
+            same,
+        ),
+        (
+            strings(&["measure", &map, "-o", &f.path("../").replace("//", "/")]),
+            "is a directory",
+        ),
+        (
+            strings(&["measure", &map, "-o", &f.path("map_link.fits")]),
+            same,
+        ),
+        (
+            strings(&["measure", &map, "-o", &f.path("map_hard.fits")]),
+            same,
+        ),
+        (strings(&["spectra", &map, "--csv", &map]), same),
+        (
+            strings(&["spectra", &map, "--json", &f.path("map_link.fits")]),
+            same,
+        ),
+        (strings(&["tiles", &map, "--json", &map]), same),
+        (strings(&["tiles", &map, "--png", &map]), same),
+        (strings(&["synthesize", "--target", &map, "-o", &map]), same),
+        (
+            strings(&["measure", &map, "--mask", &mask, "-o", &mask]),
+            "the input --mask",
+        ),
+        (
+            strings(&["sky", "--nside", "8", "--spectrum", &cl, "-o", &cl]),
+            "the input --spectrum",
+        ),
+        (strings(&["plot", "flat-bias", &cl, "-o", &cl]), same),
+        // two outputs onto one file
+        (
+            strings(&[
+                "tiles",
+                &map,
+                "--json",
+                &f.path("plan.out"),
+                "--png",
+                "./plan.out",
+            ]),
+            "name the same output file",
+        ),
+        // special files as outputs: replaced by a regular file if written
+        (
+            strings(&["measure", &map, "-o", "/dev/null"]),
+            "exists and is a character device, not a regular file",
+        ),
+        (
+            strings(&["measure", &map, "-o", &f.path("pipe")]),
+            "exists and is a FIFO",
+        ),
+        (
+            strings(&["sky", "--nside", "8", "-o", &f.path("pipe")]),
+            "exists and is a FIFO",
+        ),
+        // an output directory that is a file
+        (
+            strings(&["demo", "-o", &map]),
+            "already exists and is a regular file, not a directory",
+        ),
+        (
+            strings(&["ensemble", "-o", &map, "--maps", &map]),
+            "already exists and is a regular file, not a directory",
+        ),
+        // a run refused before any work leaves no empty directory behind
+        (
+            strings(&["demo", "--scales", "0", "-o", &f.path("new_demo")]),
+            "--scales must be at least 1",
+        ),
+    ];
+    refuse_all(&f, &cases);
+    assert!(!Path::new(&f.path("new_demo")).exists());
+}
+
+#[test]
+fn outputs_in_a_directory_that_cannot_be_written_are_refused_before_any_work() {
+    // /sys refuses new files even to root (common practice on Linux); the check must come
+    // before the measurement, so a bad mask later on the line is never reached
+    let f = Fixtures::new();
+    let cases: Vec<(Vec<String>, &str)> = vec![(
+        strings(&[
+            "measure",
+            &f.path("map16.fits"),
+            "-o",
+            "/sys/planisphere-output.json",
+            "--mask",
+            &f.path("mask8.fits"),
+        ]),
+        "cannot write in its directory",
+    )];
+    refuse_all(&f, &cases);
+}
+
+#[test]
+fn an_output_through_a_symbolic_link_rewrites_the_target_and_keeps_the_link() {
+    let f = Fixtures::new();
+    let target = f.path("sky_target.fits");
+    std::fs::write(&target, "old contents").unwrap();
+    let link = f.path("sky_link.fits");
+    std::os::unix::fs::symlink(&target, &link).unwrap();
+    let (code, stderr) = run(
+        &strings(&["sky", "--nside", "8", "-o", &link]),
+        f.dir.path(),
+    );
+    assert_eq!(code, Some(0), "{stderr}");
+    assert!(std::fs::symlink_metadata(&link)
+        .unwrap()
+        .file_type()
+        .is_symlink());
+    let (map, _) = planisphere::fits_io::read_map(
+        Path::new(&target),
+        &planisphere::fits_io::ColumnChoice::default(),
+    )
+    .unwrap();
+    assert_eq!(map.nside(), 8);
+}
+
+#[test]
+fn special_files_given_as_inputs_are_refused_without_blocking() {
+    // a FIFO with no writer blocks any reader forever: each of these would hang
+    let f = Fixtures::new();
+    let map = f.path("map16.fits");
+    let pipe = f.path("pipe");
+    let out = f.path("out.json");
+    let words = "is a FIFO (named pipe), not a regular file";
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        (strings(&["inspect", &pipe]), words),
+        (strings(&["measure", &pipe, "-o", &out]), words),
+        (
+            strings(&["measure", &map, "--mask", &pipe, "-o", &out]),
+            words,
+        ),
+        (
+            strings(&["measure", &map, "--settings", &pipe, "-o", &out]),
+            words,
+        ),
+        (
+            strings(&["measure", &map, "--cross", &pipe, "-o", &out]),
+            words,
+        ),
+        (strings(&["spectra", &map, "--mask", &pipe]), words),
+        (strings(&["tiles", &map, "--mask", &pipe]), words),
+        (
+            strings(&[
+                "sky",
+                "--nside",
+                "8",
+                "--spectrum",
+                &pipe,
+                "-o",
+                &f.path("s.fits"),
+            ]),
+            words,
+        ),
+        (
+            strings(&["ensemble", "-o", &f.path("e_pipe"), "--simulate", &pipe]),
+            words,
+        ),
+        (
+            strings(&["ensemble", "-o", &f.path("e_pipe2"), "--map-list", &pipe]),
+            words,
+        ),
+        (
+            strings(&["ensemble", "-o", &f.path("e_pipe3"), "--maps", &pipe]),
+            words,
+        ),
+        (
+            strings(&["synthesize", "--target", &pipe, "-o", &f.path("x.fits")]),
+            words,
+        ),
+        (strings(&["forecast", "--plan", &pipe, "-o", &out]), words),
+        (
+            strings(&["plot", "flat-bias", &pipe, "-o", &f.path("b.png")]),
+            words,
+        ),
+        (
+            strings(&["compare-flat", "--spectrum", &pipe, "-o", &f.path("cf.csv")]),
+            words,
+        ),
+    ];
+    refuse_all(&f, &cases);
 }

@@ -79,7 +79,7 @@ fn default_seed() -> u64 {
 impl RecipeFile {
     /// Reads a recipe file (paths inside it are relative to the file).
     pub fn read(path: &Path) -> Result<RecipeFile> {
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        let text = crate::files::read_text(path)?;
         let mut r: RecipeFile = toml::from_str(&text).map_err(|e| {
             Error::io(
                 path,

@@ -371,7 +371,7 @@ struct PlanDerivative {
 }
 
 fn read_plan(path: &Path) -> Result<PlanFile> {
-    let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+    let text = crate::files::read_text(path)?;
     let mut plan: PlanFile = toml::from_str(&text).map_err(|e| {
         Error::io(
             path,

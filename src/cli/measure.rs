@@ -95,7 +95,7 @@ struct SettingsFile {
 }
 
 fn read_settings_file(path: &Path) -> Result<SettingsFile> {
-    let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+    let text = crate::files::read_text(path)?;
     toml::from_str(&text).map_err(|e| {
         let msg = e.message().replace('\n', " ");
         Error::io(path, format!("bad settings: {msg}"))

@@ -141,16 +141,18 @@ pub fn recipe(args: &SkyArgs) -> Result<SkyRecipe> {
     })
 }
 
+/// The output paths of every sky of a run (after checking the index range).
+pub fn output_paths(args: &SkyArgs) -> Result<Vec<PathBuf>> {
+    (0..args.count)
+        .map(|i| indexed_path(&args.output, args.first_index + i, args.count))
+        .collect()
+}
+
 /// Makes and writes the skies.
 pub fn run(args: &SkyArgs) -> Result<()> {
     let recipe = recipe(args)?;
-    // check every output path before any work
-    let paths: Vec<PathBuf> = (0..args.count)
-        .map(|i| indexed_path(&args.output, args.first_index + i, args.count))
-        .collect::<Result<_>>()?;
-    for p in &paths {
-        super::output::check_output_path(p)?;
-    }
+    // every output path is checked before any work (see `cli::output::command_files`)
+    let paths = output_paths(args)?;
     let sht = recipe.transform()?;
     let options = WriteOptions {
         precision: if args.float32 {

@@ -63,9 +63,6 @@ pub fn run(args: &SpectraArgs) -> Result<()> {
             args.bin_width
         )));
     }
-    for p in args.csv.iter().chain(args.json.iter()) {
-        super::output::check_output_path(p)?;
-    }
     let map = load_map(&args.map, &args.column)?;
     let other = match &args.cross {
         Some(p) => Some(load_map(p, &args.column)?),

@@ -134,7 +134,8 @@ fn read_target(path: &Path) -> Result<Target> {
         .unwrap_or_default();
     match extension.as_str() {
         "npy" => {
-            if !path.is_file() {
+            crate::files::require_regular_input(path)?;
+            if !path.exists() {
                 return Err(Error::io(path, "no such file"));
             }
             let array: Array2<f64> = ndarray_npy::read_npy(path)
@@ -157,9 +158,7 @@ fn read_target(path: &Path) -> Result<Target> {
                 values: array.iter().copied().collect(),
             })
         }
-        "json" => std::fs::read_to_string(path)
-            .map(Target::Coefficients)
-            .map_err(|e| Error::io(path, e)),
+        "json" => crate::files::read_text(path).map(Target::Coefficients),
         _ => Err(Error::io(
             path,
             "the target must be a .npy flat map or a .json coefficient file",
@@ -555,8 +554,7 @@ fn run_sphere(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
     let target = match &target_map {
         Some(map) => synthesis.target_from_map(map)?,
         None => {
-            let text =
-                std::fs::read_to_string(&args.target).map_err(|e| Error::io(&args.target, e))?;
+            let text = crate::files::read_text(&args.target)?;
             let c = coefficients_from_json(&text, args.scales, args.orientations)
                 .map_err(|e| Error::io(&args.target, e))?;
             synthesis.target_from_coefficients(&c)?
