@@ -17,6 +17,7 @@ pub mod flat_comparison;
 pub mod footprint;
 pub mod forecast;
 pub mod harmonics;
+pub mod limits;
 pub mod measurement;
 pub mod pixelization;
 pub mod plotting;

@@ -403,7 +403,10 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
             s(&["sky", "-o", &f.path("s.fits"), "--shape-noise", "0.26"]),
             "--shape-noise expects",
         ),
-        (s(&["spectra", &map, "--lmax", "1000"]), "beyond 4·NSIDE"),
+        (
+            s(&["spectra", &map, "--lmax", "1000"]),
+            "--lmax 1000 is above 3·NSIDE − 1 = 47",
+        ),
         (
             s(&["spectra", &map, "--bin-width", "0"]),
             "--bin-width must be from 1",
@@ -912,4 +915,140 @@ fn special_files_given_as_inputs_are_refused_without_blocking() {
         ),
     ];
     refuse_all(&f, &cases);
+}
+
+#[test]
+fn sizes_and_counts_beyond_their_limits_are_refused_with_the_limit() {
+    let f = Fixtures::new();
+    let map = f.path("map16.fits");
+    let sky = f.path("s{index}.fits");
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        (
+            strings(&["sky", "--nside", "16", "--lmax", "10000000000", "-o", &sky]),
+            "--lmax 10000000000 is above 3·NSIDE − 1 = 47",
+        ),
+        (
+            strings(&[
+                "ensemble",
+                "-o",
+                &f.path("e_lmax"),
+                "--simulate",
+                &f.path("huge_lmax.toml"),
+            ]),
+            "recipe lmax 1000000000 is above 3·NSIDE − 1 = 47",
+        ),
+        (
+            strings(&["sky", "--nside", "16", "--count", "1000000000", "-o", &sky]),
+            "--count must be from 1 to 1000000, got 1000000000",
+        ),
+        (
+            strings(&[
+                "sky",
+                "--nside",
+                "16",
+                "--first-index",
+                "18446744073709551615",
+                "--count",
+                "2",
+                "-o",
+                &sky,
+            ]),
+            "goes past the largest sky index 999999",
+        ),
+        (
+            strings(&[
+                "measure",
+                &map,
+                "-o",
+                &f.path("m.json"),
+                "-L",
+                "1000",
+                "-J",
+                "2",
+                "--tile-pixels",
+                "16",
+                "--border-pixels",
+                "2",
+            ]),
+            "L = 1000 orientations is more than a 16-pixel grid can tell apart: at most 18",
+        ),
+        (
+            strings(&["spectra", &map, "--iterations", "1000000000"]),
+            "--iterations 1000000000 is more than 100",
+        ),
+        (
+            strings(&[
+                "compare-flat",
+                "--skies",
+                "1000000000",
+                "-o",
+                &f.path("cf.csv"),
+            ]),
+            "--skies must be from 1 to 1000000",
+        ),
+        (
+            strings(&[
+                "synthesize",
+                "--target",
+                &f.path("coefficients.json"),
+                "--size",
+                "1048576",
+                "-o",
+                &f.path("x.npy"),
+            ]),
+            "a flat synthesis of 1048576 × 1048576 pixels",
+        ),
+        (
+            strings(&[
+                "synthesize",
+                "--target",
+                &f.path("coefficients.json"),
+                "--size",
+                "1000",
+                "-o",
+                &f.path("x.npy"),
+            ]),
+            "--size must be a power of two",
+        ),
+    ];
+    refuse_all(&f, &cases);
+}
+
+#[test]
+fn skies_beyond_the_memory_limit_are_refused_with_the_limit() {
+    // under an address-space limit of 2 GB (ulimit -v), a NSIDE 8192 sky (6.4 GB per map) and
+    // a recipe at NSIDE 4096 are refused up front instead of aborting in an allocation
+    let f = Fixtures::new();
+    let bin = env!("CARGO_BIN_EXE_planisphere");
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        (
+            strings(&["sky", "--nside", "8192", "-o", &f.path("big.fits")]),
+            "a NSIDE 8192 sky up to ℓ = 24575 needs about",
+        ),
+        (
+            strings(&[
+                "ensemble",
+                "-o",
+                &f.path("e_big"),
+                "--simulate",
+                &f.path("big_nside.toml"),
+            ]),
+            "a NSIDE 4096 sky up to ℓ = 12287 needs about",
+        ),
+    ];
+    for (args, words) in &cases {
+        let before = snapshot(f.dir.path());
+        let mut line = vec![
+            "-c".to_string(),
+            "ulimit -v 2000000 && exec \"$0\" \"$@\"".to_string(),
+            bin.to_string(),
+        ];
+        line.extend(args.iter().cloned());
+        let (code, stderr) = run_program("sh", &line, f.dir.path());
+        assert_refused(args, code, &stderr, words, &before, f.dir.path());
+        assert!(
+            stderr.contains("address-space limit (ulimit -v)"),
+            "{stderr}"
+        );
+    }
 }

@@ -167,6 +167,8 @@ fn run_in_directory(args: &DemoArgs) -> Result<()> {
             "--fiducial-count must be ≥ 4 and --derivative-count ≥ 2".into(),
         ));
     }
+    crate::limits::check_count("--fiducial-count", args.fiducial_count)?;
+    crate::limits::check_count("--derivative-count", args.derivative_count)?;
     if args.scales == 0 {
         return Err(Error::Setting("--scales must be at least 1".into()));
     }

@@ -102,13 +102,13 @@ impl RecipeFile {
                 self.nside
             )));
         }
-        if self.count == 0 || self.count > 1_000_000 {
-            return Err(Error::Setting(format!(
-                "recipe count must be from 1 to 1000000, got {}",
-                self.count
-            )));
-        }
+        crate::limits::check_count("recipe count", self.count)?;
         let lmax = self.lmax.unwrap_or(3 * self.nside as usize - 1);
+        crate::limits::check_lmax("recipe lmax", lmax, self.nside)?;
+        crate::limits::check_memory(
+            &format!("a NSIDE {} sky up to ℓ = {lmax}", self.nside),
+            crate::limits::sky_bytes(self.nside, lmax),
+        )?;
         let spectrum = match &self.spectrum {
             Some(p) => AngularSpectrum::read_text(p)?,
             None => AngularSpectrum::demo_model(lmax, self.model_variance.unwrap_or(1e-4)),

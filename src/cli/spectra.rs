@@ -63,6 +63,7 @@ pub fn run(args: &SpectraArgs) -> Result<()> {
             args.bin_width
         )));
     }
+    crate::limits::check_harmonic_iterations(args.iterations)?;
     let map = load_map(&args.map, &args.column)?;
     let other = match &args.cross {
         Some(p) => Some(load_map(p, &args.column)?),
@@ -70,12 +71,12 @@ pub fn run(args: &SpectraArgs) -> Result<()> {
     };
     let nside = map.nside() as usize;
     let lmax = args.lmax.unwrap_or(2 * nside);
-    if lmax > 4 * nside {
-        return Err(Error::Setting(format!(
-            "--lmax {lmax} is beyond 4·NSIDE = {} for this map",
-            4 * nside
-        )));
+    if lmax == 0 {
+        return Err(Error::Setting(
+            "--lmax must be at least 1: ℓ = 0 alone is only the map's mean".into(),
+        ));
     }
+    crate::limits::check_lmax("--lmax", lmax, map.nside())?;
     let footprint = args.mask.footprint_for(&map)?;
     let weights = (footprint.f_sky() < 1.0).then_some(&footprint);
     let sht = HarmonicTransform::new(nside, lmax)?;

@@ -359,6 +359,18 @@ fn run_flat(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
             ))
         }
     };
+    if size < 8 || !size.is_power_of_two() {
+        return Err(Error::Setting(format!(
+            "--size must be a power of two of at least 8 pixels, got {size}"
+        )));
+    }
+    crate::limits::check_memory(
+        &format!(
+            "a flat synthesis of {size} × {size} pixels with J = {}, L = {}",
+            args.scales, args.orientations
+        ),
+        crate::limits::flat_synthesis_bytes(size, args.scales, args.orientations),
+    )?;
     let start = match (args.start, &target_input) {
         (Some(StartOption::White), _) | (None, Target::Coefficients(_)) => StartField::White,
         (Some(StartOption::Gaussian), _) | (None, Target::Map { .. }) => StartField::Gaussian,
