@@ -98,6 +98,29 @@ impl Fixtures {
         .unwrap();
         std::fs::write(p("big_nside.toml"), "nside = 4096\ncount = 2\n").unwrap();
         std::fs::create_dir(p("demo_existing")).unwrap();
+        // coordinate systems stated in the headers (HEALPix FITS convention: COORDSYS)
+        let with_sys = |c: &str| WriteOptions {
+            coordsys: Some(c.to_string()),
+            ..WriteOptions::default()
+        };
+        write_map(&p("map16_c.fits"), "SIGNAL", &map, &with_sys("C")).unwrap();
+        write_map(&p("map16_g.fits"), "SIGNAL", &map, &with_sys("G")).unwrap();
+        let north = Footprint::from_fn(pix16, |d| d.theta < 1.2);
+        write_footprint(&p("mask16_g.fits"), "MASK", &north, &with_sys("G")).unwrap();
+        write_footprint(
+            &p("mask16_cel.fits"),
+            "MASK",
+            &north,
+            &with_sys("CELESTIAL"),
+        )
+        .unwrap();
+        write_footprint(
+            &p("mask16_none.fits"),
+            "MASK",
+            &north,
+            &WriteOptions::default(),
+        )
+        .unwrap();
         Fixtures { dir }
     }
 
@@ -1051,4 +1074,135 @@ fn skies_beyond_the_memory_limit_are_refused_with_the_limit() {
             "{stderr}"
         );
     }
+}
+
+/// Fast measurement options for the runs that must succeed.
+const QUICK: [&str; 7] = [
+    "-J",
+    "2",
+    "--tile-pixels",
+    "16",
+    "--border-pixels",
+    "2",
+    "--no-bispectrum",
+];
+
+#[test]
+fn maps_and_masks_in_different_coordinate_systems_are_refused() {
+    let f = Fixtures::new();
+    let map_c = f.path("map16_c.fits");
+    let map_g = f.path("map16_g.fits");
+    let mask_g = f.path("mask16_g.fits");
+    let out = f.path("out.json");
+    let words = "is in equatorial coordinates (COORDSYS 'C') but";
+    let with_quick = |v: &[&str]| {
+        let mut a = strings(v);
+        a.extend(strings(&QUICK));
+        a
+    };
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        (
+            with_quick(&["measure", &map_c, "--mask", &mask_g, "-o", &out]),
+            words,
+        ),
+        (
+            with_quick(&["measure", &map_c, "--cross", &map_g, "-o", &out]),
+            words,
+        ),
+        (
+            with_quick(&[
+                "measure",
+                &map_c,
+                "--cross",
+                &map_c,
+                "--cross-mask",
+                &mask_g,
+                "-o",
+                &out,
+            ]),
+            words,
+        ),
+        (strings(&["spectra", &map_c, "--mask", &mask_g]), words),
+        (strings(&["spectra", &map_c, "--cross", &map_g]), words),
+        (with_quick(&["tiles", &map_c, "--mask", &mask_g]), words),
+        (
+            strings(&[
+                "synthesize",
+                "--target",
+                &map_c,
+                "--mask",
+                &mask_g,
+                "-o",
+                &f.path("x.fits"),
+            ]),
+            words,
+        ),
+        (
+            with_quick(&[
+                "ensemble",
+                "-o",
+                &f.path("e_sys"),
+                "--maps",
+                &map_c,
+                "--mask",
+                &mask_g,
+            ]),
+            "the first map is in equatorial coordinates (COORDSYS 'C') but",
+        ),
+        (
+            with_quick(&[
+                "plot",
+                "tile-map",
+                &map_c,
+                "--mask",
+                &mask_g,
+                "--statistic",
+                "mean",
+                "-o",
+                &f.path("t.png"),
+            ]),
+            words,
+        ),
+    ];
+    refuse_all(&f, &cases);
+}
+
+#[test]
+fn coordinate_systems_that_agree_or_are_unstated_or_overridden_are_measured() {
+    // 'C' and 'CELESTIAL' name one system; a file without COORDSYS is not compared; the
+    // override accepts a stated mismatch
+    let f = Fixtures::new();
+    let map_c = f.path("map16_c.fits");
+    for (mask, extra) in [
+        ("mask16_cel.fits", None),
+        ("mask16_none.fits", None),
+        ("mask16_g.fits", Some("--allow-coordsys-mismatch")),
+    ] {
+        let out = f.path(&format!("{mask}.json"));
+        let mut args = strings(&["measure", &map_c, "--mask", &f.path(mask), "-o", &out]);
+        args.extend(strings(&QUICK));
+        args.extend(extra.map(str::to_string));
+        let (code, stderr) = run(&args, f.dir.path());
+        assert_eq!(code, Some(0), "{args:?}: {stderr}");
+        assert!(Path::new(&out).is_file(), "{args:?}");
+    }
+    let (code, stderr) = run(
+        &strings(&[
+            "measure",
+            &f.path("map16.fits"),
+            "--mask",
+            &f.path("mask16_g.fits"),
+            "-o",
+            &f.path("plain.json"),
+            "-J",
+            "2",
+            "--tile-pixels",
+            "16",
+            "--border-pixels",
+            "2",
+            "--no-bispectrum",
+        ]),
+        f.dir.path(),
+    );
+    assert_eq!(code, Some(0), "a map without COORDSYS: {stderr}");
 }

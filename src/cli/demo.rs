@@ -394,6 +394,7 @@ fn run_in_directory(args: &DemoArgs) -> Result<()> {
             mask_column: crate::fits_io::ColumnChoice::default(),
             taper: TaperKind::C2,
             taper_arcmin,
+            allow_coordsys_mismatch: false,
         },
         options: super::measure::MeasureOptions {
             scales: Some(settings.scales),

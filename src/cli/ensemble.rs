@@ -206,7 +206,14 @@ pub fn ensemble_footprint(
 ) -> Result<Footprint> {
     match (&mask.mask, first_map) {
         (Some(path), _) => {
-            let (fp, _) = read_footprint(path, &mask.mask_column)?;
+            let (fp, header) = read_footprint(path, &mask.mask_column)?;
+            if let Some(map) = first_map {
+                super::inputs::check_same_coordsys(
+                    ("the first map", map.coordsys.as_deref()),
+                    (&path.display().to_string(), header.coordsys.as_deref()),
+                    mask.allow_coordsys_mismatch,
+                )?;
+            }
             if fp.pixelization().nside() != pix.nside() {
                 return Err(Error::Mismatch(format!(
                     "mask NSIDE {} does not match map NSIDE {}",
@@ -216,7 +223,7 @@ pub fn ensemble_footprint(
             }
             mask.taper_footprint(fp.to_ordering(pix.ordering())?)
         }
-        (None, Some(map)) => mask.footprint_for(map),
+        (None, Some(map)) => mask.footprint_for(map, Path::new("the first map")),
         (None, None) => Ok(Footprint::full_sky(pix)),
     }
 }
@@ -300,6 +307,11 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
                     pix.nside()
                 )));
             }
+            super::inputs::check_same_coordsys(
+                ("the first map", first.coordsys.as_deref()),
+                (&source.to_string(), map.coordsys.as_deref()),
+                args.mask.allow_coordsys_mismatch,
+            )?;
             em.measure(&map)
         },
         !args.quiet,

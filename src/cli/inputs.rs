@@ -5,7 +5,7 @@ use crate::error::{Error, Result};
 use crate::fits_io::{read_footprint, read_map, ColumnChoice};
 use crate::footprint::Footprint;
 use crate::skymap::SkyMap;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 /// A mask (or weight map) and how to taper its edges.
 #[derive(Debug, Clone, clap::Args)]
@@ -28,6 +28,47 @@ pub struct MaskArgs {
         allow_negative_numbers = true
     )]
     pub taper_arcmin: f64,
+    /// Use a mask (or second map) whose COORDSYS header names another coordinate system than
+    /// the map's (for a header known to be wrong; the pixels are not rotated).
+    #[arg(long)]
+    pub allow_coordsys_mismatch: bool,
+}
+
+/// The coordinate system a COORDSYS value names, by the HEALPix FITS convention ('G'
+/// galactic, 'E' ecliptic, 'C' or 'Q' equatorial; full words are taken by their first letter).
+fn coordinate_system(value: &str) -> String {
+    let v = value.trim().to_uppercase();
+    match v.chars().next() {
+        Some('G') => "galactic".into(),
+        Some('E') => "ecliptic".into(),
+        Some('C') | Some('Q') => "equatorial".into(),
+        _ => v,
+    }
+}
+
+/// Refuses two files whose COORDSYS headers name different coordinate systems (when both
+/// state one), unless `allow`: a mask in galactic coordinates on an equatorial map cuts the
+/// wrong sky without any other sign.
+pub fn check_same_coordsys(
+    first: (&str, Option<&str>),
+    second: (&str, Option<&str>),
+    allow: bool,
+) -> Result<()> {
+    if allow {
+        return Ok(());
+    }
+    if let ((a, Some(sa)), (b, Some(sb))) = (first, second) {
+        let (ca, cb) = (coordinate_system(sa), coordinate_system(sb));
+        if ca != cb {
+            return Err(Error::Mismatch(format!(
+                "{a} is in {ca} coordinates (COORDSYS '{}') but {b} in {cb} (COORDSYS '{}'): \
+                 bring both to one system, or pass --allow-coordsys-mismatch if a header is wrong",
+                sa.trim(),
+                sb.trim()
+            )));
+        }
+    }
+    Ok(())
 }
 
 /// Reads a map column, reporting a file's warnings (e.g. an assumed ordering) on stderr.
@@ -42,8 +83,9 @@ pub fn load_map(path: &std::path::Path, column: &ColumnChoice) -> Result<SkyMap>
 impl MaskArgs {
     /// The footprint to use with `map`: the mask (or the map's valid pixels), matched to the
     /// map and tapered.
-    pub fn footprint_for(&self, map: &SkyMap) -> Result<Footprint> {
-        let raw = untapered_footprint(map, self.mask.as_deref(), &self.mask_column)?;
+    pub fn footprint_for(&self, map: &SkyMap, map_path: &Path) -> Result<Footprint> {
+        let raw =
+            untapered_footprint(map, map_path, self.mask.as_deref(), self, &self.mask_column)?;
         self.taper_footprint(raw)
     }
 
@@ -67,11 +109,14 @@ impl MaskArgs {
     }
 }
 
-/// The untapered footprint of `map`: the mask file (or the map's valid pixels), brought to the
-/// map's ordering, without the map's bad pixels.
+/// The untapered footprint of `map` (read from `map_path`): the mask file (or the map's valid
+/// pixels), brought to the map's ordering, without the map's bad pixels. A mask whose COORDSYS
+/// differs from the map's is refused unless `options.allow_coordsys_mismatch`.
 pub fn untapered_footprint(
     map: &SkyMap,
-    mask: Option<&std::path::Path>,
+    map_path: &Path,
+    mask: Option<&Path>,
+    options: &MaskArgs,
     column: &ColumnChoice,
 ) -> Result<Footprint> {
     match mask {
@@ -80,6 +125,11 @@ pub fn untapered_footprint(
             for w in &header.warnings {
                 eprintln!("planisphere: warning: {}: {w}", path.display());
             }
+            check_same_coordsys(
+                (&map_path.display().to_string(), map.coordsys.as_deref()),
+                (&path.display().to_string(), header.coordsys.as_deref()),
+                options.allow_coordsys_mismatch,
+            )?;
             fp.restricted_to(map)
         }
         None => Footprint::of_valid_pixels(map).restricted_to(map),

@@ -351,21 +351,37 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
                     other.nside()
                 )));
             }
+            super::inputs::check_same_coordsys(
+                (&args.map.display().to_string(), map.coordsys.as_deref()),
+                (&path.display().to_string(), other.coordsys.as_deref()),
+                args.mask.allow_coordsys_mismatch,
+            )?;
             Some(other.to_ordering(map.ordering())?)
         }
         None => None,
     };
     let footprint = match &other {
-        None => args.mask.footprint_for(&map)?,
+        None => args.mask.footprint_for(&map, &args.map)?,
         Some(other) => {
-            let first =
-                untapered_footprint(&map, args.mask.mask.as_deref(), &args.mask.mask_column)?;
-            let second =
-                untapered_footprint(other, args.cross_mask.as_deref(), &args.cross_mask_column)
-                    .map_err(|e| match e {
-                        Error::Data(m) => Error::Data(format!("second map: {m}")),
-                        e => e,
-                    })?;
+            let first = untapered_footprint(
+                &map,
+                &args.map,
+                args.mask.mask.as_deref(),
+                &args.mask,
+                &args.mask.mask_column,
+            )?;
+            let other_path = args.cross.as_deref().unwrap_or(Path::new("second map"));
+            let second = untapered_footprint(
+                other,
+                other_path,
+                args.cross_mask.as_deref(),
+                &args.mask,
+                &args.cross_mask_column,
+            )
+            .map_err(|e| match e {
+                Error::Data(m) => Error::Data(format!("second map: {m}")),
+                e => e,
+            })?;
             args.mask.taper_footprint(first.intersection(&second)?)?
         }
     };

@@ -1215,7 +1215,7 @@ pub fn run_tile_map(args: &TileMapArgs) -> Result<()> {
     let settings = args.options.settings()?;
     statistic.check(settings.scales, settings.orientations)?;
     let map = load_map(&args.map, &args.column)?;
-    let footprint = args.mask.footprint_for(&map)?;
+    let footprint = args.mask.footprint_for(&map, &args.map)?;
     let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
     let stats = measurer.measure(&map, &footprint)?;
     let tiles: Vec<usize> = if stats.per_tile.len() == measurer.plan().len() {

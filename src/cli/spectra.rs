@@ -66,7 +66,15 @@ pub fn run(args: &SpectraArgs) -> Result<()> {
     crate::limits::check_harmonic_iterations(args.iterations)?;
     let map = load_map(&args.map, &args.column)?;
     let other = match &args.cross {
-        Some(p) => Some(load_map(p, &args.column)?),
+        Some(p) => {
+            let other = load_map(p, &args.column)?;
+            super::inputs::check_same_coordsys(
+                (&args.map.display().to_string(), map.coordsys.as_deref()),
+                (&p.display().to_string(), other.coordsys.as_deref()),
+                args.mask.allow_coordsys_mismatch,
+            )?;
+            Some(other)
+        }
         None => None,
     };
     let nside = map.nside() as usize;
@@ -77,7 +85,7 @@ pub fn run(args: &SpectraArgs) -> Result<()> {
         ));
     }
     crate::limits::check_lmax("--lmax", lmax, map.nside())?;
-    let footprint = args.mask.footprint_for(&map)?;
+    let footprint = args.mask.footprint_for(&map, &args.map)?;
     let weights = (footprint.f_sky() < 1.0).then_some(&footprint);
     let sht = HarmonicTransform::new(nside, lmax)?;
     let s = cross_spectrum(

@@ -310,7 +310,7 @@ pub fn run(args: &SynthesizeArgs) -> Result<()> {
 /// The sampled field of tile `index` of `map` (with the mask options) and its pixel size.
 fn tile_of_sphere_map(args: &SynthesizeArgs, index: usize) -> Result<(usize, Vec<f64>, f64)> {
     let map = load_map(&args.target, &args.column)?;
-    let footprint = args.mask.footprint_for(&map)?;
+    let footprint = args.mask.footprint_for(&map, &args.target)?;
     let settings = measurement_settings(args)?;
     let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
     let plan = measurer.plan();
@@ -438,6 +438,11 @@ fn checked_mask(args: &SynthesizeArgs, map: &SkyMap) -> Result<Option<Footprint>
     for w in &header.warnings {
         eprintln!("planisphere: warning: {}: {w}", path.display());
     }
+    crate::cli::inputs::check_same_coordsys(
+        (&args.target.display().to_string(), map.coordsys.as_deref()),
+        (&path.display().to_string(), header.coordsys.as_deref()),
+        args.mask.allow_coordsys_mismatch,
+    )?;
     if raw.pixelization().nside() != map.nside() {
         return Err(Error::Mismatch(format!(
             "mask NSIDE {} does not match target map NSIDE {}",
