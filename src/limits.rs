@@ -19,6 +19,11 @@
 
 use crate::error::{Error, Result};
 
+/// Largest magnitude of a map value: the statistics take up to third powers of the values
+/// (tile bispectrum) summed over up to ~10⁹ pixels, which must stay below the f64 limit
+/// 1.8e308: (10⁹⁰)³ · 10⁹ = 10²⁷⁹.
+pub const MAX_ABS_VALUE: f64 = 1e90;
+
 /// Largest number of skies of one run, members of one ensemble, or sky index.
 pub const MAX_COUNT: u64 = 1_000_000;
 

@@ -98,6 +98,29 @@ impl Fixtures {
         .unwrap();
         std::fs::write(p("big_nside.toml"), "nside = 4096\ncount = 2\n").unwrap();
         std::fs::create_dir(p("demo_existing")).unwrap();
+        // maps with nothing to measure
+        let constant = SkyMap::from_fn(pix16, |_| 3.0);
+        write_map(
+            &p("constant16.fits"),
+            "SIGNAL",
+            &constant,
+            &WriteOptions::default(),
+        )
+        .unwrap();
+        let mut huge = map.values().to_vec();
+        huge[5] = 1e300;
+        let huge = SkyMap::new(pix16, huge).unwrap();
+        write_map(&p("huge16.fits"), "SIGNAL", &huge, &WriteOptions::default()).unwrap();
+        let mut one = vec![f64::NAN; pix16.npix() as usize];
+        one[100] = 1.0;
+        let one = SkyMap::new(pix16, one).unwrap();
+        write_map(
+            &p("onepixel16.fits"),
+            "SIGNAL",
+            &one,
+            &WriteOptions::default(),
+        )
+        .unwrap();
         // coordinate systems stated in the headers (HEALPix FITS convention: COORDSYS)
         let with_sys = |c: &str| WriteOptions {
             coordsys: Some(c.to_string()),
@@ -281,7 +304,7 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
         ),
         (
             s(&["measure", &f.path("allbad16.fits"), "-o", &out]),
-            "empty",
+            "every pixel is bad (UNSEEN or NaN): nothing to measure",
         ),
         (
             s(&["spectra", &map, "--mask", &f.path("mask8.fits")]),
@@ -1205,4 +1228,62 @@ fn coordinate_systems_that_agree_or_are_unstated_or_overridden_are_measured() {
         f.dir.path(),
     );
     assert_eq!(code, Some(0), "a map without COORDSYS: {stderr}");
+}
+
+#[test]
+fn maps_without_anything_to_measure_are_refused_with_the_reason() {
+    let f = Fixtures::new();
+    let out = f.path("out.json");
+    let constant = f.path("constant16.fits");
+    let huge = f.path("huge16.fits");
+    let one = f.path("onepixel16.fits");
+    let allbad = f.path("allbad16.fits");
+    let flat = "the map has no fluctuations on its footprint (every valid pixel is 3)";
+    let big = "pixel 5 holds 1e300, beyond ±1e90";
+    let single = "only one valid pixel on its footprint";
+    let with_quick = |v: &[&str]| {
+        let mut a = strings(v);
+        a.extend(strings(&QUICK));
+        a
+    };
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        (with_quick(&["measure", &constant, "-o", &out]), flat),
+        (strings(&["spectra", &constant]), flat),
+        (
+            with_quick(&[
+                "measure",
+                &f.path("map16.fits"),
+                "--cross",
+                &constant,
+                "-o",
+                &out,
+            ]),
+            flat,
+        ),
+        (
+            strings(&["spectra", &f.path("map16.fits"), "--cross", &constant]),
+            flat,
+        ),
+        (
+            strings(&["synthesize", "--target", &constant, "-o", &f.path("x.fits")]),
+            flat,
+        ),
+        (
+            with_quick(&["ensemble", "-o", &f.path("e_flat"), "--maps", &constant]),
+            "the map has no fluctuations in the map",
+        ),
+        (with_quick(&["measure", &huge, "-o", &out]), big),
+        (strings(&["spectra", &huge]), big),
+        (with_quick(&["measure", &one, "-o", &out]), single),
+        (strings(&["spectra", &one]), single),
+        (
+            with_quick(&["measure", &allbad, "-o", &out]),
+            "every pixel is bad (UNSEEN or NaN): nothing to measure",
+        ),
+        (
+            strings(&["spectra", &allbad]),
+            "every pixel is bad (UNSEEN or NaN): nothing to measure",
+        ),
+    ];
+    refuse_all(&f, &cases);
 }

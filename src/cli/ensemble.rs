@@ -312,6 +312,9 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
                 (&source.to_string(), map.coordsys.as_deref()),
                 args.mask.allow_coordsys_mismatch,
             )?;
+            if matches!(source, MemberSource::File(_)) {
+                super::inputs::check_measurable(&map, None, &source.to_string())?;
+            }
             em.measure(&map)
         },
         !args.quiet,

@@ -385,6 +385,10 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
             args.mask.taper_footprint(first.intersection(&second)?)?
         }
     };
+    super::inputs::check_measurable(&map, Some(&footprint), &args.map.display().to_string())?;
+    if let (Some(other), Some(path)) = (&other, &args.cross) {
+        super::inputs::check_measurable(other, Some(&footprint), &path.display().to_string())?;
+    }
     let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
     let summary = measurer.summary();
     let taper = serde_json::json!({

@@ -1216,6 +1216,7 @@ pub fn run_tile_map(args: &TileMapArgs) -> Result<()> {
     statistic.check(settings.scales, settings.orientations)?;
     let map = load_map(&args.map, &args.column)?;
     let footprint = args.mask.footprint_for(&map, &args.map)?;
+    super::inputs::check_measurable(&map, Some(&footprint), &args.map.display().to_string())?;
     let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
     let stats = measurer.measure(&map, &footprint)?;
     let tiles: Vec<usize> = if stats.per_tile.len() == measurer.plan().len() {

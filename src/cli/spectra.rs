@@ -86,6 +86,10 @@ pub fn run(args: &SpectraArgs) -> Result<()> {
     }
     crate::limits::check_lmax("--lmax", lmax, map.nside())?;
     let footprint = args.mask.footprint_for(&map, &args.map)?;
+    super::inputs::check_measurable(&map, Some(&footprint), &args.map.display().to_string())?;
+    if let (Some(other), Some(path)) = (&other, &args.cross) {
+        super::inputs::check_measurable(other, Some(&footprint), &path.display().to_string())?;
+    }
     let weights = (footprint.f_sky() < 1.0).then_some(&footprint);
     let sht = HarmonicTransform::new(nside, lmax)?;
     let s = cross_spectrum(

@@ -539,6 +539,11 @@ fn run_sphere(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
                 None => Footprint::of_valid_pixels(&map).restricted_to(&map)?,
             };
             let footprint = args.mask.taper_footprint(raw)?;
+            crate::cli::inputs::check_measurable(
+                &map,
+                Some(&footprint),
+                &args.target.display().to_string(),
+            )?;
             (Some(map), footprint)
         }
         "json" => {
