@@ -82,14 +82,21 @@ impl Shard {
     }
 
     /// The shard from the values of SLURM_ARRAY_TASK_ID, _COUNT and _MIN (see
-    /// [`Shard::from_slurm_env`]); `None` unless both ID and COUNT are given.
+    /// [`Shard::from_slurm_env`]); `None` without ID, an error for an ID without COUNT (every
+    /// array task would measure the whole ensemble).
     pub fn from_slurm_values(
         id: Option<&str>,
         count: Option<&str>,
         min: Option<&str>,
     ) -> Result<Option<Shard>> {
-        let (Some(id), Some(count)) = (id, count) else {
-            return Ok(None);
+        let (id, count) = match (id, count) {
+            (Some(id), Some(count)) => (id, count),
+            (Some(id), None) => {
+                return Err(Error::Setting(format!(
+                    "SLURM_ARRAY_TASK_ID={id} is set but SLURM_ARRAY_TASK_COUNT is not: the number of shards is unknown; give --shard INDEX/COUNT"
+                )))
+            }
+            _ => return Ok(None),
         };
         let parse = |name: &str, v: &str| {
             v.trim().parse::<usize>().map_err(|_| {
@@ -199,17 +206,34 @@ pub fn members_from_list(list: &Path) -> Result<Vec<MemberSource>> {
     let text = crate::files::read_text(list)?;
     let base = list.parent().unwrap_or(Path::new(""));
     let mut out = Vec::new();
-    for line in text.lines() {
+    // each file once: a map listed twice (under any name) would enter the covariance twice
+    let mut seen: Vec<(_, usize, PathBuf)> = Vec::new();
+    for (k, line) in text.lines().enumerate() {
         let line = line.split('#').next().unwrap_or("").trim();
         if line.is_empty() {
             continue;
         }
         let p = Path::new(line);
-        out.push(MemberSource::File(if p.is_absolute() {
+        let path = if p.is_absolute() {
             p.to_path_buf()
         } else {
             base.join(p)
-        }));
+        };
+        if let Some(id) = crate::files::file_identity(&path) {
+            if let Some((_, first, first_path)) = seen.iter().find(|(i, _, _)| *i == id) {
+                return Err(Error::io(
+                    list,
+                    format!(
+                        "lines {first} and {} name the same file ({} and {}): each map may be listed once",
+                        k + 1,
+                        first_path.display(),
+                        path.display()
+                    ),
+                ));
+            }
+            seen.push((id, k + 1, path.clone()));
+        }
+        out.push(MemberSource::File(path));
     }
     if out.is_empty() {
         return Err(Error::io(list, "the map list names no files"));

@@ -154,11 +154,27 @@ impl Fixtures {
 
 /// Runs `program args` in `cwd`, killing it after [`HANG_LIMIT`]; returns (exit code, stderr).
 fn run_program(program: &str, args: &[String], cwd: &Path) -> (Option<i32>, String) {
-    let mut child = Command::new(program)
+    run_program_with(program, args, cwd, &[])
+}
+
+/// As [`run_program`], with environment variables `env` set.
+fn run_program_with(
+    program: &str,
+    args: &[String],
+    cwd: &Path,
+    env: &[(&str, &str)],
+) -> (Option<i32>, String) {
+    let mut command = Command::new(program);
+    command
         .args(args)
         .current_dir(cwd)
         .env_remove("SLURM_ARRAY_TASK_ID")
         .env_remove("SLURM_ARRAY_TASK_COUNT")
+        .env_remove("SLURM_ARRAY_TASK_MIN");
+    for (k, v) in env {
+        command.env(k, v);
+    }
+    let mut child = command
         .stdin(Stdio::null())
         .stdout(Stdio::null())
         .stderr(Stdio::piped())
@@ -580,7 +596,7 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
                 "-o",
                 &out,
             ]),
-            "ensemble.json",
+            "--derivative expects NAME,STEP,PLUS_DIR,MINUS_DIR",
         ),
         // unwritable outputs
         (
@@ -1286,4 +1302,101 @@ fn maps_without_anything_to_measure_are_refused_with_the_reason() {
         ),
     ];
     refuse_all(&f, &cases);
+}
+
+#[test]
+fn option_and_file_mistakes_are_named_precisely() {
+    let f = Fixtures::new();
+    let map = f.path("map16.fits");
+    let out = f.path("out.json");
+    let write = |name: &str, text: &str| {
+        std::fs::write(f.dir.path().join(name), text).unwrap();
+        f.path(name)
+    };
+    let settings = write("typed.toml", "scales = 3\norientations = \"four\"\n");
+    let recipe = write("negative.toml", "nside = 16\ncount = -2\n");
+    let plan = write("plan.toml", "paired = true\n\n[[case]]\nname = 3\n");
+    let list = write(
+        "twice.txt",
+        "map16.fits\n# the same map again\n./map_link.fits\n",
+    );
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        (
+            strings(&["measure", &map, "-o", &out, "--settings", &settings]),
+            "bad settings: line 2, key `orientations`: invalid type: string \"four\"",
+        ),
+        (
+            strings(&["ensemble", "-o", &f.path("e_neg"), "--simulate", &recipe]),
+            "bad recipe: line 2, key `count`: invalid value: integer `-2`",
+        ),
+        (
+            strings(&["forecast", "--plan", &plan, "-o", &out]),
+            "not a forecast plan: line 4, key `name`",
+        ),
+        (
+            strings(&["ensemble", "-o", &f.path("e_twice"), "--map-list", &list]),
+            "lines 1 and 3 name the same file",
+        ),
+        (
+            strings(&[
+                "forecast",
+                "--fiducial",
+                &f.path("not_an_ensemble"),
+                "--derivative",
+                "a,0.1,x,y",
+                "--derivative",
+                "a,0.2,x,y",
+                "-o",
+                &out,
+            ]),
+            "--derivative names parameter 'a' twice",
+        ),
+        (
+            strings(&[
+                "forecast",
+                "--fiducial",
+                &f.path("not_an_ensemble"),
+                "--derivative",
+                "a,0.1,x,y",
+                "--scale-min-arcmin",
+                "-5",
+                "-o",
+                &out,
+            ]),
+            "cannot be negative, got -5",
+        ),
+        (
+            strings(&["spectra", &map, "--lmax", "0"]),
+            "--lmax must be at least 1",
+        ),
+    ];
+    refuse_all(&f, &cases);
+}
+
+#[test]
+fn an_array_task_id_without_a_task_count_is_refused() {
+    // without the count every array task would measure the whole ensemble
+    let f = Fixtures::new();
+    let args = strings(&[
+        "ensemble",
+        "-o",
+        &f.path("e_slurm"),
+        "--maps",
+        &f.path("map16.fits"),
+    ]);
+    let before = snapshot(f.dir.path());
+    let (code, stderr) = run_program_with(
+        env!("CARGO_BIN_EXE_planisphere"),
+        &args,
+        f.dir.path(),
+        &[("SLURM_ARRAY_TASK_ID", "3")],
+    );
+    assert_refused(
+        &args,
+        code,
+        &stderr,
+        "SLURM_ARRAY_TASK_ID=3 is set but SLURM_ARRAY_TASK_COUNT is not",
+        &before,
+        f.dir.path(),
+    );
 }

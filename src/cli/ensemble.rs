@@ -80,12 +80,8 @@ impl RecipeFile {
     /// Reads a recipe file (paths inside it are relative to the file).
     pub fn read(path: &Path) -> Result<RecipeFile> {
         let text = crate::files::read_text(path)?;
-        let mut r: RecipeFile = toml::from_str(&text).map_err(|e| {
-            Error::io(
-                path,
-                format!("bad recipe: {}", e.message().replace('\n', " ")),
-            )
-        })?;
+        let mut r: RecipeFile = toml::from_str(&text)
+            .map_err(|e| super::inputs::toml_error(path, &text, &e, "bad recipe"))?;
         if let Some(s) = &r.spectrum {
             if s.is_relative() {
                 r.spectrum = Some(path.parent().unwrap_or(Path::new("")).join(s));

@@ -71,6 +71,30 @@ pub fn check_same_coordsys(
     Ok(())
 }
 
+/// A TOML file's parse error as one line: `{path}: {what}: line N, key `K`: reason` (line and
+/// key from the error's position in `text`, when it has one).
+pub fn toml_error(path: &Path, text: &str, e: &toml::de::Error, what: &str) -> Error {
+    let reason = e.message().split_whitespace().collect::<Vec<_>>().join(" ");
+    let place = e.span().map(|span| {
+        let start = span.start.min(text.len());
+        let line_start = text[..start].rfind('\n').map_or(0, |i| i + 1);
+        let line_no = text[..start].matches('\n').count() + 1;
+        let line = text[line_start..].lines().next().unwrap_or("");
+        let key = line
+            .split_once('=')
+            .map(|(k, _)| k.trim().trim_matches('"').to_string())
+            .filter(|k| !k.is_empty() && !k.starts_with('['));
+        match key {
+            Some(k) => format!("line {line_no}, key `{k}`"),
+            None => format!("line {line_no}"),
+        }
+    });
+    match place {
+        Some(p) => Error::io(path, format!("{what}: {p}: {reason}")),
+        None => Error::io(path, format!("{what}: {reason}")),
+    }
+}
+
 /// Checks that `map` (named `label` in messages) has something to measure on `footprint`
 /// (pixels of positive weight; all valid pixels without one): values within
 /// ±[`crate::limits::MAX_ABS_VALUE`], more than one valid pixel, and not all equal (a map

@@ -96,10 +96,7 @@ struct SettingsFile {
 
 fn read_settings_file(path: &Path) -> Result<SettingsFile> {
     let text = crate::files::read_text(path)?;
-    toml::from_str(&text).map_err(|e| {
-        let msg = e.message().replace('\n', " ");
-        Error::io(path, format!("bad settings: {msg}"))
-    })
+    toml::from_str(&text).map_err(|e| super::inputs::toml_error(path, &text, &e, "bad settings"))
 }
 
 impl MeasureOptions {
