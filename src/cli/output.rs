@@ -77,7 +77,11 @@ impl CommandFiles {
             .filter_map(|(_, option, path)| file_identity(path).map(|id| (id, option, path)))
             .collect();
         let outputs: Vec<_> = self.of(Role::OutputFile).collect();
-        for (k, (_, option, path)) in outputs.iter().enumerate() {
+        // where each output lands, to find one named twice (a map, so that a million skies
+        // are checked in linear time)
+        let mut landing: std::collections::HashMap<PathBuf, (&str, &Path)> =
+            std::collections::HashMap::new();
+        for (_, option, path) in outputs.iter() {
             check_output_path(path)?;
             if let Some(id) = file_identity(path) {
                 if let Some((_, in_option, in_path)) = inputs.iter().find(|(i, _, _)| *i == id) {
@@ -89,10 +93,8 @@ impl CommandFiles {
                     )));
                 }
             }
-            let here = output_location(path);
-            if let Some((_, other_option, other)) = outputs[..k]
-                .iter()
-                .find(|(_, _, p)| output_location(p) == here)
+            if let Some((other_option, other)) =
+                landing.insert(output_location(path), (option, path))
             {
                 return Err(Error::Setting(format!(
                     "{option} {} and {other_option} {} name the same output file; give each output its own path",
@@ -125,8 +127,12 @@ impl CommandFiles {
                 }
             }
         }
+        // one probe file per directory
+        let mut probed = std::collections::HashSet::new();
         for (_, _, path) in outputs {
-            check_directory_writable(path)?;
+            if probed.insert(output_location(path).parent().map(Path::to_path_buf)) {
+                check_directory_writable(path)?;
+            }
         }
         Ok(())
     }
