@@ -15,8 +15,8 @@
 //! Member i belongs to shard k of K when i mod K = k; on a SLURM cluster the shard is taken from
 //! `SLURM_ARRAY_TASK_ID` and `SLURM_ARRAY_TASK_COUNT` when none is given.
 
-use crate::cli::output::{write_atomically, write_bytes, write_json};
 use crate::error::{Error, Result};
+use crate::files::{write_atomically, write_bytes, write_json};
 use ndarray::Array2;
 use rayon::prelude::*;
 use sha2::{Digest, Sha256};
@@ -82,14 +82,21 @@ impl Shard {
     }
 
     /// The shard from the values of SLURM_ARRAY_TASK_ID, _COUNT and _MIN (see
-    /// [`Shard::from_slurm_env`]); `None` unless both ID and COUNT are given.
+    /// [`Shard::from_slurm_env`]); `None` without ID, an error for an ID without COUNT (every
+    /// array task would measure the whole ensemble).
     pub fn from_slurm_values(
         id: Option<&str>,
         count: Option<&str>,
         min: Option<&str>,
     ) -> Result<Option<Shard>> {
-        let (Some(id), Some(count)) = (id, count) else {
-            return Ok(None);
+        let (id, count) = match (id, count) {
+            (Some(id), Some(count)) => (id, count),
+            (Some(id), None) => {
+                return Err(Error::Setting(format!(
+                    "SLURM_ARRAY_TASK_ID={id} is set but SLURM_ARRAY_TASK_COUNT is not: the number of shards is unknown; give --shard INDEX/COUNT"
+                )))
+            }
+            _ => return Ok(None),
         };
         let parse = |name: &str, v: &str| {
             v.trim().parse::<usize>().map_err(|_| {
@@ -180,6 +187,7 @@ impl MergedTable {
 
 /// SHA-256 of a file, hex encoded.
 pub fn file_checksum(path: &Path) -> Result<String> {
+    crate::files::require_regular_input(path)?;
     let mut f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
     let mut h = Sha256::new();
     let mut buf = vec![0u8; 1 << 20];
@@ -195,20 +203,37 @@ pub fn file_checksum(path: &Path) -> Result<String> {
 
 /// Members from a list file (one path per line, relative to the list's directory; `#` comments).
 pub fn members_from_list(list: &Path) -> Result<Vec<MemberSource>> {
-    let text = std::fs::read_to_string(list).map_err(|e| Error::io(list, e))?;
+    let text = crate::files::read_text(list)?;
     let base = list.parent().unwrap_or(Path::new(""));
     let mut out = Vec::new();
-    for line in text.lines() {
+    // each file once: a map listed twice (under any name) would enter the covariance twice
+    let mut seen: Vec<(_, usize, PathBuf)> = Vec::new();
+    for (k, line) in text.lines().enumerate() {
         let line = line.split('#').next().unwrap_or("").trim();
         if line.is_empty() {
             continue;
         }
         let p = Path::new(line);
-        out.push(MemberSource::File(if p.is_absolute() {
+        let path = if p.is_absolute() {
             p.to_path_buf()
         } else {
             base.join(p)
-        }));
+        };
+        if let Some(id) = crate::files::file_identity(&path) {
+            if let Some((_, first, first_path)) = seen.iter().find(|(i, _, _)| *i == id) {
+                return Err(Error::io(
+                    list,
+                    format!(
+                        "lines {first} and {} name the same file ({} and {}): each map may be listed once",
+                        k + 1,
+                        first_path.display(),
+                        path.display()
+                    ),
+                ));
+            }
+            seen.push((id, k + 1, path.clone()));
+        }
+        out.push(MemberSource::File(path));
     }
     if out.is_empty() {
         return Err(Error::io(list, "the map list names no files"));
@@ -220,10 +245,12 @@ pub fn members_from_list(list: &Path) -> Result<Vec<MemberSource>> {
 pub fn members_from_glob(pattern: &str) -> Result<Vec<MemberSource>> {
     let paths = glob::glob(pattern)
         .map_err(|e| Error::Setting(format!("bad file pattern '{pattern}': {e}")))?;
+    // directories are skipped; a FIFO, device or socket is refused (reading it would block)
     let mut files: Vec<PathBuf> = paths
         .filter_map(|p| p.ok())
-        .filter(|p| p.is_file())
-        .collect();
+        .filter(|p| !p.is_dir())
+        .map(|p| crate::files::require_regular_input(&p).map(|()| p))
+        .collect::<Result<_>>()?;
     files.sort();
     if files.is_empty() {
         return Err(Error::Setting(format!("no files match '{pattern}'")));
@@ -273,7 +300,7 @@ impl EnsembleJob {
 
     fn read_description(dir: &Path) -> Result<EnsembleDescription> {
         let path = dir.join("ensemble.json");
-        let text = std::fs::read_to_string(&path).map_err(|e| Error::io(&path, e))?;
+        let text = crate::files::read_text(&path)?;
         serde_json::from_str(&text)
             .map_err(|e| Error::io(&path, format!("not an ensemble description: {e}")))
     }
@@ -414,7 +441,7 @@ impl EnsembleJob {
 
 fn read_row(dir: &Path, i: usize) -> Result<Row> {
     let path = row_path(dir, i);
-    let text = std::fs::read_to_string(&path).map_err(|e| Error::io(&path, e))?;
+    let text = crate::files::read_text(&path)?;
     serde_json::from_str(&text).map_err(|e| Error::io(&path, e))
 }
 

@@ -155,6 +155,7 @@ impl MorletBank {
                 "number of orientations L must be at least 1, got 0".into(),
             ));
         }
+        crate::limits::check_orientations(orientation_count, size)?;
         let slant = 4.0 / orientation_count as f64;
         let mut wavelets = Vec::with_capacity(scale_count * orientation_count);
         let mut squared_moduli = Vec::with_capacity(scale_count * orientation_count);

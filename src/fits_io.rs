@@ -10,6 +10,7 @@
 //!
 //! Bad pixels are stored as UNSEEN = −1.6375e30 (or NaN); on reading they become invalid pixels
 //! of the [`SkyMap`], on writing invalid pixels are stored as UNSEEN.
+//! A `BAD_DATA` keyword in the table header names one more bad-pixel value, honoured on reading.
 //!
 //! The files are read and written through cfitsio (the C library inside the `fitsio` crate),
 //! called directly: the `fitsio` crate's own wrappers panic on some legal or malformed tables
@@ -21,8 +22,8 @@
 //! length must equal 12·NSIDE² (full sky) or be at most that (partial sky), the file must really
 //! hold the bytes its header declares, and maps read into memory have NSIDE ≤ [`MAX_READ_NSIDE`].
 
-use crate::cli::output::write_atomically;
 use crate::error::{Error, Result};
+use crate::files::write_atomically;
 use crate::footprint::Footprint;
 use crate::pixelization::{npix_of, Ordering, Pixelization};
 use crate::skymap::{SkyMap, UNSEEN};
@@ -150,6 +151,9 @@ pub struct HealpixHeader {
     pub coverage: Coverage,
     /// `COORDSYS`, when present.
     pub coordsys: Option<String>,
+    /// `BAD_DATA`, when present: a value marking bad pixels besides UNSEEN and NaN (HEALPix
+    /// FITS convention).
+    pub bad_data: Option<f64>,
     /// The value columns, in file order (the PIXEL column of a partial-sky file excluded).
     pub columns: Vec<ColumnInfo>,
     /// Things the reader assumed or ignored, one sentence each.
@@ -286,8 +290,23 @@ impl HealpixFitsReader {
             .map_err(|e| Error::fits(&self.header.path, e.to_string()))
     }
 
-    /// The full-sky values of one column, in the file's ordering, NaN where there is no value.
+    /// The full-sky values of one column, in the file's ordering, NaN where there is no value
+    /// or where the value is the header's `BAD_DATA` (to a relative 1e-6, so that a float32
+    /// column matches a float64 keyword).
     fn read_values(&mut self, column: &ColumnChoice) -> Result<Vec<f64>> {
+        let mut values = self.read_stored_values(column)?;
+        if let Some(bad) = self.header.bad_data {
+            for v in values.iter_mut() {
+                if (*v - bad).abs() <= 1e-6 * bad.abs() {
+                    *v = f64::NAN;
+                }
+            }
+        }
+        Ok(values)
+    }
+
+    /// The full-sky values of one column as stored, NaN where there is no value.
+    fn read_stored_values(&mut self, column: &ColumnChoice) -> Result<Vec<f64>> {
         let position = self.header.column_position(column)?;
         let path = self.header.path.clone();
         let info = self.header.columns[position].clone();
@@ -737,6 +756,7 @@ fn check_file_start(path: &Path) -> Result<u64> {
     if meta.is_dir() {
         return Err(Error::io(path, "is a directory, not a FITS file"));
     }
+    crate::files::require_regular_input(path)?;
     let mut start = [0u8; 9];
     let mut f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
     let mut got = 0;
@@ -960,6 +980,21 @@ fn parse_header(
         }
     }
     let coordsys = text_key(file, "COORDSYS")?;
+    let bad_data = match file.key(path, "BAD_DATA")? {
+        None => None,
+        Some(raw) => {
+            let text = unquote(&raw).replace(['D', 'd'], "E");
+            match text.trim().parse::<f64>() {
+                Ok(v) if v.is_finite() => Some(v),
+                _ => {
+                    return Err(Error::fits(
+                        path,
+                        format!("BAD_DATA = {} is not a finite number", raw.trim()),
+                    ))
+                }
+            }
+        }
+    };
 
     // Columns.
     let ncols = file.num_cols(path)?;
@@ -1179,6 +1214,7 @@ fn parse_header(
         ordering,
         coverage,
         coordsys,
+        bad_data,
         columns,
         warnings,
         rows,

@@ -10,8 +10,8 @@
 //! left, as the sky is seen from inside the sphere (common practice for sky maps), with the
 //! chosen central longitude in the middle.
 
-use crate::cli::output::write_atomically;
 use crate::error::{Error, Result};
+use crate::files::write_atomically;
 use crate::pixelization::Direction;
 use plotters::prelude::*;
 use plotters::style::FontStyle;

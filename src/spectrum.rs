@@ -22,7 +22,7 @@ impl AngularSpectrum {
     /// increasing; missing ℓ are filled by linear interpolation in ℓ and ℓ below the first row
     /// get C_ℓ = 0. Negative or non-finite C_ℓ are errors.
     pub fn read_text(path: &Path) -> Result<Self> {
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        let text = crate::files::read_text(path)?;
         Self::parse_text(&text).map_err(|e| Error::io(path, e))
     }
 

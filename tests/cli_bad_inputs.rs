@@ -1,10 +1,18 @@
-//! Every command meets bad input with one clear line on stderr, a non-zero exit code, no panic
-//! and no output file (complete or partial) left behind.
+//! Every command meets bad input with one clear line on stderr, exit code 2, no panic, no hang
+//! (each run gets a generous time limit in the harness, not a speed check), no output file
+//! (complete or partial) left behind and every file already there unchanged (contents, links,
+//! FIFOs and devices compared before and after each run).
 
 use planisphere::fits_io::{write_footprint, write_map, WriteOptions};
 use planisphere::{Footprint, Ordering, Pixelization, SkyMap};
+use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
-use std::process::Command;
+use std::process::{Command, Stdio};
+use std::time::{Duration, Instant};
+
+/// How long a refused command may run before the harness calls it a hang (generous: the
+/// machine is shared; a refusal takes well under a second).
+const HANG_LIMIT: Duration = Duration::from_secs(120);
 
 struct Fixtures {
     dir: tempfile::TempDir,
@@ -76,6 +84,66 @@ impl Fixtures {
         std::fs::write(p("negative_cl.txt"), "2 1e-5\n3 -1e-6\n").unwrap();
         std::fs::write(p("empty_list.txt"), "# nothing here\n").unwrap();
         std::fs::create_dir(p("not_an_ensemble")).unwrap();
+        // special files and other names of the same file
+        let status = Command::new("mkfifo").arg(p("pipe")).status().unwrap();
+        assert!(status.success(), "mkfifo failed");
+        std::os::unix::fs::symlink(p("map16.fits"), p("map_link.fits")).unwrap();
+        std::fs::hard_link(p("map16.fits"), p("map_hard.fits")).unwrap();
+        std::fs::copy(p("full16.fits"), p("mask_copy.fits")).unwrap();
+        std::fs::write(p("cl.txt"), "2 1e-5\n3 1e-5\n4 1e-5\n").unwrap();
+        std::fs::write(
+            p("huge_lmax.toml"),
+            "nside = 16\ncount = 2\nlmax = 1000000000\n",
+        )
+        .unwrap();
+        std::fs::write(p("big_nside.toml"), "nside = 4096\ncount = 2\n").unwrap();
+        std::fs::create_dir(p("demo_existing")).unwrap();
+        // maps with nothing to measure
+        let constant = SkyMap::from_fn(pix16, |_| 3.0);
+        write_map(
+            &p("constant16.fits"),
+            "SIGNAL",
+            &constant,
+            &WriteOptions::default(),
+        )
+        .unwrap();
+        let mut huge = map.values().to_vec();
+        huge[5] = 1e300;
+        let huge = SkyMap::new(pix16, huge).unwrap();
+        write_map(&p("huge16.fits"), "SIGNAL", &huge, &WriteOptions::default()).unwrap();
+        let mut one = vec![f64::NAN; pix16.npix() as usize];
+        one[100] = 1.0;
+        let one = SkyMap::new(pix16, one).unwrap();
+        write_map(
+            &p("onepixel16.fits"),
+            "SIGNAL",
+            &one,
+            &WriteOptions::default(),
+        )
+        .unwrap();
+        // coordinate systems stated in the headers (HEALPix FITS convention: COORDSYS)
+        let with_sys = |c: &str| WriteOptions {
+            coordsys: Some(c.to_string()),
+            ..WriteOptions::default()
+        };
+        write_map(&p("map16_c.fits"), "SIGNAL", &map, &with_sys("C")).unwrap();
+        write_map(&p("map16_g.fits"), "SIGNAL", &map, &with_sys("G")).unwrap();
+        let north = Footprint::from_fn(pix16, |d| d.theta < 1.2);
+        write_footprint(&p("mask16_g.fits"), "MASK", &north, &with_sys("G")).unwrap();
+        write_footprint(
+            &p("mask16_cel.fits"),
+            "MASK",
+            &north,
+            &with_sys("CELESTIAL"),
+        )
+        .unwrap();
+        write_footprint(
+            &p("mask16_none.fits"),
+            "MASK",
+            &north,
+            &WriteOptions::default(),
+        )
+        .unwrap();
         Fixtures { dir }
     }
 
@@ -84,19 +152,123 @@ impl Fixtures {
     }
 }
 
-/// Runs the binary; returns (exit code, stderr).
-fn run(args: &[String], cwd: &Path) -> (Option<i32>, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_planisphere"))
+/// Runs `program args` in `cwd`, killing it after [`HANG_LIMIT`]; returns (exit code, stderr).
+fn run_program(program: &str, args: &[String], cwd: &Path) -> (Option<i32>, String) {
+    run_program_with(program, args, cwd, &[])
+}
+
+/// As [`run_program`], with environment variables `env` set.
+fn run_program_with(
+    program: &str,
+    args: &[String],
+    cwd: &Path,
+    env: &[(&str, &str)],
+) -> (Option<i32>, String) {
+    let mut command = Command::new(program);
+    command
         .args(args)
         .current_dir(cwd)
         .env_remove("SLURM_ARRAY_TASK_ID")
         .env_remove("SLURM_ARRAY_TASK_COUNT")
-        .output()
+        .env_remove("SLURM_ARRAY_TASK_MIN");
+    for (k, v) in env {
+        command.env(k, v);
+    }
+    let mut child = command
+        .stdin(Stdio::null())
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
         .unwrap();
+    let start = Instant::now();
+    loop {
+        if child.try_wait().unwrap().is_some() {
+            break;
+        }
+        if start.elapsed() > HANG_LIMIT {
+            let _ = child.kill();
+            let _ = child.wait();
+            panic!("{args:?}: still running after {HANG_LIMIT:?} (a hang)");
+        }
+        std::thread::sleep(Duration::from_millis(20));
+    }
+    let out = child.wait_with_output().unwrap();
     (
         out.status.code(),
         String::from_utf8_lossy(&out.stderr).into_owned(),
     )
+}
+
+/// Runs the binary; returns (exit code, stderr).
+fn run(args: &[String], cwd: &Path) -> (Option<i32>, String) {
+    run_program(env!("CARGO_BIN_EXE_planisphere"), args, cwd)
+}
+
+/// What a directory entry is, compared before and after a run: a file's bytes, a link's
+/// target, or the kind of a directory or special file (a FIFO is never opened).
+#[derive(Debug, PartialEq, Eq)]
+enum Entry {
+    File(Vec<u8>),
+    Link(PathBuf),
+    Other(String),
+}
+
+fn snapshot(dir: &Path) -> BTreeMap<PathBuf, Entry> {
+    use std::os::unix::fs::FileTypeExt;
+    files_in(dir)
+        .into_iter()
+        .map(|p| {
+            let t = std::fs::symlink_metadata(&p).unwrap().file_type();
+            let e = if t.is_symlink() {
+                Entry::Link(std::fs::read_link(&p).unwrap())
+            } else if t.is_file() {
+                Entry::File(std::fs::read(&p).unwrap())
+            } else if t.is_fifo() {
+                Entry::Other("fifo".into())
+            } else {
+                Entry::Other("directory".into())
+            };
+            (p, e)
+        })
+        .collect()
+}
+
+/// Checks one refused run: exit code 2, one line naming `words`, no panic, nothing created
+/// (but the directories an ensemble creates before it reads its members), nothing changed.
+fn assert_refused(
+    args: &[String],
+    code: Option<i32>,
+    stderr: &str,
+    words: &str,
+    before: &BTreeMap<PathBuf, Entry>,
+    dir: &Path,
+) {
+    assert_eq!(code, Some(2), "{args:?}: exit {code:?}: {stderr}");
+    assert!(!stderr.contains("panicked"), "{args:?}: {stderr}");
+    assert_eq!(
+        stderr.trim_end().lines().count(),
+        1,
+        "{args:?}: not one line: {stderr}"
+    );
+    assert!(
+        stderr.starts_with("planisphere: error: "),
+        "{args:?}: {stderr}"
+    );
+    assert!(
+        stderr.contains(words),
+        "{args:?}: expected '{words}' in: {stderr}"
+    );
+    let after = snapshot(dir);
+    for (p, e) in before {
+        assert_eq!(after.get(p), Some(e), "{args:?} changed {}", p.display());
+    }
+    let ensemble = args.first().map(String::as_str) == Some("ensemble");
+    let new: Vec<&PathBuf> = after
+        .keys()
+        .filter(|p| !before.contains_key(*p))
+        .filter(|p| !(ensemble && p.is_dir()))
+        .collect();
+    assert!(new.is_empty(), "{args:?} left {new:?}");
 }
 
 fn files_in(dir: &Path) -> Vec<PathBuf> {
@@ -148,7 +320,7 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
         ),
         (
             s(&["measure", &f.path("allbad16.fits"), "-o", &out]),
-            "empty",
+            "every pixel is bad (UNSEEN or NaN): nothing to measure",
         ),
         (
             s(&["spectra", &map, "--mask", &f.path("mask8.fits")]),
@@ -293,7 +465,10 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
             s(&["sky", "-o", &f.path("s.fits"), "--shape-noise", "0.26"]),
             "--shape-noise expects",
         ),
-        (s(&["spectra", &map, "--lmax", "1000"]), "beyond 4·NSIDE"),
+        (
+            s(&["spectra", &map, "--lmax", "1000"]),
+            "--lmax 1000 is above 3·NSIDE − 1 = 47",
+        ),
         (
             s(&["spectra", &map, "--bin-width", "0"]),
             "--bin-width must be from 1",
@@ -437,7 +612,7 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
                 "-o",
                 &out,
             ]),
-            "ensemble.json",
+            "--derivative expects NAME,STEP,PLUS_DIR,MINUS_DIR",
         ),
         // unwritable outputs
         (
@@ -560,32 +735,15 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
         ),
     ];
     assert!(cases.len() >= 25);
-    let before = files_in(f.dir.path());
-    for (args, words) in &cases {
+    refuse_all(&f, &cases);
+}
+
+/// Runs every case of a table in the fixtures' directory and checks each refusal.
+fn refuse_all(f: &Fixtures, cases: &[(Vec<String>, &str)]) {
+    for (args, words) in cases {
+        let before = snapshot(f.dir.path());
         let (code, stderr) = run(args, f.dir.path());
-        assert!(matches!(code, Some(c) if c != 0), "{args:?}: exit {code:?}");
-        assert!(!stderr.contains("panicked"), "{args:?}: {stderr}");
-        assert_eq!(
-            stderr.trim_end().lines().count(),
-            1,
-            "{args:?}: not one line: {stderr}"
-        );
-        assert!(
-            stderr.starts_with("planisphere: error: "),
-            "{args:?}: {stderr}"
-        );
-        assert!(
-            stderr.contains(words),
-            "{args:?}: expected '{words}' in: {stderr}"
-        );
-        // no output (and no temporary file) left behind, except the directories an ensemble
-        // creates before it reads its members
-        let after: Vec<PathBuf> = files_in(f.dir.path())
-            .into_iter()
-            .filter(|p| !before.contains(p))
-            .filter(|p| !p.is_dir())
-            .collect();
-        assert!(after.is_empty(), "{args:?} left {after:?}");
+        assert_refused(args, code, &stderr, words, &before, f.dir.path());
     }
 }
 
@@ -635,4 +793,626 @@ fn bad_derivative_specification_is_reported() {
         "planisphere: error: --derivative expects NAME,STEP,PLUS_DIR,MINUS_DIR; got 'a,zero,x,y'"
     );
     assert!(!Path::new(&f.path("fc.json")).exists());
+}
+
+fn strings(v: &[&str]) -> Vec<String> {
+    v.iter().map(|x| x.to_string()).collect()
+}
+
+#[test]
+fn outputs_that_would_replace_an_input_or_a_special_file_are_refused() {
+    let f = Fixtures::new();
+    let map = f.path("map16.fits");
+    let mask = f.path("mask_copy.fits");
+    let cl = f.path("cl.txt");
+    let same = "is the same file as the input";
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        // the same path, another spelling, a symbolic link and a hard link
+        (strings(&["measure", &map, "-o", &map]), same),
+        (
+            strings(&["measure", "map16.fits", "-o", "./map16.fits"]),
+            same,
+        ),
+        (
+            strings(&["measure", &map, "-o", &f.path("../").replace("//", "/")]),
+            "is a directory",
+        ),
+        (
+            strings(&["measure", &map, "-o", &f.path("map_link.fits")]),
+            same,
+        ),
+        (
+            strings(&["measure", &map, "-o", &f.path("map_hard.fits")]),
+            same,
+        ),
+        (strings(&["spectra", &map, "--csv", &map]), same),
+        (
+            strings(&["spectra", &map, "--json", &f.path("map_link.fits")]),
+            same,
+        ),
+        (strings(&["tiles", &map, "--json", &map]), same),
+        (strings(&["tiles", &map, "--png", &map]), same),
+        (strings(&["synthesize", "--target", &map, "-o", &map]), same),
+        (
+            strings(&["measure", &map, "--mask", &mask, "-o", &mask]),
+            "the input --mask",
+        ),
+        (
+            strings(&["sky", "--nside", "8", "--spectrum", &cl, "-o", &cl]),
+            "the input --spectrum",
+        ),
+        (strings(&["plot", "flat-bias", &cl, "-o", &cl]), same),
+        // two outputs onto one file
+        (
+            strings(&[
+                "tiles",
+                &map,
+                "--json",
+                &f.path("plan.out"),
+                "--png",
+                "./plan.out",
+            ]),
+            "name the same output file",
+        ),
+        // special files as outputs: replaced by a regular file if written
+        (
+            strings(&["measure", &map, "-o", "/dev/null"]),
+            "exists and is a character device, not a regular file",
+        ),
+        (
+            strings(&["measure", &map, "-o", &f.path("pipe")]),
+            "exists and is a FIFO",
+        ),
+        (
+            strings(&["sky", "--nside", "8", "-o", &f.path("pipe")]),
+            "exists and is a FIFO",
+        ),
+        // an output directory that is a file
+        (
+            strings(&["demo", "-o", &map]),
+            "already exists and is a regular file, not a directory",
+        ),
+        (
+            strings(&["ensemble", "-o", &map, "--maps", &map]),
+            "already exists and is a regular file, not a directory",
+        ),
+        // a run refused before any work leaves no empty directory behind
+        (
+            strings(&["demo", "--scales", "0", "-o", &f.path("new_demo")]),
+            "--scales must be at least 1",
+        ),
+    ];
+    refuse_all(&f, &cases);
+    assert!(!Path::new(&f.path("new_demo")).exists());
+}
+
+#[test]
+fn outputs_in_a_directory_that_cannot_be_written_are_refused_before_any_work() {
+    // /sys refuses new files even to root (common practice on Linux); the check must come
+    // before the measurement, so a bad mask later on the line is never reached
+    let f = Fixtures::new();
+    let cases: Vec<(Vec<String>, &str)> = vec![(
+        strings(&[
+            "measure",
+            &f.path("map16.fits"),
+            "-o",
+            "/sys/planisphere-output.json",
+            "--mask",
+            &f.path("mask8.fits"),
+        ]),
+        "cannot write in its directory",
+    )];
+    refuse_all(&f, &cases);
+}
+
+#[test]
+fn an_output_through_a_symbolic_link_rewrites_the_target_and_keeps_the_link() {
+    let f = Fixtures::new();
+    let target = f.path("sky_target.fits");
+    std::fs::write(&target, "old contents").unwrap();
+    let link = f.path("sky_link.fits");
+    std::os::unix::fs::symlink(&target, &link).unwrap();
+    let (code, stderr) = run(
+        &strings(&["sky", "--nside", "8", "-o", &link]),
+        f.dir.path(),
+    );
+    assert_eq!(code, Some(0), "{stderr}");
+    assert!(std::fs::symlink_metadata(&link)
+        .unwrap()
+        .file_type()
+        .is_symlink());
+    let (map, _) = planisphere::fits_io::read_map(
+        Path::new(&target),
+        &planisphere::fits_io::ColumnChoice::default(),
+    )
+    .unwrap();
+    assert_eq!(map.nside(), 8);
+}
+
+#[test]
+fn special_files_given_as_inputs_are_refused_without_blocking() {
+    // a FIFO with no writer blocks any reader forever: each of these would hang
+    let f = Fixtures::new();
+    let map = f.path("map16.fits");
+    let pipe = f.path("pipe");
+    let out = f.path("out.json");
+    let words = "is a FIFO (named pipe), not a regular file";
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        (strings(&["inspect", &pipe]), words),
+        (strings(&["measure", &pipe, "-o", &out]), words),
+        (
+            strings(&["measure", &map, "--mask", &pipe, "-o", &out]),
+            words,
+        ),
+        (
+            strings(&["measure", &map, "--settings", &pipe, "-o", &out]),
+            words,
+        ),
+        (
+            strings(&["measure", &map, "--cross", &pipe, "-o", &out]),
+            words,
+        ),
+        (strings(&["spectra", &map, "--mask", &pipe]), words),
+        (strings(&["tiles", &map, "--mask", &pipe]), words),
+        (
+            strings(&[
+                "sky",
+                "--nside",
+                "8",
+                "--spectrum",
+                &pipe,
+                "-o",
+                &f.path("s.fits"),
+            ]),
+            words,
+        ),
+        (
+            strings(&["ensemble", "-o", &f.path("e_pipe"), "--simulate", &pipe]),
+            words,
+        ),
+        (
+            strings(&["ensemble", "-o", &f.path("e_pipe2"), "--map-list", &pipe]),
+            words,
+        ),
+        (
+            strings(&["ensemble", "-o", &f.path("e_pipe3"), "--maps", &pipe]),
+            words,
+        ),
+        (
+            strings(&["synthesize", "--target", &pipe, "-o", &f.path("x.fits")]),
+            words,
+        ),
+        (strings(&["forecast", "--plan", &pipe, "-o", &out]), words),
+        (
+            strings(&["plot", "flat-bias", &pipe, "-o", &f.path("b.png")]),
+            words,
+        ),
+        (
+            strings(&["compare-flat", "--spectrum", &pipe, "-o", &f.path("cf.csv")]),
+            words,
+        ),
+    ];
+    refuse_all(&f, &cases);
+}
+
+#[test]
+fn sizes_and_counts_beyond_their_limits_are_refused_with_the_limit() {
+    let f = Fixtures::new();
+    let map = f.path("map16.fits");
+    let sky = f.path("s{index}.fits");
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        (
+            strings(&["sky", "--nside", "16", "--lmax", "10000000000", "-o", &sky]),
+            "--lmax 10000000000 is above 3·NSIDE − 1 = 47",
+        ),
+        (
+            strings(&[
+                "ensemble",
+                "-o",
+                &f.path("e_lmax"),
+                "--simulate",
+                &f.path("huge_lmax.toml"),
+            ]),
+            "recipe lmax 1000000000 is above 3·NSIDE − 1 = 47",
+        ),
+        (
+            strings(&["sky", "--nside", "16", "--count", "1000000000", "-o", &sky]),
+            "--count must be from 1 to 1000000, got 1000000000",
+        ),
+        (
+            strings(&[
+                "sky",
+                "--nside",
+                "16",
+                "--first-index",
+                "18446744073709551615",
+                "--count",
+                "2",
+                "-o",
+                &sky,
+            ]),
+            "goes past the largest sky index 999999",
+        ),
+        (
+            strings(&[
+                "measure",
+                &map,
+                "-o",
+                &f.path("m.json"),
+                "-L",
+                "1000",
+                "-J",
+                "2",
+                "--tile-pixels",
+                "16",
+                "--border-pixels",
+                "2",
+            ]),
+            "L = 1000 orientations is more than a 16-pixel grid can tell apart: at most 18",
+        ),
+        (
+            strings(&["spectra", &map, "--iterations", "1000000000"]),
+            "--iterations 1000000000 is more than 100",
+        ),
+        (
+            strings(&[
+                "compare-flat",
+                "--skies",
+                "1000000000",
+                "-o",
+                &f.path("cf.csv"),
+            ]),
+            "--skies must be from 1 to 1000000",
+        ),
+        (
+            strings(&[
+                "synthesize",
+                "--target",
+                &f.path("coefficients.json"),
+                "--size",
+                "1048576",
+                "-o",
+                &f.path("x.npy"),
+            ]),
+            "a flat synthesis of 1048576 × 1048576 pixels",
+        ),
+        (
+            strings(&[
+                "synthesize",
+                "--target",
+                &f.path("coefficients.json"),
+                "--size",
+                "1000",
+                "-o",
+                &f.path("x.npy"),
+            ]),
+            "--size must be a power of two",
+        ),
+    ];
+    refuse_all(&f, &cases);
+}
+
+#[test]
+fn skies_beyond_the_memory_limit_are_refused_with_the_limit() {
+    // under an address-space limit of 2 GB (ulimit -v), a NSIDE 8192 sky (6.4 GB per map) and
+    // a recipe at NSIDE 4096 are refused up front instead of aborting in an allocation
+    let f = Fixtures::new();
+    let bin = env!("CARGO_BIN_EXE_planisphere");
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        (
+            strings(&["sky", "--nside", "8192", "-o", &f.path("big.fits")]),
+            "a NSIDE 8192 sky up to ℓ = 24575 needs about",
+        ),
+        (
+            strings(&[
+                "ensemble",
+                "-o",
+                &f.path("e_big"),
+                "--simulate",
+                &f.path("big_nside.toml"),
+            ]),
+            "a NSIDE 4096 sky up to ℓ = 12287 needs about",
+        ),
+    ];
+    for (args, words) in &cases {
+        let before = snapshot(f.dir.path());
+        let mut line = vec![
+            "-c".to_string(),
+            "ulimit -v 2000000 && exec \"$0\" \"$@\"".to_string(),
+            bin.to_string(),
+        ];
+        line.extend(args.iter().cloned());
+        let (code, stderr) = run_program("sh", &line, f.dir.path());
+        assert_refused(args, code, &stderr, words, &before, f.dir.path());
+        assert!(
+            stderr.contains("address-space limit (ulimit -v)"),
+            "{stderr}"
+        );
+    }
+}
+
+/// Fast measurement options for the runs that must succeed.
+const QUICK: [&str; 7] = [
+    "-J",
+    "2",
+    "--tile-pixels",
+    "16",
+    "--border-pixels",
+    "2",
+    "--no-bispectrum",
+];
+
+#[test]
+fn maps_and_masks_in_different_coordinate_systems_are_refused() {
+    let f = Fixtures::new();
+    let map_c = f.path("map16_c.fits");
+    let map_g = f.path("map16_g.fits");
+    let mask_g = f.path("mask16_g.fits");
+    let out = f.path("out.json");
+    let words = "is in equatorial coordinates (COORDSYS 'C') but";
+    let with_quick = |v: &[&str]| {
+        let mut a = strings(v);
+        a.extend(strings(&QUICK));
+        a
+    };
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        (
+            with_quick(&["measure", &map_c, "--mask", &mask_g, "-o", &out]),
+            words,
+        ),
+        (
+            with_quick(&["measure", &map_c, "--cross", &map_g, "-o", &out]),
+            words,
+        ),
+        (
+            with_quick(&[
+                "measure",
+                &map_c,
+                "--cross",
+                &map_c,
+                "--cross-mask",
+                &mask_g,
+                "-o",
+                &out,
+            ]),
+            words,
+        ),
+        (strings(&["spectra", &map_c, "--mask", &mask_g]), words),
+        (strings(&["spectra", &map_c, "--cross", &map_g]), words),
+        (with_quick(&["tiles", &map_c, "--mask", &mask_g]), words),
+        (
+            strings(&[
+                "synthesize",
+                "--target",
+                &map_c,
+                "--mask",
+                &mask_g,
+                "-o",
+                &f.path("x.fits"),
+            ]),
+            words,
+        ),
+        (
+            with_quick(&[
+                "ensemble",
+                "-o",
+                &f.path("e_sys"),
+                "--maps",
+                &map_c,
+                "--mask",
+                &mask_g,
+            ]),
+            "the first map is in equatorial coordinates (COORDSYS 'C') but",
+        ),
+        (
+            with_quick(&[
+                "plot",
+                "tile-map",
+                &map_c,
+                "--mask",
+                &mask_g,
+                "--statistic",
+                "mean",
+                "-o",
+                &f.path("t.png"),
+            ]),
+            words,
+        ),
+    ];
+    refuse_all(&f, &cases);
+}
+
+#[test]
+fn coordinate_systems_that_agree_or_are_unstated_or_overridden_are_measured() {
+    // 'C' and 'CELESTIAL' name one system; a file without COORDSYS is not compared; the
+    // override accepts a stated mismatch
+    let f = Fixtures::new();
+    let map_c = f.path("map16_c.fits");
+    for (mask, extra) in [
+        ("mask16_cel.fits", None),
+        ("mask16_none.fits", None),
+        ("mask16_g.fits", Some("--allow-coordsys-mismatch")),
+    ] {
+        let out = f.path(&format!("{mask}.json"));
+        let mut args = strings(&["measure", &map_c, "--mask", &f.path(mask), "-o", &out]);
+        args.extend(strings(&QUICK));
+        args.extend(extra.map(str::to_string));
+        let (code, stderr) = run(&args, f.dir.path());
+        assert_eq!(code, Some(0), "{args:?}: {stderr}");
+        assert!(Path::new(&out).is_file(), "{args:?}");
+    }
+    let (code, stderr) = run(
+        &strings(&[
+            "measure",
+            &f.path("map16.fits"),
+            "--mask",
+            &f.path("mask16_g.fits"),
+            "-o",
+            &f.path("plain.json"),
+            "-J",
+            "2",
+            "--tile-pixels",
+            "16",
+            "--border-pixels",
+            "2",
+            "--no-bispectrum",
+        ]),
+        f.dir.path(),
+    );
+    assert_eq!(code, Some(0), "a map without COORDSYS: {stderr}");
+}
+
+#[test]
+fn maps_without_anything_to_measure_are_refused_with_the_reason() {
+    let f = Fixtures::new();
+    let out = f.path("out.json");
+    let constant = f.path("constant16.fits");
+    let huge = f.path("huge16.fits");
+    let one = f.path("onepixel16.fits");
+    let allbad = f.path("allbad16.fits");
+    let flat = "the map has no fluctuations on its footprint (every valid pixel is 3)";
+    let big = "pixel 5 holds 1e300, beyond ±1e90";
+    let single = "only one valid pixel on its footprint";
+    let with_quick = |v: &[&str]| {
+        let mut a = strings(v);
+        a.extend(strings(&QUICK));
+        a
+    };
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        (with_quick(&["measure", &constant, "-o", &out]), flat),
+        (strings(&["spectra", &constant]), flat),
+        (
+            with_quick(&[
+                "measure",
+                &f.path("map16.fits"),
+                "--cross",
+                &constant,
+                "-o",
+                &out,
+            ]),
+            flat,
+        ),
+        (
+            strings(&["spectra", &f.path("map16.fits"), "--cross", &constant]),
+            flat,
+        ),
+        (
+            strings(&["synthesize", "--target", &constant, "-o", &f.path("x.fits")]),
+            flat,
+        ),
+        (
+            with_quick(&["ensemble", "-o", &f.path("e_flat"), "--maps", &constant]),
+            "the map has no fluctuations in the map",
+        ),
+        (with_quick(&["measure", &huge, "-o", &out]), big),
+        (strings(&["spectra", &huge]), big),
+        (with_quick(&["measure", &one, "-o", &out]), single),
+        (strings(&["spectra", &one]), single),
+        (
+            with_quick(&["measure", &allbad, "-o", &out]),
+            "every pixel is bad (UNSEEN or NaN): nothing to measure",
+        ),
+        (
+            strings(&["spectra", &allbad]),
+            "every pixel is bad (UNSEEN or NaN): nothing to measure",
+        ),
+    ];
+    refuse_all(&f, &cases);
+}
+
+#[test]
+fn option_and_file_mistakes_are_named_precisely() {
+    let f = Fixtures::new();
+    let map = f.path("map16.fits");
+    let out = f.path("out.json");
+    let write = |name: &str, text: &str| {
+        std::fs::write(f.dir.path().join(name), text).unwrap();
+        f.path(name)
+    };
+    let settings = write("typed.toml", "scales = 3\norientations = \"four\"\n");
+    let recipe = write("negative.toml", "nside = 16\ncount = -2\n");
+    let plan = write("plan.toml", "paired = true\n\n[[case]]\nname = 3\n");
+    let list = write(
+        "twice.txt",
+        "map16.fits\n# the same map again\n./map_link.fits\n",
+    );
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        (
+            strings(&["measure", &map, "-o", &out, "--settings", &settings]),
+            "bad settings: line 2, key `orientations`: invalid type: string \"four\"",
+        ),
+        (
+            strings(&["ensemble", "-o", &f.path("e_neg"), "--simulate", &recipe]),
+            "bad recipe: line 2, key `count`: invalid value: integer `-2`",
+        ),
+        (
+            strings(&["forecast", "--plan", &plan, "-o", &out]),
+            "not a forecast plan: line 4, key `name`",
+        ),
+        (
+            strings(&["ensemble", "-o", &f.path("e_twice"), "--map-list", &list]),
+            "lines 1 and 3 name the same file",
+        ),
+        (
+            strings(&[
+                "forecast",
+                "--fiducial",
+                &f.path("not_an_ensemble"),
+                "--derivative",
+                "a,0.1,x,y",
+                "--derivative",
+                "a,0.2,x,y",
+                "-o",
+                &out,
+            ]),
+            "--derivative names parameter 'a' twice",
+        ),
+        (
+            strings(&[
+                "forecast",
+                "--fiducial",
+                &f.path("not_an_ensemble"),
+                "--derivative",
+                "a,0.1,x,y",
+                "--scale-min-arcmin",
+                "-5",
+                "-o",
+                &out,
+            ]),
+            "cannot be negative, got -5",
+        ),
+        (
+            strings(&["spectra", &map, "--lmax", "0"]),
+            "--lmax must be at least 1",
+        ),
+    ];
+    refuse_all(&f, &cases);
+}
+
+#[test]
+fn an_array_task_id_without_a_task_count_is_refused() {
+    // without the count every array task would measure the whole ensemble
+    let f = Fixtures::new();
+    let args = strings(&[
+        "ensemble",
+        "-o",
+        &f.path("e_slurm"),
+        "--maps",
+        &f.path("map16.fits"),
+    ]);
+    let before = snapshot(f.dir.path());
+    let (code, stderr) = run_program_with(
+        env!("CARGO_BIN_EXE_planisphere"),
+        &args,
+        f.dir.path(),
+        &[("SLURM_ARRAY_TASK_ID", "3")],
+    );
+    assert_refused(
+        &args,
+        code,
+        &stderr,
+        "SLURM_ARRAY_TASK_ID=3 is set but SLURM_ARRAY_TASK_COUNT is not",
+        &before,
+        f.dir.path(),
+    );
 }

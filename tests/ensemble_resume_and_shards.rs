@@ -135,6 +135,10 @@ fn shard_text_and_slurm_variables_are_parsed_and_checked() {
         Shard::from_slurm_values(None, Some("8"), None).unwrap(),
         None
     );
+    let e = Shard::from_slurm_values(Some("3"), None, None)
+        .unwrap_err()
+        .to_string();
+    assert!(e.contains("SLURM_ARRAY_TASK_COUNT is not"), "{e}");
     let e = Shard::from_slurm_values(Some("8"), Some("8"), None)
         .unwrap_err()
         .to_string();

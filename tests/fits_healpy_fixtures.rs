@@ -153,3 +153,35 @@ fn every_fixture_in_expected_json_is_checked_by_a_test() {
     let names: Vec<&String> = expected["files"].as_object().unwrap().keys().collect();
     assert_eq!(names.len(), 10, "{names:?}");
 }
+
+#[test]
+fn pixels_equal_to_the_bad_data_keyword_are_read_as_bad() {
+    // fixture and expectation: reference-values/fits_bad_data_reference.py (healpy 1.20.1,
+    // astropy 8.0.2, numpy 2.4.6); BAD_DATA from the HEALPix FITS convention
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("reference-values/fits");
+    let text = std::fs::read_to_string(dir.join("bad_data_expected.json")).unwrap();
+    let expected: Value = serde_json::from_str(&text).unwrap();
+    let path = dir.join(expected["file"].as_str().unwrap());
+    let (map, header) = read_map(&path, &ColumnChoice::default()).unwrap();
+    assert_eq!(header.bad_data, expected["bad_data"].as_f64());
+    let bad: Vec<u64> = expected["bad_pixels"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_u64().unwrap())
+        .collect();
+    assert_eq!(bad.len(), 20);
+    for p in 0..map.pixelization().npix() {
+        assert_eq!(map.get(p).is_none(), bad.contains(&p), "pixel {p}");
+    }
+    assert_eq!(
+        map.valid_count(),
+        expected["valid_pixels"].as_u64().unwrap()
+    );
+    let mean = map.summary().mean.unwrap();
+    let want = expected["valid_mean"].as_f64().unwrap();
+    assert!(
+        (mean - want).abs() <= 1e-12 * want.abs().max(1.0),
+        "{mean} vs {want}"
+    );
+}

@@ -73,6 +73,8 @@ pub fn run(args: &CompareFlatArgs) -> Result<()> {
             args.nside
         )));
     }
+    crate::limits::check_count("--skies", args.skies as u64)?;
+    crate::limits::check_count("--flat-fields", args.flat_fields as u64)?;
     let lmax = 3 * args.nside as usize - 1;
     let spectrum = match &args.spectrum {
         Some(p) => AngularSpectrum::read_text(p)?,

@@ -145,6 +145,16 @@ fn run_ensemble(
 
 /// Runs the demo.
 pub fn run(args: &DemoArgs) -> Result<()> {
+    let existed = args.output_dir.exists();
+    let result = run_in_directory(args);
+    if result.is_err() && !existed {
+        // a run that stopped before writing anything leaves no empty directory behind
+        let _ = std::fs::remove_dir(&args.output_dir);
+    }
+    result
+}
+
+fn run_in_directory(args: &DemoArgs) -> Result<()> {
     let start = Instant::now();
     if args.nside < 32 || args.nside > 512 || !args.nside.is_power_of_two() {
         return Err(Error::Setting(format!(
@@ -156,6 +166,11 @@ pub fn run(args: &DemoArgs) -> Result<()> {
         return Err(Error::Setting(
             "--fiducial-count must be ≥ 4 and --derivative-count ≥ 2".into(),
         ));
+    }
+    crate::limits::check_count("--fiducial-count", args.fiducial_count)?;
+    crate::limits::check_count("--derivative-count", args.derivative_count)?;
+    if args.scales == 0 {
+        return Err(Error::Setting("--scales must be at least 1".into()));
     }
     std::fs::create_dir_all(&args.output_dir).map_err(|e| Error::io(&args.output_dir, e))?;
     let dir = &args.output_dir;
@@ -379,6 +394,7 @@ pub fn run(args: &DemoArgs) -> Result<()> {
             mask_column: crate::fits_io::ColumnChoice::default(),
             taper: TaperKind::C2,
             taper_arcmin,
+            allow_coordsys_mismatch: false,
         },
         options: super::measure::MeasureOptions {
             scales: Some(settings.scales),

@@ -79,13 +79,9 @@ fn default_seed() -> u64 {
 impl RecipeFile {
     /// Reads a recipe file (paths inside it are relative to the file).
     pub fn read(path: &Path) -> Result<RecipeFile> {
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
-        let mut r: RecipeFile = toml::from_str(&text).map_err(|e| {
-            Error::io(
-                path,
-                format!("bad recipe: {}", e.message().replace('\n', " ")),
-            )
-        })?;
+        let text = crate::files::read_text(path)?;
+        let mut r: RecipeFile = toml::from_str(&text)
+            .map_err(|e| super::inputs::toml_error(path, &text, &e, "bad recipe"))?;
         if let Some(s) = &r.spectrum {
             if s.is_relative() {
                 r.spectrum = Some(path.parent().unwrap_or(Path::new("")).join(s));
@@ -102,13 +98,13 @@ impl RecipeFile {
                 self.nside
             )));
         }
-        if self.count == 0 || self.count > 1_000_000 {
-            return Err(Error::Setting(format!(
-                "recipe count must be from 1 to 1000000, got {}",
-                self.count
-            )));
-        }
+        crate::limits::check_count("recipe count", self.count)?;
         let lmax = self.lmax.unwrap_or(3 * self.nside as usize - 1);
+        crate::limits::check_lmax("recipe lmax", lmax, self.nside)?;
+        crate::limits::check_memory(
+            &format!("a NSIDE {} sky up to ℓ = {lmax}", self.nside),
+            crate::limits::sky_bytes(self.nside, lmax),
+        )?;
         let spectrum = match &self.spectrum {
             Some(p) => AngularSpectrum::read_text(p)?,
             None => AngularSpectrum::demo_model(lmax, self.model_variance.unwrap_or(1e-4)),
@@ -206,7 +202,14 @@ pub fn ensemble_footprint(
 ) -> Result<Footprint> {
     match (&mask.mask, first_map) {
         (Some(path), _) => {
-            let (fp, _) = read_footprint(path, &mask.mask_column)?;
+            let (fp, header) = read_footprint(path, &mask.mask_column)?;
+            if let Some(map) = first_map {
+                super::inputs::check_same_coordsys(
+                    ("the first map", map.coordsys.as_deref()),
+                    (&path.display().to_string(), header.coordsys.as_deref()),
+                    mask.allow_coordsys_mismatch,
+                )?;
+            }
             if fp.pixelization().nside() != pix.nside() {
                 return Err(Error::Mismatch(format!(
                     "mask NSIDE {} does not match map NSIDE {}",
@@ -216,7 +219,7 @@ pub fn ensemble_footprint(
             }
             mask.taper_footprint(fp.to_ordering(pix.ordering())?)
         }
-        (None, Some(map)) => mask.footprint_for(map),
+        (None, Some(map)) => mask.footprint_for(map, Path::new("the first map")),
         (None, None) => Ok(Footprint::full_sky(pix)),
     }
 }
@@ -299,6 +302,14 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
                     map.nside(),
                     pix.nside()
                 )));
+            }
+            super::inputs::check_same_coordsys(
+                ("the first map", first.coordsys.as_deref()),
+                (&source.to_string(), map.coordsys.as_deref()),
+                args.mask.allow_coordsys_mismatch,
+            )?;
+            if matches!(source, MemberSource::File(_)) {
+                super::inputs::check_measurable(&map, None, &source.to_string())?;
             }
             em.measure(&map)
         },

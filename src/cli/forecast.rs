@@ -41,10 +41,10 @@ pub struct ForecastArgs {
     #[arg(long, value_name = "NAME=VALUE")]
     pub fiducial_value: Vec<String>,
     /// Keep only statistics probing angular scales of at least this many arcmin.
-    #[arg(long, value_name = "ARCMIN")]
+    #[arg(long, value_name = "ARCMIN", allow_negative_numbers = true)]
     pub scale_min_arcmin: Option<f64>,
     /// Keep only statistics probing angular scales of at most this many arcmin.
-    #[arg(long, value_name = "ARCMIN")]
+    #[arg(long, value_name = "ARCMIN", allow_negative_numbers = true)]
     pub scale_max_arcmin: Option<f64>,
     /// Output JSON (comparison table, per-set parameter covariances, settings).
     #[arg(long, short, value_name = "FILE.json")]
@@ -221,10 +221,23 @@ pub fn forecast_document(
     })
 }
 
+/// Refuses a parameter named by two derivatives (its Fisher row would be counted twice).
+fn check_distinct_parameters(list: &[(String, f64, PathBuf, PathBuf)]) -> Result<()> {
+    for (k, (name, ..)) in list.iter().enumerate() {
+        if list[..k].iter().any(|(other, ..)| other == name) {
+            return Err(Error::Setting(format!(
+                "--derivative names parameter '{name}' twice: give each parameter once"
+            )));
+        }
+    }
+    Ok(())
+}
+
 fn load_derivatives(
     list: &[(String, f64, PathBuf, PathBuf)],
     paired: bool,
 ) -> Result<Vec<DerivativeEnsembles>> {
+    check_distinct_parameters(list)?;
     let mut derivatives = Vec::new();
     for (name, step, plus, minus) in list {
         let (p, _) = load_ensemble(plus)?;
@@ -254,19 +267,31 @@ pub fn run(args: &ForecastArgs) -> Result<()> {
             "forecast needs --fiducial and --derivative, or --plan".into(),
         ));
     };
-    let (fiducial, _) = load_ensemble(fiducial_dir)?;
+    // the options first, before any ensemble is read
     let list = args
         .derivative
         .iter()
         .map(|d| parse_derivative(d))
         .collect::<Result<Vec<_>>>()?;
-    let derivatives = load_derivatives(&list, args.paired)?;
-    let names: Vec<String> = derivatives.iter().map(|d| d.parameter.clone()).collect();
-    let fiducial_values = parse_fiducial_values(&args.fiducial_value, &names)?;
+    check_distinct_parameters(&list)?;
+    for (option, value) in [
+        ("--scale-min-arcmin", args.scale_min_arcmin),
+        ("--scale-max-arcmin", args.scale_max_arcmin),
+    ] {
+        if let Some(v) = value.filter(|v| v.is_nan() || *v < 0.0) {
+            return Err(Error::Setting(format!(
+                "{option} is an angular scale in arcmin and cannot be negative, got {v}"
+            )));
+        }
+    }
     let cut = match (args.scale_min_arcmin, args.scale_max_arcmin) {
         (None, None) => None,
         (a, b) => Some(ScaleCut::new(a.unwrap_or(0.0), b.unwrap_or(f64::INFINITY))?),
     };
+    let (fiducial, _) = load_ensemble(fiducial_dir)?;
+    let derivatives = load_derivatives(&list, args.paired)?;
+    let names: Vec<String> = derivatives.iter().map(|d| d.parameter.clone()).collect();
+    let fiducial_values = parse_fiducial_values(&args.fiducial_value, &names)?;
     let result = forecast_sets(&fiducial, &derivatives, cut.as_ref())?;
     let settings = serde_json::json!({
         "fiducial": fiducial_dir.display().to_string(),
@@ -371,13 +396,9 @@ struct PlanDerivative {
 }
 
 fn read_plan(path: &Path) -> Result<PlanFile> {
-    let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
-    let mut plan: PlanFile = toml::from_str(&text).map_err(|e| {
-        Error::io(
-            path,
-            format!("not a forecast plan: {}", e.message().trim_end()),
-        )
-    })?;
+    let text = crate::files::read_text(path)?;
+    let mut plan: PlanFile = toml::from_str(&text)
+        .map_err(|e| super::inputs::toml_error(path, &text, &e, "not a forecast plan"))?;
     if plan.cases.is_empty() {
         return Err(Error::io(path, "the plan has no [[case]]"));
     }

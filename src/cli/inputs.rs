@@ -5,7 +5,7 @@ use crate::error::{Error, Result};
 use crate::fits_io::{read_footprint, read_map, ColumnChoice};
 use crate::footprint::Footprint;
 use crate::skymap::SkyMap;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 /// A mask (or weight map) and how to taper its edges.
 #[derive(Debug, Clone, clap::Args)]
@@ -28,6 +28,114 @@ pub struct MaskArgs {
         allow_negative_numbers = true
     )]
     pub taper_arcmin: f64,
+    /// Use a mask (or second map) whose COORDSYS header names another coordinate system than
+    /// the map's (for a header known to be wrong; the pixels are not rotated).
+    #[arg(long)]
+    pub allow_coordsys_mismatch: bool,
+}
+
+/// The coordinate system a COORDSYS value names, by the HEALPix FITS convention ('G'
+/// galactic, 'E' ecliptic, 'C' or 'Q' equatorial; full words are taken by their first letter).
+fn coordinate_system(value: &str) -> String {
+    let v = value.trim().to_uppercase();
+    match v.chars().next() {
+        Some('G') => "galactic".into(),
+        Some('E') => "ecliptic".into(),
+        Some('C') | Some('Q') => "equatorial".into(),
+        _ => v,
+    }
+}
+
+/// Refuses two files whose COORDSYS headers name different coordinate systems (when both
+/// state one), unless `allow`: a mask in galactic coordinates on an equatorial map cuts the
+/// wrong sky without any other sign.
+pub fn check_same_coordsys(
+    first: (&str, Option<&str>),
+    second: (&str, Option<&str>),
+    allow: bool,
+) -> Result<()> {
+    if allow {
+        return Ok(());
+    }
+    if let ((a, Some(sa)), (b, Some(sb))) = (first, second) {
+        let (ca, cb) = (coordinate_system(sa), coordinate_system(sb));
+        if ca != cb {
+            return Err(Error::Mismatch(format!(
+                "{a} is in {ca} coordinates (COORDSYS '{}') but {b} in {cb} (COORDSYS '{}'): \
+                 bring both to one system, or pass --allow-coordsys-mismatch if a header is wrong",
+                sa.trim(),
+                sb.trim()
+            )));
+        }
+    }
+    Ok(())
+}
+
+/// A TOML file's parse error as one line: `{path}: {what}: line N, key `K`: reason` (line and
+/// key from the error's position in `text`, when it has one).
+pub fn toml_error(path: &Path, text: &str, e: &toml::de::Error, what: &str) -> Error {
+    let reason = e.message().split_whitespace().collect::<Vec<_>>().join(" ");
+    let place = e.span().map(|span| {
+        let start = span.start.min(text.len());
+        let line_start = text[..start].rfind('\n').map_or(0, |i| i + 1);
+        let line_no = text[..start].matches('\n').count() + 1;
+        let line = text[line_start..].lines().next().unwrap_or("");
+        let key = line
+            .split_once('=')
+            .map(|(k, _)| k.trim().trim_matches('"').to_string())
+            .filter(|k| !k.is_empty() && !k.starts_with('['));
+        match key {
+            Some(k) => format!("line {line_no}, key `{k}`"),
+            None => format!("line {line_no}"),
+        }
+    });
+    match place {
+        Some(p) => Error::io(path, format!("{what}: {p}: {reason}")),
+        None => Error::io(path, format!("{what}: {reason}")),
+    }
+}
+
+/// Checks that `map` (named `label` in messages) has something to measure on `footprint`
+/// (pixels of positive weight; all valid pixels without one): values within
+/// ±[`crate::limits::MAX_ABS_VALUE`], more than one valid pixel, and not all equal (a map
+/// without fluctuations has scattering coefficients that are ratios of rounding errors).
+pub fn check_measurable(map: &SkyMap, footprint: Option<&Footprint>, label: &str) -> Result<()> {
+    let weights = footprint
+        .filter(|f| f.pixelization() == map.pixelization())
+        .map(Footprint::weights);
+    let mut count = 0u64;
+    let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+    for (i, (&v, &ok)) in map.values().iter().zip(map.valid()).enumerate() {
+        if !ok || weights.is_some_and(|w| w[i] <= 0.0) {
+            continue;
+        }
+        if v.abs() > crate::limits::MAX_ABS_VALUE {
+            return Err(Error::Data(format!(
+                "{label}: pixel {i} holds {v:e}, beyond ±{:e}: the statistics (up to third powers summed over the sky) would overflow; rescale the map",
+                crate::limits::MAX_ABS_VALUE
+            )));
+        }
+        count += 1;
+        lo = lo.min(v);
+        hi = hi.max(v);
+    }
+    let place = if weights.is_some() {
+        "on its footprint"
+    } else {
+        "in the map"
+    };
+    match count {
+        0 => Err(Error::Data(format!(
+            "{label}: no valid pixel {place} (all UNSEEN or NaN there)"
+        ))),
+        1 => Err(Error::Data(format!(
+            "{label}: only one valid pixel {place}: there are no fluctuations to measure"
+        ))),
+        _ if hi - lo <= 1e-12 * lo.abs().max(hi.abs()) => Err(Error::Data(format!(
+            "{label}: the map has no fluctuations {place} (every valid pixel is {lo}): nothing to measure"
+        ))),
+        _ => Ok(()),
+    }
 }
 
 /// Reads a map column, reporting a file's warnings (e.g. an assumed ordering) on stderr.
@@ -42,8 +150,9 @@ pub fn load_map(path: &std::path::Path, column: &ColumnChoice) -> Result<SkyMap>
 impl MaskArgs {
     /// The footprint to use with `map`: the mask (or the map's valid pixels), matched to the
     /// map and tapered.
-    pub fn footprint_for(&self, map: &SkyMap) -> Result<Footprint> {
-        let raw = untapered_footprint(map, self.mask.as_deref(), &self.mask_column)?;
+    pub fn footprint_for(&self, map: &SkyMap, map_path: &Path) -> Result<Footprint> {
+        let raw =
+            untapered_footprint(map, map_path, self.mask.as_deref(), self, &self.mask_column)?;
         self.taper_footprint(raw)
     }
 
@@ -67,19 +176,33 @@ impl MaskArgs {
     }
 }
 
-/// The untapered footprint of `map`: the mask file (or the map's valid pixels), brought to the
-/// map's ordering, without the map's bad pixels.
+/// The untapered footprint of `map` (read from `map_path`): the mask file (or the map's valid
+/// pixels), brought to the map's ordering, without the map's bad pixels. A mask whose COORDSYS
+/// differs from the map's is refused unless `options.allow_coordsys_mismatch`.
 pub fn untapered_footprint(
     map: &SkyMap,
-    mask: Option<&std::path::Path>,
+    map_path: &Path,
+    mask: Option<&Path>,
+    options: &MaskArgs,
     column: &ColumnChoice,
 ) -> Result<Footprint> {
+    if map.valid_count() == 0 {
+        return Err(Error::Data(format!(
+            "{}: every pixel is bad (UNSEEN or NaN): nothing to measure",
+            map_path.display()
+        )));
+    }
     match mask {
         Some(path) => {
             let (fp, header) = read_footprint(path, column)?;
             for w in &header.warnings {
                 eprintln!("planisphere: warning: {}: {w}", path.display());
             }
+            check_same_coordsys(
+                (&map_path.display().to_string(), map.coordsys.as_deref()),
+                (&path.display().to_string(), header.coordsys.as_deref()),
+                options.allow_coordsys_mismatch,
+            )?;
             fp.restricted_to(map)
         }
         None => Footprint::of_valid_pixels(map).restricted_to(map),

@@ -96,11 +96,8 @@ struct SettingsFile {
 }
 
 fn read_settings_file(path: &Path) -> Result<SettingsFile> {
-    let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
-    toml::from_str(&text).map_err(|e| {
-        let msg = e.message().replace('\n', " ");
-        Error::io(path, format!("bad settings: {msg}"))
-    })
+    let text = crate::files::read_text(path)?;
+    toml::from_str(&text).map_err(|e| super::inputs::toml_error(path, &text, &e, "bad settings"))
 }
 
 impl MeasureOptions {
@@ -352,24 +349,44 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
                     other.nside()
                 )));
             }
+            super::inputs::check_same_coordsys(
+                (&args.map.display().to_string(), map.coordsys.as_deref()),
+                (&path.display().to_string(), other.coordsys.as_deref()),
+                args.mask.allow_coordsys_mismatch,
+            )?;
             Some(other.to_ordering(map.ordering())?)
         }
         None => None,
     };
     let footprint = match &other {
-        None => args.mask.footprint_for(&map)?,
+        None => args.mask.footprint_for(&map, &args.map)?,
         Some(other) => {
-            let first =
-                untapered_footprint(&map, args.mask.mask.as_deref(), &args.mask.mask_column)?;
-            let second =
-                untapered_footprint(other, args.cross_mask.as_deref(), &args.cross_mask_column)
-                    .map_err(|e| match e {
-                        Error::Data(m) => Error::Data(format!("second map: {m}")),
-                        e => e,
-                    })?;
+            let first = untapered_footprint(
+                &map,
+                &args.map,
+                args.mask.mask.as_deref(),
+                &args.mask,
+                &args.mask.mask_column,
+            )?;
+            let other_path = args.cross.as_deref().unwrap_or(Path::new("second map"));
+            let second = untapered_footprint(
+                other,
+                other_path,
+                args.cross_mask.as_deref(),
+                &args.mask,
+                &args.cross_mask_column,
+            )
+            .map_err(|e| match e {
+                Error::Data(m) => Error::Data(format!("second map: {m}")),
+                e => e,
+            })?;
             args.mask.taper_footprint(first.intersection(&second)?)?
         }
     };
+    super::inputs::check_measurable(&map, Some(&footprint), &args.map.display().to_string())?;
+    if let (Some(other), Some(path)) = (&other, &args.cross) {
+        super::inputs::check_measurable(other, Some(&footprint), &path.display().to_string())?;
+    }
     let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
     let summary = measurer.summary();
     let taper = serde_json::json!({

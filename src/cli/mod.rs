@@ -97,6 +97,8 @@ pub fn main() -> i32 {
 }
 
 fn run(command: Command) -> Result<()> {
+    // every input and output path of the command, checked together before any work
+    output::command_files(&command)?.check()?;
     match command {
         Command::Demo(args) => demo::run(&args),
         Command::Sky(args) => sky::run(&args),

@@ -197,7 +197,7 @@ pub struct MeasurementFile {
 impl MeasurementFile {
     /// Reads and checks a measurement file.
     pub fn read(path: &Path) -> Result<Self> {
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        let text = crate::files::read_text(path)?;
         Self::parse(&text).map_err(|reason| Error::io(path, reason))
     }
 
@@ -784,7 +784,7 @@ pub struct ForecastFile {
 impl ForecastFile {
     /// Reads a forecast file.
     pub fn read(path: &Path) -> Result<Self> {
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        let text = crate::files::read_text(path)?;
         let file: ForecastFile = serde_json::from_str(&text)
             .map_err(|e| Error::io(path, format!("not a forecast file: {e}")))?;
         if file.fiducial.len() != file.parameters.len() {
@@ -1215,7 +1215,8 @@ pub fn run_tile_map(args: &TileMapArgs) -> Result<()> {
     let settings = args.options.settings()?;
     statistic.check(settings.scales, settings.orientations)?;
     let map = load_map(&args.map, &args.column)?;
-    let footprint = args.mask.footprint_for(&map)?;
+    let footprint = args.mask.footprint_for(&map, &args.map)?;
+    super::inputs::check_measurable(&map, Some(&footprint), &args.map.display().to_string())?;
     let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
     let stats = measurer.measure(&map, &footprint)?;
     let tiles: Vec<usize> = if stats.per_tile.len() == measurer.plan().len() {

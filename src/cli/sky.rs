@@ -98,10 +98,13 @@ pub fn recipe(args: &SkyArgs) -> Result<SkyRecipe> {
             args.nside
         )));
     }
-    if args.count == 0 {
-        return Err(Error::Setting("--count must be at least 1".into()));
-    }
+    crate::limits::check_index_range(args.first_index, args.count)?;
     let lmax = args.lmax.unwrap_or(3 * args.nside as usize - 1);
+    crate::limits::check_lmax("--lmax", lmax, args.nside)?;
+    crate::limits::check_memory(
+        &format!("a NSIDE {} sky up to ℓ = {lmax}", args.nside),
+        crate::limits::sky_bytes(args.nside, lmax),
+    )?;
     let spectrum = match &args.spectrum {
         Some(path) => AngularSpectrum::read_text(path)?,
         None => {
@@ -141,16 +144,19 @@ pub fn recipe(args: &SkyArgs) -> Result<SkyRecipe> {
     })
 }
 
+/// The output paths of every sky of a run (after checking the index range).
+pub fn output_paths(args: &SkyArgs) -> Result<Vec<PathBuf>> {
+    crate::limits::check_index_range(args.first_index, args.count)?;
+    (0..args.count)
+        .map(|i| indexed_path(&args.output, args.first_index + i, args.count))
+        .collect()
+}
+
 /// Makes and writes the skies.
 pub fn run(args: &SkyArgs) -> Result<()> {
     let recipe = recipe(args)?;
-    // check every output path before any work
-    let paths: Vec<PathBuf> = (0..args.count)
-        .map(|i| indexed_path(&args.output, args.first_index + i, args.count))
-        .collect::<Result<_>>()?;
-    for p in &paths {
-        super::output::check_output_path(p)?;
-    }
+    // every output path is checked before any work (see `cli::output::command_files`)
+    let paths = output_paths(args)?;
     let sht = recipe.transform()?;
     let options = WriteOptions {
         precision: if args.float32 {

@@ -109,20 +109,33 @@ pub fn run(args: &SpectraArgs) -> Result<()> {
     for p in args.csv.iter().chain(args.json.iter()) {
         super::output::check_output_path(p)?;
     }
+    crate::limits::check_harmonic_iterations(args.iterations)?;
     let map = load_map(&args.map, &args.column)?;
     let other = match &args.cross {
-        Some(p) => Some(load_map(p, &args.column)?),
+        Some(p) => {
+            let other = load_map(p, &args.column)?;
+            super::inputs::check_same_coordsys(
+                (&args.map.display().to_string(), map.coordsys.as_deref()),
+                (&p.display().to_string(), other.coordsys.as_deref()),
+                args.mask.allow_coordsys_mismatch,
+            )?;
+            Some(other)
+        }
         None => None,
     };
     let nside = map.nside() as usize;
     let lmax = args.lmax.unwrap_or(2 * nside);
-    if lmax > 4 * nside {
-        return Err(Error::Setting(format!(
-            "--lmax {lmax} is beyond 4·NSIDE = {} for this map",
-            4 * nside
-        )));
+    if lmax == 0 {
+        return Err(Error::Setting(
+            "--lmax must be at least 1: ℓ = 0 alone is only the map's mean".into(),
+        ));
     }
-    let footprint = args.mask.footprint_for(&map)?;
+    crate::limits::check_lmax("--lmax", lmax, map.nside())?;
+    let footprint = args.mask.footprint_for(&map, &args.map)?;
+    super::inputs::check_measurable(&map, Some(&footprint), &args.map.display().to_string())?;
+    if let (Some(other), Some(path)) = (&other, &args.cross) {
+        super::inputs::check_measurable(other, Some(&footprint), &path.display().to_string())?;
+    }
     let weights = (footprint.f_sky() < 1.0).then_some(&footprint);
     if args.pixel_window && !nside.is_power_of_two() {
         return Err(Error::Setting(format!(

@@ -134,7 +134,8 @@ fn read_target(path: &Path) -> Result<Target> {
         .unwrap_or_default();
     match extension.as_str() {
         "npy" => {
-            if !path.is_file() {
+            crate::files::require_regular_input(path)?;
+            if !path.exists() {
                 return Err(Error::io(path, "no such file"));
             }
             let array: Array2<f64> = ndarray_npy::read_npy(path)
@@ -157,9 +158,7 @@ fn read_target(path: &Path) -> Result<Target> {
                 values: array.iter().copied().collect(),
             })
         }
-        "json" => std::fs::read_to_string(path)
-            .map(Target::Coefficients)
-            .map_err(|e| Error::io(path, e)),
+        "json" => crate::files::read_text(path).map(Target::Coefficients),
         _ => Err(Error::io(
             path,
             "the target must be a .npy flat map or a .json coefficient file",
@@ -311,7 +310,7 @@ pub fn run(args: &SynthesizeArgs) -> Result<()> {
 /// The sampled field of tile `index` of `map` (with the mask options) and its pixel size.
 fn tile_of_sphere_map(args: &SynthesizeArgs, index: usize) -> Result<(usize, Vec<f64>, f64)> {
     let map = load_map(&args.target, &args.column)?;
-    let footprint = args.mask.footprint_for(&map)?;
+    let footprint = args.mask.footprint_for(&map, &args.target)?;
     let settings = measurement_settings(args)?;
     let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
     let plan = measurer.plan();
@@ -360,6 +359,18 @@ fn run_flat(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
             ))
         }
     };
+    if size < 8 || !size.is_power_of_two() {
+        return Err(Error::Setting(format!(
+            "--size must be a power of two of at least 8 pixels, got {size}"
+        )));
+    }
+    crate::limits::check_memory(
+        &format!(
+            "a flat synthesis of {size} × {size} pixels with J = {}, L = {}",
+            args.scales, args.orientations
+        ),
+        crate::limits::flat_synthesis_bytes(size, args.scales, args.orientations),
+    )?;
     let start = match (args.start, &target_input) {
         (Some(StartOption::White), _) | (None, Target::Coefficients(_)) => StartField::White,
         (Some(StartOption::Gaussian), _) | (None, Target::Map { .. }) => StartField::Gaussian,
@@ -427,6 +438,11 @@ fn checked_mask(args: &SynthesizeArgs, map: &SkyMap) -> Result<Option<Footprint>
     for w in &header.warnings {
         eprintln!("planisphere: warning: {}: {w}", path.display());
     }
+    crate::cli::inputs::check_same_coordsys(
+        (&args.target.display().to_string(), map.coordsys.as_deref()),
+        (&path.display().to_string(), header.coordsys.as_deref()),
+        args.mask.allow_coordsys_mismatch,
+    )?;
     if raw.pixelization().nside() != map.nside() {
         return Err(Error::Mismatch(format!(
             "mask NSIDE {} does not match target map NSIDE {}",
@@ -523,6 +539,11 @@ fn run_sphere(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
                 None => Footprint::of_valid_pixels(&map).restricted_to(&map)?,
             };
             let footprint = args.mask.taper_footprint(raw)?;
+            crate::cli::inputs::check_measurable(
+                &map,
+                Some(&footprint),
+                &args.target.display().to_string(),
+            )?;
             (Some(map), footprint)
         }
         "json" => {
@@ -555,8 +576,7 @@ fn run_sphere(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
     let target = match &target_map {
         Some(map) => synthesis.target_from_map(map)?,
         None => {
-            let text =
-                std::fs::read_to_string(&args.target).map_err(|e| Error::io(&args.target, e))?;
+            let text = crate::files::read_text(&args.target)?;
             let c = coefficients_from_json(&text, args.scales, args.orientations)
                 .map_err(|e| Error::io(&args.target, e))?;
             synthesis.target_from_coefficients(&c)?

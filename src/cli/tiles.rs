@@ -30,6 +30,9 @@ pub struct TilesArgs {
     /// and `synthesize` use with the same options.
     #[command(flatten)]
     pub options: MeasureOptions,
+    /// Use a mask whose COORDSYS header names another coordinate system than the map's.
+    #[arg(long)]
+    pub allow_coordsys_mismatch: bool,
     /// Write the plan and its summary as JSON to this file.
     #[arg(long)]
     pub json: Option<PathBuf>,
@@ -192,7 +195,15 @@ pub fn draw_tiling(plan: &TilingPlan, footprint: &Footprint, path: &Path) -> Res
 pub fn run(args: &TilesArgs) -> Result<()> {
     let map = load_map(&args.map, &args.column)?;
     let mask = match &args.mask {
-        Some(path) => read_footprint(path, &args.mask_column)?.0,
+        Some(path) => {
+            let (mask, header) = read_footprint(path, &args.mask_column)?;
+            super::inputs::check_same_coordsys(
+                (&args.map.display().to_string(), map.coordsys.as_deref()),
+                (&path.display().to_string(), header.coordsys.as_deref()),
+                args.allow_coordsys_mismatch,
+            )?;
+            mask
+        }
         None => Footprint::of_valid_pixels(&map),
     };
     let settings = args.options.settings()?;

@@ -46,7 +46,7 @@ pub fn run_flat_bias(args: &FlatBiasArgs) -> Result<()> {
 
 /// Reads a `compare-flat` table: JSON (an array of rows) or our CSV (columns found by name).
 pub fn read_rows(path: &Path) -> Result<Vec<FlatComparisonRow>> {
-    let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+    let text = crate::files::read_text(path)?;
     let rows = if text.trim_start().starts_with('[') {
         serde_json::from_str::<Vec<FlatComparisonRow>>(&text)
             .map_err(|e| Error::io(path, format!("not a compare-flat table: {e}")))?
