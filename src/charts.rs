@@ -10,8 +10,8 @@
 //! Axes are our own [`ChartAxis`] coordinate: linear or base-10 logarithmic, with tick
 //! positions chosen at 1, 2, 5 × 10^k (common practice) or given explicitly with their text.
 
-use crate::files::write_bytes;
 use crate::error::{Error, Result};
+use crate::files::write_bytes;
 use crate::plotting::{register_font, Rgb, FONT_FAMILY};
 use plotters::coord::ranged1d::{KeyPointHint, NoDefaultFormatting, Ranged, ValueFormatter};
 use plotters::prelude::*;
