@@ -15,7 +15,7 @@
 //! Inputs (made here, cached in the inputs folder, reproducible from fixed seeds): a Gaussian
 //! convergence-like map (RING, f64; `skies::SkyRecipe` with the built-in demo spectrum, σ = 0.02,
 //! ℓmax = 3·NSIDE − 1) and a binary survey mask of f_sky ≈ 0.37: galactic latitude |b| > 20°
-//! (`scenario::MockFootprint`, the map being in galactic coordinates) less 40 circular holes of
+//! (`scenario::benchmark_survey_mask`, the map being in galactic coordinates) less 40 circular holes of
 //! 0.5°–2.5° at seeded random positions, intersected with the declination band −70° < δ < +10°
 //! (δ from the galactic direction through the J2000 equatorial → galactic rotation of the
 //! Hipparcos catalogue, ESA 1997, vol. 1 §1.5.3; `Footprint::intersection`).
@@ -65,7 +65,6 @@ mod speed_limit {
     use planisphere::fits_io::{read_map, write_footprint, write_map, ColumnChoice, WriteOptions};
     use planisphere::measurement::{MeasurementSettings, SphereMeasurer};
     use planisphere::sampling::{SamplingMethod, TileSampler};
-    use planisphere::scenario::MockFootprint;
     use planisphere::skies::SkyRecipe;
     use planisphere::spectrum::AngularSpectrum;
     use planisphere::transform::{FftCount, ScatteringEngine};
@@ -159,24 +158,10 @@ mod speed_limit {
         npix: u64,
     }
 
-    /// The survey mask: |b| > 20° less 40 holes of 0.5°–2.5° (seed 11), within −70° < δ < +10°.
+    /// The survey mask: |b| > 20° less 40 holes of 0.5°–2.5° (seed 11), within −70° < δ < +10°
+    /// (`scenario::benchmark_survey_mask`).
     fn survey_mask(pix: Pixelization) -> Res<Footprint> {
-        let galactic = MockFootprint {
-            latitude_cut_deg: 20.0,
-            star_holes: 40,
-            hole_radius_deg: (0.5, 2.5),
-            seed: 11,
-        }
-        .build(pix);
-        // sin δ = third row of the galactic → equatorial rotation (transpose of the Hipparcos
-        // equatorial → galactic matrix) applied to the galactic unit vector.
-        let (lo, hi) = ((-70f64).to_radians().sin(), 10f64.to_radians().sin());
-        let band = Footprint::from_fn(pix, |d| {
-            let v = d.to_vector();
-            let sin_dec = -0.483_835_015_5 * v[0] + 0.746_982_244_5 * v[1] + 0.455_983_776_2 * v[2];
-            sin_dec > lo && sin_dec < hi
-        });
-        galactic.intersection(&band).map_err(|e| e.to_string())
+        planisphere::scenario::benchmark_survey_mask(pix).map_err(|e| e.to_string())
     }
 
     fn make_inputs(nside: u32, dir: &Path) -> Res<Inputs> {

@@ -7,28 +7,13 @@
 //!     cargo run --release --example tiling_waste [NSIDE ...]
 
 use planisphere::measurement::MeasurementSettings;
-use planisphere::scenario::MockFootprint;
+use planisphere::scenario::benchmark_survey_mask;
 use planisphere::{Footprint, Pixelization};
 
 /// The footprint of the example and of the speed benchmark (the map in galactic coordinates).
 fn survey_footprint(nside: u32) -> Footprint {
     let pix = Pixelization::new(nside, planisphere::Ordering::Ring).expect("valid NSIDE");
-    let galactic = MockFootprint {
-        latitude_cut_deg: 20.0,
-        star_holes: 40,
-        hole_radius_deg: (0.5, 2.5),
-        seed: 11,
-    }
-    .build(pix);
-    // sin δ = third row of the galactic → equatorial rotation (transpose of the Hipparcos
-    // equatorial → galactic matrix, ESA 1997, vol. 1 §1.5.3) applied to the galactic vector.
-    let (lo, hi) = ((-70f64).to_radians().sin(), 10f64.to_radians().sin());
-    let band = Footprint::from_fn(pix, |d| {
-        let v = d.to_vector();
-        let sin_dec = -0.483_835_015_5 * v[0] + 0.746_982_244_5 * v[1] + 0.455_983_776_2 * v[2];
-        sin_dec > lo && sin_dec < hi
-    });
-    galactic.intersection(&band).expect("same pixelization")
+    benchmark_survey_mask(pix).expect("one pixelization")
 }
 
 fn main() {

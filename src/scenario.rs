@@ -84,3 +84,31 @@ pub fn synthetic_waves(pixelization: Pixelization, waves: usize, seed: u64) -> S
             .sum()
     })
 }
+
+/// The survey mask of the speed benchmark and the plan's waste targets (our own scenario): a map
+/// in galactic coordinates observed at |b| > 20°, less 40 circular holes of 0.5°–2.5° (seed 11),
+/// within the declination band −70° < δ < +10°; f_sky ≈ 0.37. sin δ is the third row of the
+/// galactic → equatorial rotation (the transpose of the Hipparcos equatorial → galactic matrix,
+/// ESA 1997, vol. 1 §1.5.3) applied to the galactic unit vector.
+///
+/// ```
+/// use planisphere::{scenario::benchmark_survey_mask, Ordering, Pixelization};
+/// let mask = benchmark_survey_mask(Pixelization::new(64, Ordering::Ring).unwrap()).unwrap();
+/// assert!((0.35..0.39).contains(&mask.f_sky()));
+/// ```
+pub fn benchmark_survey_mask(pixelization: Pixelization) -> crate::Result<Footprint> {
+    let galactic = MockFootprint {
+        latitude_cut_deg: 20.0,
+        star_holes: 40,
+        hole_radius_deg: (0.5, 2.5),
+        seed: 11,
+    }
+    .build(pixelization);
+    let (lo, hi) = ((-70f64).to_radians().sin(), 10f64.to_radians().sin());
+    let band = Footprint::from_fn(pixelization, |d| {
+        let v = d.to_vector();
+        let sin_dec = -0.483_835_015_5 * v[0] + 0.746_982_244_5 * v[1] + 0.455_983_776_2 * v[2];
+        sin_dec > lo && sin_dec < hi
+    });
+    galactic.intersection(&band)
+}

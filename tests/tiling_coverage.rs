@@ -380,24 +380,8 @@ fn tool_chosen_tiles_transform_at_most_two_tile_pixels_per_footprint_pixel_at_j5
     // measure_speed_limit.rs) — the tile size the tool chooses transforms at most 2.0 tile pixels per footprint
     // pixel at J = 5 and at most 2.5 at J = 6, every footprint pixel still in exactly one core.
     use planisphere::measurement::MeasurementSettings;
-    use planisphere::scenario::MockFootprint;
     let pix = Pixelization::new(1024, Ordering::Ring).unwrap();
-    let galactic = MockFootprint {
-        latitude_cut_deg: 20.0,
-        star_holes: 40,
-        hole_radius_deg: (0.5, 2.5),
-        seed: 11,
-    }
-    .build(pix);
-    // −70° < δ < +10°: sin δ from the third row of the galactic → equatorial rotation
-    // (transpose of the Hipparcos equatorial → galactic matrix, ESA 1997, vol. 1 §1.5.3)
-    let (lo, hi) = ((-70f64).to_radians().sin(), 10f64.to_radians().sin());
-    let band = Footprint::from_fn(pix, |d| {
-        let v = d.to_vector();
-        let sin_dec = -0.483_835_015_5 * v[0] + 0.746_982_244_5 * v[1] + 0.455_983_776_2 * v[2];
-        sin_dec > lo && sin_dec < hi
-    });
-    let fp = galactic.intersection(&band).unwrap();
+    let fp = planisphere::scenario::benchmark_survey_mask(pix).unwrap();
     assert!((0.36..0.38).contains(&fp.f_sky()));
     for (scales, limit) in [(5usize, 2.0), (6, 2.5)] {
         let settings = MeasurementSettings {
