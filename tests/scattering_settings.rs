@@ -37,11 +37,20 @@ fn zero_orientations_or_zero_scales_are_rejected() {
 }
 
 #[test]
-fn tile_size_that_is_not_a_power_of_two_is_rejected() {
-    assert_eq!(
-        setting_message(ScatteringEngine::new(48, 2, 4)),
-        "tile size must be a power of two of at least 8 pixels, got 48"
-    );
+fn tile_size_outside_the_mixed_radix_sizes_is_rejected() {
+    // accepted: 2^k·m with m = 1, 3, 5, 7, 9 (k ≥ 4 when m > 1), so that the cropped grids
+    // n/2^d stay even (filters::is_tile_size)
+    for n in [44, 24, 100, 11] {
+        assert_eq!(
+            setting_message(ScatteringEngine::new(n, 2, 4)),
+            format!(
+                "tile size must be 2^k·m pixels (m = 1, 3, 5, 7 or 9; at least 8, and 16·m when m > 1), got {n}"
+            )
+        );
+    }
+    for n in [48, 80, 112, 144, 64] {
+        assert!(ScatteringEngine::new(n, 2, 4).is_ok(), "{n}");
+    }
 }
 
 #[test]

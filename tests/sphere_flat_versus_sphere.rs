@@ -12,7 +12,8 @@ use planisphere::{Footprint, Ordering, Pixelization};
 #[test]
 fn trusted_first_order_coefficients_match_flat_sky_within_two_percent_at_default_settings() {
     // Default settings (J = 4, L = 4, plane pixels of one map spacing, ring-cubic sampling)
-    // at NSIDE 512: tiles of the automatic size, 128 pixels, 14.6° across. Tolerance: the 2%
+    // at NSIDE 512: tiles of the automatic size (the candidate from 96 to 160 pixels, 11–18°
+    // across, whose plan transforms the fewest tile pixels). Tolerance: the 2%
     // acceptance level of this crate plus
     // 2.5 standard errors of the sphere mean (3 skies on a 30° cap; the flat reference, eight
     // 256-pixel maps, is far more precise). Scales below the sampling limit must be flagged.
@@ -26,7 +27,11 @@ fn trusted_first_order_coefficients_match_flat_sky_within_two_percent_at_default
     let (measurer, sets) = sphere_support::sphere_sets(nside, &footprint, settings, skies, 101);
     let pixel = measurer.plan().pixel_size();
     let width = (measurer.plan().tile_pixels() as f64 * pixel).to_degrees();
-    assert!(width <= 15.0, "tiles are {width}° across");
+    println!(
+        "tiles of {} pixels, {width:.1}° across",
+        measurer.plan().tile_pixels()
+    );
+    assert!(width <= 18.5, "tiles are {width}° across");
     let flat = sphere_support::flat_sets(nside, 256, pixel, settings.scales, 4, 8, 9000);
     let (sm, ssd) = sphere_support::mean_sd(&sets);
     let (fm, _) = sphere_support::mean_sd(&flat);
