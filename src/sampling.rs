@@ -16,7 +16,7 @@
 //! With the valid pixels fixed, every scheme is linear in the map values: f_t = S_t m.
 //! [`TileSampler::operator`] returns S_t as a sparse [`TileSamplingOperator`] (for each tile
 //! pixel the map pixels and weights it reads), with its adjoint, the scatter-add
-//! m̄[p] += w·f̄[k], used to send tile-field gradients back to the sphere
+//! `m̄[p] += w·f̄[k]`, used to send tile-field gradients back to the sphere
 //! (`tests/sampling_adjoint.rs`: equal to the sampler bit for bit, ⟨S m, y⟩ = ⟨m, Sᵀ y⟩).
 
 use crate::error::{Error, Result};
@@ -314,11 +314,11 @@ impl<'a> TileSampler<'a> {
 }
 
 /// The sampling of one tile as a sparse linear operator on the map values: with the map's
-/// valid-pixel pattern fixed, tile pixel k reads f_k = (Σ_e w_e m[p_e]) / d_k over its entries
+/// valid-pixel pattern fixed, tile pixel k reads f_k = (Σ_e w_e m\[p_e\]) / d_k over its entries
 /// e (HEALPix pixels p_e in the map's ordering and weights w_e, in the order
 /// [`TileSampler::sample`] reads them) and a divisor d_k (the sum of the weights of the valid
 /// neighbours for the renormalised linear schemes, 1 otherwise). So f = S m exactly as the
-/// sampler computes it, and the adjoint m̄[p_e] += (w_e / d_k)·f̄_k (scatter-add) gives the
+/// sampler computes it, and the adjoint m̄\[p_e\] += (w_e / d_k)·f̄_k (scatter-add) gives the
 /// gradient of any function of the tile field with respect to the map (definition of the
 /// adjoint, ⟨S m, y⟩ = ⟨m, Sᵀ y⟩; common practice).
 #[derive(Debug, Clone, PartialEq)]

@@ -64,7 +64,7 @@
 //!
 //! * **cross band power** P_AB(j,l) = ⟨Re[g^A_{j,l} · conj(g^B_{j,l})] / N_j⟩_{W_j}. It is the
 //!   band power of the auto path with one factor replaced by the other map, so P_AA = P(j,l)
-//!   (equal to rounding), it is bilinear (P_{A,cB} = c·P_AB) and E[P_AB] is the Parseval sum
+//!   (equal to rounding), it is bilinear (P_{A,cB} = c·P_AB) and E\[P_AB\] is the Parseval sum
 //!   Σ_q P_AB(q) |ψ̂_{j,l}(q)|² of the cross spectrum in the band (Wiener–Khinchin for the
 //!   cross-correlation, common practice). The same coverage normalisation as the auto band
 //!   power makes it unbiased away from edges for jointly stationary fields.
@@ -88,7 +88,7 @@
 //! `tests/scattering_cross.rs`): for independent fields every cross statistic vanishes (one
 //! factor has zero mean and is independent of the other); for Gaussian fields X1 and X2 vanish
 //! also when A = B (they are odd in I under I → −I, which leaves U unchanged); for
-//! B = r·A + √(1−r²)·Y with Y independent of A and of A's spectrum, E[P_AB] = r·√(E P_AA · E P_BB).
+//! B = r·A + √(1−r²)·Y with Y independent of A and of A's spectrum, E\[P_AB\] = r·√(E P_AA · E P_BB).
 //!
 //! Cost: the first-layer fields g^A, g^B and the second-layer fields of both auto transforms are
 //! reused; beyond two auto transforms with a shared coverage, the cross set needs one inverse

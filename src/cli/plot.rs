@@ -107,8 +107,8 @@ pub struct TileMapArgs {
     pub mask: MaskArgs,
     #[command(flatten)]
     pub options: MeasureOptions,
-    /// The statistic: mean, variance, S1_j<j> (averaged over orientations), S1_j<j>_l<l>,
-    /// bandpower_j<j>[_l<l>], S2_j<j1>_j<j2> (averaged over l1, l2) or S2_j<j1>_l<l1>_j<j2>_l<l2>.
+    /// The statistic: `mean`, `variance`, `S1_j<j>` (averaged over orientations), `S1_j<j>_l<l>`,
+    /// `bandpower_j<j>[_l<l>]`, `S2_j<j1>_j<j2>` (averaged over l1, l2) or `S2_j<j1>_l<l1>_j<j2>_l<l2>`.
     #[arg(long, value_name = "NAME")]
     pub statistic: String,
     /// Output picture (.png).

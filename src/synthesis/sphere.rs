@@ -33,7 +33,7 @@
 //!
 //! # Optimisation and start
 //!
-//! L-BFGS with the Moré–Thuente line search ([`super::minimise`], the flat synthesis's
+//! L-BFGS with the Moré–Thuente line search (`super::minimise`, the flat synthesis's
 //! optimiser), in the units x = (m − μ_t)/σ_t of the target's pooled mean and standard
 //! deviation. Start maps (seeded): a Gaussian sky with the target map's pseudo-C_ℓ on the
 //! footprint (w2-corrected, Hivon et al. 2002 first-order correction as in

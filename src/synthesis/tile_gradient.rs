@@ -40,7 +40,7 @@
 //! * modulus with normalisation h = c|z|: z̄ = h̄ c z/|z| (0 where z = 0, a subgradient);
 //! * z = IDFT_m(Y) / K: Ȳ = DFT_m(z̄) / K, because (IDFT_m)^H = DFT_m for the unnormalised
 //!   pair (ψ̂ is real, so it passes through the box step above unchanged);
-//! * box Y = B(ψ̂ · F), a gather of bins: F̄[s(p)] += ψ̂[s(p)] Ȳ[p] (a scatter-add back into
+//! * box Y = B(ψ̂ · F), a gather of bins: F̄\[s(p)\] += ψ̂\[s(p)\] Ȳ\[p\] (a scatter-add back into
 //!   the m × m spectrum; zeroed Nyquist lines receive nothing);
 //! * F = DFT_m(I) of a real I: Ī = Re IDFT_m(F̄);
 //! * tapered mean removal I = a (h − Σ a h / Σ a): h̄ = a Ī − a (Σ a Ī) / Σ a;
