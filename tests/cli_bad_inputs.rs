@@ -413,8 +413,8 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
             "J = 40 scales is too many: at most 12",
         ),
         (
-            s(&["measure", &map, "-o", &out, "--tile-pixels", "48"]),
-            "power of two",
+            s(&["measure", &map, "-o", &out, "--tile-pixels", "50"]),
+            "tile pixels must be 2^k·m",
         ),
         (
             s(&["measure", &map, "-o", &out, "-L", "0"]),

@@ -56,7 +56,8 @@ pub struct MeasureOptions {
     pub orientations: Option<usize>,
     /// Plane pixels per tile side, 2^k·m with m = 1, 3, 5, 7 or 9 [default: the tool's choice: of
     /// the sizes from ¾ to 5/4 of the smallest power of two ≥ 8 × halo (halved while wider than
-    /// 32°), the one whose plan transforms the fewest tile pixels].
+    /// 32°), the one whose plan transforms the fewest tile pixels, never beyond a corner
+    /// distortion of 1.53 (54.5° across): J scales that do not fit are refused].
     #[arg(long)]
     pub tile_pixels: Option<usize>,
     /// Cut the footprint into the pixels of a coarse HEALPix grid of this NSIDE instead of
