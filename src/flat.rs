@@ -155,6 +155,70 @@ pub fn masked_coefficients(engine: &ScatteringEngine, map: &FlatMap) -> Result<C
     pooled_coefficients(engine, &sums)
 }
 
+/// Measures a flat field as one tile with the statistics of a sphere measurement
+/// ([`crate::measurement::SphereMeasurer::measure`]): the full labelled set with trust flags,
+/// the orientation-harmonic summary, the tile power spectrum and (if enabled) bispectrum.
+///
+/// Without a mask the field is periodic (taper a ≡ 1, weight w ≡ 1,
+/// [`periodic_coefficients`]); with one, the mask-aware estimator of [`crate::transform`] runs
+/// with the mask as taper and pooling weight as given ([`masked_coefficients`]): a = w = mask,
+/// so a field that is not periodic needs a mask that falls to 0 at its edges. Uses `scales`,
+/// `orientations`, `transform`, `spectrum_bins` and `bispectrum` of `settings`; the tiling and
+/// sampling settings have no meaning here (no sampling: every coefficient the pooling trusts
+/// stays trusted). A value that could not be computed is never trusted.
+pub fn measure(
+    map: &FlatMap,
+    settings: &crate::measurement::MeasurementSettings,
+) -> Result<crate::measurement::MapStatistics> {
+    use crate::tile_spectra::{FourierStatistics, WavenumberBins};
+    let n = map.size;
+    let engine = ScatteringEngine::with_settings(
+        n,
+        settings.scales,
+        settings.orientations,
+        settings.transform,
+    )?;
+    let mut coefficients = match map.taper() {
+        None => periodic_coefficients(&engine, map)?,
+        Some(_) => masked_coefficients(&engine, map)?,
+    };
+    for c in coefficients.coefficients.iter_mut() {
+        c.trusted &= c.value.is_finite();
+    }
+    let summary = coefficients.summary().unwrap_or_default();
+    let ones;
+    let (taper, weight) = match map.taper() {
+        Some(t) => (t, map.weight().unwrap_or(t)),
+        None => {
+            ones = vec![1.0; n * n];
+            (&ones[..], &ones[..])
+        }
+    };
+    let weight_sum: f64 = weight.iter().sum();
+    if weight_sum.is_nan() || weight_sum <= 0.0 {
+        return Err(Error::Data(
+            "the mask is 0 everywhere: nothing to measure".into(),
+        ));
+    }
+    let bins = WavenumberBins::logarithmic(n, map.pixel_size, settings.spectrum_bins)?;
+    let fourier = FourierStatistics::new(n, map.pixel_size, bins)?;
+    let tile_power = fourier.power_spectrum(&map.values, taper, weight_sum)?;
+    let tile_bispectrum = if settings.bispectrum {
+        let triangles = fourier.triangles();
+        Some(fourier.bispectrum(&map.values, taper, weight_sum, &triangles)?)
+    } else {
+        None
+    };
+    Ok(crate::measurement::MapStatistics {
+        coefficients,
+        summary,
+        tile_power,
+        tile_bispectrum,
+        tiles: 1,
+        per_tile: Vec::new(),
+    })
+}
+
 /// In-place unnormalised 2D DFT of a row-major n × n complex array.
 fn fft2(data: &mut [Complex64], n: usize, inverse: bool) {
     let mut planner = FftPlanner::<f64>::new();

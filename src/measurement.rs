@@ -186,11 +186,26 @@ impl MeasurementSettings {
                 match self.tile_pixels {
                     Some(n) => TilingPlan::new(map, footprint, &settings(n))?,
                     None => {
-                        // of the candidate sizes, the plan that transforms the fewest tile
-                        // pixels (the first, i.e. the smallest size, on a tie)
+                        // of the candidate sizes within the distortion limit, the plan that
+                        // transforms the fewest tile pixels (the first, i.e. the smallest size,
+                        // on a tie); a refusal when even the smallest tile is too wide
                         let min = 1usize << (self.scales + 1);
+                        let smallest = crate::tiling::smallest_automatic_tile_pixels(halo, min);
+                        let limit = crate::tiling::MAX_AUTOMATIC_CORNER_DISTORTION;
+                        if crate::tiling::corner_distortion(smallest, delta) > limit {
+                            return Err(self.too_wide_error(map, delta, smallest));
+                        }
+                        let mut candidates: Vec<usize> =
+                            crate::tiling::automatic_tile_candidates(halo, delta, min)
+                                .into_iter()
+                                .filter(|&n| crate::tiling::corner_distortion(n, delta) <= limit)
+                                .collect();
+                        if candidates.is_empty() {
+                            candidates.push(smallest);
+                        }
+                        let fallback = candidates[0];
                         let mut best: Option<TilingPlan> = None;
-                        for n in crate::tiling::automatic_tile_candidates(halo, delta, min) {
+                        for n in candidates {
                             let Ok(plan) = TilingPlan::new(map, footprint, &settings(n)) else {
                                 continue;
                             };
@@ -201,11 +216,7 @@ impl MeasurementSettings {
                         }
                         match best {
                             Some(plan) => plan,
-                            None => TilingPlan::new(
-                                map,
-                                footprint,
-                                &settings(crate::tiling::automatic_tile_pixels(halo, delta, min)),
-                            )?,
+                            None => TilingPlan::new(map, footprint, &settings(fallback))?,
                         }
                     }
                 }
@@ -229,6 +240,78 @@ impl MeasurementSettings {
         };
         self.check_tile_pixels(plan.tile_pixels())?;
         Ok(plan)
+    }
+
+    /// Would the tool's own tile choice fit J = `scales` with a `border`-pixel ramp in tiles of
+    /// pixel side `delta` within [`crate::tiling::MAX_AUTOMATIC_CORNER_DISTORTION`]?
+    fn scales_fit(scales: usize, border: usize, delta: f64) -> bool {
+        let halo = MeasurementSettings {
+            scales,
+            border_pixels: border,
+            ..Default::default()
+        }
+        .halo();
+        let n = crate::tiling::smallest_automatic_tile_pixels(halo, 1usize << (scales + 1));
+        crate::tiling::corner_distortion(n, delta) <= crate::tiling::MAX_AUTOMATIC_CORNER_DISTORTION
+    }
+
+    /// The one-line refusal when J scales and their halo need tiles wider than the distortion
+    /// limit: what fits at this resolution and what to do.
+    fn too_wide_error(&self, map: Pixelization, delta: f64, smallest: usize) -> Error {
+        let limit = crate::tiling::MAX_AUTOMATIC_CORNER_DISTORTION;
+        let width = |n: usize, d: f64| 2.0 * (n as f64 / 2.0 * d).atan().to_degrees();
+        let max_width = 2.0 * ((limit - 1.0) / 2.0).sqrt().atan().to_degrees();
+        let b = self.border_pixels;
+        let fitting = (1..self.scales)
+            .rev()
+            .find(|&j| Self::scales_fit(j, b, delta));
+        let what_fits = match fitting {
+            Some(j) => format!("J ≤ {j} fits"),
+            None => {
+                // the most scales any thinner border allows, with the widest such border
+                let thinner = (1..self.scales).rev().find_map(|j| {
+                    (0..b)
+                        .rev()
+                        .find(|&b2| Self::scales_fit(j, b2, delta))
+                        .map(|b2| (j, b2))
+                });
+                match thinner {
+                    Some((j, b2)) => format!(
+                        "no J fits with the {b}-pixel border (J ≤ {j} does with --border-pixels {b2})"
+                    ),
+                    None => "no J fits".to_string(),
+                }
+            }
+        };
+        let remedy = match self.pixel_arcmin {
+            None => {
+                let nside = (map.nside()..=(1 << 29))
+                    .filter(|n| n.is_power_of_two())
+                    .find(|&n| {
+                        Pixelization::new(n, map.ordering())
+                            .map(|p| Self::scales_fit(self.scales, b, p.mean_spacing()))
+                            .unwrap_or(false)
+                    });
+                match nside {
+                    Some(n) => format!("a map of NSIDE ≥ {n}"),
+                    None => "a higher-NSIDE map".to_string(),
+                }
+            }
+            Some(_) => {
+                let d = 2.0 * ((limit - 1.0) / 2.0).sqrt() / smallest as f64;
+                format!("--pixel-arcmin ≤ {:.2}", d.to_degrees() * 60.0)
+            }
+        };
+        Error::Setting(format!(
+            "J = {} needs tiles of at least {smallest} pixels (4 halos of {}) of {:.1}′, {:.0}° across, beyond the {:.1}° (corner distortion sec²ρ ≤ {limit}) within which flat-sky bias has been measured small; at NSIDE {} {what_fits}; use fewer scales, {remedy} for J = {}, or --tile-pixels to accept wider tiles",
+            self.scales,
+            self.halo(),
+            delta.to_degrees() * 60.0,
+            width(smallest, delta),
+            max_width,
+            map.nside(),
+            self.scales
+        ))
     }
 
     fn check(&self) -> Result<()> {
@@ -597,7 +680,7 @@ impl SphereMeasurer {
                 .iter()
                 .flatten()
                 .all(|&j| self.scale_is_resolved(j));
-            c.trusted &= resolved;
+            c.trusted &= resolved && c.value.is_finite();
         }
         Ok(PairStatistics {
             first: self.assemble(firsts)?,
@@ -620,9 +703,11 @@ impl SphereMeasurer {
     }
 
     /// Flags untrusted every coefficient involving a scale the sampling does not carry (and the
-    /// variance when scale 0 is one of them).
+    /// variance when scale 0 is one of them), and every value that is not finite.
     fn flag_unresolved_scales(&self, set: &mut CoefficientSet) {
         for c in set.coefficients.iter_mut() {
+            // a value that could not be computed (no weight kept) is never trusted
+            c.trusted &= c.value.is_finite();
             let resolved = match c.label.kind {
                 CoefficientKind::Mean => true,
                 CoefficientKind::Variance => self.scale_is_resolved(0),

@@ -56,6 +56,37 @@ pub const MAX_TILE_PIXELS: usize = 8192;
 /// passes 1.15.
 pub const MAX_AUTOMATIC_TILE_WIDTH_DEG: f64 = 32.0;
 
+/// Largest radial scale distortion sec²ρ = 1 + 2·(nΔ/2)² at a grid corner that the tool's
+/// own tile-size choice accepts: 1.53, a tile at most 54.5° across. The evidence: the flat-sky
+/// bias of trusted coefficients does not depend on the tile width from 7° to 29°
+/// (`examples/sphere_flat_bias.rs`, NSIDE 256), and `compare-flat --nside 64 --tile-pixels
+/// 32,64 -J 3` (`examples/pictures/flat_bias_nside64.png`) finds S1 and P at the trusted scale
+/// j = 2 within 2σ (±2%) of flat sky on 54.2° tiles (corner sec²ρ = 1.52) as on 28.7° tiles;
+/// wider tiles have not been measured. The choice still prefers tiles of at most
+/// [`MAX_AUTOMATIC_TILE_WIDTH_DEG`]; when the J scales and their halo need a wider tile than
+/// this limit allows, `MeasurementSettings::plan` refuses (an explicit tile size is the user's
+/// choice, limited only by [`MAX_CORNER_DISTANCE`]).
+pub const MAX_AUTOMATIC_CORNER_DISTORTION: f64 = 1.53;
+
+/// The radial scale distortion sec²ρ = 1 + tan²ρ at the corner of an n × n gnomonic grid of
+/// pixel side Δ: tan²ρ = 2·(nΔ/2)² (gnomonic projection, Calabretta & Greisen 2002, A&A 395,
+/// 1077, TAN: R = tan ρ).
+pub fn corner_distortion(n: usize, pixel_size: f64) -> f64 {
+    let t = n as f64 / 2.0 * pixel_size;
+    1.0 + 2.0 * t * t
+}
+
+/// The smallest tile the tool's choice would use for a halo: the smallest engine size
+/// ([`crate::filters::is_tile_size`]) of at least 4 halos (a core at least as wide as both
+/// halos together, the floor of [`automatic_tile_pixels`]) and of `min_pixels`.
+pub fn smallest_automatic_tile_pixels(halo: usize, min_pixels: usize) -> usize {
+    let mut n = (4 * halo).max(min_pixels).max(8);
+    while !crate::filters::is_tile_size(n) {
+        n += 1;
+    }
+    n
+}
+
 /// How the footprint is cut into tile cores.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum CellLayout {

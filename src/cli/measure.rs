@@ -1,6 +1,8 @@
 //! `planisphere measure`: scattering coefficients, orientation-harmonic summary, band powers, tile power spectrum
 //! and bispectrum of one map on its footprint, written as JSON; with `--cross OTHER.fits`, the
-//! same for both maps on their common footprint plus their cross statistics.
+//! same for both maps on their common footprint plus their cross statistics. A flat field
+//! (`FIELD.npy --pixel-arcmin A [--mask MASK.npy]`) is measured as one periodic or masked tile
+//! with the same estimator, settings and JSON layout ([`crate::flat::measure`]).
 
 use super::inputs::{load_map, untapered_footprint, MaskArgs};
 use super::output::write_json;
@@ -54,7 +56,8 @@ pub struct MeasureOptions {
     pub orientations: Option<usize>,
     /// Plane pixels per tile side, 2^k·m with m = 1, 3, 5, 7 or 9 [default: the tool's choice: of
     /// the sizes from ¾ to 5/4 of the smallest power of two ≥ 8 × halo (halved while wider than
-    /// 32°), the one whose plan transforms the fewest tile pixels].
+    /// 32°), the one whose plan transforms the fewest tile pixels, never beyond a corner
+    /// distortion of 1.53 (54.5° across): J scales that do not fit are refused].
     #[arg(long)]
     pub tile_pixels: Option<usize>,
     /// Cut the footprint into the pixels of a coarse HEALPix grid of this NSIDE instead of
@@ -130,8 +133,11 @@ impl MeasureOptions {
 /// maps on their common footprint plus their cross statistics.
 #[derive(Debug, clap::Args)]
 pub struct MeasureArgs {
-    /// The map (HEALPix FITS).
-    #[arg(value_name = "MAP.fits")]
+    /// The map: HEALPix FITS, or a flat field as .npy (2-D float64 or float32, n × n with n =
+    /// 2^k·m, m = 1, 3, 5, 7, 9, at least 8 and 16·m when m > 1), which needs --pixel-arcmin
+    /// and is periodic unless --mask gives a .npy mask of the same shape (values in [0, 1],
+    /// 0 = masked, used as taper and weight as given).
+    #[arg(value_name = "MAP.fits|FIELD.npy")]
     pub map: PathBuf,
     /// Column of the map file: 0-based position or name.
     #[arg(long, default_value = "0")]
@@ -160,6 +166,10 @@ pub struct MeasureArgs {
         requires = "cross_mask"
     )]
     pub cross_mask_column: ColumnChoice,
+    /// Compute every layer on the full tile grid (no Fourier cropping): slower, exact to
+    /// rounding instead of within about 1e-3.
+    #[arg(long)]
+    pub full_resolution: bool,
     /// Output JSON file.
     #[arg(long, short, value_name = "FILE.json")]
     pub output: PathBuf,
@@ -252,13 +262,9 @@ struct CoefficientRecord {
     kept_weight_fraction: f64,
 }
 
-/// The JSON document of one measurement.
-pub fn measurement_document(
-    measurer: &SphereMeasurer,
-    stats: &MapStatistics,
-    source: &str,
-    taper: &serde_json::Value,
-) -> serde_json::Value {
+/// The "coefficients" (orders 0–2, each with its kind) and "band_powers" arrays of a
+/// measurement.
+fn coefficient_sections(stats: &MapStatistics) -> (serde_json::Value, serde_json::Value) {
     let record = |c: &crate::statistics::Coefficient| CoefficientRecord {
         order: c.label.order,
         j1: c.label.j1,
@@ -294,6 +300,20 @@ pub fn measurement_document(
         .filter(|c| c.label.kind == CoefficientKind::BandPower)
         .map(record)
         .collect();
+    (
+        serde_json::to_value(coefficients).unwrap_or_default(),
+        serde_json::to_value(band_powers).unwrap_or_default(),
+    )
+}
+
+/// The JSON document of one measurement.
+pub fn measurement_document(
+    measurer: &SphereMeasurer,
+    stats: &MapStatistics,
+    source: &str,
+    taper: &serde_json::Value,
+) -> serde_json::Value {
+    let (coefficients, band_powers) = coefficient_sections(stats);
     let s = measurer.settings();
     serde_json::json!({
         "program": "planisphere",
@@ -329,7 +349,13 @@ pub fn measurement_document(
 /// Measures one map (or a pair with `--cross`) and writes the JSON document.
 pub fn run(args: &MeasureArgs) -> Result<()> {
     super::output::check_output_path(&args.output)?;
-    let settings = args.options.settings()?;
+    let mut settings = args.options.settings()?;
+    if args.full_resolution {
+        settings.transform.fourier_cropping = false;
+    }
+    if super::flat_input::is_flat_field(&args.map)? {
+        return run_flat(args, settings);
+    }
     let map = load_map(&args.map, &args.column)?;
     let other = match &args.cross {
         Some(path) => {
@@ -446,5 +472,138 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
             if c.trusted { "" } else { "  (untrusted)" }
         );
     }
+    Ok(())
+}
+
+/// Measures a flat field (.npy) as one periodic or masked tile and writes the JSON document.
+fn run_flat(args: &MeasureArgs, settings: MeasurementSettings) -> Result<()> {
+    let o = &args.options;
+    let sphere_only = [
+        (args.cross.is_some(), "--cross"),
+        (
+            o.coarse_nside.is_some() || settings.coarse_nside.is_some(),
+            "--coarse-nside",
+        ),
+        (
+            o.tile_pixels.is_some() || settings.tile_pixels.is_some(),
+            "--tile-pixels (the field is the tile)",
+        ),
+        (o.sampling.is_some(), "--sampling"),
+        (o.border_pixels.is_some(), "--border-pixels"),
+        (
+            args.mask.allow_coordsys_mismatch,
+            "--allow-coordsys-mismatch",
+        ),
+        (
+            args.mask.taper != crate::apodization::TaperKind::C2 || args.mask.taper_arcmin != 60.0,
+            "--taper/--taper-arcmin (a flat mask is used as given)",
+        ),
+    ];
+    if let Some((_, name)) = sphere_only.iter().find(|(given, _)| *given) {
+        return Err(Error::Setting(format!(
+            "{name} applies to HEALPix maps only, not to the flat field {}",
+            args.map.display()
+        )));
+    }
+    let Some(arcmin) = settings.pixel_arcmin else {
+        return Err(Error::Setting(format!(
+            "the flat field {} needs --pixel-arcmin A (the side of its pixels in arcmin)",
+            args.map.display()
+        )));
+    };
+    if !(arcmin.is_finite() && arcmin > 0.0) {
+        return Err(Error::Setting(format!(
+            "pixel size must be positive, got {arcmin} arcmin"
+        )));
+    }
+    let field = super::flat_input::read_field(&args.map)?;
+    let n = field.size;
+    let mask = match &args.mask.mask {
+        Some(path) => Some(super::flat_input::read_mask(path, n)?),
+        None => None,
+    };
+    let values = super::flat_input::field_values(&args.map, field.values, mask.as_deref())?;
+    let pixel = (arcmin / 60.0).to_radians();
+    let mut map = crate::flat::FlatMap::new(n, pixel, values)?;
+    if let Some(m) = &mask {
+        map = map.with_mask(m.clone(), None)?;
+    }
+    let stats = crate::flat::measure(&map, &settings)?;
+    let (coefficients, band_powers) = coefficient_sections(&stats);
+    let periodic = mask.is_none();
+    let observed = mask
+        .as_ref()
+        .map_or(n * n, |m| m.iter().filter(|&&v| v > 0.0).count());
+    let mask_mean = mask
+        .as_ref()
+        .map_or(1.0, |m| m.iter().sum::<f64>() / (n * n) as f64);
+    let layout = if periodic {
+        "one periodic flat tile"
+    } else {
+        "one masked flat tile"
+    };
+    let s = &settings;
+    let doc = serde_json::json!({
+        "program": "planisphere",
+        "program_version": env!("CARGO_PKG_VERSION"),
+        "map": args.map.display().to_string(),
+        "input": {
+            "kind": "flat field",
+            "pixels": n,
+            "pixel_arcmin": arcmin,
+            "periodic": periodic,
+        },
+        "settings": {
+            "scales": s.scales,
+            "orientations": s.orientations,
+            "tile_pixels": n,
+            "cells": layout,
+            "coarse_nside": null,
+            "pixel_arcmin": arcmin,
+            "border_pixels": null,
+            "halo_pixels": null,
+            "sampling": null,
+            "coverage_threshold": s.transform.coverage_threshold,
+            "trusted_fraction": s.transform.trusted_fraction,
+            "fourier_cropping": s.transform.fourier_cropping,
+            "spectrum_bins": s.spectrum_bins,
+            "bispectrum": s.bispectrum,
+            "taper": {
+                "kind": if periodic { "none (periodic)" } else { "mask as given" },
+                "width_arcmin": null,
+                "mask": args.mask.mask.as_ref().map(|p| p.display().to_string()),
+            },
+        },
+        "tiling": {
+            "cells": layout,
+            "tiles": 1,
+            "tile_pixels": n,
+            "pixel_size_arcmin": arcmin,
+            "tile_width_deg": n as f64 * arcmin / 60.0,
+            "periodic": periodic,
+            "footprint_pixels": observed,
+            "mean_mask_weight": mask_mean,
+        },
+        "tiles_measured": stats.tiles,
+        "coefficients": coefficients,
+        "summary": stats.summary,
+        "band_powers": band_powers,
+        "tile_power_spectrum": stats.tile_power,
+        "tile_bispectrum": stats.tile_bispectrum,
+    });
+    write_json(&args.output, &doc)?;
+    let trusted = stats
+        .coefficients
+        .coefficients
+        .iter()
+        .filter(|c| c.trusted)
+        .count();
+    println!(
+        "flat field {n}² pixels of {arcmin}′ ({}): {} coefficients ({trusted} trusted), {} summary items, written to {}",
+        if periodic { "periodic" } else { "masked" },
+        stats.coefficients.coefficients.len(),
+        stats.summary.len(),
+        args.output.display()
+    );
     Ok(())
 }

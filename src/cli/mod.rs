@@ -9,6 +9,7 @@ use clap::{Parser, Subcommand};
 pub mod compare_flat;
 pub mod demo;
 pub mod ensemble;
+pub mod flat_input;
 pub mod forecast;
 pub mod inputs;
 pub mod inspect;

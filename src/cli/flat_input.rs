@@ -1,0 +1,133 @@
+//! Flat fields and masks given to `measure` as .npy files: detection, reading (2-D float64 or
+//! float32, square, a tile size the engine accepts) and the checks on them, each a one-line
+//! error.
+
+use crate::error::{Error, Result};
+use ndarray::Array2;
+use std::io::Read;
+use std::path::Path;
+
+/// The first bytes of every .npy file (the NumPy format's magic string).
+const NPY_MAGIC: &[u8; 6] = b"\x93NUMPY";
+
+/// Is `path` a flat field: a .npy name, or a file that starts with the .npy magic string?
+/// (HEALPix maps are FITS files; anything else is left to the FITS reader to refuse.)
+pub fn is_flat_field(path: &Path) -> Result<bool> {
+    let npy_name = path
+        .extension()
+        .is_some_and(|e| e.to_string_lossy().eq_ignore_ascii_case("npy"));
+    if npy_name {
+        return Ok(true);
+    }
+    let mut head = [0u8; 6];
+    let magic = std::fs::File::open(path)
+        .and_then(|mut f| f.read_exact(&mut head))
+        .is_ok()
+        && &head == NPY_MAGIC;
+    Ok(magic)
+}
+
+/// A square array read from a .npy file, row-major (index row·n + column).
+pub struct SquareArray {
+    pub size: usize,
+    pub values: Vec<f64>,
+}
+
+/// Reads a 2-D float64 or float32 .npy array (float32 widened exactly to f64).
+fn read_array(path: &Path, what: &str) -> Result<Array2<f64>> {
+    crate::files::require_regular_input(path)?;
+    match ndarray_npy::read_npy::<_, Array2<f64>>(path) {
+        Ok(a) => Ok(a),
+        Err(e64) => match ndarray_npy::read_npy::<_, Array2<f32>>(path) {
+            Ok(a) => Ok(a.mapv(f64::from)),
+            Err(_) => Err(Error::io(
+                path,
+                format!("{what} must be a 2-D float64 or float32 .npy array ({e64})"),
+            )),
+        },
+    }
+}
+
+/// Reads a flat field: square, n a size the engine accepts ([`crate::filters::is_tile_size`]),
+/// at most [`crate::tiling::MAX_TILE_PIXELS`].
+pub fn read_field(path: &Path) -> Result<SquareArray> {
+    let array = read_array(path, "a flat field")?;
+    let (rows, cols) = array.dim();
+    if rows != cols {
+        return Err(Error::io(
+            path,
+            format!("a flat field must be square, got {rows} rows × {cols} columns"),
+        ));
+    }
+    if !crate::filters::is_tile_size(rows) || rows > crate::tiling::MAX_TILE_PIXELS {
+        return Err(Error::io(
+            path,
+            format!(
+                "a flat field of {rows} × {rows} pixels: the side must be 2^k·m (m = 1, 3, 5, 7 or 9; at least 8, and 16·m when m > 1) and at most {}; crop or pad it",
+                crate::tiling::MAX_TILE_PIXELS
+            ),
+        ));
+    }
+    Ok(SquareArray {
+        size: rows,
+        values: array.iter().copied().collect(),
+    })
+}
+
+/// Reads a flat mask of the field's shape n × n with finite values in [0, 1], not all 0.
+pub fn read_mask(path: &Path, n: usize) -> Result<Vec<f64>> {
+    let array = read_array(path, "a flat mask")?;
+    let (rows, cols) = array.dim();
+    if (rows, cols) != (n, n) {
+        return Err(Error::Mismatch(format!(
+            "{}: the mask is {rows} × {cols} but the field is {n} × {n}",
+            path.display()
+        )));
+    }
+    let values: Vec<f64> = array.iter().copied().collect();
+    if let Some(i) = values
+        .iter()
+        .position(|v| !(v.is_finite() && (0.0..=1.0).contains(v)))
+    {
+        return Err(Error::Data(format!(
+            "{}: mask value {} at row {}, column {} is outside [0, 1]",
+            path.display(),
+            values[i],
+            i / n,
+            i % n
+        )));
+    }
+    if values.iter().all(|&v| v == 0.0) {
+        return Err(Error::Data(format!(
+            "{}: the mask is 0 everywhere: nothing to measure",
+            path.display()
+        )));
+    }
+    Ok(values)
+}
+
+/// The field's values with non-finite values allowed only where the mask is 0 (set to 0 there:
+/// the taper removes them); elsewhere a non-finite value is an error.
+pub fn field_values(path: &Path, mut values: Vec<f64>, mask: Option<&[f64]>) -> Result<Vec<f64>> {
+    let n = (values.len() as f64).sqrt() as usize;
+    for (i, v) in values.iter_mut().enumerate() {
+        if !v.is_finite() {
+            if mask.is_some_and(|m| m[i] == 0.0) {
+                *v = 0.0;
+            } else {
+                return Err(Error::Data(format!(
+                    "{}: value {v} at row {}, column {}{}",
+                    path.display(),
+                    i / n.max(1),
+                    i % n.max(1),
+                    if mask.is_some() {
+                        " where the mask is not 0 (non-finite values are allowed only where it is 0)"
+                    } else {
+                        " (a flat field without --mask must be finite everywhere)"
+                    }
+                )));
+            }
+        }
+    }
+    Ok(values)
+}
