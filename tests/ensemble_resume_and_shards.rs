@@ -113,7 +113,12 @@ fn a_directory_refuses_a_different_job() {
     let e = EnsembleJob::create_or_open(&d, description(6))
         .unwrap_err()
         .to_string();
-    assert!(e.ends_with("already holds an ensemble with other members or settings; choose another output directory"), "{e}");
+    assert!(
+        e.ends_with(
+            "already holds another ensemble job (5 members vs 6, there vs here); choose another output directory"
+        ),
+        "{e}"
+    );
 }
 
 #[test]
