@@ -709,13 +709,17 @@ fn row_state(
         Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(RowState::Missing),
         _ => {}
     }
-    let text = crate::files::read_text(&path)?;
-    let row: Row = serde_json::from_str(&text).map_err(|e| {
+    let unreadable = |why: String| {
         Error::io(
             &path,
-            format!("not a readable row file ({e}); delete it to measure member {i} again"),
+            format!("not a readable row file ({why}); delete it to measure member {i} again"),
         )
+    };
+    let text = crate::files::read_text(&path).map_err(|e| match e {
+        Error::Io { reason, .. } => unreadable(reason),
+        other => unreadable(other.to_string()),
     })?;
+    let row: Row = serde_json::from_str(&text).map_err(|e| unreadable(e.to_string()))?;
     let source = &description.members[i];
     if row.member != i || row.source != *source {
         return Err(Error::io(
