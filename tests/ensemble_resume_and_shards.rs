@@ -122,6 +122,36 @@ fn a_directory_refuses_a_different_job() {
 }
 
 #[test]
+fn a_refused_job_is_told_the_first_difference_and_changes_nothing() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path().join("e");
+    EnsembleJob::create_or_open(&d, description(5)).unwrap();
+    let before = std::fs::read(d.join("ensemble.json")).unwrap();
+    let mut member = description(5);
+    member.members[3] = MemberSource::File("x.fits".into());
+    let mut setting = description(5);
+    setting.settings = serde_json::json!({"kind": "other"});
+    let mut version = description(5);
+    version.program_version = "next".into();
+    for (other, words) in [
+        (
+            member,
+            "(member 3 is simulation 3 vs x.fits, there vs here)",
+        ),
+        (setting, "(kind 'test' vs 'other', there vs here)"),
+        (version, "(program version test vs next, there vs here)"),
+    ] {
+        let e = EnsembleJob::create_or_open(&d, other)
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains(words), "{e}");
+        assert_eq!(std::fs::read(d.join("ensemble.json")).unwrap(), before);
+    }
+    // the same job opens it again
+    EnsembleJob::create_or_open(&d, description(5)).unwrap();
+}
+
+#[test]
 fn shard_text_and_slurm_variables_are_parsed_and_checked() {
     assert_eq!(Shard::parse("2/5").unwrap(), Shard { index: 2, count: 5 });
     for bad in ["5/5", "x/2", "3", "1/0"] {
