@@ -3,17 +3,35 @@
 //!
 //! On disk an ensemble is a directory:
 //!
-//! - `ensemble.json`: the members (sources in order), the column labels and the settings;
-//!   written once, and checked on every later run so that a rerun can only continue the same job;
-//! - `rows/row_NNNNNN.json`: one finished member each (its source, checksum and values), written
-//!   to a temporary file and renamed, so a killed run leaves only whole rows behind. JSON keeps
-//!   every f64 exactly (shortest round-trip form), so resumed and uninterrupted runs agree bit for
-//!   bit;
+//! - `ensemble.json`: the members (sources in order), the column labels, the settings and the
+//!   program version, with the job's identity (see [`EnsembleDescription::identity`]); written
+//!   once, and checked on every later run so that a rerun can only continue the same job;
+//! - `rows/row_NNNNNN.json`: one finished member each (its source, its input's SHA-256, its
+//!   values and the stamp of the job that measured it), written to a temporary file and renamed,
+//!   so a killed run leaves only whole rows behind. JSON keeps every f64 exactly (shortest
+//!   round-trip form), so resumed and uninterrupted runs agree bit for bit;
 //! - after merging: `statistics.npy` (members × columns, float64), `statistics.json` (labels,
 //!   settings, program version, each member's source and checksum) and `statistics.csv`.
 //!
 //! Member i belongs to shard k of K when i mod K = k; on a SLURM cluster the shard is taken from
 //! `SLURM_ARRAY_TASK_ID` and `SLURM_ARRAY_TASK_COUNT` when none is given.
+//!
+//! Nothing mixed, nothing stale:
+//!
+//! - **One job per directory.** `ensemble.json` is created without ever replacing a file (a
+//!   temporary file hard-linked into place), so of two jobs started at once on one directory
+//!   exactly one writes it; the other finds it, compares, and is refused with the first
+//!   difference (a setting, the member list, the columns, the program version). Shards of the
+//!   same job find the same description and run side by side (they write different rows). No
+//!   lock is held, so a killed run leaves nothing that could block a later one.
+//! - **Every row is stamped** with the job identity, the settings behind it, and digests of the
+//!   member list and labels. Resume and merge refuse a row of another job (copied in, or left
+//!   by an older program version) with the setting that differs, and a row file that cannot be
+//!   read as a row with its file name; they never treat it as "not measured yet".
+//! - **Stale inputs.** A row of a map file records the file's SHA-256. On resume a row whose
+//!   file no longer has that checksum is measured again (and counted as re-measured); `merge`
+//!   refuses such a row (the table would not describe the files on disk). A file that is gone is
+//!   not checked: its row stands for the file as it was measured.
 
 use crate::error::{Error, Result};
 use crate::files::{write_atomically, write_bytes, write_json};
@@ -144,6 +162,184 @@ pub struct EnsembleDescription {
     pub settings: serde_json::Value,
 }
 
+/// SHA-256 of bytes, hex encoded.
+fn sha256_hex(bytes: &[u8]) -> String {
+    Sha256::digest(bytes)
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect()
+}
+
+/// SHA-256 of a value's JSON text (serde_json writes struct fields in declaration order and
+/// object keys in a fixed order, so equal values give equal digests).
+fn json_digest<T: serde::Serialize>(value: &T) -> String {
+    sha256_hex(serde_json::to_string(value).unwrap_or_default().as_bytes())
+}
+
+impl EnsembleDescription {
+    /// The job identity: SHA-256 (hex) of the canonical JSON of the program version, the
+    /// members, the labels and the settings.
+    pub fn identity(&self) -> String {
+        json_digest(self)
+    }
+
+    /// What every row of this job carries.
+    pub fn stamp(&self) -> JobStamp {
+        JobStamp {
+            identity: self.identity(),
+            program_version: self.program_version.clone(),
+            members_sha256: json_digest(&self.members),
+            labels_sha256: json_digest(&self.labels),
+            settings: self.settings.clone(),
+        }
+    }
+
+    /// The first difference between two descriptions, in words ("setting 'sampling': 'Nearest'
+    /// vs 'RingCubic'"), reading `self` as the existing one and `other` as the new one; `None`
+    /// when they are the same job.
+    pub fn difference(&self, other: &EnsembleDescription) -> Option<String> {
+        if let Some(d) = settings_difference(&self.settings, &other.settings) {
+            return Some(d);
+        }
+        if self.members != other.members {
+            if self.members.len() != other.members.len() {
+                return Some(format!(
+                    "{} members vs {}",
+                    self.members.len(),
+                    other.members.len()
+                ));
+            }
+            let i = (0..self.members.len())
+                .find(|&i| self.members[i] != other.members[i])
+                .unwrap_or(0);
+            return Some(format!(
+                "member {i} is {} vs {}",
+                self.members[i], other.members[i]
+            ));
+        }
+        if self.labels != other.labels {
+            return Some(format!(
+                "columns {} vs {}",
+                short_list(&self.labels),
+                short_list(&other.labels)
+            ));
+        }
+        if self.program_version != other.program_version {
+            return Some(format!(
+                "program version {} vs {}",
+                self.program_version, other.program_version
+            ));
+        }
+        None
+    }
+}
+
+fn short_list(labels: &[String]) -> String {
+    let mut s = labels
+        .iter()
+        .take(3)
+        .cloned()
+        .collect::<Vec<_>>()
+        .join(", ");
+    if labels.len() > 3 {
+        s.push_str(&format!(", … ({} in all)", labels.len()));
+    }
+    format!("[{s}]")
+}
+
+fn value_text(v: Option<&serde_json::Value>) -> String {
+    match v {
+        None | Some(serde_json::Value::Null) => "none".into(),
+        Some(serde_json::Value::String(s)) => format!("'{s}'"),
+        Some(v) => {
+            let t = v.to_string();
+            if t.chars().count() > 60 {
+                format!("{}…", t.chars().take(60).collect::<String>())
+            } else {
+                t
+            }
+        }
+    }
+}
+
+/// The first setting that differs between two settings values, named by its path
+/// ("recipe.seed 7 vs 9"); `None` when they are equal.
+pub fn settings_difference(a: &serde_json::Value, b: &serde_json::Value) -> Option<String> {
+    fn walk(
+        path: &str,
+        a: Option<&serde_json::Value>,
+        b: Option<&serde_json::Value>,
+    ) -> Option<String> {
+        use serde_json::Value;
+        if a == b {
+            return None;
+        }
+        if let (Some(Value::Object(x)), Some(Value::Object(y))) = (a, b) {
+            let mut keys: Vec<&String> = x.keys().chain(y.keys()).collect();
+            keys.sort();
+            keys.dedup();
+            for k in keys {
+                let p = if path.is_empty() {
+                    k.clone()
+                } else {
+                    format!("{path}.{k}")
+                };
+                if let Some(d) = walk(&p, x.get(k.as_str()), y.get(k.as_str())) {
+                    return Some(d);
+                }
+            }
+            return None;
+        }
+        let name = if path.is_empty() { "settings" } else { path };
+        Some(format!("{name} {} vs {}", value_text(a), value_text(b)))
+    }
+    walk("", Some(a), Some(b))
+}
+
+/// The identity of the job that measured a row, with what is needed to say how two jobs differ.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct JobStamp {
+    /// [`EnsembleDescription::identity`] of the job.
+    pub identity: String,
+    pub program_version: String,
+    /// SHA-256 of the member list's JSON.
+    pub members_sha256: String,
+    /// SHA-256 of the column labels' JSON.
+    pub labels_sha256: String,
+    /// The job's settings.
+    pub settings: serde_json::Value,
+}
+
+impl JobStamp {
+    /// The first difference between the job of `self` (a row's) and `job` (this one's), in
+    /// words, reading `self` first; `None` for the same job.
+    pub fn difference(&self, job: &JobStamp) -> Option<String> {
+        if self.identity == job.identity {
+            return None;
+        }
+        if let Some(d) = settings_difference(&self.settings, &job.settings) {
+            return Some(d);
+        }
+        if self.members_sha256 != job.members_sha256 {
+            return Some("another member list".into());
+        }
+        if self.labels_sha256 != job.labels_sha256 {
+            return Some("other columns".into());
+        }
+        if self.program_version != job.program_version {
+            return Some(format!(
+                "program version {} vs {}",
+                self.program_version, job.program_version
+            ));
+        }
+        Some(format!(
+            "job identity {} vs {}",
+            short_hash(Some(&self.identity)),
+            short_hash(Some(&job.identity))
+        ))
+    }
+}
+
 /// One finished member.
 #[derive(Debug, Clone, serde::Serialize, serde::Deserialize)]
 pub struct Row {
@@ -152,6 +348,19 @@ pub struct Row {
     /// SHA-256 of the input file (hex), `None` for simulations.
     pub checksum: Option<String>,
     pub values: Vec<f64>,
+    /// The job that measured it (absent in rows of older program versions).
+    #[serde(default)]
+    pub job: Option<JobStamp>,
+}
+
+/// What a member's row file says.
+enum RowState {
+    /// No row file.
+    Missing,
+    /// A row of this job, its input unchanged (or gone).
+    Done(Row),
+    /// A row of this job whose map file has changed since: the reason.
+    Stale(String),
 }
 
 /// What one run did.
@@ -161,6 +370,8 @@ pub struct RunReport {
     pub members_in_shard: usize,
     pub already_done: usize,
     pub measured: usize,
+    /// Members measured again because their map file changed after their row was written.
+    pub remeasured_stale: usize,
     pub failed: Vec<String>,
 }
 
@@ -199,6 +410,14 @@ pub fn file_checksum(path: &Path) -> Result<String> {
         h.update(&buf[..n]);
     }
     Ok(h.finalize().iter().map(|b| format!("{b:02x}")).collect())
+}
+
+/// The description file: the description and its identity.
+#[derive(serde::Serialize, serde::Deserialize)]
+struct DescriptionFile {
+    #[serde(flatten)]
+    description: EnsembleDescription,
+    identity: Option<String>,
 }
 
 /// Members from a list file (one path per line, relative to the list's directory; `#` comments).
@@ -278,31 +497,49 @@ impl EnsembleJob {
         }
         std::fs::create_dir_all(dir.join("rows")).map_err(|e| Error::io(dir, e))?;
         let path = dir.join("ensemble.json");
-        if path.exists() {
-            let old = Self::read_description(dir)?;
-            if old.members != description.members
-                || old.labels != description.labels
-                || old.settings != description.settings
-            {
-                return Err(Error::Mismatch(format!(
-                    "{} already holds an ensemble with other members or settings; choose another output directory",
-                    dir.display()
-                )));
-            }
-        } else {
-            write_json(&path, &description)?;
+        let file = DescriptionFile {
+            identity: Some(description.identity()),
+            description,
+        };
+        let text = serde_json::to_string_pretty(&file)
+            .map_err(|e| Error::io(&path, format!("cannot encode JSON: {e}")))?;
+        // created once, never replaced: of two jobs racing for the directory exactly one wins
+        if !path.exists() && crate::files::write_new(&path, text.as_bytes())? {
+            return Ok(EnsembleJob {
+                dir: dir.to_path_buf(),
+                description: file.description,
+            });
+        }
+        let old = Self::read_description(dir)?;
+        if let Some(d) = old.difference(&file.description) {
+            return Err(Error::Mismatch(format!(
+                "{} already holds another ensemble job ({d}, there vs here); choose another output directory",
+                dir.display()
+            )));
         }
         Ok(EnsembleJob {
             dir: dir.to_path_buf(),
-            description,
+            description: file.description,
         })
     }
 
+    /// Reads `ensemble.json` and checks that its recorded identity matches its contents.
     fn read_description(dir: &Path) -> Result<EnsembleDescription> {
         let path = dir.join("ensemble.json");
         let text = crate::files::read_text(&path)?;
-        serde_json::from_str(&text)
-            .map_err(|e| Error::io(&path, format!("not an ensemble description: {e}")))
+        let file: DescriptionFile = serde_json::from_str(&text)
+            .map_err(|e| Error::io(&path, format!("not an ensemble description: {e}")))?;
+        match &file.identity {
+            None => Err(Error::io(
+                &path,
+                "carries no job identity (written by an older planisphere); measure the ensemble again into a new directory",
+            )),
+            Some(id) if *id != file.description.identity() => Err(Error::io(
+                &path,
+                "its recorded job identity does not match its contents (edited by hand?)",
+            )),
+            Some(_) => Ok(file.description),
+        }
     }
 
     /// The description.
@@ -310,14 +547,9 @@ impl EnsembleJob {
         &self.description
     }
 
-    /// Is member `i` finished (its row present and readable, with the expected length)?
-    fn is_done(&self, i: usize) -> bool {
-        read_row(&self.dir, i)
-            .map(|r| {
-                r.values.len() == self.description.labels.len()
-                    && r.source == self.description.members[i]
-            })
-            .unwrap_or(false)
+    /// The state of member `i`'s row (see [`row_state`]).
+    fn row_state(&self, stamp: &JobStamp, i: usize) -> Result<RowState> {
+        row_state(&self.dir, &self.description, stamp, i)
     }
 
     /// Measures the members of `shard` that are not finished yet, in parallel, with `measure`
@@ -330,11 +562,25 @@ impl EnsembleJob {
         let in_shard: Vec<usize> = (0..self.description.members.len())
             .filter(|&i| shard.contains(i))
             .collect();
-        let todo: Vec<usize> = in_shard
-            .iter()
-            .copied()
-            .filter(|&i| !self.is_done(i))
-            .collect();
+        let stamp = self.description.stamp();
+        // every row of the shard checked before any work: a row of another job or an unreadable
+        // row file stops the run; a row whose map file changed is measured again
+        let states: Vec<RowState> = in_shard
+            .par_iter()
+            .map(|&i| self.row_state(&stamp, i))
+            .collect::<Result<_>>()?;
+        let mut todo = Vec::new();
+        let mut stale = 0;
+        for (&i, state) in in_shard.iter().zip(&states) {
+            match state {
+                RowState::Done(_) => {}
+                RowState::Missing => todo.push(i),
+                RowState::Stale(_) => {
+                    stale += 1;
+                    todo.push(i)
+                }
+            }
+        }
         let bar = if progress {
             let b = indicatif::ProgressBar::new(todo.len() as u64);
             if let Ok(style) = indicatif::ProgressStyle::with_template(
@@ -376,6 +622,7 @@ impl EnsembleJob {
                         source: source.clone(),
                         checksum,
                         values,
+                        job: Some(stamp.clone()),
                     };
                     write_json(&row_path(&self.dir, i), &row)
                 })();
@@ -391,6 +638,7 @@ impl EnsembleJob {
             members_in_shard: in_shard.len(),
             already_done: in_shard.len() - todo.len(),
             measured: todo.len() - failed.len(),
+            remeasured_stale: stale,
             failed,
         };
         if let Some(first) = report.failed.first() {
@@ -403,20 +651,28 @@ impl EnsembleJob {
         Ok(report)
     }
 
-    /// Reads all rows of an ensemble directory in member order; an error names the missing ones.
+    /// Reads all rows of an ensemble directory in member order; an error names the missing ones,
+    /// a row of another job (with what differs), an unreadable row file, or a row whose map file
+    /// changed after it was measured.
     pub fn merge(dir: &Path) -> Result<MergedTable> {
         let description = Self::read_description(dir)?;
+        let stamp = description.stamp();
+        let states: Vec<RowState> = (0..description.members.len())
+            .into_par_iter()
+            .map(|i| row_state(dir, &description, &stamp, i))
+            .collect::<Result<_>>()?;
         let mut rows = Vec::with_capacity(description.members.len());
         let mut missing = Vec::new();
-        for i in 0..description.members.len() {
-            match read_row(dir, i) {
-                Ok(r)
-                    if r.values.len() == description.labels.len()
-                        && r.source == description.members[i] =>
-                {
-                    rows.push(r)
+        for (i, state) in states.into_iter().enumerate() {
+            match state {
+                RowState::Done(r) => rows.push(r),
+                RowState::Missing => missing.push(i),
+                RowState::Stale(why) => {
+                    return Err(Error::Mismatch(format!(
+                        "{}: {why}; run the ensemble again to re-measure it",
+                        dir.display()
+                    )))
                 }
-                _ => missing.push(i),
             }
         }
         if let Some(&first) = missing.first() {
@@ -439,10 +695,84 @@ impl EnsembleJob {
     }
 }
 
-fn read_row(dir: &Path, i: usize) -> Result<Row> {
+/// Member `i`'s row, checked against the job: missing; done; stale (a map file whose SHA-256
+/// is no longer the recorded one); or an error for a file that is not a row, a row of another
+/// member, of another job, or of the wrong length — each naming the row file.
+fn row_state(
+    dir: &Path,
+    description: &EnsembleDescription,
+    stamp: &JobStamp,
+    i: usize,
+) -> Result<RowState> {
     let path = row_path(dir, i);
-    let text = crate::files::read_text(&path)?;
-    serde_json::from_str(&text).map_err(|e| Error::io(&path, e))
+    match std::fs::symlink_metadata(&path) {
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(RowState::Missing),
+        _ => {}
+    }
+    let unreadable = |why: String| {
+        Error::io(
+            &path,
+            format!("not a readable row file ({why}); delete it to measure member {i} again"),
+        )
+    };
+    let text = crate::files::read_text(&path).map_err(|e| match e {
+        Error::Io { reason, .. } => unreadable(reason),
+        other => unreadable(other.to_string()),
+    })?;
+    let row: Row = serde_json::from_str(&text).map_err(|e| unreadable(e.to_string()))?;
+    let source = &description.members[i];
+    if row.member != i || row.source != *source {
+        return Err(Error::io(
+            &path,
+            format!(
+                "holds member {} ({}), not member {i} ({source})",
+                row.member, row.source
+            ),
+        ));
+    }
+    let Some(job) = &row.job else {
+        return Err(Error::io(
+            &path,
+            format!("row {i} carries no job identity (written by an older planisphere); delete it to measure it again"),
+        ));
+    };
+    if let Some(d) = job.difference(stamp) {
+        return Err(Error::Mismatch(format!(
+            "{}: row {i} belongs to another job ({d}, row vs this job)",
+            path.display()
+        )));
+    }
+    if row.values.len() != description.labels.len() {
+        return Err(Error::io(
+            &path,
+            format!(
+                "row {i} has {} values where the ensemble has {} columns",
+                row.values.len(),
+                description.labels.len()
+            ),
+        ));
+    }
+    if let MemberSource::File(file) = source {
+        if file.exists() {
+            let now = file_checksum(file)?;
+            if row.checksum.as_deref() != Some(now.as_str()) {
+                return Ok(RowState::Stale(format!(
+                    "{} changed after row {i} was measured (SHA-256 {} then, {} now)",
+                    file.display(),
+                    short_hash(row.checksum.as_deref()),
+                    short_hash(Some(&now))
+                )));
+            }
+        }
+    }
+    Ok(RowState::Done(row))
+}
+
+fn short_hash(h: Option<&str>) -> String {
+    match h {
+        Some(h) => format!("{}…", h.chars().take(12).collect::<String>()),
+        None => "none".into(),
+    }
 }
 
 /// Writes `<stem>.npy`, `<stem>.json` and `<stem>.csv` of a table into `dir`.

@@ -159,6 +159,28 @@ pub fn write_bytes(path: &Path, bytes: &[u8]) -> Result<()> {
     })
 }
 
+/// Writes `bytes` to `path` only if nothing is there yet, atomically: the whole file appears at
+/// once (a temporary file hard-linked into place) and an existing file is never replaced, even
+/// by a process racing for the same path. Returns `false` (and writes nothing) when `path`
+/// already exists.
+pub fn write_new(path: &Path, bytes: &[u8]) -> Result<bool> {
+    check_output_path(path)?;
+    let tmp = temporary_path(path);
+    let _ = std::fs::remove_file(&tmp);
+    let written = (|| -> Result<bool> {
+        let mut f = std::fs::File::create(&tmp).map_err(|e| Error::io(path, e))?;
+        f.write_all(bytes).map_err(|e| Error::io(path, e))?;
+        f.sync_all().map_err(|e| Error::io(path, e))?;
+        match std::fs::hard_link(&tmp, path) {
+            Ok(()) => Ok(true),
+            Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => Ok(false),
+            Err(e) => Err(Error::io(path, e)),
+        }
+    })();
+    let _ = std::fs::remove_file(&tmp);
+    written
+}
+
 /// Writes a value as pretty JSON atomically.
 pub fn write_json<T: serde::Serialize>(path: &Path, value: &T) -> Result<()> {
     let text = serde_json::to_string_pretty(value)

@@ -113,7 +113,42 @@ fn a_directory_refuses_a_different_job() {
     let e = EnsembleJob::create_or_open(&d, description(6))
         .unwrap_err()
         .to_string();
-    assert!(e.ends_with("already holds an ensemble with other members or settings; choose another output directory"), "{e}");
+    assert!(
+        e.ends_with(
+            "already holds another ensemble job (5 members vs 6, there vs here); choose another output directory"
+        ),
+        "{e}"
+    );
+}
+
+#[test]
+fn a_refused_job_is_told_the_first_difference_and_changes_nothing() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path().join("e");
+    EnsembleJob::create_or_open(&d, description(5)).unwrap();
+    let before = std::fs::read(d.join("ensemble.json")).unwrap();
+    let mut member = description(5);
+    member.members[3] = MemberSource::File("x.fits".into());
+    let mut setting = description(5);
+    setting.settings = serde_json::json!({"kind": "other"});
+    let mut version = description(5);
+    version.program_version = "next".into();
+    for (other, words) in [
+        (
+            member,
+            "(member 3 is simulation 3 vs x.fits, there vs here)",
+        ),
+        (setting, "(kind 'test' vs 'other', there vs here)"),
+        (version, "(program version test vs next, there vs here)"),
+    ] {
+        let e = EnsembleJob::create_or_open(&d, other)
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains(words), "{e}");
+        assert_eq!(std::fs::read(d.join("ensemble.json")).unwrap(), before);
+    }
+    // the same job opens it again
+    EnsembleJob::create_or_open(&d, description(5)).unwrap();
 }
 
 #[test]

@@ -315,8 +315,16 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
         },
         !args.quiet,
     )?;
+    let stale = if report.remeasured_stale > 0 {
+        format!(
+            " ({} of them again because their map file changed)",
+            report.remeasured_stale
+        )
+    } else {
+        String::new()
+    };
     println!(
-        "shard {}/{}: {} maps, {} already done, {} measured; {} statistics per map",
+        "shard {}/{}: {} maps, {} already done, {} measured{stale}; {} statistics per map",
         report.shard.index,
         report.shard.count,
         report.members_in_shard,

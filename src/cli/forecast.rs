@@ -3,7 +3,7 @@
 //! statistic sets (power spectrum, band powers, order 1, orders 1+2, orientation-harmonic summary, bispectrum).
 
 use super::output::{write_bytes, write_json};
-use crate::ensemble::{EnsembleJob, MergedTable};
+use crate::ensemble::{settings_difference, EnsembleJob, MergedTable};
 use crate::error::{Error, Result};
 use crate::forecast::{
     compare_statistic_sets, ColumnLabel, CovarianceEstimate, DerivativeEnsembles, Ensemble,
@@ -233,15 +233,47 @@ fn check_distinct_parameters(list: &[(String, f64, PathBuf, PathBuf)]) -> Result
     Ok(())
 }
 
+/// Settings that may differ between the ensembles of one forecast: what is simulated or read
+/// (the recipe, the map files' column) and the mask's file name (its SHA-256 is compared).
+const SETTINGS_FREE_ACROSS_ENSEMBLES: [&str; 3] = ["recipe", "column", "mask"];
+
+/// Refuses an ensemble measured differently from the fiducial one (sampling, tiles, scales,
+/// mask, bins, ...), naming the first setting that differs.
+fn check_same_measurement(
+    fiducial: (&Path, &MergedTable),
+    other: (&Path, &MergedTable),
+) -> Result<()> {
+    let strip = |t: &MergedTable| {
+        let mut v = t.description.settings.clone();
+        if let Some(o) = v.as_object_mut() {
+            for k in SETTINGS_FREE_ACROSS_ENSEMBLES {
+                o.remove(k);
+            }
+        }
+        v
+    };
+    if let Some(d) = settings_difference(&strip(other.1), &strip(fiducial.1)) {
+        return Err(Error::Mismatch(format!(
+            "{} was measured differently from the fiducial ensemble {}: {d}; a forecast needs one measurement throughout",
+            other.0.display(),
+            fiducial.0.display()
+        )));
+    }
+    Ok(())
+}
+
 fn load_derivatives(
     list: &[(String, f64, PathBuf, PathBuf)],
     paired: bool,
+    fiducial: (&Path, &MergedTable),
 ) -> Result<Vec<DerivativeEnsembles>> {
     check_distinct_parameters(list)?;
     let mut derivatives = Vec::new();
     for (name, step, plus, minus) in list {
-        let (p, _) = load_ensemble(plus)?;
-        let (m, _) = load_ensemble(minus)?;
+        let (p, pt) = load_ensemble(plus)?;
+        check_same_measurement(fiducial, (plus, &pt))?;
+        let (m, mt) = load_ensemble(minus)?;
+        check_same_measurement(fiducial, (minus, &mt))?;
         derivatives.push(DerivativeEnsembles {
             parameter: name.clone(),
             step: *step,
@@ -288,8 +320,8 @@ pub fn run(args: &ForecastArgs) -> Result<()> {
         (None, None) => None,
         (a, b) => Some(ScaleCut::new(a.unwrap_or(0.0), b.unwrap_or(f64::INFINITY))?),
     };
-    let (fiducial, _) = load_ensemble(fiducial_dir)?;
-    let derivatives = load_derivatives(&list, args.paired)?;
+    let (fiducial, fiducial_table) = load_ensemble(fiducial_dir)?;
+    let derivatives = load_derivatives(&list, args.paired, (fiducial_dir, &fiducial_table))?;
     let names: Vec<String> = derivatives.iter().map(|d| d.parameter.clone()).collect();
     let fiducial_values = parse_fiducial_values(&args.fiducial_value, &names)?;
     let result = forecast_sets(&fiducial, &derivatives, cut.as_ref())?;
@@ -469,13 +501,17 @@ fn run_plan(args: &ForecastArgs, path: &Path) -> Result<()> {
     let mut csv = String::new();
     let mut text = String::new();
     for case in &plan.cases {
-        let (fiducial, _) = load_ensemble(&case.fiducial)?;
+        let (fiducial, fiducial_table) = load_ensemble(&case.fiducial)?;
         let list: Vec<(String, f64, PathBuf, PathBuf)> = case
             .derivative
             .iter()
             .map(|d| (d.parameter.clone(), d.step, d.plus.clone(), d.minus.clone()))
             .collect();
-        let derivatives = load_derivatives(&list, case.paired.unwrap_or(plan.paired))?;
+        let derivatives = load_derivatives(
+            &list,
+            case.paired.unwrap_or(plan.paired),
+            (&case.fiducial, &fiducial_table),
+        )?;
         for cut in &plan.scale_cuts {
             let tag = format!("{}; {}", case.label, cut.text());
             let mut result = forecast_sets(&fiducial, &derivatives, cut.cut()?.as_ref())
