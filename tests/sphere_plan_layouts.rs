@@ -12,10 +12,15 @@ use planisphere::statistics::CoefficientSet;
 use planisphere::{Ordering, Pixelization};
 
 #[test]
-#[ignore = "fails: 0.30 σ at the largest-scale band power with the halo of one envelope width (0.13 σ with two, at a higher tile count)"]
 fn latitude_bands_and_healpix_cells_agree_within_a_fifth_of_the_single_sky_scatter() {
-    let nside = 128;
-    let skies = 24u64;
+    // NSIDE 256, J = 4, 64-pixel tiles of one map spacing (14.6° across, the demo's tiles),
+    // 16 skies. Measured: worst 0.135 σ (0.084 σ with 24 skies). At NSIDE 128 the same tiles are
+    // 29° across and the largest-scale band power differs by 0.30 σ between the plans; with
+    // plane pixels of h/2 there (tiles of 14.6° again) every trusted coefficient agrees within
+    // 0.065 σ: the difference comes from where each core sits in its tile (gnomonic scale
+    // distortion sec²ρ), not from the partition.
+    let nside = 256;
+    let skies = 16u64;
     let pix = Pixelization::new(nside, Ordering::Ring).unwrap();
     let footprint = sphere_support::holed_cap(nside, 2.5, 2.0);
     let base = MeasurementSettings {
@@ -30,7 +35,7 @@ fn latitude_bands_and_healpix_cells_agree_within_a_fifth_of_the_single_sky_scatt
         pix,
         &footprint,
         MeasurementSettings {
-            coarse_nside: Some(8),
+            coarse_nside: Some(16),
             ..base
         },
     )
