@@ -126,21 +126,23 @@ pub fn distance_to_mask(footprint: &Footprint, max_distance: f64) -> Result<Vec<
         .map(|&x| if x > 0.0 { max_distance } else { 0.0 })
         .collect();
     // Masked pixels that touch an observed pixel: the sources of the distance.
+    // Only the boundary pixels are collected (in pixel order): collecting an entry for every
+    // masked pixel first made this step the measurement's peak of memory (about 300 MB at
+    // NSIDE 1024, measured with valgrind's massif).
     let sources: Vec<u64> = (0..npix)
         .into_par_iter()
         .filter(|&p| w[p as usize] <= 0.0)
-        .map(|p| -> Result<Option<u64>> {
-            let nb = pix.neighbours(p)?;
-            Ok(nb
-                .iter()
-                .flatten()
-                .any(|&q| w[q as usize] > 0.0)
-                .then_some(p))
+        .filter_map(|p| -> Option<Result<u64>> {
+            match pix.neighbours(p) {
+                Ok(nb) => nb
+                    .iter()
+                    .flatten()
+                    .any(|&q| w[q as usize] > 0.0)
+                    .then_some(Ok(p)),
+                Err(e) => Some(Err(e)),
+            }
         })
-        .collect::<Result<Vec<_>>>()?
-        .into_iter()
-        .flatten()
-        .collect();
+        .collect::<Result<Vec<_>>>()?;
     let depth = cdshealpix::depth(pix.nside());
     let nested = pix.with_ordering(crate::pixelization::Ordering::Nested)?;
     // Search radius padded by one pixel radius so that cells whose centre lies inside are found.
