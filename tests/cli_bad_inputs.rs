@@ -1416,3 +1416,26 @@ fn an_array_task_id_without_a_task_count_is_refused() {
         f.dir.path(),
     );
 }
+
+#[test]
+fn user_numbers_in_messages_are_printed_compactly() {
+    // a value given with 300 leading zeros comes back in scientific notation, not 300 digits
+    let f = Fixtures::new();
+    let cases: Vec<(Vec<String>, &str)> = vec![(
+        strings(&[
+            "sky",
+            "--nside",
+            "16",
+            "--lognormal-shift",
+            "1e-300",
+            "-o",
+            &f.path("s.fits"),
+        ]),
+        "1e-300",
+    )];
+    refuse_all(&f, &cases);
+    for (args, _) in &cases {
+        let (_, stderr) = run(args, f.dir.path());
+        assert!(stderr.len() < 300, "{args:?}: {stderr}");
+    }
+}

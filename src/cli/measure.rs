@@ -513,7 +513,8 @@ fn run_flat(args: &MeasureArgs, settings: MeasurementSettings) -> Result<()> {
     };
     if !(arcmin.is_finite() && arcmin > 0.0) {
         return Err(Error::Setting(format!(
-            "pixel size must be positive, got {arcmin} arcmin"
+            "pixel size must be positive, got {} arcmin",
+            crate::error::compact(arcmin)
         )));
     }
     let field = super::flat_input::read_field(&args.map)?;
