@@ -144,6 +144,40 @@ impl Fixtures {
             &WriteOptions::default(),
         )
         .unwrap();
+        // a mask with one observed pixel, and weight maps holding +inf in two pixels (the
+        // written marker weight 0.123456789 is replaced by the IEEE-754 bytes of +inf)
+        let mut single = vec![0.0; pix16.npix() as usize];
+        single[1000] = 1.0;
+        let single = Footprint::from_weights(pix16, single).unwrap();
+        write_footprint(
+            &p("onepixel_mask16.fits"),
+            "MASK",
+            &single,
+            &WriteOptions::default(),
+        )
+        .unwrap();
+        let mut marked = vec![1.0; pix16.npix() as usize];
+        marked[7] = 0.123456789;
+        marked[300] = 0.123456789;
+        let marked = Footprint::from_weights(pix16, marked).unwrap();
+        write_footprint(
+            &p("inf_mask16.fits"),
+            "MASK",
+            &marked,
+            &WriteOptions::default(),
+        )
+        .unwrap();
+        let mut bytes = std::fs::read(p("inf_mask16.fits")).unwrap();
+        let marker = 0.123456789f64.to_be_bytes();
+        let mut replaced = 0;
+        for i in 0..bytes.len() - 7 {
+            if bytes[i..i + 8] == marker {
+                bytes[i..i + 8].copy_from_slice(&f64::INFINITY.to_be_bytes());
+                replaced += 1;
+            }
+        }
+        assert_eq!(replaced, 2, "marker weights not found in the written mask");
+        std::fs::write(p("inf_mask16.fits"), &bytes).unwrap();
         Fixtures { dir }
     }
 
@@ -1415,6 +1449,41 @@ fn an_array_task_id_without_a_task_count_is_refused() {
         &before,
         f.dir.path(),
     );
+}
+
+#[test]
+fn masks_with_a_single_or_an_infinite_weight_are_refused_with_the_reason() {
+    let f = Fixtures::new();
+    let map = f.path("map16.fits");
+    let out = f.path("out.json");
+    let with_quick = |v: &[&str]| {
+        let mut a = strings(v);
+        a.extend(strings(&QUICK));
+        a
+    };
+    let one = f.path("onepixel_mask16.fits");
+    let inf = f.path("inf_mask16.fits");
+    let single = "the mask has only one observed pixel (pixel 1000): there are no fluctuations";
+    let infinite = "inf_mask16.fits: the mask holds +inf in 2 pixels (first: pixel 7)";
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        (
+            with_quick(&["measure", &map, "--mask", &one, "-o", &out]),
+            single,
+        ),
+        (
+            with_quick(&[
+                "measure", &map, "--mask", &one, "--taper", "none", "-o", &out,
+            ]),
+            single,
+        ),
+        (strings(&["spectra", &map, "--mask", &one]), single),
+        (
+            with_quick(&["measure", &map, "--mask", &inf, "-o", &out]),
+            infinite,
+        ),
+        (strings(&["spectra", &map, "--mask", &inf]), infinite),
+    ];
+    refuse_all(&f, &cases);
 }
 
 #[test]
