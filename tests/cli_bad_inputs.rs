@@ -1508,3 +1508,70 @@ fn user_numbers_in_messages_are_printed_compactly() {
         assert!(stderr.len() < 300, "{args:?}: {stderr}");
     }
 }
+
+/// Measures a simulated ensemble of `count` NSIDE 16 skies (random seed `seed`) into `name`.
+fn tiny_ensemble(f: &Fixtures, name: &str, count: u32, seed: u32) -> String {
+    let recipe = f.path(&format!("{name}.toml"));
+    std::fs::write(
+        &recipe,
+        format!("nside = 16\ncount = {count}\nseed = {seed}\n"),
+    )
+    .unwrap();
+    let dir = f.path(name);
+    let mut args = strings(&["ensemble", "-o", &dir, "--simulate", &recipe, "--quiet"]);
+    args.extend(strings(&QUICK));
+    let (code, stderr) = run(&args, f.dir.path());
+    assert_eq!(code, Some(0), "{stderr}");
+    dir
+}
+
+#[test]
+fn a_forecast_in_which_every_statistic_set_fails_is_refused() {
+    // 3 simulations are too few for an unbiased precision matrix of any set (Hartlap et al.
+    // 2007 needs more than p + 2); with 6, only the 2-statistic power spectrum succeeds and the
+    // run is kept, naming the failed sets on stderr
+    let f = Fixtures::new();
+    let fid = tiny_ensemble(&f, "fid3", 3, 1);
+    let plus = tiny_ensemble(&f, "plus3", 3, 7);
+    let derivative = format!("a,0.1,{plus},{fid}");
+    let args = strings(&[
+        "forecast",
+        "--fiducial",
+        &fid,
+        "--derivative",
+        &derivative,
+        "-o",
+        &f.path("fc.json"),
+    ]);
+    let before = snapshot(f.dir.path());
+    let (code, stderr) = run(&args, f.dir.path());
+    assert_refused(
+        &args,
+        code,
+        &stderr,
+        "every statistic set failed (6 of 6); the first, power spectrum (pseudo-C_l): 3 simulations are too few",
+        &before,
+        f.dir.path(),
+    );
+
+    let fid = tiny_ensemble(&f, "fid6", 6, 1);
+    let plus = tiny_ensemble(&f, "plus6", 6, 7);
+    let derivative = format!("a,0.1,{plus},{fid}");
+    let out = f.path("fc6.json");
+    let args = strings(&[
+        "forecast",
+        "--fiducial",
+        &fid,
+        "--derivative",
+        &derivative,
+        "-o",
+        &out,
+    ]);
+    let (code, stderr) = run(&args, f.dir.path());
+    assert_eq!(code, Some(0), "{stderr}");
+    assert!(Path::new(&out).is_file());
+    assert!(
+        stderr.contains("planisphere: warning: 5 of 6 statistic sets failed (tile power spectrum,"),
+        "{stderr}"
+    );
+}
