@@ -1575,3 +1575,29 @@ fn a_forecast_in_which_every_statistic_set_fails_is_refused() {
         "{stderr}"
     );
 }
+
+#[test]
+fn a_png_that_cannot_be_written_is_refused_in_one_line() {
+    // a file-size limit (ulimit -f, its signal ignored) makes the write fail as a full disk
+    // does: the system's reason comes back in one line and no partial file is left
+    let f = Fixtures::new();
+    let bin = env!("CARGO_BIN_EXE_planisphere");
+    let mut args = strings(&["tiles", &f.path("map16.fits"), "--png", &f.path("t.png")]);
+    args.extend(strings(&QUICK));
+    let before = snapshot(f.dir.path());
+    let mut line = vec![
+        "-c".to_string(),
+        "trap '' XFSZ; ulimit -f 8 && exec \"$0\" \"$@\"".to_string(),
+        bin.to_string(),
+    ];
+    line.extend(args.iter().cloned());
+    let (code, stderr) = run_program("sh", &line, f.dir.path());
+    assert_refused(
+        &args,
+        code,
+        &stderr,
+        "t.png: File too large (os error 27)",
+        &before,
+        f.dir.path(),
+    );
+}
