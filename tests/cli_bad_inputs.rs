@@ -1601,3 +1601,35 @@ fn a_png_that_cannot_be_written_is_refused_in_one_line() {
         f.dir.path(),
     );
 }
+
+#[test]
+fn a_map_too_large_to_measure_within_the_memory_limit_is_refused_with_the_estimate() {
+    // an NSIDE 1024 map (12.6 million pixels) needs about 0.6 GB to measure; under an
+    // address-space limit of 400 MB (ulimit -v) it is refused before its pixels are read
+    let f = Fixtures::new();
+    let bin = env!("CARGO_BIN_EXE_planisphere");
+    let big = f.path("map1024.fits");
+    let (code, stderr) = run(
+        &strings(&["sky", "--nside", "1024", "--lmax", "64", "-o", &big]),
+        f.dir.path(),
+    );
+    assert_eq!(code, Some(0), "{stderr}");
+    let mut args = strings(&["measure", &big, "-o", &f.path("m.json")]);
+    args.extend(strings(&QUICK));
+    let before = snapshot(f.dir.path());
+    let mut line = vec![
+        "-c".to_string(),
+        "ulimit -v 400000 && exec \"$0\" \"$@\"".to_string(),
+        bin.to_string(),
+    ];
+    line.extend(args.iter().cloned());
+    let (code, stderr) = run_program("sh", &line, f.dir.path());
+    assert_refused(
+        &args,
+        code,
+        &stderr,
+        "measuring a NSIDE 1024 map needs about 0.6 GB, more than the 0.4 GB of the address-space limit (ulimit -v)",
+        &before,
+        f.dir.path(),
+    );
+}

@@ -356,6 +356,14 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
     if super::flat_input::is_flat_field(&args.map)? {
         return run_flat(args, settings);
     }
+    let nside = crate::fits_io::HealpixFitsReader::open(&args.map)?
+        .header()
+        .nside;
+    let maps = if args.cross.is_some() { 2 } else { 1 };
+    crate::limits::check_memory(
+        &format!("measuring a NSIDE {nside} map"),
+        crate::limits::measurement_bytes(nside, maps),
+    )?;
     let map = load_map(&args.map, &args.column)?;
     let other = match &args.cross {
         Some(path) => {
