@@ -109,7 +109,7 @@ pub fn distance_to_mask(footprint: &Footprint, max_distance: f64) -> Result<Vec<
     if !(max_distance.is_finite() && max_distance > 0.0) {
         return Err(Error::Setting(format!(
             "apodization width must be positive, got {} arcmin",
-            max_distance.to_degrees() * 60.0
+            crate::error::compact(max_distance.to_degrees() * 60.0)
         )));
     }
     if max_distance > 30f64.to_radians() {

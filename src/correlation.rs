@@ -124,7 +124,8 @@ pub struct LognormalSpectrum {
 pub fn lognormal_gaussian_spectrum(cl_kappa: &[f64], shift: f64) -> Result<LognormalSpectrum> {
     if !(shift.is_finite() && shift > 0.0) {
         return Err(Error::Setting(format!(
-            "the lognormal shift must be positive, got {shift}"
+            "the lognormal shift must be positive, got {}",
+            crate::error::compact(shift)
         )));
     }
     if cl_kappa.is_empty() {
@@ -139,7 +140,8 @@ pub fn lognormal_gaussian_spectrum(cl_kappa: &[f64], shift: f64) -> Result<Logno
         let a = 1.0 + x / s2;
         if a <= 0.0 {
             return Err(Error::Setting(format!(
-                "lognormal shift {shift} is too small for this spectrum (1 + ξ/κ0² ≤ 0)"
+                "lognormal shift {} is too small for this spectrum (1 + ξ/κ0² ≤ 0)",
+                crate::error::compact(shift)
             )));
         }
         xi_g.push(a.ln());

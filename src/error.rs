@@ -46,3 +46,49 @@ impl Error {
         }
     }
 }
+
+/// A number as printed in messages: at most 6 significant digits, in plain notation for
+/// magnitudes in [1e-4, 1e6) and in scientific notation (`1e-300`, `2.5e12`) otherwise, so a
+/// user's extreme value never prints as hundreds of digits.
+pub fn compact(x: f64) -> String {
+    if x == 0.0 || !x.is_finite() {
+        return format!("{x}");
+    }
+    let trim = |m: &str| -> String {
+        if m.contains('.') {
+            m.trim_end_matches('0').trim_end_matches('.').to_string()
+        } else {
+            m.to_string()
+        }
+    };
+    let magnitude = x.abs();
+    if (1e-4..1e6).contains(&magnitude) {
+        let digits_before = magnitude.log10().floor() as i32 + 1;
+        let decimals = (6 - digits_before).max(0) as usize;
+        trim(&format!("{x:.decimals$}"))
+    } else {
+        let s = format!("{x:.5e}");
+        match s.split_once('e') {
+            Some((mantissa, exponent)) => format!("{}e{exponent}", trim(mantissa)),
+            None => s,
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::compact;
+
+    #[test]
+    fn compact_numbers_keep_six_significant_digits_and_switch_to_scientific_notation() {
+        // expected strings written out by hand from the rule in the doc comment
+        assert_eq!(compact(1e-300), "1e-300");
+        assert_eq!(compact(-2.5e12), "-2.5e12");
+        assert_eq!(compact(0.1 + 0.2), "0.3");
+        assert_eq!(compact(123.456789), "123.457");
+        assert_eq!(compact(3.0), "3");
+        assert_eq!(compact(1.0 / 3.0), "0.333333");
+        assert_eq!(compact(0.0), "0");
+        assert_eq!(compact(f64::INFINITY), "inf");
+    }
+}

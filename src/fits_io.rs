@@ -314,6 +314,7 @@ impl HealpixFitsReader {
         let npix = npix_of(self.header.nside);
         let count = self.header.rows.saturating_mul(info.values_per_row);
         let name = display_name(&info.name, position);
+        let float_column = info.type_code == TFLOAT || info.type_code == TDOUBLE;
         if let Some(reason) = non_numeric_reason(info.type_code, &info.format) {
             return Err(Error::fits(
                 &path,
@@ -331,7 +332,7 @@ impl HealpixFitsReader {
                         ),
                     ));
                 }
-                self.file.read_doubles(&path, colnum, count)
+                self.file.read_doubles(&path, colnum, count, float_column)
             }
             Coverage::Partial => {
                 self.partial_pixels()?;
@@ -344,7 +345,7 @@ impl HealpixFitsReader {
                         ),
                     ));
                 }
-                let listed = self.file.read_doubles(&path, colnum, count)?;
+                let listed = self.file.read_doubles(&path, colnum, count, float_column)?;
                 let pixels = self.pixels.as_deref().unwrap_or(&[]);
                 let mut values = allocate(&path, npix as usize, f64::NAN)?;
                 for (&p, &v) in pixels.iter().zip(&listed) {
@@ -1434,14 +1435,23 @@ impl FitsHandle {
         Ok(data.max(0) as u64)
     }
 
-    /// `count` values of column `colnum` from its start, as f64; null values (NaN in float
-    /// columns, TNULL in integer ones) become NaN. TSCAL/TZERO are applied by cfitsio.
-    fn read_doubles(&mut self, path: &Path, colnum: c_int, count: u64) -> Result<Vec<f64>> {
+    /// `count` values of column `colnum` from its start, as f64; TNULL values of an integer
+    /// column become NaN. A float column (`float_column`) is read as stored, without cfitsio's
+    /// null check, which would turn ±inf into NaN too and so hide an infinite weight or value.
+    /// TSCAL/TZERO are applied by cfitsio.
+    fn read_doubles(
+        &mut self,
+        path: &Path,
+        colnum: c_int,
+        count: u64,
+        float_column: bool,
+    ) -> Result<Vec<f64>> {
         let mut out = allocate(path, count as usize, 0.0f64)?;
         if count == 0 {
             return Ok(out);
         }
-        let mut nulval = f64::NAN;
+        // cfitsio skips its null check when the null value is 0
+        let mut nulval = if float_column { 0.0 } else { f64::NAN };
         let mut anynul = 0;
         let mut status = 0;
         // SAFETY: open handle; `out` holds exactly `count` f64 values; TDOUBLE matches f64.

@@ -48,7 +48,8 @@ impl FlatMap {
         }
         if !(pixel_size.is_finite() && pixel_size > 0.0) {
             return Err(Error::Setting(format!(
-                "pixel size must be a positive number of radians, got {pixel_size}"
+                "pixel size must be a positive number of radians, got {}",
+                crate::error::compact(pixel_size)
             )));
         }
         if let Some(i) = values.iter().position(|v| !v.is_finite()) {
@@ -271,7 +272,8 @@ pub fn gaussian_random_field(
     }
     if !(pixel_size.is_finite() && pixel_size > 0.0) {
         return Err(Error::Setting(format!(
-            "pixel size must be a positive number of radians, got {pixel_size}"
+            "pixel size must be a positive number of radians, got {}",
+            crate::error::compact(pixel_size)
         )));
     }
     let nn = size * size;
@@ -286,7 +288,8 @@ pub fn gaussian_random_field(
             let p = if ix == 0 && iy == 0 { 0.0 } else { spectrum(k) };
             if !(p.is_finite() && p >= 0.0) {
                 return Err(Error::Data(format!(
-                    "power spectrum must be finite and non-negative, got {p} at k = {k} rad^-1"
+                    "power spectrum must be finite and non-negative, got {} at k = {k} rad^-1",
+                    crate::error::compact(p)
                 )));
             }
             data[iy * size + ix] *= p.sqrt() / pixel_size;

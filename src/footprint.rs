@@ -27,8 +27,9 @@ pub struct FootprintSummary {
 }
 
 impl Footprint {
-    /// A footprint from weights in [0, 1]; bad values (UNSEEN, NaN) count as 0, anything else
-    /// outside [0, 1] is an error naming the first offending pixel.
+    /// A footprint from weights in [0, 1]; bad values (UNSEEN, NaN) count as 0, ±inf is an
+    /// error naming how many pixels hold it, anything else outside [0, 1] is an error naming
+    /// the first offending pixel.
     pub fn from_weights(pixelization: Pixelization, mut weights: Vec<f64>) -> Result<Self> {
         if weights.len() as u64 != pixelization.npix() {
             return Err(Error::Mismatch(format!(
@@ -38,12 +39,25 @@ impl Footprint {
                 weights.len()
             )));
         }
+        for sign in [1.0, -1.0] {
+            let infinite = sign * f64::INFINITY;
+            let mut hits = weights.iter().enumerate().filter(|(_, &w)| w == infinite);
+            if let Some((first, _)) = hits.next() {
+                let count = 1 + hits.count();
+                let pixels = if count == 1 { "pixel" } else { "pixels" };
+                return Err(Error::Data(format!(
+                    "the mask holds {infinite:+} in {count} {pixels} (first: pixel {first}): \
+                     weights must lie in [0, 1], with 0, UNSEEN or NaN for unobserved pixels"
+                )));
+            }
+        }
         for (p, w) in weights.iter_mut().enumerate() {
             if is_bad_value(*w) {
                 *w = 0.0;
             } else if !(0.0..=1.0).contains(w) {
                 return Err(Error::Data(format!(
-                    "mask pixel {p} has weight {w}, outside [0, 1]"
+                    "mask pixel {p} has weight {}, outside [0, 1]",
+                    crate::error::compact(*w)
                 )));
             }
         }

@@ -162,3 +162,12 @@ pub fn flat_synthesis_bytes(size: usize, scales: usize, orientations: usize) -> 
     let n2 = (size as f64).powi(2);
     n2 * (16.0 * scales as f64 * orientations as f64 + 8.0 * 32.0)
 }
+
+/// Estimated bytes to measure `maps` maps (1, or 2 with a cross map) of NSIDE `nside` on a
+/// footprint: per map the read buffer and the values (2 × 8 bytes per pixel) and the validity
+/// flags (1 byte); for the footprint the mask as read, restricted to the map, tapered and the
+/// taper's distance field (4 × 8 bytes per pixel). The tiles are small beside these.
+pub fn measurement_bytes(nside: u32, maps: usize) -> f64 {
+    let npix = 12.0 * (nside as f64).powi(2);
+    npix * (17.0 * maps as f64 + 32.0)
+}

@@ -333,14 +333,16 @@ impl MeasurementSettings {
         if let Some(a) = self.pixel_arcmin {
             if !(a.is_finite() && a > 0.0) {
                 return Err(Error::Setting(format!(
-                    "pixel size must be positive, got {a} arcmin"
+                    "pixel size must be positive, got {} arcmin",
+                    crate::error::compact(a)
                 )));
             }
         }
         if let Some(w) = self.min_trusted_wavelength {
             if w.is_nan() || w < 0.0 {
                 return Err(Error::Setting(format!(
-                    "the shortest trusted wavelength must be at least 0 map spacings, got {w}"
+                    "the shortest trusted wavelength must be at least 0 map spacings, got {}",
+                    crate::error::compact(w)
                 )));
             }
         }

@@ -215,12 +215,24 @@ impl<'a> SkyPicture<'a> {
         })
     }
 
+    /// Draws into memory, encodes the PNG there and writes it with one call, so that a failed
+    /// write (a full disk) is reported as the system's one-line reason.
     fn render(&self, png: &Path) -> Result<()> {
+        use image::ImageEncoder;
         let (_, _, height, _) = self.geometry();
-        let root = BitMapBackend::new(png, (self.width, height)).into_drawing_area();
-        self.render_on(&root, png)?;
-        root.present()
-            .map_err(|e| Error::io(png, format!("cannot draw: {e}")))
+        let mut pixels = vec![0u8; self.width as usize * height as usize * 3];
+        {
+            let root =
+                BitMapBackend::with_buffer(&mut pixels, (self.width, height)).into_drawing_area();
+            self.render_on(&root, png)?;
+            root.present()
+                .map_err(|e| Error::io(png, format!("cannot draw: {e}")))?;
+        }
+        let mut bytes = Vec::new();
+        image::codecs::png::PngEncoder::new(&mut bytes)
+            .write_image(&pixels, self.width, height, image::ColorType::Rgb8)
+            .map_err(|e| Error::io(png, format!("cannot encode the PNG: {e}")))?;
+        std::fs::write(png, bytes).map_err(|e| Error::io(png, e))
     }
 
     /// Draws the picture on `root` (an area of at least `width` × height pixels).

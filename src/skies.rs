@@ -113,7 +113,8 @@ impl SkyRecipe {
             Some(k0) if self.spectrum_is_gaussian => {
                 if !(k0.is_finite() && k0 > 0.0) {
                     return Err(Error::Setting(format!(
-                        "the lognormal shift must be positive, got {k0}"
+                        "the lognormal shift must be positive, got {}",
+                        crate::error::compact(k0)
                     )));
                 }
                 (cl, Some(k0))

@@ -280,7 +280,8 @@ pub fn master_spectrum(
     let fwhm = settings.beam_fwhm_arcmin;
     if !(fwhm.is_finite() && fwhm >= 0.0) {
         return Err(Error::Setting(format!(
-            "beam FWHM must be a finite number of arcmin >= 0, got {fwhm}"
+            "beam FWHM must be a finite number of arcmin >= 0, got {}",
+            crate::error::compact(fwhm)
         )));
     }
     let binning = Binning::uniform(2, lmax, settings.bin_width, settings.weighting)?;

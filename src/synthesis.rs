@@ -428,7 +428,8 @@ impl FlatSynthesis {
     ) -> Result<Self> {
         if !(pixel_size.is_finite() && pixel_size > 0.0) {
             return Err(Error::Setting(format!(
-                "pixel size must be a positive number of radians, got {pixel_size}"
+                "pixel size must be a positive number of radians, got {}",
+                crate::error::compact(pixel_size)
             )));
         }
         if settings.iterations == 0 {
@@ -485,7 +486,7 @@ impl FlatSynthesis {
             if let Some(i) = sigma.iter().position(|s| !(s.is_finite() && *s > 0.0)) {
                 return Err(Error::Setting(format!(
                     "normalisation scale {i} must be positive, got {}",
-                    sigma[i]
+                    crate::error::compact(sigma[i])
                 )));
             }
         }
@@ -668,7 +669,8 @@ impl FlatSynthesis {
         let variance = coefficients[1];
         if variance.is_nan() || variance <= 0.0 {
             return Err(Error::Data(format!(
-                "target variance must be positive, got {variance}"
+                "target variance must be positive, got {}",
+                crate::error::compact(variance)
             )));
         }
         let values = self.select(coefficients);

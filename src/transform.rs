@@ -608,13 +608,13 @@ pub(crate) fn check_taper_and_weight(a: &[f64], w: &[f64], n: usize) -> Result<(
     if let Some(i) = a.iter().position(|&a| !(0.0..=1.0).contains(&a)) {
         return Err(Error::Data(format!(
             "tile taper must lie in [0, 1], got {} at pixel {i}",
-            a[i]
+            crate::error::compact(a[i])
         )));
     }
     if let Some(i) = w.iter().position(|&w| w < 0.0) {
         return Err(Error::Data(format!(
             "tile pooling weight must be non-negative, got {} at pixel {i}",
-            w[i]
+            crate::error::compact(w[i])
         )));
     }
     let sw: f64 = w.iter().sum();
@@ -653,19 +653,19 @@ pub(crate) fn validate_settings(settings: &TransformSettings) -> Result<()> {
     if !(settings.coverage_threshold > 0.0 && settings.coverage_threshold <= 1.0) {
         return Err(Error::Setting(format!(
             "coverage threshold must be in (0, 1], got {}",
-            settings.coverage_threshold
+            crate::error::compact(settings.coverage_threshold)
         )));
     }
     if !(0.0..=1.0).contains(&settings.trusted_fraction) {
         return Err(Error::Setting(format!(
             "trusted fraction must be in [0, 1], got {}",
-            settings.trusted_fraction
+            crate::error::compact(settings.trusted_fraction)
         )));
     }
     if !(settings.crop_tolerance > 0.0 && settings.crop_tolerance < 1.0) {
         return Err(Error::Setting(format!(
             "crop tolerance must be in (0, 1), got {}",
-            settings.crop_tolerance
+            crate::error::compact(settings.crop_tolerance)
         )));
     }
     Ok(())

@@ -144,6 +144,40 @@ impl Fixtures {
             &WriteOptions::default(),
         )
         .unwrap();
+        // a mask with one observed pixel, and weight maps holding +inf in two pixels (the
+        // written marker weight 0.123456789 is replaced by the IEEE-754 bytes of +inf)
+        let mut single = vec![0.0; pix16.npix() as usize];
+        single[1000] = 1.0;
+        let single = Footprint::from_weights(pix16, single).unwrap();
+        write_footprint(
+            &p("onepixel_mask16.fits"),
+            "MASK",
+            &single,
+            &WriteOptions::default(),
+        )
+        .unwrap();
+        let mut marked = vec![1.0; pix16.npix() as usize];
+        marked[7] = 0.123456789;
+        marked[300] = 0.123456789;
+        let marked = Footprint::from_weights(pix16, marked).unwrap();
+        write_footprint(
+            &p("inf_mask16.fits"),
+            "MASK",
+            &marked,
+            &WriteOptions::default(),
+        )
+        .unwrap();
+        let mut bytes = std::fs::read(p("inf_mask16.fits")).unwrap();
+        let marker = 0.123456789f64.to_be_bytes();
+        let mut replaced = 0;
+        for i in 0..bytes.len() - 7 {
+            if bytes[i..i + 8] == marker {
+                bytes[i..i + 8].copy_from_slice(&f64::INFINITY.to_be_bytes());
+                replaced += 1;
+            }
+        }
+        assert_eq!(replaced, 2, "marker weights not found in the written mask");
+        std::fs::write(p("inf_mask16.fits"), &bytes).unwrap();
         Fixtures { dir }
     }
 
@@ -1412,6 +1446,189 @@ fn an_array_task_id_without_a_task_count_is_refused() {
         code,
         &stderr,
         "SLURM_ARRAY_TASK_ID=3 is set but SLURM_ARRAY_TASK_COUNT is not",
+        &before,
+        f.dir.path(),
+    );
+}
+
+#[test]
+fn masks_with_a_single_or_an_infinite_weight_are_refused_with_the_reason() {
+    let f = Fixtures::new();
+    let map = f.path("map16.fits");
+    let out = f.path("out.json");
+    let with_quick = |v: &[&str]| {
+        let mut a = strings(v);
+        a.extend(strings(&QUICK));
+        a
+    };
+    let one = f.path("onepixel_mask16.fits");
+    let inf = f.path("inf_mask16.fits");
+    let single = "the mask has only one observed pixel (pixel 1000): there are no fluctuations";
+    let infinite = "inf_mask16.fits: the mask holds +inf in 2 pixels (first: pixel 7)";
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        (
+            with_quick(&["measure", &map, "--mask", &one, "-o", &out]),
+            single,
+        ),
+        (
+            with_quick(&[
+                "measure", &map, "--mask", &one, "--taper", "none", "-o", &out,
+            ]),
+            single,
+        ),
+        (strings(&["spectra", &map, "--mask", &one]), single),
+        (
+            with_quick(&["measure", &map, "--mask", &inf, "-o", &out]),
+            infinite,
+        ),
+        (strings(&["spectra", &map, "--mask", &inf]), infinite),
+    ];
+    refuse_all(&f, &cases);
+}
+
+#[test]
+fn user_numbers_in_messages_are_printed_compactly() {
+    // a value given with 300 leading zeros comes back in scientific notation, not 300 digits
+    let f = Fixtures::new();
+    let cases: Vec<(Vec<String>, &str)> = vec![(
+        strings(&[
+            "sky",
+            "--nside",
+            "16",
+            "--lognormal-shift",
+            "1e-300",
+            "-o",
+            &f.path("s.fits"),
+        ]),
+        "1e-300",
+    )];
+    refuse_all(&f, &cases);
+    for (args, _) in &cases {
+        let (_, stderr) = run(args, f.dir.path());
+        assert!(stderr.len() < 300, "{args:?}: {stderr}");
+    }
+}
+
+/// Measures a simulated ensemble of `count` NSIDE 16 skies (random seed `seed`) into `name`.
+fn tiny_ensemble(f: &Fixtures, name: &str, count: u32, seed: u32) -> String {
+    let recipe = f.path(&format!("{name}.toml"));
+    std::fs::write(
+        &recipe,
+        format!("nside = 16\ncount = {count}\nseed = {seed}\n"),
+    )
+    .unwrap();
+    let dir = f.path(name);
+    let mut args = strings(&["ensemble", "-o", &dir, "--simulate", &recipe, "--quiet"]);
+    args.extend(strings(&QUICK));
+    let (code, stderr) = run(&args, f.dir.path());
+    assert_eq!(code, Some(0), "{stderr}");
+    dir
+}
+
+#[test]
+fn a_forecast_in_which_every_statistic_set_fails_is_refused() {
+    // 3 simulations are too few for an unbiased precision matrix of any set (Hartlap et al.
+    // 2007 needs more than p + 2); with 6, only the 2-statistic power spectrum succeeds and the
+    // run is kept, naming the failed sets on stderr
+    let f = Fixtures::new();
+    let fid = tiny_ensemble(&f, "fid3", 3, 1);
+    let plus = tiny_ensemble(&f, "plus3", 3, 7);
+    let derivative = format!("a,0.1,{plus},{fid}");
+    let args = strings(&[
+        "forecast",
+        "--fiducial",
+        &fid,
+        "--derivative",
+        &derivative,
+        "-o",
+        &f.path("fc.json"),
+    ]);
+    let before = snapshot(f.dir.path());
+    let (code, stderr) = run(&args, f.dir.path());
+    assert_refused(
+        &args,
+        code,
+        &stderr,
+        "every statistic set failed (6 of 6); the first, power spectrum (pseudo-C_l): 3 simulations are too few",
+        &before,
+        f.dir.path(),
+    );
+
+    let fid = tiny_ensemble(&f, "fid6", 6, 1);
+    let plus = tiny_ensemble(&f, "plus6", 6, 7);
+    let derivative = format!("a,0.1,{plus},{fid}");
+    let out = f.path("fc6.json");
+    let args = strings(&[
+        "forecast",
+        "--fiducial",
+        &fid,
+        "--derivative",
+        &derivative,
+        "-o",
+        &out,
+    ]);
+    let (code, stderr) = run(&args, f.dir.path());
+    assert_eq!(code, Some(0), "{stderr}");
+    assert!(Path::new(&out).is_file());
+    assert!(
+        stderr.contains("planisphere: warning: 5 of 6 statistic sets failed (tile power spectrum,"),
+        "{stderr}"
+    );
+}
+
+#[test]
+fn a_png_that_cannot_be_written_is_refused_in_one_line() {
+    // a file-size limit (ulimit -f, its signal ignored) makes the write fail as a full disk
+    // does: the system's reason comes back in one line and no partial file is left
+    let f = Fixtures::new();
+    let bin = env!("CARGO_BIN_EXE_planisphere");
+    let mut args = strings(&["tiles", &f.path("map16.fits"), "--png", &f.path("t.png")]);
+    args.extend(strings(&QUICK));
+    let before = snapshot(f.dir.path());
+    let mut line = vec![
+        "-c".to_string(),
+        "trap '' XFSZ; ulimit -f 8 && exec \"$0\" \"$@\"".to_string(),
+        bin.to_string(),
+    ];
+    line.extend(args.iter().cloned());
+    let (code, stderr) = run_program("sh", &line, f.dir.path());
+    assert_refused(
+        &args,
+        code,
+        &stderr,
+        "t.png: File too large (os error 27)",
+        &before,
+        f.dir.path(),
+    );
+}
+
+#[test]
+fn a_map_too_large_to_measure_within_the_memory_limit_is_refused_with_the_estimate() {
+    // an NSIDE 1024 map (12.6 million pixels) needs about 0.6 GB to measure; under an
+    // address-space limit of 400 MB (ulimit -v) it is refused before its pixels are read
+    let f = Fixtures::new();
+    let bin = env!("CARGO_BIN_EXE_planisphere");
+    let big = f.path("map1024.fits");
+    let (code, stderr) = run(
+        &strings(&["sky", "--nside", "1024", "--lmax", "64", "-o", &big]),
+        f.dir.path(),
+    );
+    assert_eq!(code, Some(0), "{stderr}");
+    let mut args = strings(&["measure", &big, "-o", &f.path("m.json")]);
+    args.extend(strings(&QUICK));
+    let before = snapshot(f.dir.path());
+    let mut line = vec![
+        "-c".to_string(),
+        "ulimit -v 400000 && exec \"$0\" \"$@\"".to_string(),
+        bin.to_string(),
+    ];
+    line.extend(args.iter().cloned());
+    let (code, stderr) = run_program("sh", &line, f.dir.path());
+    assert_refused(
+        &args,
+        code,
+        &stderr,
+        "measuring a NSIDE 1024 map needs about 0.6 GB, more than the 0.4 GB of the address-space limit (ulimit -v)",
         &before,
         f.dir.path(),
     );

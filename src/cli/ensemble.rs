@@ -217,7 +217,9 @@ pub fn ensemble_footprint(
                     pix.nside()
                 )));
             }
-            mask.taper_footprint(fp.to_ordering(pix.ordering())?)
+            let fp = fp.to_ordering(pix.ordering())?;
+            super::inputs::refuse_single_pixel_mask(&fp)?;
+            mask.taper_footprint(fp)
         }
         (None, Some(map)) => mask.footprint_for(map, Path::new("the first map")),
         (None, None) => Ok(Footprint::full_sky(pix)),

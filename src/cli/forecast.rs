@@ -185,6 +185,35 @@ pub fn forecast_named_sets(
     })
 }
 
+/// Refuses a forecast in which every statistic set failed (naming the first set and why), and
+/// warns on stderr of the sets that failed when others succeeded.
+fn check_sets_forecast(comparison: &SetComparison) -> Result<()> {
+    let failed: Vec<(&str, &str)> = comparison
+        .rows
+        .iter()
+        .filter_map(|r| r.error.as_deref().map(|e| (r.set.as_str(), e)))
+        .collect();
+    let Some((first, why)) = failed.first() else {
+        return Ok(());
+    };
+    let why = why.split_whitespace().collect::<Vec<_>>().join(" ");
+    if failed.len() == comparison.rows.len() {
+        return Err(Error::Data(format!(
+            "every statistic set failed ({} of {}); the first, {first}: {why}",
+            failed.len(),
+            comparison.rows.len()
+        )));
+    }
+    let names: Vec<&str> = failed.iter().map(|(n, _)| *n).collect();
+    eprintln!(
+        "planisphere: warning: {} of {} statistic sets failed ({}); the first: {why}",
+        failed.len(),
+        comparison.rows.len(),
+        names.join(", ")
+    );
+    Ok(())
+}
+
 /// The JSON document of a forecast.
 pub fn forecast_document(
     result: &ForecastResult,
@@ -325,6 +354,7 @@ pub fn run(args: &ForecastArgs) -> Result<()> {
     let names: Vec<String> = derivatives.iter().map(|d| d.parameter.clone()).collect();
     let fiducial_values = parse_fiducial_values(&args.fiducial_value, &names)?;
     let result = forecast_sets(&fiducial, &derivatives, cut.as_ref())?;
+    check_sets_forecast(&result.comparison)?;
     let settings = serde_json::json!({
         "fiducial": fiducial_dir.display().to_string(),
         "derivatives": args.derivative,
@@ -553,6 +583,7 @@ fn run_plan(args: &ForecastArgs, path: &Path) -> Result<()> {
     let Some(combined) = combined else {
         return Err(Error::Setting("the plan forecast nothing".into()));
     };
+    check_sets_forecast(&combined.comparison)?;
     let settings = serde_json::json!({
         "plan": path.display().to_string(),
         "cases": cases_json,

@@ -161,7 +161,7 @@ impl MaskArgs {
         if !(self.taper_arcmin.is_finite() && self.taper_arcmin >= 0.0) {
             return Err(Error::Setting(format!(
                 "--taper-arcmin must be a non-negative number, got {}",
-                self.taper_arcmin
+                crate::error::compact(self.taper_arcmin)
             )));
         }
         if raw.observed_pixels() == 0 {
@@ -174,6 +174,18 @@ impl MaskArgs {
         }
         apodize(&raw, self.taper, (self.taper_arcmin / 60.0).to_radians())
     }
+}
+
+/// Refuses a mask with a single observed pixel: one value has no fluctuations to measure
+/// (the statistics of one pixel are 0/0).
+pub fn refuse_single_pixel_mask(mask: &Footprint) -> Result<()> {
+    if mask.observed_pixels() == 1 {
+        let pixel = mask.weights().iter().position(|&w| w > 0.0).unwrap_or(0);
+        return Err(Error::Data(format!(
+            "the mask has only one observed pixel (pixel {pixel}): there are no fluctuations to measure"
+        )));
+    }
+    Ok(())
 }
 
 /// The untapered footprint of `map` (read from `map_path`): the mask file (or the map's valid
@@ -203,7 +215,9 @@ pub fn untapered_footprint(
                 (&path.display().to_string(), header.coordsys.as_deref()),
                 options.allow_coordsys_mismatch,
             )?;
-            fp.restricted_to(map)
+            let fp = fp.restricted_to(map)?;
+            refuse_single_pixel_mask(&fp)?;
+            Ok(fp)
         }
         None => Footprint::of_valid_pixels(map).restricted_to(map),
     }

@@ -356,6 +356,14 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
     if super::flat_input::is_flat_field(&args.map)? {
         return run_flat(args, settings);
     }
+    let nside = crate::fits_io::HealpixFitsReader::open(&args.map)?
+        .header()
+        .nside;
+    let maps = if args.cross.is_some() { 2 } else { 1 };
+    crate::limits::check_memory(
+        &format!("measuring a NSIDE {nside} map"),
+        crate::limits::measurement_bytes(nside, maps),
+    )?;
     let map = load_map(&args.map, &args.column)?;
     let other = match &args.cross {
         Some(path) => {
@@ -513,7 +521,8 @@ fn run_flat(args: &MeasureArgs, settings: MeasurementSettings) -> Result<()> {
     };
     if !(arcmin.is_finite() && arcmin > 0.0) {
         return Err(Error::Setting(format!(
-            "pixel size must be positive, got {arcmin} arcmin"
+            "pixel size must be positive, got {} arcmin",
+            crate::error::compact(arcmin)
         )));
     }
     let field = super::flat_input::read_field(&args.map)?;

@@ -111,7 +111,7 @@ pub fn recipe(args: &SkyArgs) -> Result<SkyRecipe> {
             if !(args.model_variance.is_finite() && args.model_variance > 0.0) {
                 return Err(Error::Setting(format!(
                     "--model-variance must be positive, got {}",
-                    args.model_variance
+                    crate::error::compact(args.model_variance)
                 )));
             }
             AngularSpectrum::demo_model(lmax, args.model_variance)
@@ -128,7 +128,8 @@ pub fn recipe(args: &SkyArgs) -> Result<SkyRecipe> {
     if let Some(b) = args.beam_arcmin {
         if !(b.is_finite() && b >= 0.0) {
             return Err(Error::Setting(format!(
-                "--beam-arcmin must be >= 0, got {b}"
+                "--beam-arcmin must be >= 0, got {}",
+                crate::error::compact(b)
             )));
         }
     }

@@ -103,7 +103,7 @@ pub fn run(args: &SpectraArgs) -> Result<()> {
     if !(args.beam_arcmin.is_finite() && args.beam_arcmin >= 0.0) {
         return Err(Error::Setting(format!(
             "--beam-arcmin must be a finite number >= 0, got {}",
-            args.beam_arcmin
+            crate::error::compact(args.beam_arcmin)
         )));
     }
     for p in args.csv.iter().chain(args.json.iter()) {

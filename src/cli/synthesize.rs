@@ -281,7 +281,8 @@ pub fn run(args: &SynthesizeArgs) -> Result<()> {
     if let Some(a) = args.pixel_arcmin {
         if !(a.is_finite() && a > 0.0) {
             return Err(Error::Setting(format!(
-                "--pixel-arcmin must be a positive number, got {a}"
+                "--pixel-arcmin must be a positive number, got {}",
+                crate::error::compact(a)
             )));
         }
     }

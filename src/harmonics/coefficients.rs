@@ -167,7 +167,8 @@ impl HarmonicCoefficients {
 pub fn gaussian_beam(fwhm: f64, lmax: usize) -> Result<Vec<f64>> {
     if !(fwhm.is_finite() && fwhm >= 0.0) {
         return Err(Error::Setting(format!(
-            "beam FWHM must be a finite angle >= 0 radians, got {fwhm}"
+            "beam FWHM must be a finite angle >= 0 radians, got {}",
+            crate::error::compact(fwhm)
         )));
     }
     let sigma = fwhm / (8.0 * std::f64::consts::LN_2).sqrt();
