@@ -565,9 +565,12 @@ impl EnsembleJob {
         let stamp = self.description.stamp();
         // every row of the shard checked before any work: a row of another job or an unreadable
         // row file stops the run; a row whose map file changed is measured again
+        // (the first failing row in member order is reported, whatever the thread timing)
         let states: Vec<RowState> = in_shard
             .par_iter()
             .map(|&i| self.row_state(&stamp, i))
+            .collect::<Vec<Result<_>>>()
+            .into_iter()
             .collect::<Result<_>>()?;
         let mut todo = Vec::new();
         let mut stale = 0;
@@ -657,9 +660,12 @@ impl EnsembleJob {
     pub fn merge(dir: &Path) -> Result<MergedTable> {
         let description = Self::read_description(dir)?;
         let stamp = description.stamp();
+        // (the first failing row in member order is reported, whatever the thread timing)
         let states: Vec<RowState> = (0..description.members.len())
             .into_par_iter()
             .map(|i| row_state(dir, &description, &stamp, i))
+            .collect::<Vec<Result<_>>>()
+            .into_iter()
             .collect::<Result<_>>()?;
         let mut rows = Vec::with_capacity(description.members.len());
         let mut missing = Vec::new();
