@@ -452,22 +452,13 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
         o.insert("cross".into(), section.clone());
     }
     write_json(&args.output, &doc)?;
-    let trusted = stats
-        .coefficients
-        .coefficients
-        .iter()
-        .filter(|c| c.trusted)
-        .count();
     println!(
-        "{} tiles ({}, {}² pixels of {:.2}′): {} coefficients ({} trusted), {} summary items, written to {}",
+        "{} tiles ({}, {}² pixels of {:.2}′): {}",
         stats.tiles,
         summary.cells,
         summary.tile_pixels,
         summary.pixel_size_arcmin,
-        stats.coefficients.coefficients.len(),
-        trusted,
-        stats.summary.len(),
-        args.output.display()
+        written_line(&stats, &args.output)
     );
     if let Some((_, count, trusted)) = &cross {
         println!("  cross statistics with the second map: {count} ({trusted} trusted)");
@@ -601,18 +592,26 @@ fn run_flat(args: &MeasureArgs, settings: MeasurementSettings) -> Result<()> {
         "tile_bispectrum": stats.tile_bispectrum,
     });
     write_json(&args.output, &doc)?;
+    println!(
+        "flat field {n}² pixels of {arcmin}′ ({}): {}",
+        if periodic { "periodic" } else { "masked" },
+        written_line(&stats, &args.output)
+    );
+    Ok(())
+}
+
+/// The end of `measure`'s report line: coefficient, trusted and summary counts and the output.
+fn written_line(stats: &MapStatistics, output: &Path) -> String {
     let trusted = stats
         .coefficients
         .coefficients
         .iter()
         .filter(|c| c.trusted)
         .count();
-    println!(
-        "flat field {n}² pixels of {arcmin}′ ({}): {} coefficients ({trusted} trusted), {} summary items, written to {}",
-        if periodic { "periodic" } else { "masked" },
+    format!(
+        "{} coefficients ({trusted} trusted), {} summary items, written to {}",
         stats.coefficients.coefficients.len(),
         stats.summary.len(),
-        args.output.display()
-    );
-    Ok(())
+        output.display()
+    )
 }

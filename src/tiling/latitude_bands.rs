@@ -337,15 +337,19 @@ impl LatitudeBands {
         for (b, band) in bands.iter_mut().enumerate() {
             if band.cap {
                 if cap_occupied[b] {
-                    Self::widest_cell(band, room)?;
                     band.starts = vec![0.0];
                     band.ends = vec![TAU];
                     let center = Direction::new(band.theta_center, 0.0);
                     let (t0, t1) = band.theta;
-                    band.reach = vec![outline_extent(&Gnomonic::new(center), t0, t1, -PI, PI)
+                    let reach = outline_extent(&Gnomonic::new(center), t0, t1, -PI, PI)
+                        .filter(|&(half, _)| half <= room)
                         .ok_or_else(|| {
-                            Error::Geometry("a polar cap reaches a hemisphere".into())
-                        })?];
+                            Error::Geometry(format!(
+                                "the polar cap of {:.3}° does not fit its tile",
+                                (t1 - t0).to_degrees()
+                            ))
+                        })?;
+                    band.reach = vec![reach];
                     band.centers = vec![center];
                     band.columns = vec![Vec::new()];
                 }
@@ -354,7 +358,7 @@ impl LatitudeBands {
             if extents[b].is_empty() {
                 continue;
             }
-            Self::widest_cell(band, room)?;
+            // (a band whose single longitude bin does not fit is refused there)
             Self::greedy_cells(band, &extents[b], room)?;
         }
         // Count pixels and footprint weight per cell.
@@ -412,49 +416,6 @@ impl LatitudeBands {
             },
             cells,
         ))
-    }
-
-    /// The widest longitude range (radians) of a cell of `band` that fits in |x|, |y| ≤ `room`
-    /// about its centre (2π for a cap that fits).
-    fn widest_cell(band: &Band, room: f64) -> Result<f64> {
-        let (t0, t1) = band.theta;
-        let center = Direction::new(band.theta_center, 0.0);
-        let proj = Gnomonic::new(center);
-        let fits = |w: f64| -> bool {
-            let half = (0.5 * w).min(PI - 1e-9);
-            outline_extent(&proj, t0, t1, -half, half).is_some_and(|(h, _)| h <= room)
-        };
-        if band.cap {
-            return if fits(TAU) {
-                Ok(TAU)
-            } else {
-                Err(Error::Geometry(format!(
-                    "the polar cap of {:.3}° does not fit its tile",
-                    (t1 - t0).to_degrees()
-                )))
-            };
-        }
-        let tiny = 1e-6;
-        if !fits(tiny) {
-            return Err(Error::Geometry(format!(
-                "a band of {:.3}° at colatitude {:.2}° does not fit its tile",
-                (t1 - t0).to_degrees(),
-                band.theta_center.to_degrees()
-            )));
-        }
-        let (mut lo, mut hi) = (tiny, PI);
-        if fits(hi) {
-            return Ok(hi);
-        }
-        for _ in 0..50 {
-            let mid = 0.5 * (lo + hi);
-            if fits(mid) {
-                lo = mid;
-            } else {
-                hi = mid;
-            }
-        }
-        Ok(lo)
     }
 
     /// Cuts a band into cells along its footprint: starting after a free longitude bin, each
