@@ -38,7 +38,7 @@ use std::f64::consts::FRAC_PI_2;
 /// pixels and is the same, to 10⁻³, for plane pixels of 1, ½ and ¼ map spacing; finer plane
 /// pixels only cost memory (×4 per halving) and push the smallest wavelet scales below the map's
 /// resolution.
-pub const DEFAULT_PIXEL_FRACTION: f64 = 1.0;
+pub const DEFAULT_PIXEL_FRACTION: f64 = 3.0;
 
 /// Default halo around the core, in plane pixels.
 pub const DEFAULT_HALO: usize = 16;
