@@ -33,11 +33,12 @@ use crate::projection::Gnomonic;
 use latitude_bands::LatitudeBands;
 use std::f64::consts::FRAC_PI_2;
 
-/// Default plane pixel size as a fraction of the map's mean pixel spacing: 1. The transfer of
-/// power by sampling (`examples/sampling_transfer.rs`) is set by the interpolation between map
-/// pixels and is the same, to 10⁻³, for plane pixels of 1, ½ and ¼ map spacing; finer plane
-/// pixels only cost memory (×4 per halving) and push the smallest wavelet scales below the map's
-/// resolution.
+/// Default plane pixel size as a multiple of the map's mean pixel spacing h: 3, so the finest
+/// scale's wavelength (8/3)·Δ = 8h is the shortest that ring-cubic sampling carries within 2%
+/// ([`crate::sampling::SamplingMethod::trusted_wavelength_map_spacings`]) and every default
+/// coefficient is trusted. The map is read on a grid of spacing h and band-limited to the plane
+/// grid ([`crate::sampling::fine_sampling_factor`]), so nothing aliases; finer plane pixels
+/// only reach scales the sampling smooths, at 9× the tile pixels.
 pub const DEFAULT_PIXEL_FRACTION: f64 = 3.0;
 
 /// Default halo around the core, in plane pixels.
