@@ -120,8 +120,9 @@ pub struct TilingSettings {
     /// Plane pixels per side n (even); `None`: for latitude bands [`automatic_tile_pixels`], for
     /// HEALPix cells the smallest even 2^a·3^b that holds the largest core plus the halo.
     pub tile_pixels: Option<usize>,
-    /// Plane pixel size Δ in radians; `None`: [`DEFAULT_PIXEL_FRACTION`] × the map's mean
-    /// pixel spacing.
+    /// Plane pixel size Δ in radians; `None`: the map's mean pixel spacing (a measurement's
+    /// own default, [`DEFAULT_PIXEL_FRACTION`] of it, is set by
+    /// [`crate::measurement::MeasurementSettings::pixel_size`]).
     pub pixel_size: Option<f64>,
     /// Halo width in plane pixels kept around the core on every side.
     pub halo: usize,
@@ -338,9 +339,7 @@ impl TilingPlan {
                 footprint.pixelization().nside()
             )));
         }
-        let pixel_size = settings
-            .pixel_size
-            .unwrap_or(DEFAULT_PIXEL_FRACTION * map.mean_spacing());
+        let pixel_size = settings.pixel_size.unwrap_or(map.mean_spacing());
         if !(pixel_size.is_finite() && pixel_size > 0.0) {
             return Err(Error::Setting(format!(
                 "the tile pixel size must be positive, got {} arcmin",
