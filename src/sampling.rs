@@ -166,7 +166,7 @@ impl BandLimit {
         // is 7-smooth (fast transforms)
         let smooth = |mut m: usize| {
             for p in [2, 3, 5, 7] {
-                while m % p == 0 {
+                while m.is_multiple_of(p) {
                     m /= p;
                 }
             }
