@@ -262,26 +262,31 @@ mod speed_limit {
         workers: usize,
     }
 
-    fn run_ours(o: &Options, inputs: &Inputs, nside: u32, dir: &Path) -> Res<Ours> {
+    /// Our `measure` on the job (J, L of the options, plane pixel = map spacing), or with
+    /// `defaults` on the tool's defaults (J = 4, L = 4, plane pixel 3h band-limited).
+    fn run_ours(o: &Options, inputs: &Inputs, nside: u32, dir: &Path, defaults: bool) -> Res<Ours> {
         let spacing_arcmin = (std::f64::consts::PI / 3.0).sqrt() / nside as f64 * 60.0 * 180.0
             / std::f64::consts::PI;
-        let out = dir.join(format!("measure_nside{nside}.json"));
+        let out = dir.join(format!(
+            "measure_nside{nside}{}.json",
+            if defaults { "_defaults" } else { "" }
+        ));
+        let mut cmd = Command::new(&o.binary);
+        cmd.arg("measure")
+            .arg(&inputs.map)
+            .arg("--mask")
+            .arg(&inputs.mask);
+        if !defaults {
+            cmd.args([
+                "-J",
+                &o.scales.to_string(),
+                "-L",
+                &o.orientations.to_string(),
+            ])
+            .args(["--pixel-arcmin", &format!("{spacing_arcmin:.4}")]);
+        }
         let cost = run_child(
-            Command::new(&o.binary)
-                .arg("measure")
-                .arg(&inputs.map)
-                .arg("--mask")
-                .arg(&inputs.mask)
-                .args([
-                    "-J",
-                    &o.scales.to_string(),
-                    "-L",
-                    &o.orientations.to_string(),
-                ])
-                .args(["--pixel-arcmin", &format!("{spacing_arcmin:.4}")])
-                .arg("--no-bispectrum")
-                .arg("-o")
-                .arg(&out),
+            cmd.arg("--no-bispectrum").arg("-o").arg(&out),
             "planisphere measure",
         )?;
         let text = std::fs::read_to_string(&out).map_err(|e| format!("{}: {e}", out.display()))?;
@@ -497,6 +502,8 @@ mod speed_limit {
         nside: u32,
         inputs: Inputs,
         ours: Ours,
+        /// Our `measure` at the tool's defaults on the same inputs.
+        defaults: Ours,
         numpy: Option<Numpy>,
         floor: Floor,
     }
@@ -515,7 +522,9 @@ mod speed_limit {
         for &nside in &o.nsides {
             let inputs = make_inputs(nside, &o.inputs)?;
             eprintln!("  NSIDE {nside}: planisphere measure …");
-            let ours = run_ours(&o, &inputs, nside, &o.inputs)?;
+            let ours = run_ours(&o, &inputs, nside, &o.inputs, false)?;
+            eprintln!("  NSIDE {nside}: planisphere measure at its defaults …");
+            let defaults = run_ours(&o, &inputs, nside, &o.inputs, true)?;
             let np = if numpy {
                 eprintln!("  NSIDE {nside}: numpy pipeline …");
                 Some(run_numpy(&o, &inputs, nside, &o.inputs)?)
@@ -528,6 +537,7 @@ mod speed_limit {
                 nside,
                 inputs,
                 ours,
+                defaults,
                 numpy: np,
                 floor,
             });
@@ -584,6 +594,21 @@ mod speed_limit {
                     np.cost.cpu / fp * 1e6
                 );
             }
+            let d = &b.defaults;
+            let dn2 = (d.tile_pixels * d.tile_pixels) as f64;
+            println!(
+                "{:>5} {:>6} {:>11}  {:<22} {:>8.1} {:>8.1} {:>8.0} {:>7} {:>9.2} {:>9.2}",
+                "",
+                "",
+                "",
+                format!("defaults ({}², {:.1}′)", d.tile_pixels, d.pixel_arcmin),
+                d.cost.wall,
+                d.cost.cpu,
+                d.cost.peak_bytes / MIB,
+                d.tiles,
+                d.tiles as f64 * dn2 / fp,
+                d.cost.cpu / fp * 1e6
+            );
             println!(
                 "{:>5} {:>6} {:>11}  {:<22} {:>8} {:>8.1} {:>8} {:>7} {:>9.2} {:>9.2}",
                 "",

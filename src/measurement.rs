@@ -145,26 +145,47 @@ impl MeasurementSettings {
     }
 
     /// The plane pixel size Δ (radians) for maps of pixelization `map`: `pixel_arcmin`, or by
-    /// default the map's mean spacing h ([`crate::tiling::DEFAULT_PIXEL_FRACTION`]).
+    /// default three map spacings 3h ([`crate::tiling::DEFAULT_PIXEL_FRACTION`]), which puts
+    /// the finest scale at the shortest wavelength ring-cubic sampling carries (8h). At low
+    /// resolution, where the J scales at 3h would need tiles wider than the distortion limit
+    /// (J = 4 below NSIDE 256), the default is the coarsest of 2h and h at which they fit; the
+    /// finest scales are then flagged untrusted as the sampling rule says.
     ///
-    /// A coarser default (Δ = 3h would put the finest scale at the shortest trusted wavelength,
-    /// 8h for ring-cubic sampling) is not used: a plane grid coarser than the map aliases the
-    /// map's power between Δ/2 and h into the finest scales. Measured at NSIDE 512, default
-    /// tiles, Δ = 3h: S1 at j = 0 is 16–17% above flat sky, at j = 1 up to 5%
-    /// (`tests/sphere_flat_versus_sphere.rs` settings); a coarser default needs a low-pass of the
-    /// map before it is sampled.
+    /// A plane grid coarser than the map read directly would alias the map's power between
+    /// Δ/2 and h into the finest scales (measured at NSIDE 512, Δ = 3h: S1 at j = 0 16–17%
+    /// above flat sky); the sampler therefore reads such tiles one map spacing apart and
+    /// band-limits them ([`crate::sampling::fine_sampling_factor`]): S1 at j = 0 then agrees
+    /// with flat sky within 1.2% (`tests/sphere_flat_versus_sphere.rs`).
     ///
     /// ```
     /// use planisphere::measurement::MeasurementSettings;
     /// use planisphere::{Ordering, Pixelization};
     /// let map = Pixelization::new(1024, Ordering::Ring).unwrap();
     /// let delta = MeasurementSettings::default().pixel_size(map);
-    /// assert!((delta / map.mean_spacing() - 1.0).abs() < 1e-12); // 3.44′ at NSIDE 1024
+    /// assert!((delta / map.mean_spacing() - 3.0).abs() < 1e-12); // 10.3′ at NSIDE 1024
+    /// let low = Pixelization::new(64, Ordering::Ring).unwrap();
+    /// let delta = MeasurementSettings::default().pixel_size(low);
+    /// assert!((delta / low.mean_spacing() - 1.0).abs() < 1e-12); // J = 4 fits only at h
     /// ```
     pub fn pixel_size(&self, map: Pixelization) -> f64 {
         match self.pixel_arcmin {
             Some(a) => (a / 60.0).to_radians(),
-            None => crate::tiling::DEFAULT_PIXEL_FRACTION * map.mean_spacing(),
+            None => {
+                // 3h, or at low resolution the coarsest of 2h and h at which the J scales still
+                // fit the tool's tiles (or the given tile size) within the distortion limit
+                let h = map.mean_spacing();
+                [crate::tiling::DEFAULT_PIXEL_FRACTION, 2.0]
+                    .into_iter()
+                    .map(|f| f * h)
+                    .find(|&d| match self.tile_pixels {
+                        Some(n) => {
+                            crate::tiling::corner_distortion(n, d)
+                                <= crate::tiling::MAX_AUTOMATIC_CORNER_DISTORTION
+                        }
+                        None => Self::scales_fit(self.scales, self.border_pixels, d),
+                    })
+                    .unwrap_or(h)
+            }
         }
     }
 

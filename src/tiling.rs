@@ -33,12 +33,13 @@ use crate::projection::Gnomonic;
 use latitude_bands::LatitudeBands;
 use std::f64::consts::FRAC_PI_2;
 
-/// Default plane pixel size as a fraction of the map's mean pixel spacing: 1. The transfer of
-/// power by sampling (`examples/sampling_transfer.rs`) is set by the interpolation between map
-/// pixels and is the same, to 10⁻³, for plane pixels of 1, ½ and ¼ map spacing; finer plane
-/// pixels only cost memory (×4 per halving) and push the smallest wavelet scales below the map's
-/// resolution.
-pub const DEFAULT_PIXEL_FRACTION: f64 = 1.0;
+/// Default plane pixel size as a multiple of the map's mean pixel spacing h: 3, so the finest
+/// scale's wavelength (8/3)·Δ = 8h is the shortest that ring-cubic sampling carries within 2%
+/// ([`crate::sampling::SamplingMethod::trusted_wavelength_map_spacings`]) and every default
+/// coefficient is trusted. The map is read on a grid of spacing h and band-limited to the plane
+/// grid ([`crate::sampling::fine_sampling_factor`]), so nothing aliases; finer plane pixels
+/// only reach scales the sampling smooths, at 9× the tile pixels.
+pub const DEFAULT_PIXEL_FRACTION: f64 = 3.0;
 
 /// Default halo around the core, in plane pixels.
 pub const DEFAULT_HALO: usize = 16;
@@ -119,8 +120,9 @@ pub struct TilingSettings {
     /// Plane pixels per side n (even); `None`: for latitude bands [`automatic_tile_pixels`], for
     /// HEALPix cells the smallest even 2^a·3^b that holds the largest core plus the halo.
     pub tile_pixels: Option<usize>,
-    /// Plane pixel size Δ in radians; `None`: [`DEFAULT_PIXEL_FRACTION`] × the map's mean
-    /// pixel spacing.
+    /// Plane pixel size Δ in radians; `None`: the map's mean pixel spacing (a measurement's
+    /// own default, [`DEFAULT_PIXEL_FRACTION`] of it, is set by
+    /// [`crate::measurement::MeasurementSettings::pixel_size`]).
     pub pixel_size: Option<f64>,
     /// Halo width in plane pixels kept around the core on every side.
     pub halo: usize,
@@ -337,9 +339,7 @@ impl TilingPlan {
                 footprint.pixelization().nside()
             )));
         }
-        let pixel_size = settings
-            .pixel_size
-            .unwrap_or(DEFAULT_PIXEL_FRACTION * map.mean_spacing());
+        let pixel_size = settings.pixel_size.unwrap_or(map.mean_spacing());
         if !(pixel_size.is_finite() && pixel_size > 0.0) {
             return Err(Error::Setting(format!(
                 "the tile pixel size must be positive, got {} arcmin",

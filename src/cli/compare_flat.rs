@@ -22,7 +22,8 @@ pub struct CompareFlatArgs {
     /// NSIDE of the sphere skies.
     #[arg(long, default_value_t = 128)]
     pub nside: u32,
-    /// Tile sizes in pixels per side, comma separated (powers of two).
+    /// Tile sizes in pixels per side, comma separated (powers of two); plane pixels of one map
+    /// spacing, read directly.
     #[arg(long, value_delimiter = ',', default_value = "32,64")]
     pub tile_pixels: Vec<usize>,
     /// Lognormal skies with this shift (the spectrum is then that of the Gaussian field).
@@ -91,6 +92,14 @@ pub fn run(args: &CompareFlatArgs) -> Result<()> {
             scales: args.scales,
             orientations: args.orientations,
             border_pixels: args.border_pixels,
+            // plane pixels of one map spacing, read directly: the comparison shows what the
+            // sampling and the projection do to every scale the map's grid reaches
+            pixel_arcmin: Some(
+                crate::Pixelization::new(args.nside, crate::Ordering::Ring)?
+                    .mean_spacing()
+                    .to_degrees()
+                    * 60.0,
+            ),
             ..MeasurementSettings::default()
         },
         seed: args.seed,

@@ -64,9 +64,11 @@ pub struct MeasureOptions {
     /// latitude bands [default: latitude bands, cores that nearly fill their tiles].
     #[arg(long)]
     pub coarse_nside: Option<u32>,
-    /// Tile pixel size in arcmin [default: the map's mean pixel spacing h; scale j has the
-    /// wavelength (8/3)·2^j pixels, and with ring-cubic sampling scales below 8h (j = 0, 1 at
-    /// the default) are flagged untrusted: smaller scales need a higher-NSIDE map].
+    /// Tile pixel size in arcmin [default: three map spacings 3h, read on a grid of spacing h
+    /// and band-limited to the tile grid; scale j has the wavelength (8/3)·2^j pixels, so the
+    /// defaults cover 8h–64h (27′–3.7° at NSIDE 1024) and every coefficient is trusted.
+    /// Ring-cubic sampling carries wavelengths down to 8h: at one map spacing j = 0 and 1 are
+    /// flagged untrusted; smaller trusted scales need a higher-NSIDE map].
     #[arg(long, allow_negative_numbers = true)]
     pub pixel_arcmin: Option<f64>,
     /// Width of the tile-border taper in tile pixels [default: 8].

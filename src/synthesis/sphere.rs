@@ -145,7 +145,10 @@ impl std::fmt::Debug for SphereSynthesis {
 impl SphereSynthesis {
     /// Plans the tiles of `footprint` for maps of pixelization `map` with `measurement`
     /// settings and prepares the synthesis. The power-spectrum and field–envelope terms of the
-    /// flat synthesis are not available on the sphere.
+    /// flat synthesis are not available on the sphere. The gradient runs through the direct
+    /// sampling operator ([`TileSampler::operator`]), so plane pixels left to the default
+    /// (`pixel_arcmin` `None`) are one map spacing here, not the measurement's band-limited
+    /// three; coarser ones are refused.
     pub fn new(
         map: Pixelization,
         footprint: &Footprint,
@@ -176,6 +179,10 @@ impl SphereSynthesis {
             )));
         }
         let footprint = footprint.to_ordering(map.ordering())?;
+        let mut measurement = measurement;
+        if measurement.pixel_arcmin.is_none() {
+            measurement.pixel_arcmin = Some(map.mean_spacing().to_degrees() * 60.0);
+        }
         let summary = match settings.statistics {
             StatisticChoice::Full => None,
             StatisticChoice::Summary => Some(SummaryMap::new(
