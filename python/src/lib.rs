@@ -296,6 +296,13 @@ fn measure_map<'py>(
                             "{cross_name}: every pixel is bad (UNSEEN or NaN): nothing to cross-correlate"
                         )));
                     }
+                    if other.nside() != map.nside() {
+                        return Err(Error::Mismatch(format!(
+                            "{name} has NSIDE {} but {cross_name} has NSIDE {}: cross statistics need one pixelization",
+                            map.nside(),
+                            other.nside()
+                        )));
+                    }
                     let first = untapered(&map, &name, mask)?;
                     let second = untapered(other, &cross_name, cross_mask).map_err(|e| match e {
                         Error::Data(m) => Error::Data(format!("second map: {m}")),
