@@ -380,7 +380,8 @@ fn measure_flat<'py>(
     }
     let shape = field.shape();
     let (rows, cols) = (shape[0], shape[1]);
-    planisphere::flat::check_field_shape(rows, cols).map_err(|e| value_error(format!("{name}: {e}")))?;
+    planisphere::flat::check_field_shape(rows, cols)
+        .map_err(|e| value_error(format!("{name}: {e}")))?;
     let values = field
         .as_slice()
         .map_err(|_| value_error("the field must be a contiguous array".into()))?
@@ -454,8 +455,11 @@ fn sky<'py>(
     shape_noise: Option<(f64, f64)>,
     threads: Option<i64>,
 ) -> PyResult<Bound<'py, PyArray2<f64>>> {
-    let nside_u = u32::try_from(nside)
-        .map_err(|_| value_error(format!("nside must be a power of two from 1 to 8192, got {nside}")))?;
+    let nside_u = u32::try_from(nside).map_err(|_| {
+        value_error(format!(
+            "nside must be a power of two from 1 to 8192, got {nside}"
+        ))
+    })?;
     let options = SkyOptions {
         nside: nside_u,
         lmax: lmax.map(|l| self::count("lmax", l, 0)).transpose()?,
@@ -549,10 +553,9 @@ fn spectra<'py>(
                 iterations,
                 &master,
             )?;
-            let doc = serde_json::to_string(&planisphere::spectra::SpectraDocument::new(
-                &pseudo, &s,
-            ))
-            .map_err(|e| Error::Data(format!("cannot write the spectra document: {e}")))?;
+            let doc =
+                serde_json::to_string(&planisphere::spectra::SpectraDocument::new(&pseudo, &s))
+                    .map_err(|e| Error::Data(format!("cannot write the spectra document: {e}")))?;
             Ok((doc, planisphere::spectra::spectrum_csv(&s)))
         })
     })
@@ -577,8 +580,7 @@ fn ensemble(
         .as_slice()
         .map_err(|_| value_error(format!("{what} must be a contiguous array")))?;
     let rows: Vec<Vec<f64>> = flat.chunks(shape[1].max(1)).map(<[f64]>::to_vec).collect();
-    Ensemble::from_rows(labels.to_vec(), &rows)
-        .map_err(|e| value_error(format!("{what}: {e}")))
+    Ensemble::from_rows(labels.to_vec(), &rows).map_err(|e| value_error(format!("{what}: {e}")))
 }
 
 /// A derivative as Python gives it: parameter, step, ensemble at +step, ensemble at −step.
@@ -666,8 +668,16 @@ fn forecast<'py>(
         ders.push(DerivativeEnsembles {
             parameter: name.clone(),
             step: *step,
-            plus: ensemble(plus, &column_labels, &format!("the +step ensemble of '{name}'"))?,
-            minus: ensemble(minus, &column_labels, &format!("the −step ensemble of '{name}'"))?,
+            plus: ensemble(
+                plus,
+                &column_labels,
+                &format!("the +step ensemble of '{name}'"),
+            )?,
+            minus: ensemble(
+                minus,
+                &column_labels,
+                &format!("the −step ensemble of '{name}'"),
+            )?,
             paired,
         });
     }
@@ -759,7 +769,10 @@ fn write_map<'py>(
     let order = ordering(ordering_name)?;
     let mut maps = Vec::with_capacity(columns.len());
     for (name, values) in &columns {
-        maps.push((name.clone(), sky_map(values, order, &format!("column '{name}'"))?));
+        maps.push((
+            name.clone(),
+            sky_map(values, order, &format!("column '{name}'"))?,
+        ));
     }
     let options = planisphere::fits_io::WriteOptions {
         precision: if float32 {
@@ -797,7 +810,11 @@ fn merge<'py>(
         })
         .map_err(py_error)?;
     let (rows, cols) = (table.rows.len(), table.description.labels.len());
-    let values: Vec<f64> = table.rows.iter().flat_map(|r| r.values.iter().copied()).collect();
+    let values: Vec<f64> = table
+        .rows
+        .iter()
+        .flat_map(|r| r.values.iter().copied())
+        .collect();
     let array = values.into_pyarray(py).reshape([rows, cols])?;
     let scales = table.label_scales();
     Ok((array, table.description.labels.clone(), scales))
@@ -818,8 +835,12 @@ fn ensemble_command(py: Python<'_>, arguments: Vec<String>, threads: Option<i64>
         std::iter::once("planisphere ensemble".to_string()).chain(arguments),
     )
     .map_err(|e| value_error(e.to_string().lines().next().unwrap_or("").to_string()))?;
-    py.detach(move || on_threads(threads, move || planisphere::cli::ensemble::run(&parsed.args)))
-        .map_err(py_error)
+    py.detach(move || {
+        on_threads(threads, move || {
+            planisphere::cli::ensemble::run(&parsed.args)
+        })
+    })
+    .map_err(py_error)
 }
 
 /// The Python module.
