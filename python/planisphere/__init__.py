@@ -23,6 +23,8 @@ Manners
 from __future__ import annotations
 
 import json
+import os
+import warnings
 from dataclasses import dataclass, field
 from typing import Any, Dict, List, Mapping, Optional, Sequence, Tuple, Union
 
@@ -223,13 +225,31 @@ class Measurement:
         )
 
 
+def _is_path(x: Any) -> bool:
+    return isinstance(x, (str, os.PathLike))
+
+
+def _map_argument(x: Any, what: str, allow_bool: bool = False) -> Tuple[Optional[np.ndarray], Optional[str]]:
+    """(array, None) for an array, (None, path) for a file name, (None, None) for None."""
+    if x is None:
+        return None, None
+    if _is_path(x):
+        return None, os.fspath(x)
+    return _real_array(x, what, 1, allow_bool), None
+
+
 def measure(
     map: Any,
     mask: Any = None,
     *,
     ordering: str = "RING",
+    column: Union[int, str] = 0,
+    mask_column: Union[int, str] = 0,
     cross: Any = None,
     cross_mask: Any = None,
+    cross_column: Union[int, str] = 0,
+    cross_mask_column: Union[int, str] = 0,
+    allow_coordsys_mismatch: bool = False,
     taper: str = "c2",
     taper_arcmin: float = 60.0,
     scales: Optional[int] = None,
@@ -243,61 +263,60 @@ def measure(
     bispectrum: bool = True,
     full_resolution: bool = False,
     threads: Optional[int] = None,
-    name: str = "map",
+    name: Optional[str] = None,
     mask_name: Optional[str] = None,
-    cross_name: str = "second map",
+    cross_name: Optional[str] = None,
     cross_mask_name: Optional[str] = None,
 ) -> Measurement:
     """Scattering statistics of a HEALPix map on its footprint (the ``measure`` command).
 
-    ``map``: 1-D array of 12·NSIDE² values (``ordering`` "RING" or "NESTED"; UNSEEN/NaN bad).
-    ``mask``: weights in [0, 1] in the same ordering (NaN/UNSEEN weigh 0, as in a FITS mask);
-    without it the map's valid pixels are the footprint. Binary masks are tapered by
-    ``taper`` ("c1", "c2", "gaussian", "none") over ``taper_arcmin``.
-    ``cross``: a second map (same NSIDE and ordering) measured on the common footprint with
-    its own mask ``cross_mask``; adds the cross statistics.
+    ``map``: 1-D array of 12·NSIDE² values (``ordering`` "RING" or "NESTED"; UNSEEN/NaN bad),
+    or the path of a HEALPix FITS file (``column``), read by the library as the command line
+    reads it (the lightest way in memory: no array stays with the caller).
+    ``mask``: weights in [0, 1] in the map's ordering (NaN/UNSEEN weigh 0, as in a FITS
+    mask), or a FITS file (``mask_column``; another ordering is converted, COORDSYS compared
+    unless ``allow_coordsys_mismatch``); without it the map's valid pixels are the footprint.
+    Binary masks are tapered by ``taper`` ("c1", "c2", "gaussian", "none") over
+    ``taper_arcmin``.
+    ``cross``: a second map (same NSIDE; array in the same ordering, or a file) measured on the
+    common footprint with its own mask ``cross_mask``; adds the cross statistics.
     Settings (defaults as the command line's): ``scales`` J (4), ``orientations`` L (4),
     ``tile_pixels``, ``coarse_nside``, ``pixel_arcmin``, ``border_pixels`` (8), ``sampling``
     ("ring-cubic", "bilinear", "ring-linear", "nearest"), ``spectrum_bins`` (6),
     ``bispectrum`` (True), ``full_resolution`` (False: Fourier cropping on).
     ``name``, ``mask_name``, ``cross_name``, ``cross_mask_name``: how the document names the
-    inputs (the command line writes the file paths there).
+    inputs (default: the file path, as the command line writes it, or a description).
+    The reader's warnings (e.g. an assumed ordering) are issued as Python warnings.
     """
-    values = _real_array(map, "the map", 1)
-    weights = _optional(mask, "the mask", 1, allow_bool=True)
-    other = _optional(cross, "the second map", 1)
-    other_weights = _optional(cross_mask, "the second mask", 1, allow_bool=True)
-    if other is None and other_weights is not None:
+    values, path = _map_argument(map, "the map")
+    if values is None and path is None:
+        raise ValueError("measure needs a map")
+    weights, mask_path = _map_argument(mask, "the mask", allow_bool=True)
+    other, other_path = _map_argument(cross, "the second map")
+    other_weights, other_mask_path = _map_argument(cross_mask, "the second mask", allow_bool=True)
+    if other is None and other_path is None and cross_mask is not None:
         raise ValueError("cross_mask needs cross (the second map)")
-    if weights is not None and mask_name is None:
-        mask_name = "mask array"
-    if other_weights is not None and cross_mask_name is None:
-        cross_mask_name = "second mask array"
+    if name is None:
+        name = path if path is not None else "map"
+    if mask_name is None and mask is not None:
+        mask_name = mask_path if mask_path is not None else "mask array"
+    if cross_name is None:
+        cross_name = other_path if other_path is not None else "second map"
+    if cross_mask_name is None and cross_mask is not None:
+        cross_mask_name = other_mask_path if other_mask_path is not None else "second mask array"
     out = _native.measure_map(
-        values,
-        ordering,
-        weights,
-        name,
-        mask_name,
-        other,
-        other_weights,
-        cross_name,
-        cross_mask_name,
-        taper,
-        float(taper_arcmin),
-        scales,
-        orientations,
-        tile_pixels,
-        coarse_nside,
-        None if pixel_arcmin is None else float(pixel_arcmin),
-        border_pixels,
-        sampling,
-        spectrum_bins,
-        bool(bispectrum),
-        bool(full_resolution),
-        threads,
+        values, path, str(column), ordering,
+        weights, mask_path, str(mask_column), name, mask_name,
+        other, other_path, str(cross_column),
+        other_weights, other_mask_path, str(cross_mask_column),
+        cross_name, cross_mask_name, bool(allow_coordsys_mismatch),
+        taper, float(taper_arcmin), scales, orientations, tile_pixels, coarse_nside,
+        None if pixel_arcmin is None else float(pixel_arcmin), border_pixels, sampling,
+        spectrum_bins, bool(bispectrum), bool(full_resolution), threads,
     )
-    return Measurement(*out)
+    for message in out[4]:
+        warnings.warn(message, stacklevel=2)
+    return Measurement(*out[:4])
 
 
 def measure_flat(
@@ -337,7 +356,7 @@ def measure_flat(
         bool(full_resolution),
         threads,
     )
-    return Measurement(*out)
+    return Measurement(*out[:4])
 
 
 def sky(

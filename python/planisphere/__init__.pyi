@@ -66,12 +66,17 @@ class Table:
     scales_arcmin: List[Optional[float]]
 
 def measure(
-    map: _Array,
-    mask: Optional[_Array] = None,
+    map: Union[_Array, _Path],
+    mask: Union[_Array, _Path, None] = None,
     *,
     ordering: str = "RING",
-    cross: Optional[_Array] = None,
-    cross_mask: Optional[_Array] = None,
+    column: Union[int, str] = 0,
+    mask_column: Union[int, str] = 0,
+    cross: Union[_Array, _Path, None] = None,
+    cross_mask: Union[_Array, _Path, None] = None,
+    cross_column: Union[int, str] = 0,
+    cross_mask_column: Union[int, str] = 0,
+    allow_coordsys_mismatch: bool = False,
     taper: str = "c2",
     taper_arcmin: float = 60.0,
     scales: Optional[int] = None,
@@ -85,9 +90,9 @@ def measure(
     bispectrum: bool = True,
     full_resolution: bool = False,
     threads: Optional[int] = None,
-    name: str = "map",
+    name: Optional[str] = None,
     mask_name: Optional[str] = None,
-    cross_name: str = "second map",
+    cross_name: Optional[str] = None,
     cross_mask_name: Optional[str] = None,
 ) -> Measurement: ...
 def measure_flat(

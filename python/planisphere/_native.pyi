@@ -11,18 +11,27 @@ UNSEEN: float
 
 F64Array1 = npt.NDArray[np.float64]
 F64Array2 = npt.NDArray[np.float64]
-MeasureOutput = Tuple[str, List[float], List[str], List[Optional[float]]]
+MeasureOutput = Tuple[str, List[float], List[str], List[Optional[float]], List[str]]
 
 def measure_map(
-    values: F64Array1,
+    values: Optional[F64Array1],
+    path: Optional[str],
+    column: str,
     ordering_name: str,
     mask: Optional[F64Array1],
+    mask_path: Optional[str],
+    mask_column: str,
     name: str,
     mask_name: Optional[str],
     cross: Optional[F64Array1],
+    cross_path: Optional[str],
+    cross_column: str,
     cross_mask: Optional[F64Array1],
+    cross_mask_path: Optional[str],
+    cross_mask_column: str,
     cross_name: str,
     cross_mask_name: Optional[str],
+    allow_coordsys_mismatch: bool,
     taper: str,
     taper_arcmin: float,
     scales: Optional[int],

@@ -174,47 +174,159 @@ fn sky_map(values: &PyReadonlyArray1<'_, f64>, order: Ordering, what: &str) -> P
     SkyMap::new(pix, v.to_vec()).map_err(py_error)
 }
 
+/// A map given as an array (already copied into the library's layout) or as a FITS file and
+/// column, read with the library's reader (exactly as the command line reads it).
+enum MapInput {
+    Array(Box<SkyMap>),
+    File(PathBuf, planisphere::fits_io::ColumnChoice),
+}
+
+impl MapInput {
+    fn new(
+        values: Option<PyReadonlyArray1<'_, f64>>,
+        path: Option<PathBuf>,
+        column: &str,
+        order: Ordering,
+        what: &str,
+    ) -> PyResult<Option<Self>> {
+        match (values, path) {
+            (Some(v), None) => Ok(Some(MapInput::Array(Box::new(sky_map(&v, order, what)?)))),
+            (None, Some(p)) => Ok(Some(MapInput::File(
+                p,
+                planisphere::fits_io::ColumnChoice::parse(column),
+            ))),
+            (None, None) => Ok(None),
+            (Some(_), Some(_)) => Err(value_error(format!("{what}: an array or a file, not both"))),
+        }
+    }
+
+    /// NSIDE without reading the pixels (for the memory estimate).
+    fn nside(&self) -> planisphere::Result<u32> {
+        match self {
+            MapInput::Array(m) => Ok(m.nside()),
+            MapInput::File(p, _) => Ok(planisphere::fits_io::HealpixFitsReader::open(p)?
+                .header()
+                .nside),
+        }
+    }
+
+    /// The map, and the reader's warnings (an assumed ordering, ...).
+    fn load(self) -> planisphere::Result<(SkyMap, Vec<String>)> {
+        match self {
+            MapInput::Array(m) => Ok((*m, Vec::new())),
+            MapInput::File(p, c) => {
+                let (map, header) = planisphere::fits_io::read_map(&p, &c)?;
+                let warnings = header
+                    .warnings
+                    .iter()
+                    .map(|w| format!("{}: {w}", p.display()))
+                    .collect();
+                Ok((map, warnings))
+            }
+        }
+    }
+}
+
+/// A mask given as weights (same ordering as the map) or as a FITS file and column.
+enum MaskInput {
+    Weights(Vec<f64>),
+    File(PathBuf, planisphere::fits_io::ColumnChoice),
+}
+
+impl MaskInput {
+    fn new(
+        values: Option<PyReadonlyArray1<'_, f64>>,
+        path: Option<PathBuf>,
+        column: &str,
+        what: &str,
+    ) -> PyResult<Option<Self>> {
+        match (values, path) {
+            (Some(v), None) => Ok(Some(MaskInput::Weights(slice(&v, what)?.to_vec()))),
+            (None, Some(p)) => Ok(Some(MaskInput::File(
+                p,
+                planisphere::fits_io::ColumnChoice::parse(column),
+            ))),
+            (None, None) => Ok(None),
+            (Some(_), Some(_)) => Err(value_error(format!("{what}: an array or a file, not both"))),
+        }
+    }
+}
+
 /// The untapered footprint of `map` named `name`: the weights (same ordering as the map; NaN
-/// and UNSEEN weigh 0, as in a FITS mask) or the map's valid pixels, without its bad pixels.
-fn untapered(map: &SkyMap, name: &str, mask: Option<Vec<f64>>) -> planisphere::Result<Footprint> {
+/// and UNSEEN weigh 0, as in a FITS mask), a mask file (brought to the map's ordering, its
+/// COORDSYS compared with the map's unless `allow_coordsys_mismatch`) or the map's valid
+/// pixels, without the map's bad pixels.
+fn untapered(
+    map: &SkyMap,
+    name: &str,
+    mask: Option<MaskInput>,
+    allow_coordsys_mismatch: bool,
+    warnings: &mut Vec<String>,
+) -> planisphere::Result<Footprint> {
     if map.valid_count() == 0 {
         return Err(Error::Data(format!(
             "{name}: every pixel is bad (UNSEEN or NaN): nothing to measure"
         )));
     }
-    match mask {
-        Some(w) => {
-            let fp = Footprint::from_weights(map.pixelization(), w)?.restricted_to(map)?;
-            refuse_single_pixel_mask(&fp)?;
-            Ok(fp)
+    let raw = match mask {
+        Some(MaskInput::Weights(w)) => Footprint::from_weights(map.pixelization(), w)?,
+        Some(MaskInput::File(path, column)) => {
+            let (fp, header) = planisphere::fits_io::read_footprint(&path, &column)?;
+            warnings.extend(
+                header
+                    .warnings
+                    .iter()
+                    .map(|w| format!("{}: {w}", path.display())),
+            );
+            planisphere::fits_io::check_same_coordsys(
+                (name, map.coordsys.as_deref()),
+                (&path.display().to_string(), header.coordsys.as_deref()),
+                allow_coordsys_mismatch,
+            )?;
+            fp
         }
-        None => Footprint::of_valid_pixels(map).restricted_to(map),
-    }
+        None => return Footprint::of_valid_pixels(map).restricted_to(map),
+    };
+    let fp = raw.restricted_to(map)?;
+    refuse_single_pixel_mask(&fp)?;
+    Ok(fp)
 }
 
 /// What a measurement hands back to Python: the JSON document as text, the statistics vector
 /// (the row an ensemble table holds, without its pseudo-C_ℓ columns), its labels and scales.
-type MeasureOutput = (String, Vec<f64>, Vec<String>, Vec<Option<f64>>);
+/// The reader's warnings come last.
+type MeasureOutput = (String, Vec<f64>, Vec<String>, Vec<Option<f64>>, Vec<String>);
 
 /// Measures a HEALPix map (and optionally a second one, for cross statistics) as `measure`
-/// does; see the Python wrapper `planisphere.measure` for the arguments.
+/// does; maps and masks come as arrays or as FITS files. See the Python wrapper
+/// `planisphere.measure` for the arguments.
 #[pyfunction]
-#[pyo3(signature = (values, ordering_name, mask, name, mask_name, cross, cross_mask, cross_name,
-    cross_mask_name, taper, taper_arcmin, scales, orientations, tile_pixels, coarse_nside,
-    pixel_arcmin, border_pixels, sampling_name, spectrum_bins, bispectrum, full_resolution,
-    threads))]
+#[pyo3(signature = (values, path, column, ordering_name, mask, mask_path, mask_column, name,
+    mask_name, cross, cross_path, cross_column, cross_mask, cross_mask_path, cross_mask_column,
+    cross_name, cross_mask_name, allow_coordsys_mismatch, taper, taper_arcmin, scales,
+    orientations, tile_pixels, coarse_nside, pixel_arcmin, border_pixels, sampling_name,
+    spectrum_bins, bispectrum, full_resolution, threads))]
 #[allow(clippy::too_many_arguments)]
 fn measure_map<'py>(
     py: Python<'py>,
-    values: PyReadonlyArray1<'py, f64>,
+    values: Option<PyReadonlyArray1<'py, f64>>,
+    path: Option<PathBuf>,
+    column: &str,
     ordering_name: &str,
     mask: Option<PyReadonlyArray1<'py, f64>>,
+    mask_path: Option<PathBuf>,
+    mask_column: &str,
     name: String,
     mask_name: Option<String>,
     cross: Option<PyReadonlyArray1<'py, f64>>,
+    cross_path: Option<PathBuf>,
+    cross_column: &str,
     cross_mask: Option<PyReadonlyArray1<'py, f64>>,
+    cross_mask_path: Option<PathBuf>,
+    cross_mask_column: &str,
     cross_name: String,
     cross_mask_name: Option<String>,
+    allow_coordsys_mismatch: bool,
     taper: &str,
     taper_arcmin: f64,
     scales: Option<i64>,
@@ -243,37 +355,33 @@ fn measure_map<'py>(
         full_resolution,
     )?;
     let taper_kind: TaperKind = enum_value("taper", taper)?;
-    let npix = slice(&values, "the map")?.len();
-    let pix = pixelization_of(npix, order, "the map")?;
-    let maps = if cross.is_some() { 2 } else { 1 };
-    planisphere::limits::check_memory(
-        &format!("measuring a NSIDE {} map", pix.nside()),
-        planisphere::limits::measurement_bytes(pix.nside(), maps),
-    )
-    .map_err(py_error)?;
-    let map = sky_map(&values, order, "the map")?;
-    let mask = match &mask {
-        Some(m) => Some(slice(m, "the mask")?.to_vec()),
-        None => None,
-    };
-    let other = match &cross {
-        Some(c) => Some(sky_map(c, order, "the second map")?),
-        None => None,
-    };
-    let cross_mask = match &cross_mask {
-        Some(m) => Some(slice(m, "the second mask")?.to_vec()),
-        None => None,
-    };
+    let map = MapInput::new(values, path, column, order, "the map")?
+        .ok_or_else(|| value_error("measure needs a map".into()))?;
+    let mask = MaskInput::new(mask, mask_path, mask_column, "the mask")?;
+    let other = MapInput::new(cross, cross_path, cross_column, order, "the second map")?;
+    let cross_mask = MaskInput::new(
+        cross_mask,
+        cross_mask_path,
+        cross_mask_column,
+        "the second mask",
+    )?;
     py.detach(move || {
         on_threads(threads, move || {
+            let maps = if other.is_some() { 2 } else { 1 };
+            let nside = map.nside()?;
+            planisphere::limits::check_memory(
+                &format!("measuring a NSIDE {nside} map"),
+                planisphere::limits::measurement_bytes(nside, maps),
+            )?;
+            let (map, mut warnings) = map.load()?;
             let taper_desc = planisphere::measurement_document::taper_description(
                 taper_kind,
                 taper_arcmin,
                 mask_name.as_deref(),
             );
-            let (measurer, doc, stats) = match &other {
+            let (measurer, doc, stats) = match other {
                 None => {
-                    let raw = untapered(&map, &name, mask)?;
+                    let raw = untapered(&map, &name, mask, allow_coordsys_mismatch, &mut warnings)?;
                     let fp = planisphere::apodization::taper_footprint(
                         raw,
                         taper_kind,
@@ -291,6 +399,8 @@ fn measure_map<'py>(
                     (measurer, doc, stats)
                 }
                 Some(other) => {
+                    let (other, more) = other.load()?;
+                    warnings.extend(more);
                     if other.valid_count() == 0 {
                         return Err(Error::Data(format!(
                             "{cross_name}: every pixel is bad (UNSEEN or NaN): nothing to cross-correlate"
@@ -303,8 +413,22 @@ fn measure_map<'py>(
                             other.nside()
                         )));
                     }
-                    let first = untapered(&map, &name, mask)?;
-                    let second = untapered(other, &cross_name, cross_mask).map_err(|e| match e {
+                    planisphere::fits_io::check_same_coordsys(
+                        (&name, map.coordsys.as_deref()),
+                        (&cross_name, other.coordsys.as_deref()),
+                        allow_coordsys_mismatch,
+                    )?;
+                    let other = other.to_ordering(map.ordering())?;
+                    let first =
+                        untapered(&map, &name, mask, allow_coordsys_mismatch, &mut warnings)?;
+                    let second = untapered(
+                        &other,
+                        &cross_name,
+                        cross_mask,
+                        allow_coordsys_mismatch,
+                        &mut warnings,
+                    )
+                    .map_err(|e| match e {
                         Error::Data(m) => Error::Data(format!("second map: {m}")),
                         e => e,
                     })?;
@@ -314,9 +438,9 @@ fn measure_map<'py>(
                         taper_arcmin,
                     )?;
                     check_measurable(&map, Some(&fp), &name)?;
-                    check_measurable(other, Some(&fp), &cross_name)?;
+                    check_measurable(&other, Some(&fp), &cross_name)?;
                     let measurer = SphereMeasurer::new(map.pixelization(), &fp, settings)?;
-                    let pair = measurer.measure_pair(&map, other, &fp)?;
+                    let pair = measurer.measure_pair(&map, &other, &fp)?;
                     let doc = planisphere::measurement_document::pair_document(
                         &measurer,
                         &pair,
@@ -334,6 +458,7 @@ fn measure_map<'py>(
                 stats.vector(),
                 labels.iter().map(|l| l.name.clone()).collect(),
                 labels.iter().map(|l| l.scale_arcmin).collect(),
+                warnings,
             ))
         })
     })
@@ -428,7 +553,13 @@ fn measure_flat<'py>(
             );
             // (the column labels of the vector belong to the sphere measurer; a flat field's
             // coefficients are labelled in the document)
-            Ok((doc.to_string(), stats.vector(), Vec::new(), Vec::new()))
+            Ok((
+                doc.to_string(),
+                stats.vector(),
+                Vec::new(),
+                Vec::new(),
+                Vec::new(),
+            ))
         })
     })
     .map_err(py_error)
@@ -543,7 +674,13 @@ fn spectra<'py>(
         on_threads(threads, move || {
             master.check()?;
             planisphere::limits::check_harmonic_iterations(iterations)?;
-            let raw = untapered(&map, &name, mask)?;
+            let raw = untapered(
+                &map,
+                &name,
+                mask.map(MaskInput::Weights),
+                false,
+                &mut Vec::new(),
+            )?;
             let fp = planisphere::apodization::taper_footprint(raw, taper_kind, taper_arcmin)?;
             let (pseudo, s) = planisphere::spectra::measure_spectra(
                 (&map, &name),

@@ -183,3 +183,16 @@ def test_read_table_equals_the_merged_npy(ensembles):
     sidecar = json.loads((ensembles / "fid" / "statistics.json").read_text())
     assert t.labels == sidecar["columns"]
     assert t.scales_arcmin == sidecar["settings"]["label_scales_arcmin"]
+
+
+def test_measure_of_files_equals_command_line_without_naming_them(inputs, cli, tmp_path):
+    out = tmp_path / "m.json"
+    cli("measure", inputs["map"], "--mask", inputs["mask"], "-J", 3, "-o", out)
+    assert ps.measure(str(inputs["map"]), str(inputs["mask"]), scales=3).to_dict() \
+        == load_json(out)
+    cross = tmp_path / "c.json"
+    cli("measure", inputs["map"], "--cross", inputs["other"], "--cross-mask", inputs["mask"],
+        "-J", 3, "-o", cross)
+    r = ps.measure(str(inputs["map"]), cross=inputs["other"], cross_mask=inputs["mask"],
+                   scales=3)
+    assert r.to_dict() == load_json(cross)
