@@ -54,6 +54,8 @@ def main() -> None:
     parser.add_argument("--mask")
     parser.add_argument("-J", "--scales", type=int)
     parser.add_argument("-L", "--orientations", type=int)
+    parser.add_argument("--tile-pixels", type=int)
+    parser.add_argument("--border-pixels", type=int)
     parser.add_argument("--shards", type=int, default=8)
     parser.add_argument("--workers", type=int, default=2,
                         help="processes of the local cluster (ignored with --scheduler)")
@@ -65,6 +67,7 @@ def main() -> None:
     options = {k: v for k, v in {
         "simulate": args.simulate, "maps": args.maps, "map_list": args.map_list,
         "mask": args.mask, "scales": args.scales, "orientations": args.orientations,
+        "tile_pixels": args.tile_pixels, "border_pixels": args.border_pixels,
     }.items() if v is not None}
     if args.scheduler:
         client = Client(args.scheduler)
