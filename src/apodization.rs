@@ -205,6 +205,26 @@ pub fn apodize(footprint: &Footprint, kind: TaperKind, width: f64) -> Result<Foo
     Footprint::from_weights(footprint.pixelization(), weights)
 }
 
+/// `raw` tapered by `kind` over `width_arcmin` (binary masks only; a full sky, a width of 0 or
+/// [`TaperKind::None`] leave it as is): the footprint `measure`, `spectra` and `ensemble` use.
+pub fn taper_footprint(raw: Footprint, kind: TaperKind, width_arcmin: f64) -> Result<Footprint> {
+    if !(width_arcmin.is_finite() && width_arcmin >= 0.0) {
+        return Err(Error::Setting(format!(
+            "--taper-arcmin must be a non-negative number, got {}",
+            crate::error::compact(width_arcmin)
+        )));
+    }
+    if raw.observed_pixels() == 0 {
+        return Err(Error::Data(
+            "the mask is empty (no pixel has positive weight)".into(),
+        ));
+    }
+    if kind == TaperKind::None || width_arcmin == 0.0 || raw.f_sky() == 1.0 {
+        return Ok(raw);
+    }
+    apodize(&raw, kind, (width_arcmin / 60.0).to_radians())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -383,6 +383,15 @@ pub struct MergedTable {
 }
 
 impl MergedTable {
+    /// The angular scale (arcmin) each column probes, as recorded in the settings under
+    /// `label_scales_arcmin` (None for a column without one, or all None when not recorded).
+    pub fn label_scales(&self) -> Vec<Option<f64>> {
+        self.description.settings["label_scales_arcmin"]
+            .as_array()
+            .map(|a| a.iter().map(|v| v.as_f64()).collect())
+            .unwrap_or_default()
+    }
+
     /// The members × columns matrix.
     pub fn matrix(&self) -> Array2<f64> {
         let p = self.description.labels.len();

@@ -431,6 +431,43 @@ pub fn read_footprint(path: &Path, column: &ColumnChoice) -> Result<(Footprint, 
     Ok((footprint, reader.header))
 }
 
+/// The coordinate system a COORDSYS value names, by the HEALPix FITS convention ('G'
+/// galactic, 'E' ecliptic, 'C' or 'Q' equatorial; full words are taken by their first letter).
+pub fn coordinate_system(value: &str) -> String {
+    let v = value.trim().to_uppercase();
+    match v.chars().next() {
+        Some('G') => "galactic".into(),
+        Some('E') => "ecliptic".into(),
+        Some('C') | Some('Q') => "equatorial".into(),
+        _ => v,
+    }
+}
+
+/// Refuses two files whose COORDSYS headers name different coordinate systems (when both
+/// state one), unless `allow`: a mask in galactic coordinates on an equatorial map cuts the
+/// wrong sky without any other sign.
+pub fn check_same_coordsys(
+    first: (&str, Option<&str>),
+    second: (&str, Option<&str>),
+    allow: bool,
+) -> Result<()> {
+    if allow {
+        return Ok(());
+    }
+    if let ((a, Some(sa)), (b, Some(sb))) = (first, second) {
+        let (ca, cb) = (coordinate_system(sa), coordinate_system(sb));
+        if ca != cb {
+            return Err(Error::Mismatch(format!(
+                "{a} is in {ca} coordinates (COORDSYS '{}') but {b} in {cb} (COORDSYS '{}'): \
+                 bring both to one system, or pass --allow-coordsys-mismatch if a header is wrong",
+                sa.trim(),
+                sb.trim()
+            )));
+        }
+    }
+    Ok(())
+}
+
 /// Stored type of the value columns.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
 pub enum ValuePrecision {

@@ -303,3 +303,71 @@ pub fn gaussian_random_field(
         data.iter().map(|z| z.re * scale).collect(),
     )
 }
+
+/// Checks the shape of a flat field: square, with a side the engine accepts
+/// ([`crate::filters::is_tile_size`]) and at most [`crate::tiling::MAX_TILE_PIXELS`]; the
+/// error is the reason, without the field's name.
+pub fn check_field_shape(rows: usize, cols: usize) -> std::result::Result<(), String> {
+    if rows != cols {
+        return Err(format!(
+            "a flat field must be square, got {rows} rows × {cols} columns"
+        ));
+    }
+    if !crate::filters::is_tile_size(rows) || rows > crate::tiling::MAX_TILE_PIXELS {
+        return Err(format!(
+            "a flat field of {rows} × {rows} pixels: the side must be 2^k·m (m = 1, 3, 5, 7 or 9; at least 8, and 16·m when m > 1) and at most {}; crop or pad it",
+            crate::tiling::MAX_TILE_PIXELS
+        ));
+    }
+    Ok(())
+}
+
+/// Checks a flat mask of n × n values (`label` names it in messages): finite values in
+/// [0, 1], not all 0.
+pub fn check_mask(label: &str, values: &[f64], n: usize) -> Result<()> {
+    if let Some(i) = values
+        .iter()
+        .position(|v| !(v.is_finite() && (0.0..=1.0).contains(v)))
+    {
+        return Err(Error::Data(format!(
+            "{}: mask value {} at row {}, column {} is outside [0, 1]",
+            label,
+            values[i],
+            i / n,
+            i % n
+        )));
+    }
+    if values.iter().all(|&v| v == 0.0) {
+        return Err(Error::Data(format!(
+            "{}: the mask is 0 everywhere: nothing to measure",
+            label
+        )));
+    }
+    Ok(())
+}
+
+/// The field's values with non-finite values allowed only where the mask is 0 (set to 0 there:
+/// the taper removes them); elsewhere a non-finite value is an error.
+pub fn field_values(label: &str, mut values: Vec<f64>, mask: Option<&[f64]>) -> Result<Vec<f64>> {
+    let n = (values.len() as f64).sqrt() as usize;
+    for (i, v) in values.iter_mut().enumerate() {
+        if !v.is_finite() {
+            if mask.is_some_and(|m| m[i] == 0.0) {
+                *v = 0.0;
+            } else {
+                return Err(Error::Data(format!(
+                    "{}: value {v} at row {}, column {}{}",
+                    label,
+                    i / n.max(1),
+                    i % n.max(1),
+                    if mask.is_some() {
+                        " where the mask is not 0 (non-finite values are allowed only where it is 0)"
+                    } else {
+                        " (a flat field without --mask must be finite everywhere)"
+                    }
+                )));
+            }
+        }
+    }
+    Ok(values)
+}

@@ -222,6 +222,18 @@ impl Footprint {
     }
 }
 
+/// Refuses a mask with a single observed pixel: one value has no fluctuations to measure
+/// (the statistics of one pixel are 0/0).
+pub fn refuse_single_pixel_mask(mask: &Footprint) -> Result<()> {
+    if mask.observed_pixels() == 1 {
+        let pixel = mask.weights().iter().position(|&w| w > 0.0).unwrap_or(0);
+        return Err(Error::Data(format!(
+            "the mask has only one observed pixel (pixel {pixel}): there are no fluctuations to measure"
+        )));
+    }
+    Ok(())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

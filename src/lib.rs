@@ -19,6 +19,7 @@ pub mod forecast;
 pub mod harmonics;
 pub mod limits;
 pub mod measurement;
+pub mod measurement_document;
 pub mod mode_coupling;
 pub mod pixelization;
 pub mod plotting;

@@ -160,3 +160,107 @@ impl SkyRecipe {
         SkyMap::new(Pixelization::new(self.nside, Ordering::Ring)?, values)
     }
 }
+
+/// Where a simulated sky's spectrum comes from.
+#[derive(Debug, Clone)]
+pub enum SpectrumChoice {
+    /// The built-in demo model ([`AngularSpectrum::demo_model`]) with this variance.
+    Model { variance: f64 },
+    /// A text table `ell C_ell` ([`AngularSpectrum::read_text`]).
+    File(std::path::PathBuf),
+    /// C_ℓ for ℓ = 0, 1, … given as numbers (finite, ≥ 0).
+    Table(Vec<f64>),
+}
+
+/// What `sky` is asked for, before its checks: [`SkyOptions::recipe`] checks it and makes the
+/// recipe, for the command line and for bindings alike.
+#[derive(Debug, Clone)]
+pub struct SkyOptions {
+    /// NSIDE, a power of two from 1 to 8192.
+    pub nside: u32,
+    /// Largest multipole (default 3·NSIDE − 1).
+    pub lmax: Option<usize>,
+    pub spectrum: SpectrumChoice,
+    pub lognormal_shift: Option<f64>,
+    /// With `lognormal_shift`: the spectrum is the underlying Gaussian field's.
+    pub gaussian_spectrum: bool,
+    pub beam_arcmin: Option<f64>,
+    /// White noise per pixel (standard deviation); `shape_noise` wins when both are given.
+    pub noise_sigma: Option<f64>,
+    /// Shape noise (σ_e, galaxies per arcmin²): σ_pix = σ_e/√(n_gal·A_pix).
+    pub shape_noise: Option<(f64, f64)>,
+    pub seed: u64,
+    /// First sky index and number of skies (checked against the index range).
+    pub first_index: u64,
+    pub count: u64,
+}
+
+impl SkyOptions {
+    /// The recipe, after the checks of `sky`: NSIDE, index range, ℓmax, memory, spectrum,
+    /// noise and beam.
+    pub fn recipe(&self) -> Result<SkyRecipe> {
+        if self.nside == 0 || !self.nside.is_power_of_two() || self.nside > 8192 {
+            return Err(Error::Setting(format!(
+                "--nside must be a power of two from 1 to 8192, got {}",
+                self.nside
+            )));
+        }
+        crate::limits::check_index_range(self.first_index, self.count)?;
+        let lmax = self.lmax.unwrap_or(3 * self.nside as usize - 1);
+        crate::limits::check_lmax("--lmax", lmax, self.nside)?;
+        crate::limits::check_memory(
+            &format!("a NSIDE {} sky up to ℓ = {lmax}", self.nside),
+            crate::limits::sky_bytes(self.nside, lmax),
+        )?;
+        let spectrum = match &self.spectrum {
+            SpectrumChoice::File(path) => AngularSpectrum::read_text(path)?,
+            SpectrumChoice::Table(cl) => {
+                if let Some((ell, c)) = cl
+                    .iter()
+                    .enumerate()
+                    .find(|(_, c)| !(c.is_finite() && **c >= 0.0))
+                {
+                    return Err(Error::Data(format!(
+                        "the spectrum's C_ell at ell = {ell} is {c}: it must be finite and >= 0"
+                    )));
+                }
+                if cl.is_empty() {
+                    return Err(Error::Data("the spectrum is empty".into()));
+                }
+                AngularSpectrum { cl: cl.clone() }
+            }
+            SpectrumChoice::Model { variance } => {
+                if !(variance.is_finite() && *variance > 0.0) {
+                    return Err(Error::Setting(format!(
+                        "--model-variance must be positive, got {}",
+                        crate::error::compact(*variance)
+                    )));
+                }
+                AngularSpectrum::demo_model(lmax, *variance)
+            }
+        };
+        let pixel_area = 4.0 * std::f64::consts::PI / (12.0 * (self.nside as f64).powi(2));
+        let noise_sigma = match (self.shape_noise, self.noise_sigma) {
+            (Some((s, n)), _) => Some(crate::spectrum::shape_noise_per_pixel(s, n, pixel_area)?),
+            (None, s) => s,
+        };
+        if let Some(b) = self.beam_arcmin {
+            if !(b.is_finite() && b >= 0.0) {
+                return Err(Error::Setting(format!(
+                    "--beam-arcmin must be >= 0, got {}",
+                    crate::error::compact(b)
+                )));
+            }
+        }
+        Ok(SkyRecipe {
+            nside: self.nside,
+            lmax,
+            spectrum,
+            lognormal_shift: self.lognormal_shift,
+            spectrum_is_gaussian: self.gaussian_spectrum,
+            beam_fwhm_arcmin: self.beam_arcmin,
+            noise_sigma,
+            seed: self.seed,
+        })
+    }
+}

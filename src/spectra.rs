@@ -19,6 +19,7 @@ use crate::mode_coupling::{
 };
 use crate::pixelization::Ordering;
 use crate::skymap::SkyMap;
+use std::fmt::Write as _;
 
 /// One bin of a binned spectrum.
 #[derive(Debug, Clone, serde::Serialize)]
@@ -346,4 +347,108 @@ pub fn master_spectrum(
         w2: pseudo.w2,
         w4: pseudo.w4,
     })
+}
+
+impl MasterSettings {
+    /// Refuses a bin width outside 1 … 10000 or a beam that is not a finite number ≥ 0.
+    pub fn check(&self) -> Result<()> {
+        if self.bin_width == 0 || self.bin_width > 10_000 {
+            return Err(Error::Setting(format!(
+                "--bin-width must be from 1 to 10000, got {}",
+                self.bin_width
+            )));
+        }
+        if !(self.beam_fwhm_arcmin.is_finite() && self.beam_fwhm_arcmin >= 0.0) {
+            return Err(Error::Setting(format!(
+                "--beam-arcmin must be a finite number >= 0, got {}",
+                crate::error::compact(self.beam_fwhm_arcmin)
+            )));
+        }
+        Ok(())
+    }
+}
+
+/// What `spectra` measures: the pseudo-spectrum of `map` (or its cross-spectrum with `other`)
+/// on `footprint` up to `lmax` (default 2·NSIDE) and its band powers ([`master_spectrum`]),
+/// after the checks of the command (settings, ℓmax, iterations, something to measure on the
+/// footprint, a power-of-two NSIDE for the pixel window). Maps come with the names their
+/// messages use.
+pub fn measure_spectra(
+    map: (&SkyMap, &str),
+    other: Option<(&SkyMap, &str)>,
+    footprint: &Footprint,
+    lmax: Option<usize>,
+    iterations: usize,
+    settings: &MasterSettings,
+) -> Result<(PseudoSpectrum, MasterSpectrum)> {
+    settings.check()?;
+    crate::limits::check_harmonic_iterations(iterations)?;
+    let (map, label) = map;
+    let nside = map.nside() as usize;
+    let lmax = lmax.unwrap_or(2 * nside);
+    if lmax == 0 {
+        return Err(Error::Setting(
+            "--lmax must be at least 1: ℓ = 0 alone is only the map's mean".into(),
+        ));
+    }
+    crate::limits::check_lmax("--lmax", lmax, map.nside())?;
+    crate::measurement::check_measurable(map, Some(footprint), label)?;
+    if let Some((o, name)) = other {
+        crate::measurement::check_measurable(o, Some(footprint), name)?;
+    }
+    let weights = (footprint.f_sky() < 1.0).then_some(footprint);
+    if settings.pixel_window && !nside.is_power_of_two() {
+        return Err(Error::Setting(format!(
+            "--pixel-window needs a power-of-two NSIDE, the map has {nside}"
+        )));
+    }
+    let sht = HarmonicTransform::new(nside, lmax)?;
+    let second = other.map_or(map, |(o, _)| o);
+    let pseudo = pseudo_spectrum(map, second, weights, &sht, iterations)?;
+    let master = master_spectrum(&pseudo, nside, iterations, settings)?;
+    Ok((pseudo, master))
+}
+
+/// What `spectra --json` writes: the w2-corrected C_ℓ per ℓ and the band powers.
+#[derive(Debug, serde::Serialize)]
+pub struct SpectraDocument<'a> {
+    /// C̃_ℓ / w2 for ℓ = 0 … ℓmax (no beam or pixel window divided out).
+    pub cl: Vec<f64>,
+    /// Band powers, weight spectrum and transfer function.
+    pub band_powers: &'a MasterSpectrum,
+}
+
+impl<'a> SpectraDocument<'a> {
+    /// The document of a measured pseudo-spectrum and its band powers.
+    pub fn new(pseudo: &PseudoSpectrum, band_powers: &'a MasterSpectrum) -> Self {
+        SpectraDocument {
+            cl: pseudo.raw.iter().map(|c| c / pseudo.w2).collect(),
+            band_powers,
+        }
+    }
+}
+
+/// The band powers as CSV text: per bin the w2 estimate and the MASTER value with their errors.
+pub fn spectrum_csv(s: &MasterSpectrum) -> String {
+    let q = match s.weighting {
+        BinWeighting::Cl => "cl",
+        BinWeighting::Dl => "dl",
+    };
+    let mut out =
+        format!("ell_min,ell_max,ell_mean,{q}_w2,error_w2,{q}_master,error_master,modes\n");
+    for b in &s.bins {
+        let _ = writeln!(
+            out,
+            "{},{},{:.3},{:.10e},{:.10e},{:.10e},{:.10e},{:.3}",
+            b.ell_min,
+            b.ell_max,
+            b.ell_mean,
+            b.w2_estimate,
+            b.w2_error,
+            b.master,
+            b.master_error,
+            b.modes
+        );
+    }
+    out
 }

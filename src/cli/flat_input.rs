@@ -53,21 +53,7 @@ fn read_array(path: &Path, what: &str) -> Result<Array2<f64>> {
 pub fn read_field(path: &Path) -> Result<SquareArray> {
     let array = read_array(path, "a flat field")?;
     let (rows, cols) = array.dim();
-    if rows != cols {
-        return Err(Error::io(
-            path,
-            format!("a flat field must be square, got {rows} rows × {cols} columns"),
-        ));
-    }
-    if !crate::filters::is_tile_size(rows) || rows > crate::tiling::MAX_TILE_PIXELS {
-        return Err(Error::io(
-            path,
-            format!(
-                "a flat field of {rows} × {rows} pixels: the side must be 2^k·m (m = 1, 3, 5, 7 or 9; at least 8, and 16·m when m > 1) and at most {}; crop or pad it",
-                crate::tiling::MAX_TILE_PIXELS
-            ),
-        ));
-    }
+    crate::flat::check_field_shape(rows, cols).map_err(|e| Error::io(path, e))?;
     Ok(SquareArray {
         size: rows,
         values: array.iter().copied().collect(),
@@ -85,49 +71,12 @@ pub fn read_mask(path: &Path, n: usize) -> Result<Vec<f64>> {
         )));
     }
     let values: Vec<f64> = array.iter().copied().collect();
-    if let Some(i) = values
-        .iter()
-        .position(|v| !(v.is_finite() && (0.0..=1.0).contains(v)))
-    {
-        return Err(Error::Data(format!(
-            "{}: mask value {} at row {}, column {} is outside [0, 1]",
-            path.display(),
-            values[i],
-            i / n,
-            i % n
-        )));
-    }
-    if values.iter().all(|&v| v == 0.0) {
-        return Err(Error::Data(format!(
-            "{}: the mask is 0 everywhere: nothing to measure",
-            path.display()
-        )));
-    }
+    crate::flat::check_mask(&path.display().to_string(), &values, n)?;
     Ok(values)
 }
 
-/// The field's values with non-finite values allowed only where the mask is 0 (set to 0 there:
-/// the taper removes them); elsewhere a non-finite value is an error.
-pub fn field_values(path: &Path, mut values: Vec<f64>, mask: Option<&[f64]>) -> Result<Vec<f64>> {
-    let n = (values.len() as f64).sqrt() as usize;
-    for (i, v) in values.iter_mut().enumerate() {
-        if !v.is_finite() {
-            if mask.is_some_and(|m| m[i] == 0.0) {
-                *v = 0.0;
-            } else {
-                return Err(Error::Data(format!(
-                    "{}: value {v} at row {}, column {}{}",
-                    path.display(),
-                    i / n.max(1),
-                    i % n.max(1),
-                    if mask.is_some() {
-                        " where the mask is not 0 (non-finite values are allowed only where it is 0)"
-                    } else {
-                        " (a flat field without --mask must be finite everywhere)"
-                    }
-                )));
-            }
-        }
-    }
-    Ok(values)
+/// The field's values with non-finite values allowed only where the mask is 0
+/// ([`crate::flat::field_values`], messages naming `path`).
+pub fn field_values(path: &Path, values: Vec<f64>, mask: Option<&[f64]>) -> Result<Vec<f64>> {
+    crate::flat::field_values(&path.display().to_string(), values, mask)
 }

@@ -5,10 +5,10 @@
 use super::output::{write_bytes, write_json};
 use crate::ensemble::{settings_difference, EnsembleJob, MergedTable};
 use crate::error::{Error, Result};
-use crate::forecast::{
-    compare_statistic_sets, ColumnLabel, CovarianceEstimate, DerivativeEnsembles, Ensemble,
-    FisherForecast, ScaleCut, SetComparison, StatisticSet,
+pub use crate::forecast::named_sets::{
+    forecast_document, forecast_named_sets, forecast_sets, ForecastResult, STATISTIC_SETS,
 };
+use crate::forecast::{ColumnLabel, DerivativeEnsembles, Ensemble, ScaleCut};
 use std::path::{Path, PathBuf};
 
 /// Compare how well statistic sets constrain parameters (Fisher forecast from ensembles).
@@ -54,31 +54,10 @@ pub struct ForecastArgs {
     pub csv: Option<PathBuf>,
 }
 
-/// The statistic sets compared, by the prefixes of their column names.
-pub const STATISTIC_SETS: &[(&str, &[&str])] = &[
-    ("power spectrum (pseudo-C_l)", &["cl."]),
-    ("tile power spectrum", &["tile_power."]),
-    ("band powers", &["full.bandpower_"]),
-    ("scattering order 1", &["full.S1_"]),
-    ("scattering orders 1+2", &["full.S1_", "full.S2_"]),
-    (
-        "orientation-harmonic summary",
-        &[
-            "summary.modulus_j",
-            "summary.intermittency_",
-            "summary.alignment_",
-        ],
-    ),
-    ("bispectrum", &["bispectrum."]),
-];
-
 /// A merged ensemble as forecast input.
 pub fn load_ensemble(dir: &Path) -> Result<(Ensemble, MergedTable)> {
     let table = EnsembleJob::merge(dir)?;
-    let scales: Vec<Option<f64>> = table.description.settings["label_scales_arcmin"]
-        .as_array()
-        .map(|a| a.iter().map(|v| v.as_f64()).collect())
-        .unwrap_or_default();
+    let scales = table.label_scales();
     let labels: Vec<ColumnLabel> = table
         .description
         .labels
@@ -121,133 +100,13 @@ fn parse_derivative(text: &str) -> Result<(String, f64, PathBuf, PathBuf)> {
     ))
 }
 
-/// The forecast of every statistic set, with the parameter covariance for ellipses.
-pub struct ForecastResult {
-    pub comparison: SetComparison,
-    pub per_set: Vec<(String, Option<FisherForecast>)>,
-}
-
-/// Runs the comparison for given ensembles.
-pub fn forecast_sets(
-    fiducial: &Ensemble,
-    derivatives: &[DerivativeEnsembles],
-    cut: Option<&ScaleCut>,
-) -> Result<ForecastResult> {
-    forecast_named_sets(fiducial, derivatives, cut, STATISTIC_SETS)
-}
-
-/// As [`forecast_sets`], for the given statistic sets (name, column-name prefixes).
-pub fn forecast_named_sets(
-    fiducial: &Ensemble,
-    derivatives: &[DerivativeEnsembles],
-    cut: Option<&ScaleCut>,
-    named: &[(&str, &[&str])],
-) -> Result<ForecastResult> {
-    let labels = fiducial.labels().to_vec();
-    let mut sets = Vec::new();
-    for (name, prefixes) in named {
-        let Ok(set) = StatisticSet::with_prefixes(name, &labels, prefixes) else {
-            continue; // the ensemble does not have this statistic
-        };
-        let set = match cut {
-            Some(c) => match set.with_scale_cut(&labels, c) {
-                Ok(s) => s,
-                Err(_) => continue,
-            },
-            None => set,
-        };
-        if !set.is_empty() {
-            sets.push(set);
-        }
+/// Refuses a forecast in which every set failed, and warns on stderr of the sets that failed
+/// when others succeeded.
+fn warn_failed_sets(comparison: &crate::forecast::SetComparison) -> Result<()> {
+    if let Some(w) = crate::forecast::named_sets::check_sets_forecast(comparison)? {
+        eprintln!("planisphere: warning: {w}");
     }
-    if sets.is_empty() {
-        return Err(Error::Data(
-            "no statistic set is left to compare (check the scale cuts)".into(),
-        ));
-    }
-    let comparison = compare_statistic_sets(fiducial, derivatives, &sets)?;
-    let mut per_set = Vec::new();
-    for set in &sets {
-        let fc = (|| -> Result<FisherForecast> {
-            let fid = fiducial.select(&set.columns)?;
-            let precision = CovarianceEstimate::from_ensemble(&fid)?.precision()?;
-            let fds = derivatives
-                .iter()
-                .map(|d| d.finite_difference()?.select(&set.columns))
-                .collect::<Result<Vec<_>>>()?;
-            FisherForecast::from_derivatives(&precision, &fds)
-        })();
-        per_set.push((set.name.clone(), fc.ok()));
-    }
-    Ok(ForecastResult {
-        comparison,
-        per_set,
-    })
-}
-
-/// Refuses a forecast in which every statistic set failed (naming the first set and why), and
-/// warns on stderr of the sets that failed when others succeeded.
-fn check_sets_forecast(comparison: &SetComparison) -> Result<()> {
-    let failed: Vec<(&str, &str)> = comparison
-        .rows
-        .iter()
-        .filter_map(|r| r.error.as_deref().map(|e| (r.set.as_str(), e)))
-        .collect();
-    let Some((first, why)) = failed.first() else {
-        return Ok(());
-    };
-    let why = why.split_whitespace().collect::<Vec<_>>().join(" ");
-    if failed.len() == comparison.rows.len() {
-        return Err(Error::Data(format!(
-            "every statistic set failed ({} of {}); the first, {first}: {why}",
-            failed.len(),
-            comparison.rows.len()
-        )));
-    }
-    let names: Vec<&str> = failed.iter().map(|(n, _)| *n).collect();
-    eprintln!(
-        "planisphere: warning: {} of {} statistic sets failed ({}); the first: {why}",
-        failed.len(),
-        comparison.rows.len(),
-        names.join(", ")
-    );
     Ok(())
-}
-
-/// The JSON document of a forecast.
-pub fn forecast_document(
-    result: &ForecastResult,
-    fiducial_values: &[f64],
-    settings: serde_json::Value,
-) -> serde_json::Value {
-    let sets: Vec<serde_json::Value> = result
-        .per_set
-        .iter()
-        .zip(&result.comparison.rows)
-        .map(|((name, fc), row)| {
-            serde_json::json!({
-                "name": name,
-                "statistics": row.n_statistics,
-                "simulations": row.n_simulations,
-                "hartlap_factor": row.hartlap_factor,
-                "marginalised_errors": row.marginalised_errors,
-                "conditional_errors": row.conditional_errors,
-                "derivative_bias_fraction": row.derivative_bias_fraction,
-                "parameter_covariance": fc.as_ref().map(|f| f.parameter_covariance.clone()),
-                "parameter_correlation": fc.as_ref().map(|f| f.parameter_correlation.clone()),
-                "warnings": row.warnings,
-                "error": row.error,
-            })
-        })
-        .collect();
-    serde_json::json!({
-        "program": "planisphere",
-        "program_version": env!("CARGO_PKG_VERSION"),
-        "parameters": result.comparison.parameters,
-        "fiducial": fiducial_values,
-        "settings": settings,
-        "sets": sets,
-    })
 }
 
 /// Refuses a parameter named by two derivatives (its Fisher row would be counted twice).
@@ -354,7 +213,7 @@ pub fn run(args: &ForecastArgs) -> Result<()> {
     let names: Vec<String> = derivatives.iter().map(|d| d.parameter.clone()).collect();
     let fiducial_values = parse_fiducial_values(&args.fiducial_value, &names)?;
     let result = forecast_sets(&fiducial, &derivatives, cut.as_ref())?;
-    check_sets_forecast(&result.comparison)?;
+    warn_failed_sets(&result.comparison)?;
     let settings = serde_json::json!({
         "fiducial": fiducial_dir.display().to_string(),
         "derivatives": args.derivative,
@@ -583,7 +442,7 @@ fn run_plan(args: &ForecastArgs, path: &Path) -> Result<()> {
     let Some(combined) = combined else {
         return Err(Error::Setting("the plan forecast nothing".into()));
     };
-    check_sets_forecast(&combined.comparison)?;
+    warn_failed_sets(&combined.comparison)?;
     let settings = serde_json::json!({
         "plan": path.display().to_string(),
         "cases": cases_json,

@@ -1,6 +1,6 @@
 //! Options shared by the commands that read a map and a mask, and how they are loaded.
 
-use crate::apodization::{apodize, TaperKind};
+use crate::apodization::TaperKind;
 use crate::error::{Error, Result};
 use crate::fits_io::{read_footprint, read_map, ColumnChoice};
 use crate::footprint::Footprint;
@@ -34,42 +34,7 @@ pub struct MaskArgs {
     pub allow_coordsys_mismatch: bool,
 }
 
-/// The coordinate system a COORDSYS value names, by the HEALPix FITS convention ('G'
-/// galactic, 'E' ecliptic, 'C' or 'Q' equatorial; full words are taken by their first letter).
-fn coordinate_system(value: &str) -> String {
-    let v = value.trim().to_uppercase();
-    match v.chars().next() {
-        Some('G') => "galactic".into(),
-        Some('E') => "ecliptic".into(),
-        Some('C') | Some('Q') => "equatorial".into(),
-        _ => v,
-    }
-}
-
-/// Refuses two files whose COORDSYS headers name different coordinate systems (when both
-/// state one), unless `allow`: a mask in galactic coordinates on an equatorial map cuts the
-/// wrong sky without any other sign.
-pub fn check_same_coordsys(
-    first: (&str, Option<&str>),
-    second: (&str, Option<&str>),
-    allow: bool,
-) -> Result<()> {
-    if allow {
-        return Ok(());
-    }
-    if let ((a, Some(sa)), (b, Some(sb))) = (first, second) {
-        let (ca, cb) = (coordinate_system(sa), coordinate_system(sb));
-        if ca != cb {
-            return Err(Error::Mismatch(format!(
-                "{a} is in {ca} coordinates (COORDSYS '{}') but {b} in {cb} (COORDSYS '{}'): \
-                 bring both to one system, or pass --allow-coordsys-mismatch if a header is wrong",
-                sa.trim(),
-                sb.trim()
-            )));
-        }
-    }
-    Ok(())
-}
+pub use crate::fits_io::check_same_coordsys;
 
 /// A TOML file's parse error as one line: `{path}: {what}: line N, key `K`: reason` (line and
 /// key from the error's position in `text`, when it has one).
@@ -95,48 +60,7 @@ pub fn toml_error(path: &Path, text: &str, e: &toml::de::Error, what: &str) -> E
     }
 }
 
-/// Checks that `map` (named `label` in messages) has something to measure on `footprint`
-/// (pixels of positive weight; all valid pixels without one): values within
-/// ±[`crate::limits::MAX_ABS_VALUE`], more than one valid pixel, and not all equal (a map
-/// without fluctuations has scattering coefficients that are ratios of rounding errors).
-pub fn check_measurable(map: &SkyMap, footprint: Option<&Footprint>, label: &str) -> Result<()> {
-    let weights = footprint
-        .filter(|f| f.pixelization() == map.pixelization())
-        .map(Footprint::weights);
-    let mut count = 0u64;
-    let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
-    for (i, (&v, &ok)) in map.values().iter().zip(map.valid()).enumerate() {
-        if !ok || weights.is_some_and(|w| w[i] <= 0.0) {
-            continue;
-        }
-        if v.abs() > crate::limits::MAX_ABS_VALUE {
-            return Err(Error::Data(format!(
-                "{label}: pixel {i} holds {v:e}, beyond ±{:e}: the statistics (up to third powers summed over the sky) would overflow; rescale the map",
-                crate::limits::MAX_ABS_VALUE
-            )));
-        }
-        count += 1;
-        lo = lo.min(v);
-        hi = hi.max(v);
-    }
-    let place = if weights.is_some() {
-        "on its footprint"
-    } else {
-        "in the map"
-    };
-    match count {
-        0 => Err(Error::Data(format!(
-            "{label}: no valid pixel {place} (all UNSEEN or NaN there)"
-        ))),
-        1 => Err(Error::Data(format!(
-            "{label}: only one valid pixel {place}: there are no fluctuations to measure"
-        ))),
-        _ if hi - lo <= 1e-12 * lo.abs().max(hi.abs()) => Err(Error::Data(format!(
-            "{label}: the map has no fluctuations {place} (every valid pixel is {lo}): nothing to measure"
-        ))),
-        _ => Ok(()),
-    }
-}
+pub use crate::measurement::check_measurable;
 
 /// Reads a map column, reporting a file's warnings (e.g. an assumed ordering) on stderr.
 pub fn load_map(path: &std::path::Path, column: &ColumnChoice) -> Result<SkyMap> {
@@ -158,35 +82,11 @@ impl MaskArgs {
 
     /// `raw` with this taper applied (binary masks only; a full sky or `--taper none` as is).
     pub fn taper_footprint(&self, raw: Footprint) -> Result<Footprint> {
-        if !(self.taper_arcmin.is_finite() && self.taper_arcmin >= 0.0) {
-            return Err(Error::Setting(format!(
-                "--taper-arcmin must be a non-negative number, got {}",
-                crate::error::compact(self.taper_arcmin)
-            )));
-        }
-        if raw.observed_pixels() == 0 {
-            return Err(Error::Data(
-                "the mask is empty (no pixel has positive weight)".into(),
-            ));
-        }
-        if self.taper == TaperKind::None || self.taper_arcmin == 0.0 || raw.f_sky() == 1.0 {
-            return Ok(raw);
-        }
-        apodize(&raw, self.taper, (self.taper_arcmin / 60.0).to_radians())
+        crate::apodization::taper_footprint(raw, self.taper, self.taper_arcmin)
     }
 }
 
-/// Refuses a mask with a single observed pixel: one value has no fluctuations to measure
-/// (the statistics of one pixel are 0/0).
-pub fn refuse_single_pixel_mask(mask: &Footprint) -> Result<()> {
-    if mask.observed_pixels() == 1 {
-        let pixel = mask.weights().iter().position(|&w| w > 0.0).unwrap_or(0);
-        return Err(Error::Data(format!(
-            "the mask has only one observed pixel (pixel {pixel}): there are no fluctuations to measure"
-        )));
-    }
-    Ok(())
-}
+pub use crate::footprint::refuse_single_pixel_mask;
 
 /// The untapered footprint of `map` (read from `map_path`): the mask file (or the map's valid
 /// pixels), brought to the map's ordering, without the map's bad pixels. A mask whose COORDSYS

@@ -8,9 +8,10 @@ use super::inputs::{load_map, untapered_footprint, MaskArgs};
 use super::output::write_json;
 use crate::error::{Error, Result};
 use crate::fits_io::ColumnChoice;
-use crate::measurement::{MapStatistics, MeasurementSettings, PairStatistics, SphereMeasurer};
+use crate::measurement::{MapStatistics, MeasurementSettings, SphereMeasurer};
+pub use crate::measurement_document::measurement_document;
+use crate::measurement_document::{pair_document, taper_description};
 use crate::sampling::SamplingMethod;
-use crate::statistics::{CoefficientKind, CrossCoefficient, CrossDirection, CrossKind};
 use std::path::{Path, PathBuf};
 
 /// How the sky is read at tile pixels.
@@ -177,177 +178,6 @@ pub struct MeasureArgs {
     pub output: PathBuf,
 }
 
-/// One cross coefficient as written to the JSON file.
-#[derive(Debug, serde::Serialize)]
-struct CrossRecord {
-    name: String,
-    /// The map whose field enters linearly ("first", "second"; "both" for band powers).
-    field: &'static str,
-    /// The map whose wavelet modulus is used (absent for band powers).
-    modulus_of: Option<&'static str>,
-    order: u8,
-    j1: usize,
-    l1: usize,
-    j2: Option<usize>,
-    l2: Option<usize>,
-    value: Option<f64>,
-    trusted: bool,
-    kept_weight_fraction: f64,
-}
-
-fn cross_record(c: &CrossCoefficient) -> CrossRecord {
-    let (field, modulus_of) = match c.label.direction {
-        CrossDirection::Both => ("both", None),
-        CrossDirection::FirstAgainstSecondModulus => ("first", Some("second")),
-        CrossDirection::SecondAgainstFirstModulus => ("second", Some("first")),
-    };
-    CrossRecord {
-        name: c.label.name(),
-        field,
-        modulus_of,
-        order: c.label.order,
-        j1: c.label.j1,
-        l1: c.label.l1,
-        j2: c.label.j2,
-        l2: c.label.l2,
-        value: c.value.is_finite().then_some(c.value),
-        trusted: c.trusted,
-        kept_weight_fraction: c.kept_weight_fraction,
-    }
-}
-
-/// The "cross" section of a pair measurement: the second map's own statistics and the cross
-/// coefficients grouped by kind.
-fn cross_section(
-    measurer: &SphereMeasurer,
-    pair: &PairStatistics,
-    other: &str,
-    other_mask: Option<&Path>,
-    taper: &serde_json::Value,
-) -> serde_json::Value {
-    let own = measurement_document(measurer, &pair.second, other, taper);
-    let pick = |kind: CrossKind| -> Vec<CrossRecord> {
-        pair.cross
-            .coefficients
-            .iter()
-            .filter(|c| c.label.kind == kind)
-            .map(cross_record)
-            .collect()
-    };
-    serde_json::json!({
-        "map": other,
-        "mask": other_mask.map(|p| p.display().to_string()),
-        "footprint": "common footprint of both maps (smaller weight per pixel), tapered",
-        "map_statistics": {
-            "coefficients": own["coefficients"],
-            "summary": own["summary"],
-            "band_powers": own["band_powers"],
-            "tile_power_spectrum": own["tile_power_spectrum"],
-            "tile_bispectrum": own["tile_bispectrum"],
-        },
-        "cross_band_powers": pick(CrossKind::CrossBandPower),
-        "envelope_first_order": pick(CrossKind::EnvelopeFirstOrder),
-        "envelope_second_order": pick(CrossKind::EnvelopeSecondOrder),
-    })
-}
-
-/// One coefficient as written to the JSON file.
-#[derive(Debug, serde::Serialize)]
-struct CoefficientRecord {
-    order: u8,
-    j1: Option<usize>,
-    l1: Option<usize>,
-    j2: Option<usize>,
-    l2: Option<usize>,
-    value: Option<f64>,
-    trusted: bool,
-    kept_weight_fraction: f64,
-}
-
-/// The "coefficients" (orders 0–2, each with its kind) and "band_powers" arrays of a
-/// measurement.
-fn coefficient_sections(stats: &MapStatistics) -> (serde_json::Value, serde_json::Value) {
-    let record = |c: &crate::statistics::Coefficient| CoefficientRecord {
-        order: c.label.order,
-        j1: c.label.j1,
-        l1: c.label.l1,
-        j2: c.label.j2,
-        l2: c.label.l2,
-        value: c.value.is_finite().then_some(c.value),
-        trusted: c.trusted,
-        kept_weight_fraction: c.kept_weight_fraction,
-    };
-    let coefficients: Vec<_> = stats
-        .coefficients
-        .coefficients
-        .iter()
-        .filter(|c| c.label.kind != CoefficientKind::BandPower)
-        .map(|c| {
-            let mut v = serde_json::to_value(record(c)).unwrap_or_default();
-            if let Some(o) = v.as_object_mut() {
-                let kind = match c.label.kind {
-                    CoefficientKind::Mean => "mean",
-                    CoefficientKind::Variance => "variance",
-                    _ => "scattering",
-                };
-                o.insert("kind".into(), kind.into());
-            }
-            v
-        })
-        .collect();
-    let band_powers: Vec<_> = stats
-        .coefficients
-        .coefficients
-        .iter()
-        .filter(|c| c.label.kind == CoefficientKind::BandPower)
-        .map(record)
-        .collect();
-    (
-        serde_json::to_value(coefficients).unwrap_or_default(),
-        serde_json::to_value(band_powers).unwrap_or_default(),
-    )
-}
-
-/// The JSON document of one measurement.
-pub fn measurement_document(
-    measurer: &SphereMeasurer,
-    stats: &MapStatistics,
-    source: &str,
-    taper: &serde_json::Value,
-) -> serde_json::Value {
-    let (coefficients, band_powers) = coefficient_sections(stats);
-    let s = measurer.settings();
-    serde_json::json!({
-        "program": "planisphere",
-        "program_version": env!("CARGO_PKG_VERSION"),
-        "map": source,
-        "settings": {
-            "scales": s.scales,
-            "orientations": s.orientations,
-            "tile_pixels": measurer.plan().tile_pixels(),
-            "cells": measurer.plan().cell_layout().describe(),
-            "coarse_nside": s.coarse_nside,
-            "pixel_arcmin": measurer.plan().pixel_size().to_degrees() * 60.0,
-            "border_pixels": s.border_pixels,
-            "halo_pixels": s.halo(),
-            "sampling": format!("{:?}", s.sampling),
-            "coverage_threshold": s.transform.coverage_threshold,
-            "trusted_fraction": s.transform.trusted_fraction,
-            "fourier_cropping": s.transform.fourier_cropping,
-            "spectrum_bins": s.spectrum_bins,
-            "bispectrum": s.bispectrum,
-            "taper": taper,
-        },
-        "tiling": measurer.summary(),
-        "tiles_measured": stats.tiles,
-        "coefficients": coefficients,
-        "summary": stats.summary,
-        "band_powers": band_powers,
-        "tile_power_spectrum": stats.tile_power,
-        "tile_bispectrum": stats.tile_bispectrum,
-    })
-}
-
 /// Measures one map (or a pair with `--cross`) and writes the JSON document.
 pub fn run(args: &MeasureArgs) -> Result<()> {
     super::output::check_output_path(&args.output)?;
@@ -425,34 +255,35 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
     }
     let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
     let summary = measurer.summary();
-    let taper = serde_json::json!({
-        "kind": format!("{:?}", args.mask.taper),
-        "width_arcmin": args.mask.taper_arcmin,
-        "mask": args.mask.mask.as_ref().map(|p| p.display().to_string()),
-    });
-    let (stats, cross) = match &other {
-        None => (measurer.measure(&map, &footprint)?, None),
+    let mask_name = args.mask.mask.as_ref().map(|p| p.display().to_string());
+    let taper = taper_description(
+        args.mask.taper,
+        args.mask.taper_arcmin,
+        mask_name.as_deref(),
+    );
+    let source = args.map.display().to_string();
+    let (stats, doc, cross) = match &other {
+        None => {
+            let stats = measurer.measure(&map, &footprint)?;
+            let doc = measurement_document(&measurer, &stats, &source, &taper);
+            (stats, doc, None)
+        }
         Some(other) => {
             let pair = measurer.measure_pair(&map, other, &footprint)?;
             let path = args.cross.as_deref().unwrap_or(Path::new(""));
-            let section = cross_section(
+            let doc = pair_document(
                 &measurer,
                 &pair,
+                &source,
                 &path.display().to_string(),
                 args.cross_mask.as_deref(),
                 &taper,
             );
             let trusted = pair.cross.coefficients.iter().filter(|c| c.trusted).count();
-            (
-                pair.first,
-                Some((section, pair.cross.coefficients.len(), trusted)),
-            )
+            let count = pair.cross.coefficients.len();
+            (pair.first, doc, Some((count, trusted)))
         }
     };
-    let mut doc = measurement_document(&measurer, &stats, &args.map.display().to_string(), &taper);
-    if let (Some((section, _, _)), Some(o)) = (&cross, doc.as_object_mut()) {
-        o.insert("cross".into(), section.clone());
-    }
     write_json(&args.output, &doc)?;
     println!(
         "{} tiles ({}, {}² pixels of {:.2}′): {}",
@@ -462,7 +293,7 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
         summary.pixel_size_arcmin,
         written_line(&stats, &args.output)
     );
-    if let Some((_, count, trusted)) = &cross {
+    if let Some((count, trusted)) = &cross {
         println!("  cross statistics with the second map: {count} ({trusted} trusted)");
     }
     for c in &stats.summary {
@@ -531,68 +362,20 @@ fn run_flat(args: &MeasureArgs, settings: MeasurementSettings) -> Result<()> {
         map = map.with_mask(m.clone(), None)?;
     }
     let stats = crate::flat::measure(&map, &settings)?;
-    let (coefficients, band_powers) = coefficient_sections(&stats);
+    let doc = crate::measurement_document::flat_measurement_document(
+        &stats,
+        &settings,
+        &args.map.display().to_string(),
+        n,
+        arcmin,
+        mask.as_deref(),
+        args.mask
+            .mask
+            .as_ref()
+            .map(|p| p.display().to_string())
+            .as_deref(),
+    );
     let periodic = mask.is_none();
-    let observed = mask
-        .as_ref()
-        .map_or(n * n, |m| m.iter().filter(|&&v| v > 0.0).count());
-    let mask_mean = mask
-        .as_ref()
-        .map_or(1.0, |m| m.iter().sum::<f64>() / (n * n) as f64);
-    let layout = if periodic {
-        "one periodic flat tile"
-    } else {
-        "one masked flat tile"
-    };
-    let s = &settings;
-    let doc = serde_json::json!({
-        "program": "planisphere",
-        "program_version": env!("CARGO_PKG_VERSION"),
-        "map": args.map.display().to_string(),
-        "input": {
-            "kind": "flat field",
-            "pixels": n,
-            "pixel_arcmin": arcmin,
-            "periodic": periodic,
-        },
-        "settings": {
-            "scales": s.scales,
-            "orientations": s.orientations,
-            "tile_pixels": n,
-            "cells": layout,
-            "coarse_nside": null,
-            "pixel_arcmin": arcmin,
-            "border_pixels": null,
-            "halo_pixels": null,
-            "sampling": null,
-            "coverage_threshold": s.transform.coverage_threshold,
-            "trusted_fraction": s.transform.trusted_fraction,
-            "fourier_cropping": s.transform.fourier_cropping,
-            "spectrum_bins": s.spectrum_bins,
-            "bispectrum": s.bispectrum,
-            "taper": {
-                "kind": if periodic { "none (periodic)" } else { "mask as given" },
-                "width_arcmin": null,
-                "mask": args.mask.mask.as_ref().map(|p| p.display().to_string()),
-            },
-        },
-        "tiling": {
-            "cells": layout,
-            "tiles": 1,
-            "tile_pixels": n,
-            "pixel_size_arcmin": arcmin,
-            "tile_width_deg": n as f64 * arcmin / 60.0,
-            "periodic": periodic,
-            "footprint_pixels": observed,
-            "mean_mask_weight": mask_mean,
-        },
-        "tiles_measured": stats.tiles,
-        "coefficients": coefficients,
-        "summary": stats.summary,
-        "band_powers": band_powers,
-        "tile_power_spectrum": stats.tile_power,
-        "tile_bispectrum": stats.tile_bispectrum,
-    });
     write_json(&args.output, &doc)?;
     println!(
         "flat field {n}² pixels of {arcmin}′ ({}): {}",

@@ -2,8 +2,7 @@
 
 use crate::error::{Error, Result};
 use crate::fits_io::{write_map, ValuePrecision, WriteOptions};
-use crate::skies::SkyRecipe;
-use crate::spectrum::{shape_noise_per_pixel, AngularSpectrum};
+use crate::skies::{SkyOptions, SkyRecipe, SpectrumChoice};
 use std::path::PathBuf;
 
 /// Make simulated skies of a given angular spectrum and write them as HEALPix FITS maps.
@@ -90,59 +89,31 @@ fn parse_shape_noise(text: &str) -> Result<(f64, f64)> {
     Ok((s, n))
 }
 
-/// The recipe the options describe.
+/// The recipe the options describe ([`SkyOptions::recipe`], with its checks).
 pub fn recipe(args: &SkyArgs) -> Result<SkyRecipe> {
-    if args.nside == 0 || !args.nside.is_power_of_two() || args.nside > 8192 {
-        return Err(Error::Setting(format!(
-            "--nside must be a power of two from 1 to 8192, got {}",
-            args.nside
-        )));
-    }
-    crate::limits::check_index_range(args.first_index, args.count)?;
-    let lmax = args.lmax.unwrap_or(3 * args.nside as usize - 1);
-    crate::limits::check_lmax("--lmax", lmax, args.nside)?;
-    crate::limits::check_memory(
-        &format!("a NSIDE {} sky up to ℓ = {lmax}", args.nside),
-        crate::limits::sky_bytes(args.nside, lmax),
-    )?;
-    let spectrum = match &args.spectrum {
-        Some(path) => AngularSpectrum::read_text(path)?,
-        None => {
-            if !(args.model_variance.is_finite() && args.model_variance > 0.0) {
-                return Err(Error::Setting(format!(
-                    "--model-variance must be positive, got {}",
-                    crate::error::compact(args.model_variance)
-                )));
-            }
-            AngularSpectrum::demo_model(lmax, args.model_variance)
-        }
+    let shape_noise = match &args.shape_noise {
+        Some(text) => Some(parse_shape_noise(text)?),
+        None => None,
     };
-    let pixel_area = 4.0 * std::f64::consts::PI / (12.0 * (args.nside as f64).powi(2));
-    let noise_sigma = match (&args.shape_noise, args.noise_sigma) {
-        (Some(text), _) => {
-            let (s, n) = parse_shape_noise(text)?;
-            Some(shape_noise_per_pixel(s, n, pixel_area)?)
-        }
-        (None, s) => s,
-    };
-    if let Some(b) = args.beam_arcmin {
-        if !(b.is_finite() && b >= 0.0) {
-            return Err(Error::Setting(format!(
-                "--beam-arcmin must be >= 0, got {}",
-                crate::error::compact(b)
-            )));
-        }
-    }
-    Ok(SkyRecipe {
+    SkyOptions {
         nside: args.nside,
-        lmax,
-        spectrum,
+        lmax: args.lmax,
+        spectrum: match &args.spectrum {
+            Some(path) => SpectrumChoice::File(path.clone()),
+            None => SpectrumChoice::Model {
+                variance: args.model_variance,
+            },
+        },
         lognormal_shift: args.lognormal_shift,
-        spectrum_is_gaussian: args.gaussian_spectrum,
-        beam_fwhm_arcmin: args.beam_arcmin,
-        noise_sigma,
+        gaussian_spectrum: args.gaussian_spectrum,
+        beam_arcmin: args.beam_arcmin,
+        noise_sigma: args.noise_sigma,
+        shape_noise,
         seed: args.seed,
-    })
+        first_index: args.first_index,
+        count: args.count,
+    }
+    .recipe()
 }
 
 /// The output paths of every sky of a run (after checking the index range).

@@ -4,12 +4,11 @@
 
 use super::inputs::{load_map, MaskArgs};
 use super::output::{write_bytes, write_json};
-use crate::error::{Error, Result};
+use crate::error::Result;
 use crate::fits_io::ColumnChoice;
-use crate::harmonics::HarmonicTransform;
 use crate::mode_coupling::BinWeighting;
-use crate::spectra::{master_spectrum, pseudo_spectrum, MasterSettings, MasterSpectrum};
-use std::fmt::Write as _;
+pub use crate::spectra::spectrum_csv;
+use crate::spectra::{measure_spectra, MasterSettings, SpectraDocument};
 use std::path::PathBuf;
 
 /// Measure the angular power spectrum of a map on its footprint: pseudo-C_ℓ with the w2
@@ -58,54 +57,15 @@ pub struct SpectraArgs {
     pub json: Option<PathBuf>,
 }
 
-/// The band powers as CSV text: per bin the w2 estimate and the MASTER value with their errors.
-pub fn spectrum_csv(s: &MasterSpectrum) -> String {
-    let q = match s.weighting {
-        BinWeighting::Cl => "cl",
-        BinWeighting::Dl => "dl",
-    };
-    let mut out =
-        format!("ell_min,ell_max,ell_mean,{q}_w2,error_w2,{q}_master,error_master,modes\n");
-    for b in &s.bins {
-        let _ = writeln!(
-            out,
-            "{},{},{:.3},{:.10e},{:.10e},{:.10e},{:.10e},{:.3}",
-            b.ell_min,
-            b.ell_max,
-            b.ell_mean,
-            b.w2_estimate,
-            b.w2_error,
-            b.master,
-            b.master_error,
-            b.modes
-        );
-    }
-    out
-}
-
-/// What `--json` writes: the w2-corrected C_ℓ per ℓ and the band powers.
-#[derive(Debug, serde::Serialize)]
-struct SpectraReport<'a> {
-    /// C̃_ℓ / w2 for ℓ = 0 … ℓmax (no beam or pixel window divided out).
-    cl: Vec<f64>,
-    /// Band powers, weight spectrum and transfer function.
-    band_powers: &'a MasterSpectrum,
-}
-
 /// Measures and writes the spectrum.
 pub fn run(args: &SpectraArgs) -> Result<()> {
-    if args.bin_width == 0 || args.bin_width > 10_000 {
-        return Err(Error::Setting(format!(
-            "--bin-width must be from 1 to 10000, got {}",
-            args.bin_width
-        )));
-    }
-    if !(args.beam_arcmin.is_finite() && args.beam_arcmin >= 0.0) {
-        return Err(Error::Setting(format!(
-            "--beam-arcmin must be a finite number >= 0, got {}",
-            crate::error::compact(args.beam_arcmin)
-        )));
-    }
+    let settings = MasterSettings {
+        bin_width: args.bin_width,
+        weighting: args.bin_weighting,
+        beam_fwhm_arcmin: args.beam_arcmin,
+        pixel_window: args.pixel_window,
+    };
+    settings.check()?;
     for p in args.csv.iter().chain(args.json.iter()) {
         super::output::check_output_path(p)?;
     }
@@ -123,50 +83,23 @@ pub fn run(args: &SpectraArgs) -> Result<()> {
         }
         None => None,
     };
-    let nside = map.nside() as usize;
-    let lmax = args.lmax.unwrap_or(2 * nside);
-    if lmax == 0 {
-        return Err(Error::Setting(
-            "--lmax must be at least 1: ℓ = 0 alone is only the map's mean".into(),
-        ));
-    }
-    crate::limits::check_lmax("--lmax", lmax, map.nside())?;
     let footprint = args.mask.footprint_for(&map, &args.map)?;
-    super::inputs::check_measurable(&map, Some(&footprint), &args.map.display().to_string())?;
-    if let (Some(other), Some(path)) = (&other, &args.cross) {
-        super::inputs::check_measurable(other, Some(&footprint), &path.display().to_string())?;
-    }
-    let weights = (footprint.f_sky() < 1.0).then_some(&footprint);
-    if args.pixel_window && !nside.is_power_of_two() {
-        return Err(Error::Setting(format!(
-            "--pixel-window needs a power-of-two NSIDE, the map has {nside}"
-        )));
-    }
-    let sht = HarmonicTransform::new(nside, lmax)?;
-    let pseudo = pseudo_spectrum(
-        &map,
-        other.as_ref().unwrap_or(&map),
-        weights,
-        &sht,
+    let other_name = args.cross.as_ref().map(|p| p.display().to_string());
+    let (pseudo, s) = measure_spectra(
+        (&map, &args.map.display().to_string()),
+        other.as_ref().zip(other_name.as_deref()),
+        &footprint,
+        args.lmax,
         args.iterations,
+        &settings,
     )?;
-    let settings = MasterSettings {
-        bin_width: args.bin_width,
-        weighting: args.bin_weighting,
-        beam_fwhm_arcmin: args.beam_arcmin,
-        pixel_window: args.pixel_window,
-    };
-    let s = master_spectrum(&pseudo, nside, args.iterations, &settings)?;
+    let lmax = pseudo.raw.len() - 1;
     let csv = spectrum_csv(&s);
     if let Some(p) = &args.csv {
         write_bytes(p, csv.as_bytes())?;
     }
     if let Some(p) = &args.json {
-        let report = SpectraReport {
-            cl: pseudo.raw.iter().map(|c| c / pseudo.w2).collect(),
-            band_powers: &s,
-        };
-        write_json(p, &report)?;
+        write_json(p, &SpectraDocument::new(&pseudo, &s))?;
     }
     println!(
         "f_sky {:.4}  w2 {:.4}  w4 {:.4}  lmax {lmax}  beam {} arcmin  pixel window {}",

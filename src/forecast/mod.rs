@@ -46,6 +46,7 @@ pub mod derivative;
 pub mod ellipse;
 pub mod ensemble;
 pub mod fisher;
+pub mod named_sets;
 pub mod statistic_set;
 
 pub use covariance::{hartlap_factor, CovarianceEstimate, Precision};

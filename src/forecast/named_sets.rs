@@ -1,0 +1,155 @@
+//! The statistic sets a forecast compares (by the prefixes of their column names), the
+//! forecast of each, and the JSON document `forecast` writes: one producer for the command
+//! line, the demo and bindings.
+
+use crate::error::{Error, Result};
+use crate::forecast::{
+    compare_statistic_sets, CovarianceEstimate, DerivativeEnsembles, Ensemble, FisherForecast,
+    ScaleCut, SetComparison, StatisticSet,
+};
+
+/// The statistic sets compared, by the prefixes of their column names.
+pub const STATISTIC_SETS: &[(&str, &[&str])] = &[
+    ("power spectrum (pseudo-C_l)", &["cl."]),
+    ("tile power spectrum", &["tile_power."]),
+    ("band powers", &["full.bandpower_"]),
+    ("scattering order 1", &["full.S1_"]),
+    ("scattering orders 1+2", &["full.S1_", "full.S2_"]),
+    (
+        "orientation-harmonic summary",
+        &[
+            "summary.modulus_j",
+            "summary.intermittency_",
+            "summary.alignment_",
+        ],
+    ),
+    ("bispectrum", &["bispectrum."]),
+];
+
+/// The forecast of every statistic set, with the parameter covariance for ellipses.
+pub struct ForecastResult {
+    pub comparison: SetComparison,
+    pub per_set: Vec<(String, Option<FisherForecast>)>,
+}
+
+/// Runs the comparison for given ensembles.
+pub fn forecast_sets(
+    fiducial: &Ensemble,
+    derivatives: &[DerivativeEnsembles],
+    cut: Option<&ScaleCut>,
+) -> Result<ForecastResult> {
+    forecast_named_sets(fiducial, derivatives, cut, STATISTIC_SETS)
+}
+
+/// As [`forecast_sets`], for the given statistic sets (name, column-name prefixes).
+pub fn forecast_named_sets(
+    fiducial: &Ensemble,
+    derivatives: &[DerivativeEnsembles],
+    cut: Option<&ScaleCut>,
+    named: &[(&str, &[&str])],
+) -> Result<ForecastResult> {
+    let labels = fiducial.labels().to_vec();
+    let mut sets = Vec::new();
+    for (name, prefixes) in named {
+        let Ok(set) = StatisticSet::with_prefixes(name, &labels, prefixes) else {
+            continue; // the ensemble does not have this statistic
+        };
+        let set = match cut {
+            Some(c) => match set.with_scale_cut(&labels, c) {
+                Ok(s) => s,
+                Err(_) => continue,
+            },
+            None => set,
+        };
+        if !set.is_empty() {
+            sets.push(set);
+        }
+    }
+    if sets.is_empty() {
+        return Err(Error::Data(
+            "no statistic set is left to compare (check the scale cuts)".into(),
+        ));
+    }
+    let comparison = compare_statistic_sets(fiducial, derivatives, &sets)?;
+    let mut per_set = Vec::new();
+    for set in &sets {
+        let fc = (|| -> Result<FisherForecast> {
+            let fid = fiducial.select(&set.columns)?;
+            let precision = CovarianceEstimate::from_ensemble(&fid)?.precision()?;
+            let fds = derivatives
+                .iter()
+                .map(|d| d.finite_difference()?.select(&set.columns))
+                .collect::<Result<Vec<_>>>()?;
+            FisherForecast::from_derivatives(&precision, &fds)
+        })();
+        per_set.push((set.name.clone(), fc.ok()));
+    }
+    Ok(ForecastResult {
+        comparison,
+        per_set,
+    })
+}
+
+/// The JSON document of a forecast.
+pub fn forecast_document(
+    result: &ForecastResult,
+    fiducial_values: &[f64],
+    settings: serde_json::Value,
+) -> serde_json::Value {
+    let sets: Vec<serde_json::Value> = result
+        .per_set
+        .iter()
+        .zip(&result.comparison.rows)
+        .map(|((name, fc), row)| {
+            serde_json::json!({
+                "name": name,
+                "statistics": row.n_statistics,
+                "simulations": row.n_simulations,
+                "hartlap_factor": row.hartlap_factor,
+                "marginalised_errors": row.marginalised_errors,
+                "conditional_errors": row.conditional_errors,
+                "derivative_bias_fraction": row.derivative_bias_fraction,
+                "parameter_covariance": fc.as_ref().map(|f| f.parameter_covariance.clone()),
+                "parameter_correlation": fc.as_ref().map(|f| f.parameter_correlation.clone()),
+                "warnings": row.warnings,
+                "error": row.error,
+            })
+        })
+        .collect();
+    serde_json::json!({
+        "program": "planisphere",
+        "program_version": env!("CARGO_PKG_VERSION"),
+        "parameters": result.comparison.parameters,
+        "fiducial": fiducial_values,
+        "settings": settings,
+        "sets": sets,
+    })
+}
+
+/// Refuses a forecast in which every statistic set failed (naming the first set and why); when
+/// only some failed, the warning to show (which sets, and the first reason).
+pub fn check_sets_forecast(comparison: &SetComparison) -> Result<Option<String>> {
+    let failed: Vec<(&str, &str)> = comparison
+        .rows
+        .iter()
+        .filter_map(|r| r.error.as_deref().map(|e| (r.set.as_str(), e)))
+        .collect();
+    let Some((first, why)) = failed.first() else {
+        return Ok(None);
+    };
+    let why = why.split_whitespace().collect::<Vec<_>>().join(" ");
+    if failed.len() == comparison.rows.len() {
+        return Err(Error::Data(format!(
+            "every statistic set failed ({} of {}); the first, {first}: {why}",
+            failed.len(),
+            comparison.rows.len()
+        )));
+    }
+    let names: Vec<&str> = failed.iter().map(|(n, _)| *n).collect();
+    Ok(Some(format!(
+        "{} of {} statistic sets failed ({}); the first: {why}",
+        failed.len(),
+        comparison.rows.len(),
+        names.join(", ")
+    )))
+}
