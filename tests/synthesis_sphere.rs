@@ -168,7 +168,10 @@ fn correlation_part_of_the_loss_gradient_matches_central_differences() {
             "correlation part, pixel {p}: analytic {:.10e}, central difference {fd:.10e}, relative {rel:.1e}",
             grad[p]
         );
-        assert!(fd.abs() > 1e-8, "pixel {p} does not move the correlation part");
+        assert!(
+            fd.abs() > 1e-8,
+            "pixel {p} does not move the correlation part"
+        );
         assert!(rel <= 1e-6, "pixel {p}: relative error {rel}");
     }
 }

@@ -492,11 +492,7 @@ fn periodic_field_envelope_sums_equal_periodic_correlations() {
     println!("tile field-envelope correlations vs periodic: {diff:.1e}");
     assert!(diff <= 1e-12, "correlations differ by {diff}");
     let mean = f.iter().sum::<f64>() / f.len() as f64;
-    let direct = f
-        .iter()
-        .map(|v| (v - mean) * (v - mean).abs())
-        .sum::<f64>()
-        / f.len() as f64;
+    let direct = f.iter().map(|v| (v - mean) * (v - mean).abs()).sum::<f64>() / f.len() as f64;
     let ours = e[big_j * 4] / tile.sums.weights[0];
     println!("one-point term {ours:.15e} direct {direct:.15e}");
     assert!((ours - direct).abs() <= 1e-12 * direct.abs());

@@ -9,7 +9,7 @@
 //! * Sphere mode (output `.fits`): the target is a HEALPix map with its mask, or a coefficient
 //!   file with `--mask`; the pixels inside the footprint are synthesised so that the pooled
 //!   coefficients of the masked footprint match ([`crate::synthesis::sphere`]). Writes a HEALPix
-//!   FITS map (UNSEEN outside the footprint) and a PNG picture ([`picture`]): target, a
+//!   FITS map (UNSEEN outside the footprint) and a PNG picture (module `picture`): target, a
 //!   Gaussian sky with the target's pseudo-C_ℓ and the synthesised map in Mollweide view and
 //!   zoomed into one region in gnomonic view, with their one-point histograms and peak counts.
 
@@ -93,12 +93,12 @@ pub struct SynthesizeArgs {
     /// Statistics to match.
     #[arg(long, value_enum, default_value_t = StatisticsOption::Full)]
     pub statistics: StatisticsOption,
-    /// Also match the field–envelope correlations ⟨(f − μ)|f∗ψ_j|⟩, one per scale: the only
-    /// matched statistics that change sign with f → −f, so they put the peaks on the target's
-    /// side and carry its skewness [default: on with a target map, off (unavailable) with a
-    /// coefficient file]. On a 128² lognormal target of skewness 2.63 (J = 4, Gaussian start,
-    /// 200 iterations) they raise the result's skewness from 0.38 (off) to 2.45 (on); details
-    /// in README.md.
+    /// Also match the field–envelope correlations ⟨(f − μ)|f∗ψ_j|⟩, one per scale (on the
+    /// sphere also ⟨(f − μ)|f − μ|⟩): the only matched statistics that change sign with
+    /// f → −f, so they put the peaks on the target's side and carry its skewness [default: on
+    /// with a target map; unavailable with a coefficient file]. On a 128² lognormal target of
+    /// skewness 1.55 (J = 4, Gaussian start, 200 iterations) they raise the result's skewness
+    /// from 0.13 (off) to 1.49 (on); details in README.md.
     #[arg(long, value_enum, value_name = "on|off", num_args = 0..=1, default_missing_value = "on")]
     pub field_envelope_correlation: Option<Switch>,
     /// Flat mode: also match the power spectrum in this many logarithmic bins (target maps
@@ -113,9 +113,9 @@ pub struct SynthesizeArgs {
     pub seed: u64,
     /// Start field [default: gaussian for a target map, white for a coefficient file]. The
     /// Gaussian start already has the target's power spectrum, so the optimisation only adds
-    /// the non-Gaussian texture instead of building the spectrum from noise: on the 128²
-    /// lognormal target it gives skewness 2.45 where a white start gives 1.95 (details in
-    /// README.md).
+    /// the non-Gaussian texture instead of building the spectrum from noise: on the same 128²
+    /// target (excess kurtosis 3.56) it gives excess kurtosis 3.03 where a white start
+    /// overshoots to 6.29 (details in README.md).
     #[arg(long, value_enum)]
     pub start: Option<StartOption>,
     /// Column of a HEALPix target map: 0-based position or name.

@@ -1,7 +1,7 @@
 //! The sphere-mode picture of `synthesize`: a row of Mollweide views (target | Gaussian sky of
 //! the same pseudo-C_ℓ | synthesised), under it the same three maps in a zoomed gnomonic view
-//! of one region of the footprint, where the texture is visible pixel by pixel, then the
-//! one-point histograms and the peak counts of target, Gaussian sky and result.
+//! of one region of the footprint, where the texture is visible pixel by pixel, and the
+//! one-point histograms and the peak counts of target, Gaussian sky and result beside them.
 
 use crate::error::{Error, Result};
 use crate::footprint::Footprint;
@@ -75,12 +75,11 @@ pub(super) fn write_sphere_picture(
     let top_h = mollweide.iter().map(|p| p.size().1).max().unwrap_or(0);
     let margin = 12u32;
     let title_h = 28u32;
-    let zoom_row_h = ZOOM_SIDE + title_h + margin;
-    let chart_w = 480u32;
-    let chart_h = 360u32;
+    let chart_w = 470u32;
+    let chart_h = ZOOM_SIDE + title_h + 4;
     let zoom_w = maps.len() as u32 * (ZOOM_SIDE + margin) + margin;
-    let width = top_w.max(zoom_w).max(2 * chart_w + 3 * margin);
-    let height = top_h + zoom_row_h + chart_h + 2 * margin;
+    let width = top_w.max(zoom_w + 2 * (chart_w + margin));
+    let height = top_h + chart_h + 2 * margin;
     let spacing = maps
         .first()
         .map(|m| m.map.pixelization().mean_spacing())
@@ -137,23 +136,19 @@ pub(super) fn write_sphere_picture(
                             Some(v) => colour_ramp((v - lo) / span),
                             None => [235, 235, 235],
                         };
-                        root.draw_pixel(
-                            (px0 + ix as i32, py0 + 4 + iy as i32),
-                            &RGBColor(r, g, b),
-                        )
-                        .map_err(|e| fail(&e))?;
+                        root.draw_pixel((px0 + ix as i32, py0 + 4 + iy as i32), &RGBColor(r, g, b))
+                            .map_err(|e| fail(&e))?;
                     }
                 }
             }
-            // histograms and peak counts
-            let cy = (top_h + zoom_row_h + margin) as i32;
-            let hist_area = root
-                .clone()
-                .shrink((margin as i32, cy), (chart_w, chart_h));
+            // histograms and peak counts, right of the zoomed views
+            let cy = top_h as i32;
+            let cx = zoom_w as i32;
+            let hist_area = root.clone().shrink((cx, cy), (chart_w, chart_h));
             draw_histograms(&hist_area, maps).map_err(|e| fail(&e))?;
             let peak_area = root
                 .clone()
-                .shrink(((2 * margin + chart_w) as i32, cy), (chart_w, chart_h));
+                .shrink((cx + (chart_w + margin) as i32, cy), (chart_w, chart_h));
             draw_peaks(&peak_area, maps, thresholds).map_err(|e| fail(&e))?;
             root.present().map_err(|e| fail(&e))
         };
@@ -190,7 +185,11 @@ fn draw_histograms(area: &Area<'_>, maps: &[ShownMap<'_>]) -> DrawResult {
         .copied()
         .fold(f64::NEG_INFINITY, f64::max);
     let bins = 40usize;
-    let width = if hi > lo { (hi - lo) / bins as f64 } else { 1.0 };
+    let width = if hi > lo {
+        (hi - lo) / bins as f64
+    } else {
+        1.0
+    };
     let counts: Vec<Vec<usize>> = scaled
         .iter()
         .map(|vals| {
@@ -235,6 +234,7 @@ fn draw_histograms(area: &Area<'_>, maps: &[ShownMap<'_>]) -> DrawResult {
     }
     chart
         .configure_series_labels()
+        .position(SeriesLabelPosition::UpperRight)
         .label_font((FONT_FAMILY, 13))
         .background_style(WHITE.mix(0.8))
         .border_style(BLACK)
@@ -286,17 +286,14 @@ fn draw_peaks(area: &Area<'_>, maps: &[ShownMap<'_>], thresholds: &[f64]) -> Dra
             }))
             .map_err(|e| e.to_string())?;
         chart
-            .draw_series(
-                points
-                    .iter()
-                    .map(|&p| Circle::new(p, 4, colour.filled())),
-            )
+            .draw_series(points.iter().map(|&p| Circle::new(p, 4, colour.filled())))
             .map_err(|e| e.to_string())?
             .label(m.title.to_string())
             .legend(move |(x, y)| Circle::new((x + 9, y), 4, colour.filled()));
     }
     chart
         .configure_series_labels()
+        .position(SeriesLabelPosition::UpperRight)
         .label_font((FONT_FAMILY, 13))
         .background_style(WHITE.mix(0.8))
         .border_style(BLACK)
