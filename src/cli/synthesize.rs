@@ -278,6 +278,17 @@ fn measurement_settings(args: &SynthesizeArgs) -> Result<MeasurementSettings> {
     Ok(s)
 }
 
+/// Refuses `--field-envelope-correlation on` with a coefficient-file target (the correlations
+/// need the target map).
+fn check_correlation_target(args: &SynthesizeArgs, map_target: bool) -> Result<()> {
+    if args.field_envelope_correlation == Some(Switch::On) && !map_target {
+        return Err(Error::Setting(
+            "--field-envelope-correlation on needs a target map: a coefficient file does not hold the correlations".into(),
+        ));
+    }
+    Ok(())
+}
+
 /// The settings of one run; `map_target` says whether the target is a map (the field–envelope
 /// correlations are then on unless turned off).
 fn synthesis_settings(
@@ -410,7 +421,9 @@ fn run_flat(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
         (Some(StartOption::White), _) | (None, Target::Coefficients(_)) => StartField::White,
         (Some(StartOption::Gaussian), _) | (None, Target::Map { .. }) => StartField::Gaussian,
     };
-    let settings = synthesis_settings(args, start, matches!(target_input, Target::Map { .. }));
+    let map_target = matches!(target_input, Target::Map { .. });
+    check_correlation_target(args, map_target)?;
+    let settings = synthesis_settings(args, start, map_target);
     let pixel = tile_pixel.unwrap_or_else(|| args.pixel_arcmin.unwrap_or(1.0).to_radians() / 60.0);
     let synthesis = FlatSynthesis::new(size, args.scales, args.orientations, pixel, settings)?;
     let (target, target_map) = match &target_input {
@@ -602,6 +615,7 @@ fn run_sphere(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
         (Some(StartOption::White), _) | (None, None) => StartField::White,
         (Some(StartOption::Gaussian), _) | (None, Some(_)) => StartField::Gaussian,
     };
+    check_correlation_target(args, target_map.is_some())?;
     let settings = synthesis_settings(args, start, target_map.is_some());
     let pixelization = match &target_map {
         Some(m) => m.pixelization(),
