@@ -235,8 +235,13 @@ impl<'a> SkyPicture<'a> {
         std::fs::write(png, bytes).map_err(|e| Error::io(png, e))
     }
 
+    /// Width and height of the picture in pixels.
+    pub(crate) fn size(&self) -> (u32, u32) {
+        (self.width, self.geometry().2)
+    }
+
     /// Draws the picture on `root` (an area of at least `width` × height pixels).
-    fn render_on(
+    pub(crate) fn render_on(
         &self,
         root: &DrawingArea<BitMapBackend<'_>, plotters::coord::Shift>,
         png: &Path,

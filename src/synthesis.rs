@@ -42,7 +42,8 @@
 //! The coefficients and the power spectrum are invariant under the reflection f → 2μ − f
 //! (|−z| = |z|), so they cannot tell positive peaks from negative ones, and the sign of the
 //! field's skewness is not constrained; matching them alone leaves a field whose peaks and
-//! troughs are mixed. Two remedies, both optional:
+//! troughs are mixed. Two remedies (the command line uses the first by default for a target
+//! map):
 //!
 //! * the field–envelope correlations C_j change sign with f → −f: positive where the field is
 //!   high where its scale-j envelope is strong (positive peaks), negative for troughs. Because
@@ -116,7 +117,9 @@ pub struct SynthesisSettings {
     pub statistics: StatisticChoice,
     /// σ_i of the distance.
     pub normalisation: Normalisation,
-    /// Include the field–envelope correlations C_j (target maps only).
+    /// Include the sign-sensitive field–envelope correlations C_j (target maps only; on the
+    /// sphere also the one-point C_pix, [`sphere`]). Off in `Default`; `planisphere synthesize`
+    /// turns them on for target maps.
     pub field_envelope_correlation: bool,
     /// Include the power spectrum in this many logarithmic bins (empty bins are dropped).
     pub power_spectrum_bins: Option<usize>,

@@ -165,6 +165,30 @@ fn synthesize_rejects_bad_input_with_one_line_error() {
         (
             vec![
                 "--target",
+                "coeffs.json",
+                "-o",
+                "f.npy",
+                "--size",
+                "32",
+                "--field-envelope-correlation",
+                "on",
+            ],
+            "needs a target map",
+        ),
+        (
+            vec![
+                "--target",
+                "target.npy",
+                "-o",
+                "f.npy",
+                "--field-envelope-correlation",
+                "maybe",
+            ],
+            "maybe",
+        ),
+        (
+            vec![
+                "--target",
                 "target.npy",
                 "-o",
                 "nodir/f.npy",
@@ -303,6 +327,17 @@ fn sphere_mode_writes_a_healpix_map_on_the_footprint_and_a_mollweide_panel() {
     }
     let png = std::fs::read(d.join("synth.png")).unwrap();
     assert_eq!(&png[..8], b"\x89PNG\r\n\x1a\n");
+    // the picture's one-point numbers are printed for target, Gaussian sky and result
+    for who in ["target", "Gaussian, same spectrum", "synthesised"] {
+        assert!(
+            run.stdout
+                .lines()
+                .any(|l| l.starts_with(&format!("{who}: skewness"))
+                    && l.contains("peaks above mean")),
+            "{}",
+            run.stdout
+        );
+    }
     let names: Vec<String> = std::fs::read_dir(d)
         .unwrap()
         .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())

@@ -57,11 +57,21 @@ fn sky(seed: u64) -> SkyMap {
 }
 
 fn synthesis(statistics: StatisticChoice, iterations: u64, start: StartField) -> SphereSynthesis {
+    synthesis_with(statistics, iterations, start, false)
+}
+
+fn synthesis_with(
+    statistics: StatisticChoice,
+    iterations: u64,
+    start: StartField,
+    field_envelope_correlation: bool,
+) -> SphereSynthesis {
     let s = SynthesisSettings {
         statistics,
         iterations,
         start,
         seed: 11,
+        field_envelope_correlation,
         ..SynthesisSettings::default()
     };
     SphereSynthesis::new(
@@ -77,10 +87,17 @@ fn loss(s: &SphereSynthesis, target: &SphereTarget, values: &[f64]) -> f64 {
     s.loss_and_gradient(target, values).unwrap().0
 }
 
+/// With and without the sign-sensitive terms (field–envelope correlations and the one-point
+/// term, whose gradient also runs through the sampling adjoint).
 #[test]
 fn pooled_loss_gradient_matches_central_differences() {
-    for statistics in [StatisticChoice::Full, StatisticChoice::Summary] {
-        let s = synthesis(statistics, 10, StartField::White);
+    for (statistics, correlations) in [
+        (StatisticChoice::Full, false),
+        (StatisticChoice::Summary, false),
+        (StatisticChoice::Full, true),
+        (StatisticChoice::Summary, true),
+    ] {
+        let s = synthesis_with(statistics, 10, StartField::White, correlations);
         let target = s.target_from_map(&sky(1)).unwrap();
         let point = sky(2);
         let values = point.values().to_vec();
@@ -101,7 +118,7 @@ fn pooled_loss_gradient_matches_central_differences() {
             let fd = (loss(&s, &target, &up) - loss(&s, &target, &down)) / (2.0 * h);
             let rel = (grad[p] - fd).abs() / fd.abs().max(1e-12);
             println!(
-                "{statistics:?} pixel {p}: analytic {:.10e}, central difference {fd:.10e}, relative {rel:.1e}",
+                "{statistics:?}, correlations {correlations}, pixel {p}: analytic {:.10e}, central difference {fd:.10e}, relative {rel:.1e}",
                 grad[p]
             );
             assert!(fd.abs() > 1e-8, "pixel {p} does not move the loss");
@@ -115,6 +132,47 @@ fn pooled_loss_gradient_matches_central_differences() {
             .pixelization()
             .pixel_of(Direction::from_lonlat_deg(220.0, -50.0)) as usize;
         assert_eq!(grad[far], 0.0);
+    }
+}
+
+/// The sign-sensitive part alone: the loss with the correlations minus the loss without them
+/// is Σ_j ((C_j − T_j)/σ_j)², whose gradient (the difference of the two gradients) must match
+/// central differences of that difference.
+#[test]
+fn correlation_part_of_the_loss_gradient_matches_central_differences() {
+    let with = synthesis_with(StatisticChoice::Full, 10, StartField::White, true);
+    let without = synthesis_with(StatisticChoice::Full, 10, StartField::White, false);
+    let target_map = sky(1);
+    let t_with = with.target_from_map(&target_map).unwrap();
+    let t_without = without.target_from_map(&target_map).unwrap();
+    assert_eq!(t_with.values.len(), t_without.values.len() + 3 + 1);
+    let values = sky(2).values().to_vec();
+    let part = |v: &[f64]| loss(&with, &t_with, v) - loss(&without, &t_without, v);
+    let g_with = with.loss_and_gradient(&t_with, &values).unwrap().1;
+    let g_without = without.loss_and_gradient(&t_without, &values).unwrap().1;
+    let grad: Vec<f64> = g_with.iter().zip(&g_without).map(|(a, b)| a - b).collect();
+    let vars = with.variables();
+    let largest = *vars
+        .iter()
+        .max_by(|&&a, &&b| grad[a].abs().total_cmp(&grad[b].abs()))
+        .unwrap();
+    let h = 1e-4;
+    for p in [vars[0], vars[vars.len() / 2], largest] {
+        let mut up = values.clone();
+        up[p] += h;
+        let mut down = values.clone();
+        down[p] -= h;
+        let fd = (part(&up) - part(&down)) / (2.0 * h);
+        let rel = (grad[p] - fd).abs() / fd.abs().max(1e-12);
+        println!(
+            "correlation part, pixel {p}: analytic {:.10e}, central difference {fd:.10e}, relative {rel:.1e}",
+            grad[p]
+        );
+        assert!(
+            fd.abs() > 1e-8,
+            "pixel {p} does not move the correlation part"
+        );
+        assert!(rel <= 1e-6, "pixel {p}: relative error {rel}");
     }
 }
 

@@ -413,3 +413,87 @@ fn cropped_synthesis_reproduces_full_set_within_one_percent() {
     );
     assert!(out.max_relative_deviation <= 0.01);
 }
+
+/// The sign-sensitive sums (field–envelope E_{j,l} and the one-point E_pix = Σ w I|I|) along
+/// a random direction against central differences, on the masked tile with and without
+/// cropping; b_E random and normalised by the pooling weights.
+fn check_envelope_gradient(n: usize, big_j: usize, settings: TransformSettings, seed: u64) {
+    let t = DifferentiableScattering::new(n, big_j, 4).unwrap();
+    let (taper, weight) = masked_tile(n);
+    let geometry = t.tile_geometry(&taper, &weight, &settings).unwrap();
+    let f = lognormal(n, seed);
+    let v = random_vector(n * n, seed + 100);
+    let pass = t.forward_tile_with(&geometry, &f).unwrap();
+    let e = pass.field_envelope_sums().to_vec();
+    assert_eq!(e.len(), big_j * 4 + 1);
+    let weights: Vec<f64> = (0..e.len())
+        .map(|i| {
+            if i < big_j * 4 {
+                pass.sums.weights[2 + i]
+            } else {
+                pass.sums.weights[0]
+            }
+        })
+        .collect();
+    let b: Vec<f64> = random_vector(e.len(), seed + 7)
+        .iter()
+        .zip(&weights)
+        .map(|(r, w)| if *w > 0.0 { r / w } else { 0.0 })
+        .collect();
+    let zero = vec![0.0; t.labels().len()];
+    let g = t
+        .backward_tile_with_correlations(&pass, &zero, Some(&b))
+        .unwrap();
+    let analytic = dot(&g, &v);
+    let at = |h: f64| {
+        let p = t.forward_tile_with(&geometry, &shifted(&f, &v, h)).unwrap();
+        dot(&b, p.field_envelope_sums())
+    };
+    let numeric = (at(H_STEP) - at(-H_STEP)) / (2.0 * H_STEP);
+    let err = (analytic - numeric).abs() / numeric.abs().max(analytic.abs());
+    println!(
+        "n = {n}, J = {big_j}, cropping {}: analytic {analytic:.10e} numeric {numeric:.10e} rel {err:.1e}",
+        settings.fourier_cropping
+    );
+    assert!(err <= 1e-6, "relative error {err}");
+}
+
+#[test]
+fn field_envelope_sums_gradient_matches_central_differences() {
+    let uncropped = TransformSettings {
+        fourier_cropping: false,
+        ..TransformSettings::default()
+    };
+    check_envelope_gradient(32, 3, uncropped, 41);
+    check_envelope_gradient(64, 5, TransformSettings::default(), 42);
+}
+
+/// With a ≡ 1, w ≡ 1 and no cropping, E_{j,l} / Σ W is the periodic correlation
+/// ⟨(f − μ) |f∗ψ_{j,l}|⟩ of the periodic transform (itself checked against finite differences
+/// in synthesis_gradient.rs), and E_pix / Σ w is ⟨(f − μ)|f − μ|⟩ computed here directly.
+#[test]
+fn periodic_field_envelope_sums_equal_periodic_correlations() {
+    let (n, big_j) = (32usize, 3usize);
+    let t = DifferentiableScattering::new(n, big_j, 4).unwrap();
+    let settings = TransformSettings {
+        fourier_cropping: false,
+        ..TransformSettings::default()
+    };
+    let ones = vec![1.0; n * n];
+    let geometry = t.tile_geometry(&ones, &ones, &settings).unwrap();
+    let f = lognormal(n, 43);
+    let periodic = t.forward(&f).unwrap();
+    let tile = t.forward_tile_with(&geometry, &f).unwrap();
+    let e = tile.field_envelope_sums();
+    let pooled: Vec<f64> = (0..big_j * 4)
+        .map(|i| e[i] / tile.sums.weights[2 + i])
+        .collect();
+    let diff = worst_relative(&pooled, &periodic.field_envelope);
+    println!("tile field-envelope correlations vs periodic: {diff:.1e}");
+    assert!(diff <= 1e-12, "correlations differ by {diff}");
+    let mean = f.iter().sum::<f64>() / f.len() as f64;
+    let direct = f.iter().map(|v| (v - mean) * (v - mean).abs()).sum::<f64>() / f.len() as f64;
+    let ours = e[big_j * 4] / tile.sums.weights[0];
+    println!("one-point term {ours:.15e} direct {direct:.15e}");
+    assert!((ours - direct).abs() <= 1e-12 * direct.abs());
+}

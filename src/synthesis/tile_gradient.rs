@@ -22,7 +22,14 @@
 //! * I₂ = ã (u − μ_u), ã the taper sampled on the grid of j1, μ_u = Σ ã u / Σ ã;
 //!   F₂ = DFT_{m1}(I₂); g₂ = IDFT_{m′2}(B_{m1→m′2}(ψ̂_{j2,l2} · F₂)) / M_1 (ψ̂ on the m1 grid);
 //! * S2 sum = 4^{d′2} Σ_X W̃_{j1,j2}(X) |g₂(X)| c_{j2}(X), W̃_{j1,j2} and c_{j2} on the grid of
-//!   level d′_{j2}.
+//!   level d′_{j2};
+//! * field–envelope sum (sign-sensitive, not part of the engine's set):
+//!   E_{j,l} = 4^{d_j} Σ_X W̃_j(X) I(X) u_{j,l}(X), with I read at the fine pixel of each coarse
+//!   pixel X; pooled over tiles with the weight Σ W_j of S1(j,l) it is the tile estimator of
+//!   the correlation ⟨(f − μ) |f∗ψ_{j,l}|⟩ of [`super::gradient`] (equal to it for a ≡ 1,
+//!   w ≡ 1 without cropping). It changes sign with f → −f, which the sums above cannot see;
+//! * the one-point member of that family, the field correlated with its own modulus,
+//!   E_pix = Σ_x w I |I| (pooling weight Σ w), sign-sensitive as well.
 //!
 //! The coverage N_j, the trust masks, c_j and the low-passed weights depend on a and w only;
 //! they are computed once per tile in a [`TileGeometry`] and reused for every field (the
@@ -43,6 +50,8 @@
 //! * box Y = B(ψ̂ · F), a gather of bins: F̄\[s(p)\] += ψ̂\[s(p)\] Ȳ\[p\] (a scatter-add back into
 //!   the m × m spectrum; zeroed Nyquist lines receive nothing);
 //! * F = DFT_m(I) of a real I: Ī = Re IDFT_m(F̄);
+//! * field–envelope sum E = κ Σ_X W̃ I u: ū += κ W̃ I b_E and Ī(x_X) += κ W̃ u b_E;
+//!   E_pix = Σ w I |I|: Ī += 2 w |I| b_pix;
 //! * tapered mean removal I = a (h − Σ a h / Σ a): h̄ = a Ī − a (Σ a Ī) / Σ a;
 //! * order 0: ∂(Σ w f)/∂f = w, ∂(Σ w f²)/∂f = 2 w f.
 //!
@@ -188,6 +197,10 @@ pub struct TileForward {
     field: Vec<f64>,
     /// F = DFT_n(a (f − μ_a)).
     spectrum: Vec<Complex64>,
+    /// I = a (f − μ_a) on the full grid.
+    input: Vec<f64>,
+    /// Field–envelope sums E_{j,l}, index j·L + l, then E_pix (module documentation).
+    field_envelope: Vec<f64>,
     /// Per (j1, l1): g₁ on its grid and F₂ = DFT(I₂) (empty for the last scale).
     first: Vec<(Vec<Complex64>, Vec<Complex64>)>,
 }
@@ -210,6 +223,13 @@ impl TileForward {
     /// F = DFT_n(a (f − μ_a)), unnormalised (for a ≡ 1 the DFT of the mean-removed field).
     pub fn spectrum(&self) -> &[Complex64] {
         &self.spectrum
+    }
+
+    /// Field–envelope sums E_{j,l} = 4^{d_j} Σ_X W̃_j I u_{j,l}, index j·L + l (module
+    /// documentation), whose pooling weight is that of S1(j, l), `sums.weights[2 + j·L + l]`;
+    /// then (index J·L) the one-point sum E_pix = Σ w I |I|, pooling weight Σ w.
+    pub fn field_envelope_sums(&self) -> &[f64] {
+        &self.field_envelope
     }
 }
 
@@ -447,7 +467,7 @@ impl DifferentiableScattering {
         let items: Vec<(usize, usize)> = (0..big_j)
             .flat_map(|j| (0..big_l).map(move |l| (j, l)))
             .collect();
-        type Item = (f64, f64, Vec<f64>, Vec<Complex64>, Vec<Complex64>);
+        type Item = (f64, f64, f64, Vec<f64>, Vec<Complex64>, Vec<Complex64>);
         let scale = 1.0 / nn as f64;
         let results: Vec<Item> = items
             .par_iter()
@@ -462,11 +482,14 @@ impl DifferentiableScattering {
                 let c1 = &g.inv_sqrt_coverage[j1];
                 let u: Vec<f64> = g1.iter().zip(c1).map(|(z, &c)| z.norm() * c).collect();
                 let (wl, _) = &g.first_weights[j1];
+                let input_here = subsample(&input, n, m1);
                 let mut s1 = 0.0;
                 let mut p = 0.0;
-                for (wv, uv) in wl.iter().zip(&u) {
+                let mut e = 0.0;
+                for ((wv, uv), iv) in wl.iter().zip(&u).zip(&input_here) {
                     s1 += wv * uv;
                     p += wv * uv * uv;
+                    e += wv * iv * uv;
                 }
                 let mut s2 = Vec::new();
                 let mut spec2 = Vec::new();
@@ -500,7 +523,7 @@ impl DifferentiableScattering {
                         }
                     }
                 }
-                (s1 * factor1, p * factor1, s2, g1, spec2)
+                (s1 * factor1, p * factor1, e * factor1, s2, g1, spec2)
             })
             .collect();
         let count = self.labels().len();
@@ -512,7 +535,9 @@ impl DifferentiableScattering {
         weights[1] = g.weight_sum;
         let first_count = big_j * big_l;
         let mut first = Vec::with_capacity(items.len());
-        for (&(j1, l1), (s1, p, s2, g1, spec2)) in items.iter().zip(results) {
+        let mut field_envelope = Vec::with_capacity(items.len());
+        for (&(j1, l1), (s1, p, e, s2, g1, spec2)) in items.iter().zip(results) {
+            field_envelope.push(e);
             let idx = j1 * big_l + l1;
             let trusted = g.first_weights[j1].1;
             sums[2 + idx] = s1;
@@ -530,6 +555,13 @@ impl DifferentiableScattering {
             }
             first.push((g1, spec2));
         }
+        field_envelope.push(
+            input
+                .iter()
+                .zip(w)
+                .map(|(i, w)| w * i * i.abs())
+                .sum::<f64>(),
+        );
         Ok(TileForward {
             sums: TileSums {
                 footprint_weight: g.weight_sum,
@@ -539,6 +571,8 @@ impl DifferentiableScattering {
             geometry: geometry.clone(),
             field: field.to_vec(),
             spectrum,
+            input,
+            field_envelope,
             first,
         })
     }
@@ -547,7 +581,27 @@ impl DifferentiableScattering {
     /// (b = `sum_weights`, layout of [`Self::labels`]), from a forward pass of this transform;
     /// taper, weight and trust cut are constants (module documentation).
     pub fn backward_tile(&self, pass: &TileForward, sum_weights: &[f64]) -> Result<Vec<f64>> {
+        self.backward_tile_with_correlations(pass, sum_weights, None)
+    }
+
+    /// As [`Self::backward_tile`], with weights b_E of the field–envelope sums too (layout of
+    /// [`TileForward::field_envelope_sums`]): ∂(Σ_i b_i sums_i + Σ b_E E)/∂f.
+    pub fn backward_tile_with_correlations(
+        &self,
+        pass: &TileForward,
+        sum_weights: &[f64],
+        envelope_weights: Option<&[f64]>,
+    ) -> Result<Vec<f64>> {
         self.check_geometry(&pass.geometry)?;
+        if let Some(e) = envelope_weights {
+            if e.len() != pass.field_envelope.len() {
+                return Err(Error::Mismatch(format!(
+                    "{} field-envelope weights given, the tile has {} sums",
+                    e.len(),
+                    pass.field_envelope.len()
+                )));
+            }
+        }
         if sum_weights.len() != self.labels().len() {
             return Err(Error::Mismatch(format!(
                 "{} sum weights given, the transform has {} coefficients",
@@ -564,8 +618,10 @@ impl DifferentiableScattering {
             .flat_map(|j| (0..big_l).map(move |l| (j, l)))
             .collect();
         let scale = 1.0 / nn as f64;
-        // Per (j1, l1): the adjoint of the cropped spectrum B_{n→m1} F, on the m1² box.
-        let parts: Vec<Vec<Complex64>> = items
+        // Per (j1, l1): the adjoint of the cropped spectrum B_{n→m1} F, on the m1² box, and
+        // the direct adjoint of I at the coarse pixels from the field–envelope sum.
+        type Part = (Vec<Complex64>, Option<Vec<f64>>);
+        let parts: Vec<Part> = items
             .par_iter()
             .zip(&pass.first)
             .map(|(&(j1, l1), (g1, spec2))| {
@@ -583,6 +639,22 @@ impl DifferentiableScattering {
                     .zip(wl)
                     .map(|((z, &c), &wv)| factor1 * wv * (b1 + 2.0 * bp * z.norm() * c))
                     .collect();
+                // ū and Ī from E = κ Σ_X W̃ I u.
+                let be = envelope_weights.map_or(0.0, |e| e[j1 * big_l + l1]);
+                let direct = (be != 0.0).then(|| {
+                    let input_here = subsample(&pass.input, n, m1);
+                    let mut direct = Vec::with_capacity(m1 * m1);
+                    for (((ua, z), &c), (&wv, iv)) in u_adj
+                        .iter_mut()
+                        .zip(g1)
+                        .zip(c1)
+                        .zip(wl.iter().zip(&input_here))
+                    {
+                        *ua += factor1 * wv * iv * be;
+                        direct.push(factor1 * wv * z.norm() * c * be);
+                    }
+                    direct
+                });
                 if j1 + 1 < big_j {
                     let scale2 = 1.0 / (m1 * m1) as f64;
                     let mut spec2_adj = vec![Complex64::default(); m1 * m1];
@@ -649,17 +721,39 @@ impl DifferentiableScattering {
                 // g₁ = IDFT(ψ̂ · B F) / N.
                 self.grids.ffts[d1].forward(&mut z1);
                 z1.iter_mut().for_each(|z| *z *= scale);
-                z1
+                (z1, direct)
             })
             .collect();
-        // Fixed-order sum: bitwise identical for any thread count.
+        // Fixed-order sums: bitwise identical for any thread count.
         let mut total = vec![Complex64::default(); nn];
-        for (&(j1, l1), part) in items.iter().zip(&parts) {
+        let mut direct_total = vec![0.0; nn];
+        for (&(j1, l1), (part, direct)) in items.iter().zip(&parts) {
             g.boxes.0[j1 * big_l + l1].scatter_add(&mut total, self.wavelet_at(j1, l1, 0), part);
+            if let Some(direct) = direct {
+                let stride = 1usize << g.levels[j1];
+                let m1 = n / stride;
+                for (k, v) in direct.iter().enumerate() {
+                    let (cy, cx) = (k / m1, k % m1);
+                    direct_total[cy * stride * n + cx * stride] += v;
+                }
+            }
+        }
+        if let Some(e) = envelope_weights {
+            let bp = e[big_j * big_l];
+            if bp != 0.0 {
+                for ((d, i), w) in direct_total.iter_mut().zip(&pass.input).zip(&g.weight) {
+                    *d += 2.0 * w * i.abs() * bp;
+                }
+            }
         }
         self.square_fft().inverse_unnormalised(&mut total);
         let a = &g.taper;
-        let i_adj: Vec<f64> = total.iter().zip(a).map(|(z, a)| z.re * a).collect();
+        let i_adj: Vec<f64> = total
+            .iter()
+            .zip(&direct_total)
+            .zip(a)
+            .map(|((z, d), a)| (z.re + d) * a)
+            .collect();
         let m = i_adj.iter().sum::<f64>() / g.taper_sum;
         let (b0, bv) = (sum_weights[0], sum_weights[1]);
         Ok(i_adj
