@@ -203,6 +203,24 @@ pub struct EnsembleDescription {
     pub settings: serde_json::Value,
 }
 
+/// Whether settings describe an ensemble of map pairs (a non-null `pair` entry).
+fn settings_are_pair(settings: &serde_json::Value) -> bool {
+    settings.get("pair").is_some_and(|p| !p.is_null())
+}
+
+/// "pairs of maps vs single maps" when one settings value is of a pair ensemble and the other
+/// is not (read `a` first).
+fn pair_difference(a: &serde_json::Value, b: &serde_json::Value) -> Option<String> {
+    let kind = |v| {
+        if settings_are_pair(v) {
+            "pairs of maps"
+        } else {
+            "single maps"
+        }
+    };
+    (settings_are_pair(a) != settings_are_pair(b)).then(|| format!("{} vs {}", kind(a), kind(b)))
+}
+
 /// SHA-256 of bytes, hex encoded.
 fn sha256_hex(bytes: &[u8]) -> String {
     Sha256::digest(bytes)
@@ -238,13 +256,16 @@ impl EnsembleDescription {
     /// Whether the members are pairs of maps (the settings carry a non-null `pair` entry):
     /// each row then holds map A's, map B's and the cross statistics.
     pub fn is_pair(&self) -> bool {
-        self.settings.get("pair").is_some_and(|p| !p.is_null())
+        settings_are_pair(&self.settings)
     }
 
     /// The first difference between two descriptions, in words ("setting 'sampling': 'Nearest'
     /// vs 'RingCubic'"), reading `self` as the existing one and `other` as the new one; `None`
     /// when they are the same job.
     pub fn difference(&self, other: &EnsembleDescription) -> Option<String> {
+        if let Some(d) = pair_difference(&self.settings, &other.settings) {
+            return Some(d);
+        }
         if let Some(d) = settings_difference(&self.settings, &other.settings) {
             return Some(d);
         }
@@ -363,6 +384,9 @@ impl JobStamp {
     pub fn difference(&self, job: &JobStamp) -> Option<String> {
         if self.identity == job.identity {
             return None;
+        }
+        if let Some(d) = pair_difference(&self.settings, &job.settings) {
+            return Some(d);
         }
         if let Some(d) = settings_difference(&self.settings, &job.settings) {
             return Some(d);

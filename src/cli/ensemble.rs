@@ -42,10 +42,10 @@ pub struct EnsembleArgs {
     /// of this pattern (map B), both sorted by path. Each row then holds map A's statistics
     /// (columns `a.…`), map B's (`b.…`) and their cross statistics (`cross.…`), measured on
     /// the common footprint.
-    #[arg(long, value_name = "PATTERN", requires = "maps")]
+    #[arg(long, value_name = "PATTERN")]
     pub second_maps: Option<String>,
     /// Second maps of pairs, one path per line, paired line by line with --map-list.
-    #[arg(long, value_name = "FILE", requires = "map_list")]
+    #[arg(long, value_name = "FILE")]
     pub second_map_list: Option<PathBuf>,
     /// Column of the second maps' files: 0-based position or name.
     #[arg(long, default_value = "0")]
@@ -320,6 +320,25 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
         Some(s) => Shard::parse(s)?,
         None => Shard::from_slurm_env()?.unwrap_or(Shard::ALL),
     };
+    // the second list pairs with its own kind of first list, checked before anything is read
+    for (second, first, needs) in [
+        (
+            args.second_maps.is_some(),
+            args.maps.is_some(),
+            "--second-maps pairs with --maps",
+        ),
+        (
+            args.second_map_list.is_some(),
+            args.map_list.is_some(),
+            "--second-map-list pairs with --map-list",
+        ),
+    ] {
+        if second && !first {
+            return Err(Error::Setting(format!(
+                "{needs}: give both lists (a recipe makes pairs with a [pair] table)"
+            )));
+        }
+    }
     let (members, recipe, recipe_file) = match (&args.maps, &args.map_list, &args.simulate) {
         (Some(g), None, None) => {
             let first = members_from_glob(g)?;
