@@ -555,6 +555,18 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
             "must end in .png or .svg",
         ),
         (
+            s(&[
+                "compare-flat",
+                "--tile-pixels",
+                "32,64",
+                "--reference-pixels",
+                "48",
+                "-o",
+                &f.path("cf.csv"),
+            ]),
+            "the flat reference fields (48 pixels) must be at least as large as the largest tile (64 pixels)",
+        ),
+        (
             s(&["demo", "--nside", "3", "-o", &f.path("demo")]),
             "--nside must be a power of two",
         ),
