@@ -432,7 +432,7 @@ enum RowState {
     /// No row file.
     Missing,
     /// A row of this job, its input unchanged (or gone).
-    Done(Row),
+    Done(Box<Row>),
     /// A row of this job whose map file has changed since: the reason.
     Stale(String),
 }
@@ -749,7 +749,7 @@ impl EnsembleJob {
         let mut missing = Vec::new();
         for (i, state) in states.into_iter().enumerate() {
             match state {
-                RowState::Done(r) => rows.push(r),
+                RowState::Done(r) => rows.push(*r),
                 RowState::Missing => missing.push(i),
                 RowState::Stale(why) => {
                     return Err(Error::Mismatch(format!(
@@ -850,7 +850,7 @@ fn row_state(
             }
         }
     }
-    Ok(RowState::Done(row))
+    Ok(RowState::Done(Box::new(row)))
 }
 
 fn short_hash(h: Option<&str>) -> String {

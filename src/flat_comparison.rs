@@ -314,7 +314,7 @@ pub fn compare_flat(settings: &FlatComparisonSettings) -> Result<FlatComparison>
             )
         };
         let flat = reference(m, 0xF1A7)?;
-        let doubled = reference(2 * m, 0x2F1A7_0000)?;
+        let doubled = reference(2 * m, 0x0002_F1A7_0000)?;
         scales.extend(scale_convergence(n, m, &flat, &doubled));
         for (k, c) in sphere[0].coefficients.iter().enumerate() {
             if matches!(

@@ -74,8 +74,8 @@ pub const STATISTIC_SETS: &[(&str, &[&str])] = &[
 
 /// The statistic families of ensembles of map pairs: name, prefixes of each map's own columns
 /// (after `a.` or `b.`), prefixes of the cross columns (after `cross.`). Each family gives the
-/// sets "NAME [A]", "NAME [B]", "NAME [cross]" and "NAME [A+B+cross]" (jointly, one covariance
-/// of all three); a family without cross columns gives "[A]", "[B]" and "[A+B]". The cross
+/// sets `NAME [A]`, `NAME [B]`, `NAME [cross]` and `NAME [A+B+cross]` (jointly, one covariance
+/// of all three); a family without cross columns gives `[A]`, `[B]` and `[A+B]`. The cross
 /// part of a scattering family is the cross band powers (the second moment both maps share)
 /// with the envelope terms of the same orders.
 pub const PAIR_STATISTIC_SETS: &[(&str, &[&str], &[&str])] = &[
