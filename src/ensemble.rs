@@ -48,8 +48,48 @@ use std::sync::atomic::{AtomicUsize, Ordering as AtomicOrdering};
 pub enum MemberSource {
     /// A HEALPix FITS file.
     File(PathBuf),
-    /// Simulation number `index` of the ensemble's recipe.
+    /// Simulation number `index` of the ensemble's recipe (a single map, or a correlated pair
+    /// when the recipe makes pairs).
     Simulation(u64),
+    /// Two HEALPix FITS files measured together as a pair (map A, map B).
+    FilePair(PathBuf, PathBuf),
+}
+
+impl MemberSource {
+    /// The files this member reads (none for a simulation).
+    pub fn files(&self) -> Vec<&Path> {
+        match self {
+            MemberSource::File(p) => vec![p.as_path()],
+            MemberSource::FilePair(a, b) => vec![a.as_path(), b.as_path()],
+            MemberSource::Simulation(_) => Vec::new(),
+        }
+    }
+}
+
+/// Pairs two member lists one to one (map A of pair i from `first`, map B from `second`), for
+/// an ensemble of map pairs. Errors when the lists have different lengths or hold anything but
+/// files.
+pub fn pair_members(
+    first: Vec<MemberSource>,
+    second: Vec<MemberSource>,
+) -> Result<Vec<MemberSource>> {
+    if first.len() != second.len() {
+        return Err(Error::Mismatch(format!(
+            "the first map list has {} maps and the second {}: pairs need lists of equal length",
+            first.len(),
+            second.len()
+        )));
+    }
+    first
+        .into_iter()
+        .zip(second)
+        .map(|(a, b)| match (a, b) {
+            (MemberSource::File(a), MemberSource::File(b)) => Ok(MemberSource::FilePair(a, b)),
+            (a, b) => Err(Error::Setting(format!(
+                "only map files can be paired, got {a} and {b}"
+            ))),
+        })
+        .collect()
 }
 
 impl std::fmt::Display for MemberSource {
@@ -57,6 +97,7 @@ impl std::fmt::Display for MemberSource {
         match self {
             MemberSource::File(p) => write!(f, "{}", p.display()),
             MemberSource::Simulation(i) => write!(f, "simulation {i}"),
+            MemberSource::FilePair(a, b) => write!(f, "{} & {}", a.display(), b.display()),
         }
     }
 }
@@ -162,6 +203,24 @@ pub struct EnsembleDescription {
     pub settings: serde_json::Value,
 }
 
+/// Whether settings describe an ensemble of map pairs (a non-null `pair` entry).
+fn settings_are_pair(settings: &serde_json::Value) -> bool {
+    settings.get("pair").is_some_and(|p| !p.is_null())
+}
+
+/// "pairs of maps vs single maps" when one settings value is of a pair ensemble and the other
+/// is not (read `a` first).
+fn pair_difference(a: &serde_json::Value, b: &serde_json::Value) -> Option<String> {
+    let kind = |v| {
+        if settings_are_pair(v) {
+            "pairs of maps"
+        } else {
+            "single maps"
+        }
+    };
+    (settings_are_pair(a) != settings_are_pair(b)).then(|| format!("{} vs {}", kind(a), kind(b)))
+}
+
 /// SHA-256 of bytes, hex encoded.
 fn sha256_hex(bytes: &[u8]) -> String {
     Sha256::digest(bytes)
@@ -194,10 +253,19 @@ impl EnsembleDescription {
         }
     }
 
+    /// Whether the members are pairs of maps (the settings carry a non-null `pair` entry):
+    /// each row then holds map A's, map B's and the cross statistics.
+    pub fn is_pair(&self) -> bool {
+        settings_are_pair(&self.settings)
+    }
+
     /// The first difference between two descriptions, in words ("setting 'sampling': 'Nearest'
     /// vs 'RingCubic'"), reading `self` as the existing one and `other` as the new one; `None`
     /// when they are the same job.
     pub fn difference(&self, other: &EnsembleDescription) -> Option<String> {
+        if let Some(d) = pair_difference(&self.settings, &other.settings) {
+            return Some(d);
+        }
         if let Some(d) = settings_difference(&self.settings, &other.settings) {
             return Some(d);
         }
@@ -317,6 +385,9 @@ impl JobStamp {
         if self.identity == job.identity {
             return None;
         }
+        if let Some(d) = pair_difference(&self.settings, &job.settings) {
+            return Some(d);
+        }
         if let Some(d) = settings_difference(&self.settings, &job.settings) {
             return Some(d);
         }
@@ -345,8 +416,11 @@ impl JobStamp {
 pub struct Row {
     pub member: usize,
     pub source: MemberSource,
-    /// SHA-256 of the input file (hex), `None` for simulations.
+    /// SHA-256 of the input file (hex), `None` for simulations; of map A for a pair of files.
     pub checksum: Option<String>,
+    /// SHA-256 of map B's file for a pair of files.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub second_checksum: Option<String>,
     pub values: Vec<f64>,
     /// The job that measured it (absent in rows of older program versions).
     #[serde(default)]
@@ -358,7 +432,7 @@ enum RowState {
     /// No row file.
     Missing,
     /// A row of this job, its input unchanged (or gone).
-    Done(Row),
+    Done(Box<Row>),
     /// A row of this job whose map file has changed since: the reason.
     Stale(String),
 }
@@ -612,10 +686,13 @@ impl EnsembleJob {
             .map(|&i| {
                 let source = &self.description.members[i];
                 let result = (|| -> Result<()> {
-                    let checksum = match source {
-                        MemberSource::File(path) => Some(file_checksum(path)?),
-                        MemberSource::Simulation(_) => None,
-                    };
+                    let sums = source
+                        .files()
+                        .into_iter()
+                        .map(file_checksum)
+                        .collect::<Result<Vec<_>>>()?;
+                    let checksum = sums.first().cloned();
+                    let second_checksum = sums.get(1).cloned();
                     let values = measure(i, source)?;
                     if values.len() != p {
                         return Err(Error::Mismatch(format!(
@@ -633,6 +710,7 @@ impl EnsembleJob {
                         member: i,
                         source: source.clone(),
                         checksum,
+                        second_checksum,
                         values,
                         job: Some(stamp.clone()),
                     };
@@ -680,7 +758,7 @@ impl EnsembleJob {
         let mut missing = Vec::new();
         for (i, state) in states.into_iter().enumerate() {
             match state {
-                RowState::Done(r) => rows.push(r),
+                RowState::Done(r) => rows.push(*r),
                 RowState::Missing => missing.push(i),
                 RowState::Stale(why) => {
                     return Err(Error::Mismatch(format!(
@@ -767,20 +845,21 @@ fn row_state(
             ),
         ));
     }
-    if let MemberSource::File(file) = source {
+    let recorded = [row.checksum.as_deref(), row.second_checksum.as_deref()];
+    for (file, then) in source.files().into_iter().zip(recorded) {
         if file.exists() {
             let now = file_checksum(file)?;
-            if row.checksum.as_deref() != Some(now.as_str()) {
+            if then != Some(now.as_str()) {
                 return Ok(RowState::Stale(format!(
                     "{} changed after row {i} was measured (SHA-256 {} then, {} now)",
                     file.display(),
-                    short_hash(row.checksum.as_deref()),
+                    short_hash(then),
                     short_hash(Some(&now))
                 )));
             }
         }
     }
-    Ok(RowState::Done(row))
+    Ok(RowState::Done(Box::new(row)))
 }
 
 fn short_hash(h: Option<&str>) -> String {
@@ -800,12 +879,21 @@ pub fn write_table(dir: &Path, stem: &str, table: &MergedTable) -> Result<()> {
     let members: Vec<serde_json::Value> = table
         .rows
         .iter()
-        .map(|r| serde_json::json!({"source": r.source, "sha256": r.checksum}))
+        .map(|r| match &r.second_checksum {
+            None => serde_json::json!({"source": r.source, "sha256": r.checksum}),
+            Some(b) => {
+                serde_json::json!({"source": r.source, "sha256": r.checksum, "second_sha256": b})
+            }
+        })
         .collect();
     let sidecar = serde_json::json!({
         "array": format!("{stem}.npy"),
         "shape": [table.rows.len(), table.description.labels.len()],
-        "rows": "one per map, in member order",
+        "rows": if table.description.is_pair() {
+            "one per pair of maps, in member order"
+        } else {
+            "one per map, in member order"
+        },
         "columns": table.description.labels,
         "settings": table.description.settings,
         "program": "planisphere",

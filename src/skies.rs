@@ -103,13 +103,12 @@ impl SkyRecipe {
         HarmonicTransform::new(self.nside as usize, self.lmax)
     }
 
-    /// Sky number `index` of the ensemble.
-    pub fn realise(&self, transform: &HarmonicTransform, index: u64) -> Result<SkyMap> {
+    /// The Gaussian spectrum actually drawn and the lognormal shift (if any).
+    fn gaussian_spectrum(&self) -> Result<(Vec<f64>, Option<f64>)> {
         self.check()?;
-        let mut rng = ChaCha8Rng::seed_from_u64(sky_seed(self.seed, index));
         let cl = self.cl();
-        let (gauss_cl, shift) = match self.lognormal_shift {
-            None => (cl, None),
+        match self.lognormal_shift {
+            None => Ok((cl, None)),
             Some(k0) if self.spectrum_is_gaussian => {
                 if !(k0.is_finite() && k0 > 0.0) {
                     return Err(Error::Setting(format!(
@@ -117,14 +116,94 @@ impl SkyRecipe {
                         crate::error::compact(k0)
                     )));
                 }
-                (cl, Some(k0))
+                Ok((cl, Some(k0)))
             }
             Some(k0) => {
                 let ln = lognormal_gaussian_spectrum(&cl, k0)?;
-                (ln.gaussian_cl, Some(k0))
+                Ok((ln.gaussian_cl, Some(k0)))
             }
-        };
-        let mut alm = alm_from_cl(&gauss_cl, self.lmax, &mut rng)?;
+        }
+    }
+
+    /// Sky number `index` of the ensemble.
+    pub fn realise(&self, transform: &HarmonicTransform, index: u64) -> Result<SkyMap> {
+        let (gauss_cl, shift) = self.gaussian_spectrum()?;
+        let mut rng = ChaCha8Rng::seed_from_u64(sky_seed(self.seed, index));
+        let alm = alm_from_cl(&gauss_cl, self.lmax, &mut rng)?;
+        self.finish(transform, alm, &gauss_cl, shift, self.noise_sigma, &mut rng)
+    }
+
+    /// Pair number `index` of a correlated-pair ensemble: map A is exactly
+    /// [`Self::realise`]`(index)`; map B is made from the Gaussian harmonic coefficients
+    /// a_B = r a_A + √(1 − r²) a_Y, with a_Y an independent draw of the same spectrum (ChaCha8
+    /// stream 1 of the same seed), then passed through the same lognormal transform and beam,
+    /// with its own white noise of `second_noise_sigma`. For Gaussian skies
+    /// ⟨a_A a_B*⟩ = r C_ℓ and ⟨a_B a_B*⟩ = C_ℓ, so the two signal maps have correlation
+    /// coefficient r at every ℓ and in pixel space (common practice: the Cholesky factor of
+    /// [[1, r], [r, 1]]); for lognormal skies r is the correlation of the underlying Gaussian
+    /// fields. `correlation` must lie in [−1, 1].
+    pub fn realise_pair(
+        &self,
+        transform: &HarmonicTransform,
+        index: u64,
+        correlation: f64,
+        second_noise_sigma: Option<f64>,
+    ) -> Result<(SkyMap, SkyMap)> {
+        if !(correlation.is_finite() && (-1.0..=1.0).contains(&correlation)) {
+            return Err(Error::Setting(format!(
+                "the pair correlation must lie in [-1, 1], got {}",
+                crate::error::compact(correlation)
+            )));
+        }
+        if let Some(s) = second_noise_sigma {
+            if !(s.is_finite() && s >= 0.0) {
+                return Err(Error::Setting(format!(
+                    "the second map's noise sigma must be >= 0, got {}",
+                    crate::error::compact(s)
+                )));
+            }
+        }
+        let (gauss_cl, shift) = self.gaussian_spectrum()?;
+        let mut rng = ChaCha8Rng::seed_from_u64(sky_seed(self.seed, index));
+        let alm_a = alm_from_cl(&gauss_cl, self.lmax, &mut rng)?;
+        let mut rng_b = ChaCha8Rng::seed_from_u64(sky_seed(self.seed, index));
+        rng_b.set_stream(1);
+        let alm_y = alm_from_cl(&gauss_cl, self.lmax, &mut rng_b)?;
+        let s = (1.0 - correlation * correlation).max(0.0).sqrt();
+        let mut alm_b = alm_a.clone();
+        for (b, y) in alm_b.as_mut_slice().iter_mut().zip(alm_y.as_slice()) {
+            *b = *b * correlation + *y * s;
+        }
+        let a = self.finish(
+            transform,
+            alm_a,
+            &gauss_cl,
+            shift,
+            self.noise_sigma,
+            &mut rng,
+        )?;
+        let b = self.finish(
+            transform,
+            alm_b,
+            &gauss_cl,
+            shift,
+            second_noise_sigma,
+            &mut rng_b,
+        )?;
+        Ok((a, b))
+    }
+
+    /// The map from Gaussian harmonic coefficients: synthesis, lognormal transform, beam, noise
+    /// (drawn from `rng`).
+    fn finish(
+        &self,
+        transform: &HarmonicTransform,
+        mut alm: crate::harmonics::HarmonicCoefficients,
+        gauss_cl: &[f64],
+        shift: Option<f64>,
+        noise_sigma: Option<f64>,
+        rng: &mut ChaCha8Rng,
+    ) -> Result<SkyMap> {
         let mut values = if let Some(k0) = shift {
             // The lognormal transform is applied before the beam: the beam belongs to the
             // instrument, the lognormal shape to the sky.
@@ -151,9 +230,9 @@ impl SkyRecipe {
             }
             transform.synthesis(&alm)?
         };
-        if let Some(sigma) = self.noise_sigma {
+        if let Some(sigma) = noise_sigma {
             for v in values.iter_mut() {
-                let n: f64 = StandardNormal.sample(&mut rng);
+                let n: f64 = StandardNormal.sample(&mut *rng);
                 *v += sigma * n;
             }
         }

@@ -555,6 +555,18 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
             "must end in .png or .svg",
         ),
         (
+            s(&[
+                "compare-flat",
+                "--tile-pixels",
+                "32,64",
+                "--reference-pixels",
+                "48",
+                "-o",
+                &f.path("cf.csv"),
+            ]),
+            "the flat reference fields (48 pixels) must be at least as large as the largest tile (64 pixels)",
+        ),
+        (
             s(&["demo", "--nside", "3", "-o", &f.path("demo")]),
             "--nside must be a power of two",
         ),
@@ -1632,4 +1644,153 @@ fn a_map_too_large_to_measure_within_the_memory_limit_is_refused_with_the_estima
         &before,
         f.dir.path(),
     );
+}
+
+#[test]
+fn pair_ensemble_mistakes_are_refused_in_one_line() {
+    // lists that do not pair up, a second list without its first, a correlation outside
+    // [-1, 1], and pair and single ensembles mixed in one forecast or one directory
+    let f = Fixtures::new();
+    std::fs::write(f.path("pair_a.txt"), "map16.fits\nnan_north16.fits\n").unwrap();
+    std::fs::write(f.path("pair_b.txt"), "map16.fits\n").unwrap();
+    std::fs::write(
+        f.path("bad_pair.toml"),
+        "nside = 16\ncount = 3\n[pair]\ncorrelation = 1.5\n",
+    )
+    .unwrap();
+    std::fs::write(
+        f.path("pair.toml"),
+        "nside = 16\ncount = 6\nseed = 3\n[pair]\ncorrelation = 0.5\n",
+    )
+    .unwrap();
+    let mut args = strings(&[
+        "ensemble",
+        "-o",
+        &f.path("pairs"),
+        "--simulate",
+        &f.path("pair.toml"),
+        "--quiet",
+    ]);
+    args.extend(strings(&QUICK));
+    let (code, stderr) = run(&args, f.dir.path());
+    assert_eq!(code, Some(0), "{stderr}");
+    let single = tiny_ensemble(&f, "single", 6, 1);
+    // a pair row copied into a single-map ensemble
+    let mixed = f.path("mixed");
+    std::fs::create_dir_all(Path::new(&mixed).join("rows")).unwrap();
+    std::fs::copy(
+        Path::new(&single).join("ensemble.json"),
+        Path::new(&mixed).join("ensemble.json"),
+    )
+    .unwrap();
+    std::fs::copy(
+        Path::new(&f.path("pairs")).join("rows/row_000000.json"),
+        Path::new(&mixed).join("rows/row_000000.json"),
+    )
+    .unwrap();
+    let out = f.path("fc.json");
+    let pairs = f.path("pairs");
+    let cases = vec![
+        (
+            strings(&[
+                "ensemble",
+                "-o",
+                &f.path("p1"),
+                "--map-list",
+                &f.path("pair_a.txt"),
+                "--second-map-list",
+                &f.path("pair_b.txt"),
+            ]),
+            "the first map list has 2 maps and the second 1: pairs need lists of equal length",
+        ),
+        (
+            strings(&[
+                "ensemble",
+                "-o",
+                &f.path("p2"),
+                "--maps",
+                &f.path("*16.fits"),
+                "--second-maps",
+                &f.path("map8.fits"),
+            ]),
+            "pairs need lists of equal length",
+        ),
+        (
+            strings(&[
+                "ensemble",
+                "-o",
+                &f.path("p3"),
+                "--simulate",
+                &f.path("pair.toml"),
+                "--second-maps",
+                &f.path("map16.fits"),
+            ]),
+            "--second-maps pairs with --maps: give both lists",
+        ),
+        (
+            strings(&[
+                "ensemble",
+                "-o",
+                &f.path("p4"),
+                "--maps",
+                &f.path("map16.fits"),
+                "--second-map-list",
+                &f.path("pair_b.txt"),
+            ]),
+            "--second-map-list pairs with --map-list",
+        ),
+        (
+            strings(&[
+                "ensemble",
+                "-o",
+                &f.path("p5"),
+                "--simulate",
+                &f.path("bad_pair.toml"),
+            ]),
+            "recipe pair.correlation must lie in [-1, 1], got 1.5",
+        ),
+        (
+            strings(&[
+                "forecast",
+                "--fiducial",
+                &pairs,
+                "--derivative",
+                &format!("a,0.1,{single},{single}"),
+                "-o",
+                &out,
+            ]),
+            "holds single maps but the fiducial ensemble",
+        ),
+        (
+            strings(&[
+                "forecast",
+                "--fiducial",
+                &single,
+                "--derivative",
+                &format!("a,0.1,{pairs},{pairs}"),
+                "-o",
+                &out,
+            ]),
+            "holds pairs of maps but the fiducial ensemble",
+        ),
+        (
+            strings(&["merge", &mixed]),
+            "row 0 belongs to another job (pairs of maps vs single maps, row vs this job)",
+        ),
+        (
+            {
+                let mut v = strings(&[
+                    "ensemble",
+                    "-o",
+                    &single,
+                    "--simulate",
+                    &f.path("pair.toml"),
+                ]);
+                v.extend(strings(&QUICK));
+                v
+            },
+            "already holds another ensemble job (single maps vs pairs of maps, there vs here)",
+        ),
+    ];
+    refuse_all(&f, &cases);
 }

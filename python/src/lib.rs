@@ -826,7 +826,9 @@ fn forecast<'py>(
                 (None, None) => None,
                 (a, b) => Some(ScaleCut::new(a.unwrap_or(0.0), b.unwrap_or(f64::INFINITY))?),
             };
-            let result = forecast_sets(&fid, &ders, cut.as_ref())?;
+            // a pair ensemble's columns are those of map A (`a.`), map B and the cross terms
+            let pairs = fid.labels().iter().any(|l| l.name.starts_with("a."));
+            let result = forecast_sets(&fid, &ders, cut.as_ref(), pairs)?;
             let warning = check_sets_forecast(&result.comparison)?;
             let doc = forecast_document(&result, &fiducial_values, settings);
             let fisher = result

@@ -44,6 +44,12 @@ pub struct CompareFlatArgs {
     /// Width of the tile-border taper in pixels.
     #[arg(long, default_value_t = 4)]
     pub border_pixels: usize,
+    /// Size in pixels of the periodic flat fields whose corner tiles make the flat reference
+    /// (at least the largest tile); default: per tile size, the smallest n·2^k (k ≥ 1) of at
+    /// least 32·2^(J−1) pixels. The reference is also measured at twice this size and the
+    /// change is reported per coefficient (reference_converged).
+    #[arg(long, value_name = "PIXELS")]
+    pub reference_pixels: Option<usize>,
     /// Seed.
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
@@ -103,8 +109,10 @@ pub fn run(args: &CompareFlatArgs) -> Result<()> {
             ..MeasurementSettings::default()
         },
         seed: args.seed,
+        reference_pixels: args.reference_pixels,
     };
-    let rows = compare_flat(&settings)?;
+    let comparison = compare_flat(&settings)?;
+    let rows = comparison.rows;
     write_bytes(&args.output, rows_csv(&rows).as_bytes())?;
     if let Some(p) = &args.json {
         write_json(p, &rows)?;
@@ -126,6 +134,40 @@ pub fn run(args: &CompareFlatArgs) -> Result<()> {
             100.0 * r.relative_bias,
             r.bias_in_errors,
             r.trusted
+        );
+    }
+    println!(
+        "flat reference doubled (m → 2m pixels), orientation means: converged when the change is within {} standard errors",
+        crate::flat_comparison::CONVERGENCE_ERRORS
+    );
+    println!(
+        "{:>6} {:>6} {:>10} {:>3} {:>9} {:>8} {:>10}",
+        "tile", "m", "statistic", "j", "change", "in σ", "converged"
+    );
+    for c in &comparison.scales {
+        println!(
+            "{:>6} {:>6} {:>10} {:>3} {:>8.2}% {:>8.2} {:>10}",
+            c.tile_pixels,
+            c.reference_pixels,
+            c.kind,
+            c.j,
+            100.0 * c.change,
+            c.change_in_errors,
+            c.converged
+        );
+    }
+    let flagged: Vec<String> = rows
+        .iter()
+        .filter(|r| r.reference_converged == Some(false))
+        .map(|r| format!("{} ({} px)", r.coefficient, r.tile_pixels))
+        .collect();
+    if !flagged.is_empty() {
+        println!(
+            "{} of {} coefficients moved by more than {} standard errors when the reference was doubled (first: {}); see reference_converged",
+            flagged.len(),
+            rows.len(),
+            crate::flat_comparison::CONVERGENCE_ERRORS,
+            flagged[0]
         );
     }
     println!(

@@ -132,10 +132,7 @@ fn run_ensemble(
         Shard::ALL,
         |_, source| match source {
             MemberSource::Simulation(i) => em.measure(&recipe.realise(&sht, *i)?),
-            MemberSource::File(p) => Err(Error::Setting(format!(
-                "unexpected file member {}",
-                p.display()
-            ))),
+            other => Err(Error::Setting(format!("unexpected file member {other}"))),
         },
         !quiet,
     )?;

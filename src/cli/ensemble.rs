@@ -4,8 +4,8 @@
 use super::inputs::MaskArgs;
 use super::measure::MeasureOptions;
 use crate::ensemble::{
-    file_checksum, members_from_glob, members_from_list, EnsembleDescription, EnsembleJob,
-    MemberSource, Shard,
+    file_checksum, members_from_glob, members_from_list, pair_members, EnsembleDescription,
+    EnsembleJob, MemberSource, Shard,
 };
 use crate::error::{Error, Result};
 use crate::fits_io::{read_footprint, read_map, ColumnChoice};
@@ -15,7 +15,7 @@ use crate::measurement::{MeasurementSettings, SphereMeasurer, StatisticLabel};
 use crate::pixelization::{Ordering, Pixelization};
 use crate::skies::SkyRecipe;
 use crate::skymap::SkyMap;
-use crate::spectra::angular_spectrum;
+use crate::spectra::{angular_spectrum, cross_spectrum};
 use crate::spectrum::AngularSpectrum;
 use std::path::{Path, PathBuf};
 
@@ -38,6 +38,18 @@ pub struct EnsembleArgs {
     /// Column of the map files: 0-based position or name.
     #[arg(long, default_value = "0")]
     pub column: ColumnChoice,
+    /// Second maps of pairs, as a glob pattern: pair i is map i of --maps (map A) with map i
+    /// of this pattern (map B), both sorted by path. Each row then holds map A's statistics
+    /// (columns `a.…`), map B's (`b.…`) and their cross statistics (`cross.…`), measured on
+    /// the common footprint.
+    #[arg(long, value_name = "PATTERN")]
+    pub second_maps: Option<String>,
+    /// Second maps of pairs, one path per line, paired line by line with --map-list.
+    #[arg(long, value_name = "FILE")]
+    pub second_map_list: Option<PathBuf>,
+    /// Column of the second maps' files: 0-based position or name.
+    #[arg(long, default_value = "0")]
+    pub second_column: ColumnChoice,
     #[command(flatten)]
     pub mask: MaskArgs,
     #[command(flatten)]
@@ -69,6 +81,21 @@ pub struct RecipeFile {
     /// With lognormal_shift: the spectrum is that of the underlying Gaussian field.
     pub gaussian_spectrum: Option<bool>,
     pub beam_arcmin: Option<f64>,
+    pub noise_sigma: Option<f64>,
+    /// Make correlated pairs of maps instead of single maps.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pair: Option<PairRecipe>,
+}
+
+/// The `[pair]` table of a recipe: map B of pair i is made from the Gaussian field of map A and
+/// an independent one with correlation coefficient `correlation`
+/// ([`SkyRecipe::realise_pair`]).
+#[derive(Debug, Clone, serde::Deserialize, serde::Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct PairRecipe {
+    /// Correlation coefficient r of the two Gaussian fields, in [−1, 1].
+    pub correlation: f64,
+    /// White noise per pixel of map B (default: the recipe's `noise_sigma`).
     pub noise_sigma: Option<f64>,
 }
 
@@ -170,6 +197,66 @@ impl EnsembleMeasurer {
         labels
     }
 
+    /// Column labels of a pair of maps: every label of [`Self::labels`] for map A (`a.` +
+    /// name) and for map B (`b.` + name), then the cross coefficients (`cross.` + the name of
+    /// [`crate::statistics::CrossLabel::name`], at the scale of j1) and the pseudo-C_ℓ bins of
+    /// the cross-spectrum (`cross.cl.ell{min}_{max}`).
+    pub fn pair_labels(&self) -> Vec<StatisticLabel> {
+        let single = self.labels();
+        let mut out = Vec::with_capacity(3 * single.len());
+        for prefix in ["a.", "b."] {
+            out.extend(single.iter().map(|l| StatisticLabel {
+                name: format!("{prefix}{}", l.name),
+                scale_arcmin: l.scale_arcmin,
+            }));
+        }
+        for c in self.measurer.engine().cross_labels() {
+            out.push(StatisticLabel {
+                name: format!("cross.{}", c.name()),
+                scale_arcmin: Some(self.measurer.wavelet_scale_arcmin(c.j1)),
+            });
+        }
+        out.extend(
+            single
+                .iter()
+                .filter(|l| l.name.starts_with("cl."))
+                .map(|l| StatisticLabel {
+                    name: format!("cross.{}", l.name),
+                    scale_arcmin: l.scale_arcmin,
+                }),
+        );
+        out
+    }
+
+    /// The statistics vector of a pair of maps, in the order of [`Self::pair_labels`]: both maps
+    /// measured together on the footprint less the bad pixels of either
+    /// ([`SphereMeasurer::measure_pair`]), with their pseudo-C_ℓ and cross pseudo-C_ℓ on that
+    /// footprint. Map B is brought to map A's ordering.
+    pub fn measure_pair(&self, a: &SkyMap, b: &SkyMap) -> Result<Vec<f64>> {
+        if a.nside() != b.nside() {
+            return Err(Error::Mismatch(format!(
+                "the maps of a pair have NSIDE {} and {}",
+                a.nside(),
+                b.nside()
+            )));
+        }
+        let b = b.to_ordering(a.ordering())?;
+        let fp = self.footprint.restricted_to(a)?.restricted_to(&b)?;
+        let pair = self.measurer.measure_pair(a, &b, &fp)?;
+        let weights = (fp.f_sky() < 1.0).then_some(&fp);
+        let cl = |x: &SkyMap, y: &SkyMap| -> Result<Vec<f64>> {
+            let s = cross_spectrum(x, y, weights, &self.sht, 0, self.cl_bin_width)?;
+            Ok(s.bins.iter().map(|b| b.cl).collect())
+        };
+        let mut v = pair.first.vector();
+        v.extend(cl(a, a)?);
+        v.extend(pair.second.vector());
+        v.extend(cl(&b, &b)?);
+        v.extend(pair.cross.coefficients.iter().map(|c| c.value));
+        v.extend(cl(a, &b)?);
+        Ok(v)
+    }
+
     /// The statistics vector of one map: scattering and tile spectra, then pseudo-C_ℓ bins.
     pub fn measure(&self, map: &SkyMap) -> Result<Vec<f64>> {
         // the tapered footprint, less the map's own bad pixels
@@ -233,12 +320,57 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
         Some(s) => Shard::parse(s)?,
         None => Shard::from_slurm_env()?.unwrap_or(Shard::ALL),
     };
+    // the second list pairs with its own kind of first list, checked before anything is read
+    for (second, first, needs) in [
+        (
+            args.second_maps.is_some(),
+            args.maps.is_some(),
+            "--second-maps pairs with --maps",
+        ),
+        (
+            args.second_map_list.is_some(),
+            args.map_list.is_some(),
+            "--second-map-list pairs with --map-list",
+        ),
+    ] {
+        if second && !first {
+            return Err(Error::Setting(format!(
+                "{needs}: give both lists (a recipe makes pairs with a [pair] table)"
+            )));
+        }
+    }
     let (members, recipe, recipe_file) = match (&args.maps, &args.map_list, &args.simulate) {
-        (Some(g), None, None) => (members_from_glob(g)?, None, None),
-        (None, Some(l), None) => (members_from_list(l)?, None, None),
+        (Some(g), None, None) => {
+            let first = members_from_glob(g)?;
+            let members = match &args.second_maps {
+                Some(g2) => pair_members(first, members_from_glob(g2)?).map_err(|e| {
+                    Error::Setting(format!("--maps '{g}' and --second-maps '{g2}': {e}"))
+                })?,
+                None => first,
+            };
+            (members, None, None)
+        }
+        (None, Some(l), None) => {
+            let first = members_from_list(l)?;
+            let members = match &args.second_map_list {
+                Some(l2) => pair_members(first, members_from_list(l2)?).map_err(|e| {
+                    Error::Setting(format!(
+                        "--map-list {} and --second-map-list {}: {e}",
+                        l.display(),
+                        l2.display()
+                    ))
+                })?,
+                None => first,
+            };
+            (members, None, None)
+        }
         (None, None, Some(r)) => {
             let file = RecipeFile::read(r)?;
             let recipe = file.recipe()?;
+            if let Some(p) = &file.pair {
+                // checked before any directory is made
+                check_pair_recipe(p)?;
+            }
             (
                 (0..file.count).map(MemberSource::Simulation).collect(),
                 Some(recipe),
@@ -251,69 +383,108 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
             ))
         }
     };
+    let pair_recipe = recipe_file.as_ref().and_then(|f| f.pair.clone());
+    let is_pair =
+        args.second_maps.is_some() || args.second_map_list.is_some() || pair_recipe.is_some();
     let sky_sht = match &recipe {
         Some(r) => Some(r.transform()?),
         None => None,
     };
-    let load = |source: &MemberSource| -> Result<SkyMap> {
+    // a member's map A and, for pairs, map B
+    let load = |source: &MemberSource| -> Result<(SkyMap, Option<SkyMap>)> {
         match (source, &recipe, &sky_sht) {
-            (MemberSource::File(p), _, _) => Ok(read_map(p, &args.column)?.0),
-            (MemberSource::Simulation(i), Some(r), Some(sht)) => r.realise(sht, *i),
+            (MemberSource::File(p), _, _) => Ok((read_map(p, &args.column)?.0, None)),
+            (MemberSource::FilePair(a, b), _, _) => Ok((
+                read_map(a, &args.column)?.0,
+                Some(read_map(b, &args.second_column)?.0),
+            )),
+            (MemberSource::Simulation(i), Some(r), Some(sht)) => match &pair_recipe {
+                None => Ok((r.realise(sht, *i)?, None)),
+                Some(p) => {
+                    let noise = p.noise_sigma.or(r.noise_sigma);
+                    let (a, b) = r.realise_pair(sht, *i, p.correlation, noise)?;
+                    Ok((a, Some(b)))
+                }
+            },
             _ => Err(Error::Setting("a simulated member without a recipe".into())),
         }
     };
     // the pixelization and footprint, from the first member
-    let first = load(&members[0])?;
+    let (first, _) = load(&members[0])?;
     let pix = first.pixelization();
     let footprint = ensemble_footprint(&args.mask, pix, recipe.is_none().then_some(&first))?;
     let em = EnsembleMeasurer::new(pix, footprint, settings, args.cl_bin_width)?;
-    let labels = em.labels();
+    let labels = if is_pair {
+        em.pair_labels()
+    } else {
+        em.labels()
+    };
     let mask_sum = match &args.mask.mask {
         Some(p) => Some(file_checksum(p)?),
         None => None,
     };
+    let mut settings_json = serde_json::json!({
+        "measurement": settings,
+        "sampling": format!("{:?}", settings.sampling),
+        "cells": em.measurer.plan().cell_layout().describe(),
+        "tile_pixels": em.measurer.plan().tile_pixels(),
+        "nside": pix.nside(),
+        "ordering": pix.ordering(),
+        "column": args.column.to_string(),
+        "mask": args.mask.mask.as_ref().map(|p| p.display().to_string()),
+        "mask_sha256": mask_sum,
+        "taper": format!("{:?}", args.mask.taper),
+        "taper_arcmin": args.mask.taper_arcmin,
+        "cl_bin_width": args.cl_bin_width,
+        "recipe": recipe_file,
+        "label_scales_arcmin": labels.iter().map(|l| l.scale_arcmin).collect::<Vec<_>>(),
+    });
+    if is_pair {
+        // (absent for single maps, so that their job identities stay as they were)
+        if let Some(o) = settings_json.as_object_mut() {
+            o.insert("pair".into(), serde_json::Value::Bool(true));
+            if recipe.is_none() {
+                o.insert(
+                    "second_column".into(),
+                    serde_json::Value::String(args.second_column.to_string()),
+                );
+            }
+        }
+    }
     let description = EnsembleDescription {
         program_version: env!("CARGO_PKG_VERSION").to_string(),
         members: members.clone(),
         labels: labels.iter().map(|l| l.name.clone()).collect(),
-        settings: serde_json::json!({
-            "measurement": settings,
-            "sampling": format!("{:?}", settings.sampling),
-            "cells": em.measurer.plan().cell_layout().describe(),
-            "tile_pixels": em.measurer.plan().tile_pixels(),
-            "nside": pix.nside(),
-            "ordering": pix.ordering(),
-            "column": args.column.to_string(),
-            "mask": args.mask.mask.as_ref().map(|p| p.display().to_string()),
-            "mask_sha256": mask_sum,
-            "taper": format!("{:?}", args.mask.taper),
-            "taper_arcmin": args.mask.taper_arcmin,
-            "cl_bin_width": args.cl_bin_width,
-            "recipe": recipe_file,
-            "label_scales_arcmin": labels.iter().map(|l| l.scale_arcmin).collect::<Vec<_>>(),
-        }),
+        settings: settings_json,
     };
     let job = EnsembleJob::create_or_open(&args.output_dir, description)?;
     let report = job.run(
         shard,
         |_, source| {
-            let map = load(source)?;
-            if map.nside() != pix.nside() {
-                return Err(Error::Mismatch(format!(
-                    "{source}: NSIDE {} differs from the ensemble's {}",
-                    map.nside(),
-                    pix.nside()
-                )));
+            let (map, second) = load(source)?;
+            for (which, m) in
+                std::iter::once(("", &map)).chain(second.iter().map(|b| ("map B of ", b)))
+            {
+                if m.nside() != pix.nside() {
+                    return Err(Error::Mismatch(format!(
+                        "{which}{source}: NSIDE {} differs from the ensemble's {}",
+                        m.nside(),
+                        pix.nside()
+                    )));
+                }
+                super::inputs::check_same_coordsys(
+                    ("the first map", first.coordsys.as_deref()),
+                    (&format!("{which}{source}"), m.coordsys.as_deref()),
+                    args.mask.allow_coordsys_mismatch,
+                )?;
+                if !matches!(source, MemberSource::Simulation(_)) {
+                    super::inputs::check_measurable(m, None, &format!("{which}{source}"))?;
+                }
             }
-            super::inputs::check_same_coordsys(
-                ("the first map", first.coordsys.as_deref()),
-                (&source.to_string(), map.coordsys.as_deref()),
-                args.mask.allow_coordsys_mismatch,
-            )?;
-            if matches!(source, MemberSource::File(_)) {
-                super::inputs::check_measurable(&map, None, &source.to_string())?;
+            match &second {
+                None => em.measure(&map),
+                Some(b) => em.measure_pair(&map, b),
             }
-            em.measure(&map)
         },
         !args.quiet,
     )?;
@@ -347,6 +518,23 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
             "when every shard is done: planisphere merge {}",
             args.output_dir.display()
         );
+    }
+    Ok(())
+}
+
+/// Refuses a pair recipe whose correlation or noise cannot be realised.
+fn check_pair_recipe(p: &PairRecipe) -> Result<()> {
+    if !(p.correlation.is_finite() && (-1.0..=1.0).contains(&p.correlation)) {
+        return Err(Error::Setting(format!(
+            "recipe pair.correlation must lie in [-1, 1], got {}",
+            crate::error::compact(p.correlation)
+        )));
+    }
+    if let Some(s) = p.noise_sigma.filter(|s| !(s.is_finite() && *s >= 0.0)) {
+        return Err(Error::Setting(format!(
+            "recipe pair.noise_sigma must be >= 0, got {}",
+            crate::error::compact(s)
+        )));
     }
     Ok(())
 }

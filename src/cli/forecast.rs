@@ -6,7 +6,8 @@ use super::output::{write_bytes, write_json};
 use crate::ensemble::{settings_difference, EnsembleJob, MergedTable};
 use crate::error::{Error, Result};
 pub use crate::forecast::named_sets::{
-    forecast_document, forecast_named_sets, forecast_sets, ForecastResult, STATISTIC_SETS,
+    forecast_document, forecast_named_sets, forecast_sets, pair_statistic_sets, ForecastResult,
+    PAIR_STATISTIC_SETS, STATISTIC_SETS,
 };
 use crate::forecast::{ColumnLabel, DerivativeEnsembles, Ensemble, ScaleCut};
 use std::path::{Path, PathBuf};
@@ -123,7 +124,7 @@ fn check_distinct_parameters(list: &[(String, f64, PathBuf, PathBuf)]) -> Result
 
 /// Settings that may differ between the ensembles of one forecast: what is simulated or read
 /// (the recipe, the map files' column) and the mask's file name (its SHA-256 is compared).
-const SETTINGS_FREE_ACROSS_ENSEMBLES: [&str; 3] = ["recipe", "column", "mask"];
+const SETTINGS_FREE_ACROSS_ENSEMBLES: [&str; 4] = ["recipe", "column", "second_column", "mask"];
 
 /// Refuses an ensemble measured differently from the fiducial one (sampling, tiles, scales,
 /// mask, bins, ...), naming the first setting that differs.
@@ -131,6 +132,22 @@ fn check_same_measurement(
     fiducial: (&Path, &MergedTable),
     other: (&Path, &MergedTable),
 ) -> Result<()> {
+    let kind = |t: &MergedTable| {
+        if t.description.is_pair() {
+            "pairs of maps"
+        } else {
+            "single maps"
+        }
+    };
+    if fiducial.1.description.is_pair() != other.1.description.is_pair() {
+        return Err(Error::Mismatch(format!(
+            "{} holds {} but the fiducial ensemble {} holds {}: a forecast needs one kind of ensemble throughout",
+            other.0.display(),
+            kind(other.1),
+            fiducial.0.display(),
+            kind(fiducial.1)
+        )));
+    }
     let strip = |t: &MergedTable| {
         let mut v = t.description.settings.clone();
         if let Some(o) = v.as_object_mut() {
@@ -212,7 +229,12 @@ pub fn run(args: &ForecastArgs) -> Result<()> {
     let derivatives = load_derivatives(&list, args.paired, (fiducial_dir, &fiducial_table))?;
     let names: Vec<String> = derivatives.iter().map(|d| d.parameter.clone()).collect();
     let fiducial_values = parse_fiducial_values(&args.fiducial_value, &names)?;
-    let result = forecast_sets(&fiducial, &derivatives, cut.as_ref())?;
+    let result = forecast_sets(
+        &fiducial,
+        &derivatives,
+        cut.as_ref(),
+        fiducial_table.description.is_pair(),
+    )?;
     warn_failed_sets(&result.comparison)?;
     let settings = serde_json::json!({
         "fiducial": fiducial_dir.display().to_string(),
@@ -403,7 +425,8 @@ fn run_plan(args: &ForecastArgs, path: &Path) -> Result<()> {
         )?;
         for cut in &plan.scale_cuts {
             let tag = format!("{}; {}", case.label, cut.text());
-            let mut result = forecast_sets(&fiducial, &derivatives, cut.cut()?.as_ref())
+            let pairs = fiducial_table.description.is_pair();
+            let mut result = forecast_sets(&fiducial, &derivatives, cut.cut()?.as_ref(), pairs)
                 .map_err(|e| Error::Data(format!("case '{}', {}: {e}", case.label, cut.text())))?;
             text.push_str(&format!("\n[{tag}]\n{}", result.comparison.to_text()));
             let part = result.comparison.to_csv();

@@ -181,6 +181,7 @@ pub fn command_files(command: &super::Command) -> Result<CommandFiles> {
         }
         Command::Ensemble(a) => {
             f.input("--map-list", a.map_list.as_deref())
+                .input("--second-map-list", a.second_map_list.as_deref())
                 .input("--simulate", a.simulate.as_deref())
                 .input("--mask", a.mask.mask.as_deref())
                 .input("--settings", a.options.settings.as_deref())

@@ -26,19 +26,78 @@ pub const STATISTIC_SETS: &[(&str, &[&str])] = &[
     ("bispectrum", &["bispectrum."]),
 ];
 
+/// The statistic families of ensembles of map pairs: name, prefixes of each map's own columns
+/// (after `a.` or `b.`), prefixes of the cross columns (after `cross.`). Each family gives the
+/// sets `NAME [A]`, `NAME [B]`, `NAME [cross]` and `NAME [A+B+cross]` (jointly, one covariance
+/// of all three); a family without cross columns gives `[A]`, `[B]` and `[A+B]`. The cross
+/// part of a scattering family is the cross band powers (the second moment both maps share)
+/// with the envelope terms of the same orders.
+pub const PAIR_STATISTIC_SETS: &[(&str, &[&str], &[&str])] = &[
+    ("power spectrum (pseudo-C_l)", &["cl."], &["cl."]),
+    ("tile power spectrum", &["tile_power."], &[]),
+    ("band powers", &["full.bandpower_"], &["cross_bandpower_"]),
+    (
+        "scattering order 1",
+        &["full.S1_"],
+        &["cross_bandpower_", "cross_envelope1_"],
+    ),
+    (
+        "scattering orders 1+2",
+        &["full.S1_", "full.S2_"],
+        &["cross_bandpower_", "cross_envelope1_", "cross_envelope2_"],
+    ),
+    (
+        "orientation-harmonic summary",
+        &[
+            "summary.modulus_j",
+            "summary.intermittency_",
+            "summary.alignment_",
+        ],
+        &[],
+    ),
+    ("bispectrum", &["bispectrum."], &[]),
+];
+
+/// The statistic sets of a pair ensemble (see [`PAIR_STATISTIC_SETS`]), as names with column
+/// prefixes, in the order: each family's A, B, cross, joint.
+pub fn pair_statistic_sets() -> Vec<(String, Vec<String>)> {
+    let mut out = Vec::new();
+    for (name, own, cross) in PAIR_STATISTIC_SETS {
+        let with = |prefix: &str, list: &[&str]| -> Vec<String> {
+            list.iter().map(|p| format!("{prefix}{p}")).collect()
+        };
+        let (a, b, c) = (with("a.", own), with("b.", own), with("cross.", cross));
+        out.push((format!("{name} [A]"), a.clone()));
+        out.push((format!("{name} [B]"), b.clone()));
+        if c.is_empty() {
+            out.push((format!("{name} [A+B]"), [a, b].concat()));
+        } else {
+            out.push((format!("{name} [cross]"), c.clone()));
+            out.push((format!("{name} [A+B+cross]"), [a, b, c].concat()));
+        }
+    }
+    out
+}
+
 /// The forecast of every statistic set, with the parameter covariance for ellipses.
 pub struct ForecastResult {
     pub comparison: SetComparison,
     pub per_set: Vec<(String, Option<FisherForecast>)>,
 }
 
-/// Runs the comparison for given ensembles.
+/// Runs the comparison for given ensembles: the sets of [`STATISTIC_SETS`], or for ensembles
+/// of map pairs (`pairs`) those of [`pair_statistic_sets`].
 pub fn forecast_sets(
     fiducial: &Ensemble,
     derivatives: &[DerivativeEnsembles],
     cut: Option<&ScaleCut>,
+    pairs: bool,
 ) -> Result<ForecastResult> {
-    forecast_named_sets(fiducial, derivatives, cut, STATISTIC_SETS)
+    if pairs {
+        forecast_prefix_sets(fiducial, derivatives, cut, &pair_statistic_sets())
+    } else {
+        forecast_named_sets(fiducial, derivatives, cut, STATISTIC_SETS)
+    }
 }
 
 /// As [`forecast_sets`], for the given statistic sets (name, column-name prefixes).
@@ -48,10 +107,26 @@ pub fn forecast_named_sets(
     cut: Option<&ScaleCut>,
     named: &[(&str, &[&str])],
 ) -> Result<ForecastResult> {
+    let owned: Vec<(String, Vec<String>)> = named
+        .iter()
+        .map(|(n, p)| (n.to_string(), p.iter().map(|s| s.to_string()).collect()))
+        .collect();
+    forecast_prefix_sets(fiducial, derivatives, cut, &owned)
+}
+
+/// As [`forecast_named_sets`], with owned names and prefixes. A set none of whose prefixes
+/// matches a column (or that a scale cut empties) is left out.
+pub fn forecast_prefix_sets(
+    fiducial: &Ensemble,
+    derivatives: &[DerivativeEnsembles],
+    cut: Option<&ScaleCut>,
+    named: &[(String, Vec<String>)],
+) -> Result<ForecastResult> {
     let labels = fiducial.labels().to_vec();
     let mut sets = Vec::new();
     for (name, prefixes) in named {
-        let Ok(set) = StatisticSet::with_prefixes(name, &labels, prefixes) else {
+        let prefixes: Vec<&str> = prefixes.iter().map(String::as_str).collect();
+        let Ok(set) = StatisticSet::with_prefixes(name, &labels, &prefixes) else {
             continue; // the ensemble does not have this statistic
         };
         let set = match cut {

@@ -88,6 +88,21 @@ fn parse_csv(text: &str) -> std::result::Result<Vec<FlatComparisonRow>, String> 
         .iter()
         .map(|n| col(n))
         .collect::<std::result::Result<Vec<_>, _>>()?;
+    let optional = |cells: &[&str], name: &str| -> Option<String> {
+        header
+            .iter()
+            .position(|h| h.trim() == name)
+            .and_then(|i| cells.get(i).map(|c| c.to_string()))
+    };
+    let optional_number =
+        |cells: &[&str], name: &str, k: usize| -> std::result::Result<f64, String> {
+            match optional(cells, name).as_deref() {
+                None | Some("") => Ok(f64::NAN),
+                Some(c) => c
+                    .parse::<f64>()
+                    .map_err(|_| format!("row {}: bad {name} '{c}'", k + 1)),
+            }
+        };
     let mut rows = Vec::new();
     for (k, line) in lines.enumerate() {
         let cells: Vec<&str> = line.split(',').map(str::trim).collect();
@@ -122,6 +137,23 @@ fn parse_csv(text: &str) -> std::result::Result<Vec<FlatComparisonRow>, String> 
             bias_in_errors: num(11)?,
             bias_per_sky_scatter: num(12)?,
             trusted: cell(13).parse::<bool>().map_err(|_| bad(13))?,
+            // the reference's doubling check (absent from tables of older versions)
+            reference_pixels: optional(&cells, "reference_pixels")
+                .map(|c| {
+                    c.parse::<usize>()
+                        .map_err(|_| format!("row {}: bad reference_pixels '{c}'", k + 1))
+                })
+                .transpose()?
+                .unwrap_or(0),
+            reference_change: optional_number(&cells, "reference_change", k)?,
+            reference_change_in_errors: optional_number(&cells, "reference_change_in_errors", k)?,
+            reference_converged: match optional(&cells, "reference_converged").as_deref() {
+                None | Some("") => None,
+                Some(c) => Some(
+                    c.parse::<bool>()
+                        .map_err(|_| format!("row {}: bad reference_converged '{c}'", k + 1))?,
+                ),
+            },
         });
     }
     Ok(rows)
