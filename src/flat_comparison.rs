@@ -256,9 +256,15 @@ pub fn compare_flat(settings: &FlatComparisonSettings) -> Result<FlatComparison>
     let mut rows = Vec::new();
     let mut scales = Vec::new();
     for &n in &settings.tile_pixels {
+        // plane pixels of one map spacing, read directly, unless set: the comparison shows what
+        // the sampling and the projection do to every scale the map's grid reaches
         let ms = MeasurementSettings {
             tile_pixels: Some(n),
             bispectrum: false,
+            pixel_arcmin: settings
+                .measurement
+                .pixel_arcmin
+                .or(Some(pix.mean_spacing().to_degrees() * 60.0)),
             ..settings.measurement
         };
         let measurer = SphereMeasurer::new(pix, &full, ms)?;

@@ -98,14 +98,6 @@ pub fn run(args: &CompareFlatArgs) -> Result<()> {
             scales: args.scales,
             orientations: args.orientations,
             border_pixels: args.border_pixels,
-            // plane pixels of one map spacing, read directly: the comparison shows what the
-            // sampling and the projection do to every scale the map's grid reaches
-            pixel_arcmin: Some(
-                crate::Pixelization::new(args.nside, crate::Ordering::Ring)?
-                    .mean_spacing()
-                    .to_degrees()
-                    * 60.0,
-            ),
             ..MeasurementSettings::default()
         },
         seed: args.seed,
