@@ -222,7 +222,23 @@ pub fn taper_footprint(raw: Footprint, kind: TaperKind, width_arcmin: f64) -> Re
     if kind == TaperKind::None || width_arcmin == 0.0 || raw.f_sky() == 1.0 {
         return Ok(raw);
     }
-    apodize(&raw, kind, (width_arcmin / 60.0).to_radians())
+    let width = (width_arcmin / 60.0).to_radians();
+    if !raw.is_binary() {
+        return apodize(&raw, kind, width);
+    }
+    // as `apodize`, tapering the raw weights in place: one full-sky array fewer at the peak
+    let dist = distance_to_mask(&raw, width)?;
+    let pixelization = raw.pixelization();
+    let mut weights = raw.into_weights();
+    for (w, &d) in weights.iter_mut().zip(&dist) {
+        *w = if *w > 0.0 {
+            *w * taper(kind, d, width)
+        } else {
+            0.0
+        };
+    }
+    drop(dist);
+    Footprint::from_weights(pixelization, weights)
 }
 
 #[cfg(test)]

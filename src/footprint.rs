@@ -27,6 +27,11 @@ pub struct FootprintSummary {
 }
 
 impl Footprint {
+    /// The weights, giving up the footprint (no copy).
+    pub fn into_weights(self) -> Vec<f64> {
+        self.weights
+    }
+
     /// A footprint from weights in [0, 1]; bad values (UNSEEN, NaN) count as 0, ±inf is an
     /// error naming how many pixels hold it, anything else outside [0, 1] is an error naming
     /// the first offending pixel.
@@ -152,11 +157,15 @@ impl Footprint {
 
     /// The same footprint in another ordering.
     pub fn to_ordering(&self, ordering: Ordering) -> Result<Footprint> {
+        // one copy of the weights, never more (NSIDE 1024: 100 MB each)
+        if self.pixelization.ordering() == ordering {
+            return Ok(self.clone());
+        }
         let as_map = SkyMap::new(self.pixelization, self.weights.clone())?;
         let moved = as_map.to_ordering(ordering)?;
         Ok(Footprint {
             pixelization: moved.pixelization(),
-            weights: moved.values().to_vec(),
+            weights: moved.into_values(),
         })
     }
 

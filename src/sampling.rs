@@ -109,7 +109,7 @@ impl TileGrids {
 /// The fine-sampling factor s for plane pixels of size Δ on a map of mean spacing h:
 /// s = round(Δ/h), at least 1. With s > 1 the field is read on a grid s times finer than the
 /// plane grid (about one read per map pixel) and band-limited to the plane grid
-/// ([`BandLimit`]), so no map power above the plane grid's Nyquist frequency aliases into
+/// (the private `BandLimit`: Fourier cropping), so no map power above the plane grid's Nyquist frequency aliases into
 /// the finest wavelet scales; with s = 1 each plane pixel reads the map directly.
 ///
 /// ```
@@ -377,7 +377,7 @@ impl<'a> TileSampler<'a> {
 
     /// The fine-sampling factor s of this sampler: 1 when the plane pixels read the map
     /// directly, s > 1 when the field is read on a grid s times finer and band-limited to the
-    /// plane grid ([`fine_sampling_factor`], [`BandLimit`]).
+    /// plane grid ([`fine_sampling_factor`]; Fourier cropping).
     pub fn fine_sampling(&self) -> usize {
         self.band_limit.as_ref().map_or(1, |b| b.factor)
     }

@@ -104,6 +104,11 @@ impl SkyMap {
         &self.values
     }
 
+    /// The pixel values, giving up the map (no copy).
+    pub fn into_values(self) -> Vec<f64> {
+        self.values
+    }
+
     /// Which pixels are valid.
     pub fn valid(&self) -> &[bool] {
         &self.valid
