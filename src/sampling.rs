@@ -281,6 +281,26 @@ impl BandLimit {
     }
 }
 
+/// The colatitude θ_i of every HEALPix ring i = 1 … 4N − 1 of one NSIDE (Górski et al. 2005,
+/// eqs. 4–5, as [`ring_theta`]), computed once, so the ring interpolations read them instead of
+/// evaluating an arcsine or arccosine per ring and read (4 NSIDE values: 256 kB at NSIDE 8192).
+struct RingColatitudes(Vec<f64>);
+
+impl RingColatitudes {
+    fn new(nside: u32) -> Self {
+        let n = nside as u64;
+        RingColatitudes(
+            (0..4 * n)
+                .map(|i| if i == 0 { 0.0 } else { ring_theta(n, i) })
+                .collect(),
+        )
+    }
+
+    fn of(&self, i: u64) -> f64 {
+        self.0[i as usize]
+    }
+}
+
 /// Reads a map and a mask onto the tiles of a plan, one tile at a time.
 pub struct TileSampler<'a> {
     plan: &'a TilingPlan,
@@ -293,6 +313,8 @@ pub struct TileSampler<'a> {
     solid_angle: Vec<f64>,
     /// The band limit when the plane pixels are coarser than the map (see [`BandLimit`]).
     band_limit: Option<BandLimit>,
+    /// The map's ring colatitudes.
+    rings: RingColatitudes,
 }
 
 impl<'a> TileSampler<'a> {
@@ -367,6 +389,7 @@ impl<'a> TileSampler<'a> {
             method,
             solid_angle,
             band_limit,
+            rings: RingColatitudes::new(map_pix.nside()),
         })
     }
 
@@ -430,7 +453,8 @@ impl<'a> TileSampler<'a> {
         let values = self.map.values();
         let valid = self.map.valid();
         let mut sum = 0.0;
-        for (p, wt) in ring_cubic_interpolation_weights(pix.nside(), dir) {
+        let theta_of = |i| self.rings.of(i);
+        for (p, wt) in ring_cubic_interpolation_weights_with(pix.nside(), dir, theta_of) {
             if wt != 0.0 {
                 let i = ring_to_map(pix, p)? as usize;
                 if !valid[i] {
@@ -445,6 +469,7 @@ impl<'a> TileSampler<'a> {
     /// The field and mask values at direction `dir` by the sampling method.
     fn read_at(&self, dir: crate::pixelization::Direction) -> Result<(f64, f64)> {
         let pix = self.map.pixelization();
+        let theta_of = |i| self.rings.of(i);
         let values = self.map.values();
         let valid = self.map.valid();
         Ok(match self.method {
@@ -472,7 +497,7 @@ impl<'a> TileSampler<'a> {
             }
             SamplingMethod::RingLinear => {
                 let (mut sum, mut wsum, mut msum) = (0.0, 0.0, 0.0);
-                for (p, wt) in ring_interpolation_weights(pix.nside(), dir) {
+                for (p, wt) in ring_interpolation_weights_with(pix.nside(), dir, theta_of) {
                     let i = ring_to_map(pix, p)? as usize;
                     if wt > 0.0 && valid[i] {
                         sum += wt * values[i];
@@ -484,7 +509,7 @@ impl<'a> TileSampler<'a> {
                 (f, msum)
             }
             SamplingMethod::RingCubic => {
-                let linear = ring_interpolation_weights(pix.nside(), dir);
+                let linear = ring_interpolation_weights_with(pix.nside(), dir, theta_of);
                 let (mut lsum, mut lw, mut msum) = (0.0, 0.0, 0.0);
                 for &(p, wt) in &linear {
                     let i = ring_to_map(pix, p)? as usize;
@@ -496,7 +521,7 @@ impl<'a> TileSampler<'a> {
                 }
                 let mut sum = 0.0;
                 let mut all_valid = true;
-                for (p, wt) in ring_cubic_interpolation_weights(pix.nside(), dir) {
+                for (p, wt) in ring_cubic_interpolation_weights_with(pix.nside(), dir, theta_of) {
                     if wt != 0.0 {
                         let i = ring_to_map(pix, p)? as usize;
                         if !valid[i] {
@@ -957,6 +982,16 @@ pub fn ring_interpolation_weights(
     nside: u32,
     dir: crate::pixelization::Direction,
 ) -> [(u64, f64); 4] {
+    ring_interpolation_weights_with(nside, dir, |i| ring_theta(nside as u64, i))
+}
+
+/// [`ring_interpolation_weights`] with the rings' colatitudes from `theta_of(i)` (the same
+/// values, e.g. read from a [`RingColatitudes`] table).
+fn ring_interpolation_weights_with(
+    nside: u32,
+    dir: crate::pixelization::Direction,
+    theta_of: impl Fn(u64) -> f64,
+) -> [(u64, f64); 4] {
     let n = nside as u64;
     let theta = dir.theta.clamp(0.0, std::f64::consts::PI);
     let phi = dir.lon();
@@ -969,7 +1004,7 @@ pub fn ring_interpolation_weights(
         let w = t - j;
         let j1 = (j as i64).rem_euclid(count as i64) as u64;
         let j2 = (j1 + 1) % count;
-        ([(first + j1, 1.0 - w), (first + j2, w)], ring_theta(n, i))
+        ([(first + j1, 1.0 - w), (first + j2, w)], theta_of(i))
     };
     let npix = 12 * n * n;
     if above == 0 {
@@ -1034,19 +1069,31 @@ pub fn ring_cubic_interpolation_weights(
     nside: u32,
     dir: crate::pixelization::Direction,
 ) -> [(u64, f64); 16] {
+    ring_cubic_interpolation_weights_with(nside, dir, |i| ring_theta(nside as u64, i))
+}
+
+/// [`ring_cubic_interpolation_weights`] with the rings' colatitudes from `theta_of(i)`.
+fn ring_cubic_interpolation_weights_with(
+    nside: u32,
+    dir: crate::pixelization::Direction,
+    theta_of: impl Fn(u64) -> f64 + Copy,
+) -> [(u64, f64); 16] {
     let n = nside as u64;
     let theta = dir.theta.clamp(0.0, std::f64::consts::PI);
     let phi = dir.lon();
     let above = ring_above(n, theta);
     let mut out = [(0u64, 0.0f64); 16];
     if above < 2 || above + 2 > 4 * n - 1 {
-        for (slot, pair) in out.iter_mut().zip(ring_interpolation_weights(nside, dir)) {
+        for (slot, pair) in out
+            .iter_mut()
+            .zip(ring_interpolation_weights_with(nside, dir, theta_of))
+        {
             *slot = pair;
         }
         return out;
     }
     let rings = [above - 1, above, above + 1, above + 2];
-    let thetas = rings.map(|i| ring_theta(n, i));
+    let thetas = rings.map(theta_of);
     let across = lagrange4(thetas, theta);
     for (r, (&i, &wr)) in rings.iter().zip(&across).enumerate() {
         let (first, count, shifted) = ring_info(n, i);
