@@ -261,11 +261,7 @@ pub fn compare_flat(settings: &FlatComparisonSettings) -> Result<FlatComparison>
         let ms = MeasurementSettings {
             tile_pixels: Some(n),
             bispectrum: false,
-            pixel_arcmin: settings
-                .measurement
-                .pixel_arcmin
-                .or(Some(pix.mean_spacing().to_degrees() * 60.0)),
-            ..settings.measurement
+            ..settings.measurement.at_map_spacing_unless_set(pix)
         };
         let measurer = SphereMeasurer::new(pix, &full, ms)?;
         let summary = measurer.summary();

@@ -189,6 +189,18 @@ impl MeasurementSettings {
         }
     }
 
+    /// These settings with plane pixels of one map spacing of `map`, read directly, where
+    /// `pixel_arcmin` is left to the default: for paths that need the direct sampling (the
+    /// synthesis gradient) or every scale the map's grid reaches (the flat-sky comparison).
+    pub fn at_map_spacing_unless_set(self, map: Pixelization) -> Self {
+        MeasurementSettings {
+            pixel_arcmin: self
+                .pixel_arcmin
+                .or(Some(map.mean_spacing().to_degrees() * 60.0)),
+            ..self
+        }
+    }
+
     /// The tiling plan these settings give for maps of pixelization `map` on `footprint`: the
     /// one plan `measure`, `ensemble`, `synthesize` and `tiles` use.
     pub fn plan(&self, map: Pixelization, footprint: &Footprint) -> Result<TilingPlan> {

@@ -446,24 +446,32 @@ impl<'a> TileSampler<'a> {
     /// The field value at direction `dir`, equal to `read_at(dir)?.0` bit for bit: ring-cubic
     /// sampling computes the linear weights only where a cubic neighbour is bad.
     fn read_field_at(&self, dir: crate::pixelization::Direction) -> Result<f64> {
-        if self.method != SamplingMethod::RingCubic {
-            return Ok(self.read_at(dir)?.0);
+        if self.method == SamplingMethod::RingCubic {
+            if let Some(f) = self.ring_cubic_value(dir)? {
+                return Ok(f);
+            }
         }
+        Ok(self.read_at(dir)?.0)
+    }
+
+    /// The ring-cubic interpolated field at `dir`, or `None` when one of its sixteen pixels is
+    /// bad (the caller then falls back to the linear value over the valid ones).
+    fn ring_cubic_value(&self, dir: crate::pixelization::Direction) -> Result<Option<f64>> {
         let pix = self.map.pixelization();
         let values = self.map.values();
         let valid = self.map.valid();
         let mut sum = 0.0;
-        let theta_of = |i| self.rings.of(i);
-        for (p, wt) in ring_cubic_interpolation_weights_with(pix.nside(), dir, theta_of) {
+        for (p, wt) in ring_cubic_interpolation_weights_with(pix.nside(), dir, |i| self.rings.of(i))
+        {
             if wt != 0.0 {
                 let i = ring_to_map(pix, p)? as usize;
                 if !valid[i] {
-                    return Ok(self.read_at(dir)?.0);
+                    return Ok(None);
                 }
                 sum += wt * values[i];
             }
         }
-        Ok(sum)
+        Ok(Some(sum))
     }
 
     /// The field and mask values at direction `dir` by the sampling method.
@@ -519,25 +527,11 @@ impl<'a> TileSampler<'a> {
                         msum += wt * self.mask[i];
                     }
                 }
-                let mut sum = 0.0;
-                let mut all_valid = true;
-                for (p, wt) in ring_cubic_interpolation_weights_with(pix.nside(), dir, theta_of) {
-                    if wt != 0.0 {
-                        let i = ring_to_map(pix, p)? as usize;
-                        if !valid[i] {
-                            all_valid = false;
-                            break;
-                        }
-                        sum += wt * values[i];
-                    }
-                }
                 // next to bad pixels, fall back to the linear value over the valid ones
-                let f = if all_valid {
-                    sum
-                } else if lw > 0.0 {
-                    lsum / lw
-                } else {
-                    0.0
+                let f = match self.ring_cubic_value(dir)? {
+                    Some(f) => f,
+                    None if lw > 0.0 => lsum / lw,
+                    None => 0.0,
                 };
                 (f, msum)
             }

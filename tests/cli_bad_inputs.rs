@@ -3,12 +3,14 @@
 //! (complete or partial) left behind and every file already there unchanged (contents, links,
 //! FIFOs and devices compared before and after each run).
 
+mod common;
+
 use planisphere::fits_io::{write_footprint, write_map, WriteOptions};
 use planisphere::{Footprint, Ordering, Pixelization, SkyMap};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
-use std::time::{Duration, Instant};
+use std::time::Duration;
 
 /// How long a refused command may run before the harness calls it a hang (generous: the
 /// machine is shared; a refusal takes well under a second).
@@ -208,25 +210,13 @@ fn run_program_with(
     for (k, v) in env {
         command.env(k, v);
     }
-    let mut child = command
+    let child = command
         .stdin(Stdio::null())
         .stdout(Stdio::null())
         .stderr(Stdio::piped())
         .spawn()
         .unwrap();
-    let start = Instant::now();
-    loop {
-        if child.try_wait().unwrap().is_some() {
-            break;
-        }
-        if start.elapsed() > HANG_LIMIT {
-            let _ = child.kill();
-            let _ = child.wait();
-            panic!("{args:?}: still running after {HANG_LIMIT:?} (a hang)");
-        }
-        std::thread::sleep(Duration::from_millis(20));
-    }
-    let out = child.wait_with_output().unwrap();
+    let out = common::wait_or_fail_as_hang(child, args, HANG_LIMIT);
     (
         out.status.code(),
         String::from_utf8_lossy(&out.stderr).into_owned(),

@@ -6,12 +6,14 @@
 //! (Expectations: the rules of `src/ensemble.rs`; exit code 2 and one-line errors are the
 //! program's own convention for bad input.)
 
+mod common;
+
 use planisphere::fits_io::{write_map, WriteOptions};
 use planisphere::{Ordering, Pixelization, SkyMap};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::process::{Child, Command, Stdio};
-use std::time::{Duration, Instant};
+use std::time::Duration;
 
 /// How long one run may take before the harness calls it a hang (generous: the machine is
 /// shared; these runs take about a second). Not a speed check.
@@ -32,17 +34,8 @@ fn spawn(args: &[String]) -> Child {
 }
 
 /// Waits for a child with the hang limit; returns (exit code, stdout, stderr).
-fn finish(mut child: Child, args: &[String]) -> (Option<i32>, String, String) {
-    let start = Instant::now();
-    while child.try_wait().unwrap().is_none() {
-        if start.elapsed() > HANG_LIMIT {
-            let _ = child.kill();
-            let _ = child.wait();
-            panic!("{args:?}: still running after {HANG_LIMIT:?} (a hang)");
-        }
-        std::thread::sleep(Duration::from_millis(20));
-    }
-    let out = child.wait_with_output().unwrap();
+fn finish(child: Child, args: &[String]) -> (Option<i32>, String, String) {
+    let out = common::wait_or_fail_as_hang(child, args, HANG_LIMIT);
     (
         out.status.code(),
         String::from_utf8_lossy(&out.stdout).into_owned(),

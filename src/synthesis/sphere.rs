@@ -200,10 +200,7 @@ impl SphereSynthesis {
             )));
         }
         let footprint = footprint.to_ordering(map.ordering())?;
-        let mut measurement = measurement;
-        if measurement.pixel_arcmin.is_none() {
-            measurement.pixel_arcmin = Some(map.mean_spacing().to_degrees() * 60.0);
-        }
+        let measurement = measurement.at_map_spacing_unless_set(map);
         let summary = match settings.statistics {
             StatisticChoice::Full => None,
             StatisticChoice::Summary => Some(SummaryMap::new(

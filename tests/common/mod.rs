@@ -96,3 +96,22 @@ pub fn holey_taper(n: usize, border: f64, holes: &[(f64, f64, f64)], width: f64)
         })
         .collect()
 }
+
+/// Waits for `child` (started with `args`), killing it and failing the test as a hang when it
+/// runs longer than `limit`; returns its output.
+pub fn wait_or_fail_as_hang(
+    mut child: std::process::Child,
+    args: &[String],
+    limit: std::time::Duration,
+) -> std::process::Output {
+    let start = std::time::Instant::now();
+    while child.try_wait().unwrap().is_none() {
+        if start.elapsed() > limit {
+            let _ = child.kill();
+            let _ = child.wait();
+            panic!("{args:?}: still running after {limit:?} (a hang)");
+        }
+        std::thread::sleep(std::time::Duration::from_millis(20));
+    }
+    child.wait_with_output().unwrap()
+}
