@@ -9,10 +9,10 @@
 //! surveys. Run: `cargo bench --bench measure_per_pixel`.
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
-use planisphere::apodization::{apodize, TaperKind};
-use planisphere::measurement::{MeasurementSettings, SphereMeasurer};
-use planisphere::skies::SkyRecipe;
-use planisphere::spectrum::AngularSpectrum;
+use planisphere::harmonics::spectrum::AngularSpectrum;
+use planisphere::measure::measurement::{MeasurementSettings, SphereMeasurer};
+use planisphere::simulate::skies::SkyRecipe;
+use planisphere::sky::apodization::{apodize, TaperKind};
 use planisphere::{Direction, Footprint, Ordering, Pixelization};
 use std::hint::black_box;
 

@@ -1,8 +1,8 @@
 //! One 128 × 128 tile, J = 6, L = 4, full coefficient set (periodic and masked).
 
 use criterion::{criterion_group, criterion_main, Criterion};
-use planisphere::flat::gaussian_random_field;
-use planisphere::transform::{ScatteringEngine, TileView};
+use planisphere::measure::flat::gaussian_random_field;
+use planisphere::scattering::transform::{ScatteringEngine, TileView};
 use std::hint::black_box;
 
 fn tile(c: &mut Criterion) {

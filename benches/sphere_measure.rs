@@ -4,13 +4,13 @@
 //! The full-footprint timing table is `examples/sphere_measure_timing.rs`.
 
 use criterion::{criterion_group, criterion_main, Criterion};
-use planisphere::apodization::{apodize, TaperKind};
-use planisphere::measurement::{border_window, MeasurementSettings, SphereMeasurer};
-use planisphere::sampling::TileSampler;
-use planisphere::scenario::MockFootprint;
-use planisphere::skies::SkyRecipe;
-use planisphere::spectrum::AngularSpectrum;
-use planisphere::transform::TileView;
+use planisphere::harmonics::spectrum::AngularSpectrum;
+use planisphere::measure::measurement::{border_window, MeasurementSettings, SphereMeasurer};
+use planisphere::scattering::transform::TileView;
+use planisphere::simulate::scenario::MockFootprint;
+use planisphere::simulate::skies::SkyRecipe;
+use planisphere::sky::apodization::{apodize, TaperKind};
+use planisphere::tiles::sampling::TileSampler;
 use planisphere::{Direction, Footprint, Ordering, Pixelization};
 use std::hint::black_box;
 

@@ -3,9 +3,9 @@
 //!
 //! cargo run --release --example back_projection_picture [OUT_DIR]
 
-use planisphere::plotting::SkyPicture;
-use planisphere::sampling::{assemble, SamplingMethod, TileSampler};
-use planisphere::tiling::{TilingPlan, TilingSettings};
+use planisphere::figures::plotting::SkyPicture;
+use planisphere::tiles::sampling::{assemble, SamplingMethod, TileSampler};
+use planisphere::tiles::tiling::{TilingPlan, TilingSettings};
 use planisphere::{Direction, Footprint, Ordering, Pixelization, SkyMap};
 use std::path::PathBuf;
 

@@ -2,8 +2,8 @@
 //! two single-map transforms of the same tile, 128 × 128, J = 6, L = 4, with a masked taper.
 //! Run: cargo run --release --example cross_timing
 
-use planisphere::flat::gaussian_random_field;
-use planisphere::transform::{ScatteringEngine, TilePairView, TileView};
+use planisphere::measure::flat::gaussian_random_field;
+use planisphere::scattering::transform::{ScatteringEngine, TilePairView, TileView};
 use std::time::Instant;
 
 fn main() -> planisphere::Result<()> {

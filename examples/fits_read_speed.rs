@@ -3,7 +3,7 @@
 //! `cargo run --release --example fits_read_speed [MAX_NSIDE]` (default 2048; NSIDE 2048 needs
 //! about 1.5 GB of memory and 0.6 GB of temporary disk space).
 
-use planisphere::fits_io::{read_map, write_map, ColumnChoice, ValuePrecision, WriteOptions};
+use planisphere::io::fits_io::{read_map, write_map, ColumnChoice, ValuePrecision, WriteOptions};
 use planisphere::{Ordering, Pixelization, SkyMap};
 use std::time::Instant;
 

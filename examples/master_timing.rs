@@ -5,14 +5,14 @@
 //!
 //! `cargo run --release --example master_timing [NSIDE]`
 
-use planisphere::harmonics::HarmonicTransform;
-use planisphere::mode_coupling::{
+use planisphere::harmonics::mode_coupling::{
     healpix_pixel_window, weight_spectrum, BinWeighting, Binning, CouplingMatrix,
     MasterDeconvolution,
 };
-use planisphere::skies::SkyRecipe;
-use planisphere::spectra::{master_spectrum, pseudo_spectrum, MasterSettings};
-use planisphere::spectrum::AngularSpectrum;
+use planisphere::harmonics::spectra::{master_spectrum, pseudo_spectrum, MasterSettings};
+use planisphere::harmonics::spectrum::AngularSpectrum;
+use planisphere::harmonics::HarmonicTransform;
+use planisphere::simulate::skies::SkyRecipe;
 use planisphere::{Direction, Footprint, Ordering, Pixelization};
 use std::time::Instant;
 

@@ -62,12 +62,14 @@ fn main() {
 #[cfg(unix)]
 mod speed_limit {
     use num_complex::Complex64;
-    use planisphere::fits_io::{read_map, write_footprint, write_map, ColumnChoice, WriteOptions};
-    use planisphere::measurement::{MeasurementSettings, SphereMeasurer};
-    use planisphere::sampling::{SamplingMethod, TileSampler};
-    use planisphere::skies::SkyRecipe;
-    use planisphere::spectrum::AngularSpectrum;
-    use planisphere::transform::{FftCount, ScatteringEngine};
+    use planisphere::harmonics::spectrum::AngularSpectrum;
+    use planisphere::io::fits_io::{
+        read_map, write_footprint, write_map, ColumnChoice, WriteOptions,
+    };
+    use planisphere::measure::measurement::{MeasurementSettings, SphereMeasurer};
+    use planisphere::scattering::transform::{FftCount, ScatteringEngine};
+    use planisphere::simulate::skies::SkyRecipe;
+    use planisphere::tiles::sampling::{SamplingMethod, TileSampler};
     use planisphere::{Footprint, Ordering, Pixelization};
     use realfft::RealFftPlanner;
     use rustfft::FftPlanner;
@@ -161,7 +163,7 @@ mod speed_limit {
     /// The survey mask: |b| > 20° less 40 holes of 0.5°–2.5° (seed 11), within −70° < δ < +10°
     /// (`scenario::benchmark_survey_mask`).
     fn survey_mask(pix: Pixelization) -> Res<Footprint> {
-        planisphere::scenario::benchmark_survey_mask(pix).map_err(|e| e.to_string())
+        planisphere::simulate::scenario::benchmark_survey_mask(pix).map_err(|e| e.to_string())
     }
 
     fn make_inputs(nside: u32, dir: &Path) -> Res<Inputs> {
@@ -461,7 +463,7 @@ mod speed_limit {
         let (map, _) =
             read_map(&inputs.map, &ColumnChoice::default()).map_err(|e| e.to_string())?;
         let (mask, _) =
-            planisphere::fits_io::read_footprint(&inputs.mask, &ColumnChoice::default())
+            planisphere::io::fits_io::read_footprint(&inputs.mask, &ColumnChoice::default())
                 .map_err(|e| e.to_string())?;
         let settings = MeasurementSettings {
             scales: o.scales,

@@ -6,8 +6,8 @@
 //!
 //! Run: RAYON_NUM_THREADS=1 cargo run --release --example per_scale_timing [reps]
 
-use planisphere::flat::gaussian_random_field;
-use planisphere::transform::{FftCount, ScatteringEngine, TileView, TransformSettings};
+use planisphere::measure::flat::gaussian_random_field;
+use planisphere::scattering::transform::{FftCount, ScatteringEngine, TileView, TransformSettings};
 use std::time::Instant;
 
 fn census_text(census: &[FftCount]) -> String {

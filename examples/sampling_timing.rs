@@ -4,8 +4,8 @@
 //! cargo run --release --example sampling_timing [COARSE_NSIDE ...]
 //! Each case runs in its own child process so that its peak memory (VmHWM) is its own.
 
-use planisphere::sampling::{SamplingMethod, TileSampler};
-use planisphere::tiling::{TilingPlan, TilingSettings};
+use planisphere::tiles::sampling::{SamplingMethod, TileSampler};
+use planisphere::tiles::tiling::{TilingPlan, TilingSettings};
 use planisphere::{Direction, Footprint, Ordering, Pixelization, SkyMap};
 use std::time::Instant;
 

@@ -4,7 +4,7 @@
 //!
 //! cargo run --release --example sampling_transfer [NSIDE]
 
-use planisphere::sampling::{plane_wave_transfer, SamplingMethod};
+use planisphere::tiles::sampling::{plane_wave_transfer, SamplingMethod};
 use planisphere::{Direction, Ordering, Pixelization};
 
 fn main() -> planisphere::Result<()> {

@@ -1,8 +1,8 @@
 //! Time one 128 × 128 tile (J = 6, L = 4, full coefficient set) and the share spent in FFT calls.
 //! Run: cargo run --release --example scattering_profile
 
-use planisphere::flat::gaussian_random_field;
-use planisphere::transform::{ScatteringEngine, TileView};
+use planisphere::measure::flat::gaussian_random_field;
+use planisphere::scattering::transform::{ScatteringEngine, TileView};
 use std::time::Instant;
 
 fn main() -> planisphere::Result<()> {
@@ -68,7 +68,7 @@ fn main() -> planisphere::Result<()> {
         n,
         6,
         4,
-        planisphere::transform::TransformSettings {
+        planisphere::scattering::transform::TransformSettings {
             fourier_cropping: false,
             ..Default::default()
         },

@@ -13,8 +13,8 @@
 #[path = "../tests/sphere_support/mod.rs"]
 mod support;
 
-use planisphere::measurement::MeasurementSettings;
-use planisphere::sampling::SamplingMethod;
+use planisphere::measure::measurement::MeasurementSettings;
+use planisphere::tiles::sampling::SamplingMethod;
 
 fn main() -> planisphere::Result<()> {
     let mut args = std::env::args().skip(1);

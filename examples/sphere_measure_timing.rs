@@ -11,13 +11,13 @@
 //!
 //! cargo run --release --example sphere_measure_timing [NSIDE] [LONGITUDE SPAN°]
 
-use planisphere::apodization::{apodize, TaperKind};
-use planisphere::measurement::{border_window, MeasurementSettings, SphereMeasurer};
-use planisphere::sampling::TileSampler;
-use planisphere::scenario::MockFootprint;
-use planisphere::skies::SkyRecipe;
-use planisphere::spectrum::AngularSpectrum;
-use planisphere::transform::TileView;
+use planisphere::harmonics::spectrum::AngularSpectrum;
+use planisphere::measure::measurement::{border_window, MeasurementSettings, SphereMeasurer};
+use planisphere::scattering::transform::TileView;
+use planisphere::simulate::scenario::MockFootprint;
+use planisphere::simulate::skies::SkyRecipe;
+use planisphere::sky::apodization::{apodize, TaperKind};
+use planisphere::tiles::sampling::TileSampler;
 use planisphere::{Ordering, Pixelization};
 use std::time::{Duration, Instant};
 

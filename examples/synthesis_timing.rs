@@ -6,11 +6,11 @@
 //! counts.
 //! Run: `cargo run --release --example synthesis_timing [flat|sphere]` (both by default).
 
-use planisphere::apodization::{apodize, TaperKind};
-use planisphere::flat::gaussian_random_field;
-use planisphere::measurement::{MeasurementSettings, SphereMeasurer};
-use planisphere::skies::SkyRecipe;
-use planisphere::spectrum::AngularSpectrum;
+use planisphere::harmonics::spectrum::AngularSpectrum;
+use planisphere::measure::flat::gaussian_random_field;
+use planisphere::measure::measurement::{MeasurementSettings, SphereMeasurer};
+use planisphere::simulate::skies::SkyRecipe;
+use planisphere::sky::apodization::{apodize, TaperKind};
 use planisphere::synthesis::sphere::SphereSynthesis;
 use planisphere::synthesis::{FlatSynthesis, StartField, SynthesisSettings};
 use planisphere::{Direction, Footprint, Ordering, Pixelization};

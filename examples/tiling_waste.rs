@@ -6,8 +6,8 @@
 //!
 //!     cargo run --release --example tiling_waste [NSIDE ...]
 
-use planisphere::measurement::MeasurementSettings;
-use planisphere::scenario::benchmark_survey_mask;
+use planisphere::measure::measurement::MeasurementSettings;
+use planisphere::simulate::scenario::benchmark_survey_mask;
 use planisphere::{Footprint, Pixelization};
 
 /// The footprint of the example and of the speed benchmark (the map in galactic coordinates).

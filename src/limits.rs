@@ -16,6 +16,8 @@
 //!   L ≤ ξ₀·n/2 = 3πn/8 (our rule, from the filter definitions in `filters.rs`).
 //! * Iterations: the harmonic analysis iterations and L-BFGS iterations are capped at numbers
 //!   far beyond where they stop improving anything.
+//! * Tile sizes: n = 2^k·m with m ∈ {1, 3, 5, 7, 9} ([`is_tile_size`]), the sizes the tiling
+//!   picks and the scattering engine accepts.
 
 use crate::error::{Error, Result};
 
@@ -170,4 +172,22 @@ pub fn flat_synthesis_bytes(size: usize, scales: usize, orientations: usize) -> 
 pub fn measurement_bytes(nside: u32, maps: usize) -> f64 {
     let npix = 12.0 * (nside as f64).powi(2);
     npix * (17.0 * maps as f64 + 32.0)
+}
+
+/// Is n a tile size the engine accepts: n = 2^k·m with m ∈ {1, 3, 5, 7, 9}, at least 8, and
+/// k ≥ 4 when m > 1 (so that the Fourier-cropped grids n/2^d stay even)? FFTs of these sizes
+/// factor into radices 2, 3, 5 and 7 (mixed-radix Cooley–Tukey, common practice).
+///
+/// ```
+/// use planisphere::limits::is_tile_size;
+/// assert!(is_tile_size(256) && is_tile_size(288) && is_tile_size(448));
+/// assert!(!is_tile_size(100) && !is_tile_size(264) && !is_tile_size(24));
+/// ```
+pub fn is_tile_size(n: usize) -> bool {
+    if n < 8 {
+        return false;
+    }
+    let k = n.trailing_zeros();
+    let m = n >> k;
+    m == 1 || (matches!(m, 3 | 5 | 7 | 9) && k >= 4)
 }

@@ -1,7 +1,7 @@
 //! Apodization: distances to the mask against a brute-force search, and taper profiles against
 //! the formulas of Grain, Tristram & Stompor 2009 (PRD 79, 123515, eqs. 31–32).
 
-use planisphere::apodization::{apodize, distance_to_mask, taper, TaperKind};
+use planisphere::sky::apodization::{apodize, distance_to_mask, taper, TaperKind};
 use planisphere::{Direction, Footprint, Ordering, Pixelization};
 
 /// A footprint with two circular holes and a latitude cut.

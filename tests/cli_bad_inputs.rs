@@ -5,7 +5,7 @@
 
 mod common;
 
-use planisphere::fits_io::{write_footprint, write_map, WriteOptions};
+use planisphere::io::fits_io::{write_footprint, write_map, WriteOptions};
 use planisphere::{Footprint, Ordering, Pixelization, SkyMap};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -957,9 +957,9 @@ fn an_output_through_a_symbolic_link_rewrites_the_target_and_keeps_the_link() {
         .unwrap()
         .file_type()
         .is_symlink());
-    let (map, _) = planisphere::fits_io::read_map(
+    let (map, _) = planisphere::io::fits_io::read_map(
         Path::new(&target),
-        &planisphere::fits_io::ColumnChoice::default(),
+        &planisphere::io::fits_io::ColumnChoice::default(),
     )
     .unwrap();
     assert_eq!(map.nside(), 8);

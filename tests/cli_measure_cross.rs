@@ -3,7 +3,7 @@
 //! powers (identity of the definition in src/transform.rs, after re-ordering per Górski et al.
 //! 2005), and the first map's statistics equal those of `measure` alone on the same footprint.
 
-use planisphere::fits_io::{write_map, WriteOptions};
+use planisphere::io::fits_io::{write_map, WriteOptions};
 use planisphere::{Ordering, Pixelization, SkyMap};
 use serde_json::Value;
 use std::process::Command;

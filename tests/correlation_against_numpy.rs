@@ -3,7 +3,7 @@
 
 mod common;
 
-use planisphere::correlation::{
+use planisphere::harmonics::correlation::{
     correlation_from_spectrum, gauss_legendre, lognormal_gaussian_spectrum,
     spectrum_from_correlation,
 };

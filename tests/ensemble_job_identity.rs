@@ -8,7 +8,7 @@
 
 mod common;
 
-use planisphere::fits_io::{write_map, WriteOptions};
+use planisphere::io::fits_io::{write_map, WriteOptions};
 use planisphere::{Ordering, Pixelization, SkyMap};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};

@@ -4,10 +4,10 @@
 //! equals numpy's from the written tables, and information adds.
 
 use ndarray::Array2;
-use planisphere::fits_io::{write_map, WriteOptions};
+use planisphere::harmonics::spectrum::AngularSpectrum;
 use planisphere::harmonics::HarmonicTransform;
-use planisphere::skies::SkyRecipe;
-use planisphere::spectrum::AngularSpectrum;
+use planisphere::io::fits_io::{write_map, WriteOptions};
+use planisphere::simulate::skies::SkyRecipe;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 use std::sync::OnceLock;

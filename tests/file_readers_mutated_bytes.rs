@@ -6,7 +6,7 @@
 
 use planisphere::cli::ensemble::RecipeFile;
 use planisphere::cli::measure::MeasureOptions;
-use planisphere::fits_io::{read_map, write_map, ColumnChoice, WriteOptions};
+use planisphere::io::fits_io::{read_map, write_map, ColumnChoice, WriteOptions};
 use planisphere::{Ordering, Pixelization, SkyMap};
 use proptest::prelude::*;
 use proptest::test_runner::{Config, RngSeed, TestRunner};
@@ -109,7 +109,9 @@ fn fits_map_reader_never_panics_on_mutated_files() {
     assert!(ok.get() > 0, "no mutated file was readable");
 }
 
-fn settings_of(path: &Path) -> planisphere::Result<planisphere::measurement::MeasurementSettings> {
+fn settings_of(
+    path: &Path,
+) -> planisphere::Result<planisphere::measure::measurement::MeasurementSettings> {
     MeasureOptions {
         settings: Some(path.to_path_buf()),
         ..MeasureOptions::default()

@@ -5,7 +5,7 @@
 mod fits_support;
 
 use fits_support::*;
-use planisphere::fits_io::{read_footprint, read_map, ColumnChoice, HealpixFitsReader};
+use planisphere::io::fits_io::{read_footprint, read_map, ColumnChoice, HealpixFitsReader};
 use planisphere::{Footprint, Ordering};
 use std::path::Path;
 

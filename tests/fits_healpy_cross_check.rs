@@ -7,7 +7,7 @@
 //! The default test checks that today's writer still produces exactly the committed files and
 //! that healpy's recorded verdict is "identical" for every one of them.
 
-use planisphere::fits_io::{
+use planisphere::io::fits_io::{
     read_footprint, read_map, write_footprint, write_maps, ColumnChoice, PixelIndexWidth,
     ValuePrecision, WriteLayout, WriteOptions,
 };

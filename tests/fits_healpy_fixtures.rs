@@ -3,7 +3,9 @@
 //! Fixtures and expected values: reference-values/fits_reference.py (healpy 1.20.1 write_map /
 //! read_map, astropy 8.0.2 for the two edited headers), output in reference-values/fits/.
 
-use planisphere::fits_io::{read_footprint, read_map, ColumnChoice, Coverage, HealpixFitsReader};
+use planisphere::io::fits_io::{
+    read_footprint, read_map, ColumnChoice, Coverage, HealpixFitsReader,
+};
 use planisphere::Ordering;
 use serde_json::Value;
 use std::path::{Path, PathBuf};

@@ -3,11 +3,11 @@
 mod fits_support;
 
 use fits_support::*;
-use planisphere::fits_io::{
+use planisphere::io::fits_io::{
     read_footprint, read_map, write_footprint, write_map, write_maps, ColumnChoice, Coverage,
     HealpixFitsReader, PixelIndexWidth, ValuePrecision, WriteLayout, WriteOptions,
 };
-use planisphere::skymap::UNSEEN;
+use planisphere::sky::skymap::UNSEEN;
 use planisphere::{Footprint, Ordering, Pixelization, SkyMap};
 
 /// A map with a smooth pattern and every seventh pixel invalid (NaN or UNSEEN alternately).

@@ -8,8 +8,8 @@
 mod common;
 
 use ndarray::Array2;
-use planisphere::flat::{masked_coefficients, FlatMap};
-use planisphere::transform::{ScatteringEngine, TransformSettings};
+use planisphere::measure::flat::{masked_coefficients, FlatMap};
+use planisphere::scattering::transform::{ScatteringEngine, TransformSettings};
 use serde_json::Value;
 use std::path::{Path, PathBuf};
 use std::process::Command;
@@ -151,8 +151,8 @@ fn periodic_flat_measure_with_default_fourier_cropping_is_within_1e_3_of_numpy()
 }
 
 /// The "kind" a coefficient record carries (band powers carry none).
-fn kind_name(kind: planisphere::statistics::CoefficientKind) -> Option<&'static str> {
-    use planisphere::statistics::CoefficientKind::*;
+fn kind_name(kind: planisphere::scattering::statistics::CoefficientKind) -> Option<&'static str> {
+    use planisphere::scattering::statistics::CoefficientKind::*;
     match kind {
         Mean => Some("mean"),
         Variance => Some("variance"),

@@ -12,11 +12,11 @@
 //! standard errors; that a windowed estimate picks up power from scales beyond the window is
 //! common practice (leakage through the window function).
 
-use planisphere::flat_comparison::{
+use planisphere::harmonics::spectrum::AngularSpectrum;
+use planisphere::measure::flat_comparison::{
     automatic_reference_pixels, compare_flat, FlatComparisonSettings, CONVERGENCE_ERRORS,
 };
-use planisphere::measurement::MeasurementSettings;
-use planisphere::spectrum::AngularSpectrum;
+use planisphere::measure::measurement::MeasurementSettings;
 
 fn settings(reference_pixels: Option<usize>) -> FlatComparisonSettings {
     let cl = (0..192)

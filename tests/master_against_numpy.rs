@@ -7,12 +7,12 @@ mod common;
 
 use common::{read_json, reference_path};
 use ndarray::{Array1, Array2};
-use planisphere::harmonics::HarmonicTransform;
-use planisphere::mode_coupling::{
+use planisphere::harmonics::mode_coupling::{
     healpix_pixel_window, BinWeighting, Binning, CouplingMatrix, MasterDeconvolution,
 };
-use planisphere::spectra::{master_spectrum, pseudo_spectrum, MasterSettings};
-use planisphere::wigner::{wigner_3j_squared_zero_m, wigner_3j_zero_m};
+use planisphere::harmonics::spectra::{master_spectrum, pseudo_spectrum, MasterSettings};
+use planisphere::harmonics::wigner::{wigner_3j_squared_zero_m, wigner_3j_zero_m};
+use planisphere::harmonics::HarmonicTransform;
 use planisphere::{Footprint, Ordering, Pixelization, SkyMap};
 
 fn npy1(name: &str) -> Vec<f64> {

@@ -8,11 +8,11 @@
 //! C_ℓ = (ℓ+5)^−2.5 the flat-C_ℓ assumption alone moves the expectation of the ℓ 14–25 bin by
 //! −12%; DEVELOPERS.md, spectra section.)
 
-use planisphere::apodization::{apodize, TaperKind};
-use planisphere::mode_coupling::{BinWeighting, Binning};
-use planisphere::skies::SkyRecipe;
-use planisphere::spectra::{master_spectrum, pseudo_spectrum, MasterSettings};
-use planisphere::spectrum::AngularSpectrum;
+use planisphere::harmonics::mode_coupling::{BinWeighting, Binning};
+use planisphere::harmonics::spectra::{master_spectrum, pseudo_spectrum, MasterSettings};
+use planisphere::harmonics::spectrum::AngularSpectrum;
+use planisphere::simulate::skies::SkyRecipe;
+use planisphere::sky::apodization::{apodize, TaperKind};
 use planisphere::{Direction, Footprint, Ordering, Pixelization};
 
 /// A latitude cut |b| < 15° and three holes of 5°–8°, tapered with a 3° C2 ramp.

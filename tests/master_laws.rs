@@ -3,13 +3,15 @@
 //! sky couples nothing, results do not depend on the thread count, and the `spectra` command
 //! reports the library's w2 and MASTER band powers side by side.
 
-use planisphere::apodization::{apodize, TaperKind};
-use planisphere::fits_io::{write_footprint, write_map, WriteOptions};
+use planisphere::harmonics::mode_coupling::{
+    healpix_pixel_window, BinWeighting, Binning, CouplingMatrix,
+};
+use planisphere::harmonics::spectra::{master_spectrum, pseudo_spectrum, MasterSettings};
+use planisphere::harmonics::spectrum::AngularSpectrum;
 use planisphere::harmonics::HarmonicTransform;
-use planisphere::mode_coupling::{healpix_pixel_window, BinWeighting, Binning, CouplingMatrix};
-use planisphere::skies::SkyRecipe;
-use planisphere::spectra::{master_spectrum, pseudo_spectrum, MasterSettings};
-use planisphere::spectrum::AngularSpectrum;
+use planisphere::io::fits_io::{write_footprint, write_map, WriteOptions};
+use planisphere::simulate::skies::SkyRecipe;
+use planisphere::sky::apodization::{apodize, TaperKind};
 use planisphere::{Direction, Footprint, Ordering, Pixelization};
 use std::process::Command;
 

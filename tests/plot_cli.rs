@@ -1,9 +1,9 @@
 //! `planisphere plot` run as a user runs it: the built binary writes PNG and SVG pictures from
 //! files made here, and refuses bad inputs with one line and exit code 2, leaving no file.
 
-use planisphere::fits_io::{write_map, WriteOptions};
-use planisphere::skies::SkyRecipe;
-use planisphere::spectrum::AngularSpectrum;
+use planisphere::harmonics::spectrum::AngularSpectrum;
+use planisphere::io::fits_io::{write_map, WriteOptions};
+use planisphere::simulate::skies::SkyRecipe;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 

@@ -9,11 +9,11 @@ use planisphere::cli::plot::{
     MeasurementFile, TileStatistic, ELLIPSE_POINTS,
 };
 use planisphere::forecast::{ConfidenceEllipse, ConfidenceLevel};
-use planisphere::measurement::{MapStatistics, MeasurementSettings, SphereMeasurer};
-use planisphere::pooling::pooled_coefficients;
-use planisphere::skies::SkyRecipe;
-use planisphere::spectrum::AngularSpectrum;
-use planisphere::statistics::SummaryKind;
+use planisphere::harmonics::spectrum::AngularSpectrum;
+use planisphere::measure::measurement::{MapStatistics, MeasurementSettings, SphereMeasurer};
+use planisphere::scattering::pooling::pooled_coefficients;
+use planisphere::scattering::statistics::SummaryKind;
+use planisphere::simulate::skies::SkyRecipe;
 use planisphere::{Footprint, SkyMap};
 
 const FORECAST: &str = r#"{
@@ -207,7 +207,7 @@ fn tile_values_are_each_tiles_own_pooled_coefficients() {
 
 #[test]
 fn weighting_tile_values_by_tile_weights_gives_the_pooled_coefficient() {
-    // c = Σ_t Σ W h / Σ_t Σ W (crate::pooling): the per-tile values v_t = s_t / w_t weighted by
+    // c = Σ_t Σ W h / Σ_t Σ W (crate::scattering::pooling): the per-tile values v_t = s_t / w_t weighted by
     // w_t recombine to the pooled coefficient of the whole footprint.
     let (_, measurer, stats) = measured();
     let tiles: Vec<usize> = (0..measurer.plan().len()).collect();
@@ -312,7 +312,7 @@ fn measurement_file() -> (SphereMeasurer, MapStatistics, MeasurementFile) {
 
 #[test]
 fn summary_recomputed_from_the_file_matches_the_measured_summary() {
-    // The summary (crate::statistics) is computed from the full set in memory; the plot
+    // The summary (crate::scattering::statistics) is computed from the full set in memory; the plot
     // recomputes it from the coefficient records of the JSON file.
     let (_, stats, file) = measurement_file();
     let from_file = file_summary(&file);

@@ -1,7 +1,7 @@
 //! Gnomonic (TAN) projection checked against worked values, astropy 8.0.2's TAN WCS and the
 //! scale factors of the projection.
 
-use planisphere::projection::{
+use planisphere::tiles::projection::{
     angular_distance, area_scale, radial_scale, rectangle_solid_angle, solid_angle_density,
     tangential_scale, Gnomonic,
 };

@@ -1,9 +1,9 @@
 //! Sampling a smooth field onto tiles, and back, within the bilinear interpolation error bound;
 //! solid-angle weights; bad pixels; determinism across thread counts.
 
-use planisphere::projection::{rectangle_solid_angle, solid_angle_density};
-use planisphere::sampling::{assemble, back_project, SamplingMethod, TileSampler};
-use planisphere::tiling::{TilingPlan, TilingSettings};
+use planisphere::tiles::projection::{rectangle_solid_angle, solid_angle_density};
+use planisphere::tiles::sampling::{assemble, back_project, SamplingMethod, TileSampler};
+use planisphere::tiles::tiling::{TilingPlan, TilingSettings};
 use planisphere::{Direction, Footprint, Ordering, Pixelization, SkyMap};
 
 /// f(v) = a·v + vᵀBv on the unit sphere, B symmetric traceless: a sum of real spherical

@@ -3,8 +3,8 @@
 //! scatter-add adjoint satisfies ⟨S m, y⟩ = ⟨m, Sᵀ y⟩ (definition of the adjoint; common
 //! practice for checking hand-written adjoints).
 
-use planisphere::sampling::{SamplingMethod, TileSampler};
-use planisphere::tiling::{TilingPlan, TilingSettings};
+use planisphere::tiles::sampling::{SamplingMethod, TileSampler};
+use planisphere::tiles::tiling::{TilingPlan, TilingSettings};
 use planisphere::{Direction, Footprint, Ordering, Pixelization, SkyMap};
 
 const METHODS: [SamplingMethod; 4] = [
@@ -35,7 +35,7 @@ fn cap(pix: Pixelization) -> Footprint {
 
 fn plan_for(map: &SkyMap, fp: &Footprint) -> TilingPlan {
     let settings = TilingSettings {
-        cells: planisphere::tiling::CellLayout::LatitudeBands,
+        cells: planisphere::tiles::tiling::CellLayout::LatitudeBands,
         tile_pixels: Some(32),
         pixel_size: None,
         halo: 8,

@@ -1,7 +1,7 @@
 //! Ring-wise interpolation weights checked against healpy 1.20.1's get_interp_weights
 //! (reference-values/ring_interpolation_reference.py).
 
-use planisphere::sampling::ring_interpolation_weights;
+use planisphere::tiles::sampling::ring_interpolation_weights;
 use planisphere::Direction;
 use std::collections::BTreeMap;
 

@@ -1,8 +1,8 @@
 //! Transfer of power by sampling a map onto tile grids, per wavelength and direction (fast
 //! version of `examples/sampling_transfer.rs`).
 
-use planisphere::projection::Gnomonic;
-use planisphere::sampling::{plane_wave_transfer, SamplingMethod};
+use planisphere::tiles::projection::Gnomonic;
+use planisphere::tiles::sampling::{plane_wave_transfer, SamplingMethod};
 use planisphere::{Direction, Ordering, Pixelization};
 
 fn sinc(x: f64) -> f64 {
@@ -41,7 +41,7 @@ fn transfer(
     lambda: f64,
     angle_deg: f64,
     method: SamplingMethod,
-) -> planisphere::sampling::PlaneWaveTransfer {
+) -> planisphere::tiles::sampling::PlaneWaveTransfer {
     plane_wave_transfer(
         pix,
         center,

@@ -12,9 +12,11 @@
 mod common;
 
 use common::holey_taper;
-use planisphere::flat::gaussian_random_field;
-use planisphere::pooling::pooled_coefficients;
-use planisphere::transform::{ScatteringEngine, TilePairView, TileView, TransformSettings};
+use planisphere::measure::flat::gaussian_random_field;
+use planisphere::scattering::pooling::pooled_coefficients;
+use planisphere::scattering::transform::{
+    ScatteringEngine, TilePairView, TileView, TransformSettings,
+};
 
 const SEEDS: u64 = 4;
 

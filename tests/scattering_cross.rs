@@ -5,10 +5,12 @@
 mod common;
 
 use common::holey_taper;
-use planisphere::flat::{gaussian_random_field, wavenumber};
-use planisphere::pooling::{pooled_coefficients, pooled_cross_coefficients};
-use planisphere::statistics::{CoefficientSet, CrossCoefficientSet, CrossDirection, CrossKind};
-use planisphere::transform::{ScatteringEngine, TilePairView, TileView};
+use planisphere::measure::flat::{gaussian_random_field, wavenumber};
+use planisphere::scattering::pooling::{pooled_coefficients, pooled_cross_coefficients};
+use planisphere::scattering::statistics::{
+    CoefficientSet, CrossCoefficientSet, CrossDirection, CrossKind,
+};
+use planisphere::scattering::transform::{ScatteringEngine, TilePairView, TileView};
 
 const N: usize = 64;
 const J: usize = 4;
@@ -414,7 +416,7 @@ fn periodic_cross_statistics_match_a_direct_implementation_of_their_definitions(
         n,
         jn,
         L,
-        planisphere::transform::TransformSettings {
+        planisphere::scattering::transform::TransformSettings {
             fourier_cropping: false,
             ..Default::default()
         },

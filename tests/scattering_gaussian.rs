@@ -1,8 +1,8 @@
 //! Gaussian-field properties of the first-order coefficients.
 
-use planisphere::filters::MorletBank;
-use planisphere::flat::{gaussian_random_field, periodic_coefficients, wavenumber};
-use planisphere::transform::{ScatteringEngine, TransformSettings};
+use planisphere::measure::flat::{gaussian_random_field, periodic_coefficients, wavenumber};
+use planisphere::scattering::filters::MorletBank;
+use planisphere::scattering::transform::{ScatteringEngine, TransformSettings};
 
 const N: usize = 128;
 const PIXEL: f64 = 2.0e-4; // radians

@@ -6,9 +6,11 @@
 mod common;
 
 use common::holey_taper;
-use planisphere::flat::{gaussian_random_field, masked_coefficients, periodic_coefficients};
-use planisphere::statistics::{CoefficientKind, CoefficientSet};
-use planisphere::transform::ScatteringEngine;
+use planisphere::measure::flat::{
+    gaussian_random_field, masked_coefficients, periodic_coefficients,
+};
+use planisphere::scattering::statistics::{CoefficientKind, CoefficientSet};
+use planisphere::scattering::transform::ScatteringEngine;
 
 const N: usize = 128;
 const J: usize = 4;

@@ -1,9 +1,9 @@
 //! Results do not depend on the number of threads (crate rule: fixed-order reduction), and
 //! combining tiles equals pooling their sums by hand (definition of weighted pooling).
 
-use planisphere::flat::gaussian_random_field;
-use planisphere::pooling::{combine_tiles, pooled_coefficients};
-use planisphere::transform::{ScatteringEngine, TileView};
+use planisphere::measure::flat::gaussian_random_field;
+use planisphere::scattering::pooling::{combine_tiles, pooled_coefficients};
+use planisphere::scattering::transform::{ScatteringEngine, TileView};
 
 #[test]
 fn tile_results_are_bitwise_identical_for_one_and_two_threads() {
@@ -86,8 +86,8 @@ fn tile_results_are_bitwise_identical_for_one_and_two_threads() {
     assert!((c1.coefficients[label].value - num / den).abs() <= 1e-12 * (num / den).abs());
     assert_eq!(
         engine.labels()[label],
-        planisphere::statistics::CoefficientLabel::order_one(
-            planisphere::statistics::CoefficientKind::FirstOrder,
+        planisphere::scattering::statistics::CoefficientLabel::order_one(
+            planisphere::scattering::statistics::CoefficientKind::FirstOrder,
             2,
             1
         )
@@ -99,5 +99,5 @@ fn engine_is_shareable_across_threads() {
     // Compile-time property: one engine is shared by reference across rayon workers.
     fn shareable<T: Send + Sync>() {}
     shareable::<ScatteringEngine>();
-    shareable::<planisphere::filters::MorletBank>();
+    shareable::<planisphere::scattering::filters::MorletBank>();
 }

@@ -2,9 +2,9 @@
 //! reference-values/scattering_reference.py (pixel-space Morlet filters wrapped on the torus,
 //! numpy FFT circular convolution, numpy 2.4.6), on periodic 32 × 32 maps.
 
-use planisphere::flat::{periodic_coefficients, FlatMap};
-use planisphere::statistics::CoefficientSet;
-use planisphere::transform::{ScatteringEngine, TransformSettings};
+use planisphere::measure::flat::{periodic_coefficients, FlatMap};
+use planisphere::scattering::statistics::CoefficientSet;
+use planisphere::scattering::transform::{ScatteringEngine, TransformSettings};
 use serde_json::Value;
 
 fn load(name: &str) -> Value {
@@ -127,7 +127,7 @@ fn littlewood_paley_range_matches_numpy_reference() {
         let n = reference["size"].as_u64().unwrap() as usize;
         let j_count = reference["scales"].as_u64().unwrap() as usize;
         let l_count = reference["orientations"].as_u64().unwrap() as usize;
-        let bank = planisphere::filters::MorletBank::new(n, j_count, l_count).unwrap();
+        let bank = planisphere::scattering::filters::MorletBank::new(n, j_count, l_count).unwrap();
         let range = bank.littlewood_paley_range();
         let (lo, hi) = (
             num(&reference["littlewood_paley_min"]),

@@ -1,9 +1,9 @@
 //! Bad settings and unusable data give a clear one-line error, never a panic (common practice;
 //! crate rule for user input).
 
-use planisphere::flat::FlatMap;
-use planisphere::pooling::{combine_tiles, pooled_coefficients};
-use planisphere::transform::{ScatteringEngine, TileView};
+use planisphere::measure::flat::FlatMap;
+use planisphere::scattering::pooling::{combine_tiles, pooled_coefficients};
+use planisphere::scattering::transform::{ScatteringEngine, TileView};
 use planisphere::Error;
 
 fn setting_message(r: planisphere::Result<ScatteringEngine>) -> String {
@@ -39,7 +39,7 @@ fn zero_orientations_or_zero_scales_are_rejected() {
 #[test]
 fn tile_size_outside_the_mixed_radix_sizes_is_rejected() {
     // accepted: 2^k·m with m = 1, 3, 5, 7, 9 (k ≥ 4 when m > 1), so that the cropped grids
-    // n/2^d stay even (filters::is_tile_size)
+    // n/2^d stay even (limits::is_tile_size)
     for n in [44, 24, 100, 11] {
         assert_eq!(
             setting_message(ScatteringEngine::new(n, 2, 4)),

@@ -1,8 +1,8 @@
 //! The labelled full set and the layout of the orientation-harmonic summary (definitions in
 //! src/statistics.rs).
 
-use planisphere::flat::{gaussian_random_field, periodic_coefficients};
-use planisphere::transform::ScatteringEngine;
+use planisphere::measure::flat::{gaussian_random_field, periodic_coefficients};
+use planisphere::scattering::transform::ScatteringEngine;
 
 const N: usize = 128;
 

@@ -3,9 +3,9 @@
 //! the sampled filter bank onto itself, ψ_{l+L/2} = ψ_l rotated by 90°; the modulus is
 //! homogeneous of degree 1).
 
-use planisphere::flat::{gaussian_random_field, periodic_coefficients, FlatMap};
-use planisphere::statistics::{CoefficientKind, CoefficientSet};
-use planisphere::transform::{ScatteringEngine, TransformSettings};
+use planisphere::measure::flat::{gaussian_random_field, periodic_coefficients, FlatMap};
+use planisphere::scattering::statistics::{CoefficientKind, CoefficientSet};
+use planisphere::scattering::transform::{ScatteringEngine, TransformSettings};
 
 const N: usize = 64;
 const J: usize = 5;

@@ -2,10 +2,10 @@
 //! A85): for κ = e^y − κ0, ⟨κ⟩ = 0, σ_κ² = κ0²(e^{σ_y²} − 1), skewness 3r + r³ with r = σ_κ/κ0;
 //! their spectra against the target; and reproducibility.
 
-use planisphere::correlation::lognormal_gaussian_spectrum;
+use planisphere::harmonics::correlation::lognormal_gaussian_spectrum;
+use planisphere::harmonics::spectrum::AngularSpectrum;
 use planisphere::harmonics::HarmonicTransform;
-use planisphere::skies::SkyRecipe;
-use planisphere::spectrum::AngularSpectrum;
+use planisphere::simulate::skies::SkyRecipe;
 use std::f64::consts::PI;
 
 fn moments(v: &[f64]) -> (f64, f64, f64) {

@@ -91,7 +91,7 @@ fn invalid_pixels_are_skipped_by_interpolation() {
     // all four bad: nothing to interpolate from
     let mut values = vec![1.0; pix.npix() as usize];
     for (p, _) in weights {
-        values[p as usize] = planisphere::skymap::UNSEEN;
+        values[p as usize] = planisphere::sky::skymap::UNSEEN;
     }
     let map = SkyMap::new(pix, values).unwrap();
     assert_eq!(map.interpolate(d).unwrap(), None);

@@ -2,10 +2,10 @@
 //! of Gaussian skies on a masked sky, within the errors of the estimator, well above the mask
 //! scale; the full-sky estimate is the plain a_ℓm power spectrum.
 
-use planisphere::apodization::{apodize, TaperKind};
-use planisphere::skies::SkyRecipe;
-use planisphere::spectra::{angular_spectrum, bin_spectrum};
-use planisphere::spectrum::AngularSpectrum;
+use planisphere::harmonics::spectra::{angular_spectrum, bin_spectrum};
+use planisphere::harmonics::spectrum::AngularSpectrum;
+use planisphere::simulate::skies::SkyRecipe;
+use planisphere::sky::apodization::{apodize, TaperKind};
 use planisphere::{Direction, Footprint, Ordering, Pixelization};
 
 fn survey_like(pix: Pixelization) -> Footprint {

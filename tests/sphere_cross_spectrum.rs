@@ -4,10 +4,10 @@
 
 mod sphere_support;
 
-use planisphere::flat::wavenumber;
-use planisphere::measurement::{MeasurementSettings, PairStatistics, SphereMeasurer};
-use planisphere::skies::SkyRecipe;
-use planisphere::statistics::CrossKind;
+use planisphere::measure::flat::wavenumber;
+use planisphere::measure::measurement::{MeasurementSettings, PairStatistics, SphereMeasurer};
+use planisphere::scattering::statistics::CrossKind;
+use planisphere::simulate::skies::SkyRecipe;
 use planisphere::SkyMap;
 
 const NSIDE: u32 = 64;

@@ -4,9 +4,9 @@
 
 mod sphere_support;
 
-use planisphere::measurement::{MeasurementSettings, SphereMeasurer};
-use planisphere::sampling::SamplingMethod;
-use planisphere::statistics::CoefficientKind;
+use planisphere::measure::measurement::{MeasurementSettings, SphereMeasurer};
+use planisphere::scattering::statistics::CoefficientKind;
+use planisphere::tiles::sampling::SamplingMethod;
 use planisphere::{Footprint, Ordering, Pixelization};
 
 #[test]
@@ -82,7 +82,7 @@ fn scales_below_the_sampling_limit_are_flagged_untrusted() {
     let nside = 64;
     let pix = Pixelization::new(nside, Ordering::Ring).unwrap();
     let footprint = Footprint::full_sky(pix);
-    let map = planisphere::scenario::synthetic_waves(pix, 20, 1);
+    let map = planisphere::simulate::scenario::synthetic_waves(pix, 20, 1);
     for (method, first) in [
         (SamplingMethod::Bilinear, 3),
         (SamplingMethod::RingCubic, 2),

@@ -3,10 +3,10 @@
 
 mod sphere_support;
 
-use planisphere::filters::MorletBank;
-use planisphere::flat::wavenumber;
-use planisphere::measurement::MeasurementSettings;
-use planisphere::statistics::CoefficientSet;
+use planisphere::measure::flat::wavenumber;
+use planisphere::measure::measurement::MeasurementSettings;
+use planisphere::scattering::filters::MorletBank;
+use planisphere::scattering::statistics::CoefficientSet;
 use planisphere::Footprint;
 
 const NSIDE: u32 = 64;

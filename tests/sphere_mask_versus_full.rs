@@ -5,9 +5,9 @@
 
 mod sphere_support;
 
-use planisphere::measurement::{MeasurementSettings, SphereMeasurer};
-use planisphere::skies::SkyRecipe;
-use planisphere::statistics::CoefficientSet;
+use planisphere::measure::measurement::{MeasurementSettings, SphereMeasurer};
+use planisphere::scattering::statistics::CoefficientSet;
+use planisphere::simulate::skies::SkyRecipe;
 use planisphere::{Footprint, Ordering, Pixelization};
 
 /// How the tiles are laid out: coarse HEALPix cells of one NSIDE for both footprints at one map

@@ -6,9 +6,9 @@
 
 mod sphere_support;
 
-use planisphere::measurement::{MeasurementSettings, SphereMeasurer};
-use planisphere::skies::SkyRecipe;
-use planisphere::statistics::CoefficientSet;
+use planisphere::measure::measurement::{MeasurementSettings, SphereMeasurer};
+use planisphere::scattering::statistics::CoefficientSet;
+use planisphere::simulate::skies::SkyRecipe;
 use planisphere::{Ordering, Pixelization};
 
 #[test]

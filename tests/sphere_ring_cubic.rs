@@ -1,7 +1,7 @@
 //! Ring-wise cubic sampling (our design, src/sampling.rs): partition of unity, fourth-order
 //! accuracy, and its power transfer on tile grids compared with the linear schemes.
 
-use planisphere::sampling::{
+use planisphere::tiles::sampling::{
     plane_wave_transfer, ring_cubic_interpolation_weights, ring_interpolation_weights,
     SamplingMethod,
 };

@@ -3,8 +3,8 @@
 
 mod sphere_support;
 
-use planisphere::measurement::{MeasurementSettings, SphereMeasurer};
-use planisphere::skies::SkyRecipe;
+use planisphere::measure::measurement::{MeasurementSettings, SphereMeasurer};
+use planisphere::simulate::skies::SkyRecipe;
 
 #[test]
 fn sphere_measurement_is_bitwise_identical_on_one_and_two_threads() {
@@ -37,7 +37,7 @@ fn sphere_measurement_is_bitwise_identical_on_one_and_two_threads() {
         .filter(|(x, y)| x.to_bits() != y.to_bits())
         .count();
     assert_eq!(differing, 0, "{differing} of {} values differ", a.len());
-    let flags = |s: &planisphere::measurement::MapStatistics| {
+    let flags = |s: &planisphere::measure::measurement::MapStatistics| {
         s.coefficients
             .coefficients
             .iter()

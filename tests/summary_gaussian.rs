@@ -6,10 +6,10 @@
 mod common;
 mod sphere_support;
 
-use planisphere::flat::{gaussian_random_field, periodic_coefficients, FlatMap};
-use planisphere::measurement::MeasurementSettings;
-use planisphere::statistics::{CoefficientSet, SummaryStatistic};
-use planisphere::transform::{ScatteringEngine, TransformSettings};
+use planisphere::measure::flat::{gaussian_random_field, periodic_coefficients, FlatMap};
+use planisphere::measure::measurement::MeasurementSettings;
+use planisphere::scattering::statistics::{CoefficientSet, SummaryStatistic};
+use planisphere::scattering::transform::{ScatteringEngine, TransformSettings};
 use rand::SeedableRng;
 use rand_distr::{Distribution, StandardNormal};
 use serde_json::Value;

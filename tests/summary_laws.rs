@@ -8,11 +8,11 @@
 //! translations (common practice); the adjoint is checked against central differences
 //! (definition of the derivative).
 
-use planisphere::flat::{gaussian_random_field, periodic_coefficients, FlatMap};
-use planisphere::statistics::{
+use planisphere::measure::flat::{gaussian_random_field, periodic_coefficients, FlatMap};
+use planisphere::scattering::statistics::{
     coefficient_labels, CoefficientSet, OrientationSummary, SummaryStatistic,
 };
-use planisphere::transform::{ScatteringEngine, TransformSettings};
+use planisphere::scattering::transform::{ScatteringEngine, TransformSettings};
 
 const N: usize = 64;
 const J: usize = 5;
@@ -118,7 +118,7 @@ fn shifted_by_one(set: &CoefficientSet) -> CoefficientSet {
         .zip(coefficient_labels(set.scale_count, ln))
     {
         let from = |l: Option<usize>| l.map(|l| (l + ln - 1) % ln);
-        let src = planisphere::statistics::CoefficientLabel {
+        let src = planisphere::scattering::statistics::CoefficientLabel {
             l1: from(label.l1),
             l2: from(label.l2),
             ..label

@@ -1,9 +1,9 @@
 //! The orientation-harmonic summary on textures of known geometry (design properties stated in
 //! src/statistics.rs; the fields are generated here).
 
-use planisphere::flat::{periodic_coefficients, FlatMap};
-use planisphere::statistics::SummaryStatistic;
-use planisphere::transform::ScatteringEngine;
+use planisphere::measure::flat::{periodic_coefficients, FlatMap};
+use planisphere::scattering::statistics::SummaryStatistic;
+use planisphere::scattering::transform::ScatteringEngine;
 use rand::{Rng, SeedableRng};
 
 const N: usize = 128;

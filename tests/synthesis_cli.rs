@@ -216,8 +216,8 @@ fn synthesize_rejects_bad_input_with_one_line_error() {
 /// start, two-image panel.
 #[test]
 fn synthesize_accepts_a_coefficient_file_target() {
-    use planisphere::flat::{periodic_coefficients, FlatMap};
-    use planisphere::transform::ScatteringEngine;
+    use planisphere::measure::flat::{periodic_coefficients, FlatMap};
+    use planisphere::scattering::transform::ScatteringEngine;
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
     write_target(&d.join("target.npy"));
@@ -254,9 +254,9 @@ fn synthesize_accepts_a_coefficient_file_target() {
 /// HEALPix fixtures of the sphere mode: a Gaussian sky (demo spectrum, NSIDE 32) and a binary
 /// 20° cap mask (invented data).
 fn write_sphere_fixtures(dir: &Path) {
-    use planisphere::fits_io::{write_footprint, write_map, WriteOptions};
-    use planisphere::skies::SkyRecipe;
-    use planisphere::spectrum::AngularSpectrum;
+    use planisphere::harmonics::spectrum::AngularSpectrum;
+    use planisphere::io::fits_io::{write_footprint, write_map, WriteOptions};
+    use planisphere::simulate::skies::SkyRecipe;
     use planisphere::{Direction, Footprint, Ordering, Pixelization};
     let recipe = SkyRecipe::gaussian(32, AngularSpectrum::demo_model(95, 1.0), 4);
     let sky = recipe.realise(&recipe.transform().unwrap(), 0).unwrap();
@@ -298,7 +298,7 @@ fn loss_drop(stdout: &str) -> (f64, f64) {
 
 #[test]
 fn sphere_mode_writes_a_healpix_map_on_the_footprint_and_a_mollweide_panel() {
-    use planisphere::fits_io::{read_footprint, read_map, ColumnChoice};
+    use planisphere::io::fits_io::{read_footprint, read_map, ColumnChoice};
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
     write_sphere_fixtures(d);

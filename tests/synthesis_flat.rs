@@ -7,14 +7,14 @@
 //! Gaussian, ⟨y⟩ = ln κ0 − σ_y²/2 so that ⟨κ⟩ = 0; skewness 3r + r³ with r = σ_κ/κ0 and
 //! σ_κ² = κ0²(e^{σ_y²} − 1).
 
-use planisphere::flat::{gaussian_random_field, periodic_coefficients, FlatMap};
+use planisphere::measure::flat::{gaussian_random_field, periodic_coefficients, FlatMap};
+use planisphere::measure::tile_spectra::{FourierStatistics, WavenumberBins};
+use planisphere::scattering::transform::{ScatteringEngine, TransformSettings};
 use planisphere::synthesis::{
     coefficients_from_json, gaussian_counterpart, one_point_moments, peak_counts,
     DifferentiableScattering, FlatSynthesis, StartField, StatisticChoice, SynthesisOutcome,
     SynthesisSettings,
 };
-use planisphere::tile_spectra::{FourierStatistics, WavenumberBins};
-use planisphere::transform::{ScatteringEngine, TransformSettings};
 use std::sync::OnceLock;
 
 const N: usize = 64;

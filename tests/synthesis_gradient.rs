@@ -5,13 +5,13 @@
 //! Optimization, §8.1): along a random direction v, the analytic directional derivative ⟨∇c, v⟩
 //! must equal (c(f + hv) − c(f − hv)) / 2h, whose truncation error is O(h²).
 
-use planisphere::flat::{gaussian_random_field, periodic_coefficients, FlatMap};
-use planisphere::statistics::CoefficientKind;
+use planisphere::measure::flat::{gaussian_random_field, periodic_coefficients, FlatMap};
+use planisphere::measure::tile_spectra::{FourierStatistics, WavenumberBins};
+use planisphere::scattering::statistics::CoefficientKind;
+use planisphere::scattering::transform::{ScatteringEngine, TransformSettings};
 use planisphere::synthesis::{
     DifferentiableScattering, FlatSynthesis, Normalisation, StatisticChoice, SynthesisSettings,
 };
-use planisphere::tile_spectra::{FourierStatistics, WavenumberBins};
-use planisphere::transform::{ScatteringEngine, TransformSettings};
 use rand::SeedableRng;
 use rand_chacha::ChaCha20Rng;
 use rand_distr::{Distribution, StandardNormal};

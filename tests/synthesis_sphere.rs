@@ -8,10 +8,10 @@
 //! coefficients are recomputed by the measuring path (`SphereMeasurer::measure`), which is
 //! independent of the differentiable one; determinism is the crate rule.
 
-use planisphere::apodization::{apodize, TaperKind};
-use planisphere::measurement::{MeasurementSettings, SphereMeasurer};
-use planisphere::skies::SkyRecipe;
-use planisphere::spectrum::AngularSpectrum;
+use planisphere::harmonics::spectrum::AngularSpectrum;
+use planisphere::measure::measurement::{MeasurementSettings, SphereMeasurer};
+use planisphere::simulate::skies::SkyRecipe;
+use planisphere::sky::apodization::{apodize, TaperKind};
 use planisphere::synthesis::sphere::{SphereSynthesis, SphereTarget};
 use planisphere::synthesis::{StartField, StatisticChoice, SynthesisSettings};
 use planisphere::{Direction, Footprint, Ordering, Pixelization, SkyMap};

@@ -14,9 +14,9 @@
 //! differ by less than 2√(N_t + N_s) with about 95% probability per threshold (common
 //! practice).
 
-use planisphere::apodization::{apodize, TaperKind};
-use planisphere::fits_io::{read_footprint, read_map, ColumnChoice};
-use planisphere::measurement::MeasurementSettings;
+use planisphere::io::fits_io::{read_footprint, read_map, ColumnChoice};
+use planisphere::measure::measurement::MeasurementSettings;
+use planisphere::sky::apodization::{apodize, TaperKind};
 use planisphere::synthesis::sphere::{peak_counts_in, values_in, SphereSynthesis};
 use planisphere::synthesis::{
     one_point_moments, peak_counts, FlatSynthesis, StartField, SynthesisSettings,

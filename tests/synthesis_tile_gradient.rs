@@ -7,13 +7,13 @@
 //! direction v the analytic directional derivative ⟨∇L, v⟩ must equal
 //! (L(f + hv) − L(f − hv)) / 2h, whose truncation error is O(h²).
 
-use planisphere::flat::{gaussian_random_field, periodic_coefficients, FlatMap};
-use planisphere::statistics::CoefficientKind;
+use planisphere::measure::flat::{gaussian_random_field, periodic_coefficients, FlatMap};
+use planisphere::scattering::statistics::CoefficientKind;
+use planisphere::scattering::transform::{ScatteringEngine, TileView, TransformSettings};
 use planisphere::synthesis::tile_gradient::{pooled_values, pooled_values_adjoint};
 use planisphere::synthesis::{
     DifferentiableScattering, FlatSynthesis, StartField, StatisticChoice, SynthesisSettings,
 };
-use planisphere::transform::{ScatteringEngine, TileView, TransformSettings};
 use rand::SeedableRng;
 use rand_chacha::ChaCha20Rng;
 use rand_distr::{Distribution, StandardNormal};
@@ -135,7 +135,7 @@ fn compare_with_engine(n: usize, big_j: usize, settings: TransformSettings, peri
     }
 }
 
-/// Reference: the measuring engine (crate::transform) with cropping switched off.
+/// Reference: the measuring engine (crate::scattering::transform) with cropping switched off.
 #[test]
 fn masked_tile_sums_match_uncropped_engine_to_1e_12() {
     let settings = TransformSettings {

@@ -4,9 +4,9 @@
 //! (E P̂(k) = Σ_q |Ŵ_{k−q}|² P(q) / (N Σa²), common practice), computed here independently.
 
 use num_complex::Complex64;
-use planisphere::measurement::{border_window, MeasurementSettings, SphereMeasurer};
-use planisphere::skies::SkyRecipe;
-use planisphere::spectrum::AngularSpectrum;
+use planisphere::harmonics::spectrum::AngularSpectrum;
+use planisphere::measure::measurement::{border_window, MeasurementSettings, SphereMeasurer};
+use planisphere::simulate::skies::SkyRecipe;
 use planisphere::{Footprint, Ordering, Pixelization};
 use rustfft::FftPlanner;
 

@@ -5,7 +5,7 @@
 //! estimator (Scoccimarro 2015, PRD 92, 083532) equals a brute-force sum over closed triangles.
 
 use num_complex::Complex64;
-use planisphere::tile_spectra::{FourierStatistics, WavenumberBins};
+use planisphere::measure::tile_spectra::{FourierStatistics, WavenumberBins};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, StandardNormal};

@@ -1,7 +1,7 @@
 //! The tiling's cores partition the footprint exactly, and the plan's settings are checked.
 
-use planisphere::sampling::{SamplingMethod, TileSampler};
-use planisphere::tiling::{TilingPlan, TilingSettings};
+use planisphere::tiles::sampling::{SamplingMethod, TileSampler};
+use planisphere::tiles::tiling::{TilingPlan, TilingSettings};
 use planisphere::{Direction, Footprint, Ordering, Pixelization, SkyMap};
 
 fn galactic_cut(nside: u32, ordering: Ordering) -> Footprint {
@@ -236,7 +236,7 @@ fn in_core_plane_pixels_cover_the_core_solid_angle() {
         let settings = TilingSettings {
             pixel_size: Some(0.5 * pix.mean_spacing()),
             tile_pixels: match cells.cells {
-                planisphere::tiling::CellLayout::LatitudeBands => Some(128),
+                planisphere::tiles::tiling::CellLayout::LatitudeBands => Some(128),
                 _ => None,
             },
             ..cells
@@ -379,9 +379,9 @@ fn tool_chosen_tiles_transform_at_most_two_tile_pixels_per_footprint_pixel_at_j5
     // less 40 holes of 0.5–2.5°, within −70° < δ < +10°, f_sky 0.37 (examples/
     // measure_speed_limit.rs) — the tile size the tool chooses transforms at most 2.0 tile pixels per footprint
     // pixel at J = 5 and at most 2.5 at J = 6, every footprint pixel still in exactly one core.
-    use planisphere::measurement::MeasurementSettings;
+    use planisphere::measure::measurement::MeasurementSettings;
     let pix = Pixelization::new(1024, Ordering::Ring).unwrap();
-    let fp = planisphere::scenario::benchmark_survey_mask(pix).unwrap();
+    let fp = planisphere::simulate::scenario::benchmark_survey_mask(pix).unwrap();
     assert!((0.36..0.38).contains(&fp.f_sky()));
     for (scales, limit) in [(5usize, 2.0), (6, 2.5)] {
         let settings = MeasurementSettings {

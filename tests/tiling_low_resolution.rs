@@ -3,8 +3,8 @@
 //! its documentation), and `measure` refuses in one line when the J scales and their halo cannot
 //! fit; a value that could not be computed is never written as trusted.
 
-use planisphere::measurement::MeasurementSettings;
-use planisphere::tiling::{corner_distortion, MAX_AUTOMATIC_CORNER_DISTORTION};
+use planisphere::measure::measurement::MeasurementSettings;
+use planisphere::tiles::tiling::{corner_distortion, MAX_AUTOMATIC_CORNER_DISTORTION};
 use planisphere::{Footprint, Ordering, Pixelization};
 use std::path::Path;
 use std::process::Command;

@@ -3,8 +3,8 @@
 //! Hivon et al., HEALPix documentation).
 
 use planisphere::cli::tiles::{draw_tiling, summary_lines, tiles_report};
-use planisphere::measurement::MeasurementSettings;
-use planisphere::tiling::{TilingPlan, TilingSettings};
+use planisphere::measure::measurement::MeasurementSettings;
+use planisphere::tiles::tiling::{TilingPlan, TilingSettings};
 use planisphere::{Direction, Footprint, Ordering, Pixelization, SkyMap};
 use std::path::Path;
 use std::process::Command;

@@ -13,14 +13,15 @@ use numpy::{
     IntoPyArray, PyArray1, PyArray2, PyArrayMethods, PyReadonlyArray1, PyReadonlyArray2,
     PyUntypedArrayMethods,
 };
-use planisphere::apodization::TaperKind;
-use planisphere::footprint::refuse_single_pixel_mask;
+use planisphere::sky::apodization::TaperKind;
+use planisphere::sky::footprint::refuse_single_pixel_mask;
 use planisphere::forecast::named_sets::{check_sets_forecast, forecast_document, forecast_sets};
 use planisphere::forecast::{ColumnLabel, DerivativeEnsembles, Ensemble, ScaleCut};
-use planisphere::measurement::{check_measurable, MeasurementSettings, SphereMeasurer};
-use planisphere::mode_coupling::BinWeighting;
-use planisphere::sampling::SamplingMethod;
-use planisphere::skies::{SkyOptions, SpectrumChoice};
+use planisphere::measure::measurement::{MeasurementSettings, SphereMeasurer};
+use planisphere::sky::measurable::check_measurable;
+use planisphere::harmonics::mode_coupling::BinWeighting;
+use planisphere::tiles::sampling::SamplingMethod;
+use planisphere::simulate::skies::{SkyOptions, SpectrumChoice};
 use planisphere::{Error, Footprint, Ordering, Pixelization, SkyMap};
 use pyo3::exceptions::{PyOSError, PyValueError};
 use pyo3::prelude::*;
@@ -178,7 +179,7 @@ fn sky_map(values: &PyReadonlyArray1<'_, f64>, order: Ordering, what: &str) -> P
 /// column, read with the library's reader (exactly as the command line reads it).
 enum MapInput {
     Array(Box<SkyMap>),
-    File(PathBuf, planisphere::fits_io::ColumnChoice),
+    File(PathBuf, planisphere::io::fits_io::ColumnChoice),
 }
 
 impl MapInput {
@@ -193,7 +194,7 @@ impl MapInput {
             (Some(v), None) => Ok(Some(MapInput::Array(Box::new(sky_map(&v, order, what)?)))),
             (None, Some(p)) => Ok(Some(MapInput::File(
                 p,
-                planisphere::fits_io::ColumnChoice::parse(column),
+                planisphere::io::fits_io::ColumnChoice::parse(column),
             ))),
             (None, None) => Ok(None),
             (Some(_), Some(_)) => Err(value_error(format!("{what}: an array or a file, not both"))),
@@ -204,7 +205,7 @@ impl MapInput {
     fn nside(&self) -> planisphere::Result<u32> {
         match self {
             MapInput::Array(m) => Ok(m.nside()),
-            MapInput::File(p, _) => Ok(planisphere::fits_io::HealpixFitsReader::open(p)?
+            MapInput::File(p, _) => Ok(planisphere::io::fits_io::HealpixFitsReader::open(p)?
                 .header()
                 .nside),
         }
@@ -215,7 +216,7 @@ impl MapInput {
         match self {
             MapInput::Array(m) => Ok((*m, Vec::new())),
             MapInput::File(p, c) => {
-                let (map, header) = planisphere::fits_io::read_map(&p, &c)?;
+                let (map, header) = planisphere::io::fits_io::read_map(&p, &c)?;
                 let warnings = header
                     .warnings
                     .iter()
@@ -230,7 +231,7 @@ impl MapInput {
 /// A mask given as weights (same ordering as the map) or as a FITS file and column.
 enum MaskInput {
     Weights(Vec<f64>),
-    File(PathBuf, planisphere::fits_io::ColumnChoice),
+    File(PathBuf, planisphere::io::fits_io::ColumnChoice),
 }
 
 impl MaskInput {
@@ -244,7 +245,7 @@ impl MaskInput {
             (Some(v), None) => Ok(Some(MaskInput::Weights(slice(&v, what)?.to_vec()))),
             (None, Some(p)) => Ok(Some(MaskInput::File(
                 p,
-                planisphere::fits_io::ColumnChoice::parse(column),
+                planisphere::io::fits_io::ColumnChoice::parse(column),
             ))),
             (None, None) => Ok(None),
             (Some(_), Some(_)) => Err(value_error(format!("{what}: an array or a file, not both"))),
@@ -271,14 +272,14 @@ fn untapered(
     let raw = match mask {
         Some(MaskInput::Weights(w)) => Footprint::from_weights(map.pixelization(), w)?,
         Some(MaskInput::File(path, column)) => {
-            let (fp, header) = planisphere::fits_io::read_footprint(&path, &column)?;
+            let (fp, header) = planisphere::io::fits_io::read_footprint(&path, &column)?;
             warnings.extend(
                 header
                     .warnings
                     .iter()
                     .map(|w| format!("{}: {w}", path.display())),
             );
-            planisphere::fits_io::check_same_coordsys(
+            planisphere::io::fits_io::check_same_coordsys(
                 (name, map.coordsys.as_deref()),
                 (&path.display().to_string(), header.coordsys.as_deref()),
                 allow_coordsys_mismatch,
@@ -374,7 +375,7 @@ fn measure_map<'py>(
                 planisphere::limits::measurement_bytes(nside, maps),
             )?;
             let (map, mut warnings) = map.load()?;
-            let taper_desc = planisphere::measurement_document::taper_description(
+            let taper_desc = planisphere::io::measurement_document::taper_description(
                 taper_kind,
                 taper_arcmin,
                 mask_name.as_deref(),
@@ -382,7 +383,7 @@ fn measure_map<'py>(
             let (measurer, doc, stats) = match other {
                 None => {
                     let raw = untapered(&map, &name, mask, allow_coordsys_mismatch, &mut warnings)?;
-                    let fp = planisphere::apodization::taper_footprint(
+                    let fp = planisphere::sky::apodization::taper_footprint(
                         raw,
                         taper_kind,
                         taper_arcmin,
@@ -390,7 +391,7 @@ fn measure_map<'py>(
                     check_measurable(&map, Some(&fp), &name)?;
                     let measurer = SphereMeasurer::new(map.pixelization(), &fp, settings)?;
                     let stats = measurer.measure(&map, &fp)?;
-                    let doc = planisphere::measurement_document::measurement_document(
+                    let doc = planisphere::io::measurement_document::measurement_document(
                         &measurer,
                         &stats,
                         &name,
@@ -413,7 +414,7 @@ fn measure_map<'py>(
                             other.nside()
                         )));
                     }
-                    planisphere::fits_io::check_same_coordsys(
+                    planisphere::io::fits_io::check_same_coordsys(
                         (&name, map.coordsys.as_deref()),
                         (&cross_name, other.coordsys.as_deref()),
                         allow_coordsys_mismatch,
@@ -432,7 +433,7 @@ fn measure_map<'py>(
                         Error::Data(m) => Error::Data(format!("second map: {m}")),
                         e => e,
                     })?;
-                    let fp = planisphere::apodization::taper_footprint(
+                    let fp = planisphere::sky::apodization::taper_footprint(
                         first.intersection(&second)?,
                         taper_kind,
                         taper_arcmin,
@@ -441,7 +442,7 @@ fn measure_map<'py>(
                     check_measurable(&other, Some(&fp), &cross_name)?;
                     let measurer = SphereMeasurer::new(map.pixelization(), &fp, settings)?;
                     let pair = measurer.measure_pair(&map, &other, &fp)?;
-                    let doc = planisphere::measurement_document::pair_document(
+                    let doc = planisphere::io::measurement_document::pair_document(
                         &measurer,
                         &pair,
                         &name,
@@ -505,7 +506,7 @@ fn measure_flat<'py>(
     }
     let shape = field.shape();
     let (rows, cols) = (shape[0], shape[1]);
-    planisphere::flat::check_field_shape(rows, cols)
+    planisphere::measure::flat::check_field_shape(rows, cols)
         .map_err(|e| value_error(format!("{name}: {e}")))?;
     let values = field
         .as_slice()
@@ -533,16 +534,16 @@ fn measure_flat<'py>(
         on_threads(threads, move || {
             let n = rows;
             if let Some(m) = &mask {
-                planisphere::flat::check_mask(&mask_label, m, n)?;
+                planisphere::measure::flat::check_mask(&mask_label, m, n)?;
             }
-            let values = planisphere::flat::field_values(&name, values, mask.as_deref())?;
+            let values = planisphere::measure::flat::field_values(&name, values, mask.as_deref())?;
             let pixel = (pixel_arcmin / 60.0).to_radians();
-            let mut map = planisphere::flat::FlatMap::new(n, pixel, values)?;
+            let mut map = planisphere::measure::flat::FlatMap::new(n, pixel, values)?;
             if let Some(m) = &mask {
                 map = map.with_mask(m.clone(), None)?;
             }
-            let stats = planisphere::flat::measure(&map, &settings)?;
-            let doc = planisphere::measurement_document::flat_measurement_document(
+            let stats = planisphere::measure::flat::measure(&map, &settings)?;
+            let doc = planisphere::io::measurement_document::flat_measurement_document(
                 &stats,
                 &settings,
                 &name,
@@ -653,7 +654,7 @@ fn spectra<'py>(
 ) -> PyResult<(String, String)> {
     let order = ordering(ordering_name)?;
     let taper_kind: TaperKind = enum_value("taper", taper)?;
-    let master = planisphere::spectra::MasterSettings {
+    let master = planisphere::harmonics::spectra::MasterSettings {
         bin_width: count("bin_width", bin_width, 0)?,
         weighting: enum_value::<BinWeighting>("bin_weighting", bin_weighting)?,
         beam_fwhm_arcmin: beam_arcmin,
@@ -681,8 +682,8 @@ fn spectra<'py>(
                 false,
                 &mut Vec::new(),
             )?;
-            let fp = planisphere::apodization::taper_footprint(raw, taper_kind, taper_arcmin)?;
-            let (pseudo, s) = planisphere::spectra::measure_spectra(
+            let fp = planisphere::sky::apodization::taper_footprint(raw, taper_kind, taper_arcmin)?;
+            let (pseudo, s) = planisphere::harmonics::spectra::measure_spectra(
                 (&map, &name),
                 other.as_ref().map(|o| (o, cross_name.as_str())),
                 &fp,
@@ -691,9 +692,9 @@ fn spectra<'py>(
                 &master,
             )?;
             let doc =
-                serde_json::to_string(&planisphere::spectra::SpectraDocument::new(&pseudo, &s))
+                serde_json::to_string(&planisphere::harmonics::spectra::SpectraDocument::new(&pseudo, &s))
                     .map_err(|e| Error::Data(format!("cannot write the spectra document: {e}")))?;
-            Ok((doc, planisphere::spectra::spectrum_csv(&s)))
+            Ok((doc, planisphere::harmonics::spectra::spectrum_csv(&s)))
         })
     })
     .map_err(py_error)
@@ -867,14 +868,14 @@ fn read_map<'py>(
     Vec<String>,
     Vec<String>,
 )> {
-    let choice = planisphere::fits_io::ColumnChoice::parse(&column);
+    let choice = planisphere::io::fits_io::ColumnChoice::parse(&column);
     let (values, header) = py
         .detach(|| -> planisphere::Result<_> {
             if as_mask {
-                let (fp, header) = planisphere::fits_io::read_footprint(&path, &choice)?;
+                let (fp, header) = planisphere::io::fits_io::read_footprint(&path, &choice)?;
                 Ok((fp.weights().to_vec(), header))
             } else {
-                let (map, header) = planisphere::fits_io::read_map(&path, &choice)?;
+                let (map, header) = planisphere::io::fits_io::read_map(&path, &choice)?;
                 Ok((map.values_with_sentinel(), header))
             }
         })
@@ -913,18 +914,18 @@ fn write_map<'py>(
             sky_map(values, order, &format!("column '{name}'"))?,
         ));
     }
-    let options = planisphere::fits_io::WriteOptions {
+    let options = planisphere::io::fits_io::WriteOptions {
         precision: if float32 {
-            planisphere::fits_io::ValuePrecision::Float32
+            planisphere::io::fits_io::ValuePrecision::Float32
         } else {
-            planisphere::fits_io::ValuePrecision::Float64
+            planisphere::io::fits_io::ValuePrecision::Float64
         },
         coordsys,
         ..Default::default()
     };
     py.detach(move || {
         let refs: Vec<(&str, &SkyMap)> = maps.iter().map(|(n, m)| (n.as_str(), m)).collect();
-        planisphere::fits_io::write_maps(&path, &refs, &options)
+        planisphere::io::fits_io::write_maps(&path, &refs, &options)
     })
     .map_err(py_error)
 }
@@ -987,7 +988,7 @@ fn ensemble_command(py: Python<'_>, arguments: Vec<String>, threads: Option<i64>
 #[pyo3(name = "_native")]
 fn native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
-    m.add("UNSEEN", planisphere::skymap::UNSEEN)?;
+    m.add("UNSEEN", planisphere::sky::skymap::UNSEEN)?;
     m.add_function(wrap_pyfunction!(measure_map, m)?)?;
     m.add_function(wrap_pyfunction!(measure_flat, m)?)?;
     m.add_function(wrap_pyfunction!(sky, m)?)?;

@@ -3,11 +3,11 @@
 
 use super::output::{check_output_path, write_bytes, write_json};
 use super::plot::flat_bias::flat_bias_figure;
-use crate::charts::ImageFormat;
 use crate::error::{Error, Result};
-use crate::flat_comparison::{compare_flat, rows_csv, FlatComparisonSettings};
-use crate::measurement::MeasurementSettings;
-use crate::spectrum::AngularSpectrum;
+use crate::figures::charts::ImageFormat;
+use crate::harmonics::spectrum::AngularSpectrum;
+use crate::measure::flat_comparison::{compare_flat, rows_csv, FlatComparisonSettings};
+use crate::measure::measurement::MeasurementSettings;
 use std::path::PathBuf;
 
 /// Measure how far flat-sky coefficients are from sphere coefficients, per tile size.
@@ -130,7 +130,7 @@ pub fn run(args: &CompareFlatArgs) -> Result<()> {
     }
     println!(
         "flat reference doubled (m → 2m pixels), orientation means: converged when the change is within {} standard errors",
-        crate::flat_comparison::CONVERGENCE_ERRORS
+        crate::measure::flat_comparison::CONVERGENCE_ERRORS
     );
     println!(
         "{:>6} {:>6} {:>10} {:>3} {:>9} {:>8} {:>10}",
@@ -158,7 +158,7 @@ pub fn run(args: &CompareFlatArgs) -> Result<()> {
             "{} of {} coefficients moved by more than {} standard errors when the reference was doubled (first: {}); see reference_converged",
             flagged.len(),
             rows.len(),
-            crate::flat_comparison::CONVERGENCE_ERRORS,
+            crate::measure::flat_comparison::CONVERGENCE_ERRORS,
             flagged[0]
         );
     }

@@ -13,16 +13,16 @@ use super::ensemble::EnsembleMeasurer;
 use super::forecast::{forecast_document, forecast_named_sets};
 use super::measure::measurement_document;
 use super::output::{write_bytes, write_json};
-use crate::apodization::{apodize, TaperKind};
 use crate::ensemble::{EnsembleDescription, EnsembleJob, MemberSource, Shard};
 use crate::error::{Error, Result};
-use crate::fits_io::{write_footprint, write_map, WriteOptions};
 use crate::forecast::DerivativeEnsembles;
-use crate::measurement::MeasurementSettings;
-use crate::pixelization::{Ordering, Pixelization};
-use crate::scenario::MockFootprint;
-use crate::skies::SkyRecipe;
-use crate::spectrum::AngularSpectrum;
+use crate::harmonics::spectrum::AngularSpectrum;
+use crate::io::fits_io::{write_footprint, write_map, WriteOptions};
+use crate::measure::measurement::MeasurementSettings;
+use crate::simulate::scenario::MockFootprint;
+use crate::simulate::skies::SkyRecipe;
+use crate::sky::apodization::{apodize, TaperKind};
+use crate::sky::pixelization::{Ordering, Pixelization};
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 
@@ -385,10 +385,10 @@ fn run_in_directory(args: &DemoArgs) -> Result<()> {
     })?;
     run_tile_map(&TileMapArgs {
         map: dir.join("example_sky.fits"),
-        column: crate::fits_io::ColumnChoice::default(),
+        column: crate::io::fits_io::ColumnChoice::default(),
         mask: super::inputs::MaskArgs {
             mask: Some(dir.join("mock_mask.fits")),
-            mask_column: crate::fits_io::ColumnChoice::default(),
+            mask_column: crate::io::fits_io::ColumnChoice::default(),
             taper: TaperKind::C2,
             taper_arcmin,
             allow_coordsys_mismatch: false,

@@ -8,15 +8,15 @@ use crate::ensemble::{
     EnsembleJob, MemberSource, Shard,
 };
 use crate::error::{Error, Result};
-use crate::fits_io::{read_footprint, read_map, ColumnChoice};
-use crate::footprint::Footprint;
+use crate::harmonics::spectra::{angular_spectrum, cross_spectrum};
+use crate::harmonics::spectrum::AngularSpectrum;
 use crate::harmonics::HarmonicTransform;
-use crate::measurement::{MeasurementSettings, SphereMeasurer, StatisticLabel};
-use crate::pixelization::{Ordering, Pixelization};
-use crate::skies::SkyRecipe;
-use crate::skymap::SkyMap;
-use crate::spectra::{angular_spectrum, cross_spectrum};
-use crate::spectrum::AngularSpectrum;
+use crate::io::fits_io::{read_footprint, read_map, ColumnChoice};
+use crate::measure::measurement::{MeasurementSettings, SphereMeasurer, StatisticLabel};
+use crate::simulate::skies::SkyRecipe;
+use crate::sky::footprint::Footprint;
+use crate::sky::pixelization::{Ordering, Pixelization};
+use crate::sky::skymap::SkyMap;
 use std::path::{Path, PathBuf};
 
 /// Measure every map of an ensemble (files or simulations) into one table.
@@ -199,7 +199,7 @@ impl EnsembleMeasurer {
 
     /// Column labels of a pair of maps: every label of [`Self::labels`] for map A (`a.` +
     /// name) and for map B (`b.` + name), then the cross coefficients (`cross.` + the name of
-    /// [`crate::statistics::CrossLabel::name`], at the scale of j1) and the pseudo-C_ℓ bins of
+    /// [`crate::scattering::statistics::CrossLabel::name`], at the scale of j1) and the pseudo-C_ℓ bins of
     /// the cross-spectrum (`cross.cl.ell{min}_{max}`).
     pub fn pair_labels(&self) -> Vec<StatisticLabel> {
         let single = self.labels();

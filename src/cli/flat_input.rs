@@ -48,12 +48,12 @@ fn read_array(path: &Path, what: &str) -> Result<Array2<f64>> {
     }
 }
 
-/// Reads a flat field: square, n a size the engine accepts ([`crate::filters::is_tile_size`]),
-/// at most [`crate::tiling::MAX_TILE_PIXELS`].
+/// Reads a flat field: square, n a size the engine accepts ([`crate::limits::is_tile_size`]),
+/// at most [`crate::tiles::tiling::MAX_TILE_PIXELS`].
 pub fn read_field(path: &Path) -> Result<SquareArray> {
     let array = read_array(path, "a flat field")?;
     let (rows, cols) = array.dim();
-    crate::flat::check_field_shape(rows, cols).map_err(|e| Error::io(path, e))?;
+    crate::measure::flat::check_field_shape(rows, cols).map_err(|e| Error::io(path, e))?;
     Ok(SquareArray {
         size: rows,
         values: array.iter().copied().collect(),
@@ -71,12 +71,12 @@ pub fn read_mask(path: &Path, n: usize) -> Result<Vec<f64>> {
         )));
     }
     let values: Vec<f64> = array.iter().copied().collect();
-    crate::flat::check_mask(&path.display().to_string(), &values, n)?;
+    crate::measure::flat::check_mask(&path.display().to_string(), &values, n)?;
     Ok(values)
 }
 
 /// The field's values with non-finite values allowed only where the mask is 0
-/// ([`crate::flat::field_values`], messages naming `path`).
+/// ([`crate::measure::flat::field_values`], messages naming `path`).
 pub fn field_values(path: &Path, values: Vec<f64>, mask: Option<&[f64]>) -> Result<Vec<f64>> {
-    crate::flat::field_values(&path.display().to_string(), values, mask)
+    crate::measure::flat::field_values(&path.display().to_string(), values, mask)
 }

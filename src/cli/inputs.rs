@@ -1,10 +1,10 @@
 //! Options shared by the commands that read a map and a mask, and how they are loaded.
 
-use crate::apodization::TaperKind;
 use crate::error::{Error, Result};
-use crate::fits_io::{read_footprint, read_map, ColumnChoice};
-use crate::footprint::Footprint;
-use crate::skymap::SkyMap;
+use crate::io::fits_io::{read_footprint, read_map, ColumnChoice};
+use crate::sky::apodization::TaperKind;
+use crate::sky::footprint::Footprint;
+use crate::sky::skymap::SkyMap;
 use std::path::{Path, PathBuf};
 
 /// A mask (or weight map) and how to taper its edges.
@@ -34,7 +34,7 @@ pub struct MaskArgs {
     pub allow_coordsys_mismatch: bool,
 }
 
-pub use crate::fits_io::check_same_coordsys;
+pub use crate::io::fits_io::check_same_coordsys;
 
 /// A TOML file's parse error as one line: `{path}: {what}: line N, key `K`: reason` (line and
 /// key from the error's position in `text`, when it has one).
@@ -60,7 +60,7 @@ pub fn toml_error(path: &Path, text: &str, e: &toml::de::Error, what: &str) -> E
     }
 }
 
-pub use crate::measurement::check_measurable;
+pub use crate::sky::measurable::check_measurable;
 
 /// Reads a map column, reporting a file's warnings (e.g. an assumed ordering) on stderr.
 pub fn load_map(path: &std::path::Path, column: &ColumnChoice) -> Result<SkyMap> {
@@ -82,11 +82,11 @@ impl MaskArgs {
 
     /// `raw` with this taper applied (binary masks only; a full sky or `--taper none` as is).
     pub fn taper_footprint(&self, raw: Footprint) -> Result<Footprint> {
-        crate::apodization::taper_footprint(raw, self.taper, self.taper_arcmin)
+        crate::sky::apodization::taper_footprint(raw, self.taper, self.taper_arcmin)
     }
 }
 
-pub use crate::footprint::refuse_single_pixel_mask;
+pub use crate::sky::footprint::refuse_single_pixel_mask;
 
 /// The untapered footprint of `map` (read from `map_path`): the mask file (or the map's valid
 /// pixels), brought to the map's ordering, without the map's bad pixels. A mask whose COORDSYS

@@ -1,8 +1,8 @@
 //! `planisphere inspect MAP.fits`: what a user checks first about a HEALPix map file.
 
 use crate::error::{Error, Result};
-use crate::fits_io::{ColumnChoice, Coverage, HealpixFitsReader};
-use crate::skymap::MapSummary;
+use crate::io::fits_io::{ColumnChoice, Coverage, HealpixFitsReader};
+use crate::sky::skymap::MapSummary;
 use std::io::Write;
 use std::path::PathBuf;
 

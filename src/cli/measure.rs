@@ -2,16 +2,16 @@
 //! and bispectrum of one map on its footprint, written as JSON; with `--cross OTHER.fits`, the
 //! same for both maps on their common footprint plus their cross statistics. A flat field
 //! (`FIELD.npy --pixel-arcmin A [--mask MASK.npy]`) is measured as one periodic or masked tile
-//! with the same estimator, settings and JSON layout ([`crate::flat::measure`]).
+//! with the same estimator, settings and JSON layout ([`crate::measure::flat::measure`]).
 
 use super::inputs::{load_map, untapered_footprint, MaskArgs};
 use super::output::write_json;
 use crate::error::{Error, Result};
-use crate::fits_io::ColumnChoice;
-use crate::measurement::{MapStatistics, MeasurementSettings, SphereMeasurer};
-pub use crate::measurement_document::measurement_document;
-use crate::measurement_document::{pair_document, taper_description};
-use crate::sampling::SamplingMethod;
+use crate::io::fits_io::ColumnChoice;
+pub use crate::io::measurement_document::measurement_document;
+use crate::io::measurement_document::{pair_document, taper_description};
+use crate::measure::measurement::{MapStatistics, MeasurementSettings, SphereMeasurer};
+use crate::tiles::sampling::SamplingMethod;
 use std::path::{Path, PathBuf};
 
 /// How the sky is read at tile pixels.
@@ -188,7 +188,7 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
     if super::flat_input::is_flat_field(&args.map)? {
         return run_flat(args, settings);
     }
-    let nside = crate::fits_io::HealpixFitsReader::open(&args.map)?
+    let nside = crate::io::fits_io::HealpixFitsReader::open(&args.map)?
         .header()
         .nside;
     let maps = if args.cross.is_some() { 2 } else { 1 };
@@ -327,7 +327,8 @@ fn run_flat(args: &MeasureArgs, settings: MeasurementSettings) -> Result<()> {
             "--allow-coordsys-mismatch",
         ),
         (
-            args.mask.taper != crate::apodization::TaperKind::C2 || args.mask.taper_arcmin != 60.0,
+            args.mask.taper != crate::sky::apodization::TaperKind::C2
+                || args.mask.taper_arcmin != 60.0,
             "--taper/--taper-arcmin (a flat mask is used as given)",
         ),
     ];
@@ -357,12 +358,12 @@ fn run_flat(args: &MeasureArgs, settings: MeasurementSettings) -> Result<()> {
     };
     let values = super::flat_input::field_values(&args.map, field.values, mask.as_deref())?;
     let pixel = (arcmin / 60.0).to_radians();
-    let mut map = crate::flat::FlatMap::new(n, pixel, values)?;
+    let mut map = crate::measure::flat::FlatMap::new(n, pixel, values)?;
     if let Some(m) = &mask {
         map = map.with_mask(m.clone(), None)?;
     }
-    let stats = crate::flat::measure(&map, &settings)?;
-    let doc = crate::measurement_document::flat_measurement_document(
+    let stats = crate::measure::flat::measure(&map, &settings)?;
+    let doc = crate::io::measurement_document::flat_measurement_document(
         &stats,
         &settings,
         &args.map.display().to_string(),

@@ -1,7 +1,7 @@
 //! `planisphere plot`: pictures of measurements, forecasts and per-tile statistics.
 //!
 //! - `plot coefficients M.json [MORE.json …]`: one panel per order of the measurement files
-//!   written by `measure` — the orientation-harmonic summary ([`crate::statistics`]): the mean
+//!   written by `measure` — the orientation-harmonic summary ([`crate::scattering::statistics`]): the mean
 //!   modulus and its anisotropy against the wavelet's angular scale in arcmin, and two
 //!   triangles of (j1, j2) cells coloured by the intermittency and the alignment (crossed out
 //!   where untrusted, one strip per file); the band powers ⟨P(j,l)⟩_l against j, and the tile
@@ -17,23 +17,23 @@
 use super::inputs::{load_map, MaskArgs};
 use super::measure::MeasureOptions;
 use super::output::write_bytes;
-use crate::charts::{
+use crate::error::{Error, Result};
+use crate::figures::charts::{
     append_colour_bar, palette, Axis, AxisScale, Cell, ChartPoint, ColourBar, Figure, ImageFormat,
     MarkerShape, Panel, Series,
 };
-use crate::error::{Error, Result};
-use crate::fits_io::ColumnChoice;
+use crate::figures::plotting::SkyPicture;
+use crate::figures::plotting::{colour_ramp, Rgb};
 use crate::forecast::{ConfidenceEllipse, ConfidenceLevel};
-use crate::measurement::{MapStatistics, SphereMeasurer};
-use crate::pixelization::{Ordering, Pixelization};
-use crate::plotting::SkyPicture;
-use crate::plotting::{colour_ramp, Rgb};
-use crate::sampling::TileSampler;
-use crate::skymap::SkyMap;
-use crate::statistics::{
+use crate::io::fits_io::ColumnChoice;
+use crate::measure::measurement::{MapStatistics, SphereMeasurer};
+use crate::scattering::statistics::{
     first_order_position, second_order_position, CoefficientKind, CoefficientLabel,
     OrientationSummary, SummaryKind, SummaryStatistic,
 };
+use crate::sky::pixelization::{Ordering, Pixelization};
+use crate::sky::skymap::SkyMap;
+use crate::tiles::sampling::TileSampler;
 use clap::Subcommand;
 use std::path::{Path, PathBuf};
 
@@ -285,7 +285,7 @@ pub fn band_power_by_scale(file: &MeasurementFile) -> Vec<ScaleAverage> {
     scale_averages(&file.band_powers, 1, s.scales, s.orientations)
 }
 
-/// The orientation-harmonic summary ([`crate::statistics`]) of a measurement file, computed
+/// The orientation-harmonic summary ([`crate::scattering::statistics`]) of a measurement file, computed
 /// from its coefficient records; a coefficient missing from the file makes the items built on
 /// it NaN and untrusted.
 pub fn file_summary(file: &MeasurementFile) -> Vec<SummaryStatistic> {
@@ -325,7 +325,10 @@ pub fn file_summary(file: &MeasurementFile) -> Vec<SummaryStatistic> {
 /// The summary of a file with each item's label, in label order.
 fn labelled_summary(
     file: &MeasurementFile,
-) -> Vec<(crate::statistics::SummaryLabel, SummaryStatistic)> {
+) -> Vec<(
+    crate::scattering::statistics::SummaryLabel,
+    SummaryStatistic,
+)> {
     let Ok(layout) = OrientationSummary::new(file.settings.scales, file.settings.orientations)
     else {
         return Vec::new();
@@ -1117,11 +1120,11 @@ impl TileStatistic {
 
 /// The value of `statistic` in one tile: the mean over its coefficients of sums / weights
 /// (those with positive weight); the variance is Σwf²/Σw − (Σwf/Σw)² as in
-/// [`crate::pooling`]. `None` when no coefficient has weight.
+/// [`crate::scattering::pooling`]. `None` when no coefficient has weight.
 pub fn tile_value(
     statistic: &TileStatistic,
     indices: &[usize],
-    sums: &crate::pooling::TileSums,
+    sums: &crate::scattering::pooling::TileSums,
 ) -> Option<f64> {
     if statistic.kind == CoefficientKind::Variance {
         let (w0, w1) = (*sums.weights.first()?, *sums.weights.get(1)?);
@@ -1148,7 +1151,7 @@ pub fn tile_value(
 fn kept_tiles(
     measurer: &SphereMeasurer,
     map: &SkyMap,
-    footprint: &crate::footprint::Footprint,
+    footprint: &crate::sky::footprint::Footprint,
 ) -> Result<Vec<usize>> {
     let s = measurer.settings();
     let sampler = TileSampler::new(measurer.plan(), map, footprint, s.sampling)?;

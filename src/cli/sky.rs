@@ -1,8 +1,8 @@
 //! `planisphere sky`: simulated HEALPix skies (Gaussian or lognormal) written as FITS maps.
 
 use crate::error::{Error, Result};
-use crate::fits_io::{write_map, ValuePrecision, WriteOptions};
-use crate::skies::{SkyOptions, SkyRecipe, SpectrumChoice};
+use crate::io::fits_io::{write_map, ValuePrecision, WriteOptions};
+use crate::simulate::skies::{SkyOptions, SkyRecipe, SpectrumChoice};
 use std::path::PathBuf;
 
 /// Make simulated skies of a given angular spectrum and write them as HEALPix FITS maps.

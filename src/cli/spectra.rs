@@ -5,10 +5,10 @@
 use super::inputs::{load_map, MaskArgs};
 use super::output::{write_bytes, write_json};
 use crate::error::Result;
-use crate::fits_io::ColumnChoice;
-use crate::mode_coupling::BinWeighting;
-pub use crate::spectra::spectrum_csv;
-use crate::spectra::{measure_spectra, MasterSettings, SpectraDocument};
+use crate::harmonics::mode_coupling::BinWeighting;
+pub use crate::harmonics::spectra::spectrum_csv;
+use crate::harmonics::spectra::{measure_spectra, MasterSettings, SpectraDocument};
+use crate::io::fits_io::ColumnChoice;
 use std::path::PathBuf;
 
 /// Measure the angular power spectrum of a map on its footprint: pseudo-C_ℓ with the w2

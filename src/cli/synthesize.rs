@@ -19,17 +19,17 @@ use crate::cli::inputs::{load_map, MaskArgs};
 use crate::cli::measure::SamplingChoice;
 use crate::cli::output::{check_output_path, write_atomically};
 use crate::error::{Error, Result};
-use crate::fits_io::{read_footprint, write_map, ColumnChoice, WriteOptions};
-use crate::footprint::Footprint;
-use crate::measurement::{MeasurementSettings, SphereMeasurer};
-use crate::plotting::{write_pictures_in_a_row, SkyPicture};
-use crate::sampling::{SamplingMethod, TileSampler};
-use crate::skymap::SkyMap;
+use crate::figures::plotting::{write_pictures_in_a_row, SkyPicture};
+use crate::io::fits_io::{read_footprint, write_map, ColumnChoice, WriteOptions};
+use crate::measure::measurement::{MeasurementSettings, SphereMeasurer};
+use crate::sky::footprint::Footprint;
+use crate::sky::skymap::SkyMap;
 use crate::synthesis::sphere::{gaussian_sky, peak_counts_in, values_in, SphereSynthesis};
 use crate::synthesis::{
     coefficients_from_json, gaussian_counterpart, one_point_moments, FlatSynthesis, StartField,
     StatisticChoice, SynthesisSettings,
 };
+use crate::tiles::sampling::{SamplingMethod, TileSampler};
 use ndarray::Array2;
 use std::path::{Path, PathBuf};
 
@@ -198,7 +198,7 @@ fn write_field(path: &Path, size: usize, values: &[f64]) -> Result<()> {
 /// Images side by side, each on the colour scale of the first (its 0.5 and 99.5 percentiles).
 fn write_panel(path: &Path, size: usize, panels: &[(&str, &[f64])]) -> Result<()> {
     use plotters::prelude::*;
-    crate::plotting::register_font()?;
+    crate::figures::plotting::register_font()?;
     let zoom = (256 / size).max(1) as u32;
     let side = size as u32 * zoom;
     let (margin, title_h) = (10u32, 30u32);
@@ -222,13 +222,14 @@ fn write_panel(path: &Path, size: usize, panels: &[(&str, &[f64])]) -> Result<()
                 root.draw(&Text::new(
                     title.to_string(),
                     (x0 as i32, 6),
-                    (crate::plotting::FONT_FAMILY, 18).into_font(),
+                    (crate::figures::plotting::FONT_FAMILY, 18).into_font(),
                 ))
                 .map_err(|e| fail(&e))?;
                 for iy in 0..size {
                     for ix in 0..size {
-                        let [r, g, b] =
-                            crate::plotting::colour_ramp((values[iy * size + ix] - lo) / span);
+                        let [r, g, b] = crate::figures::plotting::colour_ramp(
+                            (values[iy * size + ix] - lo) / span,
+                        );
                         let px = x0 + ix as u32 * zoom;
                         // Row 0 at the top.
                         let py = title_h + iy as u32 * zoom;

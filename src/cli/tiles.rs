@@ -4,12 +4,12 @@
 use super::inputs::load_map;
 use super::measure::MeasureOptions;
 use crate::error::Result;
-use crate::fits_io::{read_footprint, ColumnChoice};
-use crate::footprint::Footprint;
-use crate::measurement::MeasurementSettings;
-use crate::plotting::SkyPicture;
-use crate::skymap::SkyMap;
-use crate::tiling::{TilingPlan, TilingSummary};
+use crate::figures::plotting::SkyPicture;
+use crate::io::fits_io::{read_footprint, ColumnChoice};
+use crate::measure::measurement::MeasurementSettings;
+use crate::sky::footprint::Footprint;
+use crate::sky::skymap::SkyMap;
+use crate::tiles::tiling::{TilingPlan, TilingSummary};
 use std::path::{Path, PathBuf};
 
 /// Options of `planisphere tiles`.

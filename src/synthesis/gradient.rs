@@ -5,8 +5,8 @@
 //! # Forward pass
 //!
 //! On an n × n periodic field f (taper ≡ 1, weight ≡ 1, N = n² pixels) this is the estimator of
-//! [`crate::transform`] without Fourier cropping, with the same Morlet bank
-//! ([`crate::filters::MorletBank`]) and the same coefficient layout:
+//! [`crate::scattering::transform`] without Fourier cropping, with the same Morlet bank
+//! ([`crate::scattering::filters::MorletBank`]) and the same coefficient layout:
 //!
 //! * mean μ = Σf/N, variance Σf²/N − μ²;
 //! * I = f − μ, g₁ = IDFT(ψ̂_{j1,l1} · DFT(I)) (unnormalised DFT, 1/N-normalised IDFT),
@@ -41,8 +41,9 @@
 //! Derivatives*, SIAM, ch. 3. The masked, Fourier-cropped tile estimator and its adjoint are in
 //! [`super::tile_gradient`].
 
-use crate::filters::MorletBank;
-use crate::statistics::CoefficientLabel;
+use crate::scattering::filters::MorletBank;
+use crate::scattering::statistics::CoefficientLabel;
+use crate::scattering::transform::crop_box;
 use crate::{Error, Result};
 use num_complex::Complex64;
 use rayon::prelude::*;
@@ -113,6 +114,38 @@ impl SquareFft {
     }
 }
 
+/// FFT plans of every coarse grid and the wavelets cropped to them (built once per transform).
+pub(crate) struct CoarseGrids {
+    /// Plans of the grids n / 2^d, d = 0 ..= log2(n) − 3.
+    pub(crate) ffts: Vec<SquareFft>,
+    /// `wavelets[d][j·L + l]`: ψ̂_{j,l} cropped to the (n/2^d)² box; empty for d = 0 or d > j.
+    pub(crate) wavelets: Vec<Vec<Vec<f64>>>,
+}
+
+impl CoarseGrids {
+    pub(crate) fn new(bank: &MorletBank) -> Self {
+        let n = bank.size();
+        let (jn, ln) = (bank.scale_count(), bank.orientation_count());
+        let max_level = crate::scattering::filters::coarsest_level(n, 8);
+        let ffts = (0..=max_level).map(|d| SquareFft::new(n >> d)).collect();
+        let wavelets = (0..=max_level)
+            .map(|d| {
+                (0..jn * ln)
+                    .map(|i| {
+                        let j = i / ln;
+                        if d == 0 || d > j {
+                            Vec::new()
+                        } else {
+                            crop_box(bank.wavelet(j, i % ln), n, n >> d)
+                        }
+                    })
+                    .collect()
+            })
+            .collect();
+        Self { ffts, wavelets }
+    }
+}
+
 /// Intermediate values kept from a forward pass for the backward pass.
 pub struct ForwardPass {
     /// Coefficients in the layout of [`DifferentiableScattering::labels`].
@@ -132,7 +165,7 @@ pub struct DifferentiableScattering {
     fft: SquareFft,
     labels: Vec<CoefficientLabel>,
     /// FFT plans of the coarse grids and cropped wavelets, for the tile path.
-    pub(crate) grids: super::tile_gradient::CoarseGrids,
+    pub(crate) grids: CoarseGrids,
 }
 
 impl std::fmt::Debug for DifferentiableScattering {
@@ -168,12 +201,12 @@ impl DifferentiableScattering {
         Ok(Self::from_bank(bank))
     }
 
-    /// Build around an existing bank (e.g. a clone of a [`crate::transform::ScatteringEngine`]'s).
+    /// Build around an existing bank (e.g. a clone of a [`crate::scattering::transform::ScatteringEngine`]'s).
     pub fn from_bank(bank: MorletBank) -> Self {
         let (jn, ln) = (bank.scale_count(), bank.orientation_count());
-        let labels = crate::statistics::coefficient_labels(jn, ln);
+        let labels = crate::scattering::statistics::coefficient_labels(jn, ln);
         let fft = SquareFft::new(bank.size());
-        let grids = super::tile_gradient::CoarseGrids::new(&bank);
+        let grids = CoarseGrids::new(&bank);
         Self {
             bank,
             fft,
@@ -192,7 +225,7 @@ impl DifferentiableScattering {
         self.bank.size()
     }
 
-    /// Coefficient labels, same order as [`crate::transform::ScatteringEngine::labels`].
+    /// Coefficient labels, same order as [`crate::scattering::transform::ScatteringEngine::labels`].
     pub fn labels(&self) -> &[CoefficientLabel] {
         &self.labels
     }

@@ -5,12 +5,12 @@
 //!
 //! The variables are the values m_p of the map pixels p inside the footprint (weight > 0);
 //! every other pixel keeps its start value and is never changed. The statistics are the pooled
-//! coefficients of [`crate::measurement::SphereMeasurer::measure`]: per tile t, the field is
+//! coefficients of [`crate::measure::measurement::SphereMeasurer::measure`]: per tile t, the field is
 //! f_t = S_t m (the tile sampling as a sparse linear operator,
-//! [`crate::sampling::TileSamplingOperator`]), the taper a_t = footprint × border window and the
+//! [`crate::tiles::sampling::TileSamplingOperator`]), the taper a_t = footprint × border window and the
 //! pooling weight w_t = a_t·Ω·[core] are fixed by the footprint, and the masked-tile transform
 //! returns per coefficient i a weighted sum Σ_t,i and a kept weight W_t,i (which depends on the
-//! taper only). Pooled over tiles (in plan order, [`crate::pooling`]):
+//! taper only). Pooled over tiles (in plan order, [`crate::scattering::pooling`]):
 //!
 //! c_i = Σ_t Σ_t,i / Σ_t W_t,i (and the variance c_1 = Σ_t Σ_t,1 / W_1 − c_0²).
 //!
@@ -58,21 +58,21 @@
 //! optimiser), in the units x = (m − μ_t)/σ_t of the target's pooled mean and standard
 //! deviation. Start maps (seeded): a Gaussian sky with the target map's pseudo-C_ℓ on the
 //! footprint (w2-corrected, Hivon et al. 2002 first-order correction as in
-//! [`crate::spectra::angular_spectrum`]) synthesised by [`crate::skies::SkyRecipe`], plus the
+//! [`crate::harmonics::spectra::angular_spectrum`]) synthesised by [`crate::simulate::skies::SkyRecipe`], plus the
 //! target mean; or white noise of the target's mean and variance. The reflection remedy of the
 //! flat synthesis is not applied: reflecting the footprint alone would change the tiles that
 //! straddle its edge.
 
 use super::{minimise, Normalisation, StartField, StatisticChoice, SummaryMap, SynthesisSettings};
-use crate::footprint::Footprint;
+use crate::harmonics::spectrum::AngularSpectrum;
 use crate::harmonics::HarmonicTransform;
-use crate::measurement::{MeasurementSettings, SphereMeasurer};
-use crate::pixelization::Pixelization;
-use crate::pooling::{combine_tiles, TileSums};
-use crate::sampling::{TileSampler, TileSamplingOperator};
-use crate::skies::SkyRecipe;
-use crate::skymap::SkyMap;
-use crate::spectrum::AngularSpectrum;
+use crate::measure::measurement::{MeasurementSettings, SphereMeasurer};
+use crate::scattering::pooling::{combine_tiles, TileSums};
+use crate::simulate::skies::SkyRecipe;
+use crate::sky::footprint::Footprint;
+use crate::sky::pixelization::Pixelization;
+use crate::sky::skymap::SkyMap;
+use crate::tiles::sampling::{TileSampler, TileSamplingOperator};
 use crate::{Error, Result};
 use rand::SeedableRng;
 use rand_chacha::ChaCha20Rng;
@@ -788,13 +788,13 @@ impl SphereSynthesis {
     }
 }
 
-/// Pseudo-C_ℓ of `map` on `footprint` (w2-corrected, [`crate::spectra::angular_spectrum`], ℓmax
+/// Pseudo-C_ℓ of `map` on `footprint` (w2-corrected, [`crate::harmonics::spectra::angular_spectrum`], ℓmax
 /// = 3·NSIDE − 1, 3 Jacobi iterations, per ℓ), monopole and dipole set to 0 and negative
 /// estimates clipped to 0 so that it can colour a Gaussian sky.
 pub fn footprint_spectrum(map: &SkyMap, footprint: &Footprint) -> Result<AngularSpectrum> {
     let nside = map.nside() as usize;
     let sht = HarmonicTransform::new(nside, 3 * nside - 1)?;
-    let measured = crate::spectra::angular_spectrum(map, Some(footprint), &sht, 3, 1)?;
+    let measured = crate::harmonics::spectra::angular_spectrum(map, Some(footprint), &sht, 3, 1)?;
     let cl = measured
         .cl
         .iter()

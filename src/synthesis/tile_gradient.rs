@@ -1,12 +1,12 @@
-//! The masked-tile scattering estimator of [`crate::transform`] made differentiable: its
+//! The masked-tile scattering estimator of [`crate::scattering::transform`] made differentiable: its
 //! weighted sums on one tile (taper a, pooling weight w, optional Fourier cropping) and the
 //! gradient of any linear combination of them with respect to the field (reverse mode, by
 //! hand).
 //!
 //! # Forward pass
 //!
-//! Exactly the estimator of [`crate::transform::ScatteringEngine::transform_tile`], with the
-//! same settings and layout ([`crate::pooling::TileSums`]). With n the tile side, N = n²,
+//! Exactly the estimator of [`crate::scattering::transform::ScatteringEngine::transform_tile`], with the
+//! same settings and layout ([`crate::scattering::pooling::TileSums`]). With n the tile side, N = n²,
 //! first-layer level d_j and second-layer level d′_j of scale j, m_j = n/2^{d_j},
 //! m′_j = n/2^{d′_j}, M_j = m_j², lower-case x the fine pixels and upper-case X the pixels of a
 //! coarse grid (every 2^d-th fine pixel):
@@ -62,10 +62,9 @@
 //! no cropping this is the periodic transform of [`super::gradient`] up to the pooling by sums
 //! instead of means.
 
-use super::gradient::{second_order_index, DifferentiableScattering, SquareFft};
-use crate::filters::MorletBank;
-use crate::pooling::TileSums;
-use crate::transform::{
+use super::gradient::{second_order_index, DifferentiableScattering};
+use crate::scattering::pooling::TileSums;
+use crate::scattering::transform::{
     band_boxes, check_taper_and_weight, check_values, crop_box, crop_levels_for, subsample,
     validate_settings, BandBox, Boxes, TileView, TransformSettings, COVERAGE_FLOOR,
 };
@@ -73,38 +72,6 @@ use crate::{Error, Result};
 use num_complex::Complex64;
 use rayon::prelude::*;
 use std::sync::Arc;
-
-/// FFT plans of every coarse grid and the wavelets cropped to them (built once per transform).
-pub(crate) struct CoarseGrids {
-    /// Plans of the grids n / 2^d, d = 0 ..= log2(n) − 3.
-    ffts: Vec<SquareFft>,
-    /// `wavelets[d][j·L + l]`: ψ̂_{j,l} cropped to the (n/2^d)² box; empty for d = 0 or d > j.
-    wavelets: Vec<Vec<Vec<f64>>>,
-}
-
-impl CoarseGrids {
-    pub(crate) fn new(bank: &MorletBank) -> Self {
-        let n = bank.size();
-        let (jn, ln) = (bank.scale_count(), bank.orientation_count());
-        let max_level = crate::filters::coarsest_level(n, 8);
-        let ffts = (0..=max_level).map(|d| SquareFft::new(n >> d)).collect();
-        let wavelets = (0..=max_level)
-            .map(|d| {
-                (0..jn * ln)
-                    .map(|i| {
-                        let j = i / ln;
-                        if d == 0 || d > j {
-                            Vec::new()
-                        } else {
-                            crop_box(bank.wavelet(j, i % ln), n, n >> d)
-                        }
-                    })
-                    .collect()
-            })
-            .collect();
-        Self { ffts, wavelets }
-    }
-}
 
 struct GeometryData {
     size: usize,
@@ -166,14 +133,14 @@ impl TileGeometry {
         self.inner.size
     }
 
-    /// Crop level d_j of each scale, as [`crate::transform::ScatteringEngine::crop_levels`]
+    /// Crop level d_j of each scale, as [`crate::scattering::transform::ScatteringEngine::crop_levels`]
     /// (all zero without Fourier cropping).
     pub fn crop_levels(&self) -> &[usize] {
         &self.inner.second_levels
     }
 
     /// First-layer level of each scale, as
-    /// [`crate::transform::ScatteringEngine::first_layer_levels`].
+    /// [`crate::scattering::transform::ScatteringEngine::first_layer_levels`].
     pub fn first_layer_levels(&self) -> &[usize] {
         &self.inner.levels
     }
@@ -191,7 +158,7 @@ impl TileGeometry {
 
 /// A forward pass of the masked estimator on one tile, with what its backward pass needs.
 pub struct TileForward {
-    /// Weighted sums and weights, as [`crate::transform::ScatteringEngine::transform_tile`].
+    /// Weighted sums and weights, as [`crate::scattering::transform::ScatteringEngine::transform_tile`].
     pub sums: TileSums,
     geometry: TileGeometry,
     field: Vec<f64>,
@@ -233,7 +200,7 @@ impl TileForward {
     }
 }
 
-/// Pooled values of (combined) tile sums, as [`crate::pooling::pooled_coefficients`]:
+/// Pooled values of (combined) tile sums, as [`crate::scattering::pooling::pooled_coefficients`]:
 /// c_i = Σ W h / Σ W, and for the variance Σ w f² / Σ w − c_0². NaN where the weight is zero.
 pub fn pooled_values(sums: &TileSums) -> Vec<f64> {
     let mean = sums.sums[0] / sums.weights[0];
@@ -302,7 +269,7 @@ impl DifferentiableScattering {
     }
 
     /// Precompute the coverage N_j = a² ∗ K_j, the trust cut, the normalisation c_j and the
-    /// low-passed pooling weights of a tile (module documentation of [`crate::transform`]).
+    /// low-passed pooling weights of a tile (module documentation of [`crate::scattering::transform`]).
     /// Errors as the engine does on a bad taper or weight or settings out of range.
     pub fn tile_geometry(
         &self,
@@ -414,7 +381,7 @@ impl DifferentiableScattering {
     }
 
     /// Forward pass of the masked estimator on one tile: the sums equal
-    /// [`crate::transform::ScatteringEngine::transform_tile`] with the same settings (Fourier
+    /// [`crate::scattering::transform::ScatteringEngine::transform_tile`] with the same settings (Fourier
     /// cropping included when the settings ask for it).
     pub fn forward_tile(
         &self,

@@ -3,7 +3,7 @@
 
 use fitsio::tables::{ColumnDataType, ColumnDescription};
 use fitsio::FitsFile;
-use planisphere::fits_io::{write_map, WriteOptions};
+use planisphere::io::fits_io::{write_map, WriteOptions};
 use planisphere::{Ordering, Pixelization, SkyMap};
 use std::path::{Path, PathBuf};
 

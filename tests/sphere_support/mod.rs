@@ -1,13 +1,13 @@
 //! Shared pieces of the sphere-level checks: spectra, footprints and flat-sky counterparts.
 #![allow(dead_code)]
 
-use planisphere::apodization::{apodize, TaperKind};
-use planisphere::flat::{gaussian_random_field, periodic_coefficients};
-use planisphere::measurement::{MeasurementSettings, SphereMeasurer};
-use planisphere::skies::SkyRecipe;
-use planisphere::spectrum::AngularSpectrum;
-use planisphere::statistics::CoefficientSet;
-use planisphere::transform::ScatteringEngine;
+use planisphere::harmonics::spectrum::AngularSpectrum;
+use planisphere::measure::flat::{gaussian_random_field, periodic_coefficients};
+use planisphere::measure::measurement::{MeasurementSettings, SphereMeasurer};
+use planisphere::scattering::statistics::CoefficientSet;
+use planisphere::scattering::transform::ScatteringEngine;
+use planisphere::simulate::skies::SkyRecipe;
+use planisphere::sky::apodization::{apodize, TaperKind};
 use planisphere::{Direction, Footprint, Ordering, Pixelization};
 
 /// The spectrum of every sphere check: the demo model (ℓ² C_ℓ falling slowly, so the smallest

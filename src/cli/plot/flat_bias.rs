@@ -10,9 +10,9 @@
 //! where a bias becomes significant at about 95% (common practice).
 
 use super::check_output;
-use crate::charts::{palette, Axis, ChartPoint, Figure, MarkerShape, Panel, Series};
 use crate::error::{Error, Result};
-use crate::flat_comparison::FlatComparisonRow;
+use crate::figures::charts::{palette, Axis, ChartPoint, Figure, MarkerShape, Panel, Series};
+use crate::measure::flat_comparison::FlatComparisonRow;
 use std::path::{Path, PathBuf};
 
 /// Options of `plot flat-bias`.

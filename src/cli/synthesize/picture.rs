@@ -4,11 +4,11 @@
 //! one-point histograms and the peak counts of target, Gaussian sky and result beside them.
 
 use crate::error::{Error, Result};
-use crate::footprint::Footprint;
-use crate::pixelization::Direction;
-use crate::plotting::{colour_ramp, SkyPicture, FONT_FAMILY};
-use crate::projection::Gnomonic;
-use crate::skymap::SkyMap;
+use crate::figures::plotting::{colour_ramp, SkyPicture, FONT_FAMILY};
+use crate::sky::footprint::Footprint;
+use crate::sky::pixelization::Direction;
+use crate::sky::skymap::SkyMap;
+use crate::tiles::projection::Gnomonic;
 use plotters::prelude::*;
 use std::path::{Path, PathBuf};
 
@@ -70,7 +70,7 @@ pub(super) fn write_sphere_picture(
     (lo, hi): (f64, f64),
     thresholds: &[f64],
 ) -> Result<()> {
-    crate::plotting::register_font()?;
+    crate::figures::plotting::register_font()?;
     let top_w: u32 = mollweide.iter().map(|p| p.size().0).sum();
     let top_h = mollweide.iter().map(|p| p.size().1).max().unwrap_or(0);
     let margin = 12u32;

@@ -1,0 +1,18 @@
+//! Files in the formats the pipeline reads and writes: HEALPix maps and footprints in FITS, and
+//! the JSON document of a measurement.
+//!
+//! Owns: the FITS reader and writer ([`read_map`], [`read_footprint`], [`write_map`],
+//! [`HealpixFitsReader`], [`WriteOptions`]) and the measurement document
+//! ([`measurement_document()`], [`pair_document`], [`flat_measurement_document`]).
+//!
+//! May use: [`crate::sky`], [`crate::scattering`], [`crate::measure`] and the crate's
+//! foundations. The safe writing of any file (temporary file renamed into place) is not here but
+//! in [`crate::files`], which every stage uses.
+
+pub mod fits_io;
+pub mod measurement_document;
+
+pub use fits_io::{
+    read_footprint, read_map, write_footprint, write_map, HealpixFitsReader, WriteOptions,
+};
+pub use measurement_document::{flat_measurement_document, measurement_document, pair_document};

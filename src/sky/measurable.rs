@@ -1,0 +1,49 @@
+//! Whether a sky map has anything to measure on a footprint: the check every measurement and
+//! spectrum runs on its input maps before any work starts.
+
+use crate::error::{Error, Result};
+use crate::sky::footprint::Footprint;
+use crate::sky::skymap::SkyMap;
+
+/// Checks that `map` (named `label` in messages) has something to measure on `footprint`
+/// (pixels of positive weight; all valid pixels without one): values within
+/// ±[`crate::limits::MAX_ABS_VALUE`], more than one valid pixel, and not all equal (a map
+/// without fluctuations has scattering coefficients that are ratios of rounding errors).
+pub fn check_measurable(map: &SkyMap, footprint: Option<&Footprint>, label: &str) -> Result<()> {
+    let weights = footprint
+        .filter(|f| f.pixelization() == map.pixelization())
+        .map(Footprint::weights);
+    let mut count = 0u64;
+    let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+    for (i, (&v, &ok)) in map.values().iter().zip(map.valid()).enumerate() {
+        if !ok || weights.is_some_and(|w| w[i] <= 0.0) {
+            continue;
+        }
+        if v.abs() > crate::limits::MAX_ABS_VALUE {
+            return Err(Error::Data(format!(
+                "{label}: pixel {i} holds {v:e}, beyond ±{:e}: the statistics (up to third powers summed over the sky) would overflow; rescale the map",
+                crate::limits::MAX_ABS_VALUE
+            )));
+        }
+        count += 1;
+        lo = lo.min(v);
+        hi = hi.max(v);
+    }
+    let place = if weights.is_some() {
+        "on its footprint"
+    } else {
+        "in the map"
+    };
+    match count {
+        0 => Err(Error::Data(format!(
+            "{label}: no valid pixel {place} (all UNSEEN or NaN there)"
+        ))),
+        1 => Err(Error::Data(format!(
+            "{label}: only one valid pixel {place}: there are no fluctuations to measure"
+        ))),
+        _ if hi - lo <= 1e-12 * lo.abs().max(hi.abs()) => Err(Error::Data(format!(
+            "{label}: the map has no fluctuations {place} (every valid pixel is {lo}): nothing to measure"
+        ))),
+        _ => Ok(()),
+    }
+}

@@ -1,0 +1,20 @@
+//! The sky: HEALPix pixel geometry, sky maps, survey footprints, the apodization of a footprint
+//! into a smooth taper, and the check that a map has anything to measure.
+//!
+//! Owns: [`Pixelization`] (NSIDE, RING/NESTED, directions), [`SkyMap`], [`Footprint`],
+//! [`TaperKind`] and the apodization of masks.
+//!
+//! May use: only the crate's foundations ([`crate::error`], [`crate::limits`]). Every later
+//! stage of the pipeline builds on this one.
+
+pub mod apodization;
+pub mod footprint;
+pub mod measurable;
+pub mod pixelization;
+pub mod skymap;
+
+pub use apodization::{apodize, TaperKind};
+pub use footprint::Footprint;
+pub use measurable::check_measurable;
+pub use pixelization::{Direction, Ordering, Pixelization};
+pub use skymap::SkyMap;

@@ -1,0 +1,17 @@
+//! From the sphere to the plane: the gnomonic projection, the tiling of a footprint by
+//! tangent-plane tiles, and the sampling of a map onto tile grids (and back).
+//!
+//! Owns: [`Gnomonic`], the tiling plan ([`TilingPlan`], [`TilingSettings`], [`Tile`]) and the
+//! tile sampler ([`TileSampler`], [`SamplingMethod`]).
+//!
+//! May use: [`crate::sky`] and the crate's foundations ([`crate::error`], [`crate::limits`]). It
+//! knows nothing of filters or coefficients: the tile sizes it picks are those of
+//! [`crate::limits::is_tile_size`].
+
+pub mod projection;
+pub mod sampling;
+pub mod tiling;
+
+pub use projection::Gnomonic;
+pub use sampling::{SamplingMethod, TileSampler};
+pub use tiling::{Tile, TilingPlan, TilingSettings};

@@ -1,0 +1,749 @@
+//! Latitude-band cells: an exact partition of the footprint into cores that nearly fill their
+//! tiles.
+//!
+//! The sphere is cut into two polar caps of colatitude radius R and bands of HEALPix rings
+//! between them; a ring belongs to the band that holds its colatitude, so every map pixel lies
+//! in exactly one band (Górski et al. 2005, §4: all pixel centres of a ring share one
+//! colatitude). A cap is one cell (a disc of radius R around the pole). Bands cover only the
+//! footprint's colatitude spans (runs of rings holding footprint): each span gets the fewest
+//! bands of equal height H that fit, and two spans share their bands when that takes no more
+//! bands than laying them out apart, so a wide gap such as a galactic-plane cut gets no band.
+//!
+//! A band is cut in longitude along its footprint. Its footprint pixel centres are binned in
+//! longitude (4·NSIDE bins of one equatorial pixel), each bin keeping the colatitude range of
+//! its centres (a "column"). Starting after a bin without footprint, each cell takes the
+//! longest stretch of bins whose columns fit, in the gnomonic projection about the centre of
+//! their colatitude and longitude range, in the square left by the halo (below); bins without
+//! footprint are free, so a cell may span a gap. Greedy covering gives the fewest cells of a
+//! band when a stretch that fits also fits when shortened, as it does here up to the choice of
+//! tangent point. A map pixel belongs to the cell of its longitude bin (found by the same
+//! arithmetic that binned the footprint, so a centre on a bin edge lands in the cell fitted
+//! around it); pixels of bins outside every cell are never footprint pixels and belong to no
+//! cell. Finally, cells are taken from the fewest footprint pixels up and each joins the
+//! nearest tile whose columns and its own still fit one square together (caps excepted): a
+//! tile may then own a few cells.
+//!
+//! Sizes follow from the tile: the footprint pixel centres of a core must fit, in the gnomonic
+//! projection about its tangent point, in the square |x|, |y| ≤ c = (n/2 − halo)·Δ left by the
+//! halo, with a margin m of one map spacing all round (plane pixels read the map pixel
+//! containing them, whose centre may be up to about one spacing away). A shift by m on the
+//! sphere moves a point by at most m·sec²ρ ≤ m(1 + 2c²) on the plane inside the square (radial
+//! scale of the gnomonic projection, Snyder 1987, §22), so the centres must fit in
+//! c' = c − m(1 + 2c²). Hence the caps have R = 0.995·atan c' and the bands H ≤ 0.96 ·
+//! 2 atan c' (the 4% left let a full-height cell still grow in longitude). Meridians are
+//! straight lines in the gnomonic plane and parallels conics; a column's outline is checked at
+//! its corners and the middle of its top and bottom (a bin is one equatorial pixel wide).
+//!
+//! Because cells follow the footprint and nearly fill their squares, the plane pixels
+//! transformed per footprint pixel approach (n / (n − 2·halo))² instead of the factor of about
+//! two of a diamond-shaped core plus its surrounding square.
+
+use crate::error::{Error, Result};
+use crate::sky::footprint::Footprint;
+use crate::sky::pixelization::{
+    ring_and_position, ring_info, ring_pixel_phi, ring_theta, Direction, Ordering, Pixelization,
+};
+use crate::tiles::projection::Gnomonic;
+use std::f64::consts::{PI, TAU};
+
+/// Points sampled along each side of a cell's outline when fitting it into its tile.
+const OUTLINE_SAMPLES: usize = 24;
+
+/// Fraction of the largest fitting height given to a band (the rest absorbs the curvature of
+/// its parallels at the cell corners).
+const BAND_HEIGHT_FILL: f64 = 0.96;
+
+/// A tile of merged cells: its (band, cell) members, tangent point, largest |x| or |y| and
+/// largest x² + y² of its footprint.
+type MergedTile = (Vec<(usize, usize)>, Direction, f64, f64);
+
+/// One band of rings and its cells.
+#[derive(Debug, Clone)]
+struct Band {
+    /// First and last ring (inclusive, HEALPix ring numbers).
+    rings: (u64, u64),
+    /// Colatitudes of the band's northern and southern edges.
+    theta: (f64, f64),
+    /// Colatitude of the tangent points of the band's cells.
+    theta_center: f64,
+    /// Cells in increasing longitude: cell k spans [start_k, end_k); starts lie in
+    /// [starts[0], starts[0] + 2π).
+    starts: Vec<f64>,
+    ends: Vec<f64>,
+    /// Tile index of each cell (None: the cell holds no footprint pixel and is dropped).
+    tiles: Vec<Option<usize>>,
+    /// Tangent point of each cell (for a cap, the pole).
+    centers: Vec<Direction>,
+    /// Largest |x| or |y| and largest x² + y² of each cell's footprint in its tile's plane
+    /// (radians).
+    reach: Vec<(f64, f64)>,
+    /// Footprint columns of each cell: [θ_min, θ_max, φ_0, φ_1] of the footprint pixel centres
+    /// in each longitude bin (φ unwrapped within the cell; empty for a cap).
+    columns: Vec<Vec<[f64; 4]>>,
+    /// Cell of each longitude bin (empty for a cap or a band without cells).
+    bin_cell: Vec<Option<u32>>,
+    /// Is the band a polar cap (one cell, tangent at the pole)?
+    cap: bool,
+}
+
+impl Band {
+    /// The cell holding longitude φ ∈ [0, 2π), if any.
+    /// The longitude bin is found by the same arithmetic that binned the footprint, so a pixel
+    /// centre on a bin edge lands in the cell that was fitted around it.
+    fn cell_of(&self, phi: f64) -> Option<usize> {
+        if self.cap {
+            return Some(0);
+        }
+        let nb = self.bin_cell.len();
+        if nb == 0 {
+            return None;
+        }
+        let k = ((phi / TAU * nb as f64).floor() as usize).min(nb - 1);
+        self.bin_cell[k].map(|c| c as usize)
+    }
+}
+
+/// A cell of the layout, as seen by the plan.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct BandCell {
+    pub center: Direction,
+    pub footprint_weight: f64,
+    pub footprint_pixels: u64,
+    pub pixels: u64,
+    pub half_width: f64,
+    pub distortion: f64,
+}
+
+/// The latitude-band layout of one footprint.
+#[derive(Debug, Clone)]
+pub(crate) struct LatitudeBands {
+    nside: u64,
+    bands: Vec<Band>,
+    /// Band of each ring (index ring − 1).
+    band_of_ring: Vec<usize>,
+    /// (band, cell) of the cells of each tile.
+    tile_cells: Vec<Vec<(usize, usize)>>,
+}
+
+/// Largest |x| or |y| and largest x² + y² of the outline of the region θ ∈ [t0, t1],
+/// φ ∈ [p0, p1] (p0 < p1, relative to the tangent point's longitude) in the gnomonic projection
+/// about `proj`; `None` when part of it is a hemisphere away.
+fn outline_extent(proj: &Gnomonic, t0: f64, t1: f64, p0: f64, p1: f64) -> Option<(f64, f64)> {
+    let phi0 = proj.center().phi;
+    let mut half = 0.0f64;
+    let mut r2 = 0.0f64;
+    let k = OUTLINE_SAMPLES;
+    for s in 0..=k {
+        let u = s as f64 / k as f64;
+        let theta = t0 + (t1 - t0) * u;
+        let phi = p0 + (p1 - p0) * u;
+        for (t, p) in [(theta, p0), (theta, p1), (t0, phi), (t1, phi)] {
+            let (x, y) = proj.forward(Direction::new(t.clamp(0.0, PI), phi0 + p))?;
+            half = half.max(x.abs()).max(y.abs());
+            r2 = r2.max(x * x + y * y);
+        }
+    }
+    Some((half, r2))
+}
+
+impl LatitudeBands {
+    /// Lays out the cells of `footprint` (a map of NSIDE `nside`) for tiles whose cores must fit
+    /// in |x|, |y| ≤ `core_half` (radians of the tangent plane), with a margin of `margin`
+    /// radians all round. Returns the layout and its cells, one per tile, in tile order (bands
+    /// from north to south, cells in increasing longitude).
+    pub(crate) fn new(
+        footprint: &Footprint,
+        core_half: f64,
+        margin: f64,
+    ) -> Result<(Self, Vec<BandCell>)> {
+        let fp_pix = footprint.pixelization();
+        let nside = fp_pix.nside() as u64;
+        // Room for the ungrown cell: moving a point by m on the sphere moves it by at most
+        // m·sec²ρ ≤ m(1 + 2c²) on the plane within the square (radial scale, Snyder 1987, §22).
+        let room = core_half - margin * (1.0 + 2.0 * core_half * core_half);
+        if room.is_nan() || room <= 0.0 {
+            return Err(Error::Setting(format!(
+                "the tile leaves no room for a core: its core half-width of {:.4}° is below the \
+                 margin of one map spacing ({:.4}°); use larger tiles or a smaller halo",
+                core_half.atan().to_degrees(),
+                margin.to_degrees()
+            )));
+        }
+        let reach = room.atan();
+        // The footprint's extent in colatitude, by rings.
+        let ring_count = 4 * nside - 1;
+        let ring_pix = Pixelization::new(nside as u32, Ordering::Ring)?;
+        let weights = footprint.weights();
+        // weight of the footprint at RING pixel p
+        let weight_at = |p: u64| -> Result<f64> {
+            Ok(match fp_pix.ordering() {
+                Ordering::Ring => weights[p as usize],
+                Ordering::Nested => weights[fp_pix.from_nested(ring_pix.to_nested(p)?)? as usize],
+            })
+        };
+        let mut ring_occupied = vec![false; ring_count as usize];
+        for i in 1..=ring_count {
+            let (first, len, _) = ring_info(nside, i);
+            for j in 0..len {
+                if weight_at(first + j)? > 0.0 {
+                    ring_occupied[(i - 1) as usize] = true;
+                    break;
+                }
+            }
+        }
+        // The footprint's colatitude spans: runs of rings holding footprint, each grown by half
+        // a spacing, cut to the caps of radius R at the poles (a cap is one cell).
+        let cap_radius = (0.995 * reach).min(PI / 2.0);
+        let mut spans: Vec<(f64, f64)> = Vec::new();
+        let mut i = 0usize;
+        while i < ring_occupied.len() {
+            if !ring_occupied[i] {
+                i += 1;
+                continue;
+            }
+            let first = i;
+            while i < ring_occupied.len() && ring_occupied[i] {
+                i += 1;
+            }
+            spans.push((
+                ring_theta(nside, first as u64 + 1) - 0.5 * margin,
+                ring_theta(nside, i as u64) + 0.5 * margin,
+            ));
+        }
+        let (Some(&(north, _)), Some(&(_, south))) = (spans.first(), spans.last()) else {
+            return Err(Error::Data(
+                "the mask is empty (no pixel has positive weight)".into(),
+            ));
+        };
+        let north_cap = north < cap_radius;
+        let south_cap = south > PI - cap_radius;
+        let spans: Vec<(f64, f64)> = spans
+            .into_iter()
+            .map(|(a, b)| (a.max(cap_radius), b.min(PI - cap_radius)))
+            .filter(|(a, b)| b > a)
+            .collect();
+        // Bands of equal height over each span; two spans share their bands when that takes no
+        // more bands than laying them out apart (so a wide gap, such as a galactic-plane cut,
+        // gets no band, and a narrow one costs nothing).
+        let height = BAND_HEIGHT_FILL * 2.0 * reach;
+        let bands_for = |a: f64, b: f64| ((b - a) / height).ceil().max(1.0);
+        let mut merged: Vec<(f64, f64)> = Vec::new();
+        for (a, b) in spans {
+            if let Some(last) = merged.last_mut() {
+                if a <= last.1
+                    || bands_for(last.0, b) <= bands_for(last.0, last.1) + bands_for(a, b)
+                {
+                    last.1 = last.1.max(b);
+                    continue;
+                }
+            }
+            merged.push((a, b));
+        }
+        // Slot edges: the north cap (or nothing) down to the first span, the bands of each span,
+        // the gaps between spans (no footprint: empty slots), down to the south cap (or nothing).
+        let mut edges = vec![0.0];
+        if north_cap {
+            edges.push(cap_radius);
+        }
+        for &(a, b) in &merged {
+            if a > edges[edges.len() - 1] {
+                edges.push(a);
+            }
+            let count = bands_for(a, b) as usize;
+            for k in 1..=count {
+                edges.push(a + (b - a) * k as f64 / count as f64);
+            }
+        }
+        if south_cap && edges[edges.len() - 1] < PI - cap_radius {
+            edges.push(PI - cap_radius);
+        }
+        if edges[edges.len() - 1] < PI {
+            edges.push(PI);
+        }
+        // Rings to bands (a band without rings is skipped).
+        let mut bands: Vec<Band> = Vec::new();
+        let mut band_of_ring = Vec::with_capacity(ring_count as usize);
+        let slots = edges.len() - 1;
+        let mut slot_band: Vec<Option<usize>> = vec![None; slots];
+        let ring_thetas: Vec<f64> = (1..=ring_count).map(|i| ring_theta(nside, i)).collect();
+        for i in 1..=ring_count {
+            let theta = ring_thetas[(i - 1) as usize];
+            let slot = edges[1..].partition_point(|&e| e <= theta).min(slots - 1);
+            let b = match slot_band[slot] {
+                Some(b) => b,
+                None => {
+                    let cap = (slot == 0 && north_cap) || (slot == slots - 1 && south_cap);
+                    let (t0, t1) = (edges[slot], edges[slot + 1]);
+                    bands.push(Band {
+                        rings: (i, i),
+                        theta: (t0, t1),
+                        theta_center: if cap && slot == 0 {
+                            0.0
+                        } else if cap {
+                            PI
+                        } else {
+                            0.5 * (t0 + t1)
+                        },
+                        starts: Vec::new(),
+                        ends: Vec::new(),
+                        tiles: Vec::new(),
+                        centers: Vec::new(),
+                        reach: Vec::new(),
+                        columns: Vec::new(),
+                        bin_cell: Vec::new(),
+                        cap,
+                    });
+                    slot_band[slot] = Some(bands.len() - 1);
+                    bands.len() - 1
+                }
+            };
+            bands[b].rings.1 = i;
+            band_of_ring.push(b);
+        }
+        // Footprint pixel centres per band, binned in longitude (bins of one equatorial pixel
+        // width): the colatitude range of the footprint pixels whose centre lies in each bin.
+        let bin_count = (4 * nside as usize).max(64);
+        let mut extents: Vec<Vec<Option<(f64, f64)>>> = vec![Vec::new(); bands.len()];
+        let mut cap_occupied = vec![false; bands.len()];
+        let nb = bin_count as f64;
+        for i in 1..=ring_count {
+            let b = band_of_ring[(i - 1) as usize];
+            if !ring_occupied[(i - 1) as usize] {
+                continue;
+            }
+            if bands[b].cap {
+                cap_occupied[b] = true;
+                continue;
+            }
+            if extents[b].is_empty() {
+                extents[b] = vec![None; bin_count];
+            }
+            let theta = ring_thetas[(i - 1) as usize];
+            let (first, len, _) = ring_info(nside, i);
+            for j in 0..len {
+                if weight_at(first + j)? <= 0.0 {
+                    continue;
+                }
+                let phi = ring_pixel_phi(nside, i, j);
+                let k = ((phi / TAU * nb).floor() as usize).min(bin_count - 1);
+                let e = &mut extents[b][k];
+                *e = Some(match *e {
+                    Some((lo, hi)) => (lo.min(theta), hi.max(theta)),
+                    None => (theta, theta),
+                });
+            }
+        }
+        // Cells of every band: caps whole, other bands cut greedily along the footprint.
+        for (b, band) in bands.iter_mut().enumerate() {
+            if band.cap {
+                if cap_occupied[b] {
+                    band.starts = vec![0.0];
+                    band.ends = vec![TAU];
+                    let center = Direction::new(band.theta_center, 0.0);
+                    let (t0, t1) = band.theta;
+                    let reach = outline_extent(&Gnomonic::new(center), t0, t1, -PI, PI)
+                        .filter(|&(half, _)| half <= room)
+                        .ok_or_else(|| {
+                            Error::Geometry(format!(
+                                "the polar cap of {:.3}° does not fit its tile",
+                                (t1 - t0).to_degrees()
+                            ))
+                        })?;
+                    band.reach = vec![reach];
+                    band.centers = vec![center];
+                    band.columns = vec![Vec::new()];
+                }
+                continue;
+            }
+            if extents[b].is_empty() {
+                continue;
+            }
+            // (a band whose single longitude bin does not fit is refused there)
+            Self::greedy_cells(band, &extents[b], room)?;
+        }
+        // Count pixels and footprint weight per cell.
+        let mut weight: Vec<Vec<f64>> = bands.iter().map(|b| vec![0.0; b.starts.len()]).collect();
+        let mut count: Vec<Vec<u64>> = bands.iter().map(|b| vec![0; b.starts.len()]).collect();
+        let mut pixels: Vec<Vec<u64>> = bands.iter().map(|b| vec![0; b.starts.len()]).collect();
+        for (b, band) in bands.iter().enumerate() {
+            if band.starts.is_empty() {
+                continue;
+            }
+            for i in band.rings.0..=band.rings.1 {
+                let (first, len, _) = ring_info(nside, i);
+                for j in 0..len {
+                    if let Some(k) = band.cell_of(ring_pixel_phi(nside, i, j)) {
+                        pixels[b][k] += 1;
+                        let w = weight_at(first + j)?;
+                        if w > 0.0 {
+                            weight[b][k] += w;
+                            count[b][k] += 1;
+                        }
+                    }
+                }
+            }
+        }
+        // Tiles: cells with footprint, small ones merged into their neighbours' tiles.
+        let mut cells = Vec::new();
+        let mut tile_cells = Vec::new();
+        for band in bands.iter_mut() {
+            band.tiles = vec![None; band.starts.len()];
+        }
+        for (members, center, half_width, r2) in Self::merge_cells(&bands, &count, room) {
+            let mut cell = BandCell {
+                center,
+                footprint_weight: 0.0,
+                footprint_pixels: 0,
+                pixels: 0,
+                half_width,
+                distortion: 1.0 + r2,
+            };
+            for &(b, k) in &members {
+                bands[b].tiles[k] = Some(cells.len());
+                cell.footprint_weight += weight[b][k];
+                cell.footprint_pixels += count[b][k];
+                cell.pixels += pixels[b][k];
+            }
+            tile_cells.push(members);
+            cells.push(cell);
+        }
+        Ok((
+            LatitudeBands {
+                nside,
+                bands,
+                band_of_ring,
+                tile_cells,
+            },
+            cells,
+        ))
+    }
+
+    /// Cuts a band into cells along its footprint: starting after a free longitude bin, each
+    /// cell takes the longest stretch of bins whose footprint pixel centres fit, in the gnomonic
+    /// projection about the centre of their colatitude and longitude range, in |x|, |y| ≤ `room`
+    /// (bins without footprint are free: a cell may span a gap, or end before it). Greedy covering
+    /// of an interval by feasible pieces gives the fewest cells when feasibility is inherited by
+    /// sub-intervals, as it is here up to the choice of tangent point. Fills the band's `starts`,
+    /// `ends` (radians, sorted by start, in [starts[0], starts[0] + 2π)) and `centers`.
+    fn greedy_cells(band: &mut Band, bins: &[Option<(f64, f64)>], room: f64) -> Result<()> {
+        let nb = bins.len();
+        let bw = TAU / nb as f64;
+        let Some(first_free) = bins.iter().position(|e| e.is_none()) else {
+            // every bin holds footprint: start anywhere
+            return Self::cover(band, bins, 0, nb, bw, room);
+        };
+        // start at the first occupied bin after a free one (no cell then wraps past its start)
+        let mut start = None;
+        for k in 1..=nb {
+            let i = (first_free + k) % nb;
+            if bins[i].is_some() {
+                start = Some(first_free + k);
+                break;
+            }
+        }
+        match start {
+            Some(s) => Self::cover(band, bins, s, s + nb - (s - first_free), bw, room),
+            None => Ok(()),
+        }
+    }
+
+    /// The footprint columns of bins [s, e) (indices modulo the bin count, longitudes
+    /// unwrapped from bin s on).
+    fn bin_columns(bins: &[Option<(f64, f64)>], s: usize, e: usize, bw: f64) -> Vec<[f64; 4]> {
+        let nb = bins.len();
+        (s..e)
+            .filter_map(|k| bins[k % nb].map(|(a, b)| [a, b, k as f64 * bw, (k + 1) as f64 * bw]))
+            .collect()
+    }
+
+    /// The tangent point of a set of footprint columns (the centre of their colatitude and
+    /// longitude range) and the largest |x| or |y| and x² + y² of the columns' outlines in the
+    /// gnomonic projection about it; `None` when there is no column or some point is a
+    /// hemisphere away.
+    fn columns_extent(columns: &[[f64; 4]]) -> Option<(Direction, f64, f64)> {
+        let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+        let (mut p0, mut p1) = (f64::INFINITY, f64::NEG_INFINITY);
+        for c in columns {
+            lo = lo.min(c[0]);
+            hi = hi.max(c[1]);
+            p0 = p0.min(c[2]);
+            p1 = p1.max(c[3]);
+        }
+        if columns.is_empty() || p1 - p0 >= PI {
+            return None;
+        }
+        let center = Direction::new(0.5 * (lo + hi), (0.5 * (p0 + p1)).rem_euclid(TAU));
+        let proj = Gnomonic::new(center);
+        let (mut half, mut r2) = (0.0f64, 0.0f64);
+        for c in columns {
+            for t in [c[0], c[1]] {
+                for q in [c[2], 0.5 * (c[2] + c[3]), c[3]] {
+                    let (x, y) = proj.forward(Direction::new(t, q.rem_euclid(TAU)))?;
+                    half = half.max(x.abs()).max(y.abs());
+                    r2 = r2.max(x * x + y * y);
+                }
+            }
+        }
+        Some((center, half, r2))
+    }
+
+    /// Greedy cells over bins [from, to) (indices modulo the bin count); see
+    /// [`LatitudeBands::greedy_cells`].
+    fn cover(
+        band: &mut Band,
+        bins: &[Option<(f64, f64)>],
+        from: usize,
+        to: usize,
+        bw: f64,
+        room: f64,
+    ) -> Result<()> {
+        let nb = bins.len();
+        let fits = |s: usize, e: usize| {
+            Self::columns_extent(&Self::bin_columns(bins, s, e, bw))
+                .is_some_and(|(_, h, _)| h <= room)
+        };
+        let mut cells: Vec<(usize, usize)> = Vec::new();
+        let mut s = from;
+        while s < to {
+            if bins[s % nb].is_none() {
+                s += 1;
+                continue;
+            }
+            if !fits(s, s + 1) {
+                return Err(Error::Geometry(format!(
+                    "a band of {:.3}° at colatitude {:.2}° does not fit its tile",
+                    (band.theta.1 - band.theta.0).to_degrees(),
+                    band.theta_center.to_degrees()
+                )));
+            }
+            // largest e ≤ to with [s, e) fitting: doubling, then bisection
+            let (mut good, mut step) = (s + 1, 1usize);
+            let mut bad = loop {
+                let e = (s + 1 + step).min(to);
+                if !fits(s, e) {
+                    break e;
+                }
+                good = e;
+                if e == to {
+                    break to + 1;
+                }
+                step *= 2;
+            };
+            while bad > good + 1 {
+                let mid = (good + bad) / 2;
+                if fits(s, mid) {
+                    good = mid;
+                } else {
+                    bad = mid;
+                }
+            }
+            // end the cell after its last footprint bin
+            let mut e = good;
+            while e > s + 1 && bins[(e - 1) % nb].is_none() {
+                e -= 1;
+            }
+            cells.push((s, e));
+            s = e;
+        }
+        type Span = (
+            f64,
+            f64,
+            Direction,
+            (f64, f64),
+            Vec<[f64; 4]>,
+            (usize, usize),
+        );
+        let mut spans: Vec<Span> = Vec::with_capacity(cells.len());
+        for (s, e) in cells {
+            let columns = Self::bin_columns(bins, s, e, bw);
+            let (center, half, r2) = Self::columns_extent(&columns).ok_or_else(|| {
+                Error::Geometry("a cell reaches a hemisphere from its centre".into())
+            })?;
+            let shift = ((s as f64 * bw) / TAU).floor() * TAU;
+            spans.push((
+                s as f64 * bw - shift,
+                e as f64 * bw - shift,
+                center,
+                (half, r2),
+                columns,
+                (s, e),
+            ));
+        }
+        spans.sort_by_key(|c| c.5 .0 % nb);
+        band.bin_cell = vec![None; nb];
+        for (c, span) in spans.iter().enumerate() {
+            for k in span.5 .0..span.5 .1 {
+                band.bin_cell[k % nb] = Some(c as u32);
+            }
+        }
+        band.starts = spans.iter().map(|c| c.0).collect();
+        band.ends = spans.iter().map(|c| c.1).collect();
+        band.centers = spans.iter().map(|c| c.2).collect();
+        band.reach = spans.iter().map(|c| c.3).collect();
+        band.columns = spans.into_iter().map(|c| c.4).collect();
+        Ok(())
+    }
+
+    /// Merges small cells into neighbouring tiles: cells are taken from the fewest footprint
+    /// pixels up (ties by band and cell), and each joins the nearest tile (by tangent point)
+    /// whose footprint columns and its own still fit together in |x|, |y| ≤ `room` about the
+    /// centre of their joint range. Caps take no part. Returns the tiles as lists of
+    /// (band, cell) with their tangent point and extent, in the order of their first cell.
+    fn merge_cells(bands: &[Band], count: &[Vec<u64>], room: f64) -> Vec<MergedTile> {
+        struct Group {
+            cells: Vec<(usize, usize)>,
+            columns: Vec<[f64; 4]>,
+            center: Direction,
+            half: f64,
+            r2: f64,
+            pixels: u64,
+            cap: bool,
+            alive: bool,
+        }
+        let mut groups: Vec<Group> = Vec::new();
+        for (b, (band, band_count)) in bands.iter().zip(count).enumerate() {
+            for (k, &pixels) in band_count.iter().enumerate() {
+                if pixels == 0 {
+                    continue;
+                }
+                groups.push(Group {
+                    cells: vec![(b, k)],
+                    columns: band.columns[k].clone(),
+                    center: band.centers[k],
+                    half: band.reach[k].0,
+                    r2: band.reach[k].1,
+                    pixels,
+                    cap: band.cap,
+                    alive: true,
+                });
+            }
+        }
+        // a tile's core reaches at most √2·atan(room) from its tangent point: two cores can
+        // only share a square when their tangent points are closer than twice that
+        let near = 2.0 * std::f64::consts::SQRT_2 * room.atan();
+        let mut order: Vec<usize> = (0..groups.len()).filter(|&g| !groups[g].cap).collect();
+        order.sort_by_key(|&g| (groups[g].pixels, groups[g].cells[0]));
+        for g in order {
+            if !groups[g].alive {
+                continue;
+            }
+            let mut partners: Vec<(f64, usize)> = groups
+                .iter()
+                .enumerate()
+                .filter(|(h, o)| *h != g && o.alive && !o.cap)
+                .map(|(h, o)| (o.center.distance(&groups[g].center), h))
+                .filter(|&(d, _)| d < near)
+                .collect();
+            partners.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+            for (_, h) in partners {
+                // all longitudes unwrapped next to the partner's first column
+                let base = groups[h].columns.first().map_or(0.0, |c| c[2]);
+                let joint: Vec<[f64; 4]> = groups[h]
+                    .columns
+                    .iter()
+                    .chain(&groups[g].columns)
+                    .map(|c| {
+                        let t = ((c[2] - base) / TAU).round() * TAU;
+                        [c[0], c[1], c[2] - t, c[3] - t]
+                    })
+                    .collect();
+                let Some((center, half, r2)) = Self::columns_extent(&joint) else {
+                    continue;
+                };
+                if half > room {
+                    continue;
+                }
+                let moved = std::mem::take(&mut groups[g].cells);
+                let moved_pixels = groups[g].pixels;
+                groups[g].alive = false;
+                let target = &mut groups[h];
+                target.cells.extend(moved);
+                target.cells.sort_unstable();
+                target.columns = joint;
+                target.center = center;
+                target.half = half;
+                target.r2 = r2;
+                target.pixels += moved_pixels;
+                break;
+            }
+        }
+        let mut tiles: Vec<MergedTile> = groups
+            .into_iter()
+            .filter(|g| g.alive)
+            .map(|g| (g.cells, g.center, g.half, g.r2))
+            .collect();
+        tiles.sort_by_key(|t| t.0[0]);
+        tiles
+    }
+
+    /// Tile index owning RING pixel `p`, if any.
+    pub(crate) fn owner_of_ring_pixel(&self, p: u64) -> Option<usize> {
+        let (i, j) = ring_and_position(self.nside, p);
+        let band = &self.bands[*self.band_of_ring.get((i - 1) as usize)?];
+        let k = band.cell_of(ring_pixel_phi(self.nside, i, j))?;
+        band.tiles.get(k).copied().flatten()
+    }
+
+    /// RING indices of the pixels of tile `tile`'s core.
+    pub(crate) fn core_ring_pixels(&self, tile: usize) -> Vec<u64> {
+        let Some(members) = self.tile_cells.get(tile) else {
+            return Vec::new();
+        };
+        let mut out = Vec::new();
+        for &(b, k) in members {
+            let band = &self.bands[b];
+            for i in band.rings.0..=band.rings.1 {
+                let (first, len, _) = ring_info(self.nside, i);
+                for j in 0..len {
+                    if band.cell_of(ring_pixel_phi(self.nside, i, j)) == Some(k) {
+                        out.push(first + j);
+                    }
+                }
+            }
+        }
+        out.sort_unstable();
+        out
+    }
+
+    /// The outlines of tile `tile`'s cells on the sphere, each closed.
+    pub(crate) fn outlines(&self, tile: usize) -> Vec<Vec<Direction>> {
+        self.tile_cells
+            .get(tile)
+            .map(|members| {
+                members
+                    .iter()
+                    .map(|&(b, k)| self.cell_outline(b, k))
+                    .collect()
+            })
+            .unwrap_or_default()
+    }
+
+    /// The outline of cell k of band b on the sphere, closed.
+    fn cell_outline(&self, b: usize, k: usize) -> Vec<Direction> {
+        let band = &self.bands[b];
+        let (t0, t1) = band.theta;
+        let steps = 32;
+        if band.cap {
+            let t = if band.theta_center == 0.0 { t1 } else { t0 };
+            return (0..=steps)
+                .map(|s| Direction::new(t, TAU * s as f64 / steps as f64))
+                .collect();
+        }
+        let (p0, p1) = (band.starts[k], band.ends[k]);
+        let mut out = Vec::new();
+        for s in 0..steps {
+            out.push(Direction::new(t0, p0 + (p1 - p0) * s as f64 / steps as f64));
+        }
+        for s in 0..steps {
+            out.push(Direction::new(t0 + (t1 - t0) * s as f64 / steps as f64, p1));
+        }
+        for s in 0..steps {
+            out.push(Direction::new(t1, p1 - (p1 - p0) * s as f64 / steps as f64));
+        }
+        for s in 0..=steps {
+            out.push(Direction::new(t1 - (t1 - t0) * s as f64 / steps as f64, p0));
+        }
+        out.iter_mut().for_each(|d| d.phi = d.phi.rem_euclid(TAU));
+        out
+    }
+}
