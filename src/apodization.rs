@@ -168,7 +168,7 @@ pub fn distance_to_mask(footprint: &Footprint, max_distance: f64) -> Result<Vec<
 ///
 /// For a RING map, a masked pixel whose rings i − 2 … i + 2 hold no observed pixel within
 /// longitude φ ± (Δφ_i + Δφ_k) of its own cannot touch the footprint and is passed over without
-/// the neighbour query: a HEALPix pixel's eight neighbours lie within two rings of it, at
+/// the neighbour query (the windows are marked run by run of observed pixels): a HEALPix pixel's eight neighbours lie within two rings of it, at
 /// |φ_k − φ| ≤ (Δφ_i + Δφ_k)/2 away from the three rings nearest each pole (Górski et al. 2005
 /// geometry; checked against healpy 1.20.1 `get_all_neighbours` for NSIDE 2–128, largest
 /// ratio 0.5), so the window holds every neighbour with a factor 2 to spare. The pixels left
@@ -194,58 +194,51 @@ fn boundary_pixels(pix: Pixelization, w: &[f64]) -> Result<Vec<u64>> {
     }
     let n = pix.nside() as u64;
     let last = 4 * n - 1;
-    // observed pixels among the first j of ring k, j = 0 … n_k
-    let prefix = |k: u64| -> Vec<u32> {
-        let (first, count, _) = crate::pixelization::ring_info(n, k);
-        let mut out = Vec::with_capacity(count as usize + 1);
-        let mut c = 0u32;
-        out.push(0);
-        for q in first..first + count {
-            c += u32::from(w[q as usize] > 0.0);
-            out.push(c);
-        }
-        out
-    };
+    let spacing = |c: u64| std::f64::consts::TAU / c as f64;
+    let offset = |shifted: bool| if shifted { 0.5 } else { 0.0 };
     let per_ring: Vec<Vec<u64>> = (1..=last)
         .into_par_iter()
         .map(|i| -> Result<Vec<u64>> {
             let (first, count, shifted) = crate::pixelization::ring_info(n, i);
-            let near_pole = i <= 3 || i + 3 >= last;
-            let around: Vec<(u64, Vec<u32>)> = if near_pole {
-                Vec::new()
-            } else {
-                (i - 2..=i + 2).map(|k| (k, prefix(k))).collect()
-            };
-            let spacing = |c: u64| std::f64::consts::TAU / c as f64;
             let dphi = spacing(count);
-            let offset = if shifted { 0.5 } else { 0.0 };
+            let near_pole = i <= 3 || i + 3 >= last;
+            // near[j]: ring i's pixel j lies within the window of an observed pixel of rings
+            // i − 2 … i + 2 (each run of observed pixels widened by the window, mapped onto
+            // ring i's pixel positions)
+            let mut near = vec![near_pole; count as usize];
+            if !near_pole {
+                for k in i - 2..=i + 2 {
+                    let (first_k, count_k, shifted_k) = crate::pixelization::ring_info(n, k);
+                    let dk = spacing(count_k);
+                    let reach = dphi + dk;
+                    let mut j = 0;
+                    while j < count_k {
+                        if w[(first_k + j) as usize] <= 0.0 {
+                            j += 1;
+                            continue;
+                        }
+                        let a = j;
+                        while j < count_k && w[(first_k + j) as usize] > 0.0 {
+                            j += 1;
+                        }
+                        let lo_phi = (a as f64 + offset(shifted_k)) * dk - reach;
+                        let hi_phi = ((j - 1) as f64 + offset(shifted_k)) * dk + reach;
+                        let lo = (lo_phi / dphi - offset(shifted)).ceil() as i64;
+                        let hi = (hi_phi / dphi - offset(shifted)).floor() as i64;
+                        if hi - lo + 1 >= count as i64 {
+                            near.iter_mut().for_each(|x| *x = true);
+                        } else {
+                            for q in lo..=hi {
+                                near[q.rem_euclid(count as i64) as usize] = true;
+                            }
+                        }
+                    }
+                }
+            }
             let mut out = Vec::new();
             for j in 0..count {
                 let p = first + j;
-                if w[p as usize] > 0.0 {
-                    continue;
-                }
-                let phi = (j as f64 + offset) * dphi;
-                let may_touch = near_pole
-                    || around.iter().any(|(k, pre)| {
-                        let (_, ck, sk) = crate::pixelization::ring_info(n, *k);
-                        let dk = spacing(ck);
-                        let ok = if sk { 0.5 } else { 0.0 };
-                        let reach = dphi + dk;
-                        let lo = ((phi - reach) / dk - ok).ceil() as i64;
-                        let hi = ((phi + reach) / dk - ok).floor() as i64;
-                        if hi - lo + 1 >= ck as i64 {
-                            return pre[ck as usize] > 0;
-                        }
-                        let lo = lo.rem_euclid(ck as i64) as usize;
-                        let hi = hi.rem_euclid(ck as i64) as usize;
-                        if lo <= hi {
-                            pre[hi + 1] > pre[lo]
-                        } else {
-                            pre[ck as usize] > pre[lo] || pre[hi + 1] > 0
-                        }
-                    });
-                if may_touch && touches(p)? {
+                if w[p as usize] <= 0.0 && near[j as usize] && touches(p)? {
                     out.push(p);
                 }
             }

@@ -98,7 +98,8 @@ impl Band {
         if nb == 0 {
             return None;
         }
-        let k = ((phi / TAU * nb as f64).floor() as usize).min(nb - 1);
+        // (φ ≥ 0: truncation is the floor)
+        let k = ((phi / TAU * nb as f64) as usize).min(nb - 1);
         self.bin_cell[k].map(|c| c as usize)
     }
 }
@@ -325,7 +326,8 @@ impl LatitudeBands {
                     continue;
                 }
                 let phi = ring_pixel_phi(nside, i, j);
-                let k = ((phi / TAU * nb).floor() as usize).min(bin_count - 1);
+                // (φ ≥ 0: truncation is the floor, as in `Band::cell_of`)
+                let k = ((phi / TAU * nb) as usize).min(bin_count - 1);
                 let e = &mut extents[b][k];
                 *e = Some(match *e {
                     Some((lo, hi)) => (lo.min(theta), hi.max(theta)),
