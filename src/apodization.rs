@@ -328,7 +328,7 @@ mod tests {
             let masks: Vec<Box<dyn Fn(Direction, u64) -> bool>> = vec![
                 Box::new(|d: Direction, _| d.theta < 0.4 || d.theta > 2.9),
                 Box::new(|d: Direction, _| (d.theta - 1.3).abs() < 0.05 || d.lon() < 0.3),
-                Box::new(|_, p: u64| p.wrapping_mul(2654435761) % 7 == 0),
+                Box::new(|_, p: u64| p.wrapping_mul(2654435761).is_multiple_of(7)),
                 Box::new(|d: Direction, _| {
                     let hole = Direction::new(0.9, 4.0);
                     d.distance(&hole) > 0.35 && d.theta > 0.05
