@@ -76,9 +76,14 @@ impl Direction {
         FRAC_PI_2 - self.theta
     }
 
-    /// Longitude reduced to [0, 2π).
+    /// Longitude reduced to [0, 2π) (a longitude already in range is returned as it is, the
+    /// value `rem_euclid` gives, without its floating-point remainder).
     pub fn lon(&self) -> f64 {
-        self.phi.rem_euclid(2.0 * PI)
+        if (0.0..2.0 * PI).contains(&self.phi) {
+            self.phi
+        } else {
+            self.phi.rem_euclid(2.0 * PI)
+        }
     }
 
     /// Unit vector (sin θ cos φ, sin θ sin φ, cos θ).

@@ -281,24 +281,111 @@ impl BandLimit {
     }
 }
 
-/// The colatitude θ_i of every HEALPix ring i = 1 … 4N − 1 of one NSIDE (Górski et al. 2005,
-/// eqs. 4–5, as [`ring_theta`]), computed once, so the ring interpolations read them instead of
-/// evaluating an arcsine or arccosine per ring and read (4 NSIDE values: 256 kB at NSIDE 8192).
-struct RingColatitudes(Vec<f64>);
+/// The geometry of one NSIDE's rings as the ring interpolations read it: ring colatitude θ_i
+/// (Górski et al. 2005, eqs. 4–5, as [`ring_theta`]), first RING index, pixel count and
+/// longitude offset ([`ring_info`]), and longitude spacing 2π/n_i.
+trait RingGeometry {
+    /// θ_i of ring `i` (1 ≤ i ≤ 4 NSIDE − 1).
+    fn theta(&self, i: u64) -> f64;
+    /// (first RING index, pixel count, shifted by half a pixel) of ring `i`.
+    fn info(&self, i: u64) -> (u64, u64, bool);
+    /// The longitude spacing 2π/n_i of ring `i`.
+    fn spacing(&self, i: u64) -> f64 {
+        2.0 * std::f64::consts::PI / self.info(i).1 as f64
+    }
+}
 
-impl RingColatitudes {
+/// Ring geometry evaluated from the formulas at each read.
+struct RingFormulas(u64);
+
+impl RingGeometry for RingFormulas {
+    fn theta(&self, i: u64) -> f64 {
+        ring_theta(self.0, i)
+    }
+    fn info(&self, i: u64) -> (u64, u64, bool) {
+        ring_info(self.0, i)
+    }
+}
+
+/// The same ring geometry computed once per map (the values of [`RingFormulas`] bit for bit),
+/// so the sampler's reads take no arcsine, arccosine or division per ring (4 NSIDE entries of 32
+/// bytes: 1 MB at NSIDE 8192).
+struct RingTable(Vec<RingEntry>);
+
+#[derive(Clone, Copy)]
+struct RingEntry {
+    theta: f64,
+    first: u64,
+    count: u64,
+    spacing: f64,
+    shifted: bool,
+}
+
+impl RingTable {
     fn new(nside: u32) -> Self {
-        let n = nside as u64;
-        RingColatitudes(
-            (0..4 * n)
-                .map(|i| if i == 0 { 0.0 } else { ring_theta(n, i) })
+        let formulas = RingFormulas(nside as u64);
+        RingTable(
+            (0..4 * nside as u64)
+                .map(|i| {
+                    if i == 0 {
+                        RingEntry {
+                            theta: 0.0,
+                            first: 0,
+                            count: 1,
+                            spacing: 0.0,
+                            shifted: false,
+                        }
+                    } else {
+                        let (first, count, shifted) = formulas.info(i);
+                        RingEntry {
+                            theta: formulas.theta(i),
+                            first,
+                            count,
+                            spacing: formulas.spacing(i),
+                            shifted,
+                        }
+                    }
+                })
                 .collect(),
         )
     }
+}
 
-    fn of(&self, i: u64) -> f64 {
-        self.0[i as usize]
+impl RingGeometry for RingTable {
+    fn theta(&self, i: u64) -> f64 {
+        self.0[i as usize].theta
     }
+    fn info(&self, i: u64) -> (u64, u64, bool) {
+        let e = &self.0[i as usize];
+        (e.first, e.count, e.shifted)
+    }
+    fn spacing(&self, i: u64) -> f64 {
+        self.0[i as usize].spacing
+    }
+}
+
+/// ⌊t⌋ as an integer for |t| < 2⁶³, equal to `t.floor() as i64` (truncation, one step down for
+/// negative non-integers), without a call to the library's `floor`.
+fn floor_i64(t: f64) -> i64 {
+    let j = t as i64;
+    if (j as f64) > t {
+        j - 1
+    } else {
+        j
+    }
+}
+
+/// `j` brought into 0 … count − 1 for −count ≤ j < 2·count: `j.rem_euclid(count)` without a
+/// division.
+fn wrap(j: i64, count: u64) -> u64 {
+    let c = count as i64;
+    (if j < 0 {
+        j + c
+    } else if j >= c {
+        j - c
+    } else {
+        j
+    }) as u64
 }
 
 /// Reads a map and a mask onto the tiles of a plan, one tile at a time.
@@ -313,8 +400,8 @@ pub struct TileSampler<'a> {
     solid_angle: Vec<f64>,
     /// The band limit when the plane pixels are coarser than the map (see [`BandLimit`]).
     band_limit: Option<BandLimit>,
-    /// The map's ring colatitudes.
-    rings: RingColatitudes,
+    /// The map's ring geometry.
+    rings: RingTable,
 }
 
 impl<'a> TileSampler<'a> {
@@ -389,7 +476,7 @@ impl<'a> TileSampler<'a> {
             method,
             solid_angle,
             band_limit,
-            rings: RingColatitudes::new(map_pix.nside()),
+            rings: RingTable::new(map_pix.nside()),
         })
     }
 
@@ -419,7 +506,8 @@ impl<'a> TileSampler<'a> {
         for &y in &coords {
             for &x in &coords {
                 let dir = proj.inverse(x, y);
-                let (f, m) = self.read_at(dir)?;
+                // with a band limit the field is read on the fine grid below: here the mask only
+                let (f, m) = self.read(dir, self.band_limit.is_none())?;
                 field.push(f);
                 mask.push(m);
                 in_core.push(plan.owner(dir) == Some(index));
@@ -461,8 +549,8 @@ impl<'a> TileSampler<'a> {
         let values = self.map.values();
         let valid = self.map.valid();
         let mut sum = 0.0;
-        for (p, wt) in ring_cubic_interpolation_weights_with(pix.nside(), dir, |i| self.rings.of(i))
-        {
+        let weights = ring_cubic_interpolation_weights_with(pix.nside(), dir, &self.rings);
+        for &(p, wt) in &weights {
             if wt != 0.0 {
                 let i = ring_to_map(pix, p)? as usize;
                 if !valid[i] {
@@ -476,8 +564,17 @@ impl<'a> TileSampler<'a> {
 
     /// The field and mask values at direction `dir` by the sampling method.
     fn read_at(&self, dir: crate::sky::pixelization::Direction) -> Result<(f64, f64)> {
+        self.read(dir, true)
+    }
+
+    /// [`Self::read_at`], with the ring-cubic field left out (0) when `with_field` is false
+    /// (the mask value is the same).
+    fn read(
+        &self,
+        dir: crate::sky::pixelization::Direction,
+        with_field: bool,
+    ) -> Result<(f64, f64)> {
         let pix = self.map.pixelization();
-        let theta_of = |i| self.rings.of(i);
         let values = self.map.values();
         let valid = self.map.valid();
         Ok(match self.method {
@@ -505,7 +602,7 @@ impl<'a> TileSampler<'a> {
             }
             SamplingMethod::RingLinear => {
                 let (mut sum, mut wsum, mut msum) = (0.0, 0.0, 0.0);
-                for (p, wt) in ring_interpolation_weights_with(pix.nside(), dir, theta_of) {
+                for (p, wt) in ring_interpolation_weights_with(pix.nside(), dir, &self.rings) {
                     let i = ring_to_map(pix, p)? as usize;
                     if wt > 0.0 && valid[i] {
                         sum += wt * values[i];
@@ -517,7 +614,7 @@ impl<'a> TileSampler<'a> {
                 (f, msum)
             }
             SamplingMethod::RingCubic => {
-                let linear = ring_interpolation_weights_with(pix.nside(), dir, theta_of);
+                let linear = ring_interpolation_weights_with(pix.nside(), dir, &self.rings);
                 let (mut lsum, mut lw, mut msum) = (0.0, 0.0, 0.0);
                 for &(p, wt) in &linear {
                     let i = ring_to_map(pix, p)? as usize;
@@ -528,6 +625,9 @@ impl<'a> TileSampler<'a> {
                     }
                 }
                 // next to bad pixels, fall back to the linear value over the valid ones
+                if !with_field {
+                    return Ok((0.0, msum));
+                }
                 let f = match self.ring_cubic_value(dir)? {
                     Some(f) => f,
                     None if lw > 0.0 => lsum / lw,
@@ -976,29 +1076,29 @@ pub fn ring_interpolation_weights(
     nside: u32,
     dir: crate::sky::pixelization::Direction,
 ) -> [(u64, f64); 4] {
-    ring_interpolation_weights_with(nside, dir, |i| ring_theta(nside as u64, i))
+    ring_interpolation_weights_with(nside, dir, &RingFormulas(nside as u64))
 }
 
-/// [`ring_interpolation_weights`] with the rings' colatitudes from `theta_of(i)` (the same
-/// values, e.g. read from a [`RingColatitudes`] table).
+/// [`ring_interpolation_weights`] with the rings' geometry from `rings` (formulas or a
+/// [`RingTable`]: the same values).
 fn ring_interpolation_weights_with(
     nside: u32,
     dir: crate::sky::pixelization::Direction,
-    theta_of: impl Fn(u64) -> f64,
+    rings: &impl RingGeometry,
 ) -> [(u64, f64); 4] {
     let n = nside as u64;
     let theta = dir.theta.clamp(0.0, std::f64::consts::PI);
     let phi = dir.lon();
     let above = ring_above(n, theta);
     let on_ring = |i: u64| -> ([(u64, f64); 2], f64) {
-        let (first, count, shifted) = ring_info(n, i);
-        let dphi = 2.0 * std::f64::consts::PI / count as f64;
+        let (first, count, shifted) = rings.info(i);
+        let dphi = rings.spacing(i);
         let t = phi / dphi - if shifted { 0.5 } else { 0.0 };
-        let j = t.floor();
-        let w = t - j;
-        let j1 = (j as i64).rem_euclid(count as i64) as u64;
-        let j2 = (j1 + 1) % count;
-        ([(first + j1, 1.0 - w), (first + j2, w)], theta_of(i))
+        let j = floor_i64(t);
+        let w = t - j as f64;
+        let j1 = wrap(j, count);
+        let j2 = if j1 + 1 == count { 0 } else { j1 + 1 };
+        ([(first + j1, 1.0 - w), (first + j2, w)], rings.theta(i))
     };
     let npix = 12 * n * n;
     if above == 0 {
@@ -1063,14 +1163,14 @@ pub fn ring_cubic_interpolation_weights(
     nside: u32,
     dir: crate::sky::pixelization::Direction,
 ) -> [(u64, f64); 16] {
-    ring_cubic_interpolation_weights_with(nside, dir, |i| ring_theta(nside as u64, i))
+    ring_cubic_interpolation_weights_with(nside, dir, &RingFormulas(nside as u64))
 }
 
-/// [`ring_cubic_interpolation_weights`] with the rings' colatitudes from `theta_of(i)`.
+/// [`ring_cubic_interpolation_weights`] with the rings' geometry from `rings`.
 fn ring_cubic_interpolation_weights_with(
     nside: u32,
     dir: crate::sky::pixelization::Direction,
-    theta_of: impl Fn(u64) -> f64 + Copy,
+    rings: &impl RingGeometry,
 ) -> [(u64, f64); 16] {
     let n = nside as u64;
     let theta = dir.theta.clamp(0.0, std::f64::consts::PI);
@@ -1080,24 +1180,24 @@ fn ring_cubic_interpolation_weights_with(
     if above < 2 || above + 2 > 4 * n - 1 {
         for (slot, pair) in out
             .iter_mut()
-            .zip(ring_interpolation_weights_with(nside, dir, theta_of))
+            .zip(ring_interpolation_weights_with(nside, dir, rings))
         {
             *slot = pair;
         }
         return out;
     }
-    let rings = [above - 1, above, above + 1, above + 2];
-    let thetas = rings.map(theta_of);
+    let around = [above - 1, above, above + 1, above + 2];
+    let thetas = around.map(|i| rings.theta(i));
     let across = lagrange4(thetas, theta);
-    for (r, (&i, &wr)) in rings.iter().zip(&across).enumerate() {
-        let (first, count, shifted) = ring_info(n, i);
-        let dphi = 2.0 * std::f64::consts::PI / count as f64;
+    for (r, (&i, &wr)) in around.iter().zip(&across).enumerate() {
+        let (first, count, shifted) = rings.info(i);
+        let dphi = rings.spacing(i);
         let t = phi / dphi - if shifted { 0.5 } else { 0.0 };
-        let j = t.floor();
-        let u = t - j;
+        let j = floor_i64(t);
+        let u = t - j as f64;
         let along = lagrange4([-1.0, 0.0, 1.0, 2.0], u);
         for (k, &wk) in along.iter().enumerate() {
-            let idx = (j as i64 - 1 + k as i64).rem_euclid(count as i64) as u64;
+            let idx = wrap(j - 1 + k as i64, count);
             out[4 * r + k] = (first + idx, wr * wk);
         }
     }

@@ -98,7 +98,8 @@ impl Band {
         if nb == 0 {
             return None;
         }
-        let k = ((phi / TAU * nb as f64).floor() as usize).min(nb - 1);
+        // (φ ≥ 0: truncation is the floor)
+        let k = ((phi / TAU * nb as f64) as usize).min(nb - 1);
         self.bin_cell[k].map(|c| c as usize)
     }
 }
@@ -181,16 +182,27 @@ impl LatitudeBands {
                 Ordering::Nested => weights[fp_pix.from_nested(ring_pix.to_nested(p)?)? as usize],
             })
         };
-        let mut ring_occupied = vec![false; ring_count as usize];
+        // Runs of footprint pixels (positive weight) along every ring: half-open position
+        // ranges [j0, j1), in increasing j. The loops below visit footprint pixels through them.
+        let mut runs: Vec<Vec<(u64, u64)>> = Vec::with_capacity(ring_count as usize);
         for i in 1..=ring_count {
             let (first, len, _) = ring_info(nside, i);
-            for j in 0..len {
+            let mut ring_runs = Vec::new();
+            let mut j = 0;
+            while j < len {
                 if weight_at(first + j)? > 0.0 {
-                    ring_occupied[(i - 1) as usize] = true;
-                    break;
+                    let start = j;
+                    while j < len && weight_at(first + j)? > 0.0 {
+                        j += 1;
+                    }
+                    ring_runs.push((start, j));
+                } else {
+                    j += 1;
                 }
             }
+            runs.push(ring_runs);
         }
+        let ring_occupied: Vec<bool> = runs.iter().map(|r| !r.is_empty()).collect();
         // The footprint's colatitude spans: runs of rings holding footprint, each grown by half
         // a spacing, cut to the caps of radius R at the poles (a cap is one cell).
         let cap_radius = (0.995 * reach).min(PI / 2.0);
@@ -319,13 +331,10 @@ impl LatitudeBands {
                 extents[b] = vec![None; bin_count];
             }
             let theta = ring_thetas[(i - 1) as usize];
-            let (first, len, _) = ring_info(nside, i);
-            for j in 0..len {
-                if weight_at(first + j)? <= 0.0 {
-                    continue;
-                }
+            for j in runs[(i - 1) as usize].iter().flat_map(|&(a, e)| a..e) {
                 let phi = ring_pixel_phi(nside, i, j);
-                let k = ((phi / TAU * nb).floor() as usize).min(bin_count - 1);
+                // (φ ≥ 0: truncation is the floor, as in `Band::cell_of`)
+                let k = ((phi / TAU * nb) as usize).min(bin_count - 1);
                 let e = &mut extents[b][k];
                 *e = Some(match *e {
                     Some((lo, hi)) => (lo.min(theta), hi.max(theta)),
@@ -369,16 +378,53 @@ impl LatitudeBands {
             if band.starts.is_empty() {
                 continue;
             }
+            // Stretches of longitude bins that belong to one cell: (first bin, end bin, cell).
+            let mut stretches: Vec<(usize, usize, usize)> = Vec::new();
+            if !band.cap {
+                for (k, c) in band.bin_cell.iter().enumerate() {
+                    match (c, stretches.last_mut()) {
+                        (Some(c), Some(last)) if last.1 == k && last.2 == *c as usize => {
+                            last.1 = k + 1
+                        }
+                        (Some(c), _) => stretches.push((k, k + 1, *c as usize)),
+                        (None, _) => {}
+                    }
+                }
+            }
             for i in band.rings.0..=band.rings.1 {
                 let (first, len, _) = ring_info(nside, i);
-                for j in 0..len {
-                    if let Some(k) = band.cell_of(ring_pixel_phi(nside, i, j)) {
-                        pixels[b][k] += 1;
-                        let w = weight_at(first + j)?;
-                        if w > 0.0 {
-                            weight[b][k] += w;
-                            count[b][k] += 1;
+                // Every pixel of the ring per cell: the bin of pixel j (the arithmetic of
+                // `Band::cell_of`) does not decrease with j, so the pixels of a stretch of bins
+                // are one range of positions, found by bisection.
+                if band.cap {
+                    pixels[b][0] += len;
+                } else {
+                    let nb = band.bin_cell.len();
+                    let bin_of = |j: u64| {
+                        ((ring_pixel_phi(nside, i, j) / TAU * nb as f64) as usize).min(nb - 1)
+                    };
+                    // the number of positions whose bin is below k
+                    let below = |k: usize| {
+                        let (mut lo, mut hi) = (0u64, len);
+                        while lo < hi {
+                            let mid = lo + (hi - lo) / 2;
+                            if bin_of(mid) < k {
+                                lo = mid + 1;
+                            } else {
+                                hi = mid;
+                            }
                         }
+                        lo
+                    };
+                    for &(k0, k1, c) in &stretches {
+                        pixels[b][c] += below(k1) - below(k0);
+                    }
+                }
+                // the footprint pixels, in increasing position as before (the same sums)
+                for j in runs[(i - 1) as usize].iter().flat_map(|&(a, e)| a..e) {
+                    if let Some(k) = band.cell_of(ring_pixel_phi(nside, i, j)) {
+                        weight[b][k] += weight_at(first + j)?;
+                        count[b][k] += 1;
                     }
                 }
             }
