@@ -41,4 +41,4 @@ pub mod wigner;
 pub use error::{Error, Result};
 pub use footprint::Footprint;
 pub use pixelization::{Direction, Ordering, Pixelization};
-pub use skymap::SkyMap;
+pub use skymap::{SkyMap, SkyMapOf};

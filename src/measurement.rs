@@ -39,7 +39,7 @@ use crate::footprint::Footprint;
 use crate::pixelization::Pixelization;
 use crate::pooling::{combine_tiles, pooled_coefficients, pooled_cross_coefficients, TileSums};
 use crate::sampling::{SamplingMethod, TileGrids, TileSampler};
-use crate::skymap::SkyMap;
+use crate::skymap::SkyMapOf;
 use crate::statistics::{
     CoefficientKind, CoefficientSet, CrossCoefficientSet, OrientationSummary, SummaryStatistic,
 };
@@ -562,7 +562,7 @@ impl SphereMeasurer {
 
     /// Measures `map` on `footprint` (the apodized footprint the plan was made for, or another
     /// of the same NSIDE whose positive pixels lie in the planned tiles' cores).
-    pub fn measure(&self, map: &SkyMap, footprint: &Footprint) -> Result<MapStatistics> {
+    pub fn measure(&self, map: &SkyMapOf<'_>, footprint: &Footprint) -> Result<MapStatistics> {
         let sampler = TileSampler::new(&self.plan, map, footprint, self.settings.sampling)?;
         let per_tile: Vec<Option<TileResult>> = sampler.map_tiles(|grids| {
             let Some(TileTaper {
@@ -645,8 +645,8 @@ impl SphereMeasurer {
     /// when no footprint pixel is valid in both maps.
     pub fn measure_pair(
         &self,
-        first: &SkyMap,
-        second: &SkyMap,
+        first: &SkyMapOf<'_>,
+        second: &SkyMapOf<'_>,
         footprint: &Footprint,
     ) -> Result<PairStatistics> {
         if first.nside() != second.nside() {
@@ -843,7 +843,11 @@ impl MapStatistics {
 /// (pixels of positive weight; all valid pixels without one): values within
 /// ±[`crate::limits::MAX_ABS_VALUE`], more than one valid pixel, and not all equal (a map
 /// without fluctuations has scattering coefficients that are ratios of rounding errors).
-pub fn check_measurable(map: &SkyMap, footprint: Option<&Footprint>, label: &str) -> Result<()> {
+pub fn check_measurable(
+    map: &SkyMapOf<'_>,
+    footprint: Option<&Footprint>,
+    label: &str,
+) -> Result<()> {
     let weights = footprint
         .filter(|f| f.pixelization() == map.pixelization())
         .map(Footprint::weights);

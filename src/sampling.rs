@@ -23,7 +23,7 @@ use crate::error::{Error, Result};
 use crate::footprint::Footprint;
 use crate::pixelization::{ring_info, ring_theta, Ordering, Pixelization};
 use crate::projection::{rectangle_solid_angle, Gnomonic};
-use crate::skymap::SkyMap;
+use crate::skymap::{SkyMap, SkyMapOf};
 use crate::tiling::TilingPlan;
 use rayon::prelude::*;
 use std::borrow::Cow;
@@ -304,7 +304,7 @@ impl RingColatitudes {
 /// Reads a map and a mask onto the tiles of a plan, one tile at a time.
 pub struct TileSampler<'a> {
     plan: &'a TilingPlan,
-    map: &'a SkyMap,
+    map: &'a SkyMapOf<'a>,
     /// Mask weights in the map's ordering (borrowed when the orderings agree); the map's bad
     /// pixels are treated as weight 0 when read.
     mask: Cow<'a, [f64]>,
@@ -321,7 +321,7 @@ impl<'a> TileSampler<'a> {
     /// A sampler for `map` and `mask` (same NSIDE as the plan's map) on the tiles of `plan`.
     pub fn new(
         plan: &'a TilingPlan,
-        map: &'a SkyMap,
+        map: &'a SkyMapOf<'a>,
         mask: &'a Footprint,
         method: SamplingMethod,
     ) -> Result<Self> {
