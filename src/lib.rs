@@ -59,4 +59,4 @@ pub mod figures;
 pub mod cli;
 
 pub use error::{Error, Result};
-pub use sky::{Direction, Footprint, Ordering, Pixelization, SkyMap};
+pub use sky::{Direction, Footprint, Ordering, Pixelization, SkyMap, SkyMapOf};

@@ -167,7 +167,10 @@ class Measurement:
       with its column names and angular scales, the row an ensemble table holds (before its
       pseudo-C_ℓ columns); sphere maps only (None for a flat field);
     - ``cross``: for a pair, the second map's statistics (a Measurement-like dict) and
-      ``cross_coefficients`` (structured array with name, field, modulus_of, ...).
+      ``cross_coefficients`` (structured array with name, field, modulus_of, ...);
+    - ``copied_maps``: which map arrays ("map", "second map") were copied before measuring
+      because they were not contiguous native float64; an array not named here was read in
+      place (empty for files and flat fields).
 
     ``to_dict()`` is ``measure``'s JSON document, field for field.
     """
@@ -178,8 +181,10 @@ class Measurement:
         vector: Sequence[float],
         labels: Sequence[str],
         scales: Sequence[Optional[float]],
+        copied_maps: Sequence[str] = (),
     ) -> None:
         self._document: Dict[str, Any] = json.loads(document)
+        self.copied_maps: List[str] = list(copied_maps)
         doc = self._document
         self.coefficients: np.ndarray = _coefficient_table(doc["coefficients"])
         self.values: np.ndarray = self.coefficients["value"].copy()
@@ -287,6 +292,13 @@ def measure(
     ``name``, ``mask_name``, ``cross_name``, ``cross_mask_name``: how the document names the
     inputs (default: the file path, as the command line writes it, or a description).
     The reader's warnings (e.g. an assumed ordering) are issued as Python warnings.
+
+    Copies: a map array that is C-contiguous native float64 (what healpy and numpy make by
+    default) is read in place, never copied; any other (float32, big-endian, strided, a list)
+    is converted once to one, and ``copied_maps`` of the result names it. Do not write to the
+    arrays from another thread during the call (the computation reads them without the
+    interpreter lock). A mask array is always copied once, into the weights the library
+    tapers; keep the caller's own mask only if it is needed afterwards.
     """
     values, path = _map_argument(map, "the map")
     if values is None and path is None:
@@ -316,7 +328,20 @@ def measure(
     )
     for message in out[4]:
         warnings.warn(message, stacklevel=2)
-    return Measurement(*out[:4])
+    copied = [
+        what
+        for what, given, address in (("map", map, out[5][0]), ("second map", cross, out[5][1]))
+        if address is not None and address != _data_address(given)
+    ]
+    return Measurement(*out[:4], copied_maps=copied)
+
+
+def _data_address(given: Any) -> Optional[int]:
+    """The address of the buffer of the array the caller gave (None for anything else: a list
+    or a scalar is converted, i.e. copied, whatever happens next)."""
+    if isinstance(given, np.ndarray):
+        return int(given.__array_interface__["data"][0])
+    return None
 
 
 def measure_flat(

@@ -32,6 +32,9 @@ class Measurement:
     vector_scales_arcmin: Optional[List[Optional[float]]]
     cross: Optional[Dict[str, Any]]
     cross_coefficients: Optional[np.ndarray]
+    # the map arrays ("map", "second map") copied before measuring because they were not
+    # C-contiguous native float64; the others were read in place
+    copied_maps: List[str]
     def summary_values(self) -> npt.NDArray[np.float64]: ...
     def to_dict(self) -> Dict[str, Any]: ...
     def to_json(self, indent: Optional[int] = 2) -> str: ...
@@ -65,6 +68,9 @@ class Table:
     labels: List[str]
     scales_arcmin: List[Optional[float]]
 
+# A C-contiguous native float64 map array is read in place (no copy); any other is converted
+# once (named in `Measurement.copied_maps`). Mask arrays are copied once, into the weights
+# the library tapers.
 def measure(
     map: Union[_Array, _Path],
     mask: Union[_Array, _Path, None] = None,

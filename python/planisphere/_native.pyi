@@ -11,7 +11,16 @@ UNSEEN: float
 
 F64Array1 = npt.NDArray[np.float64]
 F64Array2 = npt.NDArray[np.float64]
-MeasureOutput = Tuple[str, List[float], List[str], List[Optional[float]], List[str]]
+# document, vector, labels, scales, warnings, and the addresses of the values the first and
+# the second map were measured from (arrays only: the caller's buffers when read in place)
+MeasureOutput = Tuple[
+    str,
+    List[float],
+    List[str],
+    List[Optional[float]],
+    List[str],
+    Tuple[Optional[int], Optional[int]],
+]
 
 def measure_map(
     values: Optional[F64Array1],

@@ -3,8 +3,10 @@
 //! same inputs give bitwise the same numbers; the Python package `planisphere` wraps these
 //! functions with docstrings, dtype handling and result objects.
 //!
-//! Manners: arguments are checked and copied out of numpy while the interpreter is held, then
-//! the interpreter is released (`Python::detach`) for the computation; `threads = n` runs the
+//! Manners: arguments are checked (and, where a library function needs owned values, copied)
+//! while the interpreter is held, then the interpreter is released (`Python::detach`) for the
+//! computation; `measure` reads its map arrays in place, their read-only borrows held across
+//! the release; `threads = n` runs the
 //! computation in a local rayon pool of n threads (no global state), otherwise in rayon's
 //! global pool (RAYON_NUM_THREADS). Library errors become `OSError` (files) or `ValueError`
 //! (everything else) with the library's one-line message.
@@ -13,16 +15,16 @@ use numpy::{
     IntoPyArray, PyArray1, PyArray2, PyArrayMethods, PyReadonlyArray1, PyReadonlyArray2,
     PyUntypedArrayMethods,
 };
-use planisphere::sky::apodization::TaperKind;
-use planisphere::sky::footprint::refuse_single_pixel_mask;
 use planisphere::forecast::named_sets::{check_sets_forecast, forecast_document, forecast_sets};
 use planisphere::forecast::{ColumnLabel, DerivativeEnsembles, Ensemble, ScaleCut};
-use planisphere::measure::measurement::{MeasurementSettings, SphereMeasurer};
-use planisphere::sky::measurable::check_measurable;
 use planisphere::harmonics::mode_coupling::BinWeighting;
-use planisphere::tiles::sampling::SamplingMethod;
+use planisphere::measure::measurement::{MeasurementSettings, SphereMeasurer};
 use planisphere::simulate::skies::{SkyOptions, SpectrumChoice};
-use planisphere::{Error, Footprint, Ordering, Pixelization, SkyMap};
+use planisphere::sky::apodization::TaperKind;
+use planisphere::sky::footprint::refuse_single_pixel_mask;
+use planisphere::sky::measurable::check_measurable;
+use planisphere::tiles::sampling::SamplingMethod;
+use planisphere::{Error, Footprint, Ordering, Pixelization, SkyMap, SkyMapOf};
 use pyo3::exceptions::{PyOSError, PyValueError};
 use pyo3::prelude::*;
 use std::path::{Path, PathBuf};
@@ -168,30 +170,36 @@ fn slice<'a>(array: &'a PyReadonlyArray1<'_, f64>, what: &str) -> PyResult<&'a [
         .map_err(|_| value_error(format!("{what} must be a contiguous array")))
 }
 
-/// A map from a 1-D array in the given ordering (one copy: the library's map owns its values).
+/// A map from a 1-D array in the given ordering (one copy: this map owns its values, for the
+/// library functions that take an owned map; `measure` reads the array in place instead).
 fn sky_map(values: &PyReadonlyArray1<'_, f64>, order: Ordering, what: &str) -> PyResult<SkyMap> {
     let v = slice(values, what)?;
     let pix = pixelization_of(v.len(), order, what)?;
     SkyMap::new(pix, v.to_vec()).map_err(py_error)
 }
 
-/// A map given as an array (already copied into the library's layout) or as a FITS file and
-/// column, read with the library's reader (exactly as the command line reads it).
-enum MapInput {
-    Array(Box<SkyMap>),
+/// A map given as an array (read in place, not copied: the caller's array outlives the
+/// computation) or as a FITS file and column, read with the library's reader (exactly as the
+/// command line reads it).
+enum MapInput<'a> {
+    Array(Pixelization, &'a [f64]),
     File(PathBuf, planisphere::io::fits_io::ColumnChoice),
 }
 
-impl MapInput {
+impl<'a> MapInput<'a> {
     fn new(
-        values: Option<PyReadonlyArray1<'_, f64>>,
+        values: Option<&'a PyReadonlyArray1<'_, f64>>,
         path: Option<PathBuf>,
         column: &str,
         order: Ordering,
         what: &str,
     ) -> PyResult<Option<Self>> {
         match (values, path) {
-            (Some(v), None) => Ok(Some(MapInput::Array(Box::new(sky_map(&v, order, what)?)))),
+            (Some(v), None) => {
+                let v = slice(v, what)?;
+                let pix = pixelization_of(v.len(), order, what)?;
+                Ok(Some(MapInput::Array(pix, v)))
+            }
             (None, Some(p)) => Ok(Some(MapInput::File(
                 p,
                 planisphere::io::fits_io::ColumnChoice::parse(column),
@@ -204,17 +212,18 @@ impl MapInput {
     /// NSIDE without reading the pixels (for the memory estimate).
     fn nside(&self) -> planisphere::Result<u32> {
         match self {
-            MapInput::Array(m) => Ok(m.nside()),
+            MapInput::Array(pix, _) => Ok(pix.nside()),
             MapInput::File(p, _) => Ok(planisphere::io::fits_io::HealpixFitsReader::open(p)?
                 .header()
                 .nside),
         }
     }
 
-    /// The map, and the reader's warnings (an assumed ordering, ...).
-    fn load(self) -> planisphere::Result<(SkyMap, Vec<String>)> {
+    /// The map (borrowing an array's values), and the reader's warnings (an assumed
+    /// ordering, ...).
+    fn load(self) -> planisphere::Result<(SkyMapOf<'a>, Vec<String>)> {
         match self {
-            MapInput::Array(m) => Ok((*m, Vec::new())),
+            MapInput::Array(pix, values) => Ok((SkyMapOf::borrowing(pix, values)?, Vec::new())),
             MapInput::File(p, c) => {
                 let (map, header) = planisphere::io::fits_io::read_map(&p, &c)?;
                 let warnings = header
@@ -228,21 +237,22 @@ impl MapInput {
     }
 }
 
-/// A mask given as weights (same ordering as the map) or as a FITS file and column.
-enum MaskInput {
-    Weights(Vec<f64>),
+/// A mask given as weights (same ordering as the map; the library copies them into the
+/// footprint it tapers) or as a FITS file and column.
+enum MaskInput<'a> {
+    Weights(&'a [f64]),
     File(PathBuf, planisphere::io::fits_io::ColumnChoice),
 }
 
-impl MaskInput {
+impl<'a> MaskInput<'a> {
     fn new(
-        values: Option<PyReadonlyArray1<'_, f64>>,
+        values: Option<&'a PyReadonlyArray1<'_, f64>>,
         path: Option<PathBuf>,
         column: &str,
         what: &str,
     ) -> PyResult<Option<Self>> {
         match (values, path) {
-            (Some(v), None) => Ok(Some(MaskInput::Weights(slice(&v, what)?.to_vec()))),
+            (Some(v), None) => Ok(Some(MaskInput::Weights(slice(v, what)?))),
             (None, Some(p)) => Ok(Some(MaskInput::File(
                 p,
                 planisphere::io::fits_io::ColumnChoice::parse(column),
@@ -256,11 +266,12 @@ impl MaskInput {
 /// The untapered footprint of `map` named `name`: the weights (same ordering as the map; NaN
 /// and UNSEEN weigh 0, as in a FITS mask), a mask file (brought to the map's ordering, its
 /// COORDSYS compared with the map's unless `allow_coordsys_mismatch`) or the map's valid
-/// pixels, without the map's bad pixels.
+/// pixels, without the map's bad pixels. One full-sky array of weights at a time: the copy
+/// of the mask is restricted to the map in place.
 fn untapered(
-    map: &SkyMap,
+    map: &SkyMapOf<'_>,
     name: &str,
-    mask: Option<MaskInput>,
+    mask: Option<MaskInput<'_>>,
     allow_coordsys_mismatch: bool,
     warnings: &mut Vec<String>,
 ) -> planisphere::Result<Footprint> {
@@ -270,7 +281,7 @@ fn untapered(
         )));
     }
     let raw = match mask {
-        Some(MaskInput::Weights(w)) => Footprint::from_weights(map.pixelization(), w)?,
+        Some(MaskInput::Weights(w)) => Footprint::from_weights(map.pixelization(), w.to_vec())?,
         Some(MaskInput::File(path, column)) => {
             let (fp, header) = planisphere::io::fits_io::read_footprint(&path, &column)?;
             warnings.extend(
@@ -288,15 +299,24 @@ fn untapered(
         }
         None => return Footprint::of_valid_pixels(map).restricted_to(map),
     };
-    let fp = raw.restricted_to(map)?;
+    let fp = raw.into_restricted_to(map)?;
     refuse_single_pixel_mask(&fp)?;
     Ok(fp)
 }
 
 /// What a measurement hands back to Python: the JSON document as text, the statistics vector
-/// (the row an ensemble table holds, without its pseudo-C_ℓ columns), its labels and scales.
-/// The reader's warnings come last.
-type MeasureOutput = (String, Vec<f64>, Vec<String>, Vec<Option<f64>>, Vec<String>);
+/// (the row an ensemble table holds, without its pseudo-C_ℓ columns), its labels and scales,
+/// the reader's warnings, and the addresses of the values the maps were measured from (the
+/// first map and the second, when given as arrays: the caller's own buffers when they were
+/// read in place).
+type MeasureOutput = (
+    String,
+    Vec<f64>,
+    Vec<String>,
+    Vec<Option<f64>>,
+    Vec<String>,
+    (Option<usize>, Option<usize>),
+);
 
 /// Measures a HEALPix map (and optionally a second one, for cross statistics) as `measure`
 /// does; maps and masks come as arrays or as FITS files. See the Python wrapper
@@ -356,12 +376,20 @@ fn measure_map<'py>(
         full_resolution,
     )?;
     let taper_kind: TaperKind = enum_value("taper", taper)?;
-    let map = MapInput::new(values, path, column, order, "the map")?
+    // The arrays stay borrowed (read-only) here while the interpreter is released: the
+    // computation reads them in place.
+    let map = MapInput::new(values.as_ref(), path, column, order, "the map")?
         .ok_or_else(|| value_error("measure needs a map".into()))?;
-    let mask = MaskInput::new(mask, mask_path, mask_column, "the mask")?;
-    let other = MapInput::new(cross, cross_path, cross_column, order, "the second map")?;
+    let mask = MaskInput::new(mask.as_ref(), mask_path, mask_column, "the mask")?;
+    let other = MapInput::new(
+        cross.as_ref(),
+        cross_path,
+        cross_column,
+        order,
+        "the second map",
+    )?;
     let cross_mask = MaskInput::new(
-        cross_mask,
+        cross_mask.as_ref(),
         cross_mask_path,
         cross_mask_column,
         "the second mask",
@@ -374,13 +402,16 @@ fn measure_map<'py>(
                 &format!("measuring a NSIDE {nside} map"),
                 planisphere::limits::measurement_bytes(nside, maps),
             )?;
+            let from_array = |m: &MapInput<'_>| matches!(m, MapInput::Array(..));
+            let (first_array, second_array) = (from_array(&map), other.as_ref().is_some_and(from_array));
+            let address = |m: &SkyMapOf<'_>, array: bool| array.then(|| m.values().as_ptr() as usize);
             let (map, mut warnings) = map.load()?;
             let taper_desc = planisphere::io::measurement_document::taper_description(
                 taper_kind,
                 taper_arcmin,
                 mask_name.as_deref(),
             );
-            let (measurer, doc, stats) = match other {
+            let (measurer, doc, stats, second_address) = match other {
                 None => {
                     let raw = untapered(&map, &name, mask, allow_coordsys_mismatch, &mut warnings)?;
                     let fp = planisphere::sky::apodization::taper_footprint(
@@ -397,7 +428,7 @@ fn measure_map<'py>(
                         &name,
                         &taper_desc,
                     );
-                    (measurer, doc, stats)
+                    (measurer, doc, stats, None)
                 }
                 Some(other) => {
                     let (other, more) = other.load()?;
@@ -450,7 +481,7 @@ fn measure_map<'py>(
                         cross_mask_name.as_deref().map(Path::new),
                         &taper_desc,
                     );
-                    (measurer, doc, pair.first)
+                    (measurer, doc, pair.first, address(&other, second_array))
                 }
             };
             let labels = measurer.vector_labels();
@@ -460,6 +491,7 @@ fn measure_map<'py>(
                 labels.iter().map(|l| l.name.clone()).collect(),
                 labels.iter().map(|l| l.scale_arcmin).collect(),
                 warnings,
+                (address(&map, first_array), second_address),
             ))
         })
     })
@@ -560,6 +592,7 @@ fn measure_flat<'py>(
                 Vec::new(),
                 Vec::new(),
                 Vec::new(),
+                (None, None),
             ))
         })
     })
@@ -619,7 +652,7 @@ fn sky<'py>(
                 let mut values = Vec::with_capacity(npix * options.count as usize);
                 for k in 0..options.count {
                     let map = recipe.realise(&sht, options.first_index + k)?;
-                    values.extend_from_slice(&map.values_with_sentinel());
+                    values.extend_from_slice(&map.into_values_with_sentinel());
                 }
                 Ok((values, options.count as usize, npix))
             })
@@ -668,7 +701,7 @@ fn spectra<'py>(
         None => None,
     };
     let mask = match &mask {
-        Some(m) => Some(slice(m, "the mask")?.to_vec()),
+        Some(m) => Some(slice(m, "the mask")?),
         None => None,
     };
     py.detach(move || {
@@ -691,9 +724,10 @@ fn spectra<'py>(
                 iterations,
                 &master,
             )?;
-            let doc =
-                serde_json::to_string(&planisphere::harmonics::spectra::SpectraDocument::new(&pseudo, &s))
-                    .map_err(|e| Error::Data(format!("cannot write the spectra document: {e}")))?;
+            let doc = serde_json::to_string(
+                &planisphere::harmonics::spectra::SpectraDocument::new(&pseudo, &s),
+            )
+            .map_err(|e| Error::Data(format!("cannot write the spectra document: {e}")))?;
             Ok((doc, planisphere::harmonics::spectra::spectrum_csv(&s)))
         })
     })
@@ -871,12 +905,13 @@ fn read_map<'py>(
     let choice = planisphere::io::fits_io::ColumnChoice::parse(&column);
     let (values, header) = py
         .detach(|| -> planisphere::Result<_> {
+            // the library's arrays become numpy's without a second full-sky copy
             if as_mask {
                 let (fp, header) = planisphere::io::fits_io::read_footprint(&path, &choice)?;
-                Ok((fp.weights().to_vec(), header))
+                Ok((fp.into_weights(), header))
             } else {
                 let (map, header) = planisphere::io::fits_io::read_map(&path, &choice)?;
-                Ok((map.values_with_sentinel(), header))
+                Ok((map.into_values_with_sentinel(), header))
             }
         })
         .map_err(py_error)?;

@@ -46,3 +46,28 @@ def test_other_python_threads_run_during_a_measurement():
     assert elapsed > 0.2, "measurement too short to tell"
     assert ticks > 200_000 * elapsed, (ticks, elapsed)
     assert np.isfinite(result["r"].values[0])
+
+
+def test_contiguous_float64_maps_are_measured_in_place_and_others_copied_once():
+    # the library reports the address of the values it measured; a contiguous native float64
+    # array must be read where it lies (no copy), anything else converted once
+    m = ps.sky(32, seed=3)
+    other = ps.sky(32, seed=4)
+    m[::97] = ps.UNSEEN  # bad pixels are recognised without writing to the caller's array
+    before = m.copy()
+    settings = dict(scales=2, tile_pixels=32, border_pixels=4, bispectrum=False)
+    mask = np.ones_like(m)
+    in_place = ps.measure(m, mask, cross=other, **settings)
+    assert in_place.copied_maps == []
+    assert np.array_equal(m, before)  # the caller's array is left as it was
+    strided = np.empty(2 * m.size)
+    strided[::2] = m
+    copied = ps.measure(strided[::2], mask, cross=other.astype(np.float32), **settings)
+    assert copied.copied_maps == ["map", "second map"]
+    single = ps.measure(m, mask, **settings)
+    assert single.copied_maps == []
+    from_list = ps.measure(list(m), mask, **settings)
+    assert from_list.copied_maps == ["map"]
+    # the same numbers either way (float32 rounds the second map, so compare the first's)
+    assert np.array_equal(in_place.values, copied.values)
+    assert np.array_equal(single.values, from_list.values)

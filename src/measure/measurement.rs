@@ -48,7 +48,7 @@ use crate::scattering::transform::{ScatteringEngine, TilePairView, TransformSett
 use crate::sky::apodization::c2;
 use crate::sky::footprint::Footprint;
 use crate::sky::pixelization::Pixelization;
-use crate::sky::skymap::SkyMap;
+use crate::sky::skymap::SkyMapOf;
 use crate::tiles::sampling::{SamplingMethod, TileGrids, TileSampler};
 use crate::tiles::tiling::{CellLayout, TilingPlan, TilingSettings, TilingSummary};
 
@@ -568,7 +568,7 @@ impl SphereMeasurer {
 
     /// Measures `map` on `footprint` (the apodized footprint the plan was made for, or another
     /// of the same NSIDE whose positive pixels lie in the planned tiles' cores).
-    pub fn measure(&self, map: &SkyMap, footprint: &Footprint) -> Result<MapStatistics> {
+    pub fn measure(&self, map: &SkyMapOf<'_>, footprint: &Footprint) -> Result<MapStatistics> {
         let sampler = TileSampler::new(&self.plan, map, footprint, self.settings.sampling)?;
         let per_tile: Vec<Option<TileResult>> = sampler.map_tiles(|grids| {
             let Some(TileTaper {
@@ -651,8 +651,8 @@ impl SphereMeasurer {
     /// when no footprint pixel is valid in both maps.
     pub fn measure_pair(
         &self,
-        first: &SkyMap,
-        second: &SkyMap,
+        first: &SkyMapOf<'_>,
+        second: &SkyMapOf<'_>,
         footprint: &Footprint,
     ) -> Result<PairStatistics> {
         if first.nside() != second.nside() {

@@ -5,7 +5,7 @@
 
 use crate::error::{Error, Result};
 use crate::sky::pixelization::{Direction, Ordering, Pixelization};
-use crate::sky::skymap::{is_bad_value, SkyMap};
+use crate::sky::skymap::{is_bad_value, SkyMap, SkyMapOf};
 use rayon::prelude::*;
 
 /// A mask or weight map on a HEALPix pixelization.
@@ -93,7 +93,7 @@ impl Footprint {
     }
 
     /// The valid pixels of a map as a binary footprint.
-    pub fn of_valid_pixels(map: &SkyMap) -> Self {
+    pub fn of_valid_pixels(map: &SkyMapOf<'_>) -> Self {
         Footprint {
             pixelization: map.pixelization(),
             weights: map
@@ -201,7 +201,24 @@ impl Footprint {
 
     /// The footprint to use with `map`: this mask brought to the map's ordering, with the map's
     /// invalid pixels removed. Errors when the NSIDEs differ or nothing of the footprint is left.
-    pub fn restricted_to(&self, map: &SkyMap) -> Result<Footprint> {
+    pub fn restricted_to(&self, map: &SkyMapOf<'_>) -> Result<Footprint> {
+        self.check_nside_of(map)?;
+        self.to_ordering(map.ordering())?.without_bad_pixels_of(map)
+    }
+
+    /// As [`Self::restricted_to`], giving up this footprint: in the map's ordering its weights
+    /// are changed in place (no second full-sky array).
+    pub fn into_restricted_to(self, map: &SkyMapOf<'_>) -> Result<Footprint> {
+        self.check_nside_of(map)?;
+        let fp = if self.pixelization.ordering() == map.ordering() {
+            self
+        } else {
+            self.to_ordering(map.ordering())?
+        };
+        fp.without_bad_pixels_of(map)
+    }
+
+    fn check_nside_of(&self, map: &SkyMapOf<'_>) -> Result<()> {
         if self.pixelization.nside() != map.nside() {
             return Err(Error::Mismatch(format!(
                 "mask NSIDE {} does not match map NSIDE {}",
@@ -209,16 +226,22 @@ impl Footprint {
                 map.nside()
             )));
         }
-        let mut fp = self.to_ordering(map.ordering())?;
+        Ok(())
+    }
+
+    /// This footprint (in `map`'s ordering) with weight 0 at the map's invalid pixels; errors
+    /// when nothing is left, saying whether the mask was empty or lies on bad pixels only.
+    fn without_bad_pixels_of(mut self, map: &SkyMapOf<'_>) -> Result<Footprint> {
         let mut lost = 0u64;
-        for (w, &ok) in fp.weights.iter_mut().zip(map.valid()) {
+        for (w, &ok) in self.weights.iter_mut().zip(map.valid()) {
             if *w > 0.0 && !ok {
                 *w = 0.0;
                 lost += 1;
             }
         }
-        if fp.observed_pixels() == 0 {
-            let reason = if self.observed_pixels() == 0 {
+        if self.observed_pixels() == 0 {
+            // nothing observed is left, so the mask's observed pixels were the `lost` ones
+            let reason = if lost == 0 {
                 "the mask is empty (no pixel has positive weight)".to_string()
             } else {
                 format!(
@@ -227,7 +250,7 @@ impl Footprint {
             };
             return Err(Error::Data(reason));
         }
-        Ok(fp)
+        Ok(self)
     }
 }
 

@@ -3,13 +3,17 @@
 
 use crate::error::{Error, Result};
 use crate::sky::footprint::Footprint;
-use crate::sky::skymap::SkyMap;
+use crate::sky::skymap::SkyMapOf;
 
 /// Checks that `map` (named `label` in messages) has something to measure on `footprint`
 /// (pixels of positive weight; all valid pixels without one): values within
 /// ±[`crate::limits::MAX_ABS_VALUE`], more than one valid pixel, and not all equal (a map
 /// without fluctuations has scattering coefficients that are ratios of rounding errors).
-pub fn check_measurable(map: &SkyMap, footprint: Option<&Footprint>, label: &str) -> Result<()> {
+pub fn check_measurable(
+    map: &SkyMapOf<'_>,
+    footprint: Option<&Footprint>,
+    label: &str,
+) -> Result<()> {
     let weights = footprint
         .filter(|f| f.pixelization() == map.pixelization())
         .map(Footprint::weights);

@@ -17,4 +17,4 @@ pub use apodization::{apodize, TaperKind};
 pub use footprint::Footprint;
 pub use measurable::check_measurable;
 pub use pixelization::{Direction, Ordering, Pixelization};
-pub use skymap::SkyMap;
+pub use skymap::{SkyMap, SkyMapOf};

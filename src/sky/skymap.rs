@@ -2,11 +2,13 @@
 //!
 //! Invalid pixels are those holding the HEALPix bad-value sentinel UNSEEN = −1.6375e30 (within
 //! healpy's tolerance |m − UNSEEN| ≤ 1e-8 + 1e-5·|UNSEEN|, so that a float32 sentinel counts),
-//! NaN or ±∞. Their stored value is NaN.
+//! NaN or ±∞. An owned map stores NaN there; a map borrowing its caller's values
+//! ([`SkyMapOf::borrowing`]) leaves them as given and is read only where [`SkyMapOf::valid`].
 
 use crate::error::{Error, Result};
 use crate::sky::pixelization::{Direction, Ordering, Pixelization};
 use rayon::prelude::*;
+use std::borrow::Cow;
 
 /// The HEALPix bad-pixel sentinel (HEALPix FITS convention; healpy `UNSEEN`).
 pub const UNSEEN: f64 = -1.6375e30;
@@ -16,11 +18,16 @@ pub fn is_bad_value(value: f64) -> bool {
     !value.is_finite() || (value - UNSEEN).abs() <= 1e-8 + 1e-5 * UNSEEN.abs()
 }
 
-/// A full-sky HEALPix map.
+/// A full-sky HEALPix map that owns its values.
+pub type SkyMap = SkyMapOf<'static>;
+
+/// A full-sky HEALPix map whose values are its own or borrowed for `'a` from the caller (no
+/// copy of a large map the caller keeps anyway); [`SkyMap`] is the owned kind. Which pixels
+/// are valid is always the map's own record.
 #[derive(Debug, Clone)]
-pub struct SkyMap {
+pub struct SkyMapOf<'a> {
     pixelization: Pixelization,
-    values: Vec<f64>,
+    values: Cow<'a, [f64]>,
     valid: Vec<bool>,
     /// Coordinate system from the FITS `COORDSYS` keyword (`G`, `E`, `C`), when known.
     pub coordsys: Option<String>,
@@ -43,18 +50,24 @@ pub struct MapSummary {
     pub mean_spacing_arcmin: f64,
 }
 
+/// The error of `count` values given for `pixelization`, if it needs another number.
+fn check_length(pixelization: Pixelization, count: usize) -> Result<()> {
+    let npix = pixelization.npix();
+    if count as u64 != npix {
+        return Err(Error::Mismatch(format!(
+            "NSIDE {} needs {} pixels but {} values were given",
+            pixelization.nside(),
+            npix,
+            count
+        )));
+    }
+    Ok(())
+}
+
 impl SkyMap {
     /// A map from values in the pixelization's ordering; bad values become invalid pixels.
     pub fn new(pixelization: Pixelization, mut values: Vec<f64>) -> Result<Self> {
-        let npix = pixelization.npix();
-        if values.len() as u64 != npix {
-            return Err(Error::Mismatch(format!(
-                "NSIDE {} needs {} pixels but {} values were given",
-                pixelization.nside(),
-                npix,
-                values.len()
-            )));
-        }
+        check_length(pixelization, values.len())?;
         let valid: Vec<bool> = values.iter().map(|&v| !is_bad_value(v)).collect();
         for (v, ok) in values.iter_mut().zip(&valid) {
             if !ok {
@@ -63,7 +76,7 @@ impl SkyMap {
         }
         Ok(SkyMap {
             pixelization,
-            values,
+            values: Cow::Owned(values),
             valid,
             coordsys: None,
         })
@@ -78,10 +91,32 @@ impl SkyMap {
         let valid = values.iter().map(|&v| !is_bad_value(v)).collect();
         SkyMap {
             pixelization,
-            values,
+            values: Cow::Owned(values),
             valid,
             coordsys: None,
         }
+    }
+}
+
+impl<'a> SkyMapOf<'a> {
+    /// A map reading the caller's `values` (in the pixelization's ordering) where they are,
+    /// without copying them: the same valid pixels as [`SkyMap::new`] of a copy and the same
+    /// values at the valid ones, while the bad pixels keep the caller's value (UNSEEN, NaN
+    /// or ±∞) instead of NaN. Everything that takes a `SkyMapOf` reads values only where
+    /// [`Self::valid`].
+    pub fn borrowing(pixelization: Pixelization, values: &'a [f64]) -> Result<Self> {
+        check_length(pixelization, values.len())?;
+        Ok(SkyMapOf {
+            pixelization,
+            valid: values.iter().map(|&v| !is_bad_value(v)).collect(),
+            values: Cow::Borrowed(values),
+            coordsys: None,
+        })
+    }
+
+    /// Does the map read its caller's values in place (made by [`Self::borrowing`])?
+    pub fn is_borrowed(&self) -> bool {
+        matches!(self.values, Cow::Borrowed(_))
     }
 
     /// The map's pixelization.
@@ -99,14 +134,23 @@ impl SkyMap {
         self.pixelization.ordering()
     }
 
-    /// Pixel values (NaN at invalid pixels), in the map's ordering.
+    /// Pixel values in the map's ordering: NaN at invalid pixels for an owned map, the
+    /// caller's values there for a borrowing one (see [`Self::borrowing`]).
     pub fn values(&self) -> &[f64] {
         &self.values
     }
 
-    /// The pixel values, giving up the map (no copy).
+    /// The pixel values with NaN at invalid pixels, giving up the map (no copy when it owns
+    /// them).
     pub fn into_values(self) -> Vec<f64> {
-        self.values
+        match self.values {
+            Cow::Owned(values) => values,
+            Cow::Borrowed(values) => values
+                .iter()
+                .zip(&self.valid)
+                .map(|(&v, &ok)| if ok { v } else { f64::NAN })
+                .collect(),
+        }
     }
 
     /// Which pixels are valid.
@@ -125,8 +169,10 @@ impl SkyMap {
         self.valid.iter().filter(|&&v| v).count() as u64
     }
 
-    /// The same map in another ordering (Górski et al. 2005 RING ↔ NESTED, via `cdshealpix`).
-    pub fn to_ordering(&self, ordering: Ordering) -> Result<SkyMap> {
+    /// The same map in another ordering (Górski et al. 2005 RING ↔ NESTED, via `cdshealpix`);
+    /// in its own ordering a copy (a borrowing map's copy borrows the same values). A reordered
+    /// map owns its values, NaN at the invalid pixels.
+    pub fn to_ordering(&self, ordering: Ordering) -> Result<SkyMapOf<'a>> {
         if ordering == self.ordering() {
             return Ok(self.clone());
         }
@@ -143,9 +189,20 @@ impl SkyMap {
                 Ok(src as usize)
             })
             .collect::<Result<Vec<usize>>>()?;
-        Ok(SkyMap {
+        Ok(SkyMapOf {
             pixelization: target,
-            values: index.iter().map(|&i| self.values[i]).collect(),
+            values: Cow::Owned(
+                index
+                    .iter()
+                    .map(|&i| {
+                        if self.valid[i] {
+                            self.values[i]
+                        } else {
+                            f64::NAN
+                        }
+                    })
+                    .collect(),
+            ),
             valid: index.iter().map(|&i| self.valid[i]).collect(),
             coordsys: self.coordsys.clone(),
         })
@@ -180,6 +237,22 @@ impl SkyMap {
             .zip(&self.valid)
             .map(|(&v, &ok)| if ok { v } else { UNSEEN })
             .collect()
+    }
+
+    /// [`Self::values_with_sentinel`], giving up the map: an owned map's values are rewritten
+    /// in place (no second full-sky array).
+    pub fn into_values_with_sentinel(self) -> Vec<f64> {
+        match self.values {
+            Cow::Owned(mut values) => {
+                for (v, &ok) in values.iter_mut().zip(&self.valid) {
+                    if !ok {
+                        *v = UNSEEN;
+                    }
+                }
+                values
+            }
+            Cow::Borrowed(_) => self.values_with_sentinel(),
+        }
     }
 
     /// NSIDE, ordering, valid fraction, mean, rms (about zero), min, max and coordinate system.
@@ -233,6 +306,46 @@ mod tests {
         let pix = Pixelization::new(2, Ordering::Ring).unwrap();
         let err = SkyMap::new(pix, vec![0.0; 47]).unwrap_err().to_string();
         assert!(err.contains("needs 48 pixels but 47"), "{err}");
+    }
+
+    #[test]
+    fn borrowing_map_reads_the_callers_values_with_the_owned_maps_valid_pixels() {
+        // the same bad-value rule as an owned map (UNSEEN, NaN, ±∞; healpy's tolerance)
+        let pix = Pixelization::new(2, Ordering::Ring).unwrap();
+        let mut values: Vec<f64> = (0..48).map(|i| i as f64 - 7.5).collect();
+        values[3] = UNSEEN;
+        values[9] = f64::NAN;
+        values[20] = f64::INFINITY;
+        let owned = SkyMap::new(pix, values.clone()).unwrap();
+        let borrowed = SkyMapOf::borrowing(pix, &values).unwrap();
+        assert!(borrowed.is_borrowed() && !owned.is_borrowed());
+        assert_eq!(borrowed.values().as_ptr(), values.as_ptr());
+        assert_eq!(borrowed.valid(), owned.valid());
+        assert_eq!(borrowed.valid_count(), 45);
+        assert_eq!(borrowed.values()[3], UNSEEN);
+        let nested = borrowed.to_ordering(Ordering::Nested).unwrap();
+        let nested_owned = owned.to_ordering(Ordering::Nested).unwrap();
+        assert_eq!(
+            nested.values_with_sentinel(),
+            nested_owned.values_with_sentinel()
+        );
+        assert!(nested.values()[nested_owned.valid().iter().position(|&ok| !ok).unwrap()].is_nan());
+        let same = borrowed.clone().into_values();
+        assert_eq!(same.iter().filter(|v| v.is_nan()).count(), 3);
+        assert_eq!(
+            borrowed.clone().into_values_with_sentinel(),
+            owned.values_with_sentinel()
+        );
+        assert_eq!(
+            owned.clone().into_values_with_sentinel(),
+            owned.values_with_sentinel()
+        );
+        assert_eq!(
+            SkyMapOf::borrowing(pix, &values[..47])
+                .unwrap_err()
+                .to_string(),
+            "NSIDE 2 needs 48 pixels but 47 values were given"
+        );
     }
 
     #[test]

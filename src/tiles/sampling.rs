@@ -22,7 +22,7 @@
 use crate::error::{Error, Result};
 use crate::sky::footprint::Footprint;
 use crate::sky::pixelization::{ring_info, ring_theta, Ordering, Pixelization};
-use crate::sky::skymap::SkyMap;
+use crate::sky::skymap::{SkyMap, SkyMapOf};
 use crate::tiles::projection::{rectangle_solid_angle, Gnomonic};
 use crate::tiles::tiling::TilingPlan;
 use rayon::prelude::*;
@@ -391,7 +391,7 @@ fn wrap(j: i64, count: u64) -> u64 {
 /// Reads a map and a mask onto the tiles of a plan, one tile at a time.
 pub struct TileSampler<'a> {
     plan: &'a TilingPlan,
-    map: &'a SkyMap,
+    map: &'a SkyMapOf<'a>,
     /// Mask weights in the map's ordering (borrowed when the orderings agree); the map's bad
     /// pixels are treated as weight 0 when read.
     mask: Cow<'a, [f64]>,
@@ -408,7 +408,7 @@ impl<'a> TileSampler<'a> {
     /// A sampler for `map` and `mask` (same NSIDE as the plan's map) on the tiles of `plan`.
     pub fn new(
         plan: &'a TilingPlan,
-        map: &'a SkyMap,
+        map: &'a SkyMapOf<'a>,
         mask: &'a Footprint,
         method: SamplingMethod,
     ) -> Result<Self> {
