@@ -1,4 +1,4 @@
-"""Reference values for planisphere's MASTER deconvolution (src/mode_coupling.rs, src/wigner.rs).
+"""Reference values for planisphere's MASTER deconvolution (src/harmonics/mode_coupling.rs, src/harmonics/wigner.rs).
 
 Run by hand (not by CI) from the repository root:
 

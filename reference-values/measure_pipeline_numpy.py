@@ -11,7 +11,7 @@ same transform as `planisphere measure`, written from the formulas, not tuned an
   * sampling: bilinear, healpy `get_interp_val`, of the map and of the mask;
   * a patch is kept when the mask covers more than half of it (mean interpolated mask > 0.5);
   * filter input I = m (f - <f>_m), m the interpolated mask, <.>_m the m-weighted patch mean;
-  * Morlet filters built in Fourier space from the formulas of src/filters.rs (Bruna & Mallat
+  * Morlet filters built in Fourier space from the formulas of src/scattering/filters.rs (Bruna & Mallat
     2013, IEEE TPAMI 35, 1872): sigma_j = 0.8 * 2**j pixels, xi_j = 3 pi / (4 * 2**j) rad/pixel,
     theta_l = pi l / L, slant s = 4 / L, unit-L1 envelope g^(k) = exp(-sigma^2 (k_par^2 +
     k_perp^2 / s^2) / 2), psi^(k) = g^(k - xi e) - beta g^(k), periodised over the 2 pi Fourier

@@ -11,7 +11,7 @@ numpy only. For each demo output directory DIR (fiducial/, amplitude_plus/, ampl
 shift_plus/, shift_minus/, each with statistics.json + statistics.npy, and comparison.csv):
 
 (a) the summary items are recomputed from the full labelled coefficients of every sky of every
-    ensemble with the formulas of src/statistics.rs (complex exponentials here):
+    ensemble with the formulas of src/scattering/statistics.rs (complex exponentials here):
       h_m(j) = sum_l S1(j,l) exp(-2 pi i m l / L),  T(j1,j2,D) = sum_l1 S2(j1,l1,j2,(l1+D) mod L)
       modulus_j = h_0(j)/L, modulus_anisotropy_j = |h_1(j)|/h_0(j),
       intermittency_j1_j2 = sum_D T/(L h_0(j1)), alignment_j1_j2 = Re sum_D T e^{2 pi i D/L}/sum_D T,
@@ -112,7 +112,7 @@ class Coefficients:
 
 
 def summary_items(c):
-    """All summary items (name -> values over skies), formulas of src/statistics.rs."""
+    """All summary items (name -> values over skies), formulas of src/scattering/statistics.rs."""
     J, L = c.J, c.L
     ls = np.arange(L)
     out = {"summary.mean": c.mean, "summary.rms": np.sqrt(np.maximum(c.variance, 0.0))}

@@ -1,4 +1,4 @@
-"""Independent numpy reference for the orientation-harmonic summary (src/statistics.rs).
+"""Independent numpy reference for the orientation-harmonic summary (src/scattering/statistics.rs).
 
 The scattering coefficients come from the pixel-space Morlet implementation of
 scattering_reference.py (same folder); the summary items are computed here from their

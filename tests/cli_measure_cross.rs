@@ -1,6 +1,6 @@
 //! `planisphere measure MAP --cross OTHER`: the JSON holds both maps' statistics and the cross
 //! set; a map crossed with a NESTED copy of itself gives cross band powers equal to its band
-//! powers (identity of the definition in src/transform.rs, after re-ordering per Górski et al.
+//! powers (identity of the definition in src/scattering/transform.rs, after re-ordering per Górski et al.
 //! 2005), and the first map's statistics equal those of `measure` alone on the same footprint.
 
 use planisphere::io::fits_io::{write_map, WriteOptions};

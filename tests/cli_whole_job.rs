@@ -153,7 +153,7 @@ fn compare_flat_reports_less_sampling_bias_at_larger_scales() {
     // 3 scales × 4 orientations of S1 and of band powers, 3 pairs × 16 of S2
     assert_eq!(rows.len(), 12 + 12 + 48);
     // mean |relative bias| of S1 per scale: the sampling smooths small scales most
-    // (interpolation transfer, see DEVELOPERS.md)
+    // (interpolation transfer, see docs/validation.md)
     let bias = |j: &str| {
         let v: Vec<f64> = rows
             .iter()

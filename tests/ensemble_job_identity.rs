@@ -3,7 +3,7 @@
 //! another job, and unreadable row files, are refused with one line naming what differs (exit 2,
 //! nothing created or changed); a map file changed after it was measured is measured again on
 //! resume and refused by `merge`; `forecast` refuses ensembles measured with other settings.
-//! (Expectations: the rules of `src/ensemble.rs`; exit code 2 and one-line errors are the
+//! (Expectations: the rules of `src/ensemble/mod.rs`; exit code 2 and one-line errors are the
 //! program's own convention for bad input.)
 
 mod common;

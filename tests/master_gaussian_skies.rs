@@ -6,7 +6,7 @@
 //! weighting (C_ℓ or D_ℓ; Hivon et al. 2002 §3, the assumption behind Q_ℓb), so the input
 //! spectra here are red power laws held constant across each bin. (For a smooth
 //! C_ℓ = (ℓ+5)^−2.5 the flat-C_ℓ assumption alone moves the expectation of the ℓ 14–25 bin by
-//! −12%; DEVELOPERS.md, spectra section.)
+//! −12%; docs/validation.md, spectra section.)
 
 use planisphere::harmonics::mode_coupling::{BinWeighting, Binning};
 use planisphere::harmonics::spectra::{master_spectrum, pseudo_spectrum, MasterSettings};

@@ -1,6 +1,6 @@
 //! Cross statistics of two flat fields on one tile (`ScatteringEngine::transform_tile_pair`):
 //! identities of the cross band power, the Gaussian correlation identity, and vanishing of the
-//! cross moments where Gaussian statistics say they vanish (definitions in src/transform.rs).
+//! cross moments where Gaussian statistics say they vanish (definitions in src/scattering/transform.rs).
 
 mod common;
 
@@ -306,7 +306,7 @@ fn assert_consistent_with_zero(
 #[test]
 fn independent_gaussian_fields_have_cross_statistics_consistent_with_zero() {
     // Independent fields: each cross statistic has a zero-mean factor independent of the other
-    // (definitions in src/transform.rs), so its expectation is 0 (common practice).
+    // (definitions in src/scattering/transform.rs), so its expectation is 0 (common practice).
     let engine = ScatteringEngine::new(N, J, L).unwrap();
     let taper = holed_taper();
     let (set, mean, se) = cross_ensemble(&engine, &taper, 32, |k| {
@@ -405,7 +405,7 @@ fn convolve(field: &[f64], psi_hat: &[f64], n: usize) -> Vec<(f64, f64)> {
 
 #[test]
 fn periodic_cross_statistics_match_a_direct_implementation_of_their_definitions() {
-    // With taper 1 and weight 1 the coverage is 1 and the definitions in src/transform.rs reduce
+    // With taper 1 and weight 1 the coverage is 1 and the definitions in src/scattering/transform.rs reduce
     // to plain periodic convolutions and means, computed here from the formulas with a plain
     // DFT. Without Fourier cropping the engine must agree to rounding; with cropping (scale 4
     // on a 32² grid) within 1e-3 of the largest value of each kind (the cropping error of the

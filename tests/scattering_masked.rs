@@ -1,6 +1,6 @@
 //! Mask-aware estimator: on a stationary Gaussian field, trusted coefficients computed on a
 //! footprint with holes and edges agree with the periodic full-map coefficients of the same
-//! fields (design property of the estimator in src/transform.rs; the tolerance, 0.5 σ of the
+//! fields (design property of the estimator in src/scattering/transform.rs; the tolerance, 0.5 σ of the
 //! per-field ensemble scatter, is this crate's acceptance criterion).
 
 mod common;

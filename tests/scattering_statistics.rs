@@ -1,5 +1,5 @@
 //! The labelled full set and the layout of the orientation-harmonic summary (definitions in
-//! src/statistics.rs).
+//! src/scattering/statistics.rs).
 
 use planisphere::measure::flat::{gaussian_random_field, periodic_coefficients};
 use planisphere::scattering::transform::ScatteringEngine;
@@ -22,7 +22,7 @@ fn full_set_serialises_with_label_fields_and_summary_has_44_items_for_six_scales
     assert_eq!(first["order"], 1);
     assert!(first["j2"].is_null());
     let summary = set.summary().unwrap();
-    // 2 + 2J + J(J − 1) items (src/statistics.rs)
+    // 2 + 2J + J(J − 1) items (src/scattering/statistics.rs)
     assert_eq!(summary.len(), 2 + 12 + 30);
     assert_eq!(summary[2].name, "modulus_j0");
     assert_eq!(summary[8].name, "modulus_anisotropy_j0");

@@ -1,6 +1,6 @@
 //! Mask-aware estimator on the sphere: on Gaussian skies, trusted coefficients measured on a
 //! partial sky with holes agree with the full-sky coefficients of the same skies (design
-//! property of the estimator in src/transform.rs; the tolerance, 0.5 σ of the partial-sky
+//! property of the estimator in src/scattering/transform.rs; the tolerance, 0.5 σ of the partial-sky
 //! ensemble scatter, is this crate's acceptance criterion, as in tests/scattering_masked.rs).
 
 mod sphere_support;

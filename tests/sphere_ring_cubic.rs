@@ -1,4 +1,4 @@
-//! Ring-wise cubic sampling (our design, src/sampling.rs): partition of unity, fourth-order
+//! Ring-wise cubic sampling (our design, src/tiles/sampling.rs): partition of unity, fourth-order
 //! accuracy, and its power transfer on tile grids compared with the linear schemes.
 
 use planisphere::tiles::sampling::{

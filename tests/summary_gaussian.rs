@@ -1,4 +1,4 @@
-//! The orientation-harmonic summary (src/statistics.rs) on Gaussian fields, flat and on the
+//! The orientation-harmonic summary (src/scattering/statistics.rs) on Gaussian fields, flat and on the
 //! sphere, and against an independent numpy implementation
 //! (reference-values/summary_reference.py, numpy 2.4.6, pixel-space Morlet filters of
 //! reference-values/scattering_reference.py).
@@ -272,7 +272,7 @@ fn gaussian_skies_on_the_sphere_match_flat_gaussian_fields() {
     // P(k) = C_{k−½} (LoVerde & Afshordi 2008, PRD 78, 123506) at the same plane pixel size:
     // the Gaussian expectation of every trusted dimensionless item, from the flat ensemble.
     // Tolerance 4 combined standard errors + 0.005 (the sampling transfer of trusted scales,
-    // ≤ 1.7% on S1 at λ_j ≥ 8 map spacings, DEVELOPERS.md). Also order-1 isotropy on the
+    // ≤ 1.7% on S1 at λ_j ≥ 8 map spacings, docs/validation.md). Also order-1 isotropy on the
     // sphere, as in the flat test.
     let nside = 64;
     let skies = 12;

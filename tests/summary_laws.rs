@@ -1,4 +1,4 @@
-//! Exact laws of the orientation-harmonic summary (src/statistics.rs) and its adjoint.
+//! Exact laws of the orientation-harmonic summary (src/scattering/statistics.rs) and its adjoint.
 //!
 //! Sources: a quarter turn of a periodic square grid maps the sampled filter bank onto itself,
 //! shifting l by L/2 (common practice; the coefficient-level law is in

@@ -1,5 +1,5 @@
 //! The orientation-harmonic summary on textures of known geometry (design properties stated in
-//! src/statistics.rs; the fields are generated here).
+//! src/scattering/statistics.rs; the fields are generated here).
 
 use planisphere::measure::flat::{periodic_coefficients, FlatMap};
 use planisphere::scattering::statistics::SummaryStatistic;
@@ -56,7 +56,7 @@ fn pick(s: &[SummaryStatistic], name: &str) -> f64 {
 
 #[test]
 fn line_segments_align_positively_and_round_disks_negatively_at_the_objects_scale() {
-    // Design property of `alignment` (src/statistics.rs): an envelope elongated along the first
+    // Design property of `alignment` (src/scattering/statistics.rs): an envelope elongated along the first
     // wavelet's wave fronts (a line) varies along its wave vector (> 0); a disk's envelope at a
     // small scale is two arcs facing each other along the wave vector, which at the disk's own
     // scale is a pattern stretched along the wave vector, varying across it (< 0). Same objects,
@@ -77,7 +77,7 @@ fn line_segments_align_positively_and_round_disks_negatively_at_the_objects_scal
 
 #[test]
 fn sparse_poisson_blobs_are_more_intermittent_than_dense_ones() {
-    // Design property of `intermittency` (src/statistics.rs). Both fields are Poisson
+    // Design property of `intermittency` (src/scattering/statistics.rs). Both fields are Poisson
     // (uniform, independent) placements of the same Gaussian blob (σ = 2 pixels), 15 against
     // 1500 on 128²: their power spectra have the same form, count·|b̂(k)|² plus the mean,
     // so only where the power sits differs. Every scale pair must order them.

@@ -108,7 +108,7 @@ fn tile_power_spectrum_matches_full_sky_cl_at_k_minus_half_for_ten_degree_tiles(
     let h = pix.mean_spacing();
     let mut checked = 0;
     for bin in 0..8 {
-        // skip wavelengths shorter than 8 map spacings (the sampling transfer, DEVELOPERS.md)
+        // skip wavelengths shorter than 8 map spacings (the sampling transfer, docs/validation.md)
         if 2.0 * std::f64::consts::PI / edges[bin + 1] < 8.0 * h {
             continue;
         }

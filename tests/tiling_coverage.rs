@@ -150,7 +150,7 @@ fn full_sky_latitude_bands_cover_every_pixel_once_with_two_caps() {
 
 #[test]
 fn latitude_band_cores_fit_inside_the_halo() {
-    // Design rule of the layout (src/tiling/latitude_bands.rs): every footprint pixel centre of
+    // Design rule of the layout (src/tiles/tiling/latitude_bands.rs): every footprint pixel centre of
     // a core projects within |x|, |y| ≤ (n/2 − halo)·Δ of its tile's tangent point (gnomonic
     // projection, Calabretta & Greisen 2002).
     for nside in [64u32, 256] {

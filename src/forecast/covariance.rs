@@ -27,6 +27,19 @@ pub const MIN_RELATIVE_PIVOT: f64 = 1e-12;
 /// Hartlap, Simon & Schneider 2007 (A&A 464, 399, eq. 17) de-biasing factor
 /// h = (n − p − 2)/(n − 1) for the inverse of a sample covariance from `n` simulations of `p`
 /// statistics. Errors when n ≤ p + 2, where no unbiased precision matrix exists.
+///
+/// # Examples
+///
+/// Worked from eq. 17: n = 100 simulations of p = 10 statistics give h = 88/99 = 0.888…;
+/// n = 6, p = 2 give h = 2/5; n = 12, p = 10 is refused.
+///
+/// ```
+/// use planisphere::forecast::hartlap_factor;
+/// assert!((hartlap_factor(100, 10)? - 88.0 / 99.0).abs() < 1e-15);
+/// assert!((hartlap_factor(6, 2)? - 0.4).abs() < 1e-15);
+/// assert!(hartlap_factor(12, 10).is_err());
+/// # Ok::<(), planisphere::Error>(())
+/// ```
 pub fn hartlap_factor(n_simulations: usize, n_statistics: usize) -> Result<f64> {
     let (n, p) = (n_simulations, n_statistics);
     if n <= p + 2 {

@@ -99,7 +99,7 @@ pub const CONVERGENCE_ERRORS: f64 = 2.0;
 
 /// The default size of the periodic flat fields for n-pixel tiles and J scales: the smallest
 /// n·2^k (k ≥ 1) of at least 32·2^{J−1} pixels, i.e. 12 wavelengths of the largest wavelet
-/// ((8/3)·2^{J−1} pixels). Measured: see DEVELOPERS.md, "compare-flat".
+/// ((8/3)·2^{J−1} pixels). Measured: see docs/validation.md, "compare-flat".
 pub fn automatic_reference_pixels(n: usize, scales: usize) -> usize {
     let need = 32usize << scales.saturating_sub(1).min(20);
     let mut m = 2 * n;

@@ -156,7 +156,7 @@
 //! coarse level one real FFT at full size and one complex-to-real inverse at the coarse size.
 //! The exact list is [`ScatteringEngine::fft_census`]. For n = 256, J = 5, L = 4 the census
 //! drops from 141 to 62 full-size complex FFT equivalents (m² log m, half for real-data
-//! transforms); measured per-tile times are in `examples/per_scale_timing.rs` and DEVELOPERS.md.
+//! transforms); measured per-tile times are in `examples/per_scale_timing.rs` and docs/benchmarks.md.
 //! Memory is a few n² arrays plus the pooling weights, independent of the number of tiles.
 
 use crate::scattering::filters::MorletBank;

@@ -35,6 +35,18 @@ pub enum TaperKind {
 }
 
 /// C1 taper of Grain et al. 2009 (eq. 31) at normalised distance x.
+///
+/// # Examples
+///
+/// Worked from eq. 31: f(1/2) = 1/2 − sin π/(2π) = 1/2; f(1/4) = 1/4 − 1/(2π) = 0.0908451.
+///
+/// ```
+/// use planisphere::sky::apodization::c1;
+/// assert!((c1(0.5) - 0.5).abs() < 1e-15);
+/// assert!((c1(0.25) - (0.25 - 1.0 / (2.0 * std::f64::consts::PI))).abs() < 1e-15);
+/// assert!((c1(0.25) - 0.0908451).abs() < 1e-7);
+/// assert_eq!((c1(0.0), c1(1.0), c1(2.0)), (0.0, 1.0, 1.0));
+/// ```
 pub fn c1(x: f64) -> f64 {
     if x >= 1.0 {
         1.0
@@ -46,6 +58,17 @@ pub fn c1(x: f64) -> f64 {
 }
 
 /// C2 taper of Grain et al. 2009 (eq. 32) at normalised distance x.
+///
+/// # Examples
+///
+/// Worked from eq. 32: f(1/2) = (1 − cos(π/2))/2 = 1/2; f(1/4) = (1 − 1/√2)/2 = 0.1464466.
+///
+/// ```
+/// use planisphere::sky::apodization::c2;
+/// assert!((c2(0.5) - 0.5).abs() < 1e-15);
+/// assert!((c2(0.25) - 0.1464466).abs() < 1e-7);
+/// assert_eq!((c2(0.0), c2(1.0)), (0.0, 1.0));
+/// ```
 pub fn c2(x: f64) -> f64 {
     if x >= 1.0 {
         1.0
@@ -59,6 +82,18 @@ pub fn c2(x: f64) -> f64 {
 /// Standard normal distribution function Φ(z) = erfc(−z/√2)/2, with erfc from the Chebyshev
 /// fit of Numerical Recipes (Press et al., 2nd ed., §6.2, `erfcc`; fractional error < 1.2e-7),
 /// ample for a taper.
+///
+/// # Examples
+///
+/// Table values of the standard normal distribution (Abramowitz & Stegun 1964, table 26.1):
+/// Φ(0) = 0.5, Φ(1) = 0.8413447, Φ(−3) = 0.0013499.
+///
+/// ```
+/// use planisphere::sky::apodization::normal_cdf;
+/// assert!((normal_cdf(0.0) - 0.5).abs() < 1e-7);
+/// assert!((normal_cdf(1.0) - 0.8413447).abs() < 1e-6);
+/// assert!((normal_cdf(-3.0) - 0.0013499).abs() < 1e-6);
+/// ```
 pub fn normal_cdf(z: f64) -> f64 {
     0.5 * erfc(-z / std::f64::consts::SQRT_2)
 }
@@ -84,6 +119,22 @@ fn erfc(x: f64) -> f64 {
 }
 
 /// The taper value at distance `delta` from the edge for width `width` (both radians).
+///
+/// # Examples
+///
+/// With x = √((1 − cos Δ)/(1 − cos θ)) = sin(Δ/2)/sin(θ/2) (half-angle identity), Δ = θ/2
+/// gives x = 1/(2 cos(θ/4)), just above 1/2; the Gaussian taper is Φ(0) = 1/2 there and
+/// Φ(−3) ≈ 0.00135 at the edge (the formulas of the module documentation).
+///
+/// ```
+/// use planisphere::sky::apodization::{c2, taper, TaperKind};
+/// let width = 2f64.to_radians();
+/// let x = 1.0 / (2.0 * (width / 4.0).cos());
+/// assert!((taper(TaperKind::C2, width / 2.0, width) - c2(x)).abs() < 1e-12);
+/// assert!((taper(TaperKind::Gaussian, width / 2.0, width) - 0.5).abs() < 1e-7);
+/// assert!((taper(TaperKind::Gaussian, 0.0, width) - 0.0013499).abs() < 1e-6);
+/// assert_eq!(taper(TaperKind::C1, width, width), 1.0);
+/// ```
 pub fn taper(kind: TaperKind, delta: f64, width: f64) -> f64 {
     let x = ((1.0 - delta.cos()) / (1.0 - width.cos())).sqrt();
     match kind {

@@ -186,6 +186,24 @@ impl Pixelization {
     }
 
     /// Solid angle of one pixel, 4π / Npix = π / (3 NSIDE²) steradians (equal-area pixels).
+    ///
+    /// # Examples
+    ///
+    /// Npix = 12 NSIDE² equal-area pixels (Górski et al. 2005, ApJ 622, 759; from memory):
+    /// NSIDE 1 has 12 pixels of π/3 = 1.0471976 sr, NSIDE 1024 has 12 582 912 pixels of
+    /// 4π/12 582 912 = 9.98685e-7 sr, whose mean spacing √Ω is 3517.94′/1024 = 3.43549′.
+    ///
+    /// ```
+    /// use planisphere::{Ordering, Pixelization};
+    /// let one = Pixelization::new(1, Ordering::Ring)?;
+    /// assert_eq!(one.npix(), 12);
+    /// assert!((one.pixel_area() - 1.0471976).abs() < 1e-7);
+    /// let fine = Pixelization::new(1024, Ordering::Nested)?;
+    /// assert_eq!(fine.npix(), 12_582_912);
+    /// assert!((fine.pixel_area() / 9.98685e-7 - 1.0).abs() < 1e-5);
+    /// assert!((fine.mean_spacing().to_degrees() * 60.0 - 3.43549).abs() < 1e-5);
+    /// # Ok::<(), planisphere::Error>(())
+    /// ```
     pub fn pixel_area(&self) -> f64 {
         4.0 * PI / self.npix() as f64
     }

@@ -54,6 +54,28 @@ impl Gnomonic {
 
     /// Plane coordinates (x, y), in radians of the tangent plane, of `dir`; `None` when
     /// cos c ≤ 0, i.e. the direction is 90° or more away from the tangent point.
+    ///
+    /// # Examples
+    ///
+    /// Worked values of Snyder 1987, §22, eqs. 22-4 and 22-5 with the tangent point at
+    /// (α0, δ0) = (0°, 0°): (30°, 30°) has cos c = cos 30° cos 30° = 3/4, so
+    /// x = cos 30° sin 30°/(3/4) = 1/√3 and y = sin 30°/(3/4) = 2/3; (45°, 0°) is 45° from the
+    /// tangent point and lands at R = tan 45° = 1 (Calabretta & Greisen 2002, §5.1.3).
+    ///
+    /// ```
+    /// use planisphere::tiles::projection::Gnomonic;
+    /// use planisphere::Direction;
+    /// let tan = Gnomonic::new(Direction::from_lonlat_deg(0.0, 0.0));
+    /// let (x, y) = tan.forward(Direction::from_lonlat_deg(30.0, 30.0)).unwrap();
+    /// assert!((x - 1.0 / 3f64.sqrt()).abs() < 1e-12 && (y - 2.0 / 3.0).abs() < 1e-12);
+    /// let (x, y) = tan.forward(Direction::from_lonlat_deg(45.0, 0.0)).unwrap();
+    /// assert!((x - 1.0).abs() < 1e-12 && y.abs() < 1e-12);
+    /// // The far hemisphere has no image.
+    /// assert!(tan.forward(Direction::from_lonlat_deg(120.0, 0.0)).is_none());
+    /// // The inverse returns the direction.
+    /// let back = tan.inverse(1.0 / 3f64.sqrt(), 2.0 / 3.0);
+    /// assert!(back.distance(&Direction::from_lonlat_deg(30.0, 30.0)) < 1e-12);
+    /// ```
     pub fn forward(&self, dir: Direction) -> Option<(f64, f64)> {
         self.forward_vector(dir.to_vector())
     }
@@ -85,6 +107,19 @@ impl Gnomonic {
 
 /// Radial scale factor at angular distance ρ from the tangent point: dR/dρ = sec²ρ
 /// (Snyder 1987, §22, eq. 22-2 in the form h' = 1/cos²c).
+///
+/// # Examples
+///
+/// At ρ = 60°, sec ρ = 2: radial scale 4, tangential scale 2, area scale 8 (worked from the
+/// formulas above).
+///
+/// ```
+/// use planisphere::tiles::projection::{area_scale, radial_scale, tangential_scale};
+/// let rho = 60f64.to_radians();
+/// assert!((radial_scale(rho) - 4.0).abs() < 1e-12);
+/// assert!((tangential_scale(rho) - 2.0).abs() < 1e-12);
+/// assert!((area_scale(rho) - 8.0).abs() < 1e-12);
+/// ```
 pub fn radial_scale(rho: f64) -> f64 {
     1.0 / rho.cos().powi(2)
 }
@@ -110,6 +145,20 @@ pub fn solid_angle_density(x: f64, y: f64) -> f64 {
 /// an antiderivative of (1 + x² + y²)^(−3/2) (∂²F/∂x∂y = (1 + x² + y²)^(−3/2), checked by
 /// differentiation). For the square |x|, |y| ≤ t this is 4·atan(t²/√(1 + 2t²)) =
 /// 4·asin(sin α sin β) with tan α = tan β = t, the spherical-rectangle formula.
+///
+/// # Examples
+///
+/// The square |x|, |y| ≤ 1 is one face of a cube seen from its centre, so it subtends a sixth
+/// of the sphere, 4π/6 = 4·atan(1/√3) (common practice); a small square of side 2t at the
+/// tangent point subtends ≈ 4t².
+///
+/// ```
+/// use planisphere::tiles::projection::rectangle_solid_angle;
+/// use std::f64::consts::PI;
+/// assert!((rectangle_solid_angle(-1.0, 1.0, -1.0, 1.0) - 4.0 * PI / 6.0).abs() < 1e-12);
+/// let t = 1e-3;
+/// assert!((rectangle_solid_angle(-t, t, -t, t) / (4.0 * t * t) - 1.0).abs() < 1e-5);
+/// ```
 pub fn rectangle_solid_angle(x0: f64, x1: f64, y0: f64, y1: f64) -> f64 {
     let f = |x: f64, y: f64| (x * y / (1.0 + x * x + y * y).sqrt()).atan();
     f(x1, y1) - f(x0, y1) - f(x1, y0) + f(x0, y0)
