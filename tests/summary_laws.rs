@@ -10,7 +10,7 @@
 
 use planisphere::measure::flat::{gaussian_random_field, periodic_coefficients, FlatMap};
 use planisphere::scattering::statistics::{
-    coefficient_labels, CoefficientSet, OrientationSummary, SummaryStatistic,
+    CoefficientLayout, CoefficientSet, OrientationSummary, SummaryStatistic,
 };
 use planisphere::scattering::transform::{ScatteringEngine, TransformSettings};
 
@@ -115,7 +115,7 @@ fn shifted_by_one(set: &CoefficientSet) -> CoefficientSet {
     for (c, label) in out
         .coefficients
         .iter_mut()
-        .zip(coefficient_labels(set.scale_count, ln))
+        .zip(CoefficientLayout::new(set.scale_count, ln).labels())
     {
         let from = |l: Option<usize>| l.map(|l| (l + ln - 1) % ln);
         let src = planisphere::scattering::statistics::CoefficientLabel {

@@ -28,8 +28,8 @@ use crate::forecast::{ConfidenceEllipse, ConfidenceLevel};
 use crate::io::fits_io::ColumnChoice;
 use crate::measure::measurement::{MapStatistics, SphereMeasurer};
 use crate::scattering::statistics::{
-    first_order_position, second_order_position, CoefficientKind, CoefficientLabel,
-    OrientationSummary, SummaryKind, SummaryStatistic,
+    CoefficientKind, CoefficientLabel, CoefficientLayout, OrientationSummary, SummaryKind,
+    SummaryStatistic,
 };
 use crate::sky::pixelization::{Ordering, Pixelization};
 use crate::sky::skymap::SkyMap;
@@ -293,20 +293,21 @@ pub fn file_summary(file: &MeasurementFile) -> Vec<SummaryStatistic> {
     let Ok(layout) = OrientationSummary::new(jn, ln) else {
         return Vec::new();
     };
-    let count = 2 + 2 * jn * ln + ln * ln * jn * jn.saturating_sub(1) / 2;
+    let positions = CoefficientLayout::new(jn, ln);
+    let count = positions.len();
     let mut values = vec![f64::NAN; count];
     let mut trusted = vec![false; count];
     for c in &file.coefficients {
         let slot = match (c.order, c.j1, c.l1, c.j2, c.l2, c.kind.as_deref()) {
-            (0, _, _, _, _, Some("mean")) => Some(0),
-            (0, _, _, _, _, Some("variance")) => Some(1),
+            (0, _, _, _, _, Some("mean")) => Some(CoefficientLayout::MEAN),
+            (0, _, _, _, _, Some("variance")) => Some(CoefficientLayout::VARIANCE),
             (1, Some(j), Some(l), None, _, _)
                 if c.kind.as_deref().is_none_or(|k| k == "scattering") =>
             {
-                Some(first_order_position(ln, j, l))
+                Some(positions.first_order(j, l))
             }
             (2, Some(j1), Some(l1), Some(j2), Some(l2), _) if j1 < j2 => {
-                Some(second_order_position(jn, ln, j1, l1, j2, l2))
+                Some(positions.second_order(j1, l1, j2, l2))
             }
             _ => None,
         };

@@ -20,7 +20,7 @@ use crate::harmonics::spectrum::AngularSpectrum;
 use crate::measure::flat::gaussian_random_field;
 use crate::measure::measurement::{border_window, MeasurementSettings, SphereMeasurer};
 use crate::scattering::pooling::pooled_coefficients;
-use crate::scattering::statistics::CoefficientKind;
+use crate::scattering::statistics::{CoefficientKind, CoefficientSpelling};
 use crate::scattering::transform::TileView;
 use crate::simulate::skies::SkyRecipe;
 use crate::sky::footprint::Footprint;
@@ -178,10 +178,9 @@ fn scale_convergence(
         return out;
     };
     let labels: Vec<_> = first.coefficients.iter().map(|c| c.label).collect();
-    for (kind, name) in [
-        (CoefficientKind::FirstOrder, "S1"),
-        (CoefficientKind::BandPower, "bandpower"),
-    ] {
+    for (kind, name) in [CoefficientKind::FirstOrder, CoefficientKind::BandPower]
+        .map(|kind| (kind, kind.stem(CoefficientSpelling::Short)))
+    {
         let mut scales: Vec<usize> = labels
             .iter()
             .filter(|l| l.kind == kind)
@@ -340,21 +339,7 @@ pub fn compare_flat(settings: &FlatComparisonSettings) -> Result<FlatComparison>
             let change_in_errors = (fm2 - fm) / (fe * fe + fe2 * fe2).sqrt();
             let diff = sm - fm;
             let l = c.label;
-            let name = match l.kind {
-                CoefficientKind::FirstOrder => {
-                    format!("S1_j{}_l{}", l.j1.unwrap_or(0), l.l1.unwrap_or(0))
-                }
-                CoefficientKind::BandPower => {
-                    format!("bandpower_j{}_l{}", l.j1.unwrap_or(0), l.l1.unwrap_or(0))
-                }
-                _ => format!(
-                    "S2_j{}_l{}_j{}_l{}",
-                    l.j1.unwrap_or(0),
-                    l.l1.unwrap_or(0),
-                    l.j2.unwrap_or(0),
-                    l.l2.unwrap_or(0)
-                ),
-            };
+            let name = l.name(CoefficientSpelling::Short);
             rows.push(FlatComparisonRow {
                 tile_pixels: n,
                 tile_width_deg: summary.tile_width_deg,

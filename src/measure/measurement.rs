@@ -42,7 +42,8 @@ use crate::scattering::pooling::{
     combine_tiles, pooled_coefficients, pooled_cross_coefficients, TileSums,
 };
 use crate::scattering::statistics::{
-    CoefficientKind, CoefficientSet, CrossCoefficientSet, OrientationSummary, SummaryStatistic,
+    CoefficientKind, CoefficientSet, CoefficientSpelling, CrossCoefficientSet, OrientationSummary,
+    SummaryStatistic,
 };
 use crate::scattering::transform::{ScatteringEngine, TilePairView, TransformSettings};
 use crate::sky::apodization::c2;
@@ -770,27 +771,10 @@ impl SphereMeasurer {
     pub fn vector_labels(&self) -> Vec<StatisticLabel> {
         let mut out = Vec::new();
         for l in self.engine.labels() {
-            let (name, scale) = match l.kind {
-                CoefficientKind::Mean => ("mean".to_string(), None),
-                CoefficientKind::Variance => ("variance".to_string(), None),
-                CoefficientKind::FirstOrder => (
-                    format!("S1_j{}_l{}", l.j1.unwrap_or(0), l.l1.unwrap_or(0)),
-                    l.j1.map(|j| self.wavelet_scale_arcmin(j)),
-                ),
-                CoefficientKind::BandPower => (
-                    format!("bandpower_j{}_l{}", l.j1.unwrap_or(0), l.l1.unwrap_or(0)),
-                    l.j1.map(|j| self.wavelet_scale_arcmin(j)),
-                ),
-                CoefficientKind::SecondOrder => (
-                    format!(
-                        "S2_j{}_l{}_j{}_l{}",
-                        l.j1.unwrap_or(0),
-                        l.l1.unwrap_or(0),
-                        l.j2.unwrap_or(0),
-                        l.l2.unwrap_or(0)
-                    ),
-                    l.j1.map(|j| self.wavelet_scale_arcmin(j)),
-                ),
+            let name = l.name(CoefficientSpelling::Short);
+            let scale = match l.kind {
+                CoefficientKind::Mean | CoefficientKind::Variance => None,
+                _ => l.j1.map(|j| self.wavelet_scale_arcmin(j)),
             };
             out.push(StatisticLabel {
                 name: format!("full.{name}"),

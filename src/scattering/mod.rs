@@ -4,17 +4,20 @@
 //!
 //! Owns: [`MorletBank`], [`ScatteringEngine`] and [`TransformSettings`], the tile views
 //! ([`TileView`], [`TilePairView`]), the per-tile sums ([`TileSums`]) and the coefficient sets
-//! ([`CoefficientSet`], [`CrossCoefficientSet`], [`OrientationSummary`]).
+//! ([`CoefficientSet`], [`CrossCoefficientSet`], [`OrientationSummary`]) with the one layout
+//! and naming of the full set ([`CoefficientLayout`], [`CoefficientSpelling`]).
 //!
 //! May use: only the crate's foundations ([`crate::error`], [`crate::limits`]). Nothing here
 //! knows the sphere: a tile is a plane grid with a taper and a pooling weight.
 
 pub mod filters;
+pub mod layout;
 pub mod pooling;
 pub mod statistics;
 pub mod transform;
 
 pub use filters::MorletBank;
+pub use layout::{CoefficientLayout, CoefficientSpelling};
 pub use pooling::TileSums;
 pub use statistics::{
     CoefficientKind, CoefficientLabel, CoefficientSet, CrossCoefficientSet, OrientationSummary,

@@ -60,102 +60,9 @@
 use crate::{Error, Result};
 use serde::Serialize;
 
-/// What a coefficient measures.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
-#[serde(rename_all = "snake_case")]
-pub enum CoefficientKind {
-    /// Weighted mean of the field (order 0).
-    Mean,
-    /// Weighted variance of the field (order 0).
-    Variance,
-    /// S1(j,l) = ⟨|I∗ψ_{j,l}|⟩.
-    FirstOrder,
-    /// P(j,l) = ⟨|I∗ψ_{j,l}|²⟩.
-    BandPower,
-    /// S2(j1,l1,j2,l2) = ⟨||I∗ψ_{j1,l1}|∗ψ_{j2,l2}|⟩.
-    SecondOrder,
-}
-
-/// Label of one coefficient: its kind, order and the scales/orientations it involves.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
-pub struct CoefficientLabel {
-    /// What is measured.
-    pub kind: CoefficientKind,
-    /// Number of wavelets applied (0, 1 or 2).
-    pub order: u8,
-    /// Scale of the first wavelet.
-    pub j1: Option<usize>,
-    /// Orientation of the first wavelet.
-    pub l1: Option<usize>,
-    /// Scale of the second wavelet.
-    pub j2: Option<usize>,
-    /// Orientation of the second wavelet.
-    pub l2: Option<usize>,
-}
-
-impl CoefficientLabel {
-    /// An order-0 label (mean or variance).
-    pub fn order_zero(kind: CoefficientKind) -> Self {
-        Self {
-            kind,
-            order: 0,
-            j1: None,
-            l1: None,
-            j2: None,
-            l2: None,
-        }
-    }
-
-    /// An order-1 label (first order or band power) at scale j, orientation l.
-    pub fn order_one(kind: CoefficientKind, j: usize, l: usize) -> Self {
-        Self {
-            kind,
-            order: 1,
-            j1: Some(j),
-            l1: Some(l),
-            j2: None,
-            l2: None,
-        }
-    }
-
-    /// An order-2 label.
-    pub fn order_two(j1: usize, l1: usize, j2: usize, l2: usize) -> Self {
-        Self {
-            kind: CoefficientKind::SecondOrder,
-            order: 2,
-            j1: Some(j1),
-            l1: Some(l1),
-            j2: Some(j2),
-            l2: Some(l2),
-        }
-    }
-}
-
-/// The labels of the full set for J scales and L orientations, in the transform's order: mean,
-/// variance, S1(j,l), band powers P(j,l), then S2(j1,l1,j2,l2) nested as j1, l1, j2 > j1, l2.
-pub fn coefficient_labels(scale_count: usize, orientation_count: usize) -> Vec<CoefficientLabel> {
-    let mut labels = vec![
-        CoefficientLabel::order_zero(CoefficientKind::Mean),
-        CoefficientLabel::order_zero(CoefficientKind::Variance),
-    ];
-    for kind in [CoefficientKind::FirstOrder, CoefficientKind::BandPower] {
-        for j in 0..scale_count {
-            for l in 0..orientation_count {
-                labels.push(CoefficientLabel::order_one(kind, j, l));
-            }
-        }
-    }
-    for j1 in 0..scale_count {
-        for l1 in 0..orientation_count {
-            for j2 in (j1 + 1)..scale_count {
-                for l2 in 0..orientation_count {
-                    labels.push(CoefficientLabel::order_two(j1, l1, j2, l2));
-                }
-            }
-        }
-    }
-    labels
-}
+pub use super::layout::{
+    CoefficientKind, CoefficientLabel, CoefficientLayout, CoefficientSpelling,
+};
 
 /// One pooled coefficient with its label.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
@@ -180,29 +87,6 @@ pub struct CoefficientSet {
     pub orientation_count: usize,
     /// Coefficients in the engine's label order.
     pub coefficients: Vec<Coefficient>,
-}
-
-/// Position of S2(j1,l1,j2,l2) (j1 < j2) in the full set of J scales and L orientations
-/// (layout of [`coefficient_labels`]).
-pub fn second_order_position(
-    scale_count: usize,
-    orientation_count: usize,
-    j1: usize,
-    l1: usize,
-    j2: usize,
-    l2: usize,
-) -> usize {
-    let (jn, ln) = (scale_count, orientation_count);
-    let mut idx = 2 + 2 * jn * ln;
-    for a in 0..j1 {
-        idx += ln * (jn - a - 1) * ln;
-    }
-    idx + l1 * (jn - j1 - 1) * ln + (j2 - j1 - 1) * ln + l2
-}
-
-/// Position of S1(j,l) in the full set (layout of [`coefficient_labels`]).
-pub fn first_order_position(orientation_count: usize, j: usize, l: usize) -> usize {
-    2 + j * orientation_count + l
 }
 
 /// One named item of the orientation-harmonic summary (module documentation).
@@ -381,19 +265,20 @@ impl OrientationSummary {
     }
 
     fn s1(&self, j: usize, l: usize) -> usize {
-        first_order_position(self.orientation_count, j, l)
+        CoefficientLayout::new(self.scale_count, self.orientation_count).first_order(j, l)
     }
 
     fn s2(&self, j1: usize, l1: usize, j2: usize, l2: usize) -> usize {
-        second_order_position(self.scale_count, self.orientation_count, j1, l1, j2, l2)
+        CoefficientLayout::new(self.scale_count, self.orientation_count)
+            .second_order(j1, l1, j2, l2)
     }
 
     /// The indices into the full set that the item with this label is built from.
     pub fn sources(&self, label: &SummaryLabel) -> Vec<usize> {
         let ln = self.orientation_count;
         match (label.kind, label.j1, label.j2) {
-            (SummaryKind::Mean, _, _) => vec![0],
-            (SummaryKind::Rms, _, _) => vec![1],
+            (SummaryKind::Mean, _, _) => vec![CoefficientLayout::MEAN],
+            (SummaryKind::Rms, _, _) => vec![CoefficientLayout::VARIANCE],
             (SummaryKind::Modulus | SummaryKind::ModulusAnisotropy, Some(j), _) => {
                 (0..ln).map(|l| self.s1(j, l)).collect()
             }
@@ -443,14 +328,14 @@ impl OrientationSummary {
         (t0, t1)
     }
 
-    /// The items from the full coefficient values `c` (layout of [`coefficient_labels`]).
+    /// The items from the full coefficient values `c` (layout of [`CoefficientLayout`]).
     pub fn values(&self, c: &[f64]) -> Vec<f64> {
         let ln = self.orientation_count as f64;
         self.labels()
             .iter()
             .map(|label| match (label.kind, label.j1, label.j2) {
-                (SummaryKind::Mean, _, _) => c[0],
-                (SummaryKind::Rms, _, _) => c[1].max(0.0).sqrt(),
+                (SummaryKind::Mean, _, _) => c[CoefficientLayout::MEAN],
+                (SummaryKind::Rms, _, _) => c[CoefficientLayout::VARIANCE].max(0.0).sqrt(),
                 (SummaryKind::Modulus, Some(j), _) => self.first_order_harmonics(c, j).0 / ln,
                 (SummaryKind::ModulusAnisotropy, Some(j), _) => {
                     let (h0, re, im) = self.first_order_harmonics(c, j);
@@ -489,11 +374,11 @@ impl OrientationSummary {
                 continue;
             }
             match (label.kind, label.j1, label.j2) {
-                (SummaryKind::Mean, _, _) => dc[0] += g,
+                (SummaryKind::Mean, _, _) => dc[CoefficientLayout::MEAN] += g,
                 (SummaryKind::Rms, _, _) => {
-                    let r = c[1].max(0.0).sqrt();
+                    let r = c[CoefficientLayout::VARIANCE].max(0.0).sqrt();
                     if r > 0.0 {
-                        dc[1] += g / (2.0 * r);
+                        dc[CoefficientLayout::VARIANCE] += g / (2.0 * r);
                     }
                 }
                 (SummaryKind::Modulus, Some(j), _) => {
@@ -552,40 +437,34 @@ impl CoefficientSet {
         self.coefficients.iter().find(|c| &c.label == label)
     }
 
-    fn index_first(&self, j: usize, l: usize) -> usize {
-        2 + j * self.orientation_count + l
+    /// The layout of this set's J and L.
+    pub fn layout(&self) -> CoefficientLayout {
+        CoefficientLayout::new(self.scale_count, self.orientation_count)
     }
 
     /// S1(j,l). Panics if j ≥ J or l ≥ L (use [`Self::get`] for a checked look-up).
     pub fn first_order(&self, j: usize, l: usize) -> &Coefficient {
-        &self.coefficients[self.index_first(j, l)]
+        &self.coefficients[self.layout().first_order(j, l)]
     }
 
     /// P(j,l). Panics if j ≥ J or l ≥ L.
     pub fn band_power(&self, j: usize, l: usize) -> &Coefficient {
-        &self.coefficients[self.index_first(j, l) + self.scale_count * self.orientation_count]
+        &self.coefficients[self.layout().band_power(j, l)]
     }
 
     /// S2(j1,l1,j2,l2) for j1 < j2 < J. Panics outside that range.
     pub fn second_order(&self, j1: usize, l1: usize, j2: usize, l2: usize) -> &Coefficient {
-        let (jn, ln) = (self.scale_count, self.orientation_count);
-        let mut idx = 2 + 2 * jn * ln;
-        // Layout: for j1 { for l1 { for j2 > j1 { for l2 } } }
-        for a in 0..j1 {
-            idx += ln * (jn - a - 1) * ln;
-        }
-        idx += l1 * (jn - j1 - 1) * ln + (j2 - j1 - 1) * ln + l2;
-        &self.coefficients[idx]
+        &self.coefficients[self.layout().second_order(j1, l1, j2, l2)]
     }
 
     /// Weighted mean (order 0).
     pub fn mean(&self) -> &Coefficient {
-        &self.coefficients[0]
+        &self.coefficients[CoefficientLayout::MEAN]
     }
 
     /// Weighted variance (order 0).
     pub fn variance(&self) -> &Coefficient {
-        &self.coefficients[1]
+        &self.coefficients[CoefficientLayout::VARIANCE]
     }
 
     /// The orientation-harmonic summary (module documentation); needs L ≥ 2.
@@ -675,7 +554,7 @@ impl CrossLabel {
 
 /// The labels of the cross set for J scales and L orientations, in the transform's order:
 /// P_AB(j,l); X1 A←B (j,l); X1 B←A (j,l); X2 A←B (j1,l1,j2,l2); X2 B←A (j1,l1,j2,l2), with
-/// (j,l) nested as j, l and order 2 nested as j1, l1, j2 > j1, l2 (as in [`coefficient_labels`]).
+/// (j,l) nested as j, l and order 2 nested as j1, l1, j2 > j1, l2 (as in [`CoefficientLayout`]).
 pub fn cross_labels(scale_count: usize, orientation_count: usize) -> Vec<CrossLabel> {
     let mut labels = Vec::new();
     let first = [
@@ -761,8 +640,8 @@ impl CrossCoefficientSet {
     }
 
     fn first_block(&self, block: usize, j: usize, l: usize) -> &CrossCoefficient {
-        let jl = self.scale_count * self.orientation_count;
-        &self.coefficients[block * jl + j * self.orientation_count + l]
+        let layout = CoefficientLayout::new(self.scale_count, self.orientation_count);
+        &self.coefficients[block * layout.first_order_count() + layout.pair_offset(j, l)]
     }
 
     /// P_AB(j,l). Panics if j ≥ J or l ≥ L.
@@ -795,18 +674,15 @@ impl CrossCoefficientSet {
         j2: usize,
         l2: usize,
     ) -> &CrossCoefficient {
-        let (jn, ln) = (self.scale_count, self.orientation_count);
-        let second_count = ln * ln * jn * jn.saturating_sub(1) / 2;
+        let layout = CoefficientLayout::new(self.scale_count, self.orientation_count);
         let block = match direction {
             CrossDirection::FirstAgainstSecondModulus => 0,
             CrossDirection::SecondAgainstFirstModulus => 1,
             CrossDirection::Both => panic!("X2 has a direction: A against B or B against A"),
         };
-        let mut idx = 3 * jn * ln + block * second_count;
-        for a in 0..j1 {
-            idx += ln * (jn - a - 1) * ln;
-        }
-        idx += l1 * (jn - j1 - 1) * ln + (j2 - j1 - 1) * ln + l2;
+        let idx = 3 * layout.first_order_count()
+            + block * layout.second_order_count()
+            + layout.second_order_offset(j1, l1, j2, l2);
         &self.coefficients[idx]
     }
 }

@@ -818,7 +818,8 @@ impl ScatteringEngine {
             coverage_kernels.push(kernel);
         }
         let labels =
-            crate::scattering::statistics::coefficient_labels(scale_count, orientation_count);
+            crate::scattering::layout::CoefficientLayout::new(scale_count, orientation_count)
+                .labels();
         let cross_labels =
             crate::scattering::statistics::cross_labels(scale_count, orientation_count);
         Ok(Self {
@@ -1288,9 +1289,10 @@ impl ScatteringEngine {
         let top = self.levels.iter().copied().max().unwrap_or(0);
         let tapers: Vec<Vec<f64>> = (0..=top).map(|d| subsample(a, n, n >> d)).collect();
 
-        let first_count = big_j * big_l;
-        let s1_base = 2;
-        let p_base = 2 + first_count;
+        let layout = crate::scattering::layout::CoefficientLayout::new(big_j, big_l);
+        let first_count = layout.first_order_count();
+        let s1_base = layout.first_order(0, 0);
+        let p_base = layout.band_power_start();
         let mut sums = vec![vec![0.0; self.labels.len()]; fields.len()];
         let mut weights = vec![0.0; self.labels.len()];
         weights[0] = sw;
@@ -1330,7 +1332,7 @@ impl ScatteringEngine {
                         s1 += wv * uv;
                         p += wv * uv * uv;
                     }
-                    let idx = j1 * big_l + l1;
+                    let idx = layout.pair_offset(j1, l1);
                     sums[k][s1_base + idx] = s1 * factor1;
                     weights[s1_base + idx] = first_trusted[j1];
                     sums[k][p_base + idx] = p * factor1;
@@ -1355,7 +1357,7 @@ impl ScatteringEngine {
         let cross_len = self.cross_labels.len();
         let mut cross_sums = vec![0.0; cross_len];
         let mut cross_weights = vec![0.0; cross_len];
-        let second_count = big_l * big_l * big_j * big_j.saturating_sub(1) / 2;
+        let second_count = layout.second_order_count();
         if pair {
             // I_A and I_B low-passed to each crop level (the band of the envelope U).
             let lowpassed: Vec<Vec<Vec<f64>>> = (0..2)
@@ -1431,7 +1433,7 @@ impl ScatteringEngine {
         // Second order of every field; with two fields also X2 in both directions.
         let mut g2: Vec<Complex64> = Vec::with_capacity(nn);
         for k in 0..fields.len() {
-            let mut s2_index = 2 + 2 * first_count;
+            let mut s2_index = layout.second_order_start();
             // X2 with this field's envelope: block 0 (A ← B) when k is B, block 1 when k is A.
             let x2_block = if k == 1 { 0 } else { 1 };
             let mut x2_index = 3 * first_count + x2_block * second_count;

@@ -187,11 +187,7 @@ pub(crate) fn second_order_index(
     j2: usize,
     l2: usize,
 ) -> usize {
-    let mut idx = 2 + 2 * jn * ln;
-    for a in 0..j1 {
-        idx += ln * (jn - a - 1) * ln;
-    }
-    idx + l1 * (jn - j1 - 1) * ln + (j2 - j1 - 1) * ln + l2
+    crate::scattering::layout::CoefficientLayout::new(jn, ln).second_order(j1, l1, j2, l2)
 }
 
 impl DifferentiableScattering {
@@ -204,7 +200,7 @@ impl DifferentiableScattering {
     /// Build around an existing bank (e.g. a clone of a [`crate::scattering::transform::ScatteringEngine`]'s).
     pub fn from_bank(bank: MorletBank) -> Self {
         let (jn, ln) = (bank.scale_count(), bank.orientation_count());
-        let labels = crate::scattering::statistics::coefficient_labels(jn, ln);
+        let labels = crate::scattering::layout::CoefficientLayout::new(jn, ln).labels();
         let fft = SquareFft::new(bank.size());
         let grids = CoarseGrids::new(&bank);
         Self {
@@ -302,8 +298,12 @@ impl DifferentiableScattering {
         let mut field_envelope = Vec::with_capacity(items.len());
         for ((j1, l1), (s1, p, corr, s2, g1, vhat)) in items.iter().zip(results) {
             field_envelope.push(corr);
-            coefficients[2 + j1 * ln + l1] = s1;
-            coefficients[2 + jn * ln + j1 * ln + l1] = p;
+            coefficients
+                [crate::scattering::layout::CoefficientLayout::new(jn, ln).first_order(*j1, *l1)] =
+                s1;
+            coefficients
+                [crate::scattering::layout::CoefficientLayout::new(jn, ln).band_power(*j1, *l1)] =
+                p;
             let mut k = 0;
             for j2 in (j1 + 1)..jn {
                 for l2 in 0..ln {
@@ -410,8 +410,10 @@ impl DifferentiableScattering {
                     let ubar = u.iter().sum::<f64>() / nn;
                     explicit = Some(u.iter().map(|v| ac * (v - ubar) / nn).collect());
                 }
-                let a1 = weights[2 + j1 * ln + l1];
-                let ap = weights[2 + jn * ln + j1 * ln + l1];
+                let a1 = weights
+                    [crate::scattering::layout::CoefficientLayout::new(jn, ln).first_order(j1, l1)];
+                let ap = weights
+                    [crate::scattering::layout::CoefficientLayout::new(jn, ln).band_power(j1, l1)];
                 let mut z1: Vec<Complex64> = g1
                     .iter()
                     .zip(&u_adj)

@@ -397,19 +397,7 @@ impl SummaryMap {
 }
 
 fn label_name(label: &CoefficientLabel) -> String {
-    let (j1, l1, j2, l2) = (
-        label.j1.unwrap_or(0),
-        label.l1.unwrap_or(0),
-        label.j2.unwrap_or(0),
-        label.l2.unwrap_or(0),
-    );
-    match label.kind {
-        CoefficientKind::Mean => "mean".into(),
-        CoefficientKind::Variance => "variance".into(),
-        CoefficientKind::FirstOrder => format!("first_order_j{j1}_l{l1}"),
-        CoefficientKind::BandPower => format!("band_power_j{j1}_l{l1}"),
-        CoefficientKind::SecondOrder => format!("second_order_j{j1}_l{l1}_j{j2}_l{l2}"),
-    }
+    label.name(crate::scattering::layout::CoefficientSpelling::SpelledOut)
 }
 
 /// Synthesis of flat periodic n × n fields for one (n, J, L, pixel size, settings); owns the
@@ -710,7 +698,10 @@ impl FlatSynthesis {
             let start = self.select(coefficients).len();
             for j in 0..jn {
                 let p = (0..ln)
-                    .map(|l| coefficients[2 + jn * ln + j * ln + l])
+                    .map(|l| {
+                        coefficients[crate::scattering::layout::CoefficientLayout::new(jn, ln)
+                            .band_power(j, l)]
+                    })
                     .sum::<f64>()
                     / ln as f64;
                 sigma[start + j] = (coefficients[1] * p).sqrt();
@@ -960,7 +951,7 @@ pub fn coefficients_from_json(
         .and_then(|v| v.as_array())
         .ok_or_else(|| Error::Data("coefficient file has no `coefficients` array".into()))?;
     let transform_labels =
-        crate::scattering::statistics::coefficient_labels(scale_count, orientation_count);
+        crate::scattering::layout::CoefficientLayout::new(scale_count, orientation_count).labels();
     let mut values = vec![f64::NAN; transform_labels.len()];
     let index: std::collections::HashMap<String, usize> = transform_labels
         .iter()

@@ -325,10 +325,13 @@ impl SphereSynthesis {
             self.measurer.settings().scales,
             self.measurer.settings().orientations,
         );
+        let layout = crate::scattering::layout::CoefficientLayout::new(jn, ln);
         let mut c: Vec<f64> = (0..jn)
             .map(|j| {
                 (0..ln)
-                    .map(|l| envelope[j * ln + l] / total.weights[2 + j * ln + l])
+                    .map(|l| {
+                        envelope[layout.pair_offset(j, l)] / total.weights[layout.first_order(j, l)]
+                    })
                     .sum::<f64>()
                     / ln as f64
             })
@@ -527,7 +530,10 @@ impl SphereSynthesis {
                 .flat_map(|(j, d)| {
                     let total = &total;
                     (0..ln).map(move |l| {
-                        let w = total.weights[2 + j * ln + l];
+                        let w = total.weights[crate::scattering::layout::CoefficientLayout::new(
+                            jn, ln,
+                        )
+                        .first_order(j, l)];
                         if w > 0.0 {
                             d / (ln as f64 * w)
                         } else {
@@ -581,8 +587,9 @@ impl SphereSynthesis {
                 );
                 if self.correlation_count() > 0 {
                     for j in 0..jn {
+                        let layout = crate::scattering::layout::CoefficientLayout::new(jn, ln);
                         let p =
-                            (0..ln).map(|l| c[2 + jn * ln + j * ln + l]).sum::<f64>() / ln as f64;
+                            (0..ln).map(|l| c[layout.band_power(j, l)]).sum::<f64>() / ln as f64;
                         sigma.push((c[1] * p).sqrt());
                     }
                     // |⟨x|x|⟩| ≤ ⟨x²⟩

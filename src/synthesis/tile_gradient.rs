@@ -62,7 +62,8 @@
 //! no cropping this is the periodic transform of [`super::gradient`] up to the pooling by sums
 //! instead of means.
 
-use super::gradient::{second_order_index, DifferentiableScattering};
+use super::gradient::DifferentiableScattering;
+use crate::scattering::layout::CoefficientLayout;
 use crate::scattering::pooling::TileSums;
 use crate::scattering::transform::{
     band_boxes, check_taper_and_weight, check_values, crop_box, crop_levels_for, subsample,
@@ -193,7 +194,8 @@ impl TileForward {
     }
 
     /// Field–envelope sums E_{j,l} = 4^{d_j} Σ_X W̃_j I u_{j,l}, index j·L + l (module
-    /// documentation), whose pooling weight is that of S1(j, l), `sums.weights[2 + j·L + l]`;
+    /// documentation), whose pooling weight is that of S1(j, l),
+    /// `sums.weights[CoefficientLayout::first_order(j, l)]`;
     /// then (index J·L) the one-point sum E_pix = Σ w I |I|, pooling weight Σ w.
     pub fn field_envelope_sums(&self) -> &[f64] {
         &self.field_envelope
@@ -500,21 +502,20 @@ impl DifferentiableScattering {
         weights[0] = g.weight_sum;
         sums[1] = swf2;
         weights[1] = g.weight_sum;
-        let first_count = big_j * big_l;
+        let layout = CoefficientLayout::new(big_j, big_l);
         let mut first = Vec::with_capacity(items.len());
         let mut field_envelope = Vec::with_capacity(items.len());
         for (&(j1, l1), (s1, p, e, s2, g1, spec2)) in items.iter().zip(results) {
             field_envelope.push(e);
-            let idx = j1 * big_l + l1;
             let trusted = g.first_weights[j1].1;
-            sums[2 + idx] = s1;
-            weights[2 + idx] = trusted;
-            sums[2 + first_count + idx] = p;
-            weights[2 + first_count + idx] = trusted;
+            sums[layout.first_order(j1, l1)] = s1;
+            weights[layout.first_order(j1, l1)] = trusted;
+            sums[layout.band_power(j1, l1)] = p;
+            weights[layout.band_power(j1, l1)] = trusted;
             let mut k = 0;
             for (pair, j2) in ((j1 + 1)..big_j).enumerate() {
                 for l2 in 0..big_l {
-                    let i = second_order_index(big_j, big_l, j1, l1, j2, l2);
+                    let i = layout.second_order(j1, l1, j2, l2);
                     sums[i] = s2[k];
                     weights[i] = g.pair_weights[j1][pair].1;
                     k += 1;
@@ -580,7 +581,7 @@ impl DifferentiableScattering {
         let n = g.size;
         let nn = n * n;
         let (big_j, big_l) = (g.scale_count, g.orientation_count);
-        let first_count = big_j * big_l;
+        let layout = CoefficientLayout::new(big_j, big_l);
         let items: Vec<(usize, usize)> = (0..big_j)
             .flat_map(|j| (0..big_l).map(move |l| (j, l)))
             .collect();
@@ -597,8 +598,8 @@ impl DifferentiableScattering {
                 let factor1 = (1usize << (2 * d1)) as f64;
                 let c1 = &g.inv_sqrt_coverage[j1];
                 let (wl, _) = &g.first_weights[j1];
-                let b1 = sum_weights[2 + j1 * big_l + l1];
-                let bp = sum_weights[2 + first_count + j1 * big_l + l1];
+                let b1 = sum_weights[layout.first_order(j1, l1)];
+                let bp = sum_weights[layout.band_power(j1, l1)];
                 // ū from S1 and P.
                 let mut u_adj: Vec<f64> = g1
                     .iter()
@@ -633,7 +634,7 @@ impl DifferentiableScattering {
                         let c2 = &g.inv_sqrt_coverage_second[j2];
                         let (wp, _) = &g.pair_weights[j1][pair];
                         for l2 in 0..big_l {
-                            let b = sum_weights[second_order_index(big_j, big_l, j1, l1, j2, l2)];
+                            let b = sum_weights[layout.second_order(j1, l1, j2, l2)];
                             if b == 0.0 {
                                 continue;
                             }

@@ -1,0 +1,362 @@
+//! The one layout of the full coefficient set: which coefficient sits at which position, and
+//! the names a coefficient goes by.
+//!
+//! For J scales and L orientations the full set holds, in this order:
+//!
+//! | positions | coefficients | nesting |
+//! |---|---|---|
+//! | 0, 1 | mean, variance (order 0) | |
+//! | 2 … 2 + JL − 1 | S1(j,l) | j, l |
+//! | 2 + JL … 2 + 2JL − 1 | band powers P(j,l) | j, l |
+//! | 2 + 2JL … | S2(j1,l1,j2,l2), j1 < j2 | j1, l1, j2 > j1, l2 |
+//!
+//! 2 + 2JL + L²J(J−1)/2 coefficients in all. Every reader and writer of the full set (the
+//! engine, pooling, the summary, synthesis, the measurement file, the ensemble's columns) asks
+//! [`CoefficientLayout`] for positions and [`CoefficientLabel::name`] for names.
+//!
+//! A coefficient has two spellings ([`CoefficientSpelling`]): the short one of table columns
+//! and per-tile statistics (`S1_j0_l1`, `bandpower_j0_l1`, `S2_j0_l1_j2_l3`) and the spelled-out
+//! one of synthesis targets (`first_order_j0_l1`, `band_power_j0_l1`,
+//! `second_order_j0_l1_j2_l3`); order 0 is `mean` and `variance` in both.
+
+use serde::Serialize;
+
+/// What a coefficient measures.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum CoefficientKind {
+    /// Weighted mean of the field (order 0).
+    Mean,
+    /// Weighted variance of the field (order 0).
+    Variance,
+    /// S1(j,l) = ⟨|I∗ψ_{j,l}|⟩.
+    FirstOrder,
+    /// P(j,l) = ⟨|I∗ψ_{j,l}|²⟩.
+    BandPower,
+    /// S2(j1,l1,j2,l2) = ⟨||I∗ψ_{j1,l1}|∗ψ_{j2,l2}|⟩.
+    SecondOrder,
+}
+
+/// The two spellings of a coefficient name (module documentation).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum CoefficientSpelling {
+    /// `S1_j0_l1`, `bandpower_j0_l1`, `S2_j0_l1_j2_l3`: table columns, per-tile statistics.
+    Short,
+    /// `first_order_j0_l1`, `band_power_j0_l1`, `second_order_j0_l1_j2_l3`: synthesis.
+    SpelledOut,
+}
+
+impl CoefficientKind {
+    /// The name of an order-0 kind, or the stem of the names of the other kinds in a spelling
+    /// (`S1`, `bandpower`, `S2` short; `first_order`, `band_power`, `second_order` spelled out).
+    pub fn stem(self, spelling: CoefficientSpelling) -> &'static str {
+        use CoefficientSpelling::{Short, SpelledOut};
+        match (self, spelling) {
+            (CoefficientKind::Mean, _) => "mean",
+            (CoefficientKind::Variance, _) => "variance",
+            (CoefficientKind::FirstOrder, Short) => "S1",
+            (CoefficientKind::FirstOrder, SpelledOut) => "first_order",
+            (CoefficientKind::BandPower, Short) => "bandpower",
+            (CoefficientKind::BandPower, SpelledOut) => "band_power",
+            (CoefficientKind::SecondOrder, Short) => "S2",
+            (CoefficientKind::SecondOrder, SpelledOut) => "second_order",
+        }
+    }
+}
+
+/// Label of one coefficient: its kind, order and the scales/orientations it involves.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+pub struct CoefficientLabel {
+    /// What is measured.
+    pub kind: CoefficientKind,
+    /// Number of wavelets applied (0, 1 or 2).
+    pub order: u8,
+    /// Scale of the first wavelet.
+    pub j1: Option<usize>,
+    /// Orientation of the first wavelet.
+    pub l1: Option<usize>,
+    /// Scale of the second wavelet.
+    pub j2: Option<usize>,
+    /// Orientation of the second wavelet.
+    pub l2: Option<usize>,
+}
+
+impl CoefficientLabel {
+    /// An order-0 label (mean or variance).
+    pub fn order_zero(kind: CoefficientKind) -> Self {
+        Self {
+            kind,
+            order: 0,
+            j1: None,
+            l1: None,
+            j2: None,
+            l2: None,
+        }
+    }
+
+    /// An order-1 label (first order or band power) at scale j, orientation l.
+    pub fn order_one(kind: CoefficientKind, j: usize, l: usize) -> Self {
+        Self {
+            kind,
+            order: 1,
+            j1: Some(j),
+            l1: Some(l),
+            j2: None,
+            l2: None,
+        }
+    }
+
+    /// An order-2 label.
+    pub fn order_two(j1: usize, l1: usize, j2: usize, l2: usize) -> Self {
+        Self {
+            kind: CoefficientKind::SecondOrder,
+            order: 2,
+            j1: Some(j1),
+            l1: Some(l1),
+            j2: Some(j2),
+            l2: Some(l2),
+        }
+    }
+
+    /// The coefficient's name in a spelling: the stem of its kind followed by `_j{j1}_l{l1}`
+    /// (orders 1 and 2) and `_j{j2}_l{l2}` (order 2); a missing index is written 0.
+    pub fn name(&self, spelling: CoefficientSpelling) -> String {
+        let stem = self.kind.stem(spelling);
+        let (j1, l1) = (self.j1.unwrap_or(0), self.l1.unwrap_or(0));
+        let (j2, l2) = (self.j2.unwrap_or(0), self.l2.unwrap_or(0));
+        match self.kind {
+            CoefficientKind::Mean | CoefficientKind::Variance => stem.to_string(),
+            CoefficientKind::FirstOrder | CoefficientKind::BandPower => {
+                format!("{stem}_j{j1}_l{l1}")
+            }
+            CoefficientKind::SecondOrder => format!("{stem}_j{j1}_l{l1}_j{j2}_l{l2}"),
+        }
+    }
+}
+
+/// The positions of the full set of J scales and L orientations (module documentation).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct CoefficientLayout {
+    scale_count: usize,
+    orientation_count: usize,
+}
+
+impl CoefficientLayout {
+    /// Position of the weighted mean.
+    pub const MEAN: usize = 0;
+    /// Position of the weighted variance.
+    pub const VARIANCE: usize = 1;
+    /// Position of S1(0,0), the first coefficient of order 1.
+    pub const FIRST_ORDER_START: usize = 2;
+
+    /// The layout of J scales and L orientations.
+    pub fn new(scale_count: usize, orientation_count: usize) -> Self {
+        Self {
+            scale_count,
+            orientation_count,
+        }
+    }
+
+    /// Number of scales J.
+    pub fn scale_count(&self) -> usize {
+        self.scale_count
+    }
+
+    /// Number of orientations L.
+    pub fn orientation_count(&self) -> usize {
+        self.orientation_count
+    }
+
+    /// Number of (j, l) pairs, JL: the count of S1 and, again, of band powers.
+    pub fn first_order_count(&self) -> usize {
+        self.scale_count * self.orientation_count
+    }
+
+    /// Number of S2 coefficients, L²J(J−1)/2.
+    pub fn second_order_count(&self) -> usize {
+        let (jn, ln) = (self.scale_count, self.orientation_count);
+        ln * ln * jn * jn.saturating_sub(1) / 2
+    }
+
+    /// Number of coefficients in the full set, 2 + 2JL + L²J(J−1)/2.
+    pub fn len(&self) -> usize {
+        Self::FIRST_ORDER_START + 2 * self.first_order_count() + self.second_order_count()
+    }
+
+    /// False: the full set always holds the mean and the variance.
+    pub fn is_empty(&self) -> bool {
+        false
+    }
+
+    /// Position of P(0,0), the first band power: 2 + JL.
+    pub fn band_power_start(&self) -> usize {
+        Self::FIRST_ORDER_START + self.first_order_count()
+    }
+
+    /// Position of the first S2: 2 + 2JL.
+    pub fn second_order_start(&self) -> usize {
+        Self::FIRST_ORDER_START + 2 * self.first_order_count()
+    }
+
+    /// Position of (j, l) among the JL pairs, nested j, l: jL + l. Blocks laid out like S1
+    /// (band powers, the cross statistics' band powers and envelopes) use it too.
+    pub fn pair_offset(&self, j: usize, l: usize) -> usize {
+        j * self.orientation_count + l
+    }
+
+    /// Position of S1(j,l): 2 + jL + l.
+    pub fn first_order(&self, j: usize, l: usize) -> usize {
+        Self::FIRST_ORDER_START + self.pair_offset(j, l)
+    }
+
+    /// Position of P(j,l): 2 + JL + jL + l.
+    pub fn band_power(&self, j: usize, l: usize) -> usize {
+        self.band_power_start() + self.pair_offset(j, l)
+    }
+
+    /// Position of S2(j1,l1,j2,l2), j1 < j2: 2 + 2JL + [`Self::second_order_offset`].
+    pub fn second_order(&self, j1: usize, l1: usize, j2: usize, l2: usize) -> usize {
+        self.second_order_start() + self.second_order_offset(j1, l1, j2, l2)
+    }
+
+    /// Position of S2(j1,l1,j2,l2), j1 < j2, among the S2 alone (nested j1, l1, j2 > j1, l2):
+    /// Σ_{a<j1} L²(J−a−1) + l1·L(J−j1−1) + (j2−j1−1)·L + l2. Blocks laid out like S2 (the
+    /// cross statistics' envelope coefficients) use it too.
+    pub fn second_order_offset(&self, j1: usize, l1: usize, j2: usize, l2: usize) -> usize {
+        let (jn, ln) = (self.scale_count, self.orientation_count);
+        let mut idx = 0;
+        for a in 0..j1 {
+            idx += ln * (jn - a - 1) * ln;
+        }
+        idx + l1 * (jn - j1 - 1) * ln + (j2 - j1 - 1) * ln + l2
+    }
+
+    /// Position of the coefficient with this label, or None when the label is not one of this
+    /// layout's (indices out of range, j1 ≥ j2, or order and kind disagreeing).
+    pub fn position(&self, label: &CoefficientLabel) -> Option<usize> {
+        let (jn, ln) = (self.scale_count, self.orientation_count);
+        let scale = |j: Option<usize>| j.filter(|&j| j < jn);
+        let angle = |l: Option<usize>| l.filter(|&l| l < ln);
+        let unused = |a: Option<usize>, b: Option<usize>| a.is_none() && b.is_none();
+        match (label.kind, label.order) {
+            (CoefficientKind::Mean, 0)
+                if unused(label.j1, label.l1) && unused(label.j2, label.l2) =>
+            {
+                Some(Self::MEAN)
+            }
+            (CoefficientKind::Variance, 0)
+                if unused(label.j1, label.l1) && unused(label.j2, label.l2) =>
+            {
+                Some(Self::VARIANCE)
+            }
+            (CoefficientKind::FirstOrder, 1) if unused(label.j2, label.l2) => {
+                Some(self.first_order(scale(label.j1)?, angle(label.l1)?))
+            }
+            (CoefficientKind::BandPower, 1) if unused(label.j2, label.l2) => {
+                Some(self.band_power(scale(label.j1)?, angle(label.l1)?))
+            }
+            (CoefficientKind::SecondOrder, 2) => {
+                let (j1, j2) = (scale(label.j1)?, scale(label.j2)?);
+                (j1 < j2).then_some(())?;
+                Some(self.second_order(j1, angle(label.l1)?, j2, angle(label.l2)?))
+            }
+            _ => None,
+        }
+    }
+
+    /// Every label, in position order.
+    pub fn labels(&self) -> Vec<CoefficientLabel> {
+        let (jn, ln) = (self.scale_count, self.orientation_count);
+        let mut labels = Vec::with_capacity(self.len());
+        labels.push(CoefficientLabel::order_zero(CoefficientKind::Mean));
+        labels.push(CoefficientLabel::order_zero(CoefficientKind::Variance));
+        for kind in [CoefficientKind::FirstOrder, CoefficientKind::BandPower] {
+            for j in 0..jn {
+                for l in 0..ln {
+                    labels.push(CoefficientLabel::order_one(kind, j, l));
+                }
+            }
+        }
+        for j1 in 0..jn {
+            for l1 in 0..ln {
+                for j2 in (j1 + 1)..jn {
+                    for l2 in 0..ln {
+                        labels.push(CoefficientLabel::order_two(j1, l1, j2, l2));
+                    }
+                }
+            }
+        }
+        labels
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Every position formula agrees with the order of `labels`, and `position` inverts it.
+    #[test]
+    fn positions_match_the_label_order() {
+        for (jn, ln) in [(1, 1), (3, 4), (4, 2), (5, 3)] {
+            let layout = CoefficientLayout::new(jn, ln);
+            let labels = layout.labels();
+            assert_eq!(labels.len(), layout.len());
+            for (i, label) in labels.iter().enumerate() {
+                assert_eq!(layout.position(label), Some(i), "{label:?}");
+                let direct = match label.kind {
+                    CoefficientKind::Mean => CoefficientLayout::MEAN,
+                    CoefficientKind::Variance => CoefficientLayout::VARIANCE,
+                    CoefficientKind::FirstOrder => {
+                        layout.first_order(label.j1.unwrap(), label.l1.unwrap())
+                    }
+                    CoefficientKind::BandPower => {
+                        layout.band_power(label.j1.unwrap(), label.l1.unwrap())
+                    }
+                    CoefficientKind::SecondOrder => layout.second_order(
+                        label.j1.unwrap(),
+                        label.l1.unwrap(),
+                        label.j2.unwrap(),
+                        label.l2.unwrap(),
+                    ),
+                };
+                assert_eq!(direct, i, "{label:?}");
+            }
+        }
+    }
+
+    /// Labels outside the layout have no position.
+    #[test]
+    fn foreign_labels_have_no_position() {
+        let layout = CoefficientLayout::new(3, 4);
+        for label in [
+            CoefficientLabel::order_one(CoefficientKind::FirstOrder, 3, 0),
+            CoefficientLabel::order_one(CoefficientKind::BandPower, 0, 4),
+            CoefficientLabel::order_two(1, 0, 1, 0),
+            CoefficientLabel::order_two(2, 0, 1, 0),
+            CoefficientLabel {
+                order: 2,
+                ..CoefficientLabel::order_one(CoefficientKind::FirstOrder, 0, 0)
+            },
+        ] {
+            assert_eq!(layout.position(&label), None, "{label:?}");
+        }
+    }
+
+    /// Both spellings of one label of each kind.
+    #[test]
+    fn names_in_both_spellings() {
+        use CoefficientSpelling::{Short, SpelledOut};
+        let s1 = CoefficientLabel::order_one(CoefficientKind::FirstOrder, 0, 1);
+        let p = CoefficientLabel::order_one(CoefficientKind::BandPower, 2, 3);
+        let s2 = CoefficientLabel::order_two(0, 1, 2, 3);
+        let mean = CoefficientLabel::order_zero(CoefficientKind::Mean);
+        assert_eq!(s1.name(Short), "S1_j0_l1");
+        assert_eq!(s1.name(SpelledOut), "first_order_j0_l1");
+        assert_eq!(p.name(Short), "bandpower_j2_l3");
+        assert_eq!(p.name(SpelledOut), "band_power_j2_l3");
+        assert_eq!(s2.name(Short), "S2_j0_l1_j2_l3");
+        assert_eq!(s2.name(SpelledOut), "second_order_j0_l1_j2_l3");
+        assert_eq!(mean.name(Short), "mean");
+        assert_eq!(mean.name(SpelledOut), "mean");
+    }
+}
