@@ -310,6 +310,20 @@ fn measurement_file() -> (SphereMeasurer, MapStatistics, MeasurementFile) {
     (measurer, stats, file)
 }
 
+/// The reader and the writer share one schema: a written document read back and written
+/// again is the same text, byte for byte (a round-trip law).
+#[test]
+fn measurement_file_read_back_writes_the_same_text() {
+    let (_, measurer, stats) = measured();
+    let doc = measurement_document(&measurer, &stats, "sky", &serde_json::json!(null));
+    let text = serde_json::to_string_pretty(&doc).unwrap();
+    let file = MeasurementFile::parse(&text).unwrap();
+    assert_eq!(
+        serde_json::to_string_pretty(&file.to_value()).unwrap(),
+        text
+    );
+}
+
 #[test]
 fn summary_recomputed_from_the_file_matches_the_measured_summary() {
     // The summary (crate::scattering::statistics) is computed from the full set in memory; the plot

@@ -28,8 +28,8 @@ use crate::forecast::{ConfidenceEllipse, ConfidenceLevel};
 use crate::io::fits_io::ColumnChoice;
 use crate::measure::measurement::{MapStatistics, SphereMeasurer};
 use crate::scattering::statistics::{
-    CoefficientKind, CoefficientLabel, CoefficientLayout, OrientationSummary, SummaryKind,
-    SummaryStatistic,
+    CoefficientKind, CoefficientLabel, CoefficientLayout, CoefficientSpelling, OrientationSummary,
+    SummaryKind, SummaryStatistic,
 };
 use crate::sky::pixelization::{Ordering, Pixelization};
 use crate::sky::skymap::SkyMap;
@@ -154,83 +154,7 @@ fn check_output(path: &Path, width: u32) -> Result<ImageFormat> {
 // ---------------------------------------------------------------------------------------------
 // Measurement files
 
-/// One coefficient record of a measurement file.
-#[derive(Debug, Clone, serde::Deserialize)]
-pub struct CoefficientRecord {
-    pub order: u8,
-    pub j1: Option<usize>,
-    pub l1: Option<usize>,
-    pub j2: Option<usize>,
-    pub l2: Option<usize>,
-    pub value: Option<f64>,
-    pub trusted: bool,
-    #[serde(default)]
-    pub kind: Option<String>,
-}
-
-/// The settings block of a measurement file (the parts the pictures use).
-#[derive(Debug, Clone, serde::Deserialize)]
-pub struct RecordedSettings {
-    pub scales: usize,
-    pub orientations: usize,
-    pub pixel_arcmin: f64,
-}
-
-/// The tile power spectrum block of a measurement file.
-#[derive(Debug, Clone, serde::Deserialize)]
-pub struct RecordedPower {
-    pub k: Vec<f64>,
-    pub power: Vec<f64>,
-}
-
-/// The parts of a `measure` JSON file the pictures use.
-#[derive(Debug, Clone, serde::Deserialize)]
-pub struct MeasurementFile {
-    pub settings: RecordedSettings,
-    pub coefficients: Vec<CoefficientRecord>,
-    #[serde(default)]
-    pub band_powers: Vec<CoefficientRecord>,
-    #[serde(default)]
-    pub tile_power_spectrum: Option<RecordedPower>,
-}
-
-impl MeasurementFile {
-    /// Reads and checks a measurement file.
-    pub fn read(path: &Path) -> Result<Self> {
-        let text = crate::files::read_text(path)?;
-        Self::parse(&text).map_err(|reason| Error::io(path, reason))
-    }
-
-    /// Parses the text of a measurement file; the error is one line.
-    pub fn parse(text: &str) -> std::result::Result<Self, String> {
-        let file: MeasurementFile = serde_json::from_str(text)
-            .map_err(|e| format!("not a measurement file written by `measure`: {e}"))?;
-        let (jn, ln) = (file.settings.scales, file.settings.orientations);
-        if jn == 0 || ln == 0 || jn > 30 || ln > 1000 {
-            return Err(format!(
-                "settings give J = {jn}, L = {ln}: not a measurement"
-            ));
-        }
-        if !(file.settings.pixel_arcmin.is_finite() && file.settings.pixel_arcmin > 0.0) {
-            return Err("settings.pixel_arcmin must be a positive number".into());
-        }
-        for c in file.coefficients.iter().chain(&file.band_powers) {
-            let j_ok = c.j1.is_none_or(|j| j < jn) && c.j2.is_none_or(|j| j < jn);
-            let l_ok = c.l1.is_none_or(|l| l < ln) && c.l2.is_none_or(|l| l < ln);
-            if !(j_ok && l_ok) {
-                return Err(format!(
-                    "a coefficient has scale or orientation indices beyond J = {jn}, L = {ln}"
-                ));
-            }
-        }
-        Ok(file)
-    }
-
-    /// Angular scale (arcmin) of wavelet scale j: (8/3)·2^j·pixel size.
-    pub fn scale_arcmin(&self, j: usize) -> f64 {
-        8.0 / 3.0 * 2f64.powi(j as i32) * self.settings.pixel_arcmin
-    }
-}
+pub use crate::io::measurement_document::{CoefficientRecord, MeasurementFile, RecordedSettings};
 
 /// An orientation-averaged value at one scale, with the per-orientation values it came from.
 #[derive(Debug, Clone, PartialEq)]
@@ -298,19 +222,7 @@ pub fn file_summary(file: &MeasurementFile) -> Vec<SummaryStatistic> {
     let mut values = vec![f64::NAN; count];
     let mut trusted = vec![false; count];
     for c in &file.coefficients {
-        let slot = match (c.order, c.j1, c.l1, c.j2, c.l2, c.kind.as_deref()) {
-            (0, _, _, _, _, Some("mean")) => Some(CoefficientLayout::MEAN),
-            (0, _, _, _, _, Some("variance")) => Some(CoefficientLayout::VARIANCE),
-            (1, Some(j), Some(l), None, _, _)
-                if c.kind.as_deref().is_none_or(|k| k == "scattering") =>
-            {
-                Some(positions.first_order(j, l))
-            }
-            (2, Some(j1), Some(l1), Some(j2), Some(l2), _) if j1 < j2 => {
-                Some(positions.second_order(j1, l1, j2, l2))
-            }
-            _ => None,
-        };
+        let slot = c.label(false).ok().and_then(|l| positions.position(&l));
         if let Some(i) = slot {
             values[i] = c.value.unwrap_or(f64::NAN);
             trusted[i] = c.trusted && values[i].is_finite();
@@ -723,7 +635,7 @@ pub fn coefficients_figure(
             let points =
                 p.k.iter()
                     .zip(&p.power)
-                    .map(|(&k, &v)| ChartPoint::new(k, v))
+                    .filter_map(|(&k, &v)| Some(ChartPoint::new(k, v?)))
                     .collect();
             let mut s = Series::line(many.then(|| name.clone()), points, palette(i), 2);
             s.marker_radius = 4;
@@ -1047,17 +959,28 @@ impl TileStatistic {
                 (!d.is_empty() && d.chars().all(|c| c.is_ascii_digit())).then(|| d.parse().ok())?
             })
         };
-        match (*head, rest) {
-            ("S1" | "bandpower", [j]) => st.j1 = Some(index(j, 'j').ok_or_else(bad)?),
-            ("S1" | "bandpower", [j, l]) => {
+        // The stems of the coefficient names (`S1`, `bandpower`, `S2`) of the one layout.
+        st.kind = [
+            CoefficientKind::FirstOrder,
+            CoefficientKind::BandPower,
+            CoefficientKind::SecondOrder,
+        ]
+        .into_iter()
+        .find(|k| k.stem(CoefficientSpelling::Short) == *head)
+        .ok_or_else(bad)?;
+        match (st.kind, rest) {
+            (CoefficientKind::FirstOrder | CoefficientKind::BandPower, [j]) => {
+                st.j1 = Some(index(j, 'j').ok_or_else(bad)?)
+            }
+            (CoefficientKind::FirstOrder | CoefficientKind::BandPower, [j, l]) => {
                 st.j1 = Some(index(j, 'j').ok_or_else(bad)?);
                 st.l1 = Some(index(l, 'l').ok_or_else(bad)?);
             }
-            ("S2", [a, b]) => {
+            (CoefficientKind::SecondOrder, [a, b]) => {
                 st.j1 = Some(index(a, 'j').ok_or_else(bad)?);
                 st.j2 = Some(index(b, 'j').ok_or_else(bad)?);
             }
-            ("S2", [a, la, b, lb]) => {
+            (CoefficientKind::SecondOrder, [a, la, b, lb]) => {
                 st.j1 = Some(index(a, 'j').ok_or_else(bad)?);
                 st.l1 = Some(index(la, 'l').ok_or_else(bad)?);
                 st.j2 = Some(index(b, 'j').ok_or_else(bad)?);
@@ -1065,11 +988,6 @@ impl TileStatistic {
             }
             _ => return Err(bad()),
         }
-        st.kind = match *head {
-            "S1" => CoefficientKind::FirstOrder,
-            "bandpower" => CoefficientKind::BandPower,
-            _ => CoefficientKind::SecondOrder,
-        };
         Ok(st)
     }
 

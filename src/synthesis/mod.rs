@@ -75,7 +75,7 @@ pub use tile_gradient::{TileForward, TileGeometry};
 use crate::scattering::transform::TransformSettings;
 
 use crate::measure::tile_spectra::WavenumberBins;
-use crate::scattering::statistics::{CoefficientKind, CoefficientLabel, OrientationSummary};
+use crate::scattering::statistics::{CoefficientLabel, OrientationSummary};
 use crate::{Error, Result};
 use argmin::core::observers::{Observe, ObserverMode};
 use argmin::core::{CostFunction, Executor, Gradient, State, KV};
@@ -944,70 +944,27 @@ pub fn coefficients_from_json(
     scale_count: usize,
     orientation_count: usize,
 ) -> Result<Vec<f64>> {
-    let doc: serde_json::Value = serde_json::from_str(text)
-        .map_err(|e| Error::Data(format!("coefficient file is not valid JSON: {e}")))?;
-    let list = doc
-        .get("coefficients")
-        .and_then(|v| v.as_array())
-        .ok_or_else(|| Error::Data("coefficient file has no `coefficients` array".into()))?;
-    let transform_labels =
-        crate::scattering::layout::CoefficientLayout::new(scale_count, orientation_count).labels();
+    let doc: crate::io::measurement_document::CoefficientArrays = serde_json::from_str(text)
+        .map_err(|e| match e.classify() {
+            serde_json::error::Category::Data => Error::Data(format!(
+                "coefficient file is not a coefficient document: {e}"
+            )),
+            _ => Error::Data(format!("coefficient file is not valid JSON: {e}")),
+        })?;
+    let layout = crate::scattering::layout::CoefficientLayout::new(scale_count, orientation_count);
+    let transform_labels = layout.labels();
     let mut values = vec![f64::NAN; transform_labels.len()];
-    let index: std::collections::HashMap<String, usize> = transform_labels
-        .iter()
-        .enumerate()
-        .map(|(i, l)| (label_name(l), i))
-        .collect();
-    let band_powers = match doc.get("band_powers") {
-        None => Vec::new(),
-        Some(v) => v
-            .as_array()
-            .ok_or_else(|| Error::Data("coefficient file's `band_powers` is not an array".into()))?
-            .iter()
-            .map(|e| (e, true))
-            .collect(),
-    };
-    let entries = list.iter().map(|e| (e, false)).chain(band_powers);
+    let entries = (doc.coefficients.iter().map(|e| (e, false)))
+        .chain(doc.band_powers.iter().map(|e| (e, true)));
     for (k, (entry, in_band_powers)) in entries.enumerate() {
         let bad = |what: &str| Error::Data(format!("coefficient entry {k}: {what}"));
-        let int = |key: &str| -> Result<Option<usize>> {
-            match entry.get(key) {
-                None | Some(serde_json::Value::Null) => Ok(None),
-                Some(v) => v
-                    .as_u64()
-                    .map(|u| Some(u as usize))
-                    .ok_or_else(|| bad(&format!("`{key}` is not a non-negative integer"))),
-            }
-        };
-        let order = int("order")?.ok_or_else(|| bad("no `order`"))?;
-        let kind = entry.get("kind").and_then(|v| v.as_str());
-        let kind = match (order, kind) {
-            (1, None) if in_band_powers => CoefficientKind::BandPower,
-            (0, Some("mean")) => CoefficientKind::Mean,
-            (0, Some("variance")) => CoefficientKind::Variance,
-            (0, _) => return Err(bad("order 0 needs `kind` mean or variance")),
-            (1, None | Some("first_order" | "scattering")) => CoefficientKind::FirstOrder,
-            (1, Some("band_power")) => CoefficientKind::BandPower,
-            (2, None | Some("second_order" | "scattering")) => CoefficientKind::SecondOrder,
-            (o, k) => return Err(bad(&format!("unknown order {o} / kind {k:?}"))),
-        };
-        let label = CoefficientLabel {
-            kind,
-            order: order as u8,
-            j1: int("j1")?,
-            l1: int("l1")?,
-            j2: int("j2")?,
-            l2: int("l2")?,
-        };
+        let label = entry.label(in_band_powers).map_err(|what| bad(&what))?;
         let value = entry
-            .get("value")
-            .and_then(|v| v.as_f64())
+            .value
             .ok_or_else(|| bad("`value` is missing or not a number"))?;
         // Entries beyond the chosen J, L are ignored.
-        if let Some(&i) = index.get(&label_name(&label)) {
-            if transform_labels[i] == label {
-                values[i] = value;
-            }
+        if let Some(i) = layout.position(&label) {
+            values[i] = value;
         }
     }
     if let Some(i) = values.iter().position(|v| v.is_nan()) {
