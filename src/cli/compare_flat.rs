@@ -8,6 +8,7 @@ use crate::figures::charts::ImageFormat;
 use crate::harmonics::spectrum::AngularSpectrum;
 use crate::measure::flat_comparison::{compare_flat, rows_csv, FlatComparisonSettings};
 use crate::measure::measurement::MeasurementSettings;
+use crate::scattering::layout::{CoefficientKind, CoefficientLabel, CoefficientSpelling};
 use std::path::PathBuf;
 
 /// Measure how far flat-sky coefficients are from sphere coefficients, per tile size.
@@ -117,7 +118,11 @@ pub fn run(args: &CompareFlatArgs) -> Result<()> {
         "{:>6} {:>8} {:>12} {:>10} {:>9} {:>8}",
         "tile", "width°", "coefficient", "rel.bias", "in σ", "trusted"
     );
-    for r in rows.iter().filter(|r| r.coefficient.starts_with("S1_")) {
+    let first_order = |name: &str| {
+        CoefficientLabel::parse(name, CoefficientSpelling::Short)
+            .is_some_and(|l| l.kind == CoefficientKind::FirstOrder)
+    };
+    for r in rows.iter().filter(|r| first_order(&r.coefficient)) {
         println!(
             "{:>6} {:>8.1} {:>12} {:>9.2}% {:>9.2} {:>8}",
             r.tile_pixels,

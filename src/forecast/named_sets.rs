@@ -228,3 +228,33 @@ pub fn check_sets_forecast(comparison: &SetComparison) -> Result<Option<String>>
         names.join(", ")
     )))
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::scattering::layout::{CoefficientKind, CoefficientSpelling};
+
+    /// The scattering sets pick the ensemble's columns by the stems of the one coefficient
+    /// layout (`full.` + short stem + `_`), so a renamed stem cannot leave a set empty.
+    #[test]
+    fn scattering_prefixes_are_the_layout_stems() {
+        let stems: Vec<String> = [
+            CoefficientKind::FirstOrder,
+            CoefficientKind::BandPower,
+            CoefficientKind::SecondOrder,
+        ]
+        .iter()
+        .map(|k| format!("full.{}_", k.stem(CoefficientSpelling::Short)))
+        .collect();
+        let own = STATISTIC_SETS.iter().flat_map(|(_, p)| p.iter());
+        let pair = PAIR_STATISTIC_SETS.iter().flat_map(|(_, p, _)| p.iter());
+        let full: Vec<&&str> = own.chain(pair).filter(|p| p.starts_with("full.")).collect();
+        assert!(full.len() >= 6, "{full:?}");
+        for prefix in full {
+            assert!(
+                stems.iter().any(|s| s == prefix),
+                "{prefix} is no layout stem"
+            );
+        }
+    }
+}

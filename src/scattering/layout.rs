@@ -134,6 +134,50 @@ impl CoefficientLabel {
     }
 }
 
+impl CoefficientLabel {
+    /// The label a name in a spelling stands for (the inverse of [`Self::name`]); None when
+    /// the name is not one. Indices are decimal digits only.
+    pub fn parse(name: &str, spelling: CoefficientSpelling) -> Option<Self> {
+        let kinds = [
+            CoefficientKind::Mean,
+            CoefficientKind::Variance,
+            CoefficientKind::FirstOrder,
+            CoefficientKind::BandPower,
+            CoefficientKind::SecondOrder,
+        ];
+        let index = |part: &str, letter: char| -> Option<usize> {
+            let digits = part.strip_prefix(letter)?;
+            let ok = !digits.is_empty() && digits.bytes().all(|b| b.is_ascii_digit());
+            ok.then(|| digits.parse().ok())?
+        };
+        kinds.into_iter().find_map(|kind| {
+            let rest = name.strip_prefix(kind.stem(spelling))?;
+            let parts: Vec<&str> = rest.split('_').skip(1).collect();
+            match (kind, rest.is_empty(), parts.as_slice()) {
+                (CoefficientKind::Mean | CoefficientKind::Variance, true, _) => {
+                    Some(Self::order_zero(kind))
+                }
+                (CoefficientKind::FirstOrder | CoefficientKind::BandPower, false, [j, l])
+                    if rest.starts_with('_') =>
+                {
+                    Some(Self::order_one(kind, index(j, 'j')?, index(l, 'l')?))
+                }
+                (CoefficientKind::SecondOrder, false, [j1, l1, j2, l2])
+                    if rest.starts_with('_') =>
+                {
+                    Some(Self::order_two(
+                        index(j1, 'j')?,
+                        index(l1, 'l')?,
+                        index(j2, 'j')?,
+                        index(l2, 'l')?,
+                    ))
+                }
+                _ => None,
+            }
+        })
+    }
+}
+
 /// The positions of the full set of J scales and L orientations (module documentation).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct CoefficientLayout {
@@ -340,6 +384,37 @@ mod tests {
         ] {
             assert_eq!(layout.position(&label), None, "{label:?}");
         }
+    }
+
+    /// Parsing a name gives back the label it was made from, in both spellings; other text
+    /// is no name.
+    #[test]
+    fn names_parse_back_to_their_labels() {
+        use CoefficientSpelling::{Short, SpelledOut};
+        for label in CoefficientLayout::new(3, 2).labels() {
+            for spelling in [Short, SpelledOut] {
+                assert_eq!(
+                    CoefficientLabel::parse(&label.name(spelling), spelling),
+                    Some(label)
+                );
+            }
+        }
+        for bad in [
+            "S1",
+            "S1_j0",
+            "S1_j0_l",
+            "S1_j0_l1_",
+            "S1_jx_l0",
+            "S1_j+1_l0",
+            "means",
+            "S1j0_l0",
+            "S2_j0_l1_j2",
+            "first_order_j0_l1_j2_l3",
+            "bandpower_j0_l0_j1_l1",
+        ] {
+            assert_eq!(CoefficientLabel::parse(bad, Short), None, "{bad}");
+        }
+        assert_eq!(CoefficientLabel::parse("S1_j0_l0", SpelledOut), None);
     }
 
     /// Both spellings of one label of each kind.

@@ -13,6 +13,7 @@ use super::check_output;
 use crate::error::{Error, Result};
 use crate::figures::charts::{palette, Axis, ChartPoint, Figure, MarkerShape, Panel, Series};
 use crate::measure::flat_comparison::FlatComparisonRow;
+use crate::scattering::layout::{CoefficientKind, CoefficientLabel, CoefficientSpelling};
 use std::path::{Path, PathBuf};
 
 /// Options of `plot flat-bias`.
@@ -170,12 +171,17 @@ fn tile_sizes(rows: &[FlatComparisonRow]) -> Vec<(usize, f64)> {
     sizes
 }
 
-/// The three coefficient families drawn, by name prefix.
-const FAMILIES: [(&str, &str); 3] = [
-    ("S1_", "order 1, S1(j, l)"),
-    ("bandpower_", "band power P(j, l)"),
-    ("S2_", "order 2, S2(j1, l1, j2, l2)"),
+/// The three coefficient families drawn, by the kind their names stand for.
+const FAMILIES: [(CoefficientKind, &str); 3] = [
+    (CoefficientKind::FirstOrder, "order 1, S1(j, l)"),
+    (CoefficientKind::BandPower, "band power P(j, l)"),
+    (CoefficientKind::SecondOrder, "order 2, S2(j1, l1, j2, l2)"),
 ];
+
+/// True when a table's coefficient name is one of this kind.
+fn is_kind(name: &str, kind: CoefficientKind) -> bool {
+    CoefficientLabel::parse(name, CoefficientSpelling::Short).is_some_and(|l| l.kind == kind)
+}
 
 /// The figure of a compare-flat table (module documentation).
 pub fn flat_bias_figure(rows: &[FlatComparisonRow], width: u32) -> Result<Figure> {
@@ -183,10 +189,10 @@ pub fn flat_bias_figure(rows: &[FlatComparisonRow], width: u32) -> Result<Figure
     let spread = 0.5 / sizes.len().max(1) as f64;
     let mut panels = Vec::new();
     for relative in [false, true] {
-        for (prefix, title) in FAMILIES {
+        for (kind, title) in FAMILIES {
             let family: Vec<&FlatComparisonRow> = rows
                 .iter()
-                .filter(|r| r.coefficient.starts_with(prefix) && r.j1.is_some())
+                .filter(|r| is_kind(&r.coefficient, kind) && r.j1.is_some())
                 .collect();
             let y_label = if relative {
                 "(sphere − flat) / flat  [%]"
