@@ -19,9 +19,8 @@
 //! that pool the scattering coefficients, so every footprint position counts once.
 
 use crate::error::{Error, Result};
+use crate::scattering::fft::{wavenumber, SquareFft};
 use num_complex::Complex64;
-use rustfft::{Fft, FftPlanner};
-use std::sync::Arc;
 
 /// Wavenumber bins: `edges[b] ≤ |k| < edges[b+1]` in rad⁻¹.
 #[derive(Debug, Clone, serde::Serialize)]
@@ -74,8 +73,7 @@ pub struct FourierStatistics {
     n: usize,
     pixel_size: f64,
     bins: WavenumberBins,
-    forward: Arc<dyn Fft<f64>>,
-    inverse: Arc<dyn Fft<f64>>,
+    fft: SquareFft,
     /// Bin of every Fourier cell (row-major), `usize::MAX` outside all bins.
     cell_bin: Vec<usize>,
     /// |k| of every Fourier cell.
@@ -140,22 +138,11 @@ impl FourierStatistics {
                 "pixel size must be positive, got {pixel_size}"
             )));
         }
-        let mut planner = FftPlanner::new();
-        let forward = planner.plan_fft_forward(n);
-        let inverse = planner.plan_fft_inverse(n);
-        let dk = 2.0 * std::f64::consts::PI / (n as f64 * pixel_size);
-        let freq = |i: usize| {
-            if i <= n / 2 {
-                i as f64
-            } else {
-                i as f64 - n as f64
-            }
-        };
         let mut cell_bin = vec![usize::MAX; n * n];
         let mut cell_k = vec![0.0; n * n];
         for iy in 0..n {
             for ix in 0..n {
-                let k = dk * (freq(ix).powi(2) + freq(iy).powi(2)).sqrt();
+                let k = wavenumber(ix, iy, n, pixel_size);
                 cell_k[iy * n + ix] = k;
                 if let Some(b) = bins.bin_of(k) {
                     cell_bin[iy * n + ix] = b;
@@ -166,8 +153,7 @@ impl FourierStatistics {
             n,
             pixel_size,
             bins,
-            forward,
-            inverse,
+            fft: SquareFft::new(n),
             cell_bin,
             cell_k,
             shells: Vec::new(),
@@ -179,29 +165,6 @@ impl FourierStatistics {
     /// The bins.
     pub fn bins(&self) -> &WavenumberBins {
         &self.bins
-    }
-
-    /// 2D FFT in place (rows then columns), forward or inverse (unnormalised).
-    fn fft2(&self, data: &mut [Complex64], inverse: bool) {
-        let n = self.n;
-        let plan = if inverse {
-            &self.inverse
-        } else {
-            &self.forward
-        };
-        for row in data.chunks_exact_mut(n) {
-            plan.process(row);
-        }
-        let mut col = vec![Complex64::new(0.0, 0.0); n];
-        for ix in 0..n {
-            for iy in 0..n {
-                col[iy] = data[iy * n + ix];
-            }
-            plan.process(&mut col);
-            for iy in 0..n {
-                data[iy * n + ix] = col[iy];
-            }
-        }
     }
 
     fn check(&self, field: &[f64], taper: &[f64]) -> Result<()> {
@@ -247,7 +210,7 @@ impl FourierStatistics {
             .zip(taper)
             .map(|(f, a)| Complex64::new(if *a > 0.0 { a * (f - mean) } else { 0.0 }, 0.0))
             .collect();
-        self.fft2(&mut data, false);
+        self.fft.forward(&mut data);
         let a2 = taper.iter().map(|a| a * a).sum();
         let a3 = taper.iter().map(|a| a * a * a).sum();
         Ok((data, a2, a3))
@@ -338,7 +301,7 @@ impl FourierStatistics {
                         }
                     })
                     .collect();
-                self.fft2(&mut d, true);
+                self.fft.inverse_unnormalised(&mut d);
                 d.iter().map(|c| c.re / nn as f64).collect()
             })
             .collect()

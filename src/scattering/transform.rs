@@ -159,15 +159,13 @@
 //! transforms); measured per-tile times are in `examples/per_scale_timing.rs` and docs/benchmarks.md.
 //! Memory is a few n² arrays plus the pooling weights, independent of the number of tiles.
 
+use crate::scattering::fft::{signed_frequency, SquareFft, SquareFftPlanner};
 use crate::scattering::filters::MorletBank;
 use crate::scattering::pooling::{PairTileSums, TileSums};
 use crate::scattering::statistics::{CoefficientLabel, CrossLabel};
 use crate::{Error, Result};
 use num_complex::Complex64;
 use rayon::prelude::*;
-use realfft::{ComplexToReal, RealFftPlanner, RealToComplex};
-use rustfft::{Fft, FftPlanner};
-use std::sync::Arc;
 use std::time::{Duration, Instant};
 
 /// Floor applied to the coverage N before dividing by √N (only matters far outside the trusted
@@ -337,14 +335,6 @@ impl FftClock {
     }
 }
 
-struct LevelPlans {
-    size: usize,
-    forward: Arc<dyn Fft<f64>>,
-    inverse: Arc<dyn Fft<f64>>,
-    real_forward: Arc<dyn RealToComplex<f64>>,
-    real_inverse: Arc<dyn ComplexToReal<f64>>,
-}
-
 /// Owns the filter bank, the FFT plans of every grid level and the crop levels; built once for
 /// (n, J, L) and shared by reference across tiles and threads (it is `Send + Sync`, every call
 /// allocates its own scratch, so results do not depend on scheduling).
@@ -355,7 +345,8 @@ pub struct ScatteringEngine {
     levels: Vec<usize>,
     /// Second-layer (output) level of each scale, ≥ the first-layer level.
     second_levels: Vec<usize>,
-    plans: Vec<LevelPlans>,
+    /// FFT plans of each level d (grid side n/2^d).
+    plans: Vec<SquareFft>,
     /// `level_wavelets[d][j·L + l]`: ψ̂_{j,l} cropped to the (n/2^d)² box (empty for d = 0,
     /// which reads the bank, and for d > d_j).
     level_wavelets: Vec<Vec<Vec<f64>>>,
@@ -376,14 +367,6 @@ impl std::fmt::Debug for ScatteringEngine {
             .field("levels", &self.second_levels)
             .field("settings", &self.settings)
             .finish()
-    }
-}
-
-fn transpose_square(data: &mut [Complex64], m: usize) {
-    for r in 0..m {
-        for c in (r + 1)..m {
-            data.swap(r * m + c, c * m + r);
-        }
     }
 }
 
@@ -430,15 +413,6 @@ pub(crate) fn subsample(data: &[f64], m_from: usize, m_to: usize) -> Vec<f64> {
         }
     }
     out
-}
-
-/// Signed frequency index of array index i on an m-point grid (i for i < m/2, else i − m).
-fn signed_frequency(i: usize, m: usize) -> i64 {
-    if i < m / 2 {
-        i as i64
-    } else {
-        i as i64 - m as i64
-    }
 }
 
 /// Centre of each wavelet's band on the n × n DFT grid: the bin (q_x, q_y) where |ψ̂_{j,l}| peaks
@@ -772,21 +746,9 @@ impl ScatteringEngine {
         let n = size;
         let levels = crop_levels_for(&bank, &settings, settings.first_layer_oversampling);
         let second_levels = crop_levels_for(&bank, &settings, 0);
-        let mut planner = FftPlanner::<f64>::new();
-        let mut real_planner = RealFftPlanner::<f64>::new();
+        let mut planner = SquareFftPlanner::new();
         let top = second_levels.iter().copied().max().unwrap_or(0);
-        let plans = (0..=top)
-            .map(|d| {
-                let m = n >> d;
-                LevelPlans {
-                    size: m,
-                    forward: planner.plan_fft_forward(m),
-                    inverse: planner.plan_fft_inverse(m),
-                    real_forward: real_planner.plan_fft_forward(m),
-                    real_inverse: real_planner.plan_fft_inverse(m),
-                }
-            })
-            .collect();
+        let plans = (0..=top).map(|d| planner.plan(n >> d)).collect();
         let level_wavelets = (0..=top)
             .map(|d| {
                 (0..scale_count * orientation_count)
@@ -840,13 +802,7 @@ impl ScatteringEngine {
     fn fits_in_box(bank: &MorletBank, j: usize, m: usize, tol: f64) -> bool {
         let n = bank.size();
         let half = (m / 2) as i64;
-        let signed = |i: usize| -> i64 {
-            if i < n / 2 {
-                i as i64
-            } else {
-                i as i64 - n as i64
-            }
-        };
+        let signed = |i: usize| signed_frequency(i, n);
         (0..bank.orientation_count()).all(|l| {
             [bank.wavelet(j, l), bank.squared_modulus(j, l)]
                 .iter()
@@ -904,94 +860,34 @@ impl ScatteringEngine {
         &self.labels
     }
 
-    /// In-place 2D complex FFT of a row-major m × m array at level d (unnormalised).
+    /// In-place 2-D complex FFT of a row-major m × m array at level d, unnormalised
+    /// ([`SquareFft::forward`], [`SquareFft::inverse_unnormalised`]), counted by the clock.
     fn fft2(&self, d: usize, data: &mut [Complex64], inverse: bool, clock: &mut FftClock) {
         let t = clock.start();
         let p = &self.plans[d];
-        let fft = if inverse { &p.inverse } else { &p.forward };
-        let mut scratch = vec![Complex64::default(); fft.get_inplace_scratch_len()];
-        fft.process_with_scratch(data, &mut scratch);
-        transpose_square(data, p.size);
-        fft.process_with_scratch(data, &mut scratch);
-        transpose_square(data, p.size);
-        clock.stop(t, p.size, false, inverse);
+        if inverse {
+            p.inverse_unnormalised(data);
+        } else {
+            p.forward(data);
+        }
+        clock.stop(t, p.size(), false, inverse);
     }
 
-    /// Full m × m DFT of a real m × m array at level d, by real-to-complex row transforms,
-    /// complex column transforms and Hermitian completion.
+    /// Full m × m DFT of a real m × m array at level d ([`SquareFft::real_spectrum`]), counted
+    /// by the clock.
     fn real_spectrum(&self, d: usize, input: &[f64], clock: &mut FftClock) -> Vec<Complex64> {
         let t = clock.start();
-        let p = &self.plans[d];
-        let m = p.size;
-        let h = m / 2 + 1;
-        let mut row = vec![0.0; m];
-        let mut row_out = p.real_forward.make_output_vec();
-        let mut scratch = p.real_forward.make_scratch_vec();
-        let mut half = vec![Complex64::default(); h * m]; // column-major: [kx·m + iy]
-        for iy in 0..m {
-            row.copy_from_slice(&input[iy * m..(iy + 1) * m]);
-            // Lengths are fixed by the plan, so the transform cannot fail.
-            if p.real_forward
-                .process_with_scratch(&mut row, &mut row_out, &mut scratch)
-                .is_err()
-            {
-                unreachable!("real FFT buffers have the planned lengths");
-            }
-            for (kx, v) in row_out.iter().enumerate() {
-                half[kx * m + iy] = *v;
-            }
-        }
-        let mut cscratch = vec![Complex64::default(); p.forward.get_inplace_scratch_len()];
-        p.forward.process_with_scratch(&mut half, &mut cscratch);
-        let mut out = vec![Complex64::default(); m * m];
-        for ky in 0..m {
-            for kx in 0..m {
-                out[ky * m + kx] = if kx < h {
-                    half[kx * m + ky]
-                } else {
-                    half[(m - kx) * m + (m - ky) % m].conj()
-                };
-            }
-        }
-        clock.stop(t, m, true, false);
+        let out = self.plans[d].real_spectrum(input);
+        clock.stop(t, self.plans[d].size(), true, false);
         out
     }
 
-    /// Real m × m array whose DFT is the Hermitian m × m spectrum `spec` (unnormalised inverse,
-    /// i.e. Σ_q spec[q] e^{+2πi q·x/m}): complex inverse transforms of the m/2 + 1 non-negative
-    /// x-frequency columns, then complex-to-real row transforms (the imaginary parts of the
-    /// self-conjugate bins, zero for an exactly Hermitian input, are dropped).
+    /// Real m × m array whose DFT is the Hermitian spectrum `spec` at level d, unnormalised
+    /// ([`SquareFft::real_inverse`]), counted by the clock.
     fn real_inverse(&self, d: usize, spec: &[Complex64], clock: &mut FftClock) -> Vec<f64> {
         let t = clock.start();
-        let p = &self.plans[d];
-        let m = p.size;
-        let h = m / 2 + 1;
-        let mut half = vec![Complex64::default(); h * m]; // column-major: [kx·m + ky]
-        for ky in 0..m {
-            for kx in 0..h {
-                half[kx * m + ky] = spec[ky * m + kx];
-            }
-        }
-        let mut cscratch = vec![Complex64::default(); p.inverse.get_inplace_scratch_len()];
-        p.inverse.process_with_scratch(&mut half, &mut cscratch);
-        let mut row_in = p.real_inverse.make_input_vec();
-        let mut scratch = p.real_inverse.make_scratch_vec();
-        let mut out = vec![0.0; m * m];
-        for (iy, row) in out.chunks_mut(m).enumerate() {
-            for (kx, v) in row_in.iter_mut().enumerate() {
-                *v = half[kx * m + iy];
-            }
-            row_in[0].im = 0.0;
-            row_in[h - 1].im = 0.0;
-            // Lengths are fixed by the plan and the self-conjugate bins are real.
-            if p.real_inverse
-                .process_with_scratch(&mut row_in, row, &mut scratch)
-                .is_err()
-            {
-                unreachable!("real inverse FFT buffers have the planned lengths");
-            }
-        }
-        clock.stop(t, m, true, true);
+        let out = self.plans[d].real_inverse(spec);
+        clock.stop(t, self.plans[d].size(), true, true);
         out
     }
 
