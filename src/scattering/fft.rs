@@ -4,16 +4,16 @@
 //!
 //! # Conventions
 //!
-//! An m × m grid is a row-major array x[y·m + x] (row y, column x); its spectrum X[k_y·m + k_x]
-//! uses the same layout, with the DFT index k ∈ {0, …, m − 1} standing for the signed
+//! An m × m grid is a row-major array, value x(r) of the pixel r = (x, y) at index `y·m + x`; its
+//! spectrum X(k), k = (k_x, k_y), uses the same layout (index `k_y·m + k_x`), with the DFT index k ∈ {0, …, m − 1} standing for the signed
 //! frequency [`signed_frequency`]. The transforms are
 //!
-//! - forward (unnormalised): X[k] = Σ_x x[x] e^{−2πi k·x/m},
-//! - inverse, unnormalised: x[x] = Σ_k X[k] e^{+2πi k·x/m},
+//! - forward (unnormalised): X(k) = Σ_r x(r) e^{−2πi k·r/m},
+//! - inverse, unnormalised: x(r) = Σ_k X(k) e^{+2πi k·r/m},
 //! - inverse ([`SquareFft::inverse`]): the unnormalised inverse times 1/m², so that it undoes
 //!   the forward transform,
 //!
-//! with k·x = k_x x + k_y y (the DFT in two dimensions; Cooley & Tukey 1965, Math. Comp. 19,
+//! with k·r = k_x x + k_y y (the DFT in two dimensions; Cooley & Tukey 1965, Math. Comp. 19,
 //! 297, for the fast algorithm, here from `rustfft` and `realfft`). Every transform runs the
 //! 1-D transforms along the rows first, then along the columns, and scales (where it does)
 //! after both passes; this order is part of the contract, because callers rely on results that
@@ -40,7 +40,7 @@ use std::sync::Arc;
 ///
 /// # Examples
 ///
-/// Values from `numpy.fft.fftfreq(8) * 8` = [0, 1, 2, 3, −4, −3, −2, −1] (numpy 2):
+/// Values from `numpy.fft.fftfreq(8) * 8` = `[0, 1, 2, 3, -4, -3, -2, -1]` (numpy 2):
 ///
 /// ```
 /// use planisphere::scattering::fft::signed_frequency;
@@ -104,12 +104,12 @@ impl SquareFft {
         self.size
     }
 
-    /// Forward DFT in place, unnormalised: X[k] = Σ_x x[x] e^{−2πi k·x/m}.
+    /// Forward DFT in place, unnormalised: X(k) = Σ_r x(r) e^{−2πi k·r/m}.
     pub fn forward(&self, data: &mut [Complex64]) {
         self.rows_then_columns(data, &self.forward);
     }
 
-    /// Inverse DFT in place, unnormalised: x[x] = Σ_k X[k] e^{+2πi k·x/m}.
+    /// Inverse DFT in place, unnormalised: x(r) = Σ_k X(k) e^{+2πi k·r/m}.
     pub fn inverse_unnormalised(&self, data: &mut [Complex64]) {
         self.rows_then_columns(data, &self.inverse);
     }
@@ -141,7 +141,7 @@ impl SquareFft {
 
     /// Forward DFT (unnormalised) of a real m × m array, full m × m spectrum: real-to-complex
     /// transforms of the rows (the m/2 + 1 non-negative x-frequencies), complex transforms of
-    /// those columns, and the other columns by Hermitian symmetry X[−k] = conj X[k].
+    /// those columns, and the other columns by Hermitian symmetry X(−k) = conj X(k).
     pub fn real_spectrum(&self, input: &[f64]) -> Vec<Complex64> {
         let m = self.size;
         let h = m / 2 + 1;
@@ -179,7 +179,7 @@ impl SquareFft {
     }
 
     /// Real m × m array whose DFT is the Hermitian m × m spectrum `spec` (unnormalised inverse,
-    /// x[x] = Σ_k spec[k] e^{+2πi k·x/m}): complex inverse transforms of the m/2 + 1
+    /// x(r) = Σ_k spec(k) e^{+2πi k·r/m}): complex inverse transforms of the m/2 + 1
     /// non-negative x-frequency columns, then complex-to-real transforms of the rows (the
     /// imaginary parts of the self-conjugate bins, zero for an exactly Hermitian input, are
     /// dropped).
