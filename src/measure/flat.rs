@@ -202,7 +202,7 @@ pub fn measure(
         ));
     }
     let bins = WavenumberBins::logarithmic(n, map.pixel_size, settings.spectrum_bins)?;
-    let fourier = FourierStatistics::new(n, map.pixel_size, bins)?;
+    let fourier = FourierStatistics::with_plans(engine.tile_fft().clone(), map.pixel_size, bins)?;
     let tile_power = fourier.power_spectrum(&map.values, taper, weight_sum)?;
     let tile_bispectrum = if settings.bispectrum {
         let triangles = fourier.triangles();

@@ -68,7 +68,8 @@ impl WavenumberBins {
     }
 }
 
-/// Owns the FFT plans for one tile size; shared by all tiles and threads.
+/// Holds the FFT plans for one tile size (its own, or the engine's); shared by all tiles and
+/// threads.
 pub struct FourierStatistics {
     n: usize,
     pixel_size: f64,
@@ -133,6 +134,17 @@ impl FourierStatistics {
         if n < 4 {
             return Err(Error::Setting(format!("tile size {n} is below 4 pixels")));
         }
+        Self::with_plans(SquareFft::new(n), pixel_size, bins)
+    }
+
+    /// As [`Self::new`] for the grid of `fft`, using those plans (the engine's, from
+    /// [`crate::scattering::ScatteringEngine::tile_fft`], so one object owns the plans of a
+    /// measurement).
+    pub fn with_plans(fft: SquareFft, pixel_size: f64, bins: WavenumberBins) -> Result<Self> {
+        let n = fft.size();
+        if n < 4 {
+            return Err(Error::Setting(format!("tile size {n} is below 4 pixels")));
+        }
         if !(pixel_size.is_finite() && pixel_size > 0.0) {
             return Err(Error::Setting(format!(
                 "pixel size must be positive, got {pixel_size}"
@@ -153,7 +165,7 @@ impl FourierStatistics {
             n,
             pixel_size,
             bins,
-            fft: SquareFft::new(n),
+            fft,
             cell_bin,
             cell_k,
             shells: Vec::new(),

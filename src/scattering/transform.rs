@@ -900,6 +900,11 @@ impl ScatteringEngine {
         &self.levels
     }
 
+    /// The FFT plans of the full n × n tile grid, for other statistics of the same tiles.
+    pub fn tile_fft(&self) -> &SquareFft {
+        &self.plans[0]
+    }
+
     /// Labels of the coefficients, in the order of [`TileSums::sums`].
     pub fn labels(&self) -> &[CoefficientLabel] {
         &self.labels
