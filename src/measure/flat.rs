@@ -15,6 +15,7 @@
 //! LoVerde & Afshordi 2008, PRD 78, 123506, where P(k) ≈ C_ℓ at ℓ + ½ = k). The q = 0 mode is
 //! set to zero: generated fields have zero mean over the patch.
 
+use crate::scattering::fft::{signed_frequency, SquareFft};
 use crate::scattering::pooling::pooled_coefficients;
 use crate::scattering::statistics::CoefficientSet;
 use crate::scattering::transform::{ScatteringEngine, TileView};
@@ -23,7 +24,6 @@ use num_complex::Complex64;
 use rand::SeedableRng;
 use rand_chacha::ChaCha20Rng;
 use rand_distr::{Distribution, StandardNormal};
-use rustfft::FftPlanner;
 
 /// An n × n flat map with pixel side `pixel_size` (radians), optional taper and pooling weight.
 #[derive(Debug, Clone, PartialEq)]
@@ -202,7 +202,7 @@ pub fn measure(
         ));
     }
     let bins = WavenumberBins::logarithmic(n, map.pixel_size, settings.spectrum_bins)?;
-    let fourier = FourierStatistics::new(n, map.pixel_size, bins)?;
+    let fourier = FourierStatistics::with_plans(engine.tile_fft().clone(), map.pixel_size, bins)?;
     let tile_power = fourier.power_spectrum(&map.values, taper, weight_sum)?;
     let tile_bispectrum = if settings.bispectrum {
         let triangles = fourier.triangles();
@@ -220,37 +220,13 @@ pub fn measure(
     })
 }
 
-/// In-place unnormalised 2D DFT of a row-major n × n complex array.
-fn fft2(data: &mut [Complex64], n: usize, inverse: bool) {
-    let mut planner = FftPlanner::<f64>::new();
-    let fft = if inverse {
-        planner.plan_fft_inverse(n)
-    } else {
-        planner.plan_fft_forward(n)
-    };
-    fft.process(data);
-    for r in 0..n {
-        for c in (r + 1)..n {
-            data.swap(r * n + c, c * n + r);
-        }
-    }
-    fft.process(data);
-    for r in 0..n {
-        for c in (r + 1)..n {
-            data.swap(r * n + c, c * n + r);
-        }
-    }
-}
-
-/// Wavenumber k_q = 2π|q|/(nΔ) (rad⁻¹) of the DFT index (ix, iy) on an n-pixel grid.
+/// Wavenumber k_q = 2π|q|/(nΔ) (rad⁻¹) of the DFT index (ix, iy) on an n-pixel grid, q the
+/// [`signed_frequency`] of each index. The same quantity as
+/// [`crate::scattering::fft::wavenumber`] to within an ulp, but rounded in this order
+/// (2π·hypot(q_x, q_y) / (nΔ)), which the seeded fields of [`gaussian_random_field`] keep,
+/// so that they stay bitwise reproducible across versions.
 pub fn wavenumber(ix: usize, iy: usize, size: usize, pixel_size: f64) -> f64 {
-    let s = |i: usize| {
-        if i < size / 2 {
-            i as f64
-        } else {
-            i as f64 - size as f64
-        }
-    };
+    let s = |i: usize| signed_frequency(i, size) as f64;
     2.0 * std::f64::consts::PI * s(ix).hypot(s(iy)) / (size as f64 * pixel_size)
 }
 
@@ -281,7 +257,8 @@ pub fn gaussian_random_field(
     let mut data: Vec<Complex64> = (0..nn)
         .map(|_| Complex64::new(StandardNormal.sample(&mut rng), 0.0))
         .collect();
-    fft2(&mut data, size, false);
+    let fft = SquareFft::new(size);
+    fft.forward(&mut data);
     for iy in 0..size {
         for ix in 0..size {
             let k = wavenumber(ix, iy, size, pixel_size);
@@ -295,7 +272,7 @@ pub fn gaussian_random_field(
             data[iy * size + ix] *= p.sqrt() / pixel_size;
         }
     }
-    fft2(&mut data, size, true);
+    fft.inverse_unnormalised(&mut data);
     let scale = 1.0 / nn as f64;
     FlatMap::new(
         size,

@@ -511,7 +511,8 @@ impl SphereMeasurer {
             settings.transform,
         )?;
         let bins = WavenumberBins::logarithmic(n, plan.pixel_size(), settings.spectrum_bins)?;
-        let fourier = FourierStatistics::new(n, plan.pixel_size(), bins)?;
+        let fourier =
+            FourierStatistics::with_plans(engine.tile_fft().clone(), plan.pixel_size(), bins)?;
         let triangles = if settings.bispectrum {
             fourier.triangles()
         } else {

@@ -19,9 +19,8 @@
 //! that pool the scattering coefficients, so every footprint position counts once.
 
 use crate::error::{Error, Result};
+use crate::scattering::fft::{wavenumber, SquareFft};
 use num_complex::Complex64;
-use rustfft::{Fft, FftPlanner};
-use std::sync::Arc;
 
 /// Wavenumber bins: `edges[b] ≤ |k| < edges[b+1]` in rad⁻¹.
 #[derive(Debug, Clone, serde::Serialize)]
@@ -69,13 +68,13 @@ impl WavenumberBins {
     }
 }
 
-/// Owns the FFT plans for one tile size; shared by all tiles and threads.
+/// Holds the FFT plans for one tile size (its own, or the engine's); shared by all tiles and
+/// threads.
 pub struct FourierStatistics {
     n: usize,
     pixel_size: f64,
     bins: WavenumberBins,
-    forward: Arc<dyn Fft<f64>>,
-    inverse: Arc<dyn Fft<f64>>,
+    fft: SquareFft,
     /// Bin of every Fourier cell (row-major), `usize::MAX` outside all bins.
     cell_bin: Vec<usize>,
     /// |k| of every Fourier cell.
@@ -135,27 +134,27 @@ impl FourierStatistics {
         if n < 4 {
             return Err(Error::Setting(format!("tile size {n} is below 4 pixels")));
         }
+        Self::with_plans(SquareFft::new(n), pixel_size, bins)
+    }
+
+    /// As [`Self::new`] for the grid of `fft`, using those plans (the engine's, from
+    /// [`crate::scattering::ScatteringEngine::tile_fft`], so one object owns the plans of a
+    /// measurement).
+    pub fn with_plans(fft: SquareFft, pixel_size: f64, bins: WavenumberBins) -> Result<Self> {
+        let n = fft.size();
+        if n < 4 {
+            return Err(Error::Setting(format!("tile size {n} is below 4 pixels")));
+        }
         if !(pixel_size.is_finite() && pixel_size > 0.0) {
             return Err(Error::Setting(format!(
                 "pixel size must be positive, got {pixel_size}"
             )));
         }
-        let mut planner = FftPlanner::new();
-        let forward = planner.plan_fft_forward(n);
-        let inverse = planner.plan_fft_inverse(n);
-        let dk = 2.0 * std::f64::consts::PI / (n as f64 * pixel_size);
-        let freq = |i: usize| {
-            if i <= n / 2 {
-                i as f64
-            } else {
-                i as f64 - n as f64
-            }
-        };
         let mut cell_bin = vec![usize::MAX; n * n];
         let mut cell_k = vec![0.0; n * n];
         for iy in 0..n {
             for ix in 0..n {
-                let k = dk * (freq(ix).powi(2) + freq(iy).powi(2)).sqrt();
+                let k = wavenumber(ix, iy, n, pixel_size);
                 cell_k[iy * n + ix] = k;
                 if let Some(b) = bins.bin_of(k) {
                     cell_bin[iy * n + ix] = b;
@@ -166,8 +165,7 @@ impl FourierStatistics {
             n,
             pixel_size,
             bins,
-            forward,
-            inverse,
+            fft,
             cell_bin,
             cell_k,
             shells: Vec::new(),
@@ -179,29 +177,6 @@ impl FourierStatistics {
     /// The bins.
     pub fn bins(&self) -> &WavenumberBins {
         &self.bins
-    }
-
-    /// 2D FFT in place (rows then columns), forward or inverse (unnormalised).
-    fn fft2(&self, data: &mut [Complex64], inverse: bool) {
-        let n = self.n;
-        let plan = if inverse {
-            &self.inverse
-        } else {
-            &self.forward
-        };
-        for row in data.chunks_exact_mut(n) {
-            plan.process(row);
-        }
-        let mut col = vec![Complex64::new(0.0, 0.0); n];
-        for ix in 0..n {
-            for iy in 0..n {
-                col[iy] = data[iy * n + ix];
-            }
-            plan.process(&mut col);
-            for iy in 0..n {
-                data[iy * n + ix] = col[iy];
-            }
-        }
     }
 
     fn check(&self, field: &[f64], taper: &[f64]) -> Result<()> {
@@ -247,7 +222,7 @@ impl FourierStatistics {
             .zip(taper)
             .map(|(f, a)| Complex64::new(if *a > 0.0 { a * (f - mean) } else { 0.0 }, 0.0))
             .collect();
-        self.fft2(&mut data, false);
+        self.fft.forward(&mut data);
         let a2 = taper.iter().map(|a| a * a).sum();
         let a3 = taper.iter().map(|a| a * a * a).sum();
         Ok((data, a2, a3))
@@ -338,7 +313,7 @@ impl FourierStatistics {
                         }
                     })
                     .collect();
-                self.fft2(&mut d, true);
+                self.fft.inverse_unnormalised(&mut d);
                 d.iter().map(|c| c.re / nn as f64).collect()
             })
             .collect()

@@ -82,13 +82,10 @@ pub struct MorletBank {
     low_pass: Vec<f64>,
 }
 
-/// Signed frequency index of array index i on an n-point grid.
+/// Signed frequency index of array index i on an n-point grid, as a float
+/// ([`crate::scattering::fft::signed_frequency`]).
 fn signed_index(i: usize, n: usize) -> f64 {
-    if i < n / 2 {
-        i as f64
-    } else {
-        i as f64 - n as f64
-    }
+    crate::scattering::fft::signed_frequency(i, n) as f64
 }
 
 /// Number of 2π Fourier copies on each side needed so that a Gaussian centred within

@@ -159,15 +159,13 @@
 //! transforms); measured per-tile times are in `examples/per_scale_timing.rs` and docs/benchmarks.md.
 //! Memory is a few n² arrays plus the pooling weights, independent of the number of tiles.
 
+use crate::scattering::fft::{signed_frequency, SquareFft, SquareFftPlanner};
 use crate::scattering::filters::MorletBank;
 use crate::scattering::pooling::{PairTileSums, TileSums};
 use crate::scattering::statistics::{CoefficientLabel, CrossLabel};
 use crate::{Error, Result};
 use num_complex::Complex64;
 use rayon::prelude::*;
-use realfft::{ComplexToReal, RealFftPlanner, RealToComplex};
-use rustfft::{Fft, FftPlanner};
-use std::sync::Arc;
 use std::time::{Duration, Instant};
 
 /// Floor applied to the coverage N before dividing by √N (only matters far outside the trusted
@@ -337,14 +335,6 @@ impl FftClock {
     }
 }
 
-struct LevelPlans {
-    size: usize,
-    forward: Arc<dyn Fft<f64>>,
-    inverse: Arc<dyn Fft<f64>>,
-    real_forward: Arc<dyn RealToComplex<f64>>,
-    real_inverse: Arc<dyn ComplexToReal<f64>>,
-}
-
 /// Owns the filter bank, the FFT plans of every grid level and the crop levels; built once for
 /// (n, J, L) and shared by reference across tiles and threads (it is `Send + Sync`, every call
 /// allocates its own scratch, so results do not depend on scheduling).
@@ -355,7 +345,8 @@ pub struct ScatteringEngine {
     levels: Vec<usize>,
     /// Second-layer (output) level of each scale, ≥ the first-layer level.
     second_levels: Vec<usize>,
-    plans: Vec<LevelPlans>,
+    /// FFT plans of each level d (grid side n/2^d).
+    plans: Vec<SquareFft>,
     /// `level_wavelets[d][j·L + l]`: ψ̂_{j,l} cropped to the (n/2^d)² box (empty for d = 0,
     /// which reads the bank, and for d > d_j).
     level_wavelets: Vec<Vec<Vec<f64>>>,
@@ -376,14 +367,6 @@ impl std::fmt::Debug for ScatteringEngine {
             .field("levels", &self.second_levels)
             .field("settings", &self.settings)
             .finish()
-    }
-}
-
-fn transpose_square(data: &mut [Complex64], m: usize) {
-    for r in 0..m {
-        for c in (r + 1)..m {
-            data.swap(r * m + c, c * m + r);
-        }
     }
 }
 
@@ -430,15 +413,6 @@ pub(crate) fn subsample(data: &[f64], m_from: usize, m_to: usize) -> Vec<f64> {
         }
     }
     out
-}
-
-/// Signed frequency index of array index i on an m-point grid (i for i < m/2, else i − m).
-fn signed_frequency(i: usize, m: usize) -> i64 {
-    if i < m / 2 {
-        i as i64
-    } else {
-        i as i64 - m as i64
-    }
 }
 
 /// Centre of each wavelet's band on the n × n DFT grid: the bin (q_x, q_y) where |ψ̂_{j,l}| peaks
@@ -747,6 +721,51 @@ fn within_box(n: usize, arr: &[f64], m: usize, centre: (i64, i64), tol: f64) -> 
     })
 }
 
+/// One field's order-0 sums and the input of its filters (the first step of the estimator).
+struct FieldInput {
+    /// Σ w f and Σ w f².
+    order_zero: (f64, f64),
+    /// I = a(f − μ_a) at full resolution.
+    input: Vec<f64>,
+    /// The DFT of I.
+    spectrum: Vec<Complex64>,
+}
+
+/// What every field of one tile shares: coverage corrections, pooling weights and tapers.
+struct TileTerms {
+    /// 1/√N_j on the first-layer grid of each scale j.
+    coverage_first: Vec<Vec<f64>>,
+    /// 1/√N_j on the second-layer grid of each scale j.
+    coverage_second: Vec<Vec<f64>>,
+    /// W_j (w where scale j is trusted) low-passed to the first-layer grid of j.
+    first_weights: Vec<Vec<f64>>,
+    /// Σ W_j at full resolution.
+    first_trusted: Vec<f64>,
+    /// Per j1, per j2 > j1: W_{j1,j2} low-passed to the second-layer grid of j2, and its sum.
+    pair_weights: Vec<Vec<(Vec<f64>, f64)>>,
+    /// The taper subsampled to each level up to the coarsest first-layer level.
+    tapers: Vec<Vec<f64>>,
+}
+
+/// One field's g_{j,l} on the second-layer grid of j, index j·L + l: `None` where that grid
+/// is the first-layer one (the first-layer g serves).
+type SecondGridLayer = Vec<Option<Vec<Complex64>>>;
+
+/// Coverage of one tile per scale j: the trust mask N_j ≥ τ and 1/√N_j on the grids of j.
+struct Coverage {
+    trust: Vec<Vec<bool>>,
+    first: Vec<Vec<f64>>,
+    second: Vec<Vec<f64>>,
+}
+
+/// One field's first layer, index j·L + l: g_{j,l} (kept for a pair only), U_{j,l} and μ_U.
+#[derive(Default)]
+struct FirstLayer {
+    g: Vec<Vec<Complex64>>,
+    u: Vec<Vec<f64>>,
+    mu: Vec<f64>,
+}
+
 impl ScatteringEngine {
     /// Build the engine for n × n tiles, J scales and L orientations with default settings.
     pub fn new(size: usize, scale_count: usize, orientation_count: usize) -> Result<Self> {
@@ -772,21 +791,9 @@ impl ScatteringEngine {
         let n = size;
         let levels = crop_levels_for(&bank, &settings, settings.first_layer_oversampling);
         let second_levels = crop_levels_for(&bank, &settings, 0);
-        let mut planner = FftPlanner::<f64>::new();
-        let mut real_planner = RealFftPlanner::<f64>::new();
+        let mut planner = SquareFftPlanner::new();
         let top = second_levels.iter().copied().max().unwrap_or(0);
-        let plans = (0..=top)
-            .map(|d| {
-                let m = n >> d;
-                LevelPlans {
-                    size: m,
-                    forward: planner.plan_fft_forward(m),
-                    inverse: planner.plan_fft_inverse(m),
-                    real_forward: real_planner.plan_fft_forward(m),
-                    real_inverse: real_planner.plan_fft_inverse(m),
-                }
-            })
-            .collect();
+        let plans = (0..=top).map(|d| planner.plan(n >> d)).collect();
         let level_wavelets = (0..=top)
             .map(|d| {
                 (0..scale_count * orientation_count)
@@ -841,13 +848,7 @@ impl ScatteringEngine {
     fn fits_in_box(bank: &MorletBank, j: usize, m: usize, tol: f64) -> bool {
         let n = bank.size();
         let half = (m / 2) as i64;
-        let signed = |i: usize| -> i64 {
-            if i < n / 2 {
-                i as i64
-            } else {
-                i as i64 - n as i64
-            }
-        };
+        let signed = |i: usize| signed_frequency(i, n);
         (0..bank.orientation_count()).all(|l| {
             [bank.wavelet(j, l), bank.squared_modulus(j, l)]
                 .iter()
@@ -900,99 +901,44 @@ impl ScatteringEngine {
         &self.levels
     }
 
+    /// The FFT plans of the full n × n tile grid, for other statistics of the same tiles.
+    pub fn tile_fft(&self) -> &SquareFft {
+        &self.plans[0]
+    }
+
     /// Labels of the coefficients, in the order of [`TileSums::sums`].
     pub fn labels(&self) -> &[CoefficientLabel] {
         &self.labels
     }
 
-    /// In-place 2D complex FFT of a row-major m × m array at level d (unnormalised).
+    /// In-place 2-D complex FFT of a row-major m × m array at level d, unnormalised
+    /// ([`SquareFft::forward`], [`SquareFft::inverse_unnormalised`]), counted by the clock.
     fn fft2(&self, d: usize, data: &mut [Complex64], inverse: bool, clock: &mut FftClock) {
         let t = clock.start();
         let p = &self.plans[d];
-        let fft = if inverse { &p.inverse } else { &p.forward };
-        let mut scratch = vec![Complex64::default(); fft.get_inplace_scratch_len()];
-        fft.process_with_scratch(data, &mut scratch);
-        transpose_square(data, p.size);
-        fft.process_with_scratch(data, &mut scratch);
-        transpose_square(data, p.size);
-        clock.stop(t, p.size, false, inverse);
+        if inverse {
+            p.inverse_unnormalised(data);
+        } else {
+            p.forward(data);
+        }
+        clock.stop(t, p.size(), false, inverse);
     }
 
-    /// Full m × m DFT of a real m × m array at level d, by real-to-complex row transforms,
-    /// complex column transforms and Hermitian completion.
+    /// Full m × m DFT of a real m × m array at level d ([`SquareFft::real_spectrum`]), counted
+    /// by the clock.
     fn real_spectrum(&self, d: usize, input: &[f64], clock: &mut FftClock) -> Vec<Complex64> {
         let t = clock.start();
-        let p = &self.plans[d];
-        let m = p.size;
-        let h = m / 2 + 1;
-        let mut row = vec![0.0; m];
-        let mut row_out = p.real_forward.make_output_vec();
-        let mut scratch = p.real_forward.make_scratch_vec();
-        let mut half = vec![Complex64::default(); h * m]; // column-major: [kx·m + iy]
-        for iy in 0..m {
-            row.copy_from_slice(&input[iy * m..(iy + 1) * m]);
-            // Lengths are fixed by the plan, so the transform cannot fail.
-            if p.real_forward
-                .process_with_scratch(&mut row, &mut row_out, &mut scratch)
-                .is_err()
-            {
-                unreachable!("real FFT buffers have the planned lengths");
-            }
-            for (kx, v) in row_out.iter().enumerate() {
-                half[kx * m + iy] = *v;
-            }
-        }
-        let mut cscratch = vec![Complex64::default(); p.forward.get_inplace_scratch_len()];
-        p.forward.process_with_scratch(&mut half, &mut cscratch);
-        let mut out = vec![Complex64::default(); m * m];
-        for ky in 0..m {
-            for kx in 0..m {
-                out[ky * m + kx] = if kx < h {
-                    half[kx * m + ky]
-                } else {
-                    half[(m - kx) * m + (m - ky) % m].conj()
-                };
-            }
-        }
-        clock.stop(t, m, true, false);
+        let out = self.plans[d].real_spectrum(input);
+        clock.stop(t, self.plans[d].size(), true, false);
         out
     }
 
-    /// Real m × m array whose DFT is the Hermitian m × m spectrum `spec` (unnormalised inverse,
-    /// i.e. Σ_q spec[q] e^{+2πi q·x/m}): complex inverse transforms of the m/2 + 1 non-negative
-    /// x-frequency columns, then complex-to-real row transforms (the imaginary parts of the
-    /// self-conjugate bins, zero for an exactly Hermitian input, are dropped).
+    /// Real m × m array whose DFT is the Hermitian spectrum `spec` at level d, unnormalised
+    /// ([`SquareFft::real_inverse`]), counted by the clock.
     fn real_inverse(&self, d: usize, spec: &[Complex64], clock: &mut FftClock) -> Vec<f64> {
         let t = clock.start();
-        let p = &self.plans[d];
-        let m = p.size;
-        let h = m / 2 + 1;
-        let mut half = vec![Complex64::default(); h * m]; // column-major: [kx·m + ky]
-        for ky in 0..m {
-            for kx in 0..h {
-                half[kx * m + ky] = spec[ky * m + kx];
-            }
-        }
-        let mut cscratch = vec![Complex64::default(); p.inverse.get_inplace_scratch_len()];
-        p.inverse.process_with_scratch(&mut half, &mut cscratch);
-        let mut row_in = p.real_inverse.make_input_vec();
-        let mut scratch = p.real_inverse.make_scratch_vec();
-        let mut out = vec![0.0; m * m];
-        for (iy, row) in out.chunks_mut(m).enumerate() {
-            for (kx, v) in row_in.iter_mut().enumerate() {
-                *v = half[kx * m + iy];
-            }
-            row_in[0].im = 0.0;
-            row_in[h - 1].im = 0.0;
-            // Lengths are fixed by the plan and the self-conjugate bins are real.
-            if p.real_inverse
-                .process_with_scratch(&mut row_in, row, &mut scratch)
-                .is_err()
-            {
-                unreachable!("real inverse FFT buffers have the planned lengths");
-            }
-        }
-        clock.stop(t, m, true, true);
+        let out = self.plans[d].real_inverse(spec);
+        clock.stop(t, self.plans[d].size(), true, true);
         out
     }
 
@@ -1184,7 +1130,9 @@ impl ScatteringEngine {
         &self.cross_labels
     }
 
-    /// The estimator for one field, or for two fields plus their cross sums.
+    /// The estimator for one field, or for two fields plus their cross sums: checks, then the
+    /// terms every field shares, then per field the first layer, the cross sums of the first
+    /// layer, and per field the second order (with X2 for a pair).
     fn run_fields(
         &self,
         fields: &[&[f64]],
@@ -1193,9 +1141,6 @@ impl ScatteringEngine {
         clock: &mut FftClock,
     ) -> Result<(Vec<TileSums>, Option<TileSums>)> {
         let n = self.size();
-        let nn = n * n;
-        let big_j = self.scale_count();
-        let big_l = self.orientation_count();
         let pair = fields.len() == 2;
         let names: &[&str] = if pair {
             &["first field", "second field"]
@@ -1203,33 +1148,113 @@ impl ScatteringEngine {
             &["field"]
         };
         for (f, name) in fields.iter().zip(names) {
-            check_values(name, f, nn, n)?;
+            check_values(name, f, n * n, n)?;
         }
         let (sw, sa) = check_taper_and_weight(a, w, n)?;
-        // Order 0 and the filter inputs I = a(f − μ_a) of every field.
-        let mut order_zero = Vec::with_capacity(fields.len());
-        let mut inputs = Vec::with_capacity(fields.len());
-        let mut spectra = Vec::with_capacity(fields.len());
-        for f in fields {
-            let mut swf = 0.0;
-            let mut swf2 = 0.0;
-            for i in 0..nn {
-                swf += w[i] * f[i];
-                swf2 += w[i] * f[i] * f[i];
-            }
-            order_zero.push((swf, swf2));
-            let mu = a.iter().zip(f.iter()).map(|(a, f)| a * f).sum::<f64>() / sa;
-            let input: Vec<f64> = a.iter().zip(f.iter()).map(|(a, f)| a * (f - mu)).collect();
-            spectra.push(self.real_spectrum(0, &input, clock));
-            inputs.push(input);
+        let inputs: Vec<FieldInput> = fields
+            .iter()
+            .map(|f| self.field_input(f, a, w, sa, clock))
+            .collect();
+        let terms = self.tile_terms(a, w, clock);
+        let empty = |len: usize| TileSums {
+            footprint_weight: sw,
+            sums: vec![0.0; len],
+            weights: vec![0.0; len],
+        };
+        let mut autos = Vec::with_capacity(fields.len());
+        let mut layers = Vec::with_capacity(fields.len());
+        for input in &inputs {
+            let mut sums = empty(self.labels.len());
+            (sums.sums[0], sums.sums[1]) = input.order_zero;
+            (sums.weights[0], sums.weights[1]) = (sw, sw);
+            layers.push(self.first_layer(&input.spectrum, &terms, pair, &mut sums, clock));
+            autos.push(sums);
         }
+        let mut cross = pair.then(|| empty(self.cross_labels.len()));
+        // With two fields, X2 needs each field's g_{j,l} on the second-layer grid of j.
+        let mut second_grid_g = Vec::new();
+        if let Some(cross) = cross.as_mut() {
+            self.cross_first_order(&inputs, &layers, &terms, cross, clock);
+            for input in &inputs {
+                second_grid_g.push(self.first_layer_on_second_grids(&input.spectrum, clock));
+            }
+        }
+        for (k, sums) in autos.iter_mut().enumerate() {
+            let x2 = cross.as_mut().map(|c| (c, &second_grid_g[..]));
+            self.second_order(k, &layers, &terms, sums, x2, clock);
+        }
+        Ok((autos, cross))
+    }
 
-        // Coverage N_j = a² ∗ K_j at full resolution, and the trust masks.
+    /// Order 0 of one field (Σ w f, Σ w f²) and its filter input I = a(f − μ_a), μ_a the
+    /// taper-weighted mean, with the spectrum of I.
+    fn field_input(
+        &self,
+        f: &[f64],
+        a: &[f64],
+        w: &[f64],
+        sa: f64,
+        clock: &mut FftClock,
+    ) -> FieldInput {
+        let mut swf = 0.0;
+        let mut swf2 = 0.0;
+        for i in 0..f.len() {
+            swf += w[i] * f[i];
+            swf2 += w[i] * f[i] * f[i];
+        }
+        let mu = a.iter().zip(f.iter()).map(|(a, f)| a * f).sum::<f64>() / sa;
+        let input: Vec<f64> = a.iter().zip(f.iter()).map(|(a, f)| a * (f - mu)).collect();
+        let spectrum = self.real_spectrum(0, &input, clock);
+        FieldInput {
+            order_zero: (swf, swf2),
+            input,
+            spectrum,
+        }
+    }
+
+    /// The terms every field of the tile shares: coverage, pooling weights and tapers.
+    fn tile_terms(&self, a: &[f64], w: &[f64], clock: &mut FftClock) -> TileTerms {
+        let n = self.size();
+        let Coverage {
+            trust,
+            first: coverage_first,
+            second: coverage_second,
+        } = self.coverage(a, clock);
+        let mut first_weights = Vec::with_capacity(trust.len());
+        let mut first_trusted = Vec::with_capacity(trust.len());
+        for (tj, &level) in trust.iter().zip(&self.levels) {
+            let wj: Vec<f64> = w
+                .iter()
+                .zip(tj)
+                .map(|(&w, &t)| if t { w } else { 0.0 })
+                .collect();
+            first_trusted.push(wj.iter().sum::<f64>());
+            first_weights.push(self.low_pass(&wj, level, clock));
+        }
+        let pair_weights = self.pair_weights(w, &trust, clock);
+        let top = self.levels.iter().copied().max().unwrap_or(0);
+        let tapers: Vec<Vec<f64>> = (0..=top).map(|d| subsample(a, n, n >> d)).collect();
+        TileTerms {
+            coverage_first,
+            coverage_second,
+            first_weights,
+            first_trusted,
+            pair_weights,
+            tapers,
+        }
+    }
+
+    /// Coverage N_j = a² ∗ K_j at full resolution: per scale the trust mask N_j ≥ τ and
+    /// 1/√max(N_j, floor) subsampled to the first-layer and second-layer grids of j.
+    fn coverage(&self, a: &[f64], clock: &mut FftClock) -> Coverage {
+        let n = self.size();
+        let nn = n * n;
+        let big_j = self.scale_count();
         let a2: Vec<f64> = a.iter().map(|a| a * a).collect();
         let a2_spec = self.real_spectrum(0, &a2, clock);
         let tau = self.settings.coverage_threshold;
         let mut trust: Vec<Vec<bool>> = Vec::with_capacity(big_j);
-        let mut coverage_coarse: Vec<Vec<f64>> = Vec::with_capacity(big_j);
+        let mut coverage_first: Vec<Vec<f64>> = Vec::with_capacity(big_j);
         let mut coverage_second: Vec<Vec<f64>> = Vec::with_capacity(big_j);
         for j in 0..big_j {
             let c: Vec<Complex64> = a2_spec
@@ -1244,7 +1269,7 @@ impl ScatteringEngine {
                 .collect();
             trust.push(cov.iter().map(|&v| v >= tau).collect());
             for (target, level) in [
-                (&mut coverage_coarse, self.levels[j]),
+                (&mut coverage_first, self.levels[j]),
                 (&mut coverage_second, self.second_levels[j]),
             ] {
                 target.push(
@@ -1255,23 +1280,27 @@ impl ScatteringEngine {
                 );
             }
         }
-        let mut first_weights = Vec::with_capacity(big_j);
-        let mut first_trusted = Vec::with_capacity(big_j);
-        for (tj, &level) in trust.iter().zip(&self.levels) {
-            let wj: Vec<f64> = w
-                .iter()
-                .zip(tj)
-                .map(|(&w, &t)| if t { w } else { 0.0 })
-                .collect();
-            first_trusted.push(wj.iter().sum::<f64>());
-            first_weights.push(self.low_pass(&wj, level, clock));
+        Coverage {
+            trust,
+            first: coverage_first,
+            second: coverage_second,
         }
-        // Pooling weights of the pairs (j1, j2), low-passed to the level of j2.
-        let pair_weights: Vec<Vec<(Vec<f64>, f64)>> = (0..big_j)
+    }
+
+    /// Pooling weights of the pairs (j1, j2), j2 > j1: w where both scales are trusted,
+    /// low-passed to the second-layer level of j2, with its sum.
+    fn pair_weights(
+        &self,
+        w: &[f64],
+        trust: &[Vec<bool>],
+        clock: &mut FftClock,
+    ) -> Vec<Vec<(Vec<f64>, f64)>> {
+        let big_j = self.scale_count();
+        (0..big_j)
             .map(|j1| {
                 ((j1 + 1)..big_j)
                     .map(|j2| {
-                        let wp: Vec<f64> = (0..nn)
+                        let wp: Vec<f64> = (0..w.len())
                             .map(|i| {
                                 if trust[j1][i] && trust[j2][i] {
                                     w[i]
@@ -1285,229 +1314,234 @@ impl ScatteringEngine {
                     })
                     .collect()
             })
-            .collect();
-        let top = self.levels.iter().copied().max().unwrap_or(0);
-        let tapers: Vec<Vec<f64>> = (0..=top).map(|d| subsample(a, n, n >> d)).collect();
+            .collect()
+    }
 
+    /// First layer of one field: per (j, l) g = IDFT(ψ̂_{j,l} · spectrum) on the first-layer
+    /// grid, U = |g|/N · N_j^{−1/2}, its pooled S1 and P sums (written to `out` with their
+    /// weights) and its taper-weighted mean μ_U; g is kept only when `keep_g`.
+    fn first_layer(
+        &self,
+        spectrum: &[Complex64],
+        terms: &TileTerms,
+        keep_g: bool,
+        out: &mut TileSums,
+        clock: &mut FftClock,
+    ) -> FirstLayer {
+        let n = self.size();
+        let big_l = self.orientation_count();
+        let layout = crate::scattering::layout::CoefficientLayout::new(self.scale_count(), big_l);
+        let (s1_base, p_base) = (layout.first_order(0, 0), layout.band_power_start());
+        let scale = 1.0 / (n * n) as f64;
+        let mut layer = FirstLayer::default();
+        for j1 in 0..self.scale_count() {
+            let d1 = self.levels[j1];
+            let m1 = n >> d1;
+            let factor1 = (1usize << (2 * d1)) as f64;
+            for l1 in 0..big_l {
+                let mut g: Vec<Complex64> = Vec::with_capacity(m1 * m1);
+                self.boxes.0[j1 * big_l + l1].gather(spectrum, self.wavelet_at(0, j1, l1), &mut g);
+                self.fft2(d1, &mut g, true, clock);
+                let u: Vec<f64> = g
+                    .iter()
+                    .zip(&terms.coverage_first[j1])
+                    .map(|(z, &c)| z.norm_sqr().sqrt() * scale * c)
+                    .collect();
+                let mut s1 = 0.0;
+                let mut p = 0.0;
+                for (wv, uv) in terms.first_weights[j1].iter().zip(&u) {
+                    s1 += wv * uv;
+                    p += wv * uv * uv;
+                }
+                let idx = layout.pair_offset(j1, l1);
+                out.sums[s1_base + idx] = s1 * factor1;
+                out.weights[s1_base + idx] = terms.first_trusted[j1];
+                out.sums[p_base + idx] = p * factor1;
+                out.weights[p_base + idx] = terms.first_trusted[j1];
+                let ad = &terms.tapers[d1];
+                let sad: f64 = ad.iter().sum();
+                let mu_u = if sad > 0.0 {
+                    ad.iter().zip(&u).map(|(a, u)| a * u).sum::<f64>() / sad
+                } else {
+                    0.0
+                };
+                layer.mu.push(mu_u);
+                layer.u.push(u);
+                if keep_g {
+                    layer.g.push(g);
+                }
+            }
+        }
+        layer
+    }
+
+    /// The input I of one field low-passed to each level up to the coarsest first-layer level
+    /// (the band of the envelope U); I itself at level 0.
+    fn low_passed_input(&self, input: &FieldInput, clock: &mut FftClock) -> Vec<Vec<f64>> {
+        let n = self.size();
+        let scale = 1.0 / (n * n) as f64;
+        let top = self.levels.iter().copied().max().unwrap_or(0);
+        (0..=top)
+            .map(|d| {
+                if d == 0 {
+                    return input.input.clone();
+                }
+                let c = crop_box(&input.spectrum, n, n >> d);
+                let mut out = self.real_inverse(d, &c, clock);
+                out.iter_mut().for_each(|v| *v *= scale);
+                out
+            })
+            .collect()
+    }
+
+    /// Cross sums of the first layer of a pair: P_AB and X1 in both directions (module
+    /// documentation), written to `cross` with their weights.
+    fn cross_first_order(
+        &self,
+        inputs: &[FieldInput],
+        layers: &[FirstLayer],
+        terms: &TileTerms,
+        cross: &mut TileSums,
+        clock: &mut FftClock,
+    ) {
+        let n = self.size();
+        let big_l = self.orientation_count();
+        let first_count = self.scale_count() * big_l;
+        let scale = 1.0 / (n * n) as f64;
+        let lowpassed: Vec<Vec<Vec<f64>>> = inputs
+            .iter()
+            .map(|input| self.low_passed_input(input, clock))
+            .collect();
+        for j in 0..self.scale_count() {
+            let d = self.levels[j];
+            let factor = (1usize << (2 * d)) as f64;
+            let wl = &terms.first_weights[j];
+            let c = &terms.coverage_first[j];
+            for l in 0..big_l {
+                let idx = j * big_l + l;
+                let (ga, gb) = (&layers[0].g[idx], &layers[1].g[idx]);
+                let mut p = 0.0;
+                for (((wv, za), zb), cv) in wl.iter().zip(ga).zip(gb).zip(c) {
+                    p += wv * (za.re * zb.re + za.im * zb.im) * scale * scale * cv * cv;
+                }
+                cross.sums[idx] = p * factor;
+                cross.weights[idx] = terms.first_trusted[j];
+                // X1: block 1 is A against B's modulus, block 2 B against A's modulus.
+                for (block, (field, envelope)) in [(0usize, 1usize), (1, 0)].iter().enumerate() {
+                    let i_field = &lowpassed[*field][d];
+                    let u = &layers[*envelope].u[idx];
+                    let mu = layers[*envelope].mu[idx];
+                    let mut x = 0.0;
+                    for ((wv, iv), uv) in wl.iter().zip(i_field).zip(u) {
+                        x += wv * iv * (uv - mu);
+                    }
+                    let at = (block + 1) * first_count + idx;
+                    cross.sums[at] = x * factor;
+                    cross.weights[at] = terms.first_trusted[j];
+                }
+            }
+        }
+    }
+
+    /// g_{j,l} of one field on the second-layer grid of j, where that grid differs from the
+    /// first-layer one (else `None`: the first-layer g serves), for X2.
+    fn first_layer_on_second_grids(
+        &self,
+        spectrum: &[Complex64],
+        clock: &mut FftClock,
+    ) -> SecondGridLayer {
+        let n = self.size();
+        let mut out = Vec::new();
+        for j in 0..self.scale_count() {
+            for l in 0..self.orientation_count() {
+                let d = self.second_levels[j];
+                out.push((j > 0 && d != self.levels[j]).then(|| {
+                    let mut g = Vec::with_capacity((n >> d) * (n >> d));
+                    self.band(0, j, l)
+                        .gather(spectrum, self.wavelet_at(0, j, l), &mut g);
+                    self.fft2(d, &mut g, true, clock);
+                    g
+                }));
+            }
+        }
+        out
+    }
+
+    /// Second order of field k: S2 sums (with their weights) into `out`; with `x2` (the cross
+    /// sums and every field's g on the second-layer grids) also X2 with this field's envelope.
+    fn second_order(
+        &self,
+        k: usize,
+        layers: &[FirstLayer],
+        terms: &TileTerms,
+        out: &mut TileSums,
+        mut x2: Option<(&mut TileSums, &[SecondGridLayer])>,
+        clock: &mut FftClock,
+    ) {
+        let n = self.size();
+        let big_j = self.scale_count();
+        let big_l = self.orientation_count();
         let layout = crate::scattering::layout::CoefficientLayout::new(big_j, big_l);
         let first_count = layout.first_order_count();
-        let s1_base = layout.first_order(0, 0);
-        let p_base = layout.band_power_start();
-        let mut sums = vec![vec![0.0; self.labels.len()]; fields.len()];
-        let mut weights = vec![0.0; self.labels.len()];
-        weights[0] = sw;
-        weights[1] = sw;
-        for (s, &(swf, swf2)) in sums.iter_mut().zip(&order_zero) {
-            s[0] = swf;
-            s[1] = swf2;
-        }
-        let scale = 1.0 / nn as f64;
-        // First layer of every field: g_{j,l} (kept for the cross sums), U_{j,l} and μ_U.
-        let mut layer_g: Vec<Vec<Vec<Complex64>>> = vec![Vec::new(); fields.len()];
-        let mut layer_u: Vec<Vec<Vec<f64>>> = vec![Vec::new(); fields.len()];
-        let mut layer_mu: Vec<Vec<f64>> = vec![Vec::new(); fields.len()];
-        for k in 0..fields.len() {
-            for j1 in 0..big_j {
-                let d1 = self.levels[j1];
-                let m1 = n >> d1;
-                let factor1 = (1usize << (2 * d1)) as f64;
-                for l1 in 0..big_l {
-                    let mut g: Vec<Complex64> = Vec::with_capacity(m1 * m1);
-                    self.boxes.0[j1 * big_l + l1].gather(
-                        &spectra[k],
-                        self.wavelet_at(0, j1, l1),
-                        &mut g,
-                    );
-                    self.fft2(d1, &mut g, true, clock);
-                    let inv_sqrt_cov = &coverage_coarse[j1];
-                    let u: Vec<f64> = g
-                        .iter()
-                        .zip(inv_sqrt_cov)
-                        .map(|(z, &c)| z.norm_sqr().sqrt() * scale * c)
-                        .collect();
-                    let wl = &first_weights[j1];
-                    let mut s1 = 0.0;
-                    let mut p = 0.0;
-                    for (wv, uv) in wl.iter().zip(&u) {
-                        s1 += wv * uv;
-                        p += wv * uv * uv;
-                    }
-                    let idx = layout.pair_offset(j1, l1);
-                    sums[k][s1_base + idx] = s1 * factor1;
-                    weights[s1_base + idx] = first_trusted[j1];
-                    sums[k][p_base + idx] = p * factor1;
-                    weights[p_base + idx] = first_trusted[j1];
-                    let ad = &tapers[d1];
-                    let sad: f64 = ad.iter().sum();
-                    let mu_u = if sad > 0.0 {
-                        ad.iter().zip(&u).map(|(a, u)| a * u).sum::<f64>() / sad
-                    } else {
-                        0.0
-                    };
-                    layer_mu[k].push(mu_u);
-                    layer_u[k].push(u);
-                    if pair {
-                        layer_g[k].push(g);
-                    }
-                }
-            }
-        }
-
-        // Cross sums: P_AB and X1 in both directions.
-        let cross_len = self.cross_labels.len();
-        let mut cross_sums = vec![0.0; cross_len];
-        let mut cross_weights = vec![0.0; cross_len];
         let second_count = layout.second_order_count();
-        if pair {
-            // I_A and I_B low-passed to each crop level (the band of the envelope U).
-            let lowpassed: Vec<Vec<Vec<f64>>> = (0..2)
-                .map(|k| {
-                    (0..=top)
-                        .map(|d| {
-                            if d == 0 {
-                                return inputs[k].clone();
-                            }
-                            let c = crop_box(&spectra[k], n, n >> d);
-                            let mut out = self.real_inverse(d, &c, clock);
-                            out.iter_mut().for_each(|v| *v *= scale);
-                            out
-                        })
-                        .collect()
-                })
-                .collect();
-            for j in 0..big_j {
-                let d = self.levels[j];
-                let factor = (1usize << (2 * d)) as f64;
-                let wl = &first_weights[j];
-                let c = &coverage_coarse[j];
-                for l in 0..big_l {
-                    let idx = j * big_l + l;
-                    let (ga, gb) = (&layer_g[0][idx], &layer_g[1][idx]);
-                    let mut p = 0.0;
-                    for (((wv, za), zb), cv) in wl.iter().zip(ga).zip(gb).zip(c) {
-                        p += wv * (za.re * zb.re + za.im * zb.im) * scale * scale * cv * cv;
-                    }
-                    cross_sums[idx] = p * factor;
-                    cross_weights[idx] = first_trusted[j];
-                    // X1: block 1 is A against B's modulus, block 2 B against A's modulus.
-                    for (block, (field, envelope)) in [(0usize, 1usize), (1, 0)].iter().enumerate()
-                    {
-                        let i_field = &lowpassed[*field][d];
-                        let u = &layer_u[*envelope][idx];
-                        let mu = layer_mu[*envelope][idx];
-                        let mut x = 0.0;
-                        for ((wv, iv), uv) in wl.iter().zip(i_field).zip(u) {
-                            x += wv * iv * (uv - mu);
+        let scale = 1.0 / (n * n) as f64;
+        let mut g2: Vec<Complex64> = Vec::with_capacity(n * n);
+        let mut s2_index = layout.second_order_start();
+        // X2 with this field's envelope: block 0 (A ← B) when k is B, block 1 when k is A.
+        let x2_block = if k == 1 { 0 } else { 1 };
+        let mut x2_index = 3 * first_count + x2_block * second_count;
+        for (j1, pair_weights_j1) in terms.pair_weights.iter().enumerate() {
+            if j1 + 1 >= big_j {
+                continue;
+            }
+            let d1 = self.levels[j1];
+            let m1 = n >> d1;
+            for l1 in 0..big_l {
+                let idx1 = j1 * big_l + l1;
+                let u = &layers[k].u[idx1];
+                let mu_u = layers[k].mu[idx1];
+                let ad = &terms.tapers[d1];
+                let second_input: Vec<f64> =
+                    ad.iter().zip(u).map(|(a, u)| a * (u - mu_u)).collect();
+                let spec2 = self.real_spectrum(d1, &second_input, clock);
+                for (pair_index, j2) in ((j1 + 1)..big_j).enumerate() {
+                    let d2 = self.second_levels[j2];
+                    let factor2 = (1usize << (2 * d2)) as f64;
+                    debug_assert!(n >> d2 <= m1);
+                    let inv_sqrt_cov2 = &terms.coverage_second[j2];
+                    let (wp, wtotal) = &pair_weights_j1[pair_index];
+                    let scale2 = 1.0 / (m1 * m1) as f64;
+                    for l2 in 0..big_l {
+                        self.band(d1, j2, l2)
+                            .gather(&spec2, self.wavelet_at(d1, j2, l2), &mut g2);
+                        self.fft2(d2, &mut g2, true, clock);
+                        let mut s2 = 0.0;
+                        for ((z, &c), wv) in g2.iter().zip(inv_sqrt_cov2).zip(wp) {
+                            s2 += wv * z.norm_sqr().sqrt() * c;
                         }
-                        let at = (block + 1) * first_count + idx;
-                        cross_sums[at] = x * factor;
-                        cross_weights[at] = first_trusted[j];
-                    }
-                }
-            }
-        }
-
-        // With two fields, X2 needs each field's g_{j,l} on the second-layer grid of j: the
-        // first-layer g where the two grids coincide, else one more inverse transform.
-        let mut second_grid_g: Vec<Vec<Option<Vec<Complex64>>>> = vec![Vec::new(); fields.len()];
-        if pair {
-            for (k, out) in second_grid_g.iter_mut().enumerate() {
-                for j in 0..big_j {
-                    for l in 0..big_l {
-                        let d = self.second_levels[j];
-                        out.push((j > 0 && d != self.levels[j]).then(|| {
-                            let mut g = Vec::with_capacity((n >> d) * (n >> d));
-                            self.band(0, j, l).gather(
-                                &spectra[k],
-                                self.wavelet_at(0, j, l),
-                                &mut g,
-                            );
-                            self.fft2(d, &mut g, true, clock);
-                            g
-                        }));
-                    }
-                }
-            }
-        }
-
-        // Second order of every field; with two fields also X2 in both directions.
-        let mut g2: Vec<Complex64> = Vec::with_capacity(nn);
-        for k in 0..fields.len() {
-            let mut s2_index = layout.second_order_start();
-            // X2 with this field's envelope: block 0 (A ← B) when k is B, block 1 when k is A.
-            let x2_block = if k == 1 { 0 } else { 1 };
-            let mut x2_index = 3 * first_count + x2_block * second_count;
-            for (j1, pair_weights_j1) in pair_weights.iter().enumerate() {
-                if j1 + 1 >= big_j {
-                    continue;
-                }
-                let d1 = self.levels[j1];
-                let m1 = n >> d1;
-                for l1 in 0..big_l {
-                    let idx1 = j1 * big_l + l1;
-                    let u = &layer_u[k][idx1];
-                    let mu_u = layer_mu[k][idx1];
-                    let ad = &tapers[d1];
-                    let second_input: Vec<f64> =
-                        ad.iter().zip(u).map(|(a, u)| a * (u - mu_u)).collect();
-                    let spec2 = self.real_spectrum(d1, &second_input, clock);
-                    for (pair_index, j2) in ((j1 + 1)..big_j).enumerate() {
-                        let d2 = self.second_levels[j2];
-                        let m2 = n >> d2;
-                        let factor2 = (1usize << (2 * d2)) as f64;
-                        debug_assert!(m2 <= m1);
-                        let inv_sqrt_cov2 = &coverage_second[j2];
-                        let (wp, wtotal) = &pair_weights_j1[pair_index];
-                        let scale2 = 1.0 / (m1 * m1) as f64;
-                        for l2 in 0..big_l {
-                            self.band(d1, j2, l2).gather(
-                                &spec2,
-                                self.wavelet_at(d1, j2, l2),
-                                &mut g2,
-                            );
-                            self.fft2(d2, &mut g2, true, clock);
-                            let mut s2 = 0.0;
-                            for ((z, &c), wv) in g2.iter().zip(inv_sqrt_cov2).zip(wp) {
-                                s2 += wv * z.norm_sqr().sqrt() * c;
+                        out.sums[s2_index] = s2 * factor2 * scale2;
+                        out.weights[s2_index] = *wtotal;
+                        s2_index += 1;
+                        if let Some((cross, second_grid_g)) = x2.as_mut() {
+                            // the other field filtered at (j2, l2), on the same grid
+                            let at = j2 * big_l + l2;
+                            let other = match &second_grid_g[1 - k][at] {
+                                Some(g) => g,
+                                None => &layers[1 - k].g[at],
+                            };
+                            let mut x = 0.0;
+                            for (((z, o), &c), wv) in
+                                g2.iter().zip(other).zip(inv_sqrt_cov2).zip(wp)
+                            {
+                                x += wv * (o.re * z.re + o.im * z.im) * c * c;
                             }
-                            sums[k][s2_index] = s2 * factor2 * scale2;
-                            weights[s2_index] = *wtotal;
-                            s2_index += 1;
-                            if pair {
-                                // the other field filtered at (j2, l2), on the same grid
-                                let at = j2 * big_l + l2;
-                                let other = match &second_grid_g[1 - k][at] {
-                                    Some(g) => g,
-                                    None => &layer_g[1 - k][at],
-                                };
-                                let mut x = 0.0;
-                                for (((z, o), &c), wv) in
-                                    g2.iter().zip(other).zip(inv_sqrt_cov2).zip(wp)
-                                {
-                                    x += wv * (o.re * z.re + o.im * z.im) * c * c;
-                                }
-                                cross_sums[x2_index] = x * factor2 * scale2 * scale;
-                                cross_weights[x2_index] = *wtotal;
-                                x2_index += 1;
-                            }
+                            cross.sums[x2_index] = x * factor2 * scale2 * scale;
+                            cross.weights[x2_index] = *wtotal;
+                            x2_index += 1;
                         }
                     }
                 }
             }
         }
-        let autos = sums
-            .into_iter()
-            .map(|s| TileSums {
-                footprint_weight: sw,
-                sums: s,
-                weights: weights.clone(),
-            })
-            .collect();
-        let cross = pair.then_some(TileSums {
-            footprint_weight: sw,
-            sums: cross_sums,
-            weights: cross_weights,
-        });
-        Ok((autos, cross))
     }
 }

@@ -41,78 +41,13 @@
 //! Derivatives*, SIAM, ch. 3. The masked, Fourier-cropped tile estimator and its adjoint are in
 //! [`super::tile_gradient`].
 
+use crate::scattering::fft::{SquareFft, SquareFftPlanner};
 use crate::scattering::filters::MorletBank;
 use crate::scattering::statistics::CoefficientLabel;
 use crate::scattering::transform::crop_box;
 use crate::{Error, Result};
 use num_complex::Complex64;
 use rayon::prelude::*;
-use rustfft::{Fft, FftPlanner};
-use std::sync::Arc;
-
-/// Square 2D FFT of one size (plans built once, shared by threads).
-pub(crate) struct SquareFft {
-    n: usize,
-    forward: Arc<dyn Fft<f64>>,
-    inverse: Arc<dyn Fft<f64>>,
-}
-
-impl SquareFft {
-    pub(crate) fn new(n: usize) -> Self {
-        let mut planner = FftPlanner::<f64>::new();
-        Self {
-            n,
-            forward: planner.plan_fft_forward(n),
-            inverse: planner.plan_fft_inverse(n),
-        }
-    }
-
-    fn transpose(&self, data: &mut [Complex64]) {
-        let n = self.n;
-        for r in 0..n {
-            for c in (r + 1)..n {
-                data.swap(r * n + c, c * n + r);
-            }
-        }
-    }
-
-    /// Unnormalised forward DFT in place (row-major n × n).
-    pub(crate) fn forward(&self, data: &mut [Complex64]) {
-        self.run(data, false);
-    }
-
-    /// Unnormalised inverse DFT in place (kernel e^{+2πi k·x/n}).
-    pub(crate) fn inverse_unnormalised(&self, data: &mut [Complex64]) {
-        self.run(data, true);
-    }
-
-    /// Inverse DFT in place, normalised by 1/N.
-    pub(crate) fn inverse(&self, data: &mut [Complex64]) {
-        self.run(data, true);
-        let s = 1.0 / (self.n * self.n) as f64;
-        data.iter_mut().for_each(|z| *z *= s);
-    }
-
-    fn run(&self, data: &mut [Complex64], inverse: bool) {
-        let fft = if inverse {
-            &self.inverse
-        } else {
-            &self.forward
-        };
-        let mut scratch = vec![Complex64::default(); fft.get_inplace_scratch_len()];
-        fft.process_with_scratch(data, &mut scratch);
-        self.transpose(data);
-        fft.process_with_scratch(data, &mut scratch);
-        self.transpose(data);
-    }
-
-    /// DFT of a real array.
-    pub(crate) fn spectrum_of(&self, real: &[f64]) -> Vec<Complex64> {
-        let mut d: Vec<Complex64> = real.iter().map(|&v| Complex64::new(v, 0.0)).collect();
-        self.forward(&mut d);
-        d
-    }
-}
 
 /// FFT plans of every coarse grid and the wavelets cropped to them (built once per transform).
 pub(crate) struct CoarseGrids {
@@ -123,11 +58,12 @@ pub(crate) struct CoarseGrids {
 }
 
 impl CoarseGrids {
-    pub(crate) fn new(bank: &MorletBank) -> Self {
+    /// Plans from `planner` (shared with the caller's full-size plans) and crops of the bank.
+    pub(crate) fn new(bank: &MorletBank, planner: &mut SquareFftPlanner) -> Self {
         let n = bank.size();
         let (jn, ln) = (bank.scale_count(), bank.orientation_count());
         let max_level = crate::scattering::filters::coarsest_level(n, 8);
-        let ffts = (0..=max_level).map(|d| SquareFft::new(n >> d)).collect();
+        let ffts = (0..=max_level).map(|d| planner.plan(n >> d)).collect();
         let wavelets = (0..=max_level)
             .map(|d| {
                 (0..jn * ln)
@@ -201,8 +137,9 @@ impl DifferentiableScattering {
     pub fn from_bank(bank: MorletBank) -> Self {
         let (jn, ln) = (bank.scale_count(), bank.orientation_count());
         let labels = crate::scattering::layout::CoefficientLayout::new(jn, ln).labels();
-        let fft = SquareFft::new(bank.size());
-        let grids = CoarseGrids::new(&bank);
+        let mut planner = SquareFftPlanner::new();
+        let fft = planner.plan(bank.size());
+        let grids = CoarseGrids::new(&bank, &mut planner);
         Self {
             bank,
             fft,

@@ -75,6 +75,7 @@ pub use tile_gradient::{TileForward, TileGeometry};
 use crate::scattering::transform::TransformSettings;
 
 use crate::measure::tile_spectra::WavenumberBins;
+use crate::scattering::fft::{wavenumber, SquareFft};
 use crate::scattering::statistics::{CoefficientLabel, OrientationSummary};
 use crate::{Error, Result};
 use argmin::core::observers::{Observe, ObserverMode};
@@ -224,19 +225,11 @@ impl PowerTerm {
         let bins = WavenumberBins::logarithmic(n, pixel_size, count)?;
         let mut raw = vec![usize::MAX; n * n];
         let mut modes = vec![0usize; bins.len()];
-        // |k| computed exactly as in tile_spectra, so that cells on bin edges (the fundamental
-        // sits on the first edge) fall in the same bin.
-        let dk = 2.0 * std::f64::consts::PI / (n as f64 * pixel_size);
-        let freq = |i: usize| {
-            if i <= n / 2 {
-                i as f64
-            } else {
-                i as f64 - n as f64
-            }
-        };
+        // |k| from the same function as the tile spectra, so that cells on bin edges (the
+        // fundamental sits on the first edge) fall in the same bin.
         for iy in 0..n {
             for ix in 0..n {
-                let k = dk * (freq(ix).powi(2) + freq(iy).powi(2)).sqrt();
+                let k = wavenumber(ix, iy, n, pixel_size);
                 if let Some(b) = bins.bin_of(k) {
                     raw[iy * n + ix] = b;
                     modes[b] += 1;
@@ -898,7 +891,7 @@ impl Pass {
 }
 
 /// Colour white noise by the amplitude |F_t(q)|: f̂_q = ŵ_q |F_t(q)| / n, q = 0 set to zero.
-fn colour_noise(fft: &gradient::SquareFft, noise: &[f64], amplitude: &[f64]) -> Vec<f64> {
+fn colour_noise(fft: &SquareFft, noise: &[f64], amplitude: &[f64]) -> Vec<f64> {
     let n = (noise.len() as f64).sqrt();
     let mut w = fft.spectrum_of(noise);
     for (z, a) in w.iter_mut().zip(amplitude) {
@@ -918,7 +911,7 @@ pub fn gaussian_counterpart(values: &[f64], size: usize, seed: u64) -> Result<Ve
             values.len()
         )));
     }
-    let fft = gradient::SquareFft::new(size);
+    let fft = SquareFft::new(size);
     let (mean, _, _) = moments(values);
     let centred: Vec<f64> = values.iter().map(|v| v - mean).collect();
     let amplitude: Vec<f64> = fft.spectrum_of(&centred).iter().map(|z| z.norm()).collect();
