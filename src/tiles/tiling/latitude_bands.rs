@@ -472,6 +472,44 @@ fn bands_of_rings(
     (bands, band_of_ring)
 }
 
+/// Cells merged into one tile so far, with their joint footprint columns and extent.
+struct MergeGroup {
+    cells: Vec<(usize, usize)>,
+    columns: Vec<[f64; 4]>,
+    center: Direction,
+    half: f64,
+    r2: f64,
+    pixels: u64,
+    cap: bool,
+    alive: bool,
+}
+
+impl MergeGroup {
+    /// One group per cell with footprint pixels (`count` per band and cell), in band and cell
+    /// order.
+    fn of_cells(bands: &[Band], count: &[Vec<u64>]) -> Vec<MergeGroup> {
+        let mut groups: Vec<MergeGroup> = Vec::new();
+        for (b, (band, band_count)) in bands.iter().zip(count).enumerate() {
+            for (k, &pixels) in band_count.iter().enumerate() {
+                if pixels == 0 {
+                    continue;
+                }
+                groups.push(MergeGroup {
+                    cells: vec![(b, k)],
+                    columns: band.columns[k].clone(),
+                    center: band.centers[k],
+                    half: band.reach[k].0,
+                    r2: band.reach[k].1,
+                    pixels,
+                    cap: band.cap,
+                    alive: true,
+                });
+            }
+        }
+        groups
+    }
+}
+
 impl LatitudeBands {
     /// Lays out the cells of `footprint` (a map of NSIDE `nside`) for tiles whose cores must fit
     /// in |x|, |y| ≤ `core_half` (radians of the tangent plane), with a margin of `margin`
@@ -774,34 +812,7 @@ impl LatitudeBands {
     /// centre of their joint range. Caps take no part. Returns the tiles as lists of
     /// (band, cell) with their tangent point and extent, in the order of their first cell.
     fn merge_cells(bands: &[Band], count: &[Vec<u64>], room: f64) -> Vec<MergedTile> {
-        struct Group {
-            cells: Vec<(usize, usize)>,
-            columns: Vec<[f64; 4]>,
-            center: Direction,
-            half: f64,
-            r2: f64,
-            pixels: u64,
-            cap: bool,
-            alive: bool,
-        }
-        let mut groups: Vec<Group> = Vec::new();
-        for (b, (band, band_count)) in bands.iter().zip(count).enumerate() {
-            for (k, &pixels) in band_count.iter().enumerate() {
-                if pixels == 0 {
-                    continue;
-                }
-                groups.push(Group {
-                    cells: vec![(b, k)],
-                    columns: band.columns[k].clone(),
-                    center: band.centers[k],
-                    half: band.reach[k].0,
-                    r2: band.reach[k].1,
-                    pixels,
-                    cap: band.cap,
-                    alive: true,
-                });
-            }
-        }
+        let mut groups = MergeGroup::of_cells(bands, count);
         // a tile's core reaches at most √2·atan(room) from its tangent point: two cores can
         // only share a square when their tangent points are closer than twice that
         let near = 2.0 * std::f64::consts::SQRT_2 * room.atan();
