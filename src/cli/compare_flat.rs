@@ -6,7 +6,9 @@ use super::plot::flat_bias::flat_bias_figure;
 use crate::error::{Error, Result};
 use crate::figures::charts::ImageFormat;
 use crate::harmonics::spectrum::AngularSpectrum;
-use crate::measure::flat_comparison::{compare_flat, rows_csv, FlatComparisonSettings};
+use crate::measure::flat_comparison::{
+    compare_flat, rows_csv, FlatComparisonRow, FlatComparisonSettings, ScaleConvergence,
+};
 use crate::measure::measurement::MeasurementSettings;
 use crate::scattering::layout::{CoefficientKind, CoefficientLabel, CoefficientSpelling};
 use std::path::PathBuf;
@@ -113,6 +115,34 @@ pub fn run(args: &CompareFlatArgs) -> Result<()> {
     if let Some(p) = &args.picture {
         flat_bias_figure(&rows, 1500)?.write(p)?;
     }
+    print_tables(&rows, &comparison.scales);
+    let flagged: Vec<String> = rows
+        .iter()
+        .filter(|r| r.reference_converged == Some(false))
+        .map(|r| format!("{} ({} px)", r.coefficient, r.tile_pixels))
+        .collect();
+    if !flagged.is_empty() {
+        println!(
+            "{} of {} coefficients moved by more than {} standard errors when the reference was doubled (first: {}); see reference_converged",
+            flagged.len(),
+            rows.len(),
+            crate::measure::flat_comparison::CONVERGENCE_ERRORS,
+            flagged[0]
+        );
+    }
+    println!(
+        "full table ({} rows) in {}",
+        rows.len(),
+        args.output.display()
+    );
+    if let Some(p) = &args.picture {
+        println!("picture in {}", p.display());
+    }
+    Ok(())
+}
+
+/// Prints the flat-sky bias of S1 per tile size and the doubling check of the flat reference.
+fn print_tables(rows: &[FlatComparisonRow], scales: &[ScaleConvergence]) {
     println!("flat-sky bias of S1 (sphere − flat), per tile size: relative, and in errors of the difference");
     println!(
         "{:>6} {:>8} {:>12} {:>10} {:>9} {:>8}",
@@ -141,7 +171,7 @@ pub fn run(args: &CompareFlatArgs) -> Result<()> {
         "{:>6} {:>6} {:>10} {:>3} {:>9} {:>8} {:>10}",
         "tile", "m", "statistic", "j", "change", "in σ", "converged"
     );
-    for c in &comparison.scales {
+    for c in scales {
         println!(
             "{:>6} {:>6} {:>10} {:>3} {:>8.2}% {:>8.2} {:>10}",
             c.tile_pixels,
@@ -153,27 +183,4 @@ pub fn run(args: &CompareFlatArgs) -> Result<()> {
             c.converged
         );
     }
-    let flagged: Vec<String> = rows
-        .iter()
-        .filter(|r| r.reference_converged == Some(false))
-        .map(|r| format!("{} ({} px)", r.coefficient, r.tile_pixels))
-        .collect();
-    if !flagged.is_empty() {
-        println!(
-            "{} of {} coefficients moved by more than {} standard errors when the reference was doubled (first: {}); see reference_converged",
-            flagged.len(),
-            rows.len(),
-            crate::measure::flat_comparison::CONVERGENCE_ERRORS,
-            flagged[0]
-        );
-    }
-    println!(
-        "full table ({} rows) in {}",
-        rows.len(),
-        args.output.display()
-    );
-    if let Some(p) = &args.picture {
-        println!("picture in {}", p.display());
-    }
-    Ok(())
 }

@@ -10,7 +10,7 @@
 //! which the scattering coefficients see.
 
 use super::ensemble::EnsembleMeasurer;
-use super::forecast::{forecast_document, forecast_named_sets};
+use super::forecast::{forecast_document, forecast_named_sets, ForecastResult};
 use super::measure::measurement_document;
 use super::output::{write_bytes, write_json};
 use crate::ensemble::{EnsembleDescription, EnsembleJob, MemberSource, Shard};
@@ -22,6 +22,7 @@ use crate::measure::measurement::MeasurementSettings;
 use crate::simulate::scenario::MockFootprint;
 use crate::simulate::skies::SkyRecipe;
 use crate::sky::apodization::{apodize, TaperKind};
+use crate::sky::footprint::Footprint;
 use crate::sky::pixelization::{Ordering, Pixelization};
 use std::path::{Path, PathBuf};
 use std::time::Instant;
@@ -151,8 +152,63 @@ pub fn run(args: &DemoArgs) -> Result<()> {
     result
 }
 
+/// Width of the C2 taper of the mock footprint, arcminutes.
+const TAPER_ARCMIN: f64 = 60.0;
+
 fn run_in_directory(args: &DemoArgs) -> Result<()> {
     let start = Instant::now();
+    check_arguments(args)?;
+    std::fs::create_dir_all(&args.output_dir).map_err(|e| Error::io(&args.output_dir, e))?;
+    let dir = &args.output_dir;
+    let pix = Pixelization::new(args.nside, Ordering::Ring)?;
+    let scenario = MockFootprint::default();
+    let mask = scenario.build(pix);
+    let footprint = apodize(&mask, TaperKind::C2, (TAPER_ARCMIN / 60.0).to_radians())?;
+    print_scenario(args, &scenario, &mask, &footprint);
+    let (settings, pixel_arcmin) = measurement_settings(pix, args.scales);
+    // pseudo-C_ℓ up to ℓ = 2 NSIDE in as many bins as the summary has numbers (J²)
+    let cl_bin_width = (2 * args.nside as usize).div_ceil(settings.scales * settings.scales);
+    let em = EnsembleMeasurer::new(pix, footprint.clone(), settings, cl_bin_width)?;
+    let summary = em.measurer.summary();
+    println!(
+        "  measurement: J = {}, L = {}, {} tiles of {}² pixels of {:.1}′ ({:.1}° across, cells: {})",
+        settings.scales,
+        settings.orientations,
+        summary.tiles,
+        summary.tile_pixels,
+        pixel_arcmin,
+        summary.tile_width_deg,
+        summary.cells
+    );
+    let labels: Vec<String> = em.labels().into_iter().map(|l| l.name).collect();
+
+    let fid_recipe = recipe(args.nside, FIDUCIAL, 1000);
+    write_example(dir, &em, &fid_recipe, &mask, &footprint)?;
+    let fiducial = run_ensemble(
+        &dir.join("fiducial"),
+        "fiducial",
+        &fid_recipe,
+        args.fiducial_count,
+        &em,
+        &labels,
+        args.quiet,
+    )?;
+    let derivatives = run_derivative_ensembles(args, &em, &labels)?;
+    let chosen = sets_with_enough_skies(&fiducial, args.fiducial_count);
+    let result = forecast_named_sets(&fiducial, &derivatives, None, &chosen)?;
+    write_forecast(dir, args, &result)?;
+    print_comparison(&result);
+    draw_pictures(dir, &result, &em, &settings, pixel_arcmin)?;
+    println!(
+        "outputs in {}: forecast.json, comparison.csv, ellipses.png, coefficients.png, tile_map.png, example_sky.fits, mock_mask.fits, example_measurement.json, ensemble tables",
+        dir.display()
+    );
+    println!("run time {:.1} s", start.elapsed().as_secs_f64());
+    Ok(())
+}
+
+/// Refuses a resolution, ensemble size or scale count the demo cannot run with.
+fn check_arguments(args: &DemoArgs) -> Result<()> {
     if args.nside < 32 || args.nside > 512 || !args.nside.is_power_of_two() {
         return Err(Error::Setting(format!(
             "--nside must be a power of two from 32 to 512, got {}",
@@ -169,16 +225,19 @@ fn run_in_directory(args: &DemoArgs) -> Result<()> {
     if args.scales == 0 {
         return Err(Error::Setting("--scales must be at least 1".into()));
     }
-    std::fs::create_dir_all(&args.output_dir).map_err(|e| Error::io(&args.output_dir, e))?;
-    let dir = &args.output_dir;
-    let pix = Pixelization::new(args.nside, Ordering::Ring)?;
-    let scenario = MockFootprint::default();
-    let mask = scenario.build(pix);
-    let taper_arcmin: f64 = 60.0;
-    let footprint = apodize(&mask, TaperKind::C2, (taper_arcmin / 60.0).to_radians())?;
+    Ok(())
+}
+
+/// Prints what the mock survey is: footprint, skies and parameters.
+fn print_scenario(
+    args: &DemoArgs,
+    scenario: &MockFootprint,
+    mask: &Footprint,
+    footprint: &Footprint,
+) {
     println!("planisphere demo: a mock survey of our own invention (no real data)");
     println!(
-        "  footprint: |b| > {}° less {} star holes of {}–{}°, C2 taper {taper_arcmin}′: {:.0} deg², f_sky {:.3}",
+        "  footprint: |b| > {}° less {} star holes of {}–{}°, C2 taper {TAPER_ARCMIN}′: {:.0} deg², f_sky {:.3}",
         scenario.latitude_cut_deg,
         scenario.star_holes,
         scenario.hole_radius_deg.0,
@@ -194,20 +253,25 @@ fn run_in_directory(args: &DemoArgs) -> Result<()> {
         "  parameters: A = {} ± {}, κ0 = {} ± {}; {} fiducial skies, {} per shifted value (paired seeds)",
         FIDUCIAL.amplitude, STEPS.amplitude, FIDUCIAL.shift, STEPS.shift, args.fiducial_count, args.derivative_count
     );
-    // Tiles at most 15° across (the flat-sky picture of a tile stays good: sec²ρ ≤ 1.035 at
-    // the corners) at one map spacing per plane pixel: the largest power-of-two grid that fits.
-    // At NSIDE 256 that is 64 pixels of 13.7′ and J = 4 covers wavelengths of 37′–290′; the
-    // two finest scales fall below the ring-cubic trust limit of 8 map spacings and are flagged,
-    // but every ensemble is sampled the same way, so the Fisher comparison stays consistent.
+}
+
+/// The demo's measurement settings and the plane pixel size in arcminutes.
+///
+/// Tiles at most 15° across (the flat-sky picture of a tile stays good: sec²ρ ≤ 1.035 at
+/// the corners) at one map spacing per plane pixel: the largest power-of-two grid that fits.
+/// At NSIDE 256 that is 64 pixels of 13.7′ and J = 4 covers wavelengths of 37′–290′; the
+/// two finest scales fall below the ring-cubic trust limit of 8 map spacings and are flagged,
+/// but every ensemble is sampled the same way, so the Fisher comparison stays consistent.
+fn measurement_settings(pix: Pixelization, scales: usize) -> (MeasurementSettings, f64) {
     let pixel_arcmin = pix.mean_spacing().to_degrees() * 60.0;
     let mut tile_pixels = 32usize;
     while (2 * tile_pixels) as f64 * pixel_arcmin <= 15.0 * 60.0 {
         tile_pixels *= 2;
     }
     let scales = if tile_pixels <= 32 {
-        args.scales.min(3)
+        scales.min(3)
     } else {
-        args.scales
+        scales
     };
     // A border ramp of 4 pixels (halo 4 + 7 at J = 4) leaves cores of 42 of the 64 pixels.
     let border_pixels = 4;
@@ -219,24 +283,18 @@ fn run_in_directory(args: &DemoArgs) -> Result<()> {
         spectrum_bins: 4,
         ..MeasurementSettings::default()
     };
-    // pseudo-C_ℓ up to ℓ = 2 NSIDE in as many bins as the summary has numbers (J²)
-    let cl_bin_width = (2 * args.nside as usize).div_ceil(scales * scales);
-    let em = EnsembleMeasurer::new(pix, footprint.clone(), settings, cl_bin_width)?;
-    let summary = em.measurer.summary();
-    println!(
-        "  measurement: J = {}, L = {}, {} tiles of {}² pixels of {:.1}′ ({:.1}° across, cells: {})",
-        settings.scales,
-        settings.orientations,
-        summary.tiles,
-        summary.tile_pixels,
-        pixel_arcmin,
-        summary.tile_width_deg,
-        summary.cells
-    );
-    let labels: Vec<String> = em.labels().into_iter().map(|l| l.name).collect();
+    (settings, pixel_arcmin)
+}
 
-    // inputs a user can try the other commands on
-    let fid_recipe = recipe(args.nside, FIDUCIAL, 1000);
+/// Writes inputs a user can try the other commands on: one fiducial sky, the mask, and the
+/// sky's measurement.
+fn write_example(
+    dir: &Path,
+    em: &EnsembleMeasurer,
+    fid_recipe: &SkyRecipe,
+    mask: &Footprint,
+    footprint: &Footprint,
+) -> Result<()> {
     let example = fid_recipe.realise(&fid_recipe.transform()?, 0)?;
     write_map(
         &dir.join("example_sky.fits"),
@@ -247,26 +305,24 @@ fn run_in_directory(args: &DemoArgs) -> Result<()> {
     write_footprint(
         &dir.join("mock_mask.fits"),
         "MASK",
-        &mask,
+        mask,
         &WriteOptions::default(),
     )?;
-    let stats = em.measurer.measure(&example, &footprint)?;
+    let stats = em.measurer.measure(&example, footprint)?;
     let taper =
-        serde_json::json!({"kind": "C2", "width_arcmin": taper_arcmin, "mask": "mock_mask.fits"});
+        serde_json::json!({"kind": "C2", "width_arcmin": TAPER_ARCMIN, "mask": "mock_mask.fits"});
     write_json(
         &dir.join("example_measurement.json"),
         &measurement_document(&em.measurer, &stats, "example_sky.fits", &taper),
-    )?;
+    )
+}
 
-    let fiducial = run_ensemble(
-        &dir.join("fiducial"),
-        "fiducial",
-        &fid_recipe,
-        args.fiducial_count,
-        &em,
-        &labels,
-        args.quiet,
-    )?;
+/// Runs the ensembles at each parameter shifted by ± its step (paired seeds).
+fn run_derivative_ensembles(
+    args: &DemoArgs,
+    em: &EnsembleMeasurer,
+    labels: &[String],
+) -> Result<Vec<DerivativeEnsembles>> {
     let mut derivatives = Vec::new();
     for (name, step) in [("amplitude", STEPS.amplitude), ("shift", STEPS.shift)] {
         let shifted = |sign: f64| {
@@ -279,21 +335,21 @@ fn run_in_directory(args: &DemoArgs) -> Result<()> {
             recipe(args.nside, p, 2000)
         };
         let plus = run_ensemble(
-            &dir.join(format!("{name}_plus")),
+            &args.output_dir.join(format!("{name}_plus")),
             &format!("{name} +"),
             &shifted(1.0),
             args.derivative_count,
-            &em,
-            &labels,
+            em,
+            labels,
             args.quiet,
         )?;
         let minus = run_ensemble(
-            &dir.join(format!("{name}_minus")),
+            &args.output_dir.join(format!("{name}_minus")),
             &format!("{name} −"),
             &shifted(-1.0),
             args.derivative_count,
-            &em,
-            &labels,
+            em,
+            labels,
             args.quiet,
         )?;
         derivatives.push(DerivativeEnsembles {
@@ -304,8 +360,17 @@ fn run_in_directory(args: &DemoArgs) -> Result<()> {
             paired: true,
         });
     }
-    // Every set compared has a Hartlap factor ≥ 0.8 (n ≥ 5p + 6 simulations for p statistics):
-    // sets too large for the fiducial ensemble are left out with a note.
+    Ok(derivatives)
+}
+
+/// The sets of [`DEMO_SETS`] the fiducial ensemble has columns for and enough skies for.
+///
+/// Every set compared has a Hartlap factor ≥ 0.8 (n ≥ 5p + 6 simulations for p statistics):
+/// sets too large for the fiducial ensemble are left out with a note.
+fn sets_with_enough_skies(
+    fiducial: &crate::forecast::Ensemble,
+    fiducial_count: u64,
+) -> Vec<(&'static str, &'static [&'static str])> {
     let columns = fiducial.labels();
     let mut chosen: Vec<(&str, &[&str])> = Vec::new();
     for &(name, prefixes) in DEMO_SETS {
@@ -316,7 +381,7 @@ fn run_in_directory(args: &DemoArgs) -> Result<()> {
         if p == 0 {
             continue;
         }
-        let n = args.fiducial_count as usize;
+        let n = fiducial_count as usize;
         if n >= 5 * p + 6 {
             chosen.push((name, prefixes));
         } else {
@@ -326,9 +391,13 @@ fn run_in_directory(args: &DemoArgs) -> Result<()> {
             );
         }
     }
-    let result = forecast_named_sets(&fiducial, &derivatives, None, &chosen)?;
+    chosen
+}
+
+/// Writes forecast.json and comparison.csv.
+fn write_forecast(dir: &Path, args: &DemoArgs, result: &ForecastResult) -> Result<()> {
     let doc = forecast_document(
-        &result,
+        result,
         &[FIDUCIAL.amplitude, FIDUCIAL.shift],
         serde_json::json!({"demo": true, "nside": args.nside, "fiducial_count": args.fiducial_count, "derivative_count": args.derivative_count}),
     );
@@ -336,7 +405,11 @@ fn run_in_directory(args: &DemoArgs) -> Result<()> {
     write_bytes(
         &dir.join("comparison.csv"),
         result.comparison.to_csv().as_bytes(),
-    )?;
+    )
+}
+
+/// Prints the table of marginalised errors and the power-spectrum-to-summary error ratio.
+fn print_comparison(result: &ForecastResult) {
     println!();
     println!(
         "Marginalised 1σ errors by statistic set (Fisher forecast, Hartlap-corrected covariance):"
@@ -359,7 +432,16 @@ fn run_in_directory(args: &DemoArgs) -> Result<()> {
             ps / sc
         );
     }
-    // pictures: Fisher ellipses of the sets, the example sky's coefficients, a per-tile map
+}
+
+/// Pictures: Fisher ellipses of the sets, the example sky's coefficients, a per-tile map.
+fn draw_pictures(
+    dir: &Path,
+    result: &ForecastResult,
+    em: &EnsembleMeasurer,
+    settings: &MeasurementSettings,
+    pixel_arcmin: f64,
+) -> Result<()> {
     use super::plot::{
         run_coefficients, run_ellipses, run_tile_map, CoefficientsArgs, EllipsesArgs, TileMapArgs,
     };
@@ -390,7 +472,7 @@ fn run_in_directory(args: &DemoArgs) -> Result<()> {
             mask: Some(dir.join("mock_mask.fits")),
             mask_column: crate::io::fits_io::ColumnChoice::default(),
             taper: TaperKind::C2,
-            taper_arcmin,
+            taper_arcmin: TAPER_ARCMIN,
             allow_coordsys_mismatch: false,
         },
         options: super::measure::MeasureOptions {
@@ -404,11 +486,5 @@ fn run_in_directory(args: &DemoArgs) -> Result<()> {
         statistic: format!("S1_j{}", settings.scales - 1),
         output: dir.join("tile_map.png"),
         width: 1200,
-    })?;
-    println!(
-        "outputs in {}: forecast.json, comparison.csv, ellipses.png, coefficients.png, tile_map.png, example_sky.fits, mock_mask.fits, example_measurement.json, ensemble tables",
-        dir.display()
-    );
-    println!("run time {:.1} s", start.elapsed().as_secs_f64());
-    Ok(())
+    })
 }

@@ -297,13 +297,7 @@ pub fn ensemble_footprint(
                     mask.allow_coordsys_mismatch,
                 )?;
             }
-            if fp.pixelization().nside() != pix.nside() {
-                return Err(Error::Mismatch(format!(
-                    "mask NSIDE {} does not match map NSIDE {}",
-                    fp.pixelization().nside(),
-                    pix.nside()
-                )));
-            }
+            fp.check_map_nside(pix.nside())?;
             let fp = fp.to_ordering(pix.ordering())?;
             super::inputs::refuse_single_pixel_mask(&fp)?;
             mask.taper_footprint(fp)
@@ -320,7 +314,64 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
         Some(s) => Shard::parse(s)?,
         None => Shard::from_slurm_env()?.unwrap_or(Shard::ALL),
     };
-    // the second list pairs with its own kind of first list, checked before anything is read
+    check_second_lists(args)?;
+    let (members, recipe, recipe_file) = ensemble_members(args)?;
+    let pair_recipe = recipe_file.as_ref().and_then(|f| f.pair.clone());
+    let is_pair =
+        args.second_maps.is_some() || args.second_map_list.is_some() || pair_recipe.is_some();
+    let loader = MemberLoader {
+        column: &args.column,
+        second_column: &args.second_column,
+        sky_sht: match &recipe {
+            Some(r) => Some(r.transform()?),
+            None => None,
+        },
+        recipe,
+        pair_recipe,
+    };
+    // the pixelization and footprint, from the first member
+    let (first, _) = loader.load(&members[0])?;
+    let pix = first.pixelization();
+    let footprint = ensemble_footprint(&args.mask, pix, loader.recipe.is_none().then_some(&first))?;
+    let em = EnsembleMeasurer::new(pix, footprint, settings, args.cl_bin_width)?;
+    let labels = if is_pair {
+        em.pair_labels()
+    } else {
+        em.labels()
+    };
+    let mut settings_json =
+        settings_record(args, &settings, pix, &em, &labels, recipe_file.as_ref())?;
+    if is_pair {
+        mark_pair(&mut settings_json, args, loader.recipe.is_some());
+    }
+    let description = EnsembleDescription {
+        program_version: env!("CARGO_PKG_VERSION").to_string(),
+        members: members.clone(),
+        labels: labels.iter().map(|l| l.name.clone()).collect(),
+        settings: settings_json,
+    };
+    let job = EnsembleJob::create_or_open(&args.output_dir, description)?;
+    let report = job.run(
+        shard,
+        |_, source| {
+            let (map, second) = loader.load(source)?;
+            for (which, m) in
+                std::iter::once(("", &map)).chain(second.iter().map(|b| ("map B of ", b)))
+            {
+                check_member_map(args, &first, source, which, m)?;
+            }
+            match &second {
+                None => em.measure(&map),
+                Some(b) => em.measure_pair(&map, b),
+            }
+        },
+        !args.quiet,
+    )?;
+    print_report(args, &report, shard, labels.len())
+}
+
+/// The second list pairs with its own kind of first list, checked before anything is read.
+fn check_second_lists(args: &EnsembleArgs) -> Result<()> {
     for (second, first, needs) in [
         (
             args.second_maps.is_some(),
@@ -339,7 +390,15 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
             )));
         }
     }
-    let (members, recipe, recipe_file) = match (&args.maps, &args.map_list, &args.simulate) {
+    Ok(())
+}
+
+/// The members of the ensemble (files, file pairs or simulations) and, for simulations, the
+/// recipe and its file.
+fn ensemble_members(
+    args: &EnsembleArgs,
+) -> Result<(Vec<MemberSource>, Option<SkyRecipe>, Option<RecipeFile>)> {
+    Ok(match (&args.maps, &args.map_list, &args.simulate) {
         (Some(g), None, None) => {
             let first = members_from_glob(g)?;
             let members = match &args.second_maps {
@@ -382,23 +441,27 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
                 "give exactly one of --maps, --map-list or --simulate".into(),
             ))
         }
-    };
-    let pair_recipe = recipe_file.as_ref().and_then(|f| f.pair.clone());
-    let is_pair =
-        args.second_maps.is_some() || args.second_map_list.is_some() || pair_recipe.is_some();
-    let sky_sht = match &recipe {
-        Some(r) => Some(r.transform()?),
-        None => None,
-    };
-    // a member's map A and, for pairs, map B
-    let load = |source: &MemberSource| -> Result<(SkyMap, Option<SkyMap>)> {
-        match (source, &recipe, &sky_sht) {
-            (MemberSource::File(p), _, _) => Ok((read_map(p, &args.column)?.0, None)),
+    })
+}
+
+/// Reads or simulates a member's map A and, for pairs, map B.
+struct MemberLoader<'a> {
+    column: &'a ColumnChoice,
+    second_column: &'a ColumnChoice,
+    recipe: Option<SkyRecipe>,
+    sky_sht: Option<HarmonicTransform>,
+    pair_recipe: Option<PairRecipe>,
+}
+
+impl MemberLoader<'_> {
+    fn load(&self, source: &MemberSource) -> Result<(SkyMap, Option<SkyMap>)> {
+        match (source, &self.recipe, &self.sky_sht) {
+            (MemberSource::File(p), _, _) => Ok((read_map(p, self.column)?.0, None)),
             (MemberSource::FilePair(a, b), _, _) => Ok((
-                read_map(a, &args.column)?.0,
-                Some(read_map(b, &args.second_column)?.0),
+                read_map(a, self.column)?.0,
+                Some(read_map(b, self.second_column)?.0),
             )),
-            (MemberSource::Simulation(i), Some(r), Some(sht)) => match &pair_recipe {
+            (MemberSource::Simulation(i), Some(r), Some(sht)) => match &self.pair_recipe {
                 None => Ok((r.realise(sht, *i)?, None)),
                 Some(p) => {
                     let noise = p.noise_sigma.or(r.noise_sigma);
@@ -408,22 +471,23 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
             },
             _ => Err(Error::Setting("a simulated member without a recipe".into())),
         }
-    };
-    // the pixelization and footprint, from the first member
-    let (first, _) = load(&members[0])?;
-    let pix = first.pixelization();
-    let footprint = ensemble_footprint(&args.mask, pix, recipe.is_none().then_some(&first))?;
-    let em = EnsembleMeasurer::new(pix, footprint, settings, args.cl_bin_width)?;
-    let labels = if is_pair {
-        em.pair_labels()
-    } else {
-        em.labels()
-    };
+    }
+}
+
+/// The settings that identify the job (a rerun with other settings is refused).
+fn settings_record(
+    args: &EnsembleArgs,
+    settings: &MeasurementSettings,
+    pix: Pixelization,
+    em: &EnsembleMeasurer,
+    labels: &[StatisticLabel],
+    recipe_file: Option<&RecipeFile>,
+) -> Result<serde_json::Value> {
     let mask_sum = match &args.mask.mask {
         Some(p) => Some(file_checksum(p)?),
         None => None,
     };
-    let mut settings_json = serde_json::json!({
+    Ok(serde_json::json!({
         "measurement": settings,
         "sampling": format!("{:?}", settings.sampling),
         "cells": em.measurer.plan().cell_layout().describe(),
@@ -438,56 +502,57 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
         "cl_bin_width": args.cl_bin_width,
         "recipe": recipe_file,
         "label_scales_arcmin": labels.iter().map(|l| l.scale_arcmin).collect::<Vec<_>>(),
-    });
-    if is_pair {
-        // (absent for single maps, so that their job identities stay as they were)
-        if let Some(o) = settings_json.as_object_mut() {
-            o.insert("pair".into(), serde_json::Value::Bool(true));
-            if recipe.is_none() {
-                o.insert(
-                    "second_column".into(),
-                    serde_json::Value::String(args.second_column.to_string()),
-                );
-            }
+    }))
+}
+
+/// Marks the job settings of a pair ensemble (absent for single maps, so that their job
+/// identities stay as they were), with the second column when the pairs are files.
+fn mark_pair(settings_json: &mut serde_json::Value, args: &EnsembleArgs, simulated: bool) {
+    if let Some(o) = settings_json.as_object_mut() {
+        o.insert("pair".into(), serde_json::Value::Bool(true));
+        if !simulated {
+            o.insert(
+                "second_column".into(),
+                serde_json::Value::String(args.second_column.to_string()),
+            );
         }
     }
-    let description = EnsembleDescription {
-        program_version: env!("CARGO_PKG_VERSION").to_string(),
-        members: members.clone(),
-        labels: labels.iter().map(|l| l.name.clone()).collect(),
-        settings: settings_json,
-    };
-    let job = EnsembleJob::create_or_open(&args.output_dir, description)?;
-    let report = job.run(
-        shard,
-        |_, source| {
-            let (map, second) = load(source)?;
-            for (which, m) in
-                std::iter::once(("", &map)).chain(second.iter().map(|b| ("map B of ", b)))
-            {
-                if m.nside() != pix.nside() {
-                    return Err(Error::Mismatch(format!(
-                        "{which}{source}: NSIDE {} differs from the ensemble's {}",
-                        m.nside(),
-                        pix.nside()
-                    )));
-                }
-                super::inputs::check_same_coordsys(
-                    ("the first map", first.coordsys.as_deref()),
-                    (&format!("{which}{source}"), m.coordsys.as_deref()),
-                    args.mask.allow_coordsys_mismatch,
-                )?;
-                if !matches!(source, MemberSource::Simulation(_)) {
-                    super::inputs::check_measurable(m, None, &format!("{which}{source}"))?;
-                }
-            }
-            match &second {
-                None => em.measure(&map),
-                Some(b) => em.measure_pair(&map, b),
-            }
-        },
-        !args.quiet,
+}
+
+/// Refuses a member map (`which` names map B of a pair) of another NSIDE or coordinate system
+/// than the first, or, when read from a file, one that cannot be measured.
+fn check_member_map(
+    args: &EnsembleArgs,
+    first: &SkyMap,
+    source: &MemberSource,
+    which: &str,
+    m: &SkyMap,
+) -> Result<()> {
+    if m.nside() != first.nside() {
+        return Err(Error::Mismatch(format!(
+            "{which}{source}: NSIDE {} differs from the ensemble's {}",
+            m.nside(),
+            first.nside()
+        )));
+    }
+    super::inputs::check_same_coordsys(
+        ("the first map", first.coordsys.as_deref()),
+        (&format!("{which}{source}"), m.coordsys.as_deref()),
+        args.mask.allow_coordsys_mismatch,
     )?;
+    if !matches!(source, MemberSource::Simulation(_)) {
+        super::inputs::check_measurable(m, None, &format!("{which}{source}"))?;
+    }
+    Ok(())
+}
+
+/// Prints what the shard did and, for a single shard, merges the table.
+fn print_report(
+    args: &EnsembleArgs,
+    report: &crate::ensemble::RunReport,
+    shard: Shard,
+    statistics: usize,
+) -> Result<()> {
     let stale = if report.remeasured_stale > 0 {
         format!(
             " ({} of them again because their map file changed)",
@@ -503,14 +568,14 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
         report.members_in_shard,
         report.already_done,
         report.measured,
-        labels.len()
+        statistics
     );
     if shard.count == 1 {
         let table = EnsembleJob::write_merged(&args.output_dir)?;
         println!(
             "table {} × {} written to {}",
             table.rows.len(),
-            labels.len(),
+            statistics,
             args.output_dir.join("statistics.npy").display()
         );
     } else {

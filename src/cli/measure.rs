@@ -11,7 +11,10 @@ use crate::io::fits_io::ColumnChoice;
 pub use crate::io::measurement_document::measurement_document;
 use crate::io::measurement_document::{pair_document, taper_description};
 use crate::measure::measurement::{MapStatistics, MeasurementSettings, SphereMeasurer};
+use crate::sky::footprint::Footprint;
+use crate::sky::skymap::SkyMap;
 use crate::tiles::sampling::SamplingMethod;
+use crate::tiles::tiling::TilingSummary;
 use std::path::{Path, PathBuf};
 
 /// How the sky is read at tile pixels.
@@ -198,57 +201,10 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
     )?;
     let map = load_map(&args.map, &args.column)?;
     let other = match &args.cross {
-        Some(path) => {
-            let other = load_map(path, &args.cross_column)?;
-            if other.valid_count() == 0 {
-                return Err(Error::Data(format!(
-                    "{}: every pixel is bad (UNSEEN or NaN): nothing to cross-correlate",
-                    path.display()
-                )));
-            }
-            if other.nside() != map.nside() {
-                return Err(Error::Mismatch(format!(
-                    "{} has NSIDE {} but {} has NSIDE {}: cross statistics need one pixelization",
-                    args.map.display(),
-                    map.nside(),
-                    path.display(),
-                    other.nside()
-                )));
-            }
-            super::inputs::check_same_coordsys(
-                (&args.map.display().to_string(), map.coordsys.as_deref()),
-                (&path.display().to_string(), other.coordsys.as_deref()),
-                args.mask.allow_coordsys_mismatch,
-            )?;
-            Some(other.to_ordering(map.ordering())?)
-        }
+        Some(path) => Some(load_second_map(args, &map, path)?),
         None => None,
     };
-    let footprint = match &other {
-        None => args.mask.footprint_for(&map, &args.map)?,
-        Some(other) => {
-            let first = untapered_footprint(
-                &map,
-                &args.map,
-                args.mask.mask.as_deref(),
-                &args.mask,
-                &args.mask.mask_column,
-            )?;
-            let other_path = args.cross.as_deref().unwrap_or(Path::new("second map"));
-            let second = untapered_footprint(
-                other,
-                other_path,
-                args.cross_mask.as_deref(),
-                &args.mask,
-                &args.cross_mask_column,
-            )
-            .map_err(|e| match e {
-                Error::Data(m) => Error::Data(format!("second map: {m}")),
-                e => e,
-            })?;
-            args.mask.taper_footprint(first.intersection(&second)?)?
-        }
-    };
+    let footprint = measurement_footprint(args, &map, other.as_ref())?;
     super::inputs::check_measurable(&map, Some(&footprint), &args.map.display().to_string())?;
     if let (Some(other), Some(path)) = (&other, &args.cross) {
         super::inputs::check_measurable(other, Some(&footprint), &path.display().to_string())?;
@@ -285,13 +241,83 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
         }
     };
     write_json(&args.output, &doc)?;
+    print_measurement(&stats, &summary, cross, &args.output);
+    Ok(())
+}
+
+/// The second map of `--cross`, in the first map's ordering, refused when it has no valid
+/// pixel or another NSIDE or coordinate system.
+fn load_second_map(args: &MeasureArgs, map: &SkyMap, path: &Path) -> Result<SkyMap> {
+    let other = load_map(path, &args.cross_column)?;
+    if other.valid_count() == 0 {
+        return Err(Error::Data(format!(
+            "{}: every pixel is bad (UNSEEN or NaN): nothing to cross-correlate",
+            path.display()
+        )));
+    }
+    if other.nside() != map.nside() {
+        return Err(Error::Mismatch(format!(
+            "{} has NSIDE {} but {} has NSIDE {}: cross statistics need one pixelization",
+            args.map.display(),
+            map.nside(),
+            path.display(),
+            other.nside()
+        )));
+    }
+    super::inputs::check_same_coordsys(
+        (&args.map.display().to_string(), map.coordsys.as_deref()),
+        (&path.display().to_string(), other.coordsys.as_deref()),
+        args.mask.allow_coordsys_mismatch,
+    )?;
+    other.to_ordering(map.ordering())
+}
+
+/// The footprint of the map, or with a second map the common footprint of both, tapered.
+fn measurement_footprint(
+    args: &MeasureArgs,
+    map: &SkyMap,
+    other: Option<&SkyMap>,
+) -> Result<Footprint> {
+    let Some(other) = other else {
+        return args.mask.footprint_for(map, &args.map);
+    };
+    let first = untapered_footprint(
+        map,
+        &args.map,
+        args.mask.mask.as_deref(),
+        &args.mask,
+        &args.mask.mask_column,
+    )?;
+    let other_path = args.cross.as_deref().unwrap_or(Path::new("second map"));
+    let second = untapered_footprint(
+        other,
+        other_path,
+        args.cross_mask.as_deref(),
+        &args.mask,
+        &args.cross_mask_column,
+    )
+    .map_err(|e| match e {
+        Error::Data(m) => Error::Data(format!("second map: {m}")),
+        e => e,
+    })?;
+    args.mask.taper_footprint(first.intersection(&second)?)
+}
+
+/// Prints the tiles, the file written, the cross-statistic count (count, trusted) and the
+/// summary coefficients.
+fn print_measurement(
+    stats: &MapStatistics,
+    summary: &TilingSummary,
+    cross: Option<(usize, usize)>,
+    output: &Path,
+) {
     println!(
         "{} tiles ({}, {}² pixels of {:.2}′): {}",
         stats.tiles,
         summary.cells,
         summary.tile_pixels,
         summary.pixel_size_arcmin,
-        written_line(&stats, &args.output)
+        written_line(stats, output)
     );
     if let Some((count, trusted)) = &cross {
         println!("  cross statistics with the second map: {count} ({trusted} trusted)");
@@ -304,7 +330,6 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
             if c.trusted { "" } else { "  (untrusted)" }
         );
     }
-    Ok(())
 }
 
 /// Measures a flat field (.npy) as one periodic or masked tile and writes the JSON document.

@@ -141,7 +141,6 @@ impl CommandFiles {
 /// The paths of a command line, as [`CommandFiles`]: the single list of what each command reads
 /// and writes.
 pub fn command_files(command: &super::Command) -> Result<CommandFiles> {
-    use super::plot::Picture;
     use super::Command;
     let mut f = CommandFiles::default();
     match command {
@@ -202,28 +201,7 @@ pub fn command_files(command: &super::Command) -> Result<CommandFiles> {
                 .output("--json", a.json.as_deref())
                 .output("--picture", a.picture.as_deref());
         }
-        Command::Plot(p) => match &p.picture {
-            Picture::Coefficients(a) => {
-                for i in &a.inputs {
-                    f.input("input", Some(i));
-                }
-                f.output("--output", Some(&a.output));
-            }
-            Picture::Ellipses(a) => {
-                f.input("input", Some(&a.input))
-                    .output("--output", Some(&a.output));
-            }
-            Picture::TileMap(a) => {
-                f.input("map", Some(&a.map))
-                    .input("--mask", a.mask.mask.as_deref())
-                    .input("--settings", a.options.settings.as_deref())
-                    .output("--output", Some(&a.output));
-            }
-            Picture::FlatBias(a) => {
-                f.input("input", Some(&a.input))
-                    .output("--output", Some(&a.output));
-            }
-        },
+        Command::Plot(p) => plot_files(&mut f, &p.picture),
         Command::Synthesize(a) => {
             let picture = a
                 .picture
@@ -236,4 +214,31 @@ pub fn command_files(command: &super::Command) -> Result<CommandFiles> {
         }
     }
     Ok(f)
+}
+
+/// The paths of `plot`'s pictures (see [`command_files`]).
+fn plot_files(f: &mut CommandFiles, picture: &super::plot::Picture) {
+    use super::plot::Picture;
+    match picture {
+        Picture::Coefficients(a) => {
+            for i in &a.inputs {
+                f.input("input", Some(i));
+            }
+            f.output("--output", Some(&a.output));
+        }
+        Picture::Ellipses(a) => {
+            f.input("input", Some(&a.input))
+                .output("--output", Some(&a.output));
+        }
+        Picture::TileMap(a) => {
+            f.input("map", Some(&a.map))
+                .input("--mask", a.mask.mask.as_deref())
+                .input("--settings", a.options.settings.as_deref())
+                .output("--output", Some(&a.output));
+        }
+        Picture::FlatBias(a) => {
+            f.input("input", Some(&a.input))
+                .output("--output", Some(&a.output));
+        }
+    }
 }

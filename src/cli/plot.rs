@@ -551,6 +551,78 @@ fn averages_panel(
     panel
 }
 
+/// The scale-pair triangles of intermittency (on one colour ramp over every file) and alignment
+/// (on a diverging scale symmetric about 0), one strip per file.
+fn pair_panels(files: &[MeasurementFile], names: &[String]) -> [Panel; 2] {
+    let many = files.len() > 1;
+    let all = |kind| -> Vec<f64> {
+        files
+            .iter()
+            .flat_map(|f| pair_items(f, kind))
+            .map(|p| p.value)
+            .filter(|v| v.is_finite())
+            .collect()
+    };
+    let inter = all(SummaryKind::Intermittency);
+    let (lo, hi) = inter
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
+            (a.min(v), b.max(v))
+        });
+    let strips = if many {
+        format!("; strips left to right: {}", names.join(", "))
+    } else {
+        String::new()
+    };
+    let intermittency = pair_panel(
+        &format!(
+            "intermittency ⟨S2⟩/⟨S1⟩ (dark {} … yellow {}){strips}",
+            format_value(lo),
+            format_value(hi)
+        ),
+        files,
+        SummaryKind::Intermittency,
+        CellColours::Ramp { lo, hi },
+    );
+    let half = all(SummaryKind::Alignment)
+        .iter()
+        .fold(0.0_f64, |a, v| a.max(v.abs()));
+    let alignment = pair_panel(
+        &format!(
+            "alignment (blue −{h}: across … red +{h}: along){strips}",
+            h = format_value(half)
+        ),
+        files,
+        SummaryKind::Alignment,
+        CellColours::Diverging { half_range: half },
+    );
+    [intermittency, alignment]
+}
+
+/// The tile power spectrum of every file that has one.
+fn tile_power_panel(files: &[MeasurementFile], names: &[String]) -> Panel {
+    let many = files.len() > 1;
+    let mut power = Panel::new(
+        "tile power spectrum",
+        Axis::log("wavenumber k (rad⁻¹)"),
+        Axis::log("P(k) (sr · field units²)"),
+    );
+    for (i, (f, name)) in files.iter().zip(names).enumerate() {
+        if let Some(p) = &f.tile_power_spectrum {
+            let points =
+                p.k.iter()
+                    .zip(&p.power)
+                    .filter_map(|(&k, &v)| Some(ChartPoint::new(k, v?)))
+                    .collect();
+            let mut s = Series::line(many.then(|| name.clone()), points, palette(i), 2);
+            s.marker_radius = 4;
+            s.marker = MarkerShape::nth(i);
+            power.series.push(s);
+        }
+    }
+    power
+}
+
 /// The figure of `plot coefficients` for measurement files with legend names `names`.
 pub fn coefficients_figure(
     files: &[MeasurementFile],
@@ -577,47 +649,7 @@ pub fn coefficients_figure(
         names,
         SummaryKind::ModulusAnisotropy,
     ));
-    let all = |kind| -> Vec<f64> {
-        files
-            .iter()
-            .flat_map(|f| pair_items(f, kind))
-            .map(|p| p.value)
-            .filter(|v| v.is_finite())
-            .collect()
-    };
-    let inter = all(SummaryKind::Intermittency);
-    let (lo, hi) = inter
-        .iter()
-        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
-            (a.min(v), b.max(v))
-        });
-    let strips = if many {
-        format!("; strips left to right: {}", names.join(", "))
-    } else {
-        String::new()
-    };
-    panels.push(pair_panel(
-        &format!(
-            "intermittency ⟨S2⟩/⟨S1⟩ (dark {} … yellow {}){strips}",
-            format_value(lo),
-            format_value(hi)
-        ),
-        files,
-        SummaryKind::Intermittency,
-        CellColours::Ramp { lo, hi },
-    ));
-    let half = all(SummaryKind::Alignment)
-        .iter()
-        .fold(0.0_f64, |a, v| a.max(v.abs()));
-    panels.push(pair_panel(
-        &format!(
-            "alignment (blue −{h}: across … red +{h}: along){strips}",
-            h = format_value(half)
-        ),
-        files,
-        SummaryKind::Alignment,
-        CellColours::Diverging { half_range: half },
-    ));
+    panels.extend(pair_panels(files, names));
     panels.push(averages_panel(
         "band powers: ⟨P(j,l)⟩ = ⟨|I∗ψ(j,l)|²⟩ over l",
         "P (field units²)",
@@ -625,25 +657,7 @@ pub fn coefficients_figure(
         names,
         band_power_by_scale,
     ));
-    let mut power = Panel::new(
-        "tile power spectrum",
-        Axis::log("wavenumber k (rad⁻¹)"),
-        Axis::log("P(k) (sr · field units²)"),
-    );
-    for (i, (f, name)) in files.iter().zip(names).enumerate() {
-        if let Some(p) = &f.tile_power_spectrum {
-            let points =
-                p.k.iter()
-                    .zip(&p.power)
-                    .filter_map(|(&k, &v)| Some(ChartPoint::new(k, v?)))
-                    .collect();
-            let mut s = Series::line(many.then(|| name.clone()), points, palette(i), 2);
-            s.marker_radius = 4;
-            s.marker = MarkerShape::nth(i);
-            power.series.push(s);
-        }
-    }
-    panels.push(power);
+    panels.push(tile_power_panel(files, names));
     let width = width.clamp(400, 8000);
     Ok(Figure {
         title: format!(

@@ -24,7 +24,9 @@ use crate::io::fits_io::{read_footprint, write_map, ColumnChoice, WriteOptions};
 use crate::measure::measurement::{MeasurementSettings, SphereMeasurer};
 use crate::sky::footprint::Footprint;
 use crate::sky::skymap::SkyMap;
-use crate::synthesis::sphere::{gaussian_sky, peak_counts_in, values_in, SphereSynthesis};
+use crate::synthesis::sphere::{
+    gaussian_sky, peak_counts_in, values_in, SphereSynthesis, SphereTarget,
+};
 use crate::synthesis::{
     coefficients_from_json, gaussian_counterpart, one_point_moments, FlatSynthesis, StartField,
     StatisticChoice, SynthesisSettings,
@@ -209,49 +211,35 @@ fn write_panel(path: &Path, size: usize, panels: &[(&str, &[f64])]) -> Result<()
     let pick = |q: f64| sorted[((sorted.len() - 1) as f64 * q).round() as usize];
     let (lo, hi) = (pick(0.005), pick(0.995));
     let span = if hi > lo { hi - lo } else { 1.0 };
-    write_atomically(path, |tmp| {
-        let mut png = tmp.as_os_str().to_owned();
-        png.push(".png");
-        let png = PathBuf::from(png);
-        let fail = |e: &dyn std::fmt::Display| Error::io(path, format!("cannot draw: {e}"));
-        let draw = || -> Result<()> {
-            let root = BitMapBackend::new(&png, (width, height)).into_drawing_area();
-            root.fill(&WHITE).map_err(|e| fail(&e))?;
-            for (p, (title, values)) in panels.iter().enumerate() {
-                let x0 = margin + p as u32 * (side + margin);
-                root.draw(&Text::new(
-                    title.to_string(),
-                    (x0 as i32, 6),
-                    (crate::figures::plotting::FONT_FAMILY, 18).into_font(),
-                ))
-                .map_err(|e| fail(&e))?;
-                for iy in 0..size {
-                    for ix in 0..size {
-                        let [r, g, b] = crate::figures::plotting::colour_ramp(
-                            (values[iy * size + ix] - lo) / span,
-                        );
-                        let px = x0 + ix as u32 * zoom;
-                        // Row 0 at the top.
-                        let py = title_h + iy as u32 * zoom;
-                        root.draw(&Rectangle::new(
-                            [
-                                (px as i32, py as i32),
-                                ((px + zoom) as i32, (py + zoom) as i32),
-                            ],
-                            RGBColor(r, g, b).filled(),
-                        ))
-                        .map_err(|e| fail(&e))?;
-                    }
+    let fail = |e: &dyn std::fmt::Display| Error::io(path, format!("cannot draw: {e}"));
+    crate::figures::plotting::write_png_atomically(path, (width, height), |root, _| {
+        for (p, (title, values)) in panels.iter().enumerate() {
+            let x0 = margin + p as u32 * (side + margin);
+            root.draw(&Text::new(
+                title.to_string(),
+                (x0 as i32, 6),
+                (crate::figures::plotting::FONT_FAMILY, 18).into_font(),
+            ))
+            .map_err(|e| fail(&e))?;
+            for iy in 0..size {
+                for ix in 0..size {
+                    let [r, g, b] =
+                        crate::figures::plotting::colour_ramp((values[iy * size + ix] - lo) / span);
+                    let px = x0 + ix as u32 * zoom;
+                    // Row 0 at the top.
+                    let py = title_h + iy as u32 * zoom;
+                    root.draw(&Rectangle::new(
+                        [
+                            (px as i32, py as i32),
+                            ((px + zoom) as i32, (py + zoom) as i32),
+                        ],
+                        RGBColor(r, g, b).filled(),
+                    ))
+                    .map_err(|e| fail(&e))?;
                 }
             }
-            root.present().map_err(|e| fail(&e))
-        };
-        let result =
-            draw().and_then(|()| std::fs::rename(&png, tmp).map_err(|e| Error::io(path, e)));
-        if result.is_err() {
-            let _ = std::fs::remove_file(&png);
         }
-        result
+        Ok(())
     })
 }
 
@@ -372,9 +360,11 @@ fn tile_of_sphere_map(args: &SynthesizeArgs, index: usize) -> Result<(usize, Vec
     Ok((grids.n, grids.field, plan.pixel_size()))
 }
 
-fn run_flat(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
+/// The target of a flat synthesis: a tile of a HEALPix map (with its pixel size, radians), a
+/// .npy field or a coefficient file.
+fn flat_target(args: &SynthesizeArgs) -> Result<(Target, Option<f64>)> {
     let fits_target = matches!(extension_of(&args.target).as_str(), "fits" | "fit");
-    let (target_input, tile_pixel) = match (fits_target, args.tile) {
+    Ok(match (fits_target, args.tile) {
         (true, Some(index)) => {
             let (size, values, pixel) = tile_of_sphere_map(args, index)?;
             (Target::Map { size, values }, Some(pixel))
@@ -390,8 +380,12 @@ fn run_flat(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
             ))
         }
         (false, None) => (read_target(&args.target)?, None),
-    };
-    let size = match (&target_input, args.size) {
+    })
+}
+
+/// The field side: the target map's, or `--size` for a coefficient file.
+fn flat_size(args: &SynthesizeArgs, target_input: &Target) -> Result<usize> {
+    Ok(match (target_input, args.size) {
         (Target::Map { size, .. }, None) => *size,
         (Target::Map { size, .. }, Some(s)) if s == *size => s,
         (Target::Map { size, .. }, Some(s)) => {
@@ -405,7 +399,12 @@ fn run_flat(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
                 "a coefficient-file target needs --size (field side in pixels)".into(),
             ))
         }
-    };
+    })
+}
+
+fn run_flat(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
+    let (target_input, tile_pixel) = flat_target(args)?;
+    let size = flat_size(args, &target_input)?;
     if size < 8 || !size.is_power_of_two() {
         return Err(Error::Setting(format!(
             "--size must be a power of two of at least 8 pixels, got {size}"
@@ -462,14 +461,12 @@ fn run_flat(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
             ],
         )?,
     }
-    println!(
-        "loss {:.4e} -> {:.4e} after {} iterations ({})",
-        outcome.initial_loss, outcome.final_loss, outcome.iterations, outcome.termination
-    );
-    println!(
-        "max normalised deviation |s - t|/sigma over {} statistics: {:.4e}",
+    print_convergence(
+        (outcome.initial_loss, outcome.final_loss),
+        outcome.iterations,
+        &outcome.termination,
         target.values.len(),
-        outcome.max_relative_deviation
+        outcome.max_relative_deviation,
     );
     println!("synthesised: skewness {skew:.4}, excess kurtosis {kurt:.4}");
     println!("field: {}", args.output.display());
@@ -572,46 +569,8 @@ fn run_sphere(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
             "--size is for flat fields; a sphere synthesis takes its size from the map".into(),
         ));
     }
-    let target_ext = extension_of(&args.target);
     let measurement = measurement_settings(args)?;
-    let (target_map, footprint) = match target_ext.as_str() {
-        "fits" | "fit" => {
-            let map = load_map(&args.target, &args.column)?;
-            if map.valid_count() == 0 {
-                return Err(Error::io(
-                    &args.target,
-                    "the target map has no valid pixel (all NaN or UNSEEN)",
-                ));
-            }
-            let raw = match checked_mask(args, &map)? {
-                Some(raw) => raw.restricted_to(&map)?,
-                None => Footprint::of_valid_pixels(&map).restricted_to(&map)?,
-            };
-            let footprint = args.mask.taper_footprint(raw)?;
-            crate::cli::inputs::check_measurable(
-                &map,
-                Some(&footprint),
-                &args.target.display().to_string(),
-            )?;
-            (Some(map), footprint)
-        }
-        "json" => {
-            let path = args.mask.mask.as_ref().ok_or_else(|| {
-                Error::Setting(
-                    "a coefficient-file target on the sphere needs --mask (it gives NSIDE and the footprint)".into(),
-                )
-            })?;
-            let (raw, header) = read_footprint(path, &args.mask.mask_column)?;
-            for w in &header.warnings {
-                eprintln!("planisphere: warning: {}: {w}", path.display());
-            }
-            (None, args.mask.taper_footprint(raw)?)
-        }
-        _ => return Err(Error::io(
-            &args.target,
-            "a sphere synthesis needs a HEALPix .fits map or a .json coefficient file as target",
-        )),
-    };
+    let (target_map, footprint) = sphere_target_and_footprint(args)?;
     let start = match (args.start, &target_map) {
         (Some(StartOption::White), _) | (None, None) => StartField::White,
         (Some(StartOption::Gaussian), _) | (None, Some(_)) => StartField::Gaussian,
@@ -642,81 +601,153 @@ fn run_sphere(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
     let fp = synthesis.footprint();
     let result = on_footprint(&outcome.map, fp)?;
     write_map(&args.output, "SIGNAL", &result, &WriteOptions::default())?;
-    let lon = footprint_longitude(fp);
-    // one panel of the row: the same width and centre for every map
-    fn panel<'m>(title: &str, lon: f64, map: &'m SkyMap, lo: f64, hi: f64) -> SkyPicture<'m> {
-        SkyPicture::new(640, title)
-            .central_longitude(lon)
-            .fill_map(map, lo, hi)
-    }
     match &target_map {
-        Some(map) => {
-            let map = map.to_ordering(result.ordering())?;
-            let shown_target = on_footprint(&map, fp)?;
-            let (lo, hi) = colour_range(&shown_target);
-            let spectrum = target
-                .spectrum
-                .clone()
-                .ok_or_else(|| Error::Data("the target map's spectrum is missing".into()))?;
-            let gaussian = gaussian_sky(map.nside(), spectrum, args.seed.wrapping_add(1))?
-                .to_ordering(result.ordering())?;
-            let gaussian: Vec<f64> = gaussian.values().iter().map(|v| v + target.mean).collect();
-            let shown_gaussian = on_footprint(&SkyMap::new(result.pixelization(), gaussian)?, fp)?;
-            let pictures = [
-                panel("target", lon, &shown_target, lo, hi),
-                panel("Gaussian, same spectrum", lon, &shown_gaussian, lo, hi),
-                panel("synthesised", lon, &result, lo, hi),
-            ];
-            let shown = |title, map, colour| -> Result<picture::ShownMap<'_>> {
-                Ok(picture::ShownMap {
-                    title,
-                    map,
-                    values: values_in(map, fp)?,
-                    peaks: peak_counts_in(map, fp, &PEAK_THRESHOLDS)?,
-                    colour,
-                })
-            };
-            let maps = [
-                shown("target", &shown_target, [0, 0, 0])?,
-                shown("Gaussian, same spectrum", &shown_gaussian, [150, 150, 150])?,
-                shown("synthesised", &result, [200, 40, 40])?,
-            ];
-            picture::write_sphere_picture(
-                picture,
-                &pictures,
-                &maps,
-                picture::zoom_centre(fp),
-                (lo, hi),
-                &PEAK_THRESHOLDS,
-            )?;
-            for m in &maps {
-                let (_, _, skew, kurt) = one_point_moments(&m.values);
-                println!(
-                    "{}: skewness {skew:.4}, excess kurtosis {kurt:.4}, peaks above mean + {PEAK_THRESHOLDS:?} rms: {:?}",
-                    m.title, m.peaks
-                );
-            }
-        }
+        Some(map) => draw_beside_target(args, picture, map, &target, &result, fp)?,
         None => {
+            let lon = footprint_longitude(fp);
             let (lo, hi) = colour_range(&result);
             let shown_start = on_footprint(&outcome.start, fp)?;
             let pictures = [
-                panel("synthesised", lon, &result, lo, hi),
-                panel("start (white noise)", lon, &shown_start, lo, hi),
+                sphere_panel("synthesised", lon, &result, lo, hi),
+                sphere_panel("start (white noise)", lon, &shown_start, lo, hi),
             ];
             write_pictures_in_a_row(picture, &pictures)?;
         }
     }
-    println!(
-        "loss {:.4e} -> {:.4e} after {} iterations ({})",
-        outcome.initial_loss, outcome.final_loss, outcome.iterations, outcome.termination
-    );
-    println!(
-        "max normalised deviation |s - t|/sigma over {} statistics: {:.4e}",
+    print_convergence(
+        (outcome.initial_loss, outcome.final_loss),
+        outcome.iterations,
+        &outcome.termination,
         target.values.len(),
-        outcome.max_relative_deviation
+        outcome.max_relative_deviation,
     );
     println!("map: {}", args.output.display());
     println!("picture: {}", picture.display());
     Ok(())
+}
+
+/// The target map of a sphere synthesis (none for a coefficient file) and the tapered
+/// footprint: the mask's, or the target map's valid pixels.
+fn sphere_target_and_footprint(args: &SynthesizeArgs) -> Result<(Option<SkyMap>, Footprint)> {
+    match extension_of(&args.target).as_str() {
+        "fits" | "fit" => {
+            let map = load_map(&args.target, &args.column)?;
+            if map.valid_count() == 0 {
+                return Err(Error::io(
+                    &args.target,
+                    "the target map has no valid pixel (all NaN or UNSEEN)",
+                ));
+            }
+            let raw = match checked_mask(args, &map)? {
+                Some(raw) => raw.restricted_to(&map)?,
+                None => Footprint::of_valid_pixels(&map).restricted_to(&map)?,
+            };
+            let footprint = args.mask.taper_footprint(raw)?;
+            crate::cli::inputs::check_measurable(
+                &map,
+                Some(&footprint),
+                &args.target.display().to_string(),
+            )?;
+            Ok((Some(map), footprint))
+        }
+        "json" => {
+            let path = args.mask.mask.as_ref().ok_or_else(|| {
+                Error::Setting(
+                    "a coefficient-file target on the sphere needs --mask (it gives NSIDE and the footprint)".into(),
+                )
+            })?;
+            let (raw, header) = read_footprint(path, &args.mask.mask_column)?;
+            for w in &header.warnings {
+                eprintln!("planisphere: warning: {}: {w}", path.display());
+            }
+            Ok((None, args.mask.taper_footprint(raw)?))
+        }
+        _ => Err(Error::io(
+            &args.target,
+            "a sphere synthesis needs a HEALPix .fits map or a .json coefficient file as target",
+        )),
+    }
+}
+
+/// One panel of the row of sky pictures: the same width and centre for every map.
+fn sphere_panel<'m>(title: &str, lon: f64, map: &'m SkyMap, lo: f64, hi: f64) -> SkyPicture<'m> {
+    SkyPicture::new(640, title)
+        .central_longitude(lon)
+        .fill_map(map, lo, hi)
+}
+
+/// Draws the target, a Gaussian sky of the target's spectrum and the synthesised map side by
+/// side with their one-point distributions and peak counts, and prints their moments.
+fn draw_beside_target(
+    args: &SynthesizeArgs,
+    picture: &Path,
+    map: &SkyMap,
+    target: &SphereTarget,
+    result: &SkyMap,
+    fp: &Footprint,
+) -> Result<()> {
+    let lon = footprint_longitude(fp);
+    let map = map.to_ordering(result.ordering())?;
+    let shown_target = on_footprint(&map, fp)?;
+    let (lo, hi) = colour_range(&shown_target);
+    let spectrum = target
+        .spectrum
+        .clone()
+        .ok_or_else(|| Error::Data("the target map's spectrum is missing".into()))?;
+    let gaussian = gaussian_sky(map.nside(), spectrum, args.seed.wrapping_add(1))?
+        .to_ordering(result.ordering())?;
+    let gaussian: Vec<f64> = gaussian.values().iter().map(|v| v + target.mean).collect();
+    let shown_gaussian = on_footprint(&SkyMap::new(result.pixelization(), gaussian)?, fp)?;
+    let pictures = [
+        sphere_panel("target", lon, &shown_target, lo, hi),
+        sphere_panel("Gaussian, same spectrum", lon, &shown_gaussian, lo, hi),
+        sphere_panel("synthesised", lon, result, lo, hi),
+    ];
+    let shown = |title, map, colour| -> Result<picture::ShownMap<'_>> {
+        Ok(picture::ShownMap {
+            title,
+            map,
+            values: values_in(map, fp)?,
+            peaks: peak_counts_in(map, fp, &PEAK_THRESHOLDS)?,
+            colour,
+        })
+    };
+    let maps = [
+        shown("target", &shown_target, [0, 0, 0])?,
+        shown("Gaussian, same spectrum", &shown_gaussian, [150, 150, 150])?,
+        shown("synthesised", result, [200, 40, 40])?,
+    ];
+    picture::write_sphere_picture(
+        picture,
+        &pictures,
+        &maps,
+        picture::zoom_centre(fp),
+        (lo, hi),
+        &PEAK_THRESHOLDS,
+    )?;
+    for m in &maps {
+        let (_, _, skew, kurt) = one_point_moments(&m.values);
+        println!(
+            "{}: skewness {skew:.4}, excess kurtosis {kurt:.4}, peaks above mean + {PEAK_THRESHOLDS:?} rms: {:?}",
+            m.title, m.peaks
+        );
+    }
+    Ok(())
+}
+
+/// Prints the loss at the start and the end, the iterations and why they stopped, and the
+/// largest normalised deviation over the matched statistics.
+fn print_convergence(
+    (initial_loss, final_loss): (f64, f64),
+    iterations: u64,
+    termination: &str,
+    statistics: usize,
+    max_relative_deviation: f64,
+) {
+    println!(
+        "loss {initial_loss:.4e} -> {final_loss:.4e} after {iterations} iterations ({termination})"
+    );
+    println!(
+        "max normalised deviation |s - t|/sigma over {statistics} statistics: {max_relative_deviation:.4e}"
+    );
 }

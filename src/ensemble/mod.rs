@@ -440,6 +440,22 @@ enum RowState {
     Stale(String),
 }
 
+/// A progress bar over `count` maps, hidden unless `progress`.
+fn progress_bar(count: usize, progress: bool) -> indicatif::ProgressBar {
+    if progress {
+        let b = indicatif::ProgressBar::new(count as u64);
+        if let Ok(style) = indicatif::ProgressStyle::with_template(
+            "{prefix} [{bar:30}] {pos}/{len} maps  {elapsed_precise} elapsed, about {eta} left",
+        ) {
+            b.set_style(style.progress_chars("=> "));
+        }
+        b.set_prefix("measuring");
+        b
+    } else {
+        indicatif::ProgressBar::hidden()
+    }
+}
+
 /// What one run did.
 #[derive(Debug, Clone, serde::Serialize)]
 pub struct RunReport {
@@ -670,55 +686,12 @@ impl EnsembleJob {
                 }
             }
         }
-        let bar = if progress {
-            let b = indicatif::ProgressBar::new(todo.len() as u64);
-            if let Ok(style) = indicatif::ProgressStyle::with_template(
-                "{prefix} [{bar:30}] {pos}/{len} maps  {elapsed_precise} elapsed, about {eta} left",
-            ) {
-                b.set_style(style.progress_chars("=> "));
-            }
-            b.set_prefix("measuring");
-            b
-        } else {
-            indicatif::ProgressBar::hidden()
-        };
+        let bar = progress_bar(todo.len(), progress);
         let done = AtomicUsize::new(0);
-        let p = self.description.labels.len();
         let failures: Vec<Option<String>> = todo
             .par_iter()
             .map(|&i| {
-                let source = &self.description.members[i];
-                let result = (|| -> Result<()> {
-                    let sums = source
-                        .files()
-                        .into_iter()
-                        .map(file_checksum)
-                        .collect::<Result<Vec<_>>>()?;
-                    let checksum = sums.first().cloned();
-                    let second_checksum = sums.get(1).cloned();
-                    let values = measure(i, source)?;
-                    if values.len() != p {
-                        return Err(Error::Mismatch(format!(
-                            "{source}: measured {} values where the ensemble has {p} columns",
-                            values.len()
-                        )));
-                    }
-                    if let Some(k) = values.iter().position(|v| !v.is_finite()) {
-                        return Err(Error::Data(format!(
-                            "{source}: statistic '{}' is not finite",
-                            self.description.labels[k]
-                        )));
-                    }
-                    let row = Row {
-                        member: i,
-                        source: source.clone(),
-                        checksum,
-                        second_checksum,
-                        values,
-                        job: Some(stamp.clone()),
-                    };
-                    write_json(&row_path(&self.dir, i), &row)
-                })();
+                let result = self.measure_row(i, &stamp, &measure);
                 done.fetch_add(1, AtomicOrdering::Relaxed);
                 bar.inc(1);
                 result.err().map(|e| e.to_string())
@@ -742,6 +715,45 @@ impl EnsembleJob {
             )));
         }
         Ok(report)
+    }
+
+    /// Measures member `i` with `measure`, checks its values (one per column, finite) and
+    /// writes its row, stamped with the job and the checksums of its map files.
+    fn measure_row<F>(&self, i: usize, stamp: &JobStamp, measure: &F) -> Result<()>
+    where
+        F: Fn(usize, &MemberSource) -> Result<Vec<f64>> + Sync,
+    {
+        let source = &self.description.members[i];
+        let p = self.description.labels.len();
+        let sums = source
+            .files()
+            .into_iter()
+            .map(file_checksum)
+            .collect::<Result<Vec<_>>>()?;
+        let checksum = sums.first().cloned();
+        let second_checksum = sums.get(1).cloned();
+        let values = measure(i, source)?;
+        if values.len() != p {
+            return Err(Error::Mismatch(format!(
+                "{source}: measured {} values where the ensemble has {p} columns",
+                values.len()
+            )));
+        }
+        if let Some(k) = values.iter().position(|v| !v.is_finite()) {
+            return Err(Error::Data(format!(
+                "{source}: statistic '{}' is not finite",
+                self.description.labels[k]
+            )));
+        }
+        let row = Row {
+            member: i,
+            source: source.clone(),
+            checksum,
+            second_checksum,
+            values,
+            job: Some(stamp.clone()),
+        };
+        write_json(&row_path(&self.dir, i), &row)
     }
 
     /// Reads all rows of an ensemble directory in member order; an error names the missing ones,

@@ -541,110 +541,12 @@ fn draw_panel<DB: DrawingBackend>(
         .draw()
         .map_err(drawing_error)?;
     for c in &panel.cells {
-        let corners = [(c.x.0, c.y.0), (c.x.1, c.y.1)];
-        chart
-            .draw_series(std::iter::once(Rectangle::new(
-                corners,
-                style(c.fill, 1.0).filled(),
-            )))
-            .map_err(drawing_error)?;
-        chart
-            .draw_series(std::iter::once(Rectangle::new(
-                corners,
-                WHITE.stroke_width(2),
-            )))
-            .map_err(drawing_error)?;
-        if c.marked {
-            for (a, b) in [
-                ((c.x.0, c.y.0), (c.x.1, c.y.1)),
-                ((c.x.0, c.y.1), (c.x.1, c.y.0)),
-            ] {
-                chart
-                    .draw_series(std::iter::once(PathElement::new(
-                        vec![a, b],
-                        RGBColor(160, 160, 160).stroke_width(1),
-                    )))
-                    .map_err(drawing_error)?;
-            }
-        }
-        if let Some(text) = &c.text {
-            // dark text on light fills, white on dark ones (Rec. 601 luma)
-            let luma =
-                0.299 * c.fill[0] as f64 + 0.587 * c.fill[1] as f64 + 0.114 * c.fill[2] as f64;
-            let ink = if luma > 140.0 { BLACK } else { WHITE };
-            let font = (FONT_FAMILY, label_px)
-                .into_font()
-                .color(&ink)
-                .pos(Pos::new(HPos::Center, VPos::Center));
-            chart
-                .draw_series(std::iter::once(Text::new(
-                    text.clone(),
-                    ((c.x.0 + c.x.1) / 2.0, (c.y.0 + c.y.1) / 2.0),
-                    font,
-                )))
-                .map_err(drawing_error)?;
-        }
+        draw_cell(&mut chart, c, label_px)?;
     }
     let mut any_label = false;
     for s in &panel.series {
-        let colour = style(s.colour, s.opacity);
-        let width = s.line_width;
-        // Line pieces between gaps.
-        if width > 0 {
-            let mut pieces: Vec<Vec<(f64, f64)>> = vec![Vec::new()];
-            for p in &s.points {
-                if panel.drawable(p) {
-                    if let Some(last) = pieces.last_mut() {
-                        last.push((p.x, p.y));
-                    }
-                } else if pieces.last().is_some_and(|l| !l.is_empty()) {
-                    pieces.push(Vec::new());
-                }
-            }
-            if s.closed && pieces.len() == 1 {
-                if let Some(first) = pieces[0].first().copied() {
-                    pieces[0].push(first);
-                }
-            }
-            for piece in pieces.into_iter().filter(|p| p.len() > 1) {
-                chart
-                    .draw_series(std::iter::once(PathElement::new(
-                        piece,
-                        colour.stroke_width(width),
-                    )))
-                    .map_err(drawing_error)?;
-            }
-        }
-        if s.marker_radius > 0 {
-            for p in s.points.iter().filter(|p| panel.drawable(p)) {
-                draw_marker(
-                    &mut chart,
-                    (p.x, p.y),
-                    s.marker,
-                    s.marker_radius,
-                    colour,
-                    p.solid,
-                )?;
-            }
-        }
-        if let Some(label) = &s.label {
-            any_label = true;
-            let (marker, radius) = (s.marker, s.marker_radius);
-            chart
-                .draw_series(std::iter::empty::<PathElement<(f64, f64)>>())
-                .map_err(drawing_error)?
-                .label(label.as_str())
-                .legend(move |(x, y)| {
-                    let line = if width > 0 {
-                        vec![(-10, 0), (10, 0)]
-                    } else {
-                        Vec::new()
-                    };
-                    EmptyElement::at((x, y))
-                        + PathElement::new(line, colour.stroke_width(width.max(1)))
-                        + Polygon::new(marker_outline(marker, radius), colour.filled())
-                });
-        }
+        draw_series(&mut chart, panel, s)?;
+        any_label |= s.label.is_some();
     }
     for a in &panel.annotations {
         if !panel.drawable(&ChartPoint::new(a.x, a.y)) {
@@ -682,6 +584,126 @@ fn draw_panel<DB: DrawingBackend>(
             .map_err(drawing_error)?;
     }
     Ok(())
+}
+
+/// One filled cell of a grid panel: its fill, a white outline, a grey cross when marked, and
+/// its text in ink that stands out from the fill.
+fn draw_cell<DB: DrawingBackend>(chart: &mut Chart<'_, DB>, c: &Cell, label_px: f64) -> Result<()> {
+    let corners = [(c.x.0, c.y.0), (c.x.1, c.y.1)];
+    chart
+        .draw_series(std::iter::once(Rectangle::new(
+            corners,
+            style(c.fill, 1.0).filled(),
+        )))
+        .map_err(drawing_error)?;
+    chart
+        .draw_series(std::iter::once(Rectangle::new(
+            corners,
+            WHITE.stroke_width(2),
+        )))
+        .map_err(drawing_error)?;
+    if c.marked {
+        for (a, b) in [
+            ((c.x.0, c.y.0), (c.x.1, c.y.1)),
+            ((c.x.0, c.y.1), (c.x.1, c.y.0)),
+        ] {
+            chart
+                .draw_series(std::iter::once(PathElement::new(
+                    vec![a, b],
+                    RGBColor(160, 160, 160).stroke_width(1),
+                )))
+                .map_err(drawing_error)?;
+        }
+    }
+    if let Some(text) = &c.text {
+        // dark text on light fills, white on dark ones (Rec. 601 luma)
+        let luma = 0.299 * c.fill[0] as f64 + 0.587 * c.fill[1] as f64 + 0.114 * c.fill[2] as f64;
+        let ink = if luma > 140.0 { BLACK } else { WHITE };
+        let font = (FONT_FAMILY, label_px)
+            .into_font()
+            .color(&ink)
+            .pos(Pos::new(HPos::Center, VPos::Center));
+        chart
+            .draw_series(std::iter::once(Text::new(
+                text.clone(),
+                ((c.x.0 + c.x.1) / 2.0, (c.y.0 + c.y.1) / 2.0),
+                font,
+            )))
+            .map_err(drawing_error)?;
+    }
+    Ok(())
+}
+
+/// One series: its line, cut where a point cannot be drawn (closed when it has no gap), its
+/// markers, and its legend entry.
+fn draw_series<'a, DB: DrawingBackend + 'a>(
+    chart: &mut Chart<'a, DB>,
+    panel: &Panel,
+    s: &Series,
+) -> Result<()> {
+    let colour = style(s.colour, s.opacity);
+    let width = s.line_width;
+    if width > 0 {
+        for piece in line_pieces(panel, s).into_iter().filter(|p| p.len() > 1) {
+            chart
+                .draw_series(std::iter::once(PathElement::new(
+                    piece,
+                    colour.stroke_width(width),
+                )))
+                .map_err(drawing_error)?;
+        }
+    }
+    if s.marker_radius > 0 {
+        for p in s.points.iter().filter(|p| panel.drawable(p)) {
+            draw_marker(
+                chart,
+                (p.x, p.y),
+                s.marker,
+                s.marker_radius,
+                colour,
+                p.solid,
+            )?;
+        }
+    }
+    if let Some(label) = &s.label {
+        let (marker, radius) = (s.marker, s.marker_radius);
+        chart
+            .draw_series(std::iter::empty::<PathElement<(f64, f64)>>())
+            .map_err(drawing_error)?
+            .label(label.as_str())
+            .legend(move |(x, y)| {
+                let line = if width > 0 {
+                    vec![(-10, 0), (10, 0)]
+                } else {
+                    Vec::new()
+                };
+                EmptyElement::at((x, y))
+                    + PathElement::new(line, colour.stroke_width(width.max(1)))
+                    + Polygon::new(marker_outline(marker, radius), colour.filled())
+            });
+    }
+    Ok(())
+}
+
+/// The line pieces of a series between the points that cannot be drawn; a closed series
+/// without a gap returns to its first point.
+fn line_pieces(panel: &Panel, s: &Series) -> Vec<Vec<(f64, f64)>> {
+    let mut pieces: Vec<Vec<(f64, f64)>> = vec![Vec::new()];
+    for p in &s.points {
+        if panel.drawable(p) {
+            if let Some(last) = pieces.last_mut() {
+                last.push((p.x, p.y));
+            }
+        } else if pieces.last().is_some_and(|l| !l.is_empty()) {
+            pieces.push(Vec::new());
+        }
+    }
+    if s.closed && pieces.len() == 1 {
+        if let Some(first) = pieces[0].first().copied() {
+            pieces[0].push(first);
+        }
+    }
+    pieces
 }
 
 type Chart<'a, DB> = ChartContext<'a, DB, Cartesian2d<ChartAxis, ChartAxis>>;

@@ -251,10 +251,62 @@ impl<'a> SkyPicture<'a> {
         let w = self.width;
         root.fill(&WHITE).map_err(|e| fail(&e))?;
         // Raster layer, computed row by row in parallel, drawn sequentially.
-        use rayon::prelude::*;
+        for (j, row) in self.raster_rows().iter().enumerate() {
+            for (i, c) in row.iter().enumerate() {
+                if let Some([r, g, b]) = c {
+                    root.draw_pixel(
+                        (i as i32, (title_h + j as u32) as i32),
+                        &RGBColor(*r, *g, *b),
+                    )
+                    .map_err(|e| fail(&e))?;
+                }
+            }
+        }
+        // Outline of the sky ellipse.
         let cx = w as f64 / 2.0;
         let cy = title_h as f64 + map_h as f64 / 2.0;
-        let rows: Vec<Vec<Option<Rgb>>> = (0..map_h)
+        let outline: Vec<(i32, i32)> = (0..=360)
+            .map(|k| {
+                let t = k as f64 / 360.0 * 2.0 * PI;
+                (
+                    (cx + 2.0 * SQRT_2 * t.cos() * scale).round() as i32,
+                    (cy + SQRT_2 * t.sin() * scale).round() as i32,
+                )
+            })
+            .collect();
+        root.draw(&PathElement::new(outline, BLACK.stroke_width(1)))
+            .map_err(|e| fail(&e))?;
+        self.draw_lines_and_points(root, &fail)?;
+        let title_size = (w / 36).max(12) as f64;
+        // plotters anchors text at its top-left by default; leave a margin above the ascenders.
+        root.draw(&Text::new(
+            self.title.clone(),
+            (12, (title_size * 0.45) as i32),
+            (FONT_FAMILY, title_size).into_font().color(&BLACK),
+        ))
+        .map_err(|e| fail(&e))?;
+        let note_size = (w / 55).max(10) as f64;
+        for (k, text) in self.notes.iter().enumerate() {
+            let y = title_h + map_h + 6 + k as u32 * (w / 45 + 6);
+            root.draw(&Text::new(
+                text.clone(),
+                (10, y as i32),
+                (FONT_FAMILY, note_size).into_font().color(&BLACK),
+            ))
+            .map_err(|e| fail(&e))?;
+        }
+        Ok(())
+    }
+
+    /// The colour of every pixel of the map area, row by row (in parallel); `None` outside the
+    /// sky ellipse, light grey where the fill has no value.
+    fn raster_rows(&self) -> Vec<Vec<Option<Rgb>>> {
+        use rayon::prelude::*;
+        let (title_h, map_h, _, scale) = self.geometry();
+        let w = self.width;
+        let cx = w as f64 / 2.0;
+        let cy = title_h as f64 + map_h as f64 / 2.0;
+        (0..map_h)
             .into_par_iter()
             .map(|j| {
                 (0..w)
@@ -273,32 +325,16 @@ impl<'a> SkyPicture<'a> {
                     })
                     .collect()
             })
-            .collect();
-        for (j, row) in rows.iter().enumerate() {
-            for (i, c) in row.iter().enumerate() {
-                if let Some([r, g, b]) = c {
-                    root.draw_pixel(
-                        (i as i32, (title_h + j as u32) as i32),
-                        &RGBColor(*r, *g, *b),
-                    )
-                    .map_err(|e| fail(&e))?;
-                }
-            }
-        }
-        // Outline of the sky ellipse.
-        let outline: Vec<(i32, i32)> = (0..=360)
-            .map(|k| {
-                let t = k as f64 / 360.0 * 2.0 * PI;
-                (
-                    (cx + 2.0 * SQRT_2 * t.cos() * scale).round() as i32,
-                    (cy + SQRT_2 * t.sin() * scale).round() as i32,
-                )
-            })
-            .collect();
-        root.draw(&PathElement::new(outline, BLACK.stroke_width(1)))
-            .map_err(|e| fail(&e))?;
-        // Polylines, split at the edge meridian.
-        let jump = 0.25 * w as f64;
+            .collect()
+    }
+
+    /// Draws the polylines, split where they jump across the edge meridian, and the points.
+    fn draw_lines_and_points(
+        &self,
+        root: &DrawingArea<BitMapBackend<'_>, plotters::coord::Shift>,
+        fail: &dyn Fn(&dyn std::fmt::Display) -> Error,
+    ) -> Result<()> {
+        let jump = 0.25 * self.width as f64;
         for (points, [r, g, b], width) in &self.lines {
             let style = RGBColor(*r, *g, *b).stroke_width(*width);
             let mut piece: Vec<(i32, i32)> = Vec::new();
@@ -331,24 +367,6 @@ impl<'a> SkyPicture<'a> {
             ))
             .map_err(|e| fail(&e))?;
         }
-        let title_size = (w / 36).max(12) as f64;
-        // plotters anchors text at its top-left by default; leave a margin above the ascenders.
-        root.draw(&Text::new(
-            self.title.clone(),
-            (12, (title_size * 0.45) as i32),
-            (FONT_FAMILY, title_size).into_font().color(&BLACK),
-        ))
-        .map_err(|e| fail(&e))?;
-        let note_size = (w / 55).max(10) as f64;
-        for (k, text) in self.notes.iter().enumerate() {
-            let y = title_h + map_h + 6 + k as u32 * (w / 45 + 6);
-            root.draw(&Text::new(
-                text.clone(),
-                (10, y as i32),
-                (FONT_FAMILY, note_size).into_font().color(&BLACK),
-            ))
-            .map_err(|e| fail(&e))?;
-        }
         Ok(())
     }
 }
@@ -362,25 +380,40 @@ pub fn write_pictures_in_a_row(path: &Path, pictures: &[SkyPicture<'_>]) -> Resu
     register_font()?;
     let width: u32 = pictures.iter().map(|p| p.width).sum();
     let height = pictures.iter().map(|p| p.geometry().2).max().unwrap_or(1);
+    write_png_atomically(path, (width, height), |root, png| {
+        let mut x0 = 0i32;
+        for p in pictures {
+            let (_, _, h, _) = p.geometry();
+            let area = root.clone().shrink((x0, 0), (p.width, h));
+            p.render_on(&area, png)?;
+            x0 += p.width as i32;
+        }
+        Ok(())
+    })
+}
+
+/// Draws a PNG of `size` pixels on a white canvas with `draw` (given the canvas and the file
+/// plotters writes, for its error messages) and writes it to `path` atomically: plotters picks
+/// the format from the extension, so it writes `<temporary>.png`, renamed over the temporary
+/// file when drawing succeeds and removed otherwise.
+pub(crate) fn write_png_atomically(
+    path: &Path,
+    size: (u32, u32),
+    draw: impl Fn(&DrawingArea<BitMapBackend<'_>, plotters::coord::Shift>, &Path) -> Result<()>,
+) -> Result<()> {
     write_atomically(path, |tmp| {
         let mut png = tmp.as_os_str().to_owned();
         png.push(".png");
         let png = std::path::PathBuf::from(png);
-        let draw = || -> Result<()> {
-            let fail = |e: &dyn std::fmt::Display| Error::io(path, format!("cannot draw: {e}"));
-            let root = BitMapBackend::new(&png, (width, height)).into_drawing_area();
+        let fail = |e: &dyn std::fmt::Display| Error::io(path, format!("cannot draw: {e}"));
+        let drawn = || -> Result<()> {
+            let root = BitMapBackend::new(&png, size).into_drawing_area();
             root.fill(&WHITE).map_err(|e| fail(&e))?;
-            let mut x0 = 0i32;
-            for p in pictures {
-                let (_, _, h, _) = p.geometry();
-                let area = root.clone().shrink((x0, 0), (p.width, h));
-                p.render_on(&area, &png)?;
-                x0 += p.width as i32;
-            }
+            draw(&root, &png)?;
             root.present().map_err(|e| fail(&e))
         };
         let result =
-            draw().and_then(|()| std::fs::rename(&png, tmp).map_err(|e| Error::io(path, e)));
+            drawn().and_then(|()| std::fs::rename(&png, tmp).map_err(|e| Error::io(path, e)));
         if result.is_err() {
             let _ = std::fs::remove_file(&png);
         }

@@ -63,6 +63,40 @@ fn to_rows(m: &DMatrix<f64>) -> Vec<Vec<f64>> {
     m.row_iter().map(|r| r.iter().copied().collect()).collect()
 }
 
+/// Refuses a Fisher matrix that is not k × k for the k `parameters` (at least one), not finite,
+/// or not symmetric to 1e-10 of √(F_aa F_bb).
+fn check_fisher_matrix(parameters: &[String], fisher: &DMatrix<f64>) -> Result<()> {
+    let k = parameters.len();
+    if k == 0 {
+        return Err(Error::Setting(
+            "a Fisher forecast needs at least one parameter".into(),
+        ));
+    }
+    if fisher.nrows() != k || fisher.ncols() != k {
+        return Err(Error::Mismatch(format!(
+            "Fisher matrix is {} × {} but there are {k} parameters",
+            fisher.nrows(),
+            fisher.ncols()
+        )));
+    }
+    if fisher.iter().any(|v| !v.is_finite()) {
+        return Err(Error::Data(
+            "the Fisher matrix contains a value that is not finite".into(),
+        ));
+    }
+    for a in 0..k {
+        for b in 0..a {
+            let (x, y) = (fisher[(a, b)], fisher[(b, a)]);
+            if (x - y).abs() > 1e-10 * (fisher[(a, a)] * fisher[(b, b)]).abs().sqrt() {
+                return Err(Error::Data(format!(
+                    "the Fisher matrix is not symmetric: F[{a}][{b}] = {x} but F[{b}][{a}] = {y}"
+                )));
+            }
+        }
+    }
+    Ok(())
+}
+
 impl FisherForecast {
     /// F_ab = μ,aᵀ Ψ μ,b from finite-difference derivatives and a precision matrix, with the
     /// derivative-noise bias tr(Ψ Σ_a) of each F_aa.
@@ -148,34 +182,8 @@ impl FisherForecast {
     /// scaling above [`MAX_CONDITION_NUMBER`]; the message gives the condition number and the
     /// most degenerate parameter combination.
     pub fn from_fisher_matrix(parameters: Vec<String>, fisher: &DMatrix<f64>) -> Result<Self> {
+        check_fisher_matrix(&parameters, fisher)?;
         let k = parameters.len();
-        if k == 0 {
-            return Err(Error::Setting(
-                "a Fisher forecast needs at least one parameter".into(),
-            ));
-        }
-        if fisher.nrows() != k || fisher.ncols() != k {
-            return Err(Error::Mismatch(format!(
-                "Fisher matrix is {} × {} but there are {k} parameters",
-                fisher.nrows(),
-                fisher.ncols()
-            )));
-        }
-        if fisher.iter().any(|v| !v.is_finite()) {
-            return Err(Error::Data(
-                "the Fisher matrix contains a value that is not finite".into(),
-            ));
-        }
-        for a in 0..k {
-            for b in 0..a {
-                let (x, y) = (fisher[(a, b)], fisher[(b, a)]);
-                if (x - y).abs() > 1e-10 * (fisher[(a, a)] * fisher[(b, b)]).abs().sqrt() {
-                    return Err(Error::Data(format!(
-                        "the Fisher matrix is not symmetric: F[{a}][{b}] = {x} but F[{b}][{a}] = {y}"
-                    )));
-                }
-            }
-        }
         let (scaled, _) = unit_diagonal(fisher).map_err(|a| {
             Error::Data(format!(
                 "parameter '{}' is not constrained: F_aa = {} (its derivative vanishes for these \

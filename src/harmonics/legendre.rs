@@ -196,6 +196,16 @@ fn rescale<const L: usize>(
     scaled
 }
 
+/// 1 for the lanes already at their true scale (s = 0), 0 for those still scaled down.
+#[inline(always)]
+fn live_lanes<const L: usize>(s: &[i32; L]) -> [f64; L] {
+    let mut live = [0.0f64; L];
+    for r in 0..L {
+        live[r] = if s[r] == 0 { 1.0 } else { 0.0 };
+    }
+    live
+}
+
 /// One recurrence step on all lanes: new = A z cur − prev, stored over `prev`.
 #[inline(always)]
 fn step<A: MulAdd, const L: usize>(a: f64, z: &[f64; L], cur: &[f64; L], prev: &mut [f64; L]) {
@@ -206,6 +216,9 @@ fn step<A: MulAdd, const L: usize>(a: f64, z: &[f64; L], cur: &[f64; L], prev: &
 
 /// Legendre stage of synthesis for one order m: for every ring pair, the north and south
 /// ring sums F_m = Σ_ℓ a_ℓm λ_ℓm(±z), written as out[2p] (north) and out[2p + 1] (south).
+// Kept whole (about 90 lines): the three phases of the lane recurrence (scaled lanes, all
+// lanes live, the last odd term) share the block's lane registers in one inlined loop nest, the
+// innermost loop of the harmonic transforms.
 #[inline(always)]
 pub(crate) fn synthesis_order<A: MulAdd, const L: usize>(
     rec: &OrderRecurrence,
@@ -227,10 +240,7 @@ pub(crate) fn synthesis_order<A: MulAdd, const L: usize>(
         let mut s = blk.s;
         let mut p1 = blk.v;
         let mut p0 = [0.0f64; L];
-        let mut live = [0.0f64; L];
-        for r in 0..L {
-            live[r] = if s[r] == 0 { 1.0 } else { 0.0 };
-        }
+        let mut live = live_lanes(&s);
         let (mut er, mut ei, mut or, mut oi) = ([0.0f64; L], [0.0f64; L], [0.0f64; L], [0.0f64; L]);
         let c = alm[0];
         for r in 0..L {
@@ -304,6 +314,9 @@ pub(crate) fn synthesis_order<A: MulAdd, const L: usize>(
 /// Each block adds its lanes' products into per-lane partial sums `acc` (one row of 2L values
 /// per ℓ); the lanes are summed once at the end in a fixed pairwise order, so the result does
 /// not depend on scheduling.
+// Kept whole (about 100 lines): the three phases of the lane recurrence (scaled lanes, all
+// lanes live, the last odd term) share the block's lane registers in one inlined loop nest, the
+// innermost loop of the harmonic transforms.
 #[inline(always)]
 pub(crate) fn analysis_order<A: MulAdd, const L: usize>(
     rec: &OrderRecurrence,
@@ -346,10 +359,7 @@ pub(crate) fn analysis_order<A: MulAdd, const L: usize>(
             xor[r] = g_n.re - g_s.re;
             xoi[r] = g_n.im - g_s.im;
         }
-        let mut live = [0.0f64; L];
-        for r in 0..L {
-            live[r] = if s[r] == 0 { 1.0 } else { 0.0 };
-        }
+        let mut live = live_lanes(&s);
         let mask = |live: &[f64; L], x: &[f64; L]| {
             let mut y = [0.0f64; L];
             for r in 0..L {

@@ -350,7 +350,23 @@ pub fn sampled_pixel_window_squared(nside: u32, lmax: usize, k: u32) -> Result<V
         )));
     }
     let fine = Pixelization::new(nside << k, Ordering::Nested)?;
-    let n = nside as u64;
+    let pixels = window_pixels(nside as u64);
+    let chord2_max = (4.0 * coarse.mean_spacing()).powi(2);
+    let nodes = 16_384usize;
+    let step = chord2_max / (nodes - 1) as f64;
+    let sub = 1u64 << (2 * k);
+    let hist = chord_histogram(&coarse, &fine, &pixels, sub, (nodes, step))?;
+    let total: f64 = hist.iter().sum();
+    let w2 = legendre_sums(&hist, step, lmax);
+    Ok(w2.into_iter().map(|v| v / total).collect())
+}
+
+/// The pixels whose sub-pixel pairs stand for the whole map, with how many pixels each stands
+/// for: the first quarter of every northern polar ring and of ring NSIDE, and one pixel of each
+/// ring below it (rings NSIDE+1 … 2·NSIDE lie wholly in the equatorial zone, whose pixel
+/// boundaries are straight in (φ, z) and repeat every π/(2·NSIDE) in φ, so the pixels of such a
+/// ring are turned copies of each other), mirrored to the south.
+fn window_pixels(n: u64) -> Vec<(u64, f64)> {
     // first pixel of ring i (1-based) and its pixel count, northern hemisphere and equator
     let ring_start = |i: u64| {
         if i < n {
@@ -360,10 +376,6 @@ pub fn sampled_pixel_window_squared(nside: u32, lmax: usize, k: u32) -> Result<V
         }
     };
     let ring_len = |i: u64| if i < n { 4 * i } else { 4 * n };
-    // (pixel, weight): the first quarter of every northern polar ring and of ring NSIDE, and one
-    // pixel of each ring below it (rings NSIDE+1 … 2·NSIDE lie wholly in the equatorial zone,
-    // whose pixel boundaries are straight in (φ, z) and repeat every π/(2·NSIDE) in φ, so the
-    // pixels of such a ring are turned copies of each other), mirrored to the south
     let mut pixels: Vec<(u64, f64)> = Vec::new();
     for i in 1..=2 * n {
         let mirror = if i == 2 * n { 1.0 } else { 2.0 };
@@ -375,10 +387,19 @@ pub fn sampled_pixel_window_squared(nside: u32, lmax: usize, k: u32) -> Result<V
             pixels.push((ring_start(i), ring_len(i) as f64 * mirror));
         }
     }
-    let chord2_max = (4.0 * coarse.mean_spacing()).powi(2);
-    let nodes = 16_384usize;
-    let step = chord2_max / (nodes - 1) as f64;
-    let sub = 1u64 << (2 * k);
+    pixels
+}
+
+/// Weighted histogram of the squared chords between the `sub` fine sub-pixel centres of each
+/// listed pixel, shared linearly between the two nearest of `nodes` nodes spaced by `step`;
+/// summed over fixed chunks of 64 pixels in order, so independent of the thread count.
+fn chord_histogram(
+    coarse: &crate::sky::pixelization::Pixelization,
+    fine: &crate::sky::pixelization::Pixelization,
+    pixels: &[(u64, f64)],
+    sub: u64,
+    (nodes, step): (usize, f64),
+) -> Result<Vec<f64>> {
     let histograms: Vec<Result<Vec<f64>>> = pixels
         .par_chunks(64)
         .map(|part| {
@@ -418,7 +439,12 @@ pub fn sampled_pixel_window_squared(nside: u32, lmax: usize, k: u32) -> Result<V
             *t += v;
         }
     }
-    let total: f64 = hist.iter().sum();
+    Ok(hist)
+}
+
+/// Σ_i h_i P_ℓ(1 − u_i/2) for ℓ = 0 … lmax over the histogram nodes u_i = i·`step`, P_ℓ by the
+/// three-term recurrence (ℓ+1)P_ℓ+1 = (2ℓ+1)xP_ℓ − ℓP_ℓ−1.
+fn legendre_sums(hist: &[f64], step: f64, lmax: usize) -> Vec<f64> {
     let mut w2 = vec![0.0; lmax + 1];
     for (i, &h) in hist.iter().enumerate() {
         if h == 0.0 {
@@ -438,5 +464,5 @@ pub fn sampled_pixel_window_squared(nside: u32, lmax: usize, k: u32) -> Result<V
             *acc += h * cur;
         }
     }
-    Ok(w2.into_iter().map(|v| v / total).collect())
+    w2
 }

@@ -286,15 +286,7 @@ pub fn master_spectrum(
         )));
     }
     let binning = Binning::uniform(2, lmax, settings.bin_width, settings.weighting)?;
-    let mut transfer = gaussian_beam((fwhm / 60.0).to_radians(), lmax)?;
-    if settings.pixel_window {
-        let nside32 = u32::try_from(nside)
-            .map_err(|_| Error::Geometry(format!("NSIDE {nside} is out of range")))?;
-        let p = healpix_pixel_window(nside32, lmax)?;
-        for (t, p) in transfer.iter_mut().zip(p) {
-            *t *= p;
-        }
-    }
+    let transfer = beam_and_pixel_transfer(fwhm, settings.pixel_window, nside, lmax)?;
     let lmax_w = (2 * lmax).min(3 * nside - 1);
     let sht_w = HarmonicTransform::new(nside, lmax_w)?;
     let weight_cl = if pseudo.weights.iter().all(|&w| w == 1.0) {
@@ -347,6 +339,26 @@ pub fn master_spectrum(
         w2: pseudo.w2,
         w4: pseudo.w4,
     })
+}
+
+/// T_ℓ = B_ℓ p_ℓ up to `lmax`: the Gaussian beam of FWHM `fwhm` arcmin, times the HEALPix pixel
+/// window of `nside` when `pixel_window`.
+fn beam_and_pixel_transfer(
+    fwhm: f64,
+    pixel_window: bool,
+    nside: usize,
+    lmax: usize,
+) -> Result<Vec<f64>> {
+    let mut transfer = gaussian_beam((fwhm / 60.0).to_radians(), lmax)?;
+    if pixel_window {
+        let nside32 = u32::try_from(nside)
+            .map_err(|_| Error::Geometry(format!("NSIDE {nside} is out of range")))?;
+        let p = healpix_pixel_window(nside32, lmax)?;
+        for (t, p) in transfer.iter_mut().zip(p) {
+            *t *= p;
+        }
+    }
+    Ok(transfer)
 }
 
 impl MasterSettings {

@@ -536,10 +536,56 @@ pub fn write_footprint(
 /// COORDSYS (when known). Invalid pixels are stored as UNSEEN. The file is written to a temporary
 /// file renamed into place, so an existing `path` is replaced only on success.
 pub fn write_maps(path: &Path, columns: &[(&str, &SkyMap)], options: &WriteOptions) -> Result<()> {
-    let Some(&(first_name, first)) = columns.first() else {
+    let Some(&(_, first)) = columns.first() else {
         return Err(Error::Setting(
             "a HEALPix FITS file needs at least one map column".to_string(),
         ));
+    };
+    let pix = first.pixelization();
+    let names = checked_column_names(columns, options.layout)?;
+    let coordsys = options.coordsys.clone().or_else(|| first.coordsys.clone());
+    if let Some(c) = &coordsys {
+        check_header_text("COORDSYS", c)?;
+    }
+    let (pixels, repeat) = written_pixels(columns, pix, options.layout)?;
+    let rows = match &pixels {
+        Some(p) => p.len() as u64,
+        None => pix.npix() / repeat,
+    };
+    let (ttype, tform) = table_layout(&names, options, pixels.is_some(), repeat);
+
+    write_atomically(path, |tmp| {
+        let mut file = FitsHandle::create(tmp, path)?;
+        file.create_table(rows, &ttype, &tform, "SKY_MAP")
+            .map_err(|s| write_failure(path, "the table", s))?;
+        let partial = pixels.is_some();
+        for (key, value, comment) in &healpix_keys(pix, coordsys.as_deref(), partial) {
+            file.write_key(key, value, comment)
+                .map_err(|s| write_failure(path, &format!("keyword {key}"), s))?;
+        }
+        match &pixels {
+            None => write_full_sky_columns(&mut file, path, columns, options.precision, repeat)?,
+            Some(listed) => {
+                write_partial_columns(&mut file, path, columns, options.precision, listed)?
+            }
+        }
+        file.close().map_err(|s| write_failure(path, "the file", s))
+    })
+}
+
+/// The one-line error of a failed cfitsio write.
+fn write_failure(path: &Path, what: &str, status: c_int) -> Error {
+    Error::fits(
+        path,
+        format!("cannot write {what} ({})", cfitsio_text(status)),
+    )
+}
+
+/// The trimmed column names, once each checked: printable, not repeated, not PIXEL in a
+/// partial-sky file, and every map of the first one's pixelization.
+fn checked_column_names(columns: &[(&str, &SkyMap)], layout: WriteLayout) -> Result<Vec<String>> {
+    let Some(&(first_name, first)) = columns.first() else {
+        return Ok(Vec::new());
     };
     let pix = first.pixelization();
     let mut names: Vec<String> = Vec::with_capacity(columns.len());
@@ -551,7 +597,7 @@ pub fn write_maps(path: &Path, columns: &[(&str, &SkyMap)], options: &WriteOptio
                 "column name '{name}' is used twice"
             )));
         }
-        if matches!(options.layout, WriteLayout::Partial(_)) && name.eq_ignore_ascii_case("PIXEL") {
+        if matches!(layout, WriteLayout::Partial(_)) && name.eq_ignore_ascii_case("PIXEL") {
             return Err(Error::Setting(
                 "'PIXEL' names the pixel-index column of a partial-sky file; choose another column name"
                     .to_string(),
@@ -569,24 +615,26 @@ pub fn write_maps(path: &Path, columns: &[(&str, &SkyMap)], options: &WriteOptio
         }
         names.push(name.to_string());
     }
-    let coordsys = options.coordsys.clone().or_else(|| first.coordsys.clone());
-    if let Some(c) = &coordsys {
-        check_header_text("COORDSYS", c)?;
-    }
+    Ok(names)
+}
+
+/// Which pixels are written (`None`: all, in order) and how many values each row holds: a full
+/// sky packs [`VALUES_PER_ROW`] values a row when they divide the map; a partial sky lists the
+/// pixels valid in any column, one a row.
+fn written_pixels(
+    columns: &[(&str, &SkyMap)],
+    pix: Pixelization,
+    layout: WriteLayout,
+) -> Result<(Option<Vec<i64>>, u64)> {
     let npix = pix.npix();
-    let value_letter = match options.precision {
-        ValuePrecision::Float32 => 'E',
-        ValuePrecision::Float64 => 'D',
-    };
-    // Which pixels are written, and how many values per row.
-    let (pixels, repeat): (Option<Vec<i64>>, u64) = match options.layout {
+    match layout {
         WriteLayout::FullSky => {
-            let repeat = if npix % VALUES_PER_ROW as u64 == 0 {
+            let repeat = if npix.is_multiple_of(VALUES_PER_ROW as u64) {
                 VALUES_PER_ROW as u64
             } else {
                 1
             };
-            (None, repeat)
+            Ok((None, repeat))
         }
         WriteLayout::Partial(width) => {
             if width == PixelIndexWidth::Int32 && npix > i32::MAX as u64 {
@@ -605,133 +653,145 @@ pub fn write_maps(path: &Path, columns: &[(&str, &SkyMap)], options: &WriteOptio
                         .to_string(),
                 ));
             }
-            (Some(listed), 1)
+            Ok((Some(listed), 1))
         }
-    };
-    let rows = match &pixels {
-        Some(p) => p.len() as u64,
-        None => npix / repeat,
+    }
+}
+
+/// TTYPE and TFORM of every column: the pixel indices first in a partial-sky file, then the maps.
+fn table_layout(
+    names: &[String],
+    options: &WriteOptions,
+    partial: bool,
+    repeat: u64,
+) -> (Vec<String>, Vec<String>) {
+    let value_letter = match options.precision {
+        ValuePrecision::Float32 => 'E',
+        ValuePrecision::Float64 => 'D',
     };
     let mut ttype: Vec<String> = Vec::new();
     let mut tform: Vec<String> = Vec::new();
-    if let (Some(_), WriteLayout::Partial(width)) = (&pixels, options.layout) {
+    if let (true, WriteLayout::Partial(width)) = (partial, options.layout) {
         ttype.push("PIXEL".to_string());
         tform.push(match width {
             PixelIndexWidth::Int32 => "1J".to_string(),
             PixelIndexWidth::Int64 => "1K".to_string(),
         });
     }
-    for name in &names {
+    for name in names {
         ttype.push(name.clone());
         tform.push(format!("{repeat}{value_letter}"));
     }
+    (ttype, tform)
+}
 
-    write_atomically(path, |tmp| {
-        let mut file = FitsHandle::create(tmp, path)?;
-        let fail = |what: &str, status: c_int| {
-            Error::fits(
-                path,
-                format!("cannot write {what} ({})", cfitsio_text(status)),
+/// The HEALPix keywords of the table, in the order they are written.
+fn healpix_keys(
+    pix: Pixelization,
+    coordsys: Option<&str>,
+    partial: bool,
+) -> Vec<(&'static str, KeyValue, &'static str)> {
+    [
+        Some((
+            "PIXTYPE",
+            KeyValue::Text("HEALPIX".into()),
+            "HEALPIX pixelisation",
+        )),
+        Some((
+            "ORDERING",
+            KeyValue::Text(pix.ordering().fits_name().into()),
+            "Pixel ordering scheme, either RING or NESTED",
+        )),
+        coordsys.map(|c| {
+            (
+                "COORDSYS",
+                KeyValue::Text(c.trim().to_string()),
+                "Ecliptic, Galactic or Celestial (equatorial)",
             )
-        };
-        file.create_table(rows, &ttype, &tform, "SKY_MAP")
-            .map_err(|s| fail("the table", s))?;
-        let partial = pixels.is_some();
-        let keys: Vec<(&str, KeyValue, &str)> = [
-            Some((
-                "PIXTYPE",
-                KeyValue::Text("HEALPIX".into()),
-                "HEALPIX pixelisation",
-            )),
-            Some((
-                "ORDERING",
-                KeyValue::Text(pix.ordering().fits_name().into()),
-                "Pixel ordering scheme, either RING or NESTED",
-            )),
-            coordsys.as_ref().map(|c| {
-                (
-                    "COORDSYS",
-                    KeyValue::Text(c.trim().to_string()),
-                    "Ecliptic, Galactic or Celestial (equatorial)",
-                )
-            }),
-            Some((
-                "NSIDE",
-                KeyValue::Integer(pix.nside() as i64),
-                "Resolution parameter of HEALPIX",
-            )),
-            (!partial).then_some(("FIRSTPIX", KeyValue::Integer(0), "First pixel # (0 based)")),
-            (!partial).then(|| {
-                (
-                    "LASTPIX",
-                    KeyValue::Integer(npix as i64 - 1),
-                    "Last pixel # (0 based)",
-                )
-            }),
-            Some((
-                "INDXSCHM",
-                KeyValue::Text(if partial { "EXPLICIT" } else { "IMPLICIT" }.into()),
-                "Indexing: IMPLICIT or EXPLICIT",
-            )),
-            Some((
-                "OBJECT",
-                KeyValue::Text(if partial { "PARTIAL" } else { "FULLSKY" }.into()),
-                "Sky coverage, either FULLSKY or PARTIAL",
-            )),
-        ]
-        .into_iter()
-        .flatten()
-        .collect();
-        for (key, value, comment) in &keys {
-            file.write_key(key, value, comment)
-                .map_err(|s| fail(&format!("keyword {key}"), s))?;
+        }),
+        Some((
+            "NSIDE",
+            KeyValue::Integer(pix.nside() as i64),
+            "Resolution parameter of HEALPIX",
+        )),
+        (!partial).then_some(("FIRSTPIX", KeyValue::Integer(0), "First pixel # (0 based)")),
+        (!partial).then(|| {
+            (
+                "LASTPIX",
+                KeyValue::Integer(pix.npix() as i64 - 1),
+                "Last pixel # (0 based)",
+            )
+        }),
+        Some((
+            "INDXSCHM",
+            KeyValue::Text(if partial { "EXPLICIT" } else { "IMPLICIT" }.into()),
+            "Indexing: IMPLICIT or EXPLICIT",
+        )),
+        Some((
+            "OBJECT",
+            KeyValue::Text(if partial { "PARTIAL" } else { "FULLSKY" }.into()),
+            "Sky coverage, either FULLSKY or PARTIAL",
+        )),
+    ]
+    .into_iter()
+    .flatten()
+    .collect()
+}
+
+/// Writes every map of a full-sky file into columns 1, 2, … in chunks of [`WRITE_CHUNK`]
+/// values, invalid pixels as UNSEEN.
+fn write_full_sky_columns(
+    file: &mut FitsHandle,
+    path: &Path,
+    columns: &[(&str, &SkyMap)],
+    precision: ValuePrecision,
+    repeat: u64,
+) -> Result<()> {
+    for (k, (name, map)) in columns.iter().enumerate() {
+        let values = map.values();
+        let valid = map.valid();
+        let mut start = 0usize;
+        let mut buf = Vec::with_capacity(WRITE_CHUNK.min(values.len()));
+        while start < values.len() {
+            let end = (start + WRITE_CHUNK).min(values.len());
+            buf.clear();
+            buf.extend(
+                values[start..end]
+                    .iter()
+                    .zip(&valid[start..end])
+                    .map(|(&v, &ok)| if ok { v } else { UNSEEN }),
+            );
+            check_range(path, name, precision, &buf, |i| (start + i) as u64)?;
+            file.write_doubles(1 + k as c_int, repeat, start as u64, &mut buf)
+                .map_err(|s| write_failure(path, &format!("column '{}'", name.trim()), s))?;
+            start = end;
         }
-        let first_value_col: c_int = if partial { 2 } else { 1 };
-        match &pixels {
-            None => {
-                for (k, (name, map)) in columns.iter().enumerate() {
-                    let values = map.values();
-                    let valid = map.valid();
-                    let mut start = 0usize;
-                    let mut buf = Vec::with_capacity(WRITE_CHUNK.min(values.len()));
-                    while start < values.len() {
-                        let end = (start + WRITE_CHUNK).min(values.len());
-                        buf.clear();
-                        buf.extend(
-                            values[start..end]
-                                .iter()
-                                .zip(&valid[start..end])
-                                .map(|(&v, &ok)| if ok { v } else { UNSEEN }),
-                        );
-                        check_range(path, name, options.precision, &buf, |i| (start + i) as u64)?;
-                        file.write_doubles(
-                            first_value_col + k as c_int,
-                            repeat,
-                            start as u64,
-                            &mut buf,
-                        )
-                        .map_err(|s| fail(&format!("column '{}'", name.trim()), s))?;
-                        start = end;
-                    }
-                }
-            }
-            Some(listed) => {
-                let mut idx = listed.clone();
-                file.write_longs(1, &mut idx)
-                    .map_err(|s| fail("the PIXEL column", s))?;
-                for (k, (name, map)) in columns.iter().enumerate() {
-                    let mut buf: Vec<f64> = listed
-                        .iter()
-                        .map(|&p| map.get(p as u64).unwrap_or(UNSEEN))
-                        .collect();
-                    check_range(path, name, options.precision, &buf, |i| listed[i] as u64)?;
-                    file.write_doubles(first_value_col + k as c_int, 1, 0, &mut buf)
-                        .map_err(|s| fail(&format!("column '{}'", name.trim()), s))?;
-                }
-            }
-        }
-        file.close().map_err(|s| fail("the file", s))
-    })
+    }
+    Ok(())
+}
+
+/// Writes the listed pixel indices into column 1 and each map's values at them into columns
+/// 2, 3, …
+fn write_partial_columns(
+    file: &mut FitsHandle,
+    path: &Path,
+    columns: &[(&str, &SkyMap)],
+    precision: ValuePrecision,
+    listed: &[i64],
+) -> Result<()> {
+    let mut idx = listed.to_vec();
+    file.write_longs(1, &mut idx)
+        .map_err(|s| write_failure(path, "the PIXEL column", s))?;
+    for (k, (name, map)) in columns.iter().enumerate() {
+        let mut buf: Vec<f64> = listed
+            .iter()
+            .map(|&p| map.get(p as u64).unwrap_or(UNSEEN))
+            .collect();
+        check_range(path, name, precision, &buf, |i| listed[i] as u64)?;
+        file.write_doubles(2 + k as c_int, 1, 0, &mut buf)
+            .map_err(|s| write_failure(path, &format!("column '{}'", name.trim()), s))?;
+    }
+    Ok(())
 }
 
 /// Refuses values that float32 cannot hold (cfitsio would silently store ±∞ for them).
@@ -779,6 +839,28 @@ fn check_header_text(what: &str, text: &str) -> Result<()> {
 enum KeyValue {
     Text(String),
     Integer(i64),
+}
+
+/// A cfitsio status as a result: 0 is success, anything else the failing status.
+fn status_result(status: c_int) -> std::result::Result<(), c_int> {
+    if status == 0 {
+        Ok(())
+    } else {
+        Err(status)
+    }
+}
+
+/// A Rust type cfitsio reads table values into, with its cfitsio datatype code.
+trait ColumnValue: Copy + Default {
+    const DATATYPE: c_int;
+}
+
+impl ColumnValue for f64 {
+    const DATATYPE: c_int = TDOUBLE;
+}
+
+impl ColumnValue for i64 {
+    const DATATYPE: c_int = TLONGLONG;
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -952,44 +1034,46 @@ fn non_numeric_reason(code: c_int, format: &str) -> Option<String> {
     Some(format!("{what} (TFORM '{format}'), not real numbers"))
 }
 
-fn parse_header(
+/// A text keyword of the current HDU without its quotes, `None` when absent or blank.
+fn text_key(file: &mut FitsHandle, path: &Path, key: &str) -> Result<Option<String>> {
+    Ok(file
+        .key(path, key)?
+        .map(|v| unquote(&v))
+        .filter(|v| !v.is_empty()))
+}
+
+/// An integer keyword of the current HDU, `None` when absent, an error when not an integer.
+fn int_key(file: &mut FitsHandle, path: &Path, key: &str) -> Result<Option<i64>> {
+    match file.key(path, key)? {
+        None => Ok(None),
+        Some(raw) => parse_integer(&raw)
+            .map(Some)
+            .ok_or_else(|| Error::fits(path, format!("{key} = {} is not an integer", raw.trim()))),
+    }
+}
+
+/// One column of the table as the header declares it.
+struct HeaderColumn {
+    colnum: c_int,
+    info: ColumnInfo,
+    code: c_int,
+}
+
+/// NSIDE, ORDERING and the pixel count the header declares, checked against the HEALPix
+/// convention; a disagreeing NPIX only warns.
+fn read_resolution(
     file: &mut FitsHandle,
     path: &Path,
-    found: (usize, Option<String>),
-    file_len: u64,
-) -> Result<HealpixHeader> {
-    let (hdu, hdu_warning) = found;
-    let mut warnings: Vec<String> = hdu_warning.into_iter().collect();
-    file.move_to(hdu).map_err(|s| {
-        truncated_or_damaged(
-            path,
-            file_len,
-            format!("HDU {hdu} cannot be read, {}", cfitsio_text(s)),
-        )
-    })?;
-    let text_key = |file: &mut FitsHandle, key: &str| -> Result<Option<String>> {
-        Ok(file
-            .key(path, key)?
-            .map(|v| unquote(&v))
-            .filter(|v| !v.is_empty()))
-    };
-    let int_key = |file: &mut FitsHandle, key: &str| -> Result<Option<i64>> {
-        match file.key(path, key)? {
-            None => Ok(None),
-            Some(raw) => parse_integer(&raw).map(Some).ok_or_else(|| {
-                Error::fits(path, format!("{key} = {} is not an integer", raw.trim()))
-            }),
-        }
-    };
-
-    // NSIDE and ORDERING.
-    let nside = int_key(file, "NSIDE")?.ok_or_else(|| {
+    hdu: usize,
+    warnings: &mut Vec<String>,
+) -> Result<(u32, Ordering, u64)> {
+    let nside = int_key(file, path, "NSIDE")?.ok_or_else(|| {
         Error::fits(
             path,
             format!("HDU {hdu} has no NSIDE keyword, which the HEALPix FITS convention requires"),
         )
     })?;
-    let ordering = match text_key(file, "ORDERING")? {
+    let ordering = match text_key(file, path, "ORDERING")? {
         None => {
             warnings.push("no ORDERING keyword: assuming RING, as healpy 1.20.1 does".to_string());
             Ordering::Ring
@@ -1010,45 +1094,40 @@ fn parse_header(
     }
     Pixelization::new(nside_u32, ordering).map_err(|e| Error::fits(path, e.to_string()))?;
     let npix = npix_of(nside_u32);
-    if let Some(n) = int_key(file, "NPIX").ok().flatten() {
+    if let Some(n) = int_key(file, path, "NPIX").ok().flatten() {
         if n != npix as i64 {
             warnings.push(format!(
                 "NPIX = {n} disagrees with NSIDE {nside} (12·NSIDE² = {npix}); NSIDE is trusted"
             ));
         }
     }
-    let coordsys = text_key(file, "COORDSYS")?;
-    let bad_data = match file.key(path, "BAD_DATA")? {
-        None => None,
-        Some(raw) => {
-            let text = unquote(&raw).replace(['D', 'd'], "E");
-            match text.trim().parse::<f64>() {
-                Ok(v) if v.is_finite() => Some(v),
-                _ => {
-                    return Err(Error::fits(
-                        path,
-                        format!("BAD_DATA = {} is not a finite number", raw.trim()),
-                    ))
-                }
-            }
-        }
-    };
+    Ok((nside_u32, ordering, npix))
+}
 
-    // Columns.
-    let ncols = file.num_cols(path)?;
-    let rows = file.num_rows(path)?;
-    struct Col {
-        colnum: c_int,
-        info: ColumnInfo,
-        code: c_int,
+/// The BAD_DATA keyword (Fortran `D` exponents accepted), which must be a finite number.
+fn read_bad_data(file: &mut FitsHandle, path: &Path) -> Result<Option<f64>> {
+    let Some(raw) = file.key(path, "BAD_DATA")? else {
+        return Ok(None);
+    };
+    let text = unquote(&raw).replace(['D', 'd'], "E");
+    match text.trim().parse::<f64>() {
+        Ok(v) if v.is_finite() => Ok(Some(v)),
+        _ => Err(Error::fits(
+            path,
+            format!("BAD_DATA = {} is not a finite number", raw.trim()),
+        )),
     }
+}
+
+/// Every column's TTYPE, TFORM, TUNIT and stored type, in order.
+fn read_columns(file: &mut FitsHandle, path: &Path, ncols: c_int) -> Result<Vec<HeaderColumn>> {
     let mut cols = Vec::with_capacity(ncols as usize);
     for colnum in 1..=ncols {
-        let name = text_key(file, &format!("TTYPE{colnum}"))?.unwrap_or_default();
-        let format = text_key(file, &format!("TFORM{colnum}"))?.unwrap_or_default();
-        let unit = text_key(file, &format!("TUNIT{colnum}"))?;
+        let name = text_key(file, path, &format!("TTYPE{colnum}"))?.unwrap_or_default();
+        let format = text_key(file, path, &format!("TFORM{colnum}"))?.unwrap_or_default();
+        let unit = text_key(file, path, &format!("TUNIT{colnum}"))?;
         let (code, repeat) = file.column_type(path, colnum)?;
-        cols.push(Col {
+        cols.push(HeaderColumn {
             colnum,
             info: ColumnInfo {
                 name,
@@ -1060,15 +1139,28 @@ fn parse_header(
             code,
         });
     }
+    Ok(cols)
+}
 
-    // Full or partial sky (healpy 1.20.1 reads OBJECT, then INDXSCHM, and rejects a contradiction).
-    let object = text_key(file, "OBJECT")?.map(|o| o.to_ascii_uppercase());
+fn is_pixel_column(c: &HeaderColumn) -> bool {
+    c.info.name.trim().eq_ignore_ascii_case("PIXEL")
+}
+
+/// Full or partial sky (healpy 1.20.1 reads OBJECT, then INDXSCHM, and rejects a
+/// contradiction); with neither keyword, a table with a PIXEL column beside values is partial.
+fn read_coverage(
+    file: &mut FitsHandle,
+    path: &Path,
+    cols: &[HeaderColumn],
+    warnings: &mut Vec<String>,
+) -> Result<Coverage> {
+    let object = text_key(file, path, "OBJECT")?.map(|o| o.to_ascii_uppercase());
     let object_says = match object.as_deref() {
         Some("FULLSKY") => Some(Coverage::FullSky),
         Some("PARTIAL") => Some(Coverage::Partial),
         _ => None,
     };
-    let scheme_says = match text_key(file, "INDXSCHM")? {
+    let scheme_says = match text_key(file, path, "INDXSCHM")? {
         None => None,
         Some(s) => match s.to_ascii_uppercase().as_str() {
             "IMPLICIT" => Some(Coverage::FullSky),
@@ -1081,10 +1173,8 @@ fn parse_header(
             }
         },
     };
-    let has_pixel_column = cols
-        .iter()
-        .any(|c| c.info.name.trim().eq_ignore_ascii_case("PIXEL"));
-    let coverage = match (object_says, scheme_says) {
+    let has_pixel_column = cols.iter().any(is_pixel_column);
+    Ok(match (object_says, scheme_says) {
         (Some(o), Some(s)) if o != s => {
             return Err(Error::fits(
                 path,
@@ -1109,59 +1199,69 @@ fn parse_header(
             Coverage::Partial
         }
         (None, None) => Coverage::FullSky,
+    })
+}
+
+/// Removes the pixel-index column of a partial-sky table from `cols` (the one named PIXEL, or
+/// else the first, as healpy 1.20.1 does) and returns its column number, after checking it holds
+/// integers and no more indices than the map has pixels.
+fn take_pixel_column(
+    path: &Path,
+    cols: &mut Vec<HeaderColumn>,
+    rows: u64,
+    nside: u32,
+    npix: u64,
+    warnings: &mut Vec<String>,
+) -> Result<c_int> {
+    let k = match cols.iter().position(is_pixel_column) {
+        Some(k) => k,
+        None => {
+            let first = cols
+                .first()
+                .map(|c| c.info.name.clone())
+                .unwrap_or_default();
+            warnings.push(format!(
+                "no column named PIXEL: taking the first column '{}' as the pixel indices, as healpy 1.20.1 does",
+                first.trim()
+            ));
+            0
+        }
     };
-
-    let mut pixel_colnum = None;
-    if coverage == Coverage::Partial {
-        let k = match cols
-            .iter()
-            .position(|c| c.info.name.trim().eq_ignore_ascii_case("PIXEL"))
-        {
-            Some(k) => k,
-            None => {
-                let first = cols
-                    .first()
-                    .map(|c| c.info.name.clone())
-                    .unwrap_or_default();
-                warnings.push(format!(
-                    "no column named PIXEL: taking the first column '{}' as the pixel indices, as healpy 1.20.1 does",
-                    first.trim()
-                ));
-                0
-            }
-        };
-        let Some(c) = (k < cols.len()).then(|| cols.remove(k)) else {
-            return Err(Error::fits(path, "the partial-sky table has no columns"));
-        };
-        if !is_integer_type(c.code) {
-            return Err(Error::fits(
-                path,
-                format!(
-                    "the pixel-index column '{}' has TFORM '{}'; pixel indices must be integers",
-                    c.info.name.trim(),
-                    c.info.format
-                ),
-            ));
-        }
-        if rows.saturating_mul(c.info.values_per_row) > npix {
-            return Err(Error::fits(
-                path,
-                format!(
-                    "the PIXEL column lists {} pixels but NSIDE {nside} has only {npix}",
-                    rows.saturating_mul(c.info.values_per_row)
-                ),
-            ));
-        }
-        pixel_colnum = Some(c.colnum);
+    let Some(c) = (k < cols.len()).then(|| cols.remove(k)) else {
+        return Err(Error::fits(path, "the partial-sky table has no columns"));
+    };
+    if !is_integer_type(c.code) {
+        return Err(Error::fits(
+            path,
+            format!(
+                "the pixel-index column '{}' has TFORM '{}'; pixel indices must be integers",
+                c.info.name.trim(),
+                c.info.format
+            ),
+        ));
     }
-    if cols.is_empty() {
-        return Err(Error::fits(path, "the HEALPix table has no value column"));
+    if rows.saturating_mul(c.info.values_per_row) > npix {
+        return Err(Error::fits(
+            path,
+            format!(
+                "the PIXEL column lists {} pixels but NSIDE {nside} has only {npix}",
+                rows.saturating_mul(c.info.values_per_row)
+            ),
+        ));
     }
+    Ok(c.colnum)
+}
 
-    // FIRSTPIX / LASTPIX.
-    let first = int_key(file, "FIRSTPIX")?;
-    let last = int_key(file, "LASTPIX")?;
-    let mut pixel_range = None;
+/// FIRSTPIX / LASTPIX: a full sky must span every pixel; a partial sky may declare its range.
+fn read_pixel_range(
+    file: &mut FitsHandle,
+    path: &Path,
+    coverage: Coverage,
+    nside: u32,
+    npix: u64,
+) -> Result<Option<(u64, u64)>> {
+    let first = int_key(file, path, "FIRSTPIX")?;
+    let last = int_key(file, path, "LASTPIX")?;
     match coverage {
         Coverage::FullSky => {
             let f = first.unwrap_or(0);
@@ -1175,9 +1275,10 @@ fn parse_header(
                     ),
                 ));
             }
+            Ok(None)
         }
-        Coverage::Partial => {
-            if let (Some(f), Some(l)) = (first, last) {
+        Coverage::Partial => match (first, last) {
+            (Some(f), Some(l)) => {
                 if f < 0 || f > l || l >= npix as i64 {
                     return Err(Error::fits(
                         path,
@@ -1187,12 +1288,22 @@ fn parse_header(
                         ),
                     ));
                 }
-                pixel_range = Some((f as u64, l as u64));
+                Ok(Some((f as u64, l as u64)))
             }
-        }
+            _ => Ok(None),
+        },
     }
+}
 
-    // Data length of every numeric value column, before anything is allocated.
+/// Data length of every numeric value column, checked before anything is allocated.
+fn check_column_lengths(
+    path: &Path,
+    cols: &[HeaderColumn],
+    coverage: Coverage,
+    rows: u64,
+    nside: u32,
+    npix: u64,
+) -> Result<()> {
     for (i, c) in cols.iter().enumerate() {
         if !is_numeric_type(c.code) {
             continue;
@@ -1221,17 +1332,18 @@ fn parse_header(
             _ => {}
         }
     }
-    if nside_u32 > MAX_READ_NSIDE {
-        return Err(Error::fits(
-            path,
-            format!(
-                "NSIDE {nside} is above {MAX_READ_NSIDE}, the largest map planisphere reads into memory"
-            ),
-        ));
-    }
+    Ok(())
+}
 
-    // The file must hold the table data its header declares.
-    let row_bytes = int_key(file, "NAXIS1")?.unwrap_or(0).max(0) as u64;
+/// The file must hold the table data its header declares.
+fn check_data_present(
+    file: &mut FitsHandle,
+    path: &Path,
+    hdu: usize,
+    rows: u64,
+    file_len: u64,
+) -> Result<()> {
+    let row_bytes = int_key(file, path, "NAXIS1")?.unwrap_or(0).max(0) as u64;
     let data_start = file.data_start(path)?;
     let declared = row_bytes.saturating_mul(rows);
     let present = file_len.saturating_sub(data_start);
@@ -1243,12 +1355,61 @@ fn parse_header(
             ),
         ));
     }
+    Ok(())
+}
 
+fn parse_header(
+    file: &mut FitsHandle,
+    path: &Path,
+    found: (usize, Option<String>),
+    file_len: u64,
+) -> Result<HealpixHeader> {
+    let (hdu, hdu_warning) = found;
+    let mut warnings: Vec<String> = hdu_warning.into_iter().collect();
+    file.move_to(hdu).map_err(|s| {
+        truncated_or_damaged(
+            path,
+            file_len,
+            format!("HDU {hdu} cannot be read, {}", cfitsio_text(s)),
+        )
+    })?;
+    let (nside, ordering, npix) = read_resolution(file, path, hdu, &mut warnings)?;
+    let coordsys = text_key(file, path, "COORDSYS")?;
+    let bad_data = read_bad_data(file, path)?;
+    let ncols = file.num_cols(path)?;
+    let rows = file.num_rows(path)?;
+    let mut cols = read_columns(file, path, ncols)?;
+    let coverage = read_coverage(file, path, &cols, &mut warnings)?;
+    let pixel_colnum = match coverage {
+        Coverage::Partial => Some(take_pixel_column(
+            path,
+            &mut cols,
+            rows,
+            nside,
+            npix,
+            &mut warnings,
+        )?),
+        Coverage::FullSky => None,
+    };
+    if cols.is_empty() {
+        return Err(Error::fits(path, "the HEALPix table has no value column"));
+    }
+    let pixel_range = read_pixel_range(file, path, coverage, nside, npix)?;
+    check_column_lengths(path, &cols, coverage, rows, nside, npix)?;
+    if nside > MAX_READ_NSIDE {
+        return Err(Error::fits(
+            path,
+            format!(
+                "NSIDE {nside} is above {MAX_READ_NSIDE}, the largest map planisphere reads into memory"
+            ),
+        ));
+    }
+    check_data_present(file, path, hdu, rows, file_len)?;
     let (value_colnums, columns) = cols.into_iter().map(|c| (c.colnum, c.info)).unzip();
     Ok(HealpixHeader {
         path: path.to_path_buf(),
         hdu,
-        nside: nside_u32,
+        nside,
         ordering,
         coverage,
         coordsys,
@@ -1362,11 +1523,7 @@ impl FitsHandle {
         let number = c_int::try_from(hdu + 1).unwrap_or(c_int::MAX);
         // SAFETY: open handle, out-pointers to locals.
         unsafe { sys::ffmahd(self.ptr, number, &mut kind, &mut status) };
-        if status == 0 {
-            Ok(kind)
-        } else {
-            Err(status)
-        }
+        status_result(status).map(|()| kind)
     }
 
     /// The raw value text of keyword `name` in the current HDU, `None` when absent.
@@ -1483,57 +1640,46 @@ impl FitsHandle {
         count: u64,
         float_column: bool,
     ) -> Result<Vec<f64>> {
-        let mut out = allocate(path, count as usize, 0.0f64)?;
-        if count == 0 {
-            return Ok(out);
-        }
         // cfitsio skips its null check when the null value is 0
-        let mut nulval = if float_column { 0.0 } else { f64::NAN };
-        let mut anynul = 0;
-        let mut status = 0;
-        // SAFETY: open handle; `out` holds exactly `count` f64 values; TDOUBLE matches f64.
-        unsafe {
-            sys::ffgcv(
-                self.ptr,
-                TDOUBLE,
-                colnum,
-                1,
-                1,
-                count as sys::LONGLONG,
-                &mut nulval as *mut f64 as *mut c_void,
-                out.as_mut_ptr() as *mut c_void,
-                &mut anynul,
-                &mut status,
-            )
-        };
-        if status != 0 {
-            return Err(Error::fits(
-                path,
-                format!("cannot read column {colnum} ({})", cfitsio_text(status)),
-            ));
-        }
-        Ok(out)
+        let nulval = if float_column { 0.0 } else { f64::NAN };
+        self.read_column(path, colnum, count, Some(nulval))
     }
 
     /// `count` values of integer column `colnum` from its start, as i64.
     fn read_longs(&mut self, path: &Path, colnum: c_int, count: u64) -> Result<Vec<i64>> {
-        let mut out = allocate(path, count as usize, 0i64)?;
+        self.read_column(path, colnum, count, None)
+    }
+
+    /// `count` values of column `colnum` from its start, converted by cfitsio to `T`; null
+    /// values become `nulval`, and with `None` cfitsio does no null check.
+    fn read_column<T: ColumnValue>(
+        &mut self,
+        path: &Path,
+        colnum: c_int,
+        count: u64,
+        mut nulval: Option<T>,
+    ) -> Result<Vec<T>> {
+        let mut out = allocate(path, count as usize, T::default())?;
         if count == 0 {
             return Ok(out);
         }
+        let nulval_ptr = match nulval.as_mut() {
+            Some(v) => v as *mut T as *mut c_void,
+            None => std::ptr::null_mut(),
+        };
         let mut anynul = 0;
         let mut status = 0;
-        // SAFETY: open handle; `out` holds exactly `count` i64 values; TLONGLONG matches i64; a
-        // null `nulval` disables null checking.
+        // SAFETY: open handle; `out` holds exactly `count` values of `T`, whose cfitsio type is
+        // `T::DATATYPE`; `nulval_ptr` is null (no null check) or points to one `T`.
         unsafe {
             sys::ffgcv(
                 self.ptr,
-                TLONGLONG,
+                T::DATATYPE,
                 colnum,
                 1,
                 1,
                 count as sys::LONGLONG,
-                std::ptr::null_mut(),
+                nulval_ptr,
                 out.as_mut_ptr() as *mut c_void,
                 &mut anynul,
                 &mut status,
@@ -1584,11 +1730,7 @@ impl FitsHandle {
                 &mut status,
             )
         };
-        if status == 0 {
-            Ok(())
-        } else {
-            Err(status)
-        }
+        status_result(status)
     }
 
     fn write_key(
@@ -1611,11 +1753,7 @@ impl FitsHandle {
                 unsafe { sys::ffpkyj(self.ptr, k.as_ptr(), *i, c.as_ptr(), &mut status) };
             }
         }
-        if status == 0 {
-            Ok(())
-        } else {
-            Err(status)
-        }
+        status_result(status)
     }
 
     /// Writes `values` into column `colnum` starting at 0-based element `start` of the column
@@ -1645,11 +1783,7 @@ impl FitsHandle {
                 &mut status,
             )
         };
-        if status == 0 {
-            Ok(())
-        } else {
-            Err(status)
-        }
+        status_result(status)
     }
 
     /// Writes integer `values` into column `colnum` from row 1 (one value per row).
@@ -1668,11 +1802,7 @@ impl FitsHandle {
                 &mut status,
             )
         };
-        if status == 0 {
-            Ok(())
-        } else {
-            Err(status)
-        }
+        status_result(status)
     }
 
     /// Closes the file, reporting whether the final flush succeeded.
@@ -1681,10 +1811,6 @@ impl FitsHandle {
         // SAFETY: open handle, closed exactly once (the pointer is cleared so Drop skips it).
         unsafe { sys::ffclos(self.ptr, &mut status) };
         self.ptr = std::ptr::null_mut();
-        if status == 0 {
-            Ok(())
-        } else {
-            Err(status)
-        }
+        status_result(status)
     }
 }

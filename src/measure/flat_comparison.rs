@@ -20,11 +20,12 @@ use crate::harmonics::spectrum::AngularSpectrum;
 use crate::measure::flat::gaussian_random_field;
 use crate::measure::measurement::{border_window, MeasurementSettings, SphereMeasurer};
 use crate::scattering::pooling::pooled_coefficients;
-use crate::scattering::statistics::{CoefficientKind, CoefficientSpelling};
+use crate::scattering::statistics::{CoefficientKind, CoefficientSet, CoefficientSpelling};
 use crate::scattering::transform::TileView;
 use crate::simulate::skies::SkyRecipe;
 use crate::sky::footprint::Footprint;
 use crate::sky::pixelization::{Ordering, Pixelization};
+use crate::tiles::tiling::TilingSummary;
 
 /// What to compare.
 #[derive(Debug, Clone)]
@@ -227,21 +228,7 @@ fn scale_convergence(
 
 /// Runs the comparison.
 pub fn compare_flat(settings: &FlatComparisonSettings) -> Result<FlatComparison> {
-    if settings.skies < 2 || settings.flat_fields < 2 {
-        return Err(Error::Setting(
-            "the comparison needs at least 2 skies and 2 flat fields".into(),
-        ));
-    }
-    if settings.tile_pixels.is_empty() {
-        return Err(Error::Setting("give at least one tile size".into()));
-    }
-    if let (Some(m), Some(&n)) = (settings.reference_pixels, settings.tile_pixels.iter().max()) {
-        if m < n {
-            return Err(Error::Setting(format!(
-                "the flat reference fields ({m} pixels) must be at least as large as the largest tile ({n} pixels)"
-            )));
-        }
-    }
+    check_settings(settings)?;
     let pix = Pixelization::new(settings.nside, Ordering::Ring)?;
     let full = Footprint::full_sky(pix);
     let mut recipe = SkyRecipe::gaussian(settings.nside, settings.spectrum.clone(), settings.seed);
@@ -274,17 +261,7 @@ pub fn compare_flat(settings: &FlatComparisonSettings) -> Result<FlatComparison>
         let delta = measurer.plan().pixel_size();
         let taper = border_window(n, ms.border_pixels);
         let halo = ms.halo();
-        let weight: Vec<f64> = (0..n * n)
-            .map(|k| {
-                let (x, y) = (k % n, k / n);
-                let inside = |i: usize| i >= halo && i < n - halo;
-                if inside(x) && inside(y) {
-                    1.0
-                } else {
-                    0.0
-                }
-            })
-            .collect();
+        let weight = central_square_weight(n, halo);
         let power = |k: f64| spectrum_at(cl, k - 0.5);
         let m = settings
             .reference_pixels
@@ -317,54 +294,103 @@ pub fn compare_flat(settings: &FlatComparisonSettings) -> Result<FlatComparison>
         let flat = reference(m, 0xF1A7)?;
         let doubled = reference(2 * m, 0x0002_F1A7_0000)?;
         scales.extend(scale_convergence(n, m, &flat, &doubled));
-        for (k, c) in sphere[0].coefficients.iter().enumerate() {
-            if matches!(
-                c.label.kind,
-                CoefficientKind::Mean | CoefficientKind::Variance
-            ) {
-                continue;
-            }
-            let s: Vec<f64> = sphere.iter().map(|set| set.coefficients[k].value).collect();
-            let f: Vec<f64> = flat.iter().map(|set| set.coefficients[k].value).collect();
-            let f2: Vec<f64> = doubled
-                .iter()
-                .map(|set| set.coefficients[k].value)
-                .collect();
-            let (sm, ss) = mean_and_std(&s);
-            let (fm, fs) = mean_and_std(&f);
-            let (fm2, fs2) = mean_and_std(&f2);
-            let se = ss / (s.len() as f64).sqrt();
-            let fe = fs / (f.len() as f64).sqrt();
-            let fe2 = fs2 / (f2.len() as f64).sqrt();
-            let change_in_errors = (fm2 - fm) / (fe * fe + fe2 * fe2).sqrt();
-            let diff = sm - fm;
-            let l = c.label;
-            let name = l.name(CoefficientSpelling::Short);
-            rows.push(FlatComparisonRow {
-                tile_pixels: n,
-                tile_width_deg: summary.tile_width_deg,
-                cells: summary.cells.clone(),
-                coefficient: name,
-                order: l.order,
-                j1: l.j1,
-                sphere_mean: sm,
-                sphere_error: se,
-                flat_mean: fm,
-                flat_error: fe,
-                relative_bias: diff / fm,
-                bias_in_errors: diff / (se * se + fe * fe).sqrt(),
-                bias_per_sky_scatter: if ss > 0.0 { diff / ss } else { f64::NAN },
-                trusted: sphere.iter().all(|set| set.coefficients[k].trusted),
-                reference_pixels: m,
-                reference_change: (fm2 - fm) / fm,
-                reference_change_in_errors: change_in_errors,
-                reference_converged: change_in_errors
-                    .is_finite()
-                    .then_some(change_in_errors.abs() < CONVERGENCE_ERRORS),
-            });
-        }
+        rows.extend(comparison_rows((n, m), &summary, &sphere, &flat, &doubled));
     }
     Ok(FlatComparison { rows, scales })
+}
+
+/// Refuses too few skies or flat fields, no tile size, or reference fields smaller than the
+/// largest tile.
+fn check_settings(settings: &FlatComparisonSettings) -> Result<()> {
+    if settings.skies < 2 || settings.flat_fields < 2 {
+        return Err(Error::Setting(
+            "the comparison needs at least 2 skies and 2 flat fields".into(),
+        ));
+    }
+    if settings.tile_pixels.is_empty() {
+        return Err(Error::Setting("give at least one tile size".into()));
+    }
+    if let (Some(m), Some(&n)) = (settings.reference_pixels, settings.tile_pixels.iter().max()) {
+        if m < n {
+            return Err(Error::Setting(format!(
+                "the flat reference fields ({m} pixels) must be at least as large as the largest tile ({n} pixels)"
+            )));
+        }
+    }
+    Ok(())
+}
+
+/// Pooling weight of a flat n × n tile: 1 on the central square inside the halo, 0 outside.
+fn central_square_weight(n: usize, halo: usize) -> Vec<f64> {
+    (0..n * n)
+        .map(|k| {
+            let (x, y) = (k % n, k / n);
+            let inside = |i: usize| i >= halo && i < n - halo;
+            if inside(x) && inside(y) {
+                1.0
+            } else {
+                0.0
+            }
+        })
+        .collect()
+}
+
+/// One row per coefficient (mean and variance left out) of tile size n: the sphere ensemble
+/// against the flat reference fields of m pixels, and the change of the reference at 2m.
+fn comparison_rows(
+    (n, m): (usize, usize),
+    summary: &TilingSummary,
+    sphere: &[CoefficientSet],
+    flat: &[CoefficientSet],
+    doubled: &[CoefficientSet],
+) -> Vec<FlatComparisonRow> {
+    let mut rows = Vec::new();
+    for (k, c) in sphere[0].coefficients.iter().enumerate() {
+        if matches!(
+            c.label.kind,
+            CoefficientKind::Mean | CoefficientKind::Variance
+        ) {
+            continue;
+        }
+        let s: Vec<f64> = sphere.iter().map(|set| set.coefficients[k].value).collect();
+        let f: Vec<f64> = flat.iter().map(|set| set.coefficients[k].value).collect();
+        let f2: Vec<f64> = doubled
+            .iter()
+            .map(|set| set.coefficients[k].value)
+            .collect();
+        let (sm, ss) = mean_and_std(&s);
+        let (fm, fs) = mean_and_std(&f);
+        let (fm2, fs2) = mean_and_std(&f2);
+        let se = ss / (s.len() as f64).sqrt();
+        let fe = fs / (f.len() as f64).sqrt();
+        let fe2 = fs2 / (f2.len() as f64).sqrt();
+        let change_in_errors = (fm2 - fm) / (fe * fe + fe2 * fe2).sqrt();
+        let diff = sm - fm;
+        let l = c.label;
+        rows.push(FlatComparisonRow {
+            tile_pixels: n,
+            tile_width_deg: summary.tile_width_deg,
+            cells: summary.cells.clone(),
+            coefficient: l.name(CoefficientSpelling::Short),
+            order: l.order,
+            j1: l.j1,
+            sphere_mean: sm,
+            sphere_error: se,
+            flat_mean: fm,
+            flat_error: fe,
+            relative_bias: diff / fm,
+            bias_in_errors: diff / (se * se + fe * fe).sqrt(),
+            bias_per_sky_scatter: if ss > 0.0 { diff / ss } else { f64::NAN },
+            trusted: sphere.iter().all(|set| set.coefficients[k].trusted),
+            reference_pixels: m,
+            reference_change: (fm2 - fm) / fm,
+            reference_change_in_errors: change_in_errors,
+            reference_converged: change_in_errors
+                .is_finite()
+                .then_some(change_in_errors.abs() < CONVERGENCE_ERRORS),
+        });
+    }
+    rows
 }
 
 /// The taper and pooling weight of a flat reference tile (those of the sphere tiles).

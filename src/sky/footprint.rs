@@ -202,14 +202,14 @@ impl Footprint {
     /// The footprint to use with `map`: this mask brought to the map's ordering, with the map's
     /// invalid pixels removed. Errors when the NSIDEs differ or nothing of the footprint is left.
     pub fn restricted_to(&self, map: &SkyMapOf<'_>) -> Result<Footprint> {
-        self.check_nside_of(map)?;
+        self.check_map_nside(map.nside())?;
         self.to_ordering(map.ordering())?.without_bad_pixels_of(map)
     }
 
     /// As [`Self::restricted_to`], giving up this footprint: in the map's ordering its weights
     /// are changed in place (no second full-sky array).
     pub fn into_restricted_to(self, map: &SkyMapOf<'_>) -> Result<Footprint> {
-        self.check_nside_of(map)?;
+        self.check_map_nside(map.nside())?;
         let fp = if self.pixelization.ordering() == map.ordering() {
             self
         } else {
@@ -218,12 +218,12 @@ impl Footprint {
         fp.without_bad_pixels_of(map)
     }
 
-    fn check_nside_of(&self, map: &SkyMapOf<'_>) -> Result<()> {
-        if self.pixelization.nside() != map.nside() {
+    /// Refuses a map of another NSIDE than the footprint's.
+    pub fn check_map_nside(&self, map_nside: u32) -> Result<()> {
+        if self.pixelization.nside() != map_nside {
             return Err(Error::Mismatch(format!(
-                "mask NSIDE {} does not match map NSIDE {}",
+                "mask NSIDE {} does not match map NSIDE {map_nside}",
                 self.pixelization.nside(),
-                map.nside()
             )));
         }
         Ok(())

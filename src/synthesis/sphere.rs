@@ -163,6 +163,56 @@ impl std::fmt::Debug for SphereSynthesis {
     }
 }
 
+/// Refuses settings a sphere synthesis cannot run with.
+fn check_sphere_settings(settings: &SynthesisSettings) -> Result<()> {
+    if settings.iterations == 0 {
+        return Err(Error::Setting(
+            "the number of iterations must be at least 1".into(),
+        ));
+    }
+    if settings.memory == 0 {
+        return Err(Error::Setting(
+            "the L-BFGS memory must be at least 1 pair".into(),
+        ));
+    }
+    if settings.power_spectrum_bins.is_some() {
+        return Err(Error::Setting(
+            "the power-spectrum term is only available for flat fields".into(),
+        ));
+    }
+    Ok(())
+}
+
+/// Keeps every tile's sampling operator and estimator geometry when together they fit in
+/// [`CACHE_BYTES`] (tiles of n × n pixels); otherwise they are rebuilt at each evaluation.
+fn cache_tile_parts(
+    tiles: &mut [SphereTile],
+    sampler: &TileSampler<'_>,
+    transform: &DifferentiableScattering,
+    measurement: &MeasurementSettings,
+    n: usize,
+) -> Result<()> {
+    // ring-cubic rows read up to 16 pixels (16 bytes per entry); the geometry holds about
+    // 2J + J(J−1)/2 + 4 grids
+    let jn = measurement.scales;
+    let per_tile = n * n * (16 * 16 + 8 * (2 * jn + jn * jn.saturating_sub(1) / 2 + 4));
+    if tiles.len() * per_tile <= CACHE_BYTES {
+        let parts: Vec<(TileSamplingOperator, TileGeometry)> = tiles
+            .par_iter()
+            .map(|t| {
+                Ok((
+                    sampler.operator(t.index)?,
+                    transform.tile_geometry(&t.taper, &t.weight, &measurement.transform)?,
+                ))
+            })
+            .collect::<Result<_>>()?;
+        for (t, part) in tiles.iter_mut().zip(parts) {
+            t.cached = Some(part);
+        }
+    }
+    Ok(())
+}
+
 impl SphereSynthesis {
     /// Plans the tiles of `footprint` for maps of pixelization `map` with `measurement`
     /// settings and prepares the synthesis. The power-spectrum term of the flat synthesis is
@@ -177,28 +227,8 @@ impl SphereSynthesis {
         measurement: MeasurementSettings,
         settings: SynthesisSettings,
     ) -> Result<Self> {
-        if settings.iterations == 0 {
-            return Err(Error::Setting(
-                "the number of iterations must be at least 1".into(),
-            ));
-        }
-        if settings.memory == 0 {
-            return Err(Error::Setting(
-                "the L-BFGS memory must be at least 1 pair".into(),
-            ));
-        }
-        if settings.power_spectrum_bins.is_some() {
-            return Err(Error::Setting(
-                "the power-spectrum term is only available for flat fields".into(),
-            ));
-        }
-        if footprint.pixelization().nside() != map.nside() {
-            return Err(Error::Mismatch(format!(
-                "mask NSIDE {} does not match map NSIDE {}",
-                footprint.pixelization().nside(),
-                map.nside()
-            )));
-        }
+        check_sphere_settings(&settings)?;
+        footprint.check_map_nside(map.nside())?;
         let footprint = footprint.to_ordering(map.ordering())?;
         let measurement = measurement.at_map_spacing_unless_set(map);
         let summary = match settings.statistics {
@@ -232,24 +262,13 @@ impl SphereSynthesis {
                 "no tile has positive pooling weight: the apodized footprint is empty".into(),
             ));
         }
-        // ring-cubic rows read up to 16 pixels (16 bytes per entry); the geometry holds about
-        // 2J + J(J−1)/2 + 4 grids
-        let (n, jn) = (measurer.plan().tile_pixels(), measurement.scales);
-        let per_tile = n * n * (16 * 16 + 8 * (2 * jn + jn * jn.saturating_sub(1) / 2 + 4));
-        if tiles.len() * per_tile <= CACHE_BYTES {
-            let parts: Vec<(TileSamplingOperator, TileGeometry)> = tiles
-                .par_iter()
-                .map(|t| {
-                    Ok((
-                        sampler.operator(t.index)?,
-                        transform.tile_geometry(&t.taper, &t.weight, &measurement.transform)?,
-                    ))
-                })
-                .collect::<Result<_>>()?;
-            for (t, part) in tiles.iter_mut().zip(parts) {
-                t.cached = Some(part);
-            }
-        }
+        cache_tile_parts(
+            &mut tiles,
+            &sampler,
+            &transform,
+            &measurement,
+            measurer.plan().tile_pixels(),
+        )?;
         drop(sampler);
         let variables: Vec<usize> = footprint
             .weights()

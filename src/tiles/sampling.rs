@@ -421,13 +421,7 @@ impl<'a> TileSampler<'a> {
         }
         let map_pix = map.pixelization();
         let mask_pix = mask.pixelization();
-        if mask_pix.nside() != map_pix.nside() {
-            return Err(Error::Mismatch(format!(
-                "mask NSIDE {} does not match map NSIDE {}",
-                mask_pix.nside(),
-                map_pix.nside()
-            )));
-        }
+        mask.check_map_nside(map_pix.nside())?;
         let weights: Cow<'a, [f64]> = if mask_pix.ordering() == map_pix.ordering() {
             Cow::Borrowed(mask.weights())
         } else {
@@ -784,73 +778,15 @@ impl TileSampler<'_> {
         let proj = Gnomonic::new(tile.center);
         let n = plan.tile_pixels();
         let pix = self.map.pixelization();
-        let valid = self.map.valid();
         let coords: Vec<f64> = (0..n).map(|k| plan.plane_coordinate(k)).collect();
         let mut starts = Vec::with_capacity(n * n + 1);
         let mut pixels = Vec::with_capacity(n * n * 4);
         let mut weights = Vec::with_capacity(n * n * 4);
         let mut divisors = Vec::with_capacity(n * n);
         starts.push(0);
-        // Renormalised linear weights over the valid neighbours: entries and their sum.
-        let linear = |pairs: &[(u64, f64)], pixels: &mut Vec<u64>, weights: &mut Vec<f64>| -> f64 {
-            let mut wsum = 0.0;
-            for &(i, wt) in pairs {
-                if wt > 0.0 && valid[i as usize] {
-                    pixels.push(i);
-                    weights.push(wt);
-                    wsum += wt;
-                }
-            }
-            if wsum > 0.0 {
-                wsum
-            } else {
-                1.0
-            }
-        };
         for &y in &coords {
             for &x in &coords {
-                let dir = proj.inverse(x, y);
-                let divisor = match self.method {
-                    SamplingMethod::Bilinear => {
-                        linear(&pix.bilinear_weights(dir)?, &mut pixels, &mut weights)
-                    }
-                    SamplingMethod::Nearest => {
-                        let i = pix.pixel_of(dir);
-                        if valid[i as usize] {
-                            pixels.push(i);
-                            weights.push(1.0);
-                        }
-                        1.0
-                    }
-                    SamplingMethod::RingLinear => {
-                        let w = ring_interpolation_weights(pix.nside(), dir)
-                            .iter()
-                            .map(|&(p, wt)| Ok((ring_to_map(pix, p)?, wt)))
-                            .collect::<Result<Vec<_>>>()?;
-                        linear(&w, &mut pixels, &mut weights)
-                    }
-                    SamplingMethod::RingCubic => {
-                        let cubic = ring_cubic_interpolation_weights(pix.nside(), dir)
-                            .iter()
-                            .filter(|&&(_, wt)| wt != 0.0)
-                            .map(|&(p, wt)| Ok((ring_to_map(pix, p)?, wt)))
-                            .collect::<Result<Vec<_>>>()?;
-                        if cubic.iter().all(|&(i, _)| valid[i as usize]) {
-                            for (i, wt) in cubic {
-                                pixels.push(i);
-                                weights.push(wt);
-                            }
-                            1.0
-                        } else {
-                            // next to bad pixels: the linear value over the valid ones
-                            let w = ring_interpolation_weights(pix.nside(), dir)
-                                .iter()
-                                .map(|&(p, wt)| Ok((ring_to_map(pix, p)?, wt)))
-                                .collect::<Result<Vec<_>>>()?;
-                            linear(&w, &mut pixels, &mut weights)
-                        }
-                    }
-                };
+                let divisor = self.point_entries(proj.inverse(x, y), &mut pixels, &mut weights)?;
                 divisors.push(divisor);
                 starts.push(pixels.len());
             }
@@ -864,6 +800,85 @@ impl TileSampler<'_> {
             divisors,
         })
     }
+
+    /// Appends the entries (map pixel, weight) of the plane point in direction `dir` to
+    /// `pixels` and `weights` and returns the divisor of their sum.
+    fn point_entries(
+        &self,
+        dir: crate::sky::pixelization::Direction,
+        pixels: &mut Vec<u64>,
+        weights: &mut Vec<f64>,
+    ) -> Result<f64> {
+        let pix = self.map.pixelization();
+        let valid = self.map.valid();
+        Ok(match self.method {
+            SamplingMethod::Bilinear => {
+                push_linear(&pix.bilinear_weights(dir)?, valid, pixels, weights)
+            }
+            SamplingMethod::Nearest => {
+                let i = pix.pixel_of(dir);
+                if valid[i as usize] {
+                    pixels.push(i);
+                    weights.push(1.0);
+                }
+                1.0
+            }
+            SamplingMethod::RingLinear => {
+                push_linear(&ring_linear_pairs(pix, dir)?, valid, pixels, weights)
+            }
+            SamplingMethod::RingCubic => {
+                let cubic = ring_cubic_interpolation_weights(pix.nside(), dir)
+                    .iter()
+                    .filter(|&&(_, wt)| wt != 0.0)
+                    .map(|&(p, wt)| Ok((ring_to_map(pix, p)?, wt)))
+                    .collect::<Result<Vec<_>>>()?;
+                if cubic.iter().all(|&(i, _)| valid[i as usize]) {
+                    for (i, wt) in cubic {
+                        pixels.push(i);
+                        weights.push(wt);
+                    }
+                    1.0
+                } else {
+                    // next to bad pixels: the linear value over the valid ones
+                    push_linear(&ring_linear_pairs(pix, dir)?, valid, pixels, weights)
+                }
+            }
+        })
+    }
+}
+
+/// Renormalised linear weights over the valid neighbours: appends the entries of positive
+/// weight at valid pixels and returns their sum (1 when there is none).
+fn push_linear(
+    pairs: &[(u64, f64)],
+    valid: &[bool],
+    pixels: &mut Vec<u64>,
+    weights: &mut Vec<f64>,
+) -> f64 {
+    let mut wsum = 0.0;
+    for &(i, wt) in pairs {
+        if wt > 0.0 && valid[i as usize] {
+            pixels.push(i);
+            weights.push(wt);
+            wsum += wt;
+        }
+    }
+    if wsum > 0.0 {
+        wsum
+    } else {
+        1.0
+    }
+}
+
+/// The ring-linear interpolation weights at `dir`, with pixels in `pix`'s ordering.
+fn ring_linear_pairs(
+    pix: Pixelization,
+    dir: crate::sky::pixelization::Direction,
+) -> Result<Vec<(u64, f64)>> {
+    ring_interpolation_weights(pix.nside(), dir)
+        .iter()
+        .map(|&(p, wt)| Ok((ring_to_map(pix, p)?, wt)))
+        .collect()
 }
 
 /// Index in `pix`'s ordering of RING pixel `p`.
@@ -1028,23 +1043,32 @@ pub fn plane_wave_transfer(
             truth.push(wave(x, y));
         }
     }
+    Ok(transfer_of(&sampled, &truth))
+}
+
+/// The gain G = Σ s·t̄ / Σ |t|² of sampled values s against the true wave t, as |G|², and the
+/// power scattered away from the wave, Σ |s − G t|² / Σ |t|².
+fn transfer_of(
+    sampled: &[num_complex::Complex64],
+    truth: &[num_complex::Complex64],
+) -> PlaneWaveTransfer {
     let norm: f64 = truth.iter().map(|t| t.norm_sqr()).sum();
     let gain = sampled
         .iter()
-        .zip(&truth)
+        .zip(truth)
         .map(|(s, t)| s * t.conj())
         .sum::<num_complex::Complex64>()
         / norm;
     let scattered: f64 = sampled
         .iter()
-        .zip(&truth)
+        .zip(truth)
         .map(|(s, t)| (s - gain * t).norm_sqr())
         .sum::<f64>()
         / norm;
-    Ok(PlaneWaveTransfer {
+    PlaneWaveTransfer {
         power: gain.norm_sqr(),
         scattered,
-    })
+    }
 }
 
 /// Index (1-based, HEALPix ring numbering) of the iso-latitude ring just north of colatitude

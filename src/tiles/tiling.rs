@@ -319,6 +319,74 @@ fn check_tile_pixels(n: usize) -> Result<()> {
     Ok(())
 }
 
+/// Largest |x| or |y| and largest x² + y² of the outline of coarse NESTED pixel `c` of NSIDE
+/// `nc` (sampled with `segments` points a side) in the gnomonic projection about `center`.
+fn coarse_cell_extent(center: Direction, nc: u32, c: u64, segments: u32) -> Result<(f64, f64)> {
+    let proj = Gnomonic::new(center);
+    let mut half = 0.0f64;
+    let mut r2max = 0.0f64;
+    let path = cdshealpix::nested::path_along_cell_edge(
+        cdshealpix::depth(nc),
+        c,
+        &cdshealpix::compass_point::Cardinal::S,
+        false,
+        segments,
+    );
+    for &(lon, lat) in path.iter() {
+        let d = Direction::new(FRAC_PI_2 - lat, lon);
+        match proj.forward(d) {
+            Some((x, y)) => {
+                half = half.max(x.abs()).max(y.abs());
+                r2max = r2max.max(x * x + y * y);
+            }
+            None => {
+                return Err(Error::Setting(format!(
+                    "coarse NSIDE {nc} gives tiles wider than a hemisphere; use a larger one"
+                )))
+            }
+        }
+    }
+    Ok((half, r2max))
+}
+
+/// Tile side for coarse HEALPix cells: the given size, checked, or the smallest FFT-friendly even
+/// size that holds the widest core plus the halo.
+fn coarse_tile_pixels(tiles: &[Tile], pixel_size: f64, settings: &TilingSettings) -> Result<usize> {
+    let widest = tiles.iter().map(|t| t.core_half_width).fold(0.0, f64::max);
+    let core_half = (widest / pixel_size).ceil();
+    let need_half = if core_half < (MAX_TILE_PIXELS / 2) as f64 {
+        (core_half as usize).saturating_add(settings.halo)
+    } else {
+        usize::MAX / 2
+    };
+    let need = 2 * need_half;
+    if need > MAX_TILE_PIXELS {
+        return Err(Error::Setting(format!(
+            "the core plus a halo of {} pixels needs more than {MAX_TILE_PIXELS} pixels per \
+                 tile side at {:.4} arcmin per pixel; use larger pixels, a smaller halo or a \
+                 larger coarse NSIDE",
+            settings.halo,
+            pixel_size.to_degrees() * 60.0
+        )));
+    }
+    Ok(match settings.tile_pixels {
+        Some(n) => {
+            check_tile_pixels(n)?;
+            if n < need {
+                return Err(Error::Setting(format!(
+                        "tiles of {n} × {n} pixels cannot hold the core plus a halo of {} pixels: \
+                         the widest core spans ±{} pixels of {:.4} arcmin, so n must be at least {need}",
+                        settings.halo,
+                        need_half - settings.halo,
+                        pixel_size.to_degrees() * 60.0
+                    )));
+            }
+            n
+        }
+        None => fft_friendly_even(need),
+    })
+}
+
 impl TilingPlan {
     /// Plans the tiles of `footprint` (at the map's NSIDE, any ordering) for a map of
     /// pixelization `map`. Keeps the cells that hold a footprint pixel of positive weight.
@@ -333,12 +401,7 @@ impl TilingPlan {
                 "map NSIDE {nside} is not a power of two, which tiling needs"
             )));
         }
-        if footprint.pixelization().nside() != nside {
-            return Err(Error::Mismatch(format!(
-                "mask NSIDE {} does not match map NSIDE {nside}",
-                footprint.pixelization().nside()
-            )));
-        }
+        footprint.check_map_nside(nside)?;
         let pixel_size = settings.pixel_size.unwrap_or(map.mean_spacing());
         if !(pixel_size.is_finite() && pixel_size > 0.0) {
             return Err(Error::Setting(format!(
@@ -361,34 +424,7 @@ impl TilingPlan {
                 Self::healpix_cells(map, footprint, coarse_nside, pixel_size, settings)?
             }
             CellLayout::LatitudeBands => {
-                let n = match settings.tile_pixels {
-                    Some(n) => n,
-                    None => automatic_tile_pixels(settings.halo, pixel_size, 16),
-                };
-                check_tile_pixels(n)?;
-                if n <= 2 * settings.halo {
-                    return Err(Error::Setting(format!(
-                        "tiles of {n} × {n} pixels leave no core inside a halo of {} pixels; use \
-                         larger tiles or a smaller halo",
-                        settings.halo
-                    )));
-                }
-                let core_half = (n / 2 - settings.halo) as f64 * pixel_size;
-                let (layout, cells) = LatitudeBands::new(footprint, core_half, map.mean_spacing())?;
-                let tiles = cells
-                    .iter()
-                    .enumerate()
-                    .map(|(i, c)| Tile {
-                        cell: i as u64,
-                        center: c.center,
-                        footprint_fraction: c.footprint_weight / c.pixels.max(1) as f64,
-                        footprint_pixels: c.footprint_pixels,
-                        core_pixels: c.pixels,
-                        core_half_width: c.half_width,
-                        core_distortion: c.distortion,
-                    })
-                    .collect();
-                (Cells::Bands(layout), tiles, n)
+                Self::latitude_band_cells(map, footprint, pixel_size, settings)?
             }
         };
         let half_width = n as f64 / 2.0 * pixel_size;
@@ -412,6 +448,44 @@ impl TilingPlan {
             footprint_weight,
             footprint_pixels,
         })
+    }
+
+    /// Cells of the latitude-band layout, their tiles, and the tile size (given, or the
+    /// automatic choice).
+    fn latitude_band_cells(
+        map: Pixelization,
+        footprint: &Footprint,
+        pixel_size: f64,
+        settings: &TilingSettings,
+    ) -> Result<(Cells, Vec<Tile>, usize)> {
+        let n = match settings.tile_pixels {
+            Some(n) => n,
+            None => automatic_tile_pixels(settings.halo, pixel_size, 16),
+        };
+        check_tile_pixels(n)?;
+        if n <= 2 * settings.halo {
+            return Err(Error::Setting(format!(
+                "tiles of {n} × {n} pixels leave no core inside a halo of {} pixels; use \
+                 larger tiles or a smaller halo",
+                settings.halo
+            )));
+        }
+        let core_half = (n / 2 - settings.halo) as f64 * pixel_size;
+        let (layout, cells) = LatitudeBands::new(footprint, core_half, map.mean_spacing())?;
+        let tiles = cells
+            .iter()
+            .enumerate()
+            .map(|(i, c)| Tile {
+                cell: i as u64,
+                center: c.center,
+                footprint_fraction: c.footprint_weight / c.pixels.max(1) as f64,
+                footprint_pixels: c.footprint_pixels,
+                core_pixels: c.pixels,
+                core_half_width: c.half_width,
+                core_distortion: c.distortion,
+            })
+            .collect();
+        Ok((Cells::Bands(layout), tiles, n))
     }
 
     /// Cells from the coarse HEALPix pixels holding footprint, and the tile size.
@@ -444,7 +518,6 @@ impl TilingPlan {
         }
         let core_len = 1u64 << shift;
         let segments = (1u32 << (shift / 2)).clamp(8, 256);
-        let depth_coarse = cdshealpix::depth(nc);
         let mut tiles = Vec::new();
         let mut tile_of_coarse = vec![u32::MAX; ncoarse];
         for c in 0..ncoarse {
@@ -452,30 +525,7 @@ impl TilingPlan {
                 continue;
             }
             let center = coarse.center(c as u64);
-            let proj = Gnomonic::new(center);
-            let mut half = 0.0f64;
-            let mut r2max = 0.0f64;
-            let path = cdshealpix::nested::path_along_cell_edge(
-                depth_coarse,
-                c as u64,
-                &cdshealpix::compass_point::Cardinal::S,
-                false,
-                segments,
-            );
-            for &(lon, lat) in path.iter() {
-                let d = Direction::new(FRAC_PI_2 - lat, lon);
-                match proj.forward(d) {
-                    Some((x, y)) => {
-                        half = half.max(x.abs()).max(y.abs());
-                        r2max = r2max.max(x * x + y * y);
-                    }
-                    None => {
-                        return Err(Error::Setting(format!(
-                        "coarse NSIDE {nc} gives tiles wider than a hemisphere; use a larger one"
-                    )))
-                    }
-                }
-            }
+            let (half, r2max) = coarse_cell_extent(center, nc, c as u64, segments)?;
             tile_of_coarse[c] = tiles.len() as u32;
             tiles.push(Tile {
                 cell: c as u64,
@@ -487,39 +537,7 @@ impl TilingPlan {
                 core_distortion: 1.0 + r2max,
             });
         }
-        let widest = tiles.iter().map(|t| t.core_half_width).fold(0.0, f64::max);
-        let core_half = (widest / pixel_size).ceil();
-        let need_half = if core_half < (MAX_TILE_PIXELS / 2) as f64 {
-            (core_half as usize).saturating_add(settings.halo)
-        } else {
-            usize::MAX / 2
-        };
-        let need = 2 * need_half;
-        if need > MAX_TILE_PIXELS {
-            return Err(Error::Setting(format!(
-                "the core plus a halo of {} pixels needs more than {MAX_TILE_PIXELS} pixels per \
-                 tile side at {:.4} arcmin per pixel; use larger pixels, a smaller halo or a \
-                 larger coarse NSIDE",
-                settings.halo,
-                pixel_size.to_degrees() * 60.0
-            )));
-        }
-        let n = match settings.tile_pixels {
-            Some(n) => {
-                check_tile_pixels(n)?;
-                if n < need {
-                    return Err(Error::Setting(format!(
-                        "tiles of {n} × {n} pixels cannot hold the core plus a halo of {} pixels: \
-                         the widest core spans ±{} pixels of {:.4} arcmin, so n must be at least {need}",
-                        settings.halo,
-                        need_half - settings.halo,
-                        pixel_size.to_degrees() * 60.0
-                    )));
-                }
-                n
-            }
-            None => fft_friendly_even(need),
-        };
+        let n = coarse_tile_pixels(&tiles, pixel_size, settings)?;
         Ok((
             Cells::Healpix {
                 coarse,

@@ -10,7 +10,7 @@ use crate::sky::pixelization::Direction;
 use crate::sky::skymap::SkyMap;
 use crate::tiles::projection::Gnomonic;
 use plotters::prelude::*;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 /// Side of a zoomed panel, picture pixels.
 const ZOOM_SIDE: u32 = 300;
@@ -87,78 +87,86 @@ pub(super) fn write_sphere_picture(
     let half = (ZOOM_HALF_SPACINGS * spacing).tan();
     let projection = Gnomonic::new(centre);
     let span = if hi > lo { hi - lo } else { 1.0 };
-    crate::files::write_atomically(path, |tmp| {
-        let mut png = tmp.as_os_str().to_owned();
-        png.push(".png");
-        let png = PathBuf::from(png);
-        let fail = draw_error(path);
-        let draw = || -> Result<()> {
-            let root = BitMapBackend::new(&png, (width, height)).into_drawing_area();
-            root.fill(&WHITE).map_err(|e| fail(&e))?;
-            let mut x0 = 0i32;
-            for p in mollweide {
-                let (w, h) = p.size();
-                let area = root.clone().shrink((x0, 0), (w, h));
-                p.render_on(&area, &png)?;
-                x0 += w as i32;
-            }
-            // zoomed gnomonic panels
-            let y0 = top_h as i32;
-            let (lon, lat) = centre.lonlat();
+    let fail = draw_error(path);
+    crate::figures::plotting::write_png_atomically(path, (width, height), |root, png| {
+        let mut x0 = 0i32;
+        for p in mollweide {
+            let (w, h) = p.size();
+            let area = root.clone().shrink((x0, 0), (w, h));
+            p.render_on(&area, png)?;
+            x0 += w as i32;
+        }
+        // zoomed gnomonic panels
+        let y0 = top_h as i32;
+        let (lon, lat) = centre.lonlat();
+        root.draw(&Text::new(
+            format!(
+                "zoom: gnomonic view {:.1}° across, centred on lon {:.1}°, lat {:.1}°",
+                2.0 * ZOOM_HALF_SPACINGS * spacing.to_degrees(),
+                lon.to_degrees(),
+                lat.to_degrees()
+            ),
+            (margin as i32, y0),
+            (FONT_FAMILY, 16).into_font(),
+        ))
+        .map_err(|e| fail(&e))?;
+        for (k, m) in maps.iter().enumerate() {
+            let px0 = (margin + k as u32 * (ZOOM_SIDE + margin)) as i32;
+            let py0 = y0 + title_h as i32;
             root.draw(&Text::new(
-                format!(
-                    "zoom: gnomonic view {:.1}° across, centred on lon {:.1}°, lat {:.1}°",
-                    2.0 * ZOOM_HALF_SPACINGS * spacing.to_degrees(),
-                    lon.to_degrees(),
-                    lat.to_degrees()
-                ),
-                (margin as i32, y0),
-                (FONT_FAMILY, 16).into_font(),
+                m.title.to_string(),
+                (px0, py0 - 8),
+                (FONT_FAMILY, 15).into_font(),
             ))
             .map_err(|e| fail(&e))?;
-            for (k, m) in maps.iter().enumerate() {
-                let px0 = (margin + k as u32 * (ZOOM_SIDE + margin)) as i32;
-                let py0 = y0 + title_h as i32;
-                root.draw(&Text::new(
-                    m.title.to_string(),
-                    (px0, py0 - 8),
-                    (FONT_FAMILY, 15).into_font(),
-                ))
-                .map_err(|e| fail(&e))?;
-                for iy in 0..ZOOM_SIDE {
-                    for ix in 0..ZOOM_SIDE {
-                        // x to the east (left on the sky as seen from inside: drawn mirrored
-                        // like the Mollweide views, east to the left), y to the north
-                        let x = -half + 2.0 * half * (ix as f64 + 0.5) / ZOOM_SIDE as f64;
-                        let y = half - 2.0 * half * (iy as f64 + 0.5) / ZOOM_SIDE as f64;
-                        let d = projection.inverse(-x, y);
-                        let [r, g, b] = match m.map.nearest(d) {
-                            Some(v) => colour_ramp((v - lo) / span),
-                            None => [235, 235, 235],
-                        };
-                        root.draw_pixel((px0 + ix as i32, py0 + 4 + iy as i32), &RGBColor(r, g, b))
-                            .map_err(|e| fail(&e))?;
-                    }
-                }
-            }
-            // histograms and peak counts, right of the zoomed views
-            let cy = top_h as i32;
-            let cx = zoom_w as i32;
-            let hist_area = root.clone().shrink((cx, cy), (chart_w, chart_h));
-            draw_histograms(&hist_area, maps).map_err(|e| fail(&e))?;
-            let peak_area = root
-                .clone()
-                .shrink((cx + (chart_w + margin) as i32, cy), (chart_w, chart_h));
-            draw_peaks(&peak_area, maps, thresholds).map_err(|e| fail(&e))?;
-            root.present().map_err(|e| fail(&e))
-        };
-        let result =
-            draw().and_then(|()| std::fs::rename(&png, tmp).map_err(|e| Error::io(path, e)));
-        if result.is_err() {
-            let _ = std::fs::remove_file(&png);
+            draw_zoomed_map(
+                root,
+                m.map,
+                (px0, py0 + 4),
+                (&projection, half),
+                (lo, span),
+                &fail,
+            )?;
         }
-        result
+        // histograms and peak counts, right of the zoomed views
+        let cy = top_h as i32;
+        let cx = zoom_w as i32;
+        let hist_area = root.clone().shrink((cx, cy), (chart_w, chart_h));
+        draw_histograms(&hist_area, maps).map_err(|e| fail(&e))?;
+        let peak_area = root
+            .clone()
+            .shrink((cx + (chart_w + margin) as i32, cy), (chart_w, chart_h));
+        draw_peaks(&peak_area, maps, thresholds).map_err(|e| fail(&e))?;
+        Ok(())
     })
+}
+
+/// Draws `map` as seen in the gnomonic `projection` over |x|, |y| ≤ `half` (nearest pixel,
+/// colours over `lo` … `lo + span`) in a square of [`ZOOM_SIDE`] pixels from `(x0, y0)`.
+fn draw_zoomed_map(
+    root: &Area<'_>,
+    map: &SkyMap,
+    (x0, y0): (i32, i32),
+    (projection, half): (&Gnomonic, f64),
+    (lo, span): (f64, f64),
+    fail: &dyn Fn(&dyn std::fmt::Display) -> Error,
+) -> Result<()> {
+    for iy in 0..ZOOM_SIDE {
+        for ix in 0..ZOOM_SIDE {
+            // x to the east (left on the sky as seen from inside: drawn mirrored
+            // like the Mollweide views, east to the left), y to the north
+            let x = -half + 2.0 * half * (ix as f64 + 0.5) / ZOOM_SIDE as f64;
+            let y = half - 2.0 * half * (iy as f64 + 0.5) / ZOOM_SIDE as f64;
+            let d = projection.inverse(-x, y);
+            let [r, g, b] = match map.nearest(d) {
+                Some(v) => colour_ramp((v - lo) / span),
+                None => [235, 235, 235],
+            };
+            root.draw_pixel((x0 + ix as i32, y0 + iy as i32), &RGBColor(r, g, b))
+                .map_err(|e| fail(&e))?;
+        }
+    }
+    Ok(())
 }
 
 type Area<'b> = DrawingArea<BitMapBackend<'b>, plotters::coord::Shift>;

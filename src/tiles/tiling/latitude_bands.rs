@@ -102,6 +102,41 @@ impl Band {
         let k = ((phi / TAU * nb as f64) as usize).min(nb - 1);
         self.bin_cell[k].map(|c| c as usize)
     }
+
+    /// Stretches of longitude bins that belong to one cell: (first bin, end bin, cell); none
+    /// for a cap.
+    fn cell_stretches(&self) -> Vec<(usize, usize, usize)> {
+        let mut stretches: Vec<(usize, usize, usize)> = Vec::new();
+        if !self.cap {
+            for (k, c) in self.bin_cell.iter().enumerate() {
+                match (c, stretches.last_mut()) {
+                    (Some(c), Some(last)) if last.1 == k && last.2 == *c as usize => last.1 = k + 1,
+                    (Some(c), _) => stretches.push((k, k + 1, *c as usize)),
+                    (None, _) => {}
+                }
+            }
+        }
+        stretches
+    }
+
+    /// The number of positions of ring `i` (of `len` pixels) whose longitude bin is below `k`.
+    /// The bin of pixel j (the arithmetic of [`Band::cell_of`]) does not decrease with j, so the
+    /// pixels of a stretch of bins are one range of positions, found by bisection.
+    fn ring_positions_below(&self, nside: u64, i: u64, len: u64, k: usize) -> u64 {
+        let nb = self.bin_cell.len();
+        let bin_of =
+            |j: u64| ((ring_pixel_phi(nside, i, j) / TAU * nb as f64) as usize).min(nb - 1);
+        let (mut lo, mut hi) = (0u64, len);
+        while lo < hi {
+            let mid = lo + (hi - lo) / 2;
+            if bin_of(mid) < k {
+                lo = mid + 1;
+            } else {
+                hi = mid;
+            }
+        }
+        lo
+    }
 }
 
 /// A cell of the layout, as seen by the plan.
@@ -147,52 +182,61 @@ fn outline_extent(proj: &Gnomonic, t0: f64, t1: f64, p0: f64, p1: f64) -> Option
     Some((half, r2))
 }
 
-impl LatitudeBands {
-    /// Lays out the cells of `footprint` (a map of NSIDE `nside`) for tiles whose cores must fit
-    /// in |x|, |y| ≤ `core_half` (radians of the tangent plane), with a margin of `margin`
-    /// radians all round. Returns the layout and its cells, one per tile, in tile order (bands
-    /// from north to south, cells in increasing longitude).
-    pub(crate) fn new(
-        footprint: &Footprint,
-        core_half: f64,
-        margin: f64,
-    ) -> Result<(Self, Vec<BandCell>)> {
-        let fp_pix = footprint.pixelization();
-        let nside = fp_pix.nside() as u64;
-        // Room for the ungrown cell: moving a point by m on the sphere moves it by at most
-        // m·sec²ρ ≤ m(1 + 2c²) on the plane within the square (radial scale, Snyder 1987, §22).
-        let room = core_half - margin * (1.0 + 2.0 * core_half * core_half);
-        if room.is_nan() || room <= 0.0 {
-            return Err(Error::Setting(format!(
-                "the tile leaves no room for a core: its core half-width of {:.4}° is below the \
-                 margin of one map spacing ({:.4}°); use larger tiles or a smaller halo",
-                core_half.atan().to_degrees(),
-                margin.to_degrees()
-            )));
-        }
-        let reach = room.atan();
-        // The footprint's extent in colatitude, by rings.
-        let ring_count = 4 * nside - 1;
-        let ring_pix = Pixelization::new(nside as u32, Ordering::Ring)?;
-        let weights = footprint.weights();
-        // weight of the footprint at RING pixel p
-        let weight_at = |p: u64| -> Result<f64> {
-            Ok(match fp_pix.ordering() {
-                Ordering::Ring => weights[p as usize],
-                Ordering::Nested => weights[fp_pix.from_nested(ring_pix.to_nested(p)?)? as usize],
-            })
+/// The half-width left for the ungrown footprint of a core of half-width `core_half` with a
+/// margin `margin` (radians of the tangent plane): moving a point by m on the sphere moves it by
+/// at most m·sec²ρ ≤ m(1 + 2c²) on the plane within the square (radial scale, Snyder 1987, §22).
+fn core_room(core_half: f64, margin: f64) -> Result<f64> {
+    let room = core_half - margin * (1.0 + 2.0 * core_half * core_half);
+    if room.is_nan() || room <= 0.0 {
+        return Err(Error::Setting(format!(
+            "the tile leaves no room for a core: its core half-width of {:.4}° is below the \
+             margin of one map spacing ({:.4}°); use larger tiles or a smaller halo",
+            core_half.atan().to_degrees(),
+            margin.to_degrees()
+        )));
+    }
+    Ok(room)
+}
+
+/// The footprint ring by ring: its weights read in RING order and its runs of pixels.
+struct RingFootprint<'a> {
+    nside: u64,
+    pixelization: Pixelization,
+    ring_pixelization: Pixelization,
+    weights: &'a [f64],
+    /// Runs of footprint pixels (positive weight) along every ring (index ring − 1):
+    /// half-open position ranges [j0, j1), in increasing j. The loops visit footprint pixels
+    /// through them.
+    runs: Vec<Vec<(u64, u64)>>,
+}
+
+/// Footprint weight, footprint pixel count and pixel count of every cell of every band.
+struct CellSums {
+    weight: Vec<Vec<f64>>,
+    count: Vec<Vec<u64>>,
+    pixels: Vec<Vec<u64>>,
+}
+
+impl<'a> RingFootprint<'a> {
+    fn new(footprint: &'a Footprint) -> Result<Self> {
+        let pixelization = footprint.pixelization();
+        let nside = pixelization.nside() as u64;
+        let mut rings = RingFootprint {
+            nside,
+            pixelization,
+            ring_pixelization: Pixelization::new(nside as u32, Ordering::Ring)?,
+            weights: footprint.weights(),
+            runs: Vec::new(),
         };
-        // Runs of footprint pixels (positive weight) along every ring: half-open position
-        // ranges [j0, j1), in increasing j. The loops below visit footprint pixels through them.
-        let mut runs: Vec<Vec<(u64, u64)>> = Vec::with_capacity(ring_count as usize);
-        for i in 1..=ring_count {
+        let mut runs: Vec<Vec<(u64, u64)>> = Vec::with_capacity(rings.ring_count() as usize);
+        for i in 1..=rings.ring_count() {
             let (first, len, _) = ring_info(nside, i);
             let mut ring_runs = Vec::new();
             let mut j = 0;
             while j < len {
-                if weight_at(first + j)? > 0.0 {
+                if rings.weight_at(first + j)? > 0.0 {
                     let start = j;
-                    while j < len && weight_at(first + j)? > 0.0 {
+                    while j < len && rings.weight_at(first + j)? > 0.0 {
                         j += 1;
                     }
                     ring_runs.push((start, j));
@@ -202,10 +246,36 @@ impl LatitudeBands {
             }
             runs.push(ring_runs);
         }
-        let ring_occupied: Vec<bool> = runs.iter().map(|r| !r.is_empty()).collect();
-        // The footprint's colatitude spans: runs of rings holding footprint, each grown by half
-        // a spacing, cut to the caps of radius R at the poles (a cap is one cell).
-        let cap_radius = (0.995 * reach).min(PI / 2.0);
+        rings.runs = runs;
+        Ok(rings)
+    }
+
+    fn ring_count(&self) -> u64 {
+        4 * self.nside - 1
+    }
+
+    /// Weight of the footprint at RING pixel p.
+    fn weight_at(&self, p: u64) -> Result<f64> {
+        Ok(match self.pixelization.ordering() {
+            Ordering::Ring => self.weights[p as usize],
+            Ordering::Nested => {
+                self.weights[self
+                    .pixelization
+                    .from_nested(self.ring_pixelization.to_nested(p)?)?
+                    as usize]
+            }
+        })
+    }
+
+    /// Does ring `i` hold footprint?
+    fn occupied(&self, i: u64) -> bool {
+        !self.runs[(i - 1) as usize].is_empty()
+    }
+
+    /// The footprint's colatitude spans: runs of rings holding footprint, each grown by half
+    /// the margin.
+    fn colatitude_spans(&self, margin: f64) -> Vec<(f64, f64)> {
+        let ring_occupied: Vec<bool> = self.runs.iter().map(|r| !r.is_empty()).collect();
         let mut spans: Vec<(f64, f64)> = Vec::new();
         let mut i = 0usize;
         while i < ring_occupied.len() {
@@ -218,109 +288,31 @@ impl LatitudeBands {
                 i += 1;
             }
             spans.push((
-                ring_theta(nside, first as u64 + 1) - 0.5 * margin,
-                ring_theta(nside, i as u64) + 0.5 * margin,
+                ring_theta(self.nside, first as u64 + 1) - 0.5 * margin,
+                ring_theta(self.nside, i as u64) + 0.5 * margin,
             ));
         }
-        let (Some(&(north, _)), Some(&(_, south))) = (spans.first(), spans.last()) else {
-            return Err(Error::Data(
-                "the mask is empty (no pixel has positive weight)".into(),
-            ));
-        };
-        let north_cap = north < cap_radius;
-        let south_cap = south > PI - cap_radius;
-        let spans: Vec<(f64, f64)> = spans
-            .into_iter()
-            .map(|(a, b)| (a.max(cap_radius), b.min(PI - cap_radius)))
-            .filter(|(a, b)| b > a)
-            .collect();
-        // Bands of equal height over each span; two spans share their bands when that takes no
-        // more bands than laying them out apart (so a wide gap, such as a galactic-plane cut,
-        // gets no band, and a narrow one costs nothing).
-        let height = BAND_HEIGHT_FILL * 2.0 * reach;
-        let bands_for = |a: f64, b: f64| ((b - a) / height).ceil().max(1.0);
-        let mut merged: Vec<(f64, f64)> = Vec::new();
-        for (a, b) in spans {
-            if let Some(last) = merged.last_mut() {
-                if a <= last.1
-                    || bands_for(last.0, b) <= bands_for(last.0, last.1) + bands_for(a, b)
-                {
-                    last.1 = last.1.max(b);
-                    continue;
-                }
-            }
-            merged.push((a, b));
-        }
-        // Slot edges: the north cap (or nothing) down to the first span, the bands of each span,
-        // the gaps between spans (no footprint: empty slots), down to the south cap (or nothing).
-        let mut edges = vec![0.0];
-        if north_cap {
-            edges.push(cap_radius);
-        }
-        for &(a, b) in &merged {
-            if a > edges[edges.len() - 1] {
-                edges.push(a);
-            }
-            let count = bands_for(a, b) as usize;
-            for k in 1..=count {
-                edges.push(a + (b - a) * k as f64 / count as f64);
-            }
-        }
-        if south_cap && edges[edges.len() - 1] < PI - cap_radius {
-            edges.push(PI - cap_radius);
-        }
-        if edges[edges.len() - 1] < PI {
-            edges.push(PI);
-        }
-        // Rings to bands (a band without rings is skipped).
-        let mut bands: Vec<Band> = Vec::new();
-        let mut band_of_ring = Vec::with_capacity(ring_count as usize);
-        let slots = edges.len() - 1;
-        let mut slot_band: Vec<Option<usize>> = vec![None; slots];
-        let ring_thetas: Vec<f64> = (1..=ring_count).map(|i| ring_theta(nside, i)).collect();
-        for i in 1..=ring_count {
-            let theta = ring_thetas[(i - 1) as usize];
-            let slot = edges[1..].partition_point(|&e| e <= theta).min(slots - 1);
-            let b = match slot_band[slot] {
-                Some(b) => b,
-                None => {
-                    let cap = (slot == 0 && north_cap) || (slot == slots - 1 && south_cap);
-                    let (t0, t1) = (edges[slot], edges[slot + 1]);
-                    bands.push(Band {
-                        rings: (i, i),
-                        theta: (t0, t1),
-                        theta_center: if cap && slot == 0 {
-                            0.0
-                        } else if cap {
-                            PI
-                        } else {
-                            0.5 * (t0 + t1)
-                        },
-                        starts: Vec::new(),
-                        ends: Vec::new(),
-                        tiles: Vec::new(),
-                        centers: Vec::new(),
-                        reach: Vec::new(),
-                        columns: Vec::new(),
-                        bin_cell: Vec::new(),
-                        cap,
-                    });
-                    slot_band[slot] = Some(bands.len() - 1);
-                    bands.len() - 1
-                }
-            };
-            bands[b].rings.1 = i;
-            band_of_ring.push(b);
-        }
-        // Footprint pixel centres per band, binned in longitude (bins of one equatorial pixel
-        // width): the colatitude range of the footprint pixels whose centre lies in each bin.
+        spans
+    }
+
+    /// Footprint pixel centres per band, binned in longitude (bins of one equatorial pixel
+    /// width): the colatitude range of the footprint pixels whose centre lies in each bin (empty
+    /// for a band without footprint or a cap), and whether each cap holds footprint.
+    #[allow(clippy::type_complexity)]
+    fn footprint_columns(
+        &self,
+        bands: &[Band],
+        band_of_ring: &[usize],
+        ring_thetas: &[f64],
+    ) -> (Vec<Vec<Option<(f64, f64)>>>, Vec<bool>) {
+        let nside = self.nside;
         let bin_count = (4 * nside as usize).max(64);
         let mut extents: Vec<Vec<Option<(f64, f64)>>> = vec![Vec::new(); bands.len()];
         let mut cap_occupied = vec![false; bands.len()];
         let nb = bin_count as f64;
-        for i in 1..=ring_count {
+        for i in 1..=self.ring_count() {
             let b = band_of_ring[(i - 1) as usize];
-            if !ring_occupied[(i - 1) as usize] {
+            if !self.occupied(i) {
                 continue;
             }
             if bands[b].cap {
@@ -331,7 +323,7 @@ impl LatitudeBands {
                 extents[b] = vec![None; bin_count];
             }
             let theta = ring_thetas[(i - 1) as usize];
-            for j in runs[(i - 1) as usize].iter().flat_map(|&(a, e)| a..e) {
+            for j in self.runs[(i - 1) as usize].iter().flat_map(|&(a, e)| a..e) {
                 let phi = ring_pixel_phi(nside, i, j);
                 // (φ ≥ 0: truncation is the floor, as in `Band::cell_of`)
                 let k = ((phi / TAU * nb) as usize).min(bin_count - 1);
@@ -342,7 +334,234 @@ impl LatitudeBands {
                 });
             }
         }
-        // Cells of every band: caps whole, other bands cut greedily along the footprint.
+        (extents, cap_occupied)
+    }
+
+    /// Counts pixels and footprint weight per cell.
+    fn cell_sums(&self, bands: &[Band]) -> Result<CellSums> {
+        let nside = self.nside;
+        let mut sums = CellSums {
+            weight: bands.iter().map(|b| vec![0.0; b.starts.len()]).collect(),
+            count: bands.iter().map(|b| vec![0; b.starts.len()]).collect(),
+            pixels: bands.iter().map(|b| vec![0; b.starts.len()]).collect(),
+        };
+        for (b, band) in bands.iter().enumerate() {
+            if band.starts.is_empty() {
+                continue;
+            }
+            let stretches = band.cell_stretches();
+            for i in band.rings.0..=band.rings.1 {
+                let (first, len, _) = ring_info(nside, i);
+                if band.cap {
+                    sums.pixels[b][0] += len;
+                } else {
+                    for &(k0, k1, c) in &stretches {
+                        sums.pixels[b][c] += band.ring_positions_below(nside, i, len, k1)
+                            - band.ring_positions_below(nside, i, len, k0);
+                    }
+                }
+                // the footprint pixels, in increasing position as before (the same sums)
+                for j in self.runs[(i - 1) as usize].iter().flat_map(|&(a, e)| a..e) {
+                    if let Some(k) = band.cell_of(ring_pixel_phi(nside, i, j)) {
+                        sums.weight[b][k] += self.weight_at(first + j)?;
+                        sums.count[b][k] += 1;
+                    }
+                }
+            }
+        }
+        Ok(sums)
+    }
+}
+
+/// Slot edges in colatitude: the north cap (or nothing) down to the first span, bands of equal
+/// height over each span, the gaps between spans (no footprint: empty slots), down to the south
+/// cap (or nothing). Two spans share their bands when that takes no more bands than laying them
+/// out apart (so a wide gap, such as a galactic-plane cut, gets no band, and a narrow one costs
+/// nothing).
+fn slot_edges(
+    spans: Vec<(f64, f64)>,
+    cap_radius: f64,
+    north_cap: bool,
+    south_cap: bool,
+    reach: f64,
+) -> Vec<f64> {
+    let spans: Vec<(f64, f64)> = spans
+        .into_iter()
+        .map(|(a, b)| (a.max(cap_radius), b.min(PI - cap_radius)))
+        .filter(|(a, b)| b > a)
+        .collect();
+    let height = BAND_HEIGHT_FILL * 2.0 * reach;
+    let bands_for = |a: f64, b: f64| ((b - a) / height).ceil().max(1.0);
+    let mut merged: Vec<(f64, f64)> = Vec::new();
+    for (a, b) in spans {
+        if let Some(last) = merged.last_mut() {
+            if a <= last.1 || bands_for(last.0, b) <= bands_for(last.0, last.1) + bands_for(a, b) {
+                last.1 = last.1.max(b);
+                continue;
+            }
+        }
+        merged.push((a, b));
+    }
+    let mut edges = vec![0.0];
+    if north_cap {
+        edges.push(cap_radius);
+    }
+    for &(a, b) in &merged {
+        if a > edges[edges.len() - 1] {
+            edges.push(a);
+        }
+        let count = bands_for(a, b) as usize;
+        for k in 1..=count {
+            edges.push(a + (b - a) * k as f64 / count as f64);
+        }
+    }
+    if south_cap && edges[edges.len() - 1] < PI - cap_radius {
+        edges.push(PI - cap_radius);
+    }
+    if edges[edges.len() - 1] < PI {
+        edges.push(PI);
+    }
+    edges
+}
+
+/// Rings to bands: each ring joins the band of the slot holding its colatitude (a slot without
+/// rings gets no band). Returns the bands, without cells yet, and the band of each ring.
+fn bands_of_rings(
+    edges: &[f64],
+    ring_thetas: &[f64],
+    north_cap: bool,
+    south_cap: bool,
+) -> (Vec<Band>, Vec<usize>) {
+    let mut bands: Vec<Band> = Vec::new();
+    let mut band_of_ring = Vec::with_capacity(ring_thetas.len());
+    let slots = edges.len() - 1;
+    let mut slot_band: Vec<Option<usize>> = vec![None; slots];
+    for (i, &theta) in (1u64..).zip(ring_thetas) {
+        let slot = edges[1..].partition_point(|&e| e <= theta).min(slots - 1);
+        let b = match slot_band[slot] {
+            Some(b) => b,
+            None => {
+                let cap = (slot == 0 && north_cap) || (slot == slots - 1 && south_cap);
+                let (t0, t1) = (edges[slot], edges[slot + 1]);
+                bands.push(Band {
+                    rings: (i, i),
+                    theta: (t0, t1),
+                    theta_center: if cap && slot == 0 {
+                        0.0
+                    } else if cap {
+                        PI
+                    } else {
+                        0.5 * (t0 + t1)
+                    },
+                    starts: Vec::new(),
+                    ends: Vec::new(),
+                    tiles: Vec::new(),
+                    centers: Vec::new(),
+                    reach: Vec::new(),
+                    columns: Vec::new(),
+                    bin_cell: Vec::new(),
+                    cap,
+                });
+                slot_band[slot] = Some(bands.len() - 1);
+                bands.len() - 1
+            }
+        };
+        bands[b].rings.1 = i;
+        band_of_ring.push(b);
+    }
+    (bands, band_of_ring)
+}
+
+/// Cells merged into one tile so far, with their joint footprint columns and extent.
+struct MergeGroup {
+    cells: Vec<(usize, usize)>,
+    columns: Vec<[f64; 4]>,
+    center: Direction,
+    half: f64,
+    r2: f64,
+    pixels: u64,
+    cap: bool,
+    alive: bool,
+}
+
+impl MergeGroup {
+    /// One group per cell with footprint pixels (`count` per band and cell), in band and cell
+    /// order.
+    fn of_cells(bands: &[Band], count: &[Vec<u64>]) -> Vec<MergeGroup> {
+        let mut groups: Vec<MergeGroup> = Vec::new();
+        for (b, (band, band_count)) in bands.iter().zip(count).enumerate() {
+            for (k, &pixels) in band_count.iter().enumerate() {
+                if pixels == 0 {
+                    continue;
+                }
+                groups.push(MergeGroup {
+                    cells: vec![(b, k)],
+                    columns: band.columns[k].clone(),
+                    center: band.centers[k],
+                    half: band.reach[k].0,
+                    r2: band.reach[k].1,
+                    pixels,
+                    cap: band.cap,
+                    alive: true,
+                });
+            }
+        }
+        groups
+    }
+}
+
+impl LatitudeBands {
+    /// Lays out the cells of `footprint` (a map of NSIDE `nside`) for tiles whose cores must fit
+    /// in |x|, |y| ≤ `core_half` (radians of the tangent plane), with a margin of `margin`
+    /// radians all round. Returns the layout and its cells, one per tile, in tile order (bands
+    /// from north to south, cells in increasing longitude).
+    pub(crate) fn new(
+        footprint: &Footprint,
+        core_half: f64,
+        margin: f64,
+    ) -> Result<(Self, Vec<BandCell>)> {
+        let room = core_room(core_half, margin)?;
+        let reach = room.atan();
+        let rings = RingFootprint::new(footprint)?;
+        let nside = rings.nside;
+        // The footprint's colatitude spans, cut to the caps of radius R at the poles (a cap is
+        // one cell).
+        let cap_radius = (0.995 * reach).min(PI / 2.0);
+        let spans = rings.colatitude_spans(margin);
+        let (Some(&(north, _)), Some(&(_, south))) = (spans.first(), spans.last()) else {
+            return Err(Error::Data(
+                "the mask is empty (no pixel has positive weight)".into(),
+            ));
+        };
+        let north_cap = north < cap_radius;
+        let south_cap = south > PI - cap_radius;
+        let edges = slot_edges(spans, cap_radius, north_cap, south_cap, reach);
+        let ring_thetas: Vec<f64> = (1..=rings.ring_count())
+            .map(|i| ring_theta(nside, i))
+            .collect();
+        let (mut bands, band_of_ring) = bands_of_rings(&edges, &ring_thetas, north_cap, south_cap);
+        let (extents, cap_occupied) = rings.footprint_columns(&bands, &band_of_ring, &ring_thetas);
+        Self::cut_cells(&mut bands, &extents, &cap_occupied, room)?;
+        let sums = rings.cell_sums(&bands)?;
+        let (tile_cells, cells) = Self::assign_tiles(&mut bands, &sums, room);
+        Ok((
+            LatitudeBands {
+                nside,
+                bands,
+                band_of_ring,
+                tile_cells,
+            },
+            cells,
+        ))
+    }
+
+    /// Cells of every band: caps whole, other bands cut greedily along the footprint.
+    fn cut_cells(
+        bands: &mut [Band],
+        extents: &[Vec<Option<(f64, f64)>>],
+        cap_occupied: &[bool],
+        room: f64,
+    ) -> Result<()> {
         for (b, band) in bands.iter_mut().enumerate() {
             if band.cap {
                 if cap_occupied[b] {
@@ -370,72 +589,22 @@ impl LatitudeBands {
             // (a band whose single longitude bin does not fit is refused there)
             Self::greedy_cells(band, &extents[b], room)?;
         }
-        // Count pixels and footprint weight per cell.
-        let mut weight: Vec<Vec<f64>> = bands.iter().map(|b| vec![0.0; b.starts.len()]).collect();
-        let mut count: Vec<Vec<u64>> = bands.iter().map(|b| vec![0; b.starts.len()]).collect();
-        let mut pixels: Vec<Vec<u64>> = bands.iter().map(|b| vec![0; b.starts.len()]).collect();
-        for (b, band) in bands.iter().enumerate() {
-            if band.starts.is_empty() {
-                continue;
-            }
-            // Stretches of longitude bins that belong to one cell: (first bin, end bin, cell).
-            let mut stretches: Vec<(usize, usize, usize)> = Vec::new();
-            if !band.cap {
-                for (k, c) in band.bin_cell.iter().enumerate() {
-                    match (c, stretches.last_mut()) {
-                        (Some(c), Some(last)) if last.1 == k && last.2 == *c as usize => {
-                            last.1 = k + 1
-                        }
-                        (Some(c), _) => stretches.push((k, k + 1, *c as usize)),
-                        (None, _) => {}
-                    }
-                }
-            }
-            for i in band.rings.0..=band.rings.1 {
-                let (first, len, _) = ring_info(nside, i);
-                // Every pixel of the ring per cell: the bin of pixel j (the arithmetic of
-                // `Band::cell_of`) does not decrease with j, so the pixels of a stretch of bins
-                // are one range of positions, found by bisection.
-                if band.cap {
-                    pixels[b][0] += len;
-                } else {
-                    let nb = band.bin_cell.len();
-                    let bin_of = |j: u64| {
-                        ((ring_pixel_phi(nside, i, j) / TAU * nb as f64) as usize).min(nb - 1)
-                    };
-                    // the number of positions whose bin is below k
-                    let below = |k: usize| {
-                        let (mut lo, mut hi) = (0u64, len);
-                        while lo < hi {
-                            let mid = lo + (hi - lo) / 2;
-                            if bin_of(mid) < k {
-                                lo = mid + 1;
-                            } else {
-                                hi = mid;
-                            }
-                        }
-                        lo
-                    };
-                    for &(k0, k1, c) in &stretches {
-                        pixels[b][c] += below(k1) - below(k0);
-                    }
-                }
-                // the footprint pixels, in increasing position as before (the same sums)
-                for j in runs[(i - 1) as usize].iter().flat_map(|&(a, e)| a..e) {
-                    if let Some(k) = band.cell_of(ring_pixel_phi(nside, i, j)) {
-                        weight[b][k] += weight_at(first + j)?;
-                        count[b][k] += 1;
-                    }
-                }
-            }
-        }
-        // Tiles: cells with footprint, small ones merged into their neighbours' tiles.
+        Ok(())
+    }
+
+    /// Tiles: cells with footprint, small ones merged into their neighbours' tiles. Returns the
+    /// (band, cell) members of each tile and the tiles as the plan sees them.
+    fn assign_tiles(
+        bands: &mut [Band],
+        sums: &CellSums,
+        room: f64,
+    ) -> (Vec<Vec<(usize, usize)>>, Vec<BandCell>) {
         let mut cells = Vec::new();
         let mut tile_cells = Vec::new();
         for band in bands.iter_mut() {
             band.tiles = vec![None; band.starts.len()];
         }
-        for (members, center, half_width, r2) in Self::merge_cells(&bands, &count, room) {
+        for (members, center, half_width, r2) in Self::merge_cells(bands, &sums.count, room) {
             let mut cell = BandCell {
                 center,
                 footprint_weight: 0.0,
@@ -446,22 +615,14 @@ impl LatitudeBands {
             };
             for &(b, k) in &members {
                 bands[b].tiles[k] = Some(cells.len());
-                cell.footprint_weight += weight[b][k];
-                cell.footprint_pixels += count[b][k];
-                cell.pixels += pixels[b][k];
+                cell.footprint_weight += sums.weight[b][k];
+                cell.footprint_pixels += sums.count[b][k];
+                cell.pixels += sums.pixels[b][k];
             }
             tile_cells.push(members);
             cells.push(cell);
         }
-        Ok((
-            LatitudeBands {
-                nside,
-                bands,
-                band_of_ring,
-                tile_cells,
-            },
-            cells,
-        ))
+        (tile_cells, cells)
     }
 
     /// Cuts a band into cells along its footprint: starting after a free longitude bin, each
@@ -533,16 +694,16 @@ impl LatitudeBands {
         Some((center, half, r2))
     }
 
-    /// Greedy cells over bins [from, to) (indices modulo the bin count); see
-    /// [`LatitudeBands::greedy_cells`].
-    fn cover(
-        band: &mut Band,
+    /// The cells [s, e) of bins [from, to) (indices modulo the bin count) of [`Self::cover`]:
+    /// from each footprint bin on, the longest stretch that fits (found by doubling, then
+    /// bisection), ended after its last footprint bin.
+    fn greedy_bin_cells(
+        band: &Band,
         bins: &[Option<(f64, f64)>],
-        from: usize,
-        to: usize,
+        (from, to): (usize, usize),
         bw: f64,
         room: f64,
-    ) -> Result<()> {
+    ) -> Result<Vec<(usize, usize)>> {
         let nb = bins.len();
         let fits = |s: usize, e: usize| {
             Self::columns_extent(&Self::bin_columns(bins, s, e, bw))
@@ -591,6 +752,21 @@ impl LatitudeBands {
             cells.push((s, e));
             s = e;
         }
+        Ok(cells)
+    }
+
+    /// Greedy cells over bins [from, to) (indices modulo the bin count); see
+    /// [`LatitudeBands::greedy_cells`].
+    fn cover(
+        band: &mut Band,
+        bins: &[Option<(f64, f64)>],
+        from: usize,
+        to: usize,
+        bw: f64,
+        room: f64,
+    ) -> Result<()> {
+        let nb = bins.len();
+        let cells = Self::greedy_bin_cells(band, bins, (from, to), bw, room)?;
         type Span = (
             f64,
             f64,
@@ -636,34 +812,7 @@ impl LatitudeBands {
     /// centre of their joint range. Caps take no part. Returns the tiles as lists of
     /// (band, cell) with their tangent point and extent, in the order of their first cell.
     fn merge_cells(bands: &[Band], count: &[Vec<u64>], room: f64) -> Vec<MergedTile> {
-        struct Group {
-            cells: Vec<(usize, usize)>,
-            columns: Vec<[f64; 4]>,
-            center: Direction,
-            half: f64,
-            r2: f64,
-            pixels: u64,
-            cap: bool,
-            alive: bool,
-        }
-        let mut groups: Vec<Group> = Vec::new();
-        for (b, (band, band_count)) in bands.iter().zip(count).enumerate() {
-            for (k, &pixels) in band_count.iter().enumerate() {
-                if pixels == 0 {
-                    continue;
-                }
-                groups.push(Group {
-                    cells: vec![(b, k)],
-                    columns: band.columns[k].clone(),
-                    center: band.centers[k],
-                    half: band.reach[k].0,
-                    r2: band.reach[k].1,
-                    pixels,
-                    cap: band.cap,
-                    alive: true,
-                });
-            }
-        }
+        let mut groups = MergeGroup::of_cells(bands, count);
         // a tile's core reaches at most √2·atan(room) from its tangent point: two cores can
         // only share a square when their tangent points are closer than twice that
         let near = 2.0 * std::f64::consts::SQRT_2 * room.atan();
