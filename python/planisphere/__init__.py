@@ -287,7 +287,7 @@ def measure(
     common footprint with its own mask ``cross_mask``; adds the cross statistics.
     Settings (defaults as the command line's): ``scales`` J (4), ``orientations`` L (4),
     ``tile_pixels``, ``coarse_nside``, ``pixel_arcmin``, ``border_pixels`` (8), ``sampling``
-    ("ring-cubic", "bilinear", "ring-linear", "nearest"), ``spectrum_bins`` (6),
+    ("ring-quintic", "ring-cubic", "bilinear", "ring-linear", "nearest"), ``spectrum_bins`` (6),
     ``bispectrum`` (True), ``full_resolution`` (False: Fourier cropping on).
     ``name``, ``mask_name``, ``cross_name``, ``cross_mask_name``: how the document names the
     inputs (default: the file path, as the command line writes it, or a description).

@@ -105,12 +105,13 @@ fn enum_value<T: clap::ValueEnum>(name: &str, text: &str) -> PyResult<T> {
 
 fn sampling(text: &str) -> PyResult<SamplingMethod> {
     match text.trim().to_ascii_lowercase().as_str() {
+        "ring-quintic" => Ok(SamplingMethod::RingQuintic),
         "ring-cubic" => Ok(SamplingMethod::RingCubic),
         "bilinear" => Ok(SamplingMethod::Bilinear),
         "ring-linear" => Ok(SamplingMethod::RingLinear),
         "nearest" => Ok(SamplingMethod::Nearest),
         _ => Err(value_error(format!(
-            "sampling must be one of ring-cubic, bilinear, ring-linear, nearest; got '{text}'"
+            "sampling must be one of ring-quintic, ring-cubic, bilinear, ring-linear, nearest; got '{text}'"
         ))),
     }
 }

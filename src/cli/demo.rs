@@ -260,7 +260,7 @@ fn print_scenario(
 /// Tiles at most 15° across (the flat-sky picture of a tile stays good: sec²ρ ≤ 1.035 at
 /// the corners) at one map spacing per plane pixel: the largest power-of-two grid that fits.
 /// At NSIDE 256 that is 64 pixels of 13.7′ and J = 4 covers wavelengths of 37′–290′; the
-/// two finest scales fall below the ring-cubic trust limit of 8 map spacings and are flagged,
+/// two finest scales fall below the sampling trust limit of 8 map spacings and are flagged,
 /// but every ensemble is sampled the same way, so the Fisher comparison stays consistent.
 fn measurement_settings(pix: Pixelization, scales: usize) -> (MeasurementSettings, f64) {
     let pixel_arcmin = pix.mean_spacing().to_degrees() * 60.0;

@@ -23,7 +23,10 @@ use std::path::{Path, PathBuf};
 )]
 #[serde(rename_all = "kebab-case")]
 pub enum SamplingChoice {
-    /// Four-point cubic (Lagrange) along four iso-latitude rings, then across them (the default).
+    /// Six-point (quintic) Lagrange along four iso-latitude rings, then four-point across them
+    /// (the default).
+    RingQuintic,
+    /// Four-point cubic (Lagrange) along four iso-latitude rings, then across them.
     RingCubic,
     /// Bilinear over the four surrounding HEALPix pixels.
     Bilinear,
@@ -36,6 +39,7 @@ pub enum SamplingChoice {
 impl From<SamplingChoice> for SamplingMethod {
     fn from(c: SamplingChoice) -> Self {
         match c {
+            SamplingChoice::RingQuintic => SamplingMethod::RingQuintic,
             SamplingChoice::RingCubic => SamplingMethod::RingCubic,
             SamplingChoice::Bilinear => SamplingMethod::Bilinear,
             SamplingChoice::RingLinear => SamplingMethod::RingLinear,
@@ -71,14 +75,14 @@ pub struct MeasureOptions {
     /// Tile pixel size in arcmin [default: three map spacings 3h, read on a grid of spacing h
     /// and band-limited to the tile grid; scale j has the wavelength (8/3)·2^j pixels, so the
     /// defaults cover 8h–64h (27′–3.7° at NSIDE 1024) and every coefficient is trusted.
-    /// Ring-cubic sampling carries wavelengths down to 8h: at one map spacing j = 0 and 1 are
+    /// The ring samplings carry wavelengths down to 8h: at one map spacing j = 0 and 1 are
     /// flagged untrusted; smaller trusted scales need a higher-NSIDE map].
     #[arg(long, allow_negative_numbers = true)]
     pub pixel_arcmin: Option<f64>,
     /// Width of the tile-border taper in tile pixels [default: 8].
     #[arg(long)]
     pub border_pixels: Option<usize>,
-    /// How the sky is read at tile pixels [default: ring-cubic].
+    /// How the sky is read at tile pixels [default: ring-quintic].
     #[arg(long, value_enum)]
     pub sampling: Option<SamplingChoice>,
     /// Number of wavenumber bins of the tile power spectrum and bispectrum [default: 6].

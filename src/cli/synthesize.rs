@@ -140,7 +140,7 @@ pub struct SynthesizeArgs {
     /// Sphere mode and --tile: width of the tile-border taper in tile pixels.
     #[arg(long, default_value_t = 8)]
     pub border_pixels: usize,
-    /// Sphere mode and --tile: how the sky is read at tile pixels [default: ring-cubic].
+    /// Sphere mode and --tile: how the sky is read at tile pixels [default: ring-quintic].
     #[arg(long, value_enum)]
     pub sampling: Option<SamplingChoice>,
 }

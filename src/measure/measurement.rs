@@ -101,7 +101,7 @@ impl Default for MeasurementSettings {
             coarse_nside: None,
             pixel_arcmin: None,
             border_pixels: 8,
-            sampling: SamplingMethod::RingCubic,
+            sampling: SamplingMethod::RingQuintic,
             transform: TransformSettings::default(),
             spectrum_bins: 6,
             bispectrum: true,
@@ -149,7 +149,7 @@ impl MeasurementSettings {
 
     /// The plane pixel size Δ (radians) for maps of pixelization `map`: `pixel_arcmin`, or by
     /// default three map spacings 3h ([`crate::tiles::tiling::DEFAULT_PIXEL_FRACTION`]), which puts
-    /// the finest scale at the shortest wavelength ring-cubic sampling carries (8h). At low
+    /// the finest scale at the shortest wavelength ring-cubic and ring-quintic sampling carry (8h). At low
     /// resolution, where the J scales at 3h would need tiles wider than the distortion limit
     /// (J = 4 below NSIDE 256), the default is the coarsest of 2h and h at which they fit; the
     /// finest scales are then flagged untrusted as the sampling rule says.

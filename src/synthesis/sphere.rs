@@ -192,10 +192,11 @@ fn cache_tile_parts(
     measurement: &MeasurementSettings,
     n: usize,
 ) -> Result<()> {
-    // ring-cubic rows read up to 16 pixels (16 bytes per entry); the geometry holds about
-    // 2J + J(J−1)/2 + 4 grids
+    // operator rows read up to `stencil_pixels` pixels (16 bytes per entry); the geometry
+    // holds about 2J + J(J−1)/2 + 4 grids
     let jn = measurement.scales;
-    let per_tile = n * n * (16 * 16 + 8 * (2 * jn + jn * jn.saturating_sub(1) / 2 + 4));
+    let stencil = measurement.sampling.stencil_pixels();
+    let per_tile = n * n * (stencil * 16 + 8 * (2 * jn + jn * jn.saturating_sub(1) / 2 + 4));
     if tiles.len() * per_tile <= CACHE_BYTES {
         let parts: Vec<(TileSamplingOperator, TileGeometry)> = tiles
             .par_iter()

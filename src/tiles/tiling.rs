@@ -34,7 +34,7 @@ use latitude_bands::LatitudeBands;
 use std::f64::consts::FRAC_PI_2;
 
 /// Default plane pixel size as a multiple of the map's mean pixel spacing h: 3, so the finest
-/// scale's wavelength (8/3)·Δ = 8h is the shortest that ring-cubic sampling carries within 2%
+/// scale's wavelength (8/3)·Δ = 8h is the shortest that ring-cubic (and the default ring-quintic) sampling carries within 2%
 /// ([`crate::tiles::sampling::SamplingMethod::trusted_wavelength_map_spacings`]) and every default
 /// coefficient is trusted. The map is read on a grid of spacing h and band-limited to the plane
 /// grid ([`crate::tiles::sampling::fine_sampling_factor`]), so nothing aliases; finer plane pixels
