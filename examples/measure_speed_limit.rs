@@ -69,7 +69,7 @@ mod speed_limit {
     use planisphere::measure::measurement::{MeasurementSettings, SphereMeasurer};
     use planisphere::scattering::transform::{FftCount, ScatteringEngine};
     use planisphere::simulate::skies::SkyRecipe;
-    use planisphere::tiles::sampling::{SamplingMethod, TileSampler};
+    use planisphere::tiles::sampling::TileSampler;
     use planisphere::{Footprint, Ordering, Pixelization};
     use realfft::RealFftPlanner;
     use rustfft::FftPlanner;
@@ -475,7 +475,8 @@ mod speed_limit {
         };
         let measurer =
             SphereMeasurer::new(map.pixelization(), &mask, settings).map_err(|e| e.to_string())?;
-        let sampler = TileSampler::new(measurer.plan(), &map, &mask, SamplingMethod::RingCubic)
+        // the sampling `measure` uses (its default)
+        let sampler = TileSampler::new(measurer.plan(), &map, &mask, settings.sampling)
             .map_err(|e| e.to_string())?;
         let len = measurer.plan().len();
         let picks: Vec<usize> = (0..24).map(|i| i * len / 24).collect();
@@ -547,7 +548,7 @@ mod speed_limit {
         let load_end = load_average();
 
         println!(
-            "measure speed limit: J = {}, L = {}, plane pixel = map spacing, ring-cubic sampling, no bispectrum; load average {load_start} at start, {load_end} at end",
+            "measure speed limit: J = {}, L = {}, plane pixel = map spacing, ring-quintic sampling, no bispectrum; load average {load_start} at start, {load_end} at end",
             o.scales, o.orientations
         );
         println!(
