@@ -613,16 +613,8 @@ impl<'a> TileSampler<'a> {
         let valid = self.map.valid();
         Ok(match self.method {
             SamplingMethod::Bilinear => {
-                let w = pix.bilinear_weights(dir)?;
-                let (mut sum, mut wsum, mut msum) = (0.0, 0.0, 0.0);
-                for (p, wt) in w {
-                    let i = p as usize;
-                    if wt > 0.0 && valid[i] {
-                        sum += wt * values[i];
-                        wsum += wt;
-                        msum += wt * self.mask[i];
-                    }
-                }
+                let w = pix.bilinear_weights(dir)?.map(|(p, wt)| (p as usize, wt));
+                let (sum, wsum, msum) = self.linear_sums(&w);
                 let f = if wsum > 0.0 { sum / wsum } else { 0.0 };
                 (f, msum)
             }
@@ -635,29 +627,12 @@ impl<'a> TileSampler<'a> {
                 }
             }
             SamplingMethod::RingLinear => {
-                let (mut sum, mut wsum, mut msum) = (0.0, 0.0, 0.0);
-                for (p, wt) in ring_interpolation_weights_with(pix.nside(), dir, &self.rings) {
-                    let i = ring_to_map(pix, p)? as usize;
-                    if wt > 0.0 && valid[i] {
-                        sum += wt * values[i];
-                        wsum += wt;
-                        msum += wt * self.mask[i];
-                    }
-                }
+                let (sum, wsum, msum) = self.linear_sums(&self.ring_linear_stencil(dir)?);
                 let f = if wsum > 0.0 { sum / wsum } else { 0.0 };
                 (f, msum)
             }
             SamplingMethod::RingCubic | SamplingMethod::RingQuintic => {
-                let linear = ring_interpolation_weights_with(pix.nside(), dir, &self.rings);
-                let (mut lsum, mut lw, mut msum) = (0.0, 0.0, 0.0);
-                for &(p, wt) in &linear {
-                    let i = ring_to_map(pix, p)? as usize;
-                    if wt > 0.0 && valid[i] {
-                        lsum += wt * values[i];
-                        lw += wt;
-                        msum += wt * self.mask[i];
-                    }
-                }
+                let (lsum, lw, msum) = self.linear_sums(&self.ring_linear_stencil(dir)?);
                 // next to bad pixels, fall back to the linear value over the valid ones
                 if !with_field {
                     return Ok((0.0, msum));
@@ -670,6 +645,38 @@ impl<'a> TileSampler<'a> {
                 (f, msum)
             }
         })
+    }
+
+    /// The ring-linear stencil at `dir` as (map index, weight) pairs.
+    fn ring_linear_stencil(
+        &self,
+        dir: crate::sky::pixelization::Direction,
+    ) -> Result<[(usize, f64); 4]> {
+        let pix = self.map.pixelization();
+        let mut out = [(0usize, 0.0f64); 4];
+        for (slot, (p, wt)) in out.iter_mut().zip(ring_interpolation_weights_with(
+            pix.nside(),
+            dir,
+            &self.rings,
+        )) {
+            *slot = (ring_to_map(pix, p)? as usize, wt);
+        }
+        Ok(out)
+    }
+
+    /// Over the valid pixels of positive weight of a linear stencil: Σ w·value, Σ w and
+    /// Σ w·mask.
+    fn linear_sums(&self, stencil: &[(usize, f64)]) -> (f64, f64, f64) {
+        let (values, valid) = (self.map.values(), self.map.valid());
+        let (mut sum, mut wsum, mut msum) = (0.0, 0.0, 0.0);
+        for &(i, wt) in stencil {
+            if wt > 0.0 && valid[i] {
+                sum += wt * values[i];
+                wsum += wt;
+                msum += wt * self.mask[i];
+            }
+        }
+        (sum, wsum, msum)
     }
 
     /// The tiles' grids one after the other, each made when the iterator reaches it.
