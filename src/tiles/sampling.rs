@@ -59,7 +59,11 @@ impl SamplingMethod {
     /// The wavelength of scale j is λ_j = (8/3)·2^j plane pixels. Nearest-pixel sampling has
     /// no such scale: its pixel-sized jumps bias every scale.
     pub fn trusted_wavelength_map_spacings(self) -> f64 {
-        self.trusted_wavelength()
+        match self {
+            SamplingMethod::Bilinear | SamplingMethod::RingLinear => 16.0,
+            SamplingMethod::RingCubic | SamplingMethod::RingQuintic => 8.0,
+            SamplingMethod::Nearest => f64::INFINITY,
+        }
     }
 
     /// The most map pixels one read of the field combines: 1 (nearest), 4 (bilinear,
@@ -70,14 +74,6 @@ impl SamplingMethod {
             SamplingMethod::Bilinear | SamplingMethod::RingLinear => 4,
             SamplingMethod::RingCubic => 16,
             SamplingMethod::RingQuintic => 24,
-        }
-    }
-
-    fn trusted_wavelength(self) -> f64 {
-        match self {
-            SamplingMethod::Bilinear | SamplingMethod::RingLinear => 16.0,
-            SamplingMethod::RingCubic | SamplingMethod::RingQuintic => 8.0,
-            SamplingMethod::Nearest => f64::INFINITY,
         }
     }
 }
@@ -304,8 +300,10 @@ impl BandLimit {
 
 /// The geometry of one NSIDE's rings as the ring interpolations read it: ring colatitude θ_i
 /// (Górski et al. 2005, eqs. 4–5, as [`ring_theta`]), first RING index, pixel count and
-/// longitude offset ([`ring_info`]), and longitude spacing 2π/n_i.
-trait RingGeometry {
+/// longitude offset ([`ring_info`]), and longitude spacing 2π/n_i. (The harmonic transforms'
+/// table, `harmonics::geometry::RingGeometry`, holds z = cos θ instead; θ from it would not be
+/// the interpolations' [`ring_theta`] bit for bit.)
+trait RingLookup {
     /// θ_i of ring `i` (1 ≤ i ≤ 4 NSIDE − 1).
     fn theta(&self, i: u64) -> f64;
     /// (first RING index, pixel count, shifted by half a pixel) of ring `i`.
@@ -319,7 +317,7 @@ trait RingGeometry {
 /// Ring geometry evaluated from the formulas at each read.
 struct RingFormulas(u64);
 
-impl RingGeometry for RingFormulas {
+impl RingLookup for RingFormulas {
     fn theta(&self, i: u64) -> f64 {
         ring_theta(self.0, i)
     }
@@ -372,7 +370,7 @@ impl RingTable {
     }
 }
 
-impl RingGeometry for RingTable {
+impl RingLookup for RingTable {
     fn theta(&self, i: u64) -> f64 {
         self.0[i as usize].theta
     }
@@ -1155,7 +1153,7 @@ pub fn ring_interpolation_weights(
 fn ring_interpolation_weights_with(
     nside: u32,
     dir: crate::sky::pixelization::Direction,
-    rings: &impl RingGeometry,
+    rings: &impl RingLookup,
 ) -> [(u64, f64); 4] {
     let n = nside as u64;
     let theta = dir.theta.clamp(0.0, std::f64::consts::PI);
@@ -1278,7 +1276,7 @@ fn lagrange6_uniform(u: f64) -> [f64; 6] {
 fn ring_lagrange_weights_with<const A: usize, const M: usize>(
     nside: u32,
     dir: crate::sky::pixelization::Direction,
-    rings: &impl RingGeometry,
+    rings: &impl RingLookup,
     along_weights: fn(f64) -> [f64; A],
 ) -> [(u64, f64); M] {
     debug_assert_eq!(M, 4 * A);
