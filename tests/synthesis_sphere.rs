@@ -136,7 +136,7 @@ fn pooled_loss_gradient_matches_central_differences() {
 }
 
 /// The sign-sensitive part alone: the loss with the correlations minus the loss without them
-/// is Σ_j ((C_j − T_j)/σ_j)², whose gradient (the difference of the two gradients) must match
+/// is Σ_j ((C_j − T_j)/σ_j)² plus the one-point shape's two terms, whose gradient (the difference of the two gradients) must match
 /// central differences of that difference.
 #[test]
 fn correlation_part_of_the_loss_gradient_matches_central_differences() {
@@ -145,7 +145,8 @@ fn correlation_part_of_the_loss_gradient_matches_central_differences() {
     let target_map = sky(1);
     let t_with = with.target_from_map(&target_map).unwrap();
     let t_without = without.target_from_map(&target_map).unwrap();
-    assert_eq!(t_with.values.len(), t_without.values.len() + 3 + 1);
+    // J = 3 correlations, the one-point C_pix, skewness and kurtosis
+    assert_eq!(t_with.values.len(), t_without.values.len() + 3 + 1 + 2);
     let values = sky(2).values().to_vec();
     let part = |v: &[f64]| loss(&with, &t_with, v) - loss(&without, &t_without, v);
     let g_with = with.loss_and_gradient(&t_with, &values).unwrap().1;

@@ -1,8 +1,8 @@
 //! Synthesis of new flat fields whose scattering statistics match a target.
 //!
 //! Owns: the synthesis of flat fields (this module), the differentiable scattering transforms of
-//! a periodic field ([`gradient`]) and of a masked tile ([`tile_gradient`]), and the synthesis of
-//! a HEALPix map on a footprint ([`sphere`]).
+//! a periodic field ([`gradient`]) and of a masked tile ([`tile_gradient`]), the synthesis of
+//! a HEALPix map on a footprint ([`sphere`]) and its one-point shape term ([`one_point`]).
 //!
 //! May use: [`crate::sky`], [`crate::harmonics`], [`crate::simulate`], [`crate::tiles`],
 //! [`crate::scattering`], [`crate::measure`] and the crate's foundations.
@@ -66,6 +66,7 @@
 //! and ∂P̂_b/∂f_x = (2Δ²/n_b) Re IDFT(1_b F)(x).
 
 pub mod gradient;
+pub mod one_point;
 pub mod sphere;
 pub mod tile_gradient;
 
@@ -126,8 +127,8 @@ pub struct SynthesisSettings {
     /// σ_i of the distance.
     pub normalisation: Normalisation,
     /// Include the sign-sensitive field–envelope correlations C_j (target maps only; on the
-    /// sphere also the one-point C_pix, [`sphere`]). Off in `Default`; `planisphere synthesize`
-    /// turns them on for target maps.
+    /// sphere also the one-point C_pix and the skewness and kurtosis of the tile fields,
+    /// [`sphere`]). Off in `Default`; `planisphere synthesize` turns them on for target maps.
     pub field_envelope_correlation: bool,
     /// Include the power spectrum in this many logarithmic bins (empty bins are dropped).
     pub power_spectrum_bins: Option<usize>,
