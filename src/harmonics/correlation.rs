@@ -62,23 +62,28 @@ fn legendre_and_derivative(n: usize, mu: f64) -> (f64, f64) {
     (p1, n as f64 * (mu * p1 - p0) / (mu * mu - 1.0))
 }
 
+/// P_0(x), P_1(x), P_2(x), … without end, by Bonnet's recurrence
+/// ℓ P_ℓ = (2ℓ − 1) x P_{ℓ−1} − (ℓ − 1) P_{ℓ−2} (Abramowitz & Stegun 1964, 8.5.3).
+fn legendre_series(x: f64) -> impl Iterator<Item = f64> {
+    let (mut p0, mut p1) = (1.0, x);
+    (0usize..).map(move |l| match l {
+        0 => 1.0,
+        1 => x,
+        _ => {
+            let p2 = ((2 * l - 1) as f64 * x * p1 - (l - 1) as f64 * p0) / l as f64;
+            p0 = p1;
+            p1 = p2;
+            p2
+        }
+    })
+}
+
 /// ξ(μ_i) = Σ_ℓ (2ℓ+1)/(4π) C_ℓ P_ℓ(μ_i) at each μ_i.
 pub fn correlation_from_spectrum(cl: &[f64], mu: &[f64]) -> Vec<f64> {
     mu.iter()
         .map(|&x| {
-            let (mut p0, mut p1) = (1.0, x);
             let mut sum = 0.0;
-            for (l, &c) in cl.iter().enumerate() {
-                let p = match l {
-                    0 => 1.0,
-                    1 => x,
-                    _ => {
-                        let p2 = ((2 * l - 1) as f64 * x * p1 - (l - 1) as f64 * p0) / l as f64;
-                        p0 = p1;
-                        p1 = p2;
-                        p2
-                    }
-                };
+            for ((l, &c), p) in cl.iter().enumerate().zip(legendre_series(x)) {
                 sum += (2 * l + 1) as f64 / (4.0 * PI) * c * p;
             }
             sum
@@ -90,18 +95,7 @@ pub fn correlation_from_spectrum(cl: &[f64], mu: &[f64]) -> Vec<f64> {
 pub fn spectrum_from_correlation(xi: &[f64], mu: &[f64], w: &[f64], lmax: usize) -> Vec<f64> {
     let mut cl = vec![0.0; lmax + 1];
     for ((&x, &wi), &f) in mu.iter().zip(w).zip(xi) {
-        let (mut p0, mut p1) = (1.0, x);
-        for (l, c) in cl.iter_mut().enumerate() {
-            let p = match l {
-                0 => 1.0,
-                1 => x,
-                _ => {
-                    let p2 = ((2 * l - 1) as f64 * x * p1 - (l - 1) as f64 * p0) / l as f64;
-                    p0 = p1;
-                    p1 = p2;
-                    p2
-                }
-            };
+        for (c, p) in cl.iter_mut().zip(legendre_series(x)) {
             *c += 2.0 * PI * wi * f * p;
         }
     }

@@ -21,7 +21,7 @@ use rayon::prelude::*;
 use realfft::{ComplexToReal, RealFftPlanner, RealToComplex};
 
 use super::coefficients::HarmonicCoefficients;
-use super::geometry::RingGeometry;
+use super::geometry::{Ring, RingGeometry};
 use super::legendre::{
     analysis_order, log2_sectoral_norms, synthesis_order, FusedMulAdd, OrderRecurrence,
     PlainMulAdd, RingPairs,
@@ -140,6 +140,47 @@ fn phase_table(phi0: f64, count: usize) -> Vec<Complex64> {
         w *= step;
     }
     out
+}
+
+/// The azimuthal phases of one ring for orders m ≤ lmax: none when its first pixel sits at
+/// φ = 0; for a ring of n pixels starting at φ0 = π/n, e^{i m φ0} = e^{i k φ0} (−1)^{⌊m/n⌋}
+/// with k = m mod n (since n φ0 = π), from the table of e^{i k φ0}.
+struct RingPhases {
+    /// e^{i k φ0} for k < min(n, lmax + 1); empty for an unshifted ring.
+    table: Vec<Complex64>,
+    shifted: bool,
+    pixel_count: usize,
+}
+
+impl RingPhases {
+    fn new(ring: &Ring, lmax: usize) -> Self {
+        let n = ring.pixel_count;
+        Self {
+            table: if ring.half_pixel_shift {
+                phase_table(ring.phi0, n.min(lmax + 1))
+            } else {
+                Vec::new()
+            },
+            shifted: ring.half_pixel_shift,
+            pixel_count: n,
+        }
+    }
+
+    /// g·e^{i m φ0} (synthesis), or g·e^{−i m φ0} when `conjugate` (analysis); g itself on an
+    /// unshifted ring.
+    fn shift(&self, g: Complex64, m: usize, conjugate: bool) -> Complex64 {
+        if !self.shifted {
+            return g;
+        }
+        let n = self.pixel_count;
+        let phase = self.table[m % n];
+        let mut g = g;
+        g *= if conjugate { phase.conj() } else { phase };
+        if (m / n) % 2 == 1 {
+            g = -g;
+        }
+        g
+    }
 }
 
 impl HarmonicTransform {
@@ -264,22 +305,12 @@ impl HarmonicTransform {
                 let n = ring.pixel_count;
                 let half = n / 2;
                 let slot = self.slot(q);
-                let phases = if ring.half_pixel_shift {
-                    phase_table(ring.phi0, n.min(lmax + 1))
-                } else {
-                    Vec::new()
-                };
+                let phases = RingPhases::new(ring, lmax);
                 let mut spectrum = vec![Complex64::new(0.0, 0.0); half + 1];
                 for m in 0..=lmax {
                     let f = sums[m * stride + slot];
                     let k = m % n;
-                    let mut g = f;
-                    if ring.half_pixel_shift {
-                        g *= phases[k];
-                        if (m / n) % 2 == 1 {
-                            g = -g;
-                        }
-                    }
+                    let g = phases.shift(f, m, false);
                     if k <= half {
                         spectrum[k] += g;
                     }
@@ -348,11 +379,7 @@ impl HarmonicTransform {
             let mut scratch = plan.make_scratch_vec();
             plan.process_with_scratch(&mut values, &mut spectrum, &mut scratch)
                 .expect("FFT buffers sized from the plan");
-            let phases = if ring.half_pixel_shift {
-                phase_table(ring.phi0, n.min(lmax + 1))
-            } else {
-                Vec::new()
-            };
+            let phases = RingPhases::new(ring, lmax);
             for (m, o) in out.iter_mut().enumerate() {
                 let k = m % n;
                 let c = if k <= half {
@@ -360,14 +387,7 @@ impl HarmonicTransform {
                 } else {
                     spectrum[n - k].conj()
                 };
-                let mut g = c;
-                if ring.half_pixel_shift {
-                    g *= phases[k].conj();
-                    if (m / n) % 2 == 1 {
-                        g = -g;
-                    }
-                }
-                *o = g * weight;
+                *o = phases.shift(c, m, true) * weight;
             }
         });
         // Legendre stage: one order m per task, writing its own slice of the coefficients.

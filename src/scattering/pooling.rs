@@ -9,10 +9,27 @@
 //! Σwf/Σw and the variance Σwf²/Σw − mean² (population variance of the pooled pixels).
 
 use crate::scattering::statistics::{
-    Coefficient, CoefficientKind, CoefficientSet, CrossCoefficient, CrossCoefficientSet,
+    Coefficient, CoefficientKind, CoefficientLabel, CoefficientSet, CrossCoefficient,
+    CrossCoefficientSet, CrossLabel,
 };
-use crate::scattering::transform::ScatteringEngine;
 use crate::{Error, Result};
+
+/// What pooling needs to know of the transform that filled the sums: the label of each sum, the
+/// layout's size (J, L) and the trust threshold. The scattering engine
+/// ([`crate::scattering::transform::ScatteringEngine`]) provides it, so pooling reads these
+/// without depending on the transform.
+pub trait SumLabels {
+    /// Labels of the coefficients, in the order of [`TileSums::sums`].
+    fn labels(&self) -> &[CoefficientLabel];
+    /// Labels of the cross coefficients, in the order of [`PairTileSums::cross`].
+    fn cross_labels(&self) -> &[CrossLabel];
+    /// Number of scales J.
+    fn scale_count(&self) -> usize;
+    /// Number of orientations L.
+    fn orientation_count(&self) -> usize;
+    /// Smallest kept fraction of the footprint weight for a coefficient to be trusted.
+    fn trusted_fraction(&self) -> f64;
+}
 
 /// Weighted sums of one tile (or of several combined tiles), in the engine's label order.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -47,7 +64,7 @@ impl TileSums {
 }
 
 /// Sums of one tile (or of combined tiles) of a pair of maps: each map's own sums and the
-/// cross sums, in the order of [`ScatteringEngine::cross_labels`].
+/// cross sums, in the order of [`SumLabels::cross_labels`].
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct PairTileSums {
     /// The first map's sums (engine label order).
@@ -114,14 +131,9 @@ fn pooled_entries(
 
 /// Turn (combined) sums into pooled coefficients, with the trust flag of the engine settings.
 /// The variance is the pooled ⟨f²⟩ less the square of the pooled mean.
-pub fn pooled_coefficients(engine: &ScatteringEngine, sums: &TileSums) -> Result<CoefficientSet> {
+pub fn pooled_coefficients(engine: &impl SumLabels, sums: &TileSums) -> Result<CoefficientSet> {
     let labels = engine.labels();
-    let entries = pooled_entries(
-        sums,
-        labels.len(),
-        "scattering",
-        engine.settings().trusted_fraction,
-    )?;
+    let entries = pooled_entries(sums, labels.len(), "scattering", engine.trusted_fraction())?;
     let mean = entries[0].value;
     let coefficients = labels
         .iter()
@@ -146,16 +158,11 @@ pub fn pooled_coefficients(engine: &ScatteringEngine, sums: &TileSums) -> Result
 /// Turn combined cross sums into pooled cross coefficients: each value is Σ W h / Σ W over the
 /// kept weight of its scales, trusted as in [`pooled_coefficients`].
 pub fn pooled_cross_coefficients(
-    engine: &ScatteringEngine,
+    engine: &impl SumLabels,
     sums: &TileSums,
 ) -> Result<CrossCoefficientSet> {
     let labels = engine.cross_labels();
-    let entries = pooled_entries(
-        sums,
-        labels.len(),
-        "cross",
-        engine.settings().trusted_fraction,
-    )?;
+    let entries = pooled_entries(sums, labels.len(), "cross", engine.trusted_fraction())?;
     let coefficients = labels
         .iter()
         .zip(entries)

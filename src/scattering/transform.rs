@@ -161,7 +161,7 @@
 
 use crate::scattering::fft::{signed_frequency, SquareFft, SquareFftPlanner};
 use crate::scattering::filters::MorletBank;
-use crate::scattering::pooling::{PairTileSums, TileSums};
+use crate::scattering::pooling::{PairTileSums, SumLabels, TileSums};
 use crate::scattering::statistics::{CoefficientLabel, CrossLabel};
 use crate::{Error, Result};
 use num_complex::Complex64;
@@ -764,6 +764,29 @@ struct FirstLayer {
     g: Vec<Vec<Complex64>>,
     u: Vec<Vec<f64>>,
     mu: Vec<f64>,
+}
+
+/// Pooling reads the engine's labels, layout size and trust threshold through this.
+impl SumLabels for ScatteringEngine {
+    fn labels(&self) -> &[CoefficientLabel] {
+        ScatteringEngine::labels(self)
+    }
+
+    fn cross_labels(&self) -> &[CrossLabel] {
+        ScatteringEngine::cross_labels(self)
+    }
+
+    fn scale_count(&self) -> usize {
+        ScatteringEngine::scale_count(self)
+    }
+
+    fn orientation_count(&self) -> usize {
+        ScatteringEngine::orientation_count(self)
+    }
+
+    fn trusted_fraction(&self) -> f64 {
+        self.settings.trusted_fraction
+    }
 }
 
 impl ScatteringEngine {

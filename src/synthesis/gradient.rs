@@ -206,9 +206,7 @@ impl DifferentiableScattering {
         let results: Vec<Item> = items
             .par_iter()
             .map(|&(j1, l1)| {
-                let psi = self.bank.wavelet(j1, l1);
-                let mut g1: Vec<Complex64> = spectrum.iter().zip(psi).map(|(s, p)| s * p).collect();
-                self.fft.inverse(&mut g1);
+                let g1 = self.filtered(&spectrum, j1, l1);
                 let u: Vec<f64> = g1.iter().map(|z| z.norm()).collect();
                 let s1 = u.iter().sum::<f64>() / nn;
                 let p = u.iter().map(|v| v * v).sum::<f64>() / nn;
@@ -218,10 +216,7 @@ impl DifferentiableScattering {
                 let mut s2 = Vec::with_capacity((jn - j1 - 1) * ln);
                 for j2 in (j1 + 1)..jn {
                     for l2 in 0..ln {
-                        let psi2 = self.bank.wavelet(j2, l2);
-                        let mut g2: Vec<Complex64> =
-                            vhat.iter().zip(psi2).map(|(s, p)| s * p).collect();
-                        self.fft.inverse(&mut g2);
+                        let g2 = self.filtered(&vhat, j2, l2);
                         s2.push(g2.iter().map(|z| z.norm()).sum::<f64>() / nn);
                     }
                 }
@@ -273,6 +268,29 @@ impl DifferentiableScattering {
         weights: &[f64],
         correlation_weights: Option<&[f64]>,
     ) -> Result<Vec<f64>> {
+        self.check_periodic_weights(pass, weights, correlation_weights)?;
+        let (jn, ln) = (self.bank.scale_count(), self.bank.orientation_count());
+        let items: Vec<(usize, usize)> =
+            (0..jn).flat_map(|j| (0..ln).map(move |l| (j, l))).collect();
+        // Per (j1, l1): contribution conj(ψ̂₁)·DFT(Z₁) to the Fourier adjoint of I.
+        let parts: Vec<(Vec<Complex64>, Option<Vec<f64>>)> = items
+            .par_iter()
+            .zip(&pass.first)
+            .map(|(&(j1, l1), (g1, vhat))| {
+                let ac = correlation_weights.map_or(0.0, |cw| cw[j1 * ln + l1]);
+                self.periodic_band_adjoint(pass, weights, ac, (j1, l1), g1, vhat)
+            })
+            .collect();
+        Ok(self.periodic_field_adjoint(pass, weights, &parts))
+    }
+
+    /// Errors unless the weights fit the coefficients and the field–envelope correlations.
+    fn check_periodic_weights(
+        &self,
+        pass: &ForwardPass,
+        weights: &[f64],
+        correlation_weights: Option<&[f64]>,
+    ) -> Result<()> {
         if let Some(cw) = correlation_weights {
             if cw.len() != pass.field_envelope.len() {
                 return Err(Error::Mismatch(format!(
@@ -289,97 +307,125 @@ impl DifferentiableScattering {
                 self.labels.len()
             )));
         }
+        Ok(())
+    }
+
+    /// The adjoint of one first-layer band (j1, l1) with correlation weight `ac`: ū from the
+    /// second order and the correlation, Z₁ = (ū + a₁/N + 2 a_P |g₁|/N) g₁/|g₁|, returned as
+    /// ψ̂₁·DFT(Z₁), with the correlation's explicit adjoint of the centred field.
+    fn periodic_band_adjoint(
+        &self,
+        pass: &ForwardPass,
+        weights: &[f64],
+        ac: f64,
+        (j1, l1): (usize, usize),
+        g1: &[Complex64],
+        vhat: &[Complex64],
+    ) -> (Vec<Complex64>, Option<Vec<f64>>) {
         let n = self.size();
         let nn = (n * n) as f64;
         let (jn, ln) = (self.bank.scale_count(), self.bank.orientation_count());
-        let items: Vec<(usize, usize)> =
-            (0..jn).flat_map(|j| (0..ln).map(move |l| (j, l))).collect();
-        // Per (j1, l1): contribution conj(ψ̂₁)·DFT(Z₁) to the Fourier adjoint of I.
-        let parts: Vec<(Vec<Complex64>, Option<Vec<f64>>)> = items
-            .par_iter()
-            .zip(&pass.first)
-            .map(|(&(j1, l1), (g1, vhat))| {
-                let ac = correlation_weights.map_or(0.0, |cw| cw[j1 * ln + l1]);
-                // Adjoint of u from the second order, gathered in Fourier space.
-                let mut v_adj_hat = vec![Complex64::default(); n * n];
-                let mut any_second = false;
-                for j2 in (j1 + 1)..jn {
-                    for l2 in 0..ln {
-                        let a = weights[second_order_index(jn, ln, j1, l1, j2, l2)];
-                        if a == 0.0 {
-                            continue;
-                        }
-                        any_second = true;
-                        let psi2 = self.bank.wavelet(j2, l2);
-                        let mut g2: Vec<Complex64> =
-                            vhat.iter().zip(psi2).map(|(s, p)| s * p).collect();
-                        self.fft.inverse(&mut g2);
-                        // Z₂ = (a/N) g₂/|g₂|, zero where g₂ = 0.
-                        for z in g2.iter_mut() {
-                            let r = z.norm();
-                            *z = if r > 0.0 {
-                                *z * (a / (nn * r))
-                            } else {
-                                Complex64::default()
-                            };
-                        }
-                        self.fft.forward(&mut g2);
-                        for ((acc, z), p) in v_adj_hat.iter_mut().zip(&g2).zip(psi2) {
-                            *acc += z * p; // conj(ψ̂₂) = ψ̂₂ (real)
-                        }
-                    }
+        let mut u_adj = self.second_order_adjoint(weights, (j1, l1), vhat);
+        let mut explicit = None;
+        if ac != 0.0 {
+            for (u, c) in u_adj.iter_mut().zip(&pass.centred) {
+                *u += ac * c / nn;
+            }
+            let u: Vec<f64> = g1.iter().map(|z| z.norm()).collect();
+            let ubar = u.iter().sum::<f64>() / nn;
+            explicit = Some(u.iter().map(|v| ac * (v - ubar) / nn).collect());
+        }
+        let layout = crate::scattering::layout::CoefficientLayout::new(jn, ln);
+        let a1 = weights[layout.first_order(j1, l1)];
+        let ap = weights[layout.band_power(j1, l1)];
+        let mut z1: Vec<Complex64> = g1
+            .iter()
+            .zip(&u_adj)
+            .map(|(z, ua)| {
+                let r = z.norm();
+                if r > 0.0 {
+                    let du = ua + a1 / nn + 2.0 * ap * r / nn;
+                    *z * (du / r)
+                } else {
+                    Complex64::default()
                 }
-                let mut u_adj = vec![0.0; n * n];
-                if any_second {
-                    self.fft.inverse(&mut v_adj_hat);
-                    let re: Vec<f64> = v_adj_hat.iter().map(|z| z.re).collect();
-                    let m = re.iter().sum::<f64>() / nn; // adjoint of mean removal
-                    for (u, r) in u_adj.iter_mut().zip(&re) {
-                        *u = r - m;
-                    }
-                }
-                let mut explicit = None;
-                if ac != 0.0 {
-                    for (u, c) in u_adj.iter_mut().zip(&pass.centred) {
-                        *u += ac * c / nn;
-                    }
-                    let u: Vec<f64> = g1.iter().map(|z| z.norm()).collect();
-                    let ubar = u.iter().sum::<f64>() / nn;
-                    explicit = Some(u.iter().map(|v| ac * (v - ubar) / nn).collect());
-                }
-                let a1 = weights
-                    [crate::scattering::layout::CoefficientLayout::new(jn, ln).first_order(j1, l1)];
-                let ap = weights
-                    [crate::scattering::layout::CoefficientLayout::new(jn, ln).band_power(j1, l1)];
-                let mut z1: Vec<Complex64> = g1
-                    .iter()
-                    .zip(&u_adj)
-                    .map(|(z, ua)| {
-                        let r = z.norm();
-                        if r > 0.0 {
-                            let du = ua + a1 / nn + 2.0 * ap * r / nn;
-                            *z * (du / r)
-                        } else {
-                            Complex64::default()
-                        }
-                    })
-                    .collect();
-                self.fft.forward(&mut z1);
-                let psi = self.bank.wavelet(j1, l1);
-                z1.iter_mut().zip(psi).for_each(|(z, p)| *z *= p);
-                (z1, explicit)
             })
             .collect();
-        // Fixed-order sum: bitwise identical for any thread count.
+        self.fft.forward(&mut z1);
+        let psi = self.bank.wavelet(j1, l1);
+        z1.iter_mut().zip(psi).for_each(|(z, p)| *z *= p);
+        (z1, explicit)
+    }
+
+    /// The adjoint ū of the modulus u of band (j1, l1) from its second-order coefficients:
+    /// Z₂ = (a/N) g₂/|g₂| per (j2 > j1, l2), gathered in Fourier space as Σ ψ̂₂·DFT(Z₂), back
+    /// through the IDFT and the mean removal. Zero when no weight of the band is non-zero.
+    fn second_order_adjoint(
+        &self,
+        weights: &[f64],
+        (j1, l1): (usize, usize),
+        vhat: &[Complex64],
+    ) -> Vec<f64> {
+        let n = self.size();
+        let nn = (n * n) as f64;
+        let (jn, ln) = (self.bank.scale_count(), self.bank.orientation_count());
+        let mut v_adj_hat = vec![Complex64::default(); n * n];
+        let mut any_second = false;
+        for j2 in (j1 + 1)..jn {
+            for l2 in 0..ln {
+                let a = weights[second_order_index(jn, ln, j1, l1, j2, l2)];
+                if a == 0.0 {
+                    continue;
+                }
+                any_second = true;
+                let mut g2 = self.filtered(vhat, j2, l2);
+                // Z₂ = (a/N) g₂/|g₂|, zero where g₂ = 0.
+                for z in g2.iter_mut() {
+                    let r = z.norm();
+                    *z = if r > 0.0 {
+                        *z * (a / (nn * r))
+                    } else {
+                        Complex64::default()
+                    };
+                }
+                self.fft.forward(&mut g2);
+                for ((acc, z), p) in v_adj_hat.iter_mut().zip(&g2).zip(self.bank.wavelet(j2, l2)) {
+                    *acc += z * p; // conj(ψ̂₂) = ψ̂₂ (real)
+                }
+            }
+        }
+        let mut u_adj = vec![0.0; n * n];
+        if any_second {
+            self.fft.inverse(&mut v_adj_hat);
+            let re: Vec<f64> = v_adj_hat.iter().map(|z| z.re).collect();
+            let m = re.iter().sum::<f64>() / nn; // adjoint of mean removal
+            for (u, r) in u_adj.iter_mut().zip(&re) {
+                *u = r - m;
+            }
+        }
+        u_adj
+    }
+
+    /// ∂L/∂f from the bands' adjoints, summed in a fixed order (bitwise identical for any
+    /// thread count): Re IDFT(Σ parts) plus the explicit terms, through the mean removal, plus
+    /// the mean's a/N and the variance's 2 a (f − f̄)/N.
+    fn periodic_field_adjoint(
+        &self,
+        pass: &ForwardPass,
+        weights: &[f64],
+        parts: &[(Vec<Complex64>, Option<Vec<f64>>)],
+    ) -> Vec<f64> {
+        let n = self.size();
+        let nn = (n * n) as f64;
         let mut total = vec![Complex64::default(); n * n];
-        for (part, _) in &parts {
+        for (part, _) in parts {
             for (t, p) in total.iter_mut().zip(part) {
                 *t += p;
             }
         }
         self.fft.inverse(&mut total);
         let mut re: Vec<f64> = total.iter().map(|z| z.re).collect();
-        for (_, explicit) in &parts {
+        for (_, explicit) in parts {
             if let Some(e) = explicit {
                 for (r, v) in re.iter_mut().zip(e) {
                     *r += v;
@@ -388,11 +434,18 @@ impl DifferentiableScattering {
         }
         let m = re.iter().sum::<f64>() / nn;
         let (a_mean, a_var) = (weights[0], weights[1]);
-        Ok(re
-            .iter()
+        re.iter()
             .zip(&pass.centred)
             .map(|(r, c)| r - m + a_mean / nn + a_var * 2.0 * c / nn)
-            .collect())
+            .collect()
+    }
+
+    /// IDFT(ψ̂_{j,l} · spectrum): a spectrum filtered by one wavelet, on the full grid.
+    fn filtered(&self, spectrum: &[Complex64], j: usize, l: usize) -> Vec<Complex64> {
+        let psi = self.bank.wavelet(j, l);
+        let mut g: Vec<Complex64> = spectrum.iter().zip(psi).map(|(s, p)| s * p).collect();
+        self.fft.inverse(&mut g);
+        g
     }
 
     /// The DFT of the mean-removed field from a forward pass (used by the power-spectrum terms).

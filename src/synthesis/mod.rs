@@ -149,6 +149,23 @@ pub struct SynthesisSettings {
     pub fourier_cropping: bool,
 }
 
+impl SynthesisSettings {
+    /// Refuses optimiser settings no synthesis can run with: no iteration, no L-BFGS memory.
+    pub(crate) fn check_optimiser(&self) -> Result<()> {
+        if self.iterations == 0 {
+            return Err(Error::Setting(
+                "the number of iterations must be at least 1".into(),
+            ));
+        }
+        if self.memory == 0 {
+            return Err(Error::Setting(
+                "the L-BFGS memory must be at least 1 pair".into(),
+            ));
+        }
+        Ok(())
+    }
+}
+
 impl Default for SynthesisSettings {
     fn default() -> Self {
         Self {
@@ -424,16 +441,7 @@ impl FlatSynthesis {
                 crate::error::compact(pixel_size)
             )));
         }
-        if settings.iterations == 0 {
-            return Err(Error::Setting(
-                "the number of iterations must be at least 1".into(),
-            ));
-        }
-        if settings.memory == 0 {
-            return Err(Error::Setting(
-                "the L-BFGS memory must be at least 1 pair".into(),
-            ));
-        }
+        settings.check_optimiser()?;
         let transform = DifferentiableScattering::new(size, scale_count, orientation_count)?;
         let summary = match settings.statistics {
             StatisticChoice::Full => None,
@@ -690,15 +698,8 @@ impl FlatSynthesis {
         if self.settings.field_envelope_correlation {
             let (jn, ln) = (self.scale_count(), self.orientation_count());
             let start = self.select(coefficients).len();
-            for j in 0..jn {
-                let p = (0..ln)
-                    .map(|l| {
-                        coefficients[crate::scattering::layout::CoefficientLayout::new(jn, ln)
-                            .band_power(j, l)]
-                    })
-                    .sum::<f64>()
-                    / ln as f64;
-                sigma[start + j] = (coefficients[1] * p).sqrt();
+            for (j, bound) in correlation_bounds(coefficients, jn, ln).enumerate() {
+                sigma[start + j] = bound;
             }
         }
         if let Some(i) = sigma.iter().position(|v| v.is_nan() || *v <= 0.0) {
@@ -734,13 +735,7 @@ impl FlatSynthesis {
         };
         let s = self.statistics_of_pass(&pass);
         let spectrum = pass.spectrum(&self.transform);
-        let mut loss = 0.0;
-        let mut ds = Vec::with_capacity(s.len());
-        for ((si, ti), sg) in s.iter().zip(&target.values).zip(sigma) {
-            let r = (si - ti) / sg;
-            loss += r * r;
-            ds.push(2.0 * r / sg);
-        }
+        let (loss, ds) = relative_loss(&s, &target.values, sigma);
         let dc = self.select_adjoint(pass.coefficients(), &ds[..set_len]);
         let correlation_weights: Option<Vec<f64>> = (corr_len > 0).then(|| {
             let ln = self.orientation_count();
@@ -822,14 +817,7 @@ impl FlatSynthesis {
             let (loss, grad_f) = self.loss_and_gradient(target, &field)?;
             Ok((loss, grad_f.iter().map(|g| g * sd).collect()))
         };
-        let run = minimise(
-            &evaluate,
-            x0,
-            initial_loss,
-            self.settings.iterations,
-            self.settings.memory,
-            self.settings.progress,
-        )?;
+        let run = minimise(&evaluate, x0, initial_loss, &self.settings)?;
         let (best_x, history, done, termination) =
             (run.best, run.history, run.iterations, run.termination);
         let mut field: Vec<f64> = best_x.iter().map(|x| mu + sd * x).collect();
@@ -845,12 +833,8 @@ impl FlatSynthesis {
         }
         let statistics = self.statistics(&field)?;
         let (final_loss, _) = self.loss_and_gradient(target, &field)?;
-        let max_relative_deviation = statistics
-            .iter()
-            .zip(&target.values)
-            .zip(&target.sigma)
-            .map(|((s, t), sg)| ((s - t) / sg).abs())
-            .fold(0.0, f64::max);
+        let max_relative_deviation =
+            max_relative_deviation(&statistics, &target.values, &target.sigma);
         Ok(SynthesisOutcome {
             field,
             start,
@@ -1039,18 +1023,59 @@ pub(crate) struct Minimisation {
     pub termination: String,
 }
 
-/// Minimises `objective` from `x0` (whose loss is `initial_loss`) by L-BFGS with `memory`
-/// correction pairs (Nocedal & Wright 2006, Alg. 7.4/7.5) and the Moré–Thuente line search
-/// (Moré & Thuente 1994), from the `argmin` crate, for at most `iterations` iterations, with
-/// an optional progress bar showing the loss (stderr).
+/// The loss L = Σ_i ((s_i − t_i)/σ_i)² of statistics s against the target t, and its
+/// derivatives ∂L/∂s_i = 2 (s_i − t_i)/σ_i².
+pub(crate) fn relative_loss(statistics: &[f64], target: &[f64], sigma: &[f64]) -> (f64, Vec<f64>) {
+    let mut loss = 0.0;
+    let mut ds = Vec::with_capacity(statistics.len());
+    for ((si, ti), sg) in statistics.iter().zip(target).zip(sigma) {
+        let r = (si - ti) / sg;
+        loss += r * r;
+        ds.push(2.0 * r / sg);
+    }
+    (loss, ds)
+}
+
+/// Per scale j: the Cauchy–Schwarz bound √(σ² · P̄_j) of the field–envelope correlation
+/// |⟨(f − μ)|f∗ψ_j|⟩| ≤ √(⟨(f − μ)²⟩ ⟨|f∗ψ_j|²⟩), with σ² the variance (coefficient 1) and
+/// P̄_j = (1/L) Σ_l P(j, l) from full coefficients in the layout of J scales, L orientations.
+pub(crate) fn correlation_bounds(
+    coefficients: &[f64],
+    jn: usize,
+    ln: usize,
+) -> impl Iterator<Item = f64> + '_ {
+    let layout = crate::scattering::layout::CoefficientLayout::new(jn, ln);
+    (0..jn).map(move |j| {
+        let p = (0..ln)
+            .map(|l| coefficients[layout.band_power(j, l)])
+            .sum::<f64>()
+            / ln as f64;
+        (coefficients[1] * p).sqrt()
+    })
+}
+
+/// max_i |s_i − t_i| / σ_i: the largest deviation of the statistics s from the target t in
+/// units of σ.
+pub(crate) fn max_relative_deviation(statistics: &[f64], target: &[f64], sigma: &[f64]) -> f64 {
+    statistics
+        .iter()
+        .zip(target)
+        .zip(sigma)
+        .map(|((s, t), sg)| ((s - t) / sg).abs())
+        .fold(0.0, f64::max)
+}
+
+/// Minimises `objective` from `x0` (whose loss is `initial_loss`) by L-BFGS with the settings'
+/// `memory` correction pairs (Nocedal & Wright 2006, Alg. 7.4/7.5) and the Moré–Thuente line
+/// search (Moré & Thuente 1994), from the `argmin` crate, for at most the settings'
+/// `iterations` iterations, with a progress bar showing the loss (stderr) when `progress` is on.
 pub(crate) fn minimise(
     objective: &Objective<'_>,
     x0: Vec<f64>,
     initial_loss: f64,
-    iterations: u64,
-    memory: usize,
-    progress: bool,
+    settings: &SynthesisSettings,
 ) -> Result<Minimisation> {
+    let (iterations, memory, progress) = (settings.iterations, settings.memory, settings.progress);
     let problem = SynthesisProblem {
         objective,
         cache: Mutex::new(None),

@@ -83,7 +83,10 @@
 //! flat synthesis is not applied: reflecting the footprint alone would change the tiles that
 //! straddle its edge.
 
-use super::{minimise, Normalisation, StartField, StatisticChoice, SummaryMap, SynthesisSettings};
+use super::{
+    correlation_bounds, max_relative_deviation, minimise, relative_loss, Normalisation, StartField,
+    StatisticChoice, SummaryMap, SynthesisSettings,
+};
 use crate::harmonics::spectrum::AngularSpectrum;
 use crate::harmonics::HarmonicTransform;
 use crate::measure::measurement::{MeasurementSettings, SphereMeasurer};
@@ -186,16 +189,7 @@ impl std::fmt::Debug for SphereSynthesis {
 
 /// Refuses settings a sphere synthesis cannot run with.
 fn check_sphere_settings(settings: &SynthesisSettings) -> Result<()> {
-    if settings.iterations == 0 {
-        return Err(Error::Setting(
-            "the number of iterations must be at least 1".into(),
-        ));
-    }
-    if settings.memory == 0 {
-        return Err(Error::Setting(
-            "the L-BFGS memory must be at least 1 pair".into(),
-        ));
-    }
+    settings.check_optimiser()?;
     if settings.power_spectrum_bins.is_some() {
         return Err(Error::Setting(
             "the power-spectrum term is only available for flat fields".into(),
@@ -567,13 +561,7 @@ impl SphereSynthesis {
             )));
         }
         let (total, c, s, one_point) = self.pooled(values)?;
-        let mut loss = 0.0;
-        let mut ds = Vec::with_capacity(s.len());
-        for ((si, ti), sg) in s.iter().zip(&target.values).zip(&target.sigma) {
-            let r = (si - ti) / sg;
-            loss += r * r;
-            ds.push(2.0 * r / sg);
-        }
+        let (loss, ds) = relative_loss(&s, &target.values, &target.sigma);
         let set_len = s.len() - self.correlation_count() - self.shape_count();
         let dc = self.select_adjoint(&c, &ds[..set_len]);
         // ∂L/∂f_x of the one-point shape, the same polynomial for every tile
@@ -656,12 +644,7 @@ impl SphereSynthesis {
                     self.measurer.settings().orientations,
                 );
                 if self.correlation_count() > 0 {
-                    for j in 0..jn {
-                        let layout = crate::scattering::layout::CoefficientLayout::new(jn, ln);
-                        let p =
-                            (0..ln).map(|l| c[layout.band_power(j, l)]).sum::<f64>() / ln as f64;
-                        sigma.push((c[1] * p).sqrt());
-                    }
+                    sigma.extend(correlation_bounds(c, jn, ln));
                     // |⟨x|x|⟩| ≤ ⟨x²⟩
                     sigma.push(c[1]);
                 }
@@ -842,23 +825,12 @@ impl SphereSynthesis {
             let (loss, g) = self.loss_and_gradient(target, &with(x))?;
             Ok((loss, self.variables.iter().map(|&p| g[p] * sd).collect()))
         };
-        let run = minimise(
-            &evaluate,
-            x0,
-            initial_loss,
-            self.settings.iterations,
-            self.settings.memory,
-            self.settings.progress,
-        )?;
+        let run = minimise(&evaluate, x0, initial_loss, &self.settings)?;
         let values = with(&run.best);
         let (final_loss, _) = self.loss_and_gradient(target, &values)?;
         let statistics = self.statistics(&values)?;
-        let max_relative_deviation = statistics
-            .iter()
-            .zip(&target.values)
-            .zip(&target.sigma)
-            .map(|((s, t), sg)| ((s - t) / sg).abs())
-            .fold(0.0, f64::max);
+        let max_relative_deviation =
+            max_relative_deviation(&statistics, &target.values, &target.sigma);
         Ok(SphereSynthesisOutcome {
             map: SkyMap::new(self.geometry.pixelization(), values)?,
             start,

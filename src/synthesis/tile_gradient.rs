@@ -282,34 +282,59 @@ impl DifferentiableScattering {
         validate_settings(settings)?;
         let bank = self.bank();
         let n = bank.size();
-        let nn = n * n;
         let (big_j, big_l) = (bank.scale_count(), bank.orientation_count());
         let (weight_sum, taper_sum) = check_taper_and_weight(taper, weight, n)?;
         let levels = crop_levels_for(bank, settings, settings.first_layer_oversampling);
         let second_levels = crop_levels_for(bank, settings, 0);
+        let coverage = self.coverage(taper, &levels, &second_levels, settings.coverage_threshold);
+        let first_weights = self.first_trusted_weights(weight, &coverage.trust, &levels);
+        let pair_weights = self.pair_trusted_weights(weight, &coverage.trust, &second_levels);
+        let top = levels.iter().copied().max().unwrap_or(0);
+        let boxes = band_boxes(bank, &levels, &second_levels, settings);
+        Ok(TileGeometry {
+            inner: Arc::new(GeometryData {
+                size: n,
+                scale_count: big_j,
+                orientation_count: big_l,
+                settings: *settings,
+                levels,
+                second_levels,
+                taper: taper.to_vec(),
+                taper_sum,
+                weight: weight.to_vec(),
+                weight_sum,
+                level_tapers: level_tapers(taper, n, top),
+                inv_sqrt_coverage: coverage.inv_sqrt_first,
+                inv_sqrt_coverage_second: coverage.inv_sqrt_second,
+                first_weights,
+                pair_weights,
+                boxes,
+            }),
+        })
+    }
+
+    /// Per scale j: the trust mask [N_j ≥ τ] on the full grid and c_j = 1/√max(N_j, floor) on
+    /// the first-layer and second-layer grids of j.
+    fn coverage(
+        &self,
+        taper: &[f64],
+        levels: &[usize],
+        second_levels: &[usize],
+        tau: f64,
+    ) -> Coverage {
+        let n = self.size();
+        let big_j = levels.len();
         let a2: Vec<f64> = taper.iter().map(|a| a * a).collect();
         let a2_spec = self.square_fft().spectrum_of(&a2);
-        let tau = settings.coverage_threshold;
         let mut trust: Vec<Vec<bool>> = Vec::with_capacity(big_j);
-        let mut inv_sqrt_coverage = Vec::with_capacity(big_j);
-        let mut inv_sqrt_coverage_second = Vec::with_capacity(big_j);
+        let mut inv_sqrt_first = Vec::with_capacity(big_j);
+        let mut inv_sqrt_second = Vec::with_capacity(big_j);
         for (j, &level) in levels.iter().enumerate() {
-            // K_j = (1/L) Σ_l |ψ_{j,l}|², normalised to unit sum (its DFT at 0).
-            let mut kernel = vec![0.0; nn];
-            for l in 0..big_l {
-                for (k, v) in kernel.iter_mut().zip(bank.squared_modulus(j, l)) {
-                    *k += v;
-                }
-            }
-            let dc = kernel[0];
-            kernel.iter_mut().for_each(|k| *k /= dc);
-            let mut c: Vec<Complex64> = a2_spec.iter().zip(&kernel).map(|(s, k)| s * k).collect();
-            self.square_fft().inverse_unnormalised(&mut c);
-            let cov: Vec<f64> = c.iter().map(|z| z.re / nn as f64).collect();
+            let cov = self.scale_coverage(&a2_spec, j);
             trust.push(cov.iter().map(|&v| v >= tau).collect());
             for (target, d) in [
-                (&mut inv_sqrt_coverage, level),
-                (&mut inv_sqrt_coverage_second, second_levels[j]),
+                (&mut inv_sqrt_first, level),
+                (&mut inv_sqrt_second, second_levels[j]),
             ] {
                 target.push(
                     subsample(&cov, n, n >> d)
@@ -319,9 +344,42 @@ impl DifferentiableScattering {
                 );
             }
         }
-        let first_weights = trust
+        Coverage {
+            trust,
+            inv_sqrt_first,
+            inv_sqrt_second,
+        }
+    }
+
+    /// The coverage N_j = a² ∗ K_j of scale j on the full grid, from the DFT of a²; K_j =
+    /// (1/L) Σ_l |ψ_{j,l}|², normalised to unit sum (its DFT at 0).
+    fn scale_coverage(&self, a2_spec: &[Complex64], j: usize) -> Vec<f64> {
+        let bank = self.bank();
+        let nn = bank.size() * bank.size();
+        let mut kernel = vec![0.0; nn];
+        for l in 0..bank.orientation_count() {
+            for (k, v) in kernel.iter_mut().zip(bank.squared_modulus(j, l)) {
+                *k += v;
+            }
+        }
+        let dc = kernel[0];
+        kernel.iter_mut().for_each(|k| *k /= dc);
+        let mut c: Vec<Complex64> = a2_spec.iter().zip(&kernel).map(|(s, k)| s * k).collect();
+        self.square_fft().inverse_unnormalised(&mut c);
+        c.iter().map(|z| z.re / nn as f64).collect()
+    }
+
+    /// Per scale j: the trusted weight W_j = w·[N_j ≥ τ] low-passed to the first-layer grid of
+    /// j, and Σ W_j.
+    fn first_trusted_weights(
+        &self,
+        weight: &[f64],
+        trust: &[Vec<bool>],
+        levels: &[usize],
+    ) -> Vec<(Vec<f64>, f64)> {
+        trust
             .iter()
-            .zip(&levels)
+            .zip(levels)
             .map(|(tj, &level)| {
                 let wj: Vec<f64> = weight
                     .iter()
@@ -331,8 +389,20 @@ impl DifferentiableScattering {
                 let total = wj.iter().sum::<f64>();
                 (self.low_pass(&wj, level), total)
             })
-            .collect();
-        let pair_weights = (0..big_j)
+            .collect()
+    }
+
+    /// Per j1, per j2 > j1: the weight W_{j1,j2} = w·[N_{j1} ≥ τ]·[N_{j2} ≥ τ] low-passed to the
+    /// second-layer grid of j2, and Σ W_{j1,j2}.
+    fn pair_trusted_weights(
+        &self,
+        weight: &[f64],
+        trust: &[Vec<bool>],
+        second_levels: &[usize],
+    ) -> Vec<Vec<(Vec<f64>, f64)>> {
+        let big_j = trust.len();
+        let nn = weight.len();
+        (0..big_j)
             .map(|j1| {
                 ((j1 + 1)..big_j)
                     .map(|j2| {
@@ -350,38 +420,8 @@ impl DifferentiableScattering {
                     })
                     .collect()
             })
-            .collect();
-        let top = levels.iter().copied().max().unwrap_or(0);
-        let boxes = band_boxes(bank, &levels, &second_levels, settings);
-        let level_tapers = (0..=top)
-            .map(|d| {
-                let t = subsample(taper, n, n >> d);
-                let s = t.iter().sum::<f64>();
-                (t, s)
-            })
-            .collect();
-        Ok(TileGeometry {
-            inner: Arc::new(GeometryData {
-                size: n,
-                scale_count: big_j,
-                orientation_count: big_l,
-                settings: *settings,
-                levels,
-                second_levels,
-                taper: taper.to_vec(),
-                taper_sum,
-                weight: weight.to_vec(),
-                weight_sum,
-                level_tapers,
-                inv_sqrt_coverage,
-                inv_sqrt_coverage_second,
-                first_weights,
-                pair_weights,
-                boxes,
-            }),
-        })
+            .collect()
     }
-
     /// Forward pass of the masked estimator on one tile: the sums equal
     /// [`crate::scattering::transform::ScatteringEngine::transform_tile`] with the same settings (Fourier
     /// cropping included when the settings ask for it).
@@ -421,7 +461,6 @@ impl DifferentiableScattering {
         let g = &geometry.inner;
         let n = g.size;
         let nn = n * n;
-        let (big_j, big_l) = (g.scale_count, g.orientation_count);
         check_values("field", field, nn, n)?;
         let (a, w) = (&g.taper, &g.weight);
         let mut swf = 0.0;
@@ -433,95 +472,23 @@ impl DifferentiableScattering {
         let mu = a.iter().zip(field).map(|(a, f)| a * f).sum::<f64>() / g.taper_sum;
         let input: Vec<f64> = a.iter().zip(field).map(|(a, f)| a * (f - mu)).collect();
         let spectrum = self.square_fft().spectrum_of(&input);
-        let items: Vec<(usize, usize)> = (0..big_j)
-            .flat_map(|j| (0..big_l).map(move |l| (j, l)))
-            .collect();
-        type Item = (f64, f64, f64, Vec<f64>, Vec<Complex64>, Vec<Complex64>);
-        let scale = 1.0 / nn as f64;
-        let results: Vec<Item> = items
+        let items = first_layer_bands(g);
+        let bands: Vec<ForwardBand> = items
             .par_iter()
-            .map(|&(j1, l1)| {
-                let d1 = g.levels[j1];
-                let m1 = n >> d1;
-                let factor1 = (1usize << (2 * d1)) as f64;
-                let mut g1: Vec<Complex64> = Vec::with_capacity(m1 * m1);
-                g.boxes.0[j1 * big_l + l1].gather(&spectrum, self.wavelet_at(j1, l1, 0), &mut g1);
-                self.grids.ffts[d1].inverse_unnormalised(&mut g1);
-                g1.iter_mut().for_each(|z| *z *= scale);
-                let c1 = &g.inv_sqrt_coverage[j1];
-                let u: Vec<f64> = g1.iter().zip(c1).map(|(z, &c)| z.norm() * c).collect();
-                let (wl, _) = &g.first_weights[j1];
-                let input_here = subsample(&input, n, m1);
-                let mut s1 = 0.0;
-                let mut p = 0.0;
-                let mut e = 0.0;
-                for ((wv, uv), iv) in wl.iter().zip(&u).zip(&input_here) {
-                    s1 += wv * uv;
-                    p += wv * uv * uv;
-                    e += wv * iv * uv;
-                }
-                let mut s2 = Vec::new();
-                let mut spec2 = Vec::new();
-                if j1 + 1 < big_j {
-                    let (ad, sad) = &g.level_tapers[d1];
-                    let mu_u = if *sad > 0.0 {
-                        ad.iter().zip(&u).map(|(a, u)| a * u).sum::<f64>() / sad
-                    } else {
-                        0.0
-                    };
-                    let second_input: Vec<f64> =
-                        ad.iter().zip(&u).map(|(a, u)| a * (u - mu_u)).collect();
-                    spec2 = self.grids.ffts[d1].spectrum_of(&second_input);
-                    let scale2 = 1.0 / (m1 * m1) as f64;
-                    for (pair, j2) in ((j1 + 1)..big_j).enumerate() {
-                        let d2 = g.second_levels[j2];
-                        let m2 = n >> d2;
-                        let factor2 = (1usize << (2 * d2)) as f64;
-                        let c2 = &g.inv_sqrt_coverage_second[j2];
-                        let (wp, _) = &g.pair_weights[j1][pair];
-                        for l2 in 0..big_l {
-                            let mut g2: Vec<Complex64> = Vec::with_capacity(m2 * m2);
-                            g.band(d1, j2, l2)
-                                .gather(&spec2, self.wavelet_at(j2, l2, d1), &mut g2);
-                            self.grids.ffts[d2].inverse_unnormalised(&mut g2);
-                            let mut acc = 0.0;
-                            for ((z, &c), wv) in g2.iter().zip(c2).zip(wp) {
-                                acc += wv * z.norm() * c;
-                            }
-                            s2.push(acc * factor2 * scale2);
-                        }
-                    }
-                }
-                (s1 * factor1, p * factor1, e * factor1, s2, g1, spec2)
-            })
+            .map(|&(j1, l1)| self.forward_band(g, &spectrum, &input, j1, l1))
             .collect();
-        let count = self.labels().len();
-        let mut sums = vec![0.0; count];
-        let mut weights = vec![0.0; count];
+        let mut sums = vec![0.0; self.labels().len()];
+        let mut weights = vec![0.0; self.labels().len()];
         sums[0] = swf;
         weights[0] = g.weight_sum;
         sums[1] = swf2;
         weights[1] = g.weight_sum;
-        let layout = CoefficientLayout::new(big_j, big_l);
-        let mut first = Vec::with_capacity(items.len());
         let mut field_envelope = Vec::with_capacity(items.len());
-        for (&(j1, l1), (s1, p, e, s2, g1, spec2)) in items.iter().zip(results) {
-            field_envelope.push(e);
-            let trusted = g.first_weights[j1].1;
-            sums[layout.first_order(j1, l1)] = s1;
-            weights[layout.first_order(j1, l1)] = trusted;
-            sums[layout.band_power(j1, l1)] = p;
-            weights[layout.band_power(j1, l1)] = trusted;
-            let mut k = 0;
-            for (pair, j2) in ((j1 + 1)..big_j).enumerate() {
-                for l2 in 0..big_l {
-                    let i = layout.second_order(j1, l1, j2, l2);
-                    sums[i] = s2[k];
-                    weights[i] = g.pair_weights[j1][pair].1;
-                    k += 1;
-                }
-            }
-            first.push((g1, spec2));
+        let mut first = Vec::with_capacity(items.len());
+        for (&(j1, l1), band) in items.iter().zip(bands) {
+            field_envelope.push(band.envelope);
+            place_band_sums(g, j1, l1, &band, &mut sums, &mut weights);
+            first.push((band.g1, band.spec2));
         }
         field_envelope.push(
             input
@@ -545,6 +512,109 @@ impl DifferentiableScattering {
         })
     }
 
+    /// The forward pass of one first-layer band (j1, l1): g₁ = IDFT(B(ψ̂ · F)) / N, u = |g₁| c,
+    /// the S1, P and field–envelope sums over the band's grid, then the second order.
+    fn forward_band(
+        &self,
+        g: &GeometryData,
+        spectrum: &[Complex64],
+        input: &[f64],
+        j1: usize,
+        l1: usize,
+    ) -> ForwardBand {
+        let n = g.size;
+        let scale = 1.0 / (n * n) as f64;
+        let d1 = g.levels[j1];
+        let m1 = n >> d1;
+        let factor1 = (1usize << (2 * d1)) as f64;
+        let mut g1: Vec<Complex64> = Vec::with_capacity(m1 * m1);
+        let big_l = g.orientation_count;
+        g.boxes.0[j1 * big_l + l1].gather(spectrum, self.wavelet_at(j1, l1, 0), &mut g1);
+        self.grids.ffts[d1].inverse_unnormalised(&mut g1);
+        g1.iter_mut().for_each(|z| *z *= scale);
+        let c1 = &g.inv_sqrt_coverage[j1];
+        let u: Vec<f64> = g1.iter().zip(c1).map(|(z, &c)| z.norm() * c).collect();
+        let (wl, _) = &g.first_weights[j1];
+        let input_here = subsample(input, n, m1);
+        let mut s1 = 0.0;
+        let mut p = 0.0;
+        let mut e = 0.0;
+        for ((wv, uv), iv) in wl.iter().zip(&u).zip(&input_here) {
+            s1 += wv * uv;
+            p += wv * uv * uv;
+            e += wv * iv * uv;
+        }
+        let (s2, spec2) = if j1 + 1 < g.scale_count {
+            self.second_order_sums(g, &u, j1)
+        } else {
+            (Vec::new(), Vec::new())
+        };
+        ForwardBand {
+            s1: s1 * factor1,
+            band_power: p * factor1,
+            envelope: e * factor1,
+            s2,
+            g1,
+            spec2,
+        }
+    }
+
+    /// The second order of a band of scale j1 < J − 1 from its normalised modulus u:
+    /// I₂ = ã (u − μ_u), F₂ = DFT(I₂), and the S2 sums 4^{d′2} Σ W̃_{j1,j2} c_{j2} |g₂| / M_1 of
+    /// every (j2 > j1, l2) in layout order; returns them with F₂.
+    fn second_order_sums(
+        &self,
+        g: &GeometryData,
+        u: &[f64],
+        j1: usize,
+    ) -> (Vec<f64>, Vec<Complex64>) {
+        let d1 = g.levels[j1];
+        let m1 = g.size >> d1;
+        let (ad, sad) = &g.level_tapers[d1];
+        let mu_u = if *sad > 0.0 {
+            ad.iter().zip(u).map(|(a, u)| a * u).sum::<f64>() / sad
+        } else {
+            0.0
+        };
+        let second_input: Vec<f64> = ad.iter().zip(u).map(|(a, u)| a * (u - mu_u)).collect();
+        let spec2 = self.grids.ffts[d1].spectrum_of(&second_input);
+        let scale2 = 1.0 / (m1 * m1) as f64;
+        let mut s2 = Vec::new();
+        for (pair, j2) in ((j1 + 1)..g.scale_count).enumerate() {
+            let factor2 = (1usize << (2 * g.second_levels[j2])) as f64;
+            let c2 = &g.inv_sqrt_coverage_second[j2];
+            let (wp, _) = &g.pair_weights[j1][pair];
+            for l2 in 0..g.orientation_count {
+                let g2 = self.second_layer_grid(g, &spec2, d1, j2, l2);
+                let mut acc = 0.0;
+                for ((z, &c), wv) in g2.iter().zip(c2).zip(wp) {
+                    acc += wv * z.norm() * c;
+                }
+                s2.push(acc * factor2 * scale2);
+            }
+        }
+        (s2, spec2)
+    }
+
+    /// The unscaled second-layer grid IDFT_{m′2}(B_{m1→m′2}(ψ̂_{j2,l2} · F₂)) of a band whose
+    /// first layer sits at level `d1` (g₂ times M_1).
+    fn second_layer_grid(
+        &self,
+        g: &GeometryData,
+        spec2: &[Complex64],
+        d1: usize,
+        j2: usize,
+        l2: usize,
+    ) -> Vec<Complex64> {
+        let d2 = g.second_levels[j2];
+        let m2 = g.size >> d2;
+        let mut g2: Vec<Complex64> = Vec::with_capacity(m2 * m2);
+        g.band(d1, j2, l2)
+            .gather(spec2, self.wavelet_at(j2, l2, d1), &mut g2);
+        self.grids.ffts[d2].inverse_unnormalised(&mut g2);
+        g2
+    }
+
     /// Gradient ∂(Σ_i b_i · sums_i)/∂f of a linear combination of a tile's sums
     /// (b = `sum_weights`, layout of [`Self::labels`]), from a forward pass of this transform;
     /// taper, weight and trust cut are constants (module documentation).
@@ -560,6 +630,28 @@ impl DifferentiableScattering {
         sum_weights: &[f64],
         envelope_weights: Option<&[f64]>,
     ) -> Result<Vec<f64>> {
+        self.check_backward_weights(pass, sum_weights, envelope_weights)?;
+        let g = &pass.geometry.inner;
+        let items = first_layer_bands(g);
+        let parts: Vec<BandAdjoint> = items
+            .par_iter()
+            .zip(&pass.first)
+            .map(|(&(j1, l1), (g1, spec2))| {
+                let weights = BandWeights::of(g, sum_weights, envelope_weights, j1, l1);
+                self.band_adjoint(pass, &weights, j1, g1, spec2)
+            })
+            .collect();
+        let (total, direct_total) = self.summed_band_adjoints(g, &items, &parts);
+        Ok(self.field_adjoint(pass, total, direct_total, sum_weights, envelope_weights))
+    }
+
+    /// Errors unless the weights fit the transform's sums and the pass's field–envelope sums.
+    fn check_backward_weights(
+        &self,
+        pass: &TileForward,
+        sum_weights: &[f64],
+        envelope_weights: Option<&[f64]>,
+    ) -> Result<()> {
         self.check_geometry(&pass.geometry)?;
         if let Some(e) = envelope_weights {
             if e.len() != pass.field_envelope.len() {
@@ -577,126 +669,147 @@ impl DifferentiableScattering {
                 self.labels().len()
             )));
         }
+        Ok(())
+    }
+
+    /// The adjoint of one first-layer band (j1, l1): ū from S1, P, the field–envelope sum and
+    /// the second order, then z̄₁ = ū c z/|z| carried back through the IDFT to the cropped
+    /// spectrum B_{n→m1} F (on the m1² box), with the direct adjoint of I at the coarse pixels
+    /// from the field–envelope sum.
+    fn band_adjoint(
+        &self,
+        pass: &TileForward,
+        b: &BandWeights<'_>,
+        j1: usize,
+        g1: &[Complex64],
+        spec2: &[Complex64],
+    ) -> BandAdjoint {
         let g = &pass.geometry.inner;
         let n = g.size;
-        let nn = n * n;
-        let (big_j, big_l) = (g.scale_count, g.orientation_count);
-        let layout = CoefficientLayout::new(big_j, big_l);
-        let items: Vec<(usize, usize)> = (0..big_j)
-            .flat_map(|j| (0..big_l).map(move |l| (j, l)))
+        let d1 = g.levels[j1];
+        let m1 = n >> d1;
+        let factor1 = (1usize << (2 * d1)) as f64;
+        let c1 = &g.inv_sqrt_coverage[j1];
+        let (wl, _) = &g.first_weights[j1];
+        // ū from S1 and P.
+        let mut u_adj: Vec<f64> = g1
+            .iter()
+            .zip(c1)
+            .zip(wl)
+            .map(|((z, &c), &wv)| factor1 * wv * (b.s1 + 2.0 * b.band_power * z.norm() * c))
             .collect();
-        let scale = 1.0 / nn as f64;
-        // Per (j1, l1): the adjoint of the cropped spectrum B_{n→m1} F, on the m1² box, and
-        // the direct adjoint of I at the coarse pixels from the field–envelope sum.
-        type Part = (Vec<Complex64>, Option<Vec<f64>>);
-        let parts: Vec<Part> = items
-            .par_iter()
-            .zip(&pass.first)
-            .map(|(&(j1, l1), (g1, spec2))| {
-                let d1 = g.levels[j1];
-                let m1 = n >> d1;
-                let factor1 = (1usize << (2 * d1)) as f64;
-                let c1 = &g.inv_sqrt_coverage[j1];
-                let (wl, _) = &g.first_weights[j1];
-                let b1 = sum_weights[layout.first_order(j1, l1)];
-                let bp = sum_weights[layout.band_power(j1, l1)];
-                // ū from S1 and P.
-                let mut u_adj: Vec<f64> = g1
-                    .iter()
-                    .zip(c1)
-                    .zip(wl)
-                    .map(|((z, &c), &wv)| factor1 * wv * (b1 + 2.0 * bp * z.norm() * c))
-                    .collect();
-                // ū and Ī from E = κ Σ_X W̃ I u.
-                let be = envelope_weights.map_or(0.0, |e| e[j1 * big_l + l1]);
-                let direct = (be != 0.0).then(|| {
-                    let input_here = subsample(&pass.input, n, m1);
-                    let mut direct = Vec::with_capacity(m1 * m1);
-                    for (((ua, z), &c), (&wv, iv)) in u_adj
-                        .iter_mut()
-                        .zip(g1)
-                        .zip(c1)
-                        .zip(wl.iter().zip(&input_here))
-                    {
-                        *ua += factor1 * wv * iv * be;
-                        direct.push(factor1 * wv * z.norm() * c * be);
-                    }
-                    direct
-                });
-                if j1 + 1 < big_j {
-                    let scale2 = 1.0 / (m1 * m1) as f64;
-                    let mut spec2_adj = vec![Complex64::default(); m1 * m1];
-                    let mut any_second = false;
-                    for (pair, j2) in ((j1 + 1)..big_j).enumerate() {
-                        let d2 = g.second_levels[j2];
-                        let m2 = n >> d2;
-                        let factor2 = (1usize << (2 * d2)) as f64;
-                        let c2 = &g.inv_sqrt_coverage_second[j2];
-                        let (wp, _) = &g.pair_weights[j1][pair];
-                        for l2 in 0..big_l {
-                            let b = sum_weights[layout.second_order(j1, l1, j2, l2)];
-                            if b == 0.0 {
-                                continue;
-                            }
-                            any_second = true;
-                            let band = g.band(d1, j2, l2);
-                            let psi2 = self.wavelet_at(j2, l2, d1);
-                            let mut g2: Vec<Complex64> = Vec::with_capacity(m2 * m2);
-                            band.gather(spec2, psi2, &mut g2);
-                            self.grids.ffts[d2].inverse_unnormalised(&mut g2);
-                            // g₂ = raw · scale2; s2 = κ Σ W̃ c |g₂|, κ = 4^{d2}.
-                            let k = b * factor2 * scale2;
-                            for ((z, &c), &wv) in g2.iter_mut().zip(c2).zip(wp) {
-                                let r = z.norm();
-                                *z = if r > 0.0 {
-                                    *z * (k * wv * c / r)
-                                } else {
-                                    Complex64::default()
-                                };
-                            }
-                            self.grids.ffts[d2].forward(&mut g2);
-                            band.scatter_add(&mut spec2_adj, psi2, &g2);
-                        }
-                    }
-                    if any_second {
-                        self.grids.ffts[d1].inverse_unnormalised(&mut spec2_adj);
-                        let (ad, sad) = &g.level_tapers[d1];
-                        let i2_adj: Vec<f64> =
-                            spec2_adj.iter().zip(ad).map(|(z, a)| z.re * a).collect();
-                        let m = if *sad > 0.0 {
-                            i2_adj.iter().sum::<f64>() / sad
-                        } else {
-                            0.0
-                        };
-                        for ((ua, ia), a) in u_adj.iter_mut().zip(&i2_adj).zip(ad) {
-                            *ua += ia - a * m;
-                        }
-                    }
+        // ū and Ī from E = κ Σ_X W̃ I u.
+        let be = b.envelope;
+        let direct = (be != 0.0).then(|| {
+            let input_here = subsample(&pass.input, n, m1);
+            let mut direct = Vec::with_capacity(m1 * m1);
+            for (((ua, z), &c), (&wv, iv)) in u_adj
+                .iter_mut()
+                .zip(g1)
+                .zip(c1)
+                .zip(wl.iter().zip(&input_here))
+            {
+                *ua += factor1 * wv * iv * be;
+                direct.push(factor1 * wv * z.norm() * c * be);
+            }
+            direct
+        });
+        if j1 + 1 < g.scale_count {
+            self.add_second_order_adjoint(g, b, j1, spec2, &mut u_adj);
+        }
+        let mut z1: Vec<Complex64> = g1
+            .iter()
+            .zip(c1)
+            .zip(&u_adj)
+            .map(|((z, &c), &ua)| {
+                let r = z.norm();
+                if r > 0.0 {
+                    *z * (ua * c / r)
+                } else {
+                    Complex64::default()
                 }
-                let mut z1: Vec<Complex64> = g1
-                    .iter()
-                    .zip(c1)
-                    .zip(&u_adj)
-                    .map(|((z, &c), &ua)| {
-                        let r = z.norm();
-                        if r > 0.0 {
-                            *z * (ua * c / r)
-                        } else {
-                            Complex64::default()
-                        }
-                    })
-                    .collect();
-                // g₁ = IDFT(ψ̂ · B F) / N.
-                self.grids.ffts[d1].forward(&mut z1);
-                z1.iter_mut().for_each(|z| *z *= scale);
-                (z1, direct)
             })
             .collect();
-        // Fixed-order sums: bitwise identical for any thread count.
-        let mut total = vec![Complex64::default(); nn];
-        let mut direct_total = vec![0.0; nn];
-        for (&(j1, l1), (part, direct)) in items.iter().zip(&parts) {
-            g.boxes.0[j1 * big_l + l1].scatter_add(&mut total, self.wavelet_at(j1, l1, 0), part);
+        // g₁ = IDFT(ψ̂ · B F) / N.
+        self.grids.ffts[d1].forward(&mut z1);
+        let scale = 1.0 / (n * n) as f64;
+        z1.iter_mut().for_each(|z| *z *= scale);
+        (z1, direct)
+    }
+
+    /// Adds to ū of a band of scale j1 < J − 1 the adjoint of its S2 sums: each g₂ is
+    /// recomputed from F₂, z̄₂ = b κ W̃ c z/|z| goes back through its IDFT and box into F̄₂, and
+    /// Ī₂ = Re IDFT(F̄₂) through the tapered mean removal into ū.
+    fn add_second_order_adjoint(
+        &self,
+        g: &GeometryData,
+        b: &BandWeights<'_>,
+        j1: usize,
+        spec2: &[Complex64],
+        u_adj: &mut [f64],
+    ) {
+        let d1 = g.levels[j1];
+        let m1 = g.size >> d1;
+        let scale2 = 1.0 / (m1 * m1) as f64;
+        let mut spec2_adj = vec![Complex64::default(); m1 * m1];
+        let mut any_second = false;
+        for (pair, j2) in ((j1 + 1)..g.scale_count).enumerate() {
+            let d2 = g.second_levels[j2];
+            let factor2 = (1usize << (2 * d2)) as f64;
+            let c2 = &g.inv_sqrt_coverage_second[j2];
+            let (wp, _) = &g.pair_weights[j1][pair];
+            for l2 in 0..g.orientation_count {
+                let weight = b.second_order(j2, l2);
+                if weight == 0.0 {
+                    continue;
+                }
+                any_second = true;
+                let mut g2 = self.second_layer_grid(g, spec2, d1, j2, l2);
+                // g₂ = raw · scale2; s2 = κ Σ W̃ c |g₂|, κ = 4^{d2}.
+                let k = weight * factor2 * scale2;
+                for ((z, &c), &wv) in g2.iter_mut().zip(c2).zip(wp) {
+                    let r = z.norm();
+                    *z = if r > 0.0 {
+                        *z * (k * wv * c / r)
+                    } else {
+                        Complex64::default()
+                    };
+                }
+                self.grids.ffts[d2].forward(&mut g2);
+                g.band(d1, j2, l2)
+                    .scatter_add(&mut spec2_adj, self.wavelet_at(j2, l2, d1), &g2);
+            }
+        }
+        if any_second {
+            self.grids.ffts[d1].inverse_unnormalised(&mut spec2_adj);
+            let (ad, sad) = &g.level_tapers[d1];
+            let i2_adj: Vec<f64> = spec2_adj.iter().zip(ad).map(|(z, a)| z.re * a).collect();
+            let m = if *sad > 0.0 {
+                i2_adj.iter().sum::<f64>() / sad
+            } else {
+                0.0
+            };
+            for ((ua, ia), a) in u_adj.iter_mut().zip(&i2_adj).zip(ad) {
+                *ua += ia - a * m;
+            }
+        }
+    }
+
+    /// The bands' adjoints summed in a fixed order (bitwise identical for any thread count):
+    /// the spectra scattered back into the n × n spectrum, the direct adjoints of I onto the
+    /// fine pixel of each coarse pixel.
+    fn summed_band_adjoints(
+        &self,
+        g: &GeometryData,
+        items: &[(usize, usize)],
+        parts: &[BandAdjoint],
+    ) -> (Vec<Complex64>, Vec<f64>) {
+        let n = g.size;
+        let mut total = vec![Complex64::default(); n * n];
+        let mut direct_total = vec![0.0; n * n];
+        for (&(j1, l1), (part, direct)) in items.iter().zip(parts) {
+            let band = &g.boxes.0[j1 * g.orientation_count + l1];
+            band.scatter_add(&mut total, self.wavelet_at(j1, l1, 0), part);
             if let Some(direct) = direct {
                 let stride = 1usize << g.levels[j1];
                 let m1 = n / stride;
@@ -706,8 +819,23 @@ impl DifferentiableScattering {
                 }
             }
         }
+        (total, direct_total)
+    }
+
+    /// The gradient with respect to the field from the summed adjoints: Ī = a (Re IDFT(F̄) +
+    /// direct), with 2 w |I| b_pix of E_pix in the direct part, through the tapered mean
+    /// removal, plus the order-0 terms b_0 w + 2 b_v w f.
+    fn field_adjoint(
+        &self,
+        pass: &TileForward,
+        mut total: Vec<Complex64>,
+        mut direct_total: Vec<f64>,
+        sum_weights: &[f64],
+        envelope_weights: Option<&[f64]>,
+    ) -> Vec<f64> {
+        let g = &pass.geometry.inner;
         if let Some(e) = envelope_weights {
-            let bp = e[big_j * big_l];
+            let bp = e[g.scale_count * g.orientation_count];
             if bp != 0.0 {
                 for ((d, i), w) in direct_total.iter_mut().zip(&pass.input).zip(&g.weight) {
                     *d += 2.0 * w * i.abs() * bp;
@@ -724,12 +852,125 @@ impl DifferentiableScattering {
             .collect();
         let m = i_adj.iter().sum::<f64>() / g.taper_sum;
         let (b0, bv) = (sum_weights[0], sum_weights[1]);
-        Ok(i_adj
+        i_adj
             .iter()
             .zip(a)
             .zip(&g.weight)
             .zip(&pass.field)
             .map(|(((ia, a), w), f)| ia - a * m + b0 * w + 2.0 * bv * w * f)
-            .collect())
+            .collect()
+    }
+}
+
+/// Coverage of a tile per scale (see [`DifferentiableScattering::tile_geometry`]).
+struct Coverage {
+    /// [N_j ≥ τ] on the full grid.
+    trust: Vec<Vec<bool>>,
+    /// c_j on the first-layer grid of j.
+    inv_sqrt_first: Vec<Vec<f64>>,
+    /// c_j on the second-layer grid of j.
+    inv_sqrt_second: Vec<Vec<f64>>,
+}
+
+/// Per level d up to `top`: the taper sampled on the grid of level d, and its sum.
+fn level_tapers(taper: &[f64], n: usize, top: usize) -> Vec<(Vec<f64>, f64)> {
+    (0..=top)
+        .map(|d| {
+            let t = subsample(taper, n, n >> d);
+            let s = t.iter().sum::<f64>();
+            (t, s)
+        })
+        .collect()
+}
+
+/// The first-layer bands (j, l), in layout order.
+fn first_layer_bands(g: &GeometryData) -> Vec<(usize, usize)> {
+    let big_l = g.orientation_count;
+    (0..g.scale_count)
+        .flat_map(|j| (0..big_l).map(move |l| (j, l)))
+        .collect()
+}
+
+/// The forward pass of one first-layer band (j1, l1).
+struct ForwardBand {
+    /// S1 sum 4^{d1} Σ W̃ u.
+    s1: f64,
+    /// P sum 4^{d1} Σ W̃ u².
+    band_power: f64,
+    /// Field–envelope sum 4^{d1} Σ W̃ I u.
+    envelope: f64,
+    /// S2 sums of every (j2 > j1, l2), in layout order.
+    s2: Vec<f64>,
+    /// g₁ on its grid.
+    g1: Vec<Complex64>,
+    /// F₂ = DFT(I₂) (empty for the last scale).
+    spec2: Vec<Complex64>,
+}
+
+/// Writes a band's sums and their pooling weights (Σ W_j, Σ W_{j1,j2}) at their layout places.
+fn place_band_sums(
+    g: &GeometryData,
+    j1: usize,
+    l1: usize,
+    band: &ForwardBand,
+    sums: &mut [f64],
+    weights: &mut [f64],
+) {
+    let layout = CoefficientLayout::new(g.scale_count, g.orientation_count);
+    let trusted = g.first_weights[j1].1;
+    sums[layout.first_order(j1, l1)] = band.s1;
+    weights[layout.first_order(j1, l1)] = trusted;
+    sums[layout.band_power(j1, l1)] = band.band_power;
+    weights[layout.band_power(j1, l1)] = trusted;
+    let mut k = 0;
+    for (pair, j2) in ((j1 + 1)..g.scale_count).enumerate() {
+        for l2 in 0..g.orientation_count {
+            let i = layout.second_order(j1, l1, j2, l2);
+            sums[i] = band.s2[k];
+            weights[i] = g.pair_weights[j1][pair].1;
+            k += 1;
+        }
+    }
+}
+
+/// The adjoint of one band: that of its cropped spectrum on the m1² box, and the direct
+/// adjoint of I at its coarse pixels (when its field–envelope weight is not zero).
+type BandAdjoint = (Vec<Complex64>, Option<Vec<f64>>);
+
+/// The weights ∂L/∂sum of one first-layer band (j1, l1): of its S1, P and field–envelope sums,
+/// and of its S2 sums.
+struct BandWeights<'a> {
+    s1: f64,
+    band_power: f64,
+    envelope: f64,
+    layout: CoefficientLayout,
+    sum_weights: &'a [f64],
+    j1: usize,
+    l1: usize,
+}
+
+impl<'a> BandWeights<'a> {
+    fn of(
+        g: &GeometryData,
+        sum_weights: &'a [f64],
+        envelope_weights: Option<&[f64]>,
+        j1: usize,
+        l1: usize,
+    ) -> Self {
+        let layout = CoefficientLayout::new(g.scale_count, g.orientation_count);
+        Self {
+            s1: sum_weights[layout.first_order(j1, l1)],
+            band_power: sum_weights[layout.band_power(j1, l1)],
+            envelope: envelope_weights.map_or(0.0, |e| e[j1 * g.orientation_count + l1]),
+            layout,
+            sum_weights,
+            j1,
+            l1,
+        }
+    }
+
+    /// The weight of S2(j1, l1, j2, l2).
+    fn second_order(&self, j2: usize, l2: usize) -> f64 {
+        self.sum_weights[self.layout.second_order(self.j1, self.l1, j2, l2)]
     }
 }

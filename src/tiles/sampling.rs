@@ -99,9 +99,10 @@ pub struct TileGrids {
 }
 
 impl TileGrids {
-    /// Bytes held by the grids of one n × n tile: three f64 grids and one bool grid.
+    /// Bytes held by the grids of one n × n tile: three f64 grids and one bool grid (the plan
+    /// counts them with [`crate::tiles::tiling::sampled_grid_bytes`]).
     pub fn bytes_for(n: usize) -> u64 {
-        (n * n * (3 * std::mem::size_of::<f64>() + std::mem::size_of::<bool>())) as u64
+        crate::tiles::tiling::sampled_grid_bytes(n)
     }
 
     /// Pooling weights taper × solid angle × [in core], for a taper grid of the same layout.

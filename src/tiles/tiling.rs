@@ -49,8 +49,15 @@ pub const DEFAULT_HALO: usize = 16;
 pub const MAX_CORNER_DISTANCE: f64 = std::f64::consts::FRAC_PI_3;
 
 /// Largest number of plane pixels per tile side accepted (8192: one tile's grids then take
-/// 1.6 GiB, see [`crate::tiles::sampling::TileGrids::bytes_for`]).
+/// 1.6 GiB, see [`sampled_grid_bytes`]).
 pub const MAX_TILE_PIXELS: usize = 8192;
+
+/// Bytes held by the sampled grids of one n × n tile (the field, mask and solid-angle f64 grids
+/// and the in-core bool grid of [`crate::tiles::sampling::TileGrids`]): the plan's memory cost
+/// per tile, n²(3·8 + 1).
+pub fn sampled_grid_bytes(n: usize) -> u64 {
+    (n * n * (3 * std::mem::size_of::<f64>() + std::mem::size_of::<bool>())) as u64
+}
 
 /// Widest tile, in degrees across, that [`automatic_tile_pixels`] picks while a smaller power
 /// of two would still leave a core: beyond, the gnomonic distortion sec²ρ at the grid corners
@@ -283,7 +290,7 @@ pub struct TilingSummary {
     pub grid_corner_distortion: f64,
     /// Largest sec²ρ over all kept cores.
     pub worst_core_distortion: f64,
-    /// Bytes of one tile's sampled grids (see [`crate::tiles::sampling::TileGrids::bytes_for`]).
+    /// Bytes of one tile's sampled grids (see [`sampled_grid_bytes`]).
     pub bytes_per_tile: u64,
     /// Peak bytes of grids alive at once with `threads` workers, one tile each.
     pub bytes_in_flight: u64,
@@ -698,7 +705,7 @@ impl TilingPlan {
             .sum::<f64>()
             * pixel_area;
         let core_area = self.tiles.iter().map(|t| t.core_pixels).sum::<u64>() as f64 * pixel_area;
-        let bytes = crate::tiles::sampling::TileGrids::bytes_for(self.n);
+        let bytes = sampled_grid_bytes(self.n);
         let deg2 = (180.0 / std::f64::consts::PI).powi(2);
         let footprint_area = self.footprint_weight * pixel_area;
         let half = self.n as f64 / 2.0 * self.pixel_size;
