@@ -539,7 +539,7 @@ impl MeasurementFile {
         let file: MeasurementFile = serde_json::from_str(text)
             .map_err(|e| format!("not a measurement file written by `measure`: {e}"))?;
         let (jn, ln) = (file.settings.scales, file.settings.orientations);
-        if jn == 0 || ln == 0 || jn > 30 || ln > 1000 {
+        if jn == 0 || ln == 0 || jn > crate::limits::MAX_SCALES || ln > 1000 {
             return Err(format!(
                 "settings give J = {jn}, L = {ln}: not a measurement"
             ));

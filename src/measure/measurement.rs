@@ -356,7 +356,7 @@ impl MeasurementSettings {
 
     /// The one validation of measurement settings, used by every command that measures
     /// (`measure`, `ensemble`, `tiles`, `plot`, `compare-flat`, `synthesize`) and by the Python
-    /// module: J from 1 to 12, L at least 1, a given tile size a size of
+    /// module: J from 1 to [`crate::limits::MAX_SCALES`] (12), L at least 1, a given tile size a size of
     /// [`crate::limits::is_tile_size`] holding 2^(J+1) pixels and a core inside the halo
     /// (border plus one largest-scale envelope width), a positive finite pixel size, a
     /// non-negative trusted wavelength, and 1 to 64 spectrum bins. Each refusal is one line
@@ -369,10 +369,11 @@ impl MeasurementSettings {
                 self.scales, self.orientations
             )));
         }
-        if self.scales > 12 {
+        if self.scales > crate::limits::MAX_SCALES {
             return Err(Error::Setting(format!(
-                "J = {} scales is too many: at most 12 (wavelengths up to 2^12 tile pixels)",
-                self.scales
+                "J = {} scales is too many: at most {max} (wavelengths up to 2^{max} tile pixels)",
+                self.scales,
+                max = crate::limits::MAX_SCALES
             )));
         }
         if let Some(n) = self.tile_pixels {
