@@ -244,7 +244,9 @@ pub fn synthesis_defaults() -> MeasurementSettings {
 }
 
 /// The measurement settings of a run: the choices over [`synthesis_defaults`]. In flat mode
-/// without `--tile` the pixel size is `--pixel-arcmin` or [`FLAT_PIXEL_ARCMIN`].
+/// without `--tile` the pixel size is `--pixel-arcmin` or [`FLAT_PIXEL_ARCMIN`]; a sphere
+/// synthesis left to the default reads the map at one map spacing
+/// ([`crate::synthesis::sphere`]).
 fn measurement_settings(args: &SynthesizeArgs) -> MeasurementSettings {
     args.measurement.resolve(synthesis_defaults())
 }
@@ -255,7 +257,7 @@ fn measurement_settings(args: &SynthesizeArgs) -> MeasurementSettings {
 pub(crate) fn shared_flag_help(arg: clap::Arg) -> clap::Arg {
     match arg.get_id().as_str() {
         "pixel_arcmin" => arg.value_name("ARCMIN").help(
-            "Pixel side in arcmin [flat: 1 (scales the power spectrum only); sphere and --tile: as `measure`, three map spacings, or fewer where J scales need it]",
+            "Pixel side in arcmin [flat: 1 (scales the power spectrum only); sphere: the map's mean pixel spacing; --tile: as `measure`]",
         ),
         "scales" => arg.short(None).help("Number of scales J [default: 4]"),
         "orientations" => arg.short(None).help("Number of orientations L [default: 4]"),
