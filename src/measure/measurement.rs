@@ -382,7 +382,7 @@ impl MeasurementSettings {
         if let Some(a) = self.pixel_arcmin {
             if !(a.is_finite() && a > 0.0) {
                 return Err(Error::Setting(format!(
-                    "pixel size must be positive, got {} arcmin",
+                    "pixel size must be positive, got {} arcmin (--pixel-arcmin)",
                     crate::error::compact(a)
                 )));
             }
