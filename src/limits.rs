@@ -16,6 +16,9 @@
 //!   L ≤ ξ₀·n/2 = 3πn/8 (our rule, from the filter definitions in `filters.rs`).
 //! * Iterations: the harmonic analysis iterations and L-BFGS iterations are capped at numbers
 //!   far beyond where they stop improving anything.
+//! * Scales: J ≤ [`MAX_SCALES`] = 12, wavelengths up to (8/3)·2^12 tile pixels (our rule: the
+//!   largest scale must fit a tile of 2^(J+1) pixels, and 2^13-pixel tiles are already far beyond
+//!   any sky tile or flat field that fits in memory with its filtered fields).
 //! * Tile sizes: n = 2^k·m with m ∈ {1, 3, 5, 7, 9} ([`is_tile_size`]), the sizes the tiling
 //!   picks and the scattering engine accepts.
 
@@ -25,6 +28,10 @@ use crate::error::{Error, Result};
 /// (tile bispectrum) summed over up to ~10⁹ pixels, which must stay below the f64 limit
 /// 1.8e308: (10⁹⁰)³ · 10⁹ = 10²⁷⁹.
 pub const MAX_ABS_VALUE: f64 = 1e90;
+
+/// Largest number of dyadic scales J of a measurement, a synthesis, a filter bank or a
+/// measurement file.
+pub const MAX_SCALES: usize = 12;
 
 /// Largest number of skies of one run, members of one ensemble, or sky index.
 pub const MAX_COUNT: u64 = 1_000_000;

@@ -769,6 +769,45 @@ fn bad_inputs_across_commands_give_one_line_errors_and_no_output() {
             ]),
             "--tile 9999 does not exist",
         ),
+        // synthesize shares measure's settings and their one validation
+        (
+            s(&[
+                "synthesize",
+                "--target",
+                &map,
+                "-o",
+                &f.path("synth.fits"),
+                "--spectrum-bins",
+                "3",
+            ]),
+            "--spectrum-bins and --no-bispectrum do not apply to synthesize",
+        ),
+        (
+            s(&[
+                "synthesize",
+                "--target",
+                &f.path("coefficients.json"),
+                "--size",
+                "64",
+                "-o",
+                &f.path("x.npy"),
+                "--scales",
+                "13",
+            ]),
+            "J = 13 scales is too many: at most 12",
+        ),
+        (
+            s(&[
+                "synthesize",
+                "--target",
+                &map,
+                "-o",
+                &f.path("synth.fits"),
+                "--tile-pixels",
+                "44",
+            ]),
+            "tile pixels must be 2^k·m (m = 1, 3, 5, 7 or 9",
+        ),
     ];
     assert!(cases.len() >= 25);
     refuse_all(&f, &cases);

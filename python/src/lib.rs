@@ -19,6 +19,7 @@ use planisphere::forecast::named_sets::{check_sets_forecast, forecast_document, 
 use planisphere::forecast::{ColumnLabel, DerivativeEnsembles, Ensemble, ScaleCut};
 use planisphere::harmonics::mode_coupling::BinWeighting;
 use planisphere::measure::measurement::{MeasurementSettings, SphereMeasurer};
+use planisphere::measure::settings::MeasurementChoices;
 use planisphere::simulate::skies::{SkyOptions, SpectrumChoice};
 use planisphere::sky::apodization::TaperKind;
 use planisphere::sky::footprint::refuse_single_pixel_mask;
@@ -103,21 +104,16 @@ fn enum_value<T: clap::ValueEnum>(name: &str, text: &str) -> PyResult<T> {
     })
 }
 
+/// The sampling method named `text` (its kebab-case name, any case, surrounding blanks
+/// ignored), or a ValueError listing the names.
 fn sampling(text: &str) -> PyResult<SamplingMethod> {
-    match text.trim().to_ascii_lowercase().as_str() {
-        "ring-quintic" => Ok(SamplingMethod::RingQuintic),
-        "ring-cubic" => Ok(SamplingMethod::RingCubic),
-        "bilinear" => Ok(SamplingMethod::Bilinear),
-        "ring-linear" => Ok(SamplingMethod::RingLinear),
-        "nearest" => Ok(SamplingMethod::Nearest),
-        _ => Err(value_error(format!(
-            "sampling must be one of ring-quintic, ring-cubic, bilinear, ring-linear, nearest; got '{text}'"
-        ))),
-    }
+    <SamplingMethod as clap::ValueEnum>::from_str(text.trim(), true)
+        .or_else(|_| enum_value("sampling", text))
 }
 
-/// The measurement settings of `measure`'s options (defaults from
-/// [`MeasurementSettings::default`]).
+/// The measurement settings of `measure`'s options: the Python keywords as the library's
+/// measurement choices, resolved over [`MeasurementSettings::default`] as the command line
+/// resolves its flags (checked later by the one validation, as the commands check them).
 #[allow(clippy::too_many_arguments)]
 fn settings(
     scales: Option<i64>,
@@ -131,33 +127,24 @@ fn settings(
     bispectrum: bool,
     full_resolution: bool,
 ) -> PyResult<MeasurementSettings> {
-    let mut s = MeasurementSettings::default();
-    if let Some(v) = scales {
-        s.scales = count("scales", v, 0)?;
-    }
-    if let Some(v) = orientations {
-        s.orientations = count("orientations", v, 0)?;
-    }
-    if let Some(v) = tile_pixels {
-        s.tile_pixels = Some(count("tile_pixels", v, 0)?);
-    }
-    if let Some(v) = coarse_nside {
-        let v = count("coarse_nside", v, 0)?;
-        s.coarse_nside = Some(
-            u32::try_from(v).map_err(|_| value_error(format!("coarse_nside is too large: {v}")))?,
-        );
-    }
-    s.pixel_arcmin = pixel_arcmin;
-    if let Some(v) = border_pixels {
-        s.border_pixels = count("border_pixels", v, 0)?;
-    }
-    if let Some(name) = sampling_name {
-        s.sampling = sampling(name)?;
-    }
-    if let Some(v) = spectrum_bins {
-        s.spectrum_bins = count("spectrum_bins", v, 0)?;
-    }
-    s.bispectrum = bispectrum;
+    let whole = |name: &str, v: Option<i64>| v.map(|v| count(name, v, 0)).transpose();
+    let choices = MeasurementChoices {
+        scales: whole("scales", scales)?,
+        orientations: whole("orientations", orientations)?,
+        tile_pixels: whole("tile_pixels", tile_pixels)?,
+        coarse_nside: whole("coarse_nside", coarse_nside)?
+            .map(|v| {
+                u32::try_from(v)
+                    .map_err(|_| value_error(format!("coarse_nside is too large: {v}")))
+            })
+            .transpose()?,
+        pixel_arcmin,
+        border_pixels: whole("border_pixels", border_pixels)?,
+        sampling: sampling_name.map(sampling).transpose()?,
+        spectrum_bins: whole("spectrum_bins", spectrum_bins)?,
+        bispectrum: Some(bispectrum),
+    };
+    let mut s = choices.resolve(MeasurementSettings::default());
     if full_resolution {
         s.transform.fourier_cropping = false;
     }
@@ -518,7 +505,7 @@ fn measure_flat<'py>(
     full_resolution: bool,
     threads: Option<i64>,
 ) -> PyResult<MeasureOutput> {
-    let mut settings = settings(
+    let settings = settings(
         scales,
         orientations,
         None,
@@ -530,13 +517,7 @@ fn measure_flat<'py>(
         bispectrum,
         full_resolution,
     )?;
-    settings.pixel_arcmin = Some(pixel_arcmin);
-    if !(pixel_arcmin.is_finite() && pixel_arcmin > 0.0) {
-        return Err(value_error(format!(
-            "pixel size must be positive, got {} arcmin",
-            planisphere::error::compact(pixel_arcmin)
-        )));
-    }
+    settings.validate().map_err(py_error)?;
     let shape = field.shape();
     let (rows, cols) = (shape[0], shape[1]);
     planisphere::measure::flat::check_field_shape(rows, cols)

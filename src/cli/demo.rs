@@ -476,12 +476,15 @@ fn draw_pictures(
             allow_coordsys_mismatch: false,
         },
         options: super::measure::MeasureOptions {
-            scales: Some(settings.scales),
-            tile_pixels: Some(em.measurer.plan().tile_pixels()),
-            border_pixels: Some(settings.border_pixels),
-            pixel_arcmin: Some(pixel_arcmin),
-            no_bispectrum: true,
-            ..Default::default()
+            settings: None,
+            choices: crate::measure::settings::MeasurementChoices {
+                scales: Some(settings.scales),
+                tile_pixels: Some(em.measurer.plan().tile_pixels()),
+                border_pixels: Some(settings.border_pixels),
+                pixel_arcmin: Some(pixel_arcmin),
+                bispectrum: Some(false),
+                ..Default::default()
+            },
         },
         statistic: format!("S1_j{}", settings.scales - 1),
         output: dir.join("tile_map.png"),

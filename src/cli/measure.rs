@@ -11,131 +11,42 @@ use crate::io::fits_io::ColumnChoice;
 pub use crate::io::measurement_document::measurement_document;
 use crate::io::measurement_document::{pair_document, taper_description};
 use crate::measure::measurement::{MapStatistics, MeasurementSettings, SphereMeasurer};
+use crate::measure::settings::MeasurementChoices;
 use crate::sky::footprint::Footprint;
 use crate::sky::skymap::SkyMap;
-use crate::tiles::sampling::SamplingMethod;
 use crate::tiles::tiling::TilingSummary;
 use std::path::{Path, PathBuf};
 
-/// How the sky is read at tile pixels.
-#[derive(
-    Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum, serde::Deserialize, serde::Serialize,
-)]
-#[serde(rename_all = "kebab-case")]
-pub enum SamplingChoice {
-    /// Six-point (quintic) Lagrange along four iso-latitude rings, then four-point across them
-    /// (the default).
-    RingQuintic,
-    /// Four-point cubic (Lagrange) along four iso-latitude rings, then across them.
-    RingCubic,
-    /// Bilinear over the four surrounding HEALPix pixels.
-    Bilinear,
-    /// Linear along and between iso-latitude rings.
-    RingLinear,
-    /// The value of the pixel containing the direction.
-    Nearest,
-}
-
-impl From<SamplingChoice> for SamplingMethod {
-    fn from(c: SamplingChoice) -> Self {
-        match c {
-            SamplingChoice::RingQuintic => SamplingMethod::RingQuintic,
-            SamplingChoice::RingCubic => SamplingMethod::RingCubic,
-            SamplingChoice::Bilinear => SamplingMethod::Bilinear,
-            SamplingChoice::RingLinear => SamplingMethod::RingLinear,
-            SamplingChoice::Nearest => SamplingMethod::Nearest,
-        }
-    }
-}
-
-/// Measurement options shared by `measure`, `ensemble` and `compare-flat`; flags override the
-/// values of a `--settings` TOML file, which override the defaults.
+/// Measurement options shared by `measure`, `ensemble`, `tiles` and `plot`: the measurement
+/// choices as flags ([`MeasurementChoices`]) and a `--settings` TOML file of the same keys;
+/// flags override the values of the file, which override the defaults.
 #[derive(Debug, Clone, Default, clap::Args)]
 pub struct MeasureOptions {
     /// TOML file with any of: scales, orientations, tile_pixels, coarse_nside, pixel_arcmin,
     /// border_pixels, sampling, spectrum_bins, bispectrum.
     #[arg(long, value_name = "FILE.toml")]
     pub settings: Option<PathBuf>,
-    /// Number of dyadic wavelet scales J [default: 4].
-    #[arg(long, short = 'J')]
-    pub scales: Option<usize>,
-    /// Number of wavelet orientations L [default: 4].
-    #[arg(long, short = 'L')]
-    pub orientations: Option<usize>,
-    /// Plane pixels per tile side, 2^k·m with m = 1, 3, 5, 7 or 9 [default: the tool's choice: of
-    /// the sizes from ¾ to 5/4 of the smallest power of two ≥ 8 × halo (halved while wider than
-    /// 32°), the one whose plan transforms the fewest tile pixels, never beyond a corner
-    /// distortion of 1.53 (54.5° across): J scales that do not fit are refused].
-    #[arg(long)]
-    pub tile_pixels: Option<usize>,
-    /// Cut the footprint into the pixels of a coarse HEALPix grid of this NSIDE instead of
-    /// latitude bands [default: latitude bands, cores that nearly fill their tiles].
-    #[arg(long)]
-    pub coarse_nside: Option<u32>,
-    /// Tile pixel size in arcmin [default: three map spacings 3h, read on a grid of spacing h
-    /// and band-limited to the tile grid; scale j has the wavelength (8/3)·2^j pixels, so the
-    /// defaults cover 8h–64h (27′–3.7° at NSIDE 1024) and every coefficient is trusted.
-    /// The ring samplings carry wavelengths down to 8h: at one map spacing j = 0 and 1 are
-    /// flagged untrusted; smaller trusted scales need a higher-NSIDE map].
-    #[arg(long, allow_negative_numbers = true)]
-    pub pixel_arcmin: Option<f64>,
-    /// Width of the tile-border taper in tile pixels [default: 8].
-    #[arg(long)]
-    pub border_pixels: Option<usize>,
-    /// How the sky is read at tile pixels [default: ring-quintic].
-    #[arg(long, value_enum)]
-    pub sampling: Option<SamplingChoice>,
-    /// Number of wavenumber bins of the tile power spectrum and bispectrum [default: 6].
-    #[arg(long)]
-    pub spectrum_bins: Option<usize>,
-    /// Skip the tile bispectrum.
-    #[arg(long)]
-    pub no_bispectrum: bool,
+    #[command(flatten)]
+    pub choices: MeasurementChoices,
 }
 
-/// The keys a `--settings` file may hold.
-#[derive(Debug, Default, serde::Deserialize)]
-#[serde(deny_unknown_fields)]
-struct SettingsFile {
-    scales: Option<usize>,
-    orientations: Option<usize>,
-    tile_pixels: Option<usize>,
-    coarse_nside: Option<u32>,
-    pixel_arcmin: Option<f64>,
-    border_pixels: Option<usize>,
-    sampling: Option<SamplingChoice>,
-    spectrum_bins: Option<usize>,
-    bispectrum: Option<bool>,
-}
-
-fn read_settings_file(path: &Path) -> Result<SettingsFile> {
+/// The choices of a `--settings` file.
+fn read_settings_file(path: &Path) -> Result<MeasurementChoices> {
     let text = crate::files::read_text(path)?;
     toml::from_str(&text).map_err(|e| super::inputs::toml_error(path, &text, &e, "bad settings"))
 }
 
 impl MeasureOptions {
-    /// The measurement settings these options describe.
+    /// The measurement settings these options describe: flag, else file, else default.
     pub fn settings(&self) -> Result<MeasurementSettings> {
         let file = match &self.settings {
             Some(p) => read_settings_file(p)?,
-            None => SettingsFile::default(),
+            None => MeasurementChoices::default(),
         };
-        let mut s = MeasurementSettings::default();
-        let pick = |flag: Option<usize>, file: Option<usize>, default: usize| {
-            flag.or(file).unwrap_or(default)
-        };
-        s.scales = pick(self.scales, file.scales, s.scales);
-        s.orientations = pick(self.orientations, file.orientations, s.orientations);
-        s.tile_pixels = self.tile_pixels.or(file.tile_pixels).or(s.tile_pixels);
-        s.border_pixels = pick(self.border_pixels, file.border_pixels, s.border_pixels);
-        s.spectrum_bins = pick(self.spectrum_bins, file.spectrum_bins, s.spectrum_bins);
-        s.coarse_nside = self.coarse_nside.or(file.coarse_nside);
-        s.pixel_arcmin = self.pixel_arcmin.or(file.pixel_arcmin);
-        if let Some(c) = self.sampling.or(file.sampling) {
-            s.sampling = c.into();
-        }
-        s.bispectrum = !self.no_bispectrum && file.bispectrum.unwrap_or(true);
-        Ok(s)
+        Ok(self
+            .choices
+            .or(&file)
+            .resolve(MeasurementSettings::default()))
     }
 }
 
@@ -338,7 +249,7 @@ fn print_measurement(
 
 /// Measures a flat field (.npy) as one periodic or masked tile and writes the JSON document.
 fn run_flat(args: &MeasureArgs, settings: MeasurementSettings) -> Result<()> {
-    let o = &args.options;
+    let o = &args.options.choices;
     let sphere_only = [
         (args.cross.is_some(), "--cross"),
         (
@@ -373,12 +284,7 @@ fn run_flat(args: &MeasureArgs, settings: MeasurementSettings) -> Result<()> {
             args.map.display()
         )));
     };
-    if !(arcmin.is_finite() && arcmin > 0.0) {
-        return Err(Error::Setting(format!(
-            "pixel size must be positive, got {} arcmin",
-            crate::error::compact(arcmin)
-        )));
-    }
+    settings.validate()?;
     let field = super::flat_input::read_field(&args.map)?;
     let n = field.size;
     let mask = match &args.mask.mask {

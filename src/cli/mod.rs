@@ -56,6 +56,7 @@ pub enum Command {
     Plot(plot::PlotArgs),
     /// Synthesise a flat field or a HEALPix map on a footprint whose scattering statistics match
     /// a target map, tile or coefficient file.
+    #[command(mut_args(synthesize::shared_flag_help))]
     Synthesize(synthesize::SynthesizeArgs),
 }
 

@@ -16,12 +16,12 @@
 mod picture;
 
 use crate::cli::inputs::{load_map, MaskArgs};
-use crate::cli::measure::SamplingChoice;
 use crate::cli::output::{check_output_path, write_atomically};
 use crate::error::{Error, Result};
 use crate::figures::plotting::{write_pictures_in_a_row, SkyPicture};
 use crate::io::fits_io::{read_footprint, write_map, ColumnChoice, WriteOptions};
 use crate::measure::measurement::{MeasurementSettings, SphereMeasurer};
+use crate::measure::settings::MeasurementChoices;
 use crate::sky::footprint::Footprint;
 use crate::sky::skymap::SkyMap;
 use crate::synthesis::sphere::{
@@ -31,7 +31,7 @@ use crate::synthesis::{
     coefficients_from_json, gaussian_counterpart, one_point_moments, FlatSynthesis, StartField,
     StatisticChoice, SynthesisSettings,
 };
-use crate::tiles::sampling::{SamplingMethod, TileSampler};
+use crate::tiles::sampling::TileSampler;
 use ndarray::Array2;
 use std::path::{Path, PathBuf};
 
@@ -82,16 +82,11 @@ pub struct SynthesizeArgs {
     /// Flat mode: field side in pixels, needed with a coefficient-file target.
     #[arg(long, value_name = "PIXELS")]
     pub size: Option<usize>,
-    /// Pixel side in arcmin [flat: 1 (scales the power spectrum only); sphere and --tile: as
-    /// `measure`, the map's mean pixel spacing].
-    #[arg(long, value_name = "ARCMIN", allow_negative_numbers = true)]
-    pub pixel_arcmin: Option<f64>,
-    /// Number of scales J.
-    #[arg(long, default_value_t = 4)]
-    pub scales: usize,
-    /// Number of orientations L.
-    #[arg(long, default_value_t = 4)]
-    pub orientations: usize,
+    /// The measurement choices of `measure` (J, L, tiles, pixel size, border, sampling) with
+    /// this command's defaults ([`synthesis_defaults`], [`FLAT_PIXEL_ARCMIN`]) and help;
+    /// `--spectrum-bins` and `--no-bispectrum` are refused.
+    #[command(flatten)]
+    pub measurement: MeasurementChoices,
     /// Statistics to match.
     #[arg(long, value_enum, default_value_t = StatisticsOption::Full)]
     pub statistics: StatisticsOption,
@@ -132,20 +127,6 @@ pub struct SynthesizeArgs {
     /// tiling (as `planisphere tiles` numbers them).
     #[arg(long, value_name = "INDEX")]
     pub tile: Option<usize>,
-    /// Sphere mode and --tile: plane pixels per tile side, a power of two [default: 64, or the
-    /// smallest power of two that holds J scales and the halo].
-    #[arg(long)]
-    pub tile_pixels: Option<usize>,
-    /// Sphere mode and --tile: NSIDE of the coarse grid of tile centres [default: the coarsest
-    /// that fits].
-    #[arg(long)]
-    pub coarse_nside: Option<u32>,
-    /// Sphere mode and --tile: width of the tile-border taper in tile pixels.
-    #[arg(long, default_value_t = 8)]
-    pub border_pixels: usize,
-    /// Sphere mode and --tile: how the sky is read at tile pixels [default: ring-quintic].
-    #[arg(long, value_enum)]
-    pub sampling: Option<SamplingChoice>,
 }
 
 enum Target {
@@ -249,25 +230,61 @@ fn write_panel(path: &Path, size: usize, panels: &[(&str, &[f64])]) -> Result<()
 /// Thresholds ν (in rms above the mean) of the peak counts shown and printed in sphere mode.
 const PEAK_THRESHOLDS: [f64; 4] = [0.0, 1.0, 2.0, 3.0];
 
-/// Measurement settings of sphere mode and of --tile: J, L, tiles, border, sampling; the
-/// transform without Fourier cropping (the path the masked-tile gradient differentiates).
-fn measurement_settings(args: &SynthesizeArgs) -> Result<MeasurementSettings> {
+/// Flat mode: the pixel side in arcmin when `--pixel-arcmin` is not given (it only scales the
+/// power spectrum of a flat field; a tile of a HEALPix map keeps its own).
+pub const FLAT_PIXEL_ARCMIN: f64 = 1.0;
+
+/// This command's defaults for the measurement choices: those of `measure`, without the tile
+/// bispectrum (no tile spectra are matched) and without Fourier cropping (the path the
+/// masked-tile gradient differentiates).
+pub fn synthesis_defaults() -> MeasurementSettings {
     let mut s = MeasurementSettings {
-        scales: args.scales,
-        orientations: args.orientations,
-        coarse_nside: args.coarse_nside,
-        pixel_arcmin: args.pixel_arcmin,
-        border_pixels: args.border_pixels,
         bispectrum: false,
         ..MeasurementSettings::default()
     };
     s.transform.fourier_cropping = false;
-    if let Some(c) = args.sampling {
-        s.sampling = SamplingMethod::from(c);
+    s
+}
+
+/// The measurement settings of a run: the choices over [`synthesis_defaults`]. In flat mode
+/// without `--tile` the pixel size is `--pixel-arcmin` or [`FLAT_PIXEL_ARCMIN`]; a sphere
+/// synthesis left to the default reads the map at one map spacing
+/// ([`crate::synthesis::sphere`]).
+fn measurement_settings(args: &SynthesizeArgs) -> MeasurementSettings {
+    args.measurement.resolve(synthesis_defaults())
+}
+
+/// The command's own help for the measurement flags it shares with `measure`: the flat-mode
+/// pixel size, the tile flags marked as sphere-mode ones, no short `-J`/`-L`, and the
+/// tile-spectrum flags hidden (they are refused).
+pub(crate) fn shared_flag_help(arg: clap::Arg) -> clap::Arg {
+    match arg.get_id().as_str() {
+        "pixel_arcmin" => arg.value_name("ARCMIN").help(
+            "Pixel side in arcmin [flat: 1 (scales the power spectrum only); sphere: the map's mean pixel spacing; --tile: as `measure`]",
+        ),
+        "scales" => arg.short(None).help("Number of scales J [default: 4]"),
+        "orientations" => arg.short(None).help("Number of orientations L [default: 4]"),
+        "tile_pixels" | "coarse_nside" | "border_pixels" | "sampling" => {
+            let help = arg.get_help().map(|h| h.to_string()).unwrap_or_default();
+            let mut chars = help.chars();
+            let first = chars.next().map(|c| c.to_lowercase().to_string());
+            let help = first.unwrap_or_default() + chars.as_str();
+            arg.help(format!("Sphere mode and --tile: {help}"))
+        }
+        "spectrum_bins" | "bispectrum" => arg.hide(true),
+        _ => arg,
     }
-    // the tile size of `measure` for the same options
-    s.tile_pixels = args.tile_pixels;
-    Ok(s)
+}
+
+/// Refuses the measurement choices this command has no use for, and checks the others with
+/// the one validation of measurement settings.
+fn check_measurement_choices(args: &SynthesizeArgs) -> Result<()> {
+    if args.measurement.spectrum_bins.is_some() || args.measurement.bispectrum.is_some() {
+        return Err(Error::Setting(
+            "--spectrum-bins and --no-bispectrum do not apply to synthesize: it matches no tile spectra".into(),
+        ));
+    }
+    measurement_settings(args).validate()
 }
 
 /// Refuses `--field-envelope-correlation on` with a coefficient-file target (the correlations
@@ -315,14 +332,7 @@ fn extension_of(path: &Path) -> String {
 
 /// Runs the command.
 pub fn run(args: &SynthesizeArgs) -> Result<()> {
-    if let Some(a) = args.pixel_arcmin {
-        if !(a.is_finite() && a > 0.0) {
-            return Err(Error::Setting(format!(
-                "--pixel-arcmin must be a positive number, got {}",
-                crate::error::compact(a)
-            )));
-        }
-    }
+    check_measurement_choices(args)?;
     let picture = args
         .picture
         .clone()
@@ -349,7 +359,7 @@ pub fn run(args: &SynthesizeArgs) -> Result<()> {
 fn tile_of_sphere_map(args: &SynthesizeArgs, index: usize) -> Result<(usize, Vec<f64>, f64)> {
     let map = load_map(&args.target, &args.column)?;
     let footprint = args.mask.footprint_for(&map, &args.target)?;
-    let settings = measurement_settings(args)?;
+    let settings = measurement_settings(args);
     let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
     let plan = measurer.plan();
     if index >= plan.len() {
@@ -406,6 +416,7 @@ fn flat_size(args: &SynthesizeArgs, target_input: &Target) -> Result<usize> {
 }
 
 fn run_flat(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
+    let m = measurement_settings(args);
     let (target_input, tile_pixel) = flat_target(args)?;
     let size = flat_size(args, &target_input)?;
     if size < 8 || !size.is_power_of_two() {
@@ -416,9 +427,9 @@ fn run_flat(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
     crate::limits::check_memory(
         &format!(
             "a flat synthesis of {size} × {size} pixels with J = {}, L = {}",
-            args.scales, args.orientations
+            m.scales, m.orientations
         ),
-        crate::limits::flat_synthesis_bytes(size, args.scales, args.orientations),
+        crate::limits::flat_synthesis_bytes(size, m.scales, m.orientations),
     )?;
     let start = match (args.start, &target_input) {
         (Some(StartOption::White), _) | (None, Target::Coefficients(_)) => StartField::White,
@@ -427,12 +438,13 @@ fn run_flat(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
     let map_target = matches!(target_input, Target::Map { .. });
     check_correlation_target(args, map_target)?;
     let settings = synthesis_settings(args, start, map_target);
-    let pixel = tile_pixel.unwrap_or_else(|| args.pixel_arcmin.unwrap_or(1.0).to_radians() / 60.0);
-    let synthesis = FlatSynthesis::new(size, args.scales, args.orientations, pixel, settings)?;
+    let arcmin = m.pixel_arcmin.unwrap_or(FLAT_PIXEL_ARCMIN);
+    let pixel = tile_pixel.unwrap_or_else(|| arcmin.to_radians() / 60.0);
+    let synthesis = FlatSynthesis::new(size, m.scales, m.orientations, pixel, settings)?;
     let (target, target_map) = match &target_input {
         Target::Map { values, .. } => (synthesis.target_from_map(values)?, Some(values)),
         Target::Coefficients(text) => {
-            let c = coefficients_from_json(text, args.scales, args.orientations)
+            let c = coefficients_from_json(text, m.scales, m.orientations)
                 .map_err(|e| Error::io(&args.target, e))?;
             (synthesis.target_from_coefficients(&c)?, None)
         }
@@ -572,7 +584,7 @@ fn run_sphere(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
             "--size is for flat fields; a sphere synthesis takes its size from the map".into(),
         ));
     }
-    let measurement = measurement_settings(args)?;
+    let measurement = measurement_settings(args);
     let (target_map, footprint) = sphere_target_and_footprint(args)?;
     let start = match (args.start, &target_map) {
         (Some(StartOption::White), _) | (None, None) => StartField::White,
@@ -589,7 +601,7 @@ fn run_sphere(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
         Some(map) => synthesis.target_from_map(map)?,
         None => {
             let text = crate::files::read_text(&args.target)?;
-            let c = coefficients_from_json(&text, args.scales, args.orientations)
+            let c = coefficients_from_json(&text, measurement.scales, measurement.orientations)
                 .map_err(|e| Error::io(&args.target, e))?;
             synthesis.target_from_coefficients(&c)?
         }

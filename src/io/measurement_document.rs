@@ -125,25 +125,52 @@ pub struct RecordedSettings {
 }
 
 impl RecordedSettings {
-    /// The settings of a sphere measurement.
-    fn of_sphere(measurer: &SphereMeasurer, taper: &serde_json::Value) -> Self {
-        let s = measurer.settings();
+    /// The record of resolved settings `s` measured on tiles of `tile_pixels` pixels of
+    /// `pixel_arcmin`, cut as `cells`, with `taper`: the one place the record is built from
+    /// settings. The tiling entries (coarse NSIDE, border, halo, sampling) are null, as for a
+    /// flat field; [`Self::of_sphere`] fills them.
+    fn of_settings(
+        s: &MeasurementSettings,
+        tile_pixels: usize,
+        cells: String,
+        pixel_arcmin: f64,
+        taper: serde_json::Value,
+    ) -> Self {
         Self {
             scales: s.scales,
             orientations: s.orientations,
-            tile_pixels: measurer.plan().tile_pixels(),
-            cells: measurer.plan().cell_layout().describe(),
-            coarse_nside: s.coarse_nside,
-            pixel_arcmin: measurer.plan().pixel_size().to_degrees() * 60.0,
-            border_pixels: Some(s.border_pixels),
-            halo_pixels: Some(s.halo()),
-            sampling: Some(format!("{:?}", s.sampling)),
+            tile_pixels,
+            cells,
+            coarse_nside: None,
+            pixel_arcmin,
+            border_pixels: None,
+            halo_pixels: None,
+            sampling: None,
             coverage_threshold: s.transform.coverage_threshold,
             trusted_fraction: s.transform.trusted_fraction,
             fourier_cropping: s.transform.fourier_cropping,
             spectrum_bins: s.spectrum_bins,
             bispectrum: s.bispectrum,
-            taper: taper.clone(),
+            taper,
+        }
+    }
+
+    /// The settings of a sphere measurement.
+    fn of_sphere(measurer: &SphereMeasurer, taper: &serde_json::Value) -> Self {
+        let s = measurer.settings();
+        let plan = measurer.plan();
+        Self {
+            coarse_nside: s.coarse_nside,
+            border_pixels: Some(s.border_pixels),
+            halo_pixels: Some(s.halo()),
+            sampling: Some(format!("{:?}", s.sampling)),
+            ..Self::of_settings(
+                s,
+                plan.tile_pixels(),
+                plan.cell_layout().describe(),
+                plan.pixel_size().to_degrees() * 60.0,
+                taper.clone(),
+            )
         }
     }
 }
@@ -512,7 +539,7 @@ impl MeasurementFile {
         let file: MeasurementFile = serde_json::from_str(text)
             .map_err(|e| format!("not a measurement file written by `measure`: {e}"))?;
         let (jn, ln) = (file.settings.scales, file.settings.orientations);
-        if jn == 0 || ln == 0 || jn > 30 || ln > 1000 {
+        if jn == 0 || ln == 0 || jn > crate::limits::MAX_SCALES || ln > 1000 {
             return Err(format!(
                 "settings give J = {jn}, L = {ln}: not a measurement"
             ));
@@ -610,28 +637,17 @@ pub fn flat_measurement_document(
     } else {
         "one masked flat tile"
     };
-    let s = settings;
-    let settings = RecordedSettings {
-        scales: s.scales,
-        orientations: s.orientations,
-        tile_pixels: n,
-        cells: layout.into(),
-        coarse_nside: None,
+    let settings = RecordedSettings::of_settings(
+        settings,
+        n,
+        layout.into(),
         pixel_arcmin,
-        border_pixels: None,
-        halo_pixels: None,
-        sampling: None,
-        coverage_threshold: s.transform.coverage_threshold,
-        trusted_fraction: s.transform.trusted_fraction,
-        fourier_cropping: s.transform.fourier_cropping,
-        spectrum_bins: s.spectrum_bins,
-        bispectrum: s.bispectrum,
-        taper: serde_json::json!({
+        serde_json::json!({
             "kind": if periodic { "none (periodic)" } else { "mask as given" },
             "width_arcmin": null,
             "mask": mask_name,
         }),
-    };
+    );
     let tiling = serde_json::json!({
         "cells": layout,
         "tiles": 1,

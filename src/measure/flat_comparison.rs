@@ -299,8 +299,9 @@ pub fn compare_flat(settings: &FlatComparisonSettings) -> Result<FlatComparison>
     Ok(FlatComparison { rows, scales })
 }
 
-/// Refuses too few skies or flat fields, no tile size, or reference fields smaller than the
-/// largest tile.
+/// Refuses too few skies or flat fields, no tile size, measurement settings the one validation
+/// refuses ([`MeasurementSettings::validate`], per tile size), or reference fields smaller than
+/// the largest tile.
 fn check_settings(settings: &FlatComparisonSettings) -> Result<()> {
     if settings.skies < 2 || settings.flat_fields < 2 {
         return Err(Error::Setting(
@@ -316,6 +317,13 @@ fn check_settings(settings: &FlatComparisonSettings) -> Result<()> {
                 "the flat reference fields ({m} pixels) must be at least as large as the largest tile ({n} pixels)"
             )));
         }
+    }
+    for &n in &settings.tile_pixels {
+        MeasurementSettings {
+            tile_pixels: Some(n),
+            ..settings.measurement
+        }
+        .validate()?;
     }
     Ok(())
 }

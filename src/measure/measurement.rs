@@ -207,7 +207,7 @@ impl MeasurementSettings {
     /// The tiling plan these settings give for maps of pixelization `map` on `footprint`: the
     /// one plan `measure`, `ensemble`, `synthesize` and `tiles` use.
     pub fn plan(&self, map: Pixelization, footprint: &Footprint) -> Result<TilingPlan> {
-        self.check()?;
+        self.validate()?;
         let delta = self.pixel_size(map);
         let pixel_size = Some(delta);
         let halo = self.halo();
@@ -354,17 +354,26 @@ impl MeasurementSettings {
         ))
     }
 
-    fn check(&self) -> Result<()> {
+    /// The one validation of measurement settings, used by every command that measures
+    /// (`measure`, `ensemble`, `tiles`, `plot`, `compare-flat`, `synthesize`) and by the Python
+    /// module: J from 1 to [`crate::limits::MAX_SCALES`] (12), L at least 1, a given tile size a size of
+    /// [`crate::limits::is_tile_size`] holding 2^(J+1) pixels and a core inside the halo
+    /// (border plus one largest-scale envelope width), a positive finite pixel size, a
+    /// non-negative trusted wavelength, and 1 to 64 spectrum bins. Each refusal is one line
+    /// ([`Error::Setting`]). Limits that depend on the grid a command builds (L against the
+    /// tile size, J against a flat field's side) are checked where the grid is known.
+    pub fn validate(&self) -> Result<()> {
         if self.scales == 0 || self.orientations == 0 {
             return Err(Error::Setting(format!(
                 "J and L must be at least 1 (got J = {}, L = {})",
                 self.scales, self.orientations
             )));
         }
-        if self.scales > 12 {
+        if self.scales > crate::limits::MAX_SCALES {
             return Err(Error::Setting(format!(
-                "J = {} scales is too many: at most 12 (wavelengths up to 2^12 tile pixels)",
-                self.scales
+                "J = {} scales is too many: at most {max} (wavelengths up to 2^{max} tile pixels)",
+                self.scales,
+                max = crate::limits::MAX_SCALES
             )));
         }
         if let Some(n) = self.tile_pixels {
@@ -373,7 +382,7 @@ impl MeasurementSettings {
         if let Some(a) = self.pixel_arcmin {
             if !(a.is_finite() && a > 0.0) {
                 return Err(Error::Setting(format!(
-                    "pixel size must be positive, got {} arcmin",
+                    "pixel size must be positive, got {} arcmin (--pixel-arcmin)",
                     crate::error::compact(a)
                 )));
             }
@@ -493,7 +502,7 @@ impl SphereMeasurer {
         footprint: &Footprint,
         settings: MeasurementSettings,
     ) -> Result<Self> {
-        settings.check()?;
+        settings.validate()?;
         if footprint.observed_pixels() == 0 {
             return Err(Error::Data(
                 "the footprint is empty: no pixel has positive weight".into(),

@@ -2,7 +2,8 @@
 //! power spectrum and bispectrum on the same tiles), flat plane maps, and the comparison of the
 //! sphere's answer with the flat-sky one.
 //!
-//! Owns: [`MeasurementSettings`] and [`SphereMeasurer`] with their results ([`MapStatistics`],
+//! Owns: the user's measurement choices ([`MeasurementChoices`], flags, settings file and Python
+//! keywords in one type), [`MeasurementSettings`] and [`SphereMeasurer`] with their results ([`MapStatistics`],
 //! [`PairStatistics`]), the tile Fourier statistics ([`TilePowerSpectrum`], [`TileBispectrum`],
 //! [`WavenumberBins`]), [`FlatMap`] and the flat comparison ([`FlatComparison`]).
 //!
@@ -12,9 +13,11 @@
 pub mod flat;
 pub mod flat_comparison;
 pub mod measurement;
+pub mod settings;
 pub mod tile_spectra;
 
 pub use flat::FlatMap;
 pub use flat_comparison::{FlatComparison, FlatComparisonSettings};
 pub use measurement::{MapStatistics, MeasurementSettings, PairStatistics, SphereMeasurer};
+pub use settings::MeasurementChoices;
 pub use tile_spectra::{TileBispectrum, TilePowerSpectrum, WavenumberBins};

@@ -111,8 +111,8 @@ pub(crate) fn coarsest_level(n: usize, min_grid: usize) -> usize {
 
 impl MorletBank {
     /// Build the bank for an n × n grid, `scale_count` = J scales and `orientation_count` = L
-    /// orientations. Requires n a tile size ([`is_tile_size`]), 1 ≤ J with 2^(J+1) ≤ n, and
-    /// L ≥ 1.
+    /// orientations. Requires n a tile size ([`is_tile_size`]), 1 ≤ J ≤
+    /// [`crate::limits::MAX_SCALES`] with 2^(J+1) ≤ n, and L ≥ 1.
     pub fn new(size: usize, scale_count: usize, orientation_count: usize) -> Result<Self> {
         if !is_tile_size(size) {
             return Err(Error::Setting(format!(
@@ -124,7 +124,13 @@ impl MorletBank {
                 "number of scales J must be at least 1, got 0".into(),
             ));
         }
-        if scale_count > 30 || (1usize << (scale_count + 1)) > size {
+        if scale_count > crate::limits::MAX_SCALES {
+            return Err(Error::Setting(format!(
+                "J = {scale_count} scales is too many: at most {}",
+                crate::limits::MAX_SCALES
+            )));
+        }
+        if (1usize << (scale_count + 1)) > size {
             let max_j = size.ilog2() as usize - 1;
             return Err(Error::Setting(format!(
                 "J = {scale_count} scales is too large for a {size}-pixel tile: need 2^(J+1) <= {size}, i.e. J <= {max_j}"

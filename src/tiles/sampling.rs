@@ -28,27 +28,40 @@ use crate::tiles::tiling::TilingPlan;
 use rayon::prelude::*;
 use std::borrow::Cow;
 
-/// How map values are read at a plane pixel's direction.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+/// How map values are read at a plane pixel's direction. The kebab-case names
+/// (`ring-quintic`, `ring-cubic`, `bilinear`, `ring-linear`, `nearest`) are those of the
+/// `--sampling` flag, of the `sampling` key of a settings file and of the Python keyword; the
+/// short `value(help)` lines are the command line's descriptions.
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum, serde::Serialize, serde::Deserialize,
+)]
+#[serde(rename_all = "kebab-case")]
 pub enum SamplingMethod {
-    /// Bilinear on the sphere over the four surrounding pixels.
-    Bilinear,
-    /// The value of the pixel containing the direction.
-    Nearest,
-    /// Linear along and between iso-latitude rings ([`ring_interpolation_weights`], healpy's
-    /// scheme); second order everywhere, including the polar base-pixel seams.
-    RingLinear,
-    /// Four-point cubic (Lagrange) interpolation along each of four iso-latitude rings, then
-    /// across the rings ([`ring_cubic_interpolation_weights`], our design); the mask is still
-    /// read with the ring-wise linear weights (a weight must not ring). Keeps far more
-    /// small-scale power than the linear schemes (table in `tests/sphere_ring_cubic.rs`).
-    RingCubic,
     /// Six-point (quintic) Lagrange interpolation along each of four iso-latitude rings, then
     /// four-point across them ([`ring_quintic_interpolation_weights`], our design; the default):
     /// the ring-cubic scheme with the extra order where the pixels are farther apart, so the
     /// power kept at the finest scales hardly depends on latitude; the mask is read with the
     /// ring-wise linear weights.
+    #[value(
+        help = "Six-point (quintic) Lagrange along four iso-latitude rings, then four-point across them (the default)"
+    )]
     RingQuintic,
+    /// Four-point cubic (Lagrange) interpolation along each of four iso-latitude rings, then
+    /// across the rings ([`ring_cubic_interpolation_weights`], our design); the mask is still
+    /// read with the ring-wise linear weights (a weight must not ring). Keeps far more
+    /// small-scale power than the linear schemes (table in `tests/sphere_ring_cubic.rs`).
+    #[value(help = "Four-point cubic (Lagrange) along four iso-latitude rings, then across them")]
+    RingCubic,
+    /// Bilinear on the sphere over the four surrounding pixels.
+    #[value(help = "Bilinear over the four surrounding HEALPix pixels")]
+    Bilinear,
+    /// Linear along and between iso-latitude rings ([`ring_interpolation_weights`], healpy's
+    /// scheme); second order everywhere, including the polar base-pixel seams.
+    #[value(help = "Linear along and between iso-latitude rings")]
+    RingLinear,
+    /// The value of the pixel containing the direction.
+    #[value(help = "The value of the pixel containing the direction")]
+    Nearest,
 }
 
 impl SamplingMethod {
