@@ -177,16 +177,6 @@ fn the_path_scan_sees_grouped_and_plain_imports() {
 
 use std::collections::{BTreeMap, BTreeSet};
 
-/// Sibling uses left out of the circle check, each with its reason: (folder, user, used, why).
-const UNCHECKED_SIBLING_USES: &[(&str, &str, &str, &str)] = &[(
-    "cli",
-    "output",
-    "plot",
-    "cli::output lists every command's paths (command_files needs plot's Picture), while the \
-     commands take the atomic writers through output's re-export of crate::files; the commands \
-     are to import crate::files directly, which removes this entry",
-)];
-
 /// The module path of a file under src/: `tiles/tiling/latitude_bands.rs` is
 /// `[tiles, tiling, latitude_bands]`, `scattering/mod.rs` is `[scattering]`.
 fn module_path(src: &Path, file: &Path) -> Vec<String> {
@@ -374,10 +364,7 @@ fn sibling_uses(src: &Path, files: &[PathBuf]) -> SiblingUses {
                 continue;
             };
             let from = own[common].clone();
-            let unchecked = UNCHECKED_SIBLING_USES
-                .iter()
-                .any(|&(f, a, b, _)| folder.join("::") == f && from == a && to == b);
-            if from != to && !unchecked {
+            if from != to {
                 uses.entry(folder)
                     .or_default()
                     .entry((from, to))

@@ -1,10 +1,10 @@
 //! `planisphere compare-flat`: the bias of the flat-sky approximation per coefficient and tile
 //! size, for skies of a given spectrum.
 
-use super::output::{check_output_path, write_bytes, write_json};
 use super::plot::flat_bias::flat_bias_figure;
 use crate::error::{Error, Result};
 use crate::figures::charts::ImageFormat;
+use crate::files::{check_output_path, write_bytes, write_json};
 use crate::harmonics::spectrum::AngularSpectrum;
 use crate::measure::flat_comparison::{
     compare_flat, rows_csv, FlatComparisonRow, FlatComparisonSettings, ScaleConvergence,

@@ -12,9 +12,9 @@
 use super::ensemble::EnsembleMeasurer;
 use super::forecast::{forecast_document, forecast_named_sets, ForecastResult};
 use super::measure::measurement_document;
-use super::output::{write_bytes, write_json};
 use crate::ensemble::{EnsembleDescription, EnsembleJob, MemberSource, Shard};
 use crate::error::{Error, Result};
+use crate::files::{write_bytes, write_json};
 use crate::forecast::DerivativeEnsembles;
 use crate::harmonics::spectrum::AngularSpectrum;
 use crate::io::fits_io::{write_footprint, write_map, WriteOptions};

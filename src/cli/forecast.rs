@@ -2,9 +2,9 @@
 //! ensemble (with the Hartlap factor), derivatives from ensembles at θ ± Δθ, and a comparison of
 //! statistic sets (power spectrum, band powers, order 1, orders 1+2, orientation-harmonic summary, bispectrum).
 
-use super::output::{write_bytes, write_json};
 use crate::ensemble::{settings_difference, EnsembleJob, MergedTable};
 use crate::error::{Error, Result};
+use crate::files::{write_bytes, write_json};
 pub use crate::forecast::named_sets::{
     forecast_document, forecast_named_sets, forecast_sets, pair_statistic_sets, ForecastResult,
     PAIR_STATISTIC_SETS, STATISTIC_SETS,
@@ -192,9 +192,9 @@ fn load_derivatives(
 
 /// Runs the command.
 pub fn run(args: &ForecastArgs) -> Result<()> {
-    super::output::check_output_path(&args.output)?;
+    crate::files::check_output_path(&args.output)?;
     if let Some(p) = &args.csv {
-        super::output::check_output_path(p)?;
+        crate::files::check_output_path(p)?;
     }
     if let Some(plan) = &args.plan {
         return run_plan(args, plan);

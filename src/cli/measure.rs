@@ -5,8 +5,8 @@
 //! with the same estimator, settings and JSON layout ([`crate::measure::flat::measure`]).
 
 use super::inputs::{load_map, untapered_footprint, MaskArgs};
-use super::output::write_json;
 use crate::error::{Error, Result};
+use crate::files::write_json;
 use crate::io::fits_io::ColumnChoice;
 pub use crate::io::measurement_document::measurement_document;
 use crate::io::measurement_document::{pair_document, taper_description};
@@ -98,7 +98,7 @@ pub struct MeasureArgs {
 
 /// Measures one map (or a pair with `--cross`) and writes the JSON document.
 pub fn run(args: &MeasureArgs) -> Result<()> {
-    super::output::check_output_path(&args.output)?;
+    crate::files::check_output_path(&args.output)?;
     let mut settings = args.options.settings()?;
     if args.full_resolution {
         settings.transform.fourier_cropping = false;

@@ -1,13 +1,11 @@
-//! Output and input paths of a command: the atomic writers (re-exported from
-//! [`crate::files`]) and [`CommandFiles`], the one check of every path a command reads or writes,
-//! run before any work starts.
+//! Input and output paths of a command: [`CommandFiles`], the one check of every path a command
+//! reads or writes, run before any work starts. The commands write through the atomic writers of
+//! [`crate::files`].
 
 use crate::error::{Error, Result};
 use crate::files::{
-    check_directory_writable, file_identity, kind_of, output_location, require_regular_input,
-};
-pub use crate::files::{
-    check_output_path, temporary_path, write_atomically, write_bytes, write_json,
+    check_directory_writable, check_output_path, file_identity, kind_of, output_location,
+    require_regular_input,
 };
 use std::path::{Path, PathBuf};
 

@@ -16,7 +16,6 @@
 
 use super::inputs::{load_map, MaskArgs};
 use super::measure::MeasureOptions;
-use super::output::write_bytes;
 use crate::error::{Error, Result};
 use crate::figures::charts::{
     append_colour_bar, palette, Axis, AxisScale, Cell, ChartPoint, ColourBar, Figure, ImageFormat,
@@ -24,6 +23,7 @@ use crate::figures::charts::{
 };
 use crate::figures::plotting::SkyPicture;
 use crate::figures::plotting::{colour_ramp, Rgb};
+use crate::files::write_bytes;
 use crate::forecast::{ConfidenceEllipse, ConfidenceLevel};
 use crate::io::fits_io::ColumnChoice;
 use crate::measure::measurement::{MapStatistics, SphereMeasurer};
@@ -135,7 +135,7 @@ pub const MIN_WIDTH: u32 = 400;
 pub const MAX_WIDTH: u32 = 8000;
 
 /// Refuses a width outside [`MIN_WIDTH`] … [`MAX_WIDTH`] and an output path whose directory does not exist, before any work is done (the write
-/// itself checks again, see [`super::output::write_atomically`]).
+/// itself checks again, see [`crate::files::write_atomically`]).
 fn check_output(path: &Path, width: u32) -> Result<ImageFormat> {
     if !(MIN_WIDTH..=MAX_WIDTH).contains(&width) {
         return Err(Error::Setting(format!(

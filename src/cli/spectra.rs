@@ -3,8 +3,8 @@
 //! band power (mode-coupling deconvolution with optional beam and pixel window).
 
 use super::inputs::{load_map, MaskArgs};
-use super::output::{write_bytes, write_json};
 use crate::error::Result;
+use crate::files::{write_bytes, write_json};
 use crate::harmonics::mode_coupling::BinWeighting;
 pub use crate::harmonics::spectra::spectrum_csv;
 use crate::harmonics::spectra::{measure_spectra, MasterSettings, SpectraDocument};
@@ -67,7 +67,7 @@ pub fn run(args: &SpectraArgs) -> Result<()> {
     };
     settings.check()?;
     for p in args.csv.iter().chain(args.json.iter()) {
-        super::output::check_output_path(p)?;
+        crate::files::check_output_path(p)?;
     }
     crate::limits::check_harmonic_iterations(args.iterations)?;
     let map = load_map(&args.map, &args.column)?;

@@ -16,9 +16,9 @@
 mod picture;
 
 use crate::cli::inputs::{load_map, MaskArgs};
-use crate::cli::output::{check_output_path, write_atomically};
 use crate::error::{Error, Result};
 use crate::figures::plotting::{write_pictures_in_a_row, SkyPicture};
+use crate::files::{check_output_path, write_atomically};
 use crate::io::fits_io::{read_footprint, write_map, ColumnChoice, WriteOptions};
 use crate::measure::measurement::{MeasurementSettings, SphereMeasurer};
 use crate::measure::settings::MeasurementChoices;

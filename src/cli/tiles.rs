@@ -212,7 +212,7 @@ pub fn run(args: &TilesArgs) -> Result<()> {
         println!("{line}");
     }
     if let Some(path) = &args.json {
-        crate::cli::output::write_json(path, &report)?;
+        crate::files::write_json(path, &report)?;
         println!("plan written to {}", path.display());
     }
     if let Some(path) = &args.png {
