@@ -27,7 +27,7 @@
 pub mod latitude_bands;
 
 use crate::error::{Error, Result};
-use crate::sky::footprint::Footprint;
+use crate::sky::footprint::FootprintOf;
 use crate::sky::pixelization::{Direction, Ordering, Pixelization};
 use crate::tiles::projection::Gnomonic;
 use latitude_bands::LatitudeBands;
@@ -392,7 +392,7 @@ impl TilingPlan {
     /// pixelization `map`. Keeps the cells that hold a footprint pixel of positive weight.
     pub fn new(
         map: Pixelization,
-        footprint: &Footprint,
+        footprint: &FootprintOf<'_>,
         settings: &TilingSettings,
     ) -> Result<Self> {
         let nside = map.nside();
@@ -454,7 +454,7 @@ impl TilingPlan {
     /// automatic choice).
     fn latitude_band_cells(
         map: Pixelization,
-        footprint: &Footprint,
+        footprint: &FootprintOf<'_>,
         pixel_size: f64,
         settings: &TilingSettings,
     ) -> Result<(Cells, Vec<Tile>, usize)> {
@@ -491,7 +491,7 @@ impl TilingPlan {
     /// Cells from the coarse HEALPix pixels holding footprint, and the tile size.
     fn healpix_cells(
         map: Pixelization,
-        footprint: &Footprint,
+        footprint: &FootprintOf<'_>,
         nc: u32,
         pixel_size: f64,
         settings: &TilingSettings,
