@@ -95,4 +95,4 @@ pub mod figures;
 pub mod cli;
 
 pub use error::{Error, Result};
-pub use sky::{Direction, Footprint, Ordering, Pixelization, SkyMap, SkyMapOf};
+pub use sky::{Direction, Footprint, FootprintOf, Ordering, Pixelization, SkyMap, SkyMapOf};

@@ -9,8 +9,8 @@ use planisphere::simulate::skies::SkyRecipe;
 use planisphere::sky::skymap::UNSEEN;
 use planisphere::{Footprint, Ordering, SkyMap, SkyMapOf};
 
-fn bits(v: &[f64]) -> Vec<u64> {
-    v.iter().map(|x| x.to_bits()).collect()
+fn bits<'v>(v: impl IntoIterator<Item = &'v f64>) -> Vec<u64> {
+    v.into_iter().map(|x| x.to_bits()).collect()
 }
 
 #[test]

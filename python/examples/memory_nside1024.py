@@ -6,21 +6,20 @@ with the command line, side by side in one run; prints a table.
 Each run is a fresh process whose peak RSS the parent reads with getrusage (RUSAGE_CHILDREN
 after waiting for that one child): the command line `planisphere measure MAP.fits --mask
 MASK.fits -o out.json`; `python -c` calling `planisphere.measure` with the same settings on
-the map and mask as arrays read with `planisphere.read_map` / `read_mask` (the library reads
-the map array in place and copies the mask once into the weights it tapers, while the caller
+the map and mask as arrays read with `ps.read_map` / `read_mask` (the library reads both
+arrays in place, storing beside the mask only the weights its taper changes, while the caller
 keeps both arrays), on the map array with the mask's file name, and on the two file names
 (the library reads them, as the command line does); then `python -c` reading the two arrays
 without measuring, and the imports alone. Every Python figure includes the interpreter and
 numpy. The map is a Gaussian sky of the built-in model (`planisphere sky`), the mask the
 northern cap above 30° latitude with a C2 taper of 60′.
 
-Measured (one run, side by side; 2 shared cores): command line 343.8 MiB; Python with the map
-and mask arrays 460.7 MiB (1.340; an earlier run, when the library still copied the map: 557.5
-MiB, 1.621); with the map array and the mask's file name 366.0 MiB (1.065); with both file names 366.1 MiB (1.065);
-reading the two arrays alone 221.5 MiB; the imports alone 26.4 MiB. With both arrays the
-library adds 239.2 MiB to what the caller holds, 0.696 of the command line's peak: the excess
-over the command line, 116.9 MiB, is the caller's own mask array (96 MiB of float64, which the
-library cannot use in place since it tapers its copy) and the interpreter with numpy.
+Measured (one run, side by side; 2 shared cores): command line 307.8 MiB; Python with the map
+and mask arrays 288.7 MiB (0.938; 460.7 MiB, 1.340, when the library tapered a copy of the
+mask array, and 557.5 MiB, 1.621, when it also copied the map); with the map array and the
+mask's file name 288.1 MiB (0.936); with both file names 278.6 MiB (0.905); reading the two
+arrays alone 221.3 MiB; the imports alone 26.3 MiB. With both arrays the library adds 67.4 MiB
+to what the caller holds, 0.219 of the command line's peak.
 """
 
 from __future__ import annotations

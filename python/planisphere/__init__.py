@@ -297,8 +297,10 @@ def measure(
     default) is read in place, never copied; any other (float32, big-endian, strided, a list)
     is converted once to one, and ``copied_maps`` of the result names it. Do not write to the
     arrays from another thread during the call (the computation reads them without the
-    interpreter lock). A mask array is always copied once, into the weights the library
-    tapers; keep the caller's own mask only if it is needed afterwards.
+    interpreter lock). A C-contiguous native float64 mask array is read in place too: the
+    library stores beside it only the weights it changes (the tapered band along the mask's
+    edges, its bad values and the map's bad pixels, which weigh 0); any other mask is converted
+    once.
     """
     values, path = _map_argument(map, "the map")
     if values is None and path is None:

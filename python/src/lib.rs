@@ -25,7 +25,7 @@ use planisphere::sky::apodization::TaperKind;
 use planisphere::sky::footprint::refuse_single_pixel_mask;
 use planisphere::sky::measurable::check_measurable;
 use planisphere::tiles::sampling::SamplingMethod;
-use planisphere::{Error, Footprint, Ordering, Pixelization, SkyMap, SkyMapOf};
+use planisphere::{Error, Footprint, FootprintOf, Ordering, Pixelization, SkyMap, SkyMapOf};
 use pyo3::exceptions::{PyOSError, PyValueError};
 use pyo3::prelude::*;
 use std::path::{Path, PathBuf};
@@ -225,8 +225,9 @@ impl<'a> MapInput<'a> {
     }
 }
 
-/// A mask given as weights (same ordering as the map; the library copies them into the
-/// footprint it tapers) or as a FITS file and column.
+/// A mask given as weights (same ordering as the map; the footprint reads them in place and
+/// stores only the weights it changes, such as the tapered band along the edges) or as a FITS
+/// file and column.
 enum MaskInput<'a> {
     Weights(&'a [f64]),
     File(PathBuf, planisphere::io::fits_io::ColumnChoice),
@@ -254,22 +255,22 @@ impl<'a> MaskInput<'a> {
 /// The untapered footprint of `map` named `name`: the weights (same ordering as the map; NaN
 /// and UNSEEN weigh 0, as in a FITS mask), a mask file (brought to the map's ordering, its
 /// COORDSYS compared with the map's unless `allow_coordsys_mismatch`) or the map's valid
-/// pixels, without the map's bad pixels. One full-sky array of weights at a time: the copy
-/// of the mask is restricted to the map in place.
-fn untapered(
+/// pixels, without the map's bad pixels. At most one full-sky array of weights: the caller's
+/// weights are read in place, a mask file's copy is restricted to the map in place.
+fn untapered<'m>(
     map: &SkyMapOf<'_>,
     name: &str,
-    mask: Option<MaskInput<'_>>,
+    mask: Option<MaskInput<'m>>,
     allow_coordsys_mismatch: bool,
     warnings: &mut Vec<String>,
-) -> planisphere::Result<Footprint> {
+) -> planisphere::Result<FootprintOf<'m>> {
     if map.valid_count() == 0 {
         return Err(Error::Data(format!(
             "{name}: every pixel is bad (UNSEEN or NaN): nothing to measure"
         )));
     }
     let raw = match mask {
-        Some(MaskInput::Weights(w)) => Footprint::from_weights(map.pixelization(), w.to_vec())?,
+        Some(MaskInput::Weights(w)) => FootprintOf::borrowing(map.pixelization(), w)?,
         Some(MaskInput::File(path, column)) => {
             let (fp, header) = planisphere::io::fits_io::read_footprint(&path, &column)?;
             warnings.extend(

@@ -16,7 +16,7 @@ use crate::harmonics::mode_coupling::{
     MasterDeconvolution,
 };
 use crate::harmonics::{gaussian_beam, HarmonicTransform};
-use crate::sky::footprint::Footprint;
+use crate::sky::footprint::FootprintOf;
 use crate::sky::pixelization::Ordering;
 use crate::sky::skymap::SkyMap;
 use std::fmt::Write as _;
@@ -52,7 +52,7 @@ pub struct MeasuredSpectrum {
 }
 
 /// Values of `map` in RING order with invalid pixels set to 0, and the matching weights.
-fn ring_values(map: &SkyMap, weights: Option<&Footprint>) -> Result<(Vec<f64>, Vec<f64>)> {
+fn ring_values(map: &SkyMap, weights: Option<&FootprintOf<'_>>) -> Result<(Vec<f64>, Vec<f64>)> {
     let map = map.to_ordering(Ordering::Ring)?;
     let w: Vec<f64> = match weights {
         Some(fp) => fp.restricted_to(&map)?.weights().to_vec(),
@@ -112,7 +112,7 @@ pub fn bin_spectrum(
 /// `bin_width`-wide bins from ℓ = 2.
 pub fn angular_spectrum(
     map: &SkyMap,
-    weights: Option<&Footprint>,
+    weights: Option<&FootprintOf<'_>>,
     sht: &HarmonicTransform,
     iterations: usize,
     bin_width: usize,
@@ -124,7 +124,7 @@ pub fn angular_spectrum(
 pub fn cross_spectrum(
     a: &SkyMap,
     b: &SkyMap,
-    weights: Option<&Footprint>,
+    weights: Option<&FootprintOf<'_>>,
     sht: &HarmonicTransform,
     iterations: usize,
     bin_width: usize,
@@ -162,7 +162,7 @@ pub struct PseudoSpectrum {
 pub fn pseudo_spectrum(
     a: &SkyMap,
     b: &SkyMap,
-    weights: Option<&Footprint>,
+    weights: Option<&FootprintOf<'_>>,
     sht: &HarmonicTransform,
     iterations: usize,
 ) -> Result<PseudoSpectrum> {
@@ -388,7 +388,7 @@ impl MasterSettings {
 pub fn measure_spectra(
     map: (&SkyMap, &str),
     other: Option<(&SkyMap, &str)>,
-    footprint: &Footprint,
+    footprint: &FootprintOf<'_>,
     lmax: Option<usize>,
     iterations: usize,
     settings: &MasterSettings,

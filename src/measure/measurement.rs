@@ -47,7 +47,7 @@ use crate::scattering::statistics::{
 };
 use crate::scattering::transform::{ScatteringEngine, TilePairView, TransformSettings};
 use crate::sky::apodization::c2;
-use crate::sky::footprint::Footprint;
+use crate::sky::footprint::FootprintOf;
 use crate::sky::pixelization::Pixelization;
 use crate::sky::skymap::SkyMapOf;
 use crate::tiles::sampling::{SamplingMethod, TileGrids, TileSampler};
@@ -206,7 +206,7 @@ impl MeasurementSettings {
 
     /// The tiling plan these settings give for maps of pixelization `map` on `footprint`: the
     /// one plan `measure`, `ensemble`, `synthesize` and `tiles` use.
-    pub fn plan(&self, map: Pixelization, footprint: &Footprint) -> Result<TilingPlan> {
+    pub fn plan(&self, map: Pixelization, footprint: &FootprintOf<'_>) -> Result<TilingPlan> {
         self.validate()?;
         let delta = self.pixel_size(map);
         let pixel_size = Some(delta);
@@ -499,7 +499,7 @@ impl SphereMeasurer {
     /// Plans the tiles of `footprint` for maps of pixelization `map` and builds the engine.
     pub fn new(
         map: Pixelization,
-        footprint: &Footprint,
+        footprint: &FootprintOf<'_>,
         settings: MeasurementSettings,
     ) -> Result<Self> {
         settings.validate()?;
@@ -579,7 +579,11 @@ impl SphereMeasurer {
 
     /// Measures `map` on `footprint` (the apodized footprint the plan was made for, or another
     /// of the same NSIDE whose positive pixels lie in the planned tiles' cores).
-    pub fn measure(&self, map: &SkyMapOf<'_>, footprint: &Footprint) -> Result<MapStatistics> {
+    pub fn measure(
+        &self,
+        map: &SkyMapOf<'_>,
+        footprint: &FootprintOf<'_>,
+    ) -> Result<MapStatistics> {
         let sampler = TileSampler::new(&self.plan, map, footprint, self.settings.sampling)?;
         let per_tile: Vec<Option<TileResult>> = sampler.map_tiles(|grids| {
             let Some(TileTaper {
@@ -664,7 +668,7 @@ impl SphereMeasurer {
         &self,
         first: &SkyMapOf<'_>,
         second: &SkyMapOf<'_>,
-        footprint: &Footprint,
+        footprint: &FootprintOf<'_>,
     ) -> Result<PairStatistics> {
         if first.nside() != second.nside() {
             return Err(Error::Mismatch(format!(

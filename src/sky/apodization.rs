@@ -15,7 +15,7 @@
 //! Gaussian-smoothed mask; the erosion keeps the taper inside the footprint).
 
 use crate::error::{Error, Result};
-use crate::sky::footprint::Footprint;
+use crate::sky::footprint::{FootprintOf, SparseMinimum};
 use crate::sky::pixelization::Pixelization;
 use rayon::prelude::*;
 
@@ -156,7 +156,20 @@ pub fn taper(kind: TaperKind, delta: f64, width: f64) -> f64 {
 /// bordering the footprint is a source, and all observed pixels within `max_distance` of it are
 /// visited through a HEALPix cone query (`cdshealpix`), keeping the minimum (order-independent,
 /// so identical for any thread count). A masked pixel is one of weight 0.
-pub fn distance_to_mask(footprint: &Footprint, max_distance: f64) -> Result<Vec<f64>> {
+pub fn distance_to_mask(footprint: &FootprintOf<'_>, max_distance: f64) -> Result<Vec<f64>> {
+    let near = distances_near_mask(footprint, max_distance)?;
+    Ok(footprint
+        .weights()
+        .iter()
+        .enumerate()
+        .map(|(p, &x)| if x > 0.0 { near.get(p) } else { 0.0 })
+        .collect())
+}
+
+/// [`distance_to_mask`] at the observed pixels, stored only by blocks of pixels holding one
+/// closer than `max_distance` to the mask (the rest read `max_distance`): the apodized band
+/// along the mask's edges and holes, not a full-sky array.
+fn distances_near_mask(footprint: &FootprintOf<'_>, max_distance: f64) -> Result<SparseMinimum> {
     if !(max_distance.is_finite() && max_distance > 0.0) {
         return Err(Error::Setting(format!(
             "apodization width must be positive, got {} arcmin",
@@ -171,15 +184,12 @@ pub fn distance_to_mask(footprint: &Footprint, max_distance: f64) -> Result<Vec<
     }
     let pix: Pixelization = footprint.pixelization();
     let w = footprint.weights();
-    let mut dist: Vec<f64> = w
-        .iter()
-        .map(|&x| if x > 0.0 { max_distance } else { 0.0 })
-        .collect();
+    let mut dist = SparseMinimum::new(w.len(), max_distance);
     // Masked pixels that touch an observed pixel: the sources of the distance.
     // Only the boundary pixels are collected (in pixel order): collecting an entry for every
     // masked pixel first made this step the measurement's peak of memory (about 300 MB at
     // NSIDE 1024, measured with valgrind's massif).
-    let sources = boundary_pixels(pix, w)?;
+    let sources = boundary_pixels(pix, &w)?;
     let depth = cdshealpix::depth(pix.nside());
     let nested = pix.with_ordering(crate::sky::pixelization::Ordering::Nested)?;
     // Search radius padded by one pixel radius so that cells whose centre lies inside are found.
@@ -205,10 +215,7 @@ pub fn distance_to_mask(footprint: &Footprint, max_distance: f64) -> Result<Vec<
             })
             .collect::<Result<Vec<_>>>()?;
         for (p, d) in found.into_iter().flatten() {
-            let slot = &mut dist[p as usize];
-            if d < *slot {
-                *slot = d;
-            }
+            dist.record(p as usize, d);
         }
     }
     Ok(dist)
@@ -224,7 +231,10 @@ pub fn distance_to_mask(footprint: &Footprint, max_distance: f64) -> Result<Vec<
 /// geometry; checked against healpy 1.20.1 `get_all_neighbours` for NSIDE 2–128, largest
 /// ratio 0.5), so the window holds every neighbour with a factor 2 to spare. The pixels left
 /// are confirmed with the exact neighbour query, so the set equals the exhaustive one.
-fn boundary_pixels(pix: Pixelization, w: &[f64]) -> Result<Vec<u64>> {
+fn boundary_pixels<W>(pix: Pixelization, w: &W) -> Result<Vec<u64>>
+where
+    W: std::ops::Index<usize, Output = f64> + Sync + ?Sized,
+{
     let touches = |p: u64| -> Result<bool> {
         Ok(pix
             .neighbours(p)?
@@ -302,7 +312,11 @@ fn boundary_pixels(pix: Pixelization, w: &[f64]) -> Result<Vec<u64>> {
 /// The footprint to pool and filter with: a binary mask multiplied by the taper of `kind` and
 /// `width` (radians); a fractional weight map returned as it is; `TaperKind::None` returns the
 /// mask unchanged.
-pub fn apodize(footprint: &Footprint, kind: TaperKind, width: f64) -> Result<Footprint> {
+pub fn apodize<'a>(
+    footprint: &FootprintOf<'a>,
+    kind: TaperKind,
+    width: f64,
+) -> Result<FootprintOf<'a>> {
     if kind == TaperKind::None || !footprint.is_binary() {
         return Ok(footprint.clone());
     }
@@ -311,25 +325,41 @@ pub fn apodize(footprint: &Footprint, kind: TaperKind, width: f64) -> Result<Foo
             "the footprint is empty: nothing to apodize".into(),
         ));
     }
-    let dist = distance_to_mask(footprint, width)?;
-    let weights: Vec<f64> = footprint
-        .weights()
-        .iter()
-        .zip(&dist)
-        .map(|(&w, &d)| {
-            if w > 0.0 {
-                w * taper(kind, d, width)
+    tapered(footprint.clone(), kind, width)
+}
+
+/// The binary footprint `raw` with each observed pixel's weight w replaced by
+/// w · f(Δ) (the taper of `kind` at its distance Δ to the mask, [`taper`]) and each masked
+/// one by 0. Only pixels closer than `width` to the mask are changed (f = 1 beyond): a
+/// footprint reading its caller's weights stores just that band.
+fn tapered<'a>(raw: FootprintOf<'a>, kind: TaperKind, width: f64) -> Result<FootprintOf<'a>> {
+    let near = distances_near_mask(&raw, width)?;
+    // f at Δ = width, the distance of every pixel not stored in `near` (1 for every taper,
+    // bit for bit: x = 1 exactly)
+    let far = taper(kind, width, width);
+    raw.reweighted(|p, w| {
+        if w > 0.0 {
+            let f = if near.is_stored(p) {
+                taper(kind, near.get(p), width)
             } else {
-                0.0
-            }
-        })
-        .collect();
-    Footprint::from_weights(footprint.pixelization(), weights)
+                far
+            };
+            w * f
+        } else {
+            0.0
+        }
+    })
 }
 
 /// `raw` tapered by `kind` over `width_arcmin` (binary masks only; a full sky, a width of 0 or
 /// [`TaperKind::None`] leave it as is): the footprint `measure`, `spectra` and `ensemble` use.
-pub fn taper_footprint(raw: Footprint, kind: TaperKind, width_arcmin: f64) -> Result<Footprint> {
+/// Its weights are changed in place, or, when it reads its caller's weights, stored beside
+/// them only along the mask's edges (no full-sky array).
+pub fn taper_footprint<'a>(
+    raw: FootprintOf<'a>,
+    kind: TaperKind,
+    width_arcmin: f64,
+) -> Result<FootprintOf<'a>> {
     if !(width_arcmin.is_finite() && width_arcmin >= 0.0) {
         return Err(Error::Setting(format!(
             "--taper-arcmin must be a non-negative number, got {}",
@@ -348,19 +378,7 @@ pub fn taper_footprint(raw: Footprint, kind: TaperKind, width_arcmin: f64) -> Re
     if !raw.is_binary() {
         return apodize(&raw, kind, width);
     }
-    // as `apodize`, tapering the raw weights in place: one full-sky array fewer at the peak
-    let dist = distance_to_mask(&raw, width)?;
-    let pixelization = raw.pixelization();
-    let mut weights = raw.into_weights();
-    for (w, &d) in weights.iter_mut().zip(&dist) {
-        *w = if *w > 0.0 {
-            *w * taper(kind, d, width)
-        } else {
-            0.0
-        };
-    }
-    drop(dist);
-    Footprint::from_weights(pixelization, weights)
+    tapered(raw, kind, width)
 }
 
 #[cfg(test)]

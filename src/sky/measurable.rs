@@ -2,7 +2,7 @@
 //! spectrum runs on its input maps before any work starts.
 
 use crate::error::{Error, Result};
-use crate::sky::footprint::Footprint;
+use crate::sky::footprint::FootprintOf;
 use crate::sky::skymap::SkyMapOf;
 
 /// Checks that `map` (named `label` in messages) has something to measure on `footprint`
@@ -11,12 +11,12 @@ use crate::sky::skymap::SkyMapOf;
 /// without fluctuations has scattering coefficients that are ratios of rounding errors).
 pub fn check_measurable(
     map: &SkyMapOf<'_>,
-    footprint: Option<&Footprint>,
+    footprint: Option<&FootprintOf<'_>>,
     label: &str,
 ) -> Result<()> {
     let weights = footprint
         .filter(|f| f.pixelization() == map.pixelization())
-        .map(Footprint::weights);
+        .map(FootprintOf::weights);
     let mut count = 0u64;
     let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
     for (i, (&v, &ok)) in map.values().iter().zip(map.valid()).enumerate() {

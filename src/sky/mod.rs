@@ -14,7 +14,7 @@ pub mod pixelization;
 pub mod skymap;
 
 pub use apodization::{apodize, TaperKind};
-pub use footprint::Footprint;
+pub use footprint::{Footprint, FootprintOf};
 pub use measurable::check_measurable;
 pub use pixelization::{Direction, Ordering, Pixelization};
 pub use skymap::{SkyMap, SkyMapOf};

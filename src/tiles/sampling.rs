@@ -20,13 +20,12 @@
 //! (`tests/sampling_adjoint.rs`: equal to the sampler bit for bit, ⟨S m, y⟩ = ⟨m, Sᵀ y⟩).
 
 use crate::error::{Error, Result};
-use crate::sky::footprint::Footprint;
+use crate::sky::footprint::{FootprintOf, Weights};
 use crate::sky::pixelization::{ring_info, ring_theta, Ordering, Pixelization};
 use crate::sky::skymap::{SkyMap, SkyMapOf};
 use crate::tiles::projection::{rectangle_solid_angle, Gnomonic};
 use crate::tiles::tiling::TilingPlan;
 use rayon::prelude::*;
-use std::borrow::Cow;
 
 /// How map values are read at a plane pixel's direction. The kebab-case names
 /// (`ring-quintic`, `ring-cubic`, `bilinear`, `ring-linear`, `nearest`) are those of the
@@ -421,13 +420,35 @@ fn wrap(j: i64, count: u64) -> u64 {
     }) as u64
 }
 
+/// A sampler's mask weights in the map's ordering.
+enum MaskWeights<'a> {
+    /// The footprint's weights as one slice (it owns them, or reads its caller's unchanged).
+    Slice(&'a [f64]),
+    /// The footprint's weights, read where they are (its caller's and its own changed ones).
+    Footprint(Weights<'a>),
+    /// The footprint's weights brought to the map's ordering.
+    Reordered(Vec<f64>),
+}
+
+impl MaskWeights<'_> {
+    /// The weight of map pixel `i`.
+    #[inline]
+    fn get(&self, i: usize) -> f64 {
+        match self {
+            MaskWeights::Slice(w) => w[i],
+            MaskWeights::Footprint(w) => w.get(i),
+            MaskWeights::Reordered(w) => w[i],
+        }
+    }
+}
+
 /// Reads a map and a mask onto the tiles of a plan, one tile at a time.
 pub struct TileSampler<'a> {
     plan: &'a TilingPlan,
     map: &'a SkyMapOf<'a>,
-    /// Mask weights in the map's ordering (borrowed when the orderings agree); the map's bad
-    /// pixels are treated as weight 0 when read.
-    mask: Cow<'a, [f64]>,
+    /// Mask weights in the map's ordering (the footprint's own when the orderings agree); the
+    /// map's bad pixels are treated as weight 0 when read.
+    mask: MaskWeights<'a>,
     method: SamplingMethod,
     /// Solid angles of the plane pixels, the same for every tile.
     solid_angle: Vec<f64>,
@@ -444,7 +465,7 @@ impl<'a> TileSampler<'a> {
     pub fn new(
         plan: &'a TilingPlan,
         map: &'a SkyMapOf<'a>,
-        mask: &'a Footprint,
+        mask: &'a FootprintOf<'a>,
         method: SamplingMethod,
     ) -> Result<Self> {
         if map.nside() != plan.map_pixelization().nside() {
@@ -457,20 +478,25 @@ impl<'a> TileSampler<'a> {
         let map_pix = map.pixelization();
         let mask_pix = mask.pixelization();
         mask.check_map_nside(map_pix.nside())?;
-        let weights: Cow<'a, [f64]> = if mask_pix.ordering() == map_pix.ordering() {
-            Cow::Borrowed(mask.weights())
+        let weights = if mask_pix.ordering() == map_pix.ordering() {
+            let w = mask.weights();
+            match w.as_slice() {
+                Some(all) => MaskWeights::Slice(all),
+                None => MaskWeights::Footprint(w),
+            }
         } else {
-            Cow::Owned(
+            MaskWeights::Reordered(
                 (0..map_pix.npix())
                     .into_par_iter()
                     .map(|p| Ok(mask.weight(mask_pix.from_nested(map_pix.to_nested(p)?)?)))
                     .collect::<Result<Vec<f64>>>()?,
             )
         };
-        let overlap = weights
+        let overlap = map
+            .valid()
             .par_iter()
-            .zip(map.valid().par_iter())
-            .any(|(&w, &ok)| w > 0.0 && ok);
+            .enumerate()
+            .any(|(i, &ok)| ok && weights.get(i) > 0.0);
         if !overlap {
             return Err(Error::Data(
                 "the mask's footprint does not overlap the map's valid pixels".to_string(),
@@ -633,7 +659,7 @@ impl<'a> TileSampler<'a> {
             SamplingMethod::Nearest => {
                 let i = pix.pixel_of(dir) as usize;
                 if valid[i] {
-                    (values[i], self.mask[i])
+                    (values[i], self.mask.get(i))
                 } else {
                     (0.0, 0.0)
                 }
@@ -685,7 +711,7 @@ impl<'a> TileSampler<'a> {
             if wt > 0.0 && valid[i] {
                 sum += wt * values[i];
                 wsum += wt;
-                msum += wt * self.mask[i];
+                msum += wt * self.mask.get(i);
             }
         }
         (sum, wsum, msum)

@@ -27,7 +27,7 @@
 pub mod latitude_bands;
 
 use crate::error::{Error, Result};
-use crate::sky::footprint::Footprint;
+use crate::sky::footprint::FootprintOf;
 use crate::sky::pixelization::{Direction, Ordering, Pixelization};
 use crate::tiles::projection::Gnomonic;
 use latitude_bands::LatitudeBands;
@@ -399,7 +399,7 @@ impl TilingPlan {
     /// pixelization `map`. Keeps the cells that hold a footprint pixel of positive weight.
     pub fn new(
         map: Pixelization,
-        footprint: &Footprint,
+        footprint: &FootprintOf<'_>,
         settings: &TilingSettings,
     ) -> Result<Self> {
         let nside = map.nside();
@@ -461,7 +461,7 @@ impl TilingPlan {
     /// automatic choice).
     fn latitude_band_cells(
         map: Pixelization,
-        footprint: &Footprint,
+        footprint: &FootprintOf<'_>,
         pixel_size: f64,
         settings: &TilingSettings,
     ) -> Result<(Cells, Vec<Tile>, usize)> {
@@ -498,7 +498,7 @@ impl TilingPlan {
     /// Cells from the coarse HEALPix pixels holding footprint, and the tile size.
     fn healpix_cells(
         map: Pixelization,
-        footprint: &Footprint,
+        footprint: &FootprintOf<'_>,
         nc: u32,
         pixel_size: f64,
         settings: &TilingSettings,

@@ -39,7 +39,7 @@
 //! two of a diamond-shaped core plus its surrounding square.
 
 use crate::error::{Error, Result};
-use crate::sky::footprint::Footprint;
+use crate::sky::footprint::{FootprintOf, Weights};
 use crate::sky::pixelization::{
     ring_and_position, ring_info, ring_pixel_phi, ring_theta, Direction, Ordering, Pixelization,
 };
@@ -203,7 +203,7 @@ struct RingFootprint<'a> {
     nside: u64,
     pixelization: Pixelization,
     ring_pixelization: Pixelization,
-    weights: &'a [f64],
+    weights: Weights<'a>,
     /// Runs of footprint pixels (positive weight) along every ring (index ring − 1):
     /// half-open position ranges [j0, j1), in increasing j. The loops visit footprint pixels
     /// through them.
@@ -218,7 +218,7 @@ struct CellSums {
 }
 
 impl<'a> RingFootprint<'a> {
-    fn new(footprint: &'a Footprint) -> Result<Self> {
+    fn new(footprint: &'a FootprintOf<'_>) -> Result<Self> {
         let pixelization = footprint.pixelization();
         let nside = pixelization.nside() as u64;
         let mut rings = RingFootprint {
@@ -516,7 +516,7 @@ impl LatitudeBands {
     /// radians all round. Returns the layout and its cells, one per tile, in tile order (bands
     /// from north to south, cells in increasing longitude).
     pub(crate) fn new(
-        footprint: &Footprint,
+        footprint: &FootprintOf<'_>,
         core_half: f64,
         margin: f64,
     ) -> Result<(Self, Vec<BandCell>)> {
