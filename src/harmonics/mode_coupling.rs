@@ -149,7 +149,8 @@ impl CouplingMatrix {
     /// M for ℓ1, ℓ2 ≤ `lmax` from the weight spectrum `weight_cl` (W_ℓ for ℓ = 0, 1, …; values
     /// beyond its end are taken as 0). The sum over ℓ3 runs from |ℓ1−ℓ2| up to
     /// min(ℓ1+ℓ2, len − 1) in increasing order; rows are computed in parallel and each entry by
-    /// one thread, so the result is the same for any thread count. Cost ∝ ℓmax³.
+    /// one thread, so the result is the same for any thread count. Cost ∝ ℓmax³, or ℓmax² · L
+    /// when W_ℓ vanishes above L.
     pub fn new(weight_cl: &[f64], lmax: usize) -> Result<Self> {
         if let Some((l, w)) = weight_cl.iter().enumerate().find(|(_, w)| !w.is_finite()) {
             return Err(Error::Data(format!(
@@ -162,11 +163,18 @@ impl CouplingMatrix {
             .enumerate()
             .map(|(l, w)| (2 * l + 1) as f64 * w / (4.0 * std::f64::consts::PI))
             .collect();
+        // Terms with W_ℓ3 = 0 add exact zeros, so pairs with ℓ2 − ℓ1 above the last non-zero
+        // W_ℓ3 are 0 without computing their 3j symbols (same result, bit for bit; for a full
+        // sky, W_ℓ = 4π δ_ℓ0, only the diagonal is computed).
+        let support = weighted.iter().rposition(|&w| w != 0.0);
         let rows: Vec<Vec<f64>> = (0..=lmax)
             .into_par_iter()
             .map_init(Vec::new, |squares, l1| {
                 (l1..=lmax)
                     .map(|l2| {
+                        if support.is_none_or(|s| l2 - l1 > s) {
+                            return 0.0;
+                        }
                         let first = wigner_3j_squared_zero_m(l1, l2, squares);
                         let last = (l1 + l2).min(lw.saturating_sub(1));
                         let mut sum = 0.0;

@@ -52,10 +52,17 @@ pub struct MeasuredSpectrum {
 }
 
 /// Values of `map` in RING order with invalid pixels set to 0, and the matching weights.
+/// A map already in RING order is read in place (no full-sky copy).
 fn ring_values(map: &SkyMap, weights: Option<&FootprintOf<'_>>) -> Result<(Vec<f64>, Vec<f64>)> {
-    let map = map.to_ordering(Ordering::Ring)?;
+    let reordered;
+    let map = if map.ordering() == Ordering::Ring {
+        map
+    } else {
+        reordered = map.to_ordering(Ordering::Ring)?;
+        &reordered
+    };
     let w: Vec<f64> = match weights {
-        Some(fp) => fp.restricted_to(&map)?.weights().to_vec(),
+        Some(fp) => fp.restricted_to(map)?.into_weights(),
         None => {
             if map.valid_count() != map.pixelization().npix() {
                 return Err(Error::Data(format!(
@@ -180,10 +187,19 @@ pub fn pseudo_spectrum(
             a.nside()
         )));
     }
-    let (va, w) = ring_values(a, weights)?;
-    let (vb, wb) = ring_values(b, weights)?;
-    // both maps' bad pixels leave the footprint
-    let w: Vec<f64> = w.iter().zip(&wb).map(|(x, y)| x.min(*y)).collect();
+    // An auto-spectrum reads its map once; full-sky arrays are reused in place below (at
+    // NSIDE 1024 each is 100 MB).
+    let same = std::ptr::eq(a, b);
+    let (mut va, mut w) = ring_values(a, weights)?;
+    let mut vb = None;
+    if !same {
+        let (v, wb) = ring_values(b, weights)?;
+        // both maps' bad pixels leave the footprint
+        for (x, y) in w.iter_mut().zip(&wb) {
+            *x = x.min(*y);
+        }
+        vb = Some(v);
+    }
     let wsum: f64 = w.iter().sum();
     if wsum <= 0.0 {
         return Err(Error::Data("the footprint is empty".into()));
@@ -191,16 +207,23 @@ pub fn pseudo_spectrum(
     let npix = w.len() as f64;
     let w2 = w.iter().map(|x| x * x).sum::<f64>() / npix;
     let w4 = w.iter().map(|x| x.powi(4)).sum::<f64>() / npix;
-    let weighted = |v: &[f64]| -> Vec<f64> {
+    // (v − weighted mean)·W, in place
+    let weigh = |v: &mut [f64]| {
         let mean = v.iter().zip(&w).map(|(x, wt)| x * wt).sum::<f64>() / wsum;
-        v.iter().zip(&w).map(|(x, wt)| (x - mean) * wt).collect()
+        for (x, wt) in v.iter_mut().zip(&w) {
+            *x = (*x - mean) * wt;
+        }
     };
-    let alm_a = sht.analysis(&weighted(&va), iterations)?;
-    let raw = if std::ptr::eq(a, b) {
-        alm_a.power_spectrum()
-    } else {
-        let alm_b = sht.analysis(&weighted(&vb), iterations)?;
-        alm_a.cross_spectrum(&alm_b)?
+    weigh(&mut va);
+    let alm_a = sht.analysis(&va, iterations)?;
+    drop(va);
+    let raw = match vb {
+        None => alm_a.power_spectrum(),
+        Some(mut vb) => {
+            weigh(&mut vb);
+            let alm_b = sht.analysis(&vb, iterations)?;
+            alm_a.cross_spectrum(&alm_b)?
+        }
     };
     Ok(PseudoSpectrum {
         raw,
