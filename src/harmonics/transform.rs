@@ -21,7 +21,7 @@ use rayon::prelude::*;
 use realfft::{ComplexToReal, RealFftPlanner, RealToComplex};
 
 use super::coefficients::HarmonicCoefficients;
-use super::geometry::{Ring, RingGeometry};
+use super::geometry::RingGeometry;
 use super::legendre::{
     analysis_order, log2_sectoral_norms, synthesis_order, FusedMulAdd, OrderRecurrence,
     PlainMulAdd, RingPairs,
@@ -42,6 +42,14 @@ const PORTABLE_SYNTHESIS_LANES: usize = 4;
 const ANALYSIS_LANES: usize = 16;
 // The lane sums in the analysis stage are pairwise over a power-of-two width.
 const _: () = assert!(ANALYSIS_LANES.is_power_of_two());
+
+/// Target size of one band of ring sums (all rings, a band of orders m) in the banded stages:
+/// a few MB instead of (lmax + 1) × rings complex values (201 MB at NSIDE 1024).
+const BAND_BYTES: usize = 4 << 20;
+/// Most bands in analysis, which repeats the real FFT of every ring per band (each pass costs
+/// about 2% of an analysis at NSIDE 512 and 1024): 3 bands keep the CPU time within a few % of
+/// a single pass while its ring sums take a third of the memory.
+const ANALYSIS_MAX_BANDS: usize = 3;
 
 /// Synthesis and analysis for one (Nside, lmax); owns the ring geometry and the FFT plans and is
 /// meant to be built once and shared (it is `Sync`).
@@ -126,54 +134,50 @@ impl std::fmt::Debug for HarmonicTransform {
     }
 }
 
-/// e^{ikφ0} for k = 0 … count − 1 by repeated multiplication, re-anchored with a direct
-/// sin/cos every 32 steps (error a few ulp).
-fn phase_table(phi0: f64, count: usize) -> Vec<Complex64> {
-    let step = Complex64::from_polar(1.0, phi0);
-    let mut out = Vec::with_capacity(count);
-    let mut w = Complex64::new(1.0, 0.0);
-    for k in 0..count {
-        if k % 32 == 0 {
-            w = Complex64::from_polar(1.0, k as f64 * phi0);
-        }
-        out.push(w);
-        w *= step;
-    }
-    out
+/// e^{ikφ0} for increasing k (jumps back are allowed), by repeated multiplication re-anchored
+/// with a direct sin/cos at every multiple of 32 (error a few ulp); a jump re-anchors at the
+/// multiple of 32 below, so each k gets the same bits however it is reached. Used where a band
+/// of orders needs only some k.
+struct PhaseWalk {
+    phi0: f64,
+    step: Complex64,
+    next: usize,
+    w: Complex64,
 }
 
-/// The azimuthal phases of one ring for orders m ≤ lmax: none when its first pixel sits at
-/// φ = 0; for a ring of n pixels starting at φ0 = π/n, e^{i m φ0} = e^{i k φ0} (−1)^{⌊m/n⌋}
-/// with k = m mod n (since n φ0 = π), from the table of e^{i k φ0}.
-struct RingPhases {
-    /// e^{i k φ0} for k < min(n, lmax + 1); empty for an unshifted ring.
-    table: Vec<Complex64>,
-    shifted: bool,
-    pixel_count: usize,
-}
-
-impl RingPhases {
-    fn new(ring: &Ring, lmax: usize) -> Self {
-        let n = ring.pixel_count;
-        Self {
-            table: if ring.half_pixel_shift {
-                phase_table(ring.phi0, n.min(lmax + 1))
-            } else {
-                Vec::new()
-            },
-            shifted: ring.half_pixel_shift,
-            pixel_count: n,
+impl PhaseWalk {
+    fn new(phi0: f64) -> Self {
+        PhaseWalk {
+            phi0,
+            step: Complex64::from_polar(1.0, phi0),
+            next: 0,
+            w: Complex64::from_polar(1.0, 0.0 * phi0),
         }
     }
 
-    /// g·e^{i m φ0} (synthesis), or g·e^{−i m φ0} when `conjugate` (analysis); g itself on an
-    /// unshifted ring.
-    fn shift(&self, g: Complex64, m: usize, conjugate: bool) -> Complex64 {
-        if !self.shifted {
-            return g;
+    fn at(&mut self, k: usize) -> Complex64 {
+        if k != self.next {
+            let anchor = k - k % 32;
+            self.w = Complex64::from_polar(1.0, anchor as f64 * self.phi0);
+            for _ in anchor..k {
+                self.w *= self.step;
+            }
         }
-        let n = self.pixel_count;
-        let phase = self.table[m % n];
+        let value = self.w;
+        self.next = k + 1;
+        if self.next.is_multiple_of(32) {
+            self.w = Complex64::from_polar(1.0, self.next as f64 * self.phi0);
+        } else {
+            self.w *= self.step;
+        }
+        value
+    }
+
+    /// g·e^{i m φ0} (synthesis), or g·e^{−i m φ0} when `conjugate` (analysis), on a ring of n
+    /// pixels starting at φ0 = π/n: e^{i m φ0} = e^{i k φ0} (−1)^{⌊m/n⌋} with k = m mod n,
+    /// since n φ0 = π.
+    fn shift(&mut self, g: Complex64, m: usize, n: usize, conjugate: bool) -> Complex64 {
+        let phase = self.at(m % n);
         let mut g = g;
         g *= if conjugate { phase.conj() } else { phase };
         if (m / n) % 2 == 1 {
@@ -283,12 +287,10 @@ impl HarmonicTransform {
         }
         let lmax = self.lmax;
         let stride = 2 * self.pairs.len();
-        // Legendre stage: ring sums F_m for every ring, m-major.
-        let mut sums = vec![Complex64::new(0.0, 0.0); (lmax + 1) * stride];
-        sums.par_chunks_mut(stride)
-            .enumerate()
-            .for_each(|(m, out)| self.synthesis_order(m, alm.order(m), out));
-        // Ring stage: fold, phase-shift and inverse real FFT, one ring at a time.
+        let band = self.orders_per_band(usize::MAX);
+        // Each ring's half spectrum is accumulated in place in its slice of the map, packed as
+        // [Re X_0, Re X_{n/2}, Re X_1, Im X_1, …] (the imaginary parts of the DC and Nyquist
+        // bins are dropped: they are set to zero before the inverse FFT anyway).
         let mut map = vec![0.0; self.pixel_count()];
         let mut ring_slices = Vec::with_capacity(self.ring_count());
         let mut rest: &mut [f64] = &mut map;
@@ -297,33 +299,75 @@ impl HarmonicTransform {
             ring_slices.push(head);
             rest = tail;
         }
+        // Ring sums F_m of every ring for one band of orders at a time, m-major.
+        let mut sums = vec![Complex64::new(0.0, 0.0); band.min(lmax + 1) * stride];
+        for m0 in (0..=lmax).step_by(band) {
+            let m1 = (m0 + band).min(lmax + 1);
+            let sums = &mut sums[..(m1 - m0) * stride];
+            // Legendre stage for the band's orders.
+            sums.par_chunks_mut(stride)
+                .enumerate()
+                .for_each(|(i, out)| {
+                    let m = m0 + i;
+                    self.synthesis_order(m, alm.order(m), out)
+                });
+            // Ring stage: fold and phase-shift the band's orders into each ring's spectrum
+            // (orders in increasing m, as in a single pass over all of them).
+            let sums = &*sums;
+            ring_slices
+                .par_iter_mut()
+                .enumerate()
+                .for_each(|(q, values)| {
+                    let ring = &self.geometry.rings()[q];
+                    let n = ring.pixel_count;
+                    let half = n / 2;
+                    let slot = self.slot(q);
+                    let mut phases = PhaseWalk::new(ring.phi0);
+                    let mut add = |k: usize, g: Complex64| {
+                        if k == 0 {
+                            values[0] += g.re;
+                        } else if k == half {
+                            values[1] += g.re;
+                        } else {
+                            values[2 * k] += g.re;
+                            values[2 * k + 1] += g.im;
+                        }
+                    };
+                    for m in m0..m1 {
+                        let f = sums[(m - m0) * stride + slot];
+                        let k = m % n;
+                        let g = if ring.half_pixel_shift {
+                            phases.shift(f, m, n, false)
+                        } else {
+                            f
+                        };
+                        if k <= half {
+                            add(k, g);
+                        }
+                        if m > 0 {
+                            let k2 = (n - k) % n;
+                            if k2 <= half {
+                                add(k2, g.conj());
+                            }
+                        }
+                    }
+                });
+        }
+        drop(sums);
+        // Inverse real FFT of each ring, in place.
         ring_slices
             .into_par_iter()
             .enumerate()
             .for_each(|(q, values)| {
-                let ring = &self.geometry.rings()[q];
-                let n = ring.pixel_count;
+                let n = values.len();
                 let half = n / 2;
-                let slot = self.slot(q);
-                let phases = RingPhases::new(ring, lmax);
                 let mut spectrum = vec![Complex64::new(0.0, 0.0); half + 1];
-                for m in 0..=lmax {
-                    let f = sums[m * stride + slot];
-                    let k = m % n;
-                    let g = phases.shift(f, m, false);
-                    if k <= half {
-                        spectrum[k] += g;
-                    }
-                    if m > 0 {
-                        let k2 = (n - k) % n;
-                        if k2 <= half {
-                            spectrum[k2] += g.conj();
-                        }
-                    }
-                }
                 // Hermitian: the DC and Nyquist bins are real (n is always even).
-                spectrum[0].im = 0.0;
-                spectrum[half].im = 0.0;
+                spectrum[0] = Complex64::new(values[0], 0.0);
+                spectrum[half] = Complex64::new(values[1], 0.0);
+                for (k, x) in spectrum.iter_mut().enumerate().take(half).skip(1) {
+                    *x = Complex64::new(values[2 * k], values[2 * k + 1]);
+                }
                 let plan = &self.inverse[q];
                 let mut scratch = plan.make_scratch_vec();
                 plan.process_with_scratch(&mut spectrum, values, &mut scratch)
@@ -365,58 +409,84 @@ impl HarmonicTransform {
     /// One quadrature pass A(map).
     fn analysis_once(&self, map: &[f64]) -> HarmonicCoefficients {
         let lmax = self.lmax;
-        let width = lmax + 1;
         let weight = 4.0 * std::f64::consts::PI / self.pixel_count() as f64;
-        // Ring stage: weighted azimuthal sums G_m of every ring, ring-major.
-        let mut sums = vec![Complex64::new(0.0, 0.0); self.ring_count() * width];
-        sums.par_chunks_mut(width).enumerate().for_each(|(q, out)| {
-            let ring = &self.geometry.rings()[q];
-            let n = ring.pixel_count;
-            let half = n / 2;
-            let plan = &self.forward[q];
-            let mut values = map[ring.first_pixel..ring.first_pixel + n].to_vec();
-            let mut spectrum = plan.make_output_vec();
-            let mut scratch = plan.make_scratch_vec();
-            plan.process_with_scratch(&mut values, &mut spectrum, &mut scratch)
-                .expect("FFT buffers sized from the plan");
-            let phases = RingPhases::new(ring, lmax);
-            for (m, o) in out.iter_mut().enumerate() {
-                let k = m % n;
-                let c = if k <= half {
-                    spectrum[k]
-                } else {
-                    spectrum[n - k].conj()
-                };
-                *o = phases.shift(c, m, true) * weight;
-            }
-        });
-        // Legendre stage: one order m per task, writing its own slice of the coefficients.
+        let rings = self.geometry.rings();
         let mut alm = HarmonicCoefficients::zeros(lmax);
         let mut order_slices = Vec::with_capacity(lmax + 1);
         let mut rest: &mut [Complex64] = alm.as_mut_slice();
         for m in 0..=lmax {
             let (head, tail) = rest.split_at_mut(lmax + 1 - m);
-            order_slices.push(head);
+            order_slices.push(Some(head));
             rest = tail;
         }
+        // Each band repeats the real FFT of every ring (cheaper than keeping all their
+        // spectra, which would be as large as the map): few, larger bands.
+        let band = self.orders_per_band(ANALYSIS_MAX_BANDS);
         let last_ring = self.ring_count() - 1;
         let npairs = self.pairs.len();
-        order_slices
-            .into_par_iter()
-            .enumerate()
-            .for_each(|(m, out)| {
-                let ring_sums = |p: usize| {
-                    let north = sums[p * width + m];
-                    let south = if p == npairs - 1 && last_ring - p == p {
-                        Complex64::new(0.0, 0.0)
+        // Weighted azimuthal sums G_m of every ring for one band of orders, ring-major.
+        let mut sums = vec![Complex64::new(0.0, 0.0); self.ring_count() * band.min(lmax + 1)];
+        for m0 in (0..=lmax).step_by(band) {
+            let m1 = (m0 + band).min(lmax + 1);
+            let width = m1 - m0;
+            let sums = &mut sums[..self.ring_count() * width];
+            // Ring stage: fold and phase-shift each ring's spectrum onto the band's orders.
+            sums.par_chunks_mut(width).enumerate().for_each(|(q, out)| {
+                let ring = &rings[q];
+                let n = ring.pixel_count;
+                let half = n / 2;
+                let plan = &self.forward[q];
+                let mut values = map[ring.first_pixel..ring.first_pixel + n].to_vec();
+                let mut spectrum = plan.make_output_vec();
+                let mut scratch = plan.make_scratch_vec();
+                plan.process_with_scratch(&mut values, &mut spectrum, &mut scratch)
+                    .expect("FFT buffers sized from the plan");
+                let mut phases = PhaseWalk::new(ring.phi0);
+                for (o, m) in out.iter_mut().zip(m0..m1) {
+                    let k = m % n;
+                    let c = if k <= half {
+                        spectrum[k]
                     } else {
-                        sums[(last_ring - p) * width + m]
+                        spectrum[n - k].conj()
                     };
-                    (north, south)
-                };
-                self.analysis_order(m, &ring_sums, out);
+                    let g = if ring.half_pixel_shift {
+                        phases.shift(c, m, n, true)
+                    } else {
+                        c
+                    };
+                    *o = g * weight;
+                }
             });
+            // Legendre stage: one order m per task, writing its own slice of the coefficients.
+            let sums = &*sums;
+            order_slices[m0..m1]
+                .par_iter_mut()
+                .enumerate()
+                .for_each(|(i, out)| {
+                    let m = m0 + i;
+                    let out = out.take().expect("each order is visited once");
+                    let ring_sums = |p: usize| {
+                        let north = sums[p * width + i];
+                        let south = if p == npairs - 1 && last_ring - p == p {
+                            Complex64::new(0.0, 0.0)
+                        } else {
+                            sums[(last_ring - p) * width + i]
+                        };
+                        (north, south)
+                    };
+                    self.analysis_order(m, &ring_sums, out);
+                });
+        }
         alm
+    }
+
+    /// Orders per band in the banded stages: as many as keep one band's ring sums near
+    /// [`BAND_BYTES`] (at least one), but no more than `max_bands` bands in all.
+    fn orders_per_band(&self, max_bands: usize) -> usize {
+        let per_order = self.ring_count() * std::mem::size_of::<Complex64>();
+        (BAND_BYTES / per_order)
+            .max(1)
+            .max((self.lmax + 1).div_ceil(max_bands))
     }
 
     fn synthesis_order(&self, m: usize, alm: &[Complex64], out: &mut [Complex64]) {
@@ -525,6 +595,44 @@ mod fused {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// e^{ikφ0} for k = 0 … count − 1 by repeated multiplication, re-anchored with a direct
+    /// sin/cos every 32 steps (error a few ulp).
+    fn phase_table(phi0: f64, count: usize) -> Vec<Complex64> {
+        let step = Complex64::from_polar(1.0, phi0);
+        let mut out = Vec::with_capacity(count);
+        let mut w = Complex64::new(1.0, 0.0);
+        for k in 0..count {
+            if k % 32 == 0 {
+                w = Complex64::from_polar(1.0, k as f64 * phi0);
+            }
+            out.push(w);
+            w *= step;
+        }
+        out
+    }
+
+    // The walk reached in bands (jumps forward, back and across anchors) gives the bits of the
+    // sequential table for every k.
+    #[test]
+    fn phase_walk_matches_the_sequential_table_bit_for_bit() {
+        let phi0 = std::f64::consts::PI / 12.0;
+        let table = phase_table(phi0, 200);
+        let mut walk = PhaseWalk::new(phi0);
+        let visits = (0..70)
+            .chain(5..40)
+            .chain(150..200)
+            .chain(33..35)
+            .chain(0..3);
+        for k in visits {
+            let (a, b) = (walk.at(k), table[k]);
+            assert_eq!(
+                (a.re.to_bits(), a.im.to_bits()),
+                (b.re.to_bits(), b.im.to_bits()),
+                "k={k}"
+            );
+        }
+    }
 
     // Y_00 = 1/√(4π): a_00 = √(4π) is the constant map 1, and equal-weight quadrature of a
     // constant recovers a_00 exactly up to rounding (Σ_p (4π/Npix)·1·Y_00 = √(4π)).
