@@ -9,9 +9,7 @@ use planisphere::simulate::skies::SkyRecipe;
 use planisphere::sky::skymap::UNSEEN;
 use planisphere::{Footprint, Ordering, SkyMap, SkyMapOf};
 
-fn bits<'v>(v: impl IntoIterator<Item = &'v f64>) -> Vec<u64> {
-    v.into_iter().map(|x| x.to_bits()).collect()
-}
+use sphere_support::{bits, cross_bits};
 
 #[test]
 fn borrowing_map_with_bad_pixels_measures_bit_for_bit_as_its_owned_copy() {
@@ -51,14 +49,7 @@ fn borrowing_map_with_bad_pixels_measures_bit_for_bit_as_its_owned_copy() {
     assert_eq!(bits(&a.vector()), bits(&b.vector()));
     let pair_owned = m.measure_pair(&owned, &owned_b, &footprint).unwrap();
     let pair_borrowed = m.measure_pair(&borrowed, &borrowed_b, &footprint).unwrap();
-    let cross = |p: &planisphere::measure::measurement::PairStatistics| {
-        p.cross
-            .coefficients
-            .iter()
-            .map(|c| c.value.to_bits())
-            .collect::<Vec<_>>()
-    };
-    assert_eq!(cross(&pair_owned), cross(&pair_borrowed));
+    assert_eq!(cross_bits(&pair_owned), cross_bits(&pair_borrowed));
     assert_eq!(
         bits(&pair_owned.second.vector()),
         bits(&pair_borrowed.second.vector())

@@ -14,9 +14,7 @@ use planisphere::sky::skymap::UNSEEN;
 use planisphere::tiles::sampling::SamplingMethod;
 use planisphere::{Direction, Footprint, FootprintOf, Ordering, Pixelization, SkyMap};
 
-fn bits<'v>(v: impl IntoIterator<Item = &'v f64>) -> Vec<u64> {
-    v.into_iter().map(|x| x.to_bits()).collect()
-}
+use sphere_support::{bits, cross_bits};
 
 /// A binary mask of the cap above 20° latitude with two circular holes; UNSEEN over part of
 /// the unobserved sky and NaN at a few pixels (both weigh 0), RING ordering.
@@ -188,14 +186,7 @@ fn borrowed_tapered_mask_measures_bit_for_bit_as_its_owned_copy_for_every_sampli
             );
             assert_eq!(bits(&pa.first.vector()), bits(&pb.first.vector()));
             assert_eq!(bits(&pa.second.vector()), bits(&pb.second.vector()));
-            let cross = |p: &planisphere::measure::measurement::PairStatistics| {
-                p.cross
-                    .coefficients
-                    .iter()
-                    .map(|c| c.value.to_bits())
-                    .collect::<Vec<_>>()
-            };
-            assert_eq!(cross(&pa), cross(&pb));
+            assert_eq!(cross_bits(&pa), cross_bits(&pb));
         }
     }
 }

@@ -124,3 +124,17 @@ pub fn flat_sets(
         })
         .collect()
 }
+
+/// The bit patterns of a run of values, for bit-for-bit comparisons.
+pub fn bits<'v>(v: impl IntoIterator<Item = &'v f64>) -> Vec<u64> {
+    v.into_iter().map(|x| x.to_bits()).collect()
+}
+
+/// The bit patterns of a pair measurement's cross coefficients.
+pub fn cross_bits(p: &planisphere::measure::measurement::PairStatistics) -> Vec<u64> {
+    p.cross
+        .coefficients
+        .iter()
+        .map(|c| c.value.to_bits())
+        .collect()
+}
