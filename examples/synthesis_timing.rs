@@ -57,10 +57,10 @@ fn measure(n: usize, iterations: u64, cropping: bool, target: &[f64], pixel: f64
     Timing {
         forward,
         gradient,
-        per_iteration: total / out.iterations.max(1) as f64,
-        iterations: out.iterations,
-        evaluations: out.evaluations,
-        loss_ratio: out.final_loss / out.initial_loss,
+        per_iteration: total / out.report.iterations.max(1) as f64,
+        iterations: out.report.iterations,
+        evaluations: out.report.evaluations,
+        loss_ratio: out.report.final_loss / out.report.initial_loss,
     }
 }
 
@@ -183,15 +183,16 @@ fn sphere() {
         t.values.len()
     );
     // The wall time of a synthesis includes the loss at the start and at the end.
-    let per_iteration = out.evaluations as f64 * gradient / out.iterations.max(1) as f64;
+    let per_iteration =
+        out.report.evaluations as f64 * gradient / out.report.iterations.max(1) as f64;
     println!("| set-up (s) | measure, engine (s) | forward (s) | loss + gradient (s) | gradient / forward | iterations | evaluations | s / iteration (evaluations × loss + gradient) | per tile (s) | synthesis wall (s) | final / initial loss |");
     println!("|---|---|---|---|---|---|---|---|---|---|---|");
     println!(
         "| {setup:.2} | {measure:.2} | {forward:.2} | {gradient:.2} | {:.2} | {} | {} | {per_iteration:.2} | {:.3} | {total:.1} | {:.2e} |",
         gradient / forward,
-        out.iterations,
-        out.evaluations,
+        out.report.iterations,
+        out.report.evaluations,
         per_iteration / s.tile_count() as f64,
-        out.final_loss / out.initial_loss
+        out.report.final_loss / out.report.initial_loss
     );
 }

@@ -64,11 +64,11 @@ fn full_set_run() -> &'static Run {
         let outcome = synthesis.synthesise(&t).unwrap();
         println!(
             "full set: loss {:.3e} -> {:.3e} in {} iterations ({}), max relative deviation {:.2e}, reflected {}",
-            outcome.initial_loss,
-            outcome.final_loss,
-            outcome.iterations,
-            outcome.termination,
-            outcome.max_relative_deviation,
+            outcome.report.initial_loss,
+            outcome.report.final_loss,
+            outcome.report.iterations,
+            outcome.report.termination,
+            outcome.report.max_relative_deviation,
             outcome.reflected
         );
         let gaussian = gaussian_counterpart(&target, N, 99).unwrap();
@@ -86,7 +86,7 @@ fn full_set_run() -> &'static Run {
 #[test]
 fn synthesised_field_reproduces_full_set_within_one_percent() {
     let run = full_set_run();
-    assert!(run.outcome.final_loss < run.outcome.initial_loss);
+    assert!(run.outcome.report.final_loss < run.outcome.report.initial_loss);
     let names = run.synthesis.statistic_names();
     let t = run.synthesis.target_from_map(&run.target).unwrap();
     let s = run.synthesis.statistics(&run.outcome.field).unwrap();
@@ -205,17 +205,20 @@ fn synthesised_field_reproduces_summary_within_one_percent() {
     let out = s.synthesise(&t).unwrap();
     println!(
         "summary: loss {:.3e} -> {:.3e} in {} iterations, max relative deviation {:.2e}",
-        out.initial_loss, out.final_loss, out.iterations, out.max_relative_deviation
+        out.report.initial_loss,
+        out.report.final_loss,
+        out.report.iterations,
+        out.report.max_relative_deviation
     );
     for ((name, v), (tv, sg)) in s
         .statistic_names()
         .iter()
-        .zip(&out.statistics)
+        .zip(&out.report.statistics)
         .zip(t.values.iter().zip(&t.sigma))
     {
         println!("{name:<24} target {tv:+.5e} got {v:+.5e} sigma {sg:.3e}");
     }
-    assert!(out.max_relative_deviation <= 0.01);
+    assert!(out.report.max_relative_deviation <= 0.01);
 }
 
 #[test]

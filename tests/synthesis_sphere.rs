@@ -209,13 +209,13 @@ fn synthesis_from_white_noise_reproduces_the_pooled_coefficients() {
         target.values.len(),
         s.variables().len(),
         s.tile_count(),
-        outcome.iterations,
-        outcome.initial_loss,
-        outcome.final_loss
+        outcome.report.iterations,
+        outcome.report.initial_loss,
+        outcome.report.final_loss
     );
     assert!(before > 0.05, "the start is already close: {before}");
     assert!(after <= 0.01, "max relative deviation {after}");
-    assert!((outcome.max_relative_deviation - after).abs() < 1e-9);
+    assert!((outcome.report.max_relative_deviation - after).abs() < 1e-9);
 }
 
 #[test]
@@ -261,8 +261,8 @@ fn same_seed_gives_identical_bits_on_any_thread_count() {
     assert_eq!(bits(&a.start), bits(&b.start));
     assert_eq!(bits(&a.map), bits(&b.map));
     assert_eq!(bits(&b.map), bits(&c.map));
-    assert_eq!(a.final_loss.to_bits(), b.final_loss.to_bits());
-    assert!(a.final_loss < a.initial_loss);
+    assert_eq!(a.report.final_loss.to_bits(), b.report.final_loss.to_bits());
+    assert!(a.report.final_loss < a.report.initial_loss);
 }
 
 #[test]

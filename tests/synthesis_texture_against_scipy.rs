@@ -154,9 +154,9 @@ fn flat_default_synthesis_has_lognormal_skewness_kurtosis_and_peaks() {
     let outcome = synthesis.synthesise(&t).unwrap();
     println!(
         "flat: loss {:.3e} -> {:.3e} after {} iterations",
-        outcome.initial_loss, outcome.final_loss, outcome.iterations
+        outcome.report.initial_loss, outcome.report.final_loss, outcome.report.iterations
     );
-    assert!(outcome.final_loss < 1e-3 * outcome.initial_loss);
+    assert!(outcome.report.final_loss < 1e-3 * outcome.report.initial_loss);
     let (_, _, s, k) = one_point_moments(&outcome.field);
     let p = peak_counts(&outcome.field, n, &THRESHOLDS);
     check_texture(
@@ -195,11 +195,11 @@ fn sphere_run(scales: usize, tile_pixels: Option<usize>) -> [(f64, f64, Vec<usiz
         "sphere J = {scales}: {} tiles, {} pixels, loss {:.3e} -> {:.3e} after {} iterations",
         synthesis.tile_count(),
         synthesis.variables().len(),
-        outcome.initial_loss,
-        outcome.final_loss,
-        outcome.iterations
+        outcome.report.initial_loss,
+        outcome.report.final_loss,
+        outcome.report.iterations
     );
-    assert!(outcome.final_loss < 1e-3 * outcome.initial_loss);
+    assert!(outcome.report.final_loss < 1e-3 * outcome.report.initial_loss);
     let describe = |m: &SkyMap| {
         let values = values_in(m, &cap).unwrap();
         let (_, _, s, k) = one_point_moments(&values);

@@ -409,9 +409,9 @@ fn cropped_synthesis_reproduces_full_set_within_one_percent() {
     let out = s.synthesise(&t).unwrap();
     println!(
         "cropped full set: loss {:.3e} -> {:.3e} in {} iterations ({}), max relative deviation {:.2e}",
-        out.initial_loss, out.final_loss, out.iterations, out.termination, out.max_relative_deviation
+        out.report.initial_loss, out.report.final_loss, out.report.iterations, out.report.termination, out.report.max_relative_deviation
     );
-    assert!(out.max_relative_deviation <= 0.01);
+    assert!(out.report.max_relative_deviation <= 0.01);
 }
 
 /// The sign-sensitive sums (field–envelope E_{j,l} and the one-point E_pix = Σ w I|I|) along

@@ -49,30 +49,9 @@ pub struct InspectReport {
     pub columns: Vec<String>,
     /// `full sky` or `partial sky`.
     pub coverage: &'static str,
-    /// NSIDE.
-    pub nside: u32,
-    /// `RING` or `NESTED`.
-    pub ordering: String,
-    /// 12·NSIDE².
-    pub npix: u64,
-    /// Pixels with a usable value.
-    pub valid_pixels: u64,
-    /// valid_pixels / npix.
-    pub valid_fraction: f64,
-    /// Mean over valid pixels.
-    pub mean: Option<f64>,
-    /// Root mean square (about zero) over valid pixels.
-    pub rms: Option<f64>,
-    /// Minimum over valid pixels.
-    pub min: Option<f64>,
-    /// Maximum over valid pixels.
-    pub max: Option<f64>,
-    /// COORDSYS, when given.
-    pub coordsys: Option<String>,
-    /// Pixel solid angle 4π/Npix in steradians.
-    pub pixel_area_sr: f64,
-    /// Mean pixel spacing √(4π/Npix) in arcminutes (common practice).
-    pub pixel_size_arcmin: f64,
+    /// NSIDE, ordering, valid pixels, moments, coordinates and pixel size.
+    #[serde(flatten)]
+    pub map: MapSummary,
     /// Assumptions made while reading.
     pub warnings: Vec<String>,
 }
@@ -103,18 +82,7 @@ pub fn report(args: &InspectArgs) -> Result<InspectReport> {
             Coverage::FullSky => "full sky",
             Coverage::Partial => "partial sky",
         },
-        nside: summary.nside,
-        ordering: summary.ordering.fits_name().to_string(),
-        npix: summary.npix,
-        valid_pixels: summary.valid_pixels,
-        valid_fraction: summary.valid_fraction,
-        mean: summary.mean,
-        rms: summary.rms,
-        min: summary.min,
-        max: summary.max,
-        coordsys: summary.coordsys.clone(),
-        pixel_area_sr: summary.pixel_area_sr,
-        pixel_size_arcmin: summary.mean_spacing_arcmin,
+        map: summary,
         warnings: header.warnings.clone(),
     })
 }
@@ -136,7 +104,7 @@ fn number(x: Option<f64>) -> String {
 
 /// The report as aligned text lines.
 pub fn render_text(r: &InspectReport) -> String {
-    let s = r;
+    let s = &r.map;
     let mut out = String::new();
     let mut line = |label: &str, value: String| {
         out.push_str(&format!("{label:<14}{value}\n"));
@@ -166,7 +134,7 @@ pub fn render_text(r: &InspectReport) -> String {
     );
     line("HDU", r.hdu.to_string());
     line("NSIDE", s.nside.to_string());
-    line("ordering", s.ordering.to_string());
+    line("ordering", s.ordering.fits_name().to_string());
     line("coverage", r.coverage.to_string());
     line("pixels", s.npix.to_string());
     line(
@@ -192,7 +160,7 @@ pub fn render_text(r: &InspectReport) -> String {
         "pixel size",
         format!(
             "{:.4} arcmin (mean spacing; pixel area {:.6e} sr)",
-            r.pixel_size_arcmin, s.pixel_area_sr
+            s.mean_spacing_arcmin, s.pixel_area_sr
         ),
     );
     for w in &r.warnings {

@@ -28,8 +28,8 @@ use crate::synthesis::sphere::{
     gaussian_sky, peak_counts_in, values_in, SphereSynthesis, SphereTarget,
 };
 use crate::synthesis::{
-    coefficients_from_json, gaussian_counterpart, one_point_moments, FlatSynthesis, StartField,
-    StatisticChoice, SynthesisSettings,
+    coefficients_from_json, gaussian_counterpart, one_point_moments, FlatSynthesis,
+    OptimisationReport, StartField, StatisticChoice, SynthesisSettings,
 };
 use crate::tiles::sampling::TileSampler;
 use ndarray::Array2;
@@ -476,13 +476,7 @@ fn run_flat(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
             ],
         )?,
     }
-    print_convergence(
-        (outcome.initial_loss, outcome.final_loss),
-        outcome.iterations,
-        &outcome.termination,
-        target.values.len(),
-        outcome.max_relative_deviation,
-    );
+    print_convergence(&outcome.report, target.values.len());
     println!("synthesised: skewness {skew:.4}, excess kurtosis {kurt:.4}");
     println!("field: {}", args.output.display());
     println!("picture: {}", picture.display());
@@ -629,13 +623,7 @@ fn run_sphere(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
             write_pictures_in_a_row(picture, &pictures)?;
         }
     }
-    print_convergence(
-        (outcome.initial_loss, outcome.final_loss),
-        outcome.iterations,
-        &outcome.termination,
-        target.values.len(),
-        outcome.max_relative_deviation,
-    );
+    print_convergence(&outcome.report, target.values.len());
     println!("map: {}", args.output.display());
     println!("picture: {}", picture.display());
     Ok(())
@@ -751,18 +739,15 @@ fn draw_beside_target(
 }
 
 /// Prints the loss at the start and the end, the iterations and why they stopped, and the
-/// largest normalised deviation over the matched statistics.
-fn print_convergence(
-    (initial_loss, final_loss): (f64, f64),
-    iterations: u64,
-    termination: &str,
-    statistics: usize,
-    max_relative_deviation: f64,
-) {
+/// largest normalised deviation over the `statistics` matched statistics.
+fn print_convergence(report: &OptimisationReport, statistics: usize) {
+    let r = report;
     println!(
-        "loss {initial_loss:.4e} -> {final_loss:.4e} after {iterations} iterations ({termination})"
+        "loss {:.4e} -> {:.4e} after {} iterations ({})",
+        r.initial_loss, r.final_loss, r.iterations, r.termination
     );
     println!(
-        "max normalised deviation |s - t|/sigma over {statistics} statistics: {max_relative_deviation:.4e}"
+        "max normalised deviation |s - t|/sigma over {statistics} statistics: {:.4e}",
+        r.max_relative_deviation
     );
 }

@@ -33,21 +33,43 @@ pub struct SkyMapOf<'a> {
     pub coordsys: Option<String>,
 }
 
-/// What a user checks first about a map.
+/// What a user checks first about a map (`inspect` prints it; its JSON keys are the field
+/// names, the ordering as its FITS keyword value).
 #[derive(Debug, Clone, serde::Serialize)]
 pub struct MapSummary {
+    /// NSIDE.
     pub nside: u32,
+    /// `RING` or `NESTED`.
+    #[serde(serialize_with = "ordering_fits_name")]
     pub ordering: Ordering,
+    /// 12·NSIDE².
     pub npix: u64,
+    /// Pixels with a usable value.
     pub valid_pixels: u64,
+    /// valid_pixels / npix.
     pub valid_fraction: f64,
+    /// Mean over valid pixels.
     pub mean: Option<f64>,
+    /// Root mean square (about zero) over valid pixels.
     pub rms: Option<f64>,
+    /// Minimum over valid pixels.
     pub min: Option<f64>,
+    /// Maximum over valid pixels.
     pub max: Option<f64>,
+    /// COORDSYS, when given.
     pub coordsys: Option<String>,
+    /// Pixel solid angle 4π/Npix in steradians.
     pub pixel_area_sr: f64,
+    /// Mean pixel spacing √(4π/Npix) in arcminutes (common practice).
+    #[serde(rename = "pixel_size_arcmin")]
     pub mean_spacing_arcmin: f64,
+}
+
+fn ordering_fits_name<S: serde::Serializer>(
+    o: &Ordering,
+    s: S,
+) -> std::result::Result<S::Ok, S::Error> {
+    s.serialize_str(o.fits_name())
 }
 
 /// The error of `count` values given for `pixelization`, if it needs another number.

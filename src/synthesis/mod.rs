@@ -201,20 +201,17 @@ pub struct SynthesisTarget {
     pub third_moment_sign: Option<f64>,
 }
 
-/// Result of a synthesis.
+/// How a synthesis converged, flat or on the sphere: the statistics reached and the optimiser's
+/// record.
 #[derive(Debug, Clone, PartialEq)]
-pub struct SynthesisOutcome {
-    /// The synthesised field, row-major n × n.
-    pub field: Vec<f64>,
-    /// The start field.
-    pub start: Vec<f64>,
-    /// Statistics of the synthesised field (same order as the target's).
+pub struct OptimisationReport {
+    /// Statistics of the result (same order as the target's).
     pub statistics: Vec<f64>,
-    /// Loss at the start field.
+    /// Loss at the start.
     pub initial_loss: f64,
-    /// Loss of the returned field.
+    /// Loss of the result.
     pub final_loss: f64,
-    /// Loss after every L-BFGS iteration.
+    /// Best loss after every L-BFGS iteration.
     pub loss_history: Vec<f64>,
     /// Iterations done.
     pub iterations: u64,
@@ -225,6 +222,40 @@ pub struct SynthesisOutcome {
     /// max_i |s_i − t_i| / σ_i over the matched statistics (with the relative normalisation:
     /// the maximum relative deviation, correlations measured against their bound).
     pub max_relative_deviation: f64,
+}
+
+impl OptimisationReport {
+    /// The report of `run`, which started at `initial_loss` and ended at `final_loss` with
+    /// `statistics`, matched against `target` with widths `sigma`.
+    pub(crate) fn new(
+        run: Minimisation,
+        (initial_loss, final_loss): (f64, f64),
+        statistics: Vec<f64>,
+        (target, sigma): (&[f64], &[f64]),
+    ) -> Self {
+        let max_relative_deviation = max_relative_deviation(&statistics, target, sigma);
+        Self {
+            statistics,
+            initial_loss,
+            final_loss,
+            loss_history: run.history,
+            iterations: run.iterations,
+            evaluations: run.evaluations,
+            termination: run.termination,
+            max_relative_deviation,
+        }
+    }
+}
+
+/// Result of a synthesis.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SynthesisOutcome {
+    /// The synthesised field, row-major n × n.
+    pub field: Vec<f64>,
+    /// The start field.
+    pub start: Vec<f64>,
+    /// How it converged.
+    pub report: OptimisationReport,
     /// True when the field was reflected to match the target's skewness sign.
     pub reflected: bool,
 }
@@ -818,9 +849,7 @@ impl FlatSynthesis {
             Ok((loss, grad_f.iter().map(|g| g * sd).collect()))
         };
         let run = minimise(&evaluate, x0, initial_loss, &self.settings)?;
-        let (best_x, history, done, termination) =
-            (run.best, run.history, run.iterations, run.termination);
-        let mut field: Vec<f64> = best_x.iter().map(|x| mu + sd * x).collect();
+        let mut field: Vec<f64> = run.best.iter().map(|x| mu + sd * x).collect();
         let mut reflected = false;
         if self.settings.match_sign && !self.settings.field_envelope_correlation {
             if let Some(sign) = target.third_moment_sign {
@@ -833,19 +862,15 @@ impl FlatSynthesis {
         }
         let statistics = self.statistics(&field)?;
         let (final_loss, _) = self.loss_and_gradient(target, &field)?;
-        let max_relative_deviation =
-            max_relative_deviation(&statistics, &target.values, &target.sigma);
         Ok(SynthesisOutcome {
             field,
             start,
-            statistics,
-            initial_loss,
-            final_loss,
-            iterations: done,
-            loss_history: history,
-            evaluations: run.evaluations,
-            termination,
-            max_relative_deviation,
+            report: OptimisationReport::new(
+                run,
+                (initial_loss, final_loss),
+                statistics,
+                (&target.values, &target.sigma),
+            ),
             reflected,
         })
     }

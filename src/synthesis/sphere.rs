@@ -84,7 +84,7 @@
 //! straddle its edge.
 
 use super::{
-    correlation_bounds, max_relative_deviation, minimise, relative_loss, Normalisation, StartField,
+    correlation_bounds, minimise, relative_loss, Normalisation, OptimisationReport, StartField,
     StatisticChoice, SummaryMap, SynthesisSettings,
 };
 use crate::harmonics::spectrum::AngularSpectrum;
@@ -132,22 +132,9 @@ pub struct SphereSynthesisOutcome {
     pub map: SkyMap,
     /// The start map.
     pub start: SkyMap,
-    /// Matched statistics of the synthesised map (order of the target's).
-    pub statistics: Vec<f64>,
-    /// Loss at the start map.
-    pub initial_loss: f64,
-    /// Loss of the returned map.
-    pub final_loss: f64,
-    /// Best loss after every L-BFGS iteration.
-    pub loss_history: Vec<f64>,
-    /// Iterations done.
-    pub iterations: u64,
-    /// Loss-and-gradient evaluations.
-    pub evaluations: u64,
-    /// Why the optimiser stopped.
-    pub termination: String,
-    /// max_k |s_k − t_k| / σ_k (the largest relative deviation with σ = |t|).
-    pub max_relative_deviation: f64,
+    /// How it converged (its statistics are the matched statistics of `map`; the largest
+    /// relative deviation uses σ = |t|).
+    pub report: OptimisationReport,
 }
 
 /// One tile's fixed pieces: taper, pooling weight and (when cached) its sampling operator and
@@ -829,19 +816,15 @@ impl SphereSynthesis {
         let values = with(&run.best);
         let (final_loss, _) = self.loss_and_gradient(target, &values)?;
         let statistics = self.statistics(&values)?;
-        let max_relative_deviation =
-            max_relative_deviation(&statistics, &target.values, &target.sigma);
         Ok(SphereSynthesisOutcome {
             map: SkyMap::new(self.geometry.pixelization(), values)?,
             start,
-            statistics,
-            initial_loss,
-            final_loss,
-            loss_history: run.history,
-            iterations: run.iterations,
-            evaluations: run.evaluations,
-            termination: run.termination,
-            max_relative_deviation,
+            report: OptimisationReport::new(
+                run,
+                (initial_loss, final_loss),
+                statistics,
+                (&target.values, &target.sigma),
+            ),
         })
     }
 }
