@@ -438,6 +438,60 @@ impl SummaryMap {
     }
 }
 
+/// Checks target coefficients against the `labels` of the transform (count, finite values,
+/// positive variance) and returns the target variance, coefficient 1.
+pub(crate) fn checked_target_variance(
+    coefficients: &[f64],
+    labels: &[CoefficientLabel],
+) -> Result<f64> {
+    if coefficients.len() != labels.len() {
+        return Err(Error::Mismatch(format!(
+            "{} coefficients given, J and L call for {}",
+            coefficients.len(),
+            labels.len()
+        )));
+    }
+    if let Some(i) = coefficients.iter().position(|v| !v.is_finite()) {
+        return Err(Error::Data(format!(
+            "target coefficient {} is not a finite number",
+            label_name(&labels[i])
+        )));
+    }
+    let variance = coefficients[1];
+    if variance.is_nan() || variance <= 0.0 {
+        return Err(Error::Data(format!(
+            "target variance must be positive, got {}",
+            crate::error::compact(variance)
+        )));
+    }
+    Ok(variance)
+}
+
+/// The matched statistics of the coefficients `c` (the order-0 mean dropped): all of them, or
+/// their orientation-harmonic summary when `summary` is given.
+pub(crate) fn matched_statistics(summary: Option<&SummaryMap>, c: &[f64]) -> Vec<f64> {
+    match summary {
+        None => c[1..].to_vec(),
+        Some(m) => m.values(c),
+    }
+}
+
+/// Adjoint of [`matched_statistics`]: ∂L/∂s ↦ ∂L/∂c.
+pub(crate) fn matched_statistics_adjoint(
+    summary: Option<&SummaryMap>,
+    c: &[f64],
+    ds: &[f64],
+) -> Vec<f64> {
+    match summary {
+        None => {
+            let mut dc = vec![0.0; c.len()];
+            dc[1..].copy_from_slice(ds);
+            dc
+        }
+        Some(m) => m.adjoint(c, ds),
+    }
+}
+
 fn label_name(label: &CoefficientLabel) -> String {
     label.name(crate::scattering::layout::CoefficientSpelling::SpelledOut)
 }
@@ -593,21 +647,11 @@ impl FlatSynthesis {
     }
 
     fn select(&self, coefficients: &[f64]) -> Vec<f64> {
-        match &self.summary {
-            None => coefficients[1..].to_vec(),
-            Some(m) => m.values(coefficients),
-        }
+        matched_statistics(self.summary.as_ref(), coefficients)
     }
 
     fn select_adjoint(&self, coefficients: &[f64], ds: &[f64]) -> Vec<f64> {
-        match &self.summary {
-            None => {
-                let mut dc = vec![0.0; coefficients.len()];
-                dc[1..].copy_from_slice(ds);
-                dc
-            }
-            Some(m) => m.adjoint(coefficients, ds),
-        }
+        matched_statistics_adjoint(self.summary.as_ref(), coefficients, ds)
     }
 
     fn scale_count(&self) -> usize {
@@ -679,30 +723,11 @@ impl FlatSynthesis {
     /// Target from full coefficients in the transform's layout (e.g. read by
     /// [`coefficients_from_json`]). The power-spectrum term cannot be used with it.
     pub fn target_from_coefficients(&self, coefficients: &[f64]) -> Result<SynthesisTarget> {
-        if coefficients.len() != self.transform.labels().len() {
-            return Err(Error::Mismatch(format!(
-                "{} coefficients given, J and L call for {}",
-                coefficients.len(),
-                self.transform.labels().len()
-            )));
-        }
+        let variance = checked_target_variance(coefficients, self.transform.labels())?;
         if self.power.is_some() || self.settings.field_envelope_correlation {
             return Err(Error::Setting(
                 "the power-spectrum and field-envelope terms need a target map, not a coefficient file".into(),
             ));
-        }
-        if let Some(i) = coefficients.iter().position(|v| !v.is_finite()) {
-            return Err(Error::Data(format!(
-                "target coefficient {} is not a finite number",
-                label_name(&self.transform.labels()[i])
-            )));
-        }
-        let variance = coefficients[1];
-        if variance.is_nan() || variance <= 0.0 {
-            return Err(Error::Data(format!(
-                "target variance must be positive, got {}",
-                crate::error::compact(variance)
-            )));
         }
         let values = self.select(coefficients);
         let sigma = self.sigma_for(&values, coefficients)?;

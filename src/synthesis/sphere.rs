@@ -84,8 +84,9 @@
 //! straddle its edge.
 
 use super::{
-    correlation_bounds, minimise, relative_loss, Normalisation, OptimisationReport, StartField,
-    StatisticChoice, SummaryMap, SynthesisSettings,
+    checked_target_variance, correlation_bounds, matched_statistics, matched_statistics_adjoint,
+    minimise, relative_loss, Normalisation, OptimisationReport, StartField, StatisticChoice,
+    SummaryMap, SynthesisSettings,
 };
 use crate::harmonics::spectrum::AngularSpectrum;
 use crate::harmonics::HarmonicTransform;
@@ -373,21 +374,11 @@ impl SphereSynthesis {
     }
 
     fn select(&self, c: &[f64]) -> Vec<f64> {
-        match &self.summary {
-            None => c[1..].to_vec(),
-            Some(m) => m.values(c),
-        }
+        matched_statistics(self.summary.as_ref(), c)
     }
 
     fn select_adjoint(&self, c: &[f64], ds: &[f64]) -> Vec<f64> {
-        match &self.summary {
-            None => {
-                let mut dc = vec![0.0; c.len()];
-                dc[1..].copy_from_slice(ds);
-                dc
-            }
-            Some(m) => m.adjoint(c, ds),
-        }
+        matched_statistics_adjoint(self.summary.as_ref(), c, ds)
     }
 
     fn check_map(&self, values: &[f64]) -> Result<()> {
@@ -670,24 +661,7 @@ impl SphereSynthesis {
         correlations: Vec<f64>,
         kurtosis: f64,
     ) -> Result<SphereTarget> {
-        let want = self.measurer.engine().labels().len();
-        if coefficients.len() != want {
-            return Err(Error::Mismatch(format!(
-                "{} coefficients given, J and L call for {want}",
-                coefficients.len()
-            )));
-        }
-        if let Some(i) = coefficients.iter().position(|v| !v.is_finite()) {
-            return Err(Error::Data(format!(
-                "target coefficient {i} is not a finite number"
-            )));
-        }
-        let variance = coefficients[1];
-        if variance.is_nan() || variance <= 0.0 {
-            return Err(Error::Data(format!(
-                "target variance must be positive, got {variance}"
-            )));
-        }
+        let variance = checked_target_variance(coefficients, self.measurer.engine().labels())?;
         let mut values = self.select(coefficients);
         values.extend(correlations);
         let sigma = self.sigma_for(&values, coefficients, kurtosis)?;
