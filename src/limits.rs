@@ -181,6 +181,16 @@ pub fn measurement_bytes(nside: u32, maps: usize) -> f64 {
     npix * (17.0 * maps as f64 + 32.0)
 }
 
+/// Estimated bytes to measure the spectra of `maps` maps (1, or 2 with a cross map) of NSIDE
+/// `nside` up to `lmax`: per map the read buffer, the values and the validity flags (17 bytes
+/// per pixel) and its a_ℓm (16 bytes × (ℓmax+1)(ℓmax+2)/2); the footprint's weights and a
+/// weighted work map (16 bytes per pixel).
+pub fn spectra_bytes(nside: u32, lmax: usize, maps: usize) -> f64 {
+    let npix = 12.0 * (nside as f64).powi(2);
+    let alm = (lmax as f64 + 1.0) * (lmax as f64 + 2.0) / 2.0;
+    maps as f64 * (17.0 * npix + 16.0 * alm) + 16.0 * npix
+}
+
 /// Is n a tile size the engine accepts: n = 2^k·m with m ∈ {1, 3, 5, 7, 9}, at least 8, and
 /// k ≥ 4 when m > 1 (so that the Fourier-cropped grids n/2^d stay even)? FFTs of these sizes
 /// factor into radices 2, 3, 5 and 7 (mixed-radix Cooley–Tukey, common practice).

@@ -1676,6 +1676,61 @@ fn a_map_too_large_to_measure_within_the_memory_limit_is_refused_with_the_estima
 }
 
 #[test]
+fn every_command_that_runs_out_of_memory_stops_with_one_line_and_exit_2() {
+    // under a small address-space limit (ulimit -v) each command that reads an NSIDE 1024 map
+    // (a 100 MB f64 column) either refuses it from its estimate or, where the estimate is
+    // missing or low, stops at the failed allocation: one line, exit code 2, no file written,
+    // never Rust's abort (exit 134 with a backtrace)
+    let f = Fixtures::new();
+    let bin = env!("CARGO_BIN_EXE_planisphere");
+    let big = f.path("map1024.fits");
+    let (code, stderr) = run(
+        &strings(&["sky", "--nside", "1024", "--lmax", "32", "-o", &big]),
+        f.dir.path(),
+    );
+    assert_eq!(code, Some(0), "{stderr}");
+    let cases: Vec<(&str, Vec<String>)> = vec![
+        (
+            "150000",
+            strings(&["spectra", &big, "--json", &f.path("s.json")]),
+        ),
+        ("150000", strings(&["tiles", &big])),
+        (
+            "150000",
+            strings(&[
+                "plot",
+                "tile-map",
+                &big,
+                "--statistic",
+                "mean",
+                "-o",
+                &f.path("t.png"),
+            ]),
+        ),
+        (
+            "150000",
+            strings(&["synthesize", "--target", &big, "-o", &f.path("s.fits")]),
+        ),
+        ("100000", strings(&["inspect", &big])),
+    ];
+    let before = snapshot(f.dir.path());
+    for (limit, args) in &cases {
+        let mut line = vec![
+            "-c".to_string(),
+            format!("ulimit -v {limit} && exec \"$0\" \"$@\""),
+            bin.to_string(),
+        ];
+        line.extend(args.iter().cloned());
+        let (code, stderr) = run_program("sh", &line, f.dir.path());
+        assert_refused(args, code, &stderr, "", &before, f.dir.path());
+        assert!(
+            stderr.contains("address-space limit (ulimit -v)"),
+            "{args:?}: {stderr}"
+        );
+    }
+}
+
+#[test]
 fn pair_ensemble_mistakes_are_refused_in_one_line() {
     // lists that do not pair up, a second list without its first, a correlation outside
     // [-1, 1], and pair and single ensembles mixed in one forecast or one directory

@@ -70,6 +70,15 @@ pub fn run(args: &SpectraArgs) -> Result<()> {
         crate::files::check_output_path(p)?;
     }
     crate::limits::check_harmonic_iterations(args.iterations)?;
+    let nside = crate::io::fits_io::HealpixFitsReader::open(&args.map)?
+        .header()
+        .nside;
+    let lmax = args.lmax.unwrap_or(2 * nside as usize);
+    crate::limits::check_lmax("--lmax", lmax, nside)?;
+    crate::limits::check_memory(
+        &format!("the spectra of a NSIDE {nside} map up to ℓ = {lmax}"),
+        crate::limits::spectra_bytes(nside, lmax, 1 + usize::from(args.cross.is_some())),
+    )?;
     let map = load_map(&args.map, &args.column)?;
     let other = match &args.cross {
         Some(p) => {
