@@ -230,8 +230,7 @@ impl<const L: usize> Lanes<L> {
             scale: [0; L],
             live: [0.0; L],
         };
-        for r in 0..L {
-            let p = pairs[r];
+        for (r, &p) in pairs.iter().enumerate() {
             let log2 = start.log2_norm
                 + start.sin_power * rings.log2_sin_half[p]
                 + start.cos_power * rings.log2_cos_half[p];
@@ -274,9 +273,9 @@ impl<const L: usize> Lanes<L> {
     /// One step: prev ← (a z + sign·b) cur − prev, then swap, so cur holds the new value.
     #[inline(always)]
     fn step<A: MulAdd>(&mut self, a: f64, b: f64, z: &[f64; L]) {
-        for r in 0..L {
-            let t = A::mul_add(a, z[r], b);
-            self.prev[r] = A::mul_add(t, self.cur[r], -self.prev[r]);
+        for ((prev, cur), z) in self.prev.iter_mut().zip(&self.cur).zip(z) {
+            let t = A::mul_add(a, *z, b);
+            *prev = A::mul_add(t, *cur, -*prev);
         }
         std::mem::swap(&mut self.prev, &mut self.cur);
     }
@@ -284,11 +283,7 @@ impl<const L: usize> Lanes<L> {
     /// cur with the still-scaled lanes zeroed.
     #[inline(always)]
     fn live_values(&self) -> [f64; L] {
-        let mut v = [0.0; L];
-        for r in 0..L {
-            v[r] = self.cur[r] * self.live[r];
-        }
-        v
+        std::array::from_fn(|r| self.cur[r] * self.live[r])
     }
 }
 
