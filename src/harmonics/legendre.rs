@@ -25,11 +25,11 @@
 use num_complex::Complex64;
 
 /// Rescaling: values carry a factor 2^(−SCALE_LOG2 · s).
-const SCALE_LOG2: f64 = 500.0;
+pub(crate) const SCALE_LOG2: f64 = 500.0;
 /// Scaled values above this are brought down by 2^−500.
-const SCALE_LIMIT: f64 = 1.606_938_044_258_990_3e60; // 2^200 (exact: checked in a unit test)
+pub(crate) const SCALE_LIMIT: f64 = 1.606_938_044_258_990_3e60; // 2^200 (exact: checked in a unit test)
 /// 2^−500.
-const SCALE_DOWN: f64 = 3.054_936_363_499_605e-151;
+pub(crate) const SCALE_DOWN: f64 = 3.054_936_363_499_605e-151;
 /// Number of two-step passes between rescaling checks (growth per check stays far below 2^800).
 const PASSES_PER_CHECK: usize = 4;
 
