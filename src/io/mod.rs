@@ -10,6 +10,7 @@
 //! in [`crate::files`], which every stage uses.
 
 pub mod fits_io;
+pub mod footprint_read;
 pub mod measurement_document;
 
 pub use fits_io::{

@@ -8,6 +8,7 @@
 //! stage of the pipeline builds on this one.
 
 pub mod apodization;
+pub mod block_map;
 pub mod footprint;
 pub mod measurable;
 pub mod pixelization;

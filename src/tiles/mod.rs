@@ -9,6 +9,7 @@
 //! [`crate::limits::is_tile_size`].
 
 pub mod projection;
+pub mod reach;
 pub mod sampling;
 pub mod tiling;
 
