@@ -28,6 +28,10 @@
 //! each, and whether the documents are equal byte for byte.
 
 #[cfg(unix)]
+#[path = "support/child_cost.rs"]
+mod child_cost;
+
+#[cfg(unix)]
 fn main() {
     if let Err(e) = memory::run() {
         eprintln!("measure_memory: {e}");
@@ -43,13 +47,13 @@ fn main() {
 
 #[cfg(unix)]
 mod memory {
+    use crate::child_cost::{run_child, ChildCost};
     use clap::Parser;
     use planisphere::cli::measure::MeasureArgs;
     use planisphere::io::fits_io::{write_footprint, write_map, ValuePrecision, WriteOptions};
     use planisphere::{Ordering, Pixelization, SkyMap};
     use std::path::{Path, PathBuf};
-    use std::process::{Command, Stdio};
-    use std::time::Instant;
+    use std::process::Command;
 
     type Res<T> = std::result::Result<T, String>;
 
@@ -152,40 +156,6 @@ mod memory {
                 .map_err(|e| e.to_string())?;
         }
         Ok((map_path, mask_path))
-    }
-
-    /// Wall time, CPU time (user + sys) and peak resident memory of one finished child.
-    struct ChildCost {
-        wall: f64,
-        cpu: f64,
-        peak_bytes: f64,
-    }
-
-    fn run_child(cmd: &mut Command, what: &str) -> Res<ChildCost> {
-        let start = Instant::now();
-        let child = cmd
-            .stdout(Stdio::null())
-            .spawn()
-            .map_err(|e| format!("{what}: cannot start: {e}"))?;
-        let pid = child.id() as libc::pid_t;
-        let mut status: libc::c_int = 0;
-        // SAFETY: rusage is plain old data; wait4 fills it for the child we just started.
-        let mut usage: libc::rusage = unsafe { std::mem::zeroed() };
-        let waited = unsafe { libc::wait4(pid, &mut status, 0, &mut usage) };
-        let wall = start.elapsed().as_secs_f64();
-        if waited != pid {
-            return Err(format!("{what}: wait4 failed"));
-        }
-        if !(libc::WIFEXITED(status) && libc::WEXITSTATUS(status) == 0) {
-            return Err(format!("{what}: failed (wait status {status})"));
-        }
-        let secs = |t: libc::timeval| t.tv_sec as f64 + t.tv_usec as f64 * 1e-6;
-        Ok(ChildCost {
-            wall,
-            cpu: secs(usage.ru_utime) + secs(usage.ru_stime),
-            // Linux reports ru_maxrss in KiB.
-            peak_bytes: usage.ru_maxrss as f64 * 1024.0,
-        })
     }
 
     /// Runs one child: `child whole|footprint <measure arguments>`.

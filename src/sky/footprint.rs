@@ -20,13 +20,16 @@ use std::borrow::Cow;
 pub const WEIGHT_BLOCK: usize = 1 << BLOCK_BITS;
 const BLOCK_BITS: u32 = 6;
 const NO_BLOCK: u32 = u32::MAX;
+/// The slot of a block whose values are all 1 (held without storage: the inside of a mask).
+const ONES_BLOCK: u32 = u32::MAX - 1;
+static ONES: [f64; WEIGHT_BLOCK] = [1.0; WEIGHT_BLOCK];
 
 /// Values stored by blocks of [`WEIGHT_BLOCK`] consecutive pixel indices over a full sky of
 /// `len` pixels; the other pixels read from elsewhere (the caller's weights, or a fill value).
 #[derive(Debug, Clone, Default)]
 pub(crate) struct BlockStore {
-    /// Per block: the position of its values in `values` (in blocks), or `NO_BLOCK`; empty
-    /// while no block is stored.
+    /// Per block: the position of its values in `values` (in blocks), `ONES_BLOCK` for a
+    /// block of ones, or `NO_BLOCK`; empty while no block is stored.
     slot: Vec<u32>,
     values: Vec<f64>,
 }
@@ -36,9 +39,10 @@ impl BlockStore {
     #[inline]
     pub(crate) fn get(&self, i: usize) -> Option<&f64> {
         match self.slot.get(i >> BLOCK_BITS) {
-            Some(&s) if s != NO_BLOCK => {
+            Some(&s) if s < ONES_BLOCK => {
                 Some(&self.values[((s as usize) << BLOCK_BITS) | (i & (WEIGHT_BLOCK - 1))])
             }
+            Some(&ONES_BLOCK) => Some(&ONES[0]),
             _ => None,
         }
     }
@@ -46,10 +50,11 @@ impl BlockStore {
     /// The stored values of block `b`, if stored.
     pub(crate) fn block(&self, b: usize) -> Option<&[f64]> {
         match self.slot.get(b) {
-            Some(&s) if s != NO_BLOCK => {
+            Some(&s) if s < ONES_BLOCK => {
                 let start = (s as usize) << BLOCK_BITS;
                 Some(&self.values[start..start + WEIGHT_BLOCK])
             }
+            Some(&ONES_BLOCK) => Some(&ONES),
             _ => None,
         }
     }
@@ -66,33 +71,52 @@ impl BlockStore {
         if self.slot.is_empty() {
             self.slot = vec![NO_BLOCK; len.div_ceil(WEIGHT_BLOCK)];
         }
-        if self.slot[b] == NO_BLOCK {
+        if self.slot[b] >= ONES_BLOCK {
+            let ones = self.slot[b] == ONES_BLOCK;
             let stored = self.values.len() / WEIGHT_BLOCK;
-            // fewer than 2³² − 1 blocks: a sky of 2³⁸ pixels would take 2 TB of weights
+            // fewer than 2³² − 2 blocks: a sky of 2³⁸ pixels would take 2 TB of weights
             self.slot[b] = stored as u32;
             let start = b << BLOCK_BITS;
             let n = WEIGHT_BLOCK.min(len - start);
             let at = self.values.len();
-            self.values.resize(at + WEIGHT_BLOCK, 0.0);
-            fill(start, &mut self.values[at..at + n]);
+            self.values.resize(at + WEIGHT_BLOCK, if ones { 1.0 } else { 0.0 });
+            if !ones {
+                fill(start, &mut self.values[at..at + n]);
+            }
         }
         let s = self.slot[b] as usize;
         &mut self.values[(s << BLOCK_BITS) | (i & (WEIGHT_BLOCK - 1))]
     }
 
-    /// Number of stored values (whole blocks).
+    /// Holds block `b` of a sky of `len` pixels as all ones, without storage, when it is not
+    /// held yet.
+    pub(crate) fn hold_ones(&mut self, len: usize, b: usize) {
+        if self.slot.is_empty() {
+            self.slot = vec![NO_BLOCK; len.div_ceil(WEIGHT_BLOCK)];
+        }
+        if self.slot[b] == NO_BLOCK {
+            self.slot[b] = ONES_BLOCK;
+        }
+    }
+
+    /// Number of stored values (whole blocks; blocks of ones are held without storage).
     pub(crate) fn stored(&self) -> usize {
         self.values.len()
     }
 
     /// The stored blocks in increasing block order: (block index, its 64 values).
     pub(crate) fn stored_blocks(&self) -> impl Iterator<Item = (usize, &[f64])> + '_ {
-        self.slot.iter().enumerate().filter_map(|(b, &s)| {
-            (s != NO_BLOCK).then(|| {
-                let start = (s as usize) << BLOCK_BITS;
-                (b, &self.values[start..start + WEIGHT_BLOCK])
+        self.slot
+            .iter()
+            .enumerate()
+            .filter_map(|(b, &s)| match s {
+                NO_BLOCK => None,
+                ONES_BLOCK => Some((b, &ONES[..])),
+                _ => {
+                    let start = (s as usize) << BLOCK_BITS;
+                    Some((b, &self.values[start..start + WEIGHT_BLOCK]))
+                }
             })
-        })
     }
 }
 
@@ -467,8 +491,8 @@ impl Footprint {
 
     /// A footprint from its weights given chunk by chunk, in pixel order from pixel 0, each
     /// chunk a whole number of [`WEIGHT_BLOCK`] pixels but the last, held by blocks: only the
-    /// blocks holding a weight other than +0 are stored (about f_sky of the sky instead of all
-    /// of it). The same checks, in the same order, and the same weights bit for bit as
+    /// blocks holding a weight other than +0 are held, and those of ones (the inside of a
+    /// binary mask) without storage, so a binary mask takes little more than its edges. The same checks, in the same order, and the same weights bit for bit as
     /// [`Footprint::from_weights`] of the whole array; an error of a chunk is returned as it is.
     pub fn from_weight_chunks<I>(pixelization: Pixelization, chunks: I) -> Result<Self>
     where
@@ -509,7 +533,10 @@ impl Footprint {
                 infinite[sign].1 += 1;
             }
             for (j, block) in chunk.chunks(WEIGHT_BLOCK).enumerate() {
-                if block.iter().any(|&w| !is_bad_value(w) && w.to_bits() != 0) {
+                if block.iter().all(|&w| w.to_bits() == 1f64.to_bits()) {
+                    // the inside of a mask, held without storage
+                    fp.changed.hold_ones(npix, (at + j * WEIGHT_BLOCK) / WEIGHT_BLOCK);
+                } else if block.iter().any(|&w| !is_bad_value(w) && w.to_bits() != 0) {
                     fp.changed.slot_mut(npix, at + j * WEIGHT_BLOCK, |_, stored| {
                         for (s, &w) in stored.iter_mut().zip(block) {
                             *s = if is_bad_value(w) { 0.0 } else { w };
