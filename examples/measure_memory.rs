@@ -161,10 +161,8 @@ mod memory {
     /// Runs one child: `child whole|footprint <measure arguments>`.
     fn child(mut args: impl Iterator<Item = String>) -> Res<()> {
         let path = args.next().ok_or("child needs whole or footprint")?;
-        let parsed = ChildArgs::try_parse_from(
-            std::iter::once("measure".to_string()).chain(args),
-        )
-        .map_err(|e| e.to_string())?;
+        let parsed = ChildArgs::try_parse_from(std::iter::once("measure".to_string()).chain(args))
+            .map_err(|e| e.to_string())?;
         match path.as_str() {
             "whole" => planisphere::cli::measure::run_reading_whole_map(&parsed.measure),
             "footprint" => planisphere::cli::measure::run(&parsed.measure),
@@ -194,9 +192,7 @@ mod memory {
             o.scales,
             std::thread::available_parallelism().map_or(1, |n| n.get())
         );
-        println!(
-            "| NSIDE | map file | path | peak RSS | wall | CPU | peak ratio | documents |"
-        );
+        println!("| NSIDE | map file | path | peak RSS | wall | CPU | peak ratio | documents |");
         println!("|---|---|---|---|---|---|---|---|");
         for &nside in &o.nsides {
             let (map, mask) = make_inputs(nside, &o.inputs)?;

@@ -84,7 +84,8 @@ fn a_map_held_by_blocks_measures_bit_for_bit_as_the_whole_map() {
     // the whole map and mask in memory
     let (map, _) = read_map(&map_path, &column).unwrap();
     let (mask, _) = read_footprint(&mask_path, &column).unwrap();
-    let whole_fp = taper_footprint(mask.restricted_to(&map).unwrap(), TaperKind::C2, 120.0).unwrap();
+    let whole_fp =
+        taper_footprint(mask.restricted_to(&map).unwrap(), TaperKind::C2, 120.0).unwrap();
     // the mask by blocks, the map on the mask's blocks
     let mut map_reader = HealpixFitsReader::open(&map_path).unwrap();
     let mut mask_reader = HealpixFitsReader::open(&mask_path).unwrap();
@@ -101,7 +102,13 @@ fn a_map_held_by_blocks_measures_bit_for_bit_as_the_whole_map() {
     );
     assert_eq!(bits(mask_blocks.weights()), bits(mask.weights()));
     let mut held = empty_map(map_reader.header()).unwrap();
-    read_map_blocks(&mut map_reader, &column, &mut held, mask_blocks.weighted_blocks()).unwrap();
+    read_map_blocks(
+        &mut map_reader,
+        &column,
+        &mut held,
+        mask_blocks.weighted_blocks(),
+    )
+    .unwrap();
     let raw = held.restrict(mask_blocks).unwrap();
     let fp = taper_footprint(raw, TaperKind::C2, 120.0).unwrap();
     assert_eq!(bits(fp.weights()), bits(whole_fp.weights()));
@@ -138,14 +145,24 @@ fn a_map_held_by_blocks_measures_bit_for_bit_as_the_whole_map() {
             first = false;
         }
         let ranges = read_ranges(measurer.plan()).unwrap();
-        read_map_blocks(&mut map_reader, &column, &mut held, blocks_of_ranges(&ranges)).unwrap();
+        read_map_blocks(
+            &mut map_reader,
+            &column,
+            &mut held,
+            blocks_of_ranges(&ranges),
+        )
+        .unwrap();
         let a = whole.measure(&map, &whole_fp).unwrap();
         let b = measurer.measure_blocks(&held, &fp).unwrap();
         assert_eq!(bits(&a.vector()), bits(&b.vector()), "{sampling:?}");
         assert_eq!(a.tiles, b.tiles, "{sampling:?}");
     }
     // footprint and halos, not the whole sky
-    assert!(held.stored_values() < npix * 3 / 4, "{} of {npix}", held.stored_values());
+    assert!(
+        held.stored_values() < npix * 3 / 4,
+        "{} of {npix}",
+        held.stored_values()
+    );
 }
 
 /// `planisphere measure` arguments.
@@ -165,7 +182,12 @@ fn measure_writes_the_same_document_reading_by_blocks_and_whole() {
             .join(format!("out_{}_{}.json", whole, extra.len()));
         let mut argv: Vec<String> = vec!["measure".into(), map_path.display().to_string()];
         argv.extend(extra.iter().map(|s| s.to_string()));
-        argv.extend(["-J".into(), "3".into(), "-o".into(), out.display().to_string()]);
+        argv.extend([
+            "-J".into(),
+            "3".into(),
+            "-o".into(),
+            out.display().to_string(),
+        ]);
         let m = Measure::try_parse_from(&argv).unwrap();
         if whole {
             planisphere::cli::measure::run_reading_whole_map(&m.args).unwrap();
@@ -177,7 +199,14 @@ fn measure_writes_the_same_document_reading_by_blocks_and_whole() {
     let mask = mask_path.display().to_string();
     for extra in [
         vec!["--mask", mask.as_str()],
-        vec!["--mask", mask.as_str(), "--taper", "gaussian", "--taper-arcmin", "90"],
+        vec![
+            "--mask",
+            mask.as_str(),
+            "--taper",
+            "gaussian",
+            "--taper-arcmin",
+            "90",
+        ],
         // without a mask the footprint is the map's valid pixels: all but the stripe
         vec![],
     ] {

@@ -122,8 +122,7 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
                 Some(path) => HealpixFitsReader::open(path)
                     .ok()
                     .filter(|r| {
-                        reads_by_blocks(r.header())
-                            && r.header().nside == map_reader.header().nside
+                        reads_by_blocks(r.header()) && r.header().nside == map_reader.header().nside
                     })
                     .map(Some),
             };
@@ -186,8 +185,14 @@ fn run_on_footprint(
                     / npix,
             )?;
             let mut map = empty_map(map_reader.header())?;
-            read_map_blocks(&mut map_reader, &args.column, &mut map, mask.weighted_blocks())?;
-            if map.stored_valid_count() == 0 && !holds_a_valid_pixel(&mut map_reader, &args.column)? {
+            read_map_blocks(
+                &mut map_reader,
+                &args.column,
+                &mut map,
+                mask.weighted_blocks(),
+            )?;
+            if map.stored_valid_count() == 0 && !holds_a_valid_pixel(&mut map_reader, &args.column)?
+            {
                 return Err(every_pixel_bad());
             }
             super::inputs::check_same_coordsys(
@@ -205,14 +210,23 @@ fn run_on_footprint(
     let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
     if map.outside() == OutsideBlocks::NotRead {
         let ranges = crate::tiles::reach::read_ranges(measurer.plan())?;
-        read_map_blocks(&mut map_reader, &args.column, &mut map, blocks_of_ranges(&ranges))?;
+        read_map_blocks(
+            &mut map_reader,
+            &args.column,
+            &mut map,
+            blocks_of_ranges(&ranges),
+        )?;
     }
     let stats = measurer.measure_blocks(&map, &footprint)?;
     write_single(args, &measurer, &stats)
 }
 
 /// Writes the document of one map's statistics and prints its summary.
-fn write_single(args: &MeasureArgs, measurer: &SphereMeasurer, stats: &MapStatistics) -> Result<()> {
+fn write_single(
+    args: &MeasureArgs,
+    measurer: &SphereMeasurer,
+    stats: &MapStatistics,
+) -> Result<()> {
     let mask_name = args.mask.mask.as_ref().map(|p| p.display().to_string());
     let taper = taper_description(
         args.mask.taper,

@@ -348,7 +348,10 @@ impl HealpixFitsReader {
         if start.checked_add(count).is_none_or(|end| end > npix) {
             return Err(Error::fits(
                 &path,
-                format!("pixels {start}.. (+{count}) lie beyond the last pixel {}", npix - 1),
+                format!(
+                    "pixels {start}.. (+{count}) lie beyond the last pixel {}",
+                    npix - 1
+                ),
             ));
         }
         let float_column = info.type_code == TFLOAT || info.type_code == TDOUBLE;

@@ -133,10 +133,7 @@ pub fn read_valid_blocks(
     for chunk in chunks(reader, column) {
         let chunk = chunk?;
         for (k, block) in chunk.chunks(WEIGHT_BLOCK).enumerate() {
-            if block
-                .iter()
-                .any(|&v| !crate::sky::skymap::is_bad_value(v))
-            {
+            if block.iter().any(|&v| !crate::sky::skymap::is_bad_value(v)) {
                 map.store_block(at / WEIGHT_BLOCK + k, block);
             }
         }

@@ -234,7 +234,13 @@ mod tests {
         let pix = Pixelization::new(8, Ordering::Ring).unwrap();
         let n = pix.npix() as usize;
         let values: Vec<f64> = (0..n)
-            .map(|p| if p < 256 || p % 9 == 4 { UNSEEN } else { p as f64 })
+            .map(|p| {
+                if p < 256 || p % 9 == 4 {
+                    UNSEEN
+                } else {
+                    p as f64
+                }
+            })
             .collect();
         let owned = SkyMap::new(pix, values.clone()).unwrap();
         let mut blocks = BlockSkyMap::new(pix, OutsideBlocks::Invalid);
@@ -245,7 +251,10 @@ mod tests {
         let whole = Footprint::of_valid_pixels(&owned);
         let held = blocks.valid_footprint().unwrap();
         assert!(held.is_held_by_blocks());
-        assert_eq!(bits(held.weights().to_vec()), bits(whole.weights().to_vec()));
+        assert_eq!(
+            bits(held.weights().to_vec()),
+            bits(whole.weights().to_vec())
+        );
         let weights: Vec<f64> = (0..n).map(|p| if p % 5 == 0 { 0.0 } else { 0.5 }).collect();
         let mask = Footprint::from_weights(pix, weights.clone()).unwrap();
         let chunks = weights.chunks(128).map(|c| Ok(c.to_vec()));

@@ -79,7 +79,8 @@ impl BlockStore {
             let start = b << BLOCK_BITS;
             let n = WEIGHT_BLOCK.min(len - start);
             let at = self.values.len();
-            self.values.resize(at + WEIGHT_BLOCK, if ones { 1.0 } else { 0.0 });
+            self.values
+                .resize(at + WEIGHT_BLOCK, if ones { 1.0 } else { 0.0 });
             if !ones {
                 fill(start, &mut self.values[at..at + n]);
             }
@@ -106,17 +107,14 @@ impl BlockStore {
 
     /// The stored blocks in increasing block order: (block index, its 64 values).
     pub(crate) fn stored_blocks(&self) -> impl Iterator<Item = (usize, &[f64])> + '_ {
-        self.slot
-            .iter()
-            .enumerate()
-            .filter_map(|(b, &s)| match s {
-                NO_BLOCK => None,
-                ONES_BLOCK => Some((b, &ONES[..])),
-                _ => {
-                    let start = (s as usize) << BLOCK_BITS;
-                    Some((b, &self.values[start..start + WEIGHT_BLOCK]))
-                }
-            })
+        self.slot.iter().enumerate().filter_map(|(b, &s)| match s {
+            NO_BLOCK => None,
+            ONES_BLOCK => Some((b, &ONES[..])),
+            _ => {
+                let start = (s as usize) << BLOCK_BITS;
+                Some((b, &self.values[start..start + WEIGHT_BLOCK]))
+            }
+        })
     }
 }
 
@@ -511,10 +509,12 @@ impl Footprint {
         let mut outside: Option<(usize, f64)> = None;
         for chunk in chunks {
             let chunk = chunk?;
-            if at % WEIGHT_BLOCK != 0 || at + chunk.len() > npix {
-                return Err(check_length(pixelization, at + chunk.len()).err().unwrap_or_else(
-                    || Error::Mismatch("mask chunks not aligned to blocks of pixels".into()),
-                ));
+            if !at.is_multiple_of(WEIGHT_BLOCK) || at + chunk.len() > npix {
+                return Err(check_length(pixelization, at + chunk.len())
+                    .err()
+                    .unwrap_or_else(|| {
+                        Error::Mismatch("mask chunks not aligned to blocks of pixels".into())
+                    }));
             }
             for (k, &w) in chunk.iter().enumerate() {
                 let sign = if w == f64::INFINITY {
@@ -535,13 +535,15 @@ impl Footprint {
             for (j, block) in chunk.chunks(WEIGHT_BLOCK).enumerate() {
                 if block.iter().all(|&w| w.to_bits() == 1f64.to_bits()) {
                     // the inside of a mask, held without storage
-                    fp.changed.hold_ones(npix, (at + j * WEIGHT_BLOCK) / WEIGHT_BLOCK);
+                    fp.changed
+                        .hold_ones(npix, (at + j * WEIGHT_BLOCK) / WEIGHT_BLOCK);
                 } else if block.iter().any(|&w| !is_bad_value(w) && w.to_bits() != 0) {
-                    fp.changed.slot_mut(npix, at + j * WEIGHT_BLOCK, |_, stored| {
-                        for (s, &w) in stored.iter_mut().zip(block) {
-                            *s = if is_bad_value(w) { 0.0 } else { w };
-                        }
-                    });
+                    fp.changed
+                        .slot_mut(npix, at + j * WEIGHT_BLOCK, |_, stored| {
+                            for (s, &w) in stored.iter_mut().zip(block) {
+                                *s = if is_bad_value(w) { 0.0 } else { w };
+                            }
+                        });
                 }
             }
             at += chunk.len();

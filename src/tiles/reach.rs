@@ -165,7 +165,10 @@ mod tests {
                 k < ranges.len() && ranges[k].0 <= p
             };
             let covered: u64 = ranges.iter().map(|r| r.1 - r.0).sum();
-            assert!(covered < pix.npix(), "cap at θ = {cap_theta}: the ranges cover the sky");
+            assert!(
+                covered < pix.npix(),
+                "cap at θ = {cap_theta}: the ranges cover the sky"
+            );
             for method in [
                 SamplingMethod::RingQuintic,
                 SamplingMethod::RingCubic,
@@ -177,7 +180,10 @@ mod tests {
                 for t in 0..plan.len() {
                     let op = sampler.operator(t).unwrap();
                     for p in op.touched_pixels() {
-                        assert!(inside(p), "θ = {cap_theta}, {method:?}, tile {t}: pixel {p}");
+                        assert!(
+                            inside(p),
+                            "θ = {cap_theta}, {method:?}, tile {t}: pixel {p}"
+                        );
                     }
                 }
             }

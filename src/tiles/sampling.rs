@@ -20,9 +20,9 @@
 //! (`tests/sampling_adjoint.rs`: equal to the sampler bit for bit, ⟨S m, y⟩ = ⟨m, Sᵀ y⟩).
 
 use crate::error::{Error, Result};
+use crate::sky::block_map::BlockSkyMap;
 use crate::sky::footprint::{FootprintOf, Weights};
 use crate::sky::pixelization::{ring_info, ring_theta, Ordering, Pixelization};
-use crate::sky::block_map::BlockSkyMap;
 use crate::sky::skymap::{SkyMap, SkyMapOf};
 use crate::tiles::projection::{rectangle_solid_angle, Gnomonic};
 use crate::tiles::tiling::TilingPlan;
