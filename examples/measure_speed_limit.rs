@@ -46,6 +46,10 @@
 //! overlap).
 
 #[cfg(unix)]
+#[path = "support/child_cost.rs"]
+mod child_cost;
+
+#[cfg(unix)]
 fn main() {
     if let Err(e) = speed_limit::run() {
         eprintln!("measure_speed_limit: {e}");
@@ -61,6 +65,7 @@ fn main() {
 
 #[cfg(unix)]
 mod speed_limit {
+    use crate::child_cost::{run_child, ChildCost};
     use num_complex::Complex64;
     use planisphere::harmonics::spectrum::AngularSpectrum;
     use planisphere::io::fits_io::{
@@ -219,40 +224,6 @@ mod speed_limit {
             footprint_pixels: summary.observed_pixels,
             f_sky: summary.f_sky,
             npix,
-        })
-    }
-
-    /// Wall time, CPU time (user + sys) and peak resident memory of one finished child.
-    struct ChildCost {
-        wall: f64,
-        cpu: f64,
-        peak_bytes: f64,
-    }
-
-    fn run_child(cmd: &mut Command, what: &str) -> Res<ChildCost> {
-        let start = Instant::now();
-        let child = cmd
-            .stdout(Stdio::null())
-            .spawn()
-            .map_err(|e| format!("{what}: cannot start: {e}"))?;
-        let pid = child.id() as libc::pid_t;
-        let mut status: libc::c_int = 0;
-        // SAFETY: rusage is plain old data; wait4 fills it for the child we just started.
-        let mut usage: libc::rusage = unsafe { std::mem::zeroed() };
-        let waited = unsafe { libc::wait4(pid, &mut status, 0, &mut usage) };
-        let wall = start.elapsed().as_secs_f64();
-        if waited != pid {
-            return Err(format!("{what}: wait4 failed"));
-        }
-        if !(libc::WIFEXITED(status) && libc::WEXITSTATUS(status) == 0) {
-            return Err(format!("{what}: failed (wait status {status})"));
-        }
-        let secs = |t: libc::timeval| t.tv_sec as f64 + t.tv_usec as f64 * 1e-6;
-        Ok(ChildCost {
-            wall,
-            cpu: secs(usage.ru_utime) + secs(usage.ru_stime),
-            // Linux reports ru_maxrss in KiB.
-            peak_bytes: usage.ru_maxrss as f64 * 1024.0,
         })
     }
 

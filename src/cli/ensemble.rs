@@ -330,9 +330,19 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
         pair_recipe,
     };
     // the pixelization and footprint, from the first member
-    let (first, _) = loader.load(&members[0])?;
-    let pix = first.pixelization();
-    let footprint = ensemble_footprint(&args.mask, pix, loader.recipe.is_none().then_some(&first))?;
+    let (first_map, _) = loader.load(&members[0])?;
+    let pix = first_map.pixelization();
+    let footprint = ensemble_footprint(
+        &args.mask,
+        pix,
+        loader.recipe.is_none().then_some(&first_map),
+    )?;
+    // what the members are checked against, without holding the first map through the run
+    let first = FirstMap {
+        nside: first_map.nside(),
+        coordsys: first_map.coordsys.clone(),
+    };
+    drop(first_map);
     let em = EnsembleMeasurer::new(pix, footprint, settings, args.cl_bin_width)?;
     let labels = if is_pair {
         em.pair_labels()
@@ -521,18 +531,25 @@ fn mark_pair(settings_json: &mut serde_json::Value, args: &EnsembleArgs, simulat
 
 /// Refuses a member map (`which` names map B of a pair) of another NSIDE or coordinate system
 /// than the first, or, when read from a file, one that cannot be measured.
+/// What the members of an ensemble are checked against: the first map's NSIDE and
+/// coordinate system.
+struct FirstMap {
+    nside: u32,
+    coordsys: Option<String>,
+}
+
 fn check_member_map(
     args: &EnsembleArgs,
-    first: &SkyMap,
+    first: &FirstMap,
     source: &MemberSource,
     which: &str,
     m: &SkyMap,
 ) -> Result<()> {
-    if m.nside() != first.nside() {
+    if m.nside() != first.nside {
         return Err(Error::Mismatch(format!(
             "{which}{source}: NSIDE {} differs from the ensemble's {}",
             m.nside(),
-            first.nside()
+            first.nside
         )));
     }
     super::inputs::check_same_coordsys(

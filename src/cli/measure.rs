@@ -7,12 +7,18 @@
 use super::inputs::{load_map, untapered_footprint, MaskArgs};
 use crate::error::{Error, Result};
 use crate::files::write_json;
-use crate::io::fits_io::ColumnChoice;
+use crate::io::fits_io::{ColumnChoice, HealpixFitsReader};
+use crate::io::footprint_read::{
+    blocks_of_ranges, empty_map, holds_a_valid_pixel, read_footprint_by_blocks, read_map_blocks,
+    read_valid_blocks, reads_by_blocks,
+};
 pub use crate::io::measurement_document::measurement_document;
 use crate::io::measurement_document::{pair_document, taper_description};
 use crate::measure::measurement::{MapStatistics, MeasurementSettings, SphereMeasurer};
 use crate::measure::settings::MeasurementChoices;
+use crate::sky::block_map::OutsideBlocks;
 use crate::sky::footprint::Footprint;
+use crate::sky::measurable::check_measurable_blocks;
 use crate::sky::skymap::SkyMap;
 use crate::tiles::tiling::TilingSummary;
 use std::path::{Path, PathBuf};
@@ -96,8 +102,146 @@ pub struct MeasureArgs {
     pub output: PathBuf,
 }
 
-/// Measures one map (or a pair with `--cross`) and writes the JSON document.
+/// Measures one map (or a pair with `--cross`) and writes the JSON document. One map in a
+/// full-sky RING file, with a full-sky RING mask of its NSIDE or without a mask, is read at
+/// the size of its footprint ([`run_on_footprint`]): the same document, byte for byte, in
+/// about f_sky of the memory; other inputs are read whole ([`run_reading_whole_map`]).
 pub fn run(args: &MeasureArgs) -> Result<()> {
+    crate::files::check_output_path(&args.output)?;
+    let mut settings = args.options.settings()?;
+    if args.full_resolution {
+        settings.transform.fourier_cropping = false;
+    }
+    if args.cross.is_none() && !super::flat_input::is_flat_field(&args.map)? {
+        let map_reader = HealpixFitsReader::open(&args.map)?;
+        if reads_by_blocks(map_reader.header()) {
+            // a mask that cannot be read by blocks (or not opened: the whole reading then
+            // reports it in its own order) leaves the map to be read whole
+            let mask_reader = match &args.mask.mask {
+                None => Some(None),
+                Some(path) => HealpixFitsReader::open(path)
+                    .ok()
+                    .filter(|r| {
+                        reads_by_blocks(r.header()) && r.header().nside == map_reader.header().nside
+                    })
+                    .map(Some),
+            };
+            if let Some(mask_reader) = mask_reader {
+                return run_on_footprint(args, settings, map_reader, mask_reader);
+            }
+        }
+    }
+    run_reading_whole_map(args)
+}
+
+/// [`run`] for one map read by blocks: the mask by chunks into the blocks holding a positive
+/// weight, the map on those blocks (without a mask, on the blocks holding a valid pixel), then
+/// on the blocks the planned tiles read ([`crate::tiles::reach::read_ranges`]). The same
+/// checks, refusals and document as [`run_reading_whole_map`].
+fn run_on_footprint(
+    args: &MeasureArgs,
+    settings: MeasurementSettings,
+    mut map_reader: HealpixFitsReader,
+    mask_reader: Option<HealpixFitsReader>,
+) -> Result<()> {
+    let label = args.map.display().to_string();
+    let every_pixel_bad = || {
+        Error::Data(format!(
+            "{label}: every pixel is bad (UNSEEN or NaN): nothing to measure"
+        ))
+    };
+    // the column's refusals before anything else, as when the map is read whole
+    map_reader.read_value_range(&args.column, 0, 1)?;
+    for w in &map_reader.header().warnings {
+        eprintln!("planisphere: warning: {label}: {w}");
+    }
+    let (mut map, raw) = match mask_reader {
+        None => {
+            let map = read_valid_blocks(&mut map_reader, &args.column)?;
+            if map.stored_valid_count() == 0 {
+                return Err(every_pixel_bad());
+            }
+            let raw = map.restrict(map.valid_footprint()?)?;
+            (map, raw)
+        }
+        Some(mut mask_reader) => {
+            let mask_path = args.mask.mask.as_deref().unwrap_or(Path::new("mask"));
+            let mask = match read_footprint_by_blocks(&mut mask_reader, &args.mask.mask_column) {
+                Ok(mask) => mask,
+                // a map without a valid pixel is refused first, as when read whole
+                Err(_) if !holds_a_valid_pixel(&mut map_reader, &args.column)? => {
+                    return Err(every_pixel_bad());
+                }
+                Err(e) => return Err(e),
+            };
+            let header = mask_reader.header();
+            for w in &header.warnings {
+                eprintln!("planisphere: warning: {}: {w}", mask_path.display());
+            }
+            let npix = 12.0 * (header.nside as f64).powi(2);
+            crate::limits::check_memory(
+                &format!("measuring a NSIDE {} map on its footprint", header.nside),
+                crate::limits::measurement_bytes(header.nside, 1) * mask.stored_weights() as f64
+                    / npix,
+            )?;
+            let mut map = empty_map(map_reader.header())?;
+            read_map_blocks(
+                &mut map_reader,
+                &args.column,
+                &mut map,
+                mask.weighted_blocks(),
+            )?;
+            if map.stored_valid_count() == 0 && !holds_a_valid_pixel(&mut map_reader, &args.column)?
+            {
+                return Err(every_pixel_bad());
+            }
+            super::inputs::check_same_coordsys(
+                (&label, map.coordsys.as_deref()),
+                (&mask_path.display().to_string(), header.coordsys.as_deref()),
+                args.mask.allow_coordsys_mismatch,
+            )?;
+            let raw = map.restrict(mask)?;
+            super::inputs::refuse_single_pixel_mask(&raw)?;
+            (map, raw)
+        }
+    };
+    let footprint = args.mask.taper_footprint(raw)?;
+    check_measurable_blocks(&map, &footprint, &label)?;
+    let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
+    if map.outside() == OutsideBlocks::NotRead {
+        let ranges = crate::tiles::reach::read_ranges(measurer.plan())?;
+        read_map_blocks(
+            &mut map_reader,
+            &args.column,
+            &mut map,
+            blocks_of_ranges(&ranges),
+        )?;
+    }
+    let stats = measurer.measure_blocks(&map, &footprint)?;
+    write_single(args, &measurer, &stats)
+}
+
+/// Writes the document of one map's statistics and prints its summary.
+fn write_single(
+    args: &MeasureArgs,
+    measurer: &SphereMeasurer,
+    stats: &MapStatistics,
+) -> Result<()> {
+    let mask_name = args.mask.mask.as_ref().map(|p| p.display().to_string());
+    let taper = taper_description(
+        args.mask.taper,
+        args.mask.taper_arcmin,
+        mask_name.as_deref(),
+    );
+    let doc = measurement_document(measurer, stats, &args.map.display().to_string(), &taper);
+    write_json(&args.output, &doc)?;
+    print_measurement(stats, &measurer.summary(), None, &args.output);
+    Ok(())
+}
+
+/// [`run`] with the map and mask read whole into memory (the path before footprint-sized
+/// reading; kept for maps it does not cover and for the memory benchmark).
+pub fn run_reading_whole_map(args: &MeasureArgs) -> Result<()> {
     crate::files::check_output_path(&args.output)?;
     let mut settings = args.options.settings()?;
     if args.full_resolution {

@@ -687,16 +687,40 @@ impl EnsembleJob {
             }
         }
         let bar = progress_bar(todo.len(), progress);
-        let done = AtomicUsize::new(0);
-        let failures: Vec<Option<String>> = todo
-            .par_iter()
-            .map(|&i| {
-                let result = self.measure_row(i, &stamp, &measure);
-                done.fetch_add(1, AtomicOrdering::Relaxed);
-                bar.inc(1);
-                result.err().map(|e| e.to_string())
-            })
-            .collect();
+        // One member at a time on each of `workers` threads outside rayon's pool, so that at
+        // most `workers` maps are held at once: a rayon worker waiting for the tiles of its
+        // member may start another member meanwhile (work stealing) and hold a second map.
+        // Each member's tiles still run on rayon's pool; results are kept by member position.
+        let workers = rayon::current_num_threads().clamp(1, todo.len().max(1));
+        let next = AtomicUsize::new(0);
+        let mut failures: Vec<Option<String>> = vec![None; todo.len()];
+        std::thread::scope(|scope| {
+            let handles: Vec<_> = (0..workers)
+                .map(|_| {
+                    scope.spawn(|| {
+                        let mut out = Vec::new();
+                        loop {
+                            let k = next.fetch_add(1, AtomicOrdering::Relaxed);
+                            let Some(&i) = todo.get(k) else {
+                                break;
+                            };
+                            let result = self.measure_row(i, &stamp, &measure);
+                            bar.inc(1);
+                            out.push((k, result.err().map(|e| e.to_string())));
+                        }
+                        out
+                    })
+                })
+                .collect();
+            for handle in handles {
+                let done = handle
+                    .join()
+                    .unwrap_or_else(|panic| std::panic::resume_unwind(panic));
+                for (k, failure) in done {
+                    failures[k] = failure;
+                }
+            }
+        });
         bar.finish_and_clear();
         let failed: Vec<String> = failures.into_iter().flatten().collect();
         let report = RunReport {

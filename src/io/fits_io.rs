@@ -305,6 +305,72 @@ impl HealpixFitsReader {
         Ok(values)
     }
 
+    /// The values of pixels `start..start + count` of one column of a full-sky file, in the
+    /// file's ordering, as [`Self::read_map`] reads them before bad values become invalid
+    /// pixels: NaN where an integer column holds its null value or where the value is the
+    /// header's `BAD_DATA`. A range of the file is read, not the whole column (cfitsio reads
+    /// a column's values as one sequence across rows). Errors for a partial-sky file and a
+    /// range beyond the last pixel.
+    pub fn read_value_range(
+        &mut self,
+        column: &ColumnChoice,
+        start: u64,
+        count: u64,
+    ) -> Result<Vec<f64>> {
+        let position = self.header.column_position(column)?;
+        let path = self.header.path.clone();
+        let info = self.header.columns[position].clone();
+        let colnum = self.header.value_colnums[position];
+        let npix = npix_of(self.header.nside);
+        let name = display_name(&info.name, position);
+        if let Some(reason) = non_numeric_reason(info.type_code, &info.format) {
+            return Err(Error::fits(
+                &path,
+                format!("column '{name}' holds {reason}"),
+            ));
+        }
+        if self.header.coverage != Coverage::FullSky {
+            return Err(Error::fits(
+                &path,
+                "a partial-sky file is read whole, not by pixel ranges",
+            ));
+        }
+        let held = self.header.rows.saturating_mul(info.values_per_row);
+        if held != npix {
+            return Err(Error::fits(
+                &path,
+                format!(
+                    "NSIDE {} needs {npix} pixels but column '{name}' holds {held} values ({} rows × {})",
+                    self.header.nside, self.header.rows, info.values_per_row
+                ),
+            ));
+        }
+        if start.checked_add(count).is_none_or(|end| end > npix) {
+            return Err(Error::fits(
+                &path,
+                format!(
+                    "pixels {start}.. (+{count}) lie beyond the last pixel {}",
+                    npix - 1
+                ),
+            ));
+        }
+        let float_column = info.type_code == TFLOAT || info.type_code == TDOUBLE;
+        let nulval = if float_column { 0.0 } else { f64::NAN };
+        let per_row = info.values_per_row.max(1);
+        let first = (start / per_row + 1, start % per_row + 1);
+        let mut values = self
+            .file
+            .read_column_from(&path, colnum, first, count, Some(nulval))?;
+        if let Some(bad) = self.header.bad_data {
+            for v in values.iter_mut() {
+                if (*v - bad).abs() <= 1e-6 * bad.abs() {
+                    *v = f64::NAN;
+                }
+            }
+        }
+        Ok(values)
+    }
+
     /// The full-sky values of one column as stored, NaN where there is no value.
     fn read_stored_values(&mut self, column: &ColumnChoice) -> Result<Vec<f64>> {
         let position = self.header.column_position(column)?;
@@ -1657,6 +1723,18 @@ impl FitsHandle {
         path: &Path,
         colnum: c_int,
         count: u64,
+        nulval: Option<T>,
+    ) -> Result<Vec<T>> {
+        self.read_column_from(path, colnum, (1, 1), count, nulval)
+    }
+
+    /// [`Self::read_column`] from 1-based (row, element) `first` on.
+    fn read_column_from<T: ColumnValue>(
+        &mut self,
+        path: &Path,
+        colnum: c_int,
+        first: (u64, u64),
+        count: u64,
         mut nulval: Option<T>,
     ) -> Result<Vec<T>> {
         let mut out = allocate(path, count as usize, T::default())?;
@@ -1676,8 +1754,8 @@ impl FitsHandle {
                 self.ptr,
                 T::DATATYPE,
                 colnum,
-                1,
-                1,
+                first.0 as sys::LONGLONG,
+                first.1 as sys::LONGLONG,
                 count as sys::LONGLONG,
                 nulval_ptr,
                 out.as_mut_ptr() as *mut c_void,

@@ -2,7 +2,8 @@
 //! the JSON document of a measurement.
 //!
 //! Owns: the FITS reader and writer ([`read_map`], [`read_footprint`], [`write_map`],
-//! [`HealpixFitsReader`], [`WriteOptions`]) and the measurement document
+//! [`HealpixFitsReader`], [`WriteOptions`]), the reading of a mask and map by blocks at the
+//! footprint's size ([`footprint_read`]) and the measurement document
 //! ([`measurement_document()`], [`pair_document`], [`flat_measurement_document`]).
 //!
 //! May use: [`crate::sky`], [`crate::scattering`], [`crate::measure`] and the crate's
@@ -10,6 +11,7 @@
 //! in [`crate::files`], which every stage uses.
 
 pub mod fits_io;
+pub mod footprint_read;
 pub mod measurement_document;
 
 pub use fits_io::{

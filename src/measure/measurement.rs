@@ -47,10 +47,11 @@ use crate::scattering::statistics::{
 };
 use crate::scattering::transform::{ScatteringEngine, TilePairView, TransformSettings};
 use crate::sky::apodization::c2;
+use crate::sky::block_map::BlockSkyMap;
 use crate::sky::footprint::FootprintOf;
 use crate::sky::pixelization::Pixelization;
 use crate::sky::skymap::SkyMapOf;
-use crate::tiles::sampling::{SamplingMethod, TileGrids, TileSampler};
+use crate::tiles::sampling::{MapSource, SamplingMethod, TileGrids, TileSampler};
 use crate::tiles::tiling::{CellLayout, TilingPlan, TilingSettings, TilingSummary};
 
 /// Everything that defines a measurement.
@@ -582,6 +583,34 @@ impl SphereMeasurer {
     pub fn measure(
         &self,
         map: &SkyMapOf<'_>,
+        footprint: &FootprintOf<'_>,
+    ) -> Result<MapStatistics> {
+        self.measure_source(MapSource::Whole(map), footprint)
+    }
+
+    /// [`Self::measure`] of a map held by blocks: the same statistics bit for bit when `map`
+    /// holds every block the plan's tiles read ([`crate::tiles::reach::read_ranges`]); an error
+    /// when the tiles read a pixel whose block was not read from the file. (The map records
+    /// such reads for one measurement at a time.)
+    pub fn measure_blocks(
+        &self,
+        map: &BlockSkyMap,
+        footprint: &FootprintOf<'_>,
+    ) -> Result<MapStatistics> {
+        map.forget_unread();
+        let stats = self.measure_source(MapSource::Blocks(map), footprint)?;
+        match map.first_unread() {
+            Some(p) => Err(Error::Data(format!(
+                "the tiles read map pixel {p}, whose block was not read from the file"
+            ))),
+            None => Ok(stats),
+        }
+    }
+
+    /// [`Self::measure`] of either kind of map.
+    fn measure_source(
+        &self,
+        map: MapSource<'_>,
         footprint: &FootprintOf<'_>,
     ) -> Result<MapStatistics> {
         let sampler = TileSampler::new(&self.plan, map, footprint, self.settings.sampling)?;

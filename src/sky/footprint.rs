@@ -20,13 +20,16 @@ use std::borrow::Cow;
 pub const WEIGHT_BLOCK: usize = 1 << BLOCK_BITS;
 const BLOCK_BITS: u32 = 6;
 const NO_BLOCK: u32 = u32::MAX;
+/// The slot of a block whose values are all 1 (held without storage: the inside of a mask).
+const ONES_BLOCK: u32 = u32::MAX - 1;
+static ONES: [f64; WEIGHT_BLOCK] = [1.0; WEIGHT_BLOCK];
 
 /// Values stored by blocks of [`WEIGHT_BLOCK`] consecutive pixel indices over a full sky of
 /// `len` pixels; the other pixels read from elsewhere (the caller's weights, or a fill value).
 #[derive(Debug, Clone, Default)]
 pub(crate) struct BlockStore {
-    /// Per block: the position of its values in `values` (in blocks), or `NO_BLOCK`; empty
-    /// while no block is stored.
+    /// Per block: the position of its values in `values` (in blocks), `ONES_BLOCK` for a
+    /// block of ones, or `NO_BLOCK`; empty while no block is stored.
     slot: Vec<u32>,
     values: Vec<f64>,
 }
@@ -34,50 +37,84 @@ pub(crate) struct BlockStore {
 impl BlockStore {
     /// The stored value of pixel `i`, if its block is stored.
     #[inline]
-    fn get(&self, i: usize) -> Option<&f64> {
+    pub(crate) fn get(&self, i: usize) -> Option<&f64> {
         match self.slot.get(i >> BLOCK_BITS) {
-            Some(&s) if s != NO_BLOCK => {
+            Some(&s) if s < ONES_BLOCK => {
                 Some(&self.values[((s as usize) << BLOCK_BITS) | (i & (WEIGHT_BLOCK - 1))])
             }
+            Some(&ONES_BLOCK) => Some(&ONES[0]),
             _ => None,
         }
     }
 
     /// The stored values of block `b`, if stored.
-    fn block(&self, b: usize) -> Option<&[f64]> {
+    pub(crate) fn block(&self, b: usize) -> Option<&[f64]> {
         match self.slot.get(b) {
-            Some(&s) if s != NO_BLOCK => {
+            Some(&s) if s < ONES_BLOCK => {
                 let start = (s as usize) << BLOCK_BITS;
                 Some(&self.values[start..start + WEIGHT_BLOCK])
             }
+            Some(&ONES_BLOCK) => Some(&ONES),
             _ => None,
         }
     }
 
     /// The value slot of pixel `i` of a sky of `len` pixels, storing its block first (filled
     /// by `fill` with the values of pixels `start..start + n`) when it is not stored yet.
-    fn slot_mut(&mut self, len: usize, i: usize, fill: impl FnOnce(usize, &mut [f64])) -> &mut f64 {
+    pub(crate) fn slot_mut(
+        &mut self,
+        len: usize,
+        i: usize,
+        fill: impl FnOnce(usize, &mut [f64]),
+    ) -> &mut f64 {
         let b = i >> BLOCK_BITS;
         if self.slot.is_empty() {
             self.slot = vec![NO_BLOCK; len.div_ceil(WEIGHT_BLOCK)];
         }
-        if self.slot[b] == NO_BLOCK {
+        if self.slot[b] >= ONES_BLOCK {
+            let ones = self.slot[b] == ONES_BLOCK;
             let stored = self.values.len() / WEIGHT_BLOCK;
-            // fewer than 2³² − 1 blocks: a sky of 2³⁸ pixels would take 2 TB of weights
+            // fewer than 2³² − 2 blocks: a sky of 2³⁸ pixels would take 2 TB of weights
             self.slot[b] = stored as u32;
             let start = b << BLOCK_BITS;
             let n = WEIGHT_BLOCK.min(len - start);
             let at = self.values.len();
-            self.values.resize(at + WEIGHT_BLOCK, 0.0);
-            fill(start, &mut self.values[at..at + n]);
+            self.values
+                .resize(at + WEIGHT_BLOCK, if ones { 1.0 } else { 0.0 });
+            if !ones {
+                fill(start, &mut self.values[at..at + n]);
+            }
         }
         let s = self.slot[b] as usize;
         &mut self.values[(s << BLOCK_BITS) | (i & (WEIGHT_BLOCK - 1))]
     }
 
-    /// Number of stored values (whole blocks).
-    fn stored(&self) -> usize {
+    /// Holds block `b` of a sky of `len` pixels as all ones, without storage, when it is not
+    /// held yet.
+    pub(crate) fn hold_ones(&mut self, len: usize, b: usize) {
+        if self.slot.is_empty() {
+            self.slot = vec![NO_BLOCK; len.div_ceil(WEIGHT_BLOCK)];
+        }
+        if self.slot[b] == NO_BLOCK {
+            self.slot[b] = ONES_BLOCK;
+        }
+    }
+
+    /// Number of stored values (whole blocks; blocks of ones are held without storage).
+    pub(crate) fn stored(&self) -> usize {
         self.values.len()
+    }
+
+    /// The stored blocks in increasing block order: (block index, its 64 values).
+    pub(crate) fn stored_blocks(&self) -> impl Iterator<Item = (usize, &[f64])> + '_ {
+        self.slot.iter().enumerate().filter_map(|(b, &s)| match s {
+            NO_BLOCK => None,
+            ONES_BLOCK => Some((b, &ONES[..])),
+            _ => {
+                let start = (s as usize) << BLOCK_BITS;
+                Some((b, &self.values[start..start + WEIGHT_BLOCK]))
+            }
+        })
     }
 }
 
@@ -126,7 +163,11 @@ impl SparseMinimum {
 /// its own stored values elsewhere.
 #[derive(Clone, Copy)]
 pub struct Weights<'w> {
+    /// The caller's or the footprint's own weights; empty for a footprint held by blocks
+    /// ([`FootprintOf::from_weight_chunks`]), whose pixels outside `changed` weigh 0.
     base: &'w [f64],
+    /// Number of pixels.
+    len: usize,
     changed: &'w BlockStore,
     /// `base` holds no bad value (the footprint's own weights).
     clean: bool,
@@ -134,6 +175,9 @@ pub struct Weights<'w> {
 
 /// The weight 0 a bad value reads as.
 static ZERO: f64 = 0.0;
+
+/// The weights of a block not stored by a footprint held by blocks.
+static ZEROS: [f64; WEIGHT_BLOCK] = [0.0; WEIGHT_BLOCK];
 
 /// `w` as a weight: a bad value (NaN, or UNSEEN, the only negative values a checked mask
 /// holds) is 0.
@@ -152,6 +196,8 @@ impl<'w> Weights<'w> {
     pub fn get(&self, i: usize) -> f64 {
         match self.changed.get(i) {
             Some(&w) => w,
+            // held by blocks: a pixel outside them weighs 0
+            None if self.base.is_empty() => 0.0,
             None => {
                 let w = self.base[i];
                 if self.clean || w >= 0.0 {
@@ -167,6 +213,7 @@ impl<'w> Weights<'w> {
     fn at(&self, i: usize) -> &'w f64 {
         match self.changed.get(i) {
             Some(w) => w,
+            None if self.base.is_empty() => &ZERO,
             None if self.clean => &self.base[i],
             None => as_weight(&self.base[i]),
         }
@@ -174,18 +221,19 @@ impl<'w> Weights<'w> {
 
     /// Number of pixels.
     pub fn len(&self) -> usize {
-        self.base.len()
+        self.len
     }
 
     /// No pixel at all?
     pub fn is_empty(&self) -> bool {
-        self.base.is_empty()
+        self.len == 0
     }
 
     /// The weights as one slice, when the footprint holds them so (its own weights, or the
     /// caller's without a bad value and with no value changed).
     pub fn as_slice(&self) -> Option<&'w [f64]> {
-        (self.clean && self.changed.slot.is_empty()).then_some(self.base)
+        (self.clean && self.changed.slot.is_empty() && self.base.len() == self.len)
+            .then_some(self.base)
     }
 
     /// The weights in pixel order.
@@ -208,9 +256,10 @@ impl<'w> Weights<'w> {
     /// The weights of block `b` (pixels `b·WEIGHT_BLOCK ..`, fewer in the last block).
     fn block(&self, b: usize) -> &'w [f64] {
         let start = b << BLOCK_BITS;
-        let end = (start + WEIGHT_BLOCK).min(self.base.len());
+        let end = (start + WEIGHT_BLOCK).min(self.len);
         match self.changed.block(b) {
             Some(stored) => &stored[..end - start],
+            None if self.base.is_empty() => &ZEROS[..end - start],
             None => &self.base[start..end],
         }
     }
@@ -350,11 +399,7 @@ fn check_weights(weights: &[f64]) -> Result<()> {
         let mut hits = weights.iter().enumerate().filter(|(_, &w)| w == infinite);
         if let Some((first, _)) = hits.next() {
             let count = 1 + hits.count();
-            let pixels = if count == 1 { "pixel" } else { "pixels" };
-            return Err(Error::Data(format!(
-                "the mask holds {infinite:+} in {count} {pixels} (first: pixel {first}): \
-                 weights must lie in [0, 1], with 0, UNSEEN or NaN for unobserved pixels"
-            )));
+            return Err(infinite_weights(infinite, count, first));
         }
     }
     for (p, &w) in weights.iter().enumerate() {
@@ -363,6 +408,15 @@ fn check_weights(weights: &[f64]) -> Result<()> {
         }
     }
     Ok(())
+}
+
+/// The refusal of a mask holding `infinite` in `count` pixels, the first `first`.
+fn infinite_weights(infinite: f64, count: usize, first: usize) -> Error {
+    let pixels = if count == 1 { "pixel" } else { "pixels" };
+    Error::Data(format!(
+        "the mask holds {infinite:+} in {count} {pixels} (first: pixel {first}): \
+         weights must lie in [0, 1], with 0, UNSEEN or NaN for unobserved pixels"
+    ))
 }
 
 fn out_of_range(p: usize, w: f64) -> Error {
@@ -432,6 +486,84 @@ impl Footprint {
             clean: true,
         }
     }
+
+    /// A footprint from its weights given chunk by chunk, in pixel order from pixel 0, each
+    /// chunk a whole number of [`WEIGHT_BLOCK`] pixels but the last, held by blocks: only the
+    /// blocks holding a weight other than +0 are held, and those of ones (the inside of a
+    /// binary mask) without storage, so a binary mask takes little more than its edges. The same checks, in the same order, and the same weights bit for bit as
+    /// [`Footprint::from_weights`] of the whole array; an error of a chunk is returned as it is.
+    pub fn from_weight_chunks<I>(pixelization: Pixelization, chunks: I) -> Result<Self>
+    where
+        I: IntoIterator<Item = Result<Vec<f64>>>,
+    {
+        let npix = pixelization.npix() as usize;
+        let mut fp = FootprintOf {
+            pixelization,
+            base: Cow::Owned(Vec::new()),
+            changed: BlockStore::default(),
+            clean: true,
+        };
+        let mut at = 0usize;
+        // (first pixel, count) of +inf and of −inf; the first weight outside [0, 1]
+        let mut infinite = [(0usize, 0u64); 2];
+        let mut outside: Option<(usize, f64)> = None;
+        for chunk in chunks {
+            let chunk = chunk?;
+            if !at.is_multiple_of(WEIGHT_BLOCK) || at + chunk.len() > npix {
+                return Err(check_length(pixelization, at + chunk.len())
+                    .err()
+                    .unwrap_or_else(|| {
+                        Error::Mismatch("mask chunks not aligned to blocks of pixels".into())
+                    }));
+            }
+            for (k, &w) in chunk.iter().enumerate() {
+                let sign = if w == f64::INFINITY {
+                    0
+                } else if w == f64::NEG_INFINITY {
+                    1
+                } else {
+                    if outside.is_none() && !is_bad_value(w) && !(0.0..=1.0).contains(&w) {
+                        outside = Some((at + k, w));
+                    }
+                    continue;
+                };
+                if infinite[sign].1 == 0 {
+                    infinite[sign].0 = at + k;
+                }
+                infinite[sign].1 += 1;
+            }
+            for (j, block) in chunk.chunks(WEIGHT_BLOCK).enumerate() {
+                if block.iter().all(|&w| w.to_bits() == 1f64.to_bits()) {
+                    // the inside of a mask, held without storage
+                    fp.changed
+                        .hold_ones(npix, (at + j * WEIGHT_BLOCK) / WEIGHT_BLOCK);
+                } else if block.iter().any(|&w| !is_bad_value(w) && w.to_bits() != 0) {
+                    fp.changed
+                        .slot_mut(npix, at + j * WEIGHT_BLOCK, |_, stored| {
+                            for (s, &w) in stored.iter_mut().zip(block) {
+                                *s = if is_bad_value(w) { 0.0 } else { w };
+                            }
+                        });
+                }
+            }
+            at += chunk.len();
+        }
+        check_length(pixelization, at)?;
+        for (sign, (first, count)) in infinite.into_iter().enumerate() {
+            if count > 0 {
+                let infinite = if sign == 0 {
+                    f64::INFINITY
+                } else {
+                    f64::NEG_INFINITY
+                };
+                return Err(infinite_weights(infinite, count as usize, first));
+            }
+        }
+        if let Some((p, w)) = outside {
+            return Err(out_of_range(p, w));
+        }
+        Ok(fp)
+    }
 }
 
 impl<'a> FootprintOf<'a> {
@@ -460,9 +592,31 @@ impl<'a> FootprintOf<'a> {
     /// pixels of the stored blocks of changed weights when it reads its caller's.
     pub fn stored_weights(&self) -> usize {
         match &self.base {
-            Cow::Owned(w) => w.len(),
-            Cow::Borrowed(_) => self.changed.stored(),
+            Cow::Owned(w) if !w.is_empty() => w.len(),
+            _ => self.changed.stored(),
         }
+    }
+
+    /// Is the footprint held by blocks ([`Footprint::from_weight_chunks`]): its weights stored
+    /// only by blocks holding a positive weight, 0 elsewhere?
+    pub fn is_held_by_blocks(&self) -> bool {
+        self.base.is_empty()
+    }
+
+    /// The indices of the blocks of [`WEIGHT_BLOCK`] pixels that may hold a positive weight,
+    /// in increasing order: the stored blocks of a footprint held by blocks, every block
+    /// otherwise.
+    pub fn weighted_blocks(&self) -> Box<dyn Iterator<Item = usize> + '_> {
+        if self.is_held_by_blocks() {
+            Box::new(self.changed.stored_blocks().map(|(b, _)| b))
+        } else {
+            Box::new(0..self.len().div_ceil(WEIGHT_BLOCK))
+        }
+    }
+
+    /// Number of pixels.
+    fn len(&self) -> usize {
+        self.pixelization.npix() as usize
     }
 
     /// The weights, giving up the footprint (no copy when it owns them unchanged).
@@ -477,7 +631,14 @@ impl<'a> FootprintOf<'a> {
     /// Sets the weight of pixel `p`: in place when the footprint owns its weights, else in the
     /// stored block of `p` (stored when the value differs from what the pixel holds).
     fn set(&mut self, p: usize, value: f64) {
+        let len = self.len();
         match &mut self.base {
+            Cow::Owned(w) if w.is_empty() => {
+                if self.changed.get(p).is_none() && value.to_bits() == 0 {
+                    return;
+                }
+                *self.changed.slot_mut(len, p, |_, block| block.fill(0.0)) = value;
+            }
             Cow::Owned(w) => w[p] = value,
             Cow::Borrowed(base) => {
                 let base: &[f64] = base;
@@ -514,6 +675,7 @@ impl<'a> FootprintOf<'a> {
     pub fn weights(&self) -> Weights<'_> {
         Weights {
             base: &self.base,
+            len: self.len(),
             changed: &self.changed,
             clean: self.clean,
         }
@@ -522,7 +684,7 @@ impl<'a> FootprintOf<'a> {
     /// Weight of `pixel` (0 outside the index range).
     pub fn weight(&self, pixel: u64) -> f64 {
         match usize::try_from(pixel) {
-            Ok(i) if i < self.base.len() => self.weights().get(i),
+            Ok(i) if i < self.len() => self.weights().get(i),
             _ => 0.0,
         }
     }
@@ -590,9 +752,9 @@ impl<'a> FootprintOf<'a> {
             moved = other.to_ordering(self.pixelization.ordering())?;
             &moved
         };
-        let fp = if self.is_borrowed() {
-            // this footprint's weights in place, the pixels where the other's are smaller
-            // stored beside them
+        let fp = if self.is_borrowed() || self.is_held_by_blocks() {
+            // this footprint's weights in place (or its blocks), the pixels where the other's
+            // are smaller stored beside them
             let mut fp = self.clone();
             let (mine, theirs) = (self.weights(), other.weights());
             for (p, (a, b)) in mine.iter().zip(theirs.iter()).enumerate() {
@@ -651,10 +813,21 @@ impl<'a> FootprintOf<'a> {
 
     /// This footprint (in `map`'s ordering) with weight 0 at the map's invalid pixels; errors
     /// when nothing is left, saying whether the mask was empty or lies on bad pixels only.
-    fn without_bad_pixels_of(mut self, map: &SkyMapOf<'_>) -> Result<FootprintOf<'a>> {
+    fn without_bad_pixels_of(self, map: &SkyMapOf<'_>) -> Result<FootprintOf<'a>> {
+        let valid = map.valid();
+        self.without_invalid_pixels((0..valid.len()).filter(|&p| !valid[p]))
+    }
+
+    /// This footprint with weight 0 at the `invalid` pixels (a map's bad pixels, in increasing
+    /// order; those of weight 0 may be left out); errors when nothing is left, saying whether
+    /// the mask was empty or lies on bad pixels only.
+    pub(crate) fn without_invalid_pixels(
+        mut self,
+        invalid: impl Iterator<Item = usize>,
+    ) -> Result<FootprintOf<'a>> {
         let mut lost = 0u64;
-        for (p, &ok) in map.valid().iter().enumerate() {
-            if !ok && self.weights().get(p) > 0.0 {
+        for p in invalid {
+            if self.weights().get(p) > 0.0 {
                 self.set(p, 0.0);
                 lost += 1;
             }
@@ -679,7 +852,7 @@ impl<'a> FootprintOf<'a> {
     /// where the value changes. A bad result (NaN) weighs 0; a result outside [0, 1] is an
     /// error naming the pixel, as [`Footprint::from_weights`] gives.
     pub(crate) fn reweighted(mut self, mut new: impl FnMut(usize, f64) -> f64) -> Result<Self> {
-        for p in 0..self.base.len() {
+        for p in 0..self.len() {
             let w = self.weights().get(p);
             let mut v = new(p, w);
             if is_bad_value(v) {

@@ -20,6 +20,7 @@
 //! (`tests/sampling_adjoint.rs`: equal to the sampler bit for bit, ⟨S m, y⟩ = ⟨m, Sᵀ y⟩).
 
 use crate::error::{Error, Result};
+use crate::sky::block_map::BlockSkyMap;
 use crate::sky::footprint::{FootprintOf, Weights};
 use crate::sky::pixelization::{ring_info, ring_theta, Ordering, Pixelization};
 use crate::sky::skymap::{SkyMap, SkyMapOf};
@@ -191,21 +192,7 @@ struct BandLimit {
 impl BandLimit {
     /// The low-pass for n-pixel tiles read s times finer.
     fn new(n: usize, factor: usize) -> Self {
-        // a margin of at least 8 plane pixels (the window's leakage past the band then stays
-        // below 1e-3 of the field beyond the tile-border ramp, see the tests), grown until N
-        // is 7-smooth (fast transforms)
-        let smooth = |mut m: usize| {
-            for p in [2, 3, 5, 7] {
-                while m.is_multiple_of(p) {
-                    m /= p;
-                }
-            }
-            m == 1
-        };
-        let mut margin = 8;
-        while !smooth(n + 2 * margin) {
-            margin += 1;
-        }
+        let margin = Self::margin(n);
         let extended = n + 2 * margin;
         let fine = factor * extended;
         let ramp = (factor * margin) as f64;
@@ -226,6 +213,25 @@ impl BandLimit {
             fine_forward: planner.plan_fft_forward(fine),
             coarse_inverse: planner.plan_fft_inverse(extended),
         }
+    }
+
+    /// The margin e of n-pixel tiles: at least 8 plane pixels (the window's leakage past the
+    /// band then stays below 1e-3 of the field beyond the tile-border ramp, see the tests),
+    /// grown until N = n + 2e is 7-smooth (fast transforms).
+    fn margin(n: usize) -> usize {
+        let smooth = |mut m: usize| {
+            for p in [2, 3, 5, 7] {
+                while m.is_multiple_of(p) {
+                    m /= p;
+                }
+            }
+            m == 1
+        };
+        let mut margin = 8;
+        while !smooth(n + 2 * margin) {
+            margin += 1;
+        }
+        margin
     }
 
     /// The band-limited n × n field (row-major, one row per y) of the function `read(x, y)`,
@@ -420,6 +426,22 @@ fn wrap(j: i64, count: u64) -> u64 {
     }) as u64
 }
 
+/// Half the side, in plane coordinates (radians), of the square around each tile's tangent
+/// point over which a sampler of `plan` reads the map: the tile grid, widened by the band
+/// limit's margin when the plane pixels are coarser than the map's ([`fine_sampling_factor`]),
+/// plus one plane pixel. The interpolation stencils reach a few map pixels further
+/// ([`crate::tiles::reach`] adds them).
+pub fn read_half_width(plan: &TilingPlan) -> f64 {
+    let n = plan.tile_pixels();
+    let delta = plan.pixel_size();
+    let margin = if fine_sampling_factor(delta, plan.map_pixelization().mean_spacing()) > 1 {
+        BandLimit::margin(n)
+    } else {
+        0
+    };
+    (n as f64 / 2.0 + margin as f64 + 1.0) * delta
+}
+
 /// A sampler's mask weights in the map's ordering.
 enum MaskWeights<'a> {
     /// The footprint's weights as one slice (it owns them, or reads its caller's unchanged).
@@ -442,10 +464,86 @@ impl MaskWeights<'_> {
     }
 }
 
+/// The map a sampler reads: a whole [`SkyMapOf`], or a [`BlockSkyMap`] holding only the blocks
+/// the plan's tiles read ([`crate::tiles::reach`]). Both give the same values at the same
+/// pixels, so the samples are the same bit for bit.
+#[derive(Clone, Copy)]
+pub enum MapSource<'a> {
+    /// Every pixel in memory.
+    Whole(&'a SkyMapOf<'a>),
+    /// Only the stored blocks.
+    Blocks(&'a BlockSkyMap),
+}
+
+impl<'a, 'b: 'a> From<&'a SkyMapOf<'b>> for MapSource<'a> {
+    fn from(map: &'a SkyMapOf<'b>) -> Self {
+        MapSource::Whole(map)
+    }
+}
+
+impl<'a> From<&'a BlockSkyMap> for MapSource<'a> {
+    fn from(map: &'a BlockSkyMap) -> Self {
+        MapSource::Blocks(map)
+    }
+}
+
+impl MapSource<'_> {
+    /// The map's pixelization.
+    pub fn pixelization(&self) -> Pixelization {
+        match self {
+            MapSource::Whole(m) => m.pixelization(),
+            MapSource::Blocks(m) => m.pixelization(),
+        }
+    }
+
+    /// Is pixel `i` valid?
+    #[inline]
+    fn is_valid(&self, i: usize) -> bool {
+        match self {
+            MapSource::Whole(m) => m.valid()[i],
+            MapSource::Blocks(m) => m.is_valid(i),
+        }
+    }
+
+    /// The value of pixel `i` (read only where [`Self::is_valid`]).
+    #[inline]
+    fn value(&self, i: usize) -> f64 {
+        match self {
+            MapSource::Whole(m) => m.values()[i],
+            MapSource::Blocks(m) => m.value(i),
+        }
+    }
+
+    /// Is every pixel valid (a whole map without bad pixels)?
+    fn all_valid(&self) -> bool {
+        match self {
+            MapSource::Whole(m) => m.valid().iter().all(|&ok| ok),
+            MapSource::Blocks(_) => false,
+        }
+    }
+
+    /// Is some valid pixel `i` `wanted(i)`?
+    fn any_valid(&self, wanted: impl Fn(usize) -> bool + Sync) -> bool {
+        match self {
+            MapSource::Whole(m) => m
+                .valid()
+                .par_iter()
+                .enumerate()
+                .any(|(i, &ok)| ok && wanted(i)),
+            MapSource::Blocks(m) => m.blocks().any(|(start, values)| {
+                values
+                    .iter()
+                    .enumerate()
+                    .any(|(k, v)| !v.is_nan() && wanted(start + k))
+            }),
+        }
+    }
+}
+
 /// Reads a map and a mask onto the tiles of a plan, one tile at a time.
 pub struct TileSampler<'a> {
     plan: &'a TilingPlan,
-    map: &'a SkyMapOf<'a>,
+    map: MapSource<'a>,
     /// Mask weights in the map's ordering (the footprint's own when the orderings agree); the
     /// map's bad pixels are treated as weight 0 when read.
     mask: MaskWeights<'a>,
@@ -461,17 +559,19 @@ pub struct TileSampler<'a> {
 }
 
 impl<'a> TileSampler<'a> {
-    /// A sampler for `map` and `mask` (same NSIDE as the plan's map) on the tiles of `plan`.
+    /// A sampler for `map` (a [`SkyMapOf`] or a [`BlockSkyMap`]) and `mask` (same NSIDE as the
+    /// plan's map) on the tiles of `plan`.
     pub fn new(
         plan: &'a TilingPlan,
-        map: &'a SkyMapOf<'a>,
+        map: impl Into<MapSource<'a>>,
         mask: &'a FootprintOf<'a>,
         method: SamplingMethod,
     ) -> Result<Self> {
-        if map.nside() != plan.map_pixelization().nside() {
+        let map: MapSource<'a> = map.into();
+        if map.pixelization().nside() != plan.map_pixelization().nside() {
             return Err(Error::Mismatch(format!(
                 "map NSIDE {} does not match the tiling's NSIDE {}",
-                map.nside(),
+                map.pixelization().nside(),
                 plan.map_pixelization().nside()
             )));
         }
@@ -492,11 +592,7 @@ impl<'a> TileSampler<'a> {
                     .collect::<Result<Vec<f64>>>()?,
             )
         };
-        let overlap = map
-            .valid()
-            .par_iter()
-            .enumerate()
-            .any(|(i, &ok)| ok && weights.get(i) > 0.0);
+        let overlap = map.any_valid(|i| weights.get(i) > 0.0);
         if !overlap {
             return Err(Error::Data(
                 "the mask's footprint does not overlap the map's valid pixels".to_string(),
@@ -532,7 +628,7 @@ impl<'a> TileSampler<'a> {
             solid_angle,
             band_limit,
             rings: RingTable::new(map_pix.nside()),
-            all_valid: map.valid().iter().all(|&ok| ok),
+            all_valid: map.all_valid(),
         })
     }
 
@@ -619,16 +715,15 @@ impl<'a> TileSampler<'a> {
     /// non-zero weight is bad.
     fn stencil_value(&self, weights: &[(u64, f64)]) -> Result<Option<f64>> {
         let pix = self.map.pixelization();
-        let values = self.map.values();
-        let valid = self.map.valid();
+        let map = self.map;
         let mut sum = 0.0;
         for &(p, wt) in weights {
             if wt != 0.0 {
                 let i = ring_to_map(pix, p)? as usize;
-                if !self.all_valid && !valid[i] {
+                if !self.all_valid && !map.is_valid(i) {
                     return Ok(None);
                 }
-                sum += wt * values[i];
+                sum += wt * map.value(i);
             }
         }
         Ok(Some(sum))
@@ -647,8 +742,7 @@ impl<'a> TileSampler<'a> {
         with_field: bool,
     ) -> Result<(f64, f64)> {
         let pix = self.map.pixelization();
-        let values = self.map.values();
-        let valid = self.map.valid();
+        let map = self.map;
         Ok(match self.method {
             SamplingMethod::Bilinear => {
                 let w = pix.bilinear_weights(dir)?.map(|(p, wt)| (p as usize, wt));
@@ -658,8 +752,8 @@ impl<'a> TileSampler<'a> {
             }
             SamplingMethod::Nearest => {
                 let i = pix.pixel_of(dir) as usize;
-                if valid[i] {
-                    (values[i], self.mask.get(i))
+                if map.is_valid(i) {
+                    (map.value(i), self.mask.get(i))
                 } else {
                     (0.0, 0.0)
                 }
@@ -705,11 +799,11 @@ impl<'a> TileSampler<'a> {
     /// Over the valid pixels of positive weight of a linear stencil: Σ w·value, Σ w and
     /// Σ w·mask.
     fn linear_sums(&self, stencil: &[(usize, f64)]) -> (f64, f64, f64) {
-        let (values, valid) = (self.map.values(), self.map.valid());
+        let map = self.map;
         let (mut sum, mut wsum, mut msum) = (0.0, 0.0, 0.0);
         for &(i, wt) in stencil {
-            if wt > 0.0 && valid[i] {
-                sum += wt * values[i];
+            if wt > 0.0 && map.is_valid(i) {
+                sum += wt * map.value(i);
                 wsum += wt;
                 msum += wt * self.mask.get(i);
             }
@@ -895,14 +989,14 @@ impl TileSampler<'_> {
         weights: &mut Vec<f64>,
     ) -> Result<f64> {
         let pix = self.map.pixelization();
-        let valid = self.map.valid();
+        let valid = |i: usize| self.map.is_valid(i);
         Ok(match self.method {
             SamplingMethod::Bilinear => {
                 push_linear(&pix.bilinear_weights(dir)?, valid, pixels, weights)
             }
             SamplingMethod::Nearest => {
                 let i = pix.pixel_of(dir);
-                if valid[i as usize] {
+                if valid(i as usize) {
                     pixels.push(i);
                     weights.push(1.0);
                 }
@@ -917,7 +1011,7 @@ impl TileSampler<'_> {
                     .filter(|&&(_, wt)| wt != 0.0)
                     .map(|&(p, wt)| Ok((ring_to_map(pix, p)?, wt)))
                     .collect::<Result<Vec<_>>>()?;
-                if cubic.iter().all(|&(i, _)| valid[i as usize]) {
+                if cubic.iter().all(|&(i, _)| valid(i as usize)) {
                     for (i, wt) in cubic {
                         pixels.push(i);
                         weights.push(wt);
@@ -936,13 +1030,13 @@ impl TileSampler<'_> {
 /// weight at valid pixels and returns their sum (1 when there is none).
 fn push_linear(
     pairs: &[(u64, f64)],
-    valid: &[bool],
+    valid: impl Fn(usize) -> bool,
     pixels: &mut Vec<u64>,
     weights: &mut Vec<f64>,
 ) -> f64 {
     let mut wsum = 0.0;
     for &(i, wt) in pairs {
-        if wt > 0.0 && valid[i as usize] {
+        if wt > 0.0 && valid(i as usize) {
             pixels.push(i);
             weights.push(wt);
             wsum += wt;
