@@ -230,6 +230,9 @@ impl SkyRecipe {
             }
             transform.synthesis(&alm)?
         };
+        // the coefficients are not needed any more: the map's valid-pixel record is made
+        // without them beside it
+        drop(alm);
         if let Some(sigma) = noise_sigma {
             for v in values.iter_mut() {
                 let n: f64 = StandardNormal.sample(&mut *rng);
