@@ -617,39 +617,21 @@ impl HarmonicTransform {
         accumulate: bool,
     ) {
         let rec = OrderRecurrence::new(m, self.lmax);
-        let norm = self.log2_norms[m];
+        let (norm, pairs, acc) = (self.log2_norms[m], &self.pairs, accumulate);
         // SAFETY (both arms): the kernel variant was chosen from the CPU's reported features.
         #[cfg(target_arch = "x86_64")]
         match self.kernel {
             LegendreKernel::Avx512Fma => {
-                unsafe {
-                    fused::analysis_order_avx512(
-                        &rec,
-                        norm,
-                        &self.pairs,
-                        ring_sums,
-                        out,
-                        accumulate,
-                    )
-                };
+                unsafe { fused::analysis_order_avx512(&rec, norm, pairs, ring_sums, out, acc) };
                 return;
             }
             LegendreKernel::Avx2Fma => {
-                unsafe {
-                    fused::analysis_order_avx2(&rec, norm, &self.pairs, ring_sums, out, accumulate)
-                };
+                unsafe { fused::analysis_order_avx2(&rec, norm, pairs, ring_sums, out, acc) };
                 return;
             }
             LegendreKernel::Portable => {}
         }
-        analysis_order::<PlainMulAdd, ANALYSIS_LANES>(
-            &rec,
-            norm,
-            &self.pairs,
-            ring_sums,
-            out,
-            accumulate,
-        );
+        analysis_order::<PlainMulAdd, ANALYSIS_LANES>(&rec, norm, pairs, ring_sums, out, acc);
     }
 }
 
