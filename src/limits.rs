@@ -156,12 +156,15 @@ pub fn check_memory(what: &str, bytes: f64) -> Result<()> {
     Ok(())
 }
 
-/// Estimated bytes to simulate one sky of NSIDE `nside` up to `lmax`: the map, a work copy and
-/// the ring buffers (3 × 8 bytes per pixel) and the a_ℓm (16 bytes × (ℓmax+1)(ℓmax+2)/2).
-pub fn sky_bytes(nside: u32, lmax: usize) -> f64 {
+/// Estimated bytes to simulate one sky of NSIDE `nside` up to `lmax`: the map and its validity
+/// flags (9 bytes per pixel) and the a_ℓm (16 bytes × (ℓmax+1)(ℓmax+2)/2); a lognormal sky
+/// adds a second map (the analysis of its beam step) and a second set of a_ℓm. The ring sums
+/// and FFT plans of the transform are a few MB.
+pub fn sky_bytes(nside: u32, lmax: usize, lognormal: bool) -> f64 {
     let npix = 12.0 * (nside as f64).powi(2);
     let alm = (lmax as f64 + 1.0) * (lmax as f64 + 2.0) / 2.0;
-    24.0 * npix + 16.0 * alm
+    let copies = if lognormal { 2.0 } else { 1.0 };
+    npix + copies * (8.0 * npix + 16.0 * alm)
 }
 
 /// Estimated bytes of a flat synthesis of an n × n field with J scales and L orientations:

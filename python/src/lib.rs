@@ -700,7 +700,7 @@ fn spectra<'py>(
             )?;
             let fp = planisphere::sky::apodization::taper_footprint(raw, taper_kind, taper_arcmin)?;
             let (pseudo, s) = planisphere::harmonics::spectra::measure_spectra(
-                (&map, &name),
+                (map, &name),
                 other.as_ref().map(|o| (o, cross_name.as_str())),
                 &fp,
                 lmax,

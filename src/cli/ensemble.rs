@@ -130,7 +130,7 @@ impl RecipeFile {
         crate::limits::check_lmax("recipe lmax", lmax, self.nside)?;
         crate::limits::check_memory(
             &format!("a NSIDE {} sky up to ℓ = {lmax}", self.nside),
-            crate::limits::sky_bytes(self.nside, lmax),
+            crate::limits::sky_bytes(self.nside, lmax, self.lognormal_shift.is_some()),
         )?;
         let spectrum = match &self.spectrum {
             Some(p) => AngularSpectrum::read_text(p)?,

@@ -95,7 +95,7 @@ pub fn run(args: &SpectraArgs) -> Result<()> {
     let footprint = args.mask.footprint_for(&map, &args.map)?;
     let other_name = args.cross.as_ref().map(|p| p.display().to_string());
     let (pseudo, s) = measure_spectra(
-        (&map, &args.map.display().to_string()),
+        (map, &args.map.display().to_string()),
         other.as_ref().zip(other_name.as_deref()),
         &footprint,
         args.lmax,

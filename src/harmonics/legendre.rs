@@ -311,6 +311,8 @@ pub(crate) fn synthesis_order<A: MulAdd, const L: usize>(
 /// X = G_north + G_south for even ℓ − m and G_north − G_south for odd ℓ − m, where `ring_sums`
 /// gives (G_north, G_south) of every pair (the weighted azimuthal sums of the map).
 ///
+/// With `accumulate`, the sums are added to `out` (a Jacobi correction) instead of replacing it.
+///
 /// Each block adds its lanes' products into per-lane partial sums `acc` (one row of 2L values
 /// per ℓ); the lanes are summed once at the end in a fixed pairwise order, so the result does
 /// not depend on scheduling.
@@ -324,6 +326,7 @@ pub(crate) fn analysis_order<A: MulAdd, const L: usize>(
     pairs: &RingPairs,
     ring_sums: &dyn Fn(usize) -> (Complex64, Complex64),
     out: &mut [Complex64],
+    accumulate: bool,
 ) {
     let m = rec.m;
     let n = rec.lmax - m;
@@ -410,7 +413,9 @@ pub(crate) fn analysis_order<A: MulAdd, const L: usize>(
     }
     for (k, o) in out.iter_mut().enumerate() {
         let row = &acc[k * 2 * L..(k + 1) * 2 * L];
-        *o = Complex64::new(pairwise_sum::<L>(&row[..L]), pairwise_sum::<L>(&row[L..])) * rec.c[k];
+        let v =
+            Complex64::new(pairwise_sum::<L>(&row[..L]), pairwise_sum::<L>(&row[L..])) * rec.c[k];
+        *o = if accumulate { *o + v } else { v };
     }
 }
 

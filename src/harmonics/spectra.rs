@@ -19,6 +19,7 @@ use crate::harmonics::{gaussian_beam, HarmonicTransform};
 use crate::sky::footprint::FootprintOf;
 use crate::sky::pixelization::Ordering;
 use crate::sky::skymap::SkyMap;
+use std::borrow::Cow;
 use std::fmt::Write as _;
 
 /// One bin of a binned spectrum.
@@ -49,37 +50,6 @@ pub struct MeasuredSpectrum {
     pub w2: f64,
     /// mean(W⁴) over the sky.
     pub w4: f64,
-}
-
-/// Values of `map` in RING order with invalid pixels set to 0, and the matching weights.
-/// A map already in RING order is read in place (no full-sky copy).
-fn ring_values(map: &SkyMap, weights: Option<&FootprintOf<'_>>) -> Result<(Vec<f64>, Vec<f64>)> {
-    let reordered;
-    let map = if map.ordering() == Ordering::Ring {
-        map
-    } else {
-        reordered = map.to_ordering(Ordering::Ring)?;
-        &reordered
-    };
-    let w: Vec<f64> = match weights {
-        Some(fp) => fp.restricted_to(map)?.into_weights(),
-        None => {
-            if map.valid_count() != map.pixelization().npix() {
-                return Err(Error::Data(format!(
-                    "the map has {} bad pixels: give a mask to measure a pseudo-spectrum",
-                    map.pixelization().npix() - map.valid_count()
-                )));
-            }
-            vec![1.0; map.values().len()]
-        }
-    };
-    let v = map
-        .values()
-        .iter()
-        .zip(&w)
-        .map(|(&x, &wt)| if wt > 0.0 { x } else { 0.0 })
-        .collect();
-    Ok((v, w))
 }
 
 /// Bins `cl` in `width`-wide bins from `ell_min` to `cl.len() − 1`, with ν = Σ(2ℓ+1)·w2²/w4.
@@ -157,8 +127,9 @@ impl MeasuredSpectrum {
 pub struct PseudoSpectrum {
     /// C̃_ℓ, ℓ = 0 … ℓmax of the transform.
     pub raw: Vec<f64>,
-    /// The weights W in RING order (both maps' bad pixels have weight 0).
-    pub weights: Vec<f64>,
+    /// The weights W in RING order (both maps' bad pixels have weight 0); `None` when W ≡ 1
+    /// (no footprint given: a full sky without bad pixels).
+    pub weights: Option<Vec<f64>>,
     /// mean(W²) over the sky.
     pub w2: f64,
     /// mean(W⁴) over the sky.
@@ -173,61 +144,155 @@ pub fn pseudo_spectrum(
     sht: &HarmonicTransform,
     iterations: usize,
 ) -> Result<PseudoSpectrum> {
-    if a.nside() != b.nside() {
-        return Err(Error::Mismatch(format!(
-            "maps of NSIDE {} and {} cannot be cross-correlated",
-            a.nside(),
-            b.nside()
-        )));
-    }
-    if sht.nside() != a.nside() as usize {
-        return Err(Error::Mismatch(format!(
-            "transform set up for NSIDE {} but the map has NSIDE {}",
-            sht.nside(),
-            a.nside()
-        )));
-    }
-    // An auto-spectrum reads its map once; full-sky arrays are reused in place below (at
-    // NSIDE 1024 each is 100 MB).
-    let same = std::ptr::eq(a, b);
-    let (mut va, mut w) = ring_values(a, weights)?;
-    let mut vb = None;
-    if !same {
-        let (v, wb) = ring_values(b, weights)?;
-        // both maps' bad pixels leave the footprint
-        for (x, y) in w.iter_mut().zip(&wb) {
-            *x = x.min(*y);
+    // An auto-spectrum reads its map once.
+    let b = (!std::ptr::eq(a, b)).then_some(b);
+    weighted_pseudo_spectrum(Cow::Borrowed(a), b, weights, sht, iterations)
+}
+
+/// [`pseudo_spectrum`] of a map with itself, the map given up: it is weighted and transformed
+/// in its own storage, so that beside it only the coefficients are held.
+pub fn auto_pseudo_spectrum_owned(
+    map: SkyMap,
+    weights: Option<&FootprintOf<'_>>,
+    sht: &HarmonicTransform,
+    iterations: usize,
+) -> Result<PseudoSpectrum> {
+    weighted_pseudo_spectrum(Cow::Owned(map), None, weights, sht, iterations)
+}
+
+/// `map` in RING order (a copy only when it is in another ordering).
+fn in_ring_order(map: Cow<'_, SkyMap>) -> Result<Cow<'_, SkyMap>> {
+    Ok(if map.ordering() == Ordering::Ring {
+        map
+    } else {
+        Cow::Owned(map.to_ordering(Ordering::Ring)?)
+    })
+}
+
+/// The pseudo-spectrum of `a` with `b` (with itself when `b` is `None`). The weights are read
+/// pixel by pixel: W_p is the footprint's weight (1 without a footprint) where both maps are
+/// valid and 0 elsewhere, exactly the weights of the footprint restricted to both maps; the
+/// weighted map (v_p − mean)·W_p, v_p = 0 where W_p = 0, is the only full-sky array made (none
+/// for an owned auto-spectrum, weighted in place). The weights are stored as one array only
+/// for the result (with a footprint), after the transforms.
+fn weighted_pseudo_spectrum(
+    a: Cow<'_, SkyMap>,
+    b: Option<&SkyMap>,
+    weights: Option<&FootprintOf<'_>>,
+    sht: &HarmonicTransform,
+    iterations: usize,
+) -> Result<PseudoSpectrum> {
+    for m in std::iter::once(&*a).chain(b) {
+        if m.nside() != a.nside() {
+            return Err(Error::Mismatch(format!(
+                "maps of NSIDE {} and {} cannot be cross-correlated",
+                a.nside(),
+                m.nside()
+            )));
         }
-        vb = Some(v);
+        if sht.nside() != m.nside() as usize {
+            return Err(Error::Mismatch(format!(
+                "transform set up for NSIDE {} but the map has NSIDE {}",
+                sht.nside(),
+                m.nside()
+            )));
+        }
+        if weights.is_none() && m.valid_count() != m.pixelization().npix() {
+            return Err(Error::Data(format!(
+                "the map has {} bad pixels: give a mask to measure a pseudo-spectrum",
+                m.pixelization().npix() - m.valid_count()
+            )));
+        }
     }
-    let wsum: f64 = w.iter().sum();
+    let a = in_ring_order(a)?;
+    let b = b.map(|b| in_ring_order(Cow::Borrowed(b))).transpose()?;
+    let footprint = match weights {
+        Some(fp) => {
+            fp.check_map_nside(a.nside())?;
+            Some(if fp.pixelization().ordering() == Ordering::Ring {
+                Cow::Borrowed(fp)
+            } else {
+                Cow::Owned(fp.to_ordering(Ordering::Ring)?)
+            })
+        }
+        None => None,
+    };
+    let footprint_weights = footprint.as_ref().map(|fp| fp.weights());
+    // W_p of a pixel valid (or not) in both maps.
+    let weight = |p: usize, valid: bool| match &footprint_weights {
+        None => 1.0,
+        Some(w) if valid => w.get(p),
+        Some(_) => 0.0,
+    };
+    let valid = |p: usize| a.valid()[p] && b.as_ref().is_none_or(|b| b.valid()[p]);
+    let npix = a.values().len();
+    let (mut wsum, mut sum2, mut sum4) = (0.0f64, 0.0f64, 0.0f64);
+    for p in 0..npix {
+        let w = weight(p, valid(p));
+        wsum += w;
+        sum2 += w * w;
+        sum4 += w.powi(4);
+    }
     if wsum <= 0.0 {
+        if let (Some(fp), false) = (weights, b.is_some()) {
+            // the footprint's own message (an empty mask, or one on bad pixels only)
+            fp.restricted_to(&a)?;
+        }
         return Err(Error::Data("the footprint is empty".into()));
     }
-    let npix = w.len() as f64;
-    let w2 = w.iter().map(|x| x * x).sum::<f64>() / npix;
-    let w4 = w.iter().map(|x| x.powi(4)).sum::<f64>() / npix;
-    // (v − weighted mean)·W, in place
-    let weigh = |v: &mut [f64]| {
-        let mean = v.iter().zip(&w).map(|(x, wt)| x * wt).sum::<f64>() / wsum;
-        for (x, wt) in v.iter_mut().zip(&w) {
-            *x = (*x - mean) * wt;
+    let w2 = sum2 / npix as f64;
+    let w4 = sum4 / npix as f64;
+    // The W-weighted mean of v, then (v − mean)·W.
+    let mean_of = |m: &SkyMap| {
+        let values = m.values();
+        let mut sum = 0.0f64;
+        for p in 0..npix {
+            let w = weight(p, valid(p));
+            let v = if w > 0.0 { values[p] } else { 0.0 };
+            sum += v * w;
         }
+        sum / wsum
     };
-    weigh(&mut va);
-    let alm_a = sht.analysis(&va, iterations)?;
-    drop(va);
-    let raw = match vb {
-        None => alm_a.power_spectrum(),
-        Some(mut vb) => {
-            weigh(&mut vb);
-            let alm_b = sht.analysis(&vb, iterations)?;
-            alm_a.cross_spectrum(&alm_b)?
+    let weighted_copy = |m: &SkyMap, mean: f64| -> Vec<f64> {
+        let values = m.values();
+        (0..npix)
+            .map(|p| {
+                let w = weight(p, valid(p));
+                let v = if w > 0.0 { values[p] } else { 0.0 };
+                (v - mean) * w
+            })
+            .collect()
+    };
+    // Stored before an owned map is given up (its valid pixels go with it).
+    let weights: Option<Vec<f64>> = footprint
+        .as_ref()
+        .map(|_| (0..npix).map(|p| weight(p, valid(p))).collect());
+    let mean_a = mean_of(&a);
+    let raw = match a {
+        Cow::Owned(a) if b.is_none() => {
+            let mut values = a.into_values();
+            for (p, x) in values.iter_mut().enumerate() {
+                // an owned map holds NaN exactly at its invalid pixels
+                let w = weight(p, !x.is_nan());
+                let v = if w > 0.0 { *x } else { 0.0 };
+                *x = (v - mean_a) * w;
+            }
+            sht.analysis_owned(values, iterations)?.power_spectrum()
+        }
+        _ => {
+            let alm_a = sht.analysis_owned(weighted_copy(&a, mean_a), iterations)?;
+            match b.as_deref() {
+                None => alm_a.power_spectrum(),
+                Some(b) => {
+                    let alm_b = sht.analysis_owned(weighted_copy(b, mean_of(b)), iterations)?;
+                    alm_a.cross_spectrum(&alm_b)?
+                }
+            }
         }
     };
     Ok(PseudoSpectrum {
         raw,
-        weights: w,
+        weights,
         w2,
         w4,
     })
@@ -311,14 +376,17 @@ pub fn master_spectrum(
     let binning = Binning::uniform(2, lmax, settings.bin_width, settings.weighting)?;
     let transfer = beam_and_pixel_transfer(fwhm, settings.pixel_window, nside, lmax)?;
     let lmax_w = (2 * lmax).min(3 * nside - 1);
-    let sht_w = HarmonicTransform::new(nside, lmax_w)?;
-    let weight_cl = if pseudo.weights.iter().all(|&w| w == 1.0) {
-        // W ≡ 1: W_ℓ = 4π δ_ℓ0 exactly (the quadrature would add ~1e-7 relative noise at even ℓ)
-        let mut exact = vec![0.0; lmax_w + 1];
-        exact[0] = 4.0 * std::f64::consts::PI;
-        exact
-    } else {
-        weight_spectrum(&pseudo.weights, &sht_w, iterations)?
+    let weight_cl = match &pseudo.weights {
+        Some(w) if w.iter().any(|&w| w != 1.0) => {
+            weight_spectrum(w, &HarmonicTransform::new(nside, lmax_w)?, iterations)?
+        }
+        _ => {
+            // W ≡ 1: W_ℓ = 4π δ_ℓ0 exactly (the quadrature would add ~1e-7 relative noise at
+            // even ℓ)
+            let mut exact = vec![0.0; lmax_w + 1];
+            exact[0] = 4.0 * std::f64::consts::PI;
+            exact
+        }
     };
     let coupling = CouplingMatrix::new(&weight_cl, lmax)?;
     let master = MasterDeconvolution::new(&coupling, binning.clone(), &transfer)?;
@@ -407,9 +475,10 @@ impl MasterSettings {
 /// on `footprint` up to `lmax` (default 2·NSIDE) and its band powers ([`master_spectrum`]),
 /// after the checks of the command (settings, ℓmax, iterations, something to measure on the
 /// footprint, a power-of-two NSIDE for the pixel window). Maps come with the names their
-/// messages use.
+/// messages use; `map` is given up (an auto-spectrum is weighted and transformed in its
+/// storage).
 pub fn measure_spectra(
-    map: (&SkyMap, &str),
+    map: (SkyMap, &str),
     other: Option<(&SkyMap, &str)>,
     footprint: &FootprintOf<'_>,
     lmax: Option<usize>,
@@ -427,7 +496,7 @@ pub fn measure_spectra(
         ));
     }
     crate::limits::check_lmax("--lmax", lmax, map.nside())?;
-    crate::sky::measurable::check_measurable(map, Some(footprint), label)?;
+    crate::sky::measurable::check_measurable(&map, Some(footprint), label)?;
     if let Some((o, name)) = other {
         crate::sky::measurable::check_measurable(o, Some(footprint), name)?;
     }
@@ -438,8 +507,10 @@ pub fn measure_spectra(
         )));
     }
     let sht = HarmonicTransform::new(nside, lmax)?;
-    let second = other.map_or(map, |(o, _)| o);
-    let pseudo = pseudo_spectrum(map, second, weights, &sht, iterations)?;
+    let pseudo = match other {
+        None => auto_pseudo_spectrum_owned(map, weights, &sht, iterations)?,
+        Some((o, _)) => pseudo_spectrum(&map, o, weights, &sht, iterations)?,
+    };
     let master = master_spectrum(&pseudo, nside, iterations, settings)?;
     Ok((pseudo, master))
 }

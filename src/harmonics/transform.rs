@@ -46,20 +46,25 @@ const _: () = assert!(ANALYSIS_LANES.is_power_of_two());
 /// Target size of one band of ring sums (all rings, a band of orders m) in the banded stages:
 /// a few MB instead of (lmax + 1) × rings complex values (201 MB at NSIDE 1024).
 const BAND_BYTES: usize = 4 << 20;
-/// Most bands in analysis, which repeats the real FFT of every ring per band (each pass costs
-/// about 2% of an analysis at NSIDE 512 and 1024): 3 bands keep the CPU time within a few % of
-/// a single pass while its ring sums take a third of the memory.
-const ANALYSIS_MAX_BANDS: usize = 3;
+/// Fewest orders per band for each worker thread, so that the parallel Legendre stage of a
+/// band keeps every thread busy (the band width never changes the results' bits).
+const ORDERS_PER_THREAD: usize = 4;
 
 /// Synthesis and analysis for one (Nside, lmax); owns the ring geometry and the FFT plans and is
 /// meant to be built once and shared (it is `Sync`).
+///
+/// Of the FFT plans it keeps only the two of the 4·Nside-pixel rings of the equatorial belt
+/// (2·Nside + 1 rings); each polar-cap ring length 4i (i < Nside, one ring in each cap) is
+/// planned when its two rings are transformed and dropped after. Keeping a plan for every
+/// length would take memory of the order of the map itself (about 50 MB at NSIDE 1024, growing
+/// as NSIDE²), for a planning cost of a few per cent of one transform.
 pub struct HarmonicTransform {
     geometry: RingGeometry,
     lmax: usize,
     pairs: RingPairs,
     log2_norms: Vec<f64>,
-    forward: Vec<Arc<dyn RealToComplex<f64>>>,
-    inverse: Vec<Arc<dyn ComplexToReal<f64>>>,
+    equator_forward: Arc<dyn RealToComplex<f64>>,
+    equator_inverse: Arc<dyn ComplexToReal<f64>>,
     kernel: LegendreKernel,
 }
 
@@ -217,20 +222,12 @@ impl HarmonicTransform {
             sin_theta: rings[..npairs].iter().map(|r| r.sin_theta).collect(),
         };
         let mut planner = RealFftPlanner::<f64>::new();
-        let forward = rings
-            .iter()
-            .map(|r| planner.plan_fft_forward(r.pixel_count))
-            .collect();
-        let inverse = rings
-            .iter()
-            .map(|r| planner.plan_fft_inverse(r.pixel_count))
-            .collect();
         Ok(HarmonicTransform {
             lmax,
             pairs,
             log2_norms: log2_sectoral_norms(lmax),
-            forward,
-            inverse,
+            equator_forward: planner.plan_fft_forward(4 * nside),
+            equator_inverse: planner.plan_fft_inverse(4 * nside),
             kernel,
             geometry,
         })
@@ -275,9 +272,65 @@ impl HarmonicTransform {
         }
     }
 
+    /// Rings that share a real-FFT plan, with the values of each ring (`per_ring`, in ring
+    /// order): the two rings of each polar-cap length (north and south), then each ring of the
+    /// equatorial belt alone.
+    fn plan_groups<T>(&self, per_ring: Vec<T>) -> Vec<Vec<(usize, T)>> {
+        let last = self.ring_count() - 1;
+        let polar = self.nside() - 1;
+        let mut slots: Vec<Option<T>> = per_ring.into_iter().map(Some).collect();
+        let mut take = |q: usize| (q, slots[q].take().expect("each ring once"));
+        let mut groups = Vec::with_capacity(self.ring_count() - polar);
+        for p in 0..polar {
+            groups.push(vec![take(p), take(last - p)]);
+        }
+        for q in polar..=last - polar {
+            groups.push(vec![take(q)]);
+        }
+        groups
+    }
+
+    /// The forward real-FFT plan of rings of `n` pixels (kept for the equatorial length,
+    /// planned anew for a polar-cap one).
+    fn forward_plan(&self, n: usize) -> Arc<dyn RealToComplex<f64>> {
+        if n == self.equator_forward.len() {
+            Arc::clone(&self.equator_forward)
+        } else {
+            RealFftPlanner::<f64>::new().plan_fft_forward(n)
+        }
+    }
+
+    /// The inverse real-FFT plan of rings of `n` pixels (see [`Self::forward_plan`]).
+    fn inverse_plan(&self, n: usize) -> Arc<dyn ComplexToReal<f64>> {
+        if n == self.equator_inverse.len() {
+            Arc::clone(&self.equator_inverse)
+        } else {
+            RealFftPlanner::<f64>::new().plan_fft_inverse(n)
+        }
+    }
+
+    /// `values` (RING order, the whole map) cut into its rings.
+    fn ring_slices<'v>(&self, values: &'v mut [f64]) -> Vec<&'v mut [f64]> {
+        let mut out = Vec::with_capacity(self.ring_count());
+        let mut rest = values;
+        for ring in self.geometry.rings() {
+            let (head, tail) = rest.split_at_mut(ring.pixel_count);
+            out.push(head);
+            rest = tail;
+        }
+        out
+    }
+
     /// Map values (RING order, 12 Nside² pixels) of f = Σ_ℓm a_ℓm Y_ℓm for real-map
     /// coefficients (healpy 1.20.1 `alm2map`). `alm.lmax()` must equal the transform's lmax.
     pub fn synthesis(&self, alm: &HarmonicCoefficients) -> Result<Vec<f64>> {
+        self.check_lmax(alm)?;
+        let mut map = vec![0.0; self.pixel_count()];
+        self.synthesis_into(alm, &mut map);
+        Ok(map)
+    }
+
+    fn check_lmax(&self, alm: &HarmonicCoefficients) -> Result<()> {
         if alm.lmax() != self.lmax {
             return Err(Error::Mismatch(format!(
                 "coefficients have lmax {}, the transform was built for lmax {}",
@@ -285,20 +338,19 @@ impl HarmonicTransform {
                 self.lmax
             )));
         }
+        Ok(())
+    }
+
+    /// [`Self::synthesis`] written over `map` (its 12 Nside² values are replaced).
+    fn synthesis_into(&self, alm: &HarmonicCoefficients, map: &mut [f64]) {
         let lmax = self.lmax;
         let stride = 2 * self.pairs.len();
-        let band = self.orders_per_band(usize::MAX);
+        let band = self.orders_per_band();
         // Each ring's half spectrum is accumulated in place in its slice of the map, packed as
         // [Re X_0, Re X_{n/2}, Re X_1, Im X_1, …] (the imaginary parts of the DC and Nyquist
         // bins are dropped: they are set to zero before the inverse FFT anyway).
-        let mut map = vec![0.0; self.pixel_count()];
-        let mut ring_slices = Vec::with_capacity(self.ring_count());
-        let mut rest: &mut [f64] = &mut map;
-        for ring in self.geometry.rings() {
-            let (head, tail) = rest.split_at_mut(ring.pixel_count);
-            ring_slices.push(head);
-            rest = tail;
-        }
+        map.fill(0.0);
+        let mut ring_slices = self.ring_slices(map);
         // Ring sums F_m of every ring for one band of orders at a time, m-major.
         let mut sums = vec![Complex64::new(0.0, 0.0); band.min(lmax + 1) * stride];
         for m0 in (0..=lmax).step_by(band) {
@@ -354,32 +406,66 @@ impl HarmonicTransform {
                 });
         }
         drop(sums);
-        // Inverse real FFT of each ring, in place.
-        ring_slices
+        // Inverse real FFT of each ring, in place, one plan per group of rings of one length.
+        self.plan_groups(ring_slices)
             .into_par_iter()
-            .enumerate()
-            .for_each(|(q, values)| {
-                let n = values.len();
-                let half = n / 2;
-                let mut spectrum = vec![Complex64::new(0.0, 0.0); half + 1];
-                // Hermitian: the DC and Nyquist bins are real (n is always even).
-                spectrum[0] = Complex64::new(values[0], 0.0);
-                spectrum[half] = Complex64::new(values[1], 0.0);
-                for (k, x) in spectrum.iter_mut().enumerate().take(half).skip(1) {
-                    *x = Complex64::new(values[2 * k], values[2 * k + 1]);
-                }
-                let plan = &self.inverse[q];
+            .for_each(|group| {
+                let plan = self.inverse_plan(group[0].1.len());
+                let mut spectrum = plan.make_input_vec();
                 let mut scratch = plan.make_scratch_vec();
-                plan.process_with_scratch(&mut spectrum, values, &mut scratch)
-                    .expect("FFT buffers sized from the plan");
+                for (_, values) in group {
+                    let half = values.len() / 2;
+                    // Hermitian: the DC and Nyquist bins are real (n is always even).
+                    spectrum[0] = Complex64::new(values[0], 0.0);
+                    spectrum[half] = Complex64::new(values[1], 0.0);
+                    for (k, x) in spectrum.iter_mut().enumerate().take(half).skip(1) {
+                        *x = Complex64::new(values[2 * k], values[2 * k + 1]);
+                    }
+                    plan.process_with_scratch(&mut spectrum, values, &mut scratch)
+                        .expect("FFT buffers sized from the plan");
+                }
             });
-        Ok(map)
     }
 
     /// Coefficients a_ℓm up to lmax of a RING-ordered map with `iterations` Jacobi refinements
     /// (healpy 1.20.1 `map2alm(map, lmax, mmax=lmax, iter=iterations, use_weights=False)`;
     /// [`DEFAULT_ANALYSIS_ITERATIONS`] = 3 is healpy's default).
+    ///
+    /// Memory beyond the map and the coefficients: one map-sized work array (the ring spectra,
+    /// then the residuals of the iterations) and a few MB; [`Self::analysis_owned`] works in the
+    /// caller's array instead when there are no iterations.
     pub fn analysis(&self, map: &[f64], iterations: usize) -> Result<HarmonicCoefficients> {
+        self.check_map(map)?;
+        let mut work = map.to_vec();
+        let mut alm = HarmonicCoefficients::zeros(self.lmax);
+        self.analysis_in_place(&mut work, &mut alm, false);
+        for _ in 0..iterations {
+            self.synthesis_into(&alm, &mut work);
+            for (r, m) in work.iter_mut().zip(map) {
+                *r = m - *r;
+            }
+            self.analysis_in_place(&mut work, &mut alm, true);
+        }
+        Ok(alm)
+    }
+
+    /// As [`Self::analysis`], using `map`'s own storage for the ring spectra when `iterations`
+    /// is 0 (no second map-sized array; the values are consumed).
+    pub fn analysis_owned(
+        &self,
+        mut map: Vec<f64>,
+        iterations: usize,
+    ) -> Result<HarmonicCoefficients> {
+        if iterations > 0 {
+            return self.analysis(&map, iterations);
+        }
+        self.check_map(&map)?;
+        let mut alm = HarmonicCoefficients::zeros(self.lmax);
+        self.analysis_in_place(&mut map, &mut alm, false);
+        Ok(alm)
+    }
+
+    fn check_map(&self, map: &[f64]) -> Result<()> {
         if map.len() != self.pixel_count() {
             return Err(Error::Mismatch(format!(
                 "map has {} pixels, NSIDE {} needs {}",
@@ -394,24 +480,44 @@ impl HarmonicTransform {
                 map[p]
             )));
         }
-        let mut alm = self.analysis_once(map);
-        for _ in 0..iterations {
-            let resynth = self.synthesis(&alm)?;
-            let residual: Vec<f64> = map.iter().zip(&resynth).map(|(a, b)| a - b).collect();
-            let correction = self.analysis_once(&residual);
-            for (a, c) in alm.as_mut_slice().iter_mut().zip(correction.as_slice()) {
-                *a += *c;
-            }
-        }
-        Ok(alm)
+        Ok(())
     }
 
-    /// One quadrature pass A(map).
-    fn analysis_once(&self, map: &[f64]) -> HarmonicCoefficients {
+    /// One quadrature pass A(values), written into `alm` (added to it when `accumulate`).
+    /// `values` (RING order) is overwritten with each ring's half spectrum, packed as in
+    /// synthesis.
+    fn analysis_in_place(
+        &self,
+        values: &mut [f64],
+        alm: &mut HarmonicCoefficients,
+        accumulate: bool,
+    ) {
         let lmax = self.lmax;
         let weight = 4.0 * std::f64::consts::PI / self.pixel_count() as f64;
         let rings = self.geometry.rings();
-        let mut alm = HarmonicCoefficients::zeros(lmax);
+        // Real FFT of every ring, once, into its own slice.
+        self.plan_groups(self.ring_slices(values))
+            .into_par_iter()
+            .for_each(|group| {
+                let plan = self.forward_plan(group[0].1.len());
+                let mut input = plan.make_input_vec();
+                let mut spectrum = plan.make_output_vec();
+                let mut scratch = plan.make_scratch_vec();
+                for (_, values) in group {
+                    let half = values.len() / 2;
+                    input.copy_from_slice(values);
+                    plan.process_with_scratch(&mut input, &mut spectrum, &mut scratch)
+                        .expect("FFT buffers sized from the plan");
+                    // DC and Nyquist bins are real (their imaginary parts are exactly 0).
+                    values[0] = spectrum[0].re;
+                    values[1] = spectrum[half].re;
+                    for k in 1..half {
+                        values[2 * k] = spectrum[k].re;
+                        values[2 * k + 1] = spectrum[k].im;
+                    }
+                }
+            });
+        let values = &*values;
         let mut order_slices = Vec::with_capacity(lmax + 1);
         let mut rest: &mut [Complex64] = alm.as_mut_slice();
         for m in 0..=lmax {
@@ -419,9 +525,7 @@ impl HarmonicTransform {
             order_slices.push(Some(head));
             rest = tail;
         }
-        // Each band repeats the real FFT of every ring (cheaper than keeping all their
-        // spectra, which would be as large as the map): few, larger bands.
-        let band = self.orders_per_band(ANALYSIS_MAX_BANDS);
+        let band = self.orders_per_band();
         let last_ring = self.ring_count() - 1;
         let npairs = self.pairs.len();
         // Weighted azimuthal sums G_m of every ring for one band of orders, ring-major.
@@ -435,20 +539,20 @@ impl HarmonicTransform {
                 let ring = &rings[q];
                 let n = ring.pixel_count;
                 let half = n / 2;
-                let plan = &self.forward[q];
-                let mut values = map[ring.first_pixel..ring.first_pixel + n].to_vec();
-                let mut spectrum = plan.make_output_vec();
-                let mut scratch = plan.make_scratch_vec();
-                plan.process_with_scratch(&mut values, &mut spectrum, &mut scratch)
-                    .expect("FFT buffers sized from the plan");
+                let packed = &values[ring.first_pixel..ring.first_pixel + n];
+                let bin = |k: usize| {
+                    if k == 0 {
+                        Complex64::new(packed[0], 0.0)
+                    } else if k == half {
+                        Complex64::new(packed[1], 0.0)
+                    } else {
+                        Complex64::new(packed[2 * k], packed[2 * k + 1])
+                    }
+                };
                 let mut phases = PhaseWalk::new(ring.phi0);
                 for (o, m) in out.iter_mut().zip(m0..m1) {
                     let k = m % n;
-                    let c = if k <= half {
-                        spectrum[k]
-                    } else {
-                        spectrum[n - k].conj()
-                    };
+                    let c = if k <= half { bin(k) } else { bin(n - k).conj() };
                     let g = if ring.half_pixel_shift {
                         phases.shift(c, m, n, true)
                     } else {
@@ -474,19 +578,16 @@ impl HarmonicTransform {
                         };
                         (north, south)
                     };
-                    self.analysis_order(m, &ring_sums, out);
+                    self.analysis_order(m, &ring_sums, out, accumulate);
                 });
         }
-        alm
     }
 
     /// Orders per band in the banded stages: as many as keep one band's ring sums near
-    /// [`BAND_BYTES`] (at least one), but no more than `max_bands` bands in all.
-    fn orders_per_band(&self, max_bands: usize) -> usize {
+    /// [`BAND_BYTES`], and at least [`ORDERS_PER_THREAD`] per worker thread.
+    fn orders_per_band(&self) -> usize {
         let per_order = self.ring_count() * std::mem::size_of::<Complex64>();
-        (BAND_BYTES / per_order)
-            .max(1)
-            .max((self.lmax + 1).div_ceil(max_bands))
+        (BAND_BYTES / per_order).max(ORDERS_PER_THREAD * rayon::current_num_threads())
     }
 
     fn synthesis_order(&self, m: usize, alm: &[Complex64], out: &mut [Complex64]) {
@@ -513,23 +614,24 @@ impl HarmonicTransform {
         m: usize,
         ring_sums: &dyn Fn(usize) -> (Complex64, Complex64),
         out: &mut [Complex64],
+        accumulate: bool,
     ) {
         let rec = OrderRecurrence::new(m, self.lmax);
-        let norm = self.log2_norms[m];
+        let (norm, pairs, acc) = (self.log2_norms[m], &self.pairs, accumulate);
         // SAFETY (both arms): the kernel variant was chosen from the CPU's reported features.
         #[cfg(target_arch = "x86_64")]
         match self.kernel {
             LegendreKernel::Avx512Fma => {
-                unsafe { fused::analysis_order_avx512(&rec, norm, &self.pairs, ring_sums, out) };
+                unsafe { fused::analysis_order_avx512(&rec, norm, pairs, ring_sums, out, acc) };
                 return;
             }
             LegendreKernel::Avx2Fma => {
-                unsafe { fused::analysis_order_avx2(&rec, norm, &self.pairs, ring_sums, out) };
+                unsafe { fused::analysis_order_avx2(&rec, norm, pairs, ring_sums, out, acc) };
                 return;
             }
             LegendreKernel::Portable => {}
         }
-        analysis_order::<PlainMulAdd, ANALYSIS_LANES>(&rec, norm, &self.pairs, ring_sums, out);
+        analysis_order::<PlainMulAdd, ANALYSIS_LANES>(&rec, norm, pairs, ring_sums, out, acc);
     }
 }
 
@@ -561,8 +663,9 @@ mod fused {
         pairs: &RingPairs,
         ring_sums: &dyn Fn(usize) -> (Complex64, Complex64),
         out: &mut [Complex64],
+        accumulate: bool,
     ) {
-        analysis_order::<FusedMulAdd, ANALYSIS_LANES>(rec, norm, pairs, ring_sums, out)
+        analysis_order::<FusedMulAdd, ANALYSIS_LANES>(rec, norm, pairs, ring_sums, out, accumulate)
     }
 
     /// # Safety
@@ -587,8 +690,9 @@ mod fused {
         pairs: &RingPairs,
         ring_sums: &dyn Fn(usize) -> (Complex64, Complex64),
         out: &mut [Complex64],
+        accumulate: bool,
     ) {
-        analysis_order::<FusedMulAdd, ANALYSIS_LANES>(rec, norm, pairs, ring_sums, out)
+        analysis_order::<FusedMulAdd, ANALYSIS_LANES>(rec, norm, pairs, ring_sums, out, accumulate)
     }
 }
 

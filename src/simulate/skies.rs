@@ -207,16 +207,16 @@ impl SkyRecipe {
         let mut values = if let Some(k0) = shift {
             // The lognormal transform is applied before the beam: the beam belongs to the
             // instrument, the lognormal shape to the sky.
-            let g = transform.synthesis(&alm)?;
             let var_g: f64 = gauss_cl
                 .iter()
                 .enumerate()
                 .map(|(l, c)| (2 * l + 1) as f64 / (4.0 * std::f64::consts::PI) * c)
                 .sum();
-            let kappa: Vec<f64> = g
-                .iter()
-                .map(|&x| k0 * ((x - 0.5 * var_g).exp() - 1.0))
-                .collect();
+            // κ from g in place
+            let mut kappa = transform.synthesis(&alm)?;
+            for x in kappa.iter_mut() {
+                *x = k0 * ((*x - 0.5 * var_g).exp() - 1.0);
+            }
             if let Some(fwhm) = self.beam_fwhm_arcmin {
                 alm = transform.analysis(&kappa, crate::harmonics::DEFAULT_ANALYSIS_ITERATIONS)?;
                 alm.apply_beam(&gaussian_beam((fwhm / 60.0).to_radians(), self.lmax)?)?;
@@ -230,6 +230,9 @@ impl SkyRecipe {
             }
             transform.synthesis(&alm)?
         };
+        // the coefficients are not needed any more: the map's valid-pixel record is made
+        // without them beside it
+        drop(alm);
         if let Some(sigma) = noise_sigma {
             for v in values.iter_mut() {
                 let n: f64 = StandardNormal.sample(&mut *rng);
@@ -289,7 +292,7 @@ impl SkyOptions {
         crate::limits::check_lmax("--lmax", lmax, self.nside)?;
         crate::limits::check_memory(
             &format!("a NSIDE {} sky up to ℓ = {lmax}", self.nside),
-            crate::limits::sky_bytes(self.nside, lmax),
+            crate::limits::sky_bytes(self.nside, lmax, self.lognormal_shift.is_some()),
         )?;
         let spectrum = match &self.spectrum {
             SpectrumChoice::File(path) => AngularSpectrum::read_text(path)?,
