@@ -299,7 +299,7 @@ fn synthesis_streams(order: &SpinOrder, e: &[Complex64], b: &[Complex64]) -> Vec
 /// North P += a⁺ ₛλ, south P += ±a⁺ ₋ₛλ, north P̄ += a⁻ ₋ₛλ, south P̄ += ±a⁻ ₛλ.
 #[inline(always)]
 fn accumulate<A: MulAdd, const L: usize>(
-    sums: &mut [[f64; L]; 8],
+    sums: [&mut [f64; L]; 8],
     c: &[f64; 8],
     mu: &[f64; L],
     nu: &[f64; L],
@@ -342,13 +342,21 @@ fn synthesis_order<A: MulAdd, const L: usize>(
         let (mut mu1, mut smu, mut lmu) = start_lanes(&order.start_plus, rings, &pairs);
         let (mut nu1, mut snu, mut lnu) = start_lanes(&order.start_minus, rings, &pairs);
         let (mut mu0, mut nu0) = ([0.0f64; L], [0.0f64; L]);
-        let mut sums = [[0.0f64; L]; 8];
-        accumulate::<A, L>(
-            &mut sums,
-            &streams[0],
-            &masked(&mu1, &lmu),
-            &masked(&nu1, &lnu),
-        );
+        let [mut s0, mut s1, mut s2, mut s3, mut s4, mut s5, mut s6, mut s7] = [[0.0f64; L]; 8];
+        // The eight lane sums as separate variables, so that they stay in registers.
+        macro_rules! add {
+            ($k:expr, $mu:expr, $nu:expr) => {
+                accumulate::<A, L>(
+                    [
+                        &mut s0, &mut s1, &mut s2, &mut s3, &mut s4, &mut s5, &mut s6, &mut s7,
+                    ],
+                    &streams[$k],
+                    $mu,
+                    $nu,
+                )
+            };
+        }
+        add!(0, &masked(&mu1, &lmu), &masked(&nu1, &lnu));
         let mut k = 1;
         let mut scaled = smu.iter().chain(&snu).any(|&s| s > 0);
         while scaled && k < n {
@@ -356,20 +364,10 @@ fn synthesis_order<A: MulAdd, const L: usize>(
             while pass < PASSES_PER_CHECK && k < n {
                 step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
                 step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
-                accumulate::<A, L>(
-                    &mut sums,
-                    &streams[k],
-                    &masked(&mu0, &lmu),
-                    &masked(&nu0, &lnu),
-                );
+                add!(k, &masked(&mu0, &lmu), &masked(&nu0, &lnu));
                 step::<A, L>(a_k[k + 1], b_k[k + 1], &z, &mu0, &mut mu1);
                 step::<A, L>(a_k[k + 1], -b_k[k + 1], &z, &nu0, &mut nu1);
-                accumulate::<A, L>(
-                    &mut sums,
-                    &streams[k + 1],
-                    &masked(&mu1, &lmu),
-                    &masked(&nu1, &lnu),
-                );
+                add!(k + 1, &masked(&mu1, &lmu), &masked(&nu1, &lnu));
                 k += 2;
                 pass += 1;
             }
@@ -380,22 +378,18 @@ fn synthesis_order<A: MulAdd, const L: usize>(
         while k < n {
             step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
             step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
-            accumulate::<A, L>(&mut sums, &streams[k], &mu0, &nu0);
+            add!(k, &mu0, &nu0);
             step::<A, L>(a_k[k + 1], b_k[k + 1], &z, &mu0, &mut mu1);
             step::<A, L>(a_k[k + 1], -b_k[k + 1], &z, &nu0, &mut nu1);
-            accumulate::<A, L>(&mut sums, &streams[k + 1], &mu1, &nu1);
+            add!(k + 1, &mu1, &nu1);
             k += 2;
         }
         if k == n {
             step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
             step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
-            accumulate::<A, L>(
-                &mut sums,
-                &streams[k],
-                &masked(&mu0, &lmu),
-                &masked(&nu0, &lnu),
-            );
+            add!(k, &masked(&mu0, &lmu), &masked(&nu0, &lnu));
         }
+        let sums = [s0, s1, s2, s3, s4, s5, s6, s7];
         for r in 0..valid {
             let p = pairs[r];
             let pn = Complex64::new(sums[0][r], sums[1][r]);
