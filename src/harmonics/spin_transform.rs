@@ -726,6 +726,25 @@ impl SpinTransform {
     /// The two real maps (RING order) Q = Re P, U = Im P of the spin-s field
     /// P = −Σ_ℓm (E_ℓm + i B_ℓm) ₛY_ℓm (healpy 1.20.1 `alm2map_spin([e, b], nside, spin,
     /// lmax)`). Both coefficient sets must have the transform's lmax; ℓ < s is ignored.
+    ///
+    /// # Examples
+    ///
+    /// E_20 = 1 alone: Q = −₂Y_20 = −√(15/(32π)) sin²θ and U = 0 (₂Y_20 from the explicit sum
+    /// of Goldberg et al. 1967 at ℓ = 2, m = 0, s = 2: √(5/(4π)·C(4, 2)) sin²(θ/2) cos²(θ/2)).
+    /// ```
+    /// use num_complex::Complex64;
+    /// use planisphere::harmonics::{HarmonicCoefficients, RingGeometry, SpinTransform};
+    ///
+    /// let t = SpinTransform::new(1, 2, 2).unwrap();
+    /// let mut e = HarmonicCoefficients::zeros(2);
+    /// e.set(2, 0, Complex64::new(1.0, 0.0));
+    /// let (q, u) = t.synthesis(&e, &HarmonicCoefficients::zeros(2)).unwrap();
+    /// let norm = (15.0 / (32.0 * std::f64::consts::PI)).sqrt();
+    /// for (p, (theta, _)) in RingGeometry::new(1).unwrap().pixel_centres().iter().enumerate() {
+    ///     assert!((q[p] + norm * theta.sin().powi(2)).abs() < 1e-15);
+    ///     assert!(u[p].abs() < 1e-15);
+    /// }
+    /// ```
     pub fn synthesis(
         &self,
         e: &HarmonicCoefficients,
