@@ -51,16 +51,13 @@
 //! rings; each output is computed by one task in a fixed order, so results are bitwise
 //! identical for any thread count.
 
-use std::sync::Arc;
-
 use num_complex::Complex64;
 use rayon::prelude::*;
-use realfft::{ComplexToReal, RealFftPlanner, RealToComplex};
 
 use super::coefficients::HarmonicCoefficients;
 use super::geometry::RingGeometry;
 use super::legendre::{log2_sectoral_norms, rescale, FusedMulAdd, MulAdd, PlainMulAdd, SCALE_LOG2};
-use super::transform::{LegendreKernel, PhaseWalk};
+use super::transform::{HarmonicTransform, LegendreKernel, PhaseWalk};
 use crate::error::{Error, Result};
 
 /// Ring pairs per block in the synthesis kernel with AVX2 (eight accumulators and four
@@ -80,24 +77,21 @@ const ANALYSIS_MAX_BANDS: usize = 3;
 /// Spin-s synthesis and analysis for one (Nside, lmax, s); owns the ring geometry and the FFT
 /// plans, is built once and shared (it is `Sync`).
 pub struct SpinTransform {
-    geometry: RingGeometry,
-    lmax: usize,
+    /// The scalar transform of the same (Nside, lmax): ring geometry, FFT plans, kernel.
+    scalar: HarmonicTransform,
     spin: usize,
     pairs: HalfAngleRings,
     /// log2 √((2ℓ+1)/(4π) · (2ℓ−1)!!/(2ℓ)!!), ℓ = 0 … lmax.
     log2_norms: Vec<f64>,
-    forward: Vec<Arc<dyn RealToComplex<f64>>>,
-    inverse: Vec<Arc<dyn ComplexToReal<f64>>>,
-    kernel: LegendreKernel,
 }
 
 impl std::fmt::Debug for SpinTransform {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         f.debug_struct("SpinTransform")
-            .field("nside", &self.geometry.nside())
-            .field("lmax", &self.lmax)
+            .field("nside", &self.geometry().nside())
+            .field("lmax", &self.lmax())
             .field("spin", &self.spin)
-            .field("kernel", &self.kernel)
+            .field("kernel", &self.scalar.kernel())
             .finish()
     }
 }
@@ -599,26 +593,15 @@ impl SpinTransform {
         spin: usize,
         kernel: LegendreKernel,
     ) -> Result<Self> {
-        if !kernel.is_available() {
-            return Err(Error::Setting(format!(
-                "the {} harmonic transform kernel needs CPU features this machine lacks",
-                kernel.name()
-            )));
-        }
-        let geometry = RingGeometry::new(nside)?;
-        if lmax > 3 * nside - 1 {
-            return Err(Error::Setting(format!(
-                "lmax {lmax} is above 3*NSIDE-1 = {} for NSIDE {nside}",
-                3 * nside - 1
-            )));
-        }
+        // The scalar transform checks the kernel, NSIDE and lmax, and owns the ring geometry
+        // and the FFT plans of the rings, which the spin transform shares.
+        let scalar = HarmonicTransform::with_kernel(nside, lmax, kernel)?;
         if spin == 0 || spin > lmax {
             return Err(Error::Setting(format!(
                 "spin {spin} must be between 1 and lmax = {lmax}"
             )));
         }
-        let rings = geometry.rings();
-        let north = &rings[..2 * nside];
+        let north = &scalar.geometry().rings()[..2 * nside];
         let pairs = HalfAngleRings {
             z: north.iter().map(|r| r.z).collect(),
             // 1 − z = sin²θ/(1 + z) keeps the accuracy of sin θ near the pole.
@@ -631,35 +614,28 @@ impl SpinTransform {
                 .map(|r| 0.5 * (0.5 * (1.0 + r.z)).log2())
                 .collect(),
         };
-        let mut planner = RealFftPlanner::<f64>::new();
-        let forward = rings
-            .iter()
-            .map(|r| planner.plan_fft_forward(r.pixel_count))
-            .collect();
-        let inverse = rings
-            .iter()
-            .map(|r| planner.plan_fft_inverse(r.pixel_count))
-            .collect();
         Ok(SpinTransform {
-            lmax,
             spin,
             pairs,
             log2_norms: log2_sectoral_norms(lmax),
-            forward,
-            inverse,
-            kernel,
-            geometry,
+            scalar,
         })
+    }
+
+    /// The scalar transform of the same grid and lmax (whose ring geometry and FFT plans this
+    /// transform uses).
+    pub fn scalar(&self) -> &HarmonicTransform {
+        &self.scalar
     }
 
     /// HEALPix resolution parameter.
     pub fn nside(&self) -> usize {
-        self.geometry.nside()
+        self.scalar.nside()
     }
 
     /// Largest multipole.
     pub fn lmax(&self) -> usize {
-        self.lmax
+        self.scalar.lmax()
     }
 
     /// The spin weight s.
@@ -669,21 +645,15 @@ impl SpinTransform {
 
     /// Number of map pixels, 12 Nside².
     pub fn pixel_count(&self) -> usize {
-        self.geometry.pixel_count()
+        self.scalar.pixel_count()
     }
 
     fn ring_count(&self) -> usize {
-        self.geometry.rings().len()
+        self.scalar.ring_count()
     }
 
-    /// Legendre-stage slot of ring q: 2·pair for a north ring, 2·pair + 1 for a south one.
-    fn slot(&self, q: usize) -> usize {
-        let npairs = self.pairs.len();
-        if q < npairs {
-            2 * q
-        } else {
-            2 * (self.ring_count() - 1 - q) + 1
-        }
+    fn geometry(&self) -> &RingGeometry {
+        self.scalar.geometry()
     }
 
     /// Orders per band: one band's ring sums near [`BAND_BYTES`], at most `max_bands` bands.
@@ -691,15 +661,15 @@ impl SpinTransform {
         let per_order = 2 * self.ring_count() * std::mem::size_of::<Complex64>();
         (BAND_BYTES / per_order)
             .max(1)
-            .max((self.lmax + 1).div_ceil(max_bands))
+            .max((self.lmax() + 1).div_ceil(max_bands))
     }
 
     fn check_coefficients(&self, alm: &HarmonicCoefficients, name: &str) -> Result<()> {
-        if alm.lmax() != self.lmax {
+        if alm.lmax() != self.lmax() {
             return Err(Error::Mismatch(format!(
                 "{name} coefficients have lmax {}, the transform was built for lmax {}",
                 alm.lmax(),
-                self.lmax
+                self.lmax()
             )));
         }
         Ok(())
@@ -752,7 +722,7 @@ impl SpinTransform {
     ) -> Result<(Vec<f64>, Vec<f64>)> {
         self.check_coefficients(e, "E")?;
         self.check_coefficients(b, "B")?;
-        let lmax = self.lmax;
+        let lmax = self.lmax();
         let stride = 2 * self.pairs.len();
         let band = self.orders_per_band(usize::MAX);
         let mut q_map = vec![0.0; self.pixel_count()];
@@ -761,7 +731,7 @@ impl SpinTransform {
         // as [Re X_0, Re X_{n/2}, Re X_1, Im X_1, …].
         let mut ring_slices = Vec::with_capacity(self.ring_count());
         let (mut rest_q, mut rest_u): (&mut [f64], &mut [f64]) = (&mut q_map, &mut u_map);
-        for ring in self.geometry.rings() {
+        for ring in self.geometry().rings() {
             let (head_q, tail_q) = rest_q.split_at_mut(ring.pixel_count);
             let (head_u, tail_u) = rest_u.split_at_mut(ring.pixel_count);
             ring_slices.push((head_q, head_u));
@@ -783,9 +753,9 @@ impl SpinTransform {
                 .par_iter_mut()
                 .enumerate()
                 .for_each(|(q, (values_q, values_u))| {
-                    let ring = &self.geometry.rings()[q];
+                    let ring = &self.geometry().rings()[q];
                     let n = ring.pixel_count;
-                    let slot = self.slot(q);
+                    let slot = self.scalar.slot(q);
                     let mut phases = PhaseWalk::new(ring.phi0);
                     for m in m0..m1 {
                         let base = (m - m0) * 2 * stride;
@@ -806,7 +776,7 @@ impl SpinTransform {
             .into_par_iter()
             .enumerate()
             .for_each(|(q, (values_q, values_u))| {
-                let plan = &self.inverse[q];
+                let plan = self.scalar.inverse_plan(q);
                 let mut spectrum = plan.make_input_vec();
                 let mut scratch = plan.make_scratch_vec();
                 for values in [values_q, values_u] {
@@ -848,9 +818,9 @@ impl SpinTransform {
 
     /// One quadrature pass (the adjoint of synthesis times 4π/Npix).
     fn analysis_once(&self, q: &[f64], u: &[f64]) -> (HarmonicCoefficients, HarmonicCoefficients) {
-        let lmax = self.lmax;
+        let lmax = self.lmax();
         let weight = 4.0 * std::f64::consts::PI / self.pixel_count() as f64;
-        let rings = self.geometry.rings();
+        let rings = self.geometry().rings();
         let mut e = HarmonicCoefficients::zeros(lmax);
         let mut b = HarmonicCoefficients::zeros(lmax);
         let mut order_slices = Vec::with_capacity(lmax + 1);
@@ -878,7 +848,7 @@ impl SpinTransform {
                 .for_each(|(r, out)| {
                     let ring = &rings[r];
                     let n = ring.pixel_count;
-                    let plan = &self.forward[r];
+                    let plan = self.scalar.forward_plan(r);
                     let mut spectrum = plan.make_output_vec();
                     let mut scratch = plan.make_scratch_vec();
                     let (out_q, out_u) = out.split_at_mut(width);
@@ -936,15 +906,15 @@ impl SpinTransform {
     }
 
     fn synthesis_order(&self, m: usize, e: &[Complex64], b: &[Complex64], out: &mut [Complex64]) {
-        if m.max(self.spin) > self.lmax {
+        if m.max(self.spin) > self.lmax() {
             out.fill(Complex64::new(0.0, 0.0));
             return;
         }
-        let order = SpinOrder::new(m, self.spin, self.lmax, &self.log2_norms);
+        let order = SpinOrder::new(m, self.spin, self.lmax(), &self.log2_norms);
         let rings = &self.pairs;
         // SAFETY (both arms): the kernel variant was chosen from the CPU's reported features.
         #[cfg(target_arch = "x86_64")]
-        match self.kernel {
+        match self.scalar.kernel() {
             LegendreKernel::Avx512Fma => {
                 unsafe { fused::synthesis_order_avx512(&order, rings, e, b, out) };
                 return;
@@ -965,16 +935,16 @@ impl SpinTransform {
         e: &mut [Complex64],
         b: &mut [Complex64],
     ) {
-        if m.max(self.spin) > self.lmax {
+        if m.max(self.spin) > self.lmax() {
             e.fill(Complex64::new(0.0, 0.0));
             b.fill(Complex64::new(0.0, 0.0));
             return;
         }
-        let order = SpinOrder::new(m, self.spin, self.lmax, &self.log2_norms);
+        let order = SpinOrder::new(m, self.spin, self.lmax(), &self.log2_norms);
         let rings = &self.pairs;
         // SAFETY (both arms): the kernel variant was chosen from the CPU's reported features.
         #[cfg(target_arch = "x86_64")]
-        match self.kernel {
+        match self.scalar.kernel() {
             LegendreKernel::Avx512Fma => {
                 unsafe { fused::analysis_order_avx512(&order, rings, ring_sums, e, b) };
                 return;

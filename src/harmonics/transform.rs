@@ -261,12 +261,22 @@ impl HarmonicTransform {
         self.geometry.pixel_count()
     }
 
-    fn ring_count(&self) -> usize {
+    pub(crate) fn ring_count(&self) -> usize {
         self.geometry.rings().len()
     }
 
+    /// The real FFT plan (forward: ring values → half spectrum) of ring q.
+    pub(crate) fn forward_plan(&self, q: usize) -> &Arc<dyn RealToComplex<f64>> {
+        &self.forward[q]
+    }
+
+    /// The inverse real FFT plan (half spectrum → ring values) of ring q.
+    pub(crate) fn inverse_plan(&self, q: usize) -> &Arc<dyn ComplexToReal<f64>> {
+        &self.inverse[q]
+    }
+
     /// Legendre-stage slot of ring q: (pair, side) with side 0 north, 1 south.
-    fn slot(&self, q: usize) -> usize {
+    pub(crate) fn slot(&self, q: usize) -> usize {
         let npairs = self.pairs.len();
         if q < npairs {
             2 * q
