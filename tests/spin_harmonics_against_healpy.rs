@@ -3,23 +3,15 @@
 //! reference-values/spin_harmonics/) and against the explicit sum of Goldberg et al. (1967,
 //! J. Math. Phys. 8, 2155) for the spin-weighted harmonics ₛY_ℓm.
 
+mod common;
+
 use std::f64::consts::PI;
-use std::path::{Path, PathBuf};
 
 use num_complex::Complex64;
 use planisphere::harmonics::{HarmonicCoefficients, RingGeometry, SpinTransform};
-use serde_json::Value;
-
-fn reference_dir() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("reference-values/spin_harmonics")
-}
 
 fn read_f64(name: &str) -> Vec<f64> {
-    let bytes = std::fs::read(reference_dir().join(name)).unwrap();
-    bytes
-        .chunks_exact(8)
-        .map(|c| f64::from_le_bytes(c.try_into().unwrap()))
-        .collect()
+    common::read_f64(&format!("spin_harmonics/{name}"))
 }
 
 fn read_complex(name: &str) -> Vec<Complex64> {
@@ -90,8 +82,7 @@ fn max_norm(v: &[Complex64]) -> f64 {
 // and 2 NSIDE): maps to 1e-10 of their rms, coefficients to 1e-10 of the largest one.
 #[test]
 fn spin_transforms_match_healpy() {
-    let text = std::fs::read_to_string(reference_dir().join("manifest.json")).unwrap();
-    let manifest: Value = serde_json::from_str(&text).unwrap();
+    let manifest = common::read_json("spin_harmonics/manifest.json");
     assert_eq!(manifest["healpy_version"], "1.20.1");
     let cases = manifest["cases"].as_array().unwrap();
     assert_eq!(cases.len(), 6);
