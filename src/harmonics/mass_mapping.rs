@@ -32,7 +32,7 @@
 
 use super::coefficients::{gaussian_beam, HarmonicCoefficients};
 use super::spin_transform::SpinTransform;
-use super::transform::{HarmonicTransform, DEFAULT_ANALYSIS_ITERATIONS};
+use super::transform::DEFAULT_ANALYSIS_ITERATIONS;
 use crate::error::{Error, Result};
 
 /// The axes γ1 and γ2 refer to (see the module documentation).
@@ -108,26 +108,20 @@ pub fn shear_to_convergence_factors(lmax: usize) -> Vec<f64> {
         .collect()
 }
 
-/// Inverse factors −√((ℓ+2)(ℓ−1)/(ℓ(ℓ+1))) for ℓ = 0 … lmax (zero for ℓ < 2), κ → γ.
+/// Inverse factors −√((ℓ+2)(ℓ−1)/(ℓ(ℓ+1))) for ℓ = 0 … lmax (zero for ℓ < 2), κ → γ: the
+/// reciprocals of [`shear_to_convergence_factors`].
 pub fn convergence_to_shear_factors(lmax: usize) -> Vec<f64> {
-    (0..=lmax)
-        .map(|l| {
-            if l < 2 {
-                0.0
-            } else {
-                let l = l as f64;
-                -(((l + 2.0) * (l - 1.0)) / (l * (l + 1.0))).sqrt()
-            }
-        })
+    shear_to_convergence_factors(lmax)
+        .into_iter()
+        .map(|k| if k == 0.0 { 0.0 } else { 1.0 / k })
         .collect()
 }
 
-/// Mass mapping for one (Nside, lmax): owns the spin-2 and scalar transforms, built once and
-/// shared for any number of maps (it is `Sync`).
+/// Mass mapping for one (Nside, lmax): owns the spin-2 transform (and through it the scalar
+/// one), built once and shared for any number of maps (it is `Sync`).
 #[derive(Debug)]
 pub struct MassMapper {
     spin: SpinTransform,
-    scalar: HarmonicTransform,
 }
 
 impl MassMapper {
@@ -140,7 +134,6 @@ impl MassMapper {
         }
         Ok(MassMapper {
             spin: SpinTransform::new(nside, lmax, 2)?,
-            scalar: HarmonicTransform::new(nside, lmax)?,
         })
     }
 
@@ -197,8 +190,8 @@ impl MassMapper {
     ) -> Result<ConvergenceMaps> {
         let (e, b) = self.convergence_coefficients(gamma1, gamma2, settings)?;
         Ok(ConvergenceMaps {
-            e: self.scalar.synthesis(&e)?,
-            b: self.scalar.synthesis(&b)?,
+            e: self.spin.scalar().synthesis(&e)?,
+            b: self.spin.scalar().synthesis(&b)?,
         })
     }
 

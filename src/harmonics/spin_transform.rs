@@ -51,18 +51,13 @@
 //! rings; each output is computed by one task in a fixed order, so results are bitwise
 //! identical for any thread count.
 
-use std::sync::Arc;
-
 use num_complex::Complex64;
 use rayon::prelude::*;
-use realfft::{ComplexToReal, RealFftPlanner, RealToComplex};
 
 use super::coefficients::HarmonicCoefficients;
 use super::geometry::RingGeometry;
-use super::legendre::{
-    log2_sectoral_norms, FusedMulAdd, MulAdd, PlainMulAdd, SCALE_DOWN, SCALE_LIMIT, SCALE_LOG2,
-};
-use super::transform::{LegendreKernel, PhaseWalk};
+use super::legendre::{log2_sectoral_norms, rescale, FusedMulAdd, MulAdd, PlainMulAdd, SCALE_LOG2};
+use super::transform::{HarmonicTransform, LegendreKernel, PhaseWalk};
 use crate::error::{Error, Result};
 
 /// Ring pairs per block in the synthesis kernel with AVX2 (eight accumulators and four
@@ -72,8 +67,8 @@ const SYNTHESIS_LANES: usize = 4;
 const PORTABLE_SYNTHESIS_LANES: usize = 2;
 /// Ring pairs per block in the analysis kernel (partial sums live in a buffer).
 const ANALYSIS_LANES: usize = 8;
-/// Recurrence steps between rescaling checks (growth over 8 steps stays far below 2^300).
-const STEPS_PER_CHECK: usize = 8;
+/// Two-step passes between rescaling checks (growth over 8 steps stays far below 2^300).
+const PASSES_PER_CHECK: usize = 4;
 /// Target size of one band of ring sums in the banded stages (as in the scalar transform).
 const BAND_BYTES: usize = 4 << 20;
 /// Most bands in analysis, which repeats the real FFTs of every ring per band.
@@ -82,24 +77,21 @@ const ANALYSIS_MAX_BANDS: usize = 3;
 /// Spin-s synthesis and analysis for one (Nside, lmax, s); owns the ring geometry and the FFT
 /// plans, is built once and shared (it is `Sync`).
 pub struct SpinTransform {
-    geometry: RingGeometry,
-    lmax: usize,
+    /// The scalar transform of the same (Nside, lmax): ring geometry, FFT plans, kernel.
+    scalar: HarmonicTransform,
     spin: usize,
     pairs: HalfAngleRings,
     /// log2 √((2ℓ+1)/(4π) · (2ℓ−1)!!/(2ℓ)!!), ℓ = 0 … lmax.
     log2_norms: Vec<f64>,
-    forward: Vec<Arc<dyn RealToComplex<f64>>>,
-    inverse: Vec<Arc<dyn ComplexToReal<f64>>>,
-    kernel: LegendreKernel,
 }
 
 impl std::fmt::Debug for SpinTransform {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         f.debug_struct("SpinTransform")
-            .field("nside", &self.geometry.nside())
-            .field("lmax", &self.lmax)
+            .field("nside", &self.geometry().nside())
+            .field("lmax", &self.lmax())
             .field("spin", &self.spin)
-            .field("kernel", &self.kernel)
+            .field("kernel", &self.scalar.kernel())
             .finish()
     }
 }
@@ -214,77 +206,52 @@ impl SpinOrder {
     }
 }
 
-/// Lane state of one recurrence (spin +s or −s) in a block: value v carries 2^(−500 k).
-struct Lanes<const L: usize> {
-    prev: [f64; L],
-    cur: [f64; L],
-    scale: [i32; L],
-    live: [f64; L],
+/// Starting lanes of one recurrence (spin +s or −s) for a block of ring pairs: the values
+/// v = ±2^(log2|λ| + 500 k), their scales k ≥ 0 (v carries 2^(−500 k)) and the live mask (1 where
+/// k = 0).
+#[inline(always)]
+fn start_lanes<const L: usize>(
+    start: &StartValue,
+    rings: &HalfAngleRings,
+    pairs: &[usize; L],
+) -> ([f64; L], [i32; L], [f64; L]) {
+    let mut value = [0.0; L];
+    let mut scale = [0; L];
+    let mut live = [0.0; L];
+    for (r, &p) in pairs.iter().enumerate() {
+        let log2 = start.log2_norm
+            + start.sin_power * rings.log2_sin_half[p]
+            + start.cos_power * rings.log2_cos_half[p];
+        let k = if log2 >= -700.0 {
+            0.0
+        } else {
+            ((-log2 - 200.0) / SCALE_LOG2).ceil()
+        };
+        scale[r] = k as i32;
+        value[r] = start.sign * (log2 + SCALE_LOG2 * k).exp2();
+        live[r] = if k == 0.0 { 1.0 } else { 0.0 };
+    }
+    (value, scale, live)
 }
 
-impl<const L: usize> Lanes<L> {
-    fn start(start: &StartValue, rings: &HalfAngleRings, pairs: &[usize; L]) -> Self {
-        let mut lanes = Lanes {
-            prev: [0.0; L],
-            cur: [0.0; L],
-            scale: [0; L],
-            live: [0.0; L],
-        };
-        for (r, &p) in pairs.iter().enumerate() {
-            let log2 = start.log2_norm
-                + start.sin_power * rings.log2_sin_half[p]
-                + start.cos_power * rings.log2_cos_half[p];
-            let k = if log2 >= -700.0 {
-                0.0
-            } else {
-                ((-log2 - 200.0) / SCALE_LOG2).ceil()
-            };
-            lanes.scale[r] = k as i32;
-            lanes.cur[r] = start.sign * (log2 + SCALE_LOG2 * k).exp2();
-            lanes.live[r] = if k == 0.0 { 1.0 } else { 0.0 };
-        }
-        lanes
+/// One recurrence step on all lanes: prev ← (a z + b) cur − prev.
+#[inline(always)]
+fn step<A: MulAdd, const L: usize>(
+    a: f64,
+    b: f64,
+    z: &[f64; L],
+    cur: &[f64; L],
+    prev: &mut [f64; L],
+) {
+    for ((prev, cur), z) in prev.iter_mut().zip(cur).zip(z) {
+        *prev = A::mul_add(A::mul_add(a, *z, b), *cur, -*prev);
     }
+}
 
-    /// Bring scaled lanes that exceed 2^200 back by 2^−500; whether any lane is still scaled.
-    #[inline(always)]
-    fn rescale(&mut self) -> bool {
-        let mut scaled = false;
-        for r in 0..L {
-            if self.scale[r] > 0 {
-                if self.cur[r].abs() > SCALE_LIMIT {
-                    self.prev[r] *= SCALE_DOWN;
-                    self.cur[r] *= SCALE_DOWN;
-                    self.scale[r] -= 1;
-                    if self.scale[r] == 0 {
-                        self.live[r] = 1.0;
-                    }
-                }
-                scaled |= self.scale[r] > 0;
-            }
-        }
-        scaled
-    }
-
-    fn any_scaled(&self) -> bool {
-        self.scale.iter().any(|&s| s > 0)
-    }
-
-    /// One step: prev ← (a z + sign·b) cur − prev, then swap, so cur holds the new value.
-    #[inline(always)]
-    fn step<A: MulAdd>(&mut self, a: f64, b: f64, z: &[f64; L]) {
-        for ((prev, cur), z) in self.prev.iter_mut().zip(&self.cur).zip(z) {
-            let t = A::mul_add(a, *z, b);
-            *prev = A::mul_add(t, *cur, -*prev);
-        }
-        std::mem::swap(&mut self.prev, &mut self.cur);
-    }
-
-    /// cur with the still-scaled lanes zeroed.
-    #[inline(always)]
-    fn live_values(&self) -> [f64; L] {
-        std::array::from_fn(|r| self.cur[r] * self.live[r])
-    }
+/// The lanes with the still-scaled ones zeroed.
+#[inline(always)]
+fn masked<const L: usize>(x: &[f64; L], live: &[f64; L]) -> [f64; L] {
+    std::array::from_fn(|r| x[r] * live[r])
 }
 
 /// Pair indices of block `b` (blocks run from the equator towards the pole; padding lanes
@@ -302,39 +269,44 @@ fn block_pairs<const L: usize>(b: usize, npairs: usize) -> Option<([usize; L], u
     Some((pairs, valid))
 }
 
-/// The four coefficient streams of one order for synthesis, each times c_ℓ: a⁺ and a⁻, and
-/// both with the parity sign (−1)^(ℓ+m) for the south rings.
-struct SynthesisStreams {
-    plus: Vec<Complex64>,
-    plus_south: Vec<Complex64>,
-    minus: Vec<Complex64>,
-    minus_south: Vec<Complex64>,
+/// Synthesis coefficients of one order for each k, times c_ℓ: a⁺, a⁺ with the south parity
+/// sign (−1)^(ℓ+m), a⁻, a⁻ with the parity sign, as (re, im) pairs.
+fn synthesis_streams(order: &SpinOrder, e: &[Complex64], b: &[Complex64]) -> Vec<[f64; 8]> {
+    let skip = order.l0 - order.m;
+    let mut parity = order.parity0;
+    (0..=order.steps())
+        .map(|k| {
+            let (ek, bk) = (e[skip + k], b[skip + k]);
+            let c = order.c[k];
+            // a⁺ = −(E + iB), a⁻ = −(−1)^s (E − iB).
+            let plus = -Complex64::new(ek.re - bk.im, ek.im + bk.re) * c;
+            let minus = -Complex64::new(ek.re + bk.im, ek.im - bk.re) * (c * order.spin_sign);
+            let (ps, ms) = (plus * parity, minus * parity);
+            parity = -parity;
+            [
+                plus.re, plus.im, ps.re, ps.im, minus.re, minus.im, ms.re, ms.im,
+            ]
+        })
+        .collect()
 }
 
+/// North P += a⁺ ₛλ, south P += ±a⁺ ₋ₛλ, north P̄ += a⁻ ₋ₛλ, south P̄ += ±a⁻ ₛλ.
 #[inline(always)]
 fn accumulate<A: MulAdd, const L: usize>(
-    sums: &mut [[f64; L]; 8],
-    k: usize,
-    streams: &SynthesisStreams,
+    sums: [&mut [f64; L]; 8],
+    c: &[f64; 8],
     mu: &[f64; L],
     nu: &[f64; L],
 ) {
-    let (p, ps, q, qs) = (
-        streams.plus[k],
-        streams.plus_south[k],
-        streams.minus[k],
-        streams.minus_south[k],
-    );
     for r in 0..L {
-        // North P += a⁺ ₛλ, south P += ±a⁺ ₋ₛλ, north P̄ += a⁻ ₋ₛλ, south P̄ += ±a⁻ ₛλ.
-        sums[0][r] = A::mul_add(p.re, mu[r], sums[0][r]);
-        sums[1][r] = A::mul_add(p.im, mu[r], sums[1][r]);
-        sums[2][r] = A::mul_add(ps.re, nu[r], sums[2][r]);
-        sums[3][r] = A::mul_add(ps.im, nu[r], sums[3][r]);
-        sums[4][r] = A::mul_add(q.re, nu[r], sums[4][r]);
-        sums[5][r] = A::mul_add(q.im, nu[r], sums[5][r]);
-        sums[6][r] = A::mul_add(qs.re, mu[r], sums[6][r]);
-        sums[7][r] = A::mul_add(qs.im, mu[r], sums[7][r]);
+        sums[0][r] = A::mul_add(c[0], mu[r], sums[0][r]);
+        sums[1][r] = A::mul_add(c[1], mu[r], sums[1][r]);
+        sums[2][r] = A::mul_add(c[2], nu[r], sums[2][r]);
+        sums[3][r] = A::mul_add(c[3], nu[r], sums[3][r]);
+        sums[4][r] = A::mul_add(c[4], nu[r], sums[4][r]);
+        sums[5][r] = A::mul_add(c[5], nu[r], sums[5][r]);
+        sums[6][r] = A::mul_add(c[6], mu[r], sums[6][r]);
+        sums[7][r] = A::mul_add(c[7], mu[r], sums[7][r]);
     }
 }
 
@@ -342,6 +314,8 @@ fn accumulate<A: MulAdd, const L: usize>(
 /// north ring (out[2p], out[stride + 2p]) and of the south ring (out[2p + 1],
 /// out[stride + 2p + 1]), stride = 2 × pairs. `e`, `b` are the order's coefficients from
 /// ℓ = m.
+// Kept whole, as the scalar kernel: the phases of the lane recurrences (scaled lanes, all lanes
+// live, the last odd step) share the block's lane registers in one inlined loop nest.
 #[inline(always)]
 fn synthesis_order<A: MulAdd, const L: usize>(
     order: &SpinOrder,
@@ -353,57 +327,63 @@ fn synthesis_order<A: MulAdd, const L: usize>(
     out.fill(Complex64::new(0.0, 0.0));
     let stride = out.len() / 2;
     let n = order.steps();
-    let skip = order.l0 - order.m;
-    let mut streams = SynthesisStreams {
-        plus: Vec::with_capacity(n + 1),
-        plus_south: Vec::with_capacity(n + 1),
-        minus: Vec::with_capacity(n + 1),
-        minus_south: Vec::with_capacity(n + 1),
-    };
-    let mut parity = order.parity0;
-    for k in 0..=n {
-        let (ek, bk) = (e[skip + k], b[skip + k]);
-        let c = order.c[k];
-        // a⁺ = −(E + iB), a⁻ = −(−1)^s (E − iB).
-        let plus = -Complex64::new(ek.re - bk.im, ek.im + bk.re) * c;
-        let minus = -Complex64::new(ek.re + bk.im, ek.im - bk.re) * (c * order.spin_sign);
-        streams.plus.push(plus);
-        streams.minus.push(minus);
-        streams.plus_south.push(plus * parity);
-        streams.minus_south.push(minus * parity);
-        parity = -parity;
-    }
+    let (a_k, b_k) = (&order.a, &order.b);
+    let streams = synthesis_streams(order, e, b);
     let mut blk = 0;
     while let Some((pairs, valid)) = block_pairs::<L>(blk, rings.len()) {
         blk += 1;
-        let mut z = [0.0; L];
-        for r in 0..L {
-            z[r] = rings.z[pairs[r]];
+        let z: [f64; L] = std::array::from_fn(|r| rings.z[pairs[r]]);
+        let (mut mu1, mut smu, mut lmu) = start_lanes(&order.start_plus, rings, &pairs);
+        let (mut nu1, mut snu, mut lnu) = start_lanes(&order.start_minus, rings, &pairs);
+        let (mut mu0, mut nu0) = ([0.0f64; L], [0.0f64; L]);
+        let [mut s0, mut s1, mut s2, mut s3, mut s4, mut s5, mut s6, mut s7] = [[0.0f64; L]; 8];
+        // The eight lane sums as separate variables, so that they stay in registers.
+        macro_rules! add {
+            ($k:expr, $mu:expr, $nu:expr) => {
+                accumulate::<A, L>(
+                    [
+                        &mut s0, &mut s1, &mut s2, &mut s3, &mut s4, &mut s5, &mut s6, &mut s7,
+                    ],
+                    &streams[$k],
+                    $mu,
+                    $nu,
+                )
+            };
         }
-        let mut mu = Lanes::<L>::start(&order.start_plus, rings, &pairs);
-        let mut nu = Lanes::<L>::start(&order.start_minus, rings, &pairs);
-        let mut sums = [[0.0f64; L]; 8];
-        let mut scaled = mu.any_scaled() || nu.any_scaled();
-        accumulate::<A, L>(&mut sums, 0, &streams, &mu.live_values(), &nu.live_values());
+        add!(0, &masked(&mu1, &lmu), &masked(&nu1, &lnu));
         let mut k = 1;
-        while scaled && k <= n {
-            let end = (k + STEPS_PER_CHECK).min(n + 1);
-            while k < end {
-                mu.step::<A>(order.a[k], order.b[k], &z);
-                nu.step::<A>(order.a[k], -order.b[k], &z);
-                accumulate::<A, L>(&mut sums, k, &streams, &mu.live_values(), &nu.live_values());
-                k += 1;
+        let mut scaled = smu.iter().chain(&snu).any(|&s| s > 0);
+        while scaled && k < n {
+            let mut pass = 0;
+            while pass < PASSES_PER_CHECK && k < n {
+                step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
+                step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
+                add!(k, &masked(&mu0, &lmu), &masked(&nu0, &lnu));
+                step::<A, L>(a_k[k + 1], b_k[k + 1], &z, &mu0, &mut mu1);
+                step::<A, L>(a_k[k + 1], -b_k[k + 1], &z, &nu0, &mut nu1);
+                add!(k + 1, &masked(&mu1, &lmu), &masked(&nu1, &lnu));
+                k += 2;
+                pass += 1;
             }
-            let mu_scaled = mu.rescale();
-            let nu_scaled = nu.rescale();
+            let mu_scaled = rescale(&mut mu0, &mut mu1, &mut smu, &mut lmu);
+            let nu_scaled = rescale(&mut nu0, &mut nu1, &mut snu, &mut lnu);
             scaled = mu_scaled || nu_scaled;
         }
-        while k <= n {
-            mu.step::<A>(order.a[k], order.b[k], &z);
-            nu.step::<A>(order.a[k], -order.b[k], &z);
-            accumulate::<A, L>(&mut sums, k, &streams, &mu.cur, &nu.cur);
-            k += 1;
+        while k < n {
+            step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
+            step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
+            add!(k, &mu0, &nu0);
+            step::<A, L>(a_k[k + 1], b_k[k + 1], &z, &mu0, &mut mu1);
+            step::<A, L>(a_k[k + 1], -b_k[k + 1], &z, &nu0, &mut nu1);
+            add!(k + 1, &mu1, &nu1);
+            k += 2;
         }
+        if k == n {
+            step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
+            step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
+            add!(k, &masked(&mu0, &lmu), &masked(&nu0, &lnu));
+        }
+        let sums = [s0, s1, s2, s3, s4, s5, s6, s7];
         for r in 0..valid {
             let p = pairs[r];
             let pn = Complex64::new(sums[0][r], sums[1][r]);
@@ -417,8 +397,7 @@ fn synthesis_order<A: MulAdd, const L: usize>(
             out[2 * p + 1] = qs_m;
             out[stride + 2 * p + 1] = us_m;
         }
-        let dead = (0..valid).all(|r| mu.scale[r] > 0 && nu.scale[r] > 0);
-        if dead {
+        if (0..valid).all(|r| smu[r] > 0 && snu[r] > 0) {
             // Every ring nearer the pole is dead too (|ₛλ| grows away from the pole there).
             break;
         }
@@ -442,14 +421,47 @@ struct PairSums {
     u_south: Complex64,
 }
 
+/// One row of the analysis partial sums: a⁺ += ₛλ X⁺_N + ₋ₛλ (±X⁺_S) and
+/// a⁻ += ₋ₛλ X⁻_N + ₛλ (±X⁻_S), row = [a⁺ re | a⁺ im | a⁻ re | a⁻ im] lanes; `north` holds
+/// X⁺_N, X⁻_N and `south` ±X⁺_S, ±X⁻_S as (re, im) lanes.
+#[inline(always)]
+fn add_row<A: MulAdd, const L: usize>(
+    row: &mut [f64],
+    mu: &[f64; L],
+    nu: &[f64; L],
+    north: &[[f64; L]; 4],
+    south: &[[f64; L]; 4],
+) {
+    let row: &mut [f64] = &mut row[..4 * L];
+    for r in 0..L {
+        row[r] = A::mul_add(mu[r], north[0][r], A::mul_add(nu[r], south[0][r], row[r]));
+        row[L + r] = A::mul_add(
+            mu[r],
+            north[1][r],
+            A::mul_add(nu[r], south[1][r], row[L + r]),
+        );
+        row[2 * L + r] = A::mul_add(
+            nu[r],
+            north[2][r],
+            A::mul_add(mu[r], south[2][r], row[2 * L + r]),
+        );
+        row[3 * L + r] = A::mul_add(
+            nu[r],
+            north[3][r],
+            A::mul_add(mu[r], south[3][r], row[3 * L + r]),
+        );
+    }
+}
+
 /// Legendre stage of analysis for one order m: a⁺_ℓm = Σ_pairs [ₛλ X⁺_N + (−1)^(ℓ+m) ₋ₛλ X⁺_S]
 /// and a⁻_ℓm = Σ_pairs [₋ₛλ X⁻_N + (−1)^(ℓ+m) ₛλ X⁻_S] with X± = G^Q ± i G^U, then
-/// E = −(a⁺ + (−1)^s a⁻)/2 and B = i(a⁺ − (−1)^s a⁻)/2 into `e`, `b` (the order's coefficients from ℓ = m;
-/// those below ℓ0 are set to zero).
+/// E = −(a⁺ + (−1)^s a⁻)/2 and B = i(a⁺ − (−1)^s a⁻)/2 into `e`, `b` (the order's coefficients
+/// from ℓ = m; those below ℓ0 are set to zero).
 ///
 /// Each block adds its lanes' products into per-lane partial sums (a row of 4L values per ℓ);
 /// the lanes are summed once at the end in a fixed order, so the result does not depend on
 /// scheduling.
+// Kept whole, as the scalar kernel (see synthesis_order).
 #[inline(always)]
 fn analysis_order<A: MulAdd, const L: usize>(
     order: &SpinOrder,
@@ -460,89 +472,94 @@ fn analysis_order<A: MulAdd, const L: usize>(
 ) {
     let n = order.steps();
     let skip = order.l0 - order.m;
+    let (a_k, b_k) = (&order.a, &order.b);
     let w = 4 * L;
     let mut acc = vec![0.0f64; (n + 1) * w];
-    #[inline(always)]
-    fn add_row<A: MulAdd, const L: usize>(
-        row: &mut [f64],
-        mu: &[f64; L],
-        nu: &[f64; L],
-        x: &[[f64; L]; 8],
-        south_sign: f64,
-    ) {
-        let (plus, minus) = row.split_at_mut(2 * L);
-        let (p_re, p_im) = plus.split_at_mut(L);
-        let (m_re, m_im) = minus.split_at_mut(L);
-        for r in 0..L {
-            let (nu_s, mu_s) = (nu[r] * south_sign, mu[r] * south_sign);
-            p_re[r] = A::mul_add(mu[r], x[0][r], A::mul_add(nu_s, x[2][r], p_re[r]));
-            p_im[r] = A::mul_add(mu[r], x[1][r], A::mul_add(nu_s, x[3][r], p_im[r]));
-            m_re[r] = A::mul_add(nu[r], x[4][r], A::mul_add(mu_s, x[6][r], m_re[r]));
-            m_im[r] = A::mul_add(nu[r], x[5][r], A::mul_add(mu_s, x[7][r], m_im[r]));
-        }
-    }
     let mut blk = 0;
     while let Some((pairs, valid)) = block_pairs::<L>(blk, rings.len()) {
         blk += 1;
-        let mut z = [0.0; L];
-        // X⁺_N, X⁺_S, X⁻_N, X⁻_S as (re, im) lanes; padding lanes stay zero.
-        let mut x = [[0.0f64; L]; 8];
-        for r in 0..L {
-            z[r] = rings.z[pairs[r]];
-        }
+        let z: [f64; L] = std::array::from_fn(|r| rings.z[pairs[r]]);
+        // X⁺_N, X⁻_N and the south X⁺_S, X⁻_S times the parity sign of even k (`even`) and
+        // of odd k (`odd`); padding lanes stay zero.
+        let mut north = [[0.0f64; L]; 4];
+        let mut even = [[0.0f64; L]; 4];
         for r in 0..valid {
             let s = ring_sums(pairs[r]);
             let i = Complex64::new(0.0, 1.0);
-            let values = [
-                s.q_north + i * s.u_north,
-                s.q_south + i * s.u_south,
-                s.q_north - i * s.u_north,
-                s.q_south - i * s.u_south,
-            ];
-            for (j, v) in values.iter().enumerate() {
-                x[2 * j][r] = v.re;
-                x[2 * j + 1][r] = v.im;
-            }
+            let (pn, ps) = (s.q_north + i * s.u_north, s.q_south + i * s.u_south);
+            let (mn, ms) = (s.q_north - i * s.u_north, s.q_south - i * s.u_south);
+            north[0][r] = pn.re;
+            north[1][r] = pn.im;
+            north[2][r] = mn.re;
+            north[3][r] = mn.im;
+            let sign = order.parity0;
+            even[0][r] = sign * ps.re;
+            even[1][r] = sign * ps.im;
+            even[2][r] = sign * ms.re;
+            even[3][r] = sign * ms.im;
         }
-        let mut mu = Lanes::<L>::start(&order.start_plus, rings, &pairs);
-        let mut nu = Lanes::<L>::start(&order.start_minus, rings, &pairs);
-        let mut scaled = mu.any_scaled() || nu.any_scaled();
-        let mut sign = order.parity0;
+        let odd: [[f64; L]; 4] = std::array::from_fn(|j| std::array::from_fn(|r| -even[j][r]));
+        let (mut mu1, mut smu, mut lmu) = start_lanes(&order.start_plus, rings, &pairs);
+        let (mut nu1, mut snu, mut lnu) = start_lanes(&order.start_minus, rings, &pairs);
+        let (mut mu0, mut nu0) = ([0.0f64; L], [0.0f64; L]);
         add_row::<A, L>(
             &mut acc[..w],
-            &mu.live_values(),
-            &nu.live_values(),
-            &x,
-            sign,
+            &masked(&mu1, &lmu),
+            &masked(&nu1, &lnu),
+            &north,
+            &even,
         );
         let mut k = 1;
-        while scaled && k <= n {
-            let end = (k + STEPS_PER_CHECK).min(n + 1);
-            while k < end {
-                mu.step::<A>(order.a[k], order.b[k], &z);
-                nu.step::<A>(order.a[k], -order.b[k], &z);
-                sign = -sign;
+        let mut scaled = smu.iter().chain(&snu).any(|&s| s > 0);
+        while scaled && k < n {
+            let mut pass = 0;
+            while pass < PASSES_PER_CHECK && k < n {
+                step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
+                step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
                 add_row::<A, L>(
-                    &mut acc[k * w..(k + 1) * w],
-                    &mu.live_values(),
-                    &nu.live_values(),
-                    &x,
-                    sign,
+                    &mut acc[k * w..],
+                    &masked(&mu0, &lmu),
+                    &masked(&nu0, &lnu),
+                    &north,
+                    &odd,
                 );
-                k += 1;
+                step::<A, L>(a_k[k + 1], b_k[k + 1], &z, &mu0, &mut mu1);
+                step::<A, L>(a_k[k + 1], -b_k[k + 1], &z, &nu0, &mut nu1);
+                add_row::<A, L>(
+                    &mut acc[(k + 1) * w..],
+                    &masked(&mu1, &lmu),
+                    &masked(&nu1, &lnu),
+                    &north,
+                    &even,
+                );
+                k += 2;
+                pass += 1;
             }
-            let mu_scaled = mu.rescale();
-            let nu_scaled = nu.rescale();
+            let mu_scaled = rescale(&mut mu0, &mut mu1, &mut smu, &mut lmu);
+            let nu_scaled = rescale(&mut nu0, &mut nu1, &mut snu, &mut lnu);
             scaled = mu_scaled || nu_scaled;
         }
-        while k <= n {
-            mu.step::<A>(order.a[k], order.b[k], &z);
-            nu.step::<A>(order.a[k], -order.b[k], &z);
-            sign = -sign;
-            add_row::<A, L>(&mut acc[k * w..(k + 1) * w], &mu.cur, &nu.cur, &x, sign);
-            k += 1;
+        while k < n {
+            step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
+            step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
+            add_row::<A, L>(&mut acc[k * w..], &mu0, &nu0, &north, &odd);
+            step::<A, L>(a_k[k + 1], b_k[k + 1], &z, &mu0, &mut mu1);
+            step::<A, L>(a_k[k + 1], -b_k[k + 1], &z, &nu0, &mut nu1);
+            add_row::<A, L>(&mut acc[(k + 1) * w..], &mu1, &nu1, &north, &even);
+            k += 2;
         }
-        if (0..valid).all(|r| mu.scale[r] > 0 && nu.scale[r] > 0) {
+        if k == n {
+            step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
+            step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
+            add_row::<A, L>(
+                &mut acc[k * w..],
+                &masked(&mu0, &lmu),
+                &masked(&nu0, &lnu),
+                &north,
+                &odd,
+            );
+        }
+        if (0..valid).all(|r| smu[r] > 0 && snu[r] > 0) {
             break;
         }
     }
@@ -576,26 +593,15 @@ impl SpinTransform {
         spin: usize,
         kernel: LegendreKernel,
     ) -> Result<Self> {
-        if !kernel.is_available() {
-            return Err(Error::Setting(format!(
-                "the {} harmonic transform kernel needs CPU features this machine lacks",
-                kernel.name()
-            )));
-        }
-        let geometry = RingGeometry::new(nside)?;
-        if lmax > 3 * nside - 1 {
-            return Err(Error::Setting(format!(
-                "lmax {lmax} is above 3*NSIDE-1 = {} for NSIDE {nside}",
-                3 * nside - 1
-            )));
-        }
+        // The scalar transform checks the kernel, NSIDE and lmax, and owns the ring geometry
+        // and the FFT plans of the rings, which the spin transform shares.
+        let scalar = HarmonicTransform::with_kernel(nside, lmax, kernel)?;
         if spin == 0 || spin > lmax {
             return Err(Error::Setting(format!(
                 "spin {spin} must be between 1 and lmax = {lmax}"
             )));
         }
-        let rings = geometry.rings();
-        let north = &rings[..2 * nside];
+        let north = &scalar.geometry().rings()[..2 * nside];
         let pairs = HalfAngleRings {
             z: north.iter().map(|r| r.z).collect(),
             // 1 − z = sin²θ/(1 + z) keeps the accuracy of sin θ near the pole.
@@ -608,35 +614,28 @@ impl SpinTransform {
                 .map(|r| 0.5 * (0.5 * (1.0 + r.z)).log2())
                 .collect(),
         };
-        let mut planner = RealFftPlanner::<f64>::new();
-        let forward = rings
-            .iter()
-            .map(|r| planner.plan_fft_forward(r.pixel_count))
-            .collect();
-        let inverse = rings
-            .iter()
-            .map(|r| planner.plan_fft_inverse(r.pixel_count))
-            .collect();
         Ok(SpinTransform {
-            lmax,
             spin,
             pairs,
             log2_norms: log2_sectoral_norms(lmax),
-            forward,
-            inverse,
-            kernel,
-            geometry,
+            scalar,
         })
+    }
+
+    /// The scalar transform of the same grid and lmax (whose ring geometry and FFT plans this
+    /// transform uses).
+    pub fn scalar(&self) -> &HarmonicTransform {
+        &self.scalar
     }
 
     /// HEALPix resolution parameter.
     pub fn nside(&self) -> usize {
-        self.geometry.nside()
+        self.scalar.nside()
     }
 
     /// Largest multipole.
     pub fn lmax(&self) -> usize {
-        self.lmax
+        self.scalar.lmax()
     }
 
     /// The spin weight s.
@@ -646,21 +645,15 @@ impl SpinTransform {
 
     /// Number of map pixels, 12 Nside².
     pub fn pixel_count(&self) -> usize {
-        self.geometry.pixel_count()
+        self.scalar.pixel_count()
     }
 
     fn ring_count(&self) -> usize {
-        self.geometry.rings().len()
+        self.scalar.ring_count()
     }
 
-    /// Legendre-stage slot of ring q: 2·pair for a north ring, 2·pair + 1 for a south one.
-    fn slot(&self, q: usize) -> usize {
-        let npairs = self.pairs.len();
-        if q < npairs {
-            2 * q
-        } else {
-            2 * (self.ring_count() - 1 - q) + 1
-        }
+    fn geometry(&self) -> &RingGeometry {
+        self.scalar.geometry()
     }
 
     /// Orders per band: one band's ring sums near [`BAND_BYTES`], at most `max_bands` bands.
@@ -668,15 +661,15 @@ impl SpinTransform {
         let per_order = 2 * self.ring_count() * std::mem::size_of::<Complex64>();
         (BAND_BYTES / per_order)
             .max(1)
-            .max((self.lmax + 1).div_ceil(max_bands))
+            .max((self.lmax() + 1).div_ceil(max_bands))
     }
 
     fn check_coefficients(&self, alm: &HarmonicCoefficients, name: &str) -> Result<()> {
-        if alm.lmax() != self.lmax {
+        if alm.lmax() != self.lmax() {
             return Err(Error::Mismatch(format!(
                 "{name} coefficients have lmax {}, the transform was built for lmax {}",
                 alm.lmax(),
-                self.lmax
+                self.lmax()
             )));
         }
         Ok(())
@@ -703,6 +696,25 @@ impl SpinTransform {
     /// The two real maps (RING order) Q = Re P, U = Im P of the spin-s field
     /// P = −Σ_ℓm (E_ℓm + i B_ℓm) ₛY_ℓm (healpy 1.20.1 `alm2map_spin([e, b], nside, spin,
     /// lmax)`). Both coefficient sets must have the transform's lmax; ℓ < s is ignored.
+    ///
+    /// # Examples
+    ///
+    /// E_20 = 1 alone: Q = −₂Y_20 = −√(15/(32π)) sin²θ and U = 0 (₂Y_20 from the explicit sum
+    /// of Goldberg et al. 1967 at ℓ = 2, m = 0, s = 2: √(5/(4π)·C(4, 2)) sin²(θ/2) cos²(θ/2)).
+    /// ```
+    /// use num_complex::Complex64;
+    /// use planisphere::harmonics::{HarmonicCoefficients, RingGeometry, SpinTransform};
+    ///
+    /// let t = SpinTransform::new(1, 2, 2).unwrap();
+    /// let mut e = HarmonicCoefficients::zeros(2);
+    /// e.set(2, 0, Complex64::new(1.0, 0.0));
+    /// let (q, u) = t.synthesis(&e, &HarmonicCoefficients::zeros(2)).unwrap();
+    /// let norm = (15.0 / (32.0 * std::f64::consts::PI)).sqrt();
+    /// for (p, (theta, _)) in RingGeometry::new(1).unwrap().pixel_centres().iter().enumerate() {
+    ///     assert!((q[p] + norm * theta.sin().powi(2)).abs() < 1e-15);
+    ///     assert!(u[p].abs() < 1e-15);
+    /// }
+    /// ```
     pub fn synthesis(
         &self,
         e: &HarmonicCoefficients,
@@ -710,7 +722,7 @@ impl SpinTransform {
     ) -> Result<(Vec<f64>, Vec<f64>)> {
         self.check_coefficients(e, "E")?;
         self.check_coefficients(b, "B")?;
-        let lmax = self.lmax;
+        let lmax = self.lmax();
         let stride = 2 * self.pairs.len();
         let band = self.orders_per_band(usize::MAX);
         let mut q_map = vec![0.0; self.pixel_count()];
@@ -719,7 +731,7 @@ impl SpinTransform {
         // as [Re X_0, Re X_{n/2}, Re X_1, Im X_1, …].
         let mut ring_slices = Vec::with_capacity(self.ring_count());
         let (mut rest_q, mut rest_u): (&mut [f64], &mut [f64]) = (&mut q_map, &mut u_map);
-        for ring in self.geometry.rings() {
+        for ring in self.geometry().rings() {
             let (head_q, tail_q) = rest_q.split_at_mut(ring.pixel_count);
             let (head_u, tail_u) = rest_u.split_at_mut(ring.pixel_count);
             ring_slices.push((head_q, head_u));
@@ -741,9 +753,9 @@ impl SpinTransform {
                 .par_iter_mut()
                 .enumerate()
                 .for_each(|(q, (values_q, values_u))| {
-                    let ring = &self.geometry.rings()[q];
+                    let ring = &self.geometry().rings()[q];
                     let n = ring.pixel_count;
-                    let slot = self.slot(q);
+                    let slot = self.scalar.slot(q);
                     let mut phases = PhaseWalk::new(ring.phi0);
                     for m in m0..m1 {
                         let base = (m - m0) * 2 * stride;
@@ -762,9 +774,8 @@ impl SpinTransform {
         drop(sums);
         ring_slices
             .into_par_iter()
-            .enumerate()
-            .for_each(|(q, (values_q, values_u))| {
-                let plan = &self.inverse[q];
+            .for_each(|(values_q, values_u)| {
+                let plan = self.scalar.inverse_plan(values_q.len());
                 let mut spectrum = plan.make_input_vec();
                 let mut scratch = plan.make_scratch_vec();
                 for values in [values_q, values_u] {
@@ -806,9 +817,9 @@ impl SpinTransform {
 
     /// One quadrature pass (the adjoint of synthesis times 4π/Npix).
     fn analysis_once(&self, q: &[f64], u: &[f64]) -> (HarmonicCoefficients, HarmonicCoefficients) {
-        let lmax = self.lmax;
+        let lmax = self.lmax();
         let weight = 4.0 * std::f64::consts::PI / self.pixel_count() as f64;
-        let rings = self.geometry.rings();
+        let rings = self.geometry().rings();
         let mut e = HarmonicCoefficients::zeros(lmax);
         let mut b = HarmonicCoefficients::zeros(lmax);
         let mut order_slices = Vec::with_capacity(lmax + 1);
@@ -836,7 +847,7 @@ impl SpinTransform {
                 .for_each(|(r, out)| {
                     let ring = &rings[r];
                     let n = ring.pixel_count;
-                    let plan = &self.forward[r];
+                    let plan = self.scalar.forward_plan(n);
                     let mut spectrum = plan.make_output_vec();
                     let mut scratch = plan.make_scratch_vec();
                     let (out_q, out_u) = out.split_at_mut(width);
@@ -894,15 +905,15 @@ impl SpinTransform {
     }
 
     fn synthesis_order(&self, m: usize, e: &[Complex64], b: &[Complex64], out: &mut [Complex64]) {
-        if m.max(self.spin) > self.lmax {
+        if m.max(self.spin) > self.lmax() {
             out.fill(Complex64::new(0.0, 0.0));
             return;
         }
-        let order = SpinOrder::new(m, self.spin, self.lmax, &self.log2_norms);
+        let order = SpinOrder::new(m, self.spin, self.lmax(), &self.log2_norms);
         let rings = &self.pairs;
         // SAFETY (both arms): the kernel variant was chosen from the CPU's reported features.
         #[cfg(target_arch = "x86_64")]
-        match self.kernel {
+        match self.scalar.kernel() {
             LegendreKernel::Avx512Fma => {
                 unsafe { fused::synthesis_order_avx512(&order, rings, e, b, out) };
                 return;
@@ -923,16 +934,16 @@ impl SpinTransform {
         e: &mut [Complex64],
         b: &mut [Complex64],
     ) {
-        if m.max(self.spin) > self.lmax {
+        if m.max(self.spin) > self.lmax() {
             e.fill(Complex64::new(0.0, 0.0));
             b.fill(Complex64::new(0.0, 0.0));
             return;
         }
-        let order = SpinOrder::new(m, self.spin, self.lmax, &self.log2_norms);
+        let order = SpinOrder::new(m, self.spin, self.lmax(), &self.log2_norms);
         let rings = &self.pairs;
         // SAFETY (both arms): the kernel variant was chosen from the CPU's reported features.
         #[cfg(target_arch = "x86_64")]
-        match self.kernel {
+        match self.scalar.kernel() {
             LegendreKernel::Avx512Fma => {
                 unsafe { fused::analysis_order_avx512(&order, rings, ring_sums, e, b) };
                 return;

@@ -258,12 +258,12 @@ impl HarmonicTransform {
         self.geometry.pixel_count()
     }
 
-    fn ring_count(&self) -> usize {
+    pub(crate) fn ring_count(&self) -> usize {
         self.geometry.rings().len()
     }
 
     /// Legendre-stage slot of ring q: (pair, side) with side 0 north, 1 south.
-    fn slot(&self, q: usize) -> usize {
+    pub(crate) fn slot(&self, q: usize) -> usize {
         let npairs = self.pairs.len();
         if q < npairs {
             2 * q
@@ -292,7 +292,7 @@ impl HarmonicTransform {
 
     /// The forward real-FFT plan of rings of `n` pixels (kept for the equatorial length,
     /// planned anew for a polar-cap one).
-    fn forward_plan(&self, n: usize) -> Arc<dyn RealToComplex<f64>> {
+    pub(crate) fn forward_plan(&self, n: usize) -> Arc<dyn RealToComplex<f64>> {
         if n == self.equator_forward.len() {
             Arc::clone(&self.equator_forward)
         } else {
@@ -301,7 +301,7 @@ impl HarmonicTransform {
     }
 
     /// The inverse real-FFT plan of rings of `n` pixels (see [`Self::forward_plan`]).
-    fn inverse_plan(&self, n: usize) -> Arc<dyn ComplexToReal<f64>> {
+    pub(crate) fn inverse_plan(&self, n: usize) -> Arc<dyn ComplexToReal<f64>> {
         if n == self.equator_inverse.len() {
             Arc::clone(&self.equator_inverse)
         } else {
