@@ -244,11 +244,10 @@ fn weighted_pseudo_spectrum(
     let w4 = sum4 / npix as f64;
     // The W-weighted mean of v, then (v − mean)·W.
     let mean_of = |m: &SkyMap| {
-        let values = m.values();
         let mut sum = 0.0f64;
-        for p in 0..npix {
+        for (p, &x) in m.values().iter().enumerate() {
             let w = weight(p, valid(p));
-            let v = if w > 0.0 { values[p] } else { 0.0 };
+            let v = if w > 0.0 { x } else { 0.0 };
             sum += v * w;
         }
         sum / wsum
