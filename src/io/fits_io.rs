@@ -47,7 +47,7 @@ const FITS_BLOCK: u64 = 2880;
 // cfitsio constants (fitsio.h).
 const KEY_NO_EXIST: c_int = 202;
 const READONLY: c_int = 0;
-const BINARY_TBL: c_int = 2;
+pub(super) const BINARY_TBL: c_int = 2;
 const TSHORT: c_int = 21;
 const TBYTE: c_int = 11;
 const TSBYTE: c_int = 12;
@@ -56,10 +56,10 @@ const TUINT: c_int = 30;
 const TINT: c_int = 31;
 const TULONG: c_int = 40;
 const TLONG: c_int = 41;
-const TFLOAT: c_int = 42;
+pub(super) const TFLOAT: c_int = 42;
 const TULONGLONG: c_int = 80;
 const TLONGLONG: c_int = 81;
-const TDOUBLE: c_int = 82;
+pub(super) const TDOUBLE: c_int = 82;
 const TBIT: c_int = 1;
 const TLOGICAL: c_int = 14;
 const TSTRING: c_int = 16;
@@ -867,7 +867,7 @@ impl ColumnValue for i64 {
 // Header checks.
 
 /// Size of the file, after checking it exists and starts like a FITS file.
-fn check_file_start(path: &Path) -> Result<u64> {
+pub(super) fn check_file_start(path: &Path) -> Result<u64> {
     use std::io::Read;
     let meta = std::fs::metadata(path).map_err(|e| match e.kind() {
         std::io::ErrorKind::NotFound => Error::io(path, "no such file"),
@@ -905,7 +905,7 @@ fn check_file_start(path: &Path) -> Result<u64> {
     Ok(meta.len())
 }
 
-fn truncated_or_damaged(path: &Path, file_len: u64, detail: String) -> Error {
+pub(super) fn truncated_or_damaged(path: &Path, file_len: u64, detail: String) -> Error {
     if !file_len.is_multiple_of(FITS_BLOCK) {
         Error::fits(
             path,
@@ -1019,7 +1019,7 @@ fn is_numeric_type(code: c_int) -> bool {
 }
 
 /// Why a column of this type cannot hold map values, or `None` when it can.
-fn non_numeric_reason(code: c_int, format: &str) -> Option<String> {
+pub(super) fn non_numeric_reason(code: c_int, format: &str) -> Option<String> {
     if is_numeric_type(code) {
         return None;
     }
@@ -1035,7 +1035,7 @@ fn non_numeric_reason(code: c_int, format: &str) -> Option<String> {
 }
 
 /// A text keyword of the current HDU without its quotes, `None` when absent or blank.
-fn text_key(file: &mut FitsHandle, path: &Path, key: &str) -> Result<Option<String>> {
+pub(super) fn text_key(file: &mut FitsHandle, path: &Path, key: &str) -> Result<Option<String>> {
     Ok(file
         .key(path, key)?
         .map(|v| unquote(&v))
@@ -1336,7 +1336,7 @@ fn check_column_lengths(
 }
 
 /// The file must hold the table data its header declares.
-fn check_data_present(
+pub(super) fn check_data_present(
     file: &mut FitsHandle,
     path: &Path,
     hdu: usize,
@@ -1436,7 +1436,7 @@ fn allocate<T: Clone>(path: &Path, len: usize, fill: T) -> Result<Vec<T>> {
 // A minimal safe wrapper over the cfitsio calls used here.
 
 /// The text cfitsio gives for a status code.
-fn cfitsio_text(status: c_int) -> String {
+pub(super) fn cfitsio_text(status: c_int) -> String {
     let mut buf = [0 as c_char; 40];
     // SAFETY: ffgerr writes at most 30 characters plus a NUL into the buffer.
     unsafe { sys::ffgerr(status, buf.as_mut_ptr()) };
@@ -1462,7 +1462,7 @@ fn path_to_c(path: &Path, shown: &Path) -> Result<CString> {
     CString::new(bytes).map_err(|_| Error::io(shown, "the path contains a NUL byte"))
 }
 
-struct FitsHandle {
+pub(super) struct FitsHandle {
     ptr: *mut sys::fitsfile,
 }
 
@@ -1479,7 +1479,7 @@ impl Drop for FitsHandle {
 
 impl FitsHandle {
     /// Opens an existing file read-only, without cfitsio's extended file-name syntax.
-    fn open(path: &Path) -> Result<Self> {
+    pub(super) fn open(path: &Path) -> Result<Self> {
         let c = path_to_c(path, path)?;
         let mut ptr = std::ptr::null_mut();
         let mut status = 0;
@@ -1517,7 +1517,7 @@ impl FitsHandle {
     }
 
     /// Moves to 0-based HDU `hdu`; its type (0 image, 1 ASCII table, 2 binary table) or the status.
-    fn move_to(&mut self, hdu: usize) -> std::result::Result<c_int, c_int> {
+    pub(super) fn move_to(&mut self, hdu: usize) -> std::result::Result<c_int, c_int> {
         let mut kind = 0;
         let mut status = 0;
         let number = c_int::try_from(hdu + 1).unwrap_or(c_int::MAX);
@@ -1556,7 +1556,7 @@ impl FitsHandle {
         }
     }
 
-    fn num_cols(&mut self, path: &Path) -> Result<c_int> {
+    pub(super) fn num_cols(&mut self, path: &Path) -> Result<c_int> {
         let mut n = 0;
         let mut status = 0;
         // SAFETY: open handle, out-pointers to locals.
@@ -1570,7 +1570,7 @@ impl FitsHandle {
         Ok(n)
     }
 
-    fn num_rows(&mut self, path: &Path) -> Result<u64> {
+    pub(super) fn num_rows(&mut self, path: &Path) -> Result<u64> {
         let mut n: sys::LONGLONG = 0;
         let mut status = 0;
         // SAFETY: open handle, out-pointers to locals.
@@ -1585,7 +1585,7 @@ impl FitsHandle {
     }
 
     /// cfitsio type code (negative for variable-length arrays) and repeat count of a column.
-    fn column_type(&mut self, path: &Path, colnum: c_int) -> Result<(c_int, u64)> {
+    pub(super) fn column_type(&mut self, path: &Path, colnum: c_int) -> Result<(c_int, u64)> {
         let mut code = 0;
         let mut repeat: sys::LONGLONG = 0;
         let mut width: sys::LONGLONG = 0;
@@ -1657,11 +1657,41 @@ impl FitsHandle {
         path: &Path,
         colnum: c_int,
         count: u64,
-        mut nulval: Option<T>,
+        nulval: Option<T>,
     ) -> Result<Vec<T>> {
         let mut out = allocate(path, count as usize, T::default())?;
+        self.read_rows_into(path, colnum, 0, &mut out, nulval)?;
+        Ok(out)
+    }
+
+    /// `out.len()` values of column `colnum` from 0-based row `first_row` (one value per row),
+    /// as f64; integer TNULL values become NaN, float columns are read as stored (see
+    /// [`FitsHandle::read_doubles`]).
+    pub(super) fn read_double_rows(
+        &mut self,
+        path: &Path,
+        colnum: c_int,
+        first_row: u64,
+        out: &mut [f64],
+        float_column: bool,
+    ) -> Result<()> {
+        let nulval = if float_column { 0.0 } else { f64::NAN };
+        self.read_rows_into(path, colnum, first_row, out, Some(nulval))
+    }
+
+    /// Fills `out` with the column's values from the first element of 0-based row `first`
+    /// onwards (across rows for a column of several values per row).
+    fn read_rows_into<T: ColumnValue>(
+        &mut self,
+        path: &Path,
+        colnum: c_int,
+        first: u64,
+        out: &mut [T],
+        mut nulval: Option<T>,
+    ) -> Result<()> {
+        let count = out.len() as u64;
         if count == 0 {
-            return Ok(out);
+            return Ok(());
         }
         let nulval_ptr = match nulval.as_mut() {
             Some(v) => v as *mut T as *mut c_void,
@@ -1676,7 +1706,7 @@ impl FitsHandle {
                 self.ptr,
                 T::DATATYPE,
                 colnum,
-                1,
+                (first + 1) as sys::LONGLONG,
                 1,
                 count as sys::LONGLONG,
                 nulval_ptr,
@@ -1691,7 +1721,7 @@ impl FitsHandle {
                 format!("cannot read column {colnum} ({})", cfitsio_text(status)),
             ));
         }
-        Ok(out)
+        Ok(())
     }
 
     /// Appends a binary table of `rows` rows with the given column names and TFORMs.

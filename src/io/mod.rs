@@ -1,8 +1,9 @@
-//! Files in the formats the pipeline reads and writes: HEALPix maps and footprints in FITS, and
-//! the JSON document of a measurement.
+//! Files in the formats the pipeline reads and writes: HEALPix maps and footprints in FITS, FITS
+//! binary tables (galaxy catalogues), and the JSON document of a measurement.
 //!
 //! Owns: the FITS reader and writer ([`read_map`], [`read_footprint`], [`write_map`],
-//! [`HealpixFitsReader`], [`WriteOptions`]) and the measurement document
+//! [`HealpixFitsReader`], [`WriteOptions`]), plain binary tables read by blocks of rows
+//! ([`fits_table::FitsTable`]) and the measurement document
 //! ([`measurement_document()`], [`pair_document`], [`flat_measurement_document`]).
 //!
 //! May use: [`crate::sky`], [`crate::scattering`], [`crate::measure`] and the crate's
@@ -10,6 +11,7 @@
 //! in [`crate::files`], which every stage uses.
 
 pub mod fits_io;
+pub mod fits_table;
 pub mod measurement_document;
 
 pub use fits_io::{

@@ -1,0 +1,167 @@
+//! `planisphere shear-maps`: a galaxy catalogue (CSV or FITS table) binned into HEALPix maps of
+//! counts, mean shear, shape-noise variance, density contrast and footprint, with optional
+//! shape-noise realisations by random rotation. The science is in [`crate::catalogue`].
+
+use crate::catalogue::maps_file::{write_catalogue_maps, write_noise_maps};
+use crate::catalogue::source::{
+    DEFAULT_BLOCK_ROWS, DEFAULT_DEC_COLUMN, DEFAULT_E1_COLUMN, DEFAULT_E2_COLUMN,
+    DEFAULT_RA_COLUMN, DEFAULT_WEIGHT_COLUMN,
+};
+use crate::catalogue::{
+    bin_catalogue, BinningPlan, CatalogueColumns, CatalogueSource, NoiseRealisations, WeightChoice,
+};
+use crate::error::{Error, Result};
+use std::path::PathBuf;
+
+/// Bin a galaxy catalogue (CSV with a header row, or a FITS binary table) into HEALPix maps:
+/// galaxies, weight, mean shear γ1 γ2, its noise variance, density contrast δ and footprint mask.
+#[derive(Debug, clap::Args)]
+pub struct ShearMapsArgs {
+    /// The catalogue: CSV text with a header row, or a FITS binary table.
+    pub catalogue: PathBuf,
+    /// Output HEALPix FITS file (columns GALAXIES, WEIGHT, GAMMA1, GAMMA2, NOISE_VAR, DELTA, MASK).
+    #[arg(long, short, value_name = "PATH")]
+    pub output: PathBuf,
+    /// NSIDE of the maps (RING ordering).
+    #[arg(long)]
+    pub nside: u32,
+    /// Column of right ascension, degrees (ICRS).
+    #[arg(long, default_value = DEFAULT_RA_COLUMN, value_name = "NAME")]
+    pub ra_column: String,
+    /// Column of declination, degrees (ICRS).
+    #[arg(long, default_value = DEFAULT_DEC_COLUMN, value_name = "NAME")]
+    pub dec_column: String,
+    /// Column of the first ellipticity component.
+    #[arg(long, default_value = DEFAULT_E1_COLUMN, value_name = "NAME")]
+    pub e1_column: String,
+    /// Column of the second ellipticity component.
+    #[arg(long, default_value = DEFAULT_E2_COLUMN, value_name = "NAME")]
+    pub e2_column: String,
+    /// Column of the weights [default: WEIGHT when the catalogue has it, else unit weights].
+    #[arg(long, value_name = "NAME", conflicts_with = "unit_weights")]
+    pub weight_column: Option<String>,
+    /// Give every galaxy weight 1, even when the catalogue has a weight column.
+    #[arg(long)]
+    pub unit_weights: bool,
+    /// Pixels with at least this many galaxies form the footprint.
+    #[arg(long, default_value_t = 1, value_name = "N")]
+    pub min_galaxies: u64,
+    /// Catalogue rows read and binned at a time (memory: 40 bytes per row).
+    #[arg(long, default_value_t = DEFAULT_BLOCK_ROWS, value_name = "ROWS")]
+    pub block_rows: usize,
+    /// Also bin this many shape-noise realisations (each galaxy's ellipticity turned by a random
+    /// angle), written to --noise-output.
+    #[arg(long, default_value_t = 0, value_name = "COUNT")]
+    pub noise_realisations: u64,
+    /// First realisation index (to continue a series).
+    #[arg(long, default_value_t = 0, value_name = "INDEX")]
+    pub first_realisation: u64,
+    /// Seed of the rotation angles; realisation k of row r is the same for any block size.
+    #[arg(long, default_value_t = 1)]
+    pub noise_seed: u64,
+    /// Path of each noise realisation, with `{index}` replaced by 0000, 0001, …
+    /// (columns GAMMA1, GAMMA2, MASK).
+    #[arg(long, value_name = "PATH", requires = "noise_realisations")]
+    pub noise_output: Option<PathBuf>,
+}
+
+/// The column choice the options describe.
+pub fn columns(args: &ShearMapsArgs) -> CatalogueColumns {
+    CatalogueColumns {
+        ra: args.ra_column.clone(),
+        dec: args.dec_column.clone(),
+        e1: args.e1_column.clone(),
+        e2: args.e2_column.clone(),
+        weight: match (&args.weight_column, args.unit_weights) {
+            (_, true) => WeightChoice::Unit,
+            (Some(name), false) => WeightChoice::Column(name.clone()),
+            (None, false) => WeightChoice::Default,
+        },
+    }
+}
+
+/// The noise realisation files, one per realisation (checked before any work).
+pub fn noise_paths(args: &ShearMapsArgs) -> Result<Vec<PathBuf>> {
+    if args.noise_realisations == 0 {
+        return Ok(Vec::new());
+    }
+    crate::limits::check_index_range(args.first_realisation, args.noise_realisations)?;
+    let Some(pattern) = &args.noise_output else {
+        return Err(Error::Setting(
+            "--noise-realisations needs --noise-output PATH (with {index})".to_string(),
+        ));
+    };
+    if !pattern.to_string_lossy().contains("{index}") {
+        return Err(Error::Setting(format!(
+            "--noise-output '{}' must contain {{index}}",
+            pattern.display()
+        )));
+    }
+    (0..args.noise_realisations)
+        .map(|i| {
+            super::sky::indexed_path(pattern, args.first_realisation + i, args.noise_realisations)
+        })
+        .collect()
+}
+
+/// Bins the catalogue and writes the maps.
+pub fn run(args: &ShearMapsArgs) -> Result<()> {
+    if args.block_rows == 0 {
+        return Err(Error::Setting(
+            "--block-rows must be at least 1".to_string(),
+        ));
+    }
+    if args.min_galaxies == 0 {
+        return Err(Error::Setting(
+            "--min-galaxies must be at least 1".to_string(),
+        ));
+    }
+    let noise_paths = noise_paths(args)?;
+    let plan = BinningPlan {
+        nside: args.nside,
+        min_galaxies: args.min_galaxies,
+        block_rows: args.block_rows,
+        noise: (!noise_paths.is_empty()).then(|| NoiseRealisations {
+            seed: args.noise_seed,
+            indices: (0..args.noise_realisations)
+                .map(|i| args.first_realisation + i)
+                .collect(),
+        }),
+    };
+    let mut source = CatalogueSource::open(&args.catalogue, &columns(args))?;
+    let maps = bin_catalogue(&mut source, &plan)?;
+    write_catalogue_maps(&args.output, &maps, &[])?;
+    for (noise, path) in maps.noise.iter().zip(&noise_paths) {
+        write_noise_maps(path, noise, &maps, &[])?;
+    }
+    let weights = match source.weight_column() {
+        Some(name) => format!("weights from column '{name}'"),
+        None if matches!(columns(args).weight, WeightChoice::Default) => {
+            format!("unit weights (no column '{DEFAULT_WEIGHT_COLUMN}')")
+        }
+        None => "unit weights".to_string(),
+    };
+    let footprint = maps.footprint.summary();
+    println!(
+        "{}: {} ({:?}), {weights}",
+        args.catalogue.display(),
+        maps.report.summary(),
+        source.format()
+    );
+    if let Some(ranges) = maps.report.ranges() {
+        println!("used galaxies span {ranges}");
+    }
+    println!(
+        "{}: NSIDE {}, footprint {} pixels ({:.2} deg², f_sky {:.4}), {:.3} galaxies per footprint pixel",
+        args.output.display(),
+        args.nside,
+        footprint.observed_pixels,
+        footprint.area_deg2,
+        footprint.f_sky,
+        maps.mean_galaxies
+    );
+    for path in &noise_paths {
+        println!("{}: noise realisation", path.display());
+    }
+    Ok(())
+}
