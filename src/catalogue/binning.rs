@@ -230,9 +230,12 @@ impl CatalogueBinner {
             }
             let (ra, dec) = (block.ra[i], block.dec[i]);
             self.report.record(None);
-            if !(0.0..360.0).contains(&ra) {
+            let ra = if (0.0..360.0).contains(&ra) {
+                ra
+            } else {
                 self.report.ra_wrapped += 1;
-            }
+                ra.rem_euclid(360.0)
+            };
             self.report.extend_ranges(ra, dec);
             let (w, e1, e2) = (block.weight[i], block.e1[i], block.e2[i]);
             let s = &mut self.sums[code as usize];

@@ -151,7 +151,8 @@ pub struct ScreeningReport {
     pub left_out: [u64; 5],
     /// Used rows whose RA lay outside [0°, 360°) and was wrapped.
     pub ra_wrapped: u64,
-    /// The smallest and largest RA and Dec of the used rows (degrees, RA as read).
+    /// The smallest and largest RA and Dec of the used rows (degrees, RA wrapped into
+    /// [0, 360)).
     pub ra_range: Option<(f64, f64)>,
     /// See `ra_range`.
     pub dec_range: Option<(f64, f64)>,

@@ -8,7 +8,8 @@ use crate::catalogue::source::{
     DEFAULT_RA_COLUMN, DEFAULT_WEIGHT_COLUMN,
 };
 use crate::catalogue::{
-    bin_catalogue, BinningPlan, CatalogueColumns, CatalogueSource, NoiseRealisations, WeightChoice,
+    bin_catalogue, BinningPlan, CatalogueColumns, CatalogueFormat, CatalogueSource,
+    NoiseRealisations, WeightChoice,
 };
 use crate::error::{Error, Result};
 use std::path::PathBuf;
@@ -142,11 +143,14 @@ pub fn run(args: &ShearMapsArgs) -> Result<()> {
         None => "unit weights".to_string(),
     };
     let footprint = maps.footprint.summary();
+    let format = match source.format() {
+        CatalogueFormat::Csv => "CSV",
+        CatalogueFormat::Fits => "FITS table",
+    };
     println!(
-        "{}: {} ({:?}), {weights}",
+        "{} ({format}): {}; {weights}",
         args.catalogue.display(),
         maps.report.summary(),
-        source.format()
     );
     if let Some(ranges) = maps.report.ranges() {
         println!("used galaxies span {ranges}");
