@@ -53,7 +53,7 @@ fn write_fits(path: &std::path::Path, g: &GalaxyBlock) {
     cards.push("END".to_string());
     let mut bytes = Vec::new();
     let pad = |bytes: &mut Vec<u8>, fill: u8| {
-        while bytes.len() % 2880 != 0 {
+        while !bytes.len().is_multiple_of(2880) {
             bytes.push(fill);
         }
     };

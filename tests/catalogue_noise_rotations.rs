@@ -115,10 +115,15 @@ fn rotated_shear_has_the_shape_noise_variance_per_pixel() {
         (mean_ratio - 1.0).abs() < 4.0 * error,
         "variance / prediction = {mean_ratio:.4} ± {error:.4}"
     );
+    println!(
+        "variance / prediction = {mean_ratio:.4} ± {error:.4} over {} pixel components",
+        ratios.len()
+    );
     // a factor 2 off (e.g. forgetting the 1/2 per component) would be far outside
     assert!(4.0 * error < 0.25, "test too weak: error {error}");
     // z² of the means has expectation 1
     let mean_z2 = z2.iter().sum::<f64>() / m;
+    println!("mean z² of the realisation means = {mean_z2:.3}");
     assert!(
         (mean_z2 - 1.0).abs() < 4.0 * (2.0 / (m / 2.0)).sqrt(),
         "mean z² {mean_z2}"
