@@ -223,6 +223,21 @@ impl ScreeningReport {
         widen(&mut self.dec_range, dec);
     }
 
+    /// A warning when at least 100 rows were used and all of them lie within RA [0, 2π],
+    /// Dec [−π/2, π/2] "degrees": positions given in radians would look like this (a patch
+    /// that small in degrees, 6°×3°, is possible, hence a warning, not an error).
+    pub fn radians_warning(&self) -> Option<String> {
+        let (r, d) = (self.ra_range?, self.dec_range?);
+        let tau = 2.0 * std::f64::consts::PI;
+        let half = std::f64::consts::FRAC_PI_2;
+        (self.used >= 100 && r.1 <= tau && d.0 >= -half && d.1 <= half).then(|| {
+            format!(
+                "warning: every position lies within RA 0..{:.3}, Dec ±{:.3} degrees; if the catalogue is in radians, convert it to degrees",
+                tau, half
+            )
+        })
+    }
+
     /// The ranges as text, e.g. `RA 10..20, Dec -5..5 degrees`.
     pub fn ranges(&self) -> Option<String> {
         let (r, d) = (self.ra_range?, self.dec_range?);
@@ -233,5 +248,22 @@ impl ScreeningReport {
             compact(d.0),
             compact(d.1)
         ))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn positions_that_all_fit_in_radian_ranges_raise_a_warning() {
+        let mut report = ScreeningReport::default();
+        for k in 0..100 {
+            report.record(None);
+            report.extend_ranges(0.06 * k as f64, -1.5 + 0.03 * k as f64);
+        }
+        assert!(report.radians_warning().is_some());
+        report.extend_ranges(40.0, 0.0);
+        assert!(report.radians_warning().is_none());
     }
 }

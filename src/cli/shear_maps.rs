@@ -155,6 +155,9 @@ pub fn run(args: &ShearMapsArgs) -> Result<()> {
     if let Some(ranges) = maps.report.ranges() {
         println!("used galaxies span {ranges}");
     }
+    if let Some(warning) = maps.report.radians_warning() {
+        eprintln!("planisphere: {warning}");
+    }
     println!(
         "{}: NSIDE {}, footprint {} pixels ({:.2} deg², f_sky {:.4}), {:.3} galaxies per footprint pixel",
         args.output.display(),
