@@ -25,7 +25,7 @@
 use num_complex::Complex64;
 
 /// Rescaling: values carry a factor 2^(−SCALE_LOG2 · s).
-const SCALE_LOG2: f64 = 500.0;
+pub(crate) const SCALE_LOG2: f64 = 500.0;
 /// Scaled values above this are brought down by 2^−500.
 const SCALE_LIMIT: f64 = 1.606_938_044_258_990_3e60; // 2^200 (exact: checked in a unit test)
 /// 2^−500.
@@ -171,7 +171,7 @@ fn block<const L: usize>(
 /// Bring lanes with s > 0 back by 2^−500 when they exceed 2^200; returns whether any lane is
 /// still scaled.
 #[inline(always)]
-fn rescale<const L: usize>(
+pub(crate) fn rescale<const L: usize>(
     p0: &mut [f64; L],
     p1: &mut [f64; L],
     s: &mut [i32; L],

@@ -138,7 +138,7 @@ impl std::fmt::Debug for HarmonicTransform {
 /// with a direct sin/cos at every multiple of 32 (error a few ulp); a jump re-anchors at the
 /// multiple of 32 below, so each k gets the same bits however it is reached. Used where a band
 /// of orders needs only some k.
-struct PhaseWalk {
+pub(crate) struct PhaseWalk {
     phi0: f64,
     step: Complex64,
     next: usize,
@@ -146,7 +146,7 @@ struct PhaseWalk {
 }
 
 impl PhaseWalk {
-    fn new(phi0: f64) -> Self {
+    pub(crate) fn new(phi0: f64) -> Self {
         PhaseWalk {
             phi0,
             step: Complex64::from_polar(1.0, phi0),
@@ -155,7 +155,7 @@ impl PhaseWalk {
         }
     }
 
-    fn at(&mut self, k: usize) -> Complex64 {
+    pub(crate) fn at(&mut self, k: usize) -> Complex64 {
         if k != self.next {
             let anchor = k - k % 32;
             self.w = Complex64::from_polar(1.0, anchor as f64 * self.phi0);

@@ -1,0 +1,1074 @@
+//! Spin-weighted spherical harmonic synthesis (E, B a_ℓm → two real maps) and analysis (maps →
+//! E, B a_ℓm) on the HEALPix RING grid, for spin s ≥ 1 (s = 2: polarization Q/U, or the shear
+//! γ1/γ2 of weak lensing).
+//!
+//! **Conventions** (healpy 1.20.1 `alm2map_spin` / `map2alm_spin`, checked in
+//! tests/spin_harmonics_against_healpy.rs): with the complex field P = Q + iU on the local basis
+//! (e_θ, e_φ) (healpy's "COSMO" polarization convention: Q > 0 along the meridian, U > 0 along
+//! the direction half-way from e_θ, pointing south, to e_φ, pointing east),
+//!
+//! * Q + iU = −Σ_ℓm (E_ℓm + i B_ℓm) ₛY_ℓm, hence Q − iU = −(−1)^s Σ_ℓm (E_ℓm − i B_ℓm) ₋ₛY_ℓm
+//!   (from ₛY*_ℓm = (−1)^(s+m) ₋ₛY_ℓ,−m),
+//!
+//! with E_ℓ,−m = (−1)^m E*_ℓm (and B likewise) and ₛY_ℓm = ₛλ_ℓm(θ) e^{imφ} the spin-weighted
+//! harmonics of Goldberg et al. (1967, J. Math. Phys. 8, 2155), Condon–Shortley phase included,
+//! given by their explicit sum
+//! ₛY_ℓm = (−1)^m √((ℓ+m)!(ℓ−m)!(2ℓ+1)/(4π(ℓ+s)!(ℓ−s)!)) sin^{2ℓ}(θ/2)
+//! Σ_r C(ℓ−s, r) C(ℓ+s, r+s−m) (−1)^{ℓ−r−s} e^{imφ} cot^{2r+s−m}(θ/2)
+//! (checked against this sum in tests/spin_harmonics_against_healpy.rs). Coefficients with
+//! ℓ < s have no harmonic and are ignored in synthesis and zero in analysis.
+//!
+//! **Recurrence.** ₛλ_ℓm(θ), up to a sign √((2ℓ+1)/(4π)) d^ℓ_{m,−s}(θ), obeys, in ℓ at fixed m and s,
+//! the three-term recurrence of the Wigner d functions (Kostelec & Rockmore 2008,
+//! J. Fourier Anal. Appl. 14, 145, their eq. (8), equation number from memory; the recursion
+//! in ℓ at fixed m for d^ℓ_{m,±s} of the spin transforms of Reinecke & Seljebotn 2013,
+//! A&A 554, A112, §2.3, from memory), here for the normalised functions:
+//!
+//! ₛλ_{ℓ+1,m} = A_ℓ (cos θ + m s/(ℓ(ℓ+1))) ₛλ_ℓm − C_ℓ ₛλ_{ℓ−1,m},
+//! A_ℓ = √((2ℓ+3)/(2ℓ+1)) (ℓ+1)(2ℓ+1)/√(((ℓ+1)² − m²)((ℓ+1)² − s²)),
+//! C_ℓ = A_ℓ √((2ℓ+1)/(2ℓ−1)) √((ℓ² − m²)(ℓ² − s²))/(ℓ(2ℓ+1)),
+//!
+//! started at ℓ0 = max(m, |s|) from
+//! ₛλ_ℓ0,m = σ √((2ℓ0+1)/(4π) · C(2ℓ0, a)) sin^a(θ/2) cos^b(θ/2), a = |m + s|, b = |m − s|,
+//! σ = (−1)^s when s < 0 and m < |s|, else (−1)^m (the single surviving term of the sum
+//! above). The spins +s and −s share A_ℓ and C_ℓ and differ only in the sign of m s/(ℓ(ℓ+1)),
+//! so both run from one set of coefficients. As in [`super::legendre`], the recurrence runs
+//! on λ/c_ℓ (c_ℓ0 = c_ℓ0+1 = 1, c_{ℓ+1} = C_ℓ c_{ℓ−1}), which removes one multiplication per
+//! step, and tiny starting values near the poles are carried as v·2^(−500 k) until they grow
+//! (Holmes & Featherstone 2002, J. Geodesy 76, 279, scaled recursion).
+//!
+//! **North/south symmetry:** ₛλ_ℓm(π − θ) = (−1)^(ℓ+m) ₋ₛλ_ℓm(θ) (from ₛY_ℓm(π − θ, φ + π) =
+//! (−1)^ℓ ₋ₛY_ℓm(θ, φ), Goldberg et al. 1967), so one pair of recurrences serves a ring pair.
+//!
+//! **Stages** (as in the scalar transform): with a⁺_ℓm = −(E_ℓm + i B_ℓm) and
+//! a⁻_ℓm = −(−1)^s (E_ℓm − i B_ℓm), the ring sums
+//! P_m(θ) = Σ_ℓ a⁺_ℓm ₛλ_ℓm(θ) and P̄_m(θ) = Σ_ℓ a⁻_ℓm ₋ₛλ_ℓm(θ) give Q_m = (P_m + P̄_m)/2 and
+//! U_m = (P_m − P̄_m)/(2i), and each map is f(θ, φ_j) = Σ_m f_m(θ) e^{imφ_j} (real FFT per
+//! ring). Analysis is the adjoint with equal pixel weights 4π/Npix: a^+_ℓm = Σ_rings ₛλ_ℓm
+//! (G^Q_m + iG^U_m), a^−_ℓm = Σ_rings ₋ₛλ_ℓm (G^Q_m − iG^U_m), E = −(a⁺ + (−1)^s a⁻)/2,
+//! B = i(a⁺ − (−1)^s a⁻)/2, with G_m = (4π/Npix) Σ_j f_j e^{−imφ_j}, refined by Jacobi iterations
+//! like the scalar analysis. The Legendre stage is parallel over orders m, the ring stage over
+//! rings; each output is computed by one task in a fixed order, so results are bitwise
+//! identical for any thread count.
+
+use std::sync::Arc;
+
+use num_complex::Complex64;
+use rayon::prelude::*;
+use realfft::{ComplexToReal, RealFftPlanner, RealToComplex};
+
+use super::coefficients::HarmonicCoefficients;
+use super::geometry::RingGeometry;
+use super::legendre::{log2_sectoral_norms, rescale, FusedMulAdd, MulAdd, PlainMulAdd, SCALE_LOG2};
+use super::transform::{LegendreKernel, PhaseWalk};
+use crate::error::{Error, Result};
+
+/// Ring pairs per block in the synthesis kernel with AVX2 (eight accumulators and four
+/// recurrence values per lane fit the 16 registers); twice as many with AVX-512.
+const SYNTHESIS_LANES: usize = 4;
+/// Ring pairs per block in the portable synthesis kernel (SSE2 registers hold two values).
+const PORTABLE_SYNTHESIS_LANES: usize = 2;
+/// Ring pairs per block in the analysis kernel (partial sums live in a buffer).
+const ANALYSIS_LANES: usize = 8;
+/// Two-step passes between rescaling checks (growth over 8 steps stays far below 2^300).
+const PASSES_PER_CHECK: usize = 4;
+/// Target size of one band of ring sums in the banded stages (as in the scalar transform).
+const BAND_BYTES: usize = 4 << 20;
+/// Most bands in analysis, which repeats the real FFTs of every ring per band.
+const ANALYSIS_MAX_BANDS: usize = 3;
+
+/// Spin-s synthesis and analysis for one (Nside, lmax, s); owns the ring geometry and the FFT
+/// plans, is built once and shared (it is `Sync`).
+pub struct SpinTransform {
+    geometry: RingGeometry,
+    lmax: usize,
+    spin: usize,
+    pairs: HalfAngleRings,
+    /// log2 √((2ℓ+1)/(4π) · (2ℓ−1)!!/(2ℓ)!!), ℓ = 0 … lmax.
+    log2_norms: Vec<f64>,
+    forward: Vec<Arc<dyn RealToComplex<f64>>>,
+    inverse: Vec<Arc<dyn ComplexToReal<f64>>>,
+    kernel: LegendreKernel,
+}
+
+impl std::fmt::Debug for SpinTransform {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("SpinTransform")
+            .field("nside", &self.geometry.nside())
+            .field("lmax", &self.lmax)
+            .field("spin", &self.spin)
+            .field("kernel", &self.kernel)
+            .finish()
+    }
+}
+
+/// North rings (z ≥ 0, pole first, the equator ring last) with what the starting values need:
+/// cos θ and log2 of sin(θ/2), cos(θ/2).
+struct HalfAngleRings {
+    z: Vec<f64>,
+    log2_sin_half: Vec<f64>,
+    log2_cos_half: Vec<f64>,
+}
+
+impl HalfAngleRings {
+    fn len(&self) -> usize {
+        self.z.len()
+    }
+}
+
+/// Recurrence coefficients and starting-value data for one order m (k = ℓ − ℓ0).
+struct SpinOrder {
+    m: usize,
+    l0: usize,
+    /// Steps k = 1 … n produce ℓ0 + k: μ_k = (a_k z ± b_k) μ_{k−1} − μ_{k−2}.
+    a: Vec<f64>,
+    b: Vec<f64>,
+    /// c_ℓ: λ = c μ.
+    c: Vec<f64>,
+    /// log2 |start| = norm + a·log2 sin(θ/2) + b·log2 cos(θ/2), for spin +s and −s.
+    start_plus: StartValue,
+    start_minus: StartValue,
+    /// (−1)^(ℓ0 + m): parity sign of k = 0.
+    parity0: f64,
+    /// (−1)^s.
+    spin_sign: f64,
+}
+
+struct StartValue {
+    log2_norm: f64,
+    sin_power: f64,
+    cos_power: f64,
+    sign: f64,
+}
+
+impl SpinOrder {
+    fn new(m: usize, spin: usize, lmax: usize, log2_norms: &[f64]) -> Self {
+        let l0 = m.max(spin);
+        let n = lmax - l0;
+        let (mf, sf) = (m as f64, spin as f64);
+        let mut a = vec![0.0; n + 1];
+        let mut b = vec![0.0; n + 1];
+        let mut c = vec![1.0; n + 1];
+        // Raw A_ℓ, B_ℓ (= A_ℓ m s/(ℓ(ℓ+1))) and C_ℓ for ℓ = ℓ0 + k − 1.
+        let coefficients = |l: f64| {
+            let l1 = l + 1.0;
+            let big_a = ((2.0 * l + 3.0) / (2.0 * l + 1.0)).sqrt() * l1 * (2.0 * l + 1.0)
+                / (((l1 - mf) * (l1 + mf)) * ((l1 - sf) * (l1 + sf))).sqrt();
+            let big_b = big_a * mf * sf / (l * l1);
+            let big_c = big_a
+                * ((2.0 * l + 1.0) / (2.0 * l - 1.0)).sqrt()
+                * (((l - mf) * (l + mf)) * ((l - sf) * (l + sf))).sqrt()
+                / (l * (2.0 * l + 1.0));
+            (big_a, big_b, big_c)
+        };
+        for k in 1..=n {
+            let l = (l0 + k - 1) as f64;
+            let (big_a, big_b, big_c) = coefficients(l);
+            if k >= 2 {
+                // c_{ℓ+1} = C_ℓ c_{ℓ−1}.
+                c[k] = big_c * c[k - 2];
+            }
+            let ratio = c[k - 1] / c[k];
+            a[k] = big_a * ratio;
+            b[k] = big_b * ratio;
+        }
+        // √C(2ℓ0, ℓ0 + d) = √C(2ℓ0, ℓ0) √(Π_{j=1..|d|} (ℓ0 − j + 1)/(ℓ0 + j)), and
+        // log2 √((2ℓ0+1)/(4π) C(2ℓ0, ℓ0)) = log2_norms[ℓ0] + ℓ0.
+        let start = |sin_power: usize, cos_power: usize, sign: f64| {
+            let d = sin_power.abs_diff(l0);
+            let mut log2_ratio = 0.0;
+            for j in 1..=d {
+                log2_ratio += ((l0 - j + 1) as f64 / (l0 + j) as f64).log2();
+            }
+            StartValue {
+                log2_norm: log2_norms[l0] + l0 as f64 + 0.5 * log2_ratio,
+                sin_power: sin_power as f64,
+                cos_power: cos_power as f64,
+                sign,
+            }
+        };
+        let odd = |x: usize| if x % 2 == 1 { -1.0 } else { 1.0 };
+        let start_plus = start(m + spin, m.abs_diff(spin), odd(m));
+        let start_minus = start(
+            m.abs_diff(spin),
+            m + spin,
+            if m < spin { odd(spin) } else { odd(m) },
+        );
+        SpinOrder {
+            m,
+            l0,
+            a,
+            b,
+            c,
+            start_plus,
+            start_minus,
+            parity0: odd(l0 + m),
+            spin_sign: odd(spin),
+        }
+    }
+
+    fn steps(&self) -> usize {
+        self.a.len() - 1
+    }
+}
+
+/// Starting lanes of one recurrence (spin +s or −s) for a block of ring pairs: the values
+/// v = ±2^(log2|λ| + 500 k), their scales k ≥ 0 (v carries 2^(−500 k)) and the live mask (1 where
+/// k = 0).
+#[inline(always)]
+fn start_lanes<const L: usize>(
+    start: &StartValue,
+    rings: &HalfAngleRings,
+    pairs: &[usize; L],
+) -> ([f64; L], [i32; L], [f64; L]) {
+    let mut value = [0.0; L];
+    let mut scale = [0; L];
+    let mut live = [0.0; L];
+    for (r, &p) in pairs.iter().enumerate() {
+        let log2 = start.log2_norm
+            + start.sin_power * rings.log2_sin_half[p]
+            + start.cos_power * rings.log2_cos_half[p];
+        let k = if log2 >= -700.0 {
+            0.0
+        } else {
+            ((-log2 - 200.0) / SCALE_LOG2).ceil()
+        };
+        scale[r] = k as i32;
+        value[r] = start.sign * (log2 + SCALE_LOG2 * k).exp2();
+        live[r] = if k == 0.0 { 1.0 } else { 0.0 };
+    }
+    (value, scale, live)
+}
+
+/// One recurrence step on all lanes: prev ← (a z + b) cur − prev.
+#[inline(always)]
+fn step<A: MulAdd, const L: usize>(
+    a: f64,
+    b: f64,
+    z: &[f64; L],
+    cur: &[f64; L],
+    prev: &mut [f64; L],
+) {
+    for ((prev, cur), z) in prev.iter_mut().zip(cur).zip(z) {
+        *prev = A::mul_add(A::mul_add(a, *z, b), *cur, -*prev);
+    }
+}
+
+/// The lanes with the still-scaled ones zeroed.
+#[inline(always)]
+fn masked<const L: usize>(x: &[f64; L], live: &[f64; L]) -> [f64; L] {
+    std::array::from_fn(|r| x[r] * live[r])
+}
+
+/// Pair indices of block `b` (blocks run from the equator towards the pole; padding lanes
+/// repeat the last valid pair) and the number of valid lanes.
+fn block_pairs<const L: usize>(b: usize, npairs: usize) -> Option<([usize; L], usize)> {
+    let first = b * L;
+    if first >= npairs {
+        return None;
+    }
+    let valid = (npairs - first).min(L);
+    let mut pairs = [0; L];
+    for (r, p) in pairs.iter_mut().enumerate() {
+        *p = npairs - 1 - (first + r.min(valid - 1));
+    }
+    Some((pairs, valid))
+}
+
+/// Synthesis coefficients of one order for each k, times c_ℓ: a⁺, a⁺ with the south parity
+/// sign (−1)^(ℓ+m), a⁻, a⁻ with the parity sign, as (re, im) pairs.
+fn synthesis_streams(order: &SpinOrder, e: &[Complex64], b: &[Complex64]) -> Vec<[f64; 8]> {
+    let skip = order.l0 - order.m;
+    let mut parity = order.parity0;
+    (0..=order.steps())
+        .map(|k| {
+            let (ek, bk) = (e[skip + k], b[skip + k]);
+            let c = order.c[k];
+            // a⁺ = −(E + iB), a⁻ = −(−1)^s (E − iB).
+            let plus = -Complex64::new(ek.re - bk.im, ek.im + bk.re) * c;
+            let minus = -Complex64::new(ek.re + bk.im, ek.im - bk.re) * (c * order.spin_sign);
+            let (ps, ms) = (plus * parity, minus * parity);
+            parity = -parity;
+            [
+                plus.re, plus.im, ps.re, ps.im, minus.re, minus.im, ms.re, ms.im,
+            ]
+        })
+        .collect()
+}
+
+/// North P += a⁺ ₛλ, south P += ±a⁺ ₋ₛλ, north P̄ += a⁻ ₋ₛλ, south P̄ += ±a⁻ ₛλ.
+#[inline(always)]
+fn accumulate<A: MulAdd, const L: usize>(
+    sums: &mut [[f64; L]; 8],
+    c: &[f64; 8],
+    mu: &[f64; L],
+    nu: &[f64; L],
+) {
+    for r in 0..L {
+        sums[0][r] = A::mul_add(c[0], mu[r], sums[0][r]);
+        sums[1][r] = A::mul_add(c[1], mu[r], sums[1][r]);
+        sums[2][r] = A::mul_add(c[2], nu[r], sums[2][r]);
+        sums[3][r] = A::mul_add(c[3], nu[r], sums[3][r]);
+        sums[4][r] = A::mul_add(c[4], nu[r], sums[4][r]);
+        sums[5][r] = A::mul_add(c[5], nu[r], sums[5][r]);
+        sums[6][r] = A::mul_add(c[6], mu[r], sums[6][r]);
+        sums[7][r] = A::mul_add(c[7], mu[r], sums[7][r]);
+    }
+}
+
+/// Legendre stage of synthesis for one order m: for every ring pair p, Q_m and U_m of the
+/// north ring (out[2p], out[stride + 2p]) and of the south ring (out[2p + 1],
+/// out[stride + 2p + 1]), stride = 2 × pairs. `e`, `b` are the order's coefficients from
+/// ℓ = m.
+// Kept whole, as the scalar kernel: the phases of the lane recurrences (scaled lanes, all lanes
+// live, the last odd step) share the block's lane registers in one inlined loop nest.
+#[inline(always)]
+fn synthesis_order<A: MulAdd, const L: usize>(
+    order: &SpinOrder,
+    rings: &HalfAngleRings,
+    e: &[Complex64],
+    b: &[Complex64],
+    out: &mut [Complex64],
+) {
+    out.fill(Complex64::new(0.0, 0.0));
+    let stride = out.len() / 2;
+    let n = order.steps();
+    let (a_k, b_k) = (&order.a, &order.b);
+    let streams = synthesis_streams(order, e, b);
+    let mut blk = 0;
+    while let Some((pairs, valid)) = block_pairs::<L>(blk, rings.len()) {
+        blk += 1;
+        let z: [f64; L] = std::array::from_fn(|r| rings.z[pairs[r]]);
+        let (mut mu1, mut smu, mut lmu) = start_lanes(&order.start_plus, rings, &pairs);
+        let (mut nu1, mut snu, mut lnu) = start_lanes(&order.start_minus, rings, &pairs);
+        let (mut mu0, mut nu0) = ([0.0f64; L], [0.0f64; L]);
+        let mut sums = [[0.0f64; L]; 8];
+        accumulate::<A, L>(
+            &mut sums,
+            &streams[0],
+            &masked(&mu1, &lmu),
+            &masked(&nu1, &lnu),
+        );
+        let mut k = 1;
+        let mut scaled = smu.iter().chain(&snu).any(|&s| s > 0);
+        while scaled && k < n {
+            let mut pass = 0;
+            while pass < PASSES_PER_CHECK && k < n {
+                step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
+                step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
+                accumulate::<A, L>(
+                    &mut sums,
+                    &streams[k],
+                    &masked(&mu0, &lmu),
+                    &masked(&nu0, &lnu),
+                );
+                step::<A, L>(a_k[k + 1], b_k[k + 1], &z, &mu0, &mut mu1);
+                step::<A, L>(a_k[k + 1], -b_k[k + 1], &z, &nu0, &mut nu1);
+                accumulate::<A, L>(
+                    &mut sums,
+                    &streams[k + 1],
+                    &masked(&mu1, &lmu),
+                    &masked(&nu1, &lnu),
+                );
+                k += 2;
+                pass += 1;
+            }
+            let mu_scaled = rescale(&mut mu0, &mut mu1, &mut smu, &mut lmu);
+            let nu_scaled = rescale(&mut nu0, &mut nu1, &mut snu, &mut lnu);
+            scaled = mu_scaled || nu_scaled;
+        }
+        while k < n {
+            step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
+            step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
+            accumulate::<A, L>(&mut sums, &streams[k], &mu0, &nu0);
+            step::<A, L>(a_k[k + 1], b_k[k + 1], &z, &mu0, &mut mu1);
+            step::<A, L>(a_k[k + 1], -b_k[k + 1], &z, &nu0, &mut nu1);
+            accumulate::<A, L>(&mut sums, &streams[k + 1], &mu1, &nu1);
+            k += 2;
+        }
+        if k == n {
+            step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
+            step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
+            accumulate::<A, L>(
+                &mut sums,
+                &streams[k],
+                &masked(&mu0, &lmu),
+                &masked(&nu0, &lnu),
+            );
+        }
+        for r in 0..valid {
+            let p = pairs[r];
+            let pn = Complex64::new(sums[0][r], sums[1][r]);
+            let ps = Complex64::new(sums[2][r], sums[3][r]);
+            let qn = Complex64::new(sums[4][r], sums[5][r]);
+            let qs = Complex64::new(sums[6][r], sums[7][r]);
+            let (qn_m, un_m) = q_u(pn, qn);
+            let (qs_m, us_m) = q_u(ps, qs);
+            out[2 * p] = qn_m;
+            out[stride + 2 * p] = un_m;
+            out[2 * p + 1] = qs_m;
+            out[stride + 2 * p + 1] = us_m;
+        }
+        if (0..valid).all(|r| smu[r] > 0 && snu[r] > 0) {
+            // Every ring nearer the pole is dead too (|ₛλ| grows away from the pole there).
+            break;
+        }
+    }
+}
+
+/// Q_m = (P_m + P̄_m)/2 and U_m = (P_m − P̄_m)/(2i) from the ring sums of the two spins.
+#[inline(always)]
+fn q_u(p: Complex64, p_bar: Complex64) -> (Complex64, Complex64) {
+    let d = (p - p_bar) * 0.5;
+    ((p + p_bar) * 0.5, Complex64::new(d.im, -d.re))
+}
+
+/// Weighted azimuthal sums of one ring pair for one order: G^Q and G^U of the north and south
+/// rings (the south ones zero for the equator ring, which is its own mirror).
+#[derive(Clone, Copy)]
+struct PairSums {
+    q_north: Complex64,
+    q_south: Complex64,
+    u_north: Complex64,
+    u_south: Complex64,
+}
+
+/// One row of the analysis partial sums: a⁺ += ₛλ X⁺_N + ₋ₛλ (±X⁺_S) and
+/// a⁻ += ₋ₛλ X⁻_N + ₛλ (±X⁻_S), row = [a⁺ re | a⁺ im | a⁻ re | a⁻ im] lanes; `north` holds
+/// X⁺_N, X⁻_N and `south` ±X⁺_S, ±X⁻_S as (re, im) lanes.
+#[inline(always)]
+fn add_row<A: MulAdd, const L: usize>(
+    row: &mut [f64],
+    mu: &[f64; L],
+    nu: &[f64; L],
+    north: &[[f64; L]; 4],
+    south: &[[f64; L]; 4],
+) {
+    let row: &mut [f64] = &mut row[..4 * L];
+    for r in 0..L {
+        row[r] = A::mul_add(mu[r], north[0][r], A::mul_add(nu[r], south[0][r], row[r]));
+        row[L + r] = A::mul_add(
+            mu[r],
+            north[1][r],
+            A::mul_add(nu[r], south[1][r], row[L + r]),
+        );
+        row[2 * L + r] = A::mul_add(
+            nu[r],
+            north[2][r],
+            A::mul_add(mu[r], south[2][r], row[2 * L + r]),
+        );
+        row[3 * L + r] = A::mul_add(
+            nu[r],
+            north[3][r],
+            A::mul_add(mu[r], south[3][r], row[3 * L + r]),
+        );
+    }
+}
+
+/// Legendre stage of analysis for one order m: a⁺_ℓm = Σ_pairs [ₛλ X⁺_N + (−1)^(ℓ+m) ₋ₛλ X⁺_S]
+/// and a⁻_ℓm = Σ_pairs [₋ₛλ X⁻_N + (−1)^(ℓ+m) ₛλ X⁻_S] with X± = G^Q ± i G^U, then
+/// E = −(a⁺ + (−1)^s a⁻)/2 and B = i(a⁺ − (−1)^s a⁻)/2 into `e`, `b` (the order's coefficients
+/// from ℓ = m; those below ℓ0 are set to zero).
+///
+/// Each block adds its lanes' products into per-lane partial sums (a row of 4L values per ℓ);
+/// the lanes are summed once at the end in a fixed order, so the result does not depend on
+/// scheduling.
+// Kept whole, as the scalar kernel (see synthesis_order).
+#[inline(always)]
+fn analysis_order<A: MulAdd, const L: usize>(
+    order: &SpinOrder,
+    rings: &HalfAngleRings,
+    ring_sums: &dyn Fn(usize) -> PairSums,
+    e: &mut [Complex64],
+    b: &mut [Complex64],
+) {
+    let n = order.steps();
+    let skip = order.l0 - order.m;
+    let (a_k, b_k) = (&order.a, &order.b);
+    let w = 4 * L;
+    let mut acc = vec![0.0f64; (n + 1) * w];
+    let mut blk = 0;
+    while let Some((pairs, valid)) = block_pairs::<L>(blk, rings.len()) {
+        blk += 1;
+        let z: [f64; L] = std::array::from_fn(|r| rings.z[pairs[r]]);
+        // X⁺_N, X⁻_N and the south X⁺_S, X⁻_S times the parity sign of even k (`even`) and
+        // of odd k (`odd`); padding lanes stay zero.
+        let mut north = [[0.0f64; L]; 4];
+        let mut even = [[0.0f64; L]; 4];
+        for r in 0..valid {
+            let s = ring_sums(pairs[r]);
+            let i = Complex64::new(0.0, 1.0);
+            let (pn, ps) = (s.q_north + i * s.u_north, s.q_south + i * s.u_south);
+            let (mn, ms) = (s.q_north - i * s.u_north, s.q_south - i * s.u_south);
+            north[0][r] = pn.re;
+            north[1][r] = pn.im;
+            north[2][r] = mn.re;
+            north[3][r] = mn.im;
+            let sign = order.parity0;
+            even[0][r] = sign * ps.re;
+            even[1][r] = sign * ps.im;
+            even[2][r] = sign * ms.re;
+            even[3][r] = sign * ms.im;
+        }
+        let odd: [[f64; L]; 4] = std::array::from_fn(|j| std::array::from_fn(|r| -even[j][r]));
+        let (mut mu1, mut smu, mut lmu) = start_lanes(&order.start_plus, rings, &pairs);
+        let (mut nu1, mut snu, mut lnu) = start_lanes(&order.start_minus, rings, &pairs);
+        let (mut mu0, mut nu0) = ([0.0f64; L], [0.0f64; L]);
+        add_row::<A, L>(
+            &mut acc[..w],
+            &masked(&mu1, &lmu),
+            &masked(&nu1, &lnu),
+            &north,
+            &even,
+        );
+        let mut k = 1;
+        let mut scaled = smu.iter().chain(&snu).any(|&s| s > 0);
+        while scaled && k < n {
+            let mut pass = 0;
+            while pass < PASSES_PER_CHECK && k < n {
+                step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
+                step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
+                add_row::<A, L>(
+                    &mut acc[k * w..],
+                    &masked(&mu0, &lmu),
+                    &masked(&nu0, &lnu),
+                    &north,
+                    &odd,
+                );
+                step::<A, L>(a_k[k + 1], b_k[k + 1], &z, &mu0, &mut mu1);
+                step::<A, L>(a_k[k + 1], -b_k[k + 1], &z, &nu0, &mut nu1);
+                add_row::<A, L>(
+                    &mut acc[(k + 1) * w..],
+                    &masked(&mu1, &lmu),
+                    &masked(&nu1, &lnu),
+                    &north,
+                    &even,
+                );
+                k += 2;
+                pass += 1;
+            }
+            let mu_scaled = rescale(&mut mu0, &mut mu1, &mut smu, &mut lmu);
+            let nu_scaled = rescale(&mut nu0, &mut nu1, &mut snu, &mut lnu);
+            scaled = mu_scaled || nu_scaled;
+        }
+        while k < n {
+            step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
+            step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
+            add_row::<A, L>(&mut acc[k * w..], &mu0, &nu0, &north, &odd);
+            step::<A, L>(a_k[k + 1], b_k[k + 1], &z, &mu0, &mut mu1);
+            step::<A, L>(a_k[k + 1], -b_k[k + 1], &z, &nu0, &mut nu1);
+            add_row::<A, L>(&mut acc[(k + 1) * w..], &mu1, &nu1, &north, &even);
+            k += 2;
+        }
+        if k == n {
+            step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
+            step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
+            add_row::<A, L>(
+                &mut acc[k * w..],
+                &masked(&mu0, &lmu),
+                &masked(&nu0, &lnu),
+                &north,
+                &odd,
+            );
+        }
+        if (0..valid).all(|r| smu[r] > 0 && snu[r] > 0) {
+            break;
+        }
+    }
+    let lane_sum = |v: &[f64]| v.iter().fold(0.0, |s, x| s + x);
+    e[..skip].fill(Complex64::new(0.0, 0.0));
+    b[..skip].fill(Complex64::new(0.0, 0.0));
+    for k in 0..=n {
+        let row = &acc[k * w..(k + 1) * w];
+        let plus = Complex64::new(lane_sum(&row[..L]), lane_sum(&row[L..2 * L]));
+        let minus =
+            Complex64::new(lane_sum(&row[2 * L..3 * L]), lane_sum(&row[3 * L..])) * order.spin_sign;
+        let c = order.c[k];
+        e[skip + k] = -(plus + minus) * (0.5 * c);
+        let d = (plus - minus) * (0.5 * c);
+        b[skip + k] = Complex64::new(-d.im, d.re);
+    }
+}
+
+impl SpinTransform {
+    /// Transform for spin `spin` ≥ 1, maps of `nside` and coefficients up to `lmax`, with
+    /// `spin` ≤ lmax ≤ 3·nside − 1.
+    pub fn new(nside: usize, lmax: usize, spin: usize) -> Result<Self> {
+        Self::with_kernel(nside, lmax, spin, LegendreKernel::best_available())
+    }
+
+    /// As [`SpinTransform::new`] with a chosen kernel variant (an error if this CPU cannot run
+    /// it). All variants agree to rounding; each is bitwise reproducible for any thread count.
+    pub fn with_kernel(
+        nside: usize,
+        lmax: usize,
+        spin: usize,
+        kernel: LegendreKernel,
+    ) -> Result<Self> {
+        if !kernel.is_available() {
+            return Err(Error::Setting(format!(
+                "the {} harmonic transform kernel needs CPU features this machine lacks",
+                kernel.name()
+            )));
+        }
+        let geometry = RingGeometry::new(nside)?;
+        if lmax > 3 * nside - 1 {
+            return Err(Error::Setting(format!(
+                "lmax {lmax} is above 3*NSIDE-1 = {} for NSIDE {nside}",
+                3 * nside - 1
+            )));
+        }
+        if spin == 0 || spin > lmax {
+            return Err(Error::Setting(format!(
+                "spin {spin} must be between 1 and lmax = {lmax}"
+            )));
+        }
+        let rings = geometry.rings();
+        let north = &rings[..2 * nside];
+        let pairs = HalfAngleRings {
+            z: north.iter().map(|r| r.z).collect(),
+            // 1 − z = sin²θ/(1 + z) keeps the accuracy of sin θ near the pole.
+            log2_sin_half: north
+                .iter()
+                .map(|r| 0.5 * (0.5 * r.sin_theta * r.sin_theta / (1.0 + r.z)).log2())
+                .collect(),
+            log2_cos_half: north
+                .iter()
+                .map(|r| 0.5 * (0.5 * (1.0 + r.z)).log2())
+                .collect(),
+        };
+        let mut planner = RealFftPlanner::<f64>::new();
+        let forward = rings
+            .iter()
+            .map(|r| planner.plan_fft_forward(r.pixel_count))
+            .collect();
+        let inverse = rings
+            .iter()
+            .map(|r| planner.plan_fft_inverse(r.pixel_count))
+            .collect();
+        Ok(SpinTransform {
+            lmax,
+            spin,
+            pairs,
+            log2_norms: log2_sectoral_norms(lmax),
+            forward,
+            inverse,
+            kernel,
+            geometry,
+        })
+    }
+
+    /// HEALPix resolution parameter.
+    pub fn nside(&self) -> usize {
+        self.geometry.nside()
+    }
+
+    /// Largest multipole.
+    pub fn lmax(&self) -> usize {
+        self.lmax
+    }
+
+    /// The spin weight s.
+    pub fn spin(&self) -> usize {
+        self.spin
+    }
+
+    /// Number of map pixels, 12 Nside².
+    pub fn pixel_count(&self) -> usize {
+        self.geometry.pixel_count()
+    }
+
+    fn ring_count(&self) -> usize {
+        self.geometry.rings().len()
+    }
+
+    /// Legendre-stage slot of ring q: 2·pair for a north ring, 2·pair + 1 for a south one.
+    fn slot(&self, q: usize) -> usize {
+        let npairs = self.pairs.len();
+        if q < npairs {
+            2 * q
+        } else {
+            2 * (self.ring_count() - 1 - q) + 1
+        }
+    }
+
+    /// Orders per band: one band's ring sums near [`BAND_BYTES`], at most `max_bands` bands.
+    fn orders_per_band(&self, max_bands: usize) -> usize {
+        let per_order = 2 * self.ring_count() * std::mem::size_of::<Complex64>();
+        (BAND_BYTES / per_order)
+            .max(1)
+            .max((self.lmax + 1).div_ceil(max_bands))
+    }
+
+    fn check_coefficients(&self, alm: &HarmonicCoefficients, name: &str) -> Result<()> {
+        if alm.lmax() != self.lmax {
+            return Err(Error::Mismatch(format!(
+                "{name} coefficients have lmax {}, the transform was built for lmax {}",
+                alm.lmax(),
+                self.lmax
+            )));
+        }
+        Ok(())
+    }
+
+    fn check_map(&self, map: &[f64], name: &str) -> Result<()> {
+        if map.len() != self.pixel_count() {
+            return Err(Error::Mismatch(format!(
+                "{name} map has {} pixels, NSIDE {} needs {}",
+                map.len(),
+                self.nside(),
+                self.pixel_count()
+            )));
+        }
+        if let Some(p) = map.iter().position(|v| !v.is_finite()) {
+            return Err(Error::Data(format!(
+                "{name} map value at pixel {p} is not finite ({})",
+                map[p]
+            )));
+        }
+        Ok(())
+    }
+
+    /// The two real maps (RING order) Q = Re P, U = Im P of the spin-s field
+    /// P = −Σ_ℓm (E_ℓm + i B_ℓm) ₛY_ℓm (healpy 1.20.1 `alm2map_spin([e, b], nside, spin,
+    /// lmax)`). Both coefficient sets must have the transform's lmax; ℓ < s is ignored.
+    pub fn synthesis(
+        &self,
+        e: &HarmonicCoefficients,
+        b: &HarmonicCoefficients,
+    ) -> Result<(Vec<f64>, Vec<f64>)> {
+        self.check_coefficients(e, "E")?;
+        self.check_coefficients(b, "B")?;
+        let lmax = self.lmax;
+        let stride = 2 * self.pairs.len();
+        let band = self.orders_per_band(usize::MAX);
+        let mut q_map = vec![0.0; self.pixel_count()];
+        let mut u_map = vec![0.0; self.pixel_count()];
+        // Each ring's half spectrum is accumulated in place in its slice of each map, packed
+        // as [Re X_0, Re X_{n/2}, Re X_1, Im X_1, …].
+        let mut ring_slices = Vec::with_capacity(self.ring_count());
+        let (mut rest_q, mut rest_u): (&mut [f64], &mut [f64]) = (&mut q_map, &mut u_map);
+        for ring in self.geometry.rings() {
+            let (head_q, tail_q) = rest_q.split_at_mut(ring.pixel_count);
+            let (head_u, tail_u) = rest_u.split_at_mut(ring.pixel_count);
+            ring_slices.push((head_q, head_u));
+            rest_q = tail_q;
+            rest_u = tail_u;
+        }
+        let mut sums = vec![Complex64::new(0.0, 0.0); band.min(lmax + 1) * 2 * stride];
+        for m0 in (0..=lmax).step_by(band) {
+            let m1 = (m0 + band).min(lmax + 1);
+            let sums = &mut sums[..(m1 - m0) * 2 * stride];
+            sums.par_chunks_mut(2 * stride)
+                .enumerate()
+                .for_each(|(i, out)| {
+                    let m = m0 + i;
+                    self.synthesis_order(m, e.order(m), b.order(m), out)
+                });
+            let sums = &*sums;
+            ring_slices
+                .par_iter_mut()
+                .enumerate()
+                .for_each(|(q, (values_q, values_u))| {
+                    let ring = &self.geometry.rings()[q];
+                    let n = ring.pixel_count;
+                    let slot = self.slot(q);
+                    let mut phases = PhaseWalk::new(ring.phi0);
+                    for m in m0..m1 {
+                        let base = (m - m0) * 2 * stride;
+                        let (mut fq, mut fu) = (sums[base + slot], sums[base + stride + slot]);
+                        if ring.half_pixel_shift {
+                            let phase = phases.at(m % n);
+                            let sign = if (m / n) % 2 == 1 { -1.0 } else { 1.0 };
+                            fq *= phase * sign;
+                            fu *= phase * sign;
+                        }
+                        fold_order(values_q, m, fq);
+                        fold_order(values_u, m, fu);
+                    }
+                });
+        }
+        drop(sums);
+        ring_slices
+            .into_par_iter()
+            .enumerate()
+            .for_each(|(q, (values_q, values_u))| {
+                let plan = &self.inverse[q];
+                let mut spectrum = plan.make_input_vec();
+                let mut scratch = plan.make_scratch_vec();
+                for values in [values_q, values_u] {
+                    unpack_half_spectrum(values, &mut spectrum);
+                    plan.process_with_scratch(&mut spectrum, values, &mut scratch)
+                        .expect("FFT buffers sized from the plan");
+                }
+            });
+        Ok((q_map, u_map))
+    }
+
+    /// E and B coefficients up to lmax of the spin-s field with real maps `q`, `u` (RING
+    /// order), with `iterations` Jacobi refinements (healpy 1.20.1 `map2alm_spin([q, u], spin,
+    /// lmax, mmax=lmax)` is 0 iterations; each iteration adds the analysis of the residual
+    /// map, as the scalar analysis does). Coefficients with ℓ < s are zero.
+    pub fn analysis(
+        &self,
+        q: &[f64],
+        u: &[f64],
+        iterations: usize,
+    ) -> Result<(HarmonicCoefficients, HarmonicCoefficients)> {
+        self.check_map(q, "Q")?;
+        self.check_map(u, "U")?;
+        let (mut e, mut b) = self.analysis_once(q, u);
+        for _ in 0..iterations {
+            let (rq, ru) = self.synthesis(&e, &b)?;
+            let residual_q: Vec<f64> = q.iter().zip(&rq).map(|(a, b)| a - b).collect();
+            let residual_u: Vec<f64> = u.iter().zip(&ru).map(|(a, b)| a - b).collect();
+            let (ce, cb) = self.analysis_once(&residual_q, &residual_u);
+            for (a, c) in e.as_mut_slice().iter_mut().zip(ce.as_slice()) {
+                *a += *c;
+            }
+            for (a, c) in b.as_mut_slice().iter_mut().zip(cb.as_slice()) {
+                *a += *c;
+            }
+        }
+        Ok((e, b))
+    }
+
+    /// One quadrature pass (the adjoint of synthesis times 4π/Npix).
+    fn analysis_once(&self, q: &[f64], u: &[f64]) -> (HarmonicCoefficients, HarmonicCoefficients) {
+        let lmax = self.lmax;
+        let weight = 4.0 * std::f64::consts::PI / self.pixel_count() as f64;
+        let rings = self.geometry.rings();
+        let mut e = HarmonicCoefficients::zeros(lmax);
+        let mut b = HarmonicCoefficients::zeros(lmax);
+        let mut order_slices = Vec::with_capacity(lmax + 1);
+        let (mut rest_e, mut rest_b): (&mut [Complex64], &mut [Complex64]) =
+            (e.as_mut_slice(), b.as_mut_slice());
+        for m in 0..=lmax {
+            let (head_e, tail_e) = rest_e.split_at_mut(lmax + 1 - m);
+            let (head_b, tail_b) = rest_b.split_at_mut(lmax + 1 - m);
+            order_slices.push(Some((head_e, head_b)));
+            rest_e = tail_e;
+            rest_b = tail_b;
+        }
+        let band = self.orders_per_band(ANALYSIS_MAX_BANDS);
+        let last_ring = self.ring_count() - 1;
+        let npairs = self.pairs.len();
+        // Weighted azimuthal sums of every ring for one band of orders, ring-major:
+        // [G^Q of the band | G^U of the band] per ring.
+        let mut sums = vec![Complex64::new(0.0, 0.0); self.ring_count() * 2 * band.min(lmax + 1)];
+        for m0 in (0..=lmax).step_by(band) {
+            let m1 = (m0 + band).min(lmax + 1);
+            let width = m1 - m0;
+            let sums = &mut sums[..self.ring_count() * 2 * width];
+            sums.par_chunks_mut(2 * width)
+                .enumerate()
+                .for_each(|(r, out)| {
+                    let ring = &rings[r];
+                    let n = ring.pixel_count;
+                    let plan = &self.forward[r];
+                    let mut spectrum = plan.make_output_vec();
+                    let mut scratch = plan.make_scratch_vec();
+                    let (out_q, out_u) = out.split_at_mut(width);
+                    for (map, out) in [(q, out_q), (u, out_u)] {
+                        let mut values = map[ring.first_pixel..ring.first_pixel + n].to_vec();
+                        plan.process_with_scratch(&mut values, &mut spectrum, &mut scratch)
+                            .expect("FFT buffers sized from the plan");
+                        let mut phases = PhaseWalk::new(ring.phi0);
+                        for (o, m) in out.iter_mut().zip(m0..m1) {
+                            let k = m % n;
+                            let mut g = if k <= n / 2 {
+                                spectrum[k]
+                            } else {
+                                spectrum[n - k].conj()
+                            };
+                            if ring.half_pixel_shift {
+                                g *= phases.at(k).conj();
+                                if (m / n) % 2 == 1 {
+                                    g = -g;
+                                }
+                            }
+                            *o = g * weight;
+                        }
+                    }
+                });
+            let sums = &*sums;
+            order_slices[m0..m1]
+                .par_iter_mut()
+                .enumerate()
+                .for_each(|(i, out)| {
+                    let m = m0 + i;
+                    let (out_e, out_b) = out.take().expect("each order is visited once");
+                    let at = |ring: usize| {
+                        let row = &sums[ring * 2 * width..(ring + 1) * 2 * width];
+                        (row[i], row[width + i])
+                    };
+                    let ring_sums = |p: usize| {
+                        let (q_north, u_north) = at(p);
+                        let (q_south, u_south) = if p == npairs - 1 && last_ring - p == p {
+                            (Complex64::new(0.0, 0.0), Complex64::new(0.0, 0.0))
+                        } else {
+                            at(last_ring - p)
+                        };
+                        PairSums {
+                            q_north,
+                            q_south,
+                            u_north,
+                            u_south,
+                        }
+                    };
+                    self.analysis_order(m, &ring_sums, out_e, out_b);
+                });
+        }
+        (e, b)
+    }
+
+    fn synthesis_order(&self, m: usize, e: &[Complex64], b: &[Complex64], out: &mut [Complex64]) {
+        if m.max(self.spin) > self.lmax {
+            out.fill(Complex64::new(0.0, 0.0));
+            return;
+        }
+        let order = SpinOrder::new(m, self.spin, self.lmax, &self.log2_norms);
+        let rings = &self.pairs;
+        // SAFETY (both arms): the kernel variant was chosen from the CPU's reported features.
+        #[cfg(target_arch = "x86_64")]
+        match self.kernel {
+            LegendreKernel::Avx512Fma => {
+                unsafe { fused::synthesis_order_avx512(&order, rings, e, b, out) };
+                return;
+            }
+            LegendreKernel::Avx2Fma => {
+                unsafe { fused::synthesis_order_avx2(&order, rings, e, b, out) };
+                return;
+            }
+            LegendreKernel::Portable => {}
+        }
+        synthesis_order::<PlainMulAdd, PORTABLE_SYNTHESIS_LANES>(&order, rings, e, b, out);
+    }
+
+    fn analysis_order(
+        &self,
+        m: usize,
+        ring_sums: &dyn Fn(usize) -> PairSums,
+        e: &mut [Complex64],
+        b: &mut [Complex64],
+    ) {
+        if m.max(self.spin) > self.lmax {
+            e.fill(Complex64::new(0.0, 0.0));
+            b.fill(Complex64::new(0.0, 0.0));
+            return;
+        }
+        let order = SpinOrder::new(m, self.spin, self.lmax, &self.log2_norms);
+        let rings = &self.pairs;
+        // SAFETY (both arms): the kernel variant was chosen from the CPU's reported features.
+        #[cfg(target_arch = "x86_64")]
+        match self.kernel {
+            LegendreKernel::Avx512Fma => {
+                unsafe { fused::analysis_order_avx512(&order, rings, ring_sums, e, b) };
+                return;
+            }
+            LegendreKernel::Avx2Fma => {
+                unsafe { fused::analysis_order_avx2(&order, rings, ring_sums, e, b) };
+                return;
+            }
+            LegendreKernel::Portable => {}
+        }
+        analysis_order::<PlainMulAdd, ANALYSIS_LANES>(&order, rings, ring_sums, e, b);
+    }
+}
+
+/// Adds order m's ring sum g (already phase-shifted) to a ring's packed half spectrum
+/// [Re X_0, Re X_{n/2}, Re X_1, Im X_1, …]: on n pixels, e^{imφ_j} folds onto frequency
+/// k = m mod n, and its conjugate (order −m of a real map) onto n − k.
+fn fold_order(values: &mut [f64], m: usize, g: Complex64) {
+    let n = values.len();
+    let half = n / 2;
+    let mut add = |k: usize, g: Complex64| {
+        if k == 0 {
+            values[0] += g.re;
+        } else if k == half {
+            values[1] += g.re;
+        } else {
+            values[2 * k] += g.re;
+            values[2 * k + 1] += g.im;
+        }
+    };
+    let k = m % n;
+    if k <= half {
+        add(k, g);
+    }
+    if m > 0 {
+        let k2 = (n - k) % n;
+        if k2 <= half {
+            add(k2, g.conj());
+        }
+    }
+}
+
+/// The Hermitian half spectrum (DC and Nyquist bins real; n is always even) from its packed
+/// form.
+fn unpack_half_spectrum(values: &[f64], spectrum: &mut [Complex64]) {
+    let half = values.len() / 2;
+    spectrum[0] = Complex64::new(values[0], 0.0);
+    spectrum[half] = Complex64::new(values[1], 0.0);
+    for (k, x) in spectrum.iter_mut().enumerate().take(half).skip(1) {
+        *x = Complex64::new(values[2 * k], values[2 * k + 1]);
+    }
+}
+
+/// The kernels compiled for AVX2 + FMA and for AVX-512F + FMA.
+#[cfg(target_arch = "x86_64")]
+mod fused {
+    use super::*;
+
+    /// # Safety
+    /// The CPU must support AVX2 and FMA.
+    #[target_feature(enable = "avx2,fma")]
+    pub(super) unsafe fn synthesis_order_avx2(
+        order: &SpinOrder,
+        rings: &HalfAngleRings,
+        e: &[Complex64],
+        b: &[Complex64],
+        out: &mut [Complex64],
+    ) {
+        synthesis_order::<FusedMulAdd, SYNTHESIS_LANES>(order, rings, e, b, out)
+    }
+
+    /// # Safety
+    /// The CPU must support AVX-512F and FMA.
+    #[target_feature(enable = "avx512f,avx2,fma")]
+    pub(super) unsafe fn synthesis_order_avx512(
+        order: &SpinOrder,
+        rings: &HalfAngleRings,
+        e: &[Complex64],
+        b: &[Complex64],
+        out: &mut [Complex64],
+    ) {
+        synthesis_order::<FusedMulAdd, { 2 * SYNTHESIS_LANES }>(order, rings, e, b, out)
+    }
+
+    /// # Safety
+    /// The CPU must support AVX2 and FMA.
+    #[target_feature(enable = "avx2,fma")]
+    pub(super) unsafe fn analysis_order_avx2(
+        order: &SpinOrder,
+        rings: &HalfAngleRings,
+        ring_sums: &dyn Fn(usize) -> PairSums,
+        e: &mut [Complex64],
+        b: &mut [Complex64],
+    ) {
+        analysis_order::<FusedMulAdd, ANALYSIS_LANES>(order, rings, ring_sums, e, b)
+    }
+
+    /// # Safety
+    /// The CPU must support AVX-512F and FMA.
+    #[target_feature(enable = "avx512f,avx2,fma")]
+    pub(super) unsafe fn analysis_order_avx512(
+        order: &SpinOrder,
+        rings: &HalfAngleRings,
+        ring_sums: &dyn Fn(usize) -> PairSums,
+        e: &mut [Complex64],
+        b: &mut [Complex64],
+    ) {
+        analysis_order::<FusedMulAdd, ANALYSIS_LANES>(order, rings, ring_sums, e, b)
+    }
+}
