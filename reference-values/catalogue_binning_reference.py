@@ -8,6 +8,9 @@ Writes reference-values/catalogue_binning/:
   galaxies.fits  the same rows as an astropy binary table (float64 columns, int64 ID)
   expected.csv   per pixel holding a usable galaxy (NSIDE 16, RING): N, sum w, gamma1, gamma2,
                  noise variance, density contrast, from numpy.bincount with healpy.ang2pix
+  kappa.csv      kappa_E, kappa_B on the footprint from healpy map2alm_spin / alm2map of the
+                 binned shear (0 outside the footprint), lmax 3 NSIDE - 1, unsmoothed and with a
+                 120 arcmin FWHM gauss_beam
   expected.json  NSIDE, row counts by reason, mean galaxies per footprint pixel, versions
 
 The rules applied to rows are planisphere's (src/catalogue/screening.rs): a row is bad when a
@@ -122,6 +125,26 @@ def main():
             var = W2E2[p] / (2 * W[p] ** 2)
             delta = N[p] / nbar - 1
             f.write(f"{p},{N[p]},{float(W[p])!r},{float(g1)!r},{float(g2)!r},{float(var)!r},{float(delta)!r}\n")
+    # convergence of the binned shear (0 outside the footprint), full-sky Kaiser-Squires:
+    # kappa_lm = -sqrt(l(l+1)/((l+2)(l-1))) gamma_lm for E and B (Q = gamma1, U = gamma2),
+    # no iterations of the analysis, unsmoothed and smoothed by a 120 arcmin FWHM Gaussian
+    lmax = 3 * NSIDE - 1
+    g1 = np.where(inside, WE1 / np.where(inside, W, 1.0), 0.0)
+    g2 = np.where(inside, WE2 / np.where(inside, W, 1.0), 0.0)
+    alm_e, alm_b = hp.map2alm_spin([g1, g2], 2, lmax=lmax)
+    ell = np.arange(lmax + 1, dtype=float)
+    ks = np.zeros(lmax + 1)
+    ks[2:] = -np.sqrt(ell[2:] * (ell[2:] + 1) / ((ell[2:] + 2) * (ell[2:] - 1)))
+    beam = hp.gauss_beam(np.radians(120.0 / 60.0), lmax=lmax)
+    kappa = {}
+    for name, f in (("", ks), ("_smooth120", ks * beam)):
+        kappa["e" + name] = hp.alm2map(hp.almxfl(alm_e, f), NSIDE, lmax=lmax)
+        kappa["b" + name] = hp.alm2map(hp.almxfl(alm_b, f), NSIDE, lmax=lmax)
+    with open(os.path.join(OUT, "kappa.csv"), "w") as f:
+        f.write("pixel,kappa_e,kappa_b,kappa_e_smooth120,kappa_b_smooth120\n")
+        for p in np.nonzero(inside)[0]:
+            vals = [float(kappa[k][p]) for k in ("e", "b", "e_smooth120", "b_smooth120")]
+            f.write(f"{p}," + ",".join(repr(v) for v in vals) + "\n")
     # footprint with at least 5 galaxies
     inside5 = N >= 5
     with open(os.path.join(OUT, "expected.json"), "w") as f:

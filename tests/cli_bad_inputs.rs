@@ -1928,6 +1928,14 @@ fn galaxy_catalogue_mistakes_are_refused_in_one_line() {
             shear("good.csv", &["--block-rows", "0"]),
             "--block-rows must be at least 1",
         ),
+        (
+            shear("good.csv", &["--lmax", "1000"]),
+            "--lmax 1000 is above 3·NSIDE − 1 = 23",
+        ),
+        (
+            shear("good.csv", &["--smooth-arcmin", "-5"]),
+            "smoothing FWHM must be a finite number of arcminutes >= 0, got -5",
+        ),
     ];
     refuse_all(&f, &cases);
     // the output may not replace the catalogue

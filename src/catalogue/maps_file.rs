@@ -6,7 +6,7 @@
 //! `NOISE_VAR` (σ² of each shear component), `DELTA` (density contrast) and `MASK` (footprint);
 //! κ maps, when made, follow as `KAPPA_E`, `KAPPA_B`. Pixels outside the footprint hold UNSEEN
 //! in the γ, σ², δ and κ columns and 0 in the others. A noise realisation's file holds
-//! `GAMMA1`, `GAMMA2` and `MASK`.
+//! `GAMMA1`, `GAMMA2` and `MASK` (then its κ columns).
 
 use super::binning::{CatalogueMaps, NoiseMaps};
 use crate::error::Result;

@@ -5,8 +5,8 @@
 //!
 //! Owns: the catalogue readers ([`CatalogueSource`], [`CatalogueColumns`]), the row checks and
 //! their report ([`screening`]), the binning ([`CatalogueBinner`], [`bin_catalogue`]), the
-//! rotation angles of noise realisations ([`rotation`], [`noise_realisation`]) and the maps file
-//! ([`maps_file`]).
+//! rotation angles of noise realisations ([`rotation`], [`noise_realisation`]), the κ_E, κ_B
+//! maps of the binned shear on the footprint ([`convergence`]) and the maps file ([`maps_file`]).
 //!
 //! Sits at the sky-map level of the pipeline: what it makes are HEALPix maps that every later
 //! stage takes as input. May use: [`crate::sky`] (pixels, maps, footprints), [`crate::io`]
@@ -16,6 +16,7 @@
 //! uses it.
 
 pub mod binning;
+pub mod convergence;
 pub mod maps_file;
 pub mod rotation;
 pub mod screening;

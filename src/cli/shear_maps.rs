@@ -2,6 +2,9 @@
 //! counts, mean shear, shape-noise variance, density contrast and footprint, with optional
 //! shape-noise realisations by random rotation. The science is in [`crate::catalogue`].
 
+use crate::catalogue::convergence::{
+    convergence_on_footprint, mass_mapper, ConvergenceOnFootprint,
+};
 use crate::catalogue::maps_file::{write_catalogue_maps, write_noise_maps};
 use crate::catalogue::source::{
     DEFAULT_BLOCK_ROWS, DEFAULT_DEC_COLUMN, DEFAULT_E1_COLUMN, DEFAULT_E2_COLUMN,
@@ -12,6 +15,8 @@ use crate::catalogue::{
     NoiseRealisations, WeightChoice,
 };
 use crate::error::{Error, Result};
+use crate::harmonics::mass_mapping::{MassMappingSettings, ShearAxes};
+use crate::sky::skymap::SkyMap;
 use std::path::PathBuf;
 
 /// Bin a galaxy catalogue (CSV with a header row, or a FITS binary table) into HEALPix maps:
@@ -61,9 +66,37 @@ pub struct ShearMapsArgs {
     #[arg(long, default_value_t = 1)]
     pub noise_seed: u64,
     /// Path of each noise realisation, with `{index}` replaced by 0000, 0001, …
-    /// (columns GAMMA1, GAMMA2, MASK).
+    /// (columns GAMMA1, GAMMA2, MASK, and KAPPA_E, KAPPA_B unless --no-kappa).
     #[arg(long, value_name = "PATH", requires = "noise_realisations")]
     pub noise_output: Option<PathBuf>,
+    /// Do not make the convergence maps KAPPA_E, KAPPA_B (full-sky Kaiser–Squires on the
+    /// footprint), which cost two spin-2 harmonic transforms per map.
+    #[arg(long)]
+    pub no_kappa: bool,
+    /// Largest multipole of the convergence maps [default: 3·NSIDE − 1].
+    #[arg(long, conflicts_with = "no_kappa")]
+    pub lmax: Option<usize>,
+    /// Gaussian smoothing of the convergence maps, FWHM in arcminutes.
+    #[arg(
+        long,
+        value_name = "ARCMIN",
+        conflicts_with = "no_kappa",
+        allow_negative_numbers = true
+    )]
+    pub smooth_arcmin: Option<f64>,
+    /// Axes of e1, e2: east-north (e1 > 0 along RA, e2 > 0 between increasing RA and Dec) or
+    /// west-north (e2 of the opposite sign, as on a sky image with east to the left).
+    #[arg(long, value_enum, default_value_t = AxesChoice::EastNorth)]
+    pub shear_axes: AxesChoice,
+}
+
+/// The axes the ellipticities refer to (see [`crate::harmonics::mass_mapping::ShearAxes`]).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum AxesChoice {
+    /// x = increasing RA (east), y = increasing Dec (north).
+    EastNorth,
+    /// x = decreasing RA (west), y = north.
+    WestNorth,
 }
 
 /// The column choice the options describe.
@@ -129,11 +162,42 @@ pub fn run(args: &ShearMapsArgs) -> Result<()> {
                 .collect(),
         }),
     };
+    let settings = MassMappingSettings {
+        smoothing_fwhm_arcmin: args.smooth_arcmin.unwrap_or(0.0),
+        axes: match args.shear_axes {
+            AxesChoice::EastNorth => ShearAxes::EastNorth,
+            AxesChoice::WestNorth => ShearAxes::WestNorth,
+        },
+        ..MassMappingSettings::default()
+    };
     let mut source = CatalogueSource::open(&args.catalogue, &columns(args))?;
     let maps = bin_catalogue(&mut source, &plan)?;
-    write_catalogue_maps(&args.output, &maps, &[])?;
-    for (noise, path) in maps.noise.iter().zip(&noise_paths) {
-        write_noise_maps(path, noise, &maps, &[])?;
+    // every map is made before the first file is written
+    let mapper = if args.no_kappa {
+        None
+    } else {
+        Some(mass_mapper(&maps, args.lmax)?)
+    };
+    let kappa = |g1: &SkyMap, g2: &SkyMap| -> Result<Option<ConvergenceOnFootprint>> {
+        mapper
+            .as_ref()
+            .map(|m| convergence_on_footprint(m, g1, g2, &maps.footprint, &settings))
+            .transpose()
+    };
+    let columns_of = |k: &Option<ConvergenceOnFootprint>| -> Vec<(&'static str, SkyMap)> {
+        k.iter()
+            .flat_map(|k| [("KAPPA_E", k.e.clone()), ("KAPPA_B", k.b.clone())])
+            .collect()
+    };
+    let data_kappa = columns_of(&kappa(&maps.gamma1, &maps.gamma2)?);
+    let noise_kappa = maps
+        .noise
+        .iter()
+        .map(|n| Ok(columns_of(&kappa(&n.gamma1, &n.gamma2)?)))
+        .collect::<Result<Vec<_>>>()?;
+    write_catalogue_maps(&args.output, &maps, &borrowed(&data_kappa))?;
+    for ((noise, path), extra) in maps.noise.iter().zip(&noise_paths).zip(&noise_kappa) {
+        write_noise_maps(path, noise, &maps, &borrowed(extra))?;
     }
     let weights = match source.weight_column() {
         Some(name) => format!("weights from column '{name}'"),
@@ -158,6 +222,15 @@ pub fn run(args: &ShearMapsArgs) -> Result<()> {
     if let Some(warning) = maps.report.radians_warning() {
         eprintln!("planisphere: {warning}");
     }
+    if let Some(m) = &mapper {
+        println!(
+            "convergence KAPPA_E, KAPPA_B up to l = {}{}",
+            m.lmax(),
+            args.smooth_arcmin.map_or(String::new(), |s| format!(
+                ", smoothed by a {s} arcmin FWHM Gaussian"
+            ))
+        );
+    }
     println!(
         "{}: NSIDE {}, footprint {} pixels ({:.2} deg², f_sky {:.4}), {:.3} galaxies per footprint pixel",
         args.output.display(),
@@ -171,4 +244,9 @@ pub fn run(args: &ShearMapsArgs) -> Result<()> {
         println!("{}: noise realisation", path.display());
     }
     Ok(())
+}
+
+/// The (name, map) pairs of `columns`, borrowed as the writers take them.
+fn borrowed<'a>(columns: &'a [(&'static str, SkyMap)]) -> Vec<(&'static str, &'a SkyMap)> {
+    columns.iter().map(|(n, m)| (*n, m)).collect()
 }
