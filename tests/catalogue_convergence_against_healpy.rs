@@ -16,7 +16,7 @@ fn convergence_of_the_binned_shear_matches_healpy_on_the_footprint() {
     let path = reference_path("catalogue_binning/galaxies.csv");
     let mut source = CatalogueSource::open(&path, &CatalogueColumns::default()).unwrap();
     let maps = bin_catalogue(&mut source, &BinningPlan::new(16)).unwrap();
-    let mapper = mass_mapper(&maps, None).unwrap();
+    let mapper = mass_mapper(16, None).unwrap();
     assert_eq!(mapper.lmax(), 47);
     let text = std::fs::read_to_string(reference_path("catalogue_binning/kappa.csv")).unwrap();
     let rows: Vec<Vec<f64>> = text

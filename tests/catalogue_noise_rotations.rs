@@ -224,3 +224,58 @@ fn the_file_reader_gives_realisation_k_alone_as_in_a_series() {
         series.noise[2].gamma2.values_with_sentinel()
     );
 }
+
+#[test]
+fn a_noise_map_recipe_gives_realisation_k_of_the_series() {
+    use planisphere::catalogue::convergence::{convergence_on_footprint, mass_mapper};
+    use planisphere::catalogue::noise_maps::{NoiseMapKind, NoiseMapRecipe};
+    use planisphere::harmonics::mass_mapping::MassMappingSettings;
+    let path = common::reference_path("catalogue_binning/galaxies.csv");
+    let settings = MassMappingSettings {
+        smoothing_fwhm_arcmin: 90.0,
+        ..MassMappingSettings::default()
+    };
+    let plan = BinningPlan {
+        noise: Some(NoiseRealisations {
+            seed: 8,
+            indices: vec![0, 1, 2],
+        }),
+        ..BinningPlan::new(16)
+    };
+    let columns = CatalogueColumns::default();
+    let series =
+        bin_catalogue(&mut CatalogueSource::open(&path, &columns).unwrap(), &plan).unwrap();
+    let mapper = mass_mapper(16, None).unwrap();
+    let expected = convergence_on_footprint(
+        &mapper,
+        &series.noise[2].gamma1,
+        &series.noise[2].gamma2,
+        &series.footprint,
+        &settings,
+    )
+    .unwrap();
+    let recipe = NoiseMapRecipe {
+        catalogue: path.clone(),
+        columns,
+        plan: BinningPlan::new(16),
+        seed: 8,
+        map: NoiseMapKind::KappaB,
+        lmax: None,
+        settings,
+    };
+    let own = recipe.mapper().unwrap();
+    let got = recipe.realise(own.as_ref(), 2).unwrap();
+    assert_eq!(
+        got.values_with_sentinel(),
+        expected.b.values_with_sentinel()
+    );
+    let gamma = NoiseMapRecipe {
+        map: NoiseMapKind::Gamma1,
+        ..recipe
+    };
+    assert!(gamma.mapper().unwrap().is_none());
+    assert_eq!(
+        gamma.realise(None, 1).unwrap().values_with_sentinel(),
+        series.noise[1].gamma1.values_with_sentinel()
+    );
+}

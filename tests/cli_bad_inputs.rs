@@ -1938,6 +1938,36 @@ fn galaxy_catalogue_mistakes_are_refused_in_one_line() {
         ),
     ];
     refuse_all(&f, &cases);
+    // ensembles of catalogue noise realisations
+    std::fs::write(
+        p("noise_with_sky.toml"),
+        "nside = 16\ncount = 2\nspectrum = \"cl.txt\"\n[catalogue_noise]\ncatalogue = \"good.csv\"\n",
+    )
+    .unwrap();
+    std::fs::write(
+        p("noise_bad_map.toml"),
+        "nside = 16\ncount = 2\n[catalogue_noise]\ncatalogue = \"good.csv\"\nmap = \"kappa\"\n",
+    )
+    .unwrap();
+    let ensemble = |recipe: &str| -> Vec<String> {
+        strings(&[
+            "ensemble",
+            "--simulate",
+            &f.path(recipe),
+            "-o",
+            &f.path("noise_ens"),
+        ])
+    };
+    refuse_all(
+        &f,
+        &[
+            (
+                ensemble("noise_with_sky.toml"),
+                "recipe key 'spectrum' describes a simulated sky and does not apply with [catalogue_noise]",
+            ),
+            (ensemble("noise_bad_map.toml"), "unknown variant `kappa`"),
+        ],
+    );
     // the output may not replace the catalogue
     let same = vec![
         "shear-maps".to_string(),

@@ -7,7 +7,6 @@
 //!
 //! One [`MassMapper`] (its transforms built once) serves the data and every noise realisation.
 
-use super::binning::CatalogueMaps;
 use crate::error::Result;
 use crate::harmonics::mass_mapping::{MassMapper, MassMappingSettings};
 use crate::sky::footprint::Footprint;
@@ -22,12 +21,11 @@ pub struct ConvergenceOnFootprint {
     pub b: SkyMap,
 }
 
-/// The mass mapper for maps of `maps`' NSIDE up to `lmax` (3·NSIDE − 1 when `None`).
-pub fn mass_mapper(maps: &CatalogueMaps, lmax: Option<usize>) -> Result<MassMapper> {
-    let nside = maps.galaxies.nside() as usize;
-    let lmax = lmax.unwrap_or(3 * nside - 1);
-    crate::limits::check_lmax("--lmax", lmax, nside as u32)?;
-    MassMapper::new(nside, lmax)
+/// The mass mapper for maps of `nside` up to `lmax` (3·NSIDE − 1 when `None`).
+pub fn mass_mapper(nside: u32, lmax: Option<usize>) -> Result<MassMapper> {
+    let lmax = lmax.unwrap_or(3 * nside as usize - 1);
+    crate::limits::check_lmax("--lmax", lmax, nside)?;
+    MassMapper::new(nside as usize, lmax)
 }
 
 /// κ_E, κ_B of shear maps `gamma1`, `gamma2` (invalid pixels taken as 0), kept on `footprint`.

@@ -11,8 +11,8 @@
 
 use super::screening::GalaxyBlock;
 use crate::error::{Error, Result};
+use crate::io::fits_io::{read_file_start, FITS_SIGNATURE};
 use crate::io::fits_table::FitsTable;
-use std::io::Read;
 use std::path::{Path, PathBuf};
 
 /// Rows per block when streaming a catalogue: 2²⁰ rows, 40 MiB of f64 columns.
@@ -183,18 +183,7 @@ impl CatalogueSource {
     pub fn open(path: &Path, columns: &CatalogueColumns) -> Result<Self> {
         crate::files::require_regular_input(path)?;
         let mut start = [0u8; 9];
-        let got = {
-            let mut f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
-            let mut got = 0;
-            while got < start.len() {
-                match f.read(&mut start[got..]) {
-                    Ok(0) => break,
-                    Ok(n) => got += n,
-                    Err(e) => return Err(Error::io(path, e)),
-                }
-            }
-            got
-        };
+        let got = read_file_start(path, &mut start)?;
         if got == 0 {
             return Err(Error::Data(format!(
                 "{}: the catalogue file is empty",
@@ -207,7 +196,7 @@ impl CatalogueSource {
                 "is gzip-compressed; decompress it first (gunzip)",
             ));
         }
-        if &start[..got] == b"SIMPLE  =" {
+        if &start[..got] == FITS_SIGNATURE {
             Self::open_fits(path, columns)
         } else {
             Self::open_csv(path, columns)

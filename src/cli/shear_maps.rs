@@ -176,7 +176,7 @@ pub fn run(args: &ShearMapsArgs) -> Result<()> {
     let mapper = if args.no_kappa {
         None
     } else {
-        Some(mass_mapper(&maps, args.lmax)?)
+        Some(mass_mapper(args.nside, args.lmax)?)
     };
     let kappa = |g1: &SkyMap, g2: &SkyMap| -> Result<Option<ConvergenceOnFootprint>> {
         mapper

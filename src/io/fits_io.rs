@@ -867,17 +867,9 @@ impl ColumnValue for i64 {
 // Header checks.
 
 /// Size of the file, after checking it exists and starts like a FITS file.
-pub(super) fn check_file_start(path: &Path) -> Result<u64> {
+/// Reads the first `start.len()` bytes of a file (fewer when it is shorter); how many were read.
+pub fn read_file_start(path: &Path, start: &mut [u8]) -> Result<usize> {
     use std::io::Read;
-    let meta = std::fs::metadata(path).map_err(|e| match e.kind() {
-        std::io::ErrorKind::NotFound => Error::io(path, "no such file"),
-        _ => Error::io(path, e),
-    })?;
-    if meta.is_dir() {
-        return Err(Error::io(path, "is a directory, not a FITS file"));
-    }
-    crate::files::require_regular_input(path)?;
-    let mut start = [0u8; 9];
     let mut f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
     let mut got = 0;
     while got < start.len() {
@@ -887,6 +879,23 @@ pub(super) fn check_file_start(path: &Path) -> Result<u64> {
             Err(e) => return Err(Error::io(path, e)),
         }
     }
+    Ok(got)
+}
+
+/// FITS files begin with this card start (FITS standard 4.0, §4.4.1).
+pub const FITS_SIGNATURE: &[u8; 9] = b"SIMPLE  =";
+
+pub(super) fn check_file_start(path: &Path) -> Result<u64> {
+    let meta = std::fs::metadata(path).map_err(|e| match e.kind() {
+        std::io::ErrorKind::NotFound => Error::io(path, "no such file"),
+        _ => Error::io(path, e),
+    })?;
+    if meta.is_dir() {
+        return Err(Error::io(path, "is a directory, not a FITS file"));
+    }
+    crate::files::require_regular_input(path)?;
+    let mut start = [0u8; 9];
+    let got = read_file_start(path, &mut start)?;
     if got == 0 {
         return Err(Error::fits(path, "not a FITS file: the file is empty"));
     }
@@ -896,7 +905,7 @@ pub(super) fn check_file_start(path: &Path) -> Result<u64> {
             "is gzip-compressed; decompress it first (gunzip), planisphere reads plain FITS files",
         ));
     }
-    if &start[..got] != b"SIMPLE  =" {
+    if &start[..got] != FITS_SIGNATURE {
         return Err(Error::fits(
             path,
             "not a FITS file: it does not begin with the FITS keyword SIMPLE",
