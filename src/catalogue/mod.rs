@@ -7,7 +7,8 @@
 //! their report ([`screening`]), the binning ([`CatalogueBinner`], [`bin_catalogue`]), the
 //! rotation angles of noise realisations ([`rotation`], [`noise_realisation`]), the κ_E, κ_B
 //! maps of the binned shear on the footprint ([`convergence`]), one noise map per realisation for
-//! ensembles ([`noise_maps`]) and the maps file ([`maps_file`]).
+//! ensembles ([`noise_maps`]), the maps file ([`maps_file`]) and mock catalogues of a
+//! convergence map ([`mock`]).
 //!
 //! Sits at the sky-map level of the pipeline: what it makes are HEALPix maps that every later
 //! stage takes as input. May use: [`crate::sky`] (pixels, maps, footprints), [`crate::io`]
@@ -19,6 +20,7 @@
 pub mod binning;
 pub mod convergence;
 pub mod maps_file;
+pub mod mock;
 pub mod noise_maps;
 pub mod rotation;
 pub mod screening;
