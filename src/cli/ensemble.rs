@@ -36,7 +36,7 @@ pub struct EnsembleArgs {
     pub map_list: Option<PathBuf>,
     /// Simulate the maps from a recipe (TOML: nside, count, seed, and optionally spectrum,
     /// model_variance, lmax, lognormal_shift, beam_arcmin, noise_sigma; or, instead of a sky,
-    /// a [catalogue_noise] table: catalogue, map = kappa_e | kappa_b | gamma1 | gamma2, and
+    /// a catalogue_noise table: catalogue, map = kappa_e | kappa_b | gamma1 | gamma2, and
     /// shear-maps' options — member i is shape-noise realisation i of the catalogue).
     #[arg(long, value_name = "RECIPE.toml", group = "members")]
     pub simulate: Option<PathBuf>,
