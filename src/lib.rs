@@ -50,6 +50,7 @@
 //! | [`scattering`]    | filter bank, the engine (one tile's transform), pooling, coefficients |
 //! | [`measure`]       | a map measured on its footprint, tile spectra, flat maps              |
 //! | [`io`]            | HEALPix FITS files, the measurement document                          |
+//! | [`catalogue`]     | galaxy catalogues binned into shear, density and footprint maps       |
 //! | [`ensemble`]      | statistics vectors of many maps, resumable and sharded                |
 //! | [`forecast`]      | covariances and Fisher forecasts from ensembles                       |
 //! | [`synthesis`]     | fields and maps whose statistics match a target                       |
@@ -83,6 +84,8 @@ pub mod scattering;
 pub mod measure;
 
 pub mod io;
+
+pub mod catalogue;
 
 pub mod ensemble;
 

@@ -1878,3 +1878,161 @@ fn pair_ensemble_mistakes_are_refused_in_one_line() {
     ];
     refuse_all(&f, &cases);
 }
+
+#[test]
+fn galaxy_catalogue_mistakes_are_refused_in_one_line() {
+    let f = Fixtures::new();
+    let p = |n: &str| f.dir.path().join(n);
+    let row = "10.0,-5.0,0.1,0.2,1.0\n";
+    std::fs::write(p("good.csv"), format!("RA,DEC,E1,E2,WEIGHT\n{row}{row}")).unwrap();
+    std::fs::write(p("no_e1.csv"), "RA,DEC,G1,G2\n10,-5,0.1,0.2\n").unwrap();
+    // Dec given as colatitude in degrees: out of range on every row
+    std::fs::write(
+        p("colatitude.csv"),
+        "RA,DEC,E1,E2\n10,95,0.1,0.2\n20,120,0.1,0.2\n30,170,0.0,0.1\n",
+    )
+    .unwrap();
+    std::fs::write(
+        p("all_bad.csv"),
+        "RA,DEC,E1,E2\n10,5,1.5,0.2\n20,6,nan,0.2\n30,7,0.9,0.9\n",
+    )
+    .unwrap();
+    std::fs::write(p("empty.csv"), "").unwrap();
+    std::fs::write(p("header_only.csv"), "RA,DEC,E1,E2\n").unwrap();
+    std::fs::write(p("ragged.csv"), "RA,DEC,E1,E2\n10,5,0.1,0.2\n20,6,0.1\n").unwrap();
+    let fits = std::fs::read(
+        Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("reference-values/catalogue_binning/galaxies.fits"),
+    )
+    .unwrap();
+    std::fs::write(p("truncated_catalogue.fits"), &fits[..fits.len() / 2]).unwrap();
+    // the same table with RA declared in radians
+    let mut radians = fits.clone();
+    let from = b"TUNIT1  = 'deg     '";
+    let at = radians
+        .windows(from.len())
+        .position(|w| w == from)
+        .expect("TUNIT1 card in the reference table");
+    radians[at..at + from.len()].copy_from_slice(b"TUNIT1  = 'rad     '");
+    std::fs::write(p("radians.fits"), &radians).unwrap();
+    let out = f.path("maps.fits");
+    let shear = |catalogue: &str, extra: &[&str]| -> Vec<String> {
+        let mut v = vec!["shear-maps".to_string(), f.path(catalogue)];
+        if !extra.contains(&"--nside") {
+            v.extend(["--nside".to_string(), "8".to_string()]);
+        }
+        v.extend(["-o".to_string(), out.clone()]);
+        v.extend(extra.iter().map(|s| s.to_string()));
+        v
+    };
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        (
+            shear("no_e1.csv", &[]),
+            "no column 'E1' for e1; the columns are 'RA', 'DEC', 'G1', 'G2'",
+        ),
+        (
+            shear("good.csv", &["--weight-column", "W"]),
+            "no weight column 'W'",
+        ),
+        (
+            shear("colatitude.csv", &[]),
+            "none of its 3 rows can be used (3 with Dec outside [-90, 90] degrees",
+        ),
+        (
+            shear("all_bad.csv", &[]),
+            "none of its 3 rows can be used (2 with |e| >= 1",
+        ),
+        (shear("empty.csv", &[]), "the catalogue file is empty"),
+        (shear("header_only.csv", &[]), "has no galaxy rows"),
+        (shear("ragged.csv", &[]), "found record with 3 fields"),
+        (
+            shear("truncated_catalogue.fits", &[]),
+            "truncated FITS file",
+        ),
+        (shear("radians.fits", &[]), "column 'RA' is in radians"),
+        (shear("missing.csv", &[]), "No such file or directory"),
+        (
+            shear("good.csv", &["--nside", "0"]),
+            "NSIDE 0 is out of range",
+        ),
+        (
+            shear("good.csv", &["--nside", "16384"]),
+            "NSIDE 16384 is above 8192",
+        ),
+        (
+            shear("good.csv", &["--min-galaxies", "5"]),
+            "no NSIDE 8 pixel holds 5 or more galaxies",
+        ),
+        (
+            shear("good.csv", &["--noise-realisations", "2"]),
+            "--noise-realisations needs --noise-output",
+        ),
+        (
+            shear(
+                "good.csv",
+                &[
+                    "--noise-realisations",
+                    "2",
+                    "--noise-output",
+                    &f.path("n.fits"),
+                ],
+            ),
+            "must contain {index}",
+        ),
+        (
+            shear("good.csv", &["--block-rows", "0"]),
+            "--block-rows must be at least 1",
+        ),
+        (
+            shear("good.csv", &["--lmax", "1000"]),
+            "--lmax 1000 is above 3·NSIDE − 1 = 23",
+        ),
+        (
+            shear("good.csv", &["--smooth-arcmin", "-5"]),
+            "smoothing FWHM must be a finite number of arcminutes >= 0, got -5",
+        ),
+    ];
+    refuse_all(&f, &cases);
+    // ensembles of catalogue noise realisations
+    std::fs::write(
+        p("noise_with_sky.toml"),
+        "nside = 16\ncount = 2\nspectrum = \"cl.txt\"\n[catalogue_noise]\ncatalogue = \"good.csv\"\n",
+    )
+    .unwrap();
+    std::fs::write(
+        p("noise_bad_map.toml"),
+        "nside = 16\ncount = 2\n[catalogue_noise]\ncatalogue = \"good.csv\"\nmap = \"kappa\"\n",
+    )
+    .unwrap();
+    let ensemble = |recipe: &str| -> Vec<String> {
+        strings(&[
+            "ensemble",
+            "--simulate",
+            &f.path(recipe),
+            "-o",
+            &f.path("noise_ens"),
+        ])
+    };
+    refuse_all(
+        &f,
+        &[
+            (
+                ensemble("noise_with_sky.toml"),
+                "recipe key 'spectrum' describes a simulated sky and does not apply with [catalogue_noise]",
+            ),
+            (ensemble("noise_bad_map.toml"), "unknown variant `kappa`"),
+        ],
+    );
+    // the output may not replace the catalogue
+    let same = vec![
+        "shear-maps".to_string(),
+        f.path("good.csv"),
+        "--nside".to_string(),
+        "8".to_string(),
+        "-o".to_string(),
+        f.path("good.csv"),
+    ];
+    let before = snapshot(f.dir.path());
+    let (code, stderr) = run(&same, f.dir.path());
+    assert_refused(&same, code, &stderr, "good.csv", &before, f.dir.path());
+}

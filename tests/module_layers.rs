@@ -18,6 +18,7 @@ const ORDER: &[&str] = &[
     "scattering",
     "measure",
     "io",
+    "catalogue",
     "ensemble",
     "forecast",
     "synthesis",

@@ -12,6 +12,7 @@
 use super::ensemble::EnsembleMeasurer;
 use super::forecast::{forecast_document, forecast_named_sets, ForecastResult};
 use super::measure::measurement_document;
+use crate::catalogue::mock::{mock_catalogue, shear_of_convergence, write_catalogue_csv};
 use crate::ensemble::{EnsembleDescription, EnsembleJob, MemberSource, Shard};
 use crate::error::{Error, Result};
 use crate::files::{write_bytes, write_json};
@@ -152,6 +153,11 @@ pub fn run(args: &DemoArgs) -> Result<()> {
     result
 }
 
+/// Galaxies of the demo's mock catalogue, and their shape noise per component (common
+/// practice: σ_e ≈ 0.26).
+const MOCK_GALAXIES: usize = 50_000;
+const MOCK_SIGMA_E: f64 = 0.26;
+
 /// Width of the C2 taper of the mock footprint, arcminutes.
 const TAPER_ARCMIN: f64 = 60.0;
 
@@ -200,7 +206,7 @@ fn run_in_directory(args: &DemoArgs) -> Result<()> {
     print_comparison(&result);
     draw_pictures(dir, &result, &em, &settings, pixel_arcmin)?;
     println!(
-        "outputs in {}: forecast.json, comparison.csv, ellipses.png, coefficients.png, tile_map.png, example_sky.fits, mock_mask.fits, example_measurement.json, ensemble tables",
+        "outputs in {}: forecast.json, comparison.csv, ellipses.png, coefficients.png, tile_map.png, example_sky.fits, mock_mask.fits, mock_catalogue.csv (try: planisphere shear-maps mock_catalogue.csv --nside 32 -o shear_maps.fits), example_measurement.json, ensemble tables",
         dir.display()
     );
     println!("run time {:.1} s", start.elapsed().as_secs_f64());
@@ -308,6 +314,10 @@ fn write_example(
         mask,
         &WriteOptions::default(),
     )?;
+    // a mock galaxy catalogue lensed by the example sky, to try `shear-maps` on
+    let (gamma1, gamma2) = shear_of_convergence(&example, 2 * example.nside() as usize)?;
+    let galaxies = mock_catalogue(&gamma1, &gamma2, mask, MOCK_GALAXIES, MOCK_SIGMA_E, 1001)?;
+    write_catalogue_csv(&dir.join("mock_catalogue.csv"), &galaxies)?;
     let stats = em.measurer.measure(&example, footprint)?;
     let taper =
         serde_json::json!({"kind": "C2", "width_arcmin": TAPER_ARCMIN, "mask": "mock_mask.fits"});

@@ -3,11 +3,14 @@
 
 use super::inputs::MaskArgs;
 use super::measure::MeasureOptions;
+use crate::catalogue::noise_maps::{NoiseMapKind, NoiseMapRecipe};
+use crate::catalogue::{BinningPlan, CatalogueColumns, WeightChoice};
 use crate::ensemble::{
     file_checksum, members_from_glob, members_from_list, pair_members, EnsembleDescription,
     EnsembleJob, MemberSource, Shard,
 };
 use crate::error::{Error, Result};
+use crate::harmonics::mass_mapping::{MassMapper, MassMappingSettings, ShearAxes};
 use crate::harmonics::spectra::{angular_spectrum, cross_spectrum};
 use crate::harmonics::spectrum::AngularSpectrum;
 use crate::harmonics::HarmonicTransform;
@@ -32,7 +35,9 @@ pub struct EnsembleArgs {
     #[arg(long, value_name = "FILE", group = "members")]
     pub map_list: Option<PathBuf>,
     /// Simulate the maps from a recipe (TOML: nside, count, seed, and optionally spectrum,
-    /// model_variance, lmax, lognormal_shift, beam_arcmin, noise_sigma).
+    /// model_variance, lmax, lognormal_shift, beam_arcmin, noise_sigma; or, instead of a sky,
+    /// a catalogue_noise table: catalogue, map = kappa_e | kappa_b | gamma1 | gamma2, and
+    /// shear-maps' options — member i is shape-noise realisation i of the catalogue).
     #[arg(long, value_name = "RECIPE.toml", group = "members")]
     pub simulate: Option<PathBuf>,
     /// Column of the map files: 0-based position or name.
@@ -85,6 +90,80 @@ pub struct RecipeFile {
     /// Make correlated pairs of maps instead of single maps.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub pair: Option<PairRecipe>,
+    /// Members are shape-noise realisations of a galaxy catalogue (member i = realisation i,
+    /// seeded by `seed`) instead of simulated skies.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub catalogue_noise: Option<CatalogueNoiseTable>,
+}
+
+/// The `[catalogue_noise]` table of a recipe: which catalogue, which map of each realisation
+/// (`gamma1`, `gamma2`, `kappa_e` (default), `kappa_b`), and the options of `shear-maps`.
+#[derive(Debug, Clone, serde::Deserialize, serde::Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct CatalogueNoiseTable {
+    /// The catalogue (relative to the recipe file).
+    pub catalogue: PathBuf,
+    /// The map measured.
+    #[serde(default = "default_noise_map")]
+    pub map: NoiseMapKind,
+    pub ra_column: Option<String>,
+    pub dec_column: Option<String>,
+    pub e1_column: Option<String>,
+    pub e2_column: Option<String>,
+    pub weight_column: Option<String>,
+    #[serde(default)]
+    pub unit_weights: bool,
+    pub min_galaxies: Option<u64>,
+    pub smooth_arcmin: Option<f64>,
+    /// `east-north` (default) or `west-north`.
+    pub shear_axes: Option<String>,
+}
+
+fn default_noise_map() -> NoiseMapKind {
+    NoiseMapKind::KappaE
+}
+
+impl CatalogueNoiseTable {
+    /// The library recipe for maps of `nside` up to `lmax`, seeded by `seed`.
+    pub fn recipe(&self, nside: u32, lmax: Option<usize>, seed: u64) -> Result<NoiseMapRecipe> {
+        let defaults = CatalogueColumns::default();
+        let columns = CatalogueColumns {
+            ra: self.ra_column.clone().unwrap_or(defaults.ra),
+            dec: self.dec_column.clone().unwrap_or(defaults.dec),
+            e1: self.e1_column.clone().unwrap_or(defaults.e1),
+            e2: self.e2_column.clone().unwrap_or(defaults.e2),
+            weight: match (&self.weight_column, self.unit_weights) {
+                (_, true) => WeightChoice::Unit,
+                (Some(n), false) => WeightChoice::Column(n.clone()),
+                (None, false) => WeightChoice::Default,
+            },
+        };
+        let axes = match self.shear_axes.as_deref().unwrap_or("east-north") {
+            "east-north" => ShearAxes::EastNorth,
+            "west-north" => ShearAxes::WestNorth,
+            other => {
+                return Err(Error::Setting(format!(
+                    "recipe catalogue_noise.shear_axes must be 'east-north' or 'west-north', got '{other}'"
+                )))
+            }
+        };
+        Ok(NoiseMapRecipe {
+            catalogue: self.catalogue.clone(),
+            columns,
+            plan: BinningPlan {
+                min_galaxies: self.min_galaxies.unwrap_or(1).max(1),
+                ..BinningPlan::new(nside)
+            },
+            seed,
+            map: self.map,
+            lmax,
+            settings: MassMappingSettings {
+                smoothing_fwhm_arcmin: self.smooth_arcmin.unwrap_or(0.0),
+                axes,
+                ..MassMappingSettings::default()
+            },
+        })
+    }
 }
 
 /// The `[pair]` table of a recipe: map B of pair i is made from the Gaussian field of map A and
@@ -112,6 +191,11 @@ impl RecipeFile {
         if let Some(s) = &r.spectrum {
             if s.is_relative() {
                 r.spectrum = Some(path.parent().unwrap_or(Path::new("")).join(s));
+            }
+        }
+        if let Some(c) = &mut r.catalogue_noise {
+            if c.catalogue.is_relative() {
+                c.catalogue = path.parent().unwrap_or(Path::new("")).join(&c.catalogue);
             }
         }
         Ok(r)
@@ -328,6 +412,18 @@ pub fn run(args: &EnsembleArgs) -> Result<()> {
         },
         recipe,
         pair_recipe,
+        catalogue_noise: match recipe_file.as_ref().and_then(|f| {
+            f.catalogue_noise
+                .as_ref()
+                .map(|c| c.recipe(f.nside, f.lmax, f.seed))
+        }) {
+            Some(r) => {
+                let r = r?;
+                let mapper = r.mapper()?;
+                Some((r, mapper))
+            }
+            None => None,
+        },
     };
     // the pixelization and footprint, from the first member
     let (first_map, _) = loader.load(&members[0])?;
@@ -435,6 +531,14 @@ fn ensemble_members(
         }
         (None, None, Some(r)) => {
             let file = RecipeFile::read(r)?;
+            if file.catalogue_noise.is_some() {
+                check_catalogue_noise_recipe(&file)?;
+                return Ok((
+                    (0..file.count).map(MemberSource::Simulation).collect(),
+                    None,
+                    Some(file),
+                ));
+            }
             let recipe = file.recipe()?;
             if let Some(p) = &file.pair {
                 // checked before any directory is made
@@ -454,6 +558,28 @@ fn ensemble_members(
     })
 }
 
+/// A recipe of catalogue noise members makes no sky: only nside, count, seed, lmax and the
+/// `[catalogue_noise]` table apply.
+fn check_catalogue_noise_recipe(file: &RecipeFile) -> Result<()> {
+    let sky_keys = [
+        ("spectrum", file.spectrum.is_some()),
+        ("model_variance", file.model_variance.is_some()),
+        ("lognormal_shift", file.lognormal_shift.is_some()),
+        ("gaussian_spectrum", file.gaussian_spectrum.is_some()),
+        ("beam_arcmin", file.beam_arcmin.is_some()),
+        ("noise_sigma", file.noise_sigma.is_some()),
+        ("pair", file.pair.is_some()),
+    ];
+    if let Some((key, _)) = sky_keys.iter().find(|(_, set)| *set) {
+        return Err(Error::Setting(format!(
+            "recipe key '{key}' describes a simulated sky and does not apply with [catalogue_noise]"
+        )));
+    }
+    crate::limits::check_count("recipe count", file.count)?;
+    Pixelization::new(file.nside, Ordering::Ring)?;
+    Ok(())
+}
+
 /// Reads or simulates a member's map A and, for pairs, map B.
 struct MemberLoader<'a> {
     column: &'a ColumnChoice,
@@ -461,10 +587,17 @@ struct MemberLoader<'a> {
     recipe: Option<SkyRecipe>,
     sky_sht: Option<HarmonicTransform>,
     pair_recipe: Option<PairRecipe>,
+    /// Catalogue noise members: the recipe and its mass mapper (κ maps only).
+    catalogue_noise: Option<(NoiseMapRecipe, Option<MassMapper>)>,
 }
 
 impl MemberLoader<'_> {
     fn load(&self, source: &MemberSource) -> Result<(SkyMap, Option<SkyMap>)> {
+        if let (MemberSource::Simulation(i), Some((recipe, mapper))) =
+            (source, &self.catalogue_noise)
+        {
+            return Ok((recipe.realise(mapper.as_ref(), *i)?, None));
+        }
         match (source, &self.recipe, &self.sky_sht) {
             (MemberSource::File(p), _, _) => Ok((read_map(p, self.column)?.0, None)),
             (MemberSource::FilePair(a, b), _, _) => Ok((

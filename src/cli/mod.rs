@@ -16,6 +16,7 @@ pub mod inspect;
 pub mod measure;
 pub mod output;
 pub mod plot;
+pub mod shear_maps;
 pub mod sky;
 pub mod spectra;
 pub mod synthesize;
@@ -58,6 +59,9 @@ pub enum Command {
     /// a target map, tile or coefficient file.
     #[command(mut_args(synthesize::shared_flag_help))]
     Synthesize(synthesize::SynthesizeArgs),
+    /// Bin a galaxy catalogue (CSV or FITS table) into HEALPix maps of counts, mean shear,
+    /// its noise variance, density contrast and footprint; shape-noise realisations by rotation.
+    ShearMaps(shear_maps::ShearMapsArgs),
 }
 
 /// Runs the command line and returns the process exit code.
@@ -114,5 +118,6 @@ fn run(command: Command) -> Result<()> {
         Command::CompareFlat(args) => compare_flat::run(&args),
         Command::Plot(args) => plot::run(&args),
         Command::Synthesize(args) => synthesize::run(&args),
+        Command::ShearMaps(args) => shear_maps::run(&args),
     }
 }

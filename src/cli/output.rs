@@ -210,6 +210,13 @@ pub fn command_files(command: &super::Command) -> Result<CommandFiles> {
                 .output("--output", Some(&a.output))
                 .output("--picture", Some(&picture));
         }
+        Command::ShearMaps(a) => {
+            f.input("catalogue", Some(&a.catalogue))
+                .output("--output", Some(&a.output));
+            for p in super::shear_maps::noise_paths(a)? {
+                f.output("--noise-output", Some(&p));
+            }
+        }
     }
     Ok(f)
 }

@@ -47,7 +47,7 @@ const FITS_BLOCK: u64 = 2880;
 // cfitsio constants (fitsio.h).
 const KEY_NO_EXIST: c_int = 202;
 const READONLY: c_int = 0;
-const BINARY_TBL: c_int = 2;
+pub(super) const BINARY_TBL: c_int = 2;
 const TSHORT: c_int = 21;
 const TBYTE: c_int = 11;
 const TSBYTE: c_int = 12;
@@ -56,10 +56,10 @@ const TUINT: c_int = 30;
 const TINT: c_int = 31;
 const TULONG: c_int = 40;
 const TLONG: c_int = 41;
-const TFLOAT: c_int = 42;
+pub(super) const TFLOAT: c_int = 42;
 const TULONGLONG: c_int = 80;
 const TLONGLONG: c_int = 81;
-const TDOUBLE: c_int = 82;
+pub(super) const TDOUBLE: c_int = 82;
 const TBIT: c_int = 1;
 const TLOGICAL: c_int = 14;
 const TSTRING: c_int = 16;
@@ -933,17 +933,9 @@ impl ColumnValue for i64 {
 // Header checks.
 
 /// Size of the file, after checking it exists and starts like a FITS file.
-fn check_file_start(path: &Path) -> Result<u64> {
+/// Reads the first `start.len()` bytes of a file (fewer when it is shorter); how many were read.
+pub fn read_file_start(path: &Path, start: &mut [u8]) -> Result<usize> {
     use std::io::Read;
-    let meta = std::fs::metadata(path).map_err(|e| match e.kind() {
-        std::io::ErrorKind::NotFound => Error::io(path, "no such file"),
-        _ => Error::io(path, e),
-    })?;
-    if meta.is_dir() {
-        return Err(Error::io(path, "is a directory, not a FITS file"));
-    }
-    crate::files::require_regular_input(path)?;
-    let mut start = [0u8; 9];
     let mut f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
     let mut got = 0;
     while got < start.len() {
@@ -953,6 +945,23 @@ fn check_file_start(path: &Path) -> Result<u64> {
             Err(e) => return Err(Error::io(path, e)),
         }
     }
+    Ok(got)
+}
+
+/// FITS files begin with this card start (FITS standard 4.0, §4.4.1).
+pub const FITS_SIGNATURE: &[u8; 9] = b"SIMPLE  =";
+
+pub(super) fn check_file_start(path: &Path) -> Result<u64> {
+    let meta = std::fs::metadata(path).map_err(|e| match e.kind() {
+        std::io::ErrorKind::NotFound => Error::io(path, "no such file"),
+        _ => Error::io(path, e),
+    })?;
+    if meta.is_dir() {
+        return Err(Error::io(path, "is a directory, not a FITS file"));
+    }
+    crate::files::require_regular_input(path)?;
+    let mut start = [0u8; 9];
+    let got = read_file_start(path, &mut start)?;
     if got == 0 {
         return Err(Error::fits(path, "not a FITS file: the file is empty"));
     }
@@ -962,7 +971,7 @@ fn check_file_start(path: &Path) -> Result<u64> {
             "is gzip-compressed; decompress it first (gunzip), planisphere reads plain FITS files",
         ));
     }
-    if &start[..got] != b"SIMPLE  =" {
+    if &start[..got] != FITS_SIGNATURE {
         return Err(Error::fits(
             path,
             "not a FITS file: it does not begin with the FITS keyword SIMPLE",
@@ -971,7 +980,7 @@ fn check_file_start(path: &Path) -> Result<u64> {
     Ok(meta.len())
 }
 
-fn truncated_or_damaged(path: &Path, file_len: u64, detail: String) -> Error {
+pub(super) fn truncated_or_damaged(path: &Path, file_len: u64, detail: String) -> Error {
     if !file_len.is_multiple_of(FITS_BLOCK) {
         Error::fits(
             path,
@@ -1085,7 +1094,7 @@ fn is_numeric_type(code: c_int) -> bool {
 }
 
 /// Why a column of this type cannot hold map values, or `None` when it can.
-fn non_numeric_reason(code: c_int, format: &str) -> Option<String> {
+pub(super) fn non_numeric_reason(code: c_int, format: &str) -> Option<String> {
     if is_numeric_type(code) {
         return None;
     }
@@ -1101,7 +1110,7 @@ fn non_numeric_reason(code: c_int, format: &str) -> Option<String> {
 }
 
 /// A text keyword of the current HDU without its quotes, `None` when absent or blank.
-fn text_key(file: &mut FitsHandle, path: &Path, key: &str) -> Result<Option<String>> {
+pub(super) fn text_key(file: &mut FitsHandle, path: &Path, key: &str) -> Result<Option<String>> {
     Ok(file
         .key(path, key)?
         .map(|v| unquote(&v))
@@ -1402,7 +1411,7 @@ fn check_column_lengths(
 }
 
 /// The file must hold the table data its header declares.
-fn check_data_present(
+pub(super) fn check_data_present(
     file: &mut FitsHandle,
     path: &Path,
     hdu: usize,
@@ -1502,7 +1511,7 @@ fn allocate<T: Clone>(path: &Path, len: usize, fill: T) -> Result<Vec<T>> {
 // A minimal safe wrapper over the cfitsio calls used here.
 
 /// The text cfitsio gives for a status code.
-fn cfitsio_text(status: c_int) -> String {
+pub(super) fn cfitsio_text(status: c_int) -> String {
     let mut buf = [0 as c_char; 40];
     // SAFETY: ffgerr writes at most 30 characters plus a NUL into the buffer.
     unsafe { sys::ffgerr(status, buf.as_mut_ptr()) };
@@ -1528,7 +1537,7 @@ fn path_to_c(path: &Path, shown: &Path) -> Result<CString> {
     CString::new(bytes).map_err(|_| Error::io(shown, "the path contains a NUL byte"))
 }
 
-struct FitsHandle {
+pub(super) struct FitsHandle {
     ptr: *mut sys::fitsfile,
 }
 
@@ -1545,7 +1554,7 @@ impl Drop for FitsHandle {
 
 impl FitsHandle {
     /// Opens an existing file read-only, without cfitsio's extended file-name syntax.
-    fn open(path: &Path) -> Result<Self> {
+    pub(super) fn open(path: &Path) -> Result<Self> {
         let c = path_to_c(path, path)?;
         let mut ptr = std::ptr::null_mut();
         let mut status = 0;
@@ -1583,7 +1592,7 @@ impl FitsHandle {
     }
 
     /// Moves to 0-based HDU `hdu`; its type (0 image, 1 ASCII table, 2 binary table) or the status.
-    fn move_to(&mut self, hdu: usize) -> std::result::Result<c_int, c_int> {
+    pub(super) fn move_to(&mut self, hdu: usize) -> std::result::Result<c_int, c_int> {
         let mut kind = 0;
         let mut status = 0;
         let number = c_int::try_from(hdu + 1).unwrap_or(c_int::MAX);
@@ -1622,7 +1631,7 @@ impl FitsHandle {
         }
     }
 
-    fn num_cols(&mut self, path: &Path) -> Result<c_int> {
+    pub(super) fn num_cols(&mut self, path: &Path) -> Result<c_int> {
         let mut n = 0;
         let mut status = 0;
         // SAFETY: open handle, out-pointers to locals.
@@ -1636,7 +1645,7 @@ impl FitsHandle {
         Ok(n)
     }
 
-    fn num_rows(&mut self, path: &Path) -> Result<u64> {
+    pub(super) fn num_rows(&mut self, path: &Path) -> Result<u64> {
         let mut n: sys::LONGLONG = 0;
         let mut status = 0;
         // SAFETY: open handle, out-pointers to locals.
@@ -1651,7 +1660,7 @@ impl FitsHandle {
     }
 
     /// cfitsio type code (negative for variable-length arrays) and repeat count of a column.
-    fn column_type(&mut self, path: &Path, colnum: c_int) -> Result<(c_int, u64)> {
+    pub(super) fn column_type(&mut self, path: &Path, colnum: c_int) -> Result<(c_int, u64)> {
         let mut code = 0;
         let mut repeat: sys::LONGLONG = 0;
         let mut width: sys::LONGLONG = 0;
@@ -1735,11 +1744,41 @@ impl FitsHandle {
         colnum: c_int,
         first: (u64, u64),
         count: u64,
-        mut nulval: Option<T>,
+        nulval: Option<T>,
     ) -> Result<Vec<T>> {
         let mut out = allocate(path, count as usize, T::default())?;
+        self.read_rows_into(path, colnum, first, &mut out, nulval)?;
+        Ok(out)
+    }
+
+    /// `out.len()` values of column `colnum` from 0-based row `first_row` (one value per row),
+    /// as f64; integer TNULL values become NaN, float columns are read as stored (see
+    /// [`FitsHandle::read_doubles`]).
+    pub(super) fn read_double_rows(
+        &mut self,
+        path: &Path,
+        colnum: c_int,
+        first_row: u64,
+        out: &mut [f64],
+        float_column: bool,
+    ) -> Result<()> {
+        let nulval = if float_column { 0.0 } else { f64::NAN };
+        self.read_rows_into(path, colnum, (first_row + 1, 1), out, Some(nulval))
+    }
+
+    /// Fills `out` with the column's values from 1-based (row, element) `first` onwards
+    /// (across rows for a column of several values per row).
+    fn read_rows_into<T: ColumnValue>(
+        &mut self,
+        path: &Path,
+        colnum: c_int,
+        first: (u64, u64),
+        out: &mut [T],
+        mut nulval: Option<T>,
+    ) -> Result<()> {
+        let count = out.len() as u64;
         if count == 0 {
-            return Ok(out);
+            return Ok(());
         }
         let nulval_ptr = match nulval.as_mut() {
             Some(v) => v as *mut T as *mut c_void,
@@ -1769,7 +1808,7 @@ impl FitsHandle {
                 format!("cannot read column {colnum} ({})", cfitsio_text(status)),
             ));
         }
-        Ok(out)
+        Ok(())
     }
 
     /// Appends a binary table of `rows` rows with the given column names and TFORMs.
