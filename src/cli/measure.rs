@@ -104,7 +104,7 @@ pub struct MeasureArgs {
 
 /// Measures one map (or a pair with `--cross`) and writes the JSON document. One map in a
 /// full-sky RING file, with a full-sky RING mask of its NSIDE or without a mask, is read at
-/// the size of its footprint ([`run_on_footprint`]): the same document, byte for byte, in
+/// the size of its footprint (`run_on_footprint`): the same document, byte for byte, in
 /// about f_sky of the memory; other inputs are read whole ([`run_reading_whole_map`]).
 pub fn run(args: &MeasureArgs) -> Result<()> {
     crate::files::check_output_path(&args.output)?;
