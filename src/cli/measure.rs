@@ -17,7 +17,7 @@ use crate::io::measurement_document::{pair_document, taper_description};
 use crate::measure::measurement::{MapStatistics, MeasurementSettings, SphereMeasurer};
 use crate::measure::settings::MeasurementChoices;
 use crate::sky::block_map::OutsideBlocks;
-use crate::sky::footprint::Footprint;
+use crate::sky::footprint::{Footprint, WEIGHT_BLOCK};
 use crate::sky::measurable::check_measurable_blocks;
 use crate::sky::skymap::SkyMap;
 use crate::tiles::tiling::TilingSummary;
@@ -104,7 +104,7 @@ pub struct MeasureArgs {
 
 /// Measures one map (or a pair with `--cross`) and writes the JSON document. One map in a
 /// full-sky RING file, with a full-sky RING mask of its NSIDE or without a mask, is read at
-/// the size of its footprint ([`run_on_footprint`]): the same document, byte for byte, in
+/// the size of its footprint (`run_on_footprint`): the same document, byte for byte, in
 /// about f_sky of the memory; other inputs are read whole ([`run_reading_whole_map`]).
 pub fn run(args: &MeasureArgs) -> Result<()> {
     crate::files::check_output_path(&args.output)?;
@@ -161,6 +161,7 @@ fn run_on_footprint(
             if map.stored_valid_count() == 0 {
                 return Err(every_pixel_bad());
             }
+            check_footprint_memory(map.nside(), map.stored_values())?;
             let raw = map.restrict(map.valid_footprint()?)?;
             (map, raw)
         }
@@ -178,12 +179,8 @@ fn run_on_footprint(
             for w in &header.warnings {
                 eprintln!("planisphere: warning: {}: {w}", mask_path.display());
             }
-            let npix = 12.0 * (header.nside as f64).powi(2);
-            crate::limits::check_memory(
-                &format!("measuring a NSIDE {} map on its footprint", header.nside),
-                crate::limits::measurement_bytes(header.nside, 1) * mask.stored_weights() as f64
-                    / npix,
-            )?;
+            let held = mask.weighted_blocks().count() * WEIGHT_BLOCK;
+            check_footprint_memory(header.nside, held)?;
             let mut map = empty_map(map_reader.header())?;
             read_map_blocks(
                 &mut map_reader,
@@ -219,6 +216,17 @@ fn run_on_footprint(
     }
     let stats = measurer.measure_blocks(&map, &footprint)?;
     write_single(args, &measurer, &stats)
+}
+
+/// Refuses a measurement whose footprint holds `held` pixels (blocks of 64) of an NSIDE `nside`
+/// map when it would not fit the memory limit: the estimate of the whole map
+/// ([`crate::limits::measurement_bytes`]) scaled by the fraction of the sky held.
+fn check_footprint_memory(nside: u32, held: usize) -> Result<()> {
+    let npix = 12.0 * (nside as f64).powi(2);
+    crate::limits::check_memory(
+        &format!("measuring a NSIDE {nside} map"),
+        crate::limits::measurement_bytes(nside, 1) * (held as f64 / npix).min(1.0),
+    )
 }
 
 /// Writes the document of one map's statistics and prints its summary.

@@ -295,6 +295,13 @@ impl HealpixFitsReader {
     /// column matches a float64 keyword).
     fn read_values(&mut self, column: &ColumnChoice) -> Result<Vec<f64>> {
         let mut values = self.read_stored_values(column)?;
+        self.mark_bad_data(&mut values);
+        Ok(values)
+    }
+
+    /// `values` with NaN where a value is the header's `BAD_DATA` (to a relative 1e-6, so that
+    /// a float32 column matches a float64 keyword).
+    fn mark_bad_data(&self, values: &mut [f64]) {
         if let Some(bad) = self.header.bad_data {
             for v in values.iter_mut() {
                 if (*v - bad).abs() <= 1e-6 * bad.abs() {
@@ -302,7 +309,6 @@ impl HealpixFitsReader {
                 }
             }
         }
-        Ok(values)
     }
 
     /// The values of pixels `start..start + count` of one column of a full-sky file, in the
@@ -361,13 +367,7 @@ impl HealpixFitsReader {
         let mut values = self
             .file
             .read_column_from(&path, colnum, first, count, Some(nulval))?;
-        if let Some(bad) = self.header.bad_data {
-            for v in values.iter_mut() {
-                if (*v - bad).abs() <= 1e-6 * bad.abs() {
-                    *v = f64::NAN;
-                }
-            }
-        }
+        self.mark_bad_data(&mut values);
         Ok(values)
     }
 
