@@ -17,20 +17,9 @@ use planisphere::harmonics::{alm_from_cl, HarmonicTransform};
 use rand::SeedableRng;
 use rand_chacha::ChaCha20Rng;
 
-/// User + system CPU time of this process, in seconds.
-#[cfg(unix)]
-fn cpu_seconds() -> f64 {
-    // SAFETY: getrusage writes into the zero-initialised struct we pass.
-    let mut usage: libc::rusage = unsafe { std::mem::zeroed() };
-    unsafe { libc::getrusage(libc::RUSAGE_SELF, &mut usage) };
-    let tv = |t: libc::timeval| t.tv_sec as f64 + t.tv_usec as f64 * 1e-6;
-    tv(usage.ru_utime) + tv(usage.ru_stime)
-}
-
-#[cfg(not(unix))]
-fn cpu_seconds() -> f64 {
-    f64::NAN
-}
+#[path = "support/process_cpu.rs"]
+mod process_cpu;
+use process_cpu::cpu_seconds;
 
 /// FNV-1a hash of the bit patterns: equal fingerprints mean bit-identical results.
 fn fingerprint(values: impl Iterator<Item = f64>) -> u64 {

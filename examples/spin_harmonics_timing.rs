@@ -15,26 +15,15 @@ use planisphere::harmonics::{
 use rand::SeedableRng;
 use rand_chacha::ChaCha20Rng;
 
-/// User + system CPU time of this process, in seconds.
-#[cfg(unix)]
-fn process_cpu_seconds() -> f64 {
-    // SAFETY: getrusage writes into the zero-initialised struct we pass.
-    let mut usage: libc::rusage = unsafe { std::mem::zeroed() };
-    unsafe { libc::getrusage(libc::RUSAGE_SELF, &mut usage) };
-    let seconds = |t: libc::timeval| t.tv_sec as f64 + t.tv_usec as f64 * 1e-6;
-    seconds(usage.ru_utime) + seconds(usage.ru_stime)
-}
-
-#[cfg(not(unix))]
-fn process_cpu_seconds() -> f64 {
-    f64::NAN
-}
+#[path = "support/process_cpu.rs"]
+mod process_cpu;
+use process_cpu::cpu_seconds;
 
 /// CPU seconds of one call, kept as the minimum over repetitions in `best`.
 fn timed<T>(best: &mut f64, f: impl FnOnce() -> T) -> T {
-    let t0 = process_cpu_seconds();
+    let t0 = cpu_seconds();
     let out = f();
-    *best = best.min(process_cpu_seconds() - t0);
+    *best = best.min(cpu_seconds() - t0);
     out
 }
 

@@ -228,6 +228,29 @@ fn run(args: &[String], cwd: &Path) -> (Option<i32>, String) {
     run_program(env!("CARGO_BIN_EXE_planisphere"), args, cwd)
 }
 
+/// Runs the command line under an address-space limit of `kilobytes` (`ulimit -v`).
+fn run_under_address_limit(kilobytes: u64, args: &[String], cwd: &Path) -> (Option<i32>, String) {
+    let mut line = vec![
+        "-c".to_string(),
+        format!("ulimit -v {kilobytes} && exec \"$0\" \"$@\""),
+        env!("CARGO_BIN_EXE_planisphere").to_string(),
+    ];
+    line.extend(args.iter().cloned());
+    run_program("sh", &line, cwd)
+}
+
+/// An NSIDE 1024 sky (a 100 MB f64 column) band-limited to `lmax`, made by `sky` in the
+/// fixture directory; its path.
+fn nside_1024_sky(f: &Fixtures, lmax: &str) -> String {
+    let big = f.path("map1024.fits");
+    let (code, stderr) = run(
+        &strings(&["sky", "--nside", "1024", "--lmax", lmax, "-o", &big]),
+        f.dir.path(),
+    );
+    assert_eq!(code, Some(0), "{stderr}");
+    big
+}
+
 /// What a directory entry is, compared before and after a run: a file's bytes, a link's
 /// target, or the kind of a directory or special file (a FIFO is never opened).
 #[derive(Debug, PartialEq, Eq)]
@@ -1172,7 +1195,6 @@ fn skies_beyond_the_memory_limit_are_refused_with_the_limit() {
     // under an address-space limit of 2 GB (ulimit -v), a NSIDE 8192 sky (6.4 GB per map) and
     // a recipe at NSIDE 4096 are refused up front instead of aborting in an allocation
     let f = Fixtures::new();
-    let bin = env!("CARGO_BIN_EXE_planisphere");
     let cases: Vec<(Vec<String>, &str)> = vec![
         (
             strings(&["sky", "--nside", "8192", "-o", &f.path("big.fits")]),
@@ -1191,13 +1213,7 @@ fn skies_beyond_the_memory_limit_are_refused_with_the_limit() {
     ];
     for (args, words) in &cases {
         let before = snapshot(f.dir.path());
-        let mut line = vec![
-            "-c".to_string(),
-            "ulimit -v 2000000 && exec \"$0\" \"$@\"".to_string(),
-            bin.to_string(),
-        ];
-        line.extend(args.iter().cloned());
-        let (code, stderr) = run_program("sh", &line, f.dir.path());
+        let (code, stderr) = run_under_address_limit(2_000_000, args, f.dir.path());
         assert_refused(args, code, &stderr, words, &before, f.dir.path());
         assert!(
             stderr.contains("address-space limit (ulimit -v)"),
@@ -1648,23 +1664,11 @@ fn a_map_too_large_to_measure_within_the_memory_limit_is_refused_with_the_estima
     // an NSIDE 1024 map (12.6 million pixels) needs about 0.6 GB to measure; under an
     // address-space limit of 400 MB (ulimit -v) it is refused before its pixels are read
     let f = Fixtures::new();
-    let bin = env!("CARGO_BIN_EXE_planisphere");
-    let big = f.path("map1024.fits");
-    let (code, stderr) = run(
-        &strings(&["sky", "--nside", "1024", "--lmax", "64", "-o", &big]),
-        f.dir.path(),
-    );
-    assert_eq!(code, Some(0), "{stderr}");
+    let big = nside_1024_sky(&f, "64");
     let mut args = strings(&["measure", &big, "-o", &f.path("m.json")]);
     args.extend(strings(&QUICK));
     let before = snapshot(f.dir.path());
-    let mut line = vec![
-        "-c".to_string(),
-        "ulimit -v 400000 && exec \"$0\" \"$@\"".to_string(),
-        bin.to_string(),
-    ];
-    line.extend(args.iter().cloned());
-    let (code, stderr) = run_program("sh", &line, f.dir.path());
+    let (code, stderr) = run_under_address_limit(400_000, &args, f.dir.path());
     assert_refused(
         &args,
         code,
@@ -1682,21 +1686,15 @@ fn every_command_that_runs_out_of_memory_stops_with_one_line_and_exit_2() {
     // missing or low, stops at the failed allocation: one line, exit code 2, no file written,
     // never Rust's abort (exit 134 with a backtrace)
     let f = Fixtures::new();
-    let bin = env!("CARGO_BIN_EXE_planisphere");
-    let big = f.path("map1024.fits");
-    let (code, stderr) = run(
-        &strings(&["sky", "--nside", "1024", "--lmax", "32", "-o", &big]),
-        f.dir.path(),
-    );
-    assert_eq!(code, Some(0), "{stderr}");
-    let cases: Vec<(&str, Vec<String>)> = vec![
+    let big = nside_1024_sky(&f, "32");
+    let cases: Vec<(u64, Vec<String>)> = vec![
         (
-            "150000",
+            150_000,
             strings(&["spectra", &big, "--json", &f.path("s.json")]),
         ),
-        ("150000", strings(&["tiles", &big])),
+        (150_000, strings(&["tiles", &big])),
         (
-            "150000",
+            150_000,
             strings(&[
                 "plot",
                 "tile-map",
@@ -1708,20 +1706,14 @@ fn every_command_that_runs_out_of_memory_stops_with_one_line_and_exit_2() {
             ]),
         ),
         (
-            "150000",
+            150_000,
             strings(&["synthesize", "--target", &big, "-o", &f.path("s.fits")]),
         ),
-        ("100000", strings(&["inspect", &big])),
+        (100_000, strings(&["inspect", &big])),
     ];
     let before = snapshot(f.dir.path());
     for (limit, args) in &cases {
-        let mut line = vec![
-            "-c".to_string(),
-            format!("ulimit -v {limit} && exec \"$0\" \"$@\""),
-            bin.to_string(),
-        ];
-        line.extend(args.iter().cloned());
-        let (code, stderr) = run_program("sh", &line, f.dir.path());
+        let (code, stderr) = run_under_address_limit(*limit, args, f.dir.path());
         assert_refused(args, code, &stderr, "", &before, f.dir.path());
         assert!(
             stderr.contains("address-space limit (ulimit -v)"),
