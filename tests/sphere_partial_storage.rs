@@ -4,7 +4,8 @@
 //! the same footprint, the same plan and the same statistics bit for bit, for every sampling
 //! method, with and without a mask, and `planisphere measure` writes the same document byte
 //! for byte (common practice: a view and a copy of the same numbers give the same result).
-//! Reading fewer blocks than the tiles need is an error, not a quiet difference.
+//! Reading fewer blocks than the tiles need is an error, not a quiet difference. The same holds
+//! for NESTED files, whose blocks of 64 indices are cells of NSIDE/8 (Górski et al. 2005 §4).
 
 mod sphere_support;
 
@@ -20,7 +21,7 @@ use planisphere::io::footprint_read::{
 use planisphere::measure::measurement::{MeasurementSettings, SphereMeasurer};
 use planisphere::sky::apodization::{taper_footprint, TaperKind};
 use planisphere::sky::skymap::UNSEEN;
-use planisphere::tiles::reach::read_ranges;
+use planisphere::tiles::reach::{read_blocks, read_ranges};
 use planisphere::tiles::sampling::SamplingMethod;
 use planisphere::{Direction, Ordering, Pixelization, SkyMap};
 use sphere_support::bits;
@@ -32,6 +33,11 @@ const NSIDE: u32 = 128;
 /// NaN pixels, and a mask of f_sky ≈ 0.3 (30° < latitude < 75°, two holes) with UNSEEN and NaN
 /// among its unobserved pixels, stored as float32; both RING, full sky.
 fn write_inputs(dir: &Path) -> (PathBuf, PathBuf) {
+    write_inputs_in(dir, Ordering::Ring)
+}
+
+/// [`write_inputs`] with both files in `ordering` (the same values, reordered).
+fn write_inputs_in(dir: &Path, ordering: Ordering) -> (PathBuf, PathBuf) {
     let pix = Pixelization::new(NSIDE, Ordering::Ring).unwrap();
     let map = SkyMap::from_fn(pix, |d| {
         let lon = d.lon().to_degrees();
@@ -65,8 +71,12 @@ fn write_inputs(dir: &Path) -> (PathBuf, PathBuf) {
         })
         .collect();
     let mask = SkyMap::new(pix, weights).unwrap();
-    let map_path = dir.join("map.fits");
-    let mask_path = dir.join("mask.fits");
+    let (map, mask) = (
+        map.to_ordering(ordering).unwrap(),
+        mask.to_ordering(ordering).unwrap(),
+    );
+    let map_path = dir.join(format!("map_{}.fits", ordering.fits_name()));
+    let mask_path = dir.join(format!("mask_{}.fits", ordering.fits_name()));
     write_map(&map_path, "VALUE", &map, &WriteOptions::default()).unwrap();
     let float32 = WriteOptions {
         precision: ValuePrecision::Float32,
@@ -215,4 +225,89 @@ fn measure_writes_the_same_document_reading_by_blocks_and_whole() {
         assert!(!a.is_empty());
         assert!(a == b, "{extra:?}: the documents differ");
     }
+}
+
+#[test]
+fn a_nested_map_held_by_blocks_measures_bit_for_bit_as_the_whole_map() {
+    let dir = tempfile::tempdir().unwrap();
+    let (map_path, mask_path) = write_inputs_in(dir.path(), Ordering::Nested);
+    let column = ColumnChoice::default();
+    let (map, _) = read_map(&map_path, &column).unwrap();
+    assert_eq!(map.ordering(), Ordering::Nested);
+    let (mask, _) = read_footprint(&mask_path, &column).unwrap();
+    let whole_fp =
+        taper_footprint(mask.restricted_to(&map).unwrap(), TaperKind::C2, 120.0).unwrap();
+    let mut map_reader = HealpixFitsReader::open(&map_path).unwrap();
+    let mut mask_reader = HealpixFitsReader::open(&mask_path).unwrap();
+    let mask_blocks = read_footprint_by_blocks(&mut mask_reader, &column).unwrap();
+    let mut held = empty_map(map_reader.header()).unwrap();
+    read_map_blocks(
+        &mut map_reader,
+        &column,
+        &mut held,
+        mask_blocks.weighted_blocks(),
+    )
+    .unwrap();
+    let fp = taper_footprint(held.restrict(mask_blocks).unwrap(), TaperKind::C2, 120.0).unwrap();
+    assert_eq!(bits(fp.weights()), bits(whole_fp.weights()));
+    let spacing = map.pixelization().mean_spacing().to_degrees() * 60.0;
+    for (sampling, pixel_arcmin) in [
+        (SamplingMethod::RingQuintic, None),
+        (SamplingMethod::Bilinear, Some(spacing)),
+        (SamplingMethod::Nearest, Some(spacing)),
+    ] {
+        let settings = MeasurementSettings {
+            scales: 3,
+            sampling,
+            pixel_arcmin,
+            ..Default::default()
+        };
+        let whole = SphereMeasurer::new(map.pixelization(), &whole_fp, settings).unwrap();
+        let measurer = SphereMeasurer::new(held.pixelization(), &fp, settings).unwrap();
+        // RING ranges are refused for a NESTED plan; the blocks are listed in NESTED indices
+        assert!(read_ranges(measurer.plan()).is_err());
+        let blocks = read_blocks(measurer.plan()).unwrap();
+        assert!(blocks.windows(2).all(|w| w[0] < w[1]), "{sampling:?}");
+        read_map_blocks(&mut map_reader, &column, &mut held, blocks).unwrap();
+        let a = whole.measure(&map, &whole_fp).unwrap();
+        let b = measurer.measure_blocks(&held, &fp).unwrap();
+        assert_eq!(bits(&a.vector()), bits(&b.vector()), "{sampling:?}");
+        assert_eq!(a.tiles, b.tiles, "{sampling:?}");
+    }
+    let npix = map.pixelization().npix() as usize;
+    assert!(
+        held.stored_values() < npix * 3 / 4,
+        "{} of {npix}",
+        held.stored_values()
+    );
+}
+
+#[test]
+fn measure_writes_the_same_document_for_a_nested_map_by_blocks_and_whole() {
+    let dir = tempfile::tempdir().unwrap();
+    let (map_path, mask_path) = write_inputs_in(dir.path(), Ordering::Nested);
+    let run = |whole: bool| -> Vec<u8> {
+        let out = dir.path().join(format!("out_nested_{whole}.json"));
+        let argv = [
+            "measure",
+            &map_path.display().to_string(),
+            "--mask",
+            &mask_path.display().to_string(),
+            "-J",
+            "3",
+            "-o",
+            &out.display().to_string(),
+        ]
+        .map(String::from);
+        let m = Measure::try_parse_from(&argv).unwrap();
+        if whole {
+            planisphere::cli::measure::run_reading_whole_map(&m.args).unwrap();
+        } else {
+            planisphere::cli::measure::run(&m.args).unwrap();
+        }
+        std::fs::read(&out).unwrap()
+    };
+    let a = run(true);
+    assert!(!a.is_empty());
+    assert!(a == run(false), "the documents differ");
 }

@@ -9,8 +9,8 @@ use crate::error::{Error, Result};
 use crate::files::write_json;
 use crate::io::fits_io::{ColumnChoice, HealpixFitsReader};
 use crate::io::footprint_read::{
-    blocks_of_ranges, empty_map, holds_a_valid_pixel, read_footprint_by_blocks, read_map_blocks,
-    read_valid_blocks, reads_by_blocks,
+    empty_map, holds_a_valid_pixel, read_footprint_by_blocks, read_map_blocks, read_valid_blocks,
+    reads_by_blocks,
 };
 pub use crate::io::measurement_document::measurement_document;
 use crate::io::measurement_document::{pair_document, taper_description};
@@ -103,7 +103,7 @@ pub struct MeasureArgs {
 }
 
 /// Measures one map (or a pair with `--cross`) and writes the JSON document. One map in a
-/// full-sky RING file, with a full-sky RING mask of its NSIDE or without a mask, is read at
+/// full-sky file, with a full-sky mask of its NSIDE and ordering or without a mask, is read at
 /// the size of its footprint (`run_on_footprint`): the same document, byte for byte, in
 /// about f_sky of the memory; other inputs are read whole ([`run_reading_whole_map`]).
 pub fn run(args: &MeasureArgs) -> Result<()> {
@@ -122,7 +122,9 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
                 Some(path) => HealpixFitsReader::open(path)
                     .ok()
                     .filter(|r| {
-                        reads_by_blocks(r.header()) && r.header().nside == map_reader.header().nside
+                        reads_by_blocks(r.header())
+                            && r.header().nside == map_reader.header().nside
+                            && r.header().ordering == map_reader.header().ordering
                     })
                     .map(Some),
             };
@@ -206,13 +208,8 @@ fn run_on_footprint(
     check_measurable_blocks(&map, &footprint, &label)?;
     let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
     if map.outside() == OutsideBlocks::NotRead {
-        let ranges = crate::tiles::reach::read_ranges(measurer.plan())?;
-        read_map_blocks(
-            &mut map_reader,
-            &args.column,
-            &mut map,
-            blocks_of_ranges(&ranges),
-        )?;
+        let blocks = crate::tiles::reach::read_blocks(measurer.plan())?;
+        read_map_blocks(&mut map_reader, &args.column, &mut map, blocks)?;
     }
     let stats = measurer.measure_blocks(&map, &footprint)?;
     write_single(args, &measurer, &stats)

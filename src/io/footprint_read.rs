@@ -6,21 +6,22 @@
 //! the sky instead of all of it, and gives the same numbers bit for bit
 //! (`tests/sphere_partial_storage.rs`).
 //!
-//! Full-sky (`INDXSCHM = 'IMPLICIT'`) RING files only ([`reads_by_blocks`]); other files are
-//! read whole.
+//! Full-sky (`INDXSCHM = 'IMPLICIT'`) files only, RING or NESTED ([`reads_by_blocks`]);
+//! partial-sky files are read whole.
 
 use crate::error::{Error, Result};
 use crate::io::fits_io::{ColumnChoice, Coverage, HealpixFitsReader, HealpixHeader};
 use crate::sky::block_map::{BlockSkyMap, OutsideBlocks};
 use crate::sky::footprint::{Footprint, WEIGHT_BLOCK};
-use crate::sky::pixelization::{Ordering, Pixelization};
+use crate::sky::pixelization::Pixelization;
+pub use crate::tiles::reach::blocks_of_ranges;
 
 /// Pixels read from the file at a time: 2²⁰ (8 MiB of f64 values).
 pub const CHUNK_PIXELS: u64 = 1 << 20;
 
-/// Can the file of `header` be read by blocks (full sky, RING)?
+/// Can the file of `header` be read by blocks (full sky, either ordering)?
 pub fn reads_by_blocks(header: &HealpixHeader) -> bool {
-    header.coverage == Coverage::FullSky && header.ordering == Ordering::Ring
+    header.coverage == Coverage::FullSky
 }
 
 /// The pixelization of a file's header.
@@ -102,25 +103,6 @@ pub fn read_map_blocks(
     Ok(())
 }
 
-/// The blocks covering the pixel ranges `ranges` (sorted half-open ranges, as
-/// [`crate::tiles::reach::read_ranges`] gives), in increasing order, each once.
-pub fn blocks_of_ranges(ranges: &[(u64, u64)]) -> Vec<usize> {
-    let mut blocks: Vec<usize> = Vec::new();
-    for &(a, b) in ranges {
-        if b <= a {
-            continue;
-        }
-        let first = (a as usize) / WEIGHT_BLOCK;
-        let last = ((b - 1) as usize) / WEIGHT_BLOCK;
-        let from = match blocks.last() {
-            Some(&l) if l >= first => l + 1,
-            _ => first,
-        };
-        blocks.extend(from..=last);
-    }
-    blocks
-}
-
 /// One column of a full-sky file held on the blocks that hold a valid pixel (a pixel outside
 /// them is invalid), read by chunks.
 pub fn read_valid_blocks(
@@ -150,17 +132,4 @@ pub fn holds_a_valid_pixel(reader: &mut HealpixFitsReader, column: &ColumnChoice
         }
     }
     Ok(false)
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn blocks_of_ranges_cover_each_range_once() {
-        // ranges within one block, across blocks, sharing a block, and empty
-        let blocks = blocks_of_ranges(&[(0, 3), (60, 70), (100, 130), (130, 131), (400, 400)]);
-        assert_eq!(blocks, [0, 1, 2]);
-        assert_eq!(blocks_of_ranges(&[(64, 128), (640, 641)]), [1, 10]);
-    }
 }

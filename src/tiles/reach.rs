@@ -1,6 +1,7 @@
 //! Which map pixels the tiles of a plan can read: for a RING map, a list of ranges of pixel
-//! indices, so that a measurement reads only those from the file
-//! ([`crate::sky::block_map::BlockSkyMap`]).
+//! indices ([`read_ranges`]), and for either ordering the blocks of
+//! [`WEIGHT_BLOCK`] consecutive indices holding them ([`read_blocks`]), so that a measurement
+//! reads only those from the file ([`crate::sky::block_map::BlockSkyMap`]).
 //!
 //! A sampler reads the map over a square of half-side a ([`read_half_width`]) on the tangent
 //! plane of each tile. The square is cut into 4 × 4 sub-squares; the gnomonic projection maps
@@ -18,7 +19,8 @@
 //! cosines); the whole ring when the right side is ≤ −1, none when |θ_i − θ_c| > r.
 
 use crate::error::{Error, Result};
-use crate::sky::pixelization::{ring_info, ring_theta, Ordering};
+use crate::sky::footprint::WEIGHT_BLOCK;
+use crate::sky::pixelization::{ring_info, ring_theta, Ordering, Pixelization};
 use crate::tiles::projection::Gnomonic;
 use crate::tiles::sampling::read_half_width;
 use crate::tiles::tiling::TilingPlan;
@@ -39,12 +41,60 @@ const SPLIT: usize = 4;
 /// The RING pixel indices the tiles of `plan` can read, as sorted, disjoint, non-adjacent
 /// half-open ranges `start..end` (module documentation). Errors for a NESTED plan.
 pub fn read_ranges(plan: &TilingPlan) -> Result<Vec<(u64, u64)>> {
-    let pix = plan.map_pixelization();
-    if pix.ordering() != Ordering::Ring {
+    if plan.map_pixelization().ordering() != Ordering::Ring {
         return Err(Error::Setting(
             "the pixels read by the tiles are listed for RING maps only".into(),
         ));
     }
+    Ok(ring_ranges(plan))
+}
+
+/// The blocks of [`WEIGHT_BLOCK`] consecutive pixel indices, in the ordering of the plan's map,
+/// holding every pixel the tiles of `plan` can read, increasing, each once. For a RING map
+/// these are the blocks of [`read_ranges`]; for a NESTED map, the blocks of the NESTED indices
+/// of the same pixels (block b holds the 64 pixels of one cell of NSIDE/8, Górski et al. 2005
+/// §4), found by converting each RING index of the ranges.
+pub fn read_blocks(plan: &TilingPlan) -> Result<Vec<usize>> {
+    let pix = plan.map_pixelization();
+    let ranges = ring_ranges(plan);
+    match pix.ordering() {
+        Ordering::Ring => Ok(blocks_of_ranges(&ranges)),
+        Ordering::Nested => {
+            let ring = Pixelization::new(pix.nside(), Ordering::Ring)?;
+            let nblocks = (pix.npix() as usize).div_ceil(WEIGHT_BLOCK);
+            let mut read = vec![false; nblocks];
+            for &(a, b) in &ranges {
+                for p in a..b {
+                    read[ring.to_nested(p)? as usize / WEIGHT_BLOCK] = true;
+                }
+            }
+            Ok((0..nblocks).filter(|&b| read[b]).collect())
+        }
+    }
+}
+
+/// The blocks of [`WEIGHT_BLOCK`] pixels covering the pixel ranges `ranges` (sorted half-open
+/// ranges, as [`read_ranges`] gives), in increasing order, each once.
+pub fn blocks_of_ranges(ranges: &[(u64, u64)]) -> Vec<usize> {
+    let mut blocks: Vec<usize> = Vec::new();
+    for &(a, b) in ranges {
+        if b <= a {
+            continue;
+        }
+        let first = (a as usize) / WEIGHT_BLOCK;
+        let last = ((b - 1) as usize) / WEIGHT_BLOCK;
+        let from = match blocks.last() {
+            Some(&l) if l >= first => l + 1,
+            _ => first,
+        };
+        blocks.extend(from..=last);
+    }
+    blocks
+}
+
+/// [`read_ranges`] in RING indices whatever the ordering of the plan's map.
+fn ring_ranges(plan: &TilingPlan) -> Vec<(u64, u64)> {
+    let pix = plan.map_pixelization();
     let nside = pix.nside() as u64;
     let half = read_half_width(plan);
     let pad = RADIUS_PAD * pix.mean_spacing();
@@ -86,7 +136,7 @@ pub fn read_ranges(plan: &TilingPlan) -> Result<Vec<(u64, u64)>> {
             _ => merged.push((a, b)),
         }
     }
-    Ok(merged)
+    merged
 }
 
 /// Appends to `ranges` the RING pixel ranges of the rings `rings` (θ, first pixel, count,
@@ -143,6 +193,14 @@ mod tests {
     use crate::sky::skymap::SkyMap;
     use crate::tiles::sampling::{SamplingMethod, TileSampler};
     use crate::tiles::tiling::TilingSettings;
+
+    #[test]
+    fn blocks_of_ranges_cover_each_range_once() {
+        // ranges within one block, across blocks, sharing a block, and empty
+        let blocks = blocks_of_ranges(&[(0, 3), (60, 70), (100, 130), (130, 131), (400, 400)]);
+        assert_eq!(blocks, [0, 1, 2]);
+        assert_eq!(blocks_of_ranges(&[(64, 128), (640, 641)]), [1, 10]);
+    }
 
     #[test]
     fn every_pixel_a_sampling_operator_reads_lies_in_the_ranges() {
