@@ -169,7 +169,9 @@ fn locate(
     Ok((fields, weight_column.map(|(_, n)| n.trim().to_string())))
 }
 
-/// Reads one field as f64; an empty or non-numeric field is NaN (screened out later).
+/// Reads one field as f64, blanks around it ignored; an empty or non-numeric field is NaN
+/// (screened out later). The blanks are trimmed here rather than by the CSV reader, which would
+/// copy every record to trim fields that are never read.
 #[inline]
 fn parse_field(bytes: &[u8]) -> f64 {
     std::str::from_utf8(bytes)
@@ -208,7 +210,6 @@ impl CatalogueSource {
         let mut reader = csv::ReaderBuilder::new()
             .has_headers(true)
             .comment(Some(b'#'))
-            .trim(csv::Trim::All)
             .from_reader(std::io::BufReader::with_capacity(1 << 20, file));
         let header = reader.byte_headers().map_err(|e| csv_error(path, e))?;
         let names: Vec<String> = header
