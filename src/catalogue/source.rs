@@ -343,3 +343,41 @@ fn csv_error(path: &Path, e: csv::Error) -> Error {
     let text = e.to_string().replace('\n', " ");
     Error::Data(format!("{}: {text}", path.display()))
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn blanks_around_column_names_and_fields_are_ignored() {
+        let dir = tempfile::tempdir().unwrap();
+        let (plain, padded) = (dir.path().join("plain.csv"), dir.path().join("padded.csv"));
+        std::fs::write(
+            &plain,
+            "RA,DEC,E1,E2,WEIGHT\n10.5,-30,0.1,-0.2,2\n# note\n11,,0.3,0.4,1\n",
+        )
+        .unwrap();
+        std::fs::write(
+            &padded,
+            " RA ,\tDec, E1 ,E2 , weight\n 10.5 ,\t-30 , 0.1,-0.2 ,2 \n# note\n11, ,0.3 , 0.4,1\n",
+        )
+        .unwrap();
+        let read = |path: &Path, weight_name: &str| {
+            let mut source = CatalogueSource::open(path, &CatalogueColumns::default()).unwrap();
+            assert_eq!(source.weight_column(), Some(weight_name));
+            let mut block = GalaxyBlock::default();
+            assert!(source.read_block(&mut block, 100).unwrap());
+            block
+        };
+        let (a, b) = (read(&plain, "WEIGHT"), read(&padded, "weight"));
+        assert_eq!(a.len(), 2);
+        assert_eq!(a.ra, b.ra);
+        assert_eq!(a.e1, b.e1);
+        assert_eq!(a.weight, b.weight);
+        assert_eq!(b.dec[0], -30.0);
+        assert!(
+            a.dec[1].is_nan() && b.dec[1].is_nan(),
+            "an empty field reads as NaN"
+        );
+    }
+}
