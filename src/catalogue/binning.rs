@@ -211,9 +211,9 @@ impl CatalogueBinner {
     /// order (the noise realisations too, with the angles of the block's catalogue rows).
     ///
     /// Three passes, so the random-access one stays short: the rows are screened and their
-    /// pixels found in tasks of [`PIXEL_TASK_ROWS`] rows (each with its own report, merged in
-    /// task order); the noise rotations are computed the same way; then
-    /// [`add_in_row_order`] adds each row to its pixel's sums.
+    /// pixels found in tasks of 8192 rows (each with its own report, merged in task order);
+    /// the noise rotations are computed the same way; then a loop that does nothing else adds
+    /// each row to its pixel's sums.
     pub fn add_block(&mut self, block: &GalaxyBlock) {
         let n = block.len();
         let pix = self.pix;
