@@ -125,14 +125,31 @@ fn csv_and_fits_catalogues_bin_to_the_numpy_maps() {
 }
 
 #[test]
-fn block_size_does_not_change_a_single_bit() {
-    let (whole, _) = bin("galaxies.fits", 1 << 20, 1);
-    for (file, rows) in [
-        ("galaxies.fits", 7),
-        ("galaxies.csv", 1),
-        ("galaxies.csv", 333),
+fn block_size_and_thread_count_do_not_change_a_single_bit() {
+    let in_pool = |threads: usize, file: &str, rows: usize| {
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap();
+        pool.install(|| bin(file, rows, 1).0)
+    };
+    let whole = in_pool(1, "galaxies.fits", 1 << 20);
+    for (file, rows, threads) in [
+        ("galaxies.fits", 7, 1),
+        ("galaxies.csv", 1, 2),
+        ("galaxies.csv", 333, 3),
+        ("galaxies.fits", 1 << 20, 2),
+        ("galaxies.csv", 1 << 20, 3),
     ] {
-        let (cut, _) = bin(file, rows, 1);
+        let cut = in_pool(threads, file, rows);
+        assert_eq!(
+            cut.galaxies.values_with_sentinel(),
+            whole.galaxies.values_with_sentinel()
+        );
+        assert_eq!(
+            cut.report, whole.report,
+            "{file} in blocks of {rows}, {threads} threads"
+        );
         for (a, b) in [
             (&whole.weight, &cut.weight),
             (&whole.gamma1, &cut.gamma1),
@@ -145,7 +162,11 @@ fn block_size_does_not_change_a_single_bit() {
                     .map(|v| v.to_bits())
                     .collect()
             };
-            assert_eq!(bits(a), bits(b), "{file} in blocks of {rows}");
+            assert_eq!(
+                bits(a),
+                bits(b),
+                "{file} in blocks of {rows}, {threads} threads"
+            );
         }
     }
 }

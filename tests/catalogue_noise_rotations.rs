@@ -175,7 +175,7 @@ fn a_realisation_is_the_same_for_any_block_size_and_thread_count() {
             .collect()
     };
     let reference = bits(&bin_blocks(&galaxies, 1 << 20, vec![5, 17]));
-    for (rows, threads) in [(1, 1), (7, 2), (1000, 2), (1 << 20, 1)] {
+    for (rows, threads) in [(1, 1), (7, 2), (1000, 2), (1 << 20, 1), (1 << 20, 3)] {
         let pool = rayon::ThreadPoolBuilder::new()
             .num_threads(threads)
             .build()

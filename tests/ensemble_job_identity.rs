@@ -389,3 +389,81 @@ fn forecast_refuses_ensembles_measured_with_other_settings() {
     let (_, _, err) = run(&args);
     assert!(!err.contains("measured differently"), "{err}");
 }
+
+/// A catalogue CSV of two galaxies at the centre of every NSIDE 16 pixel (so every pixel is
+/// seen), with ellipticities turned by `twist` (invented data).
+fn write_catalogue(path: &Path, twist: f64) {
+    let pix = Pixelization::new(16, Ordering::Ring).unwrap();
+    let mut text = String::from("RA,DEC,E1,E2\n");
+    for p in 0..pix.npix() {
+        let d = pix.center(p);
+        let (ra, dec) = (d.lon().to_degrees(), d.lat().to_degrees());
+        for k in 0..2 {
+            let a = 0.1 * p as f64 + twist + k as f64;
+            text.push_str(&format!("{ra},{dec},{},{}\n", 0.3 * a.cos(), 0.3 * a.sin()));
+        }
+    }
+    std::fs::write(path, text).unwrap();
+}
+
+#[test]
+fn a_catalogue_replaced_under_the_same_name_is_another_job() {
+    let tmp = tempfile::tempdir().unwrap();
+    let catalogue = tmp.path().join("galaxies.csv");
+    let recipe = tmp.path().join("noise.toml");
+    std::fs::write(
+        &recipe,
+        "nside = 16\ncount = 2\nseed = 4\n[catalogue_noise]\ncatalogue = \"galaxies.csv\"\nmap = \"gamma1\"\n",
+    )
+    .unwrap();
+    let r = recipe.display().to_string();
+    let (a, b) = (tmp.path().join("a"), tmp.path().join("b"));
+    let identity = |dir: &Path| -> (String, String) {
+        let v: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(dir.join("ensemble.json")).unwrap())
+                .unwrap();
+        (
+            v["identity"].as_str().unwrap().to_string(),
+            v["settings"]["catalogue_sha256"]
+                .as_str()
+                .unwrap()
+                .to_string(),
+        )
+    };
+    // the recorded checksum is the file's SHA-256 as GNU coreutils sha256sum computes it
+    let sha256sum = |path: &Path| -> String {
+        let out = Command::new("sha256sum").arg(path).output().unwrap();
+        String::from_utf8(out.stdout).unwrap()[..64].to_string()
+    };
+
+    write_catalogue(&catalogue, 0.0);
+    let first = sha256sum(&catalogue);
+    run_ok(&ensemble(&a, &["--simulate", &r], &["--shard", "0/2"]));
+    // the same name, other galaxies
+    write_catalogue(&catalogue, 0.5);
+    let second = sha256sum(&catalogue);
+    assert_ne!(first, second);
+    run_ok(&ensemble(&b, &["--simulate", &r], &[]));
+    let (id_a, sum_a) = identity(&a);
+    let (id_b, sum_b) = identity(&b);
+    assert_eq!(
+        (sum_a.as_str(), sum_b.as_str()),
+        (first.as_str(), second.as_str())
+    );
+    assert_ne!(id_a, id_b, "two catalogues gave one job identity");
+
+    // the second shard, run after the catalogue changed, is refused
+    assert_refused(
+        &ensemble(&a, &["--simulate", &r], &["--shard", "1/2"]),
+        &format!("catalogue_sha256 '{}", &first[..8]),
+        &a,
+    );
+    // a row of the other catalogue's job copied in: merge refuses it
+    std::fs::copy(row_file(&b, 1), row_file(&a, 1)).unwrap();
+    let e = assert_refused(
+        &s(&["merge", &a.display().to_string()]),
+        "row 1 belongs to another job (catalogue_sha256",
+        &a,
+    );
+    assert!(e.contains(&second[..8]) && e.contains(&first[..8]), "{e}");
+}

@@ -18,12 +18,13 @@
 //! Outside the footprint γ, σ² and δ are invalid (UNSEEN in a file, HEALPix FITS convention);
 //! N, W and the footprint are 0 there, as counts and masks are stored.
 //!
-//! Sums run over the galaxies in catalogue order, one block after another, and the pixel
-//! indices of a block are found in parallel but added in row order: the maps are bitwise the
-//! same for any block size and thread count.
+//! Sums run over the galaxies in catalogue order, one block after another: the rows of a block
+//! are screened and their pixels found in parallel, then each pixel's sums take its rows in row
+//! order (with several threads, each thread adds the rows of its own range of pixels), so the
+//! maps are bitwise the same for any block size and thread count.
 
 use super::rotation::{rotate_ellipticity, RotationAngles};
-use super::screening::{check_row, GalaxyBlock, RowProblem, ScreeningReport};
+use super::screening::{check_row, GalaxyBlock, ScreeningReport};
 use super::source::CatalogueSource;
 use crate::error::{Error, Result};
 use crate::io::fits_io::MAX_READ_NSIDE;
@@ -35,6 +36,9 @@ use rayon::prelude::*;
 /// Rows whose pixels one parallel task finds (fixed, so the work split never depends on the
 /// thread count; the results are the same either way).
 const PIXEL_TASK_ROWS: usize = 8192;
+
+/// Blocks of fewer rows are added to the sums by one thread (see [`add_in_row_order`]).
+const PARALLEL_MIN_ROWS: usize = 256;
 
 /// Shape-noise realisations to bin beside the data (see [`super::rotation`]).
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -134,6 +138,8 @@ pub struct CatalogueBinner {
     report: ScreeningReport,
     /// Per row of the current block: its pixel, or `u64::MAX − problem` for a row left out.
     codes: Vec<u64>,
+    /// Per row of the current block: w·e of the rotated ellipticity of one noise realisation.
+    rotated: Vec<[f64; 2]>,
 }
 
 fn allocate<T: Clone>(what: &str, len: usize, fill: T) -> Result<Vec<T>> {
@@ -187,6 +193,7 @@ impl CatalogueBinner {
             noise: noise_sums,
             report: ScreeningReport::default(),
             codes: Vec::new(),
+            rotated: Vec::new(),
         })
     }
 
@@ -202,63 +209,58 @@ impl CatalogueBinner {
 
     /// Screens a block, finds the pixels of its usable rows, and adds them to the sums in row
     /// order (the noise realisations too, with the angles of the block's catalogue rows).
+    ///
+    /// Three passes, so the random-access one stays short: the rows are screened and their
+    /// pixels found in tasks of 8192 rows (each with its own report, merged in task order);
+    /// the noise rotations are computed the same way; then a loop that does nothing else adds
+    /// each row to its pixel's sums.
     pub fn add_block(&mut self, block: &GalaxyBlock) {
         let n = block.len();
         let pix = self.pix;
         self.codes.clear();
         self.codes.resize(n, 0);
-        self.codes
+        let reports: Vec<ScreeningReport> = self
+            .codes
             .par_chunks_mut(PIXEL_TASK_ROWS)
             .enumerate()
-            .for_each(|(t, codes)| {
-                let start = t * PIXEL_TASK_ROWS;
-                for (k, code) in codes.iter_mut().enumerate() {
-                    let i = start + k;
-                    let (ra, dec) = (block.ra[i], block.dec[i]);
-                    *code = match check_row(ra, dec, block.e1[i], block.e2[i], block.weight[i]) {
-                        Some(problem) => u64::MAX - problem as u64,
-                        None => pix.pixel_of(Direction::from_lonlat_deg(ra, dec)),
-                    };
-                }
-            });
-        let npix = pix.npix();
-        for (i, &code) in self.codes.iter().enumerate() {
-            if code >= npix {
-                let problem = RowProblem::ALL[(u64::MAX - code) as usize];
-                self.report.record(Some(problem));
-                continue;
-            }
-            let (ra, dec) = (block.ra[i], block.dec[i]);
-            self.report.record(None);
-            let ra = if (0.0..360.0).contains(&ra) {
-                ra
-            } else {
-                self.report.ra_wrapped += 1;
-                ra.rem_euclid(360.0)
-            };
-            self.report.extend_ranges(ra, dec);
-            let (w, e1, e2) = (block.weight[i], block.e1[i], block.e2[i]);
-            let s = &mut self.sums[code as usize];
+            .map(|(t, codes)| screen_rows(pix, block, t * PIXEL_TASK_ROWS, codes))
+            .collect();
+        for r in &reports {
+            self.report.merge(r);
+        }
+        let (w, e1, e2) = (&block.weight[..n], &block.e1[..n], &block.e2[..n]);
+        add_in_row_order(&mut self.sums, &self.codes, |s, i| {
+            let (w, e1, e2) = (w[i], e1[i], e2[i]);
             s.galaxies += 1;
             s.weight += w;
             s.weight_e1 += w * e1;
             s.weight_e2 += w * e2;
             s.weight_sq_e_sq += w * w * (e1 * e1 + e2 * e2);
-        }
+        });
+        let seed = self.noise_seed;
         for noise in &mut self.noise {
-            let mut angles = RotationAngles::new(self.noise_seed, noise.index, block.first_row);
-            for (i, &code) in self.codes.iter().enumerate() {
-                // every row draws its angle, so row r always has word r of the stream
-                let alpha = angles.next_angle();
-                if code >= npix {
-                    continue;
-                }
-                let w = block.weight[i];
-                let (r1, r2) = rotate_ellipticity(block.e1[i], block.e2[i], alpha);
-                let s = &mut noise.sums[code as usize];
-                s[0] += w * r1;
-                s[1] += w * r2;
-            }
+            // w·e' of every row (left-out rows too: row r always has word r of the stream)
+            self.rotated.clear();
+            self.rotated.resize(n, [0.0; 2]);
+            self.rotated
+                .par_chunks_mut(PIXEL_TASK_ROWS)
+                .enumerate()
+                .for_each(|(t, out)| {
+                    let start = t * PIXEL_TASK_ROWS;
+                    let mut angles =
+                        RotationAngles::new(seed, noise.index, block.first_row + start as u64);
+                    for (k, o) in out.iter_mut().enumerate() {
+                        let i = start + k;
+                        let alpha = angles.next_angle();
+                        let (r1, r2) = rotate_ellipticity(e1[i], e2[i], alpha);
+                        *o = [w[i] * r1, w[i] * r2];
+                    }
+                });
+            let rotated = &self.rotated;
+            add_in_row_order(&mut noise.sums, &self.codes, |s, i| {
+                s[0] += rotated[i][0];
+                s[1] += rotated[i][1];
+            });
         }
     }
 
@@ -338,6 +340,122 @@ impl CatalogueBinner {
             noise,
         })
     }
+}
+
+/// Screens rows `start..start + codes.len()` of `block`: each code is the row's RING pixel, or
+/// `u64::MAX − problem` for a row left out; returns the rows' report.
+fn screen_rows(
+    pix: Pixelization,
+    block: &GalaxyBlock,
+    start: usize,
+    codes: &mut [u64],
+) -> ScreeningReport {
+    let mut report = ScreeningReport::default();
+    // the used rows' ranges, kept in registers (as `ScreeningReport::extend_ranges` would)
+    let (mut ra_lo, mut ra_hi) = (f64::INFINITY, f64::NEG_INFINITY);
+    let (mut dec_lo, mut dec_hi) = (f64::INFINITY, f64::NEG_INFINITY);
+    for (k, code) in codes.iter_mut().enumerate() {
+        let i = start + k;
+        let (ra, dec) = (block.ra[i], block.dec[i]);
+        match check_row(ra, dec, block.e1[i], block.e2[i], block.weight[i]) {
+            Some(problem) => {
+                report.record(Some(problem));
+                *code = u64::MAX - problem as u64;
+            }
+            None => {
+                let wrapped = if (0.0..360.0).contains(&ra) {
+                    ra
+                } else {
+                    report.ra_wrapped += 1;
+                    ra.rem_euclid(360.0)
+                };
+                ra_lo = ra_lo.min(wrapped);
+                ra_hi = ra_hi.max(wrapped);
+                dec_lo = dec_lo.min(dec);
+                dec_hi = dec_hi.max(dec);
+                *code = pix.pixel_of(Direction::from_lonlat_deg(ra, dec));
+            }
+        }
+    }
+    let used = codes.len() as u64 - report.left_out.iter().sum::<u64>();
+    report.rows += used;
+    report.used += used;
+    if used > 0 {
+        report.ra_range = Some((ra_lo, ra_hi));
+        report.dec_range = Some((dec_lo, dec_hi));
+    }
+    report
+}
+
+/// Calls `add(&mut sums[p], i)` for every row i whose code p is a pixel (`p < sums.len()`), in
+/// row order for each pixel, so every pixel's sum is the same for any thread count.
+///
+/// With several threads each thread owns a contiguous range of the pixels the block touches
+/// and scans all the rows for its own; one thread makes one pass. Either way the only random
+/// access is to the sums, in a loop that does nothing else.
+fn add_in_row_order<T: Send>(sums: &mut [T], codes: &[u64], add: impl Fn(&mut T, usize) + Sync) {
+    let npix = sums.len() as u64;
+    let threads = rayon::current_num_threads();
+    if threads <= 1 || codes.len() < PARALLEL_MIN_ROWS {
+        add_to_range(sums, 0, codes, &add);
+        return;
+    }
+    let (lo, hi) = codes
+        .iter()
+        .filter(|&&c| c < npix)
+        .fold((u64::MAX, 0), |(lo, hi), &c| (lo.min(c), hi.max(c)));
+    if lo > hi {
+        return;
+    }
+    let width = ((hi - lo + 1) as usize).div_ceil(threads);
+    sums[lo as usize..=hi as usize]
+        .par_chunks_mut(width)
+        .enumerate()
+        .for_each(|(k, part)| add_to_range(part, lo + (k * width) as u64, codes, &add));
+}
+
+/// How many rows ahead [`add_to_range`] asks the processor for a pixel's sums: enough rows
+/// to cover a main-memory access, so that the sums of a random-order catalogue arrive while the
+/// rows before them are added.
+const PREFETCH_ROWS: usize = 16;
+
+/// [`add_in_row_order`] for the pixels `first..first + part.len()`, held by `part`.
+#[inline]
+fn add_to_range<T>(part: &mut [T], first: u64, codes: &[u64], add: &impl Fn(&mut T, usize)) {
+    let len = part.len() as u64;
+    for (i, &code) in codes.iter().enumerate() {
+        if let Some(&ahead) = codes.get(i + PREFETCH_ROWS) {
+            let k = ahead.wrapping_sub(first);
+            if k < len {
+                prefetch(&part[k as usize]);
+            }
+        }
+        // codes of left-out rows are ≥ the pixel count, so they wrap to ≥ len
+        let k = code.wrapping_sub(first);
+        if k < len {
+            add(&mut part[k as usize], i);
+        }
+    }
+}
+
+/// Asks the processor to bring the cache lines of `value` closer (a hint: no effect on any
+/// result; nothing on processors other than x86-64).
+#[inline(always)]
+fn prefetch<T>(value: &T) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        use std::arch::x86_64::{_mm_prefetch, _MM_HINT_T0};
+        let first = (value as *const T).cast::<i8>();
+        let last = first.wrapping_add(std::mem::size_of::<T>().saturating_sub(1));
+        // SAFETY: a prefetch never faults and never changes memory, whatever the address; SSE,
+        // which it needs, is part of every x86-64 processor.
+        unsafe {
+            _mm_prefetch::<_MM_HINT_T0>(first);
+            _mm_prefetch::<_MM_HINT_T0>(last);
+        }
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    let _ = value;
 }
 
 /// Reads a whole catalogue block by block and bins it by `plan`.

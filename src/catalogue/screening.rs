@@ -210,6 +210,22 @@ impl ScreeningReport {
         ))
     }
 
+    /// Adds the counts of `other` (rows that follow) and widens the ranges by its ranges: the
+    /// same report as recording both sets of rows one by one.
+    pub fn merge(&mut self, other: &ScreeningReport) {
+        self.rows += other.rows;
+        self.used += other.used;
+        for (a, b) in self.left_out.iter_mut().zip(&other.left_out) {
+            *a += b;
+        }
+        self.ra_wrapped += other.ra_wrapped;
+        // the two ranges are set together, by the same used rows
+        if let (Some((ra_lo, ra_hi)), Some((dec_lo, dec_hi))) = (other.ra_range, other.dec_range) {
+            self.extend_ranges(ra_lo, dec_lo);
+            self.extend_ranges(ra_hi, dec_hi);
+        }
+    }
+
     /// Widens the RA/Dec ranges with a used row.
     #[inline]
     pub(crate) fn extend_ranges(&mut self, ra: f64, dec: f64) {
@@ -265,5 +281,32 @@ mod tests {
         assert!(report.radians_warning().is_some());
         report.extend_ranges(40.0, 0.0);
         assert!(report.radians_warning().is_none());
+    }
+
+    #[test]
+    fn merging_reports_of_consecutive_rows_equals_recording_them_one_by_one() {
+        let rows: Vec<(Option<RowProblem>, f64, f64)> = (0..40)
+            .map(|k| {
+                let problem = (k % 7 == 3).then_some(RowProblem::ALL[k % 5]);
+                (problem, (k * 37 % 360) as f64, -60.0 + (k * 13 % 50) as f64)
+            })
+            .collect();
+        let record = |report: &mut ScreeningReport, rows: &[(Option<RowProblem>, f64, f64)]| {
+            for &(problem, ra, dec) in rows {
+                report.record(problem);
+                if problem.is_none() {
+                    report.extend_ranges(ra, dec);
+                }
+            }
+        };
+        let mut whole = ScreeningReport::default();
+        record(&mut whole, &rows);
+        for cut in [0, 1, 17, 40] {
+            let (mut first, mut second) = (ScreeningReport::default(), ScreeningReport::default());
+            record(&mut first, &rows[..cut]);
+            record(&mut second, &rows[cut..]);
+            first.merge(&second);
+            assert_eq!(first, whole, "cut at {cut}");
+        }
     }
 }

@@ -169,7 +169,9 @@ fn locate(
     Ok((fields, weight_column.map(|(_, n)| n.trim().to_string())))
 }
 
-/// Reads one field as f64; an empty or non-numeric field is NaN (screened out later).
+/// Reads one field as f64, blanks around it ignored; an empty or non-numeric field is NaN
+/// (screened out later). The blanks are trimmed here rather than by the CSV reader, which would
+/// copy every record to trim fields that are never read.
 #[inline]
 fn parse_field(bytes: &[u8]) -> f64 {
     std::str::from_utf8(bytes)
@@ -208,7 +210,6 @@ impl CatalogueSource {
         let mut reader = csv::ReaderBuilder::new()
             .has_headers(true)
             .comment(Some(b'#'))
-            .trim(csv::Trim::All)
             .from_reader(std::io::BufReader::with_capacity(1 << 20, file));
         let header = reader.byte_headers().map_err(|e| csv_error(path, e))?;
         let names: Vec<String> = header
@@ -341,4 +342,42 @@ impl CatalogueSource {
 fn csv_error(path: &Path, e: csv::Error) -> Error {
     let text = e.to_string().replace('\n', " ");
     Error::Data(format!("{}: {text}", path.display()))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn blanks_around_column_names_and_fields_are_ignored() {
+        let dir = tempfile::tempdir().unwrap();
+        let (plain, padded) = (dir.path().join("plain.csv"), dir.path().join("padded.csv"));
+        std::fs::write(
+            &plain,
+            "RA,DEC,E1,E2,WEIGHT\n10.5,-30,0.1,-0.2,2\n# note\n11,,0.3,0.4,1\n",
+        )
+        .unwrap();
+        std::fs::write(
+            &padded,
+            " RA ,\tDec, E1 ,E2 , weight\n 10.5 ,\t-30 , 0.1,-0.2 ,2 \n# note\n11, ,0.3 , 0.4,1\n",
+        )
+        .unwrap();
+        let read = |path: &Path, weight_name: &str| {
+            let mut source = CatalogueSource::open(path, &CatalogueColumns::default()).unwrap();
+            assert_eq!(source.weight_column(), Some(weight_name));
+            let mut block = GalaxyBlock::default();
+            assert!(source.read_block(&mut block, 100).unwrap());
+            block
+        };
+        let (a, b) = (read(&plain, "WEIGHT"), read(&padded, "weight"));
+        assert_eq!(a.len(), 2);
+        assert_eq!(a.ra, b.ra);
+        assert_eq!(a.e1, b.e1);
+        assert_eq!(a.weight, b.weight);
+        assert_eq!(b.dec[0], -30.0);
+        assert!(
+            a.dec[1].is_nan() && b.dec[1].is_nan(),
+            "an empty field reads as NaN"
+        );
+    }
 }

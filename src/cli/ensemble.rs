@@ -630,7 +630,7 @@ fn settings_record(
         Some(p) => Some(file_checksum(p)?),
         None => None,
     };
-    Ok(serde_json::json!({
+    let mut record = serde_json::json!({
         "measurement": settings,
         "sampling": format!("{:?}", settings.sampling),
         "cells": em.measurer.plan().cell_layout().describe(),
@@ -645,7 +645,19 @@ fn settings_record(
         "cl_bin_width": args.cl_bin_width,
         "recipe": recipe_file,
         "label_scales_arcmin": labels.iter().map(|l| l.scale_arcmin).collect::<Vec<_>>(),
-    }))
+    });
+    // the catalogue's contents, not only its name, make the job: a catalogue replaced under
+    // the same name is another job (the key is absent for other ensembles, so that their job
+    // identities stay as they were)
+    if let Some(c) = recipe_file.and_then(|f| f.catalogue_noise.as_ref()) {
+        if let Some(o) = record.as_object_mut() {
+            o.insert(
+                "catalogue_sha256".into(),
+                serde_json::Value::String(file_checksum(&c.catalogue)?),
+            );
+        }
+    }
+    Ok(record)
 }
 
 /// Marks the job settings of a pair ensemble (absent for single maps, so that their job
