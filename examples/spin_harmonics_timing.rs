@@ -6,7 +6,7 @@
 //! compare like with like:
 //!
 //!     cargo build --release --example spin_harmonics_timing
-//!     RAYON_NUM_THREADS=1 target/release/examples/spin_harmonics_timing 256 1024
+//!     RAYON_NUM_THREADS=1 target/release/examples/spin_harmonics_timing 512 1024
 //!
 //! CPU time is from getrusage (the process's user + system time; with one thread it is the
 //! transform's own time even on a loaded machine).
