@@ -181,7 +181,8 @@ impl MassMapper {
         Ok((e, b))
     }
 
-    /// κ_E and κ_B maps of shear maps (see [`MassMapper::convergence_coefficients`]).
+    /// κ_E and κ_B maps of shear maps (see [`MassMapper::convergence_coefficients`]), both
+    /// made in one synthesis pass ([`SpinTransform::scalar_pair_synthesis`]).
     pub fn convergence_from_shear(
         &self,
         gamma1: &[f64],
@@ -189,10 +190,8 @@ impl MassMapper {
         settings: &MassMappingSettings,
     ) -> Result<ConvergenceMaps> {
         let (e, b) = self.convergence_coefficients(gamma1, gamma2, settings)?;
-        Ok(ConvergenceMaps {
-            e: self.spin.scalar().synthesis(&e)?,
-            b: self.spin.scalar().synthesis(&b)?,
-        })
+        let (e, b) = self.spin.scalar_pair_synthesis(&e, &b)?;
+        Ok(ConvergenceMaps { e, b })
     }
 
     /// Shear maps γ1, γ2 on `axes` of a convergence with coefficients `kappa` (its E part;

@@ -67,12 +67,61 @@ const SYNTHESIS_LANES: usize = 4;
 const PORTABLE_SYNTHESIS_LANES: usize = 2;
 /// Ring pairs per block in the analysis kernel (partial sums live in a buffer).
 const ANALYSIS_LANES: usize = 8;
+/// Ring pairs per block in the two-field scalar synthesis kernel with AVX-512 (eight lane sums,
+/// two recurrence values and the ring's z per lane fit the 32 registers at two registers per
+/// value), with AVX2 (one register per value in 16) and in portable code.
+const PAIR_LANES_AVX512: usize = 16;
+const PAIR_LANES_AVX2: usize = 4;
+const PAIR_LANES_PORTABLE: usize = 2;
+/// Steps of the recurrence per tile in the analysis kernel: the partial sums of one tile
+/// (TILE_STEPS rows of 4 × ANALYSIS_LANES values, 16 KB) stay in the first-level cache while
+/// every block of ring pairs runs through it. A multiple of the steps between rescaling checks.
+const TILE_STEPS: usize = 64;
 /// Two-step passes between rescaling checks (growth over 8 steps stays far below 2^300).
 const PASSES_PER_CHECK: usize = 4;
+const _: () = assert!(TILE_STEPS.is_multiple_of(2 * PASSES_PER_CHECK));
 /// Target size of one band of ring sums in the banded stages (as in the scalar transform).
 const BAND_BYTES: usize = 4 << 20;
+/// Orders whose ring sums one task of the analysis gathers together from the ring-major band.
+const ORDERS_PER_GATHER: usize = 8;
 /// Most bands in analysis, which repeats the real FFTs of every ring per band.
 const ANALYSIS_MAX_BANDS: usize = 3;
+
+/// Runs the generic Legendre kernel `$kernel_fn` in the variant `$variant`
+/// ([`LegendreKernel`]): with AVX-512F + FMA or AVX2 + FMA inside a function compiled with those
+/// target features (the kernel is inlined into it and uses them), else as portable code; the
+/// lanes give the ring pairs per block of each variant.
+macro_rules! run_kernel {
+    (
+        $variant:expr,
+        $kernel_fn:ident,
+        lanes($avx512:expr, $avx2:expr, $portable:expr),
+        ($($arg:ident: $ty:ty),* $(,)?)
+    ) => {{
+        /// # Safety
+        /// The CPU must support AVX-512F and FMA.
+        #[cfg(target_arch = "x86_64")]
+        #[target_feature(enable = "avx512f,avx2,fma")]
+        unsafe fn avx512($($arg: $ty),*) {
+            $kernel_fn::<FusedMulAdd, { $avx512 }>($($arg),*)
+        }
+        /// # Safety
+        /// The CPU must support AVX2 and FMA.
+        #[cfg(target_arch = "x86_64")]
+        #[target_feature(enable = "avx2,fma")]
+        unsafe fn avx2($($arg: $ty),*) {
+            $kernel_fn::<FusedMulAdd, { $avx2 }>($($arg),*)
+        }
+        match $variant {
+            // SAFETY (both arms): the variant was chosen from the CPU's reported features.
+            #[cfg(target_arch = "x86_64")]
+            LegendreKernel::Avx512Fma => unsafe { avx512($($arg),*) },
+            #[cfg(target_arch = "x86_64")]
+            LegendreKernel::Avx2Fma => unsafe { avx2($($arg),*) },
+            _ => $kernel_fn::<PlainMulAdd, { $portable }>($($arg),*),
+        }
+    }};
+}
 
 /// Spin-s synthesis and analysis for one (Nside, lmax, s); owns the ring geometry and the FFT
 /// plans, is built once and shared (it is `Sync`).
@@ -148,7 +197,12 @@ impl SpinOrder {
             let l1 = l + 1.0;
             let big_a = ((2.0 * l + 3.0) / (2.0 * l + 1.0)).sqrt() * l1 * (2.0 * l + 1.0)
                 / (((l1 - mf) * (l1 + mf)) * ((l1 - sf) * (l1 + sf))).sqrt();
-            let big_b = big_a * mf * sf / (l * l1);
+            // B_ℓ = 0 for spin 0 (also at ℓ = 0, where m s/(ℓ(ℓ+1)) is 0/0).
+            let big_b = if spin == 0 {
+                0.0
+            } else {
+                big_a * mf * sf / (l * l1)
+            };
             let big_c = big_a
                 * ((2.0 * l + 1.0) / (2.0 * l - 1.0)).sqrt()
                 * (((l - mf) * (l + mf)) * ((l - sf) * (l + sf))).sqrt()
@@ -404,6 +458,121 @@ fn synthesis_order<A: MulAdd, const L: usize>(
     }
 }
 
+/// Legendre stage of the synthesis of two scalar fields for one order m, one recurrence for
+/// both: F_m = Σ_ℓ f_ℓm λ_ℓm and G_m = Σ_ℓ g_ℓm λ_ℓm, for every ring pair p north at out[2p]
+/// (F) and out[stride + 2p] (G), south at out[2p + 1] and out[stride + 2p + 1], stride = 2 ×
+/// pairs. `order` is the spin-0 order (ₛλ = ₋ₛλ = λ_ℓm, the normalised associated Legendre
+/// functions; b_k = 0); `f`, `g` are the order's coefficients from ℓ = m. With ℓ0 = m the
+/// south ring takes (−1)^k λ (the north/south symmetry above at s = 0), so the sums run
+/// separately over even and odd k.
+// Kept whole, as the scalar kernel (see synthesis_order).
+#[inline(always)]
+fn scalar_pair_order<A: MulAdd, const L: usize>(
+    order: &SpinOrder,
+    rings: &HalfAngleRings,
+    f: &[Complex64],
+    g: &[Complex64],
+    out: &mut [Complex64],
+) {
+    out.fill(Complex64::new(0.0, 0.0));
+    let stride = out.len() / 2;
+    let n = order.steps();
+    let coef = &order.a;
+    // Coefficients times c_ℓ (the recurrence runs on λ/c).
+    let f: Vec<Complex64> = f.iter().zip(&order.c).map(|(a, c)| a * c).collect();
+    let g: Vec<Complex64> = g.iter().zip(&order.c).map(|(a, c)| a * c).collect();
+    let mut blk = 0;
+    while let Some((pairs, valid)) = block_pairs::<L>(blk, rings.len()) {
+        blk += 1;
+        let z: [f64; L] = std::array::from_fn(|r| rings.z[pairs[r]]);
+        let (mut p1, mut s, mut live) = start_lanes(&order.start_plus, rings, &pairs);
+        let mut p0 = [0.0f64; L];
+        // Lane sums of even and odd k: F (re, im) and G (re, im), as separate variables so
+        // that they stay in registers.
+        let (mut efr, mut efi, mut egr, mut egi) =
+            ([0.0f64; L], [0.0f64; L], [0.0f64; L], [0.0f64; L]);
+        let (mut ofr, mut ofi, mut ogr, mut ogi) =
+            ([0.0f64; L], [0.0f64; L], [0.0f64; L], [0.0f64; L]);
+        let (cf, cg) = (f[0], g[0]);
+        for r in 0..L {
+            let p = p1[r] * live[r];
+            efr[r] = cf.re * p;
+            efi[r] = cf.im * p;
+            egr[r] = cg.re * p;
+            egi[r] = cg.im * p;
+        }
+        let mut k = 1;
+        let mut scaled = s.iter().any(|&x| x > 0);
+        while scaled && k < n {
+            let mut pass = 0;
+            while pass < PASSES_PER_CHECK && k < n {
+                let (cf, cg) = (f[k], g[k]);
+                for r in 0..L {
+                    p0[r] = A::mul_add(coef[k] * z[r], p1[r], -p0[r]);
+                    let p = p0[r] * live[r];
+                    ofr[r] = A::mul_add(cf.re, p, ofr[r]);
+                    ofi[r] = A::mul_add(cf.im, p, ofi[r]);
+                    ogr[r] = A::mul_add(cg.re, p, ogr[r]);
+                    ogi[r] = A::mul_add(cg.im, p, ogi[r]);
+                }
+                let (cf, cg) = (f[k + 1], g[k + 1]);
+                for r in 0..L {
+                    p1[r] = A::mul_add(coef[k + 1] * z[r], p0[r], -p1[r]);
+                    let p = p1[r] * live[r];
+                    efr[r] = A::mul_add(cf.re, p, efr[r]);
+                    efi[r] = A::mul_add(cf.im, p, efi[r]);
+                    egr[r] = A::mul_add(cg.re, p, egr[r]);
+                    egi[r] = A::mul_add(cg.im, p, egi[r]);
+                }
+                k += 2;
+                pass += 1;
+            }
+            scaled = rescale(&mut p0, &mut p1, &mut s, &mut live);
+        }
+        while k < n {
+            let (cf, cg) = (f[k], g[k]);
+            for r in 0..L {
+                p0[r] = A::mul_add(coef[k] * z[r], p1[r], -p0[r]);
+                ofr[r] = A::mul_add(cf.re, p0[r], ofr[r]);
+                ofi[r] = A::mul_add(cf.im, p0[r], ofi[r]);
+                ogr[r] = A::mul_add(cg.re, p0[r], ogr[r]);
+                ogi[r] = A::mul_add(cg.im, p0[r], ogi[r]);
+            }
+            let (cf, cg) = (f[k + 1], g[k + 1]);
+            for r in 0..L {
+                p1[r] = A::mul_add(coef[k + 1] * z[r], p0[r], -p1[r]);
+                efr[r] = A::mul_add(cf.re, p1[r], efr[r]);
+                efi[r] = A::mul_add(cf.im, p1[r], efi[r]);
+                egr[r] = A::mul_add(cg.re, p1[r], egr[r]);
+                egi[r] = A::mul_add(cg.im, p1[r], egi[r]);
+            }
+            k += 2;
+        }
+        if k == n {
+            let (cf, cg) = (f[k], g[k]);
+            for r in 0..L {
+                p0[r] = A::mul_add(coef[k] * z[r], p1[r], -p0[r]);
+                let p = p0[r] * live[r];
+                ofr[r] = A::mul_add(cf.re, p, ofr[r]);
+                ofi[r] = A::mul_add(cf.im, p, ofi[r]);
+                ogr[r] = A::mul_add(cg.re, p, ogr[r]);
+                ogi[r] = A::mul_add(cg.im, p, ogi[r]);
+            }
+        }
+        for r in 0..valid {
+            let p = pairs[r];
+            out[2 * p] = Complex64::new(efr[r] + ofr[r], efi[r] + ofi[r]);
+            out[2 * p + 1] = Complex64::new(efr[r] - ofr[r], efi[r] - ofi[r]);
+            out[stride + 2 * p] = Complex64::new(egr[r] + ogr[r], egi[r] + ogi[r]);
+            out[stride + 2 * p + 1] = Complex64::new(egr[r] - ogr[r], egi[r] - ogi[r]);
+        }
+        if s[..valid].iter().all(|&x| x > 0) {
+            // Whole block dead: every ring nearer the pole is dead too.
+            break;
+        }
+    }
+}
+
 /// Q_m = (P_m + P̄_m)/2 and U_m = (P_m − P̄_m)/(2i) from the ring sums of the two spins.
 #[inline(always)]
 fn q_u(p: Complex64, p_bar: Complex64) -> (Complex64, Complex64) {
@@ -453,15 +622,196 @@ fn add_row<A: MulAdd, const L: usize>(
     }
 }
 
+/// Lane state of one block of ring pairs in the Legendre stage of analysis, carried from one
+/// tile of steps to the next.
+struct AnalysisBlock<const L: usize> {
+    z: [f64; L],
+    /// X⁺_N, X⁻_N as (re, im) lanes.
+    north: [[f64; L]; 4],
+    /// X⁺_S, X⁻_S times the parity sign of even k (padding lanes zero).
+    even: [[f64; L]; 4],
+    /// ₛλ at the last two steps (k − 2, k − 1), with their scales and live masks.
+    mu: ([f64; L], [f64; L]),
+    smu: [i32; L],
+    lmu: [f64; L],
+    /// ₋ₛλ likewise.
+    nu: ([f64; L], [f64; L]),
+    snu: [i32; L],
+    lnu: [f64; L],
+    /// Whether any lane is still scaled.
+    scaled: bool,
+    /// Next step.
+    k: usize,
+}
+
+/// Opens the block of ring pairs `pairs`: its inputs and starting lanes; adds the k = 0 row to
+/// `row0`; then runs the recurrences without sums while every lane is still scaled (those
+/// terms are zero). `None` when every lane stays scaled up to ℓmax: the block adds nothing, and
+/// nor does any block nearer the pole (|ₛλ| grows away from the pole there).
+#[inline(always)]
+fn open_analysis_block<A: MulAdd, const L: usize>(
+    order: &SpinOrder,
+    rings: &HalfAngleRings,
+    ring_sums: &dyn Fn(usize) -> PairSums,
+    (pairs, valid): ([usize; L], usize),
+    row0: &mut [f64],
+) -> Option<AnalysisBlock<L>> {
+    let n = order.steps();
+    let (a_k, b_k) = (&order.a, &order.b);
+    let z: [f64; L] = std::array::from_fn(|r| rings.z[pairs[r]]);
+    let (mut mu1, mut smu, mut lmu) = start_lanes(&order.start_plus, rings, &pairs);
+    let (mut nu1, mut snu, mut lnu) = start_lanes(&order.start_minus, rings, &pairs);
+    let (mut mu0, mut nu0) = ([0.0f64; L], [0.0f64; L]);
+    let live = |lmu: &[f64; L], lnu: &[f64; L]| lmu.iter().chain(lnu).any(|&x| x > 0.0);
+    let mut k = 1;
+    let mut scaled = smu.iter().chain(&snu).any(|&s| s > 0);
+    while !live(&lmu, &lnu) && k < n {
+        let mut pass = 0;
+        while pass < PASSES_PER_CHECK && k < n {
+            step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
+            step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
+            step::<A, L>(a_k[k + 1], b_k[k + 1], &z, &mu0, &mut mu1);
+            step::<A, L>(a_k[k + 1], -b_k[k + 1], &z, &nu0, &mut nu1);
+            k += 2;
+            pass += 1;
+        }
+        let mu_scaled = rescale(&mut mu0, &mut mu1, &mut smu, &mut lmu);
+        let nu_scaled = rescale(&mut nu0, &mut nu1, &mut snu, &mut lnu);
+        scaled = mu_scaled || nu_scaled;
+    }
+    if !live(&lmu, &lnu) {
+        return None;
+    }
+    let mut north = [[0.0f64; L]; 4];
+    let mut even = [[0.0f64; L]; 4];
+    for r in 0..valid {
+        let s = ring_sums(pairs[r]);
+        let i = Complex64::new(0.0, 1.0);
+        let (pn, ps) = (s.q_north + i * s.u_north, s.q_south + i * s.u_south);
+        let (mn, ms) = (s.q_north - i * s.u_north, s.q_south - i * s.u_south);
+        north[0][r] = pn.re;
+        north[1][r] = pn.im;
+        north[2][r] = mn.re;
+        north[3][r] = mn.im;
+        let sign = order.parity0;
+        even[0][r] = sign * ps.re;
+        even[1][r] = sign * ps.im;
+        even[2][r] = sign * ms.re;
+        even[3][r] = sign * ms.im;
+    }
+    if k == 1 {
+        add_row::<A, L>(
+            row0,
+            &masked(&mu1, &lmu),
+            &masked(&nu1, &lnu),
+            &north,
+            &even,
+        );
+    }
+    Some(AnalysisBlock {
+        z,
+        north,
+        even,
+        mu: (mu0, mu1),
+        smu,
+        lmu,
+        nu: (nu0, nu1),
+        snu,
+        lnu,
+        scaled,
+        k,
+    })
+}
+
+/// Runs an open block through the steps k < `t1` of the tile starting at `t0` (and the last
+/// odd step when the tile ends at ℓmax), adding its terms to the tile's rows `acc` (row k − t0).
+// Kept whole, as the scalar kernel: the phases of the lane recurrences (scaled lanes, all lanes
+// live, the last odd step) share the block's lane registers in one inlined loop nest.
+#[inline(always)]
+fn run_analysis_tile<A: MulAdd, const L: usize>(
+    order: &SpinOrder,
+    blk: &mut AnalysisBlock<L>,
+    t0: usize,
+    t1: usize,
+    acc: &mut [f64],
+) {
+    let n = order.steps();
+    let end = t1.min(n);
+    let (a_k, b_k) = (&order.a, &order.b);
+    let w = 4 * L;
+    let (z, north, even) = (blk.z, blk.north, blk.even);
+    let odd: [[f64; L]; 4] = std::array::from_fn(|j| std::array::from_fn(|r| -even[j][r]));
+    let ((mut mu0, mut mu1), (mut nu0, mut nu1)) = (blk.mu, blk.nu);
+    let (mut smu, mut snu, mut lmu, mut lnu) = (blk.smu, blk.snu, blk.lmu, blk.lnu);
+    let mut scaled = blk.scaled;
+    let mut k = blk.k;
+    let row = |k: usize| (k - t0) * w;
+    while scaled && k < end {
+        let mut pass = 0;
+        while pass < PASSES_PER_CHECK && k < end {
+            step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
+            step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
+            add_row::<A, L>(
+                &mut acc[row(k)..],
+                &masked(&mu0, &lmu),
+                &masked(&nu0, &lnu),
+                &north,
+                &odd,
+            );
+            step::<A, L>(a_k[k + 1], b_k[k + 1], &z, &mu0, &mut mu1);
+            step::<A, L>(a_k[k + 1], -b_k[k + 1], &z, &nu0, &mut nu1);
+            add_row::<A, L>(
+                &mut acc[row(k + 1)..],
+                &masked(&mu1, &lmu),
+                &masked(&nu1, &lnu),
+                &north,
+                &even,
+            );
+            k += 2;
+            pass += 1;
+        }
+        let mu_scaled = rescale(&mut mu0, &mut mu1, &mut smu, &mut lmu);
+        let nu_scaled = rescale(&mut nu0, &mut nu1, &mut snu, &mut lnu);
+        scaled = mu_scaled || nu_scaled;
+    }
+    while k < end {
+        step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
+        step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
+        add_row::<A, L>(&mut acc[row(k)..], &mu0, &nu0, &north, &odd);
+        step::<A, L>(a_k[k + 1], b_k[k + 1], &z, &mu0, &mut mu1);
+        step::<A, L>(a_k[k + 1], -b_k[k + 1], &z, &nu0, &mut nu1);
+        add_row::<A, L>(&mut acc[row(k + 1)..], &mu1, &nu1, &north, &even);
+        k += 2;
+    }
+    if k == n && t1 > n {
+        step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
+        step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
+        add_row::<A, L>(
+            &mut acc[row(k)..],
+            &masked(&mu0, &lmu),
+            &masked(&nu0, &lnu),
+            &north,
+            &odd,
+        );
+        k += 1;
+    }
+    (blk.mu, blk.nu) = ((mu0, mu1), (nu0, nu1));
+    (blk.smu, blk.snu, blk.lmu, blk.lnu) = (smu, snu, lmu, lnu);
+    blk.scaled = scaled;
+    blk.k = k;
+}
+
 /// Legendre stage of analysis for one order m: a⁺_ℓm = Σ_pairs [ₛλ X⁺_N + (−1)^(ℓ+m) ₋ₛλ X⁺_S]
 /// and a⁻_ℓm = Σ_pairs [₋ₛλ X⁻_N + (−1)^(ℓ+m) ₛλ X⁻_S] with X± = G^Q ± i G^U, then
 /// E = −(a⁺ + (−1)^s a⁻)/2 and B = i(a⁺ − (−1)^s a⁻)/2 into `e`, `b` (the order's coefficients
 /// from ℓ = m; those below ℓ0 are set to zero).
 ///
-/// Each block adds its lanes' products into per-lane partial sums (a row of 4L values per ℓ);
-/// the lanes are summed once at the end in a fixed order, so the result does not depend on
-/// scheduling.
-// Kept whole, as the scalar kernel (see synthesis_order).
+/// The steps run in tiles of [`TILE_STEPS`]: every block of ring pairs (equator first) runs
+/// through one tile, adding its lanes' products into per-lane partial sums (a row of 4L values
+/// per ℓ, the tile's rows small enough to stay in the first-level cache), before any block
+/// starts the next tile. Each lane of a row receives the blocks in the same order whatever the
+/// tiling, and the lanes are summed once at the end in a fixed order, so the result does not
+/// depend on scheduling.
 #[inline(always)]
 fn analysis_order<A: MulAdd, const L: usize>(
     order: &SpinOrder,
@@ -472,102 +822,21 @@ fn analysis_order<A: MulAdd, const L: usize>(
 ) {
     let n = order.steps();
     let skip = order.l0 - order.m;
-    let (a_k, b_k) = (&order.a, &order.b);
     let w = 4 * L;
-    let mut acc = vec![0.0f64; (n + 1) * w];
-    let mut blk = 0;
-    while let Some((pairs, valid)) = block_pairs::<L>(blk, rings.len()) {
-        blk += 1;
-        let z: [f64; L] = std::array::from_fn(|r| rings.z[pairs[r]]);
-        // X⁺_N, X⁻_N and the south X⁺_S, X⁻_S times the parity sign of even k (`even`) and
-        // of odd k (`odd`); padding lanes stay zero.
-        let mut north = [[0.0f64; L]; 4];
-        let mut even = [[0.0f64; L]; 4];
-        for r in 0..valid {
-            let s = ring_sums(pairs[r]);
-            let i = Complex64::new(0.0, 1.0);
-            let (pn, ps) = (s.q_north + i * s.u_north, s.q_south + i * s.u_south);
-            let (mn, ms) = (s.q_north - i * s.u_north, s.q_south - i * s.u_south);
-            north[0][r] = pn.re;
-            north[1][r] = pn.im;
-            north[2][r] = mn.re;
-            north[3][r] = mn.im;
-            let sign = order.parity0;
-            even[0][r] = sign * ps.re;
-            even[1][r] = sign * ps.im;
-            even[2][r] = sign * ms.re;
-            even[3][r] = sign * ms.im;
-        }
-        let odd: [[f64; L]; 4] = std::array::from_fn(|j| std::array::from_fn(|r| -even[j][r]));
-        let (mut mu1, mut smu, mut lmu) = start_lanes(&order.start_plus, rings, &pairs);
-        let (mut nu1, mut snu, mut lnu) = start_lanes(&order.start_minus, rings, &pairs);
-        let (mut mu0, mut nu0) = ([0.0f64; L], [0.0f64; L]);
-        add_row::<A, L>(
-            &mut acc[..w],
-            &masked(&mu1, &lmu),
-            &masked(&nu1, &lnu),
-            &north,
-            &even,
-        );
-        let mut k = 1;
-        let mut scaled = smu.iter().chain(&snu).any(|&s| s > 0);
-        while scaled && k < n {
-            let mut pass = 0;
-            while pass < PASSES_PER_CHECK && k < n {
-                step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
-                step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
-                add_row::<A, L>(
-                    &mut acc[k * w..],
-                    &masked(&mu0, &lmu),
-                    &masked(&nu0, &lnu),
-                    &north,
-                    &odd,
-                );
-                step::<A, L>(a_k[k + 1], b_k[k + 1], &z, &mu0, &mut mu1);
-                step::<A, L>(a_k[k + 1], -b_k[k + 1], &z, &nu0, &mut nu1);
-                add_row::<A, L>(
-                    &mut acc[(k + 1) * w..],
-                    &masked(&mu1, &lmu),
-                    &masked(&nu1, &lnu),
-                    &north,
-                    &even,
-                );
-                k += 2;
-                pass += 1;
-            }
-            let mu_scaled = rescale(&mut mu0, &mut mu1, &mut smu, &mut lmu);
-            let nu_scaled = rescale(&mut nu0, &mut nu1, &mut snu, &mut lnu);
-            scaled = mu_scaled || nu_scaled;
-        }
-        while k < n {
-            step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
-            step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
-            add_row::<A, L>(&mut acc[k * w..], &mu0, &nu0, &north, &odd);
-            step::<A, L>(a_k[k + 1], b_k[k + 1], &z, &mu0, &mut mu1);
-            step::<A, L>(a_k[k + 1], -b_k[k + 1], &z, &nu0, &mut nu1);
-            add_row::<A, L>(&mut acc[(k + 1) * w..], &mu1, &nu1, &north, &even);
-            k += 2;
-        }
-        if k == n {
-            step::<A, L>(a_k[k], b_k[k], &z, &mu1, &mut mu0);
-            step::<A, L>(a_k[k], -b_k[k], &z, &nu1, &mut nu0);
-            add_row::<A, L>(
-                &mut acc[k * w..],
-                &masked(&mu0, &lmu),
-                &masked(&nu0, &lnu),
-                &north,
-                &odd,
-            );
-        }
-        if (0..valid).all(|r| smu[r] > 0 && snu[r] > 0) {
-            break;
+    let mut row0 = vec![0.0f64; w];
+    let mut blocks = Vec::with_capacity(rings.len().div_ceil(L));
+    let mut index = 0;
+    while let Some(block) = block_pairs::<L>(index, rings.len()) {
+        index += 1;
+        match open_analysis_block::<A, L>(order, rings, ring_sums, block, &mut row0) {
+            Some(open) => blocks.push(open),
+            None => break,
         }
     }
-    let lane_sum = |v: &[f64]| v.iter().fold(0.0, |s, x| s + x);
     e[..skip].fill(Complex64::new(0.0, 0.0));
     b[..skip].fill(Complex64::new(0.0, 0.0));
-    for k in 0..=n {
-        let row = &acc[k * w..(k + 1) * w];
+    let lane_sum = |v: &[f64]| v.iter().fold(0.0, |s, x| s + x);
+    let mut write = |k: usize, row: &[f64]| {
         let plus = Complex64::new(lane_sum(&row[..L]), lane_sum(&row[L..2 * L]));
         let minus =
             Complex64::new(lane_sum(&row[2 * L..3 * L]), lane_sum(&row[3 * L..])) * order.spin_sign;
@@ -575,6 +844,19 @@ fn analysis_order<A: MulAdd, const L: usize>(
         e[skip + k] = -(plus + minus) * (0.5 * c);
         let d = (plus - minus) * (0.5 * c);
         b[skip + k] = Complex64::new(-d.im, d.re);
+    };
+    write(0, &row0);
+    let mut acc = vec![0.0f64; TILE_STEPS * w];
+    for t0 in (1..=n).step_by(TILE_STEPS) {
+        let t1 = (t0 + TILE_STEPS).min(n + 1);
+        let acc = &mut acc[..(t1 - t0) * w];
+        acc.fill(0.0);
+        for blk in blocks.iter_mut().filter(|blk| blk.k < t1) {
+            run_analysis_tile::<A, L>(order, blk, t0, t1, acc);
+        }
+        for (i, row) in acc.chunks_exact(w).enumerate() {
+            write(t0 + i, row);
+        }
     }
 }
 
@@ -722,6 +1004,49 @@ impl SpinTransform {
     ) -> Result<(Vec<f64>, Vec<f64>)> {
         self.check_coefficients(e, "E")?;
         self.check_coefficients(b, "B")?;
+        Ok(self.two_map_synthesis(|m, out| self.synthesis_order(m, e.order(m), b.order(m), out)))
+    }
+
+    /// The two real maps (RING order) f = Σ_ℓm f_ℓm Y_ℓm and g = Σ_ℓm g_ℓm Y_ℓm of two real
+    /// scalar fields (healpy 1.20.1 `alm2map` of each) in one pass: the spin-0 case of the
+    /// recurrence above, one Legendre recurrence serving both fields, where two scalar
+    /// syntheses would run it twice. Both coefficient sets must have the transform's lmax.
+    ///
+    /// # Examples
+    ///
+    /// f = Y_00 (f_00 = 1) is the constant 1/√(4π); g_10 = 1 gives g = Y_10 = √(3/(4π)) cos θ
+    /// (closed forms from memory, standard).
+    /// ```
+    /// use num_complex::Complex64;
+    /// use planisphere::harmonics::{HarmonicCoefficients, RingGeometry, SpinTransform};
+    ///
+    /// let t = SpinTransform::new(2, 5, 2).unwrap();
+    /// let (mut f, mut g) = (HarmonicCoefficients::zeros(5), HarmonicCoefficients::zeros(5));
+    /// f.set(0, 0, Complex64::new(1.0, 0.0));
+    /// g.set(1, 0, Complex64::new(1.0, 0.0));
+    /// let (f_map, g_map) = t.scalar_pair_synthesis(&f, &g).unwrap();
+    /// let pi4 = 4.0 * std::f64::consts::PI;
+    /// for (p, (theta, _)) in RingGeometry::new(2).unwrap().pixel_centres().iter().enumerate() {
+    ///     assert!((f_map[p] - 1.0 / pi4.sqrt()).abs() < 1e-15);
+    ///     assert!((g_map[p] - (3.0 / pi4).sqrt() * theta.cos()).abs() < 1e-15);
+    /// }
+    /// ```
+    pub fn scalar_pair_synthesis(
+        &self,
+        f: &HarmonicCoefficients,
+        g: &HarmonicCoefficients,
+    ) -> Result<(Vec<f64>, Vec<f64>)> {
+        self.check_coefficients(f, "first field's")?;
+        self.check_coefficients(g, "second field's")?;
+        Ok(self.two_map_synthesis(|m, out| self.scalar_pair_order(m, f.order(m), g.order(m), out)))
+    }
+
+    /// Ring stage of synthesis for two real maps, from the Legendre stage `order_sums(m, out)`
+    /// that writes order m's ring sums of both maps (layout of [`synthesis_order`]).
+    fn two_map_synthesis(
+        &self,
+        order_sums: impl Fn(usize, &mut [Complex64]) + Sync,
+    ) -> (Vec<f64>, Vec<f64>) {
         let lmax = self.lmax();
         let stride = 2 * self.pairs.len();
         let band = self.orders_per_band(usize::MAX);
@@ -745,8 +1070,7 @@ impl SpinTransform {
             sums.par_chunks_mut(2 * stride)
                 .enumerate()
                 .for_each(|(i, out)| {
-                    let m = m0 + i;
-                    self.synthesis_order(m, e.order(m), b.order(m), out)
+                    order_sums(m0 + i, out);
                 });
             let sums = &*sums;
             ring_slices
@@ -784,7 +1108,7 @@ impl SpinTransform {
                         .expect("FFT buffers sized from the plan");
                 }
             });
-        Ok((q_map, u_map))
+        (q_map, u_map)
     }
 
     /// E and B coefficients up to lmax of the spin-s field with real maps `q`, `u` (RING
@@ -874,31 +1198,44 @@ impl SpinTransform {
                     }
                 });
             let sums = &*sums;
+            let ring_count = self.ring_count();
             order_slices[m0..m1]
-                .par_iter_mut()
+                .par_chunks_mut(ORDERS_PER_GATHER)
                 .enumerate()
-                .for_each(|(i, out)| {
-                    let m = m0 + i;
-                    let (out_e, out_b) = out.take().expect("each order is visited once");
-                    let at = |ring: usize| {
+                .for_each(|(j, group)| {
+                    // The group's ring sums, order-major, gathered ring by ring from the
+                    // ring-major band (neighbouring orders share cache lines there).
+                    let i0 = j * ORDERS_PER_GATHER;
+                    let mut columns = vec![Complex64::new(0.0, 0.0); group.len() * 2 * ring_count];
+                    for ring in 0..ring_count {
                         let row = &sums[ring * 2 * width..(ring + 1) * 2 * width];
-                        (row[i], row[width + i])
-                    };
-                    let ring_sums = |p: usize| {
-                        let (q_north, u_north) = at(p);
-                        let (q_south, u_south) = if p == npairs - 1 && last_ring - p == p {
-                            (Complex64::new(0.0, 0.0), Complex64::new(0.0, 0.0))
-                        } else {
-                            at(last_ring - p)
-                        };
-                        PairSums {
-                            q_north,
-                            q_south,
-                            u_north,
-                            u_south,
+                        for o in 0..group.len() {
+                            let at = (o * ring_count + ring) * 2;
+                            columns[at] = row[i0 + o];
+                            columns[at + 1] = row[width + i0 + o];
                         }
-                    };
-                    self.analysis_order(m, &ring_sums, out_e, out_b);
+                    }
+                    for (o, out) in group.iter_mut().enumerate() {
+                        let m = m0 + i0 + o;
+                        let (out_e, out_b) = out.take().expect("each order is visited once");
+                        let column = &columns[o * 2 * ring_count..(o + 1) * 2 * ring_count];
+                        let at = |ring: usize| (column[2 * ring], column[2 * ring + 1]);
+                        let ring_sums = |p: usize| {
+                            let (q_north, u_north) = at(p);
+                            let (q_south, u_south) = if p == npairs - 1 && last_ring - p == p {
+                                (Complex64::new(0.0, 0.0), Complex64::new(0.0, 0.0))
+                            } else {
+                                at(last_ring - p)
+                            };
+                            PairSums {
+                                q_north,
+                                q_south,
+                                u_north,
+                                u_south,
+                            }
+                        };
+                        self.analysis_order(m, &ring_sums, out_e, out_b);
+                    }
                 });
         }
         (e, b)
@@ -909,22 +1246,37 @@ impl SpinTransform {
             out.fill(Complex64::new(0.0, 0.0));
             return;
         }
-        let order = SpinOrder::new(m, self.spin, self.lmax(), &self.log2_norms);
+        let order = &SpinOrder::new(m, self.spin, self.lmax(), &self.log2_norms);
         let rings = &self.pairs;
-        // SAFETY (both arms): the kernel variant was chosen from the CPU's reported features.
-        #[cfg(target_arch = "x86_64")]
-        match self.scalar.kernel() {
-            LegendreKernel::Avx512Fma => {
-                unsafe { fused::synthesis_order_avx512(&order, rings, e, b, out) };
-                return;
-            }
-            LegendreKernel::Avx2Fma => {
-                unsafe { fused::synthesis_order_avx2(&order, rings, e, b, out) };
-                return;
-            }
-            LegendreKernel::Portable => {}
-        }
-        synthesis_order::<PlainMulAdd, PORTABLE_SYNTHESIS_LANES>(&order, rings, e, b, out);
+        run_kernel!(
+            self.scalar.kernel(),
+            synthesis_order,
+            lanes(2 * SYNTHESIS_LANES, SYNTHESIS_LANES, PORTABLE_SYNTHESIS_LANES),
+            (
+                order: &SpinOrder,
+                rings: &HalfAngleRings,
+                e: &[Complex64],
+                b: &[Complex64],
+                out: &mut [Complex64],
+            )
+        )
+    }
+
+    fn scalar_pair_order(&self, m: usize, f: &[Complex64], g: &[Complex64], out: &mut [Complex64]) {
+        let order = &SpinOrder::new(m, 0, self.lmax(), &self.log2_norms);
+        let rings = &self.pairs;
+        run_kernel!(
+            self.scalar.kernel(),
+            scalar_pair_order,
+            lanes(PAIR_LANES_AVX512, PAIR_LANES_AVX2, PAIR_LANES_PORTABLE),
+            (
+                order: &SpinOrder,
+                rings: &HalfAngleRings,
+                f: &[Complex64],
+                g: &[Complex64],
+                out: &mut [Complex64],
+            )
+        )
     }
 
     fn analysis_order(
@@ -939,22 +1291,20 @@ impl SpinTransform {
             b.fill(Complex64::new(0.0, 0.0));
             return;
         }
-        let order = SpinOrder::new(m, self.spin, self.lmax(), &self.log2_norms);
+        let order = &SpinOrder::new(m, self.spin, self.lmax(), &self.log2_norms);
         let rings = &self.pairs;
-        // SAFETY (both arms): the kernel variant was chosen from the CPU's reported features.
-        #[cfg(target_arch = "x86_64")]
-        match self.scalar.kernel() {
-            LegendreKernel::Avx512Fma => {
-                unsafe { fused::analysis_order_avx512(&order, rings, ring_sums, e, b) };
-                return;
-            }
-            LegendreKernel::Avx2Fma => {
-                unsafe { fused::analysis_order_avx2(&order, rings, ring_sums, e, b) };
-                return;
-            }
-            LegendreKernel::Portable => {}
-        }
-        analysis_order::<PlainMulAdd, ANALYSIS_LANES>(&order, rings, ring_sums, e, b);
+        run_kernel!(
+            self.scalar.kernel(),
+            analysis_order,
+            lanes(ANALYSIS_LANES, ANALYSIS_LANES, ANALYSIS_LANES),
+            (
+                order: &SpinOrder,
+                rings: &HalfAngleRings,
+                ring_sums: &dyn Fn(usize) -> PairSums,
+                e: &mut [Complex64],
+                b: &mut [Complex64],
+            )
+        )
     }
 }
 
@@ -994,63 +1344,5 @@ fn unpack_half_spectrum(values: &[f64], spectrum: &mut [Complex64]) {
     spectrum[half] = Complex64::new(values[1], 0.0);
     for (k, x) in spectrum.iter_mut().enumerate().take(half).skip(1) {
         *x = Complex64::new(values[2 * k], values[2 * k + 1]);
-    }
-}
-
-/// The kernels compiled for AVX2 + FMA and for AVX-512F + FMA.
-#[cfg(target_arch = "x86_64")]
-mod fused {
-    use super::*;
-
-    /// # Safety
-    /// The CPU must support AVX2 and FMA.
-    #[target_feature(enable = "avx2,fma")]
-    pub(super) unsafe fn synthesis_order_avx2(
-        order: &SpinOrder,
-        rings: &HalfAngleRings,
-        e: &[Complex64],
-        b: &[Complex64],
-        out: &mut [Complex64],
-    ) {
-        synthesis_order::<FusedMulAdd, SYNTHESIS_LANES>(order, rings, e, b, out)
-    }
-
-    /// # Safety
-    /// The CPU must support AVX-512F and FMA.
-    #[target_feature(enable = "avx512f,avx2,fma")]
-    pub(super) unsafe fn synthesis_order_avx512(
-        order: &SpinOrder,
-        rings: &HalfAngleRings,
-        e: &[Complex64],
-        b: &[Complex64],
-        out: &mut [Complex64],
-    ) {
-        synthesis_order::<FusedMulAdd, { 2 * SYNTHESIS_LANES }>(order, rings, e, b, out)
-    }
-
-    /// # Safety
-    /// The CPU must support AVX2 and FMA.
-    #[target_feature(enable = "avx2,fma")]
-    pub(super) unsafe fn analysis_order_avx2(
-        order: &SpinOrder,
-        rings: &HalfAngleRings,
-        ring_sums: &dyn Fn(usize) -> PairSums,
-        e: &mut [Complex64],
-        b: &mut [Complex64],
-    ) {
-        analysis_order::<FusedMulAdd, ANALYSIS_LANES>(order, rings, ring_sums, e, b)
-    }
-
-    /// # Safety
-    /// The CPU must support AVX-512F and FMA.
-    #[target_feature(enable = "avx512f,avx2,fma")]
-    pub(super) unsafe fn analysis_order_avx512(
-        order: &SpinOrder,
-        rings: &HalfAngleRings,
-        ring_sums: &dyn Fn(usize) -> PairSums,
-        e: &mut [Complex64],
-        b: &mut [Complex64],
-    ) {
-        analysis_order::<FusedMulAdd, ANALYSIS_LANES>(order, rings, ring_sums, e, b)
     }
 }
