@@ -322,10 +322,7 @@ fn walk_block<A: MulAdd, S: LaneSink<L>, const L: usize>(
 ) -> [i32; L] {
     let count = rec.even_count();
     let ab = &rec.ab;
-    let mut z2 = [0.0f64; L];
-    for r in 0..L {
-        z2[r] = blk.z[r] * blk.z[r];
-    }
+    let z2 = blk.z.map(|z| z * z);
     let mut s = blk.s;
     let mut p1 = blk.v;
     let mut p0 = [0.0f64; L];
@@ -412,11 +409,11 @@ impl<A: MulAdd, const L: usize> LaneSink<L> for SynthesisSums<'_, A, L> {
     #[inline(always)]
     fn add(&mut self, j: usize, nu: &[f64; L]) {
         let [e, o] = self.coef[j];
-        for r in 0..L {
-            self.er[r] = A::mul_add(e.re, nu[r], self.er[r]);
-            self.ei[r] = A::mul_add(e.im, nu[r], self.ei[r]);
-            self.or[r] = A::mul_add(o.re, nu[r], self.or[r]);
-            self.oi[r] = A::mul_add(o.im, nu[r], self.oi[r]);
+        for (r, &n) in nu.iter().enumerate() {
+            self.er[r] = A::mul_add(e.re, n, self.er[r]);
+            self.ei[r] = A::mul_add(e.im, n, self.ei[r]);
+            self.or[r] = A::mul_add(o.re, n, self.or[r]);
+            self.oi[r] = A::mul_add(o.im, n, self.oi[r]);
         }
     }
 }
@@ -512,7 +509,7 @@ pub(crate) fn analysis_order<A: MulAdd, const L: usize, const W: usize>(
     out: &mut [Complex64],
     accumulate: bool,
 ) {
-    const { assert!(L % W == 0 && W.is_power_of_two()) };
+    const { assert!(L.is_multiple_of(W) && W.is_power_of_two()) };
     let count = rec.even_count();
     let mut rows = vec![[[0.0f64; W]; 4]; count];
     let mut b = 0;
@@ -522,10 +519,8 @@ pub(crate) fn analysis_order<A: MulAdd, const L: usize, const W: usize>(
         b += 1;
         // X_even re, im and z X_odd re, im of every lane.
         let mut x = [[0.0f64; L]; 4];
-        for r in 0..blk.valid {
-            let p = blk.pairs[r];
+        for (r, (&p, &z)) in blk.pairs.iter().zip(&blk.z).enumerate().take(blk.valid) {
             let (g_n, g_s) = (ring_sums[2 * p], ring_sums[2 * p + 1]);
-            let z = blk.z[r];
             x[0][r] = g_n.re + g_s.re;
             x[1][r] = g_n.im + g_s.im;
             x[2][r] = z * (g_n.re - g_s.re);
