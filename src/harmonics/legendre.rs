@@ -13,14 +13,17 @@
 //!
 //! sin^m θ underflows for large m near the poles. Following the scaled-recursion idea of Holmes
 //! & Featherstone (2002), λ_mm is started from its logarithm as v·2^(−500 s) with an integer
-//! scale s ≥ 0; the recurrence runs on v (it is linear) and, checked every 8 steps, v is brought
-//! back by 2^−500 whenever it exceeds 2^200, until s = 0. While s > 0 the true value is below
-//! about 2^−240 (growth over 8 steps stays below 2^60) and the term is left out of the sums. A ring whose λ_ℓm stays scaled up to ℓmax is "dead" for that m;
+//! scale s ≥ 0; the recurrence runs on v (it is linear) and, checked every 8 degrees, v is
+//! brought back by 2^−500 whenever it exceeds 2^200, until s = 0. While s > 0 the true value is
+//! below about 2^−240 (growth over 8 degrees stays below 2^60) and the term is left out of the
+//! sums. A ring whose λ_ℓm stays scaled up to ℓmax is "dead" for that m;
 //! since |λ_ℓm(θ)| grows monotonically with θ from the pole up to its first extremum, every ring
 //! nearer the pole is dead too, which lets the stages stop early.
 //!
 //! North/south symmetry: λ_ℓm(π − θ) = (−1)^(ℓ+m) λ_ℓm(θ), so one recurrence serves a ring pair
-//! by summing even and odd ℓ − m separately.
+//! by summing even and odd ℓ − m separately. The stages run the recurrence two degrees per step,
+//! on the even degrees only, in cos²θ; the odd degrees follow from them (see
+//! [`OrderRecurrence`]).
 
 use num_complex::Complex64;
 
