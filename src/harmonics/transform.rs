@@ -32,8 +32,8 @@ use crate::error::{Error, Result};
 pub const DEFAULT_ANALYSIS_ITERATIONS: usize = 3;
 
 /// Rings per block in the Legendre stage of synthesis with AVX2 (all lane state stays in
-/// registers); twice as many with AVX-512 (measured at NSIDE 1024: 8 and 24 lanes slower with
-/// AVX-512, 24 no faster).
+/// registers); twice as many with AVX-512 (measured at NSIDE 1024 with AVX-512: 8 and 32 lanes
+/// slower, 24 no faster).
 const SYNTHESIS_LANES: usize = 8;
 /// Rings per block in synthesis for portable code (SSE2 has half the register width; wider
 /// blocks spill).
