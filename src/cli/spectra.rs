@@ -9,6 +9,8 @@ use crate::harmonics::mode_coupling::BinWeighting;
 pub use crate::harmonics::spectra::spectrum_csv;
 use crate::harmonics::spectra::{measure_spectra, MasterSettings, SpectraDocument};
 use crate::io::fits_io::ColumnChoice;
+use crate::sky::footprint::{Footprint, WEIGHT_BLOCK};
+use crate::sky::skymap::SkyMap;
 use std::path::PathBuf;
 
 /// Measure the angular power spectrum of a map on its footprint: pseudo-C_ℓ with the w2
@@ -57,6 +59,17 @@ pub struct SpectraArgs {
     pub json: Option<PathBuf>,
 }
 
+/// The binary footprint of `map`'s valid pixels, held by blocks (blocks of ones without storage):
+/// the same weights as the footprint of its valid pixels restricted to it.
+fn valid_pixels_by_blocks(map: &SkyMap) -> Result<Footprint> {
+    Footprint::from_weight_chunks(
+        map.pixelization(),
+        map.valid()
+            .chunks(WEIGHT_BLOCK)
+            .map(|c| Ok(c.iter().map(|&v| f64::from(u8::from(v))).collect())),
+    )
+}
+
 /// Measures and writes the spectrum.
 pub fn run(args: &SpectraArgs) -> Result<()> {
     let settings = MasterSettings {
@@ -92,7 +105,14 @@ pub fn run(args: &SpectraArgs) -> Result<()> {
         }
         None => None,
     };
-    let footprint = args.mask.footprint_for(&map, &args.map)?;
+    let footprint = match &args.mask.mask {
+        // Without a mask the footprint is the map's valid pixels, held by blocks: a full sky
+        // needs no full-sky array of ones (the whole map is valid in the common case).
+        None if map.valid_count() > 0 => {
+            args.mask.taper_footprint(valid_pixels_by_blocks(&map)?)?
+        }
+        _ => args.mask.footprint_for(&map, &args.map)?,
+    };
     let other_name = args.cross.as_ref().map(|p| p.display().to_string());
     let (pseudo, s) = measure_spectra(
         (map, &args.map.display().to_string()),

@@ -13,14 +13,17 @@
 //!
 //! sin^m θ underflows for large m near the poles. Following the scaled-recursion idea of Holmes
 //! & Featherstone (2002), λ_mm is started from its logarithm as v·2^(−500 s) with an integer
-//! scale s ≥ 0; the recurrence runs on v (it is linear) and, checked every 8 steps, v is brought
-//! back by 2^−500 whenever it exceeds 2^200, until s = 0. While s > 0 the true value is below
-//! about 2^−240 (growth over 8 steps stays below 2^60) and the term is left out of the sums. A ring whose λ_ℓm stays scaled up to ℓmax is "dead" for that m;
+//! scale s ≥ 0; the recurrence runs on v (it is linear) and, checked every 8 degrees, v is
+//! brought back by 2^−500 whenever it exceeds 2^200, until s = 0. While s > 0 the true value is
+//! below about 2^−240 (growth over 8 degrees stays below 2^60) and the term is left out of the
+//! sums. A ring whose λ_ℓm stays scaled up to ℓmax is "dead" for that m;
 //! since |λ_ℓm(θ)| grows monotonically with θ from the pole up to its first extremum, every ring
 //! nearer the pole is dead too, which lets the stages stop early.
 //!
 //! North/south symmetry: λ_ℓm(π − θ) = (−1)^(ℓ+m) λ_ℓm(θ), so one recurrence serves a ring pair
-//! by summing even and odd ℓ − m separately.
+//! by summing even and odd ℓ − m separately. The stages run the recurrence two degrees per step,
+//! on the even degrees only, in cos²θ; the odd degrees follow from them (see
+//! [`OrderRecurrence`]).
 
 use num_complex::Complex64;
 
@@ -30,8 +33,9 @@ pub(crate) const SCALE_LOG2: f64 = 500.0;
 const SCALE_LIMIT: f64 = 1.606_938_044_258_990_3e60; // 2^200 (exact: checked in a unit test)
 /// 2^−500.
 const SCALE_DOWN: f64 = 3.054_936_363_499_605e-151;
-/// Number of two-step passes between rescaling checks (growth per check stays far below 2^800).
-const PASSES_PER_CHECK: usize = 4;
+/// Number of passes (two recurrence steps, four degrees) between rescaling checks: a check every
+/// 8 degrees (growth per check stays far below 2^800).
+const PASSES_PER_CHECK: usize = 2;
 
 /// Multiply-add, plain (a·b + c, two roundings) or fused (one rounding, hardware FMA).
 pub(crate) trait MulAdd {
@@ -70,40 +74,113 @@ pub(crate) fn log2_sectoral_norms(mmax: usize) -> Vec<f64> {
     out
 }
 
-/// Recurrence coefficients for one order m, indexed by k = ℓ − m.
+/// Recurrence coefficients for one order m in steps of two degrees.
 ///
-/// The three-term recurrence is run on rescaled values μ_ℓ = λ_ℓm / c_ℓ with c_m = c_{m+1} = 1
-/// and c_ℓ = γ_ℓm c_{ℓ−2}, which turns it into μ_ℓ = A_ℓ cos θ μ_{ℓ−1} − μ_{ℓ−2} with
-/// A_ℓ = α_ℓm c_{ℓ−1}/c_ℓ (one multiplication fewer per step); c_ℓ is applied to the
-/// coefficients instead. c_ℓ stays within a few powers of ℓ^{±1/2}.
+/// Even degrees: μ_j = λ_{m+2j,m} satisfy, from two steps of the three-term recurrence,
+/// μ_{j+1} = (P_j z² + Q_j) μ_j − R_j μ_{j−1} with, for ℓ = m + 2j,
+/// P_j = α_{ℓ+2} α_{ℓ+1}, Q_j = −γ_{ℓ+2} − α_{ℓ+2} γ_{ℓ+1}/α_ℓ, R_j = α_{ℓ+2} γ_{ℓ+1} γ_ℓ/α_ℓ
+/// (the α_ℓ terms vanish at j = 0, where γ_{m+1} = 0). It is run on rescaled values
+/// ν_j = μ_j / c_j with c_0 = c_1 = 1 and c_{j+1} = R_j c_{j−1}, which makes it
+/// ν_{j+1} = (A_j z² + B_j) ν_j − ν_{j−1}, A_j = P_j c_j/c_{j+1}, B_j = Q_j c_j/c_{j+1}.
+///
+/// Odd degrees follow from the even ones: λ_{m+2j+1} = α z μ_j − γ λ_{m+2j−1} (α, γ of degree
+/// m + 2j + 1), so a sum over odd degrees is z times a sum over the μ_j with transformed
+/// coefficients (synthesis), and the sums Σ z μ_j X give the odd-degree sums by that same
+/// recurrence (analysis). One recurrence step then serves two degrees: 2 multiply-adds per two
+/// degrees instead of 4 (the even/odd split of Ishioka 2018, J. Meteorol. Soc. Japan 96, 241).
 pub(crate) struct OrderRecurrence {
     pub m: usize,
-    pub lmax: usize,
-    /// A_ℓ, k ≥ 1.
-    a: Vec<f64>,
-    /// c_ℓ, k ≥ 0.
-    pub c: Vec<f64>,
+    /// (A_j, B_j), j = 0 … even_count − 2.
+    ab: Vec<[f64; 2]>,
+    /// c_j, j = 0 … even_count − 1.
+    c: Vec<f64>,
+    /// (α, γ) of the odd degrees m + 2j + 1, j = 0 … odd_count − 1.
+    odd: Vec<[f64; 2]>,
 }
 
 impl OrderRecurrence {
     pub fn new(m: usize, lmax: usize) -> Self {
         let n = lmax - m;
-        let mut a = vec![0.0; n + 1];
-        let mut c = vec![1.0; n + 1];
         let mf = m as f64;
-        if n >= 1 {
-            // α_{m+1,m} = √(2m + 3), γ_{m+1,m} = 0.
-            a[1] = (2.0 * mf + 3.0).sqrt();
-        }
-        for k in 2..=n {
+        // α_ℓ and γ_ℓ for k = ℓ − m = 1 … n (index 0 unused).
+        let mut alpha = vec![0.0; n + 1];
+        let mut gamma = vec![0.0; n + 1];
+        for k in 1..=n {
             let l = (m + k) as f64;
-            let alpha = ((4.0 * l * l - 1.0) / ((l - mf) * (l + mf))).sqrt();
+            alpha[k] = ((4.0 * l * l - 1.0) / ((l - mf) * (l + mf))).sqrt();
             let lm1 = l - 1.0;
-            let gamma = alpha * (((lm1 - mf) * (lm1 + mf)) / (4.0 * lm1 * lm1 - 1.0)).sqrt();
-            c[k] = gamma * c[k - 2];
-            a[k] = alpha * c[k - 1] / c[k];
+            gamma[k] = alpha[k] * (((lm1 - mf) * (lm1 + mf)) / (4.0 * lm1 * lm1 - 1.0)).sqrt();
         }
-        OrderRecurrence { m, lmax, a, c }
+        let even_count = n / 2 + 1;
+        let mut ab = Vec::with_capacity(even_count - 1);
+        let mut c = vec![1.0; even_count];
+        for j in 0..even_count - 1 {
+            let k = 2 * j;
+            let p = alpha[k + 2] * alpha[k + 1];
+            let (q, r) = if j == 0 {
+                (-gamma[2], 0.0)
+            } else {
+                let t = alpha[k + 2] * gamma[k + 1] / alpha[k];
+                (-gamma[k + 2] - t, t * gamma[k])
+            };
+            if j >= 1 {
+                c[j + 1] = r * c[j - 1];
+            }
+            let ratio = c[j] / c[j + 1];
+            ab.push([p * ratio, q * ratio]);
+        }
+        let odd = (0..n.div_ceil(2))
+            .map(|j| [alpha[2 * j + 1], gamma[2 * j + 1]])
+            .collect();
+        OrderRecurrence { m, ab, c, odd }
+    }
+
+    /// Number of even degrees m, m + 2, … ≤ lmax.
+    fn even_count(&self) -> usize {
+        self.c.len()
+    }
+
+    /// Synthesis coefficients of the rescaled recurrence from a_ℓm (ℓ = m … lmax): for each j,
+    /// (c_j a_{m+2j}, c_j õ_j) with õ_j = α_{m+2j+1} w_j, w_j = a_{m+2j+1} − γ_{m+2j+3} w_{j+1}
+    /// (summation by parts of the odd-degree recurrence), so that
+    /// Σ_ℓ a_ℓ λ_ℓ(±z) = Σ_j ν_j (E_j ± z O_j).
+    fn synthesis_coefficients(&self, alm: &[Complex64]) -> Vec<[Complex64; 2]> {
+        let zero = Complex64::new(0.0, 0.0);
+        let mut out: Vec<[Complex64; 2]> = self
+            .c
+            .iter()
+            .enumerate()
+            .map(|(j, &c)| [alm[2 * j] * c, zero])
+            .collect();
+        let mut w = zero;
+        for j in (0..self.odd.len()).rev() {
+            let next_gamma = self.odd.get(j + 1).map_or(0.0, |o| o[1]);
+            w = alm[2 * j + 1] - w * next_gamma;
+            out[j][1] = w * (self.odd[j][0] * self.c[j]);
+        }
+        out
+    }
+
+    /// a_ℓm from the rescaled sums: `even[j]` = Σ ν_j X_even and `odd[j]` = Σ ν_j z X_odd;
+    /// a_{m+2j} = c_j even[j] and a_{m+2j+1} = U_j = α c_j odd[j] − γ U_{j−1}.
+    fn analysis_coefficients(
+        &self,
+        sums: impl Iterator<Item = (Complex64, Complex64)>,
+        out: &mut [Complex64],
+        accumulate: bool,
+    ) {
+        let mut put = |k: usize, v: Complex64| {
+            out[k] = if accumulate { out[k] + v } else { v };
+        };
+        let mut u = Complex64::new(0.0, 0.0);
+        for (j, (even, odd)) in sums.enumerate() {
+            let c = self.c[j];
+            put(2 * j, even * c);
+            if let Some(&[alpha, gamma]) = self.odd.get(j) {
+                u = odd * (alpha * c) - u * gamma;
+                put(2 * j + 1, u);
+            }
+        }
     }
 }
 
@@ -206,19 +283,147 @@ fn live_lanes<const L: usize>(s: &[i32; L]) -> [f64; L] {
     live
 }
 
-/// One recurrence step on all lanes: new = A z cur − prev, stored over `prev`.
+/// Lane-wise product x · live.
 #[inline(always)]
-fn step<A: MulAdd, const L: usize>(a: f64, z: &[f64; L], cur: &[f64; L], prev: &mut [f64; L]) {
+fn masked<const L: usize>(x: &[f64; L], live: &[f64; L]) -> [f64; L] {
+    let mut y = [0.0f64; L];
     for r in 0..L {
-        prev[r] = A::mul_add(a * z[r], cur[r], -prev[r]);
+        y[r] = x[r] * live[r];
+    }
+    y
+}
+
+/// One recurrence step on all lanes: new = (A z² + B) cur − prev, stored over `prev`.
+#[inline(always)]
+fn step<A: MulAdd, const L: usize>(
+    ab: [f64; 2],
+    z2: &[f64; L],
+    cur: &[f64; L],
+    prev: &mut [f64; L],
+) {
+    for r in 0..L {
+        prev[r] = A::mul_add(A::mul_add(ab[0], z2[r], ab[1]), cur[r], -prev[r]);
+    }
+}
+
+/// What a Legendre stage does with ν_j of every lane of a block (lanes still scaled down
+/// arrive as 0).
+trait LaneSink<const L: usize> {
+    fn add(&mut self, j: usize, nu: &[f64; L]);
+}
+
+/// Runs the rescaled even-degree recurrence ν_0 … ν_{J−1} over one block, handing each ν_j to
+/// `sink`; returns the lanes' final scales (all > 0: the lane never reached its true scale).
+///
+/// Three phases share the lane registers: while some lane is scaled down, steps go in passes
+/// between rescaling checks and dead lanes are masked; then plain steps; then the last odd one.
+#[inline(always)]
+fn walk_block<A: MulAdd, S: LaneSink<L>, const L: usize>(
+    rec: &OrderRecurrence,
+    blk: &Block<L>,
+    sink: &mut S,
+) -> [i32; L] {
+    let count = rec.even_count();
+    let ab = &rec.ab;
+    let z2 = blk.z.map(|z| z * z);
+    let mut s = blk.s;
+    let mut p1 = blk.v;
+    let mut p0 = [0.0f64; L];
+    let mut live = live_lanes(&s);
+    let none_live = |live: &[f64; L]| live.iter().all(|&x| x == 0.0);
+    // A lane still scaled down adds an exact +0 (the sums are never −0), so while no lane is
+    // live the sums are skipped and only the recurrence runs: the same bits, less work.
+    if !none_live(&live) {
+        sink.add(0, &masked(&p1, &live));
+    }
+    let mut j = 1;
+    let mut scaled = s.iter().any(|&x| x > 0);
+    while scaled && j + 1 < count {
+        let mut pass = 0;
+        if none_live(&live) {
+            while pass < PASSES_PER_CHECK && j + 1 < count {
+                step::<A, L>(ab[j - 1], &z2, &p1, &mut p0);
+                step::<A, L>(ab[j], &z2, &p0, &mut p1);
+                j += 2;
+                pass += 1;
+            }
+        } else {
+            while pass < PASSES_PER_CHECK && j + 1 < count {
+                step::<A, L>(ab[j - 1], &z2, &p1, &mut p0);
+                sink.add(j, &masked(&p0, &live));
+                step::<A, L>(ab[j], &z2, &p0, &mut p1);
+                sink.add(j + 1, &masked(&p1, &live));
+                j += 2;
+                pass += 1;
+            }
+        }
+        scaled = rescale(&mut p0, &mut p1, &mut s, &mut live);
+    }
+    if !scaled {
+        // Every lane at its true scale: no masks.
+        walk_live::<A, S, L>(ab, &z2, [&mut p0, &mut p1], j..count, sink);
+    } else if j < count {
+        step::<A, L>(ab[j - 1], &z2, &p1, &mut p0);
+        sink.add(j, &masked(&p0, &live));
+    }
+    s
+}
+
+/// The recurrence on lanes all at their true scale, for j in `range` (from 0: ν_0 is
+/// `prev_cur[1]`), with `prev_cur` = (ν_{j−2}, ν_{j−1}) on entry.
+#[inline(always)]
+fn walk_live<A: MulAdd, S: LaneSink<L>, const L: usize>(
+    ab: &[[f64; 2]],
+    z2: &[f64; L],
+    prev_cur: [&mut [f64; L]; 2],
+    range: std::ops::Range<usize>,
+    sink: &mut S,
+) {
+    let [p0, p1] = prev_cur;
+    let mut j = range.start;
+    if j == 0 {
+        sink.add(0, p1);
+        j = 1;
+    }
+    while j + 1 < range.end {
+        step::<A, L>(ab[j - 1], z2, p1, p0);
+        sink.add(j, p0);
+        step::<A, L>(ab[j], z2, p0, p1);
+        sink.add(j + 1, p1);
+        j += 2;
+    }
+    if j < range.end {
+        step::<A, L>(ab[j - 1], z2, p1, p0);
+        sink.add(j, p0);
+    }
+}
+
+/// Synthesis sums of a block: per lane, E = Σ_j ν_j E_j and O = Σ_j ν_j O_j.
+struct SynthesisSums<'c, A, const L: usize> {
+    coef: &'c [[Complex64; 2]],
+    er: [f64; L],
+    ei: [f64; L],
+    or: [f64; L],
+    oi: [f64; L],
+    _fma: std::marker::PhantomData<A>,
+}
+
+impl<A: MulAdd, const L: usize> LaneSink<L> for SynthesisSums<'_, A, L> {
+    #[inline(always)]
+    fn add(&mut self, j: usize, nu: &[f64; L]) {
+        let [e, o] = self.coef[j];
+        for (r, &n) in nu.iter().enumerate() {
+            self.er[r] = A::mul_add(e.re, n, self.er[r]);
+            self.ei[r] = A::mul_add(e.im, n, self.ei[r]);
+            self.or[r] = A::mul_add(o.re, n, self.or[r]);
+            self.oi[r] = A::mul_add(o.im, n, self.oi[r]);
+        }
     }
 }
 
 /// Legendre stage of synthesis for one order m: for every ring pair, the north and south
-/// ring sums F_m = Σ_ℓ a_ℓm λ_ℓm(±z), written as out[2p] (north) and out[2p + 1] (south).
-// Kept whole (about 90 lines): the three phases of the lane recurrence (scaled lanes, all
-// lanes live, the last odd term) share the block's lane registers in one inlined loop nest, the
-// innermost loop of the harmonic transforms.
+/// ring sums F_m = Σ_ℓ a_ℓm λ_ℓm(±z) = E ± z O, written as out[2p] (north) and out[2p + 1]
+/// (south).
 #[inline(always)]
 pub(crate) fn synthesis_order<A: MulAdd, const L: usize>(
     rec: &OrderRecurrence,
@@ -228,77 +433,32 @@ pub(crate) fn synthesis_order<A: MulAdd, const L: usize>(
     out: &mut [Complex64],
 ) {
     out.fill(Complex64::new(0.0, 0.0));
-    let m = rec.m;
-    let n = rec.lmax - m;
-    let coef = &rec.a;
-    // Coefficients times c_ℓ (the recurrence runs on λ/c).
-    let alm: Vec<Complex64> = alm.iter().zip(&rec.c).map(|(a, c)| a * c).collect();
+    let coef = rec.synthesis_coefficients(alm);
     let mut b = 0;
-    while let Some(blk) = block::<L>(b, pairs, m, log2_norm) {
+    while let Some(blk) = block::<L>(b, pairs, rec.m, log2_norm) {
         b += 1;
-        let z = blk.z;
-        let mut s = blk.s;
-        let mut p1 = blk.v;
-        let mut p0 = [0.0f64; L];
-        let mut live = live_lanes(&s);
-        let (mut er, mut ei, mut or, mut oi) = ([0.0f64; L], [0.0f64; L], [0.0f64; L], [0.0f64; L]);
-        let c = alm[0];
+        let mut sums = SynthesisSums::<A, L> {
+            coef: &coef,
+            er: [0.0; L],
+            ei: [0.0; L],
+            or: [0.0; L],
+            oi: [0.0; L],
+            _fma: std::marker::PhantomData,
+        };
+        let s = walk_block::<A, _, L>(rec, &blk, &mut sums);
+        // North and south over all lanes first (constant indices keep the sums in registers).
+        let mut north = [Complex64::new(0.0, 0.0); L];
+        let mut south = north;
         for r in 0..L {
-            er[r] = c.re * p1[r] * live[r];
-            ei[r] = c.im * p1[r] * live[r];
-        }
-        let mut k = 1;
-        let mut scaled = s.iter().any(|&x| x > 0);
-        while scaled && k < n {
-            let mut pass = 0;
-            while pass < PASSES_PER_CHECK && k < n {
-                step::<A, L>(coef[k], &z, &p1, &mut p0);
-                let c = alm[k];
-                for r in 0..L {
-                    let p = p0[r] * live[r];
-                    or[r] = A::mul_add(c.re, p, or[r]);
-                    oi[r] = A::mul_add(c.im, p, oi[r]);
-                }
-                step::<A, L>(coef[k + 1], &z, &p0, &mut p1);
-                let c = alm[k + 1];
-                for r in 0..L {
-                    let p = p1[r] * live[r];
-                    er[r] = A::mul_add(c.re, p, er[r]);
-                    ei[r] = A::mul_add(c.im, p, ei[r]);
-                }
-                k += 2;
-                pass += 1;
-            }
-            scaled = rescale(&mut p0, &mut p1, &mut s, &mut live);
-        }
-        while k < n {
-            step::<A, L>(coef[k], &z, &p1, &mut p0);
-            let c = alm[k];
-            for r in 0..L {
-                or[r] = A::mul_add(c.re, p0[r], or[r]);
-                oi[r] = A::mul_add(c.im, p0[r], oi[r]);
-            }
-            step::<A, L>(coef[k + 1], &z, &p0, &mut p1);
-            let c = alm[k + 1];
-            for r in 0..L {
-                er[r] = A::mul_add(c.re, p1[r], er[r]);
-                ei[r] = A::mul_add(c.im, p1[r], ei[r]);
-            }
-            k += 2;
-        }
-        if k == n {
-            step::<A, L>(coef[k], &z, &p1, &mut p0);
-            let c = alm[k];
-            for r in 0..L {
-                let p = p0[r] * live[r];
-                or[r] = A::mul_add(c.re, p, or[r]);
-                oi[r] = A::mul_add(c.im, p, oi[r]);
-            }
+            let z = blk.z[r];
+            let (or, oi) = (z * sums.or[r], z * sums.oi[r]);
+            north[r] = Complex64::new(sums.er[r] + or, sums.ei[r] + oi);
+            south[r] = Complex64::new(sums.er[r] - or, sums.ei[r] - oi);
         }
         for r in 0..blk.valid {
             let p = blk.pairs[r];
-            out[2 * p] = Complex64::new(er[r] + or[r], ei[r] + oi[r]);
-            out[2 * p + 1] = Complex64::new(er[r] - or[r], ei[r] - oi[r]);
+            out[2 * p] = north[r];
+            out[2 * p + 1] = south[r];
         }
         if s[..blk.valid].iter().all(|&x| x > 0) {
             // Whole block dead: every ring nearer the pole is dead too.
@@ -307,116 +467,85 @@ pub(crate) fn synthesis_order<A: MulAdd, const L: usize>(
     }
 }
 
+/// Analysis sums of a block: each ν_j's lane products are summed over the block's L/W groups
+/// of W lanes in registers and added to row j (W lanes each of Σ ν X_even re, im and
+/// Σ ν z X_odd re, im), one load and store per W lanes and block instead of per lane.
+struct AnalysisSums<'r, A, const L: usize, const W: usize> {
+    rows: &'r mut [[[f64; W]; 4]],
+    /// X_even re, im and z X_odd re, im of every lane.
+    x: &'r [[f64; L]; 4],
+    _fma: std::marker::PhantomData<A>,
+}
+
+impl<A: MulAdd, const L: usize, const W: usize> LaneSink<L> for AnalysisSums<'_, A, L, W> {
+    #[inline(always)]
+    fn add(&mut self, j: usize, nu: &[f64; L]) {
+        let row = &mut self.rows[j];
+        for (t, x) in row.iter_mut().zip(self.x) {
+            let mut acc = *t;
+            for g in 0..L / W {
+                for w in 0..W {
+                    acc[w] = A::mul_add(nu[g * W + w], x[g * W + w], acc[w]);
+                }
+            }
+            *t = acc;
+        }
+    }
+}
+
 /// Legendre stage of analysis for one order m: out[ℓ − m] = Σ_pairs λ_ℓm(z) X, with
-/// X = G_north + G_south for even ℓ − m and G_north − G_south for odd ℓ − m, where `ring_sums`
-/// gives (G_north, G_south) of every pair (the weighted azimuthal sums of the map).
+/// X = G_north + G_south for even ℓ − m and G_north − G_south for odd ℓ − m, where
+/// `ring_sums[2p]` and `ring_sums[2p + 1]` are G_north and G_south of pair p (the weighted
+/// azimuthal sums of the map; 0 for the south of the equator ring, its own mirror).
 ///
 /// With `accumulate`, the sums are added to `out` (a Jacobi correction) instead of replacing it.
 ///
-/// Each block adds its lanes' products into per-lane partial sums `acc` (one row of 2L values
-/// per ℓ); the lanes are summed once at the end in a fixed pairwise order, so the result does
-/// not depend on scheduling.
-// Kept whole (about 100 lines): the three phases of the lane recurrence (scaled lanes, all
-// lanes live, the last odd term) share the block's lane registers in one inlined loop nest, the
-// innermost loop of the harmonic transforms.
+/// Blocks of L pairs add into W-lane partial sums per even degree (see [`AnalysisSums`]); the
+/// W lanes are summed once at the end in a fixed pairwise order, so the result does not
+/// depend on scheduling.
 #[inline(always)]
-pub(crate) fn analysis_order<A: MulAdd, const L: usize>(
+pub(crate) fn analysis_order<A: MulAdd, const L: usize, const W: usize>(
     rec: &OrderRecurrence,
     log2_norm: f64,
     pairs: &RingPairs,
-    ring_sums: &dyn Fn(usize) -> (Complex64, Complex64),
+    ring_sums: &[Complex64],
     out: &mut [Complex64],
     accumulate: bool,
 ) {
-    let m = rec.m;
-    let n = rec.lmax - m;
-    let coef = &rec.a;
-    let mut acc = vec![0.0f64; (n + 1) * 2 * L];
-    // acc row k: [re lanes | im lanes].
-    #[inline(always)]
-    fn add_row<A: MulAdd, const L: usize>(
-        row: &mut [f64],
-        p: &[f64; L],
-        xr: &[f64; L],
-        xi: &[f64; L],
-    ) {
-        let (re, im) = row.split_at_mut(L);
-        for r in 0..L {
-            re[r] = A::mul_add(p[r], xr[r], re[r]);
-            im[r] = A::mul_add(p[r], xi[r], im[r]);
-        }
-    }
+    const { assert!(L.is_multiple_of(W) && W.is_power_of_two()) };
+    let count = rec.even_count();
+    let mut rows = vec![[[0.0f64; W]; 4]; count];
     let mut b = 0;
-    while let Some(blk) = block::<L>(b, pairs, m, log2_norm) {
+    // Block by block from the equator, until one ends with all its lanes scaled down (every
+    // ring nearer the pole is dead too).
+    while let Some(blk) = block::<L>(b, pairs, rec.m, log2_norm) {
         b += 1;
-        let z = blk.z;
-        let mut s = blk.s;
-        let mut p1 = blk.v;
-        let mut p0 = [0.0f64; L];
-        let (mut xer, mut xei, mut xor, mut xoi) =
-            ([0.0f64; L], [0.0f64; L], [0.0f64; L], [0.0f64; L]);
-        for r in 0..blk.valid {
-            let (g_n, g_s) = ring_sums(blk.pairs[r]);
-            xer[r] = g_n.re + g_s.re;
-            xei[r] = g_n.im + g_s.im;
-            xor[r] = g_n.re - g_s.re;
-            xoi[r] = g_n.im - g_s.im;
+        // X_even re, im and z X_odd re, im of every lane.
+        let mut x = [[0.0f64; L]; 4];
+        for (r, (&p, &z)) in blk.pairs.iter().zip(&blk.z).enumerate().take(blk.valid) {
+            let (g_n, g_s) = (ring_sums[2 * p], ring_sums[2 * p + 1]);
+            x[0][r] = g_n.re + g_s.re;
+            x[1][r] = g_n.im + g_s.im;
+            x[2][r] = z * (g_n.re - g_s.re);
+            x[3][r] = z * (g_n.im - g_s.im);
         }
-        let mut live = live_lanes(&s);
-        let mask = |live: &[f64; L], x: &[f64; L]| {
-            let mut y = [0.0f64; L];
-            for r in 0..L {
-                y[r] = x[r] * live[r];
-            }
-            y
+        let mut sums = AnalysisSums::<A, L, W> {
+            rows: &mut rows,
+            x: &x,
+            _fma: std::marker::PhantomData,
         };
-        let (mut mer, mut mei, mut mor, mut moi) = (
-            mask(&live, &xer),
-            mask(&live, &xei),
-            mask(&live, &xor),
-            mask(&live, &xoi),
-        );
-        let w = 2 * L;
-        add_row::<A, L>(&mut acc[..w], &p1, &mer, &mei);
-        let mut k = 1;
-        let mut scaled = s.iter().any(|&x| x > 0);
-        while scaled && k < n {
-            let mut pass = 0;
-            while pass < PASSES_PER_CHECK && k < n {
-                step::<A, L>(coef[k], &z, &p1, &mut p0);
-                add_row::<A, L>(&mut acc[k * w..(k + 1) * w], &p0, &mor, &moi);
-                step::<A, L>(coef[k + 1], &z, &p0, &mut p1);
-                add_row::<A, L>(&mut acc[(k + 1) * w..(k + 2) * w], &p1, &mer, &mei);
-                k += 2;
-                pass += 1;
-            }
-            scaled = rescale(&mut p0, &mut p1, &mut s, &mut live);
-            mer = mask(&live, &xer);
-            mei = mask(&live, &xei);
-            mor = mask(&live, &xor);
-            moi = mask(&live, &xoi);
-        }
-        while k < n {
-            step::<A, L>(coef[k], &z, &p1, &mut p0);
-            add_row::<A, L>(&mut acc[k * w..(k + 1) * w], &p0, &mor, &moi);
-            step::<A, L>(coef[k + 1], &z, &p0, &mut p1);
-            add_row::<A, L>(&mut acc[(k + 1) * w..(k + 2) * w], &p1, &mer, &mei);
-            k += 2;
-        }
-        if k == n {
-            step::<A, L>(coef[k], &z, &p1, &mut p0);
-            add_row::<A, L>(&mut acc[k * w..(k + 1) * w], &p0, &mor, &moi);
-        }
+        let s = walk_block::<A, _, L>(rec, &blk, &mut sums);
         if s[..blk.valid].iter().all(|&x| x > 0) {
             break;
         }
     }
-    for (k, o) in out.iter_mut().enumerate() {
-        let row = &acc[k * 2 * L..(k + 1) * 2 * L];
-        let v =
-            Complex64::new(pairwise_sum::<L>(&row[..L]), pairwise_sum::<L>(&row[L..])) * rec.c[k];
-        *o = if accumulate { *o + v } else { v };
-    }
+    let sums = rows.iter().map(|[er, ei, or, oi]| {
+        (
+            Complex64::new(pairwise_sum::<W>(er), pairwise_sum::<W>(ei)),
+            Complex64::new(pairwise_sum::<W>(or), pairwise_sum::<W>(oi)),
+        )
+    });
+    rec.analysis_coefficients(sums, out, accumulate);
 }
 
 /// Σ of L values in a fixed pairwise order.

@@ -32,20 +32,26 @@ use crate::error::{Error, Result};
 pub const DEFAULT_ANALYSIS_ITERATIONS: usize = 3;
 
 /// Rings per block in the Legendre stage of synthesis with AVX2 (all lane state stays in
-/// registers); twice as many with AVX-512.
+/// registers); twice as many with AVX-512 (measured at NSIDE 1024 with AVX-512: 8 and 32 lanes
+/// slower, 24 no faster).
 const SYNTHESIS_LANES: usize = 8;
 /// Rings per block in synthesis for portable code (SSE2 has half the register width; wider
 /// blocks spill).
 const PORTABLE_SYNTHESIS_LANES: usize = 4;
-/// Rings per block in the Legendre stage of analysis (partial sums live in a small buffer,
-/// so wider blocks amortise the per-ℓ loads).
-const ANALYSIS_LANES: usize = 16;
-// The lane sums in the analysis stage are pairwise over a power-of-two width.
-const _: () = assert!(ANALYSIS_LANES.is_power_of_two());
+/// Rings per block in the Legendre stage of analysis: the products of a block's lanes are
+/// summed in registers down to [`ANALYSIS_ROW`] lanes per degree before they are added to the
+/// order's partial sums in memory, so wider blocks mean fewer loads and stores per ring.
+const ANALYSIS_LANES: usize = 32;
+/// Lanes of the analysis partial sums kept per degree (summed pairwise at the end).
+const ANALYSIS_ROW: usize = 8;
 
 /// Target size of one band of ring sums (all rings, a band of orders m) in the banded stages:
 /// a few MB instead of (lmax + 1) × rings complex values (201 MB at NSIDE 1024).
 const BAND_BYTES: usize = 4 << 20;
+/// Orders per task when a band of ring sums is copied from ring-major to order-major.
+const TRANSPOSE_ORDERS: usize = 8;
+/// Rings per task when a band of ring sums is copied from order-major to ring-major.
+const TRANSPOSE_RINGS: usize = 16;
 /// Fewest orders per band for each worker thread, so that the parallel Legendre stage of a
 /// band keeps every thread busy (the band width never changes the results' bits).
 const ORDERS_PER_THREAD: usize = 4;
@@ -353,6 +359,7 @@ impl HarmonicTransform {
         let mut ring_slices = self.ring_slices(map);
         // Ring sums F_m of every ring for one band of orders at a time, m-major.
         let mut sums = vec![Complex64::new(0.0, 0.0); band.min(lmax + 1) * stride];
+        let mut by_ring = vec![Complex64::new(0.0, 0.0); band.min(lmax + 1) * self.ring_count()];
         for m0 in (0..=lmax).step_by(band) {
             let m1 = (m0 + band).min(lmax + 1);
             let sums = &mut sums[..(m1 - m0) * stride];
@@ -364,8 +371,12 @@ impl HarmonicTransform {
                     self.synthesis_order(m, alm.order(m), out)
                 });
             // Ring stage: fold and phase-shift the band's orders into each ring's spectrum
-            // (orders in increasing m, as in a single pass over all of them).
-            let sums = &*sums;
+            // (orders in increasing m, as in a single pass over all of them), reading each
+            // ring's sums contiguously from the band transposed to ring order.
+            let width = m1 - m0;
+            let by_ring = &mut by_ring[..width * self.ring_count()];
+            self.slots_to_rings(sums, width, by_ring);
+            let by_ring = &*by_ring;
             ring_slices
                 .par_iter_mut()
                 .enumerate()
@@ -373,7 +384,6 @@ impl HarmonicTransform {
                     let ring = &self.geometry.rings()[q];
                     let n = ring.pixel_count;
                     let half = n / 2;
-                    let slot = self.slot(q);
                     let mut phases = PhaseWalk::new(ring.phi0);
                     let mut add = |k: usize, g: Complex64| {
                         if k == 0 {
@@ -385,8 +395,7 @@ impl HarmonicTransform {
                             values[2 * k + 1] += g.im;
                         }
                     };
-                    for m in m0..m1 {
-                        let f = sums[(m - m0) * stride + slot];
+                    for (m, &f) in (m0..m1).zip(&by_ring[q * width..(q + 1) * width]) {
                         let k = m % n;
                         let g = if ring.half_pixel_shift {
                             phases.shift(f, m, n, false)
@@ -405,7 +414,7 @@ impl HarmonicTransform {
                     }
                 });
         }
-        drop(sums);
+        drop((sums, by_ring));
         // Inverse real FFT of each ring, in place, one plan per group of rings of one length.
         self.plan_groups(ring_slices)
             .into_par_iter()
@@ -526,10 +535,11 @@ impl HarmonicTransform {
             rest = tail;
         }
         let band = self.orders_per_band();
-        let last_ring = self.ring_count() - 1;
-        let npairs = self.pairs.len();
-        // Weighted azimuthal sums G_m of every ring for one band of orders, ring-major.
+        let stride = 2 * self.pairs.len();
+        // Weighted azimuthal sums G_m of every ring for one band of orders, ring-major, and the
+        // same by order.
         let mut sums = vec![Complex64::new(0.0, 0.0); self.ring_count() * band.min(lmax + 1)];
+        let mut by_slot = vec![Complex64::new(0.0, 0.0); stride * band.min(lmax + 1)];
         for m0 in (0..=lmax).step_by(band) {
             let m1 = (m0 + band).min(lmax + 1);
             let width = m1 - m0;
@@ -561,26 +571,58 @@ impl HarmonicTransform {
                     *o = g * weight;
                 }
             });
-            // Legendre stage: one order m per task, writing its own slice of the coefficients.
-            let sums = &*sums;
+            // Legendre stage: one order m per task, writing its own slice of the coefficients,
+            // reading its order's sums from the band transposed to slot order.
+            let by_slot = &mut by_slot[..width * stride];
+            self.rings_to_slots(sums, width, by_slot);
+            let by_slot = &*by_slot;
             order_slices[m0..m1]
                 .par_iter_mut()
                 .enumerate()
                 .for_each(|(i, out)| {
                     let m = m0 + i;
                     let out = out.take().expect("each order is visited once");
-                    let ring_sums = |p: usize| {
-                        let north = sums[p * width + i];
-                        let south = if p == npairs - 1 && last_ring - p == p {
-                            Complex64::new(0.0, 0.0)
-                        } else {
-                            sums[(last_ring - p) * width + i]
-                        };
-                        (north, south)
-                    };
-                    self.analysis_order(m, &ring_sums, out, accumulate);
+                    let ring_sums = &by_slot[i * stride..(i + 1) * stride];
+                    self.analysis_order(m, ring_sums, out, accumulate);
                 });
         }
+    }
+
+    /// A band of ring sums, ring-major (`src[q·width + i]`, ring q, i-th order of the band),
+    /// copied to order-major by Legendre-stage slot (`dst[i·stride + slot(q)]`, stride
+    /// 2·pairs), so each order reads its sums contiguously. The south slot of the equator ring
+    /// is never written (it stays 0).
+    fn rings_to_slots(&self, src: &[Complex64], width: usize, dst: &mut [Complex64]) {
+        let stride = 2 * self.pairs.len();
+        dst.par_chunks_mut(stride * TRANSPOSE_ORDERS)
+            .enumerate()
+            .for_each(|(c, out)| {
+                let i0 = c * TRANSPOSE_ORDERS;
+                let count = out.len() / stride;
+                for q in 0..self.ring_count() {
+                    let slot = self.slot(q);
+                    let from = &src[q * width + i0..q * width + i0 + count];
+                    for (t, &v) in from.iter().enumerate() {
+                        out[t * stride + slot] = v;
+                    }
+                }
+            });
+    }
+
+    /// The inverse copy of [`Self::rings_to_slots`]: order-major by slot to ring-major.
+    fn slots_to_rings(&self, src: &[Complex64], width: usize, dst: &mut [Complex64]) {
+        let stride = 2 * self.pairs.len();
+        dst.par_chunks_mut(width * TRANSPOSE_RINGS)
+            .enumerate()
+            .for_each(|(c, out)| {
+                let q0 = c * TRANSPOSE_RINGS;
+                let count = out.len() / width;
+                for i in 0..width {
+                    for t in 0..count {
+                        out[t * width + i] = src[i * stride + self.slot(q0 + t)];
+                    }
+                }
+            });
     }
 
     /// Orders per band in the banded stages: as many as keep one band's ring sums near
@@ -612,7 +654,7 @@ impl HarmonicTransform {
     fn analysis_order(
         &self,
         m: usize,
-        ring_sums: &dyn Fn(usize) -> (Complex64, Complex64),
+        ring_sums: &[Complex64],
         out: &mut [Complex64],
         accumulate: bool,
     ) {
@@ -631,7 +673,9 @@ impl HarmonicTransform {
             }
             LegendreKernel::Portable => {}
         }
-        analysis_order::<PlainMulAdd, ANALYSIS_LANES>(&rec, norm, pairs, ring_sums, out, acc);
+        analysis_order::<PlainMulAdd, ANALYSIS_LANES, ANALYSIS_ROW>(
+            &rec, norm, pairs, ring_sums, out, acc,
+        );
     }
 }
 
@@ -641,59 +685,52 @@ impl HarmonicTransform {
 mod fused {
     use super::*;
 
-    /// # Safety
-    /// The CPU must support AVX2 and FMA.
-    #[target_feature(enable = "avx2,fma")]
-    pub(super) unsafe fn synthesis_order_avx2(
-        rec: &OrderRecurrence,
-        norm: f64,
-        pairs: &RingPairs,
-        alm: &[Complex64],
-        out: &mut [Complex64],
-    ) {
-        synthesis_order::<FusedMulAdd, SYNTHESIS_LANES>(rec, norm, pairs, alm, out)
+    /// A synthesis and an analysis kernel compiled with the given target features.
+    macro_rules! kernels {
+        ($features:literal, $synthesis:ident, $analysis:ident, $synthesis_lanes:expr) => {
+            /// # Safety
+            /// The CPU must support the target features.
+            #[target_feature(enable = $features)]
+            pub(super) unsafe fn $synthesis(
+                rec: &OrderRecurrence,
+                norm: f64,
+                pairs: &RingPairs,
+                alm: &[Complex64],
+                out: &mut [Complex64],
+            ) {
+                synthesis_order::<FusedMulAdd, { $synthesis_lanes }>(rec, norm, pairs, alm, out)
+            }
+
+            /// # Safety
+            /// The CPU must support the target features.
+            #[target_feature(enable = $features)]
+            pub(super) unsafe fn $analysis(
+                rec: &OrderRecurrence,
+                norm: f64,
+                pairs: &RingPairs,
+                ring_sums: &[Complex64],
+                out: &mut [Complex64],
+                accumulate: bool,
+            ) {
+                analysis_order::<FusedMulAdd, ANALYSIS_LANES, ANALYSIS_ROW>(
+                    rec, norm, pairs, ring_sums, out, accumulate,
+                )
+            }
+        };
     }
 
-    /// # Safety
-    /// The CPU must support AVX2 and FMA.
-    #[target_feature(enable = "avx2,fma")]
-    pub(super) unsafe fn analysis_order_avx2(
-        rec: &OrderRecurrence,
-        norm: f64,
-        pairs: &RingPairs,
-        ring_sums: &dyn Fn(usize) -> (Complex64, Complex64),
-        out: &mut [Complex64],
-        accumulate: bool,
-    ) {
-        analysis_order::<FusedMulAdd, ANALYSIS_LANES>(rec, norm, pairs, ring_sums, out, accumulate)
-    }
-
-    /// # Safety
-    /// The CPU must support AVX-512F and FMA.
-    #[target_feature(enable = "avx512f,avx2,fma")]
-    pub(super) unsafe fn synthesis_order_avx512(
-        rec: &OrderRecurrence,
-        norm: f64,
-        pairs: &RingPairs,
-        alm: &[Complex64],
-        out: &mut [Complex64],
-    ) {
-        synthesis_order::<FusedMulAdd, { 2 * SYNTHESIS_LANES }>(rec, norm, pairs, alm, out)
-    }
-
-    /// # Safety
-    /// The CPU must support AVX-512F and FMA.
-    #[target_feature(enable = "avx512f,avx2,fma")]
-    pub(super) unsafe fn analysis_order_avx512(
-        rec: &OrderRecurrence,
-        norm: f64,
-        pairs: &RingPairs,
-        ring_sums: &dyn Fn(usize) -> (Complex64, Complex64),
-        out: &mut [Complex64],
-        accumulate: bool,
-    ) {
-        analysis_order::<FusedMulAdd, ANALYSIS_LANES>(rec, norm, pairs, ring_sums, out, accumulate)
-    }
+    kernels!(
+        "avx2,fma",
+        synthesis_order_avx2,
+        analysis_order_avx2,
+        SYNTHESIS_LANES
+    );
+    kernels!(
+        "avx512f,avx2,fma",
+        synthesis_order_avx512,
+        analysis_order_avx512,
+        2 * SYNTHESIS_LANES
+    );
 }
 
 #[cfg(test)]
