@@ -297,7 +297,7 @@ impl EnsembleMeasurer {
         for c in self.measurer.engine().cross_labels() {
             out.push(StatisticLabel {
                 name: format!("cross.{}", c.name()),
-                scale_arcmin: Some(self.measurer.wavelet_scale_arcmin(c.j1)),
+                scale_arcmin: c.path.j1.map(|j| self.measurer.wavelet_scale_arcmin(j)),
             });
         }
         out.extend(

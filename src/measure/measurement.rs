@@ -761,10 +761,7 @@ impl SphereMeasurer {
         let total = combine_tiles(&crosses)?;
         let mut cross = pooled_cross_coefficients(&self.engine, &total)?;
         for c in cross.coefficients.iter_mut() {
-            let resolved = [Some(c.label.j1), c.label.j2]
-                .iter()
-                .flatten()
-                .all(|&j| self.scale_is_resolved(j));
+            let resolved = c.label.path.scales().all(|j| self.scale_is_resolved(j));
             c.trusted &= resolved && c.value.is_finite();
         }
         Ok(PairStatistics {
@@ -796,10 +793,7 @@ impl SphereMeasurer {
             let resolved = match c.label.kind {
                 CoefficientKind::Mean => true,
                 CoefficientKind::Variance => self.scale_is_resolved(0),
-                _ => [c.label.j1, c.label.j2]
-                    .iter()
-                    .flatten()
-                    .all(|&j| self.scale_is_resolved(j)),
+                _ => c.label.path.scales().all(|j| self.scale_is_resolved(j)),
             };
             c.trusted &= resolved;
         }
@@ -817,7 +811,7 @@ impl SphereMeasurer {
             let name = l.name(CoefficientSpelling::Short);
             let scale = match l.kind {
                 CoefficientKind::Mean | CoefficientKind::Variance => None,
-                _ => l.j1.map(|j| self.wavelet_scale_arcmin(j)),
+                _ => l.path.j1.map(|j| self.wavelet_scale_arcmin(j)),
             };
             out.push(StatisticLabel {
                 name: format!("full.{name}"),
