@@ -14,8 +14,8 @@
 //! The angular scale of wavelet scale j is its wavelength (8/3)·2^j plane pixels
 //! (see [`SphereMeasurer::wavelet_scale_arcmin`]).
 
-use super::inputs::{load_map, MaskArgs};
-use super::measure::MeasureOptions;
+use super::inputs::load_map;
+use super::measure::MapMeasurementArgs;
 use crate::error::{Error, Result};
 use crate::figures::charts::{
     append_colour_bar, palette, Axis, AxisScale, Cell, ChartPoint, ColourBar, Figure, ImageFormat,
@@ -25,7 +25,6 @@ use crate::figures::plotting::SkyPicture;
 use crate::figures::plotting::{colour_ramp, Rgb};
 use crate::files::write_bytes;
 use crate::forecast::{ConfidenceEllipse, ConfidenceLevel};
-use crate::io::fits_io::ColumnChoice;
 use crate::measure::measurement::SphereMeasurer;
 use crate::measure::tile_statistic::{measured_tiles, paint_tiles, tile_values, TileStatistic};
 use crate::scattering::statistics::{
@@ -97,13 +96,8 @@ pub struct TileMapArgs {
     /// The map (HEALPix FITS).
     #[arg(value_name = "MAP.fits")]
     pub map: PathBuf,
-    /// Column of the map file: 0-based position or name.
-    #[arg(long, default_value = "0")]
-    pub column: ColumnChoice,
     #[command(flatten)]
-    pub mask: MaskArgs,
-    #[command(flatten)]
-    pub options: MeasureOptions,
+    pub measuring: MapMeasurementArgs,
     /// The statistic: `mean`, `variance`, `S1_j<j>` (averaged over orientations), `S1_j<j>_l<l>`,
     /// `bandpower_j<j>[_l<l>]`, `S2_j<j1>_j<j2>` (averaged over l1, l2) or `S2_j<j1>_l<l1>_j<j2>_l<l2>`.
     #[arg(long, value_name = "NAME")]
@@ -933,10 +927,10 @@ pub fn run_tile_map(args: &TileMapArgs) -> Result<()> {
         )));
     }
     let statistic = TileStatistic::parse(&args.statistic)?;
-    let settings = args.options.settings()?;
+    let settings = args.measuring.options.settings()?;
     statistic.check(settings.scales, settings.orientations)?;
-    let map = load_map(&args.map, &args.column)?;
-    let footprint = args.mask.footprint_for(&map, &args.map)?;
+    let map = load_map(&args.map, &args.measuring.column)?;
+    let footprint = args.measuring.mask.footprint_for(&map, &args.map)?;
     super::inputs::check_measurable(&map, Some(&footprint), &args.map.display().to_string())?;
     let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
     let stats = measurer.measure(&map, &footprint)?;

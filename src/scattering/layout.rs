@@ -67,20 +67,17 @@ impl CoefficientKind {
 /// The wavelets a coefficient went through: scale j and orientation l of the first wavelet
 /// and of the second. An index is `None` where no such wavelet was applied (order 0, and the
 /// second wavelet of order 1) or, in a selection ([`Self::selects`]), where any value will do.
-/// Serialised (flattened into its owner) as the fields `j1`, `l1`, `j2`, `l2`.
+/// Serialised (flattened into its owner) as the fields `j1`, `l1`, `j2`, `l2`; read back, an
+/// absent or null field is `None`.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Hash, Serialize, Deserialize)]
 pub struct WaveletPath {
     /// Scale of the first wavelet.
-    #[serde(default)]
     pub j1: Option<usize>,
     /// Orientation of the first wavelet.
-    #[serde(default)]
     pub l1: Option<usize>,
     /// Scale of the second wavelet.
-    #[serde(default)]
     pub j2: Option<usize>,
     /// Orientation of the second wavelet.
-    #[serde(default)]
     pub l2: Option<usize>,
 }
 
@@ -513,6 +510,41 @@ mod tests {
             assert_eq!(CoefficientLabel::parse(bad, Short), None, "{bad}");
         }
         assert_eq!(CoefficientLabel::parse("S1_j0_l0", SpelledOut), None);
+    }
+
+    /// Read back flattened into a record, absent and null indices are `None` (serde's rule for
+    /// `Option` fields, common practice), and a path writes back as it was read.
+    #[test]
+    fn paths_read_absent_and_null_indices_as_none() {
+        #[derive(Debug, PartialEq, Serialize, Deserialize)]
+        struct Record {
+            order: u8,
+            #[serde(flatten)]
+            path: WaveletPath,
+        }
+        let read = |text: &str| serde_json::from_str::<Record>(text).unwrap();
+        let first = read(r#"{"order": 1, "j1": 2, "l1": 3, "j2": null}"#);
+        assert_eq!(first.path, WaveletPath::first(2, 3));
+        assert_eq!(read(r#"{"order": 0}"#).path, WaveletPath::NONE);
+        assert_eq!(
+            serde_json::to_string(&first).unwrap(),
+            r#"{"order":1,"j1":2,"l1":3,"j2":null,"l2":null}"#
+        );
+    }
+
+    /// A path read as a selection takes every path that agrees on the indices it gives; the
+    /// range check looks at the given indices only.
+    #[test]
+    fn selections_and_ranges_look_at_given_indices_only() {
+        let averaged = WaveletPath::parse_parts(&["j1", "j3"]).unwrap();
+        assert!(averaged.selects(&WaveletPath::second(1, 0, 3, 2)));
+        assert!(!averaged.selects(&WaveletPath::second(1, 0, 2, 2)));
+        assert!(!averaged.selects(&WaveletPath::first(1, 0)));
+        assert!(averaged.within(4, 1));
+        assert!(!averaged.within(3, 1));
+        assert!(!WaveletPath::first(0, 4).within(1, 4));
+        assert_eq!(averaged.wavelet_count(), None);
+        assert_eq!(WaveletPath::parse_parts(&["j1", "x3"]), None);
     }
 
     /// Both spellings of one label of each kind.
