@@ -180,7 +180,7 @@ fn sphere() {
         128,
         s.tile_count(),
         s.variables().len(),
-        t.values.len()
+        t.matched.values.len()
     );
     // The wall time of a synthesis includes the loss at the start and at the end.
     let per_iteration =

@@ -219,10 +219,10 @@ fn masked_flat_measure_equals_the_library_masked_estimator() {
             .iter()
             .find(|w| {
                 usize_of(&w["order"]) == Some(l.order as usize)
-                    && usize_of(&w["j1"]) == l.j1
-                    && usize_of(&w["l1"]) == l.l1
-                    && usize_of(&w["j2"]) == l.j2
-                    && usize_of(&w["l2"]) == l.l2
+                    && usize_of(&w["j1"]) == l.path.j1
+                    && usize_of(&w["l1"]) == l.path.l1
+                    && usize_of(&w["j2"]) == l.path.j2
+                    && usize_of(&w["l2"]) == l.path.l2
                     && w.get("kind").and_then(Value::as_str) == kind_name(l.kind)
             })
             .unwrap_or_else(|| panic!("{l:?} not written"));

@@ -22,7 +22,7 @@ fn derivatives(
         .map(|(a, &step)| {
             let plus = sampler.ensemble(&model.shifted_mean(a, step), n_d);
             let minus = sampler.ensemble(&model.shifted_mean(a, -step), n_d);
-            FiniteDifference::from_ensembles(&format!("theta{a}"), step, &plus, &minus).unwrap()
+            FiniteDifference::from_sets(&format!("theta{a}"), step, &plus, &minus, false).unwrap()
         })
         .collect()
 }
@@ -201,8 +201,8 @@ fn paired_seeds_cancel_noise_in_a_linear_model() {
         Ensemble::from_row_major(labels(p), 30, values).unwrap()
     };
     let (plus, minus) = (shifted(step), shifted(-step));
-    let paired = FiniteDifference::from_paired_ensembles("theta0", step, &plus, &minus).unwrap();
-    let independent = FiniteDifference::from_ensembles("theta0", step, &plus, &minus).unwrap();
+    let paired = FiniteDifference::from_sets("theta0", step, &plus, &minus, true).unwrap();
+    let independent = FiniteDifference::from_sets("theta0", step, &plus, &minus, false).unwrap();
     for j in 0..p {
         assert!((paired.derivative[j] - model.m[(j, 0)]).abs() < 1e-12);
     }
@@ -235,11 +235,12 @@ fn degenerate_parameters_report_the_condition_number() {
         let rows_m: Vec<Vec<f64>> = (0..2)
             .map(|i| mu.iter().map(|m| -scale * m + 0.01 * i as f64).collect())
             .collect();
-        FiniteDifference::from_ensembles(
+        FiniteDifference::from_sets(
             name,
             1.0,
             &Ensemble::from_rows(labels(p), &rows_p).unwrap(),
             &Ensemble::from_rows(labels(p), &rows_m).unwrap(),
+            false,
         )
         .unwrap()
     };
@@ -264,14 +265,14 @@ fn unconstrained_parameter_is_named() {
 #[test]
 fn zero_step_is_rejected() {
     let e = Ensemble::from_rows(labels(2), &[vec![1.0, 2.0], vec![2.0, 1.0]]).unwrap();
-    let err = FiniteDifference::from_ensembles("omega_m", 0.0, &e, &e).unwrap_err();
+    let err = FiniteDifference::from_sets("omega_m", 0.0, &e, &e, false).unwrap_err();
     assert!(
         err.to_string().contains(
             "finite-difference step for parameter 'omega_m' must be a positive number, got 0"
         ),
         "{err}"
     );
-    let err = FiniteDifference::from_ensembles("omega_m", f64::NAN, &e, &e).unwrap_err();
+    let err = FiniteDifference::from_sets("omega_m", f64::NAN, &e, &e, false).unwrap_err();
     assert!(err.to_string().contains("got NaN"), "{err}");
 }
 
@@ -280,7 +281,7 @@ fn zero_step_is_rejected() {
 fn mismatched_column_counts_between_sets_are_rejected() {
     let a = Ensemble::from_rows(labels(2), &[vec![1.0, 2.0], vec![2.0, 1.0]]).unwrap();
     let b = Ensemble::from_rows(labels(3), &[vec![1.0, 2.0, 3.0], vec![2.0, 1.0, 0.0]]).unwrap();
-    let err = FiniteDifference::from_ensembles("s8", 0.1, &a, &b)
+    let err = FiniteDifference::from_sets("s8", 0.1, &a, &b, false)
         .unwrap_err()
         .to_string();
     assert!(err.contains("derivative sets of parameter 's8'"), "{err}");
@@ -290,14 +291,14 @@ fn mismatched_column_counts_between_sets_are_rejected() {
         &[vec![1.0, 2.0], vec![2.0, 1.0]],
     )
     .unwrap();
-    let err = FiniteDifference::from_ensembles("s8", 0.1, &a, &renamed).unwrap_err();
+    let err = FiniteDifference::from_sets("s8", 0.1, &a, &renamed, false).unwrap_err();
     assert!(
         err.to_string()
             .contains("column 1 is 'd1' in one ensemble and 'x'"),
         "{err}"
     );
     // A derivative of 2 statistics against a precision of 3.
-    let d = FiniteDifference::from_ensembles("s8", 0.1, &a, &a).unwrap();
+    let d = FiniteDifference::from_sets("s8", 0.1, &a, &a, false).unwrap();
     let precision = Precision::from_known_covariance(labels(3), &DMatrix::identity(3, 3)).unwrap();
     let err = FisherForecast::from_derivatives(&precision, &[d]).unwrap_err();
     assert!(

@@ -4,13 +4,13 @@
 
 use planisphere::cli::measure::measurement_document;
 use planisphere::cli::plot::{
-    band_power_by_scale, coefficients_figure, ellipses_figure, file_summary, paint_tiles,
-    pair_items, parameter_pair, scale_items, set_ellipses, tile_values, ForecastFile,
-    MeasurementFile, TileStatistic, ELLIPSE_POINTS,
+    band_power_by_scale, coefficients_figure, ellipses_figure, file_summary, pair_items,
+    parameter_pair, scale_items, set_ellipses, ForecastFile, MeasurementFile, ELLIPSE_POINTS,
 };
 use planisphere::forecast::{ConfidenceEllipse, ConfidenceLevel};
 use planisphere::harmonics::spectrum::AngularSpectrum;
 use planisphere::measure::measurement::{MapStatistics, MeasurementSettings, SphereMeasurer};
+use planisphere::measure::tile_statistic::{paint_tiles, tile_values, TileStatistic};
 use planisphere::scattering::pooling::pooled_coefficients;
 use planisphere::scattering::statistics::SummaryKind;
 use planisphere::simulate::skies::SkyRecipe;
@@ -276,7 +276,10 @@ fn painted_map_holds_each_tile_value_over_its_core_only() {
 #[test]
 fn statistic_names_parse_and_check_their_indices() {
     let ok = TileStatistic::parse("full.S2_j0_j2").unwrap();
-    assert_eq!((ok.j1, ok.l1, ok.j2, ok.l2), (Some(0), None, Some(2), None));
+    assert_eq!(
+        (ok.path.j1, ok.path.l1, ok.path.j2, ok.path.l2),
+        (Some(0), None, Some(2), None)
+    );
     assert!(ok.check(3, 4).is_ok());
     assert!(ok.check(2, 4).is_err());
     assert!(TileStatistic::parse("S2_j2_j1")
@@ -372,8 +375,9 @@ fn coefficient_panels_show_the_summary_against_arcmin_and_scale_pair_cells_cross
     // S1 at j = 2 when J = 3), and S2(0,0,2,3), which crosses out the (0, 2) cells.
     for c in file.coefficients.iter_mut() {
         c.trusted = true;
-        if (c.order, c.j1, c.l1, c.j2) == (1, Some(2), Some(1), None)
-            || (c.order, c.j1, c.l1, c.j2, c.l2) == (2, Some(0), Some(0), Some(2), Some(3))
+        if (c.order, c.path.j1, c.path.l1, c.path.j2) == (1, Some(2), Some(1), None)
+            || (c.order, c.path.j1, c.path.l1, c.path.j2, c.path.l2)
+                == (2, Some(0), Some(0), Some(2), Some(3))
         {
             c.trusted = false;
         }

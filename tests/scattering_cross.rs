@@ -340,8 +340,14 @@ fn gaussian_field_against_its_own_modulus_vanishes_but_a_lognormal_field_does_no
     for (i, c) in set.coefficients.iter().enumerate() {
         if c.trusted && c.label.kind == CrossKind::EnvelopeFirstOrder {
             let t = mean[i] / se[i];
-            if c.label.l1 == 0 && c.label.direction == CrossDirection::FirstAgainstSecondModulus {
-                println!("lognormal X1 j {}: {:.4e} ({t:.1} σ)", c.label.j1, mean[i]);
+            if c.label.path.l1 == Some(0)
+                && c.label.direction == CrossDirection::FirstAgainstSecondModulus
+            {
+                println!(
+                    "lognormal X1 j {}: {:.4e} ({t:.1} σ)",
+                    c.label.path.j1.unwrap_or(0),
+                    mean[i]
+                );
             }
             if t > 5.0 {
                 detected += 1;
@@ -457,7 +463,8 @@ fn periodic_cross_statistics_match_a_direct_implementation_of_their_definitions(
         .collect();
     let mut reference = Vec::with_capacity(full.cross_labels().len());
     for lab in full.cross_labels() {
-        let k1 = lab.j1 * L + lab.l1;
+        let (j1, l1) = (lab.path.j1.unwrap(), lab.path.l1.unwrap());
+        let k1 = j1 * L + l1;
         let (field, envelope) = match lab.direction {
             CrossDirection::SecondAgainstFirstModulus => (1, 0),
             _ => (0, 1),
@@ -481,7 +488,7 @@ fn periodic_cross_statistics_match_a_direct_implementation_of_their_definitions(
                 )
             }
             CrossKind::EnvelopeSecondOrder => {
-                let k2 = lab.j2.unwrap() * L + lab.l2.unwrap();
+                let k2 = lab.path.j2.unwrap() * L + lab.path.l2.unwrap();
                 let second = convolve(&centred(&u[envelope][k1]), bank.wavelet(k2 / L, k2 % L), n);
                 mean(
                     &g[field][k2]

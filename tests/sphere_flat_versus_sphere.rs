@@ -96,7 +96,11 @@ fn scales_below_the_sampling_limit_are_flagged_untrusted() {
         let m = SphereMeasurer::new(pix, &footprint, settings).unwrap();
         let set = m.measure(&map, &footprint).unwrap().coefficients;
         for c in &set.coefficients {
-            let smallest = [c.label.j1, c.label.j2].iter().flatten().copied().min();
+            let smallest = [c.label.path.j1, c.label.path.j2]
+                .iter()
+                .flatten()
+                .copied()
+                .min();
             let expected = match c.label.kind {
                 CoefficientKind::Mean => true,
                 CoefficientKind::Variance => first == 0,

@@ -119,8 +119,11 @@ fn shifted_by_one(set: &CoefficientSet) -> CoefficientSet {
     {
         let from = |l: Option<usize>| l.map(|l| (l + ln - 1) % ln);
         let src = planisphere::scattering::statistics::CoefficientLabel {
-            l1: from(label.l1),
-            l2: from(label.l2),
+            path: planisphere::scattering::WaveletPath {
+                l1: from(label.path.l1),
+                l2: from(label.path.l2),
+                ..label.path
+            },
             ..label
         };
         *c = *set.get(&src).unwrap();

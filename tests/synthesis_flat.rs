@@ -92,14 +92,14 @@ fn synthesised_field_reproduces_full_set_within_one_percent() {
     let s = run.synthesis.statistics(&run.outcome.field).unwrap();
     let extra = names
         .iter()
-        .zip(s.iter().zip(&t.values).zip(&t.sigma))
+        .zip(s.iter().zip(&t.matched.values).zip(&t.matched.sigma))
         .filter(|(nm, _)| nm.starts_with("power_bin") || nm.starts_with("field_envelope"))
         .map(|(_, ((a, b), sg))| ((a - b) / sg).abs())
         .fold(0.0, f64::max);
     println!("correlations and power bins: max normalised deviation {extra:.3e}");
     let (worst, at) = s
         .iter()
-        .zip(&t.values)
+        .zip(&t.matched.values)
         .enumerate()
         .filter(|(i, _)| {
             !names[*i].starts_with("power_bin") && !names[*i].starts_with("field_envelope")
@@ -112,7 +112,7 @@ fn synthesised_field_reproduces_full_set_within_one_percent() {
     let s0 = run.synthesis.statistics(&run.outcome.start).unwrap();
     let start_worst = s0
         .iter()
-        .zip(&t.values)
+        .zip(&t.matched.values)
         .map(|(a, b)| ((a - b) / b).abs())
         .fold(0.0, f64::max);
     println!("start field: worst relative deviation {start_worst:.3e}");
@@ -214,7 +214,7 @@ fn synthesised_field_reproduces_summary_within_one_percent() {
         .statistic_names()
         .iter()
         .zip(&out.report.statistics)
-        .zip(t.values.iter().zip(&t.sigma))
+        .zip(t.matched.values.iter().zip(&t.matched.sigma))
     {
         println!("{name:<24} target {tv:+.5e} got {v:+.5e} sigma {sg:.3e}");
     }

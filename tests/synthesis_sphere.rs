@@ -146,7 +146,10 @@ fn correlation_part_of_the_loss_gradient_matches_central_differences() {
     let t_with = with.target_from_map(&target_map).unwrap();
     let t_without = without.target_from_map(&target_map).unwrap();
     // J = 3 correlations, the one-point C_pix, skewness and kurtosis
-    assert_eq!(t_with.values.len(), t_without.values.len() + 3 + 1 + 2);
+    assert_eq!(
+        t_with.matched.values.len(),
+        t_without.matched.values.len() + 3 + 1 + 2
+    );
     let values = sky(2).values().to_vec();
     let part = |v: &[f64]| loss(&with, &t_with, v) - loss(&without, &t_without, v);
     let g_with = with.loss_and_gradient(&t_with, &values).unwrap().1;
@@ -198,7 +201,7 @@ fn synthesis_from_white_noise_reproduces_the_pooled_coefficients() {
     };
     let worst = |got: &[f64]| {
         got.iter()
-            .zip(&target.values)
+            .zip(&target.matched.values)
             .map(|(a, t)| (a - t).abs() / t.abs())
             .fold(0.0, f64::max)
     };
@@ -206,7 +209,7 @@ fn synthesis_from_white_noise_reproduces_the_pooled_coefficients() {
     let after = worst(&stats(&outcome.map));
     println!(
         "{} statistics, {} pixels, {} tiles: max |s - T|/|T| {before:.3e} at the start, {after:.3e} after {} iterations (loss {:.3e} -> {:.3e})",
-        target.values.len(),
+        target.matched.values.len(),
         s.variables().len(),
         s.tile_count(),
         outcome.report.iterations,

@@ -477,23 +477,25 @@ fn draw_pictures(
     })?;
     run_tile_map(&TileMapArgs {
         map: dir.join("example_sky.fits"),
-        column: crate::io::fits_io::ColumnChoice::default(),
-        mask: super::inputs::MaskArgs {
-            mask: Some(dir.join("mock_mask.fits")),
-            mask_column: crate::io::fits_io::ColumnChoice::default(),
-            taper: TaperKind::C2,
-            taper_arcmin: TAPER_ARCMIN,
-            allow_coordsys_mismatch: false,
-        },
-        options: super::measure::MeasureOptions {
-            settings: None,
-            choices: crate::measure::settings::MeasurementChoices {
-                scales: Some(settings.scales),
-                tile_pixels: Some(em.measurer.plan().tile_pixels()),
-                border_pixels: Some(settings.border_pixels),
-                pixel_arcmin: Some(pixel_arcmin),
-                bispectrum: Some(false),
-                ..Default::default()
+        measuring: super::measure::MapMeasurementArgs {
+            column: crate::io::fits_io::ColumnChoice::default(),
+            mask: super::inputs::MaskArgs {
+                mask: Some(dir.join("mock_mask.fits")),
+                mask_column: crate::io::fits_io::ColumnChoice::default(),
+                taper: TaperKind::C2,
+                taper_arcmin: TAPER_ARCMIN,
+                allow_coordsys_mismatch: false,
+            },
+            options: super::measure::MeasureOptions {
+                settings: None,
+                choices: crate::measure::settings::MeasurementChoices {
+                    scales: Some(settings.scales),
+                    tile_pixels: Some(em.measurer.plan().tile_pixels()),
+                    border_pixels: Some(settings.border_pixels),
+                    pixel_arcmin: Some(pixel_arcmin),
+                    bispectrum: Some(false),
+                    ..Default::default()
+                },
             },
         },
         statistic: format!("S1_j{}", settings.scales - 1),

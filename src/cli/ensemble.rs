@@ -210,12 +210,9 @@ impl RecipeFile {
             )));
         }
         crate::limits::check_count("recipe count", self.count)?;
-        let lmax = self.lmax.unwrap_or(3 * self.nside as usize - 1);
-        crate::limits::check_lmax("recipe lmax", lmax, self.nside)?;
-        crate::limits::check_memory(
-            &format!("a NSIDE {} sky up to ℓ = {lmax}", self.nside),
-            crate::limits::sky_bytes(self.nside, lmax, self.lognormal_shift.is_some()),
-        )?;
+        let lognormal = self.lognormal_shift.is_some();
+        let lmax =
+            crate::simulate::skies::checked_lmax(self.nside, self.lmax, lognormal, "recipe lmax")?;
         let spectrum = match &self.spectrum {
             Some(p) => AngularSpectrum::read_text(p)?,
             None => AngularSpectrum::demo_model(lmax, self.model_variance.unwrap_or(1e-4)),
@@ -297,7 +294,7 @@ impl EnsembleMeasurer {
         for c in self.measurer.engine().cross_labels() {
             out.push(StatisticLabel {
                 name: format!("cross.{}", c.name()),
-                scale_arcmin: Some(self.measurer.wavelet_scale_arcmin(c.j1)),
+                scale_arcmin: c.path.j1.map(|j| self.measurer.wavelet_scale_arcmin(j)),
             });
         }
         out.extend(

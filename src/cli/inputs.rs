@@ -72,6 +72,17 @@ pub fn load_map(path: &std::path::Path, column: &ColumnChoice) -> Result<SkyMap>
 }
 
 impl MaskArgs {
+    /// The taper block of a measurement's settings: kind, width and mask file
+    /// ([`crate::io::measurement_document::taper_description`]).
+    pub fn taper_record(&self) -> serde_json::Value {
+        let mask_name = self.mask.as_ref().map(|p| p.display().to_string());
+        crate::io::measurement_document::taper_description(
+            self.taper,
+            self.taper_arcmin,
+            mask_name.as_deref(),
+        )
+    }
+
     /// The footprint to use with `map`: the mask (or the map's valid pixels), matched to the
     /// map and tapered.
     pub fn footprint_for(&self, map: &SkyMap, map_path: &Path) -> Result<Footprint> {

@@ -13,7 +13,7 @@ use crate::io::footprint_read::{
     reads_by_blocks,
 };
 pub use crate::io::measurement_document::measurement_document;
-use crate::io::measurement_document::{pair_document, taper_description};
+use crate::io::measurement_document::pair_document;
 use crate::measure::measurement::{MapStatistics, MeasurementSettings, SphereMeasurer};
 use crate::measure::settings::MeasurementChoices;
 use crate::sky::block_map::OutsideBlocks;
@@ -22,6 +22,19 @@ use crate::sky::measurable::check_measurable_blocks;
 use crate::sky::skymap::SkyMap;
 use crate::tiles::tiling::TilingSummary;
 use std::path::{Path, PathBuf};
+
+/// How one map is measured, shared by `measure` and `plot tile-map`: the column of its file,
+/// its mask and taper, and the measurement options.
+#[derive(Debug, Clone, clap::Args)]
+pub struct MapMeasurementArgs {
+    /// Column of the map file: 0-based position or name.
+    #[arg(long, default_value = "0")]
+    pub column: ColumnChoice,
+    #[command(flatten)]
+    pub mask: MaskArgs,
+    #[command(flatten)]
+    pub options: MeasureOptions,
+}
 
 /// Measurement options shared by `measure`, `ensemble`, `tiles` and `plot`: the measurement
 /// choices as flags ([`MeasurementChoices`]) and a `--settings` TOML file of the same keys;
@@ -66,13 +79,8 @@ pub struct MeasureArgs {
     /// 0 = masked, used as taper and weight as given).
     #[arg(value_name = "MAP.fits|FIELD.npy")]
     pub map: PathBuf,
-    /// Column of the map file: 0-based position or name.
-    #[arg(long, default_value = "0")]
-    pub column: ColumnChoice,
     #[command(flatten)]
-    pub mask: MaskArgs,
-    #[command(flatten)]
-    pub options: MeasureOptions,
+    pub measuring: MapMeasurementArgs,
     /// A second map (same NSIDE; another ordering is converted): measure both maps on their
     /// common footprint and add their cross statistics (cross band powers, each map against
     /// the other's wavelet modulus at orders 1 and 2) under "cross" in the JSON.
@@ -108,7 +116,7 @@ pub struct MeasureArgs {
 /// about f_sky of the memory; other inputs are read whole ([`run_reading_whole_map`]).
 pub fn run(args: &MeasureArgs) -> Result<()> {
     crate::files::check_output_path(&args.output)?;
-    let mut settings = args.options.settings()?;
+    let mut settings = args.measuring.options.settings()?;
     if args.full_resolution {
         settings.transform.fourier_cropping = false;
     }
@@ -117,7 +125,7 @@ pub fn run(args: &MeasureArgs) -> Result<()> {
         if reads_by_blocks(map_reader.header()) {
             // a mask that cannot be read by blocks (or not opened: the whole reading then
             // reports it in its own order) leaves the map to be read whole
-            let mask_reader = match &args.mask.mask {
+            let mask_reader = match &args.measuring.mask.mask {
                 None => Some(None),
                 Some(path) => HealpixFitsReader::open(path)
                     .ok()
@@ -153,13 +161,13 @@ fn run_on_footprint(
         ))
     };
     // the column's refusals before anything else, as when the map is read whole
-    map_reader.read_value_range(&args.column, 0, 1)?;
+    map_reader.read_value_range(&args.measuring.column, 0, 1)?;
     for w in &map_reader.header().warnings {
         eprintln!("planisphere: warning: {label}: {w}");
     }
     let (mut map, raw) = match mask_reader {
         None => {
-            let map = read_valid_blocks(&mut map_reader, &args.column)?;
+            let map = read_valid_blocks(&mut map_reader, &args.measuring.column)?;
             if map.stored_valid_count() == 0 {
                 return Err(every_pixel_bad());
             }
@@ -168,11 +176,19 @@ fn run_on_footprint(
             (map, raw)
         }
         Some(mut mask_reader) => {
-            let mask_path = args.mask.mask.as_deref().unwrap_or(Path::new("mask"));
-            let mask = match read_footprint_by_blocks(&mut mask_reader, &args.mask.mask_column) {
+            let mask_path = args
+                .measuring
+                .mask
+                .mask
+                .as_deref()
+                .unwrap_or(Path::new("mask"));
+            let mask = match read_footprint_by_blocks(
+                &mut mask_reader,
+                &args.measuring.mask.mask_column,
+            ) {
                 Ok(mask) => mask,
                 // a map without a valid pixel is refused first, as when read whole
-                Err(_) if !holds_a_valid_pixel(&mut map_reader, &args.column)? => {
+                Err(_) if !holds_a_valid_pixel(&mut map_reader, &args.measuring.column)? => {
                     return Err(every_pixel_bad());
                 }
                 Err(e) => return Err(e),
@@ -186,30 +202,31 @@ fn run_on_footprint(
             let mut map = empty_map(map_reader.header())?;
             read_map_blocks(
                 &mut map_reader,
-                &args.column,
+                &args.measuring.column,
                 &mut map,
                 mask.weighted_blocks(),
             )?;
-            if map.stored_valid_count() == 0 && !holds_a_valid_pixel(&mut map_reader, &args.column)?
+            if map.stored_valid_count() == 0
+                && !holds_a_valid_pixel(&mut map_reader, &args.measuring.column)?
             {
                 return Err(every_pixel_bad());
             }
             super::inputs::check_same_coordsys(
                 (&label, map.coordsys.as_deref()),
                 (&mask_path.display().to_string(), header.coordsys.as_deref()),
-                args.mask.allow_coordsys_mismatch,
+                args.measuring.mask.allow_coordsys_mismatch,
             )?;
             let raw = map.restrict(mask)?;
             super::inputs::refuse_single_pixel_mask(&raw)?;
             (map, raw)
         }
     };
-    let footprint = args.mask.taper_footprint(raw)?;
+    let footprint = args.measuring.mask.taper_footprint(raw)?;
     check_measurable_blocks(&map, &footprint, &label)?;
     let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
     if map.outside() == OutsideBlocks::NotRead {
         let blocks = crate::tiles::reach::read_blocks(measurer.plan())?;
-        read_map_blocks(&mut map_reader, &args.column, &mut map, blocks)?;
+        read_map_blocks(&mut map_reader, &args.measuring.column, &mut map, blocks)?;
     }
     let stats = measurer.measure_blocks(&map, &footprint)?;
     write_single(args, &measurer, &stats)
@@ -232,12 +249,7 @@ fn write_single(
     measurer: &SphereMeasurer,
     stats: &MapStatistics,
 ) -> Result<()> {
-    let mask_name = args.mask.mask.as_ref().map(|p| p.display().to_string());
-    let taper = taper_description(
-        args.mask.taper,
-        args.mask.taper_arcmin,
-        mask_name.as_deref(),
-    );
+    let taper = args.measuring.mask.taper_record();
     let doc = measurement_document(measurer, stats, &args.map.display().to_string(), &taper);
     write_json(&args.output, &doc)?;
     print_measurement(stats, &measurer.summary(), None, &args.output);
@@ -248,7 +260,7 @@ fn write_single(
 /// reading; kept for maps it does not cover and for the memory benchmark).
 pub fn run_reading_whole_map(args: &MeasureArgs) -> Result<()> {
     crate::files::check_output_path(&args.output)?;
-    let mut settings = args.options.settings()?;
+    let mut settings = args.measuring.options.settings()?;
     if args.full_resolution {
         settings.transform.fourier_cropping = false;
     }
@@ -263,7 +275,7 @@ pub fn run_reading_whole_map(args: &MeasureArgs) -> Result<()> {
         &format!("measuring a NSIDE {nside} map"),
         crate::limits::measurement_bytes(nside, maps),
     )?;
-    let map = load_map(&args.map, &args.column)?;
+    let map = load_map(&args.map, &args.measuring.column)?;
     let other = match &args.cross {
         Some(path) => Some(load_second_map(args, &map, path)?),
         None => None,
@@ -275,12 +287,7 @@ pub fn run_reading_whole_map(args: &MeasureArgs) -> Result<()> {
     }
     let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
     let summary = measurer.summary();
-    let mask_name = args.mask.mask.as_ref().map(|p| p.display().to_string());
-    let taper = taper_description(
-        args.mask.taper,
-        args.mask.taper_arcmin,
-        mask_name.as_deref(),
-    );
+    let taper = args.measuring.mask.taper_record();
     let source = args.map.display().to_string();
     let (stats, doc, cross) = match &other {
         None => {
@@ -331,7 +338,7 @@ fn load_second_map(args: &MeasureArgs, map: &SkyMap, path: &Path) -> Result<SkyM
     super::inputs::check_same_coordsys(
         (&args.map.display().to_string(), map.coordsys.as_deref()),
         (&path.display().to_string(), other.coordsys.as_deref()),
-        args.mask.allow_coordsys_mismatch,
+        args.measuring.mask.allow_coordsys_mismatch,
     )?;
     other.to_ordering(map.ordering())
 }
@@ -343,28 +350,30 @@ fn measurement_footprint(
     other: Option<&SkyMap>,
 ) -> Result<Footprint> {
     let Some(other) = other else {
-        return args.mask.footprint_for(map, &args.map);
+        return args.measuring.mask.footprint_for(map, &args.map);
     };
     let first = untapered_footprint(
         map,
         &args.map,
-        args.mask.mask.as_deref(),
-        &args.mask,
-        &args.mask.mask_column,
+        args.measuring.mask.mask.as_deref(),
+        &args.measuring.mask,
+        &args.measuring.mask.mask_column,
     )?;
     let other_path = args.cross.as_deref().unwrap_or(Path::new("second map"));
     let second = untapered_footprint(
         other,
         other_path,
         args.cross_mask.as_deref(),
-        &args.mask,
+        &args.measuring.mask,
         &args.cross_mask_column,
     )
     .map_err(|e| match e {
         Error::Data(m) => Error::Data(format!("second map: {m}")),
         e => e,
     })?;
-    args.mask.taper_footprint(first.intersection(&second)?)
+    args.measuring
+        .mask
+        .taper_footprint(first.intersection(&second)?)
 }
 
 /// Prints the tiles, the file written, the cross-statistic count (count, trusted) and the
@@ -398,7 +407,7 @@ fn print_measurement(
 
 /// Measures a flat field (.npy) as one periodic or masked tile and writes the JSON document.
 fn run_flat(args: &MeasureArgs, settings: MeasurementSettings) -> Result<()> {
-    let o = &args.options.choices;
+    let o = &args.measuring.options.choices;
     let sphere_only = [
         (args.cross.is_some(), "--cross"),
         (
@@ -412,12 +421,12 @@ fn run_flat(args: &MeasureArgs, settings: MeasurementSettings) -> Result<()> {
         (o.sampling.is_some(), "--sampling"),
         (o.border_pixels.is_some(), "--border-pixels"),
         (
-            args.mask.allow_coordsys_mismatch,
+            args.measuring.mask.allow_coordsys_mismatch,
             "--allow-coordsys-mismatch",
         ),
         (
-            args.mask.taper != crate::sky::apodization::TaperKind::C2
-                || args.mask.taper_arcmin != 60.0,
+            args.measuring.mask.taper != crate::sky::apodization::TaperKind::C2
+                || args.measuring.mask.taper_arcmin != 60.0,
             "--taper/--taper-arcmin (a flat mask is used as given)",
         ),
     ];
@@ -436,7 +445,7 @@ fn run_flat(args: &MeasureArgs, settings: MeasurementSettings) -> Result<()> {
     settings.validate()?;
     let field = super::flat_input::read_field(&args.map)?;
     let n = field.size;
-    let mask = match &args.mask.mask {
+    let mask = match &args.measuring.mask.mask {
         Some(path) => Some(super::flat_input::read_mask(path, n)?),
         None => None,
     };
@@ -454,7 +463,8 @@ fn run_flat(args: &MeasureArgs, settings: MeasurementSettings) -> Result<()> {
         n,
         arcmin,
         mask.as_deref(),
-        args.mask
+        args.measuring
+            .mask
             .mask
             .as_ref()
             .map(|p| p.display().to_string())

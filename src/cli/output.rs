@@ -170,8 +170,8 @@ pub fn command_files(command: &super::Command) -> Result<CommandFiles> {
         }
         Command::Measure(a) => {
             f.input("map", Some(&a.map))
-                .input("--mask", a.mask.mask.as_deref())
-                .input("--settings", a.options.settings.as_deref())
+                .input("--mask", a.measuring.mask.mask.as_deref())
+                .input("--settings", a.measuring.options.settings.as_deref())
                 .input("--cross", a.cross.as_deref())
                 .input("--cross-mask", a.cross_mask.as_deref())
                 .output("--output", Some(&a.output));
@@ -237,8 +237,8 @@ fn plot_files(f: &mut CommandFiles, picture: &super::plot::Picture) {
         }
         Picture::TileMap(a) => {
             f.input("map", Some(&a.map))
-                .input("--mask", a.mask.mask.as_deref())
-                .input("--settings", a.options.settings.as_deref())
+                .input("--mask", a.measuring.mask.mask.as_deref())
+                .input("--settings", a.measuring.options.settings.as_deref())
                 .output("--output", Some(&a.output));
         }
         Picture::FlatBias(a) => {

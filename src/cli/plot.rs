@@ -14,8 +14,8 @@
 //! The angular scale of wavelet scale j is its wavelength (8/3)·2^j plane pixels
 //! (see [`SphereMeasurer::wavelet_scale_arcmin`]).
 
-use super::inputs::{load_map, MaskArgs};
-use super::measure::MeasureOptions;
+use super::inputs::load_map;
+use super::measure::MapMeasurementArgs;
 use crate::error::{Error, Result};
 use crate::figures::charts::{
     append_colour_bar, palette, Axis, AxisScale, Cell, ChartPoint, ColourBar, Figure, ImageFormat,
@@ -25,15 +25,11 @@ use crate::figures::plotting::SkyPicture;
 use crate::figures::plotting::{colour_ramp, Rgb};
 use crate::files::write_bytes;
 use crate::forecast::{ConfidenceEllipse, ConfidenceLevel};
-use crate::io::fits_io::ColumnChoice;
-use crate::measure::measurement::{MapStatistics, SphereMeasurer};
+use crate::measure::measurement::SphereMeasurer;
+use crate::measure::tile_statistic::{measured_tiles, paint_tiles, tile_values, TileStatistic};
 use crate::scattering::statistics::{
-    CoefficientKind, CoefficientLabel, CoefficientLayout, CoefficientSpelling, OrientationSummary,
-    SummaryKind, SummaryStatistic,
+    CoefficientLayout, OrientationSummary, SummaryKind, SummaryStatistic,
 };
-use crate::sky::pixelization::{Ordering, Pixelization};
-use crate::sky::skymap::SkyMap;
-use crate::tiles::sampling::TileSampler;
 use clap::Subcommand;
 use std::path::{Path, PathBuf};
 
@@ -100,13 +96,8 @@ pub struct TileMapArgs {
     /// The map (HEALPix FITS).
     #[arg(value_name = "MAP.fits")]
     pub map: PathBuf,
-    /// Column of the map file: 0-based position or name.
-    #[arg(long, default_value = "0")]
-    pub column: ColumnChoice,
     #[command(flatten)]
-    pub mask: MaskArgs,
-    #[command(flatten)]
-    pub options: MeasureOptions,
+    pub measuring: MapMeasurementArgs,
     /// The statistic: `mean`, `variance`, `S1_j<j>` (averaged over orientations), `S1_j<j>_l<l>`,
     /// `bandpower_j<j>[_l<l>]`, `S2_j<j1>_j<j2>` (averaged over l1, l2) or `S2_j<j1>_l<l1>_j<j2>_l<l2>`.
     #[arg(long, value_name = "NAME")]
@@ -178,12 +169,12 @@ fn scale_averages(
         .map(|j| {
             let mine: Vec<&CoefficientRecord> = records
                 .iter()
-                .filter(|c| c.order == order && c.j1 == Some(j) && c.j2.is_none())
+                .filter(|c| c.order == order && c.path.j1 == Some(j) && c.path.j2.is_none())
                 .filter(|c| c.kind.as_deref().is_none_or(|k| k == "scattering"))
                 .collect();
             let per: Vec<(usize, f64, bool)> = mine
                 .iter()
-                .filter_map(|c| Some((c.l1?, c.value.filter(|v| v.is_finite())?, c.trusted)))
+                .filter_map(|c| Some((c.path.l1?, c.value.filter(|v| v.is_finite())?, c.trusted)))
                 .collect();
             let mean =
                 (!per.is_empty()).then(|| per.iter().map(|p| p.1).sum::<f64>() / per.len() as f64);
@@ -928,218 +919,6 @@ pub fn run_ellipses(args: &EllipsesArgs) -> Result<()> {
 // ---------------------------------------------------------------------------------------------
 // Per-tile statistics
 
-/// A statistic measured tile by tile: the labels averaged (each pooled as sums / weights).
-#[derive(Debug, Clone, PartialEq)]
-pub struct TileStatistic {
-    pub name: String,
-    pub kind: CoefficientKind,
-    /// Scales/orientations: `None` means averaged over all.
-    pub j1: Option<usize>,
-    pub l1: Option<usize>,
-    pub j2: Option<usize>,
-    pub l2: Option<usize>,
-}
-
-impl TileStatistic {
-    /// Parses a statistic name (an optional `full.` prefix is accepted).
-    pub fn parse(name: &str) -> Result<Self> {
-        let text = name.trim();
-        let text = text.strip_prefix("full.").unwrap_or(text);
-        let bad = || {
-            Error::Setting(format!(
-                "unknown statistic '{name}': use mean, variance, S1_j<j>[_l<l>], bandpower_j<j>[_l<l>], S2_j<j1>_j<j2> or S2_j<j1>_l<l1>_j<j2>_l<l2>"
-            ))
-        };
-        let mut st = TileStatistic {
-            name: text.to_string(),
-            kind: CoefficientKind::Mean,
-            j1: None,
-            l1: None,
-            j2: None,
-            l2: None,
-        };
-        match text {
-            "mean" => return Ok(st),
-            "variance" => {
-                st.kind = CoefficientKind::Variance;
-                return Ok(st);
-            }
-            _ => {}
-        }
-        let parts: Vec<&str> = text.split('_').collect();
-        let (head, rest) = parts.split_first().ok_or_else(bad)?;
-        let index = |p: &str, prefix: char| -> Option<usize> {
-            p.strip_prefix(prefix).and_then(|d| {
-                (!d.is_empty() && d.chars().all(|c| c.is_ascii_digit())).then(|| d.parse().ok())?
-            })
-        };
-        // The stems of the coefficient names (`S1`, `bandpower`, `S2`) of the one layout.
-        st.kind = [
-            CoefficientKind::FirstOrder,
-            CoefficientKind::BandPower,
-            CoefficientKind::SecondOrder,
-        ]
-        .into_iter()
-        .find(|k| k.stem(CoefficientSpelling::Short) == *head)
-        .ok_or_else(bad)?;
-        match (st.kind, rest) {
-            (CoefficientKind::FirstOrder | CoefficientKind::BandPower, [j]) => {
-                st.j1 = Some(index(j, 'j').ok_or_else(bad)?)
-            }
-            (CoefficientKind::FirstOrder | CoefficientKind::BandPower, [j, l]) => {
-                st.j1 = Some(index(j, 'j').ok_or_else(bad)?);
-                st.l1 = Some(index(l, 'l').ok_or_else(bad)?);
-            }
-            (CoefficientKind::SecondOrder, [a, b]) => {
-                st.j1 = Some(index(a, 'j').ok_or_else(bad)?);
-                st.j2 = Some(index(b, 'j').ok_or_else(bad)?);
-            }
-            (CoefficientKind::SecondOrder, [a, la, b, lb]) => {
-                st.j1 = Some(index(a, 'j').ok_or_else(bad)?);
-                st.l1 = Some(index(la, 'l').ok_or_else(bad)?);
-                st.j2 = Some(index(b, 'j').ok_or_else(bad)?);
-                st.l2 = Some(index(lb, 'l').ok_or_else(bad)?);
-            }
-            _ => return Err(bad()),
-        }
-        Ok(st)
-    }
-
-    /// Checks the indices against J scales and L orientations.
-    pub fn check(&self, scales: usize, orientations: usize) -> Result<()> {
-        let j_bad = [self.j1, self.j2].iter().flatten().any(|&j| j >= scales);
-        let l_bad = [self.l1, self.l2]
-            .iter()
-            .flatten()
-            .any(|&l| l >= orientations);
-        if j_bad || l_bad {
-            return Err(Error::Setting(format!(
-                "statistic '{}' is outside J = {scales} scales (j = 0…{}) and L = {orientations} orientations (l = 0…{})",
-                self.name,
-                scales.saturating_sub(1),
-                orientations.saturating_sub(1)
-            )));
-        }
-        if let (Some(a), Some(b)) = (self.j1, self.j2) {
-            if a >= b {
-                return Err(Error::Setting(format!(
-                    "statistic '{}': second order needs j1 < j2",
-                    self.name
-                )));
-            }
-        }
-        Ok(())
-    }
-
-    fn matches(&self, label: &CoefficientLabel) -> bool {
-        let same = |want: Option<usize>, got: Option<usize>| want.is_none() || want == got;
-        label.kind == self.kind
-            && same(self.j1, label.j1)
-            && same(self.l1, label.l1)
-            && same(self.j2, label.j2)
-            && same(self.l2, label.l2)
-    }
-
-    /// Positions in the engine's label order of the coefficients averaged.
-    pub fn label_indices(&self, labels: &[CoefficientLabel]) -> Vec<usize> {
-        labels
-            .iter()
-            .enumerate()
-            .filter(|(_, l)| self.matches(l))
-            .map(|(i, _)| i)
-            .collect()
-    }
-}
-
-/// The value of `statistic` in one tile: the mean over its coefficients of sums / weights
-/// (those with positive weight); the variance is Σwf²/Σw − (Σwf/Σw)² as in
-/// [`crate::scattering::pooling`]. `None` when no coefficient has weight.
-pub fn tile_value(
-    statistic: &TileStatistic,
-    indices: &[usize],
-    sums: &crate::scattering::pooling::TileSums,
-) -> Option<f64> {
-    if statistic.kind == CoefficientKind::Variance {
-        let (w0, w1) = (*sums.weights.first()?, *sums.weights.get(1)?);
-        if w0 <= 0.0 || w1 <= 0.0 {
-            return None;
-        }
-        let mean = sums.sums[0] / w0;
-        return Some(sums.sums[1] / w1 - mean * mean);
-    }
-    let values: Vec<f64> = indices
-        .iter()
-        .filter_map(|&i| {
-            let w = *sums.weights.get(i)?;
-            (w > 0.0).then(|| sums.sums[i] / w)
-        })
-        .filter(|v| v.is_finite())
-        .collect();
-    (!values.is_empty()).then(|| values.iter().sum::<f64>() / values.len() as f64)
-}
-
-/// Which tiles of the plan the measurement kept (positive pooling weight), in plan order:
-/// the same test as [`SphereMeasurer::measure`] (taper = clamp(mask) · border window, pooling
-/// weight = taper · solid angle over the core).
-fn kept_tiles(
-    measurer: &SphereMeasurer,
-    map: &SkyMap,
-    footprint: &crate::sky::footprint::Footprint,
-) -> Result<Vec<usize>> {
-    let s = measurer.settings();
-    let sampler = TileSampler::new(measurer.plan(), map, footprint, s.sampling)?;
-    let kept =
-        sampler.map_tiles(|grids| Ok(measurer.taper_and_weight(&grids)?.map(|_| grids.tile)))?;
-    Ok(kept.into_iter().flatten().collect())
-}
-
-/// Per-tile values of a statistic, with the plan index of each measured tile.
-pub fn tile_values(
-    measurer: &SphereMeasurer,
-    stats: &MapStatistics,
-    tile_indices: &[usize],
-    statistic: &TileStatistic,
-) -> Result<Vec<(usize, Option<f64>)>> {
-    if tile_indices.len() != stats.per_tile.len() {
-        return Err(Error::Mismatch(format!(
-            "{} tiles measured but {} tile positions given",
-            stats.per_tile.len(),
-            tile_indices.len()
-        )));
-    }
-    let indices = statistic.label_indices(measurer.engine().labels());
-    if indices.is_empty() && statistic.kind != CoefficientKind::Variance {
-        return Err(Error::Setting(format!(
-            "statistic '{}' matches no coefficient of this measurement",
-            statistic.name
-        )));
-    }
-    Ok(tile_indices
-        .iter()
-        .zip(&stats.per_tile)
-        .map(|(&t, sums)| (t, tile_value(statistic, &indices, sums)))
-        .collect())
-}
-
-/// A map (NESTED, at the plan's map NSIDE) whose pixels in the core of each tile hold the
-/// tile's value; pixels of tiles without a value are invalid.
-pub fn paint_tiles(measurer: &SphereMeasurer, values: &[(usize, Option<f64>)]) -> Result<SkyMap> {
-    let plan = measurer.plan();
-    let pix = Pixelization::new(plan.map_pixelization().nside(), Ordering::Nested)?;
-    let mut pixels = vec![f64::NAN; pix.npix() as usize];
-    for &(t, v) in values {
-        if let Some(v) = v {
-            for p in plan.core_pixels(t)? {
-                let p = plan.map_pixelization().to_nested(p)?;
-                if let Some(slot) = pixels.get_mut(p as usize) {
-                    *slot = v;
-                }
-            }
-        }
-    }
-    SkyMap::new(pix, pixels)
-}
-
 pub fn run_tile_map(args: &TileMapArgs) -> Result<()> {
     if check_output(&args.output, args.width)? != ImageFormat::Png {
         return Err(Error::Setting(format!(
@@ -1148,18 +927,14 @@ pub fn run_tile_map(args: &TileMapArgs) -> Result<()> {
         )));
     }
     let statistic = TileStatistic::parse(&args.statistic)?;
-    let settings = args.options.settings()?;
+    let settings = args.measuring.options.settings()?;
     statistic.check(settings.scales, settings.orientations)?;
-    let map = load_map(&args.map, &args.column)?;
-    let footprint = args.mask.footprint_for(&map, &args.map)?;
+    let map = load_map(&args.map, &args.measuring.column)?;
+    let footprint = args.measuring.mask.footprint_for(&map, &args.map)?;
     super::inputs::check_measurable(&map, Some(&footprint), &args.map.display().to_string())?;
     let measurer = SphereMeasurer::new(map.pixelization(), &footprint, settings)?;
     let stats = measurer.measure(&map, &footprint)?;
-    let tiles: Vec<usize> = if stats.per_tile.len() == measurer.plan().len() {
-        (0..measurer.plan().len()).collect()
-    } else {
-        kept_tiles(&measurer, &map, &footprint)?
-    };
+    let tiles = measured_tiles(&measurer, &map, &footprint, &stats)?;
     let values = tile_values(&measurer, &stats, &tiles, &statistic)?;
     let painted = paint_tiles(&measurer, &values)?;
     let finite: Vec<f64> = values.iter().filter_map(|v| v.1).collect();

@@ -476,7 +476,7 @@ fn run_flat(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
             ],
         )?,
     }
-    print_convergence(&outcome.report, target.values.len());
+    print_convergence(&outcome.report, target.matched.values.len());
     println!("synthesised: skewness {skew:.4}, excess kurtosis {kurt:.4}");
     println!("field: {}", args.output.display());
     println!("picture: {}", picture.display());
@@ -623,7 +623,7 @@ fn run_sphere(args: &SynthesizeArgs, picture: &Path) -> Result<()> {
             write_pictures_in_a_row(picture, &pictures)?;
         }
     }
-    print_convergence(&outcome.report, target.values.len());
+    print_convergence(&outcome.report, target.matched.values.len());
     println!("map: {}", args.output.display());
     println!("picture: {}", picture.display());
     Ok(())
@@ -699,7 +699,11 @@ fn draw_beside_target(
         .ok_or_else(|| Error::Data("the target map's spectrum is missing".into()))?;
     let gaussian = gaussian_sky(map.nside(), spectrum, args.seed.wrapping_add(1))?
         .to_ordering(result.ordering())?;
-    let gaussian: Vec<f64> = gaussian.values().iter().map(|v| v + target.mean).collect();
+    let gaussian: Vec<f64> = gaussian
+        .values()
+        .iter()
+        .map(|v| v + target.matched.mean)
+        .collect();
     let shown_gaussian = on_footprint(&SkyMap::new(result.pixelization(), gaussian)?, fp)?;
     let pictures = [
         sphere_panel("target", lon, &shown_target, lo, hi),

@@ -177,19 +177,7 @@ impl Precision {
         labels: Vec<ColumnLabel>,
         covariance: &DMatrix<f64>,
     ) -> Result<Self> {
-        let p = labels.len();
-        if covariance.nrows() != p || covariance.ncols() != p {
-            return Err(Error::Mismatch(format!(
-                "covariance is {} × {} but there are {p} column labels",
-                covariance.nrows(),
-                covariance.ncols()
-            )));
-        }
-        if covariance.iter().any(|v| !v.is_finite()) {
-            return Err(Error::Data(
-                "the covariance contains a value that is not finite".into(),
-            ));
-        }
+        check_square_finite(covariance, labels.len(), "covariance", "column labels")?;
         let names: Vec<String> = labels.iter().map(|l| l.name.clone()).collect();
         let inverse = spd_inverse(covariance).map_err(|failure| {
             let j = match failure {
@@ -244,6 +232,30 @@ pub(crate) fn unit_diagonal(
         }
     });
     Ok((r, scale))
+}
+
+/// Refuses a matrix `name` that is not `n` × `n` for the `n` `items` it should cover, or that
+/// holds a value that is not finite (the covariance of p statistics, a Fisher matrix of k
+/// parameters).
+pub(crate) fn check_square_finite(
+    m: &DMatrix<f64>,
+    n: usize,
+    name: &str,
+    items: &str,
+) -> Result<()> {
+    if m.nrows() != n || m.ncols() != n {
+        return Err(Error::Mismatch(format!(
+            "{name} is {} × {} but there are {n} {items}",
+            m.nrows(),
+            m.ncols()
+        )));
+    }
+    if m.iter().any(|v| !v.is_finite()) {
+        return Err(Error::Data(format!(
+            "the {name} contains a value that is not finite"
+        )));
+    }
+    Ok(())
 }
 
 /// Inverse of a symmetric positive-definite matrix through the Cholesky factorisation of its

@@ -16,7 +16,7 @@
 //! When the two sets share their random seeds (simulation i at +Δ and at −Δ from the same seed),
 //! most of the cosmic variance cancels in the difference and the derivative is much less noisy;
 //! its noise is then estimated from the per-seed differences: Σ_a = Cov(x₊ᵢ − x₋ᵢ)/(4 n Δ²)
-//! ([`FiniteDifference::from_paired_ensembles`]).
+//! ([`FiniteDifference::from_sets`] with `paired`).
 
 use super::covariance::CovarianceEstimate;
 use super::ensemble::{ColumnLabel, Ensemble};
@@ -67,21 +67,48 @@ fn check_inputs(parameter: &str, step: f64, plus: &Ensemble, minus: &Ensemble) -
 }
 
 impl FiniteDifference {
-    /// Central difference from independent simulation sets at θ_a ± Δ_a (`step` = Δ_a > 0):
-    /// μ,a = (x̄₊ − x̄₋)/(2Δ_a), Σ_a = (C₊/n₊ + C₋/n₋)/(4Δ_a²).
-    pub fn from_ensembles(
+    /// Central difference from the simulation sets at θ_a ± Δ_a (`step` = Δ_a > 0), `paired`
+    /// when row i of `plus` and row i of `minus` come from the same seed:
+    ///
+    /// * independent sets: μ,a = (x̄₊ − x̄₋)/(2Δ_a), Σ_a = (C₊/n₊ + C₋/n₋)/(4Δ_a²);
+    /// * paired sets (same number of rows): μ,a = mean(x₊ᵢ − x₋ᵢ)/(2Δ_a) and
+    ///   Σ_a = Cov(x₊ᵢ − x₋ᵢ)/(4 n Δ_a²).
+    pub fn from_sets(
         parameter: &str,
         step: f64,
         plus: &Ensemble,
         minus: &Ensemble,
+        paired: bool,
     ) -> Result<Self> {
         check_inputs(parameter, step, plus, minus)?;
-        let cp = CovarianceEstimate::from_ensemble(plus)?;
-        let cm = CovarianceEstimate::from_ensemble(minus)?;
         let (np, nm) = (plus.n_simulations(), minus.n_simulations());
-        let derivative = (&cp.mean - &cm.mean) / (2.0 * step);
-        let noise_covariance =
-            (cp.covariance / np as f64 + cm.covariance / nm as f64) / (4.0 * step * step);
+        let (derivative, noise_covariance) = if paired {
+            if nm != np {
+                return Err(Error::Mismatch(format!(
+                    "paired derivative sets of parameter '{parameter}' have {np} and {nm} \
+                     simulations; pairing by seed needs equal counts"
+                )));
+            }
+            let differences = plus.values() - minus.values();
+            let p = plus.n_statistics();
+            let flat: Vec<f64> = (0..np)
+                .flat_map(|i| (0..p).map(move |j| (i, j)))
+                .map(|(i, j)| differences[(i, j)])
+                .collect();
+            let diff_ensemble = Ensemble::from_row_major(plus.labels().to_vec(), np, flat)?;
+            let cd = CovarianceEstimate::from_ensemble(&diff_ensemble)?;
+            (
+                cd.mean / (2.0 * step),
+                cd.covariance / (4.0 * step * step * np as f64),
+            )
+        } else {
+            let cp = CovarianceEstimate::from_ensemble(plus)?;
+            let cm = CovarianceEstimate::from_ensemble(minus)?;
+            (
+                (&cp.mean - &cm.mean) / (2.0 * step),
+                (cp.covariance / np as f64 + cm.covariance / nm as f64) / (4.0 * step * step),
+            )
+        };
         Ok(FiniteDifference {
             parameter: parameter.to_string(),
             step,
@@ -90,45 +117,7 @@ impl FiniteDifference {
             noise_covariance,
             n_plus: np,
             n_minus: nm,
-            paired: false,
-        })
-    }
-
-    /// Central difference from sets at θ_a ± Δ_a that share seeds row by row (row i of `plus` and
-    /// row i of `minus` come from the same seed): μ,a = mean(x₊ᵢ − x₋ᵢ)/(2Δ_a) and
-    /// Σ_a = Cov(x₊ᵢ − x₋ᵢ)/(4 n Δ_a²). Both sets must have the same number of rows.
-    pub fn from_paired_ensembles(
-        parameter: &str,
-        step: f64,
-        plus: &Ensemble,
-        minus: &Ensemble,
-    ) -> Result<Self> {
-        check_inputs(parameter, step, plus, minus)?;
-        let n = plus.n_simulations();
-        if minus.n_simulations() != n {
-            return Err(Error::Mismatch(format!(
-                "paired derivative sets of parameter '{parameter}' have {n} and {} simulations; \
-                 pairing by seed needs equal counts",
-                minus.n_simulations()
-            )));
-        }
-        let differences = plus.values() - minus.values();
-        let p = plus.n_statistics();
-        let flat: Vec<f64> = (0..n)
-            .flat_map(|i| (0..p).map(move |j| (i, j)))
-            .map(|(i, j)| differences[(i, j)])
-            .collect();
-        let diff_ensemble = Ensemble::from_row_major(plus.labels().to_vec(), n, flat)?;
-        let cd = CovarianceEstimate::from_ensemble(&diff_ensemble)?;
-        Ok(FiniteDifference {
-            parameter: parameter.to_string(),
-            step,
-            labels: plus.labels().to_vec(),
-            derivative: cd.mean / (2.0 * step),
-            noise_covariance: cd.covariance / (4.0 * step * step * n as f64),
-            n_plus: n,
-            n_minus: n,
-            paired: true,
+            paired,
         })
     }
 

@@ -18,7 +18,7 @@
 //! and Ψ = C⁻¹ this is p/(2 n_d Δ²). The estimate tr(Ψ Σ_a) is reported beside each F_aa, and as
 //! a fraction of it; a fraction above 10% also gives a warning.
 
-use super::covariance::{spd_inverse, unit_diagonal, Precision};
+use super::covariance::{check_square_finite, spd_inverse, unit_diagonal, Precision};
 use super::derivative::FiniteDifference;
 use crate::error::{Error, Result};
 use nalgebra::{DMatrix, SymmetricEigen};
@@ -72,18 +72,7 @@ fn check_fisher_matrix(parameters: &[String], fisher: &DMatrix<f64>) -> Result<(
             "a Fisher forecast needs at least one parameter".into(),
         ));
     }
-    if fisher.nrows() != k || fisher.ncols() != k {
-        return Err(Error::Mismatch(format!(
-            "Fisher matrix is {} × {} but there are {k} parameters",
-            fisher.nrows(),
-            fisher.ncols()
-        )));
-    }
-    if fisher.iter().any(|v| !v.is_finite()) {
-        return Err(Error::Data(
-            "the Fisher matrix contains a value that is not finite".into(),
-        ));
-    }
+    check_square_finite(fisher, k, "Fisher matrix", "parameters")?;
     for a in 0..k {
         for b in 0..a {
             let (x, y) = (fisher[(a, b)], fisher[(b, a)]);

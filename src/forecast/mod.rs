@@ -30,7 +30,7 @@
 //! // Same noise rows at θ ± Δ: paired seeds, so the derivative is exact here.
 //! let plus = Ensemble::from_rows(labels.clone(), &at(1.1))?;
 //! let minus = Ensemble::from_rows(labels, &at(0.9))?;
-//! let d = FiniteDifference::from_paired_ensembles("theta", 0.1, &plus, &minus)?;
+//! let d = FiniteDifference::from_sets("theta", 0.1, &plus, &minus, true)?;
 //! assert!((d.derivative[1] - 2.0).abs() < 1e-12);
 //! let forecast = FisherForecast::from_derivatives(&precision, &[d])?;
 //! println!("σ(θ) = {}", forecast.marginalised_errors[0]);

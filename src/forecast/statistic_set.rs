@@ -177,16 +177,13 @@ pub struct DerivativeEnsembles {
 impl DerivativeEnsembles {
     /// The finite-difference derivative of these sets.
     pub fn finite_difference(&self) -> Result<FiniteDifference> {
-        if self.paired {
-            FiniteDifference::from_paired_ensembles(
-                &self.parameter,
-                self.step,
-                &self.plus,
-                &self.minus,
-            )
-        } else {
-            FiniteDifference::from_ensembles(&self.parameter, self.step, &self.plus, &self.minus)
-        }
+        FiniteDifference::from_sets(
+            &self.parameter,
+            self.step,
+            &self.plus,
+            &self.minus,
+            self.paired,
+        )
     }
 }
 

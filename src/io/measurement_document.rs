@@ -15,7 +15,7 @@ use crate::measure::measurement::{
 use crate::measure::tile_spectra::{TileBispectrum, TilePowerSpectrum};
 use crate::scattering::statistics::{
     Coefficient, CoefficientKind, CoefficientLabel, CrossCoefficient, CrossDirection, CrossKind,
-    SummaryStatistic,
+    SummaryStatistic, WaveletPath,
 };
 use crate::{Error, Result};
 use serde::{Deserialize, Serialize};
@@ -183,18 +183,9 @@ impl RecordedSettings {
 pub struct CoefficientRecord {
     /// Number of wavelets applied (0, 1 or 2).
     pub order: u8,
-    /// Scale of the first wavelet.
-    #[serde(default)]
-    pub j1: Option<usize>,
-    /// Orientation of the first wavelet.
-    #[serde(default)]
-    pub l1: Option<usize>,
-    /// Scale of the second wavelet.
-    #[serde(default)]
-    pub j2: Option<usize>,
-    /// Orientation of the second wavelet.
-    #[serde(default)]
-    pub l2: Option<usize>,
+    /// The wavelets applied (the fields j1, l1, j2, l2; absent ones are null).
+    #[serde(flatten)]
+    pub path: WaveletPath,
     /// Pooled value; null when it could not be computed.
     #[serde(default)]
     pub value: Option<f64>,
@@ -220,10 +211,7 @@ impl CoefficientRecord {
         };
         Self {
             order: c.label.order,
-            j1: c.label.j1,
-            l1: c.label.l1,
-            j2: c.label.j2,
-            l2: c.label.l2,
+            path: c.label.path,
             value: c.value.is_finite().then_some(c.value),
             trusted: c.trusted,
             kept_weight_fraction: Some(c.kept_weight_fraction),
@@ -248,10 +236,7 @@ impl CoefficientRecord {
         Ok(CoefficientLabel {
             kind,
             order: self.order,
-            j1: self.j1,
-            l1: self.l1,
-            j2: self.j2,
-            l2: self.l2,
+            path: self.path,
         })
     }
 }
@@ -415,14 +400,9 @@ pub struct CrossRecord {
     pub modulus_of: Option<String>,
     /// Number of wavelets applied.
     pub order: u8,
-    /// Scale of the first wavelet.
-    pub j1: usize,
-    /// Orientation of the first wavelet.
-    pub l1: usize,
-    /// Scale of the second wavelet.
-    pub j2: Option<usize>,
-    /// Orientation of the second wavelet.
-    pub l2: Option<usize>,
+    /// The wavelets applied (the fields j1, l1, j2, l2; absent ones are null).
+    #[serde(flatten)]
+    pub path: WaveletPath,
     /// Pooled value; null when it could not be computed.
     pub value: Option<f64>,
     /// True when the coefficient is trusted.
@@ -443,10 +423,7 @@ impl CrossRecord {
             field: field.into(),
             modulus_of: modulus_of.map(String::from),
             order: c.label.order,
-            j1: c.label.j1,
-            l1: c.label.l1,
-            j2: c.label.j2,
-            l2: c.label.l2,
+            path: c.label.path,
             value: c.value.is_finite().then_some(c.value),
             trusted: c.trusted,
             kept_weight_fraction: Some(c.kept_weight_fraction),
@@ -548,9 +525,7 @@ impl MeasurementFile {
             return Err("settings.pixel_arcmin must be a positive number".into());
         }
         for c in file.coefficients.iter().chain(&file.band_powers) {
-            let j_ok = c.j1.is_none_or(|j| j < jn) && c.j2.is_none_or(|j| j < jn);
-            let l_ok = c.l1.is_none_or(|l| l < ln) && c.l2.is_none_or(|l| l < ln);
-            if !(j_ok && l_ok) {
+            if !c.path.within(jn, ln) {
                 return Err(format!(
                     "a coefficient has scale or orientation indices beyond J = {jn}, L = {ln}"
                 ));

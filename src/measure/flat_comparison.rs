@@ -185,12 +185,12 @@ fn scale_convergence(
         let mut scales: Vec<usize> = labels
             .iter()
             .filter(|l| l.kind == kind)
-            .filter_map(|l| l.j1)
+            .filter_map(|l| l.path.j1)
             .collect();
         scales.dedup();
         for j in scales {
             let columns: Vec<usize> = (0..labels.len())
-                .filter(|&k| labels[k].kind == kind && labels[k].j1 == Some(j))
+                .filter(|&k| labels[k].kind == kind && labels[k].path.j1 == Some(j))
                 .collect();
             let per_field = |sets: &[crate::scattering::statistics::CoefficientSet]| -> Vec<f64> {
                 sets.iter()
@@ -381,7 +381,7 @@ fn comparison_rows(
             cells: summary.cells.clone(),
             coefficient: l.name(CoefficientSpelling::Short),
             order: l.order,
-            j1: l.j1,
+            j1: l.path.j1,
             sphere_mean: sm,
             sphere_error: se,
             flat_mean: fm,

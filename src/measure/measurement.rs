@@ -417,6 +417,18 @@ pub struct TileTaper {
     pub weight_sum: f64,
 }
 
+/// The results of the tiles kept (those with pooling weight), in plan order; an error naming
+/// the `footprint` ("apodized", "common") when no tile was kept.
+fn kept_tiles<T>(per_tile: Vec<Option<T>>, footprint: &str) -> Result<Vec<T>> {
+    let kept: Vec<T> = per_tile.into_iter().flatten().collect();
+    if kept.is_empty() {
+        return Err(Error::Data(format!(
+            "no tile has positive pooling weight: the {footprint} footprint is empty"
+        )));
+    }
+    Ok(kept)
+}
+
 /// The C2 window of the tile border: 1 inside, rising over `border` pixels from the edge.
 pub fn border_window(n: usize, border: usize) -> Vec<f64> {
     let ramp = |i: usize| {
@@ -615,30 +627,19 @@ impl SphereMeasurer {
     ) -> Result<MapStatistics> {
         let sampler = TileSampler::new(&self.plan, map, footprint, self.settings.sampling)?;
         let per_tile: Vec<Option<TileResult>> = sampler.map_tiles(|grids| {
-            let Some(TileTaper {
-                taper,
-                weight,
-                weight_sum: wsum,
-            }) = self.taper_and_weight(&grids)?
-            else {
+            let Some(t) = self.taper_and_weight(&grids)? else {
                 return Ok(None);
             };
             let view = crate::scattering::transform::TileView {
                 field: &grids.field,
-                taper: &taper,
-                weight: &weight,
+                taper: &t.taper,
+                weight: &t.weight,
             };
             let sums = self.engine.transform_tile(&view)?;
-            let (power, bis) = self.tile_fourier(&grids.field, &taper, wsum)?;
+            let (power, bis) = self.tile_fourier(&grids.field, &t)?;
             Ok(Some((sums, power, bis)))
         })?;
-        let kept: Vec<_> = per_tile.into_iter().flatten().collect();
-        if kept.is_empty() {
-            return Err(Error::Data(
-                "no tile has positive pooling weight: the apodized footprint is empty".into(),
-            ));
-        }
-        self.assemble(kept)
+        self.assemble(kept_tiles(per_tile, "apodized")?)
     }
 
     /// Pools the per-tile results of one map (in plan order) into its statistics.
@@ -668,13 +669,14 @@ impl SphereMeasurer {
         })
     }
 
-    /// The tile power spectrum and (if enabled) bispectrum of one tile's field.
+    /// The tile power spectrum and (if enabled) bispectrum of one tile's field under the
+    /// tile's taper.
     fn tile_fourier(
         &self,
         field: &[f64],
-        taper: &[f64],
-        wsum: f64,
+        t: &TileTaper,
     ) -> Result<(TilePowerSpectrum, Option<TileBispectrum>)> {
+        let (taper, wsum) = (t.taper.as_slice(), t.weight_sum);
         let power = self.fourier.power_spectrum(field, taper, wsum)?;
         let bis = if self.settings.bispectrum {
             Some(
@@ -722,34 +724,24 @@ impl SphereMeasurer {
         let per_tile = sampler_a.map_tiles(|grids| {
             let other = sampler_b.sample(grids.tile)?;
             // the common footprint is zero on both maps' bad pixels, so both read the same mask
-            let Some(TileTaper {
-                taper,
-                weight,
-                weight_sum: wsum,
-            }) = self.taper_and_weight(&grids)?
-            else {
+            let Some(t) = self.taper_and_weight(&grids)? else {
                 return Ok(None);
             };
             let sums = self.engine.transform_tile_pair(&TilePairView {
                 first: &grids.field,
                 second: &other.field,
-                taper: &taper,
-                weight: &weight,
+                taper: &t.taper,
+                weight: &t.weight,
             })?;
-            let (pa, ba) = self.tile_fourier(&grids.field, &taper, wsum)?;
-            let (pb, bb) = self.tile_fourier(&other.field, &taper, wsum)?;
+            let (pa, ba) = self.tile_fourier(&grids.field, &t)?;
+            let (pb, bb) = self.tile_fourier(&other.field, &t)?;
             Ok(Some((
                 (sums.first, pa, ba),
                 (sums.second, pb, bb),
                 sums.cross,
             )))
         })?;
-        let kept: Vec<_> = per_tile.into_iter().flatten().collect();
-        if kept.is_empty() {
-            return Err(Error::Data(
-                "no tile has positive pooling weight: the common footprint is empty".into(),
-            ));
-        }
+        let kept = kept_tiles(per_tile, "common")?;
         let mut firsts = Vec::with_capacity(kept.len());
         let mut seconds = Vec::with_capacity(kept.len());
         let mut crosses = Vec::with_capacity(kept.len());
@@ -761,10 +753,7 @@ impl SphereMeasurer {
         let total = combine_tiles(&crosses)?;
         let mut cross = pooled_cross_coefficients(&self.engine, &total)?;
         for c in cross.coefficients.iter_mut() {
-            let resolved = [Some(c.label.j1), c.label.j2]
-                .iter()
-                .flatten()
-                .all(|&j| self.scale_is_resolved(j));
+            let resolved = c.label.path.scales().all(|j| self.scale_is_resolved(j));
             c.trusted &= resolved && c.value.is_finite();
         }
         Ok(PairStatistics {
@@ -796,10 +785,7 @@ impl SphereMeasurer {
             let resolved = match c.label.kind {
                 CoefficientKind::Mean => true,
                 CoefficientKind::Variance => self.scale_is_resolved(0),
-                _ => [c.label.j1, c.label.j2]
-                    .iter()
-                    .flatten()
-                    .all(|&j| self.scale_is_resolved(j)),
+                _ => c.label.path.scales().all(|j| self.scale_is_resolved(j)),
             };
             c.trusted &= resolved;
         }
@@ -817,7 +803,7 @@ impl SphereMeasurer {
             let name = l.name(CoefficientSpelling::Short);
             let scale = match l.kind {
                 CoefficientKind::Mean | CoefficientKind::Variance => None,
-                _ => l.j1.map(|j| self.wavelet_scale_arcmin(j)),
+                _ => l.path.j1.map(|j| self.wavelet_scale_arcmin(j)),
             };
             out.push(StatisticLabel {
                 name: format!("full.{name}"),

@@ -19,7 +19,7 @@
 //! one of synthesis targets (`first_order_j0_l1`, `band_power_j0_l1`,
 //! `second_order_j0_l1_j2_l3`); order 0 is `mean` and `variance` in both.
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// What a coefficient measures.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
@@ -64,13 +64,13 @@ impl CoefficientKind {
     }
 }
 
-/// Label of one coefficient: its kind, order and the scales/orientations it involves.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
-pub struct CoefficientLabel {
-    /// What is measured.
-    pub kind: CoefficientKind,
-    /// Number of wavelets applied (0, 1 or 2).
-    pub order: u8,
+/// The wavelets a coefficient went through: scale j and orientation l of the first wavelet
+/// and of the second. An index is `None` where no such wavelet was applied (order 0, and the
+/// second wavelet of order 1) or, in a selection ([`Self::selects`]), where any value will do.
+/// Serialised (flattened into its owner) as the fields `j1`, `l1`, `j2`, `l2`; read back, an
+/// absent or null field is `None`.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Hash, Serialize, Deserialize)]
+pub struct WaveletPath {
     /// Scale of the first wavelet.
     pub j1: Option<usize>,
     /// Orientation of the first wavelet.
@@ -81,16 +81,138 @@ pub struct CoefficientLabel {
     pub l2: Option<usize>,
 }
 
+impl WaveletPath {
+    /// No wavelet (order 0).
+    pub const NONE: Self = Self {
+        j1: None,
+        l1: None,
+        j2: None,
+        l2: None,
+    };
+
+    /// One wavelet of scale j, orientation l (order 1).
+    pub fn first(j: usize, l: usize) -> Self {
+        Self {
+            j1: Some(j),
+            l1: Some(l),
+            ..Self::NONE
+        }
+    }
+
+    /// Two wavelets, (j1, l1) then (j2, l2) (order 2).
+    pub fn second(j1: usize, l1: usize, j2: usize, l2: usize) -> Self {
+        Self {
+            j1: Some(j1),
+            l1: Some(l1),
+            j2: Some(j2),
+            l2: Some(l2),
+        }
+    }
+
+    /// True when neither index of the second wavelet is given.
+    pub fn has_no_second(&self) -> bool {
+        self.j2.is_none() && self.l2.is_none()
+    }
+
+    /// True when no index is given.
+    pub fn is_empty(&self) -> bool {
+        self.j1.is_none() && self.l1.is_none() && self.has_no_second()
+    }
+
+    /// The scales given, the first wavelet's first.
+    pub fn scales(&self) -> impl Iterator<Item = usize> {
+        [self.j1, self.j2].into_iter().flatten()
+    }
+
+    /// True when every given scale is below `scales` and every given orientation below
+    /// `orientations`.
+    pub fn within(&self, scales: usize, orientations: usize) -> bool {
+        let l_ok = [self.l1, self.l2]
+            .into_iter()
+            .flatten()
+            .all(|l| l < orientations);
+        self.scales().all(|j| j < scales) && l_ok
+    }
+
+    /// True when this path, read as a selection, takes `other`: each index given here equals
+    /// the one of `other`; an index not given here takes any.
+    pub fn selects(&self, other: &WaveletPath) -> bool {
+        let same = |want: Option<usize>, got: Option<usize>| want.is_none() || want == got;
+        same(self.j1, other.j1)
+            && same(self.l1, other.l1)
+            && same(self.j2, other.j2)
+            && same(self.l2, other.l2)
+    }
+
+    /// The name suffix of a coefficient of `wavelets` wavelets: empty for 0, `_j{j1}_l{l1}`
+    /// for 1, `_j{j1}_l{l1}_j{j2}_l{l2}` for 2 (a missing index is written 0).
+    pub fn suffix(&self, wavelets: u8) -> String {
+        let (j1, l1) = (self.j1.unwrap_or(0), self.l1.unwrap_or(0));
+        let (j2, l2) = (self.j2.unwrap_or(0), self.l2.unwrap_or(0));
+        match wavelets {
+            0 => String::new(),
+            1 => format!("_j{j1}_l{l1}"),
+            _ => format!("_j{j1}_l{l1}_j{j2}_l{l2}"),
+        }
+    }
+
+    /// The path written by the parts of a name between underscores: `j{j}`, `j{j}_l{l}`,
+    /// `j{j1}_j{j2}`, `j{j1}_l{l1}_j{j2}_l{l2}` (indices decimal digits only; the forms
+    /// without orientations leave them unset). None for any other parts.
+    pub fn parse_parts(parts: &[&str]) -> Option<Self> {
+        let index = |part: &str, letter: char| -> Option<usize> {
+            let digits = part.strip_prefix(letter)?;
+            let ok = !digits.is_empty() && digits.bytes().all(|b| b.is_ascii_digit());
+            ok.then(|| digits.parse().ok())?
+        };
+        let (j, l) = (|p| index(p, 'j'), |p| index(p, 'l'));
+        match parts {
+            [a] => Some(Self {
+                j1: Some(j(a)?),
+                ..Self::NONE
+            }),
+            [a, b] if b.starts_with('l') => Some(Self::first(j(a)?, l(b)?)),
+            [a, b] => Some(Self {
+                j1: Some(j(a)?),
+                j2: Some(j(b)?),
+                ..Self::NONE
+            }),
+            [a, b, c, d] => Some(Self::second(j(a)?, l(b)?, j(c)?, l(d)?)),
+            _ => None,
+        }
+    }
+
+    /// The number of wavelets of a complete path: 0 with no index, 1 with (j1, l1) alone, 2
+    /// with all four; None for a partial path.
+    pub fn wavelet_count(&self) -> Option<u8> {
+        match (self.j1, self.l1, self.j2, self.l2) {
+            (None, None, None, None) => Some(0),
+            (Some(_), Some(_), None, None) => Some(1),
+            (Some(_), Some(_), Some(_), Some(_)) => Some(2),
+            _ => None,
+        }
+    }
+}
+
+/// Label of one coefficient: its kind, order and the scales/orientations it involves.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+pub struct CoefficientLabel {
+    /// What is measured.
+    pub kind: CoefficientKind,
+    /// Number of wavelets applied (0, 1 or 2).
+    pub order: u8,
+    /// The wavelets applied (serialised as the fields j1, l1, j2, l2).
+    #[serde(flatten)]
+    pub path: WaveletPath,
+}
+
 impl CoefficientLabel {
     /// An order-0 label (mean or variance).
     pub fn order_zero(kind: CoefficientKind) -> Self {
         Self {
             kind,
             order: 0,
-            j1: None,
-            l1: None,
-            j2: None,
-            l2: None,
+            path: WaveletPath::NONE,
         }
     }
 
@@ -99,10 +221,7 @@ impl CoefficientLabel {
         Self {
             kind,
             order: 1,
-            j1: Some(j),
-            l1: Some(l),
-            j2: None,
-            l2: None,
+            path: WaveletPath::first(j, l),
         }
     }
 
@@ -111,26 +230,26 @@ impl CoefficientLabel {
         Self {
             kind: CoefficientKind::SecondOrder,
             order: 2,
-            j1: Some(j1),
-            l1: Some(l1),
-            j2: Some(j2),
-            l2: Some(l2),
+            path: WaveletPath::second(j1, l1, j2, l2),
+        }
+    }
+
+    /// The number of wavelets a kind implies: 0 for mean and variance, 1 for S1 and band
+    /// powers, 2 for S2.
+    fn wavelets_of(kind: CoefficientKind) -> u8 {
+        match kind {
+            CoefficientKind::Mean | CoefficientKind::Variance => 0,
+            CoefficientKind::FirstOrder | CoefficientKind::BandPower => 1,
+            CoefficientKind::SecondOrder => 2,
         }
     }
 
     /// The coefficient's name in a spelling: the stem of its kind followed by `_j{j1}_l{l1}`
-    /// (orders 1 and 2) and `_j{j2}_l{l2}` (order 2); a missing index is written 0.
+    /// (orders 1 and 2) and `_j{j2}_l{l2}` (order 2); a missing index is written 0
+    /// ([`WaveletPath::suffix`]).
     pub fn name(&self, spelling: CoefficientSpelling) -> String {
         let stem = self.kind.stem(spelling);
-        let (j1, l1) = (self.j1.unwrap_or(0), self.l1.unwrap_or(0));
-        let (j2, l2) = (self.j2.unwrap_or(0), self.l2.unwrap_or(0));
-        match self.kind {
-            CoefficientKind::Mean | CoefficientKind::Variance => stem.to_string(),
-            CoefficientKind::FirstOrder | CoefficientKind::BandPower => {
-                format!("{stem}_j{j1}_l{l1}")
-            }
-            CoefficientKind::SecondOrder => format!("{stem}_j{j1}_l{l1}_j{j2}_l{l2}"),
-        }
+        format!("{stem}{}", self.path.suffix(Self::wavelets_of(self.kind)))
     }
 }
 
@@ -145,35 +264,19 @@ impl CoefficientLabel {
             CoefficientKind::BandPower,
             CoefficientKind::SecondOrder,
         ];
-        let index = |part: &str, letter: char| -> Option<usize> {
-            let digits = part.strip_prefix(letter)?;
-            let ok = !digits.is_empty() && digits.bytes().all(|b| b.is_ascii_digit());
-            ok.then(|| digits.parse().ok())?
-        };
         kinds.into_iter().find_map(|kind| {
             let rest = name.strip_prefix(kind.stem(spelling))?;
-            let parts: Vec<&str> = rest.split('_').skip(1).collect();
-            match (kind, rest.is_empty(), parts.as_slice()) {
-                (CoefficientKind::Mean | CoefficientKind::Variance, true, _) => {
-                    Some(Self::order_zero(kind))
-                }
-                (CoefficientKind::FirstOrder | CoefficientKind::BandPower, false, [j, l])
-                    if rest.starts_with('_') =>
-                {
-                    Some(Self::order_one(kind, index(j, 'j')?, index(l, 'l')?))
-                }
-                (CoefficientKind::SecondOrder, false, [j1, l1, j2, l2])
-                    if rest.starts_with('_') =>
-                {
-                    Some(Self::order_two(
-                        index(j1, 'j')?,
-                        index(l1, 'l')?,
-                        index(j2, 'j')?,
-                        index(l2, 'l')?,
-                    ))
-                }
-                _ => None,
-            }
+            let wavelets = Self::wavelets_of(kind);
+            let path = match rest.strip_prefix('_') {
+                None if rest.is_empty() => WaveletPath::NONE,
+                None => return None,
+                Some(tail) => WaveletPath::parse_parts(&tail.split('_').collect::<Vec<_>>())?,
+            };
+            (path.wavelet_count() == Some(wavelets)).then_some(Self {
+                kind,
+                order: wavelets,
+                path,
+            })
         })
     }
 }
@@ -281,28 +384,20 @@ impl CoefficientLayout {
         let (jn, ln) = (self.scale_count, self.orientation_count);
         let scale = |j: Option<usize>| j.filter(|&j| j < jn);
         let angle = |l: Option<usize>| l.filter(|&l| l < ln);
-        let unused = |a: Option<usize>, b: Option<usize>| a.is_none() && b.is_none();
+        let path = &label.path;
         match (label.kind, label.order) {
-            (CoefficientKind::Mean, 0)
-                if unused(label.j1, label.l1) && unused(label.j2, label.l2) =>
-            {
-                Some(Self::MEAN)
+            (CoefficientKind::Mean, 0) if path.is_empty() => Some(Self::MEAN),
+            (CoefficientKind::Variance, 0) if path.is_empty() => Some(Self::VARIANCE),
+            (CoefficientKind::FirstOrder, 1) if path.has_no_second() => {
+                Some(self.first_order(scale(path.j1)?, angle(path.l1)?))
             }
-            (CoefficientKind::Variance, 0)
-                if unused(label.j1, label.l1) && unused(label.j2, label.l2) =>
-            {
-                Some(Self::VARIANCE)
-            }
-            (CoefficientKind::FirstOrder, 1) if unused(label.j2, label.l2) => {
-                Some(self.first_order(scale(label.j1)?, angle(label.l1)?))
-            }
-            (CoefficientKind::BandPower, 1) if unused(label.j2, label.l2) => {
-                Some(self.band_power(scale(label.j1)?, angle(label.l1)?))
+            (CoefficientKind::BandPower, 1) if path.has_no_second() => {
+                Some(self.band_power(scale(path.j1)?, angle(path.l1)?))
             }
             (CoefficientKind::SecondOrder, 2) => {
-                let (j1, j2) = (scale(label.j1)?, scale(label.j2)?);
+                let (j1, j2) = (scale(path.j1)?, scale(path.j2)?);
                 (j1 < j2).then_some(())?;
-                Some(self.second_order(j1, angle(label.l1)?, j2, angle(label.l2)?))
+                Some(self.second_order(j1, angle(path.l1)?, j2, angle(path.l2)?))
             }
             _ => None,
         }
@@ -351,16 +446,16 @@ mod tests {
                     CoefficientKind::Mean => CoefficientLayout::MEAN,
                     CoefficientKind::Variance => CoefficientLayout::VARIANCE,
                     CoefficientKind::FirstOrder => {
-                        layout.first_order(label.j1.unwrap(), label.l1.unwrap())
+                        layout.first_order(label.path.j1.unwrap(), label.path.l1.unwrap())
                     }
                     CoefficientKind::BandPower => {
-                        layout.band_power(label.j1.unwrap(), label.l1.unwrap())
+                        layout.band_power(label.path.j1.unwrap(), label.path.l1.unwrap())
                     }
                     CoefficientKind::SecondOrder => layout.second_order(
-                        label.j1.unwrap(),
-                        label.l1.unwrap(),
-                        label.j2.unwrap(),
-                        label.l2.unwrap(),
+                        label.path.j1.unwrap(),
+                        label.path.l1.unwrap(),
+                        label.path.j2.unwrap(),
+                        label.path.l2.unwrap(),
                     ),
                 };
                 assert_eq!(direct, i, "{label:?}");
@@ -415,6 +510,41 @@ mod tests {
             assert_eq!(CoefficientLabel::parse(bad, Short), None, "{bad}");
         }
         assert_eq!(CoefficientLabel::parse("S1_j0_l0", SpelledOut), None);
+    }
+
+    /// Read back flattened into a record, absent and null indices are `None` (serde's rule for
+    /// `Option` fields, common practice), and a path writes back as it was read.
+    #[test]
+    fn paths_read_absent_and_null_indices_as_none() {
+        #[derive(Debug, PartialEq, Serialize, Deserialize)]
+        struct Record {
+            order: u8,
+            #[serde(flatten)]
+            path: WaveletPath,
+        }
+        let read = |text: &str| serde_json::from_str::<Record>(text).unwrap();
+        let first = read(r#"{"order": 1, "j1": 2, "l1": 3, "j2": null}"#);
+        assert_eq!(first.path, WaveletPath::first(2, 3));
+        assert_eq!(read(r#"{"order": 0}"#).path, WaveletPath::NONE);
+        assert_eq!(
+            serde_json::to_string(&first).unwrap(),
+            r#"{"order":1,"j1":2,"l1":3,"j2":null,"l2":null}"#
+        );
+    }
+
+    /// A path read as a selection takes every path that agrees on the indices it gives; the
+    /// range check looks at the given indices only.
+    #[test]
+    fn selections_and_ranges_look_at_given_indices_only() {
+        let averaged = WaveletPath::parse_parts(&["j1", "j3"]).unwrap();
+        assert!(averaged.selects(&WaveletPath::second(1, 0, 3, 2)));
+        assert!(!averaged.selects(&WaveletPath::second(1, 0, 2, 2)));
+        assert!(!averaged.selects(&WaveletPath::first(1, 0)));
+        assert!(averaged.within(4, 1));
+        assert!(!averaged.within(3, 1));
+        assert!(!WaveletPath::first(0, 4).within(1, 4));
+        assert_eq!(averaged.wavelet_count(), None);
+        assert_eq!(WaveletPath::parse_parts(&["j1", "x3"]), None);
     }
 
     /// Both spellings of one label of each kind.

@@ -22,7 +22,7 @@ pub mod transform;
 
 pub use fft::{SquareFft, SquareFftPlanner};
 pub use filters::MorletBank;
-pub use layout::{CoefficientLayout, CoefficientSpelling};
+pub use layout::{CoefficientLayout, CoefficientSpelling, WaveletPath};
 pub use pooling::TileSums;
 pub use statistics::{
     CoefficientKind, CoefficientLabel, CoefficientSet, CrossCoefficientSet, OrientationSummary,

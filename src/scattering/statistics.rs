@@ -61,7 +61,7 @@ use crate::{Error, Result};
 use serde::Serialize;
 
 pub use super::layout::{
-    CoefficientKind, CoefficientLabel, CoefficientLayout, CoefficientSpelling,
+    CoefficientKind, CoefficientLabel, CoefficientLayout, CoefficientSpelling, WaveletPath,
 };
 
 /// One pooled coefficient with its label.
@@ -521,34 +521,23 @@ pub struct CrossLabel {
     pub direction: CrossDirection,
     /// Number of wavelets applied to the modulus side (1 or 2).
     pub order: u8,
-    /// Scale of the first wavelet.
-    pub j1: usize,
-    /// Orientation of the first wavelet.
-    pub l1: usize,
-    /// Scale of the second wavelet (order 2 only).
-    pub j2: Option<usize>,
-    /// Orientation of the second wavelet (order 2 only).
-    pub l2: Option<usize>,
+    /// The wavelets applied (first always; second for order 2 only), serialised as the
+    /// fields j1, l1, j2, l2.
+    #[serde(flatten)]
+    pub path: WaveletPath,
 }
 
 impl CrossLabel {
     /// The column name of this coefficient, e.g. `cross_bandpower_ab_j2_l0`,
     /// `cross_envelope1_a_on_b_j2_l0`, `cross_envelope2_b_on_a_j1_l0_j2_l3`.
     pub fn name(&self) -> String {
+        let (stem, wavelets) = match self.kind {
+            CrossKind::CrossBandPower => ("cross_bandpower", 1),
+            CrossKind::EnvelopeFirstOrder => ("cross_envelope1", 1),
+            CrossKind::EnvelopeSecondOrder => ("cross_envelope2", 2),
+        };
         let tag = self.direction.tag();
-        match self.kind {
-            CrossKind::CrossBandPower => format!("cross_bandpower_{tag}_j{}_l{}", self.j1, self.l1),
-            CrossKind::EnvelopeFirstOrder => {
-                format!("cross_envelope1_{tag}_j{}_l{}", self.j1, self.l1)
-            }
-            CrossKind::EnvelopeSecondOrder => format!(
-                "cross_envelope2_{tag}_j{}_l{}_j{}_l{}",
-                self.j1,
-                self.l1,
-                self.j2.unwrap_or(0),
-                self.l2.unwrap_or(0)
-            ),
-        }
+        format!("{stem}_{tag}{}", self.path.suffix(wavelets))
     }
 }
 
@@ -575,10 +564,7 @@ pub fn cross_labels(scale_count: usize, orientation_count: usize) -> Vec<CrossLa
                     kind,
                     direction,
                     order: 1,
-                    j1: j,
-                    l1: l,
-                    j2: None,
-                    l2: None,
+                    path: WaveletPath::first(j, l),
                 });
             }
         }
@@ -595,10 +581,7 @@ pub fn cross_labels(scale_count: usize, orientation_count: usize) -> Vec<CrossLa
                             kind: CrossKind::EnvelopeSecondOrder,
                             direction,
                             order: 2,
-                            j1,
-                            l1,
-                            j2: Some(j2),
-                            l2: Some(l2),
+                            path: WaveletPath::second(j1, l1, j2, l2),
                         });
                     }
                 }

@@ -752,10 +752,49 @@ struct TileTerms {
 type SecondGridLayer = Vec<Option<Vec<Complex64>>>;
 
 /// Coverage of one tile per scale j: the trust mask N_j ≥ τ and 1/√N_j on the grids of j.
-struct Coverage {
-    trust: Vec<Vec<bool>>,
-    first: Vec<Vec<f64>>,
-    second: Vec<Vec<f64>>,
+/// (The differentiable transform of [`crate::synthesis`] builds the same from its own FFTs.)
+pub(crate) struct Coverage {
+    /// [N_j ≥ τ] on the full grid.
+    pub(crate) trust: Vec<Vec<bool>>,
+    /// 1/√max(N_j, floor) on the first-layer grid of j.
+    pub(crate) first: Vec<Vec<f64>>,
+    /// 1/√max(N_j, floor) on the second-layer grid of j.
+    pub(crate) second: Vec<Vec<f64>>,
+}
+
+impl Coverage {
+    /// No scale yet, room for `scales`.
+    pub(crate) fn with_capacity(scales: usize) -> Self {
+        Self {
+            trust: Vec::with_capacity(scales),
+            first: Vec::with_capacity(scales),
+            second: Vec::with_capacity(scales),
+        }
+    }
+
+    /// Adds the next scale from its coverage N_j on the full n × n grid: the trust mask
+    /// [N_j ≥ τ] and 1/√max(N_j, [`COVERAGE_FLOOR`]) subsampled to the grids of levels
+    /// `first_level` (first layer) and `second_level` (second layer).
+    pub(crate) fn push_scale(
+        &mut self,
+        cov: &[f64],
+        n: usize,
+        tau: f64,
+        (first_level, second_level): (usize, usize),
+    ) {
+        self.trust.push(cov.iter().map(|&v| v >= tau).collect());
+        for (target, level) in [
+            (&mut self.first, first_level),
+            (&mut self.second, second_level),
+        ] {
+            target.push(
+                subsample(cov, n, n >> level)
+                    .iter()
+                    .map(|c| 1.0 / c.max(COVERAGE_FLOOR).sqrt())
+                    .collect::<Vec<f64>>(),
+            );
+        }
+    }
 }
 
 /// One field's first layer, index j·L + l: g_{j,l} (kept for a pair only), U_{j,l} and μ_U.
@@ -1276,9 +1315,7 @@ impl ScatteringEngine {
         let a2: Vec<f64> = a.iter().map(|a| a * a).collect();
         let a2_spec = self.real_spectrum(0, &a2, clock);
         let tau = self.settings.coverage_threshold;
-        let mut trust: Vec<Vec<bool>> = Vec::with_capacity(big_j);
-        let mut coverage_first: Vec<Vec<f64>> = Vec::with_capacity(big_j);
-        let mut coverage_second: Vec<Vec<f64>> = Vec::with_capacity(big_j);
+        let mut coverage = Coverage::with_capacity(big_j);
         for j in 0..big_j {
             let c: Vec<Complex64> = a2_spec
                 .iter()
@@ -1290,24 +1327,9 @@ impl ScatteringEngine {
                 .iter()
                 .map(|v| v / nn as f64)
                 .collect();
-            trust.push(cov.iter().map(|&v| v >= tau).collect());
-            for (target, level) in [
-                (&mut coverage_first, self.levels[j]),
-                (&mut coverage_second, self.second_levels[j]),
-            ] {
-                target.push(
-                    subsample(&cov, n, n >> level)
-                        .iter()
-                        .map(|c| 1.0 / c.max(COVERAGE_FLOOR).sqrt())
-                        .collect::<Vec<f64>>(),
-                );
-            }
+            coverage.push_scale(&cov, n, tau, (self.levels[j], self.second_levels[j]));
         }
-        Coverage {
-            trust,
-            first: coverage_first,
-            second: coverage_second,
-        }
+        coverage
     }
 
     /// Pooling weights of the pairs (j1, j2), j2 > j1: w where both scales are trusted,

@@ -243,6 +243,19 @@ impl SkyRecipe {
     }
 }
 
+/// The band limit of a sky of `nside`: `lmax`, or 3·NSIDE − 1 when not given, checked against
+/// the NSIDE ([`crate::limits::check_lmax`], the value named `what`) and against the memory a
+/// sky up to it needs (lognormal or not).
+pub fn checked_lmax(nside: u32, lmax: Option<usize>, lognormal: bool, what: &str) -> Result<usize> {
+    let lmax = lmax.unwrap_or(3 * nside as usize - 1);
+    crate::limits::check_lmax(what, lmax, nside)?;
+    crate::limits::check_memory(
+        &format!("a NSIDE {nside} sky up to ℓ = {lmax}"),
+        crate::limits::sky_bytes(nside, lmax, lognormal),
+    )?;
+    Ok(lmax)
+}
+
 /// Where a simulated sky's spectrum comes from.
 #[derive(Debug, Clone)]
 pub enum SpectrumChoice {
@@ -288,12 +301,8 @@ impl SkyOptions {
             )));
         }
         crate::limits::check_index_range(self.first_index, self.count)?;
-        let lmax = self.lmax.unwrap_or(3 * self.nside as usize - 1);
-        crate::limits::check_lmax("--lmax", lmax, self.nside)?;
-        crate::limits::check_memory(
-            &format!("a NSIDE {} sky up to ℓ = {lmax}", self.nside),
-            crate::limits::sky_bytes(self.nside, lmax, self.lognormal_shift.is_some()),
-        )?;
+        let lognormal = self.lognormal_shift.is_some();
+        let lmax = checked_lmax(self.nside, self.lmax, lognormal, "--lmax")?;
         let spectrum = match &self.spectrum {
             SpectrumChoice::File(path) => AngularSpectrum::read_text(path)?,
             SpectrumChoice::Table(cl) => {

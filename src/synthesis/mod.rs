@@ -184,17 +184,44 @@ impl Default for SynthesisSettings {
     }
 }
 
-/// What the field must reproduce.
+/// The statistics a synthesis matches, flat or on the sphere, with the widths of its distance
+/// and the target's one-point scale.
 #[derive(Debug, Clone, PartialEq)]
-pub struct SynthesisTarget {
-    /// Target values of the statistics (chosen set, correlations, power-spectrum bins).
+pub struct MatchedTarget {
+    /// Target values of the matched statistics (chosen set, correlations, power-spectrum bins
+    /// or shape terms).
     pub values: Vec<f64>,
     /// σ_i of the distance, one per statistic.
     pub sigma: Vec<f64>,
-    /// Target mean (the start field gets it).
+    /// Target mean, pooled on a footprint (the start field gets it).
     pub mean: f64,
-    /// Target standard deviation (unit of the optimised pixels).
+    /// Target standard deviation, √variance (unit of the optimised pixels).
     pub standard_deviation: f64,
+}
+
+impl MatchedTarget {
+    /// The target of full pooled `coefficients` (mean first, then the variance, checked by
+    /// [`checked_target_variance`]) matched as `values` with widths `sigma`.
+    pub(crate) fn of_coefficients(
+        values: Vec<f64>,
+        sigma: Vec<f64>,
+        coefficients: &[f64],
+        variance: f64,
+    ) -> Self {
+        Self {
+            values,
+            sigma,
+            mean: coefficients[0],
+            standard_deviation: variance.sqrt(),
+        }
+    }
+}
+
+/// What the field must reproduce.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SynthesisTarget {
+    /// The matched statistics, their widths and the target's mean and standard deviation.
+    pub matched: MatchedTarget,
     /// |F_t(q)| of the mean-removed target map, when the target is a map.
     pub spectrum_amplitude: Option<Vec<f64>>,
     /// Sign of the target map's third central moment, when the target is a map.
@@ -711,10 +738,12 @@ impl FlatSynthesis {
             .collect();
         let sigma = self.sigma_for(&statistics, pass.coefficients())?;
         Ok(SynthesisTarget {
-            values: statistics,
-            sigma,
-            mean,
-            standard_deviation: sd,
+            matched: MatchedTarget {
+                values: statistics,
+                sigma,
+                mean,
+                standard_deviation: sd,
+            },
             spectrum_amplitude: Some(amplitude),
             third_moment_sign: Some(m3.signum()),
         })
@@ -732,10 +761,7 @@ impl FlatSynthesis {
         let values = self.select(coefficients);
         let sigma = self.sigma_for(&values, coefficients)?;
         Ok(SynthesisTarget {
-            values,
-            sigma,
-            mean: coefficients[0],
-            standard_deviation: variance.sqrt(),
+            matched: MatchedTarget::of_coefficients(values, sigma, coefficients, variance),
             spectrum_amplitude: None,
             third_moment_sign: None,
         })
@@ -774,14 +800,14 @@ impl FlatSynthesis {
         target: &SynthesisTarget,
         field: &[f64],
     ) -> Result<(f64, Vec<f64>)> {
-        if target.values.len() != self.statistic_count() {
+        if target.matched.values.len() != self.statistic_count() {
             return Err(Error::Mismatch(format!(
                 "target has {} statistics, the synthesis matches {}",
-                target.values.len(),
+                target.matched.values.len(),
                 self.statistic_count()
             )));
         }
-        let sigma = &target.sigma;
+        let sigma = &target.matched.sigma;
         let pass = self.run_forward(field)?;
         let set_len = self.select(pass.coefficients()).len();
         let corr_len = if self.settings.field_envelope_correlation {
@@ -791,7 +817,7 @@ impl FlatSynthesis {
         };
         let s = self.statistics_of_pass(&pass);
         let spectrum = pass.spectrum(&self.transform);
-        let (loss, ds) = relative_loss(&s, &target.values, sigma);
+        let (loss, ds) = relative_loss(&s, &target.matched.values, sigma);
         let dc = self.select_adjoint(pass.coefficients(), &ds[..set_len]);
         let correlation_weights: Option<Vec<f64>> = (corr_len > 0).then(|| {
             let ln = self.orientation_count();
@@ -842,14 +868,14 @@ impl FlatSynthesis {
                 })?;
                 colour_noise(self.transform.square_fft(), &noise, amp)
                     .iter()
-                    .map(|v| v / target.standard_deviation)
+                    .map(|v| v / target.matched.standard_deviation)
                     .collect()
             }
         };
         let m = x.iter().sum::<f64>() / nn as f64;
         x.iter_mut().for_each(|v| *v -= m);
         Ok(x.iter()
-            .map(|v| target.mean + target.standard_deviation * v)
+            .map(|v| target.matched.mean + target.matched.standard_deviation * v)
             .collect())
     }
 
@@ -865,7 +891,7 @@ impl FlatSynthesis {
         target: &SynthesisTarget,
         start: Vec<f64>,
     ) -> Result<SynthesisOutcome> {
-        let (mu, sd) = (target.mean, target.standard_deviation);
+        let (mu, sd) = (target.matched.mean, target.matched.standard_deviation);
         let x0: Vec<f64> = start.iter().map(|f| (f - mu) / sd).collect();
         let (initial_loss, _) = self.loss_and_gradient(target, &start)?;
         let evaluate = |x: &[f64]| -> Result<(f64, Vec<f64>)> {
@@ -894,7 +920,7 @@ impl FlatSynthesis {
                 run,
                 (initial_loss, final_loss),
                 statistics,
-                (&target.values, &target.sigma),
+                (&target.matched.values, &target.matched.sigma),
             ),
             reflected,
         })

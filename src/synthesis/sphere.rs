@@ -85,8 +85,8 @@
 
 use super::{
     checked_target_variance, correlation_bounds, matched_statistics, matched_statistics_adjoint,
-    minimise, relative_loss, Normalisation, OptimisationReport, StartField, StatisticChoice,
-    SummaryMap, SynthesisSettings,
+    minimise, relative_loss, MatchedTarget, Normalisation, OptimisationReport, StartField,
+    StatisticChoice, SummaryMap, SynthesisSettings,
 };
 use crate::harmonics::spectrum::AngularSpectrum;
 use crate::harmonics::HarmonicTransform;
@@ -114,14 +114,9 @@ const CACHE_BYTES: usize = 3 << 30;
 /// What the synthesised map must reproduce on the footprint.
 #[derive(Debug, Clone, PartialEq)]
 pub struct SphereTarget {
-    /// Target values of the matched statistics.
-    pub values: Vec<f64>,
-    /// σ_k of the distance.
-    pub sigma: Vec<f64>,
-    /// Pooled mean of the target.
-    pub mean: f64,
-    /// Pooled standard deviation of the target (√variance).
-    pub standard_deviation: f64,
+    /// The matched statistics, their widths and the target's pooled mean and standard
+    /// deviation.
+    pub matched: MatchedTarget,
     /// Pseudo-C_ℓ of the target map on the footprint, when the target is a map.
     pub spectrum: Option<AngularSpectrum>,
 }
@@ -529,17 +524,17 @@ impl SphereSynthesis {
         values: &[f64],
     ) -> Result<(f64, Vec<f64>)> {
         self.check_map(values)?;
-        if target.values.len() != self.statistic_count()
-            || target.sigma.len() != target.values.len()
+        if target.matched.values.len() != self.statistic_count()
+            || target.matched.sigma.len() != target.matched.values.len()
         {
             return Err(Error::Mismatch(format!(
                 "target has {} statistics, the synthesis matches {}",
-                target.values.len(),
+                target.matched.values.len(),
                 self.statistic_count()
             )));
         }
         let (total, c, s, one_point) = self.pooled(values)?;
-        let (loss, ds) = relative_loss(&s, &target.values, &target.sigma);
+        let (loss, ds) = relative_loss(&s, &target.matched.values, &target.matched.sigma);
         let set_len = s.len() - self.correlation_count() - self.shape_count();
         let dc = self.select_adjoint(&c, &ds[..set_len]);
         // ∂L/∂f_x of the one-point shape, the same polynomial for every tile
@@ -666,10 +661,7 @@ impl SphereSynthesis {
         values.extend(correlations);
         let sigma = self.sigma_for(&values, coefficients, kurtosis)?;
         Ok(SphereTarget {
-            values,
-            sigma,
-            mean: coefficients[0],
-            standard_deviation: variance.sqrt(),
+            matched: MatchedTarget::of_coefficients(values, sigma, coefficients, variance),
             spectrum: None,
         })
     }
@@ -728,7 +720,7 @@ impl SphereSynthesis {
                 let values: Vec<f64> = (0..pix.npix())
                     .map(|_| {
                         let z: f64 = StandardNormal.sample(&mut rng);
-                        target.mean + target.standard_deviation * z
+                        target.matched.mean + target.matched.standard_deviation * z
                     })
                     .collect();
                 SkyMap::new(pix, values)
@@ -740,7 +732,11 @@ impl SphereSynthesis {
                     )
                 })?;
                 let sky = gaussian_sky(pix.nside(), spectrum, seed)?;
-                let values: Vec<f64> = sky.values().iter().map(|v| v + target.mean).collect();
+                let values: Vec<f64> = sky
+                    .values()
+                    .iter()
+                    .map(|v| v + target.matched.mean)
+                    .collect();
                 SkyMap::new(sky.pixelization(), values)?.to_ordering(pix.ordering())
             }
         }
@@ -768,7 +764,7 @@ impl SphereSynthesis {
         }
         let base: Vec<f64> = start.values().to_vec();
         self.check_map(&base)?;
-        let (mu, sd) = (target.mean, target.standard_deviation);
+        let (mu, sd) = (target.matched.mean, target.matched.standard_deviation);
         let x0: Vec<f64> = self
             .variables
             .iter()
@@ -797,7 +793,7 @@ impl SphereSynthesis {
                 run,
                 (initial_loss, final_loss),
                 statistics,
-                (&target.values, &target.sigma),
+                (&target.matched.values, &target.matched.sigma),
             ),
         })
     }

@@ -67,7 +67,7 @@ use crate::scattering::layout::CoefficientLayout;
 use crate::scattering::pooling::TileSums;
 use crate::scattering::transform::{
     band_boxes, check_taper_and_weight, check_values, crop_box, crop_levels_for, subsample,
-    validate_settings, BandBox, Boxes, TileView, TransformSettings, COVERAGE_FLOOR,
+    validate_settings, BandBox, Boxes, Coverage, TileView, TransformSettings,
 };
 use crate::{Error, Result};
 use num_complex::Complex64;
@@ -304,8 +304,8 @@ impl DifferentiableScattering {
                 weight: weight.to_vec(),
                 weight_sum,
                 level_tapers: level_tapers(taper, n, top),
-                inv_sqrt_coverage: coverage.inv_sqrt_first,
-                inv_sqrt_coverage_second: coverage.inv_sqrt_second,
+                inv_sqrt_coverage: coverage.first,
+                inv_sqrt_coverage_second: coverage.second,
                 first_weights,
                 pair_weights,
                 boxes,
@@ -326,29 +326,12 @@ impl DifferentiableScattering {
         let big_j = levels.len();
         let a2: Vec<f64> = taper.iter().map(|a| a * a).collect();
         let a2_spec = self.square_fft().spectrum_of(&a2);
-        let mut trust: Vec<Vec<bool>> = Vec::with_capacity(big_j);
-        let mut inv_sqrt_first = Vec::with_capacity(big_j);
-        let mut inv_sqrt_second = Vec::with_capacity(big_j);
+        let mut coverage = Coverage::with_capacity(big_j);
         for (j, &level) in levels.iter().enumerate() {
             let cov = self.scale_coverage(&a2_spec, j);
-            trust.push(cov.iter().map(|&v| v >= tau).collect());
-            for (target, d) in [
-                (&mut inv_sqrt_first, level),
-                (&mut inv_sqrt_second, second_levels[j]),
-            ] {
-                target.push(
-                    subsample(&cov, n, n >> d)
-                        .iter()
-                        .map(|c| 1.0 / c.max(COVERAGE_FLOOR).sqrt())
-                        .collect::<Vec<f64>>(),
-                );
-            }
+            coverage.push_scale(&cov, n, tau, (level, second_levels[j]));
         }
-        Coverage {
-            trust,
-            inv_sqrt_first,
-            inv_sqrt_second,
-        }
+        coverage
     }
 
     /// The coverage N_j = a² ∗ K_j of scale j on the full grid, from the DFT of a²; K_j =
@@ -860,16 +843,6 @@ impl DifferentiableScattering {
             .map(|(((ia, a), w), f)| ia - a * m + b0 * w + 2.0 * bv * w * f)
             .collect()
     }
-}
-
-/// Coverage of a tile per scale (see [`DifferentiableScattering::tile_geometry`]).
-struct Coverage {
-    /// [N_j ≥ τ] on the full grid.
-    trust: Vec<Vec<bool>>,
-    /// c_j on the first-layer grid of j.
-    inv_sqrt_first: Vec<Vec<f64>>,
-    /// c_j on the second-layer grid of j.
-    inv_sqrt_second: Vec<Vec<f64>>,
 }
 
 /// Per level d up to `top`: the taper sampled on the grid of level d, and its sum.

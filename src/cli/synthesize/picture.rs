@@ -9,6 +9,7 @@ use crate::sky::footprint::Footprint;
 use crate::sky::pixelization::Direction;
 use crate::sky::skymap::SkyMap;
 use crate::tiles::projection::Gnomonic;
+use plotters::coord::ranged1d::ValueFormatter;
 use plotters::prelude::*;
 use std::path::Path;
 
@@ -172,6 +173,54 @@ fn draw_zoomed_map(
 type Area<'b> = DrawingArea<BitMapBackend<'b>, plotters::coord::Shift>;
 type DrawResult = std::result::Result<(), String>;
 
+/// The chart of one panel of the summary picture: its caption, margin and axis label areas.
+fn panel_builder<'a, 'b>(
+    area: &'a Area<'b>,
+    caption: &str,
+) -> ChartBuilder<'a, 'static, BitMapBackend<'b>> {
+    let mut builder = ChartBuilder::on(area);
+    builder
+        .caption(caption, (FONT_FAMILY, 18))
+        .margin(8)
+        .x_label_area_size(40)
+        .y_label_area_size(50);
+    builder
+}
+
+/// A panel's grid, tick labels and axis titles.
+fn draw_mesh<X, Y>(
+    chart: &mut ChartContext<'_, BitMapBackend<'_>, Cartesian2d<X, Y>>,
+    x_desc: &str,
+    y_desc: &str,
+) -> DrawResult
+where
+    X: Ranged + ValueFormatter<X::ValueType>,
+    Y: Ranged + ValueFormatter<Y::ValueType>,
+{
+    chart
+        .configure_mesh()
+        .x_desc(x_desc)
+        .y_desc(y_desc)
+        .label_style((FONT_FAMILY, 13))
+        .axis_desc_style((FONT_FAMILY, 14))
+        .draw()
+        .map_err(|e| e.to_string())
+}
+
+/// A panel's legend, upper right.
+fn draw_legend<'a, 'b: 'a, X: Ranged, Y: Ranged>(
+    chart: &mut ChartContext<'a, BitMapBackend<'b>, Cartesian2d<X, Y>>,
+) -> DrawResult {
+    chart
+        .configure_series_labels()
+        .position(SeriesLabelPosition::UpperRight)
+        .label_font((FONT_FAMILY, 13))
+        .background_style(WHITE.mix(0.8))
+        .border_style(BLACK)
+        .draw()
+        .map_err(|e| e.to_string())
+}
+
 /// Histograms of the footprint values in units of the first map's standard deviation around
 /// its mean (40 bins over the union of the ranges), counts on a logarithmic axis.
 fn draw_histograms(area: &Area<'_>, maps: &[ShownMap<'_>]) -> DrawResult {
@@ -210,21 +259,10 @@ fn draw_histograms(area: &Area<'_>, maps: &[ShownMap<'_>]) -> DrawResult {
         })
         .collect();
     let top = counts.iter().flatten().copied().max().unwrap_or(1).max(1) as f64;
-    let mut chart = ChartBuilder::on(area)
-        .caption("one-point histogram", (FONT_FAMILY, 18))
-        .margin(8)
-        .x_label_area_size(40)
-        .y_label_area_size(50)
+    let mut chart = panel_builder(area, "one-point histogram")
         .build_cartesian_2d(lo..hi + width, (0.8..top * 1.5).log_scale())
         .map_err(|e| e.to_string())?;
-    chart
-        .configure_mesh()
-        .x_desc("(value − target mean) / target rms")
-        .y_desc("pixels")
-        .label_style((FONT_FAMILY, 13))
-        .axis_desc_style((FONT_FAMILY, 14))
-        .draw()
-        .map_err(|e| e.to_string())?;
+    draw_mesh(&mut chart, "(value − target mean) / target rms", "pixels")?;
     for (m, c) in maps.iter().zip(&counts) {
         let colour = RGBColor(m.colour[0], m.colour[1], m.colour[2]);
         let mut points = Vec::new();
@@ -240,14 +278,7 @@ fn draw_histograms(area: &Area<'_>, maps: &[ShownMap<'_>]) -> DrawResult {
             .label(m.title.to_string())
             .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], colour));
     }
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperRight)
-        .label_font((FONT_FAMILY, 13))
-        .background_style(WHITE.mix(0.8))
-        .border_style(BLACK)
-        .draw()
-        .map_err(|e| e.to_string())
+    draw_legend(&mut chart)
 }
 
 /// Peak counts against the threshold ν, with Poisson error bars √N.
@@ -263,21 +294,10 @@ fn draw_peaks(area: &Area<'_>, maps: &[ShownMap<'_>], thresholds: &[f64]) -> Dra
         thresholds.iter().copied().fold(f64::INFINITY, f64::min) - 0.5,
         thresholds.iter().copied().fold(f64::NEG_INFINITY, f64::max) + 0.5,
     );
-    let mut chart = ChartBuilder::on(area)
-        .caption("peak counts (± Poisson)", (FONT_FAMILY, 18))
-        .margin(8)
-        .x_label_area_size(40)
-        .y_label_area_size(50)
+    let mut chart = panel_builder(area, "peak counts (± Poisson)")
         .build_cartesian_2d(x_lo..x_hi, 0.0..(top + 2.0 * top.sqrt()) * 1.1)
         .map_err(|e| e.to_string())?;
-    chart
-        .configure_mesh()
-        .x_desc("peaks above mean + ν rms: ν")
-        .y_desc("peaks")
-        .label_style((FONT_FAMILY, 13))
-        .axis_desc_style((FONT_FAMILY, 14))
-        .draw()
-        .map_err(|e| e.to_string())?;
+    draw_mesh(&mut chart, "peaks above mean + ν rms: ν", "peaks")?;
     let n = maps.len() as f64;
     for (k, m) in maps.iter().enumerate() {
         let colour = RGBColor(m.colour[0], m.colour[1], m.colour[2]);
@@ -299,12 +319,5 @@ fn draw_peaks(area: &Area<'_>, maps: &[ShownMap<'_>], thresholds: &[f64]) -> Dra
             .label(m.title.to_string())
             .legend(move |(x, y)| Circle::new((x + 9, y), 4, colour.filled()));
     }
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperRight)
-        .label_font((FONT_FAMILY, 13))
-        .background_style(WHITE.mix(0.8))
-        .border_style(BLACK)
-        .draw()
-        .map_err(|e| e.to_string())
+    draw_legend(&mut chart)
 }
