@@ -6,7 +6,7 @@ Run by hand (not by CI), after making the five pair ensembles from the recipes i
 reference-values/pair_forecast/ (NSIDE 16, Gaussian skies with a 300' beam and white noise,
 map B correlated with map A at r = 0.6 and its own noise; about 15 s):
 
-    B=target/release/planisphere; R=reference-values/pair_forecast; D=/tmp/pair_forecast
+    B=target/release/planisphere; R=reference-values/pair_forecast; D=/tmp/pair_forecast; mkdir -p $D
     for e in fiducial A_plus A_minus beam_plus beam_minus; do
         $B ensemble -o $D/$e --simulate $R/$e.toml -J 2 --tile-pixels 16 --border-pixels 2 \\
             --quiet --no-bispectrum

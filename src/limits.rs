@@ -141,6 +141,19 @@ fn gigabytes(bytes: f64) -> String {
     format!("{:.1} GB", bytes / 1e9)
 }
 
+/// The clause that names the memory a process ran out of, for messages of allocations that
+/// failed outside our estimates (a C library's): "out of memory within the 0.2 GB of the
+/// address-space limit (ulimit -v)"; without a known budget, "out of memory".
+pub fn out_of_memory_clause() -> String {
+    match memory_budget() {
+        Some((bytes, source)) => format!(
+            "out of memory within the {} of {source}",
+            gigabytes(bytes as f64)
+        ),
+        None => "out of memory".into(),
+    }
+}
+
 /// Checks that `what` (e.g. "a NSIDE 8192 sky"), estimated to need `bytes`, fits the memory
 /// this process may use ([`memory_budget`]).
 pub fn check_memory(what: &str, bytes: f64) -> Result<()> {
@@ -185,13 +198,23 @@ pub fn measurement_bytes(nside: u32, maps: usize) -> f64 {
 }
 
 /// Estimated bytes to measure the spectra of `maps` maps (1, or 2 with a cross map) of NSIDE
-/// `nside` up to `lmax`: per map the read buffer, the values and the validity flags (17 bytes
-/// per pixel) and its a_ℓm (16 bytes × (ℓmax+1)(ℓmax+2)/2); the footprint's weights and a
-/// weighted work map (16 bytes per pixel).
-pub fn spectra_bytes(nside: u32, lmax: usize, maps: usize) -> f64 {
+/// `nside` up to `lmax`: per map its values and validity flags (9 bytes per pixel; the analysis
+/// works in the map's own array) and its a_ℓm (16 bytes × (ℓmax+1)(ℓmax+2)/2); with a mask
+/// (`masked`), the mask as read, the footprint and the taper's work (24 bytes per pixel; without
+/// a mask the footprint is held by blocks). Measured at NSIDE 1024 (docs/benchmarks.md): 126.6
+/// MB without a mask at ℓmax 767, 198 MB at 3071, 353 MB with a float32 mask at 767.
+///
+/// ```
+/// use planisphere::limits::spectra_bytes;
+/// // NSIDE 8192 up to ℓ = 24575 without a mask: 9 × 805 306 368 + 16 × 302 002 176 bytes
+/// let bytes = spectra_bytes(8192, 24575, 1, false);
+/// assert!((bytes - 1.2080e10).abs() < 1e7);
+/// ```
+pub fn spectra_bytes(nside: u32, lmax: usize, maps: usize, masked: bool) -> f64 {
     let npix = 12.0 * (nside as f64).powi(2);
     let alm = (lmax as f64 + 1.0) * (lmax as f64 + 2.0) / 2.0;
-    maps as f64 * (17.0 * npix + 16.0 * alm) + 16.0 * npix
+    let footprint = if masked { 24.0 * npix } else { 0.0 };
+    maps as f64 * (9.0 * npix + 16.0 * alm) + footprint
 }
 
 /// Is n a tile size the engine accepts: n = 2^k·m with m ∈ {1, 3, 5, 7, 9}, at least 8, and

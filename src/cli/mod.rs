@@ -102,9 +102,23 @@ pub fn main() -> i32 {
     }
 }
 
+/// Starts rayon's global pool of worker threads here, where a refusal can be reported: left to
+/// itself, rayon starts the pool at the first parallel call and panics when the system refuses
+/// a thread (under an address-space limit each thread's stack is mapped memory). The pool's
+/// size is rayon's (RAYON_NUM_THREADS, else one thread per core).
+fn start_worker_threads() -> Result<()> {
+    rayon::ThreadPoolBuilder::new().build_global().map_err(|e| {
+        crate::error::Error::Setting(format!(
+            "cannot start the worker threads ({e}); raise the address-space limit (ulimit -v) \
+             or set fewer threads with RAYON_NUM_THREADS"
+        ))
+    })
+}
+
 fn run(command: Command) -> Result<()> {
     // every input and output path of the command, checked together before any work
     output::command_files(&command)?.check()?;
+    start_worker_threads()?;
     match command {
         Command::Demo(args) => demo::run(&args),
         Command::Sky(args) => sky::run(&args),

@@ -90,7 +90,12 @@ pub fn run(args: &SpectraArgs) -> Result<()> {
     crate::limits::check_lmax("--lmax", lmax, nside)?;
     crate::limits::check_memory(
         &format!("the spectra of a NSIDE {nside} map up to ℓ = {lmax}"),
-        crate::limits::spectra_bytes(nside, lmax, 1 + usize::from(args.cross.is_some())),
+        crate::limits::spectra_bytes(
+            nside,
+            lmax,
+            1 + usize::from(args.cross.is_some()),
+            args.mask.mask.is_some(),
+        ),
     )?;
     let map = load_map(&args.map, &args.column)?;
     let other = match &args.cross {

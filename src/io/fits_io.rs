@@ -46,6 +46,7 @@ const FITS_BLOCK: u64 = 2880;
 
 // cfitsio constants (fitsio.h).
 const KEY_NO_EXIST: c_int = 202;
+const MEMORY_ALLOCATION: c_int = 113;
 const READONLY: c_int = 0;
 pub(super) const BINARY_TBL: c_int = 2;
 const TSHORT: c_int = 21;
@@ -1519,7 +1520,12 @@ pub(super) fn cfitsio_text(status: c_int) -> String {
     let text = unsafe { CStr::from_ptr(buf.as_ptr()) }
         .to_string_lossy()
         .into_owned();
-    format!("cfitsio status {status}: {}", text.trim())
+    let line = format!("cfitsio status {status}: {}", text.trim());
+    if status == MEMORY_ALLOCATION {
+        format!("{line}; {}", crate::limits::out_of_memory_clause())
+    } else {
+        line
+    }
 }
 
 fn path_to_c(path: &Path, shown: &Path) -> Result<CString> {
