@@ -23,7 +23,7 @@ use planisphere::sky::apodization::{taper_footprint, TaperKind};
 use planisphere::sky::skymap::UNSEEN;
 use planisphere::tiles::reach::{read_blocks, read_ranges};
 use planisphere::tiles::sampling::SamplingMethod;
-use planisphere::{Direction, Ordering, Pixelization, SkyMap};
+use planisphere::{Direction, Footprint, Ordering, Pixelization, SkyMap};
 use sphere_support::bits;
 use std::path::{Path, PathBuf};
 
@@ -86,20 +86,50 @@ fn write_inputs_in(dir: &Path, ordering: Ordering) -> (PathBuf, PathBuf) {
     (map_path, mask_path)
 }
 
-#[test]
-fn a_map_held_by_blocks_measures_bit_for_bit_as_the_whole_map() {
-    let dir = tempfile::tempdir().unwrap();
-    let (map_path, mask_path) = write_inputs(dir.path());
+/// The inputs of [`write_inputs_in`] read both ways: whole (map, mask and the tapered
+/// footprint) and by blocks (the map's reader, the mask by blocks).
+struct Both {
+    map: SkyMap,
+    mask: Footprint,
+    whole_fp: Footprint,
+    map_reader: HealpixFitsReader,
+    mask_blocks: Footprint,
+    column: ColumnChoice,
+}
+
+fn read_both_ways(dir: &Path, ordering: Ordering) -> Both {
+    let (map_path, mask_path) = write_inputs_in(dir, ordering);
     let column = ColumnChoice::default();
     // the whole map and mask in memory
     let (map, _) = read_map(&map_path, &column).unwrap();
     let (mask, _) = read_footprint(&mask_path, &column).unwrap();
     let whole_fp =
         taper_footprint(mask.restricted_to(&map).unwrap(), TaperKind::C2, 120.0).unwrap();
-    // the mask by blocks, the map on the mask's blocks
-    let mut map_reader = HealpixFitsReader::open(&map_path).unwrap();
+    // the mask by blocks; the map's reader for the blocks
+    let map_reader = HealpixFitsReader::open(&map_path).unwrap();
     let mut mask_reader = HealpixFitsReader::open(&mask_path).unwrap();
     let mask_blocks = read_footprint_by_blocks(&mut mask_reader, &column).unwrap();
+    Both {
+        map,
+        mask,
+        whole_fp,
+        map_reader,
+        mask_blocks,
+        column,
+    }
+}
+
+#[test]
+fn a_map_held_by_blocks_measures_bit_for_bit_as_the_whole_map() {
+    let dir = tempfile::tempdir().unwrap();
+    let Both {
+        map,
+        mask,
+        whole_fp,
+        mut map_reader,
+        mask_blocks,
+        column,
+    } = read_both_ways(dir.path(), Ordering::Ring);
     assert!(mask_blocks.is_held_by_blocks());
     let npix = map.pixelization().npix() as usize;
     // the blocks of ones inside the binary mask are held without storage: fewer values than
@@ -230,16 +260,15 @@ fn measure_writes_the_same_document_reading_by_blocks_and_whole() {
 #[test]
 fn a_nested_map_held_by_blocks_measures_bit_for_bit_as_the_whole_map() {
     let dir = tempfile::tempdir().unwrap();
-    let (map_path, mask_path) = write_inputs_in(dir.path(), Ordering::Nested);
-    let column = ColumnChoice::default();
-    let (map, _) = read_map(&map_path, &column).unwrap();
+    let Both {
+        map,
+        whole_fp,
+        mut map_reader,
+        mask_blocks,
+        column,
+        ..
+    } = read_both_ways(dir.path(), Ordering::Nested);
     assert_eq!(map.ordering(), Ordering::Nested);
-    let (mask, _) = read_footprint(&mask_path, &column).unwrap();
-    let whole_fp =
-        taper_footprint(mask.restricted_to(&map).unwrap(), TaperKind::C2, 120.0).unwrap();
-    let mut map_reader = HealpixFitsReader::open(&map_path).unwrap();
-    let mut mask_reader = HealpixFitsReader::open(&mask_path).unwrap();
-    let mask_blocks = read_footprint_by_blocks(&mut mask_reader, &column).unwrap();
     let mut held = empty_map(map_reader.header()).unwrap();
     read_map_blocks(
         &mut map_reader,
