@@ -20,6 +20,7 @@ use planisphere::io::footprint_read::{
 };
 use planisphere::measure::measurement::{MeasurementSettings, SphereMeasurer};
 use planisphere::sky::apodization::{taper_footprint, TaperKind};
+use planisphere::sky::block_map::BlockSkyMap;
 use planisphere::sky::skymap::UNSEEN;
 use planisphere::tiles::reach::{read_blocks, read_ranges};
 use planisphere::tiles::sampling::SamplingMethod;
@@ -87,13 +88,15 @@ fn write_inputs_in(dir: &Path, ordering: Ordering) -> (PathBuf, PathBuf) {
 }
 
 /// The inputs of [`write_inputs_in`] read both ways: whole (map, mask and the tapered
-/// footprint) and by blocks (the map's reader, the mask by blocks).
+/// footprint) and by blocks (the mask by blocks, the map on the mask's blocks and its reader for
+/// the tiles' halos).
 struct Both {
     map: SkyMap,
     mask: Footprint,
     whole_fp: Footprint,
     map_reader: HealpixFitsReader,
     mask_blocks: Footprint,
+    held: BlockSkyMap,
     column: ColumnChoice,
 }
 
@@ -105,16 +108,25 @@ fn read_both_ways(dir: &Path, ordering: Ordering) -> Both {
     let (mask, _) = read_footprint(&mask_path, &column).unwrap();
     let whole_fp =
         taper_footprint(mask.restricted_to(&map).unwrap(), TaperKind::C2, 120.0).unwrap();
-    // the mask by blocks; the map's reader for the blocks
-    let map_reader = HealpixFitsReader::open(&map_path).unwrap();
+    // the mask by blocks, the map on the mask's blocks
+    let mut map_reader = HealpixFitsReader::open(&map_path).unwrap();
     let mut mask_reader = HealpixFitsReader::open(&mask_path).unwrap();
     let mask_blocks = read_footprint_by_blocks(&mut mask_reader, &column).unwrap();
+    let mut held = empty_map(map_reader.header()).unwrap();
+    read_map_blocks(
+        &mut map_reader,
+        &column,
+        &mut held,
+        mask_blocks.weighted_blocks(),
+    )
+    .unwrap();
     Both {
         map,
         mask,
         whole_fp,
         map_reader,
         mask_blocks,
+        held,
         column,
     }
 }
@@ -128,6 +140,7 @@ fn a_map_held_by_blocks_measures_bit_for_bit_as_the_whole_map() {
         whole_fp,
         mut map_reader,
         mask_blocks,
+        mut held,
         column,
     } = read_both_ways(dir.path(), Ordering::Ring);
     assert!(mask_blocks.is_held_by_blocks());
@@ -141,14 +154,6 @@ fn a_map_held_by_blocks_measures_bit_for_bit_as_the_whole_map() {
         mask.observed_pixels()
     );
     assert_eq!(bits(mask_blocks.weights()), bits(mask.weights()));
-    let mut held = empty_map(map_reader.header()).unwrap();
-    read_map_blocks(
-        &mut map_reader,
-        &column,
-        &mut held,
-        mask_blocks.weighted_blocks(),
-    )
-    .unwrap();
     let raw = held.restrict(mask_blocks).unwrap();
     let fp = taper_footprint(raw, TaperKind::C2, 120.0).unwrap();
     assert_eq!(bits(fp.weights()), bits(whole_fp.weights()));
@@ -265,18 +270,11 @@ fn a_nested_map_held_by_blocks_measures_bit_for_bit_as_the_whole_map() {
         whole_fp,
         mut map_reader,
         mask_blocks,
+        mut held,
         column,
         ..
     } = read_both_ways(dir.path(), Ordering::Nested);
     assert_eq!(map.ordering(), Ordering::Nested);
-    let mut held = empty_map(map_reader.header()).unwrap();
-    read_map_blocks(
-        &mut map_reader,
-        &column,
-        &mut held,
-        mask_blocks.weighted_blocks(),
-    )
-    .unwrap();
     let fp = taper_footprint(held.restrict(mask_blocks).unwrap(), TaperKind::C2, 120.0).unwrap();
     assert_eq!(bits(fp.weights()), bits(whole_fp.weights()));
     let spacing = map.pixelization().mean_spacing().to_degrees() * 60.0;
