@@ -131,6 +131,35 @@ fn read_both_ways(dir: &Path, ordering: Ordering) -> Both {
     }
 }
 
+/// The five sampling methods.
+const EVERY_SAMPLING: [SamplingMethod; 5] = [
+    SamplingMethod::RingQuintic,
+    SamplingMethod::RingCubic,
+    SamplingMethod::Bilinear,
+    SamplingMethod::RingLinear,
+    SamplingMethod::Nearest,
+];
+
+/// Settings with J = 3 for each of `methods`: the default tile pixel with the default
+/// (quintic) sampling, which also measures the bispectrum, and the map's spacing with the
+/// others.
+fn settings_per_sampling(map: &SkyMap, methods: &[SamplingMethod]) -> Vec<MeasurementSettings> {
+    let spacing = map.pixelization().mean_spacing().to_degrees() * 60.0;
+    methods
+        .iter()
+        .map(|&sampling| {
+            let quintic = sampling == SamplingMethod::RingQuintic;
+            MeasurementSettings {
+                scales: 3,
+                sampling,
+                pixel_arcmin: (!quintic).then_some(spacing),
+                bispectrum: quintic,
+                ..Default::default()
+            }
+        })
+        .collect()
+}
+
 #[test]
 fn a_map_held_by_blocks_measures_bit_for_bit_as_the_whole_map() {
     let dir = tempfile::tempdir().unwrap();
@@ -157,22 +186,9 @@ fn a_map_held_by_blocks_measures_bit_for_bit_as_the_whole_map() {
     let raw = held.restrict(mask_blocks).unwrap();
     let fp = taper_footprint(raw, TaperKind::C2, 120.0).unwrap();
     assert_eq!(bits(fp.weights()), bits(whole_fp.weights()));
-    let spacing = map.pixelization().mean_spacing().to_degrees() * 60.0;
     let mut first = true;
-    for (sampling, pixel_arcmin) in [
-        (SamplingMethod::RingQuintic, None),
-        (SamplingMethod::RingCubic, Some(spacing)),
-        (SamplingMethod::Bilinear, Some(spacing)),
-        (SamplingMethod::RingLinear, Some(spacing)),
-        (SamplingMethod::Nearest, Some(spacing)),
-    ] {
-        let settings = MeasurementSettings {
-            scales: 3,
-            sampling,
-            pixel_arcmin,
-            bispectrum: sampling == SamplingMethod::RingQuintic,
-            ..Default::default()
-        };
+    for settings in settings_per_sampling(&map, &EVERY_SAMPLING) {
+        let sampling = settings.sampling;
         let whole = SphereMeasurer::new(map.pixelization(), &whole_fp, settings).unwrap();
         let measurer = SphereMeasurer::new(held.pixelization(), &fp, settings).unwrap();
         let centres = |m: &SphereMeasurer| {
@@ -277,18 +293,13 @@ fn a_nested_map_held_by_blocks_measures_bit_for_bit_as_the_whole_map() {
     assert_eq!(map.ordering(), Ordering::Nested);
     let fp = taper_footprint(held.restrict(mask_blocks).unwrap(), TaperKind::C2, 120.0).unwrap();
     assert_eq!(bits(fp.weights()), bits(whole_fp.weights()));
-    let spacing = map.pixelization().mean_spacing().to_degrees() * 60.0;
-    for (sampling, pixel_arcmin) in [
-        (SamplingMethod::RingQuintic, None),
-        (SamplingMethod::Bilinear, Some(spacing)),
-        (SamplingMethod::Nearest, Some(spacing)),
-    ] {
-        let settings = MeasurementSettings {
-            scales: 3,
-            sampling,
-            pixel_arcmin,
-            ..Default::default()
-        };
+    let methods = [
+        SamplingMethod::RingQuintic,
+        SamplingMethod::Bilinear,
+        SamplingMethod::Nearest,
+    ];
+    for settings in settings_per_sampling(&map, &methods) {
+        let sampling = settings.sampling;
         let whole = SphereMeasurer::new(map.pixelization(), &whole_fp, settings).unwrap();
         let measurer = SphereMeasurer::new(held.pixelization(), &fp, settings).unwrap();
         // RING ranges are refused for a NESTED plan; the blocks are listed in NESTED indices
