@@ -14,7 +14,7 @@ use planisphere::sky::skymap::UNSEEN;
 use planisphere::tiles::sampling::SamplingMethod;
 use planisphere::{Direction, Footprint, FootprintOf, Ordering, Pixelization, SkyMap};
 
-use sphere_support::{bits, cross_bits};
+use sphere_support::{assert_same_bits, bits, cross_bits};
 
 /// A binary mask of the cap above 20° latitude with two circular holes; UNSEEN over part of
 /// the unobserved sky and NaN at a few pixels (both weigh 0), RING ordering.
@@ -48,7 +48,7 @@ fn borrowed_mask_tapers_bit_for_bit_as_its_owned_copy_and_stores_only_the_edge_b
     let owned = Footprint::from_weights(pix, weights.clone()).unwrap();
     let borrowed = FootprintOf::borrowing(pix, &weights).unwrap();
     assert!(borrowed.is_borrowed());
-    assert_eq!(bits(owned.weights()), bits(borrowed.weights()));
+    assert_same_bits("owned and borrowed", owned.weights(), borrowed.weights());
     let npix = pix.npix() as usize;
     for (kind, arcmin) in [
         (TaperKind::C2, 300.0),
@@ -58,13 +58,11 @@ fn borrowed_mask_tapers_bit_for_bit_as_its_owned_copy_and_stores_only_the_edge_b
     ] {
         let a = taper_footprint(owned.clone(), kind, arcmin).unwrap();
         let b = taper_footprint(borrowed.clone(), kind, arcmin).unwrap();
-        assert_eq!(bits(a.weights()), bits(b.weights()), "{kind:?}");
-        assert_eq!(
-            (0..npix)
-                .map(|p| b.weights()[p].to_bits())
-                .collect::<Vec<_>>(),
-            bits(a.weights()),
-            "{kind:?}: pixel reads"
+        assert_same_bits(&format!("{kind:?}"), a.weights(), b.weights());
+        assert_same_bits(
+            &format!("{kind:?}: pixel reads"),
+            (0..npix).map(|p| &b.weights()[p]),
+            a.weights(),
         );
         assert!(b.is_borrowed(), "{kind:?}");
         // the taper changes the band within `arcmin` of the edges (about 16 % of the sky
@@ -80,7 +78,7 @@ fn borrowed_mask_tapers_bit_for_bit_as_its_owned_copy_and_stores_only_the_edge_b
         }
     }
     // the caller's weights are never written
-    assert_eq!(bits(&weights), before);
+    assert_eq!(bits(&weights), before, "the caller's weights were written");
 }
 
 #[test]

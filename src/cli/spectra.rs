@@ -62,11 +62,16 @@ pub struct SpectraArgs {
 /// The binary footprint of `map`'s valid pixels, held by blocks (blocks of ones without storage):
 /// the same weights as the footprint of its valid pixels restricted to it.
 fn valid_pixels_by_blocks(map: &SkyMap) -> Result<Footprint> {
+    let valid = map.valid();
     Footprint::from_weight_chunks(
         map.pixelization(),
-        map.valid()
-            .chunks(WEIGHT_BLOCK)
-            .map(|c| Ok(c.iter().map(|&v| f64::from(u8::from(v))).collect())),
+        (0..valid.len()).step_by(WEIGHT_BLOCK).map(|start| {
+            let end = (start + WEIGHT_BLOCK).min(valid.len());
+            Ok(valid
+                .range(start..end)
+                .map(|&v| f64::from(u8::from(v)))
+                .collect())
+        }),
     )
 }
 

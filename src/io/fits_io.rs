@@ -825,7 +825,7 @@ fn write_full_sky_columns(
             buf.extend(
                 values[start..end]
                     .iter()
-                    .zip(&valid[start..end])
+                    .zip(valid.range(start..end))
                     .map(|(&v, &ok)| if ok { v } else { UNSEEN }),
             );
             check_range(path, name, precision, &buf, |i| (start + i) as u64)?;

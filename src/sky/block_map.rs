@@ -219,7 +219,11 @@ mod tests {
         assert_eq!(blocks.first_unread(), Some(70));
         let starts: Vec<usize> = blocks.blocks().map(|(s, _)| s).collect();
         assert_eq!(starts, [0, 128]);
-        let valid = owned.valid()[..64].iter().chain(&owned.valid()[128..]);
+        let n = owned.valid().len();
+        let valid = owned
+            .valid()
+            .range(0..64)
+            .chain(owned.valid().range(128..n));
         assert_eq!(
             blocks.stored_valid_count(),
             valid.filter(|&&v| v).count() as u64

@@ -14,6 +14,7 @@ pub mod footprint;
 pub mod measurable;
 pub mod pixelization;
 pub mod skymap;
+pub mod valid_pixels;
 
 pub use apodization::{apodize, TaperKind};
 pub use footprint::{Footprint, FootprintOf};

@@ -7,6 +7,7 @@
 
 use crate::error::{Error, Result};
 use crate::sky::pixelization::{Direction, Ordering, Pixelization};
+use crate::sky::valid_pixels::ValidPixels;
 use rayon::prelude::*;
 use std::borrow::Cow;
 
@@ -28,7 +29,7 @@ pub type SkyMap = SkyMapOf<'static>;
 pub struct SkyMapOf<'a> {
     pixelization: Pixelization,
     values: Cow<'a, [f64]>,
-    valid: Vec<bool>,
+    valid: ValidPixels,
     /// Coordinate system from the FITS `COORDSYS` keyword (`G`, `E`, `C`), when known.
     pub coordsys: Option<String>,
 }
@@ -90,8 +91,8 @@ impl SkyMap {
     /// A map from values in the pixelization's ordering; bad values become invalid pixels.
     pub fn new(pixelization: Pixelization, mut values: Vec<f64>) -> Result<Self> {
         check_length(pixelization, values.len())?;
-        let valid: Vec<bool> = values.iter().map(|&v| !is_bad_value(v)).collect();
-        for (v, ok) in values.iter_mut().zip(&valid) {
+        let valid = ValidPixels::from_fn(values.len(), |p| !is_bad_value(values[p]));
+        for (v, &ok) in values.iter_mut().zip(&valid) {
             if !ok {
                 *v = f64::NAN;
             }
@@ -110,7 +111,7 @@ impl SkyMap {
             .into_par_iter()
             .map(|p| f(pixelization.center(p)))
             .collect();
-        let valid = values.iter().map(|&v| !is_bad_value(v)).collect();
+        let valid = ValidPixels::from_fn(values.len(), |p| !is_bad_value(values[p]));
         SkyMap {
             pixelization,
             values: Cow::Owned(values),
@@ -130,7 +131,7 @@ impl<'a> SkyMapOf<'a> {
         check_length(pixelization, values.len())?;
         Ok(SkyMapOf {
             pixelization,
-            valid: values.iter().map(|&v| !is_bad_value(v)).collect(),
+            valid: ValidPixels::from_fn(values.len(), |p| !is_bad_value(values[p])),
             values: Cow::Borrowed(values),
             coordsys: None,
         })
@@ -176,19 +177,19 @@ impl<'a> SkyMapOf<'a> {
     }
 
     /// Which pixels are valid.
-    pub fn valid(&self) -> &[bool] {
+    pub fn valid(&self) -> &ValidPixels {
         &self.valid
     }
 
     /// Value of a valid pixel, `None` for an invalid one or an index out of range.
     pub fn get(&self, pixel: u64) -> Option<f64> {
         let i = usize::try_from(pixel).ok()?;
-        (*self.valid.get(i)?).then(|| self.values[i])
+        (i < self.valid.len() && self.valid.get(i)).then(|| self.values[i])
     }
 
     /// Number of valid pixels.
     pub fn valid_count(&self) -> u64 {
-        self.valid.iter().filter(|&&v| v).count() as u64
+        self.valid.count()
     }
 
     /// The same map in another ordering (Górski et al. 2005 RING ↔ NESTED, via `cdshealpix`);
@@ -225,7 +226,7 @@ impl<'a> SkyMapOf<'a> {
                     })
                     .collect(),
             ),
-            valid: index.iter().map(|&i| self.valid[i]).collect(),
+            valid: ValidPixels::from_fn(index.len(), |p| self.valid.get(index[p])),
             coordsys: self.coordsys.clone(),
         })
     }

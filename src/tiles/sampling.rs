@@ -517,7 +517,7 @@ impl MapSource<'_> {
     /// Is every pixel valid (a whole map without bad pixels)?
     fn all_valid(&self) -> bool {
         match self {
-            MapSource::Whole(m) => m.valid().iter().all(|&ok| ok),
+            MapSource::Whole(m) => m.valid().all(),
             MapSource::Blocks(_) => false,
         }
     }
@@ -525,11 +525,9 @@ impl MapSource<'_> {
     /// Is some valid pixel `i` `wanted(i)`?
     fn any_valid(&self, wanted: impl Fn(usize) -> bool + Sync) -> bool {
         match self {
-            MapSource::Whole(m) => m
-                .valid()
-                .par_iter()
-                .enumerate()
-                .any(|(i, &ok)| ok && wanted(i)),
+            MapSource::Whole(m) => (0..m.valid().len())
+                .into_par_iter()
+                .any(|i| m.valid().get(i) && wanted(i)),
             MapSource::Blocks(m) => m.blocks().any(|(start, values)| {
                 values
                     .iter()

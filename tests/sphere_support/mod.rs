@@ -130,6 +130,32 @@ pub fn bits<'v>(v: impl IntoIterator<Item = &'v f64>) -> Vec<u64> {
     v.into_iter().map(|x| x.to_bits()).collect()
 }
 
+/// Asserts that two lists of numbers are the same bit for bit; on a difference the message
+/// names `what`, how many entries differ and the first few with both values (a whole-sky
+/// list printed in full would bury them).
+pub fn assert_same_bits<'v>(
+    what: &str,
+    a: impl IntoIterator<Item = &'v f64>,
+    b: impl IntoIterator<Item = &'v f64>,
+) {
+    let (a, b): (Vec<f64>, Vec<f64>) = (
+        a.into_iter().copied().collect(),
+        b.into_iter().copied().collect(),
+    );
+    assert_eq!(a.len(), b.len(), "{what}: lengths");
+    let differ: Vec<(usize, f64, f64)> = (0..a.len())
+        .filter(|&i| a[i].to_bits() != b[i].to_bits())
+        .map(|i| (i, a[i], b[i]))
+        .collect();
+    assert!(
+        differ.is_empty(),
+        "{what}: {} of {} entries differ, first (index, left, right): {:?}",
+        differ.len(),
+        a.len(),
+        &differ[..differ.len().min(6)]
+    );
+}
+
 /// The bit patterns of a pair measurement's cross coefficients.
 pub fn cross_bits(p: &planisphere::measure::measurement::PairStatistics) -> Vec<u64> {
     p.cross
