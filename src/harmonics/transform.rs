@@ -44,6 +44,9 @@ const PORTABLE_SYNTHESIS_LANES: usize = 4;
 const ANALYSIS_LANES: usize = 32;
 /// Lanes of the analysis partial sums kept per degree (summed pairwise at the end).
 const ANALYSIS_ROW: usize = 8;
+/// One degree's analysis partial sums: [`ANALYSIS_ROW`] lanes of Σ ν X_even (re, im) and
+/// Σ ν z X_odd (re, im).
+type AnalysisRow = [[f64; ANALYSIS_ROW]; 4];
 
 /// Target size of one band of ring sums (all rings, a band of orders m) in the banded stages:
 /// a few MB instead of (lmax + 1) × rings complex values (201 MB at NSIDE 1024).
@@ -187,11 +190,14 @@ impl PhaseWalk {
     /// g·e^{i m φ0} (synthesis), or g·e^{−i m φ0} when `conjugate` (analysis), on a ring of n
     /// pixels starting at φ0 = π/n: e^{i m φ0} = e^{i k φ0} (−1)^{⌊m/n⌋} with k = m mod n,
     /// since n φ0 = π.
-    fn shift(&mut self, g: Complex64, m: usize, n: usize, conjugate: bool) -> Complex64 {
-        let phase = self.at(m % n);
+    ///
+    /// Takes k = m mod n and whether ⌊m/n⌋ is odd, which the ring stages step along with m
+    /// (no division per order).
+    fn shift(&mut self, g: Complex64, k: usize, odd_fold: bool, conjugate: bool) -> Complex64 {
+        let phase = self.at(k);
         let mut g = g;
         g *= if conjugate { phase.conj() } else { phase };
-        if (m / n) % 2 == 1 {
+        if odd_fold {
             g = -g;
         }
         g
@@ -223,10 +229,10 @@ impl HarmonicTransform {
         }
         let rings = geometry.rings();
         let npairs = 2 * nside;
-        let pairs = RingPairs {
-            z: rings[..npairs].iter().map(|r| r.z).collect(),
-            sin_theta: rings[..npairs].iter().map(|r| r.sin_theta).collect(),
-        };
+        let pairs = RingPairs::new(
+            rings[..npairs].iter().map(|r| r.z).collect(),
+            rings[..npairs].iter().map(|r| r.sin_theta).collect(),
+        );
         let mut planner = RealFftPlanner::<f64>::new();
         Ok(HarmonicTransform {
             lmax,
@@ -395,10 +401,11 @@ impl HarmonicTransform {
                             values[2 * k + 1] += g.im;
                         }
                     };
+                    // k = m mod n and the parity of ⌊m/n⌋, stepped along with m.
+                    let (mut k, mut odd_fold) = (m0 % n, (m0 / n) % 2 == 1);
                     for (m, &f) in (m0..m1).zip(&by_ring[q * width..(q + 1) * width]) {
-                        let k = m % n;
                         let g = if ring.half_pixel_shift {
-                            phases.shift(f, m, n, false)
+                            phases.shift(f, k, odd_fold, false)
                         } else {
                             f
                         };
@@ -406,10 +413,14 @@ impl HarmonicTransform {
                             add(k, g);
                         }
                         if m > 0 {
-                            let k2 = (n - k) % n;
+                            let k2 = if k == 0 { 0 } else { n - k };
                             if k2 <= half {
                                 add(k2, g.conj());
                             }
+                        }
+                        k += 1;
+                        if k == n {
+                            (k, odd_fold) = (0, !odd_fold);
                         }
                     }
                 });
@@ -560,15 +571,20 @@ impl HarmonicTransform {
                     }
                 };
                 let mut phases = PhaseWalk::new(ring.phi0);
-                for (o, m) in out.iter_mut().zip(m0..m1) {
-                    let k = m % n;
+                // k = m mod n and the parity of ⌊m/n⌋, stepped along with m.
+                let (mut k, mut odd_fold) = (m0 % n, (m0 / n) % 2 == 1);
+                for o in out.iter_mut() {
                     let c = if k <= half { bin(k) } else { bin(n - k).conj() };
                     let g = if ring.half_pixel_shift {
-                        phases.shift(c, m, n, true)
+                        phases.shift(c, k, odd_fold, true)
                     } else {
                         c
                     };
                     *o = g * weight;
+                    k += 1;
+                    if k == n {
+                        (k, odd_fold) = (0, !odd_fold);
+                    }
                 }
             });
             // Legendre stage: one order m per task, writing its own slice of the coefficients,
@@ -579,11 +595,11 @@ impl HarmonicTransform {
             order_slices[m0..m1]
                 .par_iter_mut()
                 .enumerate()
-                .for_each(|(i, out)| {
+                .for_each_init(Vec::new, |rows, (i, out)| {
                     let m = m0 + i;
                     let out = out.take().expect("each order is visited once");
                     let ring_sums = &by_slot[i * stride..(i + 1) * stride];
-                    self.analysis_order(m, ring_sums, out, accumulate);
+                    self.analysis_order(m, ring_sums, out, accumulate, rows);
                 });
         }
     }
@@ -657,6 +673,7 @@ impl HarmonicTransform {
         ring_sums: &[Complex64],
         out: &mut [Complex64],
         accumulate: bool,
+        rows: &mut Vec<AnalysisRow>,
     ) {
         let rec = OrderRecurrence::new(m, self.lmax);
         let (norm, pairs, acc) = (self.log2_norms[m], &self.pairs, accumulate);
@@ -664,17 +681,19 @@ impl HarmonicTransform {
         #[cfg(target_arch = "x86_64")]
         match self.kernel {
             LegendreKernel::Avx512Fma => {
-                unsafe { fused::analysis_order_avx512(&rec, norm, pairs, ring_sums, out, acc) };
+                unsafe {
+                    fused::analysis_order_avx512(&rec, norm, pairs, ring_sums, out, acc, rows)
+                };
                 return;
             }
             LegendreKernel::Avx2Fma => {
-                unsafe { fused::analysis_order_avx2(&rec, norm, pairs, ring_sums, out, acc) };
+                unsafe { fused::analysis_order_avx2(&rec, norm, pairs, ring_sums, out, acc, rows) };
                 return;
             }
             LegendreKernel::Portable => {}
         }
         analysis_order::<PlainMulAdd, ANALYSIS_LANES, ANALYSIS_ROW>(
-            &rec, norm, pairs, ring_sums, out, acc,
+            &rec, norm, pairs, ring_sums, out, acc, rows,
         );
     }
 }
@@ -711,9 +730,10 @@ mod fused {
                 ring_sums: &[Complex64],
                 out: &mut [Complex64],
                 accumulate: bool,
+                rows: &mut Vec<AnalysisRow>,
             ) {
                 analysis_order::<FusedMulAdd, ANALYSIS_LANES, ANALYSIS_ROW>(
-                    rec, norm, pairs, ring_sums, out, accumulate,
+                    rec, norm, pairs, ring_sums, out, accumulate, rows,
                 )
             }
         };
