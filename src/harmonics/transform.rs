@@ -530,8 +530,9 @@ impl HarmonicTransform {
     /// caller's array instead when there are no iterations.
     pub fn analysis(&self, map: &[f64], iterations: usize) -> Result<HarmonicCoefficients> {
         self.check_map(map)?;
-        let mut work = huge_page_zeros(map.len());
-        work.copy_from_slice(map);
+        let mut work = Vec::with_capacity(map.len());
+        advise_huge_pages(work.as_mut_ptr(), map.len());
+        work.extend_from_slice(map);
         let mut alm = HarmonicCoefficients::zeros(self.lmax);
         self.analysis_in_place(&mut work, &mut alm, false);
         for _ in 0..iterations {
