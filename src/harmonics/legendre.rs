@@ -188,10 +188,16 @@ impl OrderRecurrence {
 /// the north pole; the last pair is the equator ring when it is its own mirror.
 pub(crate) struct RingPairs {
     pub z: Vec<f64>,
-    pub sin_theta: Vec<f64>,
+    /// log2 sin θ of each pair (the sectoral start λ_mm ∝ sin^m θ is built from it).
+    log2_sin: Vec<f64>,
 }
 
 impl RingPairs {
+    pub fn new(z: Vec<f64>, sin_theta: Vec<f64>) -> Self {
+        let log2_sin = sin_theta.iter().map(|s| s.log2()).collect();
+        RingPairs { z, log2_sin }
+    }
+
     pub fn len(&self) -> usize {
         self.z.len()
     }
@@ -233,7 +239,7 @@ fn block<const L: usize>(
         let p = npairs - 1 - (first + r.min(valid - 1));
         blk.pairs[r] = p;
         blk.z[r] = pairs.z[p];
-        let log2 = log2_norm + m as f64 * pairs.sin_theta[p].log2();
+        let log2 = log2_norm + m as f64 * pairs.log2_sin[p];
         let s = if log2 >= -700.0 {
             0.0
         } else {
@@ -271,6 +277,29 @@ pub(crate) fn rescale<const L: usize>(
         }
     }
     scaled
+}
+
+/// [`rescale`] for the scalar stages, without a branch per lane so that it vectorises: the
+/// same bits (a lane not brought down is multiplied by exactly 1), and `live` is rebuilt from
+/// the scales.
+#[inline(always)]
+fn rescale_lanes<const L: usize>(
+    p0: &mut [f64; L],
+    p1: &mut [f64; L],
+    s: &mut [i32; L],
+    live: &mut [f64; L],
+) -> bool {
+    let mut scaled = 0i32;
+    for r in 0..L {
+        let down = (s[r] > 0) & (p1[r].abs() > SCALE_LIMIT);
+        let factor = if down { SCALE_DOWN } else { 1.0 };
+        p0[r] *= factor;
+        p1[r] *= factor;
+        s[r] -= i32::from(down);
+        live[r] = if s[r] == 0 { 1.0 } else { 0.0 };
+        scaled |= i32::from(s[r] > 0);
+    }
+    scaled != 0
 }
 
 /// 1 for the lanes already at their true scale (s = 0), 0 for those still scaled down.
@@ -357,7 +386,7 @@ fn walk_block<A: MulAdd, S: LaneSink<L>, const L: usize>(
                 pass += 1;
             }
         }
-        scaled = rescale(&mut p0, &mut p1, &mut s, &mut live);
+        scaled = rescale_lanes(&mut p0, &mut p1, &mut s, &mut live);
     }
     if !scaled {
         // Every lane at its true scale: no masks.
@@ -499,6 +528,7 @@ impl<A: MulAdd, const L: usize, const W: usize> LaneSink<L> for AnalysisSums<'_,
 /// azimuthal sums of the map; 0 for the south of the equator ring, its own mirror).
 ///
 /// With `accumulate`, the sums are added to `out` (a Jacobi correction) instead of replacing it.
+/// `rows` is scratch for the partial sums (any contents; resized here).
 ///
 /// Blocks of L pairs add into W-lane partial sums per even degree (see [`AnalysisSums`]); the
 /// W lanes are summed once at the end in a fixed pairwise order, so the result does not
@@ -511,10 +541,14 @@ pub(crate) fn analysis_order<A: MulAdd, const L: usize, const W: usize>(
     ring_sums: &[Complex64],
     out: &mut [Complex64],
     accumulate: bool,
+    rows: &mut Vec<[[f64; W]; 4]>,
 ) {
     const { assert!(L.is_multiple_of(W) && W.is_power_of_two()) };
     let count = rec.even_count();
-    let mut rows = vec![[[0.0f64; W]; 4]; count];
+    // The partial sums live in the caller's scratch, reused from order to order.
+    rows.clear();
+    rows.resize(count, [[0.0f64; W]; 4]);
+    let rows = &mut rows[..];
     let mut b = 0;
     // Block by block from the equator, until one ends with all its lanes scaled down (every
     // ring nearer the pole is dead too).
@@ -530,7 +564,7 @@ pub(crate) fn analysis_order<A: MulAdd, const L: usize, const W: usize>(
             x[3][r] = z * (g_n.im - g_s.im);
         }
         let mut sums = AnalysisSums::<A, L, W> {
-            rows: &mut rows,
+            rows: &mut *rows,
             x: &x,
             _fma: std::marker::PhantomData,
         };
@@ -582,10 +616,7 @@ mod tests {
         use std::f64::consts::PI;
         let theta: f64 = 0.7;
         let (st, ct) = theta.sin_cos();
-        let pairs = RingPairs {
-            z: vec![ct],
-            sin_theta: vec![st],
-        };
+        let pairs = RingPairs::new(vec![ct], vec![st]);
         let lmax = 2;
         let norms = log2_sectoral_norms(lmax);
         let expect = [

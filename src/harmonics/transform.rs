@@ -44,6 +44,9 @@ const PORTABLE_SYNTHESIS_LANES: usize = 4;
 const ANALYSIS_LANES: usize = 32;
 /// Lanes of the analysis partial sums kept per degree (summed pairwise at the end).
 const ANALYSIS_ROW: usize = 8;
+/// One degree's analysis partial sums: [`ANALYSIS_ROW`] lanes of Σ ν X_even (re, im) and
+/// Σ ν z X_odd (re, im).
+type AnalysisRow = [[f64; ANALYSIS_ROW]; 4];
 
 /// Target size of one band of ring sums (all rings, a band of orders m) in the banded stages:
 /// a few MB instead of (lmax + 1) × rings complex values (201 MB at NSIDE 1024).
@@ -187,15 +190,85 @@ impl PhaseWalk {
     /// g·e^{i m φ0} (synthesis), or g·e^{−i m φ0} when `conjugate` (analysis), on a ring of n
     /// pixels starting at φ0 = π/n: e^{i m φ0} = e^{i k φ0} (−1)^{⌊m/n⌋} with k = m mod n,
     /// since n φ0 = π.
-    fn shift(&mut self, g: Complex64, m: usize, n: usize, conjugate: bool) -> Complex64 {
-        let phase = self.at(m % n);
+    ///
+    /// Takes k = m mod n and whether ⌊m/n⌋ is odd, which the ring stages step along with m
+    /// (no division per order).
+    fn shift(&mut self, g: Complex64, k: usize, odd_fold: bool, conjugate: bool) -> Complex64 {
+        let phase = self.at(k);
         let mut g = g;
         g *= if conjugate { phase.conj() } else { phase };
-        if (m / n) % 2 == 1 {
+        if odd_fold {
             g = -g;
         }
         g
     }
+}
+
+/// Rings ahead of the current one whose band of spectrum bins the ring stages ask the cache
+/// for: each ring's bins of a band are about 1 KB, 32 KB after the previous ring's, so the
+/// hardware prefetcher alone leaves every ring's first loads waiting on memory.
+const PREFETCH_RINGS_AHEAD: usize = 2;
+
+/// Packed-spectrum index range [lo, hi) of a ring of `n` pixels read or written for the orders
+/// m0 … m0 + width − 1 (bins k = m mod n and n − k, both folded to ≤ n/2; the packed layout
+/// keeps bin k at 2k, 2k + 1; the Nyquist bin, at index 1, is not included).
+fn band_packed_range(n: usize, m0: usize, width: usize) -> (usize, usize) {
+    let half = n / 2;
+    let a = m0 % n;
+    if a + width > n {
+        return (0, n);
+    }
+    let last = a + width - 1;
+    let lo = if last > half { a.min(n - last) } else { a };
+    let hi = if a <= half { last.min(half) } else { n - a };
+    (2 * lo, (2 * hi + 2).min(n))
+}
+
+/// `len` zeros in a vector whose pages the kernel is asked to back with huge pages (Linux
+/// transparent huge pages in `madvise` mode, a hint: results are the same either way). The
+/// ring stages visit every ring of the map once per band of orders, about 1 KB per ring 32 KB
+/// apart at NSIDE 1024, so with 4 KiB pages each visit is a TLB miss.
+fn huge_page_zeros(len: usize) -> Vec<f64> {
+    let mut values: Vec<f64> = Vec::with_capacity(len);
+    advise_huge_pages(values.as_mut_ptr(), len);
+    values.resize(len, 0.0);
+    values
+}
+
+/// Ask for huge pages on the whole 2 MiB pages inside `len` values from `ptr`, before they are
+/// first touched.
+#[cfg(target_os = "linux")]
+fn advise_huge_pages(ptr: *mut f64, len: usize) {
+    const HUGE_PAGE: usize = 2 << 20;
+    let start = ptr as usize;
+    let end = start + len * std::mem::size_of::<f64>();
+    let first = start.next_multiple_of(HUGE_PAGE);
+    if end > first && end - first >= HUGE_PAGE {
+        let bytes = (end - first) / HUGE_PAGE * HUGE_PAGE;
+        // SAFETY: the range lies inside the vector's own allocation; MADV_HUGEPAGE only
+        // changes how the kernel backs it, and a refusal leaves it as it was.
+        unsafe { libc::madvise(first as *mut libc::c_void, bytes, libc::MADV_HUGEPAGE) };
+    }
+}
+
+#[cfg(not(target_os = "linux"))]
+fn advise_huge_pages(_ptr: *mut f64, _len: usize) {}
+
+/// Ask the cache for the values at `values[range]` (a hint: no effect on results).
+#[inline(always)]
+fn prefetch_range(values: *const f64, (lo, hi): (usize, usize)) {
+    #[cfg(target_arch = "x86_64")]
+    for i in (lo..hi).step_by(8) {
+        // SAFETY: a prefetch is a hint that reads nothing architecturally and never faults,
+        // whatever the address; `wrapping_add` keeps the pointer arithmetic defined.
+        unsafe {
+            std::arch::x86_64::_mm_prefetch::<{ std::arch::x86_64::_MM_HINT_T0 }>(
+                values.wrapping_add(i).cast(),
+            )
+        };
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    let _ = (values, lo, hi);
 }
 
 impl HarmonicTransform {
@@ -223,10 +296,10 @@ impl HarmonicTransform {
         }
         let rings = geometry.rings();
         let npairs = 2 * nside;
-        let pairs = RingPairs {
-            z: rings[..npairs].iter().map(|r| r.z).collect(),
-            sin_theta: rings[..npairs].iter().map(|r| r.sin_theta).collect(),
-        };
+        let pairs = RingPairs::new(
+            rings[..npairs].iter().map(|r| r.z).collect(),
+            rings[..npairs].iter().map(|r| r.sin_theta).collect(),
+        );
         let mut planner = RealFftPlanner::<f64>::new();
         Ok(HarmonicTransform {
             lmax,
@@ -331,7 +404,7 @@ impl HarmonicTransform {
     /// coefficients (healpy 1.20.1 `alm2map`). `alm.lmax()` must equal the transform's lmax.
     pub fn synthesis(&self, alm: &HarmonicCoefficients) -> Result<Vec<f64>> {
         self.check_lmax(alm)?;
-        let mut map = vec![0.0; self.pixel_count()];
+        let mut map = huge_page_zeros(self.pixel_count());
         self.synthesis_into(alm, &mut map);
         Ok(map)
     }
@@ -377,11 +450,18 @@ impl HarmonicTransform {
             let by_ring = &mut by_ring[..width * self.ring_count()];
             self.slots_to_rings(sums, width, by_ring);
             let by_ring = &*by_ring;
+            // Each ring's start, as an address (only ever used for prefetch hints).
+            let starts: Vec<usize> = ring_slices.iter().map(|r| r.as_ptr() as usize).collect();
             ring_slices
                 .par_iter_mut()
                 .enumerate()
                 .for_each(|(q, values)| {
-                    let ring = &self.geometry.rings()[q];
+                    let rings = self.geometry.rings();
+                    if let Some(ahead) = rings.get(q + PREFETCH_RINGS_AHEAD) {
+                        let range = band_packed_range(ahead.pixel_count, m0, width);
+                        prefetch_range(starts[q + PREFETCH_RINGS_AHEAD] as *const f64, range);
+                    }
+                    let ring = &rings[q];
                     let n = ring.pixel_count;
                     let half = n / 2;
                     let mut phases = PhaseWalk::new(ring.phi0);
@@ -395,10 +475,11 @@ impl HarmonicTransform {
                             values[2 * k + 1] += g.im;
                         }
                     };
+                    // k = m mod n and the parity of ⌊m/n⌋, stepped along with m.
+                    let (mut k, mut odd_fold) = (m0 % n, (m0 / n) % 2 == 1);
                     for (m, &f) in (m0..m1).zip(&by_ring[q * width..(q + 1) * width]) {
-                        let k = m % n;
                         let g = if ring.half_pixel_shift {
-                            phases.shift(f, m, n, false)
+                            phases.shift(f, k, odd_fold, false)
                         } else {
                             f
                         };
@@ -406,10 +487,14 @@ impl HarmonicTransform {
                             add(k, g);
                         }
                         if m > 0 {
-                            let k2 = (n - k) % n;
+                            let k2 = if k == 0 { 0 } else { n - k };
                             if k2 <= half {
                                 add(k2, g.conj());
                             }
+                        }
+                        k += 1;
+                        if k == n {
+                            (k, odd_fold) = (0, !odd_fold);
                         }
                     }
                 });
@@ -445,7 +530,9 @@ impl HarmonicTransform {
     /// caller's array instead when there are no iterations.
     pub fn analysis(&self, map: &[f64], iterations: usize) -> Result<HarmonicCoefficients> {
         self.check_map(map)?;
-        let mut work = map.to_vec();
+        let mut work = Vec::with_capacity(map.len());
+        advise_huge_pages(work.as_mut_ptr(), map.len());
+        work.extend_from_slice(map);
         let mut alm = HarmonicCoefficients::zeros(self.lmax);
         self.analysis_in_place(&mut work, &mut alm, false);
         for _ in 0..iterations {
@@ -546,6 +633,10 @@ impl HarmonicTransform {
             let sums = &mut sums[..self.ring_count() * width];
             // Ring stage: fold and phase-shift each ring's spectrum onto the band's orders.
             sums.par_chunks_mut(width).enumerate().for_each(|(q, out)| {
+                if let Some(ahead) = rings.get(q + PREFETCH_RINGS_AHEAD) {
+                    let range = band_packed_range(ahead.pixel_count, m0, width);
+                    prefetch_range(values[ahead.first_pixel..].as_ptr(), range);
+                }
                 let ring = &rings[q];
                 let n = ring.pixel_count;
                 let half = n / 2;
@@ -560,15 +651,20 @@ impl HarmonicTransform {
                     }
                 };
                 let mut phases = PhaseWalk::new(ring.phi0);
-                for (o, m) in out.iter_mut().zip(m0..m1) {
-                    let k = m % n;
+                // k = m mod n and the parity of ⌊m/n⌋, stepped along with m.
+                let (mut k, mut odd_fold) = (m0 % n, (m0 / n) % 2 == 1);
+                for o in out.iter_mut() {
                     let c = if k <= half { bin(k) } else { bin(n - k).conj() };
                     let g = if ring.half_pixel_shift {
-                        phases.shift(c, m, n, true)
+                        phases.shift(c, k, odd_fold, true)
                     } else {
                         c
                     };
                     *o = g * weight;
+                    k += 1;
+                    if k == n {
+                        (k, odd_fold) = (0, !odd_fold);
+                    }
                 }
             });
             // Legendre stage: one order m per task, writing its own slice of the coefficients,
@@ -579,11 +675,11 @@ impl HarmonicTransform {
             order_slices[m0..m1]
                 .par_iter_mut()
                 .enumerate()
-                .for_each(|(i, out)| {
+                .for_each_init(Vec::new, |rows, (i, out)| {
                     let m = m0 + i;
                     let out = out.take().expect("each order is visited once");
                     let ring_sums = &by_slot[i * stride..(i + 1) * stride];
-                    self.analysis_order(m, ring_sums, out, accumulate);
+                    self.analysis_order(m, ring_sums, out, accumulate, rows);
                 });
         }
     }
@@ -657,6 +753,7 @@ impl HarmonicTransform {
         ring_sums: &[Complex64],
         out: &mut [Complex64],
         accumulate: bool,
+        rows: &mut Vec<AnalysisRow>,
     ) {
         let rec = OrderRecurrence::new(m, self.lmax);
         let (norm, pairs, acc) = (self.log2_norms[m], &self.pairs, accumulate);
@@ -664,17 +761,19 @@ impl HarmonicTransform {
         #[cfg(target_arch = "x86_64")]
         match self.kernel {
             LegendreKernel::Avx512Fma => {
-                unsafe { fused::analysis_order_avx512(&rec, norm, pairs, ring_sums, out, acc) };
+                unsafe {
+                    fused::analysis_order_avx512(&rec, norm, pairs, ring_sums, out, acc, rows)
+                };
                 return;
             }
             LegendreKernel::Avx2Fma => {
-                unsafe { fused::analysis_order_avx2(&rec, norm, pairs, ring_sums, out, acc) };
+                unsafe { fused::analysis_order_avx2(&rec, norm, pairs, ring_sums, out, acc, rows) };
                 return;
             }
             LegendreKernel::Portable => {}
         }
         analysis_order::<PlainMulAdd, ANALYSIS_LANES, ANALYSIS_ROW>(
-            &rec, norm, pairs, ring_sums, out, acc,
+            &rec, norm, pairs, ring_sums, out, acc, rows,
         );
     }
 }
@@ -711,9 +810,10 @@ mod fused {
                 ring_sums: &[Complex64],
                 out: &mut [Complex64],
                 accumulate: bool,
+                rows: &mut Vec<AnalysisRow>,
             ) {
                 analysis_order::<FusedMulAdd, ANALYSIS_LANES, ANALYSIS_ROW>(
-                    rec, norm, pairs, ring_sums, out, accumulate,
+                    rec, norm, pairs, ring_sums, out, accumulate, rows,
                 )
             }
         };
@@ -772,6 +872,37 @@ mod tests {
                 (b.re.to_bits(), b.im.to_bits()),
                 "k={k}"
             );
+        }
+    }
+
+    // The range covers every packed index the ring stages touch for a band (checked by
+    // listing the bins k = m mod n and n − k folded to ≤ n/2, as the stages do).
+    #[test]
+    fn band_packed_range_covers_the_bins_of_the_band() {
+        for n in [4usize, 8, 12, 40, 64] {
+            for m0 in 0..3 * n {
+                for width in 1..2 * n {
+                    let (lo, hi) = band_packed_range(n, m0, width);
+                    assert!(hi <= n);
+                    for m in m0..m0 + width {
+                        let k = m % n;
+                        // (The Nyquist bin, kept at index 1 beside the DC bin, is left out.)
+                        for bin in [k, (n - k) % n] {
+                            if bin < n / 2 {
+                                let (at, end) = if bin == 0 {
+                                    (0, 1)
+                                } else {
+                                    (2 * bin, 2 * bin + 2)
+                                };
+                                assert!(
+                                    at >= lo && end <= hi,
+                                    "n={n} m0={m0} width={width} bin={bin} range=({lo},{hi})"
+                                );
+                            }
+                        }
+                    }
+                }
+            }
         }
     }
 
