@@ -48,9 +48,15 @@ const ANALYSIS_ROW: usize = 8;
 /// Σ ν z X_odd (re, im).
 type AnalysisRow = [[f64; ANALYSIS_ROW]; 4];
 
-/// Target size of one band of ring sums (all rings, a band of orders m) in the banded stages:
+/// Largest size of one band of ring sums (all rings, a band of orders m) in the banded stages:
 /// a few MB instead of (lmax + 1) × rings complex values (201 MB at NSIDE 1024).
 const BAND_BYTES: usize = 4 << 20;
+/// Smallest size of one band of ring sums.
+const MIN_BAND_BYTES: usize = 1 << 20;
+/// A band of ring sums is at most this fraction of the map's bytes (with its transposed copy,
+/// 2 × 1/64 ≈ 3%: the two stay within the transforms' memory target of map + coefficients +
+/// 10% at NSIDE 1024, where 2 × 4 MiB were 8% of the map).
+const BAND_MAP_FRACTION: usize = 64;
 /// Orders per task when a band of ring sums is copied from ring-major to order-major.
 const TRANSPOSE_ORDERS: usize = 8;
 /// Rings per task when a band of ring sums is copied from order-major to ring-major.
@@ -722,10 +728,13 @@ impl HarmonicTransform {
     }
 
     /// Orders per band in the banded stages: as many as keep one band's ring sums near
-    /// [`BAND_BYTES`], and at least [`ORDERS_PER_THREAD`] per worker thread.
+    /// 1/[`BAND_MAP_FRACTION`] of the map, between [`MIN_BAND_BYTES`] and [`BAND_BYTES`], and
+    /// at least [`ORDERS_PER_THREAD`] per worker thread.
     fn orders_per_band(&self) -> usize {
         let per_order = self.ring_count() * std::mem::size_of::<Complex64>();
-        (BAND_BYTES / per_order).max(ORDERS_PER_THREAD * rayon::current_num_threads())
+        let map_bytes = 12 * self.nside() * self.nside() * std::mem::size_of::<f64>();
+        let band_bytes = (map_bytes / BAND_MAP_FRACTION).clamp(MIN_BAND_BYTES, BAND_BYTES);
+        (band_bytes / per_order).max(ORDERS_PER_THREAD * rayon::current_num_threads())
     }
 
     fn synthesis_order(&self, m: usize, alm: &[Complex64], out: &mut [Complex64]) {
