@@ -176,12 +176,9 @@ impl DifferentiableScattering {
                 n * n
             )));
         }
-        if let Some(i) = field.iter().position(|v| !v.is_finite()) {
-            return Err(Error::Data(format!(
-                "field holds a non-finite value ({}) at pixel {i}",
-                field[i]
-            )));
-        }
+        crate::error::check_finite(field, |i| {
+            format!("field holds a non-finite value ({}) at pixel {i}", field[i])
+        })?;
         Ok(())
     }
 
