@@ -370,11 +370,9 @@ pub struct ScatteringEngine {
 
 impl std::fmt::Debug for ScatteringEngine {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.debug_struct("ScatteringEngine")
-            .field("size", &self.bank.size())
-            .field("scales", &self.bank.scale_count())
-            .field("orientations", &self.bank.orientation_count())
-            .field("first_layer_levels", &self.levels)
+        let mut d = f.debug_struct("ScatteringEngine");
+        self.bank.debug_shape(&mut d);
+        d.field("first_layer_levels", &self.levels)
             .field("levels", &self.second_levels)
             .field("settings", &self.settings)
             .finish()

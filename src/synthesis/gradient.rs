@@ -106,11 +106,9 @@ pub struct DifferentiableScattering {
 
 impl std::fmt::Debug for DifferentiableScattering {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.debug_struct("DifferentiableScattering")
-            .field("size", &self.bank.size())
-            .field("scales", &self.bank.scale_count())
-            .field("orientations", &self.bank.orientation_count())
-            .finish()
+        let mut d = f.debug_struct("DifferentiableScattering");
+        self.bank.debug_shape(&mut d);
+        d.finish()
     }
 }
 
