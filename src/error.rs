@@ -47,6 +47,15 @@ impl Error {
     }
 }
 
+/// `Ok` when every value is finite; otherwise [`Error::Data`] with the message `describe` writes
+/// for the position of the first value that is not (NaN or infinite).
+pub fn check_finite(values: &[f64], describe: impl FnOnce(usize) -> String) -> Result<()> {
+    match values.iter().position(|v| !v.is_finite()) {
+        Some(i) => Err(Error::Data(describe(i))),
+        None => Ok(()),
+    }
+}
+
 /// A number as printed in messages: at most 6 significant digits, in plain notation for
 /// magnitudes in [1e-4, 1e6) and in scientific notation (`1e-300`, `2.5e12`) otherwise, so a
 /// user's extreme value never prints as hundreds of digits.

@@ -36,14 +36,11 @@ pub fn convergence_on_footprint(
     footprint: &Footprint,
     settings: &MassMappingSettings,
 ) -> Result<ConvergenceOnFootprint> {
-    let zeroed = |m: &SkyMap| -> Vec<f64> {
-        m.values()
-            .iter()
-            .zip(m.valid())
-            .map(|(&v, &ok)| if ok { v } else { 0.0 })
-            .collect()
-    };
-    let kappa = mapper.convergence_from_shear(&zeroed(gamma1), &zeroed(gamma2), settings)?;
+    let kappa = mapper.convergence_from_shear(
+        &gamma1.values_filled(0.0),
+        &gamma2.values_filled(0.0),
+        settings,
+    )?;
     let keep = |values: Vec<f64>| -> Result<SkyMap> {
         let kept = values
             .into_iter()

@@ -28,18 +28,25 @@ pub const MAP_COLUMNS: [&str; 7] = [
 /// Celestial coordinates (HEALPix FITS convention, `COORDSYS = 'C'`).
 const CELESTIAL: &str = "C";
 
-fn options() -> WriteOptions {
-    WriteOptions {
+/// Writes `columns`, the footprint's weights as `MASK`, then `extra` columns to `path`.
+fn write_with_mask(
+    path: &Path,
+    columns: &[(&str, &SkyMap)],
+    maps: &CatalogueMaps,
+    extra: &[(&str, &SkyMap)],
+) -> Result<()> {
+    let mask = SkyMap::new(
+        maps.footprint.pixelization(),
+        maps.footprint.weights().to_vec(),
+    )?;
+    let mut all = columns.to_vec();
+    all.push((MAP_COLUMNS[6], &mask));
+    all.extend_from_slice(extra);
+    let options = WriteOptions {
         coordsys: Some(CELESTIAL.to_string()),
         ..WriteOptions::default()
-    }
-}
-
-fn mask_map(maps_footprint: &crate::sky::footprint::Footprint) -> Result<SkyMap> {
-    SkyMap::new(
-        maps_footprint.pixelization(),
-        maps_footprint.weights().to_vec(),
-    )
+    };
+    write_maps(path, &all, &options)
 }
 
 /// Writes the maps of [`MAP_COLUMNS`], then `extra` columns (e.g. κ maps), to `path`.
@@ -48,18 +55,15 @@ pub fn write_catalogue_maps(
     maps: &CatalogueMaps,
     extra: &[(&str, &SkyMap)],
 ) -> Result<()> {
-    let mask = mask_map(&maps.footprint)?;
-    let mut columns: Vec<(&str, &SkyMap)> = vec![
+    let columns = [
         (MAP_COLUMNS[0], &maps.galaxies),
         (MAP_COLUMNS[1], &maps.weight),
         (MAP_COLUMNS[2], &maps.gamma1),
         (MAP_COLUMNS[3], &maps.gamma2),
         (MAP_COLUMNS[4], &maps.noise_variance),
         (MAP_COLUMNS[5], &maps.density_contrast),
-        (MAP_COLUMNS[6], &mask),
     ];
-    columns.extend_from_slice(extra);
-    write_maps(path, &columns, &options())
+    write_with_mask(path, &columns, maps, extra)
 }
 
 /// Writes one noise realisation (`GAMMA1`, `GAMMA2`, `MASK`, then `extra` columns) to `path`.
@@ -69,12 +73,10 @@ pub fn write_noise_maps(
     maps: &CatalogueMaps,
     extra: &[(&str, &SkyMap)],
 ) -> Result<()> {
-    let mask = mask_map(&maps.footprint)?;
-    let mut columns: Vec<(&str, &SkyMap)> = vec![
-        ("GAMMA1", &noise.gamma1),
-        ("GAMMA2", &noise.gamma2),
-        ("MASK", &mask),
-    ];
-    columns.extend_from_slice(extra);
-    write_maps(path, &columns, &options())
+    write_with_mask(
+        path,
+        &[("GAMMA1", &noise.gamma1), ("GAMMA2", &noise.gamma2)],
+        maps,
+        extra,
+    )
 }

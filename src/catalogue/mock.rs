@@ -80,12 +80,7 @@ pub fn mock_catalogue(
 /// [`MassMapper::shear_from_convergence`].
 pub fn shear_of_convergence(kappa: &SkyMap, lmax: usize) -> Result<(SkyMap, SkyMap)> {
     let nside = kappa.nside() as usize;
-    let values: Vec<f64> = kappa
-        .values()
-        .iter()
-        .zip(kappa.valid())
-        .map(|(&v, &ok)| if ok { v } else { 0.0 })
-        .collect();
+    let values = kappa.values_filled(0.0);
     let alm =
         HarmonicTransform::new(nside, lmax)?.analysis(&values, DEFAULT_ANALYSIS_ITERATIONS)?;
     let (g1, g2) =

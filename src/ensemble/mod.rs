@@ -763,12 +763,12 @@ impl EnsembleJob {
                 values.len()
             )));
         }
-        if let Some(k) = values.iter().position(|v| !v.is_finite()) {
-            return Err(Error::Data(format!(
+        crate::error::check_finite(&values, |k| {
+            format!(
                 "{source}: statistic '{}' is not finite",
                 self.description.labels[k]
-            )));
-        }
+            )
+        })?;
         let row = Row {
             member: i,
             source: source.clone(),

@@ -78,13 +78,13 @@ impl Ensemble {
                 n_rows * p
             )));
         }
-        if let Some(k) = values.iter().position(|v| !v.is_finite()) {
+        crate::error::check_finite(&values, |k| {
             let (i, j) = (k / p, k % p);
-            return Err(Error::Data(format!(
+            format!(
                 "ensemble value {} at row {i}, column {j} ('{}') is not a finite number",
                 values[k], labels[j].name
-            )));
-        }
+            )
+        })?;
         Ok(Ensemble {
             labels,
             values: DMatrix::from_row_slice(n_rows, p, &values),

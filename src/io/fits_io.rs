@@ -44,28 +44,19 @@ pub const VALUES_PER_ROW: usize = 1024;
 /// FITS header/data block size (FITS standard 4.0, §3.1).
 const FITS_BLOCK: u64 = 2880;
 
-// cfitsio constants (fitsio.h).
-const KEY_NO_EXIST: c_int = 202;
-const MEMORY_ALLOCATION: c_int = 113;
-const READONLY: c_int = 0;
-pub(super) const BINARY_TBL: c_int = 2;
-const TSHORT: c_int = 21;
-const TBYTE: c_int = 11;
-const TSBYTE: c_int = 12;
-const TUSHORT: c_int = 20;
-const TUINT: c_int = 30;
-const TINT: c_int = 31;
-const TULONG: c_int = 40;
-const TLONG: c_int = 41;
-pub(super) const TFLOAT: c_int = 42;
-const TULONGLONG: c_int = 80;
-const TLONGLONG: c_int = 81;
-pub(super) const TDOUBLE: c_int = 82;
-const TBIT: c_int = 1;
-const TLOGICAL: c_int = 14;
-const TSTRING: c_int = 16;
-const TCOMPLEX: c_int = 83;
-const TDBLCOMPLEX: c_int = 163;
+/// Declares cfitsio constants (fitsio.h) under their C names, taken from `fitsio::sys` as the
+/// `c_int` the C functions take and return.
+macro_rules! cfitsio_constants {
+    ($($visibility:vis $name:ident),* $(,)?) => {
+        $($visibility const $name: c_int = sys::$name as c_int;)*
+    };
+}
+
+cfitsio_constants!(
+    KEY_NO_EXIST, MEMORY_ALLOCATION, READONLY, pub(super) BINARY_TBL,
+    TBYTE, TSBYTE, TSHORT, TUSHORT, TINT, TUINT, TLONG, TULONG, TLONGLONG, TULONGLONG,
+    pub(super) TFLOAT, pub(super) TDOUBLE, TBIT, TLOGICAL, TSTRING, TCOMPLEX, TDBLCOMPLEX,
+);
 
 /// Which value column to read: by 0-based position among the value columns (the `PIXEL` column
 /// of a partial-sky file does not count, as in healpy 1.20.1's `field`), or by name
@@ -312,6 +303,41 @@ impl HealpixFitsReader {
         }
     }
 
+    /// The chosen value column, checked to hold real numbers: the file's path, the column's
+    /// description, its 1-based cfitsio number and the name shown in messages.
+    fn numeric_column(
+        &self,
+        column: &ColumnChoice,
+    ) -> Result<(PathBuf, ColumnInfo, c_int, String)> {
+        let position = self.header.column_position(column)?;
+        let path = self.header.path.clone();
+        let info = self.header.columns[position].clone();
+        let name = display_name(&info.name, position);
+        if let Some(reason) = non_numeric_reason(info.type_code, &info.format) {
+            return Err(Error::fits(
+                &path,
+                format!("column '{name}' holds {reason}"),
+            ));
+        }
+        Ok((path, info, self.header.value_colnums[position], name))
+    }
+
+    /// Errors unless the rows of a full-sky file hold one value per pixel in column `info`.
+    fn check_full_sky_count(&self, path: &Path, name: &str, info: &ColumnInfo) -> Result<()> {
+        let npix = npix_of(self.header.nside);
+        let held = self.header.rows.saturating_mul(info.values_per_row);
+        if held != npix {
+            return Err(Error::fits(
+                path,
+                format!(
+                    "NSIDE {} needs {npix} pixels but column '{name}' holds {held} values ({} rows × {})",
+                    self.header.nside, self.header.rows, info.values_per_row
+                ),
+            ));
+        }
+        Ok(())
+    }
+
     /// The values of pixels `start..start + count` of one column of a full-sky file, in the
     /// file's ordering, as [`Self::read_map`] reads them before bad values become invalid
     /// pixels: NaN where an integer column holds its null value or where the value is the
@@ -324,34 +350,15 @@ impl HealpixFitsReader {
         start: u64,
         count: u64,
     ) -> Result<Vec<f64>> {
-        let position = self.header.column_position(column)?;
-        let path = self.header.path.clone();
-        let info = self.header.columns[position].clone();
-        let colnum = self.header.value_colnums[position];
+        let (path, info, colnum, name) = self.numeric_column(column)?;
         let npix = npix_of(self.header.nside);
-        let name = display_name(&info.name, position);
-        if let Some(reason) = non_numeric_reason(info.type_code, &info.format) {
-            return Err(Error::fits(
-                &path,
-                format!("column '{name}' holds {reason}"),
-            ));
-        }
         if self.header.coverage != Coverage::FullSky {
             return Err(Error::fits(
                 &path,
                 "a partial-sky file is read whole, not by pixel ranges",
             ));
         }
-        let held = self.header.rows.saturating_mul(info.values_per_row);
-        if held != npix {
-            return Err(Error::fits(
-                &path,
-                format!(
-                    "NSIDE {} needs {npix} pixels but column '{name}' holds {held} values ({} rows × {})",
-                    self.header.nside, self.header.rows, info.values_per_row
-                ),
-            ));
-        }
+        self.check_full_sky_count(&path, &name, &info)?;
         if start.checked_add(count).is_none_or(|end| end > npix) {
             return Err(Error::fits(
                 &path,
@@ -374,31 +381,13 @@ impl HealpixFitsReader {
 
     /// The full-sky values of one column as stored, NaN where there is no value.
     fn read_stored_values(&mut self, column: &ColumnChoice) -> Result<Vec<f64>> {
-        let position = self.header.column_position(column)?;
-        let path = self.header.path.clone();
-        let info = self.header.columns[position].clone();
-        let colnum = self.header.value_colnums[position];
+        let (path, info, colnum, name) = self.numeric_column(column)?;
         let npix = npix_of(self.header.nside);
         let count = self.header.rows.saturating_mul(info.values_per_row);
-        let name = display_name(&info.name, position);
         let float_column = info.type_code == TFLOAT || info.type_code == TDOUBLE;
-        if let Some(reason) = non_numeric_reason(info.type_code, &info.format) {
-            return Err(Error::fits(
-                &path,
-                format!("column '{name}' holds {reason}"),
-            ));
-        }
         match self.header.coverage {
             Coverage::FullSky => {
-                if count != npix {
-                    return Err(Error::fits(
-                        &path,
-                        format!(
-                            "NSIDE {} needs {npix} pixels but column '{name}' holds {count} values ({} rows × {})",
-                            self.header.nside, self.header.rows, info.values_per_row
-                        ),
-                    ));
-                }
+                self.check_full_sky_count(&path, &name, &info)?;
                 self.file.read_doubles(&path, colnum, count, float_column)
             }
             Coverage::Partial => {
@@ -642,10 +631,21 @@ pub fn write_maps(path: &Path, columns: &[(&str, &SkyMap)], options: &WriteOptio
 
 /// The one-line error of a failed cfitsio write.
 fn write_failure(path: &Path, what: &str, status: c_int) -> Error {
-    Error::fits(
-        path,
-        format!("cannot write {what} ({})", cfitsio_text(status)),
-    )
+    cfitsio_failure(path, format_args!("cannot write {what}"), status)
+}
+
+/// The one-line error on `path` of a cfitsio call that failed with `status`: `{failed} ({what
+/// cfitsio says})`.
+fn cfitsio_failure(path: &Path, failed: impl fmt::Display, status: c_int) -> Error {
+    Error::fits(path, format!("{failed} ({})", cfitsio_text(status)))
+}
+
+/// `Ok` when a cfitsio call returned `status` 0, otherwise its [`cfitsio_failure`].
+fn cfitsio_checked(path: &Path, failed: impl fmt::Display, status: c_int) -> Result<()> {
+    match status {
+        0 => Ok(()),
+        _ => Err(cfitsio_failure(path, failed, status)),
+    }
 }
 
 /// The trimmed column names, once each checked: printable, not repeated, not PIXEL in a
@@ -1567,12 +1567,7 @@ impl FitsHandle {
         // SAFETY: valid NUL-terminated path, out-pointers to locals.
         unsafe { sys::ffdkopn(&mut ptr, c.as_ptr(), READONLY, &mut status) };
         let handle = FitsHandle { ptr };
-        if status != 0 {
-            return Err(Error::fits(
-                path,
-                format!("cannot be read as FITS ({})", cfitsio_text(status)),
-            ));
-        }
+        cfitsio_checked(path, "cannot be read as FITS", status)?;
         Ok(handle)
     }
 
@@ -1588,12 +1583,7 @@ impl FitsHandle {
             // SAFETY: open handle; NAXIS = 0 so `naxes` is not read.
             unsafe { sys::ffcrim(handle.ptr, 8, 0, std::ptr::null_mut(), &mut status) };
         }
-        if status != 0 {
-            return Err(Error::fits(
-                shown,
-                format!("cannot be created ({})", cfitsio_text(status)),
-            ));
-        }
+        cfitsio_checked(shown, "cannot be created", status)?;
         Ok(handle)
     }
 
@@ -1642,12 +1632,7 @@ impl FitsHandle {
         let mut status = 0;
         // SAFETY: open handle, out-pointers to locals.
         unsafe { sys::ffgncl(self.ptr, &mut n, &mut status) };
-        if status != 0 {
-            return Err(Error::fits(
-                path,
-                format!("cannot count table columns ({})", cfitsio_text(status)),
-            ));
-        }
+        cfitsio_checked(path, "cannot count table columns", status)?;
         Ok(n)
     }
 
@@ -1656,12 +1641,7 @@ impl FitsHandle {
         let mut status = 0;
         // SAFETY: open handle, out-pointers to locals.
         unsafe { sys::ffgnrwll(self.ptr, &mut n, &mut status) };
-        if status != 0 {
-            return Err(Error::fits(
-                path,
-                format!("cannot count table rows ({})", cfitsio_text(status)),
-            ));
-        }
+        cfitsio_checked(path, "cannot count table rows", status)?;
         Ok(n.max(0) as u64)
     }
 
@@ -1682,15 +1662,11 @@ impl FitsHandle {
                 &mut status,
             )
         };
-        if status != 0 {
-            return Err(Error::fits(
-                path,
-                format!(
-                    "cannot read the type of column {colnum} ({})",
-                    cfitsio_text(status)
-                ),
-            ));
-        }
+        cfitsio_checked(
+            path,
+            format_args!("cannot read the type of column {colnum}"),
+            status,
+        )?;
         Ok((code, repeat.max(0) as u64))
     }
 
@@ -1701,12 +1677,7 @@ impl FitsHandle {
         let mut status = 0;
         // SAFETY: open handle, out-pointers to locals.
         unsafe { sys::ffghadll(self.ptr, &mut head, &mut data, &mut end, &mut status) };
-        if status != 0 {
-            return Err(Error::fits(
-                path,
-                format!("cannot locate the table data ({})", cfitsio_text(status)),
-            ));
-        }
+        cfitsio_checked(path, "cannot locate the table data", status)?;
         Ok(data.max(0) as u64)
     }
 
@@ -1808,13 +1779,7 @@ impl FitsHandle {
                 &mut status,
             )
         };
-        if status != 0 {
-            return Err(Error::fits(
-                path,
-                format!("cannot read column {colnum} ({})", cfitsio_text(status)),
-            ));
-        }
-        Ok(())
+        cfitsio_checked(path, format_args!("cannot read column {colnum}"), status)
     }
 
     /// Appends a binary table of `rows` rows with the given column names and TFORMs.

@@ -52,12 +52,12 @@ impl FlatMap {
                 crate::error::compact(pixel_size)
             )));
         }
-        if let Some(i) = values.iter().position(|v| !v.is_finite()) {
-            return Err(Error::Data(format!(
+        crate::error::check_finite(&values, |i| {
+            format!(
                 "flat map holds a non-finite value ({}) at pixel {i}",
                 values[i]
-            )));
-        }
+            )
+        })?;
         Ok(Self {
             size,
             pixel_size,

@@ -274,6 +274,14 @@ impl MorletBank {
         self.orientation_count
     }
 
+    /// Adds grid size, scale count and orientation count to the `Debug` text of an engine that
+    /// owns the bank (which shows these, not the filters).
+    pub(crate) fn debug_shape(&self, d: &mut std::fmt::DebugStruct<'_, '_>) {
+        d.field("size", &self.size)
+            .field("scales", &self.scale_count)
+            .field("orientations", &self.orientation_count);
+    }
+
     /// Slant s = 4 / L of the envelope.
     pub fn slant(&self) -> f64 {
         self.slant

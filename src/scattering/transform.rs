@@ -305,6 +305,17 @@ fn sort_census(census: &mut [FftCount]) {
     });
 }
 
+/// Runs `transform` with the clock on; returns its result, the FFT time and the census of the
+/// transforms it performed (in census order).
+fn profiled<T>(
+    transform: impl FnOnce(&mut FftClock) -> Result<T>,
+) -> Result<(T, FftTiming, Vec<FftCount>)> {
+    let mut clock = FftClock::new(true);
+    let result = transform(&mut clock)?;
+    sort_census(&mut clock.census);
+    Ok((result, clock.timing, clock.census))
+}
+
 struct FftClock {
     on: bool,
     timing: FftTiming,
@@ -359,11 +370,9 @@ pub struct ScatteringEngine {
 
 impl std::fmt::Debug for ScatteringEngine {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.debug_struct("ScatteringEngine")
-            .field("size", &self.bank.size())
-            .field("scales", &self.bank.scale_count())
-            .field("orientations", &self.bank.orientation_count())
-            .field("first_layer_levels", &self.levels)
+        let mut d = f.debug_struct("ScatteringEngine");
+        self.bank.debug_shape(&mut d);
+        d.field("first_layer_levels", &self.levels)
             .field("levels", &self.second_levels)
             .field("settings", &self.settings)
             .finish()
@@ -606,6 +615,35 @@ pub(crate) fn check_taper_and_weight(a: &[f64], w: &[f64], n: usize) -> Result<(
     Ok((sw, sa))
 }
 
+/// Per j1, per j2 > j1: the weight W_{j1,j2} = w·[N_{j1} ≥ τ]·[N_{j2} ≥ τ] (w where both scales
+/// are trusted) passed through `low_pass(W, j2)` (to the second-layer grid of j2), and Σ W_{j1,j2}.
+pub(crate) fn pair_trusted_weights(
+    w: &[f64],
+    trust: &[Vec<bool>],
+    mut low_pass: impl FnMut(&[f64], usize) -> Vec<f64>,
+) -> Vec<Vec<(Vec<f64>, f64)>> {
+    let big_j = trust.len();
+    (0..big_j)
+        .map(|j1| {
+            ((j1 + 1)..big_j)
+                .map(|j2| {
+                    let wp: Vec<f64> = (0..w.len())
+                        .map(|i| {
+                            if trust[j1][i] && trust[j2][i] {
+                                w[i]
+                            } else {
+                                0.0
+                            }
+                        })
+                        .collect();
+                    let total = wp.iter().sum::<f64>();
+                    (low_pass(&wp, j2), total)
+                })
+                .collect()
+        })
+        .collect()
+}
+
 pub(crate) fn check_values(name: &str, values: &[f64], len: usize, n: usize) -> Result<()> {
     if values.len() != len {
         return Err(Error::Mismatch(format!(
@@ -613,12 +651,12 @@ pub(crate) fn check_values(name: &str, values: &[f64], len: usize, n: usize) -> 
             values.len()
         )));
     }
-    if let Some(i) = values.iter().position(|v| !v.is_finite()) {
-        return Err(Error::Data(format!(
+    crate::error::check_finite(values, |i| {
+        format!(
             "tile {name} holds a non-finite value ({}) at pixel {i}",
             values[i]
-        )));
-    }
+        )
+    })?;
     Ok(())
 }
 
@@ -1119,9 +1157,8 @@ impl ScatteringEngine {
 
     /// As [`Self::transform_tile`], also timing the FFT calls (for profiling).
     pub fn transform_tile_timed(&self, tile: &TileView<'_>) -> Result<(TileSums, FftTiming)> {
-        let mut clock = FftClock::new(true);
-        let sums = self.run(tile, &mut clock)?;
-        Ok((sums, clock.timing))
+        let (sums, timing, _) = profiled(|clock| self.run(tile, clock))?;
+        Ok((sums, timing))
     }
 
     /// As [`Self::transform_tile_timed`], also returning the transforms performed grouped as in
@@ -1130,10 +1167,7 @@ impl ScatteringEngine {
         &self,
         tile: &TileView<'_>,
     ) -> Result<(TileSums, FftTiming, Vec<FftCount>)> {
-        let mut clock = FftClock::new(true);
-        let sums = self.run(tile, &mut clock)?;
-        sort_census(&mut clock.census);
-        Ok((sums, clock.timing, clock.census))
+        profiled(|clock| self.run(tile, clock))
     }
 
     /// As [`Self::transform_tile_pair`], also timing the FFT calls and returning the transforms
@@ -1142,10 +1176,7 @@ impl ScatteringEngine {
         &self,
         tile: &TilePairView<'_>,
     ) -> Result<(PairTileSums, FftTiming, Vec<FftCount>)> {
-        let mut clock = FftClock::new(true);
-        let sums = self.run_pair(tile, &mut clock)?;
-        sort_census(&mut clock.census);
-        Ok((sums, clock.timing, clock.census))
+        profiled(|clock| self.run_pair(tile, clock))
     }
 
     /// Transform many tiles in parallel (rayon); the output keeps the input order and each
@@ -1293,7 +1324,9 @@ impl ScatteringEngine {
             first_trusted.push(wj.iter().sum::<f64>());
             first_weights.push(self.low_pass(&wj, level, clock));
         }
-        let pair_weights = self.pair_weights(w, &trust, clock);
+        let pair_weights = pair_trusted_weights(w, &trust, |wp, j2| {
+            self.low_pass(wp, self.second_levels[j2], clock)
+        });
         let top = self.levels.iter().copied().max().unwrap_or(0);
         let tapers: Vec<Vec<f64>> = (0..=top).map(|d| subsample(a, n, n >> d)).collect();
         TileTerms {
@@ -1330,36 +1363,6 @@ impl ScatteringEngine {
             coverage.push_scale(&cov, n, tau, (self.levels[j], self.second_levels[j]));
         }
         coverage
-    }
-
-    /// Pooling weights of the pairs (j1, j2), j2 > j1: w where both scales are trusted,
-    /// low-passed to the second-layer level of j2, with its sum.
-    fn pair_weights(
-        &self,
-        w: &[f64],
-        trust: &[Vec<bool>],
-        clock: &mut FftClock,
-    ) -> Vec<Vec<(Vec<f64>, f64)>> {
-        let big_j = self.scale_count();
-        (0..big_j)
-            .map(|j1| {
-                ((j1 + 1)..big_j)
-                    .map(|j2| {
-                        let wp: Vec<f64> = (0..w.len())
-                            .map(|i| {
-                                if trust[j1][i] && trust[j2][i] {
-                                    w[i]
-                                } else {
-                                    0.0
-                                }
-                            })
-                            .collect();
-                        let total = wp.iter().sum::<f64>();
-                        (self.low_pass(&wp, self.second_levels[j2], clock), total)
-                    })
-                    .collect()
-            })
-            .collect()
     }
 
     /// First layer of one field: per (j, l) g = IDFT(ψ̂_{j,l} · spectrum) on the first-layer

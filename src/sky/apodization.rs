@@ -48,12 +48,19 @@ pub enum TaperKind {
 /// assert_eq!((c1(0.0), c1(1.0), c1(2.0)), (0.0, 1.0, 1.0));
 /// ```
 pub fn c1(x: f64) -> f64 {
+    clamped_ramp(x, |x| {
+        x - (2.0 * std::f64::consts::PI * x).sin() / (2.0 * std::f64::consts::PI)
+    })
+}
+
+/// A taper rising from 0 at x ≤ 0 to 1 at x ≥ 1, `rise(x)` in between.
+fn clamped_ramp(x: f64, rise: impl Fn(f64) -> f64) -> f64 {
     if x >= 1.0 {
         1.0
     } else if x <= 0.0 {
         0.0
     } else {
-        x - (2.0 * std::f64::consts::PI * x).sin() / (2.0 * std::f64::consts::PI)
+        rise(x)
     }
 }
 
@@ -70,13 +77,7 @@ pub fn c1(x: f64) -> f64 {
 /// assert_eq!((c2(0.0), c2(1.0)), (0.0, 1.0));
 /// ```
 pub fn c2(x: f64) -> f64 {
-    if x >= 1.0 {
-        1.0
-    } else if x <= 0.0 {
-        0.0
-    } else {
-        0.5 * (1.0 - (std::f64::consts::PI * x).cos())
-    }
+    clamped_ramp(x, |x| 0.5 * (1.0 - (std::f64::consts::PI * x).cos()))
 }
 
 /// Standard normal distribution function Φ(z) = erfc(−z/√2)/2, with erfc from the Chebyshev

@@ -255,10 +255,15 @@ impl<'a> SkyMapOf<'a> {
 
     /// Values with invalid pixels written as the UNSEEN sentinel, as HEALPix files store them.
     pub fn values_with_sentinel(&self) -> Vec<f64> {
+        self.values_filled(UNSEEN)
+    }
+
+    /// Values with invalid pixels written as `fill` (0 before a harmonic transform, say).
+    pub fn values_filled(&self, fill: f64) -> Vec<f64> {
         self.values
             .iter()
             .zip(&self.valid)
-            .map(|(&v, &ok)| if ok { v } else { UNSEEN })
+            .map(|(&v, &ok)| if ok { v } else { fill })
             .collect()
     }
 

@@ -106,11 +106,9 @@ pub struct DifferentiableScattering {
 
 impl std::fmt::Debug for DifferentiableScattering {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.debug_struct("DifferentiableScattering")
-            .field("size", &self.bank.size())
-            .field("scales", &self.bank.scale_count())
-            .field("orientations", &self.bank.orientation_count())
-            .finish()
+        let mut d = f.debug_struct("DifferentiableScattering");
+        self.bank.debug_shape(&mut d);
+        d.finish()
     }
 }
 
@@ -176,12 +174,9 @@ impl DifferentiableScattering {
                 n * n
             )));
         }
-        if let Some(i) = field.iter().position(|v| !v.is_finite()) {
-            return Err(Error::Data(format!(
-                "field holds a non-finite value ({}) at pixel {i}",
-                field[i]
-            )));
-        }
+        crate::error::check_finite(field, |i| {
+            format!("field holds a non-finite value ({}) at pixel {i}", field[i])
+        })?;
         Ok(())
     }
 

@@ -478,12 +478,12 @@ pub(crate) fn checked_target_variance(
             labels.len()
         )));
     }
-    if let Some(i) = coefficients.iter().position(|v| !v.is_finite()) {
-        return Err(Error::Data(format!(
+    crate::error::check_finite(coefficients, |i| {
+        format!(
             "target coefficient {} is not a finite number",
             label_name(&labels[i])
-        )));
-    }
+        )
+    })?;
     let variance = coefficients[1];
     if variance.is_nan() || variance <= 0.0 {
         return Err(Error::Data(format!(

@@ -384,11 +384,9 @@ impl SphereSynthesis {
                 self.geometry.values().len()
             )));
         }
-        if let Some(p) = values.iter().position(|v| !v.is_finite()) {
-            return Err(Error::Data(format!(
-                "map value at pixel {p} is not a finite number"
-            )));
-        }
+        crate::error::check_finite(values, |p| {
+            format!("map value at pixel {p} is not a finite number")
+        })?;
         Ok(())
     }
 
@@ -485,11 +483,9 @@ impl SphereSynthesis {
         self.check_map(values)?;
         let (total, envelope, one_point) = self.combined_sums(values)?;
         let c = pooled_values(&total);
-        if let Some(i) = c.iter().position(|v| !v.is_finite()) {
-            return Err(Error::Data(format!(
-                "pooled coefficient {i} has no pooling weight on this footprint (use fewer scales or larger tiles)"
-            )));
-        }
+        crate::error::check_finite(&c, |i| {
+            format!("pooled coefficient {i} has no pooling weight on this footprint (use fewer scales or larger tiles)")
+        })?;
         let mut s = self.select(&c);
         if self.settings.field_envelope_correlation {
             s.extend(self.correlations(&total, &envelope));
@@ -691,12 +687,7 @@ impl SphereSynthesis {
             .map(|c| c.value)
             .collect();
         let (extra, kurtosis) = if self.settings.field_envelope_correlation {
-            let filled: Vec<f64> = map
-                .values()
-                .iter()
-                .zip(map.valid())
-                .map(|(&v, &ok)| if ok { v } else { c[0] })
-                .collect();
+            let filled = map.values_filled(c[0]);
             let (total, envelope, one_point) = self.combined_sums(&filled)?;
             let mut extra = self.correlations(&total, &envelope);
             extra.extend(Self::shape_values(&one_point));

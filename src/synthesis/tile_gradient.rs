@@ -66,8 +66,9 @@ use super::gradient::DifferentiableScattering;
 use crate::scattering::layout::CoefficientLayout;
 use crate::scattering::pooling::TileSums;
 use crate::scattering::transform::{
-    band_boxes, check_taper_and_weight, check_values, crop_box, crop_levels_for, subsample,
-    validate_settings, BandBox, Boxes, Coverage, TileView, TransformSettings,
+    band_boxes, check_taper_and_weight, check_values, crop_box, crop_levels_for,
+    pair_trusted_weights, subsample, validate_settings, BandBox, Boxes, Coverage, TileView,
+    TransformSettings,
 };
 use crate::{Error, Result};
 use num_complex::Complex64;
@@ -288,7 +289,9 @@ impl DifferentiableScattering {
         let second_levels = crop_levels_for(bank, settings, 0);
         let coverage = self.coverage(taper, &levels, &second_levels, settings.coverage_threshold);
         let first_weights = self.first_trusted_weights(weight, &coverage.trust, &levels);
-        let pair_weights = self.pair_trusted_weights(weight, &coverage.trust, &second_levels);
+        let pair_weights = pair_trusted_weights(weight, &coverage.trust, |wp, j2| {
+            self.low_pass(wp, second_levels[j2])
+        });
         let top = levels.iter().copied().max().unwrap_or(0);
         let boxes = band_boxes(bank, &levels, &second_levels, settings);
         Ok(TileGeometry {
@@ -375,36 +378,6 @@ impl DifferentiableScattering {
             .collect()
     }
 
-    /// Per j1, per j2 > j1: the weight W_{j1,j2} = w·[N_{j1} ≥ τ]·[N_{j2} ≥ τ] low-passed to the
-    /// second-layer grid of j2, and Σ W_{j1,j2}.
-    fn pair_trusted_weights(
-        &self,
-        weight: &[f64],
-        trust: &[Vec<bool>],
-        second_levels: &[usize],
-    ) -> Vec<Vec<(Vec<f64>, f64)>> {
-        let big_j = trust.len();
-        let nn = weight.len();
-        (0..big_j)
-            .map(|j1| {
-                ((j1 + 1)..big_j)
-                    .map(|j2| {
-                        let wp: Vec<f64> = (0..nn)
-                            .map(|i| {
-                                if trust[j1][i] && trust[j2][i] {
-                                    weight[i]
-                                } else {
-                                    0.0
-                                }
-                            })
-                            .collect();
-                        let total = wp.iter().sum::<f64>();
-                        (self.low_pass(&wp, second_levels[j2]), total)
-                    })
-                    .collect()
-            })
-            .collect()
-    }
     /// Forward pass of the masked estimator on one tile: the sums equal
     /// [`crate::scattering::transform::ScatteringEngine::transform_tile`] with the same settings (Fourier
     /// cropping included when the settings ask for it).
