@@ -47,7 +47,17 @@
 //! ring). Analysis is the adjoint with equal pixel weights 4π/Npix: a^+_ℓm = Σ_rings ₛλ_ℓm
 //! (G^Q_m + iG^U_m), a^−_ℓm = Σ_rings ₋ₛλ_ℓm (G^Q_m − iG^U_m), E = −(a⁺ + (−1)^s a⁻)/2,
 //! B = i(a⁺ − (−1)^s a⁻)/2, with G_m = (4π/Npix) Σ_j f_j e^{−imφ_j}, refined by Jacobi iterations
-//! like the scalar analysis. The Legendre stage is parallel over orders m, the ring stage over
+//! like the scalar analysis.
+//!
+//! **Spin 2, orders m ≥ 2** (the shear and polarization case) skip the Wigner recurrence: the
+//! Legendre stage is two scalar Legendre stages, to ℓmax + 2, of sin²θ (Q_m, U_m) (synthesis)
+//! or of (G^Q_m, G^U_m)/sin²θ (analysis), run by the kernels of [`super::legendre`] (two-degree
+//! recurrence in cos²θ, register sums, dead polar blocks skipped), with E, B coupled to the
+//! scalar coefficients by the banded relations of [`SpinTwoCoupling`]. That is 2 + 4
+//! multiply-adds per two degrees and field against the recurrence above's 4 + 8 per degree.
+//! Orders m < 2 and other spins keep the recurrence above.
+//!
+//! The Legendre stage is parallel over orders m, the ring stage over
 //! rings; each output is computed by one task in a fixed order, so results are bitwise
 //! identical for any thread count.
 
@@ -87,6 +97,8 @@ const PASSES_PER_CHECK: usize = 4;
 const _: () = assert!(TILE_STEPS.is_multiple_of(2 * PASSES_PER_CHECK));
 /// Target size of one band of ring sums in the banded stages (as in the scalar transform).
 const BAND_BYTES: usize = 4 << 20;
+/// Rings per task when a band of synthesis ring sums is copied from order-major to ring-major.
+const TRANSPOSE_RINGS: usize = 16;
 /// Orders whose ring sums one task of the analysis gathers together from the ring-major band.
 const ORDERS_PER_GATHER: usize = 8;
 /// Most bands in analysis, which repeats the real FFTs of every ring per band.
@@ -206,12 +218,8 @@ impl SpinOrder {
             let l1 = l + 1.0;
             let big_a = ((2.0 * l + 3.0) / (2.0 * l + 1.0)).sqrt() * l1 * (2.0 * l + 1.0)
                 / (((l1 - mf) * (l1 + mf)) * ((l1 - sf) * (l1 + sf))).sqrt();
-            // B_ℓ = 0 for spin 0 (also at ℓ = 0, where m s/(ℓ(ℓ+1)) is 0/0).
-            let big_b = if spin == 0 {
-                0.0
-            } else {
-                big_a * mf * sf / (l * l1)
-            };
+            // ℓ ≥ ℓ0 ≥ s ≥ 1.
+            let big_b = big_a * mf * sf / (l * l1);
             let big_c = big_a
                 * ((2.0 * l + 1.0) / (2.0 * l - 1.0)).sqrt()
                 * (((l - mf) * (l + mf)) * ((l - sf) * (l + sf))).sqrt()
@@ -1053,9 +1061,9 @@ impl SpinTransform {
     }
 
     /// The two real maps (RING order) f = Σ_ℓm f_ℓm Y_ℓm and g = Σ_ℓm g_ℓm Y_ℓm of two real
-    /// scalar fields (healpy 1.20.1 `alm2map` of each) in one pass: the spin-0 case of the
-    /// recurrence above, one Legendre recurrence serving both fields, where two scalar
-    /// syntheses would run it twice. Both coefficient sets must have the transform's lmax.
+    /// scalar fields (healpy 1.20.1 `alm2map` of each) in one pass: the scalar Legendre kernel
+    /// once per field, then one ring stage for both maps. Both coefficient sets must have the
+    /// transform's lmax.
     ///
     /// # Examples
     ///
@@ -1109,26 +1117,45 @@ impl SpinTransform {
             rest_u = tail_u;
         }
         let mut sums = vec![Complex64::new(0.0, 0.0); band.min(lmax + 1) * 2 * stride];
+        let mut by_ring =
+            vec![[Complex64::new(0.0, 0.0); 2]; band.min(lmax + 1) * self.ring_count()];
         for m0 in (0..=lmax).step_by(band) {
             let m1 = (m0 + band).min(lmax + 1);
-            let sums = &mut sums[..(m1 - m0) * 2 * stride];
+            let width = m1 - m0;
+            let sums = &mut sums[..width * 2 * stride];
             sums.par_chunks_mut(2 * stride)
                 .enumerate()
                 .for_each(|(i, out)| {
                     order_sums(m0 + i, out);
                 });
+            // The band copied to ring-major ([ring][order] = (Q, U) sums), so that each ring
+            // reads its orders contiguously.
             let sums = &*sums;
+            let by_ring = &mut by_ring[..width * self.ring_count()];
+            by_ring
+                .par_chunks_mut(width * TRANSPOSE_RINGS)
+                .enumerate()
+                .for_each(|(c, out)| {
+                    let q0 = c * TRANSPOSE_RINGS;
+                    let count = out.len() / width;
+                    for i in 0..width {
+                        let order = &sums[i * 2 * stride..(i + 1) * 2 * stride];
+                        for t in 0..count {
+                            let slot = self.scalar.slot(q0 + t);
+                            out[t * width + i] = [order[slot], order[stride + slot]];
+                        }
+                    }
+                });
+            let by_ring = &*by_ring;
             ring_slices
                 .par_iter_mut()
                 .enumerate()
                 .for_each(|(q, (values_q, values_u))| {
                     let ring = &self.geometry().rings()[q];
                     let n = ring.pixel_count;
-                    let slot = self.scalar.slot(q);
                     let mut phases = PhaseWalk::new(ring.phi0);
-                    for m in m0..m1 {
-                        let base = (m - m0) * 2 * stride;
-                        let (mut fq, mut fu) = (sums[base + slot], sums[base + stride + slot]);
+                    for (m, &[mut fq, mut fu]) in (m0..m1).zip(&by_ring[q * width..(q + 1) * width])
+                    {
                         if ring.half_pixel_shift {
                             let phase = phases.at(m % n);
                             let sign = if (m / n) % 2 == 1 { -1.0 } else { 1.0 };
@@ -1140,7 +1167,7 @@ impl SpinTransform {
                     }
                 });
         }
-        drop(sums);
+        drop((sums, by_ring));
         ring_slices
             .into_par_iter()
             .for_each(|(values_q, values_u)| {
@@ -1363,37 +1390,18 @@ impl SpinTransform {
         let (out_q, out_u) = out.split_at_mut(out.len() / 2);
         self.scalar_synthesis(&rec, &xq, out_q);
         self.scalar_synthesis(&rec, &xu, out_u);
-        for out in [out_q, out_u] {
-            for (pair, &w) in out.chunks_exact_mut(2).zip(&self.inverse_sin2) {
-                pair[0] *= w;
-                pair[1] *= w;
-            }
-        }
+        self.divide_by_sin2(out);
     }
 
-    /// Spin-2 analysis of order m ≥ 2 by two scalar analyses ([`SpinTwoCoupling`]); the ring
-    /// sums (slot layout, Q then U) are divided by sin²θ in place.
-    fn spin_two_analysis_order(
-        &self,
-        m: usize,
-        ring_sums: &mut [Complex64],
-        e: &mut [Complex64],
-        b: &mut [Complex64],
-    ) {
-        let stride = ring_sums.len() / 2;
-        for sums in ring_sums.chunks_exact_mut(stride) {
+    /// Ring sums of Legendre-stage slots (any number of fields, each 2 × pairs long) divided by
+    /// sin²θ of their ring.
+    fn divide_by_sin2(&self, slots: &mut [Complex64]) {
+        for sums in slots.chunks_exact_mut(2 * self.pairs.len()) {
             for (pair, &w) in sums.chunks_exact_mut(2).zip(&self.inverse_sin2) {
                 pair[0] *= w;
                 pair[1] *= w;
             }
         }
-        let rec = OrderRecurrence::new(m, self.lmax() + 2);
-        let zero = Complex64::new(0.0, 0.0);
-        let mut sq = vec![zero; self.lmax() + 3 - m];
-        let mut su = sq.clone();
-        self.scalar_analysis(&rec, &ring_sums[..stride], &mut sq);
-        self.scalar_analysis(&rec, &ring_sums[stride..], &mut su);
-        SpinTwoCoupling::new(m, self.lmax()).spin_coefficients(&sq, &su, e, b);
     }
 
     /// Legendre stage of analysis for order m from its ring sums (slot layout, G^Q then G^U;
@@ -1410,10 +1418,18 @@ impl SpinTransform {
             b.fill(Complex64::new(0.0, 0.0));
             return;
         }
-        if self.spin == 2 && m >= 2 {
-            return self.spin_two_analysis_order(m, slots, e, b);
-        }
         let stride = slots.len() / 2;
+        if self.spin == 2 && m >= 2 {
+            // Two scalar analyses of the sums divided by sin²θ ([`SpinTwoCoupling`]).
+            self.divide_by_sin2(slots);
+            let rec = OrderRecurrence::new(m, self.lmax() + 2);
+            let mut sq = vec![Complex64::new(0.0, 0.0); self.lmax() + 3 - m];
+            let mut su = sq.clone();
+            self.scalar_analysis(&rec, &slots[..stride], &mut sq);
+            self.scalar_analysis(&rec, &slots[stride..], &mut su);
+            SpinTwoCoupling::new(m, self.lmax()).spin_coefficients(&sq, &su, e, b);
+            return;
+        }
         let ring_sums = &|p: usize| PairSums {
             q_north: slots[2 * p],
             q_south: slots[2 * p + 1],
