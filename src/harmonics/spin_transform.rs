@@ -159,8 +159,8 @@ pub struct SpinTransform {
     scalar_pairs: RingPairs,
     /// 1/sin²θ of the north rings.
     inverse_sin2: Vec<f64>,
-    /// The north rings with sin²θ < [`POLAR_SIN2`] (the first ones), where spin-2 synthesis
-    /// keeps the Wigner recurrence.
+    /// The north rings with sin²θ < [`POLAR_SIN2`] (the first ones), where the spin-2
+    /// transforms keep the Wigner recurrence.
     polar_pairs: HalfAngleRings,
 }
 
@@ -1458,18 +1458,64 @@ impl SpinTransform {
             b.fill(Complex64::new(0.0, 0.0));
             return;
         }
-        let stride = slots.len() / 2;
         if self.spin == 2 && m >= 2 {
-            // Two scalar analyses of the sums divided by sin²θ ([`SpinTwoCoupling`]).
-            self.divide_by_sin2(slots);
-            let rec = OrderRecurrence::new(m, self.lmax() + 2);
-            let mut sq = vec![Complex64::new(0.0, 0.0); self.lmax() + 3 - m];
-            let mut su = sq.clone();
-            self.scalar_analysis(&rec, &slots[..stride], &mut sq);
-            self.scalar_analysis(&rec, &slots[stride..], &mut su);
-            SpinTwoCoupling::new(m, self.lmax()).spin_coefficients(&sq, &su, e, b);
-            return;
+            return self.spin_two_analysis_order(m, slots, e, b);
         }
+        self.wigner_analysis(m, &self.pairs, slots, e, b);
+    }
+
+    /// Spin-2 analysis of order m ≥ 2: two scalar analyses of the ring sums divided by sin²θ
+    /// ([`SpinTwoCoupling`]), the polar rings' terms (sin²θ < [`POLAR_SIN2`]) by the Wigner
+    /// recurrence instead, added after.
+    fn spin_two_analysis_order(
+        &self,
+        m: usize,
+        slots: &mut [Complex64],
+        e: &mut [Complex64],
+        b: &mut [Complex64],
+    ) {
+        let zero = Complex64::new(0.0, 0.0);
+        let stride = slots.len() / 2;
+        let polar = 2 * self.polar_pairs.len();
+        let mut polar_slots = vec![zero; 2 * polar];
+        for (field, out) in polar_slots.chunks_exact_mut(polar.max(1)).enumerate() {
+            let sums = &mut slots[field * stride..field * stride + polar];
+            out.copy_from_slice(sums);
+            sums.fill(zero);
+        }
+        self.divide_by_sin2(slots);
+        let rec = OrderRecurrence::new(m, self.lmax() + 2);
+        let mut sq = vec![zero; self.lmax() + 3 - m];
+        let mut su = sq.clone();
+        self.scalar_analysis(&rec, &slots[..stride], &mut sq);
+        self.scalar_analysis(&rec, &slots[stride..], &mut su);
+        SpinTwoCoupling::new(m, self.lmax()).spin_coefficients(&sq, &su, e, b);
+        if polar > 0 {
+            let (mut polar_e, mut polar_b) = (vec![zero; e.len()], vec![zero; b.len()]);
+            self.wigner_analysis(
+                m,
+                &self.polar_pairs,
+                &polar_slots,
+                &mut polar_e,
+                &mut polar_b,
+            );
+            for (x, y) in e.iter_mut().zip(&polar_e).chain(b.iter_mut().zip(&polar_b)) {
+                *x += y;
+            }
+        }
+    }
+
+    /// E, B of order m by the Wigner recurrence from the ring sums of `rings` (slot layout,
+    /// G^Q then G^U).
+    fn wigner_analysis(
+        &self,
+        m: usize,
+        rings: &HalfAngleRings,
+        slots: &[Complex64],
+        e: &mut [Complex64],
+        b: &mut [Complex64],
+    ) {
+        let stride = slots.len() / 2;
         let ring_sums = &|p: usize| PairSums {
             q_north: slots[2 * p],
             q_south: slots[2 * p + 1],
@@ -1477,7 +1523,6 @@ impl SpinTransform {
             u_south: slots[stride + 2 * p + 1],
         };
         let order = &SpinOrder::new(m, self.spin, self.lmax(), &self.log2_norms);
-        let rings = &self.pairs;
         run_kernel!(
             self.scalar.kernel(),
             analysis_order,
