@@ -47,7 +47,18 @@
 //! ring). Analysis is the adjoint with equal pixel weights 4π/Npix: a^+_ℓm = Σ_rings ₛλ_ℓm
 //! (G^Q_m + iG^U_m), a^−_ℓm = Σ_rings ₋ₛλ_ℓm (G^Q_m − iG^U_m), E = −(a⁺ + (−1)^s a⁻)/2,
 //! B = i(a⁺ − (−1)^s a⁻)/2, with G_m = (4π/Npix) Σ_j f_j e^{−imφ_j}, refined by Jacobi iterations
-//! like the scalar analysis. The Legendre stage is parallel over orders m, the ring stage over
+//! like the scalar analysis.
+//!
+//! **Spin 2, orders m ≥ 2** (the shear and polarization case) skip the Wigner recurrence: the
+//! Legendre stage is two scalar Legendre stages, to ℓmax + 2, of sin²θ (Q_m, U_m) (synthesis)
+//! or of (G^Q_m, G^U_m)/sin²θ (analysis), run by the kernels of [`super::legendre`] (two-degree
+//! recurrence in cos²θ, register sums, dead polar blocks skipped), with E, B coupled to the
+//! scalar coefficients by the banded relations of [`SpinTwoCoupling`]. That is 2 + 4
+//! multiply-adds per two degrees and field against the recurrence above's 4 + 8 per degree.
+//! Orders m < 2, other spins and the polar rings (sin²θ < [`POLAR_SIN2`], where dividing by
+//! sin²θ would amplify rounding) keep the recurrence above.
+//!
+//! The Legendre stage is parallel over orders m, the ring stage over
 //! rings; each output is computed by one task in a fixed order, so results are bitwise
 //! identical for any thread count.
 
@@ -55,8 +66,12 @@ use num_complex::Complex64;
 use rayon::prelude::*;
 
 use super::coefficients::HarmonicCoefficients;
-use super::geometry::RingGeometry;
-use super::legendre::{log2_sectoral_norms, rescale, FusedMulAdd, MulAdd, PlainMulAdd, SCALE_LOG2};
+use super::geometry::{Ring, RingGeometry};
+use super::legendre::{
+    analysis_order as scalar_analysis_order, log2_sectoral_norms, rescale,
+    synthesis_order as scalar_synthesis_order, FusedMulAdd, MulAdd, OrderRecurrence, PlainMulAdd,
+    RingPairs, SCALE_LOG2,
+};
 use super::transform::{HarmonicTransform, LegendreKernel, PhaseWalk};
 use crate::error::{Error, Result};
 
@@ -67,12 +82,13 @@ const SYNTHESIS_LANES: usize = 4;
 const PORTABLE_SYNTHESIS_LANES: usize = 2;
 /// Ring pairs per block in the analysis kernel (partial sums live in a buffer).
 const ANALYSIS_LANES: usize = 8;
-/// Ring pairs per block in the two-field scalar synthesis kernel with AVX-512 (eight lane sums,
-/// two recurrence values and the ring's z per lane fit the 32 registers at two registers per
-/// value), with AVX2 (one register per value in 16) and in portable code.
-const PAIR_LANES_AVX512: usize = 16;
-const PAIR_LANES_AVX2: usize = 4;
-const PAIR_LANES_PORTABLE: usize = 2;
+/// Rings per block of the scalar Legendre kernels ([`super::legendre`]) as the scalar transform
+/// runs them: synthesis with AVX2 (twice as many with AVX-512, half in portable code); analysis
+/// (all variants), whose lane products are summed in registers down to [`SCALAR_ANALYSIS_ROW`]
+/// lanes per degree.
+const SCALAR_SYNTHESIS_LANES: usize = 8;
+const SCALAR_ANALYSIS_LANES: usize = 32;
+const SCALAR_ANALYSIS_ROW: usize = 8;
 /// Steps of the recurrence per tile in the analysis kernel: the partial sums of one tile
 /// (TILE_STEPS rows of 4 × ANALYSIS_LANES values, 16 KB) stay in the first-level cache while
 /// every block of ring pairs runs through it. A multiple of the steps between rescaling checks.
@@ -82,6 +98,16 @@ const PASSES_PER_CHECK: usize = 4;
 const _: () = assert!(TILE_STEPS.is_multiple_of(2 * PASSES_PER_CHECK));
 /// Target size of one band of ring sums in the banded stages (as in the scalar transform).
 const BAND_BYTES: usize = 4 << 20;
+/// Spin-2 synthesis through sin²θ (Q, U) divides the rounding errors of the scalar sums by
+/// sin²θ: against healpy 1.20.1 `alm2map_spin` at NSIDE 1024 (lmax 3071, random E and B), 7.7e-10
+/// of the map rms on the first ring, falling as 1/sin²θ to the few 1e-12 of the Wigner recurrence
+/// near sin²θ = 1e-3. Rings with sin²θ below this (40 per cap at NSIDE 1024) keep the Wigner
+/// recurrence; worst error then 4e-11 of the rms (first ring, Wigner), 6e-14 away from the caps.
+/// In analysis the same division raised the error to 3.3e-12 of the largest coefficient (the
+/// Wigner recurrence: 3.8e-14); with the polar rings by the Wigner recurrence, 5.8e-14.
+const POLAR_SIN2: f64 = 1e-3;
+/// Rings per task when a band of synthesis ring sums is copied from order-major to ring-major.
+const TRANSPOSE_RINGS: usize = 16;
 /// Orders whose ring sums one task of the analysis gathers together from the ring-major band.
 const ORDERS_PER_GATHER: usize = 8;
 /// Most bands in analysis, which repeats the real FFTs of every ring per band.
@@ -132,6 +158,13 @@ pub struct SpinTransform {
     pairs: HalfAngleRings,
     /// log2 √((2ℓ+1)/(4π) · (2ℓ−1)!!/(2ℓ)!!), ℓ = 0 … lmax.
     log2_norms: Vec<f64>,
+    /// The north rings as the scalar Legendre kernels see them (spin 2, orders m ≥ 2).
+    scalar_pairs: RingPairs,
+    /// 1/sin²θ of the north rings.
+    inverse_sin2: Vec<f64>,
+    /// The north rings with sin²θ < [`POLAR_SIN2`] (the first ones), where the spin-2
+    /// transforms keep the Wigner recurrence.
+    polar_pairs: HalfAngleRings,
 }
 
 impl std::fmt::Debug for SpinTransform {
@@ -154,6 +187,21 @@ struct HalfAngleRings {
 }
 
 impl HalfAngleRings {
+    fn new(north: &[Ring]) -> Self {
+        HalfAngleRings {
+            z: north.iter().map(|r| r.z).collect(),
+            // 1 − z = sin²θ/(1 + z) keeps the accuracy of sin θ near the pole.
+            log2_sin_half: north
+                .iter()
+                .map(|r| 0.5 * (0.5 * r.sin_theta * r.sin_theta / (1.0 + r.z)).log2())
+                .collect(),
+            log2_cos_half: north
+                .iter()
+                .map(|r| 0.5 * (0.5 * (1.0 + r.z)).log2())
+                .collect(),
+        }
+    }
+
     fn len(&self) -> usize {
         self.z.len()
     }
@@ -197,12 +245,8 @@ impl SpinOrder {
             let l1 = l + 1.0;
             let big_a = ((2.0 * l + 3.0) / (2.0 * l + 1.0)).sqrt() * l1 * (2.0 * l + 1.0)
                 / (((l1 - mf) * (l1 + mf)) * ((l1 - sf) * (l1 + sf))).sqrt();
-            // B_ℓ = 0 for spin 0 (also at ℓ = 0, where m s/(ℓ(ℓ+1)) is 0/0).
-            let big_b = if spin == 0 {
-                0.0
-            } else {
-                big_a * mf * sf / (l * l1)
-            };
+            // ℓ ≥ ℓ0 ≥ s ≥ 1.
+            let big_b = big_a * mf * sf / (l * l1);
             let big_c = big_a
                 * ((2.0 * l + 1.0) / (2.0 * l - 1.0)).sqrt()
                 * (((l - mf) * (l + mf)) * ((l - sf) * (l + sf))).sqrt()
@@ -453,121 +497,6 @@ fn synthesis_order<A: MulAdd, const L: usize>(
         }
         if (0..valid).all(|r| smu[r] > 0 && snu[r] > 0) {
             // Every ring nearer the pole is dead too (|ₛλ| grows away from the pole there).
-            break;
-        }
-    }
-}
-
-/// Legendre stage of the synthesis of two scalar fields for one order m, one recurrence for
-/// both: F_m = Σ_ℓ f_ℓm λ_ℓm and G_m = Σ_ℓ g_ℓm λ_ℓm, for every ring pair p north at out[2p]
-/// (F) and out[stride + 2p] (G), south at out[2p + 1] and out[stride + 2p + 1], stride = 2 ×
-/// pairs. `order` is the spin-0 order (ₛλ = ₋ₛλ = λ_ℓm, the normalised associated Legendre
-/// functions; b_k = 0); `f`, `g` are the order's coefficients from ℓ = m. With ℓ0 = m the
-/// south ring takes (−1)^k λ (the north/south symmetry above at s = 0), so the sums run
-/// separately over even and odd k.
-// Kept whole, as the scalar kernel (see synthesis_order).
-#[inline(always)]
-fn scalar_pair_order<A: MulAdd, const L: usize>(
-    order: &SpinOrder,
-    rings: &HalfAngleRings,
-    f: &[Complex64],
-    g: &[Complex64],
-    out: &mut [Complex64],
-) {
-    out.fill(Complex64::new(0.0, 0.0));
-    let stride = out.len() / 2;
-    let n = order.steps();
-    let coef = &order.a;
-    // Coefficients times c_ℓ (the recurrence runs on λ/c).
-    let f: Vec<Complex64> = f.iter().zip(&order.c).map(|(a, c)| a * c).collect();
-    let g: Vec<Complex64> = g.iter().zip(&order.c).map(|(a, c)| a * c).collect();
-    let mut blk = 0;
-    while let Some((pairs, valid)) = block_pairs::<L>(blk, rings.len()) {
-        blk += 1;
-        let z: [f64; L] = std::array::from_fn(|r| rings.z[pairs[r]]);
-        let (mut p1, mut s, mut live) = start_lanes(&order.start_plus, rings, &pairs);
-        let mut p0 = [0.0f64; L];
-        // Lane sums of even and odd k: F (re, im) and G (re, im), as separate variables so
-        // that they stay in registers.
-        let (mut efr, mut efi, mut egr, mut egi) =
-            ([0.0f64; L], [0.0f64; L], [0.0f64; L], [0.0f64; L]);
-        let (mut ofr, mut ofi, mut ogr, mut ogi) =
-            ([0.0f64; L], [0.0f64; L], [0.0f64; L], [0.0f64; L]);
-        let (cf, cg) = (f[0], g[0]);
-        for r in 0..L {
-            let p = p1[r] * live[r];
-            efr[r] = cf.re * p;
-            efi[r] = cf.im * p;
-            egr[r] = cg.re * p;
-            egi[r] = cg.im * p;
-        }
-        let mut k = 1;
-        let mut scaled = s.iter().any(|&x| x > 0);
-        while scaled && k < n {
-            let mut pass = 0;
-            while pass < PASSES_PER_CHECK && k < n {
-                let (cf, cg) = (f[k], g[k]);
-                for r in 0..L {
-                    p0[r] = A::mul_add(coef[k] * z[r], p1[r], -p0[r]);
-                    let p = p0[r] * live[r];
-                    ofr[r] = A::mul_add(cf.re, p, ofr[r]);
-                    ofi[r] = A::mul_add(cf.im, p, ofi[r]);
-                    ogr[r] = A::mul_add(cg.re, p, ogr[r]);
-                    ogi[r] = A::mul_add(cg.im, p, ogi[r]);
-                }
-                let (cf, cg) = (f[k + 1], g[k + 1]);
-                for r in 0..L {
-                    p1[r] = A::mul_add(coef[k + 1] * z[r], p0[r], -p1[r]);
-                    let p = p1[r] * live[r];
-                    efr[r] = A::mul_add(cf.re, p, efr[r]);
-                    efi[r] = A::mul_add(cf.im, p, efi[r]);
-                    egr[r] = A::mul_add(cg.re, p, egr[r]);
-                    egi[r] = A::mul_add(cg.im, p, egi[r]);
-                }
-                k += 2;
-                pass += 1;
-            }
-            scaled = rescale(&mut p0, &mut p1, &mut s, &mut live);
-        }
-        while k < n {
-            let (cf, cg) = (f[k], g[k]);
-            for r in 0..L {
-                p0[r] = A::mul_add(coef[k] * z[r], p1[r], -p0[r]);
-                ofr[r] = A::mul_add(cf.re, p0[r], ofr[r]);
-                ofi[r] = A::mul_add(cf.im, p0[r], ofi[r]);
-                ogr[r] = A::mul_add(cg.re, p0[r], ogr[r]);
-                ogi[r] = A::mul_add(cg.im, p0[r], ogi[r]);
-            }
-            let (cf, cg) = (f[k + 1], g[k + 1]);
-            for r in 0..L {
-                p1[r] = A::mul_add(coef[k + 1] * z[r], p0[r], -p1[r]);
-                efr[r] = A::mul_add(cf.re, p1[r], efr[r]);
-                efi[r] = A::mul_add(cf.im, p1[r], efi[r]);
-                egr[r] = A::mul_add(cg.re, p1[r], egr[r]);
-                egi[r] = A::mul_add(cg.im, p1[r], egi[r]);
-            }
-            k += 2;
-        }
-        if k == n {
-            let (cf, cg) = (f[k], g[k]);
-            for r in 0..L {
-                p0[r] = A::mul_add(coef[k] * z[r], p1[r], -p0[r]);
-                let p = p0[r] * live[r];
-                ofr[r] = A::mul_add(cf.re, p, ofr[r]);
-                ofi[r] = A::mul_add(cf.im, p, ofi[r]);
-                ogr[r] = A::mul_add(cg.re, p, ogr[r]);
-                ogi[r] = A::mul_add(cg.im, p, ogi[r]);
-            }
-        }
-        for r in 0..valid {
-            let p = pairs[r];
-            out[2 * p] = Complex64::new(efr[r] + ofr[r], efi[r] + ofi[r]);
-            out[2 * p + 1] = Complex64::new(efr[r] - ofr[r], efi[r] - ofi[r]);
-            out[stride + 2 * p] = Complex64::new(egr[r] + ogr[r], egi[r] + ogi[r]);
-            out[stride + 2 * p + 1] = Complex64::new(egr[r] - ogr[r], egi[r] - ogi[r]);
-        }
-        if s[..valid].iter().all(|&x| x > 0) {
-            // Whole block dead: every ring nearer the pole is dead too.
             break;
         }
     }
@@ -860,6 +789,147 @@ fn analysis_order<A: MulAdd, const L: usize>(
     }
 }
 
+/// Spin-2 harmonics from the scalar ones, for one order m ≥ 2: sin²θ ₊₂λ_ℓm and sin²θ ₋₂λ_ℓm
+/// are combinations of the five scalar λ_ℓ'm, ℓ' = ℓ − 2 … ℓ + 2, with constant coefficients,
+/// so a spin-2 transform is two scalar transforms (up to ℓmax + 2) of the fields
+/// sin²θ (Q, U) (synthesis) or (Q, U)/sin²θ (analysis), with these couplings applied to the
+/// coefficients.
+///
+/// From ₛY_ℓm with the spin-raising and -lowering operators, ₊₂λ = D₊λ/√((ℓ−1)ℓ(ℓ+1)(ℓ+2)),
+/// D± = (∂θ ∓ m/sinθ − cotθ)(∂θ ∓ m/sinθ) (Newman & Penrose 1966, J. Math. Phys. 7, 863;
+/// Goldberg et al. 1967), the Legendre equation for λ'' and
+/// sinθ ∂θλ_ℓ = ℓ z λ_ℓ − (2ℓ+1) ε_ℓ λ_ℓ−1 (z = cosθ, ε_ℓ = √((ℓ² − m²)/(4ℓ² − 1))):
+///
+/// sin²θ ·±2λ_ℓ = n_ℓ [ℓ(ℓ−1) z² λ_ℓ + 2(2ℓ+1) ε_ℓ z λ_ℓ−1 + (2m² − ℓ(ℓ+1)) λ_ℓ
+/// ∓ 2m ((ℓ−1) z λ_ℓ − (2ℓ+1) ε_ℓ λ_ℓ−1)], n_ℓ = 1/√((ℓ−1)ℓ(ℓ+1)(ℓ+2)),
+///
+/// the form of the W_ℓm, X_ℓm functions of CMB polarization built from P_ℓm and P_ℓ−1,m
+/// (Kamionkowski, Kosowsky & Stebbins 1997, PRD 55, 7368; Zaldarriaga & Seljak 1997, PRD 55,
+/// 1830). With z λ_k = ε_k+1 λ_k+1 + ε_k λ_k−1 this is n_ℓ Σ_d (G_ℓ,ℓ+d ± H_ℓ,ℓ+d) λ_ℓ+d:
+///
+/// * G_ℓ,ℓ−2 = (ℓ+1)(ℓ+2) ε_ℓ ε_ℓ−1, G_ℓ,ℓ = ℓ(ℓ−1)(ε²_ℓ+1 + ε²_ℓ) + 2(2ℓ+1) ε²_ℓ + 2m² − ℓ(ℓ+1),
+///   G_ℓ,ℓ+2 = ℓ(ℓ−1) ε_ℓ+1 ε_ℓ+2;
+/// * H_ℓ,ℓ−1 = 2m(ℓ+2) ε_ℓ, H_ℓ,ℓ+1 = −2m(ℓ−1) ε_ℓ+1
+///
+/// (checked against the explicit sum of Goldberg et al. and against healpy in
+/// tests/spin_harmonics_against_healpy.rs). With the stages' relations (module documentation),
+/// Q_m = −Σ_ℓ n_ℓ (E_ℓ G_ℓ + i B_ℓ H_ℓ)(θ) and U_m = −Σ_ℓ n_ℓ (B_ℓ G_ℓ − i E_ℓ H_ℓ)(θ), where
+/// G_ℓ(θ) = Σ_d G_ℓ,ℓ+d λ_ℓ+d/sin²θ (H likewise), and the analysis is the adjoint. For m < 2
+/// the division by sin²θ loses accuracy near the poles (₂λ_ℓm ∝ sin^|m−2| θ while λ_ℓm does not
+/// vanish as fast), so those two orders keep the Wigner recurrence.
+struct SpinTwoCoupling {
+    /// n_ℓ (G_ℓ,ℓ−2, G_ℓ,ℓ, G_ℓ,ℓ+2) for ℓ = m … lmax.
+    even: Vec<[f64; 3]>,
+    /// n_ℓ (H_ℓ,ℓ−1, H_ℓ,ℓ+1) for ℓ = m … lmax.
+    odd: Vec<[f64; 2]>,
+}
+
+impl SpinTwoCoupling {
+    fn new(m: usize, lmax: usize) -> Self {
+        debug_assert!(m >= 2);
+        let mf = m as f64;
+        let eps = |k: usize| {
+            if k <= m {
+                0.0
+            } else {
+                let k = k as f64;
+                ((k - mf) * (k + mf) / (4.0 * k * k - 1.0)).sqrt()
+            }
+        };
+        let (mut even, mut odd) = (Vec::with_capacity(lmax + 1 - m), Vec::new());
+        odd.reserve(lmax + 1 - m);
+        for l in m..=lmax {
+            let lf = l as f64;
+            let n = 1.0 / ((lf - 1.0) * lf * (lf + 1.0) * (lf + 2.0)).sqrt();
+            let (e_m1, e0, e1, e2) = (eps(l - 1), eps(l), eps(l + 1), eps(l + 2));
+            even.push([
+                n * (lf + 1.0) * (lf + 2.0) * e0 * e_m1,
+                n * (lf * (lf - 1.0) * (e1 * e1 + e0 * e0)
+                    + 2.0 * (2.0 * lf + 1.0) * e0 * e0
+                    + 2.0 * mf * mf
+                    - lf * (lf + 1.0)),
+                n * lf * (lf - 1.0) * e1 * e2,
+            ]);
+            odd.push([
+                n * 2.0 * mf * (lf + 2.0) * e0,
+                -n * 2.0 * mf * (lf - 1.0) * e1,
+            ]);
+        }
+        SpinTwoCoupling { even, odd }
+    }
+
+    /// Synthesis: the coefficients (ℓ' = m … lmax + 2) of the scalar fields sin²θ Q and
+    /// sin²θ U from E, B (ℓ = m … lmax): X^Q_ℓ' = −Σ_ℓ n_ℓ (G_ℓ,ℓ' E_ℓ + i H_ℓ,ℓ' B_ℓ),
+    /// X^U_ℓ' = −Σ_ℓ n_ℓ (G_ℓ,ℓ' B_ℓ − i H_ℓ,ℓ' E_ℓ).
+    fn scalar_coefficients(
+        &self,
+        e: &[Complex64],
+        b: &[Complex64],
+    ) -> (Vec<Complex64>, Vec<Complex64>) {
+        let zero = Complex64::new(0.0, 0.0);
+        let mut xq = vec![zero; e.len() + 2];
+        let mut xu = vec![zero; e.len() + 2];
+        for (k, ((&ek, &bk), (g, h))) in e
+            .iter()
+            .zip(b)
+            .zip(self.even.iter().zip(&self.odd))
+            .enumerate()
+        {
+            let (ie, ib) = (Complex64::new(-ek.im, ek.re), Complex64::new(-bk.im, bk.re));
+            // G_ℓ,ℓ−2 and H_ℓ,ℓ−1 are zero where ℓ − 2, ℓ − 1 < m.
+            if k >= 2 {
+                xq[k - 2] -= ek * g[0];
+                xu[k - 2] -= bk * g[0];
+            }
+            if k >= 1 {
+                xq[k - 1] -= ib * h[0];
+                xu[k - 1] += ie * h[0];
+            }
+            xq[k] -= ek * g[1];
+            xu[k] -= bk * g[1];
+            xq[k + 1] -= ib * h[1];
+            xu[k + 1] += ie * h[1];
+            xq[k + 2] -= ek * g[2];
+            xu[k + 2] -= bk * g[2];
+        }
+        (xq, xu)
+    }
+
+    /// Analysis: E, B (ℓ = m … lmax) from the scalar sums S^Q_ℓ', S^U_ℓ' (ℓ' = m … lmax + 2) of
+    /// the fields Q/sin²θ and U/sin²θ: E_ℓ = −n_ℓ Σ_ℓ' (G_ℓ,ℓ' S^Q_ℓ' + i H_ℓ,ℓ' S^U_ℓ'),
+    /// B_ℓ = −n_ℓ Σ_ℓ' (G_ℓ,ℓ' S^U_ℓ' − i H_ℓ,ℓ' S^Q_ℓ').
+    fn spin_coefficients(
+        &self,
+        sq: &[Complex64],
+        su: &[Complex64],
+        e: &mut [Complex64],
+        b: &mut [Complex64],
+    ) {
+        let zero = Complex64::new(0.0, 0.0);
+        let below = |s: &[Complex64], k: usize, d: usize| if k >= d { s[k - d] } else { zero };
+        for (k, (g, h)) in self.even.iter().zip(&self.odd).enumerate() {
+            let gq = sq[k] * g[1] + sq[k + 2] * g[2] + below(sq, k, 2) * g[0];
+            let gu = su[k] * g[1] + su[k + 2] * g[2] + below(su, k, 2) * g[0];
+            let hq = sq[k + 1] * h[1] + below(sq, k, 1) * h[0];
+            let hu = su[k + 1] * h[1] + below(su, k, 1) * h[0];
+            e[k] = -(gq + Complex64::new(-hu.im, hu.re));
+            b[k] = -(gu - Complex64::new(-hq.im, hq.re));
+        }
+    }
+}
+
+/// Legendre stage of analysis of one scalar field at the scalar transform's block sizes.
+#[inline(always)]
+fn scalar_analysis<A: MulAdd, const L: usize>(
+    rec: &OrderRecurrence,
+    log2_norm: f64,
+    pairs: &RingPairs,
+    ring_sums: &[Complex64],
+    out: &mut [Complex64],
+) {
+    scalar_analysis_order::<A, L, SCALAR_ANALYSIS_ROW>(rec, log2_norm, pairs, ring_sums, out, false)
+}
+
 impl SpinTransform {
     /// Transform for spin `spin` ≥ 1, maps of `nside` and coefficients up to `lmax`, with
     /// `spin` ≤ lmax ≤ 3·nside − 1.
@@ -884,22 +954,28 @@ impl SpinTransform {
             )));
         }
         let north = &scalar.geometry().rings()[..2 * nside];
-        let pairs = HalfAngleRings {
+        let pairs = HalfAngleRings::new(north);
+        // The polar rings where the spin-2 synthesis through sin²θ (Q, U) would lose accuracy.
+        let polar = north
+            .iter()
+            .take_while(|r| r.sin_theta * r.sin_theta < POLAR_SIN2)
+            .count();
+        let polar_pairs = HalfAngleRings::new(&north[..polar]);
+        let scalar_pairs = RingPairs {
             z: north.iter().map(|r| r.z).collect(),
-            // 1 − z = sin²θ/(1 + z) keeps the accuracy of sin θ near the pole.
-            log2_sin_half: north
-                .iter()
-                .map(|r| 0.5 * (0.5 * r.sin_theta * r.sin_theta / (1.0 + r.z)).log2())
-                .collect(),
-            log2_cos_half: north
-                .iter()
-                .map(|r| 0.5 * (0.5 * (1.0 + r.z)).log2())
-                .collect(),
+            sin_theta: north.iter().map(|r| r.sin_theta).collect(),
         };
+        let inverse_sin2 = north
+            .iter()
+            .map(|r| 1.0 / (r.sin_theta * r.sin_theta))
+            .collect();
         Ok(SpinTransform {
             spin,
             pairs,
             log2_norms: log2_sectoral_norms(lmax),
+            scalar_pairs,
+            inverse_sin2,
+            polar_pairs,
             scalar,
         })
     }
@@ -1008,9 +1084,9 @@ impl SpinTransform {
     }
 
     /// The two real maps (RING order) f = Σ_ℓm f_ℓm Y_ℓm and g = Σ_ℓm g_ℓm Y_ℓm of two real
-    /// scalar fields (healpy 1.20.1 `alm2map` of each) in one pass: the spin-0 case of the
-    /// recurrence above, one Legendre recurrence serving both fields, where two scalar
-    /// syntheses would run it twice. Both coefficient sets must have the transform's lmax.
+    /// scalar fields (healpy 1.20.1 `alm2map` of each) in one pass: the scalar Legendre kernel
+    /// once per field, then one ring stage for both maps. Both coefficient sets must have the
+    /// transform's lmax.
     ///
     /// # Examples
     ///
@@ -1064,26 +1140,45 @@ impl SpinTransform {
             rest_u = tail_u;
         }
         let mut sums = vec![Complex64::new(0.0, 0.0); band.min(lmax + 1) * 2 * stride];
+        let mut by_ring =
+            vec![[Complex64::new(0.0, 0.0); 2]; band.min(lmax + 1) * self.ring_count()];
         for m0 in (0..=lmax).step_by(band) {
             let m1 = (m0 + band).min(lmax + 1);
-            let sums = &mut sums[..(m1 - m0) * 2 * stride];
+            let width = m1 - m0;
+            let sums = &mut sums[..width * 2 * stride];
             sums.par_chunks_mut(2 * stride)
                 .enumerate()
                 .for_each(|(i, out)| {
                     order_sums(m0 + i, out);
                 });
+            // The band copied to ring-major ([ring][order] = (Q, U) sums), so that each ring
+            // reads its orders contiguously.
             let sums = &*sums;
+            let by_ring = &mut by_ring[..width * self.ring_count()];
+            by_ring
+                .par_chunks_mut(width * TRANSPOSE_RINGS)
+                .enumerate()
+                .for_each(|(c, out)| {
+                    let q0 = c * TRANSPOSE_RINGS;
+                    let count = out.len() / width;
+                    for i in 0..width {
+                        let order = &sums[i * 2 * stride..(i + 1) * 2 * stride];
+                        for t in 0..count {
+                            let slot = self.scalar.slot(q0 + t);
+                            out[t * width + i] = [order[slot], order[stride + slot]];
+                        }
+                    }
+                });
+            let by_ring = &*by_ring;
             ring_slices
                 .par_iter_mut()
                 .enumerate()
                 .for_each(|(q, (values_q, values_u))| {
                     let ring = &self.geometry().rings()[q];
                     let n = ring.pixel_count;
-                    let slot = self.scalar.slot(q);
                     let mut phases = PhaseWalk::new(ring.phi0);
-                    for m in m0..m1 {
-                        let base = (m - m0) * 2 * stride;
-                        let (mut fq, mut fu) = (sums[base + slot], sums[base + stride + slot]);
+                    for (m, &[mut fq, mut fu]) in (m0..m1).zip(&by_ring[q * width..(q + 1) * width])
+                    {
                         if ring.half_pixel_shift {
                             let phase = phases.at(m % n);
                             let sign = if (m / n) % 2 == 1 { -1.0 } else { 1.0 };
@@ -1095,7 +1190,7 @@ impl SpinTransform {
                     }
                 });
         }
-        drop(sums);
+        drop((sums, by_ring));
         ring_slices
             .into_par_iter()
             .for_each(|(values_q, values_u)| {
@@ -1157,7 +1252,6 @@ impl SpinTransform {
             rest_b = tail_b;
         }
         let band = self.orders_per_band(ANALYSIS_MAX_BANDS);
-        let last_ring = self.ring_count() - 1;
         let npairs = self.pairs.len();
         // Weighted azimuthal sums of every ring for one band of orders, ring-major:
         // [G^Q of the band | G^U of the band] per ring.
@@ -1203,38 +1297,29 @@ impl SpinTransform {
                 .par_chunks_mut(ORDERS_PER_GATHER)
                 .enumerate()
                 .for_each(|(j, group)| {
-                    // The group's ring sums, order-major, gathered ring by ring from the
-                    // ring-major band (neighbouring orders share cache lines there).
+                    // The group's ring sums, order-major in Legendre-stage slots (2p north,
+                    // 2p + 1 south of pair p; G^Q then G^U), gathered ring by ring from the
+                    // ring-major band (neighbouring orders share cache lines there). The
+                    // south slot of the equator ring, its own mirror, stays 0.
                     let i0 = j * ORDERS_PER_GATHER;
-                    let mut columns = vec![Complex64::new(0.0, 0.0); group.len() * 2 * ring_count];
+                    let stride = 2 * npairs;
+                    let mut slots = vec![Complex64::new(0.0, 0.0); group.len() * 2 * stride];
                     for ring in 0..ring_count {
                         let row = &sums[ring * 2 * width..(ring + 1) * 2 * width];
+                        let slot = self.scalar.slot(ring);
                         for o in 0..group.len() {
-                            let at = (o * ring_count + ring) * 2;
-                            columns[at] = row[i0 + o];
-                            columns[at + 1] = row[width + i0 + o];
+                            slots[o * 2 * stride + slot] = row[i0 + o];
+                            slots[o * 2 * stride + stride + slot] = row[width + i0 + o];
                         }
                     }
-                    for (o, out) in group.iter_mut().enumerate() {
+                    for ((o, out), ring_sums) in group
+                        .iter_mut()
+                        .enumerate()
+                        .zip(slots.chunks_exact_mut(2 * stride))
+                    {
                         let m = m0 + i0 + o;
                         let (out_e, out_b) = out.take().expect("each order is visited once");
-                        let column = &columns[o * 2 * ring_count..(o + 1) * 2 * ring_count];
-                        let at = |ring: usize| (column[2 * ring], column[2 * ring + 1]);
-                        let ring_sums = |p: usize| {
-                            let (q_north, u_north) = at(p);
-                            let (q_south, u_south) = if p == npairs - 1 && last_ring - p == p {
-                                (Complex64::new(0.0, 0.0), Complex64::new(0.0, 0.0))
-                            } else {
-                                at(last_ring - p)
-                            };
-                            PairSums {
-                                q_north,
-                                q_south,
-                                u_north,
-                                u_south,
-                            }
-                        };
-                        self.analysis_order(m, &ring_sums, out_e, out_b);
+                        self.analysis_order(m, ring_sums, out_e, out_b);
                     }
                 });
         }
@@ -1246,8 +1331,23 @@ impl SpinTransform {
             out.fill(Complex64::new(0.0, 0.0));
             return;
         }
+        if self.spin == 2 && m >= 2 {
+            return self.spin_two_synthesis_order(m, e, b, out);
+        }
+        self.wigner_synthesis(m, &self.pairs, e, b, out);
+    }
+
+    /// Ring sums of order m by the Wigner recurrence on `rings` (layout of
+    /// [`Self::synthesis_order`] for those rings).
+    fn wigner_synthesis(
+        &self,
+        m: usize,
+        rings: &HalfAngleRings,
+        e: &[Complex64],
+        b: &[Complex64],
+        out: &mut [Complex64],
+    ) {
         let order = &SpinOrder::new(m, self.spin, self.lmax(), &self.log2_norms);
-        let rings = &self.pairs;
         run_kernel!(
             self.scalar.kernel(),
             synthesis_order,
@@ -1262,27 +1362,97 @@ impl SpinTransform {
         )
     }
 
+    /// Both fields' ring sums of order m (layout of [`Self::synthesis_order`]) by the scalar
+    /// Legendre kernel, once per field.
     fn scalar_pair_order(&self, m: usize, f: &[Complex64], g: &[Complex64], out: &mut [Complex64]) {
-        let order = &SpinOrder::new(m, 0, self.lmax(), &self.log2_norms);
-        let rings = &self.pairs;
+        let rec = OrderRecurrence::new(m, self.lmax());
+        let (out_f, out_g) = out.split_at_mut(out.len() / 2);
+        self.scalar_synthesis(&rec, f, out_f);
+        self.scalar_synthesis(&rec, g, out_g);
+    }
+
+    /// Ring sums Σ_ℓ a_ℓm λ_ℓm of one scalar field for the orders' recurrence `rec` (slots
+    /// 2p north, 2p + 1 south of pair p).
+    fn scalar_synthesis(&self, rec: &OrderRecurrence, alm: &[Complex64], out: &mut [Complex64]) {
+        let (norm, pairs) = (self.log2_norms[rec.m], &self.scalar_pairs);
         run_kernel!(
             self.scalar.kernel(),
-            scalar_pair_order,
-            lanes(PAIR_LANES_AVX512, PAIR_LANES_AVX2, PAIR_LANES_PORTABLE),
+            scalar_synthesis_order,
+            lanes(2 * SCALAR_SYNTHESIS_LANES, SCALAR_SYNTHESIS_LANES, SCALAR_SYNTHESIS_LANES / 2),
             (
-                order: &SpinOrder,
-                rings: &HalfAngleRings,
-                f: &[Complex64],
-                g: &[Complex64],
+                rec: &OrderRecurrence,
+                norm: f64,
+                pairs: &RingPairs,
+                alm: &[Complex64],
                 out: &mut [Complex64],
             )
         )
     }
 
+    /// Sums Σ_rings λ_ℓm G of one scalar field's ring sums G (slot layout as above) for
+    /// ℓ = m … the recurrence's lmax.
+    fn scalar_analysis(
+        &self,
+        rec: &OrderRecurrence,
+        ring_sums: &[Complex64],
+        out: &mut [Complex64],
+    ) {
+        let (norm, pairs) = (self.log2_norms[rec.m], &self.scalar_pairs);
+        run_kernel!(
+            self.scalar.kernel(),
+            scalar_analysis,
+            lanes(SCALAR_ANALYSIS_LANES, SCALAR_ANALYSIS_LANES, SCALAR_ANALYSIS_LANES),
+            (
+                rec: &OrderRecurrence,
+                norm: f64,
+                pairs: &RingPairs,
+                ring_sums: &[Complex64],
+                out: &mut [Complex64],
+            )
+        )
+    }
+
+    /// Spin-2 synthesis of order m ≥ 2 by two scalar syntheses ([`SpinTwoCoupling`]).
+    fn spin_two_synthesis_order(
+        &self,
+        m: usize,
+        e: &[Complex64],
+        b: &[Complex64],
+        out: &mut [Complex64],
+    ) {
+        let (xq, xu) = SpinTwoCoupling::new(m, self.lmax()).scalar_coefficients(e, b);
+        let rec = OrderRecurrence::new(m, self.lmax() + 2);
+        let (out_q, out_u) = out.split_at_mut(out.len() / 2);
+        self.scalar_synthesis(&rec, &xq, out_q);
+        self.scalar_synthesis(&rec, &xu, out_u);
+        self.divide_by_sin2(out);
+        let polar = 2 * self.polar_pairs.len();
+        if polar > 0 {
+            let mut sums = vec![Complex64::new(0.0, 0.0); 2 * polar];
+            self.wigner_synthesis(m, &self.polar_pairs, e, b, &mut sums);
+            let stride = out.len() / 2;
+            out[..polar].copy_from_slice(&sums[..polar]);
+            out[stride..stride + polar].copy_from_slice(&sums[polar..]);
+        }
+    }
+
+    /// Ring sums of Legendre-stage slots (any number of fields, each 2 × pairs long) divided by
+    /// sin²θ of their ring.
+    fn divide_by_sin2(&self, slots: &mut [Complex64]) {
+        for sums in slots.chunks_exact_mut(2 * self.pairs.len()) {
+            for (pair, &w) in sums.chunks_exact_mut(2).zip(&self.inverse_sin2) {
+                pair[0] *= w;
+                pair[1] *= w;
+            }
+        }
+    }
+
+    /// Legendre stage of analysis for order m from its ring sums (slot layout, G^Q then G^U;
+    /// consumed).
     fn analysis_order(
         &self,
         m: usize,
-        ring_sums: &dyn Fn(usize) -> PairSums,
+        slots: &mut [Complex64],
         e: &mut [Complex64],
         b: &mut [Complex64],
     ) {
@@ -1291,8 +1461,71 @@ impl SpinTransform {
             b.fill(Complex64::new(0.0, 0.0));
             return;
         }
+        if self.spin == 2 && m >= 2 {
+            return self.spin_two_analysis_order(m, slots, e, b);
+        }
+        self.wigner_analysis(m, &self.pairs, slots, e, b);
+    }
+
+    /// Spin-2 analysis of order m ≥ 2: two scalar analyses of the ring sums divided by sin²θ
+    /// ([`SpinTwoCoupling`]), the polar rings' terms (sin²θ < [`POLAR_SIN2`]) by the Wigner
+    /// recurrence instead, added after.
+    fn spin_two_analysis_order(
+        &self,
+        m: usize,
+        slots: &mut [Complex64],
+        e: &mut [Complex64],
+        b: &mut [Complex64],
+    ) {
+        let zero = Complex64::new(0.0, 0.0);
+        let stride = slots.len() / 2;
+        let polar = 2 * self.polar_pairs.len();
+        let mut polar_slots = vec![zero; 2 * polar];
+        for (field, out) in polar_slots.chunks_exact_mut(polar.max(1)).enumerate() {
+            let sums = &mut slots[field * stride..field * stride + polar];
+            out.copy_from_slice(sums);
+            sums.fill(zero);
+        }
+        self.divide_by_sin2(slots);
+        let rec = OrderRecurrence::new(m, self.lmax() + 2);
+        let mut sq = vec![zero; self.lmax() + 3 - m];
+        let mut su = sq.clone();
+        self.scalar_analysis(&rec, &slots[..stride], &mut sq);
+        self.scalar_analysis(&rec, &slots[stride..], &mut su);
+        SpinTwoCoupling::new(m, self.lmax()).spin_coefficients(&sq, &su, e, b);
+        if polar > 0 {
+            let (mut polar_e, mut polar_b) = (vec![zero; e.len()], vec![zero; b.len()]);
+            self.wigner_analysis(
+                m,
+                &self.polar_pairs,
+                &polar_slots,
+                &mut polar_e,
+                &mut polar_b,
+            );
+            for (x, y) in e.iter_mut().zip(&polar_e).chain(b.iter_mut().zip(&polar_b)) {
+                *x += y;
+            }
+        }
+    }
+
+    /// E, B of order m by the Wigner recurrence from the ring sums of `rings` (slot layout,
+    /// G^Q then G^U).
+    fn wigner_analysis(
+        &self,
+        m: usize,
+        rings: &HalfAngleRings,
+        slots: &[Complex64],
+        e: &mut [Complex64],
+        b: &mut [Complex64],
+    ) {
+        let stride = slots.len() / 2;
+        let ring_sums = &|p: usize| PairSums {
+            q_north: slots[2 * p],
+            q_south: slots[2 * p + 1],
+            u_north: slots[stride + 2 * p],
+            u_south: slots[stride + 2 * p + 1],
+        };
         let order = &SpinOrder::new(m, self.spin, self.lmax(), &self.log2_norms);
-        let rings = &self.pairs;
         run_kernel!(
             self.scalar.kernel(),
             analysis_order,
