@@ -926,9 +926,15 @@ fn scalar_analysis<A: MulAdd, const L: usize>(
     pairs: &RingPairs,
     ring_sums: &[Complex64],
     out: &mut [Complex64],
+    rows: &mut Vec<ScalarAnalysisRow>,
 ) {
-    scalar_analysis_order::<A, L, SCALAR_ANALYSIS_ROW>(rec, log2_norm, pairs, ring_sums, out, false)
+    scalar_analysis_order::<A, L, SCALAR_ANALYSIS_ROW>(
+        rec, log2_norm, pairs, ring_sums, out, false, rows,
+    )
 }
+
+/// One degree's partial sums in the scalar analysis kernel (its scratch, reused between calls).
+type ScalarAnalysisRow = [[f64; SCALAR_ANALYSIS_ROW]; 4];
 
 impl SpinTransform {
     /// Transform for spin `spin` ≥ 1, maps of `nside` and coefficients up to `lmax`, with
@@ -961,10 +967,10 @@ impl SpinTransform {
             .take_while(|r| r.sin_theta * r.sin_theta < POLAR_SIN2)
             .count();
         let polar_pairs = HalfAngleRings::new(&north[..polar]);
-        let scalar_pairs = RingPairs {
-            z: north.iter().map(|r| r.z).collect(),
-            sin_theta: north.iter().map(|r| r.sin_theta).collect(),
-        };
+        let scalar_pairs = RingPairs::new(
+            north.iter().map(|r| r.z).collect(),
+            north.iter().map(|r| r.sin_theta).collect(),
+        );
         let inverse_sin2 = north
             .iter()
             .map(|r| 1.0 / (r.sin_theta * r.sin_theta))
@@ -1396,6 +1402,7 @@ impl SpinTransform {
         rec: &OrderRecurrence,
         ring_sums: &[Complex64],
         out: &mut [Complex64],
+        rows: &mut Vec<ScalarAnalysisRow>,
     ) {
         let (norm, pairs) = (self.log2_norms[rec.m], &self.scalar_pairs);
         run_kernel!(
@@ -1408,6 +1415,7 @@ impl SpinTransform {
                 pairs: &RingPairs,
                 ring_sums: &[Complex64],
                 out: &mut [Complex64],
+                rows: &mut Vec<ScalarAnalysisRow>,
             )
         )
     }
@@ -1490,8 +1498,9 @@ impl SpinTransform {
         let rec = OrderRecurrence::new(m, self.lmax() + 2);
         let mut sq = vec![zero; self.lmax() + 3 - m];
         let mut su = sq.clone();
-        self.scalar_analysis(&rec, &slots[..stride], &mut sq);
-        self.scalar_analysis(&rec, &slots[stride..], &mut su);
+        let mut rows = Vec::new();
+        self.scalar_analysis(&rec, &slots[..stride], &mut sq, &mut rows);
+        self.scalar_analysis(&rec, &slots[stride..], &mut su, &mut rows);
         SpinTwoCoupling::new(m, self.lmax()).spin_coefficients(&sq, &su, e, b);
         if polar > 0 {
             let (mut polar_e, mut polar_b) = (vec![zero; e.len()], vec![zero; b.len()]);
