@@ -233,6 +233,26 @@ struct Measure {
     args: MeasureArgs,
 }
 
+/// The document `planisphere measure MAP EXTRA… -J 3 -o OUT` writes, reading the map whole
+/// (`whole`) or only where its tiles read it.
+fn measure_document(map_path: &Path, extra: &[&str], out: &Path, whole: bool) -> Vec<u8> {
+    let mut argv: Vec<String> = vec!["measure".into(), map_path.display().to_string()];
+    argv.extend(extra.iter().map(|s| s.to_string()));
+    argv.extend([
+        "-J".into(),
+        "3".into(),
+        "-o".into(),
+        out.display().to_string(),
+    ]);
+    let m = Measure::try_parse_from(&argv).unwrap();
+    if whole {
+        planisphere::cli::measure::run_reading_whole_map(&m.args).unwrap();
+    } else {
+        planisphere::cli::measure::run(&m.args).unwrap();
+    }
+    std::fs::read(out).unwrap()
+}
+
 #[test]
 fn measure_writes_the_same_document_reading_by_blocks_and_whole() {
     let dir = tempfile::tempdir().unwrap();
@@ -241,21 +261,7 @@ fn measure_writes_the_same_document_reading_by_blocks_and_whole() {
         let out = dir
             .path()
             .join(format!("out_{}_{}.json", whole, extra.len()));
-        let mut argv: Vec<String> = vec!["measure".into(), map_path.display().to_string()];
-        argv.extend(extra.iter().map(|s| s.to_string()));
-        argv.extend([
-            "-J".into(),
-            "3".into(),
-            "-o".into(),
-            out.display().to_string(),
-        ]);
-        let m = Measure::try_parse_from(&argv).unwrap();
-        if whole {
-            planisphere::cli::measure::run_reading_whole_map(&m.args).unwrap();
-        } else {
-            planisphere::cli::measure::run(&m.args).unwrap();
-        }
-        std::fs::read(&out).unwrap()
+        measure_document(&map_path, extra, &out, whole)
     };
     let mask = mask_path.display().to_string();
     for extra in [
@@ -324,26 +330,10 @@ fn a_nested_map_held_by_blocks_measures_bit_for_bit_as_the_whole_map() {
 fn measure_writes_the_same_document_for_a_nested_map_by_blocks_and_whole() {
     let dir = tempfile::tempdir().unwrap();
     let (map_path, mask_path) = write_inputs_in(dir.path(), Ordering::Nested);
+    let mask = mask_path.display().to_string();
     let run = |whole: bool| -> Vec<u8> {
         let out = dir.path().join(format!("out_nested_{whole}.json"));
-        let argv = [
-            "measure",
-            &map_path.display().to_string(),
-            "--mask",
-            &mask_path.display().to_string(),
-            "-J",
-            "3",
-            "-o",
-            &out.display().to_string(),
-        ]
-        .map(String::from);
-        let m = Measure::try_parse_from(&argv).unwrap();
-        if whole {
-            planisphere::cli::measure::run_reading_whole_map(&m.args).unwrap();
-        } else {
-            planisphere::cli::measure::run(&m.args).unwrap();
-        }
-        std::fs::read(&out).unwrap()
+        measure_document(&map_path, &["--mask", &mask], &out, whole)
     };
     let a = run(true);
     assert!(!a.is_empty());
